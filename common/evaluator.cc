@@ -1,0 +1,147 @@
+#include "common/evaluator.h"
+
+#include <cmath>
+#include <utility>
+
+#include "absl/status/status.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+
+namespace skerry {
+namespace {
+
+// Definitions and domains: Jamil & Yang 2013, "A literature survey of benchmark
+// functions for global optimisation problems".
+constexpr double kPi = 3.14159265358979323846;
+constexpr double kE = 2.71828182845904523536;
+
+double Sphere(absl::Span<const double> x) {
+  double sum = 0.0;
+  for (double v : x) sum += v * v;
+  return sum;
+}
+
+double Rastrigin(absl::Span<const double> x) {
+  double sum = 10.0 * static_cast<double>(x.size());
+  for (double v : x) sum += v * v - 10.0 * std::cos(2.0 * kPi * v);
+  return sum;
+}
+
+double Rosenbrock(absl::Span<const double> x) {
+  double sum = 0.0;
+  for (size_t i = 0; i + 1 < x.size(); ++i) {
+    const double a = x[i + 1] - x[i] * x[i];
+    const double b = 1.0 - x[i];
+    sum += 100.0 * a * a + b * b;
+  }
+  return sum;
+}
+
+double Ackley(absl::Span<const double> x) {
+  const double d = static_cast<double>(x.size());
+  double squares = 0.0;
+  double cosines = 0.0;
+  for (double v : x) {
+    squares += v * v;
+    cosines += std::cos(2.0 * kPi * v);
+  }
+  return -20.0 * std::exp(-0.2 * std::sqrt(squares / d)) -
+         std::exp(cosines / d) + 20.0 + kE;
+}
+
+double Griewank(absl::Span<const double> x) {
+  double sum = 0.0;
+  double product = 1.0;
+  for (size_t i = 0; i < x.size(); ++i) {
+    sum += x[i] * x[i] / 4000.0;
+    product *= std::cos(x[i] / std::sqrt(static_cast<double>(i + 1)));
+  }
+  return sum - product + 1.0;
+}
+
+// Schwefel 2.26, shifted so the minimum is (nearly) 0.
+double Schwefel(absl::Span<const double> x) {
+  double sum = 418.9829 * static_cast<double>(x.size());
+  for (double v : x) sum -= v * std::sin(std::sqrt(std::fabs(v)));
+  return sum;
+}
+
+double StyblinskiTang(absl::Span<const double> x) {
+  double sum = 0.0;
+  for (double v : x) {
+    const double v2 = v * v;
+    sum += v2 * v2 - 16.0 * v2 + 5.0 * v;
+  }
+  return 0.5 * sum;
+}
+
+// Always 0: lets benchmarks measure the system rather than the function.
+double Zero(absl::Span<const double>) { return 0.0; }
+
+constexpr BuiltinFunction kBuiltins[] = {
+    {"sphere", -5.12, 5.12, &Sphere},
+    {"rastrigin", -5.12, 5.12, &Rastrigin},
+    {"rosenbrock", -5.0, 10.0, &Rosenbrock},
+    {"ackley", -32.768, 32.768, &Ackley},
+    {"griewank", -600.0, 600.0, &Griewank},
+    {"schwefel", -500.0, 500.0, &Schwefel},
+    {"styblinski_tang", -5.0, 5.0, &StyblinskiTang},
+    {"zero", -1.0, 1.0, &Zero},
+};
+
+class BuiltinEvaluator : public Evaluator {
+ public:
+  explicit BuiltinEvaluator(const BuiltinFunction* function)
+      : function_(function) {}
+
+  absl::StatusOr<double> Evaluate(absl::Span<const double> genes,
+                                  uint64_t /*seed*/) override {
+    if (genes.empty()) {
+      return absl::InvalidArgumentError(
+          absl::StrCat(function_->name, ": genome has no genes"));
+    }
+    for (size_t i = 0; i < genes.size(); ++i) {
+      if (!std::isfinite(genes[i])) {
+        return absl::InvalidArgumentError(
+            absl::StrCat(function_->name, ": gene ", i, " is not finite (got ",
+                         genes[i], ")"));
+      }
+    }
+    return function_->fn(genes);
+  }
+
+ private:
+  const BuiltinFunction* function_;
+};
+
+}  // namespace
+
+const BuiltinFunction* FindBuiltin(absl::string_view name) {
+  for (const BuiltinFunction& f : kBuiltins) {
+    if (name == f.name) return &f;
+  }
+  return nullptr;
+}
+
+std::vector<std::string> BuiltinNames() {
+  std::vector<std::string> names;
+  for (const BuiltinFunction& f : kBuiltins) names.emplace_back(f.name);
+  return names;
+}
+
+absl::StatusOr<std::unique_ptr<Evaluator>> MakeEvaluator(
+    const skerry::v1::EvaluatorSpec& spec) {
+  const std::string& name = spec.builtin().function();  // "" when unset
+  const BuiltinFunction* function =
+      spec.kind_case() == skerry::v1::EvaluatorSpec::kBuiltin
+          ? FindBuiltin(name)
+          : nullptr;
+  if (function == nullptr) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "evaluator.builtin.function: unknown function \"", name,
+        "\" (allowed: ", absl::StrJoin(BuiltinNames(), ", "), ")"));
+  }
+  return std::unique_ptr<Evaluator>(new BuiltinEvaluator(function));
+}
+
+}  // namespace skerry
