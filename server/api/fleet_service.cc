@@ -1,0 +1,124 @@
+#include "server/api/fleet_service.h"
+
+#include <algorithm>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "server/api/grpc_status.h"
+
+namespace skerry::api {
+
+FleetServiceImpl::FleetServiceImpl(store::Store* store, engine::Engine* engine,
+                                   scheduler::TaskQueue* queue, Clock* clock,
+                                   absl::Duration max_wait)
+    : store_(store),
+      engine_(engine),
+      queue_(queue),
+      clock_(clock),
+      max_wait_(max_wait) {}
+
+grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
+                                    const skerry::v1::JoinRequest* req,
+                                    skerry::v1::JoinResponse* resp) {
+  if (req->threads() < 1 || req->threads() > 4096) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        absl::StrCat("threads: must be from 1 to 4096, got ",
+                                     req->threads()));
+  }
+  if (req->name().size() > 256 || req->host().size() > 256) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        "name and host must be at most 256 bytes");
+  }
+  store::WorkerRecord w;
+  w.name = req->name().empty() ? "worker" : req->name();
+  w.host = req->host();
+  w.threads = req->threads();
+  w.evaluators = absl::StrJoin(req->evaluators(), ",");
+  w.version = req->version();
+  w.joined_ms = w.last_seen_ms = clock_->WallMillis();
+  absl::StatusOr<int64_t> id = store_->RegisterWorker(w);
+  if (!id.ok()) return ToGrpc(id.status());
+  {
+    absl::MutexLock l(&mu_);
+    last_seen_[static_cast<uint64_t>(*id)] = clock_->Now();
+  }
+  resp->set_worker_id(static_cast<uint64_t>(*id));
+  resp->set_lease_seconds(absl::ToDoubleSeconds(queue_->lease()));
+  return grpc::Status::OK;
+}
+
+grpc::Status FleetServiceImpl::CheckWorker(uint64_t worker_id) {
+  absl::MutexLock l(&mu_);
+  auto it = last_seen_.find(worker_id);
+  if (it == last_seen_.end()) {
+    return grpc::Status(
+        grpc::StatusCode::NOT_FOUND,
+        absl::StrCat("unknown worker ", worker_id,
+                     " (the coordinator may have restarted): join again"));
+  }
+  it->second = clock_->Now();
+  return grpc::Status::OK;
+}
+
+grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
+                                     const skerry::v1::LeaseRequest* req,
+                                     skerry::v1::LeaseResponse* resp) {
+  grpc::Status known = CheckWorker(req->worker_id());
+  if (!known.ok()) return known;
+  if (req->max_tasks() == 0 || req->max_tasks() > kMaxTasksPerLease) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        absl::StrCat("max_tasks: must be from 1 to ",
+                                     kMaxTasksPerLease, ", got ",
+                                     req->max_tasks()));
+  }
+  absl::Duration wait =
+      std::min(absl::Milliseconds(req->wait_ms()), max_wait_);
+  // Answer before the caller's deadline, with a margin for the reply.
+  const absl::Duration left =
+      absl::FromChrono(ctx->deadline()) - absl::Now() - absl::Milliseconds(200);
+  wait = std::max(absl::ZeroDuration(), std::min(wait, left));
+  std::vector<skerry::v1::Task> tasks = queue_->Lease(
+      static_cast<int64_t>(req->worker_id()), req->max_tasks(), wait);
+  for (skerry::v1::Task& t : tasks) *resp->add_tasks() = std::move(t);
+  resp->set_lease_seconds(absl::ToDoubleSeconds(queue_->lease()));
+  return grpc::Status::OK;
+}
+
+grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
+                                      const skerry::v1::ReportRequest* req,
+                                      skerry::v1::ReportResponse* resp) {
+  grpc::Status known = CheckWorker(req->worker_id());
+  if (!known.ok()) return known;
+  if (req->results_size() > kMaxResultsPerReport ||
+      req->held_task_ids_size() > kMaxResultsPerReport) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        absl::StrCat("a report may carry at most ",
+                                     kMaxResultsPerReport,
+                                     " results and held task ids"));
+  }
+  queue_->Renew(static_cast<int64_t>(req->worker_id()),
+                {req->held_task_ids().data(),
+                 static_cast<size_t>(req->held_task_ids_size())});
+  if (req->results_size() == 0) return grpc::Status::OK;
+  std::vector<skerry::v1::TaskResult> results(req->results().begin(),
+                                              req->results().end());
+  absl::StatusOr<engine::ReportOutcome> outcome =
+      engine_->Report(static_cast<int64_t>(req->worker_id()), results);
+  if (!outcome.ok()) return ToGrpc(outcome.status());
+  resp->set_accepted(outcome->accepted);
+  resp->set_ignored(outcome->ignored);
+  return grpc::Status::OK;
+}
+
+int FleetServiceImpl::ActiveWorkers(absl::Duration within) {
+  absl::MutexLock l(&mu_);
+  const absl::Time since = clock_->Now() - within;
+  int n = 0;
+  for (const auto& [id, seen] : last_seen_) {
+    if (seen >= since) ++n;
+  }
+  return n;
+}
+
+}  // namespace skerry::api

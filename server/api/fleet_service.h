@@ -1,0 +1,61 @@
+// FleetService: the workers' side of the coordinator (Join, Lease, Report).
+//
+// It checks every message from outside before anything reaches the engine: a
+// worker must have joined (an unknown id gets NOT_FOUND, "join again"), sizes are
+// bounded, and a Report is answered only after its results are committed.
+//
+// Thread safety: gRPC calls the handlers from many threads; all state is guarded.
+#ifndef SKERRY_SERVER_API_FLEET_SERVICE_H_
+#define SKERRY_SERVER_API_FLEET_SERVICE_H_
+
+#include <cstdint>
+#include <map>
+
+#include "absl/base/thread_annotations.h"
+#include "absl/synchronization/mutex.h"
+#include "absl/time/time.h"
+#include "common/clock.h"
+#include "server/engine/engine.h"
+#include "server/scheduler/task_queue.h"
+#include "server/store/store.h"
+#include "skerry/v1/fleet.grpc.pb.h"
+
+namespace skerry::api {
+
+class FleetServiceImpl final : public skerry::v1::FleetService::Service {
+ public:
+  static constexpr uint32_t kMaxTasksPerLease = 10000;
+  static constexpr int kMaxResultsPerReport = 100000;
+
+  FleetServiceImpl(store::Store* store, engine::Engine* engine,
+                   scheduler::TaskQueue* queue, Clock* clock,
+                   absl::Duration max_wait);
+
+  grpc::Status Join(grpc::ServerContext* ctx, const skerry::v1::JoinRequest* req,
+                    skerry::v1::JoinResponse* resp) override;
+  grpc::Status Lease(grpc::ServerContext* ctx,
+                     const skerry::v1::LeaseRequest* req,
+                     skerry::v1::LeaseResponse* resp) override;
+  grpc::Status Report(grpc::ServerContext* ctx,
+                      const skerry::v1::ReportRequest* req,
+                      skerry::v1::ReportResponse* resp) override;
+
+  // Workers heard from within the last `within`.
+  int ActiveWorkers(absl::Duration within);
+
+ private:
+  grpc::Status CheckWorker(uint64_t worker_id);
+
+  store::Store* const store_;
+  engine::Engine* const engine_;
+  scheduler::TaskQueue* const queue_;
+  Clock* const clock_;
+  const absl::Duration max_wait_;
+
+  absl::Mutex mu_;
+  std::map<uint64_t, absl::Time> last_seen_ ABSL_GUARDED_BY(mu_);
+};
+
+}  // namespace skerry::api
+
+#endif  // SKERRY_SERVER_API_FLEET_SERVICE_H_

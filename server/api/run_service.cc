@@ -1,0 +1,179 @@
+#include "server/api/run_service.h"
+
+#include <algorithm>
+
+#include "absl/strings/str_cat.h"
+#include "server/api/grpc_status.h"
+
+namespace skerry::api {
+namespace {
+
+constexpr size_t kMaxSpecTextBytes = 1 << 20;
+
+bool IsEnded(skerry::v1::RunState s) {
+  return s == skerry::v1::FINISHED || s == skerry::v1::STOPPED ||
+         s == skerry::v1::FAILED_RUN;
+}
+
+int64_t RunId(uint64_t id) { return static_cast<int64_t>(id); }
+
+}  // namespace
+
+skerry::v1::Genome ToGenomeProto(const store::GenomeRecord& g) {
+  skerry::v1::Genome out;
+  out.set_id(static_cast<uint64_t>(g.id));
+  out.mutable_key()->set_run_id(static_cast<uint64_t>(g.run_id));
+  out.mutable_key()->set_island(g.island);
+  out.mutable_key()->set_generation(g.generation);
+  out.mutable_key()->set_slot(g.slot);
+  out.set_origin(g.origin);
+  out.set_parent_a(static_cast<uint64_t>(g.parent_a));
+  out.set_parent_b(static_cast<uint64_t>(g.parent_b));
+  *out.mutable_genes() = {g.genes.begin(), g.genes.end()};
+  out.set_score(g.score);
+  out.set_state(g.state);
+  out.set_attempts(g.attempts);
+  out.set_error(g.error);
+  out.set_eval_seconds(g.eval_seconds);
+  return out;
+}
+
+grpc::Status RunServiceImpl::Summarise(int64_t run_id,
+                                       skerry::v1::RunSummary* out) {
+  absl::StatusOr<skerry::v1::RunSummary> s = engine_->Summary(run_id);
+  if (!s.ok()) return ToGrpc(s.status());
+  *out = std::move(*s);
+  return grpc::Status::OK;
+}
+
+grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
+                                       const skerry::v1::SubmitRunRequest* req,
+                                       skerry::v1::SubmitRunResponse* resp) {
+  if (req->spec_text().size() > kMaxSpecTextBytes) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        absl::StrCat("spec_text: at most ", kMaxSpecTextBytes,
+                                     " bytes"));
+  }
+  absl::StatusOr<store::RunRecord> rec =
+      engine_->Submit(req->spec(), req->spec_text(), "local");
+  if (!rec.ok()) return ToGrpc(rec.status());
+  return Summarise(rec->id, resp->mutable_run());
+}
+
+grpc::Status RunServiceImpl::ListRuns(grpc::ServerContext* ctx,
+                                      const skerry::v1::ListRunsRequest* req,
+                                      skerry::v1::ListRunsResponse* resp) {
+  absl::StatusOr<std::vector<skerry::v1::RunSummary>> runs =
+      engine_->ListSummaries();
+  if (!runs.ok()) return ToGrpc(runs.status());
+  for (auto& r : *runs) *resp->add_runs() = std::move(r);
+  return grpc::Status::OK;
+}
+
+grpc::Status RunServiceImpl::GetRun(grpc::ServerContext* ctx,
+                                    const skerry::v1::RunRef* req,
+                                    skerry::v1::GetRunResponse* resp) {
+  grpc::Status s = Summarise(RunId(req->run_id()), resp->mutable_run());
+  if (!s.ok()) return s;
+  absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
+  if (!rec.ok()) return ToGrpc(rec.status());
+  *resp->mutable_spec() = rec->spec;
+  resp->set_workers(
+      static_cast<uint32_t>(fleet_->ActiveWorkers(absl::Minutes(1))));
+  return grpc::Status::OK;
+}
+
+grpc::Status RunServiceImpl::PauseRun(grpc::ServerContext* ctx,
+                                      const skerry::v1::RunRef* req,
+                                      skerry::v1::RunSummary* resp) {
+  absl::Status s = engine_->Pause(RunId(req->run_id()));
+  if (!s.ok()) return ToGrpc(s);
+  return Summarise(RunId(req->run_id()), resp);
+}
+
+grpc::Status RunServiceImpl::ResumeRun(grpc::ServerContext* ctx,
+                                       const skerry::v1::RunRef* req,
+                                       skerry::v1::RunSummary* resp) {
+  absl::Status s = engine_->Resume(RunId(req->run_id()));
+  if (!s.ok()) return ToGrpc(s);
+  return Summarise(RunId(req->run_id()), resp);
+}
+
+grpc::Status RunServiceImpl::StopRun(grpc::ServerContext* ctx,
+                                     const skerry::v1::RunRef* req,
+                                     skerry::v1::RunSummary* resp) {
+  absl::Status s = engine_->Stop(RunId(req->run_id()));
+  if (!s.ok()) return ToGrpc(s);
+  return Summarise(RunId(req->run_id()), resp);
+}
+
+grpc::Status RunServiceImpl::GetChampion(grpc::ServerContext* ctx,
+                                         const skerry::v1::RunRef* req,
+                                         skerry::v1::GetChampionResponse* resp) {
+  absl::StatusOr<std::optional<store::GenomeRecord>> best =
+      store_->BestGenome(RunId(req->run_id()));
+  if (!best.ok()) return ToGrpc(best.status());
+  if (!best->has_value()) {
+    return grpc::Status(grpc::StatusCode::NOT_FOUND,
+                        absl::StrCat("run ", req->run_id(),
+                                     " has no evaluated genome yet"));
+  }
+  *resp->mutable_genome() = ToGenomeProto(**best);
+  return grpc::Status::OK;
+}
+
+grpc::Status RunServiceImpl::GetHistory(grpc::ServerContext* ctx,
+                                        const skerry::v1::GetHistoryRequest* req,
+                                        skerry::v1::GetHistoryResponse* resp) {
+  absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
+  if (!rec.ok()) return ToGrpc(rec.status());
+  std::optional<uint32_t> island;
+  if (!req->all_islands()) island = req->island();
+  absl::StatusOr<std::vector<store::StatsRecord>> stats =
+      store_->GetStats(RunId(req->run_id()), island);
+  if (!stats.ok()) return ToGrpc(stats.status());
+  for (const store::StatsRecord& s : *stats) {
+    skerry::v1::GenerationStats* g = resp->add_generations();
+    g->set_island(s.island);
+    g->set_generation(s.generation);
+    g->set_best(s.best);
+    g->set_mean(s.mean);
+    g->set_worst(s.worst);
+    g->set_diversity(s.diversity);
+    g->set_evaluations(s.evaluations);
+    g->set_failed(s.failed);
+    g->set_completed_unix_ms(s.completed_ms);
+  }
+  return grpc::Status::OK;
+}
+
+grpc::Status RunServiceImpl::WatchRun(
+    grpc::ServerContext* ctx, const skerry::v1::WatchRunRequest* req,
+    grpc::ServerWriter<skerry::v1::RunSummary>* writer) {
+  const absl::Duration interval = absl::Milliseconds(
+      std::clamp<uint32_t>(req->interval_ms() == 0 ? 500 : req->interval_ms(),
+                           50, 60000));
+  uint64_t seen = 0;
+  std::string last_sent;
+  while (!ctx->IsCancelled()) {
+    skerry::v1::RunSummary summary;
+    grpc::Status s = Summarise(RunId(req->run_id()), &summary);
+    if (!s.ok()) return s;
+    summary.set_updated_unix_ms(0);  // compare content, not timestamps
+    std::string bytes = summary.SerializeAsString();
+    if (bytes != last_sent) {
+      if (!writer->Write(summary)) return grpc::Status::OK;  // watcher left
+      last_sent = std::move(bytes);
+    }
+    if (IsEnded(summary.state())) return grpc::Status::OK;
+    const absl::Time next = absl::Now() + interval;
+    // Wait for a change, but wake at least every interval to notice a
+    // cancelled watcher.
+    seen = engine_->WaitForChange(seen, next);
+    const absl::Duration rest = next - absl::Now();
+    if (rest > absl::ZeroDuration()) absl::SleepFor(rest);
+  }
+  return grpc::Status::OK;
+}
+
+}  // namespace skerry::api

@@ -1,0 +1,60 @@
+// RunService: the people's side of the coordinator (submit, inspect, steer,
+// watch). Reads come from the engine's cache and the store; every change goes
+// through the engine so it is committed before it is answered.
+//
+// Thread safety: gRPC calls the handlers from many threads; the service holds no
+// state of its own.
+#ifndef SKERRY_SERVER_API_RUN_SERVICE_H_
+#define SKERRY_SERVER_API_RUN_SERVICE_H_
+
+#include "server/api/fleet_service.h"
+#include "server/engine/engine.h"
+#include "server/store/store.h"
+#include "skerry/v1/runs.grpc.pb.h"
+
+namespace skerry::api {
+
+// The user API's view of a stored genome.
+skerry::v1::Genome ToGenomeProto(const store::GenomeRecord& g);
+
+class RunServiceImpl final : public skerry::v1::RunService::Service {
+ public:
+  RunServiceImpl(store::Store* store, engine::Engine* engine,
+                 FleetServiceImpl* fleet)
+      : store_(store), engine_(engine), fleet_(fleet) {}
+
+  grpc::Status SubmitRun(grpc::ServerContext* ctx,
+                         const skerry::v1::SubmitRunRequest* req,
+                         skerry::v1::SubmitRunResponse* resp) override;
+  grpc::Status ListRuns(grpc::ServerContext* ctx,
+                        const skerry::v1::ListRunsRequest* req,
+                        skerry::v1::ListRunsResponse* resp) override;
+  grpc::Status GetRun(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+                      skerry::v1::GetRunResponse* resp) override;
+  grpc::Status PauseRun(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+                        skerry::v1::RunSummary* resp) override;
+  grpc::Status ResumeRun(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+                         skerry::v1::RunSummary* resp) override;
+  grpc::Status StopRun(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+                       skerry::v1::RunSummary* resp) override;
+  grpc::Status GetChampion(grpc::ServerContext* ctx,
+                           const skerry::v1::RunRef* req,
+                           skerry::v1::GetChampionResponse* resp) override;
+  grpc::Status GetHistory(grpc::ServerContext* ctx,
+                          const skerry::v1::GetHistoryRequest* req,
+                          skerry::v1::GetHistoryResponse* resp) override;
+  grpc::Status WatchRun(grpc::ServerContext* ctx,
+                        const skerry::v1::WatchRunRequest* req,
+                        grpc::ServerWriter<skerry::v1::RunSummary>* writer) override;
+
+ private:
+  grpc::Status Summarise(int64_t run_id, skerry::v1::RunSummary* out);
+
+  store::Store* const store_;
+  engine::Engine* const engine_;
+  FleetServiceImpl* const fleet_;
+};
+
+}  // namespace skerry::api
+
+#endif  // SKERRY_SERVER_API_RUN_SERVICE_H_

@@ -1,0 +1,46 @@
+// The coordinator: opens the store, resumes every run, serves FleetService and
+// RunService. Used by skerry-coordinator's main and by `skerry local`.
+//
+// Thread safety: Start() once; every other method from any thread.
+#ifndef SKERRY_SERVER_COORDINATOR_H_
+#define SKERRY_SERVER_COORDINATOR_H_
+
+#include <memory>
+#include <string>
+
+#include "absl/status/statusor.h"
+#include "absl/time/time.h"
+#include "common/clock.h"
+#include "grpcpp/channel.h"
+
+namespace skerry::server {
+
+struct CoordinatorOptions {
+  std::string db_path;
+  // host:port; port 0 picks a free one (see Coordinator::port()). Empty: no
+  // network listener (in-process channels only, as `skerry local` uses).
+  std::string listen_address = "127.0.0.1:7431";
+  absl::Duration lease = absl::Seconds(30);         // task lease without renewal
+  absl::Duration max_lease_wait = absl::Seconds(10);  // long-poll cap
+  Clock* clock = nullptr;                           // default: Clock::Real()
+};
+
+class Coordinator {
+ public:
+  static absl::StatusOr<std::unique_ptr<Coordinator>> Start(
+      const CoordinatorOptions& options);
+  virtual ~Coordinator() = default;
+
+  // The bound TCP port (0 without a listener).
+  virtual int port() const = 0;
+  // A channel to this coordinator that does not touch the network.
+  virtual std::shared_ptr<grpc::Channel> InProcessChannel() = 0;
+  // Stops serving; in-flight commits finish first.
+  virtual void Shutdown() = 0;
+  // Blocks until Shutdown() is called (from a signal handler's thread, say).
+  virtual void Wait() = 0;
+};
+
+}  // namespace skerry::server
+
+#endif  // SKERRY_SERVER_COORDINATOR_H_

@@ -1,0 +1,78 @@
+#include "server/coordinator_flags.h"
+
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+
+namespace skerry::server {
+
+std::string CoordinatorUsage() {
+  return R"(Usage: skerry-coordinator --db FILE [--listen HOST:PORT] [options]
+
+Holds every run's populations and lineage in the SQLite file FILE, runs the
+search, and serves workers (FleetService) and people (RunService) over gRPC.
+Started on an existing database, it resumes every run that was running.
+Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
+
+  --db FILE             database file (created when missing)
+  --listen HOST:PORT    address to serve on (default 127.0.0.1:7431; port 0
+                        picks a free port, printed at start)
+  --lease-seconds N     how long a worker holds tasks without renewing
+                        (default 30)
+  --max-wait-ms N       cap on a worker's long poll (default 10000)
+  --help                this text
+)";
+}
+
+absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
+                                                       const char* const* argv) {
+  CoordinatorFlags f;
+  for (int i = 1; i < argc; ++i) {
+    const std::string arg = argv[i];
+    auto value = [&](const char* name) -> absl::StatusOr<std::string> {
+      if (i + 1 >= argc) {
+        return absl::InvalidArgumentError(absl::StrCat(name, ": needs a value"));
+      }
+      return std::string(argv[++i]);
+    };
+    auto number = [&](const char* name, double lo,
+                      double hi) -> absl::StatusOr<double> {
+      absl::StatusOr<std::string> v = value(name);
+      if (!v.ok()) return v.status();
+      double d = 0;
+      if (!absl::SimpleAtod(*v, &d) || !(d >= lo && d <= hi)) {
+        return absl::InvalidArgumentError(absl::StrCat(
+            name, ": expected a number from ", lo, " to ", hi, ", got \"", *v,
+            "\""));
+      }
+      return d;
+    };
+    if (arg == "--help" || arg == "-h") {
+      f.help = true;
+    } else if (arg == "--db") {
+      absl::StatusOr<std::string> v = value("--db");
+      if (!v.ok()) return v.status();
+      f.options.db_path = *v;
+    } else if (arg == "--listen") {
+      absl::StatusOr<std::string> v = value("--listen");
+      if (!v.ok()) return v.status();
+      f.options.listen_address = *v;
+    } else if (arg == "--lease-seconds") {
+      absl::StatusOr<double> v = number("--lease-seconds", 0.1, 86400);
+      if (!v.ok()) return v.status();
+      f.options.lease = absl::Seconds(*v);
+    } else if (arg == "--max-wait-ms") {
+      absl::StatusOr<double> v = number("--max-wait-ms", 0, 600000);
+      if (!v.ok()) return v.status();
+      f.options.max_lease_wait = absl::Milliseconds(*v);
+    } else {
+      return absl::InvalidArgumentError(
+          absl::StrCat("unknown argument \"", arg, "\""));
+    }
+  }
+  if (!f.help && f.options.db_path.empty()) {
+    return absl::InvalidArgumentError("--db: a database file is required");
+  }
+  return f;
+}
+
+}  // namespace skerry::server

@@ -1,0 +1,24 @@
+// Command-line flags of skerry-coordinator, parsed into CoordinatorOptions.
+#ifndef SKERRY_SERVER_COORDINATOR_FLAGS_H_
+#define SKERRY_SERVER_COORDINATOR_FLAGS_H_
+
+#include <string>
+
+#include "absl/status/statusor.h"
+#include "server/coordinator.h"
+
+namespace skerry::server {
+
+struct CoordinatorFlags {
+  CoordinatorOptions options;
+  bool help = false;
+};
+
+// InvalidArgument names the flag and what it takes.
+absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
+                                                       const char* const* argv);
+std::string CoordinatorUsage();
+
+}  // namespace skerry::server
+
+#endif  // SKERRY_SERVER_COORDINATOR_FLAGS_H_

@@ -1,0 +1,709 @@
+#include "server/engine/engine.h"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+
+#include "absl/strings/str_cat.h"
+#include "common/spec.h"
+#include "common/status_macros.h"
+#include "server/engine/breeder.h"
+#include "server/engine/topology.h"
+
+namespace skerry::engine {
+namespace {
+
+using skerry::v1::RunSpec;
+using store::GenomeRecord;
+
+// Completed generations kept in memory per island for migration; older ones are
+// read back from the store when a lagging neighbour asks for them.
+constexpr size_t kCompletedKept = 3;
+
+bool IsActive(skerry::v1::RunState s) {
+  return s == skerry::v1::QUEUED || s == skerry::v1::RUNNING ||
+         s == skerry::v1::PAUSED;
+}
+
+bool MeetsTarget(const RunSpec& spec, double best) {
+  if (!spec.stop().has_target_score()) return false;
+  return spec.objective() == skerry::v1::MAXIMIZE
+             ? best >= spec.stop().target_score()
+             : best <= spec.stop().target_score();
+}
+
+// The island's share of the evaluation budget: proportional to its population.
+uint64_t EvaluationShare(const RunSpec& spec, uint32_t island) {
+  uint64_t total = 0;
+  for (uint32_t i = 0; i < spec.islands().count(); ++i) {
+    total += IslandPopulation(spec, i);
+  }
+  const uint64_t budget = spec.stop().max_evaluations();
+  const uint64_t pop = IslandPopulation(spec, island);
+  return (budget * pop + total - 1) / total;  // ceiling
+}
+
+}  // namespace
+
+absl::StatusOr<std::unique_ptr<Engine>> Engine::Open(
+    store::Store* store, scheduler::TaskQueue* queue, Clock* clock) {
+  std::unique_ptr<Engine> engine(new Engine(store, queue, clock));
+  {
+    absl::MutexLock l(&engine->mu_);
+    SKERRY_RETURN_IF_ERROR(engine->Load());
+  }
+  engine->committer_ = std::thread([e = engine.get()] { e->CommitterLoop(); });
+  return engine;
+}
+
+Engine::~Engine() { Shutdown(); }
+
+void Engine::Shutdown() {
+  {
+    absl::MutexLock l(&jobs_mu_);
+    stopping_ = true;
+  }
+  if (committer_.joinable()) committer_.join();
+}
+
+absl::Status Engine::Load() {
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs,
+                          store_->ListRuns());
+  for (const store::RunRecord& r : runs) {
+    if (!IsActive(r.state)) continue;
+    SKERRY_RETURN_IF_ERROR(LoadRun(r));
+  }
+  return absl::OkStatus();
+}
+
+absl::Status Engine::LoadRun(const store::RunRecord& record) {
+  auto run = std::make_unique<Run>();
+  run->record = record;
+  run->evaluator =
+      std::make_shared<skerry::v1::EvaluatorSpec>(record.spec.evaluator());
+  run->stop_generation = record.stop_generation;
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
+                          store_->GetIslands(record.id));
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::StatsRecord> stats,
+                          store_->GetStats(record.id, std::nullopt));
+  for (const store::IslandRecord& ir : islands) {
+    Island island;
+    island.index = ir.index;
+    island.generation = ir.generation;
+    island.done = ir.done;
+    for (const store::StatsRecord& s : stats) {
+      if (s.island != ir.index) continue;
+      island.evaluations += s.evaluations;
+      island.last_stats = s;
+    }
+    SKERRY_ASSIGN_OR_RETURN(
+        island.current,
+        store_->GetGeneration(record.id, ir.index, ir.generation));
+    if (island.done) {
+      island.completed[island.generation] = std::move(island.current);
+      island.current.clear();
+    } else {
+      for (const GenomeRecord& g : island.current) {
+        if (g.state == skerry::v1::PENDING) island.pending[g.id] = g.slot;
+      }
+    }
+    run->islands.push_back(std::move(island));
+  }
+  Run& r = *run;
+  runs_[record.id] = std::move(run);
+  queue_->SetPaused(record.id, record.state == skerry::v1::PAUSED);
+  for (const Island& island : r.islands) {
+    if (!island.done) QueueIsland(r, island);
+  }
+  return Advance(r);
+}
+
+void Engine::QueueIsland(const Run& run, const Island& island) {
+  std::vector<scheduler::TaskInfo> tasks;
+  for (const GenomeRecord& g : island.current) {
+    if (g.state != skerry::v1::PENDING) continue;
+    scheduler::TaskInfo t;
+    t.genome_id = g.id;
+    t.run_id = run.record.id;
+    t.island = island.index;
+    t.generation = island.generation;
+    t.slot = g.slot;
+    t.genes = g.genes;
+    t.eval_seed = EvalSeed(run.record.spec, island.index, island.generation, g.slot);
+    t.evaluator = run.evaluator;
+    t.attempts = g.attempts;
+    tasks.push_back(std::move(t));
+  }
+  queue_->Add(std::move(tasks));
+}
+
+absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
+                                                std::string spec_text,
+                                                std::string owner) {
+  SKERRY_ASSIGN_OR_RETURN(RunSpec prepared, PrepareSpec(std::move(spec)));
+  absl::MutexLock l(&mu_);
+  store::RunRecord rec;
+  rec.name = prepared.name();
+  rec.owner = std::move(owner);
+  rec.spec = prepared;
+  rec.spec_text = std::move(spec_text);
+  rec.state = skerry::v1::RUNNING;
+  rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
+  std::vector<GenomeRecord> genomes;
+  for (uint32_t i = 0; i < prepared.islands().count(); ++i) {
+    std::vector<GenomeRecord> g0 = Seed(prepared, i);
+    for (GenomeRecord& g : g0) genomes.push_back(std::move(g));
+  }
+  SKERRY_RETURN_IF_ERROR(store_->CreateRun(&rec, &genomes));
+
+  auto run = std::make_unique<Run>();
+  run->record = rec;
+  run->evaluator = std::make_shared<skerry::v1::EvaluatorSpec>(prepared.evaluator());
+  run->islands.resize(prepared.islands().count());
+  for (uint32_t i = 0; i < run->islands.size(); ++i) run->islands[i].index = i;
+  for (GenomeRecord& g : genomes) {
+    Island& island = run->islands[g.island];
+    island.pending[g.id] = g.slot;
+    island.current.push_back(std::move(g));
+  }
+  Run& r = *run;
+  runs_[rec.id] = std::move(run);
+  for (const Island& island : r.islands) QueueIsland(r, island);
+  NotifyChange();
+  return rec;
+}
+
+absl::Status Engine::Pause(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  auto it = runs_.find(run_id);
+  if (it == runs_.end() || it->second->record.state != skerry::v1::RUNNING) {
+    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
+    return absl::FailedPreconditionError(absl::StrCat(
+        "run ", run_id, " is ", skerry::v1::RunState_Name(rec.state),
+        "; only a RUNNING run can be paused"));
+  }
+  SKERRY_RETURN_IF_ERROR(store_->SetRunState(run_id, skerry::v1::PAUSED,
+                                             "paused", clock_->WallMillis()));
+  it->second->record.state = skerry::v1::PAUSED;
+  queue_->SetPaused(run_id, true);
+  NotifyChange();
+  return absl::OkStatus();
+}
+
+absl::Status Engine::Resume(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  auto it = runs_.find(run_id);
+  if (it == runs_.end() || it->second->record.state != skerry::v1::PAUSED) {
+    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
+    return absl::FailedPreconditionError(absl::StrCat(
+        "run ", run_id, " is ", skerry::v1::RunState_Name(rec.state),
+        "; only a PAUSED run can be resumed"));
+  }
+  SKERRY_RETURN_IF_ERROR(store_->SetRunState(run_id, skerry::v1::RUNNING, "",
+                                             clock_->WallMillis()));
+  it->second->record.state = skerry::v1::RUNNING;
+  queue_->SetPaused(run_id, false);
+  NotifyChange();
+  return absl::OkStatus();
+}
+
+absl::Status Engine::Stop(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  auto it = runs_.find(run_id);
+  if (it == runs_.end()) {
+    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
+    return absl::FailedPreconditionError(
+        absl::StrCat("run ", run_id, " is already ",
+                     skerry::v1::RunState_Name(rec.state), "; nothing to stop"));
+  }
+  // A stopped run keeps every generation it made; no trimming.
+  it->second->stop_generation.reset();
+  return FinishRun(*it->second, skerry::v1::STOPPED, "stopped by a user");
+}
+
+absl::StatusOr<ReportOutcome> Engine::Report(
+    int64_t worker_id, const std::vector<skerry::v1::TaskResult>& results) {
+  ReportJob job;
+  job.worker_id = worker_id;
+  job.results = &results;
+  absl::MutexLock l(&jobs_mu_);
+  if (stopping_) return absl::UnavailableError("coordinator is shutting down");
+  jobs_.push_back(&job);
+  jobs_mu_.Await(absl::Condition(&job.done));
+  if (!job.status.ok()) return job.status;
+  return job.outcome;
+}
+
+void Engine::CommitterLoop() {
+  while (true) {
+    std::vector<ReportJob*> jobs;
+    bool stopping = false;
+    {
+      absl::MutexLock l(&jobs_mu_);
+      auto ready = [this]() ABSL_EXCLUSIVE_LOCKS_REQUIRED(jobs_mu_) {
+        return stopping_ || !jobs_.empty();
+      };
+      jobs_mu_.AwaitWithTimeout(absl::Condition(&ready), absl::Seconds(1));
+      jobs.swap(jobs_);
+      stopping = stopping_;
+    }
+    if (!jobs.empty()) ProcessJobs(std::move(jobs));
+    {
+      absl::MutexLock l(&mu_);
+      // Retry what a failed write left undone, and apply wall-time limits.
+      std::vector<int64_t> ids;
+      for (const auto& [id, run] : runs_) ids.push_back(id);
+      for (int64_t id : ids) {
+        auto it = runs_.find(id);
+        if (it == runs_.end()) continue;
+        absl::Status s = Advance(*it->second);
+        if (!s.ok()) {
+          std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
+                       s.ToString().c_str());
+        }
+      }
+      CheckWallTime().IgnoreError();
+    }
+    if (stopping) {
+      absl::MutexLock l(&jobs_mu_);
+      for (ReportJob* job : jobs_) {
+        job->status = absl::UnavailableError("coordinator is shutting down");
+        job->done = true;
+      }
+      jobs_.clear();
+      return;
+    }
+  }
+}
+
+void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
+  struct Applied {
+    Run* run;
+    uint32_t island;
+    uint32_t slot;
+    store::ResultUpdate update;
+  };
+  absl::MutexLock l(&mu_);
+  std::vector<Applied> applied;
+  std::vector<int64_t> claimed;
+  std::vector<ReportOutcome> outcomes(jobs.size());
+  for (size_t j = 0; j < jobs.size(); ++j) {
+    for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
+      const bool failed = !r.error().empty() || !std::isfinite(r.score());
+      std::optional<scheduler::TaskInfo> info =
+          queue_->Claim(jobs[j]->worker_id, r.task_id(), r.attempt(), failed);
+      if (!info.has_value()) {
+        ++outcomes[j].ignored;
+        continue;
+      }
+      claimed.push_back(info->genome_id);
+      auto run_it = runs_.find(info->run_id);
+      Island* island = nullptr;
+      if (run_it != runs_.end() && info->island < run_it->second->islands.size()) {
+        island = &run_it->second->islands[info->island];
+      }
+      if (island == nullptr || island->generation != info->generation ||
+          island->pending.count(info->genome_id) == 0) {
+        // Not part of a live generation any more (the run ended): forget it.
+        queue_->Complete({info->genome_id});
+        claimed.pop_back();
+        ++outcomes[j].ignored;
+        continue;
+      }
+      Run& run = *run_it->second;
+      store::ResultUpdate u;
+      u.genome_id = info->genome_id;
+      u.run_id = info->run_id;
+      u.attempts = info->attempts;
+      u.eval_seconds = r.eval_seconds();
+      if (failed) {
+        u.error = !r.error().empty()
+                      ? r.error()
+                      : absl::StrCat("score is not a finite number (",
+                                     r.score(), ")");
+        u.state = info->attempts >= run.record.spec.max_attempts()
+                      ? skerry::v1::FAILED
+                      : skerry::v1::PENDING;
+      } else {
+        u.state = skerry::v1::EVALUATED;
+        u.score = r.score();
+      }
+      applied.push_back({&run, info->island, info->slot, std::move(u)});
+      ++outcomes[j].accepted;
+    }
+  }
+  std::vector<store::ResultUpdate> updates;
+  updates.reserve(applied.size());
+  for (const Applied& a : applied) updates.push_back(a.update);
+  absl::Status committed =
+      updates.empty() ? absl::OkStatus() : store_->CommitResults(updates);
+  if (!committed.ok()) {
+    queue_->Unclaim(claimed);
+    std::fprintf(stderr, "results not committed: %s\n",
+                 committed.ToString().c_str());
+  } else {
+    std::vector<int64_t> done, retry;
+    for (Applied& a : applied) {
+      Island& island = a.run->islands[a.island];
+      GenomeRecord& g = island.current[a.slot];
+      g.state = a.update.state;
+      g.score = a.update.score;
+      g.attempts = a.update.attempts;
+      g.error = a.update.error;
+      g.eval_seconds = a.update.eval_seconds;
+      if (g.state == skerry::v1::PENDING) {
+        retry.push_back(g.id);
+      } else {
+        island.pending.erase(g.id);
+        ++a.run->record.evaluations;
+        done.push_back(g.id);
+      }
+    }
+    queue_->Complete(done);
+    queue_->Unclaim(retry);
+  }
+  {
+    absl::MutexLock jl(&jobs_mu_);
+    for (size_t j = 0; j < jobs.size(); ++j) {
+      if (committed.ok()) {
+        jobs[j]->outcome = outcomes[j];
+      } else {
+        jobs[j]->status = absl::UnavailableError(absl::StrCat(
+            "results could not be stored, report them again: ",
+            committed.message()));
+      }
+      jobs[j]->done = true;
+    }
+  }
+  if (!committed.ok()) return;
+  std::vector<int64_t> touched;
+  for (const Applied& a : applied) touched.push_back(a.run->record.id);
+  std::sort(touched.begin(), touched.end());
+  touched.erase(std::unique(touched.begin(), touched.end()), touched.end());
+  for (int64_t id : touched) {
+    auto it = runs_.find(id);
+    if (it == runs_.end()) continue;
+    absl::Status s = Advance(*it->second);
+    if (!s.ok()) {
+      std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
+                   s.ToString().c_str());
+    }
+  }
+  NotifyChange();
+}
+
+absl::Status Engine::Advance(Run& run) {
+  const int64_t id = run.record.id;
+  bool progress = true;
+  while (progress) {
+    progress = false;
+    for (Island& island : run.islands) {
+      SKERRY_ASSIGN_OR_RETURN(bool changed, AdvanceIsland(run, island));
+      if (runs_.count(id) == 0) return absl::OkStatus();  // the run failed
+      progress = progress || changed;
+    }
+  }
+  const bool all_done = std::all_of(run.islands.begin(), run.islands.end(),
+                                    [](const Island& i) { return i.done; });
+  if (!all_done) return absl::OkStatus();
+  std::string why = run.finish_reason.empty() ? "finished" : run.finish_reason;
+  return FinishRun(run, skerry::v1::FINISHED, why);
+}
+
+absl::StatusOr<const std::vector<GenomeRecord>*> Engine::CompletedGeneration(
+    Run& run, uint32_t source, uint32_t generation, bool* skip) {
+  *skip = false;
+  Island& s = run.islands[source];
+  auto it = s.completed.find(generation);
+  if (it != s.completed.end()) return &it->second;
+  if (s.generation == generation && !s.done) {
+    if (s.pending.empty()) return &s.current;
+    return nullptr;
+  }
+  if (s.generation < generation) {
+    *skip = s.done;  // the source ended before this epoch: no migrants from it
+    return nullptr;
+  }
+  SKERRY_ASSIGN_OR_RETURN(
+      std::vector<GenomeRecord> gen,
+      store_->GetGeneration(run.record.id, source, generation));
+  auto [pos, inserted] = s.completed.emplace(generation, std::move(gen));
+  return &pos->second;
+}
+
+absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
+  if (island.done) return false;
+  const RunSpec& spec = run.record.spec;
+  if (run.stop_generation.has_value() &&
+      island.generation > *run.stop_generation) {
+    // Bred past the run's stop generation: that work is discarded at finish.
+    std::vector<int64_t> ids;
+    for (const auto& [id, slot] : island.pending) ids.push_back(id);
+    queue_->Remove(ids);
+    island.pending.clear();
+    island.current.clear();
+    island.done = true;
+    return true;
+  }
+  if (!island.pending.empty()) return false;
+
+  const uint32_t g = island.generation;
+  store::StatsRecord stats = ComputeStats(spec, island.current);
+  stats.run_id = run.record.id;
+  stats.completed_ms = clock_->WallMillis();
+  const bool has_best = stats.failed < island.current.size();
+
+  std::string reason;
+  std::optional<uint32_t> new_stop;
+  if (run.stop_generation.has_value() && g >= *run.stop_generation) {
+    reason = absl::StrCat("target score reached at generation ",
+                          *run.stop_generation);
+  } else if (has_best && MeetsTarget(spec, stats.best)) {
+    new_stop = g;
+    reason = absl::StrCat("target score reached at generation ", g);
+  } else if (spec.stop().max_generations() > 0 &&
+             g + 1 >= spec.stop().max_generations()) {
+    reason = absl::StrCat("generation limit (", spec.stop().max_generations(),
+                          ") reached");
+  } else if (spec.stop().max_evaluations() > 0 &&
+             island.evaluations + stats.evaluations >=
+                 EvaluationShare(spec, island.index)) {
+    reason = absl::StrCat("evaluation budget (", spec.stop().max_evaluations(),
+                          ") reached");
+  }
+  const bool done = !reason.empty();
+
+  std::vector<GenomeRecord> next;
+  if (!done) {
+    const uint32_t next_gen = g + 1;
+    std::vector<const GenomeRecord*> migrants;
+    if (IsMigrationEpoch(spec, next_gen)) {
+      for (uint32_t src : Sources(spec, island.index, next_gen)) {
+        const std::vector<GenomeRecord>* source_gen = nullptr;
+        bool skip = false;
+        if (spec.islands().asynchronous()) {
+          // Whatever the neighbour completed most recently (not reproducible).
+          Island& s = run.islands[src];
+          if (!s.completed.empty()) source_gen = &s.completed.rbegin()->second;
+          if (source_gen == nullptr) continue;
+        } else {
+          SKERRY_ASSIGN_OR_RETURN(source_gen,
+                                  CompletedGeneration(run, src, g, &skip));
+          if (skip) continue;
+          if (source_gen == nullptr) {
+            island.waiting = true;
+            return false;
+          }
+        }
+        for (const GenomeRecord* m : ChooseEmigrants(
+                 spec, *source_gen, island.index, spec.islands().migrants())) {
+          migrants.push_back(m);
+        }
+      }
+    }
+    absl::StatusOr<std::vector<GenomeRecord>> bred =
+        Breed(spec, island.index, island.current, migrants);
+    if (!bred.ok()) {
+      FailRun(run, bred.status());
+      return true;
+    }
+    next = std::move(*bred);
+    for (GenomeRecord& n : next) n.run_id = run.record.id;
+  }
+
+  store::GenerationCommit commit;
+  commit.run_id = run.record.id;
+  commit.island = island.index;
+  commit.completed = stats;
+  commit.island_done = done;
+  commit.next = done ? nullptr : &next;
+  commit.stop_generation = new_stop;
+  if (has_best && (!run.record.best_score.has_value() ||
+                   Better(spec, stats.best, *run.record.best_score))) {
+    for (const GenomeRecord& gr : island.current) {
+      if (gr.state == skerry::v1::EVALUATED && gr.score == stats.best) {
+        commit.champion = std::make_pair(gr.id, gr.score);
+        break;
+      }
+    }
+  }
+  SKERRY_RETURN_IF_ERROR(store_->CommitGeneration(commit));
+
+  // Committed: bring the cache in line.
+  if (commit.champion.has_value()) {
+    run.record.champion_id = commit.champion->first;
+    run.record.best_score = commit.champion->second;
+  }
+  island.evaluations += stats.evaluations;
+  island.last_stats = stats;
+  island.waiting = false;
+  island.completed[g] = std::move(island.current);
+  while (island.completed.size() > kCompletedKept) {
+    island.completed.erase(island.completed.begin());
+  }
+  island.current.clear();
+  if (done) {
+    island.done = true;
+    if (run.finish_reason.empty()) run.finish_reason = reason;
+    if (new_stop.has_value() && (!run.stop_generation.has_value() ||
+                                 *new_stop < *run.stop_generation)) {
+      run.stop_generation = new_stop;
+      run.finish_reason = reason;
+    }
+  } else {
+    island.generation = g + 1;
+    island.current = std::move(next);
+    island.pending.clear();
+    for (const GenomeRecord& n : island.current) {
+      if (n.state == skerry::v1::PENDING) island.pending[n.id] = n.slot;
+    }
+    QueueIsland(run, island);
+  }
+  NotifyChange();
+  return true;
+}
+
+absl::Status Engine::FinishRun(Run& run, skerry::v1::RunState state,
+                               const std::string& message) {
+  const int64_t id = run.record.id;
+  SKERRY_RETURN_IF_ERROR(store_->FinishRun(id, state, message,
+                                           run.stop_generation,
+                                           clock_->WallMillis()));
+  queue_->RemoveRun(id);
+  runs_.erase(id);
+  NotifyChange();
+  return absl::OkStatus();
+}
+
+void Engine::FailRun(Run& run, const absl::Status& why) {
+  const int64_t id = run.record.id;
+  absl::Status s = store_->SetRunState(id, skerry::v1::FAILED_RUN,
+                                       std::string(why.message()),
+                                       clock_->WallMillis());
+  if (!s.ok()) {
+    std::fprintf(stderr, "run %lld: could not record failure: %s\n",
+                 static_cast<long long>(id), s.ToString().c_str());
+    return;
+  }
+  queue_->RemoveRun(id);
+  runs_.erase(id);
+  NotifyChange();
+}
+
+absl::Status Engine::CheckWallTime() {
+  const int64_t now = clock_->WallMillis();
+  std::vector<int64_t> expired;
+  for (const auto& [id, run] : runs_) {
+    const double limit = run->record.spec.stop().max_wall_seconds();
+    if (limit > 0 && run->record.state == skerry::v1::RUNNING &&
+        now - run->record.started_ms >= static_cast<int64_t>(limit * 1000)) {
+      expired.push_back(id);
+    }
+  }
+  for (int64_t id : expired) {
+    Run& run = *runs_[id];
+    run.stop_generation.reset();
+    SKERRY_RETURN_IF_ERROR(FinishRun(
+        run, skerry::v1::FINISHED,
+        absl::StrCat("wall-time limit (", run.record.spec.stop().max_wall_seconds(),
+                     " s) reached")));
+  }
+  return absl::OkStatus();
+}
+
+void Engine::NotifyChange() { ++changes_; }
+
+uint64_t Engine::WaitForChange(uint64_t seen, absl::Time deadline) {
+  absl::MutexLock l(&mu_);
+  auto changed = [this, seen]() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
+    return changes_ > seen;
+  };
+  mu_.AwaitWithDeadline(absl::Condition(&changed), deadline);
+  return changes_;
+}
+
+absl::StatusOr<skerry::v1::RunSummary> Engine::Summary(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  return SummaryLocked(run_id);
+}
+
+absl::StatusOr<std::vector<skerry::v1::RunSummary>> Engine::ListSummaries() {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs, store_->ListRuns());
+  std::vector<skerry::v1::RunSummary> out;
+  for (const store::RunRecord& r : runs) {
+    SKERRY_ASSIGN_OR_RETURN(skerry::v1::RunSummary s, SummaryLocked(r.id));
+    out.push_back(std::move(s));
+  }
+  return out;
+}
+
+absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
+  skerry::v1::RunSummary s;
+  auto it = runs_.find(run_id);
+  store::RunRecord stored;
+  const store::RunRecord* rec = nullptr;
+  if (it != runs_.end()) {
+    rec = &it->second->record;
+  } else {
+    SKERRY_ASSIGN_OR_RETURN(stored, store_->GetRun(run_id));
+    rec = &stored;
+  }
+  s.set_id(static_cast<uint64_t>(rec->id));
+  s.set_name(rec->name);
+  s.set_owner(rec->owner);
+  s.set_state(rec->state);
+  s.set_seed(rec->spec.seed());
+  s.set_evaluations(static_cast<uint64_t>(rec->evaluations));
+  s.set_created_unix_ms(rec->created_ms);
+  s.set_updated_unix_ms(rec->updated_ms);
+  s.set_has_best(rec->best_score.has_value());
+  s.set_best_score(rec->best_score.value_or(0.0));
+  s.set_champion_id(static_cast<uint64_t>(rec->champion_id));
+  s.set_message(rec->message);
+  s.set_objective(rec->spec.objective());
+  auto fill_stats = [](skerry::v1::IslandStatus* is,
+                       const std::optional<store::StatsRecord>& st) {
+    if (!st.has_value()) return;
+    is->set_has_stats(true);
+    is->set_best(st->best);
+    is->set_mean(st->mean);
+    is->set_diversity(st->diversity);
+  };
+  if (it != runs_.end()) {
+    for (const Island& island : it->second->islands) {
+      skerry::v1::IslandStatus* is = s.add_islands();
+      is->set_island(island.index);
+      is->set_generation(island.generation);
+      const uint32_t pop = IslandPopulation(rec->spec, island.index);
+      is->set_population(pop);
+      is->set_evaluated(island.done ? pop
+                                    : pop - static_cast<uint32_t>(
+                                                island.pending.size()));
+      is->set_done(island.done);
+      fill_stats(is, island.last_stats);
+    }
+    return s;
+  }
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
+                          store_->GetIslands(run_id));
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::StatsRecord> stats,
+                          store_->GetStats(run_id, std::nullopt));
+  for (const store::IslandRecord& ir : islands) {
+    skerry::v1::IslandStatus* is = s.add_islands();
+    is->set_island(ir.index);
+    is->set_generation(ir.generation);
+    const uint32_t pop = IslandPopulation(rec->spec, ir.index);
+    is->set_population(pop);
+    is->set_evaluated(pop);
+    is->set_done(true);
+    std::optional<store::StatsRecord> last;
+    for (const store::StatsRecord& st : stats) {
+      if (st.island == ir.index) last = st;
+    }
+    fill_stats(is, last);
+  }
+  return s;
+}
+
+}  // namespace skerry::engine

@@ -1,0 +1,160 @@
+// The engine: drives every active run from the store's truth.
+//
+// It keeps, per active run and island, the current generation (being evaluated)
+// and the last completed ones it may need for migration: a cache of the store that
+// grows with the active populations, not with the stored history. On Open() it
+// rebuilds that cache from the store alone, queues every pending genome again, and
+// breeds any generation that was complete when the previous coordinator died.
+//
+// Results arrive from any number of Report calls. They are grouped: one committer
+// thread takes every batch waiting, applies the lot in one transaction
+// (Store::CommitResults), and only then answers the callers (a result is
+// acknowledged only after it is committed). Completed generations are then bred,
+// each in a transaction of its own (Store::CommitGeneration).
+//
+// Stop rules, all deterministic except wall time:
+// - max_generations: an island stops after generation max_generations - 1.
+// - max_evaluations: shared among islands in proportion to population; an island
+//   stops at the first generation boundary where its own evaluations reach its
+//   share.
+// - target_score: the run's stop generation is the first generation at which any
+//   island's best reaches the target; every island runs to it (or hits the target
+//   earlier), and generations a faster island bred past it are discarded.
+// - max_wall_seconds: from the run's first start; not reproducible.
+//
+// Thread safety: every public method may be called from any thread.
+#ifndef SKERRY_SERVER_ENGINE_ENGINE_H_
+#define SKERRY_SERVER_ENGINE_ENGINE_H_
+
+#include <cstdint>
+#include <map>
+#include <memory>
+#include <optional>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "absl/base/thread_annotations.h"
+#include "absl/status/status.h"
+#include "absl/status/statusor.h"
+#include "absl/synchronization/mutex.h"
+#include "common/clock.h"
+#include "server/scheduler/task_queue.h"
+#include "server/store/store.h"
+#include "skerry/v1/fleet.pb.h"
+#include "skerry/v1/runs.pb.h"
+
+namespace skerry::engine {
+
+struct ReportOutcome {
+  uint32_t accepted = 0;
+  uint32_t ignored = 0;
+};
+
+class Engine {
+ public:
+  static absl::StatusOr<std::unique_ptr<Engine>> Open(
+      store::Store* store, scheduler::TaskQueue* queue, Clock* clock);
+  ~Engine();
+
+  // Validates and stores a new run with generation 0 of every island, then
+  // queues its tasks. InvalidArgument names the bad field.
+  absl::StatusOr<store::RunRecord> Submit(skerry::v1::RunSpec spec,
+                                          std::string spec_text,
+                                          std::string owner);
+  absl::Status Pause(int64_t run_id);
+  absl::Status Resume(int64_t run_id);
+  absl::Status Stop(int64_t run_id);
+
+  // Hands results to the committer and blocks until they are committed (or the
+  // commit failed: Unavailable, retry later).
+  absl::StatusOr<ReportOutcome> Report(
+      int64_t worker_id, const std::vector<skerry::v1::TaskResult>& results);
+
+  // The run as the user API shows it.
+  absl::StatusOr<skerry::v1::RunSummary> Summary(int64_t run_id);
+  absl::StatusOr<std::vector<skerry::v1::RunSummary>> ListSummaries();
+
+  // A counter that grows whenever any run changes; waits until it exceeds
+  // `seen` or `deadline` passes (real time), and returns its value.
+  uint64_t WaitForChange(uint64_t seen, absl::Time deadline);
+
+  // Stops the committer after the batch in flight. Report calls made later fail.
+  void Shutdown();
+
+ private:
+  struct Island {
+    uint32_t index = 0;
+    uint32_t generation = 0;
+    bool done = false;
+    bool waiting = false;           // bred only when migration sources are ready
+    uint64_t evaluations = 0;       // cumulative, for the evaluation budget
+    std::vector<store::GenomeRecord> current;
+    std::map<uint32_t, std::vector<store::GenomeRecord>> completed;  // last few
+    std::map<int64_t, uint32_t> pending;  // genome id -> slot
+    std::optional<store::StatsRecord> last_stats;
+  };
+  struct Run {
+    store::RunRecord record;
+    std::shared_ptr<const skerry::v1::EvaluatorSpec> evaluator;
+    std::vector<Island> islands;
+    std::optional<uint32_t> stop_generation;  // set by the target score rule
+    std::string finish_reason;
+  };
+  struct ReportJob {
+    int64_t worker_id = 0;
+    const std::vector<skerry::v1::TaskResult>* results = nullptr;
+    bool done = false;
+    absl::Status status;
+    ReportOutcome outcome;
+  };
+
+  Engine(store::Store* store, scheduler::TaskQueue* queue, Clock* clock)
+      : store_(store), queue_(queue), clock_(clock) {}
+
+  absl::Status Load() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status LoadRun(const store::RunRecord& record)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void CommitterLoop();
+  void ProcessJobs(std::vector<ReportJob*> jobs) ABSL_LOCKS_EXCLUDED(mu_);
+  // Breeds or finishes every island of the run whose generation is complete.
+  absl::Status Advance(Run& run) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // One step for one island; returns true when something changed.
+  absl::StatusOr<bool> AdvanceIsland(Run& run, Island& island)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Generation `generation` of island `source`, complete, or nullptr when not
+  // ready yet; `skip` is set when the source finished before it.
+  absl::StatusOr<const std::vector<store::GenomeRecord>*> CompletedGeneration(
+      Run& run, uint32_t source, uint32_t generation, bool* skip)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status FinishRun(Run& run, skerry::v1::RunState state,
+                         const std::string& message)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void QueueIsland(const Run& run, const Island& island)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status CheckWallTime() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void FailRun(Run& run, const absl::Status& why)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<skerry::v1::RunSummary> SummaryLocked(int64_t run_id)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void NotifyChange() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+
+  // Constant after construction.
+  store::Store* const store_;
+  scheduler::TaskQueue* const queue_;
+  Clock* const clock_;
+
+  absl::Mutex mu_;
+  std::map<int64_t, std::unique_ptr<Run>> runs_ ABSL_GUARDED_BY(mu_);  // active
+  uint64_t changes_ ABSL_GUARDED_BY(mu_) = 0;
+
+  absl::Mutex jobs_mu_ ABSL_ACQUIRED_AFTER(mu_);
+  std::vector<ReportJob*> jobs_ ABSL_GUARDED_BY(jobs_mu_);
+  bool stopping_ ABSL_GUARDED_BY(jobs_mu_) = false;
+
+  std::thread committer_;
+};
+
+}  // namespace skerry::engine
+
+#endif  // SKERRY_SERVER_ENGINE_ENGINE_H_

@@ -1,0 +1,50 @@
+// skerry-coordinator: flags, the object graph, serve until SIGINT or SIGTERM.
+#include <pthread.h>
+#include <signal.h>
+
+#include <cstdio>
+#include <string>
+#include <thread>
+
+#include "server/coordinator.h"
+#include "server/coordinator_flags.h"
+
+int main(int argc, char** argv) {
+  absl::StatusOr<skerry::server::CoordinatorFlags> flags =
+      skerry::server::ParseCoordinatorFlags(argc, argv);
+  if (!flags.ok()) {
+    std::fprintf(stderr, "skerry-coordinator: %s\n(see --help)\n",
+                 std::string(flags.status().message()).c_str());
+    return 2;
+  }
+  if (flags->help) {
+    std::fputs(skerry::server::CoordinatorUsage().c_str(), stdout);
+    return 0;
+  }
+  // Signals are taken by one thread with sigwait, never by a handler.
+  sigset_t signals;
+  sigemptyset(&signals);
+  sigaddset(&signals, SIGINT);
+  sigaddset(&signals, SIGTERM);
+  pthread_sigmask(SIG_BLOCK, &signals, nullptr);
+
+  absl::StatusOr<std::unique_ptr<skerry::server::Coordinator>> c =
+      skerry::server::Coordinator::Start(flags->options);
+  if (!c.ok()) {
+    std::fprintf(stderr, "skerry-coordinator: %s\n",
+                 std::string(c.status().message()).c_str());
+    return 1;
+  }
+  std::printf("skerry-coordinator: listening on port %d (database %s)\n",
+              (*c)->port(), flags->options.db_path.c_str());
+  std::fflush(stdout);
+  std::thread waiter([&signals, &c] {
+    int sig = 0;
+    sigwait(&signals, &sig);
+    std::fprintf(stderr, "skerry-coordinator: signal %d, shutting down\n", sig);
+    (*c)->Shutdown();
+  });
+  (*c)->Wait();
+  waiter.detach();
+  return 0;
+}

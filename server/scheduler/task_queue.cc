@@ -1,0 +1,232 @@
+#include "server/scheduler/task_queue.h"
+
+#include <algorithm>
+
+namespace skerry::scheduler {
+
+TaskQueue::TaskQueue(Clock* clock, absl::Duration lease)
+    : clock_(clock), lease_(lease) {}
+
+void TaskQueue::Enqueue(Entry& e, bool front) {
+  e.state = State::kQueued;
+  e.holder = 0;
+  RunQueue& rq = runs_[e.info.run_id];
+  if (front) {
+    rq.ids.push_front(e.info.genome_id);
+  } else {
+    rq.ids.push_back(e.info.genome_id);
+  }
+  ++rq.queued;
+}
+
+void TaskQueue::DropLease(Entry& e) {
+  if (e.state == State::kLeased) {
+    deadlines_.erase({e.deadline, e.info.genome_id});
+  }
+}
+
+void TaskQueue::Add(std::vector<TaskInfo> tasks) {
+  absl::MutexLock l(&mu_);
+  for (TaskInfo& t : tasks) {
+    const int64_t id = t.genome_id;
+    auto [it, inserted] = tasks_.try_emplace(id);
+    if (!inserted) continue;
+    it->second.info = std::move(t);
+    Enqueue(it->second, /*front=*/false);
+  }
+}
+
+void TaskQueue::RemoveRun(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  for (auto it = tasks_.begin(); it != tasks_.end();) {
+    if (it->second.info.run_id == run_id) {
+      DropLease(it->second);
+      it = tasks_.erase(it);
+    } else {
+      ++it;
+    }
+  }
+  runs_.erase(run_id);
+}
+
+void TaskQueue::Remove(absl::Span<const int64_t> genome_ids) {
+  absl::MutexLock l(&mu_);
+  for (int64_t id : genome_ids) {
+    auto it = tasks_.find(id);
+    if (it == tasks_.end()) continue;
+    if (it->second.state == State::kQueued) {
+      --runs_[it->second.info.run_id].queued;
+    }
+    DropLease(it->second);
+    tasks_.erase(it);
+  }
+}
+
+void TaskQueue::SetPaused(int64_t run_id, bool paused) {
+  absl::MutexLock l(&mu_);
+  runs_[run_id].paused = paused;
+}
+
+void TaskQueue::ExpireLeases(absl::Time now) {
+  // Expired tasks go to the front, oldest deadline first, so they are retried
+  // before newer work.
+  std::vector<int64_t> expired;
+  while (!deadlines_.empty() && deadlines_.begin()->first <= now) {
+    expired.push_back(deadlines_.begin()->second);
+    deadlines_.erase(deadlines_.begin());
+  }
+  for (auto it = expired.rbegin(); it != expired.rend(); ++it) {
+    auto t = tasks_.find(*it);
+    if (t != tasks_.end() && t->second.state == State::kLeased) {
+      Enqueue(t->second, /*front=*/true);
+    }
+  }
+}
+
+bool TaskQueue::HasReadyLocked() const {
+  for (const auto& [run, rq] : runs_) {
+    if (!rq.paused && rq.queued > 0) return true;
+  }
+  return false;
+}
+
+std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
+                                               uint32_t max_tasks,
+                                               absl::Duration wait) {
+  std::vector<skerry::v1::Task> out;
+  if (max_tasks == 0) return out;
+  absl::MutexLock l(&mu_);
+  const absl::Time give_up = absl::Now() + wait;
+  while (true) {
+    ExpireLeases(clock_->Now());
+    if (shutdown_ || HasReadyLocked()) break;
+    // Wake at least every 100 ms to notice expired leases.
+    const absl::Time wake = std::min(give_up, absl::Now() + absl::Milliseconds(100));
+    if (absl::Now() >= give_up) return out;
+    mu_.AwaitWithDeadline(
+        absl::Condition(
+            +[](TaskQueue* q) ABSL_NO_THREAD_SAFETY_ANALYSIS {
+              return q->shutdown_ || q->HasReadyLocked();
+            },
+            this),
+        wake);
+  }
+  if (shutdown_) return out;
+  const absl::Time deadline = clock_->Now() + lease_;
+  // Round-robin: take one task from each ready run in turn, starting after the
+  // run served last.
+  while (out.size() < max_tasks) {
+    bool took = false;
+    auto start = runs_.upper_bound(next_run_);
+    std::vector<std::map<int64_t, RunQueue>::iterator> order;
+    for (auto it = start; it != runs_.end(); ++it) order.push_back(it);
+    for (auto it = runs_.begin(); it != start; ++it) order.push_back(it);
+    for (auto rit : order) {
+      RunQueue& rq = rit->second;
+      if (rq.paused || rq.queued == 0) continue;
+      while (!rq.ids.empty()) {
+        const int64_t id = rq.ids.front();
+        rq.ids.pop_front();
+        auto t = tasks_.find(id);
+        if (t == tasks_.end() || t->second.state != State::kQueued) continue;
+        Entry& e = t->second;
+        --rq.queued;
+        e.state = State::kLeased;
+        e.holder = worker;
+        e.deadline = deadline;
+        ++e.info.attempts;
+        deadlines_.insert({deadline, id});
+        skerry::v1::Task task;
+        task.set_task_id(static_cast<uint64_t>(id));
+        task.set_attempt(e.info.attempts);
+        task.set_run_id(static_cast<uint64_t>(e.info.run_id));
+        *task.mutable_genes() = {e.info.genes.begin(), e.info.genes.end()};
+        *task.mutable_evaluator() = *e.info.evaluator;
+        task.set_eval_seed(e.info.eval_seed);
+        out.push_back(std::move(task));
+        took = true;
+        next_run_ = rit->first;
+        break;
+      }
+      if (out.size() >= max_tasks) break;
+    }
+    if (!took) break;
+  }
+  return out;
+}
+
+void TaskQueue::Renew(int64_t worker, absl::Span<const uint64_t> genome_ids) {
+  absl::MutexLock l(&mu_);
+  const absl::Time deadline = clock_->Now() + lease_;
+  for (uint64_t id : genome_ids) {
+    auto t = tasks_.find(static_cast<int64_t>(id));
+    if (t == tasks_.end()) continue;
+    Entry& e = t->second;
+    if (e.state != State::kLeased || e.holder != worker) continue;
+    deadlines_.erase({e.deadline, e.info.genome_id});
+    e.deadline = deadline;
+    deadlines_.insert({deadline, e.info.genome_id});
+  }
+}
+
+std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t genome_id,
+                                         uint32_t attempt,
+                                         bool failed_attempt) {
+  absl::MutexLock l(&mu_);
+  auto t = tasks_.find(static_cast<int64_t>(genome_id));
+  if (t == tasks_.end()) return std::nullopt;
+  Entry& e = t->second;
+  if (e.state == State::kClaimed) return std::nullopt;
+  if (failed_attempt && (e.state != State::kLeased || e.holder != worker ||
+                         e.info.attempts != attempt)) {
+    return std::nullopt;
+  }
+  if (e.state == State::kQueued) --runs_[e.info.run_id].queued;
+  DropLease(e);
+  e.state = State::kClaimed;
+  return e.info;
+}
+
+void TaskQueue::Complete(absl::Span<const int64_t> genome_ids) {
+  absl::MutexLock l(&mu_);
+  for (int64_t id : genome_ids) {
+    auto t = tasks_.find(id);
+    if (t != tasks_.end() && t->second.state == State::kClaimed) tasks_.erase(t);
+  }
+}
+
+void TaskQueue::Unclaim(absl::Span<const int64_t> genome_ids) {
+  absl::MutexLock l(&mu_);
+  for (int64_t id : genome_ids) {
+    auto t = tasks_.find(id);
+    if (t != tasks_.end() && t->second.state == State::kClaimed) {
+      Enqueue(t->second, /*front=*/true);
+    }
+  }
+}
+
+void TaskQueue::Shutdown() {
+  absl::MutexLock l(&mu_);
+  shutdown_ = true;
+}
+
+TaskQueue::Counts TaskQueue::counts() const {
+  absl::MutexLock l(&mu_);
+  Counts c;
+  for (const auto& [id, e] : tasks_) {
+    switch (e.state) {
+      case State::kQueued:
+        ++c.queued;
+        break;
+      case State::kLeased:
+        ++c.leased;
+        break;
+      case State::kClaimed:
+        ++c.claimed;
+        break;
+    }
+  }
+  return c;
+}
+
+}  // namespace skerry::scheduler

@@ -1,0 +1,131 @@
+// The task queue: every genome waiting for an evaluation, the leases held on them,
+// and the fair hand-out of tasks across runs.
+//
+// A task is in one of three states:
+//   queued      waiting for a worker
+//   leased      handed to a worker until its deadline; renewed by the worker's
+//               Report; an expired lease goes back to the front of the queue
+//   claimed     a result for it is being committed; nothing else may claim it
+// Complete() removes a task once its result is committed; Unclaim() puts it back
+// when the commit failed.
+//
+// Result rule (invariant 5 of DESIGN.md): a successful result is accepted while its
+// task is queued or leased, whoever holds the lease and whatever attempt it quotes,
+// because an evaluation is a pure function of (genes, evaluation seed): a late
+// result from an expired lease is the same number the next worker would compute,
+// and taking it saves that work. A failed attempt counts only when it comes from
+// the current lease (holder and attempt), so a stale worker cannot fail a genome.
+// A result for a task that is unknown, claimed or completed changes nothing.
+//
+// Runs are served round-robin, so a run with a huge population does not starve a
+// small one; a paused run's tasks stay queued but are not handed out.
+//
+// Thread safety: every method may be called from any thread.
+#ifndef SKERRY_SERVER_SCHEDULER_TASK_QUEUE_H_
+#define SKERRY_SERVER_SCHEDULER_TASK_QUEUE_H_
+
+#include <cstdint>
+#include <deque>
+#include <map>
+#include <memory>
+#include <optional>
+#include <set>
+#include <unordered_map>
+#include <utility>
+#include <vector>
+
+#include "absl/base/thread_annotations.h"
+#include "absl/synchronization/mutex.h"
+#include "absl/time/time.h"
+#include "absl/types/span.h"
+#include "common/clock.h"
+#include "skerry/v1/fleet.pb.h"
+#include "skerry/v1/spec.pb.h"
+
+namespace skerry::scheduler {
+
+struct TaskInfo {
+  int64_t genome_id = 0;
+  int64_t run_id = 0;
+  uint32_t island = 0;
+  uint32_t generation = 0;
+  uint32_t slot = 0;
+  std::vector<double> genes;
+  uint64_t eval_seed = 0;
+  std::shared_ptr<const skerry::v1::EvaluatorSpec> evaluator;
+  uint32_t attempts = 0;  // leases handed out so far (the current attempt number)
+};
+
+class TaskQueue {
+ public:
+  TaskQueue(Clock* clock, absl::Duration lease);
+
+  absl::Duration lease() const { return lease_; }
+
+  // Adds queued tasks. A task whose genome id is already known is ignored.
+  void Add(std::vector<TaskInfo> tasks);
+  // Drops every task of a run (stopped, finished) or of the given genomes.
+  void RemoveRun(int64_t run_id);
+  void Remove(absl::Span<const int64_t> genome_ids);
+  void SetPaused(int64_t run_id, bool paused);
+
+  // Leases up to `max_tasks` tasks to `worker`, waiting up to `wait` (real time)
+  // when none is ready. Expired leases are re-queued first. Each leased task's
+  // attempt count goes up by one.
+  std::vector<skerry::v1::Task> Lease(int64_t worker, uint32_t max_tasks,
+                                      absl::Duration wait);
+  // Extends the deadlines of tasks that `worker` still holds.
+  void Renew(int64_t worker, absl::Span<const uint64_t> genome_ids);
+
+  // Claims a task for committing a result (see the result rule above). Returns
+  // the task, or nothing when the result must be ignored.
+  std::optional<TaskInfo> Claim(int64_t worker, uint64_t genome_id,
+                                uint32_t attempt, bool failed_attempt);
+  // The commit holding claimed results succeeded: forget them.
+  void Complete(absl::Span<const int64_t> genome_ids);
+  // The commit failed, or the attempt failed and may be retried: queue again.
+  void Unclaim(absl::Span<const int64_t> genome_ids);
+
+  // Wakes every waiting Lease call; later calls return at once.
+  void Shutdown();
+
+  struct Counts {
+    size_t queued = 0;
+    size_t leased = 0;
+    size_t claimed = 0;
+  };
+  Counts counts() const;
+
+ private:
+  enum class State { kQueued, kLeased, kClaimed };
+  struct Entry {
+    TaskInfo info;
+    State state = State::kQueued;
+    int64_t holder = 0;
+    absl::Time deadline;
+  };
+  struct RunQueue {
+    std::deque<int64_t> ids;  // may hold ids no longer queued; skipped lazily
+    size_t queued = 0;        // entries of this run in state kQueued
+    bool paused = false;
+  };
+
+  void ExpireLeases(absl::Time now) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void Enqueue(Entry& e, bool front) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  bool HasReadyLocked() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void DropLease(Entry& e) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+
+  Clock* const clock_;
+  const absl::Duration lease_;
+
+  mutable absl::Mutex mu_;
+  std::unordered_map<int64_t, Entry> tasks_ ABSL_GUARDED_BY(mu_);
+  std::map<int64_t, RunQueue> runs_ ABSL_GUARDED_BY(mu_);
+  std::set<std::pair<absl::Time, int64_t>> deadlines_ ABSL_GUARDED_BY(mu_);
+  int64_t next_run_ ABSL_GUARDED_BY(mu_) = 0;  // round-robin cursor (run id)
+  bool shutdown_ ABSL_GUARDED_BY(mu_) = false;
+};
+
+}  // namespace skerry::scheduler
+
+#endif  // SKERRY_SERVER_SCHEDULER_TASK_QUEUE_H_

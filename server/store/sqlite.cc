@@ -1,0 +1,138 @@
+#include "server/store/sqlite.h"
+
+#include "absl/strings/str_cat.h"
+
+namespace skerry::store {
+
+absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
+  if (rc == SQLITE_OK || rc == SQLITE_DONE || rc == SQLITE_ROW) {
+    return absl::OkStatus();
+  }
+  const std::string msg =
+      absl::StrCat(what, ": ", db != nullptr ? sqlite3_errmsg(db) : "",
+                   " (", sqlite3_errstr(rc), ")");
+  switch (rc & 0xff) {
+    case SQLITE_BUSY:
+    case SQLITE_LOCKED:
+      return absl::UnavailableError(msg);
+    case SQLITE_FULL:
+      return absl::ResourceExhaustedError(msg);
+    case SQLITE_IOERR:
+    case SQLITE_CANTOPEN:
+      return absl::UnavailableError(msg);
+    case SQLITE_CONSTRAINT:
+      return absl::FailedPreconditionError(msg);
+    case SQLITE_CORRUPT:
+    case SQLITE_NOTADB:
+      return absl::DataLossError(msg);
+    default:
+      return absl::InternalError(msg);
+  }
+}
+
+Statement& Statement::operator=(Statement&& other) noexcept {
+  if (this != &other) {
+    if (stmt_ != nullptr) sqlite3_finalize(stmt_);
+    db_ = other.db_;
+    stmt_ = other.stmt_;
+    other.stmt_ = nullptr;
+  }
+  return *this;
+}
+
+Statement::~Statement() {
+  if (stmt_ != nullptr) sqlite3_finalize(stmt_);
+}
+
+absl::StatusOr<bool> Statement::Step() {
+  const int rc = sqlite3_step(stmt_);
+  if (rc == SQLITE_ROW) return true;
+  if (rc == SQLITE_DONE) return false;
+  absl::Status s = SqliteStatus(rc, db_, sqlite3_sql(stmt_));
+  sqlite3_reset(stmt_);
+  return s;
+}
+
+absl::Status Statement::Run() {
+  absl::StatusOr<bool> row = Step();
+  if (!row.ok()) return row.status();
+  Reset();
+  return absl::OkStatus();
+}
+
+void Statement::Reset() {
+  sqlite3_reset(stmt_);
+  sqlite3_clear_bindings(stmt_);
+}
+
+std::string Statement::ColumnText(int i) const {
+  const unsigned char* p = sqlite3_column_text(stmt_, i);
+  if (p == nullptr) return "";
+  return std::string(reinterpret_cast<const char*>(p),
+                     sqlite3_column_bytes(stmt_, i));
+}
+
+std::string Statement::ColumnBlob(int i) const {
+  const void* p = sqlite3_column_blob(stmt_, i);
+  if (p == nullptr) return "";
+  return std::string(static_cast<const char*>(p),
+                     sqlite3_column_bytes(stmt_, i));
+}
+
+absl::StatusOr<std::unique_ptr<Connection>> Connection::Open(
+    const std::string& path, int flags) {
+  sqlite3* db = nullptr;
+  const int rc = sqlite3_open_v2(path.c_str(), &db, flags, nullptr);
+  if (rc != SQLITE_OK) {
+    absl::Status s = SqliteStatus(rc, db, absl::StrCat("opening ", path));
+    sqlite3_close(db);
+    return s;
+  }
+  sqlite3_extended_result_codes(db, 1);
+  return std::unique_ptr<Connection>(new Connection(db));
+}
+
+Connection::~Connection() { sqlite3_close_v2(db_); }
+
+absl::Status Connection::Exec(absl::string_view sql) {
+  const std::string s(sql);
+  char* err = nullptr;
+  const int rc = sqlite3_exec(db_, s.c_str(), nullptr, nullptr, &err);
+  sqlite3_free(err);
+  return SqliteStatus(rc, db_, s.substr(0, 60));
+}
+
+absl::StatusOr<Statement> Connection::Prepare(absl::string_view sql) {
+  sqlite3_stmt* stmt = nullptr;
+  const int rc = sqlite3_prepare_v2(db_, sql.data(), static_cast<int>(sql.size()),
+                                    &stmt, nullptr);
+  if (rc != SQLITE_OK) {
+    return SqliteStatus(rc, db_, absl::StrCat("preparing ", sql.substr(0, 60)));
+  }
+  return Statement(db_, stmt);
+}
+
+absl::StatusOr<Transaction> Transaction::Begin(Connection* conn) {
+  absl::Status s = conn->Exec("BEGIN IMMEDIATE");
+  if (!s.ok()) return s;
+  return Transaction(conn);
+}
+
+Transaction::~Transaction() {
+  if (!done_) conn_->Exec("ROLLBACK").IgnoreError();
+}
+
+absl::Status Transaction::Commit() {
+  absl::Status s = conn_->Exec("COMMIT");
+  if (!s.ok()) {
+    // A failed COMMIT may leave the transaction open; roll it back so the
+    // connection is usable and nothing half-written remains.
+    if (!sqlite3_get_autocommit(conn_->raw())) {
+      conn_->Exec("ROLLBACK").IgnoreError();
+    }
+  }
+  done_ = true;
+  return s;
+}
+
+}  // namespace skerry::store

@@ -1,0 +1,120 @@
+// Thin RAII helpers over the SQLite C API: a connection, prepared statements, and
+// turning SQLite result codes into absl::Status where they enter our code.
+//
+// Status codes are chosen by what the caller should do:
+//   SQLITE_BUSY / SQLITE_LOCKED     -> Unavailable (retry the transaction)
+//   SQLITE_FULL / SQLITE_IOERR_*    -> ResourceExhausted / DataLoss-free Internal:
+//                                      the write failed, nothing was committed
+//   SQLITE_CONSTRAINT               -> AlreadyExists / FailedPrecondition
+//   anything else                   -> Internal
+//
+// Thread safety: none. The owner (Store) serialises access with its own mutex.
+#ifndef SKERRY_SERVER_STORE_SQLITE_H_
+#define SKERRY_SERVER_STORE_SQLITE_H_
+
+#include <sqlite3.h>
+
+#include <cstdint>
+#include <memory>
+#include <string>
+
+#include "absl/status/status.h"
+#include "absl/status/statusor.h"
+#include "absl/strings/string_view.h"
+
+namespace skerry::store {
+
+// Maps a SQLite result code, with the connection's message, to a Status.
+absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what);
+
+class Statement {
+ public:
+  Statement() = default;
+  Statement(sqlite3* db, sqlite3_stmt* stmt) : db_(db), stmt_(stmt) {}
+  Statement(Statement&& other) noexcept { *this = std::move(other); }
+  Statement& operator=(Statement&& other) noexcept;
+  Statement(const Statement&) = delete;
+  Statement& operator=(const Statement&) = delete;
+  ~Statement();
+
+  // Binding is 1-based, as in SQLite.
+  void BindInt(int i, int64_t v) { sqlite3_bind_int64(stmt_, i, v); }
+  void BindDouble(int i, double v) { sqlite3_bind_double(stmt_, i, v); }
+  void BindNull(int i) { sqlite3_bind_null(stmt_, i); }
+  void BindText(int i, absl::string_view v) {
+    sqlite3_bind_text(stmt_, i, v.data(), static_cast<int>(v.size()),
+                      SQLITE_TRANSIENT);
+  }
+  void BindBlob(int i, absl::string_view v) {
+    sqlite3_bind_blob(stmt_, i, v.data(), static_cast<int>(v.size()),
+                      SQLITE_TRANSIENT);
+  }
+  // Binds NULL when v == 0 (used for optional foreign keys).
+  void BindIdOrNull(int i, int64_t v) {
+    if (v == 0) {
+      BindNull(i);
+    } else {
+      BindInt(i, v);
+    }
+  }
+
+  // Steps once. Returns true when a row is ready, false when done.
+  absl::StatusOr<bool> Step();
+  // Steps to completion, expecting no rows.
+  absl::Status Run();
+  // Ready for reuse with new bindings.
+  void Reset();
+
+  int64_t ColumnInt(int i) const { return sqlite3_column_int64(stmt_, i); }
+  double ColumnDouble(int i) const { return sqlite3_column_double(stmt_, i); }
+  bool ColumnIsNull(int i) const {
+    return sqlite3_column_type(stmt_, i) == SQLITE_NULL;
+  }
+  std::string ColumnText(int i) const;
+  std::string ColumnBlob(int i) const;
+
+ private:
+  sqlite3* db_ = nullptr;
+  sqlite3_stmt* stmt_ = nullptr;
+};
+
+class Connection {
+ public:
+  static absl::StatusOr<std::unique_ptr<Connection>> Open(
+      const std::string& path, int flags);
+  ~Connection();
+
+  sqlite3* raw() const { return db_; }
+  // Runs one or more statements without results.
+  absl::Status Exec(absl::string_view sql);
+  absl::StatusOr<Statement> Prepare(absl::string_view sql);
+  int64_t LastInsertId() const { return sqlite3_last_insert_rowid(db_); }
+  int Changes() const { return sqlite3_changes(db_); }
+
+ private:
+  explicit Connection(sqlite3* db) : db_(db) {}
+  sqlite3* db_;
+};
+
+// BEGIN IMMEDIATE ... COMMIT, rolled back on destruction unless committed.
+class Transaction {
+ public:
+  static absl::StatusOr<Transaction> Begin(Connection* conn);
+  Transaction(Transaction&& other) noexcept
+      : conn_(other.conn_), done_(other.done_) {
+    other.done_ = true;
+  }
+  Transaction(const Transaction&) = delete;
+  Transaction& operator=(const Transaction&) = delete;
+  ~Transaction();
+  absl::Status Commit();
+
+ private:
+  explicit Transaction(Connection* conn) : conn_(conn) {}
+  Connection* conn_;
+  bool done_ = false;
+};
+
+}  // namespace skerry::store
+
+#endif  // SKERRY_SERVER_STORE_SQLITE_H_

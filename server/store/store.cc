@@ -1,0 +1,632 @@
+#include "server/store/store.h"
+
+#include <utility>
+
+#include "absl/strings/str_cat.h"
+#include "common/genes.h"
+#include "common/status_macros.h"
+
+namespace skerry::store {
+namespace {
+
+using skerry::v1::EvalState;
+using skerry::v1::RunState;
+
+// Schema version 1. Later versions append a migration to kMigrations; never edit
+// an applied one.
+constexpr const char* kSchemaV1 = R"sql(
+CREATE TABLE schema_version (version INTEGER NOT NULL);
+CREATE TABLE runs (
+  id INTEGER PRIMARY KEY,
+  name TEXT NOT NULL,
+  owner TEXT NOT NULL,
+  spec BLOB NOT NULL,
+  spec_text TEXT NOT NULL,
+  seed INTEGER NOT NULL,
+  state INTEGER NOT NULL,
+  priority INTEGER NOT NULL DEFAULT 1,
+  message TEXT NOT NULL DEFAULT '',
+  created_ms INTEGER NOT NULL,
+  updated_ms INTEGER NOT NULL,
+  started_ms INTEGER NOT NULL DEFAULT 0,
+  parent_run INTEGER,
+  parent_generation INTEGER,
+  evaluations INTEGER NOT NULL DEFAULT 0,
+  champion_id INTEGER,
+  best_score REAL,
+  stop_generation INTEGER
+);
+CREATE TABLE islands (
+  run_id INTEGER NOT NULL,
+  idx INTEGER NOT NULL,
+  generation INTEGER NOT NULL,
+  done INTEGER NOT NULL DEFAULT 0,
+  PRIMARY KEY (run_id, idx)
+) WITHOUT ROWID;
+CREATE TABLE genomes (
+  id INTEGER PRIMARY KEY,
+  run_id INTEGER NOT NULL,
+  island INTEGER NOT NULL,
+  generation INTEGER NOT NULL,
+  slot INTEGER NOT NULL,
+  origin INTEGER NOT NULL,
+  parent_a INTEGER,
+  parent_b INTEGER,
+  genes BLOB NOT NULL,
+  score REAL,
+  eval_state INTEGER NOT NULL,
+  attempts INTEGER NOT NULL DEFAULT 0,
+  error TEXT NOT NULL DEFAULT '',
+  eval_seconds REAL NOT NULL DEFAULT 0,
+  UNIQUE (run_id, island, generation, slot)
+);
+CREATE INDEX genomes_pending ON genomes (run_id) WHERE eval_state = 1;
+CREATE TABLE generation_stats (
+  run_id INTEGER NOT NULL,
+  island INTEGER NOT NULL,
+  generation INTEGER NOT NULL,
+  best REAL NOT NULL,
+  mean REAL NOT NULL,
+  worst REAL NOT NULL,
+  diversity REAL NOT NULL,
+  evaluations INTEGER NOT NULL,
+  failed INTEGER NOT NULL,
+  eval_seconds REAL NOT NULL,
+  completed_ms INTEGER NOT NULL,
+  PRIMARY KEY (run_id, island, generation)
+) WITHOUT ROWID;
+CREATE TABLE workers (
+  id INTEGER PRIMARY KEY,
+  name TEXT NOT NULL,
+  host TEXT NOT NULL,
+  threads INTEGER NOT NULL,
+  evaluators TEXT NOT NULL,
+  version TEXT NOT NULL,
+  joined_ms INTEGER NOT NULL,
+  last_seen_ms INTEGER NOT NULL
+);
+INSERT INTO schema_version (version) VALUES (1);
+)sql";
+
+// kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
+constexpr const char* kMigrations[] = {kSchemaV1};
+static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
+              Store::kSchemaVersion);
+
+constexpr const char* kRunColumns =
+    "id, name, owner, spec, spec_text, state, priority, message, created_ms, "
+    "updated_ms, started_ms, evaluations, champion_id, best_score, "
+    "stop_generation";
+
+absl::StatusOr<RunRecord> ReadRun(const Statement& s) {
+  RunRecord r;
+  r.id = s.ColumnInt(0);
+  r.name = s.ColumnText(1);
+  r.owner = s.ColumnText(2);
+  if (!r.spec.ParseFromString(s.ColumnBlob(3))) {
+    return absl::DataLossError(
+        absl::StrCat("run ", r.id, ": stored spec does not parse"));
+  }
+  r.spec_text = s.ColumnText(4);
+  r.state = static_cast<RunState>(s.ColumnInt(5));
+  r.priority = static_cast<int32_t>(s.ColumnInt(6));
+  r.message = s.ColumnText(7);
+  r.created_ms = s.ColumnInt(8);
+  r.updated_ms = s.ColumnInt(9);
+  r.started_ms = s.ColumnInt(10);
+  r.evaluations = s.ColumnInt(11);
+  r.champion_id = s.ColumnIsNull(12) ? 0 : s.ColumnInt(12);
+  if (!s.ColumnIsNull(13)) r.best_score = s.ColumnDouble(13);
+  if (!s.ColumnIsNull(14)) {
+    r.stop_generation = static_cast<uint32_t>(s.ColumnInt(14));
+  }
+  return r;
+}
+
+constexpr const char* kGenomeColumns =
+    "id, run_id, island, generation, slot, origin, parent_a, parent_b, genes, "
+    "score, eval_state, attempts, error, eval_seconds";
+
+absl::StatusOr<GenomeRecord> ReadGenome(const Statement& s) {
+  GenomeRecord g;
+  g.id = s.ColumnInt(0);
+  g.run_id = s.ColumnInt(1);
+  g.island = static_cast<uint32_t>(s.ColumnInt(2));
+  g.generation = static_cast<uint32_t>(s.ColumnInt(3));
+  g.slot = static_cast<uint32_t>(s.ColumnInt(4));
+  g.origin = static_cast<skerry::v1::Origin>(s.ColumnInt(5));
+  g.parent_a = s.ColumnIsNull(6) ? 0 : s.ColumnInt(6);
+  g.parent_b = s.ColumnIsNull(7) ? 0 : s.ColumnInt(7);
+  absl::StatusOr<std::vector<double>> genes = UnpackGenes(s.ColumnBlob(8));
+  if (!genes.ok()) {
+    return absl::DataLossError(
+        absl::StrCat("genome ", g.id, ": ", genes.status().message()));
+  }
+  g.genes = std::move(*genes);
+  g.score = s.ColumnIsNull(9) ? 0.0 : s.ColumnDouble(9);
+  g.state = static_cast<EvalState>(s.ColumnInt(10));
+  g.attempts = static_cast<uint32_t>(s.ColumnInt(11));
+  g.error = s.ColumnText(12);
+  g.eval_seconds = s.ColumnDouble(13);
+  return g;
+}
+
+}  // namespace
+
+absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path) {
+  SKERRY_ASSIGN_OR_RETURN(auto conn, Connection::Open(path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE |
+                                       SQLITE_OPEN_FULLMUTEX));
+  sqlite3_busy_timeout(conn->raw(), 5000);
+  // WAL first: it is a property of the file and survives reopening.
+  absl::StatusOr<Statement> wal = conn->Prepare("PRAGMA journal_mode=WAL");
+  if (!wal.ok()) return wal.status();
+  absl::StatusOr<bool> row = wal->Step();
+  if (!row.ok()) {
+    return absl::Status(row.status().code(),
+                        absl::StrCat(path, ": ", row.status().message()));
+  }
+  if (!*row || wal->ColumnText(0) != "wal") {
+    return absl::FailedPreconditionError(
+        absl::StrCat(path, ": could not switch the database to WAL mode"));
+  }
+  wal = Statement();
+  SKERRY_RETURN_IF_ERROR(conn->Exec("PRAGMA synchronous=FULL"));
+  std::unique_ptr<Store> store(new Store(path, std::move(conn)));
+  {
+    absl::MutexLock l(&store->mu_);
+    absl::Status s = store->Migrate();
+    if (!s.ok()) {
+      return absl::Status(s.code(), absl::StrCat(path, ": ", s.message()));
+    }
+  }
+  return store;
+}
+
+absl::Status Store::Migrate() {
+  int version = 0;
+  {
+    SKERRY_ASSIGN_OR_RETURN(auto probe, conn_->Prepare("SELECT count(*) FROM sqlite_master WHERE "
+                              "type = 'table' AND name = 'schema_version'"));
+    SKERRY_ASSIGN_OR_RETURN(auto has_row, probe.Step());
+    if (has_row && probe.ColumnInt(0) > 0) {
+      SKERRY_ASSIGN_OR_RETURN(auto v, conn_->Prepare("SELECT max(version) FROM schema_version"));
+      SKERRY_ASSIGN_OR_RETURN(auto v_row, v.Step());
+      if (v_row) version = static_cast<int>(v.ColumnInt(0));
+    } else {
+      SKERRY_ASSIGN_OR_RETURN(auto any, conn_->Prepare("SELECT count(*) FROM sqlite_master"));
+      SKERRY_ASSIGN_OR_RETURN(auto any_row, any.Step());
+      if (any_row && any.ColumnInt(0) > 0) {
+        return absl::FailedPreconditionError(
+            "not a Skerry database: it has tables but no schema_version");
+      }
+    }
+  }
+  if (version > kSchemaVersion) {
+    return absl::FailedPreconditionError(absl::StrCat(
+        "database schema version ", version,
+        " is newer than this program's version ", kSchemaVersion,
+        "; use a newer Skerry (nothing was changed)"));
+  }
+  if (version == kSchemaVersion) return absl::OkStatus();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  for (int v = version; v < kSchemaVersion; ++v) {
+    SKERRY_RETURN_IF_ERROR(conn_->Exec(kMigrations[v]));
+    if (v > 0) {
+      SKERRY_RETURN_IF_ERROR(conn_->Exec(
+          absl::StrCat("UPDATE schema_version SET version = ", v + 1)));
+    }
+  }
+  return txn.Commit();
+}
+
+absl::StatusOr<int> Store::SchemaVersion() {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("SELECT max(version) FROM schema_version"));
+  SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
+  return row ? static_cast<int>(s.ColumnInt(0)) : 0;
+}
+
+absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
+  SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare(
+               "INSERT INTO genomes (run_id, island, generation, slot, origin, "
+               "parent_a, parent_b, genes, score, eval_state, attempts, error, "
+               "eval_seconds) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?)"));
+  for (GenomeRecord& g : *genomes) {
+    ins.BindInt(1, g.run_id);
+    ins.BindInt(2, g.island);
+    ins.BindInt(3, g.generation);
+    ins.BindInt(4, g.slot);
+    ins.BindInt(5, g.origin);
+    ins.BindIdOrNull(6, g.parent_a);
+    ins.BindIdOrNull(7, g.parent_b);
+    ins.BindBlob(8, PackGenes(g.genes));
+    if (g.state == skerry::v1::PENDING) {
+      ins.BindNull(9);
+    } else {
+      ins.BindDouble(9, g.score);
+    }
+    ins.BindInt(10, g.state);
+    ins.BindInt(11, g.attempts);
+    ins.BindText(12, g.error);
+    ins.BindDouble(13, g.eval_seconds);
+    SKERRY_RETURN_IF_ERROR(ins.Run());
+    g.id = conn_->LastInsertId();
+  }
+  return absl::OkStatus();
+}
+
+absl::Status Store::CreateRun(RunRecord* run,
+                              std::vector<GenomeRecord>* genomes) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  {
+    SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare(
+                 "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
+                 "priority, message, created_ms, updated_ms, started_ms) "
+                 "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
+    ins.BindText(1, run->name);
+    ins.BindText(2, run->owner);
+    ins.BindBlob(3, run->spec.SerializeAsString());
+    ins.BindText(4, run->spec_text);
+    ins.BindInt(5, static_cast<int64_t>(run->spec.seed()));
+    ins.BindInt(6, run->state);
+    ins.BindInt(7, run->priority);
+    ins.BindText(8, run->message);
+    ins.BindInt(9, run->created_ms);
+    ins.BindInt(10, run->updated_ms);
+    ins.BindInt(11, run->started_ms);
+    SKERRY_RETURN_IF_ERROR(ins.Run());
+    run->id = conn_->LastInsertId();
+  }
+  {
+    SKERRY_ASSIGN_OR_RETURN(auto isl, conn_->Prepare("INSERT INTO islands (run_id, idx, generation, "
+                            "done) VALUES (?, ?, 0, 0)"));
+    const uint32_t count = std::max<uint32_t>(1, run->spec.islands().count());
+    for (uint32_t i = 0; i < count; ++i) {
+      isl.BindInt(1, run->id);
+      isl.BindInt(2, i);
+      SKERRY_RETURN_IF_ERROR(isl.Run());
+    }
+  }
+  for (GenomeRecord& g : *genomes) g.run_id = run->id;
+  SKERRY_RETURN_IF_ERROR(InsertGenomes(genomes));
+  return txn.Commit();
+}
+
+absl::Status Store::CommitResults(absl::Span<const ResultUpdate> results) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE genomes SET eval_state = ?, score = ?, "
+                          "attempts = ?, error = ?, eval_seconds = ? "
+                          "WHERE id = ? AND eval_state = 1"));
+  SKERRY_ASSIGN_OR_RETURN(auto cnt, conn_->Prepare("UPDATE runs SET evaluations = evaluations + 1 "
+                          "WHERE id = ?"));
+  for (const ResultUpdate& r : results) {
+    upd.BindInt(1, r.state);
+    if (r.state == skerry::v1::EVALUATED) {
+      upd.BindDouble(2, r.score);
+    } else {
+      upd.BindNull(2);
+    }
+    upd.BindInt(3, r.attempts);
+    upd.BindText(4, r.error);
+    upd.BindDouble(5, r.eval_seconds);
+    upd.BindInt(6, r.genome_id);
+    SKERRY_RETURN_IF_ERROR(upd.Run());
+    if (conn_->Changes() != 1) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "genome ", r.genome_id, " is not pending; batch not applied"));
+    }
+    if (r.state != skerry::v1::PENDING) {
+      cnt.BindInt(1, r.run_id);
+      SKERRY_RETURN_IF_ERROR(cnt.Run());
+    }
+  }
+  return txn.Commit();
+}
+
+absl::Status Store::InsertStats(const StatsRecord& s) {
+  SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare("INSERT OR REPLACE INTO generation_stats (run_id, "
+                          "island, generation, best, mean, worst, diversity, "
+                          "evaluations, failed, eval_seconds, completed_ms) "
+                          "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
+  ins.BindInt(1, s.run_id);
+  ins.BindInt(2, s.island);
+  ins.BindInt(3, s.generation);
+  ins.BindDouble(4, s.best);
+  ins.BindDouble(5, s.mean);
+  ins.BindDouble(6, s.worst);
+  ins.BindDouble(7, s.diversity);
+  ins.BindInt(8, s.evaluations);
+  ins.BindInt(9, s.failed);
+  ins.BindDouble(10, s.eval_seconds);
+  ins.BindInt(11, s.completed_ms);
+  return ins.Run();
+}
+
+absl::Status Store::CommitGeneration(const GenerationCommit& c) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_RETURN_IF_ERROR(InsertStats(c.completed));
+  uint32_t generation = c.completed.generation;
+  if (c.next != nullptr && !c.next->empty()) {
+    generation = c.next->front().generation;
+    SKERRY_RETURN_IF_ERROR(InsertGenomes(c.next));
+  }
+  {
+    SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE islands SET generation = ?, done = ? "
+                            "WHERE run_id = ? AND idx = ?"));
+    upd.BindInt(1, generation);
+    upd.BindInt(2, c.island_done ? 1 : 0);
+    upd.BindInt(3, c.run_id);
+    upd.BindInt(4, c.island);
+    SKERRY_RETURN_IF_ERROR(upd.Run());
+  }
+  if (c.champion.has_value()) {
+    SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET champion_id = ?, best_score = ? "
+                            "WHERE id = ?"));
+    upd.BindInt(1, c.champion->first);
+    upd.BindDouble(2, c.champion->second);
+    upd.BindInt(3, c.run_id);
+    SKERRY_RETURN_IF_ERROR(upd.Run());
+  }
+  if (c.stop_generation.has_value()) {
+    SKERRY_ASSIGN_OR_RETURN(
+        auto upd, conn_->Prepare("UPDATE runs SET stop_generation = "
+                                 "min(coalesce(stop_generation, ?1), ?1) "
+                                 "WHERE id = ?2"));
+    upd.BindInt(1, *c.stop_generation);
+    upd.BindInt(2, c.run_id);
+    SKERRY_RETURN_IF_ERROR(upd.Run());
+  }
+  return txn.Commit();
+}
+
+absl::Status Store::SetRunState(int64_t run_id, RunState state,
+                                const std::string& message, int64_t now_ms) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET state = ?, message = ?, "
+                          "updated_ms = ? WHERE id = ?"));
+  upd.BindInt(1, state);
+  upd.BindText(2, message);
+  upd.BindInt(3, now_ms);
+  upd.BindInt(4, run_id);
+  SKERRY_RETURN_IF_ERROR(upd.Run());
+  if (conn_->Changes() != 1) {
+    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+  }
+  return absl::OkStatus();
+}
+
+absl::Status Store::SetRunStarted(int64_t run_id, int64_t now_ms) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET started_ms = ?, updated_ms = ? "
+                          "WHERE id = ? AND started_ms = 0"));
+  upd.BindInt(1, now_ms);
+  upd.BindInt(2, now_ms);
+  upd.BindInt(3, run_id);
+  return upd.Run();
+}
+
+absl::Status Store::FinishRun(int64_t run_id, RunState state,
+                              const std::string& message,
+                              std::optional<uint32_t> keep_through,
+                              int64_t now_ms) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  if (keep_through.has_value()) {
+    for (const char* sql :
+         {"DELETE FROM genomes WHERE run_id = ?1 AND generation > ?2",
+          "DELETE FROM generation_stats WHERE run_id = ?1 AND generation > ?2",
+          "UPDATE islands SET generation = min(generation, ?2) WHERE run_id = ?1",
+          "UPDATE runs SET stop_generation = ?2 WHERE id = ?1"}) {
+      SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare(sql));
+      st.BindInt(1, run_id);
+      st.BindInt(2, *keep_through);
+      SKERRY_RETURN_IF_ERROR(st.Run());
+    }
+  }
+  {
+    SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare("UPDATE runs SET evaluations = (SELECT count(*) "
+                           "FROM genomes WHERE run_id = ?1 AND attempts > 0 "
+                           "AND eval_state IN (2, 3)) WHERE id = ?1"));
+    st.BindInt(1, run_id);
+    SKERRY_RETURN_IF_ERROR(st.Run());
+  }
+  SKERRY_ASSIGN_OR_RETURN(auto best, BestGenomeLocked(run_id));
+  {
+    SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET state = ?, message = ?, "
+                            "updated_ms = ?, champion_id = ?, best_score = ? "
+                            "WHERE id = ?"));
+    upd.BindInt(1, state);
+    upd.BindText(2, message);
+    upd.BindInt(3, now_ms);
+    if (best.has_value()) {
+      upd.BindInt(4, best->id);
+      upd.BindDouble(5, best->score);
+    } else {
+      upd.BindNull(4);
+      upd.BindNull(5);
+    }
+    upd.BindInt(6, run_id);
+    SKERRY_RETURN_IF_ERROR(upd.Run());
+  }
+  return txn.Commit();
+}
+
+absl::StatusOr<int64_t> Store::RegisterWorker(const WorkerRecord& w) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare("INSERT INTO workers (name, host, threads, "
+                          "evaluators, version, joined_ms, last_seen_ms) "
+                          "VALUES (?,?,?,?,?,?,?)"));
+  ins.BindText(1, w.name);
+  ins.BindText(2, w.host);
+  ins.BindInt(3, w.threads);
+  ins.BindText(4, w.evaluators);
+  ins.BindText(5, w.version);
+  ins.BindInt(6, w.joined_ms);
+  ins.BindInt(7, w.last_seen_ms);
+  SKERRY_RETURN_IF_ERROR(ins.Run());
+  return conn_->LastInsertId();
+}
+
+absl::Status Store::TouchWorkers(absl::Span<const int64_t> ids,
+                                 int64_t now_ms) {
+  if (ids.empty()) return absl::OkStatus();
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE workers SET last_seen_ms = ? WHERE id = ?"));
+  for (int64_t id : ids) {
+    upd.BindInt(1, now_ms);
+    upd.BindInt(2, id);
+    SKERRY_RETURN_IF_ERROR(upd.Run());
+  }
+  return txn.Commit();
+}
+
+absl::StatusOr<std::vector<RunRecord>> Store::ListRuns() {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
+                                     " FROM runs ORDER BY id")));
+  std::vector<RunRecord> out;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
+    if (!row) break;
+    SKERRY_ASSIGN_OR_RETURN(auto r, ReadRun(s));
+    out.push_back(std::move(r));
+  }
+  return out;
+}
+
+absl::StatusOr<RunRecord> Store::GetRun(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
+                                     " FROM runs WHERE id = ?")));
+  s.BindInt(1, run_id);
+  SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
+  if (!row) return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+  return ReadRun(s);
+}
+
+absl::StatusOr<std::vector<IslandRecord>> Store::GetIslands(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("SELECT idx, generation, done FROM islands WHERE "
+                        "run_id = ? ORDER BY idx"));
+  s.BindInt(1, run_id);
+  std::vector<IslandRecord> out;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
+    if (!row) break;
+    IslandRecord r;
+    r.run_id = run_id;
+    r.index = static_cast<uint32_t>(s.ColumnInt(0));
+    r.generation = static_cast<uint32_t>(s.ColumnInt(1));
+    r.done = s.ColumnInt(2) != 0;
+    out.push_back(r);
+  }
+  return out;
+}
+
+absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Statement* s) {
+  std::vector<GenomeRecord> out;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(auto row, s->Step());
+    if (!row) break;
+    SKERRY_ASSIGN_OR_RETURN(auto g, ReadGenome(*s));
+    out.push_back(std::move(g));
+  }
+  return out;
+}
+
+absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
+    int64_t run_id, uint32_t island, uint32_t generation) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat(
+             "SELECT ", kGenomeColumns,
+             " FROM genomes WHERE run_id = ? AND island = ? AND generation = ? "
+             "ORDER BY slot")));
+  s.BindInt(1, run_id);
+  s.BindInt(2, island);
+  s.BindInt(3, generation);
+  return QueryGenomes(&s);
+}
+
+absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat("SELECT ", kGenomeColumns,
+                                     " FROM genomes WHERE id = ?")));
+  s.BindInt(1, genome_id);
+  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
+  if (rows.empty()) {
+    return absl::NotFoundError(absl::StrCat("genome ", genome_id, " not found"));
+  }
+  return std::move(rows.front());
+}
+
+absl::StatusOr<std::vector<StatsRecord>> Store::GetStats(
+    int64_t run_id, std::optional<uint32_t> island) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(
+             "SELECT island, generation, best, mean, worst, diversity, "
+             "evaluations, failed, eval_seconds, completed_ms FROM "
+             "generation_stats WHERE run_id = ?1 AND (?2 < 0 OR island = ?2) "
+             "ORDER BY island, generation"));
+  s.BindInt(1, run_id);
+  s.BindInt(2, island.has_value() ? static_cast<int64_t>(*island) : -1);
+  std::vector<StatsRecord> out;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
+    if (!row) break;
+    StatsRecord r;
+    r.run_id = run_id;
+    r.island = static_cast<uint32_t>(s.ColumnInt(0));
+    r.generation = static_cast<uint32_t>(s.ColumnInt(1));
+    r.best = s.ColumnDouble(2);
+    r.mean = s.ColumnDouble(3);
+    r.worst = s.ColumnDouble(4);
+    r.diversity = s.ColumnDouble(5);
+    r.evaluations = static_cast<uint32_t>(s.ColumnInt(6));
+    r.failed = static_cast<uint32_t>(s.ColumnInt(7));
+    r.eval_seconds = s.ColumnDouble(8);
+    r.completed_ms = s.ColumnInt(9);
+    out.push_back(r);
+  }
+  return out;
+}
+
+absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeLocked(
+    int64_t run_id) {
+  SKERRY_ASSIGN_OR_RETURN(auto run_s, conn_->Prepare("SELECT spec FROM runs WHERE id = ?"));
+  run_s.BindInt(1, run_id);
+  SKERRY_ASSIGN_OR_RETURN(auto run_row, run_s.Step());
+  if (!run_row) return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+  skerry::v1::RunSpec spec;
+  if (!spec.ParseFromString(run_s.ColumnBlob(0))) {
+    return absl::DataLossError(absl::StrCat("run ", run_id, ": stored spec does not parse"));
+  }
+  const bool maximize = spec.objective() == skerry::v1::MAXIMIZE;
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat(
+             "SELECT ", kGenomeColumns,
+             " FROM genomes WHERE run_id = ? AND eval_state = 2 ORDER BY score ",
+             maximize ? "DESC" : "ASC",
+             ", generation, island, slot LIMIT 1")));
+  s.BindInt(1, run_id);
+  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
+  if (rows.empty()) return std::optional<GenomeRecord>();
+  return std::optional<GenomeRecord>(std::move(rows.front()));
+}
+
+absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenome(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  return BestGenomeLocked(run_id);
+}
+
+absl::StatusOr<int> Store::CountWorkersSeenSince(int64_t since_ms) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("SELECT count(*) FROM workers WHERE last_seen_ms >= ?"));
+  s.BindInt(1, since_ms);
+  SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
+  return row ? static_cast<int>(s.ColumnInt(0)) : 0;
+}
+
+}  // namespace skerry::store

@@ -1,0 +1,224 @@
+// The store: every run, island, genome and statistic in one SQLite file. The
+// database is the truth; the coordinator's memory is a cache of it.
+//
+// ## Schema (version 1)
+//   schema_version(version)                      one row
+//   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
+//        created_ms, updated_ms, started_ms, parent_run, parent_generation,
+//        evaluations, champion_id, best_score, stop_generation)
+//   islands(run_id, idx, generation, done)       generation = newest created
+//   genomes(id, run_id, island, generation, slot, origin, parent_a, parent_b,
+//           genes BLOB, score, eval_state, attempts, error, eval_seconds)
+//           UNIQUE(run_id, island, generation, slot)  -- the natural key
+//   generation_stats(run_id, island, generation, best, mean, worst, diversity,
+//           evaluations, failed, eval_seconds, completed_ms)
+//   workers(id, name, host, threads, evaluators, version, joined_ms, last_seen_ms)
+// `spec` is the normalised RunSpec in binary protobuf; `genes` is packed
+// little-endian float64 (common/genes.h); `state`, `origin` and `eval_state` are
+// the enum numbers of proto/skerry/v1. `attempts` counts evaluation attempts made;
+// genomes carried over unchanged (elites, migrants) have 0 and were not evaluated.
+// A genome's selection fitness is not stored: it is derived from the scores of its
+// generation whenever the engine breeds.
+//
+// ## Commit points (each one transaction; a change is acknowledged only after it)
+//   CreateRun         the run, its islands and every island's generation 0
+//   CommitResults     a batch of results (group commit of many Report calls)
+//   CommitGeneration  one island's next generation whole: its genomes with their
+//                     parent links, the island's generation number, the statistics
+//                     of the generation just completed, the run's best so far
+//   SetRunState       pause, resume, stop, fail
+//   FinishRun         final state, trimming of generations past the stop
+//                     generation, the champion
+//
+// ## Pragmas
+//   journal_mode=WAL     readers never block the writer, and one writer commit is
+//                        one append to the log
+//   synchronous=FULL     the WAL is synced at every commit: an acknowledged result
+//                        survives power loss, not only a process crash. Group commit
+//                        makes this cheap per result.
+//   busy_timeout=5000    a backup or a second reader may hold a lock briefly
+//   foreign_keys=OFF     parent links are checked by `--check`, not per insert
+//
+// A database written by a newer schema than kSchemaVersion is refused, naming both
+// versions; an older one is migrated forward in one transaction.
+//
+// Thread safety: every method may be called from any thread; calls are serialised
+// by an internal mutex.
+#ifndef SKERRY_SERVER_STORE_STORE_H_
+#define SKERRY_SERVER_STORE_STORE_H_
+
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "absl/base/thread_annotations.h"
+#include "absl/status/status.h"
+#include "absl/status/statusor.h"
+#include "absl/synchronization/mutex.h"
+#include "absl/types/span.h"
+#include "server/store/sqlite.h"
+#include "skerry/v1/genome.pb.h"
+#include "skerry/v1/runs.pb.h"
+#include "skerry/v1/spec.pb.h"
+
+namespace skerry::store {
+
+struct RunRecord {
+  int64_t id = 0;
+  std::string name;
+  std::string owner;
+  skerry::v1::RunSpec spec;
+  std::string spec_text;
+  skerry::v1::RunState state = skerry::v1::QUEUED;
+  int32_t priority = 1;
+  std::string message;
+  int64_t created_ms = 0;
+  int64_t updated_ms = 0;
+  int64_t started_ms = 0;
+  int64_t evaluations = 0;
+  int64_t champion_id = 0;
+  std::optional<double> best_score;
+  std::optional<uint32_t> stop_generation;
+};
+
+struct IslandRecord {
+  int64_t run_id = 0;
+  uint32_t index = 0;
+  uint32_t generation = 0;
+  bool done = false;
+};
+
+struct GenomeRecord {
+  int64_t id = 0;
+  int64_t run_id = 0;
+  uint32_t island = 0;
+  uint32_t generation = 0;
+  uint32_t slot = 0;
+  skerry::v1::Origin origin = skerry::v1::SEEDED;
+  int64_t parent_a = 0;
+  int64_t parent_b = 0;
+  std::vector<double> genes;
+  double score = 0.0;
+  skerry::v1::EvalState state = skerry::v1::PENDING;
+  uint32_t attempts = 0;
+  std::string error;
+  double eval_seconds = 0.0;
+};
+
+struct StatsRecord {
+  int64_t run_id = 0;
+  uint32_t island = 0;
+  uint32_t generation = 0;
+  double best = 0.0;
+  double mean = 0.0;
+  double worst = 0.0;
+  double diversity = 0.0;
+  uint32_t evaluations = 0;
+  uint32_t failed = 0;
+  double eval_seconds = 0.0;
+  int64_t completed_ms = 0;
+};
+
+// One genome's evaluation outcome, or one failed attempt (state stays PENDING).
+struct ResultUpdate {
+  int64_t genome_id = 0;
+  int64_t run_id = 0;
+  skerry::v1::EvalState state = skerry::v1::EVALUATED;
+  double score = 0.0;
+  uint32_t attempts = 0;
+  std::string error;
+  double eval_seconds = 0.0;
+};
+
+struct GenerationCommit {
+  int64_t run_id = 0;
+  uint32_t island = 0;
+  StatsRecord completed;  // statistics of the generation just completed
+  bool island_done = false;
+  // The next generation (empty when the island is done). Ids are filled in.
+  std::vector<GenomeRecord>* next = nullptr;
+  // The run's best so far, when it changed.
+  std::optional<std::pair<int64_t, double>> champion;
+  // Set when this generation reached the target score: the run's stop
+  // generation becomes the smaller of this and any stored one.
+  std::optional<uint32_t> stop_generation;
+};
+
+struct WorkerRecord {
+  int64_t id = 0;
+  std::string name;
+  std::string host;
+  uint32_t threads = 0;
+  std::string evaluators;  // comma-separated
+  std::string version;
+  int64_t joined_ms = 0;
+  int64_t last_seen_ms = 0;
+};
+
+class Store {
+ public:
+  static constexpr int kSchemaVersion = 1;
+
+  // Opens (creating when missing) the database at `path`, applies the pragmas
+  // and migrates an older schema. FailedPrecondition for a newer schema.
+  static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path);
+
+  const std::string& path() const { return path_; }
+
+  // ---- Commit points ----
+  absl::Status CreateRun(RunRecord* run, std::vector<GenomeRecord>* genomes);
+  absl::Status CommitResults(absl::Span<const ResultUpdate> results);
+  absl::Status CommitGeneration(const GenerationCommit& commit);
+  absl::Status SetRunState(int64_t run_id, skerry::v1::RunState state,
+                           const std::string& message, int64_t now_ms);
+  absl::Status SetRunStarted(int64_t run_id, int64_t now_ms);
+  // Ends a run. With keep_through, generations after it are deleted (a faster
+  // island may have bred past the stop generation). The champion is recomputed
+  // from the genomes that remain.
+  absl::Status FinishRun(int64_t run_id, skerry::v1::RunState state,
+                         const std::string& message,
+                         std::optional<uint32_t> keep_through, int64_t now_ms);
+  absl::StatusOr<int64_t> RegisterWorker(const WorkerRecord& worker);
+  absl::Status TouchWorkers(absl::Span<const int64_t> ids, int64_t now_ms);
+
+  // ---- Reads ----
+  absl::StatusOr<std::vector<RunRecord>> ListRuns();
+  // NotFound names the run.
+  absl::StatusOr<RunRecord> GetRun(int64_t run_id);
+  absl::StatusOr<std::vector<IslandRecord>> GetIslands(int64_t run_id);
+  absl::StatusOr<std::vector<GenomeRecord>> GetGeneration(int64_t run_id,
+                                                          uint32_t island,
+                                                          uint32_t generation);
+  absl::StatusOr<GenomeRecord> GetGenome(int64_t genome_id);
+  // Statistics in (island, generation) order; all islands when island is empty.
+  absl::StatusOr<std::vector<StatsRecord>> GetStats(
+      int64_t run_id, std::optional<uint32_t> island);
+  // The best evaluated genome of a run; ties go to the earliest generation, then
+  // the lowest island, then the lowest slot.
+  absl::StatusOr<std::optional<GenomeRecord>> BestGenome(int64_t run_id);
+  absl::StatusOr<int> CountWorkersSeenSince(int64_t since_ms);
+  absl::StatusOr<int> SchemaVersion();
+
+ private:
+  Store(std::string path, std::unique_ptr<Connection> conn)
+      : path_(std::move(path)), conn_(std::move(conn)) {}
+  absl::Status Migrate() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status InsertGenomes(std::vector<GenomeRecord>* genomes)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status InsertStats(const StatsRecord& stats)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<std::optional<GenomeRecord>> BestGenomeLocked(int64_t run_id)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<std::vector<GenomeRecord>> QueryGenomes(Statement* stmt)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+
+  const std::string path_;
+  absl::Mutex mu_;
+  std::unique_ptr<Connection> conn_ ABSL_GUARDED_BY(mu_);
+};
+
+}  // namespace skerry::store
+
+#endif  // SKERRY_SERVER_STORE_STORE_H_
