@@ -1,0 +1,202 @@
+#include "worker/flags.h"
+
+#include <cstdint>
+#include <set>
+
+#include "absl/status/status.h"
+#include "absl/strings/match.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/string_view.h"
+
+namespace skerry::worker {
+namespace {
+
+constexpr size_t kMaxNameLength = 256;
+
+absl::Status FlagError(absl::string_view flag, absl::string_view what) {
+  return absl::InvalidArgumentError(absl::StrCat(flag, ": ", what));
+}
+
+// Digits only (no sign, no spaces), within [lo, hi].
+absl::StatusOr<uint64_t> ParseWholeNumber(absl::string_view flag,
+                                          absl::string_view text, uint64_t lo,
+                                          uint64_t hi) {
+  auto bad = [&] {
+    return FlagError(flag, absl::StrCat("expected a whole number from ", lo,
+                                        " to ", hi, ", got \"", text, "\""));
+  };
+  if (text.empty() || text.size() > 19) return bad();
+  uint64_t value = 0;
+  for (char c : text) {
+    if (c < '0' || c > '9') return bad();
+    value = value * 10 + static_cast<uint64_t>(c - '0');
+  }
+  if (value < lo || value > hi) return bad();
+  return value;
+}
+
+// HOST:PORT, where HOST may be a bracketed IPv6 literal.
+absl::Status CheckAddress(absl::string_view flag, absl::string_view text) {
+  auto bad = [&](absl::string_view why) {
+    return FlagError(flag, absl::StrCat("expected HOST:PORT (", why,
+                                        "), got \"", text, "\""));
+  };
+  const size_t colon = text.rfind(':');
+  if (colon == absl::string_view::npos) return bad("no port");
+  absl::string_view host = text.substr(0, colon);
+  absl::string_view port = text.substr(colon + 1);
+  if (absl::StartsWith(host, "[")) {
+    if (!absl::EndsWith(host, "]") || host.size() < 3) {
+      return bad("unbalanced brackets around the IPv6 address");
+    }
+  } else if (host.find(':') != absl::string_view::npos) {
+    return bad("an IPv6 address must be in brackets, as [::1]:7431");
+  }
+  if (host.empty()) return bad("empty host");
+  for (char c : host) {
+    if (c == ' ' || c == '\t' || c == '/') return bad("bad character in host");
+  }
+  if (!ParseWholeNumber(flag, port, 1, 65535).ok()) {
+    return bad("port must be a whole number from 1 to 65535");
+  }
+  return absl::OkStatus();
+}
+
+absl::Status CheckName(absl::string_view flag, absl::string_view text) {
+  if (text.empty()) return FlagError(flag, "must not be empty");
+  if (text.size() > kMaxNameLength) {
+    return FlagError(flag, absl::StrCat("at most ", kMaxNameLength,
+                                        " characters, got ", text.size()));
+  }
+  for (char c : text) {
+    if (static_cast<unsigned char>(c) < 0x20 || c == 0x7f) {
+      return FlagError(flag, "must not contain control characters");
+    }
+  }
+  return absl::OkStatus();
+}
+
+absl::Status Apply(absl::string_view flag, absl::string_view value,
+                   WorkerFlags& out) {
+  if (flag == "--coordinator") {
+    if (absl::Status s = CheckAddress(flag, value); !s.ok()) return s;
+    out.coordinator = std::string(value);
+  } else if (flag == "--threads") {
+    absl::StatusOr<uint64_t> n =
+        ParseWholeNumber(flag, value, 1, kMaxThreadsFlag);
+    if (!n.ok()) return n.status();
+    out.options.threads = static_cast<int>(*n);
+  } else if (flag == "--name") {
+    if (absl::Status s = CheckName(flag, value); !s.ok()) return s;
+    out.options.name = std::string(value);
+  } else if (flag == "--batch") {
+    absl::StatusOr<uint64_t> n =
+        ParseWholeNumber(flag, value, 1, kMaxBatchFlag);
+    if (!n.ok()) return n.status();
+    out.options.batch = static_cast<uint32_t>(*n);
+  } else if (flag == "--wait-ms") {
+    absl::StatusOr<uint64_t> n =
+        ParseWholeNumber(flag, value, 0, kMaxWaitMsFlag);
+    if (!n.ok()) return n.status();
+    out.options.wait = absl::Milliseconds(static_cast<int64_t>(*n));
+  } else {
+    return absl::InvalidArgumentError(
+        absl::StrCat("unknown flag \"", flag, "\" (see --help)"));
+  }
+  return absl::OkStatus();
+}
+
+}  // namespace
+
+absl::StatusOr<WorkerFlags> ParseWorkerFlags(
+    const std::vector<std::string>& args) {
+  WorkerFlags out;
+  std::set<std::string> seen;
+  for (size_t i = 0; i < args.size(); ++i) {
+    absl::string_view arg = args[i];
+    if (arg == "--help" || arg == "-h") {
+      out.help = true;
+      return out;
+    }
+    if (!absl::StartsWith(arg, "--")) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          "unexpected argument \"", arg, "\" (flags start with --)"));
+    }
+    std::string flag;
+    std::string value;
+    const size_t eq = arg.find('=');
+    if (eq != absl::string_view::npos) {
+      flag = std::string(arg.substr(0, eq));
+      value = std::string(arg.substr(eq + 1));
+    } else {
+      flag = std::string(arg);
+      if (i + 1 >= args.size()) return FlagError(flag, "missing value");
+      value = args[++i];
+    }
+    if (!seen.insert(flag).second) {
+      return FlagError(flag, "given more than once");
+    }
+    if (absl::Status s = Apply(flag, value, out); !s.ok()) return s;
+  }
+  if (out.coordinator.empty()) {
+    return absl::InvalidArgumentError(
+        "--coordinator HOST:PORT is required (see --help)");
+  }
+  if (seen.count("--threads") == 0) {
+    return absl::InvalidArgumentError(
+        "--threads N is required: the number of evaluation threads (see "
+        "--help)");
+  }
+  return out;
+}
+
+absl::StatusOr<WorkerFlags> ParseWorkerFlags(int argc, char** argv) {
+  std::vector<std::string> args;
+  for (int i = 1; i < argc; ++i) args.emplace_back(argv[i]);
+  return ParseWorkerFlags(args);
+}
+
+std::string WorkerUsage() {
+  return absl::StrCat(
+      "Usage: skerry-worker --coordinator HOST:PORT --threads N [--name NAME]\n"
+      "                     [--batch N] [--wait-ms N]\n"
+      "\n"
+      "A stateless evaluation worker. It joins the coordinator at HOST:PORT,\n"
+      "leases batches of genome evaluations, evaluates them on N threads and\n"
+      "reports the results in batches. The next lease is fetched while the\n"
+      "current batch is being evaluated, so threads do not wait for the "
+      "network.\n"
+      "When the coordinator is unreachable or restarts, the worker retries "
+      "with\n"
+      "capped exponential backoff and joins again; tasks it held are "
+      "re-offered\n"
+      "by the coordinator, so stopping or killing a worker loses nothing.\n"
+      "\n"
+      "Flags:\n"
+      "  --coordinator HOST:PORT  the coordinator's address (required);\n"
+      "                           IPv6 as [::1]:7431\n"
+      "  --threads N              evaluation threads, 1 to ",
+      kMaxThreadsFlag,
+      " (required)\n"
+      "  --name NAME              shown in the coordinator's worker list\n"
+      "                           (default: host name and process id)\n"
+      "  --batch N                tasks per lease, 1 to ",
+      kMaxBatchFlag,
+      "\n"
+      "                           (default: 4 x threads)\n"
+      "  --wait-ms N              how long a lease waits for work when there "
+      "is\n"
+      "                           none, 0 to ",
+      kMaxWaitMsFlag,
+      " (default: 5000);\n"
+      "                           the coordinator may cap it\n"
+      "  --help                   this text\n"
+      "\n"
+      "SIGINT or SIGTERM stops the worker: it stops leasing, reports the "
+      "results\n"
+      "it has, and exits. A second signal exits at once.\n"
+      "Exit codes: 0 stopped, 1 the coordinator refused the worker, 2 usage "
+      "error.\n");
+}
+
+}  // namespace skerry::worker

@@ -1,0 +1,46 @@
+// The command line of skerry-worker, parsed by hand into WorkerOptions.
+//
+// Invariant: a WorkerFlags returned by ParseWorkerFlags is complete and valid
+// (unless help is set, in which case nothing else is looked at): the
+// coordinator address has a host and a port in [1, 65535], every number is in
+// its range. Errors name the flag and quote the bad value.
+//
+// Thread safety: pure functions; call from any thread.
+//
+// Usage:
+//   absl::StatusOr<WorkerFlags> flags = ParseWorkerFlags(argc, argv);
+//   if (!flags.ok()) { print flags.status().message(); exit(2); }
+//   if (flags->help) { print WorkerUsage(); exit(0); }
+#ifndef SKERRY_WORKER_FLAGS_H_
+#define SKERRY_WORKER_FLAGS_H_
+
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "worker/worker.h"
+
+namespace skerry::worker {
+
+// Ranges accepted on the command line.
+inline constexpr int kMaxThreadsFlag = 1024;
+inline constexpr uint32_t kMaxBatchFlag = 100000;
+inline constexpr uint32_t kMaxWaitMsFlag = 600000;  // ten minutes
+
+struct WorkerFlags {
+  bool help = false;
+  std::string coordinator;  // HOST:PORT
+  WorkerOptions options;    // threads, name, batch, wait filled from flags
+};
+
+// args excludes the program name. Accepts "--flag value" and "--flag=value".
+absl::StatusOr<WorkerFlags> ParseWorkerFlags(
+    const std::vector<std::string>& args);
+absl::StatusOr<WorkerFlags> ParseWorkerFlags(int argc, char** argv);
+
+// The --help text.
+std::string WorkerUsage();
+
+}  // namespace skerry::worker
+
+#endif  // SKERRY_WORKER_FLAGS_H_

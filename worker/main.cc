@@ -1,0 +1,102 @@
+// skerry-worker: flags, a channel, a Worker, and signals that stop it.
+#include <pthread.h>
+#include <signal.h>
+#include <unistd.h>
+
+#include <atomic>
+#include <cstdio>
+#include <memory>
+#include <thread>
+
+#include "common/clock.h"
+#include "skerry/v1/fleet.grpc.pb.h"
+#include "worker/channel.h"
+#include "worker/flags.h"
+#include "worker/worker.h"
+
+namespace {
+
+// SIGINT and SIGTERM are blocked in every thread and taken by this one with
+// sigwait, so no work happens inside a signal handler. The first signal stops
+// the worker gracefully; a second one exits at once.
+class SignalWatcher {
+ public:
+  explicit SignalWatcher(skerry::worker::Worker* worker) : worker_(worker) {
+    thread_ = std::thread([this] { Watch(); });
+  }
+  // Wakes the watcher after Run() returned and joins it.
+  ~SignalWatcher() {
+    done_.store(true);
+    pthread_kill(thread_.native_handle(), SIGTERM);
+    thread_.join();
+  }
+
+  // Call before any other thread starts, so every thread inherits the mask.
+  static void BlockSignals() {
+    sigset_t set = Signals();
+    pthread_sigmask(SIG_BLOCK, &set, nullptr);
+  }
+
+ private:
+  static sigset_t Signals() {
+    sigset_t set;
+    sigemptyset(&set);
+    sigaddset(&set, SIGINT);
+    sigaddset(&set, SIGTERM);
+    return set;
+  }
+
+  void Watch() {
+    const sigset_t set = Signals();
+    int signals_seen = 0;
+    while (true) {
+      int sig = 0;
+      if (sigwait(&set, &sig) != 0) continue;
+      if (done_.load()) return;
+      if (++signals_seen == 1) {
+        std::fprintf(
+            stderr, "skerry-worker: stopping (signal again to exit at once)\n");
+        worker_->Stop();
+      } else {
+        _exit(128 + sig);
+      }
+    }
+  }
+
+  skerry::worker::Worker* const worker_;
+  std::atomic<bool> done_{false};
+  std::thread thread_;
+};
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  absl::StatusOr<skerry::worker::WorkerFlags> flags =
+      skerry::worker::ParseWorkerFlags(argc, argv);
+  if (!flags.ok()) {
+    std::fprintf(stderr, "skerry-worker: %s\n",
+                 std::string(flags.status().message()).c_str());
+    return 2;
+  }
+  if (flags->help) {
+    std::fputs(skerry::worker::WorkerUsage().c_str(), stdout);
+    return 0;
+  }
+  SignalWatcher::BlockSignals();
+  auto channel = skerry::worker::CreateCoordinatorChannel(
+      flags->coordinator, flags->options.max_backoff);
+  skerry::worker::Worker worker(skerry::v1::FleetService::NewStub(channel),
+                                flags->options, skerry::Clock::Real());
+  absl::Status status;
+  {
+    SignalWatcher watcher(&worker);
+    status = worker.Run();
+  }
+  if (!status.ok()) {
+    std::fprintf(stderr, "skerry-worker: %s\n", status.ToString().c_str());
+    return 1;
+  }
+  std::fprintf(stderr, "skerry-worker: stopped after reporting %llu results\n",
+               static_cast<unsigned long long>(worker.results_reported()));
+  return 0;
+}

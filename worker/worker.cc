@@ -1,0 +1,544 @@
+#include "worker/worker.h"
+
+#include <unistd.h>
+
+#include <algorithm>
+#include <chrono>
+#include <deque>
+#include <limits>
+#include <random>
+#include <set>
+#include <thread>
+#include <unordered_set>
+#include <utility>
+#include <vector>
+
+#include "absl/status/status.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/string_view.h"
+#include "absl/synchronization/mutex.h"
+#include "common/evaluator.h"
+#include "grpcpp/client_context.h"
+#include "grpcpp/support/status.h"
+
+namespace skerry::worker {
+namespace {
+
+using skerry::v1::JoinRequest;
+using skerry::v1::JoinResponse;
+using skerry::v1::LeaseRequest;
+using skerry::v1::LeaseResponse;
+using skerry::v1::ReportRequest;
+using skerry::v1::ReportResponse;
+using skerry::v1::Task;
+using skerry::v1::TaskResult;
+
+constexpr char kVersion[] = "0.1.0";
+constexpr int kMaxThreads = 4096;
+constexpr absl::Duration kInitialBackoff = absl::Milliseconds(100);
+constexpr absl::Duration kFinalReportDeadline = absl::Seconds(2);
+constexpr absl::Duration kDefaultRenewal = absl::Seconds(10);
+constexpr absl::Duration kMinRenewal = absl::Milliseconds(200);
+// A long poll that comes back empty sooner than this (a coordinator that does
+// not wait) is followed by this pause, so an idle worker never spins.
+constexpr absl::Duration kEmptyPollPause = absl::Milliseconds(100);
+constexpr absl::Duration kMaxRpcBudget = absl::Hours(24);
+constexpr size_t kMaxResultsPerReport = 4096;
+
+// What to do after an RPC, decided by its status code alone.
+enum class Next { kDone, kRetry, kRejoin, kGiveUp };
+
+Next Classify(const grpc::Status& status) {
+  switch (status.error_code()) {
+    case grpc::StatusCode::OK:
+      return Next::kDone;
+    case grpc::StatusCode::NOT_FOUND:            // the worker id is unknown
+    case grpc::StatusCode::FAILED_PRECONDITION:  // e.g. a new fleet table
+      return Next::kRejoin;
+    case grpc::StatusCode::UNAUTHENTICATED:
+    case grpc::StatusCode::PERMISSION_DENIED:
+    case grpc::StatusCode::UNIMPLEMENTED:  // not a coordinator
+      return Next::kGiveUp;
+    default:  // UNAVAILABLE, DEADLINE_EXCEEDED, RESOURCE_EXHAUSTED, ...
+      return Next::kRetry;
+  }
+}
+
+absl::Status Refused(const grpc::Status& status, absl::string_view rpc) {
+  // gRPC and Abseil share the canonical code numbering.
+  return absl::Status(
+      static_cast<absl::StatusCode>(status.error_code()),
+      absl::StrCat("coordinator refused ", rpc, ": ", status.error_message()));
+}
+
+void SetDeadline(grpc::ClientContext* context, absl::Duration budget) {
+  budget = std::clamp(budget, absl::ZeroDuration(), kMaxRpcBudget);
+  context->set_deadline(std::chrono::system_clock::now() +
+                        absl::ToChronoMilliseconds(budget));
+}
+
+// Capped exponential backoff: 100 ms doubling up to the cap, each delay drawn
+// uniformly from [step/2, step]. The jitter only spreads a fleet's retries; it
+// is not part of any reproducibility contract.
+class Backoff {
+ public:
+  Backoff(absl::Duration cap, uint32_t seed)
+      : cap_(std::max(cap, kInitialBackoff)), rng_(seed) {}
+  absl::Duration Next() {
+    std::uniform_real_distribution<double> jitter(0.5, 1.0);
+    const absl::Duration delay = step_ * jitter(rng_);
+    step_ = std::min(step_ * 2, cap_);
+    return delay;
+  }
+  void Reset() { step_ = kInitialBackoff; }
+
+ private:
+  const absl::Duration cap_;
+  absl::Duration step_ = kInitialBackoff;
+  std::minstd_rand rng_;
+};
+
+std::string HostName() {
+  char buf[256] = {};
+  if (gethostname(buf, sizeof(buf) - 1) != 0 || buf[0] == '\0') {
+    return "unknown-host";
+  }
+  return buf;
+}
+
+WorkerOptions WithDefaults(WorkerOptions options) {
+  if (options.name.empty())
+    options.name = absl::StrCat(HostName(), "-", getpid());
+  if (options.batch == 0 && options.threads > 0) {
+    options.batch =
+        static_cast<uint32_t>(4 * std::min(options.threads, kMaxThreads));
+  }
+  return options;
+}
+
+absl::Status CheckOptions(const WorkerOptions& o) {
+  if (o.threads < 1 || o.threads > kMaxThreads) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("WorkerOptions.threads: expected 1 to ", kMaxThreads,
+                     ", got ", o.threads));
+  }
+  if (o.wait < absl::ZeroDuration() ||
+      o.wait > absl::Milliseconds(std::numeric_limits<uint32_t>::max())) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("WorkerOptions.wait: expected 0 to 2^32-1 ms, got ",
+                     absl::FormatDuration(o.wait)));
+  }
+  if (o.rpc_deadline <= absl::ZeroDuration()) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "WorkerOptions.rpc_deadline: expected a positive duration, got ",
+        absl::FormatDuration(o.rpc_deadline)));
+  }
+  if (o.max_backoff < absl::ZeroDuration() ||
+      o.report_interval < absl::ZeroDuration()) {
+    return absl::InvalidArgumentError(
+        "WorkerOptions.max_backoff and report_interval must not be negative");
+  }
+  return absl::OkStatus();
+}
+
+}  // namespace
+
+class Worker::Impl {
+ public:
+  Impl(std::unique_ptr<skerry::v1::FleetService::StubInterface> stub,
+       WorkerOptions options, Clock* clock)
+      : stub_(std::move(stub)),
+        options_(WithDefaults(std::move(options))),
+        clock_(clock != nullptr ? clock : Clock::Real()) {}
+
+  absl::Status Run();
+  void Stop();
+  uint64_t results_reported() const { return reported_.load(); }
+
+ private:
+  // Registers an RPC's context for the call's duration, so Stop() can cancel
+  // it.
+  class ScopedCall {
+   public:
+    ScopedCall(Impl* impl, grpc::ClientContext* context);
+    ~ScopedCall();
+
+   private:
+    Impl* const impl_;
+    grpc::ClientContext* const context_;
+  };
+
+  void LeaseLoop(uint32_t seed);
+  void EvalLoop();
+  void ReportLoop(uint32_t seed);
+  void FinalReport();
+
+  // Joins unless already joined, retrying with backoff. Sets *id. False when
+  // stopping or when the coordinator refused the worker for good.
+  bool EnsureJoined(Backoff& backoff, uint64_t* id);
+  // Marks id as unknown to the coordinator, so the next call joins again.
+  void ForgetWorkerId(uint64_t id);
+  // After a failed RPC: backs off, arranges a rejoin or gives up. False when
+  // the calling loop should end.
+  bool HandleFailure(const grpc::Status& status, absl::string_view rpc,
+                     uint64_t id, Backoff& backoff);
+  // False when Stop() came first.
+  bool SleepUnlessStopping(absl::Duration d);
+  void GiveUp(absl::Status status);
+  void SetRenewal(double lease_seconds);
+  // Removes the first n buffered results, now acknowledged.
+  void CommitReported(size_t n);
+
+  size_t BuildReport(ReportRequest* request, bool with_held)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  bool WantsLease() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  bool TaskOrStopping() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
+    return stopping_ || !queue_.empty();
+  }
+  bool ResultsOrStopping() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
+    return stopping_ || !results_.empty();
+  }
+  bool BatchOrStopping() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
+    return stopping_ || results_.size() >= options_.batch;
+  }
+
+  // Constant after construction.
+  const std::unique_ptr<skerry::v1::FleetService::StubInterface> stub_;
+  const WorkerOptions options_;
+  Clock* const clock_;
+
+  // Held across a Join RPC so that only one thread joins at a time.
+  // Lock order: join_mu_, then mu_ or calls_mu_.
+  absl::Mutex join_mu_;
+
+  mutable absl::Mutex mu_;
+  bool stopping_ ABSL_GUARDED_BY(mu_) = false;
+  absl::Status give_up_ ABSL_GUARDED_BY(mu_);
+  bool joined_ ABSL_GUARDED_BY(mu_) = false;
+  uint64_t worker_id_ ABSL_GUARDED_BY(mu_) = 0;
+  absl::Duration renewal_ ABSL_GUARDED_BY(mu_) = kDefaultRenewal;
+  // Leased tasks not yet started.
+  std::deque<Task> queue_ ABSL_GUARDED_BY(mu_);
+  // Ids of tasks queued or being evaluated.
+  std::unordered_set<uint64_t> working_ ABSL_GUARDED_BY(mu_);
+  // Results waiting for a successful Report, oldest first.
+  std::deque<TaskResult> results_ ABSL_GUARDED_BY(mu_);
+  // A short (non-waiting) lease found no work: wait for an empty queue, then
+  // long-poll, rather than asking again at once.
+  bool short_lease_was_empty_ ABSL_GUARDED_BY(mu_) = false;
+
+  absl::Mutex calls_mu_;
+  std::set<grpc::ClientContext*> calls_ ABSL_GUARDED_BY(calls_mu_);
+  bool cancel_calls_ ABSL_GUARDED_BY(calls_mu_) = false;
+
+  std::atomic<uint64_t> reported_{0};
+  std::atomic<bool> ran_{false};
+};
+
+Worker::Impl::ScopedCall::ScopedCall(Impl* impl, grpc::ClientContext* context)
+    : impl_(impl), context_(context) {
+  absl::MutexLock l(&impl_->calls_mu_);
+  // A call cancelled before it starts fails as soon as it starts.
+  if (impl_->cancel_calls_) context_->TryCancel();
+  impl_->calls_.insert(context_);
+}
+
+Worker::Impl::ScopedCall::~ScopedCall() {
+  absl::MutexLock l(&impl_->calls_mu_);
+  impl_->calls_.erase(context_);
+}
+
+absl::Status Worker::Impl::Run() {
+  if (ran_.exchange(true)) {
+    return absl::FailedPreconditionError("Worker::Run may be called only once");
+  }
+  if (absl::Status s = CheckOptions(options_); !s.ok()) return s;
+  const uint32_t seed = static_cast<uint32_t>(getpid());
+  {
+    Backoff backoff(options_.max_backoff, seed);
+    uint64_t id = 0;
+    if (!EnsureJoined(backoff, &id)) {
+      absl::MutexLock l(&mu_);
+      return give_up_;
+    }
+  }
+  std::vector<std::thread> threads;
+  threads.emplace_back([this, seed] { LeaseLoop(seed * 31u + 1u); });
+  threads.emplace_back([this, seed] { ReportLoop(seed * 31u + 2u); });
+  for (int i = 0; i < options_.threads; ++i) {
+    threads.emplace_back([this] { EvalLoop(); });
+  }
+  {
+    absl::MutexLock l(&mu_);
+    mu_.Await(absl::Condition(&stopping_));
+  }
+  for (std::thread& t : threads) t.join();
+  FinalReport();
+  absl::MutexLock l(&mu_);
+  return give_up_;
+}
+
+void Worker::Impl::Stop() {
+  {
+    absl::MutexLock l(&mu_);
+    stopping_ = true;
+  }
+  absl::MutexLock l(&calls_mu_);
+  cancel_calls_ = true;
+  for (grpc::ClientContext* context : calls_) context->TryCancel();
+}
+
+bool Worker::Impl::EnsureJoined(Backoff& backoff, uint64_t* id) {
+  absl::MutexLock join_lock(&join_mu_);
+  while (true) {
+    {
+      absl::MutexLock l(&mu_);
+      if (stopping_) return false;
+      if (joined_) {
+        *id = worker_id_;
+        return true;
+      }
+    }
+    JoinRequest request;
+    request.set_name(options_.name);
+    request.set_host(HostName());
+    request.set_threads(static_cast<uint32_t>(options_.threads));
+    for (const std::string& name : BuiltinNames()) request.add_evaluators(name);
+    request.set_version(kVersion);
+    JoinResponse response;
+    grpc::ClientContext context;
+    SetDeadline(&context, options_.rpc_deadline);
+    grpc::Status status;
+    {
+      ScopedCall call(this, &context);
+      status = stub_->Join(&context, request, &response);
+    }
+    if (status.ok()) {
+      backoff.Reset();
+      SetRenewal(response.lease_seconds());
+      absl::MutexLock l(&mu_);
+      joined_ = true;
+      worker_id_ = response.worker_id();
+      continue;
+    }
+    if (Classify(status) == Next::kGiveUp ||
+        status.error_code() == grpc::StatusCode::INVALID_ARGUMENT) {
+      GiveUp(Refused(status, "Join"));
+      return false;
+    }
+    if (!SleepUnlessStopping(backoff.Next())) return false;
+  }
+}
+
+void Worker::Impl::ForgetWorkerId(uint64_t id) {
+  absl::MutexLock l(&mu_);
+  if (joined_ && worker_id_ == id) joined_ = false;
+}
+
+bool Worker::Impl::HandleFailure(const grpc::Status& status,
+                                 absl::string_view rpc, uint64_t id,
+                                 Backoff& backoff) {
+  {
+    absl::MutexLock l(&mu_);
+    if (stopping_) return false;  // most likely cancelled by Stop()
+  }
+  switch (Classify(status)) {
+    case Next::kGiveUp:
+      GiveUp(Refused(status, rpc));
+      return false;
+    case Next::kRejoin:
+      ForgetWorkerId(id);
+      break;
+    case Next::kDone:
+    case Next::kRetry:
+      break;
+  }
+  return SleepUnlessStopping(backoff.Next());
+}
+
+bool Worker::Impl::SleepUnlessStopping(absl::Duration d) {
+  absl::MutexLock l(&mu_);
+  mu_.AwaitWithTimeout(absl::Condition(&stopping_), d);
+  return !stopping_;
+}
+
+void Worker::Impl::GiveUp(absl::Status status) {
+  {
+    absl::MutexLock l(&mu_);
+    if (give_up_.ok()) give_up_ = std::move(status);
+  }
+  Stop();
+}
+
+void Worker::Impl::SetRenewal(double lease_seconds) {
+  if (!(lease_seconds > 0)) return;  // the coordinator did not say
+  absl::MutexLock l(&mu_);
+  renewal_ = std::max(absl::Seconds(lease_seconds) / 3, kMinRenewal);
+}
+
+bool Worker::Impl::WantsLease() const {
+  if (stopping_) return true;
+  if (queue_.size() >= static_cast<size_t>(options_.threads)) return false;
+  return !(short_lease_was_empty_ && !queue_.empty());
+}
+
+void Worker::Impl::LeaseLoop(uint32_t seed) {
+  Backoff backoff(options_.max_backoff, seed);
+  while (true) {
+    bool long_poll = false;
+    {
+      absl::MutexLock l(&mu_);
+      mu_.Await(absl::Condition(this, &Impl::WantsLease));
+      if (stopping_) return;
+      long_poll = queue_.empty();
+    }
+    uint64_t id = 0;
+    if (!EnsureJoined(backoff, &id)) return;
+    const absl::Duration wait =
+        long_poll ? options_.wait : absl::ZeroDuration();
+    LeaseRequest request;
+    request.set_worker_id(id);
+    request.set_max_tasks(options_.batch);
+    request.set_wait_ms(static_cast<uint32_t>(absl::ToInt64Milliseconds(wait)));
+    LeaseResponse response;
+    grpc::ClientContext context;
+    SetDeadline(&context, wait + options_.rpc_deadline);
+    const absl::Time start = clock_->Now();
+    grpc::Status status;
+    {
+      ScopedCall call(this, &context);
+      status = stub_->Lease(&context, request, &response);
+    }
+    if (!status.ok()) {
+      if (!HandleFailure(status, "Lease", id, backoff)) return;
+      continue;
+    }
+    backoff.Reset();
+    SetRenewal(response.lease_seconds());
+    const bool empty = response.tasks().empty();
+    {
+      absl::MutexLock l(&mu_);
+      for (Task& task : *response.mutable_tasks()) {
+        // A task offered again while still held here is already being handled.
+        if (working_.insert(task.task_id()).second) {
+          queue_.push_back(std::move(task));
+        }
+      }
+      short_lease_was_empty_ = empty && !long_poll;
+    }
+    if (empty && long_poll && clock_->Now() - start < kEmptyPollPause) {
+      if (!SleepUnlessStopping(kEmptyPollPause)) return;
+    }
+  }
+}
+
+void Worker::Impl::EvalLoop() {
+  EvaluatorCache cache(options_.make_evaluator);
+  while (true) {
+    Task task;
+    {
+      absl::MutexLock l(&mu_);
+      mu_.Await(absl::Condition(this, &Impl::TaskOrStopping));
+      if (stopping_) return;  // queued tasks are abandoned; their leases expire
+      task = std::move(queue_.front());
+      queue_.pop_front();
+    }
+    TaskResult result = EvaluateTask(task, cache, clock_);
+    absl::MutexLock l(&mu_);
+    working_.erase(task.task_id());
+    results_.push_back(std::move(result));
+  }
+}
+
+size_t Worker::Impl::BuildReport(ReportRequest* request, bool with_held) {
+  const size_t n = std::min(results_.size(), kMaxResultsPerReport);
+  for (size_t i = 0; i < n; ++i) *request->add_results() = results_[i];
+  if (with_held) {
+    for (uint64_t id : working_) request->add_held_task_ids(id);
+    for (size_t i = n; i < results_.size(); ++i) {
+      request->add_held_task_ids(results_[i].task_id());
+    }
+  }
+  return n;
+}
+
+void Worker::Impl::CommitReported(size_t n) {
+  bool reached = false;
+  {
+    absl::MutexLock l(&mu_);
+    results_.erase(results_.begin(), results_.begin() + static_cast<long>(n));
+    const uint64_t total = reported_.fetch_add(n) + n;
+    reached = options_.max_results > 0 && total >= options_.max_results;
+  }
+  if (reached) Stop();
+}
+
+void Worker::Impl::ReportLoop(uint32_t seed) {
+  Backoff backoff(options_.max_backoff, seed);
+  while (true) {
+    ReportRequest request;
+    size_t taken = 0;
+    {
+      absl::MutexLock l(&mu_);
+      // Wake for results, or when the held lease needs renewing.
+      const bool have_results = mu_.AwaitWithTimeout(
+          absl::Condition(this, &Impl::ResultsOrStopping), renewal_);
+      if (stopping_) return;
+      if (have_results && results_.size() < options_.batch) {
+        mu_.AwaitWithTimeout(absl::Condition(this, &Impl::BatchOrStopping),
+                             options_.report_interval);
+        if (stopping_) return;
+      }
+      if (results_.empty() && working_.empty()) continue;
+      taken = BuildReport(&request, /*with_held=*/true);
+    }
+    uint64_t id = 0;
+    if (!EnsureJoined(backoff, &id)) return;
+    request.set_worker_id(id);
+    ReportResponse response;
+    grpc::ClientContext context;
+    SetDeadline(&context, options_.rpc_deadline);
+    grpc::Status status;
+    {
+      ScopedCall call(this, &context);
+      status = stub_->Report(&context, request, &response);
+    }
+    if (!status.ok()) {
+      if (!HandleFailure(status, "Report", id, backoff)) return;
+      continue;
+    }
+    backoff.Reset();
+    CommitReported(taken);
+  }
+}
+
+void Worker::Impl::FinalReport() {
+  ReportRequest request;
+  size_t taken = 0;
+  {
+    absl::MutexLock l(&mu_);
+    if (results_.empty() || !joined_) return;
+    request.set_worker_id(worker_id_);
+    // No held ids: the worker is leaving, so its other tasks may expire.
+    taken = BuildReport(&request, /*with_held=*/false);
+  }
+  ReportResponse response;
+  grpc::ClientContext context;
+  SetDeadline(&context, std::min(kFinalReportDeadline, options_.rpc_deadline));
+  if (stub_->Report(&context, request, &response).ok()) CommitReported(taken);
+}
+
+Worker::Worker(std::unique_ptr<skerry::v1::FleetService::StubInterface> stub,
+               WorkerOptions options, Clock* clock)
+    : impl_(
+          std::make_unique<Impl>(std::move(stub), std::move(options), clock)) {}
+
+Worker::~Worker() = default;
+
+absl::Status Worker::Run() { return impl_->Run(); }
+
+void Worker::Stop() { impl_->Stop(); }
+
+uint64_t Worker::results_reported() const { return impl_->results_reported(); }
+
+}  // namespace skerry::worker
