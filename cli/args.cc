@@ -1,0 +1,412 @@
+#include "cli/args.h"
+
+#include <algorithm>
+#include <cstddef>
+
+#include "absl/strings/match.h"
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "absl/strings/str_split.h"
+
+namespace skerry::cli {
+namespace {
+
+constexpr char kRunHelp[] = "RUN is a run id as `skerry list` shows it.";
+
+std::vector<CommandSpec> MakeCommands() {
+  return {
+      {"submit",
+       {"SPEC_FILE"},
+       {{"watch", nullptr, "watch the run after submitting it"}},
+       "submit a run spec (protobuf text format); prints the run id",
+       "Reads SPEC_FILE, checks it (syntax, then every field against its "
+       "allowed range) and submits it to the coordinator. Prints the new run's "
+       "id."},
+      {"list", {}, {}, "list every run", "Lists every run, newest last."},
+      {"show",
+       {"RUN"},
+       {{"all", nullptr, "print every generation, not only the last 20"}},
+       "show a run: state, islands, champion score, per-generation progress",
+       "Shows a run's state, evaluation count, workers, each island's "
+       "generation and best/mean score, the champion's score, then the best "
+       "and mean score of each generation over all islands."},
+      {"watch",
+       {"RUN"},
+       {},
+       "follow a run's progress until it ends",
+       "Follows a run until it finishes, is stopped or fails, then prints its "
+       "final state. On a terminal one progress line is redrawn in place; "
+       "otherwise every update is printed on its own line. Keeps trying when "
+       "the coordinator goes away for a while."},
+      {"pause",
+       {"RUN"},
+       {},
+       "pause a run",
+       "Pauses a run: no new work is "
+       "handed out for it until it is resumed."},
+      {"resume", {"RUN"}, {}, "resume a paused run", "Resumes a paused run."},
+      {"stop",
+       {"RUN"},
+       {},
+       "stop a run for good",
+       "Stops a run for good; its champion so far stays."},
+      {"champion",
+       {"RUN"},
+       {{"json", nullptr,
+         "print as JSON (protobuf's JSON mapping of the genome)"},
+        {"out", "FILE", "write to FILE instead of standard output"}},
+       "print a run's best genome",
+       "Prints the run's best genome: id, natural key (run/island/generation/"
+       "slot), score and genes."},
+      {"history",
+       {"RUN"},
+       {{"island", "N", "only island N (default: every island)"}},
+       "print per-generation statistics of a run",
+       "Prints best, mean and worst score, diversity and evaluations of every "
+       "generation of every island (or of one island)."},
+      {"digest",
+       {"RUN"},
+       {},
+       "print a run's reproducibility digest (SHA-256 over its genomes)",
+       "Prints the SHA-256 digest of the run's genomes in natural-key order "
+       "and "
+       "how many genomes it covers. Two runs of one spec and seed have the "
+       "same "
+       "digest however many workers ran them and however often the "
+       "coordinator restarted."},
+      {"local",
+       {"SPEC_FILE"},
+       {{"workers", "N", "number of in-process workers (1 thread each)", true},
+        {"db", "FILE", "SQLite database file to keep the run in", true}},
+       "run a spec in this process: coordinator and workers, no network",
+       "Starts a coordinator on FILE with no network listener, N in-process "
+       "workers, submits SPEC_FILE, follows the run to its end, prints the "
+       "champion and shuts everything down. The --coordinator option is not "
+       "used."},
+      {"help",
+       {"[COMMAND]"},
+       {},
+       "print help for every command, or for one",
+       "Prints the list of commands, or the help of COMMAND."},
+  };
+}
+
+// Breaks `text` into lines of at most `width` columns at spaces.
+std::string Wrap(absl::string_view text, size_t width) {
+  std::string out;
+  size_t column = 0;
+  for (absl::string_view word : absl::StrSplit(text, ' ', absl::SkipEmpty())) {
+    if (column > 0 && column + 1 + word.size() > width) {
+      out += "\n";
+      column = 0;
+    } else if (column > 0) {
+      out += " ";
+      ++column;
+    }
+    absl::StrAppend(&out, word);
+    column += word.size();
+  }
+  return out;
+}
+
+bool IsOptional(const char* positional) { return positional[0] == '['; }
+
+const FlagSpec* FindFlag(const CommandSpec& command, absl::string_view name) {
+  for (const FlagSpec& flag : command.flags) {
+    if (name == flag.name) return &flag;
+  }
+  return nullptr;
+}
+
+absl::Status UsageError(absl::string_view command, absl::string_view what) {
+  if (command.empty()) return absl::InvalidArgumentError(what);
+  return absl::InvalidArgumentError(absl::StrCat(command, ": ", what));
+}
+
+// Splits "--name=value" into its parts; `value` is unset without "=".
+struct FlagToken {
+  std::string name;
+  bool has_value = false;
+  std::string value;
+};
+FlagToken SplitFlag(absl::string_view arg) {
+  FlagToken token;
+  arg.remove_prefix(2);
+  size_t eq = arg.find('=');
+  token.name = std::string(arg.substr(0, eq));
+  if (eq != absl::string_view::npos) {
+    token.has_value = true;
+    token.value = std::string(arg.substr(eq + 1));
+  }
+  return token;
+}
+
+// Parses the global options before the command; returns the command's index.
+absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
+                                   ParsedArgs* parsed) {
+  size_t i = 0;
+  for (; i < args.size(); ++i) {
+    const std::string& arg = args[i];
+    if (arg == "--help" || arg == "-h") {
+      parsed->command = "help";
+      return args.size();
+    }
+    if (!absl::StartsWith(arg, "-")) break;
+    FlagToken token = SplitFlag(arg);
+    if (!absl::StartsWith(arg, "--") || token.name != "coordinator") {
+      return UsageError("", absl::StrCat("unknown option '", arg,
+                                         "' (options before the command: "
+                                         "--coordinator HOST:PORT, --help)"));
+    }
+    if (!token.has_value) {
+      if (i + 1 >= args.size()) {
+        return UsageError("", "--coordinator needs a value: HOST:PORT");
+      }
+      token.value = args[++i];
+    }
+    parsed->coordinator = token.value;
+  }
+  if (i >= args.size()) {
+    return UsageError("", "no command given; `skerry help` lists them");
+  }
+  return i;
+}
+
+absl::Status ParseCommandArgs(const CommandSpec& command,
+                              const std::vector<std::string>& args, size_t i,
+                              ParsedArgs* parsed) {
+  bool only_positionals = false;
+  for (; i < args.size(); ++i) {
+    const std::string& arg = args[i];
+    if (only_positionals || !absl::StartsWith(arg, "-") || arg == "-") {
+      parsed->positionals.push_back(arg);
+      continue;
+    }
+    if (arg == "--") {
+      only_positionals = true;
+      continue;
+    }
+    if (arg == "--help" || arg == "-h") {
+      parsed->help = true;
+      return absl::OkStatus();
+    }
+    if (!absl::StartsWith(arg, "--")) {
+      return UsageError(command.name, absl::StrCat("unknown option '", arg,
+                                                   "'; options start with --"));
+    }
+    FlagToken token = SplitFlag(arg);
+    const FlagSpec* flag = FindFlag(command, token.name);
+    bool global = token.name == "coordinator";
+    if (flag == nullptr && !global) {
+      return UsageError(command.name,
+                        absl::StrCat("unknown option '--", token.name, "'"));
+    }
+    bool takes_value = global || flag->value != nullptr;
+    if (!takes_value && token.has_value) {
+      return UsageError(command.name,
+                        absl::StrCat("--", token.name, " takes no value"));
+    }
+    if (takes_value && !token.has_value) {
+      if (i + 1 >= args.size()) {
+        return UsageError(command.name,
+                          absl::StrCat("--", token.name, " needs a value: ",
+                                       global ? "HOST:PORT" : flag->value));
+      }
+      token.value = args[++i];
+    }
+    if (global) {
+      parsed->coordinator = token.value;
+    } else {
+      parsed->flags[token.name] = token.value;
+    }
+  }
+  return absl::OkStatus();
+}
+
+absl::Status CheckComplete(const CommandSpec& command,
+                           const ParsedArgs& parsed) {
+  size_t required =
+      std::count_if(command.positionals.begin(), command.positionals.end(),
+                    [](const char* p) { return !IsOptional(p); });
+  std::string expected = absl::StrJoin(command.positionals, " ");
+  if (parsed.positionals.size() < required) {
+    return UsageError(
+        command.name,
+        absl::StrCat("missing argument ",
+                     command.positionals[parsed.positionals.size()],
+                     " (usage: skerry ", command.name, " ", expected, ")"));
+  }
+  if (parsed.positionals.size() > command.positionals.size()) {
+    return UsageError(
+        command.name,
+        absl::StrCat("unexpected argument '",
+                     parsed.positionals[command.positionals.size()], "'",
+                     expected.empty()
+                         ? " (it takes none)"
+                         : absl::StrCat(" (usage: skerry ", command.name, " ",
+                                        expected, ")")));
+  }
+  for (const FlagSpec& flag : command.flags) {
+    if (flag.required && !parsed.Has(flag.name)) {
+      return UsageError(command.name, absl::StrCat("missing option --",
+                                                   flag.name, " ", flag.value));
+    }
+  }
+  return absl::OkStatus();
+}
+
+}  // namespace
+
+const std::vector<CommandSpec>& Commands() {
+  static const auto* commands = new std::vector<CommandSpec>(MakeCommands());
+  return *commands;
+}
+
+const CommandSpec* FindCommand(absl::string_view name) {
+  for (const CommandSpec& command : Commands()) {
+    if (name == command.name) return &command;
+  }
+  return nullptr;
+}
+
+bool ParsedArgs::Has(absl::string_view flag) const {
+  return flags.find(std::string(flag)) != flags.end();
+}
+
+std::string ParsedArgs::Get(absl::string_view flag) const {
+  auto it = flags.find(std::string(flag));
+  return it == flags.end() ? "" : it->second;
+}
+
+absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<std::string>& args,
+                                     absl::string_view env_coordinator) {
+  ParsedArgs parsed;
+  parsed.coordinator = env_coordinator.empty() ? kDefaultCoordinator
+                                               : std::string(env_coordinator);
+  absl::StatusOr<size_t> start = ParseGlobal(args, &parsed);
+  if (!start.ok()) return start.status();
+  if (*start >= args.size()) return parsed;  // global --help
+  const CommandSpec* command = FindCommand(args[*start]);
+  if (command == nullptr) {
+    return UsageError("", absl::StrCat("unknown command '", args[*start],
+                                       "'; `skerry help` lists them"));
+  }
+  parsed.command = command->name;
+  absl::Status status = ParseCommandArgs(*command, args, *start + 1, &parsed);
+  if (!status.ok()) return status;
+  if (parsed.help) return parsed;
+  status = CheckComplete(*command, parsed);
+  if (!status.ok()) return status;
+  bool uses_network = parsed.command != "help" && parsed.command != "local";
+  status = uses_network ? CheckCoordinatorAddress(parsed.coordinator)
+                        : absl::OkStatus();
+  if (!status.ok()) {
+    bool from_env =
+        !env_coordinator.empty() && parsed.coordinator == env_coordinator;
+    return UsageError(
+        "", absl::StrCat(status.message(),
+                         from_env ? " (from $SKERRY_COORDINATOR)" : ""));
+  }
+  return parsed;
+}
+
+absl::Status CheckCoordinatorAddress(absl::string_view address) {
+  size_t colon = address.rfind(':');
+  uint32_t port = 0;
+  bool ok = colon != absl::string_view::npos && colon > 0 &&
+            absl::SimpleAtoi(address.substr(colon + 1), &port) && port >= 1 &&
+            port <= 65535;
+  if (!ok) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("coordinator address '", address,
+                     "' is not HOST:PORT with a port in [1, 65535]"));
+  }
+  return absl::OkStatus();
+}
+
+absl::StatusOr<uint64_t> ParseRunId(absl::string_view text) {
+  uint64_t id = 0;
+  bool digits =
+      !text.empty() && std::all_of(text.begin(), text.end(),
+                                   [](char c) { return c >= '0' && c <= '9'; });
+  if (!digits || !absl::SimpleAtoi(text, &id) || id == 0) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "RUN must be a run id (a positive integer); got '", text, "'"));
+  }
+  return id;
+}
+
+absl::StatusOr<uint32_t> ParseBoundedUint(absl::string_view what,
+                                          absl::string_view text, uint32_t min,
+                                          uint32_t max) {
+  uint32_t value = 0;
+  bool digits =
+      !text.empty() && std::all_of(text.begin(), text.end(),
+                                   [](char c) { return c >= '0' && c <= '9'; });
+  if (!digits || !absl::SimpleAtoi(text, &value) || value < min ||
+      value > max) {
+    return absl::InvalidArgumentError(
+        absl::StrCat(what, " must be an integer in [", min, ", ", max,
+                     "]; got '", text, "'"));
+  }
+  return value;
+}
+
+std::string GeneralHelp() {
+  std::string help =
+      "usage: skerry [--coordinator HOST:PORT] COMMAND [ARGS...]\n\n"
+      "The command-line client of a Skerry coordinator.\n\n"
+      "Commands:\n";
+  size_t width = 0;
+  for (const CommandSpec& command : Commands()) {
+    width = std::max(width, std::string(command.name).size());
+  }
+  for (const CommandSpec& command : Commands()) {
+    std::string name = command.name;
+    absl::StrAppend(&help, "  ", name,
+                    std::string(width + 2 - name.size(), ' '), command.summary,
+                    "\n");
+  }
+  absl::StrAppend(
+      &help,
+      "\nOptions:\n"
+      "  --coordinator HOST:PORT  coordinator to talk to\n"
+      "                           (default: $",
+      kCoordinatorEnv, ", else ", kDefaultCoordinator,
+      ")\n"
+      "  --help                   this help; `skerry COMMAND --help` for one "
+      "command\n\n"
+      "Exit codes: 0 success, 1 the operation failed, 2 usage error or bad "
+      "input,\n3 cannot reach the coordinator.\n");
+  return help;
+}
+
+std::string CommandHelp(const CommandSpec& command) {
+  std::string usage = absl::StrCat("usage: skerry ", command.name);
+  for (const char* positional : command.positionals) {
+    absl::StrAppend(&usage, " ", positional);
+  }
+  for (const FlagSpec& flag : command.flags) {
+    std::string text = absl::StrCat("--", flag.name);
+    if (flag.value != nullptr) absl::StrAppend(&text, " ", flag.value);
+    absl::StrAppend(&usage, " ", flag.required ? text : "[" + text + "]");
+  }
+  std::string help =
+      absl::StrCat(usage, "\n\n", Wrap(command.details, 78), "\n");
+  if (!command.positionals.empty() &&
+      std::string(command.positionals[0]) == "RUN") {
+    absl::StrAppend(&help, kRunHelp, "\n");
+  }
+  if (!command.flags.empty()) absl::StrAppend(&help, "\nOptions:\n");
+  for (const FlagSpec& flag : command.flags) {
+    std::string text = absl::StrCat("--", flag.name);
+    if (flag.value != nullptr) absl::StrAppend(&text, " ", flag.value);
+    absl::StrAppend(&help, "  ", text,
+                    std::string(text.size() < 14 ? 16 - text.size() : 2, ' '),
+                    flag.help, "\n");
+  }
+  return help;
+}
+
+}  // namespace skerry::cli

@@ -1,0 +1,316 @@
+#include "cli/commands.h"
+
+#include <algorithm>
+#include <cerrno>
+#include <cstring>
+#include <fstream>
+#include <sstream>
+
+#include "absl/strings/str_cat.h"
+#include "absl/time/clock.h"
+#include "cli/format.h"
+#include "cli/local.h"
+#include "common/spec.h"
+
+namespace skerry::cli {
+namespace {
+
+using skerry::v1::RunSummary;
+
+int UsageFailure(const absl::Status& status, absl::string_view command,
+                 Io& io) {
+  *io.err << "skerry: " << status.message() << "\n";
+  if (!command.empty()) {
+    *io.err << "run `skerry " << command << " --help` for its usage\n";
+  }
+  return kExitUsage;
+}
+
+absl::Status WriteFile(const std::string& path, const std::string& contents) {
+  std::ofstream file(path, std::ios::binary | std::ios::trunc);
+  if (file) file << contents;
+  if (file) file.close();
+  if (!file) {
+    return absl::PermissionDeniedError(
+        absl::StrCat("cannot write ", path, ": ", std::strerror(errno)));
+  }
+  return absl::OkStatus();
+}
+
+// Where `watch` stands: the last summary and whether a progress line is open.
+struct WatchState {
+  RunSummary last;
+  uint32_t max_generations = 0;
+  bool line_open = false;
+};
+
+void Draw(const RunSummary& summary, WatchState& state, Io& io) {
+  state.last = summary;
+  std::string line = FormatProgressLine(summary, state.max_generations);
+  if (io.interactive) {
+    *io.out << "\r" << line << "\x1b[K" << std::flush;
+    state.line_open = true;
+  } else {
+    *io.out << line << "\n" << std::flush;
+  }
+}
+
+void EndLine(WatchState& state, Io& io) {
+  if (state.line_open) *io.out << "\n" << std::flush;
+  state.line_open = false;
+}
+
+void Sleep(absl::Duration d, Io& io) {
+  if (io.sleep) {
+    io.sleep(d);
+  } else {
+    absl::SleepFor(d);
+  }
+}
+
+int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
+  uint64_t run_id = 0;
+  if (!args.positionals.empty() && args.command != "submit") {
+    absl::StatusOr<uint64_t> id = ParseRunId(args.positionals[0]);
+    if (!id.ok()) return UsageFailure(id.status(), args.command, io);
+    run_id = *id;
+  }
+  const std::string& command = args.command;
+  if (command == "submit") {
+    int code = SubmitCommand(client, args.positionals[0], io, &run_id);
+    if (code != kExitOk || !args.Has("watch")) return code;
+    return WatchCommand(client, run_id, io);
+  }
+  if (command == "list") return ListCommand(client, io);
+  if (command == "show")
+    return ShowCommand(client, run_id, args.Has("all"), io);
+  if (command == "watch") return WatchCommand(client, run_id, io);
+  if (command == "pause" || command == "resume" || command == "stop") {
+    return SteerCommand(client, run_id, command, io);
+  }
+  if (command == "digest") return DigestCommand(client, run_id, io);
+  if (command == "champion") {
+    return ChampionCommand(client, run_id, args.Has("json"), args.Get("out"),
+                           io);
+  }
+  if (command == "history") {
+    std::optional<uint32_t> island;
+    if (args.Has("island")) {
+      absl::StatusOr<uint32_t> n =
+          ParseBoundedUint("--island", args.Get("island"), 0, 255);
+      if (!n.ok()) return UsageFailure(n.status(), command, io);
+      island = *n;
+    }
+    return HistoryCommand(client, run_id, island, io);
+  }
+  return UsageFailure(absl::InvalidArgumentError(
+                          absl::StrCat("command '", command, "' not handled")),
+                      "", io);
+}
+
+int Help(const ParsedArgs& args, Io& io) {
+  if (args.command == "help" && !args.positionals.empty()) {
+    const CommandSpec* command = FindCommand(args.positionals[0]);
+    if (command == nullptr) {
+      return UsageFailure(
+          absl::InvalidArgumentError(absl::StrCat("help: unknown command '",
+                                                  args.positionals[0], "'")),
+          "help", io);
+    }
+    *io.out << CommandHelp(*command);
+    return kExitOk;
+  }
+  if (args.command == "help") {
+    *io.out << GeneralHelp();
+  } else {
+    *io.out << CommandHelp(*FindCommand(args.command));
+  }
+  return kExitOk;
+}
+
+}  // namespace
+
+int ReportError(const absl::Status& status, Io& io) {
+  *io.err << "skerry: " << status.message() << "\n";
+  return IsUnreachable(status) ? kExitUnreachable : kExitFailure;
+}
+
+absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path) {
+  std::ifstream file(path, std::ios::binary);
+  if (!file) {
+    return absl::NotFoundError(
+        absl::StrCat("cannot read ", path, ": ", std::strerror(errno)));
+  }
+  std::ostringstream text;
+  text << file.rdbuf();
+  if (file.bad()) {
+    return absl::DataLossError(
+        absl::StrCat("cannot read ", path, ": ", std::strerror(errno)));
+  }
+  LoadedSpec loaded;
+  loaded.text = text.str();
+  absl::StatusOr<skerry::v1::RunSpec> spec = ParseSpecText(loaded.text, path);
+  if (!spec.ok()) return spec.status();
+  absl::StatusOr<skerry::v1::RunSpec> prepared = PrepareSpec(*spec);
+  if (!prepared.ok()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat(path, ": ", prepared.status().message()));
+  }
+  loaded.spec = *std::move(spec);
+  return loaded;
+}
+
+int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
+                  uint64_t* run_id) {
+  absl::StatusOr<LoadedSpec> loaded = LoadSpecFile(spec_path);
+  if (!loaded.ok()) {
+    *io.err << "skerry: " << loaded.status().message() << "\n";
+    return kExitUsage;
+  }
+  absl::StatusOr<RunSummary> run = client.Submit(loaded->spec, loaded->text);
+  if (!run.ok()) return ReportError(run.status(), io);
+  *run_id = run->id();
+  *io.out << run->id() << "\n" << std::flush;
+  return kExitOk;
+}
+
+int WatchCommand(RunClient& client, uint64_t run_id, Io& io) {
+  absl::StatusOr<skerry::v1::GetRunResponse> run = client.Get(run_id);
+  if (!run.ok()) return ReportError(run.status(), io);
+  WatchState state;
+  state.last = run->run();
+  state.max_generations = run->spec().stop().max_generations();
+  int failures = 0;
+  absl::Duration backoff = absl::Seconds(1);
+  while (!IsTerminal(state.last.state())) {
+    bool updated = false;
+    absl::Status status = client.Watch(run_id, [&](const RunSummary& summary) {
+      updated = true;
+      Draw(summary, state, io);
+    });
+    if (updated) {
+      failures = 0;
+      backoff = absl::Seconds(1);
+    }
+    if (status.ok() && IsTerminal(state.last.state())) break;
+    // The stream ended without the run ending: the coordinator went away (or
+    // shut down cleanly). Reconnect, a bounded number of times in a row.
+    if (!status.ok() && !absl::IsUnavailable(status)) {
+      EndLine(state, io);
+      return ReportError(status, io);
+    }
+    if (++failures > kWatchRetries) {
+      EndLine(state, io);
+      *io.err << "skerry: gave up watching run " << run_id << " after "
+              << kWatchRetries << " reconnection attempts\n";
+      return status.ok() ? kExitFailure : ReportError(status, io);
+    }
+    EndLine(state, io);
+    *io.err << "skerry: "
+            << (status.ok() ? "the watch stream ended early"
+                            : std::string(status.message()))
+            << "; retrying in " << absl::FormatDuration(backoff) << "\n";
+    Sleep(backoff, io);
+    backoff = std::min(backoff * 2, kWatchMaxBackoff);
+  }
+  EndLine(state, io);
+  *io.out << FormatFinalState(state.last) << std::flush;
+  return state.last.state() == skerry::v1::FAILED_RUN ? kExitFailure : kExitOk;
+}
+
+int ChampionCommand(RunClient& client, uint64_t run_id, bool json,
+                    const std::string& out_path, Io& io) {
+  absl::StatusOr<skerry::v1::GetRunResponse> run = client.Get(run_id);
+  if (!run.ok()) return ReportError(run.status(), io);
+  absl::StatusOr<skerry::v1::Genome> genome = client.Champion(run_id);
+  if (!genome.ok()) return ReportError(genome.status(), io);
+  const std::string& name = run->spec().name();
+  std::string text;
+  if (json) {
+    absl::StatusOr<std::string> encoded = ChampionJson(*genome, run_id, name);
+    if (!encoded.ok()) return ReportError(encoded.status(), io);
+    text = *std::move(encoded);
+  } else {
+    text = FormatChampion(*genome, name);
+  }
+  if (out_path.empty()) {
+    *io.out << text << std::flush;
+    return kExitOk;
+  }
+  absl::Status written = WriteFile(out_path, text);
+  if (!written.ok()) return ReportError(written, io);
+  *io.out << "champion of run " << run_id << " written to " << out_path << "\n";
+  return kExitOk;
+}
+
+int ListCommand(RunClient& client, Io& io) {
+  absl::StatusOr<std::vector<RunSummary>> runs = client.List();
+  if (!runs.ok()) return ReportError(runs.status(), io);
+  *io.out << FormatRunList(*runs, io.zone);
+  return kExitOk;
+}
+
+int ShowCommand(RunClient& client, uint64_t run_id, bool all_rows, Io& io) {
+  absl::StatusOr<skerry::v1::GetRunResponse> run = client.Get(run_id);
+  if (!run.ok()) return ReportError(run.status(), io);
+  auto history = client.History(run_id, std::nullopt);
+  if (!history.ok()) return ReportError(history.status(), io);
+  *io.out << FormatRunDetails(*run) << "\n"
+          << FormatGenerationTable(*history, run->run().objective(),
+                                   all_rows ? 0 : kDefaultHistoryRows);
+  return kExitOk;
+}
+
+int HistoryCommand(RunClient& client, uint64_t run_id,
+                   std::optional<uint32_t> island, Io& io) {
+  auto history = client.History(run_id, island);
+  if (!history.ok()) return ReportError(history.status(), io);
+  *io.out << FormatHistory(*history);
+  return kExitOk;
+}
+
+int DigestCommand(RunClient& client, uint64_t run_id, Io& io) {
+  absl::StatusOr<skerry::v1::DigestResponse> digest = client.Digest(run_id);
+  if (!digest.ok()) return ReportError(digest.status(), io);
+  *io.out << digest->sha256() << "  " << FormatCount(digest->genomes())
+          << " genomes\n";
+  return kExitOk;
+}
+
+int SteerCommand(RunClient& client, uint64_t run_id, absl::string_view action,
+                 Io& io) {
+  absl::StatusOr<RunSummary> run;
+  if (action == "pause") {
+    run = client.Pause(run_id);
+  } else if (action == "resume") {
+    run = client.Resume(run_id);
+  } else {
+    run = client.Stop(run_id);
+  }
+  if (!run.ok()) return ReportError(run.status(), io);
+  *io.out << "run " << run->id() << " " << RunStateName(run->state()) << "\n";
+  return kExitOk;
+}
+
+int RunCli(const std::vector<std::string>& args,
+           absl::string_view env_coordinator, const ClientFactory& factory,
+           Io& io) {
+  absl::StatusOr<ParsedArgs> parsed = ParseArgs(args, env_coordinator);
+  if (!parsed.ok()) {
+    // Name the command for the `--help` hint when it is a known one.
+    std::string command;
+    for (const std::string& arg : args) {
+      if (FindCommand(arg) != nullptr) {
+        command = arg;
+        break;
+      }
+    }
+    return UsageFailure(parsed.status(), command, io);
+  }
+  if (parsed->help || parsed->command == "help") return Help(*parsed, io);
+  if (parsed->command == "local") return LocalCommand(*parsed, io);
+  std::unique_ptr<RunClient> client = factory(parsed->coordinator);
+  return Dispatch(*parsed, *client, io);
+}
+
+}  // namespace skerry::cli

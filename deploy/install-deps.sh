@@ -1,0 +1,63 @@
+#!/usr/bin/env bash
+# Installs the Debian packages Skerry needs to build, test and run.
+#
+# Idempotent and non-interactive: asks dpkg-query which packages are missing and
+# installs only those, running `apt-get update` once first, and only when
+# something is missing. Uses sudo only when not already root.
+set -euo pipefail
+
+PACKAGES=(
+  build-essential
+  cmake
+  ninja-build
+  ccache
+  pkg-config
+  libgrpc++-dev
+  protobuf-compiler-grpc
+  libprotobuf-dev
+  protobuf-compiler
+  libabsl-dev
+  libsqlite3-dev
+  sqlite3
+  libgtest-dev
+  libgmock-dev
+  python3
+)
+
+installed() {
+  local status
+  status="$(dpkg-query -W -f='${db:Status-Status}' "$1" 2>/dev/null || true)"
+  [[ "${status}" == "installed" ]]
+}
+
+missing=()
+for package in "${PACKAGES[@]}"; do
+  if ! installed "${package}"; then
+    missing+=("${package}")
+  fi
+done
+
+if [[ ${#missing[@]} -eq 0 ]]; then
+  echo "install-deps: all ${#PACKAGES[@]} packages already installed"
+  exit 0
+fi
+
+if ! command -v apt-get >/dev/null 2>&1; then
+  echo "install-deps: missing packages (${missing[*]}) and no apt-get here;" \
+    "install them with your system's package manager" >&2
+  exit 1
+fi
+
+as_root=()
+if [[ "$(id -u)" -ne 0 ]]; then
+  if ! command -v sudo >/dev/null 2>&1; then
+    echo "install-deps: need root (or sudo) to install: ${missing[*]}" >&2
+    exit 1
+  fi
+  as_root=(sudo)
+fi
+
+echo "install-deps: installing ${missing[*]}"
+export DEBIAN_FRONTEND=noninteractive
+"${as_root[@]}" apt-get update
+"${as_root[@]}" apt-get install -y --no-install-recommends "${missing[@]}"

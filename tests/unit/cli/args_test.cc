@@ -1,0 +1,209 @@
+#include "cli/args.h"
+
+#include <string>
+#include <vector>
+
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+
+namespace skerry::cli {
+namespace {
+
+using ::testing::HasSubstr;
+
+absl::StatusOr<ParsedArgs> Parse(std::vector<std::string> args,
+                                 absl::string_view env = "") {
+  return ParseArgs(args, env);
+}
+
+TEST(ParseArgsTest, CoordinatorDefaultsToLoopbackPort7431) {
+  auto parsed = Parse({"list"});
+  ASSERT_TRUE(parsed.ok()) << parsed.status();
+  EXPECT_EQ(parsed->coordinator, "127.0.0.1:7431");
+  EXPECT_EQ(parsed->command, "list");
+}
+
+TEST(ParseArgsTest, EnvironmentOverridesDefaultAndFlagOverridesEnvironment) {
+  auto from_env = Parse({"list"}, "lab-3:9000");
+  ASSERT_TRUE(from_env.ok()) << from_env.status();
+  EXPECT_EQ(from_env->coordinator, "lab-3:9000");
+  auto from_flag = Parse({"--coordinator", "lab-4:9001", "list"}, "lab-3:9000");
+  ASSERT_TRUE(from_flag.ok()) << from_flag.status();
+  EXPECT_EQ(from_flag->coordinator, "lab-4:9001");
+  auto with_equals = Parse({"--coordinator=lab-5:1", "list"});
+  ASSERT_TRUE(with_equals.ok()) << with_equals.status();
+  EXPECT_EQ(with_equals->coordinator, "lab-5:1");
+}
+
+TEST(ParseArgsTest, CoordinatorAfterTheCommandIsAcceptedToo) {
+  auto parsed = Parse({"show", "4", "--coordinator", "h:2"});
+  ASSERT_TRUE(parsed.ok()) << parsed.status();
+  EXPECT_EQ(parsed->coordinator, "h:2");
+  EXPECT_EQ(parsed->positionals, std::vector<std::string>({"4"}));
+}
+
+TEST(ParseArgsTest, BadCoordinatorAddressIsAUsageErrorNamingIt) {
+  struct Case {
+    const char* address;
+  };
+  for (const Case& c : {Case{"nohost"}, Case{":7431"}, Case{"h:0"},
+                        Case{"h:65536"}, Case{"h:port"}}) {
+    SCOPED_TRACE(c.address);
+    auto parsed = Parse({"--coordinator", c.address, "list"});
+    ASSERT_FALSE(parsed.ok());
+    EXPECT_TRUE(absl::IsInvalidArgument(parsed.status()));
+    EXPECT_THAT(parsed.status().message(), HasSubstr(c.address));
+  }
+}
+
+TEST(ParseArgsTest, BadAddressFromEnvironmentSaysWhereItCameFrom) {
+  auto parsed = Parse({"list"}, "oops");
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(), HasSubstr("SKERRY_COORDINATOR"));
+}
+
+TEST(ParseArgsTest, FlagsTakeValuesWithSpaceOrEquals) {
+  auto parsed = Parse({"champion", "9", "--json", "--out=best.json"});
+  ASSERT_TRUE(parsed.ok()) << parsed.status();
+  EXPECT_TRUE(parsed->Has("json"));
+  EXPECT_EQ(parsed->Get("out"), "best.json");
+  auto spaced = Parse({"history", "9", "--island", "2"});
+  ASSERT_TRUE(spaced.ok()) << spaced.status();
+  EXPECT_EQ(spaced->Get("island"), "2");
+}
+
+TEST(ParseArgsTest, UnknownCommandIsRejected) {
+  auto parsed = Parse({"frobnicate"});
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(),
+              HasSubstr("unknown command 'frobnicate'"));
+}
+
+TEST(ParseArgsTest, NoCommandIsRejected) {
+  auto parsed = Parse({});
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(), HasSubstr("no command"));
+}
+
+TEST(ParseArgsTest, UnknownFlagIsRejectedWithTheCommandName) {
+  auto parsed = Parse({"show", "1", "--everything"});
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(),
+              HasSubstr("show: unknown option '--everything'"));
+}
+
+TEST(ParseArgsTest, SwitchWithValueIsRejected) {
+  auto parsed = Parse({"champion", "1", "--json=yes"});
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(), HasSubstr("--json takes no value"));
+}
+
+TEST(ParseArgsTest, FlagMissingItsValueIsRejected) {
+  auto parsed = Parse({"champion", "1", "--out"});
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(),
+              HasSubstr("--out needs a value: FILE"));
+}
+
+TEST(ParseArgsTest, MissingAndExtraPositionalsAreRejected) {
+  auto missing = Parse({"show"});
+  ASSERT_FALSE(missing.ok());
+  EXPECT_THAT(missing.status().message(), HasSubstr("missing argument RUN"));
+  auto extra = Parse({"show", "1", "2"});
+  ASSERT_FALSE(extra.ok());
+  EXPECT_THAT(extra.status().message(), HasSubstr("unexpected argument '2'"));
+  auto none_taken = Parse({"list", "x"});
+  ASSERT_FALSE(none_taken.ok());
+  EXPECT_THAT(none_taken.status().message(), HasSubstr("it takes none"));
+}
+
+TEST(ParseArgsTest, LocalRequiresWorkersAndDb) {
+  auto no_db = Parse({"local", "a.spec", "--workers", "2"});
+  ASSERT_FALSE(no_db.ok());
+  EXPECT_THAT(no_db.status().message(), HasSubstr("missing option --db FILE"));
+  auto full = Parse({"local", "a.spec", "--workers", "2", "--db", "x.db"});
+  ASSERT_TRUE(full.ok()) << full.status();
+  EXPECT_EQ(full->Get("workers"), "2");
+  EXPECT_EQ(full->Get("db"), "x.db");
+}
+
+TEST(ParseArgsTest, LocalIgnoresABadCoordinatorFromTheEnvironment) {
+  auto parsed = Parse({"local", "a.spec", "--workers", "1", "--db", "x.db"},
+                      "not-an-address");
+  EXPECT_TRUE(parsed.ok()) << parsed.status();
+}
+
+TEST(ParseArgsTest, HelpFlagWinsOverMissingArguments) {
+  auto parsed = Parse({"local", "--help"});
+  ASSERT_TRUE(parsed.ok()) << parsed.status();
+  EXPECT_TRUE(parsed->help);
+  EXPECT_EQ(parsed->command, "local");
+}
+
+TEST(ParseArgsTest, GlobalHelpMeansTheHelpCommand) {
+  auto parsed = Parse({"--help"});
+  ASSERT_TRUE(parsed.ok()) << parsed.status();
+  EXPECT_EQ(parsed->command, "help");
+}
+
+TEST(ParseArgsTest, DoubleDashEndsOptions) {
+  auto parsed = Parse({"submit", "--", "--odd-name.spec"});
+  ASSERT_TRUE(parsed.ok()) << parsed.status();
+  EXPECT_EQ(parsed->positionals, std::vector<std::string>({"--odd-name.spec"}));
+}
+
+TEST(ParseRunIdTest, AcceptsPositiveIntegersOnly) {
+  EXPECT_EQ(*ParseRunId("17"), 17u);
+  EXPECT_EQ(*ParseRunId("18446744073709551615"), 18446744073709551615ull);
+  for (const char* bad :
+       {"0", "", "-1", "+3", "1.5", "12x", " 4", "18446744073709551616"}) {
+    SCOPED_TRACE(bad);
+    auto id = ParseRunId(bad);
+    ASSERT_FALSE(id.ok());
+    EXPECT_THAT(id.status().message(), HasSubstr("RUN must be a run id"));
+  }
+}
+
+TEST(ParseBoundedUintTest, NamesTheFlagAndTheRange) {
+  EXPECT_EQ(*ParseBoundedUint("--workers", "4", 1, 256), 4u);
+  auto zero = ParseBoundedUint("--workers", "0", 1, 256);
+  ASSERT_FALSE(zero.ok());
+  EXPECT_EQ(zero.status().message(),
+            "--workers must be an integer in [1, 256]; got '0'");
+}
+
+TEST(HelpTest, GeneralHelpListsEveryCommand) {
+  std::string help = GeneralHelp();
+  for (const CommandSpec& command : Commands()) {
+    EXPECT_THAT(help, HasSubstr(std::string("  ") + command.name));
+  }
+  EXPECT_THAT(help, HasSubstr("SKERRY_COORDINATOR"));
+}
+
+TEST(HelpTest, CommandHelpShowsUsageWithRequiredAndOptionalFlags) {
+  std::string help = CommandHelp(*FindCommand("local"));
+  EXPECT_THAT(
+      help, HasSubstr("usage: skerry local SPEC_FILE --workers N --db FILE\n"));
+  std::string champion = CommandHelp(*FindCommand("champion"));
+  EXPECT_THAT(champion,
+              HasSubstr("usage: skerry champion RUN [--json] [--out FILE]\n"));
+}
+
+TEST(HelpTest, HelpLinesFitInEightyColumns) {
+  std::vector<std::string> texts = {GeneralHelp()};
+  for (const CommandSpec& command : Commands()) {
+    texts.push_back(CommandHelp(command));
+  }
+  for (const std::string& text : texts) {
+    size_t start = 0;
+    while (start < text.size()) {
+      size_t end = text.find('\n', start);
+      if (end == std::string::npos) end = text.size();
+      EXPECT_LE(end - start, 80u) << text.substr(start, end - start);
+      start = end + 1;
+    }
+  }
+}
+
+}  // namespace
+}  // namespace skerry::cli

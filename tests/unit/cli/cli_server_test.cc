@@ -1,0 +1,184 @@
+// The CLI against a real coordinator: over loopback TCP (port 0) with a real
+// gRPC channel, and `skerry local` with everything in one process.
+#include <cstdio>
+#include <fstream>
+#include <memory>
+#include <sstream>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
+#include "cli/client.h"
+#include "cli/commands.h"
+#include "common/clock.h"
+#include "gmock/gmock.h"
+#include "google/protobuf/struct.pb.h"
+#include "google/protobuf/util/json_util.h"
+#include "grpcpp/create_channel.h"
+#include "grpcpp/security/credentials.h"
+#include "gtest/gtest.h"
+#include "server/coordinator.h"
+#include "skerry/v1/fleet.grpc.pb.h"
+#include "skerry/v1/runs.grpc.pb.h"
+#include "worker/worker.h"
+
+namespace skerry::cli {
+namespace {
+
+using ::testing::HasSubstr;
+
+const std::string kQuickSpec =
+    std::string(SKERRY_EXAMPLES_DIR) + "/sphere-quick.spec";
+
+std::string FreshDb(const std::string& name) {
+  std::string path = ::testing::TempDir() + "/" + name;
+  for (const char* suffix : {"", "-wal", "-shm"}) {
+    std::remove((path + suffix).c_str());
+  }
+  return path;
+}
+
+struct Result {
+  int code;
+  std::string out;
+  std::string err;
+};
+
+Result Cli(const std::vector<std::string>& args) {
+  std::ostringstream out;
+  std::ostringstream err;
+  Io io;
+  io.out = &out;
+  io.err = &err;
+  ClientFactory factory = [](const std::string& target) {
+    auto channel =
+        grpc::CreateChannel(target, grpc::InsecureChannelCredentials());
+    return std::make_unique<RunClient>(skerry::v1::RunService::NewStub(channel),
+                                       target);
+  };
+  int code = RunCli(args, "", factory, io);
+  return {code, out.str(), err.str()};
+}
+
+// A coordinator on a free loopback port with one in-process worker.
+class CoordinatorFixture : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    server::CoordinatorOptions options;
+    options.db_path = FreshDb("cli_server_test.db");
+    options.listen_address = "127.0.0.1:0";
+    auto started = server::Coordinator::Start(options);
+    ASSERT_TRUE(started.ok()) << started.status();
+    coordinator_ = *std::move(started);
+    ASSERT_GT(coordinator_->port(), 0);
+    target_ = absl::StrCat("127.0.0.1:", coordinator_->port());
+    worker::WorkerOptions worker_options;
+    worker_options.name = "cli-test-worker";
+    worker_ = std::make_unique<worker::Worker>(
+        skerry::v1::FleetService::NewStub(coordinator_->InProcessChannel()),
+        worker_options, Clock::Real());
+    worker_thread_ = std::thread([this] { worker_->Run().IgnoreError(); });
+  }
+  void TearDown() override {
+    if (worker_ != nullptr) worker_->Stop();
+    if (worker_thread_.joinable()) worker_thread_.join();
+    if (coordinator_ != nullptr) coordinator_->Shutdown();
+  }
+
+  std::unique_ptr<server::Coordinator> coordinator_;
+  std::string target_;
+  std::unique_ptr<worker::Worker> worker_;
+  std::thread worker_thread_;
+};
+
+TEST_F(CoordinatorFixture, SubmitWatchShowHistoryAndChampionOverLoopback) {
+  Result submitted =
+      Cli({"--coordinator", target_, "submit", kQuickSpec, "--watch"});
+  ASSERT_EQ(submitted.code, kExitOk) << submitted.err;
+  std::vector<std::string> lines = absl::StrSplit(submitted.out, '\n');
+  uint64_t run = 0;
+  ASSERT_TRUE(absl::SimpleAtoi(lines[0], &run)) << submitted.out;
+  std::string id = absl::StrCat(run);
+  EXPECT_THAT(submitted.out,
+              HasSubstr(absl::StrCat("run ", id, " finished after")));
+
+  Result listed = Cli({"--coordinator", target_, "list"});
+  EXPECT_EQ(listed.code, kExitOk) << listed.err;
+  EXPECT_THAT(listed.out, HasSubstr("sphere-quick"));
+
+  Result shown = Cli({"--coordinator", target_, "show", id, "--all"});
+  EXPECT_EQ(shown.code, kExitOk) << shown.err;
+  EXPECT_THAT(shown.out, HasSubstr("state       finished\n"));
+  EXPECT_THAT(shown.out, HasSubstr("EVALS  ISLANDS\n"));
+
+  // sphere-quick.spec runs 5 generations on one island: header + 5 rows.
+  Result history =
+      Cli({"--coordinator", target_, "history", id, "--island", "0"});
+  EXPECT_EQ(history.code, kExitOk) << history.err;
+  std::vector<std::string> rows =
+      absl::StrSplit(history.out, '\n', absl::SkipEmpty());
+  EXPECT_EQ(rows.size(), 6u) << history.out;
+
+  Result champion = Cli({"--coordinator", target_, "champion", id, "--json"});
+  ASSERT_EQ(champion.code, kExitOk) << champion.err;
+  google::protobuf::Struct json;
+  ASSERT_TRUE(
+      google::protobuf::util::JsonStringToMessage(champion.out, &json).ok())
+      << champion.out;
+  EXPECT_EQ(json.fields().at("runId").string_value(), id);
+  EXPECT_EQ(json.fields().at("specName").string_value(), "sphere-quick");
+  const auto& genome = json.fields().at("genome").struct_value();
+  EXPECT_EQ(genome.fields().at("genes").list_value().values_size(), 3);
+}
+
+TEST_F(CoordinatorFixture, UnknownRunIsExitOneWithTheServersMessage) {
+  Result shown = Cli({"--coordinator", target_, "show", "999999"});
+  EXPECT_EQ(shown.code, kExitFailure);
+  EXPECT_THAT(shown.err, HasSubstr("skerry: GetRun: "));
+}
+
+TEST(CliWithoutCoordinatorTest, NothingListeningIsExitThree) {
+  // Take a free port from a coordinator, then shut it down.
+  server::CoordinatorOptions options;
+  options.db_path = FreshDb("cli_gone_test.db");
+  options.listen_address = "127.0.0.1:0";
+  auto started = server::Coordinator::Start(options);
+  ASSERT_TRUE(started.ok()) << started.status();
+  std::string target = absl::StrCat("127.0.0.1:", (*started)->port());
+  (*started)->Shutdown();
+  started->reset();
+  Result listed = Cli({"--coordinator", target, "list"});
+  EXPECT_EQ(listed.code, kExitUnreachable);
+  EXPECT_THAT(listed.err,
+              HasSubstr("cannot reach the coordinator at " + target));
+}
+
+TEST(CliLocalTest, LocalRunsTheSpecToItsEndAndPrintsTheChampion) {
+  std::string db = FreshDb("cli_local_test.db");
+  Result local = Cli({"local", kQuickSpec, "--workers", "2", "--db", db});
+  ASSERT_EQ(local.code, kExitOk) << local.err;
+  EXPECT_THAT(local.out, HasSubstr("finished after"));
+  EXPECT_THAT(local.out, HasSubstr("champion of run 1 \"sphere-quick\""));
+  EXPECT_THAT(local.out, HasSubstr("genes (3)"));
+}
+
+TEST(CliLocalTest, LocalRejectsABadSpecBeforeStartingAnything) {
+  std::string db = FreshDb("cli_local_bad.db");
+  Result local =
+      Cli({"local", "/nonexistent.spec", "--workers", "1", "--db", db});
+  EXPECT_EQ(local.code, kExitUsage);
+  EXPECT_THAT(local.err, HasSubstr("cannot read /nonexistent.spec"));
+  EXPECT_FALSE(std::ifstream(db).good());
+}
+
+TEST(CliLocalTest, LocalRejectsZeroWorkers) {
+  Result local = Cli({"local", kQuickSpec, "--workers", "0", "--db", "x.db"});
+  EXPECT_EQ(local.code, kExitUsage);
+  EXPECT_THAT(local.err, HasSubstr("--workers must be an integer in [1, 256]"));
+}
+
+}  // namespace
+}  // namespace skerry::cli
