@@ -1,0 +1,65 @@
+// Helpers for tests that look at a SQLite file from outside the store: raw
+// connections of the test's own, the file's bytes, readable status messages.
+//
+// Thread safety: each helper opens and closes its own connection.
+#ifndef SKERRY_TESTS_UNIT_SERVER_SQLITE_TEST_UTIL_H_
+#define SKERRY_TESTS_UNIT_SERVER_SQLITE_TEST_UTIL_H_
+
+#include <sqlite3.h>
+
+#include <fstream>
+#include <iterator>
+#include <string>
+
+#include "absl/status/status.h"
+#include "gtest/gtest.h"
+
+namespace skerry::testing {
+
+// The message as a std::string, so that a failed match prints it readably.
+inline std::string Message(const absl::Status& s) {
+  return std::string(s.message());
+}
+
+inline std::string ReadFileBytes(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  return std::string(std::istreambuf_iterator<char>(in),
+                     std::istreambuf_iterator<char>());
+}
+
+// Runs SQL on a raw connection of our own (not the store's).
+inline void RawExec(const std::string& path, const std::string& sql) {
+  sqlite3* db = nullptr;
+  ASSERT_EQ(sqlite3_open(path.c_str(), &db), SQLITE_OK);
+  char* err = nullptr;
+  const int rc = sqlite3_exec(db, sql.c_str(), nullptr, nullptr, &err);
+  EXPECT_EQ(rc, SQLITE_OK) << (err != nullptr ? err : "") << " in " << sql;
+  sqlite3_free(err);
+  sqlite3_close(db);
+}
+
+// The first column of the first row of `sql`, as text ("" when no row).
+inline std::string RawQuery(sqlite3* db, const std::string& sql) {
+  sqlite3_stmt* stmt = nullptr;
+  EXPECT_EQ(sqlite3_prepare_v2(db, sql.c_str(), -1, &stmt, nullptr), SQLITE_OK)
+      << sqlite3_errmsg(db);
+  std::string out;
+  if (sqlite3_step(stmt) == SQLITE_ROW) {
+    const unsigned char* t = sqlite3_column_text(stmt, 0);
+    if (t != nullptr) out = reinterpret_cast<const char*>(t);
+  }
+  sqlite3_finalize(stmt);
+  return out;
+}
+
+inline std::string RawQuery(const std::string& path, const std::string& sql) {
+  sqlite3* db = nullptr;
+  EXPECT_EQ(sqlite3_open(path.c_str(), &db), SQLITE_OK);
+  std::string out = RawQuery(db, sql);
+  sqlite3_close(db);
+  return out;
+}
+
+}  // namespace skerry::testing
+
+#endif  // SKERRY_TESTS_UNIT_SERVER_SQLITE_TEST_UTIL_H_

@@ -1,0 +1,180 @@
+// Tests for opening the store (server/store/store.h): schema versions, files
+// that are not ours, and the pragmas the header promises.
+#include <sqlite3.h>
+
+#include <fstream>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+#include "server/store/store.h"
+#include "tests/unit/server/sqlite_test_util.h"
+#include "tests/unit/server/temp_dir.h"
+
+namespace skerry::store {
+namespace {
+
+using skerry::testing::Message;
+using skerry::testing::RawExec;
+using skerry::testing::RawQuery;
+using skerry::testing::ReadFileBytes;
+using skerry::testing::TempDir;
+using ::testing::HasSubstr;
+
+class StoreOpenTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path());
+    ASSERT_TRUE(store.ok()) << store.status();
+    store_ = std::move(*store);
+  }
+
+  std::string path() const { return dir_.File("skerry.db"); }
+
+  TempDir dir_;
+  std::unique_ptr<Store> store_;
+};
+
+// ---- Opening and schema versions ----
+
+TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
+  absl::StatusOr<int> v = store_->SchemaVersion();
+  ASSERT_TRUE(v.ok()) << v.status();
+  EXPECT_EQ(*v, Store::kSchemaVersion);
+  store_.reset();
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  v = (*again)->SchemaVersion();
+  ASSERT_TRUE(v.ok()) << v.status();
+  EXPECT_EQ(*v, Store::kSchemaVersion);
+  EXPECT_EQ((*again)->path(), path());
+}
+
+TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
+  store_.reset();
+  const int newer = Store::kSchemaVersion + 1;
+  RawExec(path(), absl::StrCat("UPDATE schema_version SET version = ", newer));
+  const std::string before = ReadFileBytes(path());
+
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path());
+  ASSERT_FALSE(store.ok());
+  EXPECT_EQ(store.status().code(), absl::StatusCode::kFailedPrecondition)
+      << store.status();
+  EXPECT_THAT(Message(store.status()),
+              HasSubstr(absl::StrCat("version ", newer)));
+  EXPECT_THAT(Message(store.status()),
+              HasSubstr(absl::StrCat("version ", Store::kSchemaVersion)));
+  EXPECT_THAT(Message(store.status()), HasSubstr(path()));
+
+  EXPECT_EQ(RawQuery(path(), "SELECT max(version) FROM schema_version"),
+            absl::StrCat(newer));
+  EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
+}
+
+TEST(StoreForeignFileTest, ForeignTablesWithoutSchemaVersionAreRefused) {
+  TempDir dir;
+  const std::string path = dir.File("other.db");
+  RawExec(path,
+          "CREATE TABLE inventory (item TEXT, count INTEGER);"
+          "INSERT INTO inventory VALUES ('rope', 3);");
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+  EXPECT_EQ(store.status().code(), absl::StatusCode::kFailedPrecondition)
+      << store.status();
+  EXPECT_THAT(Message(store.status()), HasSubstr("schema_version"));
+  EXPECT_THAT(Message(store.status()), HasSubstr(path));
+  // The foreign data is still there and no table of ours was added.
+  EXPECT_EQ(RawQuery(path, "SELECT count FROM inventory WHERE item = 'rope'"),
+            "3");
+  EXPECT_EQ(RawQuery(path, "SELECT count(*) FROM sqlite_master"), "1");
+}
+
+// Refusing a database that is not ours must not modify it in any way.
+TEST(StoreForeignFileTest, ForeignDatabaseFileIsLeftByteForByteUnchanged) {
+  TempDir dir;
+  const std::string path = dir.File("other.db");
+  RawExec(path,
+          "CREATE TABLE inventory (item TEXT, count INTEGER);"
+          "INSERT INTO inventory VALUES ('rope', 3);");
+  const std::string before = ReadFileBytes(path);
+  ASSERT_EQ(RawQuery(path, "PRAGMA journal_mode"), "delete");
+
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+
+  EXPECT_EQ(RawQuery(path, "PRAGMA journal_mode"), "delete")
+      << "Store::Open switched a database it refused to WAL mode";
+  EXPECT_TRUE(ReadFileBytes(path) == before) << "the refused file changed";
+}
+
+TEST(StoreForeignFileTest, NonDatabaseFileIsRefusedWithClearError) {
+  TempDir dir;
+  const std::string path = dir.File("notes.txt");
+  const std::string text =
+      "These are the notes of a field trip, not a database. They go on for a "
+      "while so that the file is longer than a database header would be.\n";
+  {
+    std::ofstream out(path, std::ios::binary);
+    out << text << text << text;
+  }
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+  EXPECT_NE(store.status().code(), absl::StatusCode::kInternal)
+      << store.status();
+  EXPECT_THAT(Message(store.status()), HasSubstr("not a database"));
+  EXPECT_THAT(Message(store.status()), HasSubstr(path));
+  EXPECT_TRUE(ReadFileBytes(path) == text + text + text)
+      << "the refused file changed";
+}
+
+TEST(StoreForeignFileTest, MissingDirectoryIsRefusedNamingThePath) {
+  TempDir dir;
+  const std::string path = dir.File("no/such/dir/skerry.db");
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+  EXPECT_THAT(Message(store.status()), HasSubstr(path));
+}
+
+// ---- Pragmas ----
+
+// Captures the handle of every connection opened in this process, so the test
+// can ask the store's own connection for its per-connection pragmas.
+std::vector<sqlite3*>* OpenedConnections() {
+  static auto* v = new std::vector<sqlite3*>();
+  return v;
+}
+
+int CaptureConnection(sqlite3* db, const char** /*err*/,
+                      const sqlite3_api_routines* /*api*/) {
+  OpenedConnections()->push_back(db);
+  return SQLITE_OK;
+}
+
+TEST(StorePragmaTest, JournalModeIsWalAndSynchronousIsFull) {
+  TempDir dir;
+  const std::string path = dir.File("skerry.db");
+  OpenedConnections()->clear();
+  ASSERT_EQ(sqlite3_auto_extension(
+                reinterpret_cast<void (*)(void)>(&CaptureConnection)),
+            SQLITE_OK);
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  sqlite3_cancel_auto_extension(
+      reinterpret_cast<void (*)(void)>(&CaptureConnection));
+  ASSERT_TRUE(store.ok()) << store.status();
+  ASSERT_EQ(OpenedConnections()->size(), 1u);
+  sqlite3* conn = OpenedConnections()->front();
+
+  EXPECT_EQ(RawQuery(conn, "PRAGMA journal_mode"), "wal");
+  // synchronous: 0 OFF, 1 NORMAL, 2 FULL, 3 EXTRA (sqlite.org/pragma.html).
+  EXPECT_EQ(RawQuery(conn, "PRAGMA synchronous"), "2");
+  EXPECT_EQ(RawQuery(conn, "PRAGMA busy_timeout"), "5000");
+  EXPECT_EQ(RawQuery(conn, "PRAGMA foreign_keys"), "0");
+  // WAL is a property of the file: a fresh connection sees it too.
+  EXPECT_EQ(RawQuery(path, "PRAGMA journal_mode"), "wal");
+}
+
+}  // namespace
+}  // namespace skerry::store

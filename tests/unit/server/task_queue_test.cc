@@ -1,0 +1,354 @@
+// Tests for the task queue (server/scheduler/task_queue.h): leases and their
+// expiry on a fake clock, renewal, the result rule of Claim, pausing, the
+// round-robin across runs, and the long poll.
+#include "server/scheduler/task_queue.h"
+
+#include <map>
+#include <memory>
+#include <set>
+#include <thread>
+#include <vector>
+
+#include "absl/time/time.h"
+#include "common/clock.h"
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+
+namespace skerry::scheduler {
+namespace {
+
+using ::testing::ElementsAre;
+using ::testing::IsEmpty;
+
+constexpr absl::Duration kLease = absl::Seconds(10);
+constexpr absl::Duration kNoWait = absl::ZeroDuration();
+
+std::shared_ptr<const skerry::v1::EvaluatorSpec> Sphere() {
+  auto spec = std::make_shared<skerry::v1::EvaluatorSpec>();
+  spec->mutable_builtin()->set_function("sphere");
+  return spec;
+}
+
+// `count` tasks of run `run_id` with genome ids first, first + 1, ...
+std::vector<TaskInfo> Tasks(int64_t run_id, int64_t first, int count) {
+  std::vector<TaskInfo> out;
+  for (int i = 0; i < count; ++i) {
+    TaskInfo t;
+    t.genome_id = first + i;
+    t.run_id = run_id;
+    t.slot = static_cast<uint32_t>(i);
+    t.genes = {0.5 * i, -1.0};
+    t.eval_seed = 1000 + static_cast<uint64_t>(first + i);
+    t.evaluator = Sphere();
+    out.push_back(std::move(t));
+  }
+  return out;
+}
+
+std::vector<uint64_t> Ids(const std::vector<skerry::v1::Task>& tasks) {
+  std::vector<uint64_t> ids;
+  for (const skerry::v1::Task& t : tasks) ids.push_back(t.task_id());
+  return ids;
+}
+
+class TaskQueueTest : public ::testing::Test {
+ protected:
+  FakeClock clock_;
+  TaskQueue queue_{&clock_, kLease};
+};
+
+TEST_F(TaskQueueTest, LeaseCarriesEverythingNeededToEvaluate) {
+  queue_.Add(Tasks(7, 100, 1));
+  std::vector<skerry::v1::Task> got = queue_.Lease(1, 10, kNoWait);
+  ASSERT_EQ(got.size(), 1u);
+  EXPECT_EQ(got[0].task_id(), 100u);
+  EXPECT_EQ(got[0].run_id(), 7u);
+  EXPECT_EQ(got[0].attempt(), 1u);
+  EXPECT_THAT(got[0].genes(), ElementsAre(0.0, -1.0));
+  EXPECT_EQ(got[0].eval_seed(), 1100u);
+  EXPECT_EQ(got[0].evaluator().builtin().function(), "sphere");
+}
+
+TEST_F(TaskQueueTest, LeasedTasksAreNotOfferedTwice) {
+  queue_.Add(Tasks(1, 1, 5));
+  std::vector<skerry::v1::Task> first = queue_.Lease(1, 3, kNoWait);
+  std::vector<skerry::v1::Task> second = queue_.Lease(2, 10, kNoWait);
+  std::vector<skerry::v1::Task> third = queue_.Lease(3, 10, kNoWait);
+  EXPECT_THAT(Ids(first), ElementsAre(1, 2, 3));
+  EXPECT_THAT(Ids(second), ElementsAre(4, 5));
+  EXPECT_THAT(third, IsEmpty());
+  const TaskQueue::Counts c = queue_.counts();
+  EXPECT_EQ(c.queued, 0u);
+  EXPECT_EQ(c.leased, 5u);
+}
+
+TEST_F(TaskQueueTest, AddingAKnownGenomeIsIgnored) {
+  queue_.Add(Tasks(1, 1, 2));
+  queue_.Add(Tasks(1, 1, 3));  // 1 and 2 again, 3 new
+  EXPECT_EQ(queue_.counts().queued, 3u);
+  EXPECT_THAT(Ids(queue_.Lease(1, 10, kNoWait)), ElementsAre(1, 2, 3));
+}
+
+TEST_F(TaskQueueTest, ExpiredLeaseIsOfferedAgain) {
+  queue_.Add(Tasks(1, 1, 2));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);  // task 1
+  clock_.Advance(kLease - absl::Seconds(1));
+  EXPECT_THAT(Ids(queue_.Lease(2, 10, kNoWait)), ElementsAre(2));
+  clock_.Advance(absl::Seconds(2));  // task 1's lease has expired, not task 2's
+  std::vector<skerry::v1::Task> again = queue_.Lease(3, 10, kNoWait);
+  ASSERT_EQ(again.size(), 1u);
+  EXPECT_EQ(again[0].task_id(), 1u);
+  EXPECT_EQ(again[0].attempt(), 2u);
+}
+
+TEST_F(TaskQueueTest, AttemptsIncreaseWithEveryLease) {
+  queue_.Add(Tasks(1, 1, 1));
+  for (uint32_t attempt = 1; attempt <= 4; ++attempt) {
+    std::vector<skerry::v1::Task> got = queue_.Lease(attempt, 1, kNoWait);
+    ASSERT_EQ(got.size(), 1u) << "attempt " << attempt;
+    EXPECT_EQ(got[0].attempt(), attempt);
+    clock_.Advance(kLease + absl::Seconds(1));
+  }
+}
+
+TEST_F(TaskQueueTest, AttemptsContinueFromTheStoredCount) {
+  std::vector<TaskInfo> tasks = Tasks(1, 1, 1);
+  tasks[0].attempts = 2;  // two leases made by an earlier coordinator
+  queue_.Add(std::move(tasks));
+  std::vector<skerry::v1::Task> got = queue_.Lease(1, 1, kNoWait);
+  ASSERT_EQ(got.size(), 1u);
+  EXPECT_EQ(got[0].attempt(), 3u);
+}
+
+TEST_F(TaskQueueTest, RenewExtendsTheDeadlineForTheHolderOnly) {
+  queue_.Add(Tasks(1, 1, 2));
+  ASSERT_THAT(Ids(queue_.Lease(1, 1, kNoWait)), ElementsAre(1));
+  ASSERT_THAT(Ids(queue_.Lease(2, 1, kNoWait)), ElementsAre(2));
+  clock_.Advance(absl::Seconds(6));
+  queue_.Renew(1, {1});  // the holder renews its task: deadline now 16 s
+  queue_.Renew(1, {2});  // task 2 is held by worker 2: no effect
+  clock_.Advance(absl::Seconds(5));  // 11 s: only task 2's lease has expired
+  std::vector<skerry::v1::Task> got = queue_.Lease(3, 10, kNoWait);
+  EXPECT_THAT(Ids(got), ElementsAre(2));
+  clock_.Advance(absl::Seconds(6));  // 17 s: task 1's renewed lease expires
+  EXPECT_THAT(Ids(queue_.Lease(3, 10, kNoWait)), ElementsAre(1));
+}
+
+// ---- Claim: the result rule ----
+
+TEST_F(TaskQueueTest, SuccessFromTheHolderIsClaimed) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);
+  std::optional<TaskInfo> info =
+      queue_.Claim(1, 1, 1, /*failed_attempt=*/false);
+  ASSERT_TRUE(info.has_value());
+  EXPECT_EQ(info->genome_id, 1);
+  EXPECT_EQ(info->attempts, 1u);
+  EXPECT_EQ(queue_.counts().claimed, 1u);
+  EXPECT_EQ(queue_.counts().leased, 0u);
+}
+
+TEST_F(TaskQueueTest, SuccessFromAStaleHolderIsAcceptedWhileLeasedToAnother) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);
+  clock_.Advance(kLease + absl::Seconds(1));
+  ASSERT_EQ(queue_.Lease(2, 1, kNoWait).size(), 1u);  // attempt 2, worker 2
+  std::optional<TaskInfo> info =
+      queue_.Claim(1, 1, 1, /*failed_attempt=*/false);
+  EXPECT_TRUE(info.has_value());
+  // Worker 2's result is now a duplicate.
+  EXPECT_FALSE(queue_.Claim(2, 1, 2, false).has_value());
+}
+
+TEST_F(TaskQueueTest, SuccessFromAnExpiredLeaseIsAcceptedWhileQueued) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);
+  clock_.Advance(kLease + absl::Seconds(1));
+  // Expired leases are re-queued by the next Lease call; with the run paused
+  // that call hands nothing out, so the task is left queued.
+  queue_.SetPaused(1, true);
+  ASSERT_THAT(queue_.Lease(2, 1, kNoWait), IsEmpty());
+  ASSERT_EQ(queue_.counts().queued, 1u);
+  std::optional<TaskInfo> info =
+      queue_.Claim(1, 1, 1, /*failed_attempt=*/false);
+  EXPECT_TRUE(info.has_value());
+  EXPECT_EQ(queue_.counts().queued, 0u);
+  // Claimed while queued: it is not handed out any more.
+  queue_.SetPaused(1, false);
+  EXPECT_THAT(queue_.Lease(3, 10, kNoWait), IsEmpty());
+}
+
+TEST_F(TaskQueueTest, FailureFromAnExpiredLeaseIsIgnoredWhileQueued) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);
+  clock_.Advance(kLease + absl::Seconds(1));
+  queue_.SetPaused(1, true);
+  ASSERT_THAT(queue_.Lease(2, 1, kNoWait), IsEmpty());
+  EXPECT_FALSE(queue_.Claim(1, 1, 1, /*failed_attempt=*/true).has_value());
+  EXPECT_EQ(queue_.counts().queued, 1u);
+}
+
+TEST_F(TaskQueueTest, FailureFromAStaleLeaseIsIgnored) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);
+  clock_.Advance(kLease + absl::Seconds(1));
+  ASSERT_EQ(queue_.Lease(2, 1, kNoWait).size(), 1u);  // attempt 2, worker 2
+  EXPECT_FALSE(queue_.Claim(1, 1, 1, /*failed_attempt=*/true).has_value())
+      << "old holder, old attempt";
+  EXPECT_FALSE(queue_.Claim(1, 1, 2, true).has_value()) << "old holder";
+  EXPECT_FALSE(queue_.Claim(2, 1, 1, true).has_value()) << "old attempt";
+  EXPECT_EQ(queue_.counts().leased, 1u) << "the current lease is untouched";
+  EXPECT_TRUE(queue_.Claim(2, 1, 2, true).has_value()) << "current lease";
+}
+
+TEST_F(TaskQueueTest, FailureForAQueuedTaskIsIgnored) {
+  queue_.Add(Tasks(1, 1, 1));
+  EXPECT_FALSE(queue_.Claim(1, 1, 0, /*failed_attempt=*/true).has_value());
+  EXPECT_EQ(queue_.counts().queued, 1u);
+}
+
+TEST_F(TaskQueueTest, ClaimedTaskIsNotClaimableTwice) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);
+  ASSERT_TRUE(queue_.Claim(1, 1, 1, false).has_value());
+  EXPECT_FALSE(queue_.Claim(1, 1, 1, false).has_value());
+  EXPECT_FALSE(queue_.Claim(1, 1, 1, true).has_value());
+  EXPECT_FALSE(queue_.Claim(2, 1, 1, false).has_value());
+}
+
+TEST_F(TaskQueueTest, UnknownTaskIsNotClaimed) {
+  EXPECT_FALSE(queue_.Claim(1, 12345, 1, false).has_value());
+}
+
+TEST_F(TaskQueueTest, UnclaimQueuesTheTaskAgain) {
+  queue_.Add(Tasks(1, 1, 2));
+  ASSERT_THAT(Ids(queue_.Lease(1, 1, kNoWait)), ElementsAre(1));
+  ASSERT_TRUE(queue_.Claim(1, 1, 1, true).has_value());
+  queue_.Unclaim({1});
+  EXPECT_EQ(queue_.counts().queued, 2u);
+  EXPECT_EQ(queue_.counts().claimed, 0u);
+  // Re-queued at the front, with the next attempt number.
+  std::vector<skerry::v1::Task> got = queue_.Lease(2, 1, kNoWait);
+  ASSERT_EQ(got.size(), 1u);
+  EXPECT_EQ(got[0].task_id(), 1u);
+  EXPECT_EQ(got[0].attempt(), 2u);
+}
+
+TEST_F(TaskQueueTest, CompleteForgetsTheTask) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);
+  ASSERT_TRUE(queue_.Claim(1, 1, 1, false).has_value());
+  queue_.Complete({1});
+  const TaskQueue::Counts c = queue_.counts();
+  EXPECT_EQ(c.queued + c.leased + c.claimed, 0u);
+  EXPECT_FALSE(queue_.Claim(1, 1, 1, false).has_value());
+  clock_.Advance(kLease * 3);
+  EXPECT_THAT(queue_.Lease(1, 10, kNoWait), IsEmpty());
+}
+
+TEST_F(TaskQueueTest, CompleteIgnoresTasksThatAreNotClaimed) {
+  queue_.Add(Tasks(1, 1, 2));
+  ASSERT_THAT(Ids(queue_.Lease(1, 1, kNoWait)), ElementsAre(1));
+  queue_.Complete({1, 2});
+  EXPECT_EQ(queue_.counts().leased, 1u);
+  EXPECT_EQ(queue_.counts().queued, 1u);
+}
+
+// ---- Removal, pausing, fairness ----
+
+TEST_F(TaskQueueTest, RemovedTasksAreNotOffered) {
+  queue_.Add(Tasks(1, 1, 3));
+  queue_.Add(Tasks(2, 10, 2));
+  ASSERT_THAT(Ids(queue_.Lease(1, 1, kNoWait)), ElementsAre(1));
+  queue_.Remove({1, 2});
+  queue_.RemoveRun(2);
+  EXPECT_THAT(Ids(queue_.Lease(1, 10, kNoWait)), ElementsAre(3));
+  queue_.Remove({3});  // a leased task: its lease goes with it
+  clock_.Advance(kLease * 2);
+  EXPECT_THAT(queue_.Lease(1, 10, kNoWait), IsEmpty());
+  EXPECT_FALSE(queue_.Claim(1, 1, 1, false).has_value());
+}
+
+TEST_F(TaskQueueTest, PausedRunsAreNotLeased) {
+  queue_.Add(Tasks(1, 1, 2));
+  queue_.Add(Tasks(2, 10, 2));
+  queue_.SetPaused(1, true);
+  EXPECT_THAT(Ids(queue_.Lease(1, 10, kNoWait)), ElementsAre(10, 11));
+  EXPECT_THAT(queue_.Lease(1, 10, kNoWait), IsEmpty());
+  EXPECT_EQ(queue_.counts().queued, 2u) << "a paused run's tasks stay queued";
+  queue_.SetPaused(1, false);
+  EXPECT_THAT(Ids(queue_.Lease(1, 10, kNoWait)), ElementsAre(1, 2));
+}
+
+TEST_F(TaskQueueTest, PausedRunWithWaitReturnsEmptyAfterTheWait) {
+  queue_.Add(Tasks(1, 1, 2));
+  queue_.SetPaused(1, true);
+  EXPECT_THAT(queue_.Lease(1, 10, absl::Milliseconds(20)), IsEmpty());
+}
+
+TEST_F(TaskQueueTest, RoundRobinServesASmallRunBesideAHugeOne) {
+  queue_.Add(Tasks(1, 1, 100));
+  queue_.Add(Tasks(2, 1000, 2));
+  std::vector<skerry::v1::Task> got = queue_.Lease(1, 4, kNoWait);
+  ASSERT_EQ(got.size(), 4u);
+  std::map<uint64_t, int> per_run;
+  for (const skerry::v1::Task& t : got) ++per_run[t.run_id()];
+  EXPECT_EQ(per_run[1], 2);
+  EXPECT_EQ(per_run[2], 2);
+  // Once the small run is drained, the big one gets everything.
+  std::vector<skerry::v1::Task> rest = queue_.Lease(1, 10, kNoWait);
+  ASSERT_EQ(rest.size(), 10u);
+  for (const skerry::v1::Task& t : rest) EXPECT_EQ(t.run_id(), 1u);
+}
+
+TEST_F(TaskQueueTest, RoundRobinContinuesAcrossLeaseCalls) {
+  queue_.Add(Tasks(1, 1, 10));
+  queue_.Add(Tasks(2, 100, 10));
+  queue_.Add(Tasks(3, 200, 10));
+  std::map<uint64_t, int> per_run;
+  for (int i = 0; i < 6; ++i) {
+    std::vector<skerry::v1::Task> got = queue_.Lease(1, 1, kNoWait);
+    ASSERT_EQ(got.size(), 1u);
+    ++per_run[got[0].run_id()];
+  }
+  EXPECT_EQ(per_run[1], 2);
+  EXPECT_EQ(per_run[2], 2);
+  EXPECT_EQ(per_run[3], 2);
+}
+
+TEST_F(TaskQueueTest, ZeroMaxTasksLeasesNothing) {
+  queue_.Add(Tasks(1, 1, 2));
+  EXPECT_THAT(queue_.Lease(1, 0, absl::Seconds(30)), IsEmpty());
+  EXPECT_EQ(queue_.counts().queued, 2u);
+}
+
+// ---- The long poll ----
+
+TEST_F(TaskQueueTest,
+       LeaseWithWaitReturnsEmptyAfterTheWaitWhenNothingIsQueued) {
+  EXPECT_THAT(queue_.Lease(1, 10, absl::Milliseconds(30)), IsEmpty());
+}
+
+TEST_F(TaskQueueTest, WaitingLeaseWakesWhenATaskArrives) {
+  std::vector<skerry::v1::Task> got;
+  std::thread waiter([&] { got = queue_.Lease(1, 10, absl::Seconds(30)); });
+  queue_.Add(Tasks(1, 1, 1));
+  waiter.join();
+  // Either the waiter saw the task or it gave up after 30 s; only the first is
+  // plausible, but no time is asserted.
+  EXPECT_THAT(Ids(got), ElementsAre(1));
+}
+
+TEST_F(TaskQueueTest, WaitingLeaseReturnsWhenShutdownIsCalled) {
+  std::vector<skerry::v1::Task> got;
+  std::thread waiter([&] { got = queue_.Lease(1, 10, absl::Seconds(30)); });
+  queue_.Shutdown();
+  waiter.join();
+  EXPECT_THAT(got, IsEmpty());
+  // Later calls return at once, even with work queued.
+  queue_.Add(Tasks(1, 1, 1));
+  EXPECT_THAT(queue_.Lease(1, 10, absl::Seconds(30)), IsEmpty());
+}
+
+}  // namespace
+}  // namespace skerry::scheduler
