@@ -147,6 +147,18 @@ grpc::Status RunServiceImpl::GetHistory(grpc::ServerContext* ctx,
   return grpc::Status::OK;
 }
 
+grpc::Status RunServiceImpl::GetDigest(grpc::ServerContext* ctx,
+                                       const skerry::v1::RunRef* req,
+                                       skerry::v1::DigestResponse* resp) {
+  absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
+  if (!rec.ok()) return ToGrpc(rec.status());
+  absl::StatusOr<store::Store::Digest> d = store_->RunDigest(rec->id);
+  if (!d.ok()) return ToGrpc(d.status());
+  resp->set_sha256(d->sha256);
+  resp->set_genomes(d->genomes);
+  return grpc::Status::OK;
+}
+
 grpc::Status RunServiceImpl::WatchRun(
     grpc::ServerContext* ctx, const skerry::v1::WatchRunRequest* req,
     grpc::ServerWriter<skerry::v1::RunSummary>* writer) {

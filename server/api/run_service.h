@@ -43,6 +43,8 @@ class RunServiceImpl final : public skerry::v1::RunService::Service {
   grpc::Status GetHistory(grpc::ServerContext* ctx,
                           const skerry::v1::GetHistoryRequest* req,
                           skerry::v1::GetHistoryResponse* resp) override;
+  grpc::Status GetDigest(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+                         skerry::v1::DigestResponse* resp) override;
   grpc::Status WatchRun(grpc::ServerContext* ctx,
                         const skerry::v1::WatchRunRequest* req,
                         grpc::ServerWriter<skerry::v1::RunSummary>* writer) override;

@@ -314,7 +314,9 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
       store::ResultUpdate u;
       u.genome_id = info->genome_id;
       u.run_id = info->run_id;
-      u.attempts = info->attempts;
+      // A result from a lease that an earlier coordinator handed out quotes
+      // that lease's attempt; this queue may not have counted it.
+      u.attempts = std::max({info->attempts, r.attempt(), 1u});
       u.eval_seconds = r.eval_seconds();
       if (failed) {
         u.error = !r.error().empty()

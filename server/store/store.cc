@@ -1,9 +1,12 @@
 #include "server/store/store.h"
 
+#include <cstring>
+#include <map>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
+#include "common/sha256.h"
 #include "common/status_macros.h"
 
 namespace skerry::store {
@@ -154,59 +157,68 @@ absl::StatusOr<GenomeRecord> ReadGenome(const Statement& s) {
 }  // namespace
 
 absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path) {
-  SKERRY_ASSIGN_OR_RETURN(auto conn, Connection::Open(path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE |
-                                       SQLITE_OPEN_FULLMUTEX));
-  sqlite3_busy_timeout(conn->raw(), 5000);
-  // WAL first: it is a property of the file and survives reopening.
-  absl::StatusOr<Statement> wal = conn->Prepare("PRAGMA journal_mode=WAL");
-  if (!wal.ok()) return wal.status();
+  auto with_path = [&path](const absl::Status& s) {
+    return absl::Status(s.code(), absl::StrCat(path, ": ", s.message()));
+  };
+  absl::StatusOr<std::unique_ptr<Connection>> conn = Connection::Open(
+      path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX);
+  if (!conn.ok()) return conn.status();  // already names the path
+  sqlite3_busy_timeout((*conn)->raw(), 5000);
+  std::unique_ptr<Store> store(new Store(path, std::move(*conn)));
+  absl::MutexLock l(&store->mu_);
+  // Check the file is ours and not newer before changing anything in it.
+  absl::StatusOr<int> version = store->StoredVersion();
+  if (!version.ok()) return with_path(version.status());
+  // WAL is a property of the file and survives reopening.
+  absl::StatusOr<Statement> wal = store->conn_->Prepare("PRAGMA journal_mode=WAL");
+  if (!wal.ok()) return with_path(wal.status());
   absl::StatusOr<bool> row = wal->Step();
-  if (!row.ok()) {
-    return absl::Status(row.status().code(),
-                        absl::StrCat(path, ": ", row.status().message()));
-  }
+  if (!row.ok()) return with_path(row.status());
   if (!*row || wal->ColumnText(0) != "wal") {
     return absl::FailedPreconditionError(
         absl::StrCat(path, ": could not switch the database to WAL mode"));
   }
-  wal = Statement();
-  SKERRY_RETURN_IF_ERROR(conn->Exec("PRAGMA synchronous=FULL"));
-  std::unique_ptr<Store> store(new Store(path, std::move(conn)));
-  {
-    absl::MutexLock l(&store->mu_);
-    absl::Status s = store->Migrate();
-    if (!s.ok()) {
-      return absl::Status(s.code(), absl::StrCat(path, ": ", s.message()));
-    }
-  }
+  *wal = Statement();
+  absl::Status s = store->conn_->Exec("PRAGMA synchronous=FULL");
+  if (s.ok()) s = store->Migrate(*version);
+  if (!s.ok()) return with_path(s);
   return store;
 }
 
-absl::Status Store::Migrate() {
-  int version = 0;
-  {
-    SKERRY_ASSIGN_OR_RETURN(auto probe, conn_->Prepare("SELECT count(*) FROM sqlite_master WHERE "
-                              "type = 'table' AND name = 'schema_version'"));
-    SKERRY_ASSIGN_OR_RETURN(auto has_row, probe.Step());
-    if (has_row && probe.ColumnInt(0) > 0) {
-      SKERRY_ASSIGN_OR_RETURN(auto v, conn_->Prepare("SELECT max(version) FROM schema_version"));
-      SKERRY_ASSIGN_OR_RETURN(auto v_row, v.Step());
-      if (v_row) version = static_cast<int>(v.ColumnInt(0));
-    } else {
-      SKERRY_ASSIGN_OR_RETURN(auto any, conn_->Prepare("SELECT count(*) FROM sqlite_master"));
-      SKERRY_ASSIGN_OR_RETURN(auto any_row, any.Step());
-      if (any_row && any.ColumnInt(0) > 0) {
-        return absl::FailedPreconditionError(
-            "not a Skerry database: it has tables but no schema_version");
-      }
+absl::StatusOr<int> Store::StoredVersion() {
+  SKERRY_ASSIGN_OR_RETURN(
+      auto probe, conn_->Prepare("SELECT count(*) FROM sqlite_master WHERE "
+                                 "type = 'table' AND name = 'schema_version'"));
+  SKERRY_ASSIGN_OR_RETURN(bool has_row, probe.Step());
+  if (!has_row || probe.ColumnInt(0) == 0) {
+    SKERRY_ASSIGN_OR_RETURN(auto any,
+                            conn_->Prepare("SELECT count(*) FROM sqlite_master"));
+    SKERRY_ASSIGN_OR_RETURN(bool any_row, any.Step());
+    if (any_row && any.ColumnInt(0) > 0) {
+      return absl::FailedPreconditionError(
+          "not a Skerry database: it has tables but no schema_version "
+          "(nothing was changed)");
     }
+    return 0;  // empty: a new database
   }
+  SKERRY_ASSIGN_OR_RETURN(auto v,
+                          conn_->Prepare("SELECT max(version) FROM schema_version"));
+  SKERRY_ASSIGN_OR_RETURN(bool v_row, v.Step());
+  if (!v_row || v.ColumnIsNull(0)) {
+    return absl::DataLossError(
+        "schema_version is empty: the database is damaged (nothing was changed)");
+  }
+  const int version = static_cast<int>(v.ColumnInt(0));
   if (version > kSchemaVersion) {
     return absl::FailedPreconditionError(absl::StrCat(
         "database schema version ", version,
         " is newer than this program's version ", kSchemaVersion,
         "; use a newer Skerry (nothing was changed)"));
   }
+  return version;
+}
+
+absl::Status Store::Migrate(int version) {
   if (version == kSchemaVersion) return absl::OkStatus();
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   for (int v = version; v < kSchemaVersion; ++v) {
@@ -296,11 +308,11 @@ absl::Status Store::CreateRun(RunRecord* run,
 absl::Status Store::CommitResults(absl::Span<const ResultUpdate> results) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
-  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE genomes SET eval_state = ?, score = ?, "
-                          "attempts = ?, error = ?, eval_seconds = ? "
-                          "WHERE id = ? AND eval_state = 1"));
-  SKERRY_ASSIGN_OR_RETURN(auto cnt, conn_->Prepare("UPDATE runs SET evaluations = evaluations + 1 "
-                          "WHERE id = ?"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto upd, conn_->Prepare("UPDATE genomes SET eval_state = ?, score = ?, "
+                               "attempts = ?, error = ?, eval_seconds = ? "
+                               "WHERE id = ? AND eval_state = 1"));
+  std::map<int64_t, int64_t> finished_per_run;
   for (const ResultUpdate& r : results) {
     upd.BindInt(1, r.state);
     if (r.state == skerry::v1::EVALUATED) {
@@ -317,10 +329,15 @@ absl::Status Store::CommitResults(absl::Span<const ResultUpdate> results) {
       return absl::FailedPreconditionError(absl::StrCat(
           "genome ", r.genome_id, " is not pending; batch not applied"));
     }
-    if (r.state != skerry::v1::PENDING) {
-      cnt.BindInt(1, r.run_id);
-      SKERRY_RETURN_IF_ERROR(cnt.Run());
-    }
+    if (r.state != skerry::v1::PENDING) ++finished_per_run[r.run_id];
+  }
+  SKERRY_ASSIGN_OR_RETURN(
+      auto cnt, conn_->Prepare("UPDATE runs SET evaluations = evaluations + ? "
+                               "WHERE id = ?"));
+  for (const auto& [run_id, n] : finished_per_run) {
+    cnt.BindInt(1, n);
+    cnt.BindInt(2, run_id);
+    SKERRY_RETURN_IF_ERROR(cnt.Run());
   }
   return txn.Commit();
 }
@@ -346,6 +363,16 @@ absl::Status Store::InsertStats(const StatsRecord& s) {
 
 absl::Status Store::CommitGeneration(const GenerationCommit& c) {
   absl::MutexLock l(&mu_);
+  // Not synced (see "Pragmas" in store.h): a generation is never acknowledged
+  // to anyone, can be bred again from the one before, and the next synced
+  // commit makes it durable, since the WAL is synced in order.
+  SKERRY_RETURN_IF_ERROR(conn_->Exec("PRAGMA synchronous=NORMAL"));
+  absl::Status s = CommitGenerationLocked(c);
+  absl::Status restore = conn_->Exec("PRAGMA synchronous=FULL");
+  return s.ok() ? restore : s;
+}
+
+absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   SKERRY_RETURN_IF_ERROR(InsertStats(c.completed));
   uint32_t generation = c.completed.generation;
@@ -627,6 +654,44 @@ absl::StatusOr<int> Store::CountWorkersSeenSince(int64_t since_ms) {
   s.BindInt(1, since_ms);
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
   return row ? static_cast<int>(s.ColumnInt(0)) : 0;
+}
+
+absl::StatusOr<Store::Digest> Store::RunDigest(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s,
+      conn_->Prepare(
+          "SELECT g.island, g.generation, g.slot, g.origin, pa.island, "
+          "pa.generation, pa.slot, pb.island, pb.generation, pb.slot, g.genes, "
+          "g.eval_state, g.score FROM genomes g "
+          "LEFT JOIN genomes pa ON pa.id = g.parent_a "
+          "LEFT JOIN genomes pb ON pb.id = g.parent_b "
+          "WHERE g.run_id = ? ORDER BY g.island, g.generation, g.slot"));
+  s.BindInt(1, run_id);
+  Sha256 h;
+  Digest d;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (!row) break;
+    for (int c = 0; c < 4; ++c) h.UpdateU32(static_cast<uint32_t>(s.ColumnInt(c)));
+    for (int c = 4; c < 10; ++c) {
+      h.UpdateU32(s.ColumnIsNull(c) ? 0xFFFFFFFFu
+                                    : static_cast<uint32_t>(s.ColumnInt(c)));
+    }
+    const std::string genes = s.ColumnBlob(10);
+    h.UpdateU32(static_cast<uint32_t>(genes.size() / 8));
+    h.Update(genes);
+    h.UpdateU32(static_cast<uint32_t>(s.ColumnInt(11)));
+    uint64_t bits = 0;
+    if (!s.ColumnIsNull(12)) {
+      const double score = s.ColumnDouble(12);
+      std::memcpy(&bits, &score, 8);
+    }
+    h.UpdateU64(bits);
+    ++d.genomes;
+  }
+  d.sha256 = h.FinishHex();
+  return d;
 }
 
 }  // namespace skerry::store

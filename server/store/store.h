@@ -35,7 +35,11 @@
 //                        one append to the log
 //   synchronous=FULL     the WAL is synced at every commit: an acknowledged result
 //                        survives power loss, not only a process crash. Group commit
-//                        makes this cheap per result.
+//                        makes this cheap per result. CommitGeneration alone runs
+//                        with synchronous=NORMAL: nobody is answered on it, it can
+//                        be bred again from the generation before, and the WAL is
+//                        synced in order, so the next synced commit (the first
+//                        result of that generation, say) makes it durable too.
 //   busy_timeout=5000    a backup or a second reader may hold a lock briefly
 //   foreign_keys=OFF     parent links are checked by `--check`, not per insert
 //
@@ -199,12 +203,23 @@ class Store {
   // the lowest island, then the lowest slot.
   absl::StatusOr<std::optional<GenomeRecord>> BestGenome(int64_t run_id);
   absl::StatusOr<int> CountWorkersSeenSince(int64_t since_ms);
+  // The run digest documented with DigestResponse in runs.proto.
+  struct Digest {
+    std::string sha256;
+    uint64_t genomes = 0;
+  };
+  absl::StatusOr<Digest> RunDigest(int64_t run_id);
   absl::StatusOr<int> SchemaVersion();
 
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
       : path_(std::move(path)), conn_(std::move(conn)) {}
-  absl::Status Migrate() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The schema version stored (0 for an empty file); refuses foreign, damaged
+  // and newer databases without writing anything.
+  absl::StatusOr<int> StoredVersion() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status Migrate(int from_version) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status CommitGenerationLocked(const GenerationCommit& commit)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status InsertGenomes(std::vector<GenomeRecord>* genomes)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status InsertStats(const StatsRecord& stats)

@@ -1,0 +1,184 @@
+#include "tests/support/process.h"
+
+#include <fcntl.h>
+#include <signal.h>
+#include <stdlib.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <cstring>
+#include <fstream>
+#include <sstream>
+
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+
+namespace skerry::testing {
+
+TempDir::TempDir() {
+  const char* base = getenv("TMPDIR");
+  std::string tmpl = absl::StrCat(base != nullptr ? base : "/tmp", "/skerry-test-XXXXXX");
+  std::vector<char> buf(tmpl.begin(), tmpl.end());
+  buf.push_back('\0');
+  const char* made = mkdtemp(buf.data());
+  path_ = made != nullptr ? made : "/tmp";
+}
+
+TempDir::~TempDir() {
+  if (path_ == "/tmp" || path_.empty()) return;
+  const std::string cmd = absl::StrCat("rm -rf '", path_, "'");
+  if (system(cmd.c_str()) != 0) {
+    // Best effort: a leftover folder in /tmp is harmless.
+  }
+}
+
+absl::StatusOr<Process> Process::Start(const std::vector<std::string>& argv,
+                                       const std::string& log_path) {
+  const int fd = open(log_path.c_str(), O_WRONLY | O_CREAT | O_APPEND, 0644);
+  if (fd < 0) {
+    return absl::InternalError(absl::StrCat("cannot open ", log_path, ": ",
+                                            std::strerror(errno)));
+  }
+  const pid_t pid = fork();
+  if (pid < 0) {
+    close(fd);
+    return absl::InternalError(absl::StrCat("fork: ", std::strerror(errno)));
+  }
+  if (pid == 0) {
+    dup2(fd, 1);
+    dup2(fd, 2);
+    close(fd);
+    // Children must not inherit a blocked signal mask from test threads.
+    sigset_t none;
+    sigemptyset(&none);
+    sigprocmask(SIG_SETMASK, &none, nullptr);
+    std::vector<char*> args;
+    for (const std::string& a : argv) args.push_back(const_cast<char*>(a.c_str()));
+    args.push_back(nullptr);
+    execv(args[0], args.data());
+    _exit(127);
+  }
+  close(fd);
+  return Process(pid, log_path);
+}
+
+Process::Process(Process&& other) noexcept { *this = std::move(other); }
+
+Process& Process::operator=(Process&& other) noexcept {
+  if (this != &other) {
+    if (pid_ > 0) Kill();
+    pid_ = other.pid_;
+    log_path_ = std::move(other.log_path_);
+    other.pid_ = -1;
+  }
+  return *this;
+}
+
+Process::~Process() {
+  if (pid_ > 0) Kill();
+}
+
+void Process::Signal(int sig) {
+  if (pid_ > 0) kill(pid_, sig);
+}
+
+absl::StatusOr<int> Process::Wait(absl::Duration timeout) {
+  if (pid_ <= 0) return absl::FailedPreconditionError("no process");
+  const absl::Time give_up = absl::Now() + timeout;
+  while (true) {
+    int status = 0;
+    const pid_t r = waitpid(pid_, &status, WNOHANG);
+    if (r == pid_) {
+      pid_ = -1;
+      if (WIFEXITED(status)) return WEXITSTATUS(status);
+      if (WIFSIGNALED(status)) return 128 + WTERMSIG(status);
+      return -1;
+    }
+    if (absl::Now() >= give_up) {
+      return absl::DeadlineExceededError("process still running");
+    }
+    absl::SleepFor(absl::Milliseconds(20));
+  }
+}
+
+void Process::Kill() {
+  if (pid_ <= 0) return;
+  kill(pid_, SIGCONT);  // a stopped process cannot be reaped otherwise
+  kill(pid_, SIGKILL);
+  int status = 0;
+  waitpid(pid_, &status, 0);
+  pid_ = -1;
+}
+
+std::string Process::Log() const {
+  std::ifstream in(log_path_);
+  std::stringstream ss;
+  ss << in.rdbuf();
+  return ss.str();
+}
+
+CommandResult RunCommand(const std::vector<std::string>& argv,
+                         absl::Duration timeout) {
+  static int counter = 0;
+  const std::string log =
+      absl::StrCat("/tmp/skerry-cmd-", getpid(), "-", counter++, ".log");
+  unlink(log.c_str());
+  CommandResult out;
+  absl::StatusOr<Process> p = Process::Start(argv, log);
+  if (!p.ok()) {
+    out.output = std::string(p.status().message());
+    return out;
+  }
+  absl::StatusOr<int> code = p->Wait(timeout);
+  out.exit_code = code.ok() ? *code : -1;
+  if (!code.ok()) p->Kill();
+  out.output = p->Log();
+  unlink(log.c_str());
+  return out;
+}
+
+std::string StartedCoordinator::address() const {
+  return absl::StrCat("127.0.0.1:", port);
+}
+
+absl::StatusOr<StartedCoordinator> StartCoordinator(
+    const std::string& binary, const std::string& db, const std::string& log,
+    const std::vector<std::string>& extra_flags) {
+  std::vector<std::string> argv = {binary, "--db", db, "--listen",
+                                   "127.0.0.1:0"};
+  argv.insert(argv.end(), extra_flags.begin(), extra_flags.end());
+  unlink(log.c_str());
+  absl::StatusOr<Process> p = Process::Start(argv, log);
+  if (!p.ok()) return p.status();
+  StartedCoordinator c{std::move(*p), 0};
+  const std::string marker = "listening on port ";
+  const bool up = WaitFor(
+      [&] {
+        const std::string text = c.process.Log();
+        const size_t at = text.find(marker);
+        if (at == std::string::npos) return false;
+        size_t end = at + marker.size();
+        while (end < text.size() && isdigit(static_cast<unsigned char>(text[end]))) ++end;
+        return absl::SimpleAtoi(text.substr(at + marker.size(), end - at - marker.size()),
+                                &c.port) &&
+               c.port > 0;
+      },
+      absl::Seconds(30));
+  if (!up) {
+    return absl::UnavailableError(
+        absl::StrCat("coordinator did not start:\n", c.process.Log()));
+  }
+  return c;
+}
+
+bool WaitFor(const std::function<bool()>& condition, absl::Duration timeout) {
+  const absl::Time give_up = absl::Now() + timeout;
+  while (true) {
+    if (condition()) return true;
+    if (absl::Now() >= give_up) return false;
+    absl::SleepFor(absl::Milliseconds(50));
+  }
+}
+
+}  // namespace skerry::testing
