@@ -160,7 +160,10 @@ class Worker::Impl {
   // it.
   class ScopedCall {
    public:
-    ScopedCall(Impl* impl, grpc::ClientContext* context);
+    // A cancellable call is cancelled by Stop(). A Report is not: cancelling
+    // it could lose the answer to a report the coordinator already committed,
+    // and the results would be sent twice; it ends within its deadline.
+    ScopedCall(Impl* impl, grpc::ClientContext* context, bool cancellable = true);
     ~ScopedCall();
 
    private:
@@ -198,8 +201,12 @@ class Worker::Impl {
   bool ResultsOrStopping() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
     return stopping_ || !results_.empty();
   }
+  // Report now: a batch is full, or nothing else is being evaluated here (so
+  // waiting would only delay the coordinator, which may be waiting for these
+  // results to finish a generation).
   bool BatchOrStopping() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
-    return stopping_ || results_.size() >= options_.batch;
+    return stopping_ || results_.size() >= options_.batch ||
+           (queue_.empty() && working_.empty());
   }
 
   // Constant after construction.
@@ -235,8 +242,10 @@ class Worker::Impl {
   std::atomic<bool> ran_{false};
 };
 
-Worker::Impl::ScopedCall::ScopedCall(Impl* impl, grpc::ClientContext* context)
-    : impl_(impl), context_(context) {
+Worker::Impl::ScopedCall::ScopedCall(Impl* impl, grpc::ClientContext* context,
+                                     bool cancellable)
+    : impl_(impl), context_(cancellable ? context : nullptr) {
+  if (context_ == nullptr) return;
   absl::MutexLock l(&impl_->calls_mu_);
   // A call cancelled before it starts fails as soon as it starts.
   if (impl_->cancel_calls_) context_->TryCancel();
@@ -244,6 +253,7 @@ Worker::Impl::ScopedCall::ScopedCall(Impl* impl, grpc::ClientContext* context)
 }
 
 Worker::Impl::ScopedCall::~ScopedCall() {
+  if (context_ == nullptr) return;
   absl::MutexLock l(&impl_->calls_mu_);
   impl_->calls_.erase(context_);
 }
@@ -500,7 +510,7 @@ void Worker::Impl::ReportLoop(uint32_t seed) {
     SetDeadline(&context, options_.rpc_deadline);
     grpc::Status status;
     {
-      ScopedCall call(this, &context);
+      ScopedCall call(this, &context, /*cancellable=*/false);
       status = stub_->Report(&context, request, &response);
     }
     if (!status.ok()) {
