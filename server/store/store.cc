@@ -91,8 +91,15 @@ CREATE TABLE workers (
 INSERT INTO schema_version (version) VALUES (1);
 )sql";
 
+// Version 2: indexes on parent links, so descendant queries cost in proportion
+// to their answer.
+constexpr const char* kSchemaV2 = R"sql(
+CREATE INDEX genomes_parent_a ON genomes (parent_a) WHERE parent_a IS NOT NULL;
+CREATE INDEX genomes_parent_b ON genomes (parent_b) WHERE parent_b IS NOT NULL;
+)sql";
+
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
-constexpr const char* kMigrations[] = {kSchemaV1};
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 

@@ -53,6 +53,27 @@ TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
   EXPECT_EQ((*again)->path(), path());
 }
 
+// A version-1 database (as this project shipped it first) is migrated forward
+// in place: the version becomes current and the parent-link indexes of
+// version 2 appear, with the data kept.
+TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
+  store_.reset();
+  RawExec(path(),
+          "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
+          "UPDATE schema_version SET version = 1; "
+          "INSERT INTO workers (name, host, threads, evaluators, version, "
+          "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  absl::StatusOr<int> v = (*again)->SchemaVersion();
+  ASSERT_TRUE(v.ok()) << v.status();
+  EXPECT_EQ(*v, 2);
+  EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM sqlite_master WHERE "
+                             "name IN ('genomes_parent_a', 'genomes_parent_b')"),
+            "2");
+  EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "old");
+}
+
 TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
   store_.reset();
   const int newer = Store::kSchemaVersion + 1;
