@@ -259,6 +259,16 @@ std::string FormatProgressLine(const RunSummary& run,
   if (done > 0) {
     absl::StrAppend(&line, "  islands done ", done, "/", run.islands_size());
   }
+  // Every island with more than one: generation and best of its last complete
+  // generation ("-" before the first).
+  if (run.islands_size() > 1) {
+    absl::StrAppend(&line, "  |");
+    for (const auto& island : run.islands()) {
+      absl::StrAppend(&line, " ", island.island(), ":g", island.generation(),
+                      " ",
+                      island.has_stats() ? FormatScore(island.best()) : "-");
+    }
+  }
   return line;
 }
 

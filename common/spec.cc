@@ -273,6 +273,34 @@ absl::Status CheckMigration(const RunSpec& spec, uint32_t min_pop) {
     s = CheckRange("islands.random_degree", isl.random_degree(), 1,
                    isl.count() - 1);
   }
+  // Every arrival needs a slot of its own beside the elites and immigrants,
+  // with at least one slot left for offspring. A RANDOM topology's in-degree
+  // varies by epoch; its surplus arrivals are dropped (documented in
+  // server/engine/breeder.h).
+  if (s.ok() && isl.count() > 1 && isl.topology() != skerry::v1::RANDOM) {
+    uint64_t in_degree = 1;
+    if (isl.topology() == skerry::v1::TWO_WAY_RING) {
+      in_degree = isl.count() == 2 ? 1 : 2;
+    } else if (isl.topology() == skerry::v1::FULLY_CONNECTED) {
+      in_degree = isl.count() - 1;
+    }
+    const uint64_t arrivals = in_degree * isl.migrants();
+    const uint64_t taken = arrivals + spec.ga().elites() + spec.ga().immigrants();
+    if (taken >= min_pop) {
+      s = Bad("islands.migrants",
+              absl::StrCat("each epoch brings ", arrivals,
+                           " migrants to an island (", in_degree, " sources x ",
+                           isl.migrants(), "); with ", spec.ga().elites(),
+                           " elites and ", spec.ga().immigrants(),
+                           " immigrants no slot is left for offspring"),
+              absl::StrCat("[1, ", (min_pop - 1 - spec.ga().elites() -
+                                    std::min<uint64_t>(spec.ga().immigrants(),
+                                                       min_pop)) /
+                                       in_degree,
+                           "]"),
+              absl::StrCat(isl.migrants()));
+    }
+  }
   return s;
 }
 

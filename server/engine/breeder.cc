@@ -188,11 +188,15 @@ absl::StatusOr<std::vector<GenomeRecord>> Breed(
   const uint32_t n = IslandPopulation(spec, island);
   const bool maximize = spec.objective() == skerry::v1::MAXIMIZE;
   const uint32_t elites = std::min<uint32_t>(spec.ga().elites(), n);
-  const uint32_t n_migrants =
-      std::min<uint32_t>(static_cast<uint32_t>(migrants.size()), n - elites);
   const uint32_t immigrants =
-      std::min<uint32_t>(spec.ga().immigrants(), n - elites - n_migrants);
-  const uint32_t offspring = n - elites - n_migrants - immigrants;
+      std::min<uint32_t>(spec.ga().immigrants(), n - elites);
+  // Arrivals beyond what leaves one offspring slot are dropped, in source
+  // order (only a RANDOM topology can bring that many; validation refuses it
+  // for the others).
+  const uint32_t room = n - elites - immigrants;
+  const uint32_t n_migrants = std::min<uint32_t>(
+      static_cast<uint32_t>(migrants.size()), room > 0 ? room - 1 : 0);
+  const uint32_t offspring = room - n_migrants;
 
   // The breeding pool: generation g, with migrants replacing some members.
   std::vector<const GenomeRecord*> pool;

@@ -13,7 +13,8 @@
 //   [E+M, N-I)        offspring: crossover (with probability rate) then mutation
 //   [N-I, N)          immigrants: fresh uniform genomes
 // Elites and migrants keep their score (no re-evaluation) unless the evaluator is
-// declared noisy.
+// declared noisy. Migrants that would leave no offspring slot are dropped, in
+// source order (only possible with a RANDOM topology).
 //
 // Thread safety: pure functions; call from any thread.
 #ifndef SKERRY_SERVER_ENGINE_BREEDER_H_

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
+#include <iterator>
 
 #include "absl/strings/str_cat.h"
 #include "common/spec.h"
@@ -484,10 +485,12 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
         const std::vector<GenomeRecord>* source_gen = nullptr;
         bool skip = false;
         if (spec.islands().asynchronous()) {
-          // Whatever the neighbour completed most recently (not reproducible).
+          // Whatever the neighbour completed most recently, up to generation g
+          // (not reproducible: it depends on how far the neighbour got).
           Island& s = run.islands[src];
-          if (!s.completed.empty()) source_gen = &s.completed.rbegin()->second;
-          if (source_gen == nullptr) continue;
+          auto newest = s.completed.upper_bound(g);
+          if (newest == s.completed.begin()) continue;  // nothing yet
+          source_gen = &std::prev(newest)->second;
         } else {
           SKERRY_ASSIGN_OR_RETURN(source_gen,
                                   CompletedGeneration(run, src, g, &skip));

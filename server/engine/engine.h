@@ -22,6 +22,13 @@
 //   earlier), and generations a faster island bred past it are discarded.
 // - max_wall_seconds: from the run's first start; not reproducible.
 //
+// Migration (reproducible mode): the generation g+1 of an island at an epoch is
+// bred only once every source island has completed generation g (a source that
+// stopped before g sends nothing), so migrants never depend on timing. In
+// asynchronous mode (islands.asynchronous) the island never waits: it takes
+// emigrants from the newest generation <= g each source has completed so far, or
+// none; the run is then not reproducible and its digest depends on the fleet.
+//
 // Thread safety: every public method may be called from any thread.
 #ifndef SKERRY_SERVER_ENGINE_ENGINE_H_
 #define SKERRY_SERVER_ENGINE_ENGINE_H_

@@ -233,12 +233,27 @@ TEST(FormatProgressLineTest, ShowsGenerationOfMaxEvaluationsAndBest) {
     has_best: true
     best_score: 3.979836
     islands { generation: 12 }
-    islands { generation: 13 }
   )pb");
   EXPECT_EQ(FormatProgressLine(run, 60),
-            "run 3 running  gen 12-13/60  evals 14,400  best 3.97984");
+            "run 3 running  gen 12/60  evals 14,400  best 3.97984");
   EXPECT_EQ(FormatProgressLine(run, 0),
-            "run 3 running  gen 12-13  evals 14,400  best 3.97984");
+            "run 3 running  gen 12  evals 14,400  best 3.97984");
+}
+
+TEST(FormatProgressLineTest, ShowsEveryIslandsGenerationAndBest) {
+  auto run = FromText<v1::RunSummary>(R"pb(
+    id: 3
+    state: RUNNING
+    evaluations: 14400
+    has_best: true
+    best_score: 3.979836
+    islands { island: 0 generation: 12 has_stats: true best: 4.5 }
+    islands { island: 1 generation: 13 has_stats: true best: 3.979836 }
+    islands { island: 2 generation: 0 }
+  )pb");
+  EXPECT_EQ(FormatProgressLine(run, 60),
+            "run 3 running  gen 0-13/60  evals 14,400  best 3.97984  | 0:g12 4.5 "
+            "1:g13 3.97984 2:g0 -");
 }
 
 TEST(FormatProgressLineTest, CountsDoneIslandsAndHasNoNewline) {
@@ -250,7 +265,8 @@ TEST(FormatProgressLineTest, CountsDoneIslandsAndHasNoNewline) {
   )pb");
   std::string line = FormatProgressLine(run, 60);
   EXPECT_EQ(line,
-            "run 3 running  gen 58-60/60  evals 0  best -  islands done 1/2");
+            "run 3 running  gen 58-60/60  evals 0  best -  islands done 1/2  | "
+            "0:g60 - 0:g58 -");
   EXPECT_THAT(line, Not(HasSubstr("\n")));
 }
 

@@ -371,6 +371,16 @@ std::vector<BadCase> BadCases() {
       {"migrants fill population",
        [](RunSpec* s) { s->mutable_islands()->set_migrants(50); },
        "islands.migrants"},
+      // 7 sources x 7 migrants = 49 arrivals + 1 elite leave no offspring
+      // slot in a population of 50 (common practice: a generational GA needs
+      // room to breed).
+      {"fully connected arrivals leave no offspring slot",
+       [](RunSpec* s) {
+         s->mutable_islands()->set_count(8);
+         s->mutable_islands()->set_topology(skerry::v1::FULLY_CONNECTED);
+         s->mutable_islands()->set_migrants(7);
+       },
+       "islands.migrants"},
       {"random degree too high",
        [](RunSpec* s) {
          s->mutable_islands()->set_count(4);

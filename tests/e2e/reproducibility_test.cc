@@ -1,0 +1,201 @@
+// Reproducible mode with real processes: the same spec and seed give the same
+// digest whatever the fleet does (one worker, three workers of two threads,
+// everything in one process, a worker frozen past its lease), and asynchronous
+// mode keeps its lineage consistent.
+#include <signal.h>
+
+#include <map>
+#include <string>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
+#include "gmock/gmock.h"
+#include "grpcpp/grpcpp.h"
+#include "gtest/gtest.h"
+#include "skerry/v1/runs.grpc.pb.h"
+#include "tests/support/db_check.h"
+#include "tests/support/process.h"
+
+namespace skerry {
+namespace {
+
+using testing::CommandResult;
+using testing::Process;
+using testing::RunCommand;
+
+// Three islands on a two-way ring with migration every 3 generations, so that
+// migrants cross islands many times and every operator is used.
+constexpr char kIslandSpec[] = R"(
+name: "three-islands"
+seed: 424243
+genome_length: 6
+evaluator { builtin { function: "ackley" } }
+ga {
+  population_size: 16
+  selection { method: TOURNAMENT tournament_size: 2 }
+  crossover { method: BLEND rate: 0.7 blend_alpha: 0.2 }
+  mutation { rate: 0.3 step: 1.5 }
+  elites: 1
+  immigrants: 1
+}
+islands { count: 3 topology: TWO_WAY_RING interval: 3 migrants: 2
+          emigrants: EMIGRATE_TOURNAMENT replacement: REPLACE_RANDOM }
+stop { max_generations: 15 }
+)";
+
+void WriteFile(const std::string& path, const std::string& text) {
+  FILE* f = std::fopen(path.c_str(), "w");
+  ASSERT_NE(f, nullptr) << path;
+  std::fputs(text.c_str(), f);
+  std::fclose(f);
+}
+
+// The hex digest from `skerry digest` or from the "digest" line of `skerry local`.
+std::string DigestIn(const std::string& output) {
+  for (absl::string_view line : absl::StrSplit(output, '\n')) {
+    std::vector<absl::string_view> words =
+        absl::StrSplit(line, ' ', absl::SkipEmpty());
+    for (absl::string_view w : words) {
+      if (w.size() == 64 && w.find_first_not_of("0123456789abcdef") ==
+                                absl::string_view::npos) {
+        return std::string(w);
+      }
+    }
+  }
+  return "";
+}
+
+class ReproducibilityTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    spec_ = dir_.File("islands.spec");
+    WriteFile(spec_, kIslandSpec);
+  }
+
+  // Runs the spec on a real coordinator with `workers` worker processes of
+  // `threads` threads; `before_finish` may disturb the fleet. Returns the
+  // digest.
+  std::string RunOnFleet(const std::string& name, int workers, int threads,
+                         const std::function<void(std::vector<Process>&)>&
+                             disturb = nullptr,
+                         const std::vector<std::string>& coordinator_flags = {}) {
+    const std::string db = dir_.File(name + ".db");
+    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
+        SKERRY_COORDINATOR_BIN, db, dir_.File(name + "-coordinator.log"),
+        coordinator_flags);
+    EXPECT_TRUE(c.ok()) << c.status();
+    if (!c.ok()) return "";
+    auto cli = [&](std::vector<std::string> args) {
+      std::vector<std::string> argv = {SKERRY_CLI_BIN, "--coordinator",
+                                       c->address()};
+      argv.insert(argv.end(), args.begin(), args.end());
+      return RunCommand(argv);
+    };
+    CommandResult submit = cli({"submit", spec_});
+    EXPECT_EQ(submit.exit_code, 0) << submit.output;
+    std::vector<Process> fleet;
+    for (int i = 0; i < workers; ++i) {
+      absl::StatusOr<Process> w = Process::Start(
+          {SKERRY_WORKER_BIN, "--coordinator", c->address(), "--threads",
+           absl::StrCat(threads), "--batch", "8", "--name",
+           absl::StrCat(name, "-", i)},
+          dir_.File(absl::StrCat(name, "-worker", i, ".log")));
+      EXPECT_TRUE(w.ok()) << w.status();
+      if (w.ok()) fleet.push_back(std::move(*w));
+    }
+    if (disturb) disturb(fleet);
+    CommandResult watch = cli({"watch", "1"});
+    EXPECT_EQ(watch.exit_code, 0) << watch.output << c->process.Log();
+    CommandResult digest = cli({"digest", "1"});
+    EXPECT_EQ(digest.exit_code, 0) << digest.output;
+    db_of_[name] = db;
+    return DigestIn(digest.output);
+  }
+
+  testing::TempDir dir_;
+  std::string spec_;
+  std::map<std::string, std::string> db_of_;
+};
+
+TEST_F(ReproducibilityTest, DigestIsTheSameWhateverTheFleet) {
+  const std::string one = RunOnFleet("one", 1, 1);
+  ASSERT_EQ(one.size(), 64u);
+  const std::string three = RunOnFleet("three", 3, 2);
+  EXPECT_EQ(three, one) << "3 workers x 2 threads";
+
+  CommandResult local = RunCommand({SKERRY_CLI_BIN, "local", spec_, "--workers",
+                                    "3", "--db", dir_.File("local.db")});
+  ASSERT_EQ(local.exit_code, 0) << local.output;
+  EXPECT_EQ(DigestIn(local.output), one) << "skerry local\n" << local.output;
+
+  // Islands really exchanged migrants, across islands.
+  const std::vector<testing::StoredGenome> genomes =
+      testing::ReadGenomes(db_of_["one"], 1);
+  std::map<int64_t, int> island_of;
+  for (const auto& g : genomes) island_of[g.id] = g.island;
+  int crossings = 0;
+  for (const auto& g : genomes) {
+    if (g.origin == skerry::v1::MIGRANT) {
+      ASSERT_EQ(island_of.count(g.parent_a), 1u);
+      EXPECT_NE(island_of[g.parent_a], g.island);
+      ++crossings;
+    }
+  }
+  // 4 epochs (generations 3, 6, 9, 12) x 3 islands x 2 sources x 2 migrants.
+  EXPECT_EQ(crossings, 4 * 3 * 2 * 2);
+}
+
+// A worker frozen (SIGSTOP) while it holds leased tasks, past its lease, then
+// thawed: its tasks are leased again to the other worker, its late results are
+// ignored or equal, and the digest does not change.
+TEST_F(ReproducibilityTest, FrozenWorkerPastItsLeaseChangesNothing) {
+  const std::string reference = RunOnFleet("reference", 1, 1);
+  ASSERT_EQ(reference.size(), 64u);
+  const std::string frozen = RunOnFleet(
+      "frozen", 2, 1,
+      [this](std::vector<Process>& fleet) {
+        // Wait until work is flowing, then freeze worker 0 with its lease.
+        testing::WaitFor(
+            [&] {
+              return testing::QueryText(db_of_.count("frozen") ? db_of_["frozen"]
+                                                               : dir_.File("frozen.db"),
+                                        "SELECT evaluations FROM runs") != "0";
+            },
+            absl::Seconds(30));
+        fleet[0].Signal(SIGSTOP);
+        // Leases last 1 s here; wait well past one, then thaw it.
+        absl::SleepFor(absl::Seconds(3));
+        fleet[0].Signal(SIGCONT);
+      },
+      {"--lease-seconds", "1"});
+  EXPECT_EQ(frozen, reference);
+  // Informational: how many genomes needed a second lease.
+  const std::string retried = testing::QueryText(
+      dir_.File("frozen.db"), "SELECT count(*) FROM genomes WHERE attempts > 1");
+  RecordProperty("genomes_leased_again", retried);
+}
+
+TEST_F(ReproducibilityTest, AsynchronousModeKeepsLineageConsistent) {
+  std::string text = kIslandSpec;
+  text.replace(text.find("interval: 3"), 11, "interval: 3 asynchronous: true");
+  WriteFile(spec_, text);
+  const std::string digest = RunOnFleet("async", 3, 1);
+  ASSERT_EQ(digest.size(), 64u);
+  const std::vector<testing::StoredGenome> genomes =
+      testing::ReadGenomes(db_of_["async"], 1);
+  ASSERT_EQ(genomes.size(), 3u * 16u * 15u);
+  std::map<int64_t, const testing::StoredGenome*> by_id;
+  for (const auto& g : genomes) by_id[g.id] = &g;
+  for (const auto& g : genomes) {
+    for (int64_t p : {g.parent_a, g.parent_b}) {
+      if (p == 0) continue;
+      SCOPED_TRACE(absl::StrCat("genome ", g.id, " parent ", p));
+      ASSERT_EQ(by_id.count(p), 1u) << "parent missing";
+      EXPECT_LT(by_id[p]->generation, g.generation);
+      EXPECT_LT(p, g.id) << "a parent is stored before its child";
+    }
+  }
+}
+
+}  // namespace
+}  // namespace skerry
