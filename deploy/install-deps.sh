@@ -21,6 +21,7 @@ PACKAGES=(
   sqlite3
   libgtest-dev
   libgmock-dev
+  libboost-dev
   python3
 )
 
