@@ -1,4 +1,6 @@
-// skerry-worker: flags, a channel, a Worker, and signals that stop it.
+// skerry-worker: flags, a channel, a Worker, and signals that stop it. With
+// --evaluator-host first, it is instead the child process that serves a
+// built-in evaluator over the external-evaluator protocol (evaluator_host.h).
 #include <pthread.h>
 #include <signal.h>
 #include <unistd.h>
@@ -6,11 +8,14 @@
 #include <atomic>
 #include <cstdio>
 #include <memory>
+#include <string>
 #include <thread>
+#include <vector>
 
 #include "common/clock.h"
 #include "skerry/v1/fleet.grpc.pb.h"
 #include "worker/channel.h"
+#include "worker/evaluator_host.h"
 #include "worker/flags.h"
 #include "worker/worker.h"
 
@@ -71,6 +76,12 @@ class SignalWatcher {
 }  // namespace
 
 int main(int argc, char** argv) {
+  if (argc >= 2 && std::string(argv[1]) == "--evaluator-host") {
+    return skerry::worker::EvaluatorHostMain(
+        std::vector<std::string>(argv + 1, argv + argc));
+  }
+  // Writing to an evaluator child that died must be an error, not a signal.
+  signal(SIGPIPE, SIG_IGN);
   absl::StatusOr<skerry::worker::WorkerFlags> flags =
       skerry::worker::ParseWorkerFlags(argc, argv);
   if (!flags.ok()) {

@@ -1,11 +1,13 @@
 #include "worker/task_evaluation.h"
 
 #include <cmath>
+#include <exception>
 #include <utility>
 
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/types/span.h"
+#include "worker/process_evaluator.h"
 
 namespace skerry::worker {
 namespace {
@@ -15,11 +17,48 @@ std::string ErrorText(const absl::Status& status) {
   return std::string(status.message());
 }
 
+// A C++ exception from an evaluator is a failed attempt, like an error status.
+template <typename F>
+auto Guarded(F&& f) -> decltype(f()) {
+  try {
+    return f();
+  } catch (const std::exception& e) {
+    return absl::InternalError(absl::StrCat("evaluator threw: ", e.what()));
+  } catch (...) {
+    return absl::InternalError("evaluator threw a non-standard exception");
+  }
+}
+
 }  // namespace
+
+EvaluatorFactory WorkerEvaluatorFactory(std::vector<std::string> host_command) {
+  return [host_command =
+              std::move(host_command)](const skerry::v1::EvaluatorSpec& spec)
+             -> absl::StatusOr<std::unique_ptr<Evaluator>> {
+    if (spec.kind_case() != skerry::v1::EvaluatorSpec::kExternal &&
+        !spec.isolate()) {
+      return MakeEvaluator(spec);
+    }
+    absl::StatusOr<ProcessEvaluatorOptions> options =
+        ProcessOptionsForSpec(spec, host_command);
+    if (!options.ok()) return options.status();
+    absl::StatusOr<std::unique_ptr<ProcessEvaluator>> evaluator =
+        ProcessEvaluator::Create(*std::move(options));
+    if (!evaluator.ok()) return evaluator.status();
+    return std::unique_ptr<Evaluator>(std::move(*evaluator));
+  };
+}
+
+absl::StatusOr<std::unique_ptr<Evaluator>> MakeWorkerEvaluator(
+    const skerry::v1::EvaluatorSpec& spec) {
+  static const EvaluatorFactory* const factory =
+      new EvaluatorFactory(WorkerEvaluatorFactory({}));
+  return (*factory)(spec);
+}
 
 EvaluatorCache::EvaluatorCache(EvaluatorFactory factory)
     : factory_(std::move(factory)) {
-  if (!factory_) factory_ = &MakeEvaluator;
+  if (!factory_) factory_ = &MakeWorkerEvaluator;
 }
 
 absl::StatusOr<Evaluator*> EvaluatorCache::Get(
@@ -27,7 +66,13 @@ absl::StatusOr<Evaluator*> EvaluatorCache::Get(
   std::string key = spec.SerializeAsString();
   auto it = by_spec_.find(key);
   if (it == by_spec_.end()) {
-    it = by_spec_.emplace(std::move(key), factory_(spec)).first;
+    it = by_spec_
+             .emplace(
+                 std::move(key),
+                 Guarded([&]() -> absl::StatusOr<std::unique_ptr<Evaluator>> {
+                   return factory_(spec);
+                 }))
+             .first;
   }
   if (!it->second.ok()) return it->second.status();
   if (*it->second == nullptr) {
@@ -45,12 +90,13 @@ skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,
   absl::StatusOr<double> score;
   absl::StatusOr<Evaluator*> evaluator = cache.Get(task.evaluator());
   if (evaluator.ok()) {
-    // The time-limit seam: a later issue runs this under a watchdog and turns
-    // an overrun into a failed attempt.
-    score = (*evaluator)
-                ->Evaluate(absl::MakeConstSpan(task.genes().data(),
-                                               task.genes().size()),
-                           task.eval_seed());
+    // Time limits are enforced by evaluators that run in a child process.
+    score = Guarded([&]() -> absl::StatusOr<double> {
+      return (*evaluator)
+          ->Evaluate(
+              absl::MakeConstSpan(task.genes().data(), task.genes().size()),
+              task.eval_seed());
+    });
   } else {
     score = evaluator.status();
   }

@@ -1,11 +1,12 @@
 // Evaluating one leased task: the seam between the worker's threads and the
 // evaluators. EvaluateTask turns a Task into a TaskResult and never fails: a
-// missing evaluator, a non-OK status or a non-finite score becomes
-// result.error.
+// missing evaluator, a non-OK status, a C++ exception or a non-finite score
+// becomes result.error.
 //
-// Per-evaluation time limits (EvaluatorSpec.time_limit_seconds) and killing
-// hung evaluators belong in EvaluateTask; they arrive with the external-process
-// evaluator host.
+// Where an evaluator runs: external evaluators, and any evaluator whose spec
+// says `isolate`, run in a child process (ProcessEvaluator), which enforces
+// EvaluatorSpec.time_limit_seconds by killing the child; built-ins otherwise
+// run in the evaluation thread itself, where a hang cannot be interrupted.
 //
 // Thread safety: an EvaluatorCache belongs to one evaluation thread (evaluators
 // need not be thread-safe). EvaluateTask is safe to call concurrently with
@@ -17,6 +18,7 @@
 #include <map>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "absl/status/statusor.h"
 #include "common/clock.h"
@@ -26,11 +28,19 @@
 
 namespace skerry::worker {
 
-// Makes an Evaluator from its spec; MakeEvaluator by default. Tests inject
-// their own to control timing.
+// Makes an Evaluator from its spec; MakeWorkerEvaluator by default. Tests
+// inject their own to control timing.
 using EvaluatorFactory =
     std::function<absl::StatusOr<std::unique_ptr<Evaluator>>(
         const skerry::v1::EvaluatorSpec&)>;
+
+// The worker's dispatch: `external` or `isolate` -> a ProcessEvaluator (for
+// isolate, host_command is the evaluator host to run; empty: this executable
+// with --evaluator-host), anything else -> MakeEvaluator in-process.
+EvaluatorFactory WorkerEvaluatorFactory(std::vector<std::string> host_command);
+// WorkerEvaluatorFactory({}) applied to spec.
+absl::StatusOr<std::unique_ptr<Evaluator>> MakeWorkerEvaluator(
+    const skerry::v1::EvaluatorSpec& spec);
 
 // One thread's evaluators, keyed by the spec's serialized bytes. A spec that
 // cannot be made is remembered too, so it is not retried for every task.

@@ -1,0 +1,602 @@
+#include "worker/process_evaluator.h"
+
+#include <errno.h>
+#include <fcntl.h>
+#include <poll.h>
+#include <signal.h>
+#include <sys/stat.h>
+#include <sys/syscall.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdlib>
+#include <cstring>
+#include <mutex>
+#include <utility>
+
+#include "absl/status/status.h"
+#include "absl/strings/escaping.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "absl/strings/str_split.h"
+#include "common/clock.h"
+#include "common/random.h"
+#include "google/protobuf/util/json_util.h"
+
+extern char** environ;
+
+namespace skerry::worker {
+
+using skerry::v1::EvaluationRequest;
+using skerry::v1::EvaluationResponse;
+
+struct ProcessEvaluator::Child {
+  pid_t pid = -1;
+  int in = -1;   // the child's stdin, written here
+  int out = -1;  // the child's stdout
+  int err = -1;  // the child's stderr
+  std::string out_buffer;
+
+  ~Child() {
+    for (int fd : {in, out, err}) {
+      if (fd >= 0) close(fd);
+    }
+  }
+};
+
+namespace {
+
+void IgnoreSigpipeOnce() {
+  static std::once_flag once;
+  std::call_once(once, [] {
+    struct sigaction old {};
+    if (sigaction(SIGPIPE, nullptr, &old) == 0 && old.sa_handler == SIG_DFL) {
+      signal(SIGPIPE, SIG_IGN);
+    }
+  });
+}
+
+bool IsExecutableFile(const std::string& path) {
+  struct stat st {};
+  return stat(path.c_str(), &st) == 0 && S_ISREG(st.st_mode) &&
+         access(path.c_str(), X_OK) == 0;
+}
+
+absl::StatusOr<std::string> ResolveProgram(const std::string& name) {
+  const std::string field = "evaluator.external.argv[0]";
+  if (name.empty()) {
+    return absl::InvalidArgumentError(field + ": empty program name");
+  }
+  if (name.find('/') != std::string::npos) {
+    if (name[0] != '/') {
+      return absl::InvalidArgumentError(absl::StrCat(
+          field, ": \"", name,
+          "\" is a relative path; give an absolute path or a program name "
+          "found on the worker's PATH"));
+    }
+    if (!IsExecutableFile(name)) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          field, ": \"", name, "\" is not an executable file on this worker"));
+    }
+    return name;
+  }
+  const char* path = std::getenv("PATH");
+  const std::string search = path != nullptr ? path : "/usr/bin:/bin";
+  for (absl::string_view dir : absl::StrSplit(search, ':')) {
+    const std::string candidate =
+        absl::StrCat(dir.empty() ? "." : dir, "/", name);
+    if (IsExecutableFile(candidate)) return candidate;
+  }
+  return absl::InvalidArgumentError(absl::StrCat(
+      field, ": \"", name, "\" not found on the worker's PATH (", search, ")"));
+}
+
+std::vector<std::string> ChildEnvironment(
+    const std::map<std::string, std::string>& overrides) {
+  std::vector<std::string> env;
+  for (char** e = environ; e != nullptr && *e != nullptr; ++e) {
+    absl::string_view entry(*e);
+    const std::string name(entry.substr(0, entry.find('=')));
+    if (overrides.count(name) == 0) env.emplace_back(entry);
+  }
+  for (const auto& [name, value] : overrides) {
+    env.push_back(absl::StrCat(name, "=", value));
+  }
+  return env;
+}
+
+int RemainingMillis(absl::Time deadline) {
+  const absl::Duration left = deadline - Clock::Real()->Now();
+  if (left <= absl::ZeroDuration()) return 0;
+  return static_cast<int>(
+      std::min<int64_t>(absl::ToInt64Milliseconds(left) + 1, 1 << 30));
+}
+
+void SetNonBlocking(int fd) {
+  const int flags = fcntl(fd, F_GETFL);
+  if (flags >= 0) fcntl(fd, F_SETFL, flags | O_NONBLOCK);
+}
+
+// Between fork and exec only async-signal-safe calls are allowed.
+[[noreturn]] void ExecChild(int in, int out, int err, int status_fd,
+                            const char* program, char* const* argv,
+                            char* const* envp, const char* working_dir,
+                            int max_fd) {
+  setpgid(0, 0);
+  sigset_t none;
+  sigemptyset(&none);
+  sigprocmask(SIG_SETMASK, &none, nullptr);
+  struct sigaction dfl {};
+  dfl.sa_handler = SIG_DFL;
+  for (int sig = 1; sig < NSIG; ++sig) sigaction(sig, &dfl, nullptr);
+  if (dup2(in, 0) < 0 || dup2(out, 1) < 0 || dup2(err, 2) < 0) {
+    const int e = errno;
+    (void)!write(status_fd, &e, sizeof e);
+    _exit(127);
+  }
+  // Every other descriptor goes, except the status pipe (close-on-exec).
+  bool closed = false;
+#ifdef SYS_close_range
+  closed = (status_fd <= 3 ||
+            syscall(SYS_close_range, 3u, static_cast<unsigned>(status_fd - 1),
+                    0u) == 0) &&
+           syscall(SYS_close_range, static_cast<unsigned>(status_fd + 1), ~0u,
+                   0u) == 0;
+#endif
+  for (int fd = 3; !closed && fd < max_fd; ++fd) {
+    if (fd != status_fd) close(fd);
+  }
+  if (working_dir[0] != '\0' && chdir(working_dir) != 0) {
+    const int e = -errno;  // negative: chdir, not exec
+    (void)!write(status_fd, &e, sizeof e);
+    _exit(127);
+  }
+  execve(program, argv, envp);
+  const int e = errno;
+  (void)!write(status_fd, &e, sizeof e);
+  _exit(127);
+}
+
+std::string DescribeWaitStatus(int status) {
+  if (WIFEXITED(status)) {
+    return absl::StrCat("exited with status ", WEXITSTATUS(status));
+  }
+  if (WIFSIGNALED(status)) {
+    const int sig = WTERMSIG(status);
+    return absl::StrCat("was killed by signal ", sig, " (", strsignal(sig),
+                        ")");
+  }
+  return "ended";
+}
+
+double Aggregate(skerry::v1::EpisodeAggregate how, std::vector<double> v) {
+  if (how == skerry::v1::AGGREGATE_MIN) {
+    return *std::min_element(v.begin(), v.end());
+  }
+  if (how == skerry::v1::AGGREGATE_MEDIAN) {
+    std::sort(v.begin(), v.end());
+    const size_t n = v.size();
+    return n % 2 == 1 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+  }
+  double sum = 0.0;
+  for (double x : v) sum += x;
+  return sum / static_cast<double>(v.size());
+}
+
+// Episode e's seed: the first word of the stream (evaluation seed, kEvalSeed,
+// slot e), as the built-in pole evaluators key their episodes.
+uint64_t EpisodeSeed(uint64_t seed, uint32_t episode) {
+  StreamKey key;
+  key.run_seed = seed;
+  key.purpose = StreamPurpose::kEvalSeed;
+  key.slot = episode;
+  return RandomStream(key).NextU64();
+}
+
+std::string Quote(absl::string_view s, size_t max) {
+  std::string out = absl::CHexEscape(s.substr(0, max));
+  if (s.size() > max) absl::StrAppend(&out, "...");
+  return absl::StrCat("\"", out, "\"");
+}
+
+}  // namespace
+
+absl::StatusOr<std::unique_ptr<ProcessEvaluator>> ProcessEvaluator::Create(
+    ProcessEvaluatorOptions options) {
+  if (options.argv.empty()) {
+    return absl::InvalidArgumentError(
+        "evaluator.external.argv: no program given");
+  }
+  if (!(options.time_limit > absl::ZeroDuration()) ||
+      options.time_limit == absl::InfiniteDuration()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("evaluator.time_limit_seconds: must be positive and "
+                     "finite (got ",
+                     absl::FormatDuration(options.time_limit), ")"));
+  }
+  if (options.episodes == 0) options.episodes = 1;
+  absl::StatusOr<std::string> program = ResolveProgram(options.argv[0]);
+  if (!program.ok()) return program.status();
+  IgnoreSigpipeOnce();
+  return std::unique_ptr<ProcessEvaluator>(
+      new ProcessEvaluator(std::move(options), *std::move(program)));
+}
+
+ProcessEvaluator::ProcessEvaluator(ProcessEvaluatorOptions options,
+                                   std::string program)
+    : options_(std::move(options)),
+      program_(std::move(program)),
+      env_(ChildEnvironment(options_.env)) {}
+
+ProcessEvaluator::~ProcessEvaluator() {
+  if (child_ == nullptr) return;
+  // Closing stdin asks a well-behaved program to finish.
+  close(child_->in);
+  child_->in = -1;
+  const absl::Time deadline = Clock::Real()->Now() + options_.shutdown_grace;
+  while (Clock::Real()->Now() < deadline) {
+    if (waitpid(child_->pid, nullptr, WNOHANG) == child_->pid) {
+      kill(-child_->pid, SIGKILL);  // anything it left behind
+      child_.reset();
+      return;
+    }
+    usleep(5000);
+  }
+  KillChild();
+}
+
+pid_t ProcessEvaluator::child_pid() const {
+  return child_ == nullptr ? -1 : child_->pid;
+}
+
+std::string ProcessEvaluator::Name() const {
+  return absl::StrCat("evaluator `", absl::StrJoin(options_.argv, " "), "`");
+}
+
+absl::Status ProcessEvaluator::EnsureChild() {
+  if (child_ != nullptr) {
+    int status = 0;
+    if (waitpid(child_->pid, &status, WNOHANG) != child_->pid) {
+      return absl::OkStatus();
+    }
+    // It exited after its last answer: start another quietly.
+    kill(-child_->pid, SIGKILL);
+    child_.reset();
+  }
+  int pipes[4][2];
+  for (int i = 0; i < 4; ++i) {
+    if (pipe2(pipes[i], O_CLOEXEC) != 0) {
+      const int e = errno;
+      for (int j = 0; j < i; ++j) {
+        close(pipes[j][0]);
+        close(pipes[j][1]);
+      }
+      return absl::ResourceExhaustedError(
+          absl::StrCat(Name(), ": cannot make pipes: ", std::strerror(e)));
+    }
+  }
+  int* in = pipes[0];
+  int* out = pipes[1];
+  int* err = pipes[2];
+  int* st = pipes[3];
+  std::vector<char*> argv;
+  argv.push_back(const_cast<char*>(program_.c_str()));
+  for (size_t i = 1; i < options_.argv.size(); ++i) {
+    argv.push_back(const_cast<char*>(options_.argv[i].c_str()));
+  }
+  argv.push_back(nullptr);
+  std::vector<char*> envp;
+  for (const std::string& e : env_)
+    envp.push_back(const_cast<char*>(e.c_str()));
+  envp.push_back(nullptr);
+  const long open_max = sysconf(_SC_OPEN_MAX);
+  const int max_fd = static_cast<int>(std::clamp<long>(open_max, 256, 1 << 16));
+
+  const pid_t pid = fork();
+  if (pid == 0) {
+    ExecChild(in[0], out[1], err[1], st[1], program_.c_str(), argv.data(),
+              envp.data(), options_.working_dir.c_str(), max_fd);
+  }
+  const int fork_errno = errno;
+  for (int fd : {in[0], out[1], err[1], st[1]}) close(fd);
+  if (pid < 0) {
+    for (int fd : {in[1], out[0], err[0], st[0]}) close(fd);
+    return absl::ResourceExhaustedError(absl::StrCat(
+        Name(), ": cannot start a process: ", std::strerror(fork_errno)));
+  }
+  setpgid(pid, pid);  // also done in the child; whichever runs first wins
+  child_ = std::make_unique<Child>();
+  child_->pid = pid;
+  child_->in = in[1];
+  child_->out = out[0];
+  child_->err = err[0];
+  ++starts_;
+  stderr_tail_.clear();
+  // The status pipe closes on exec; before that the child may send an errno.
+  int child_errno = 0;
+  ssize_t n;
+  do {
+    n = read(st[0], &child_errno, sizeof child_errno);
+  } while (n < 0 && errno == EINTR);
+  close(st[0]);
+  if (n == static_cast<ssize_t>(sizeof child_errno)) {
+    KillChild();
+    const bool in_chdir = child_errno < 0;
+    return absl::FailedPreconditionError(absl::StrCat(
+        Name(), ": cannot ",
+        in_chdir
+            ? absl::StrCat("enter working_dir \"", options_.working_dir, "\"")
+            : absl::StrCat("execute \"", program_, "\""),
+        ": ", std::strerror(std::abs(child_errno))));
+  }
+  for (int fd : {child_->in, child_->out, child_->err}) SetNonBlocking(fd);
+  return absl::OkStatus();
+}
+
+void ProcessEvaluator::KillChild() {
+  if (child_ == nullptr) return;
+  kill(-child_->pid, SIGKILL);
+  kill(child_->pid, SIGKILL);  // in case setpgid had not happened yet
+  int status = 0;
+  while (waitpid(child_->pid, &status, 0) < 0 && errno == EINTR) {
+  }
+  child_.reset();
+}
+
+void ProcessEvaluator::DrainStderr() {
+  if (child_ == nullptr || child_->err < 0) return;
+  char buf[4096];
+  while (true) {
+    const ssize_t n = read(child_->err, buf, sizeof buf);
+    if (n > 0) {
+      stderr_tail_.append(buf, static_cast<size_t>(n));
+      if (stderr_tail_.size() > options_.stderr_tail_bytes) {
+        stderr_tail_.erase(0, stderr_tail_.size() - options_.stderr_tail_bytes);
+      }
+      continue;
+    }
+    if (n < 0 && errno == EINTR) continue;
+    if (n == 0) {  // EOF: every holder of the write end is gone
+      close(child_->err);
+      child_->err = -1;
+    }
+    return;  // EAGAIN: nothing more for now
+  }
+}
+
+absl::Status ProcessEvaluator::Fail(absl::StatusCode code,
+                                    const std::string& what,
+                                    bool may_be_exiting) {
+  ++failures_;
+  std::string fate = "was killed with SIGKILL";
+  if (child_ != nullptr) {
+    const pid_t pid = child_->pid;
+    // A child that is exiting by itself gets a moment, so its status (and a
+    // traceback on stderr) can be reported.
+    int status = 0;
+    bool exited = false;
+    for (int i = 0; i < (may_be_exiting ? 40 : 1) && !exited; ++i) {
+      DrainStderr();
+      exited = waitpid(pid, &status, WNOHANG) == pid;
+      if (!exited && may_be_exiting) usleep(5000);
+    }
+    if (exited) {
+      fate = DescribeWaitStatus(status);
+      kill(-pid, SIGKILL);
+    } else {
+      kill(-pid, SIGKILL);
+      kill(pid, SIGKILL);
+      while (waitpid(pid, &status, 0) < 0 && errno == EINTR) {
+      }
+      fate = "was killed with SIGKILL";
+    }
+    DrainStderr();  // what the dead group left in the pipe
+    fate = absl::StrCat("pid ", pid, " ", fate);
+    child_.reset();
+  }
+  std::string tail = stderr_tail_;
+  while (!tail.empty() && (tail.back() == '\n' || tail.back() == '\r')) {
+    tail.pop_back();
+  }
+  return absl::Status(
+      code, absl::StrCat(Name(), ": ", what, " (", fate,
+                         "; it is restarted for the next evaluation); ",
+                         tail.empty() ? "stderr was empty"
+                                      : absl::StrCat("stderr tail:\n", tail)));
+}
+
+absl::StatusOr<std::string> ProcessEvaluator::Transact(const std::string& line,
+                                                       absl::Time deadline) {
+  size_t written = 0;
+  char buf[65536];
+  while (true) {
+    std::string& pending = child_->out_buffer;
+    if (written == line.size()) {
+      const size_t nl = pending.find('\n');
+      if (nl != std::string::npos) {
+        std::string answer = pending.substr(0, nl);
+        pending.erase(0, nl + 1);
+        return answer;
+      }
+    }
+    if (pending.size() > options_.max_line_bytes) {
+      return absl::OutOfRangeError(absl::StrCat(
+          "printed a line longer than ", options_.max_line_bytes, " bytes"));
+    }
+    pollfd fds[3];
+    int n = 0;
+    const int out_at = n;
+    fds[n++] = {child_->out, POLLIN, 0};
+    const int err_at = child_->err >= 0 ? n : -1;
+    if (err_at >= 0) fds[n++] = {child_->err, POLLIN, 0};
+    const int in_at = written < line.size() ? n : -1;
+    if (in_at >= 0) fds[n++] = {child_->in, POLLOUT, 0};
+    const int ms = RemainingMillis(deadline);
+    if (ms == 0) return absl::DeadlineExceededError("");
+    const int ready = poll(fds, static_cast<nfds_t>(n), ms);
+    if (ready < 0 && errno == EINTR) continue;
+    if (ready < 0) {
+      return absl::InternalError(absl::StrCat("poll: ", std::strerror(errno)));
+    }
+    if (ready == 0) continue;  // the deadline check above ends it
+    if (err_at >= 0 && fds[err_at].revents != 0) DrainStderr();
+    if (in_at >= 0 && fds[in_at].revents != 0) {
+      const ssize_t w =
+          write(child_->in, line.data() + written, line.size() - written);
+      if (w > 0) {
+        written += static_cast<size_t>(w);
+      } else if (w < 0 && errno != EAGAIN && errno != EINTR) {
+        return absl::UnavailableError(
+            absl::StrCat("closed its stdin before reading the request (",
+                         std::strerror(errno), ")"));
+      }
+    }
+    if (fds[out_at].revents != 0) {
+      const ssize_t r = read(child_->out, buf, sizeof buf);
+      if (r > 0) {
+        pending.append(buf, static_cast<size_t>(r));
+      } else if (r == 0) {
+        return absl::UnavailableError(
+            pending.empty() ? "closed its stdout without answering"
+                            : absl::StrCat("closed its stdout after a partial "
+                                           "line ",
+                                           Quote(pending, 200)));
+      } else if (errno != EAGAIN && errno != EINTR) {
+        return absl::InternalError(
+            absl::StrCat("reading its stdout: ", std::strerror(errno)));
+      }
+    }
+  }
+}
+
+absl::StatusOr<EvaluationResponse> ProcessEvaluator::CheckResponse(
+    const std::string& line, uint64_t id) {
+  EvaluationResponse response;
+  google::protobuf::util::JsonParseOptions parse;
+  parse.ignore_unknown_fields = false;
+  const auto parsed =
+      google::protobuf::util::JsonStringToMessage(line, &response, parse);
+  if (!parsed.ok()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("answered request ", id,
+                     " with a line that is not an EvaluationResponse in JSON (",
+                     std::string(parsed.message()), "): ", Quote(line, 200)));
+  }
+  if (response.id() != id) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("answered request ", id, " with id ", response.id()));
+  }
+  if (response.error().empty() && !response.has_score()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("answered request ", id,
+                     " with neither score nor error: ", Quote(line, 200)));
+  }
+  return response;
+}
+
+absl::StatusOr<EvaluationResponse> ProcessEvaluator::Exchange(
+    EvaluationRequest request) {
+  const absl::Time deadline = Clock::Real()->Now() + options_.time_limit;
+  if (absl::Status s = EnsureChild(); !s.ok()) return s;
+  const uint64_t id = next_id_++;
+  request.set_id(id);
+  std::string line;
+  google::protobuf::util::JsonPrintOptions print;
+  print.always_print_primitive_fields = true;
+  print.preserve_proto_field_names = true;
+  if (!google::protobuf::util::MessageToJsonString(request, &line, print)
+           .ok()) {
+    return absl::InternalError("cannot print the request as JSON");
+  }
+  line.push_back('\n');
+  absl::StatusOr<std::string> answer = Transact(line, deadline);
+  if (!answer.ok()) {
+    if (absl::IsDeadlineExceeded(answer.status())) {
+      return Fail(absl::StatusCode::kDeadlineExceeded,
+                  absl::StrCat("no answer to request ", id,
+                               " within the time limit of ",
+                               absl::FormatDuration(options_.time_limit)),
+                  /*may_be_exiting=*/false);
+    }
+    return Fail(answer.status().code(),
+                absl::StrCat("request ", id, ": ",
+                             std::string(answer.status().message())),
+                absl::IsUnavailable(answer.status()));
+  }
+  absl::StatusOr<EvaluationResponse> response = CheckResponse(*answer, id);
+  if (!response.ok()) {
+    return Fail(absl::StatusCode::kDataLoss,
+                std::string(response.status().message()),
+                /*may_be_exiting=*/false);
+  }
+  return response;
+}
+
+absl::StatusOr<double> ProcessEvaluator::Evaluate(
+    absl::Span<const double> genes, uint64_t seed) {
+  std::vector<double> scores;
+  scores.reserve(options_.episodes);
+  for (uint32_t e = 0; e < options_.episodes; ++e) {
+    EvaluationRequest request;
+    request.mutable_genes()->Add(genes.begin(), genes.end());
+    request.set_seed(options_.episodes == 1 ? seed : EpisodeSeed(seed, e));
+    request.set_episode(e);
+    absl::StatusOr<EvaluationResponse> response = Exchange(std::move(request));
+    if (!response.ok()) return response.status();
+    if (!response->error().empty()) {
+      return absl::UnknownError(
+          absl::StrCat(Name(), " reported: ", response->error()));
+    }
+    last_metrics_.clear();
+    last_metrics_.insert(response->metrics().begin(),
+                         response->metrics().end());
+    scores.push_back(response->score());
+  }
+  return Aggregate(options_.aggregate, std::move(scores));
+}
+
+absl::StatusOr<ProcessEvaluatorOptions> ProcessOptionsForSpec(
+    const skerry::v1::EvaluatorSpec& spec,
+    const std::vector<std::string>& host_command) {
+  ProcessEvaluatorOptions o;
+  const double limit =
+      spec.time_limit_seconds() == 0 ? 60.0 : spec.time_limit_seconds();
+  if (!(limit > 0) || !std::isfinite(limit)) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "evaluator.time_limit_seconds: must be positive and finite (got ",
+        limit, ")"));
+  }
+  o.time_limit = absl::Seconds(limit);
+  if (spec.kind_case() == skerry::v1::EvaluatorSpec::kExternal) {
+    const skerry::v1::ExternalEvaluator& ext = spec.external();
+    o.argv.assign(ext.argv().begin(), ext.argv().end());
+    o.working_dir = ext.working_dir();
+    o.env.insert(ext.env().begin(), ext.env().end());
+    o.episodes = std::max<uint32_t>(1, spec.episodes().count());
+    if (spec.episodes().aggregate() != skerry::v1::AGGREGATE_UNSPECIFIED) {
+      o.aggregate = spec.episodes().aggregate();
+    }
+    return o;
+  }
+  // A built-in in skerry-worker --evaluator-host; it runs its own episodes.
+  if (host_command.empty()) {
+    char self[4096];
+    const ssize_t n = readlink("/proc/self/exe", self, sizeof self - 1);
+    if (n <= 0) {
+      return absl::InternalError(
+          "isolate: cannot find this program's path in /proc/self/exe");
+    }
+    o.argv = {std::string(self, static_cast<size_t>(n)), "--evaluator-host"};
+  } else {
+    o.argv = host_command;
+  }
+  skerry::v1::EvaluatorSpec inner = spec;
+  inner.set_isolate(false);
+  o.argv.push_back(absl::StrCat("--evaluator-spec=",
+                                absl::Base64Escape(inner.SerializeAsString())));
+  return o;
+}
+
+}  // namespace skerry::worker
