@@ -1,0 +1,217 @@
+#include "server/store/check.h"
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "common/spec.h"
+#include "common/status_macros.h"
+#include "server/store/sqlite.h"
+#include "skerry/v1/genome.pb.h"
+#include "skerry/v1/runs.pb.h"
+#include "skerry/v1/spec.pb.h"
+
+namespace skerry::store {
+namespace {
+
+constexpr size_t kMaxProblems = 100;
+
+// One query's rows, each as text columns.
+absl::StatusOr<std::vector<std::vector<std::string>>> Rows(
+    Connection* c, const std::string& sql, int64_t bind = 0) {
+  SKERRY_ASSIGN_OR_RETURN(Statement s, c->Prepare(sql));
+  if (bind != 0) s.BindInt(1, bind);
+  std::vector<std::vector<std::string>> out;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (!row) break;
+    std::vector<std::string> r;
+    for (int i = 0; i < s.ColumnCount(); ++i) r.push_back(s.ColumnText(i));
+    out.push_back(std::move(r));
+  }
+  return out;
+}
+
+class Checker {
+ public:
+  explicit Checker(Connection* c) : c_(c) {}
+
+  void Problem(std::string p) {
+    if (report.problems.size() < kMaxProblems) report.problems.push_back(std::move(p));
+  }
+
+  // Each query returns offending rows; `what` describes them.
+  absl::Status Expect(int64_t run, const std::string& what, const std::string& sql) {
+    SKERRY_ASSIGN_OR_RETURN(auto rows, Rows(c_, sql, run));
+    for (const auto& r : rows) {
+      std::vector<std::string> cells;
+      for (const auto& cell : r) {
+        if (!cell.empty()) cells.push_back(cell);
+      }
+      Problem(absl::StrCat("run ", run, ": ", what, " (", absl::StrJoin(cells, " "), ")"));
+    }
+    return absl::OkStatus();
+  }
+
+  absl::Status CheckRun(int64_t run, const skerry::v1::RunSpec& spec, int state) {
+    const bool reproducible = !spec.islands().asynchronous();
+    SKERRY_ASSIGN_OR_RETURN(
+        Statement isl, c_->Prepare("SELECT idx, generation, done FROM islands "
+                                   "WHERE run_id = ? ORDER BY idx"));
+    isl.BindInt(1, run);
+    const bool ended = state == skerry::v1::FINISHED ||
+                       state == skerry::v1::STOPPED ||
+                       state == skerry::v1::FAILED_RUN;
+    while (true) {
+      SKERRY_ASSIGN_OR_RETURN(bool row, isl.Step());
+      if (!row) break;
+      const int64_t idx = isl.ColumnInt(0);
+      const int64_t current = isl.ColumnInt(1);
+      const bool done = isl.ColumnInt(2) != 0;
+      const int64_t pop = IslandPopulation(spec, static_cast<uint32_t>(idx));
+      SKERRY_ASSIGN_OR_RETURN(
+          Statement gens,
+          c_->Prepare("SELECT generation, count(*), sum(eval_state = 1) FROM "
+                      "genomes WHERE run_id = ? AND island = ? GROUP BY "
+                      "generation ORDER BY generation"));
+      gens.BindInt(1, run);
+      gens.BindInt(2, idx);
+      int64_t expected = 0;
+      while (true) {
+        SKERRY_ASSIGN_OR_RETURN(bool g_row, gens.Step());
+        if (!g_row) break;
+        const int64_t g = gens.ColumnInt(0);
+        const int64_t n = gens.ColumnInt(1);
+        const int64_t pending = gens.ColumnInt(2);
+        if (g != expected) {
+          Problem(absl::StrCat("run ", run, " island ", idx, ": generation ",
+                               expected, " is missing"));
+        }
+        expected = g + 1;
+        if (n != pop) {
+          Problem(absl::StrCat("run ", run, " island ", idx, " generation ", g,
+                               ": ", n, " genomes, expected ", pop));
+        }
+        const bool may_pend = g == current && !done && !ended;
+        if (pending > 0 && !may_pend && state != skerry::v1::STOPPED &&
+            state != skerry::v1::FAILED_RUN) {
+          Problem(absl::StrCat("run ", run, " island ", idx, " generation ", g,
+                               ": ", pending, " genomes still pending"));
+        }
+        if (g > current) {
+          Problem(absl::StrCat("run ", run, " island ", idx, ": generation ", g,
+                               " is past the island's generation ", current));
+        }
+      }
+      if (expected != current + 1) {
+        Problem(absl::StrCat("run ", run, " island ", idx, ": generations end at ",
+                             expected - 1, ", island says ", current));
+      }
+    }
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "parent link does not resolve within the run",
+        "SELECT 'genome', g.id, 'parent', p FROM (SELECT id, run_id, parent_a AS p "
+        "FROM genomes WHERE run_id = ?1 AND parent_a IS NOT NULL UNION ALL "
+        "SELECT id, run_id, parent_b FROM genomes WHERE run_id = ?1 AND parent_b "
+        "IS NOT NULL) g LEFT JOIN genomes x ON x.id = g.p WHERE x.id IS NULL OR "
+        "x.run_id != g.run_id LIMIT 20"));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run,
+        reproducible ? "parent is not of the previous generation"
+                     : "parent is not of an earlier generation",
+        absl::StrCat(
+            "SELECT 'genome', c.id, 'parent', x.id FROM genomes c JOIN genomes x ON "
+            "x.id IN (c.parent_a, c.parent_b) WHERE c.run_id = ?1 AND ",
+            reproducible ? "x.generation != c.generation - 1"
+                         : "x.generation >= c.generation",
+            " LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "origin and parent links disagree",
+        absl::StrCat("SELECT 'genome', id, 'origin', origin FROM genomes WHERE "
+                     "run_id = ?1 AND ((origin IN (",
+                     skerry::v1::ELITE, ",", skerry::v1::MIGRANT, ",",
+                     skerry::v1::MUTATION, ",", skerry::v1::CROSSOVER,
+                     ") AND parent_a IS NULL) OR (origin IN (",
+                     skerry::v1::SEEDED, ",", skerry::v1::IMMIGRANT,
+                     ") AND parent_a IS NOT NULL) OR (origin = ",
+                     skerry::v1::CROSSOVER, " AND parent_b IS NULL)) LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "completed generation has no statistics",
+        "SELECT 'island', g.island, 'generation', g.generation FROM (SELECT island, "
+        "generation FROM genomes WHERE run_id = ?1 GROUP BY island, generation "
+        "HAVING sum(eval_state = 1) = 0) g JOIN islands i ON i.run_id = ?1 AND "
+        "i.idx = g.island LEFT JOIN generation_stats s ON s.run_id = ?1 AND "
+        "s.island = g.island AND s.generation = g.generation WHERE s.run_id IS "
+        "NULL AND (g.generation < i.generation OR i.done = 1) LIMIT 20"));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "evaluation counter differs from the evaluations stored",
+        "SELECT 'counter', r.evaluations, 'stored', (SELECT count(*) FROM genomes "
+        "WHERE run_id = ?1 AND attempts > 0 AND eval_state IN (2, 3)) AS n FROM "
+        "runs r WHERE r.id = ?1 AND r.evaluations != n"));
+    return absl::OkStatus();
+  }
+
+  CheckReport report;
+
+ private:
+  Connection* c_;
+};
+
+}  // namespace
+
+std::string CheckReport::ToString() const {
+  std::string out = absl::StrCat("integrity_check: ", integrity, "\n", runs,
+                                 " runs, ", genomes, " genomes\n");
+  if (problems.empty()) {
+    absl::StrAppend(&out, "invariants: ok\n");
+  } else {
+    absl::StrAppend(&out, "invariants: ", problems.size(),
+                    problems.size() >= kMaxProblems ? "+" : "", " problems\n");
+    for (const std::string& p : problems) absl::StrAppend(&out, "  ", p, "\n");
+  }
+  return out;
+}
+
+absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
+  SKERRY_ASSIGN_OR_RETURN(auto conn,
+                          Connection::Open(path, SQLITE_OPEN_READONLY));
+  sqlite3_busy_timeout(conn->raw(), 5000);
+  Checker checker(conn.get());
+  {
+    SKERRY_ASSIGN_OR_RETURN(Statement ic, conn->Prepare("PRAGMA integrity_check"));
+    std::vector<std::string> lines;
+    while (true) {
+      SKERRY_ASSIGN_OR_RETURN(bool row, ic.Step());
+      if (!row) break;
+      lines.push_back(ic.ColumnText(0));
+    }
+    checker.report.integrity = absl::StrJoin(lines, "; ");
+  }
+  SKERRY_RETURN_IF_ERROR(conn->Exec("BEGIN"));  // one snapshot for every query
+  absl::StatusOr<Statement> runs =
+      conn->Prepare("SELECT id, spec, state FROM runs ORDER BY id");
+  if (!runs.ok()) {
+    return absl::FailedPreconditionError(
+        absl::StrCat(path, ": not a Skerry database (", runs.status().message(), ")"));
+  }
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(bool row, runs->Step());
+    if (!row) break;
+    skerry::v1::RunSpec spec;
+    const int64_t id = runs->ColumnInt(0);
+    if (!spec.ParseFromString(runs->ColumnBlob(1))) {
+      checker.Problem(absl::StrCat("run ", id, ": stored spec does not parse"));
+      continue;
+    }
+    ++checker.report.runs;
+    SKERRY_RETURN_IF_ERROR(
+        checker.CheckRun(id, spec, static_cast<int>(runs->ColumnInt(2))));
+  }
+  {
+    SKERRY_ASSIGN_OR_RETURN(Statement n, conn->Prepare("SELECT count(*) FROM genomes"));
+    SKERRY_ASSIGN_OR_RETURN(bool row, n.Step());
+    if (row) checker.report.genomes = n.ColumnInt(0);
+  }
+  conn->Exec("COMMIT").IgnoreError();
+  return checker.report;
+}
+
+}  // namespace skerry::store

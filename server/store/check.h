@@ -1,0 +1,41 @@
+// `skerry-coordinator --check DB`: SQLite's own integrity check plus the
+// project's invariants, read-only, safe while a coordinator runs (WAL readers
+// see one consistent snapshot and never block the writer).
+//
+// Invariants checked, per run:
+//   - every island's generations 0..current exist, each with exactly its
+//     population of genomes (a generation is written whole or not at all);
+//   - every generation before the current one is complete (no PENDING genome),
+//     and so is the current one of a finished or stopped island;
+//   - every parent link resolves to a genome of the same run, of an earlier
+//     generation (the previous one, in reproducible mode);
+//   - elites and migrants have a parent; seeded genomes and immigrants have none;
+//   - each completed generation has its statistics row;
+//   - the run's evaluation counter equals the evaluations stored.
+//
+// Thread safety: a function; opens its own connection.
+#ifndef SKERRY_SERVER_STORE_CHECK_H_
+#define SKERRY_SERVER_STORE_CHECK_H_
+
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+
+namespace skerry::store {
+
+struct CheckReport {
+  std::string integrity;             // "ok" or SQLite's findings
+  std::vector<std::string> problems;  // empty when every invariant holds
+  int runs = 0;
+  long long genomes = 0;
+  bool ok() const { return integrity == "ok" && problems.empty(); }
+  std::string ToString() const;
+};
+
+// Fails only when the file cannot be read as a Skerry database at all.
+absl::StatusOr<CheckReport> CheckDatabase(const std::string& path);
+
+}  // namespace skerry::store
+
+#endif  // SKERRY_SERVER_STORE_CHECK_H_
