@@ -167,6 +167,9 @@ std::string FormatRunDetails(const skerry::v1::GetRunResponse& response) {
                        : "none yet"},
   };
   if (!run.message().empty()) fields.push_back({"message", run.message()});
+  if (!run.coordinator_problem().empty()) {
+    fields.push_back({"problem", run.coordinator_problem()});
+  }
   std::string out;
   for (const auto& field : fields) {
     absl::StrAppend(&out, Pad(field[0], 12, false), field[1], "\n");
@@ -187,6 +190,24 @@ std::string FormatRunDetails(const skerry::v1::GetRunResponse& response) {
                   FormatTable({"ISLAND", "GEN", "EVALUATED", "BEST", "MEAN",
                                "DIVERSITY", ""},
                               rows, {0, 1, 2, 3, 4, 5}));
+  absl::StrAppend(&out, FormatFailedGenomes(response));
+  return out;
+}
+
+std::string FormatFailedGenomes(const skerry::v1::GetRunResponse& response) {
+  if (response.failed_count() == 0) return "";
+  std::string out = absl::StrCat(
+      "\n", FormatCount(response.failed_count()),
+      " genomes failed every attempt (they rank last)",
+      response.failed_size() < static_cast<int>(response.failed_count())
+          ? absl::StrCat("; the newest ", response.failed_size(), ":")
+          : ":",
+      "\n");
+  for (const skerry::v1::Genome& g : response.failed()) {
+    absl::StrAppend(&out, "  genome ", g.id(), " (", g.key().island(), "/",
+                    g.key().generation(), "/", g.key().slot(), ", ",
+                    g.attempts(), " attempts): ", g.error(), "\n");
+  }
   return out;
 }
 
@@ -258,6 +279,9 @@ std::string FormatProgressLine(const RunSummary& run,
       "  evals ", FormatCount(run.evaluations()), "  best ", RunBest(run));
   if (done > 0) {
     absl::StrAppend(&line, "  islands done ", done, "/", run.islands_size());
+  }
+  if (!run.coordinator_problem().empty()) {
+    absl::StrAppend(&line, "  [coordinator cannot write its database: work held]");
   }
   // Every island with more than one: generation and best of its last complete
   // generation ("-" before the first).

@@ -51,6 +51,8 @@ std::string FormatRunList(const std::vector<skerry::v1::RunSummary>& runs,
 
 // The summary block of `skerry show`.
 std::string FormatRunDetails(const skerry::v1::GetRunResponse& run);
+// The failed genomes of a run, and why ("" when none failed).
+std::string FormatFailedGenomes(const skerry::v1::GetRunResponse& run);
 
 // Per generation over all islands: the best score (by `objective`), the mean
 // of the islands' means, and the islands that reported it. Only the last

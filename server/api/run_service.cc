@@ -80,6 +80,15 @@ grpc::Status RunServiceImpl::GetRun(grpc::ServerContext* ctx,
   *resp->mutable_spec() = rec->spec;
   resp->set_workers(
       static_cast<uint32_t>(fleet_->ActiveWorkers(absl::Minutes(1))));
+  absl::StatusOr<uint64_t> failed = store_->CountFailed(rec->id);
+  if (!failed.ok()) return ToGrpc(failed.status());
+  resp->set_failed_count(*failed);
+  if (*failed > 0) {
+    absl::StatusOr<std::vector<store::GenomeRecord>> list =
+        store_->FailedGenomes(rec->id, 20);
+    if (!list.ok()) return ToGrpc(list.status());
+    for (const store::GenomeRecord& g : *list) *resp->add_failed() = ToGenomeProto(g);
+  }
   return grpc::Status::OK;
 }
 

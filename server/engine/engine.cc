@@ -155,7 +155,10 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
     std::vector<GenomeRecord> g0 = Seed(prepared, i);
     for (GenomeRecord& g : g0) genomes.push_back(std::move(g));
   }
-  SKERRY_RETURN_IF_ERROR(store_->CreateRun(&rec, &genomes));
+  if (absl::Status s = store_->CreateRun(&rec, &genomes); !s.ok()) {
+    NoteWriteFailure(s);
+    return s;
+  }
 
   auto run = std::make_unique<Run>();
   run->record = rec;
@@ -251,6 +254,8 @@ void Engine::CommitterLoop() {
     if (!jobs.empty()) ProcessJobs(std::move(jobs));
     {
       absl::MutexLock l(&mu_);
+      RetryWrites();
+      if (!write_problem_.ok()) continue;
       // Retry what a failed write left undone, and apply wall-time limits.
       std::vector<int64_t> ids;
       for (const auto& [id, run] : runs_) ids.push_back(id);
@@ -259,11 +264,12 @@ void Engine::CommitterLoop() {
         if (it == runs_.end()) continue;
         absl::Status s = Advance(*it->second);
         if (!s.ok()) {
+          NoteWriteFailure(s);
           std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
                        s.ToString().c_str());
         }
       }
-      CheckWallTime().IgnoreError();
+      NoteWriteFailure(CheckWallTime());
     }
     if (stopping) {
       absl::MutexLock l(&jobs_mu_);
@@ -342,6 +348,7 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
       updates.empty() ? absl::OkStatus() : store_->CommitResults(updates);
   if (!committed.ok()) {
     queue_->Unclaim(claimed);
+    NoteWriteFailure(committed);
     std::fprintf(stderr, "results not committed: %s\n",
                  committed.ToString().c_str());
   } else {
@@ -388,10 +395,43 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
     if (it == runs_.end()) continue;
     absl::Status s = Advance(*it->second);
     if (!s.ok()) {
+      NoteWriteFailure(s);
       std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
                    s.ToString().c_str());
     }
   }
+  NotifyChange();
+}
+
+void Engine::NoteWriteFailure(const absl::Status& s) {
+  if (s.ok()) return;
+  switch (s.code()) {
+    case absl::StatusCode::kResourceExhausted:
+    case absl::StatusCode::kUnavailable:
+    case absl::StatusCode::kInternal:
+    case absl::StatusCode::kDataLoss:
+      break;
+    default:
+      return;  // not the storage's fault
+  }
+  if (!write_problem_.ok()) return;
+  write_problem_ = s;
+  queue_->SetHeld(true);
+  std::fprintf(stderr,
+               "skerry-coordinator: cannot write the database (%s); handing "
+               "out no work until writes succeed again\n",
+               s.ToString().c_str());
+  NotifyChange();
+}
+
+void Engine::RetryWrites() {
+  if (write_problem_.ok()) return;
+  if (!store_->ProbeWrite().ok()) return;
+  std::fprintf(stderr,
+               "skerry-coordinator: the database can be written again; work "
+               "resumes\n");
+  write_problem_ = absl::OkStatus();
+  queue_->SetHeld(false);
   NotifyChange();
 }
 
@@ -667,6 +707,12 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
   s.set_champion_id(static_cast<uint64_t>(rec->champion_id));
   s.set_message(rec->message);
   s.set_objective(rec->spec.objective());
+  if (!write_problem_.ok()) {
+    s.set_coordinator_problem(absl::StrCat(
+        "the coordinator cannot write its database (",
+        write_problem_.message(),
+        "); no work is handed out until writes succeed again"));
+  }
   auto fill_stats = [](skerry::v1::IslandStatus* is,
                        const std::optional<store::StatsRecord>& st) {
     if (!st.has_value()) return;

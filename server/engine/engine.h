@@ -29,6 +29,12 @@
 // emigrants from the newest generation <= g each source has completed so far, or
 // none; the run is then not reproducible and its digest depends on the fleet.
 //
+// Storage trouble (disk full, I/O error): a failed commit changes nothing in the
+// cache; the engine stops handing out work (TaskQueue::SetHeld), says why in
+// every run summary, keeps answering reads, probes the database every second,
+// and resumes by itself when a write succeeds. Workers keep their results and
+// report them again.
+//
 // Thread safety: every public method may be called from any thread.
 #ifndef SKERRY_SERVER_ENGINE_ENGINE_H_
 #define SKERRY_SERVER_ENGINE_ENGINE_H_
@@ -145,6 +151,11 @@ class Engine {
   absl::StatusOr<skerry::v1::RunSummary> SummaryLocked(int64_t run_id)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void NotifyChange() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // A write failed for a reason of the storage (full disk, I/O error, busy):
+  // stop handing out work until ProbeWrite succeeds. Other errors pass.
+  void NoteWriteFailure(const absl::Status& s) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Called by the committer: clears the problem once a probe write succeeds.
+  void RetryWrites() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   // Constant after construction.
   store::Store* const store_;
@@ -154,6 +165,7 @@ class Engine {
   absl::Mutex mu_;
   std::map<int64_t, std::unique_ptr<Run>> runs_ ABSL_GUARDED_BY(mu_);  // active
   uint64_t changes_ ABSL_GUARDED_BY(mu_) = 0;
+  absl::Status write_problem_ ABSL_GUARDED_BY(mu_);  // OK: writes succeed
 
   absl::Mutex jobs_mu_ ABSL_ACQUIRED_AFTER(mu_);
   std::vector<ReportJob*> jobs_ ABSL_GUARDED_BY(jobs_mu_);

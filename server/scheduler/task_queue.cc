@@ -83,7 +83,13 @@ void TaskQueue::ExpireLeases(absl::Time now) {
   }
 }
 
+void TaskQueue::SetHeld(bool held) {
+  absl::MutexLock l(&mu_);
+  held_ = held;
+}
+
 bool TaskQueue::HasReadyLocked() const {
+  if (held_) return false;
   for (const auto& [run, rq] : runs_) {
     if (!rq.paused && rq.queued > 0) return true;
   }

@@ -68,6 +68,9 @@ class TaskQueue {
   void RemoveRun(int64_t run_id);
   void Remove(absl::Span<const int64_t> genome_ids);
   void SetPaused(int64_t run_id, bool paused);
+  // Holds every run: nothing is leased while held (the coordinator cannot
+  // write its database). Renewals and claims go on.
+  void SetHeld(bool held);
 
   // Leases up to `max_tasks` tasks to `worker`, waiting up to `wait` (real time)
   // when none is ready. Expired leases are re-queued first. Each leased task's
@@ -124,6 +127,7 @@ class TaskQueue {
   std::set<std::pair<absl::Time, int64_t>> deadlines_ ABSL_GUARDED_BY(mu_);
   int64_t next_run_ ABSL_GUARDED_BY(mu_) = 0;  // round-robin cursor (run id)
   bool shutdown_ ABSL_GUARDED_BY(mu_) = false;
+  bool held_ ABSL_GUARDED_BY(mu_) = false;
 };
 
 }  // namespace skerry::scheduler

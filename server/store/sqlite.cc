@@ -80,9 +80,10 @@ std::string Statement::ColumnBlob(int i) const {
 }
 
 absl::StatusOr<std::unique_ptr<Connection>> Connection::Open(
-    const std::string& path, int flags) {
+    const std::string& path, int flags, const std::string& vfs) {
   sqlite3* db = nullptr;
-  const int rc = sqlite3_open_v2(path.c_str(), &db, flags, nullptr);
+  const int rc = sqlite3_open_v2(path.c_str(), &db, flags,
+                                 vfs.empty() ? nullptr : vfs.c_str());
   if (rc != SQLITE_OK) {
     absl::Status s = SqliteStatus(rc, db, absl::StrCat("opening ", path));
     sqlite3_close(db);

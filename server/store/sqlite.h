@@ -3,9 +3,11 @@
 //
 // Status codes are chosen by what the caller should do:
 //   SQLITE_BUSY / SQLITE_LOCKED     -> Unavailable (retry the transaction)
-//   SQLITE_FULL / SQLITE_IOERR_*    -> ResourceExhausted / DataLoss-free Internal:
-//                                      the write failed, nothing was committed
-//   SQLITE_CONSTRAINT               -> AlreadyExists / FailedPrecondition
+//   SQLITE_IOERR_* / SQLITE_CANTOPEN -> Unavailable (the write failed, nothing
+//                                      was committed; retry when the disk is back)
+//   SQLITE_FULL                     -> ResourceExhausted (free space, then retry)
+//   SQLITE_CONSTRAINT               -> FailedPrecondition
+//   SQLITE_CORRUPT / SQLITE_NOTADB  -> DataLoss
 //   anything else                   -> Internal
 //
 // Thread safety: none. The owner (Store) serialises access with its own mutex.
@@ -65,6 +67,7 @@ class Statement {
   // Ready for reuse with new bindings.
   void Reset();
 
+  int ColumnCount() const { return sqlite3_column_count(stmt_); }
   int64_t ColumnInt(int i) const { return sqlite3_column_int64(stmt_, i); }
   double ColumnDouble(int i) const { return sqlite3_column_double(stmt_, i); }
   bool ColumnIsNull(int i) const {
@@ -81,7 +84,7 @@ class Statement {
 class Connection {
  public:
   static absl::StatusOr<std::unique_ptr<Connection>> Open(
-      const std::string& path, int flags);
+      const std::string& path, int flags, const std::string& vfs = "");
   ~Connection();
 
   sqlite3* raw() const { return db_; }

@@ -164,13 +164,27 @@ absl::StatusOr<GenomeRecord> ReadGenome(const Statement& s) {
 }  // namespace
 
 absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path) {
+  return Open(path, Options());
+}
+
+absl::Status Store::ProbeWrite() {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_RETURN_IF_ERROR(
+      conn_->Exec("UPDATE schema_version SET version = version"));
+  return txn.Commit();
+}
+
+absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
+                                                   const Options& options) {
   auto with_path = [&path](const absl::Status& s) {
     return absl::Status(s.code(), absl::StrCat(path, ": ", s.message()));
   };
   absl::StatusOr<std::unique_ptr<Connection>> conn = Connection::Open(
-      path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX);
+      path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX,
+      options.vfs);
   if (!conn.ok()) return conn.status();  // already names the path
-  sqlite3_busy_timeout((*conn)->raw(), 5000);
+  sqlite3_busy_timeout((*conn)->raw(), options.busy_timeout_ms);
   std::unique_ptr<Store> store(new Store(path, std::move(*conn)));
   absl::MutexLock l(&store->mu_);
   // Check the file is ours and not newer before changing anything in it.
@@ -661,6 +675,29 @@ absl::StatusOr<int> Store::CountWorkersSeenSince(int64_t since_ms) {
   s.BindInt(1, since_ms);
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
   return row ? static_cast<int>(s.ColumnInt(0)) : 0;
+}
+
+absl::StatusOr<std::vector<GenomeRecord>> Store::FailedGenomes(int64_t run_id,
+                                                              int limit) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare(absl::StrCat(
+                  "SELECT ", kGenomeColumns,
+                  " FROM genomes WHERE run_id = ? AND eval_state = 3 "
+                  "ORDER BY id DESC LIMIT ?")));
+  s.BindInt(1, run_id);
+  s.BindInt(2, limit);
+  return QueryGenomes(&s);
+}
+
+absl::StatusOr<uint64_t> Store::CountFailed(int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare("SELECT count(*) FROM genomes WHERE run_id = ? "
+                             "AND eval_state = 3"));
+  s.BindInt(1, run_id);
+  SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+  return row ? static_cast<uint64_t>(s.ColumnInt(0)) : 0;
 }
 
 absl::StatusOr<Store::Digest> Store::RunDigest(int64_t run_id) {

@@ -170,6 +170,16 @@ class Store {
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path);
+  struct Options {
+    std::string vfs;               // SQLite VFS name; empty: the default
+    int busy_timeout_ms = 5000;
+  };
+  static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path,
+                                                     const Options& options);
+
+  // A small write transaction that changes nothing: OK when the database can
+  // be written again (after a full disk or an I/O error).
+  absl::Status ProbeWrite();
 
   const std::string& path() const { return path_; }
 
@@ -205,6 +215,10 @@ class Store {
   // the lowest island, then the lowest slot.
   absl::StatusOr<std::optional<GenomeRecord>> BestGenome(int64_t run_id);
   absl::StatusOr<int> CountWorkersSeenSince(int64_t since_ms);
+  // FAILED genomes of a run, newest first, at most `limit`; and how many.
+  absl::StatusOr<std::vector<GenomeRecord>> FailedGenomes(int64_t run_id,
+                                                         int limit);
+  absl::StatusOr<uint64_t> CountFailed(int64_t run_id);
   // The run digest documented with DigestResponse in runs.proto.
   struct Digest {
     std::string sha256;

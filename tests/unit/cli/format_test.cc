@@ -360,3 +360,26 @@ TEST(RunStateNameTest, EveryStateHasAWordAndTerminalOnesAreKnown) {
 
 }  // namespace
 }  // namespace skerry::cli
+
+namespace skerry::cli {
+namespace {
+
+TEST(FormatFailedGenomesTest, NamesEachFailedGenomeAndItsError) {
+  auto run = FromText<v1::GetRunResponse>(R"pb(
+    failed_count: 2
+    failed {
+      id: 41
+      key { run_id: 1 island: 0 generation: 3 slot: 7 }
+      attempts: 3
+      error: "score is not a finite number (nan)"
+    }
+  )pb");
+  EXPECT_EQ(FormatFailedGenomes(run),
+            "\n2 genomes failed every attempt (they rank last); the newest 1:\n"
+            "  genome 41 (0/3/7, 3 attempts): score is not a finite number "
+            "(nan)\n");
+  EXPECT_EQ(FormatFailedGenomes(v1::GetRunResponse()), "");
+}
+
+}  // namespace
+}  // namespace skerry::cli
