@@ -7,7 +7,9 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "absl/strings/str_replace.h"
 #include "absl/strings/str_split.h"
+#include "cli/lineage.h"
 
 namespace skerry::cli {
 namespace {
@@ -27,7 +29,7 @@ std::vector<CommandSpec> MakeCommands() {
       {"show",
        {"RUN"},
        {{"all", nullptr, "print every generation, not only the last 20"}},
-       "show a run: state, islands, champion score, per-generation progress",
+       "show a run: state, islands, champion, per-generation progress",
        "Shows a run's state, evaluation count, workers, each island's "
        "generation and best/mean score, the champion's score, then the best "
        "and mean score of each generation over all islands."},
@@ -68,18 +70,26 @@ std::vector<CommandSpec> MakeCommands() {
       {"digest",
        {"RUN"},
        {},
-       "print a run's reproducibility digest (SHA-256 over its genomes)",
+       "print a run's digest (SHA-256 over its genomes)",
        "Prints the SHA-256 digest of the run's genomes in natural-key order "
        "and "
        "how many genomes it covers. Two runs of one spec and seed have the "
        "same "
        "digest however many workers ran them and however often the "
        "coordinator restarted."},
+      {"backup",
+       {"RUN"},
+       {{"to", "FILE", "where to write the copy (must not exist)", true}},
+       "copy the database, or one run, while the coordinator runs",
+       "Writes a consistent copy of run RUN (or of the whole database, with "
+       "RUN = all) to FILE on this machine, made while the coordinator keeps "
+       "working. Restore by starting a coordinator on FILE: "
+       "skerry-coordinator --db FILE."},
       {"local",
        {"SPEC_FILE"},
        {{"workers", "N", "number of in-process workers (1 thread each)", true},
         {"db", "FILE", "SQLite database file to keep the run in", true}},
-       "run a spec in this process: coordinator and workers, no network",
+       "run a spec in one process: coordinator and workers",
        "Starts a coordinator on FILE with no network listener, N in-process "
        "workers, submits SPEC_FILE, follows the run to its end, prints the "
        "champion and shuts everything down. The --coordinator option is not "
@@ -259,7 +269,16 @@ absl::Status CheckComplete(const CommandSpec& command,
 }  // namespace
 
 const std::vector<CommandSpec>& Commands() {
-  static const auto* commands = new std::vector<CommandSpec>(MakeCommands());
+  static const auto* commands = [] {
+    auto* all = new std::vector<CommandSpec>(MakeCommands());
+    // The lineage commands (cli/lineage.h) go before `local` and `help`.
+    std::vector<CommandSpec> lineage = LineageCommandSpecs();
+    auto local = std::find_if(all->begin(), all->end(), [](const auto& c) {
+      return absl::string_view(c.name) == "local";
+    });
+    all->insert(local, lineage.begin(), lineage.end());
+    return all;
+  }();
   return *commands;
 }
 
@@ -364,9 +383,12 @@ std::string GeneralHelp() {
   }
   for (const CommandSpec& command : Commands()) {
     std::string name = command.name;
+    // Summaries wrap to stay within 80 columns, continued under themselves.
+    const std::string indent(width + 4, ' ');
+    const std::string summary = absl::StrReplaceAll(
+        Wrap(command.summary, 80 - indent.size()), {{"\n", "\n" + indent}});
     absl::StrAppend(&help, "  ", name,
-                    std::string(width + 2 - name.size(), ' '), command.summary,
-                    "\n");
+                    std::string(width + 2 - name.size(), ' '), summary, "\n");
   }
   absl::StrAppend(
       &help,

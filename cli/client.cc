@@ -5,8 +5,14 @@
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "grpcpp/client_context.h"
+#include "grpcpp/create_channel.h"
+#include "grpcpp/security/credentials.h"
 
 namespace skerry::cli {
+
+std::shared_ptr<grpc::Channel> CoordinatorChannel(const std::string& target) {
+  return grpc::CreateChannel(target, grpc::InsecureChannelCredentials());
+}
 namespace {
 
 using skerry::v1::RunRef;

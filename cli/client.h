@@ -18,6 +18,7 @@
 #include "absl/status/status.h"
 #include "absl/status/statusor.h"
 #include "absl/strings/string_view.h"
+#include "grpcpp/channel.h"
 #include "absl/time/time.h"
 #include "grpcpp/support/status.h"
 #include "skerry/v1/runs.grpc.pb.h"
@@ -37,6 +38,10 @@ absl::Status FromGrpc(const grpc::Status& status, absl::string_view call,
 
 // True for the codes that mean "no coordinator answered" (exit code 3).
 bool IsUnreachable(const absl::Status& status);
+
+// The channel to a coordinator at HOST:PORT: the one place the CLI chooses
+// credentials.
+std::shared_ptr<grpc::Channel> CoordinatorChannel(const std::string& target);
 
 class RunClient {
  public:

@@ -1,5 +1,7 @@
 #include "cli/commands.h"
 
+#include "cli/backup.h"
+
 #include <algorithm>
 #include <cerrno>
 #include <cstring>
@@ -9,6 +11,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "cli/format.h"
+#include "cli/lineage.h"
 #include "cli/local.h"
 #include "common/spec.h"
 
@@ -309,6 +312,14 @@ int RunCli(const std::vector<std::string>& args,
   }
   if (parsed->help || parsed->command == "help") return Help(*parsed, io);
   if (parsed->command == "local") return LocalCommand(*parsed, io);
+  if (IsLineageCommand(parsed->command)) {
+    return LineageCommand(*parsed, NetworkLineageStubs(), TerminalConfirm(), io);
+  }
+  if (parsed->command == "backup") {
+    auto admin = skerry::v1::AdminService::NewStub(
+        CoordinatorChannel(parsed->coordinator));
+    return BackupCommand(*parsed, *admin, io);
+  }
   std::unique_ptr<RunClient> client = factory(parsed->coordinator);
   return Dispatch(*parsed, *client, io);
 }

@@ -24,8 +24,7 @@ int main(int argc, char** argv) {
   io.interactive = isatty(fileno(stdout)) != 0;
   io.zone = absl::LocalTimeZone();
   auto factory = [](const std::string& target) {
-    auto channel =
-        grpc::CreateChannel(target, grpc::InsecureChannelCredentials());
+    auto channel = skerry::cli::CoordinatorChannel(target);
     return std::make_unique<skerry::cli::RunClient>(
         skerry::v1::RunService::NewStub(channel), target);
   };

@@ -6,6 +6,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "common/pole.h"
 
 namespace skerry {
 namespace {
@@ -131,6 +132,12 @@ std::vector<std::string> BuiltinNames() {
 
 absl::StatusOr<std::unique_ptr<Evaluator>> MakeEvaluator(
     const skerry::v1::EvaluatorSpec& spec) {
+  if (pole::IsPoleEvaluator(spec)) return pole::MakePoleEvaluator(spec);
+  if (spec.kind_case() == skerry::v1::EvaluatorSpec::kExternal) {
+    return absl::FailedPreconditionError(
+        "evaluator.external: external evaluators run in a child process of "
+        "the worker, not in-process");
+  }
   const std::string& name = spec.builtin().function();  // "" when unset
   const BuiltinFunction* function =
       spec.kind_case() == skerry::v1::EvaluatorSpec::kBuiltin

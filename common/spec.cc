@@ -10,6 +10,8 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "common/evaluator.h"
+#include "common/network.h"
+#include "common/pole.h"
 #include "google/protobuf/descriptor.h"
 #include "google/protobuf/io/tokenizer.h"
 #include "google/protobuf/text_format.h"
@@ -304,10 +306,73 @@ absl::Status CheckMigration(const RunSpec& spec, uint32_t min_pop) {
   return s;
 }
 
+// Pole evaluators: scores are maximised and the genome is the network.
+absl::Status CheckNetworkRun(const RunSpec& spec) {
+  const auto& ev = spec.evaluator();
+  if (ev.kind_case() == skerry::v1::EvaluatorSpec::kBuiltin &&
+      (ev.has_network() || ev.has_episodes())) {
+    return Bad(ev.has_network() ? "evaluator.network" : "evaluator.episodes",
+               "the builtin functions use neither a network nor episodes",
+               "unset", "set");
+  }
+  if (!pole::IsPoleEvaluator(ev)) return absl::OkStatus();
+  if (spec.objective() != skerry::v1::MAXIMIZE) {
+    return Bad("objective", "pole balancing scores are maximised", "MAXIMIZE",
+               skerry::v1::Objective_Name(spec.objective()));
+  }
+  absl::StatusOr<uint64_t> weights = WeightCount(ev.network());
+  if (!weights.ok()) return weights.status();
+  if (spec.genome_length() != *weights) {
+    return Bad("genome_length",
+               "must equal the number of weights evaluator.network has",
+               absl::StrCat(*weights), absl::StrCat(spec.genome_length()));
+  }
+  return absl::OkStatus();
+}
+
+// External evaluators: whether argv[0] can be run is known only at the worker
+// (its PATH, its files), so submit checks the shape alone.
+absl::Status CheckExternal(const skerry::v1::ExternalEvaluator& ext) {
+  if (ext.argv().empty() || ext.argv(0).empty()) {
+    return Bad("evaluator.external.argv", "no program given",
+               "the program then its arguments, e.g. argv: \"/usr/bin/python3\"",
+               ext.argv().empty() ? "nothing" : "an empty argv[0]");
+  }
+  for (const auto& entry : ext.env()) {
+    const std::string& name = entry.first;
+    if (name.empty() || name.find('=') != std::string::npos) {
+      return Bad("evaluator.external.env", "bad variable name",
+                 "a non-empty name without '='", absl::StrCat("\"", name, "\""));
+    }
+  }
+  return absl::OkStatus();
+}
+
 absl::Status CheckEvaluator(const RunSpec& spec) {
-  if (absl::Status s = MakeEvaluator(spec.evaluator()).status(); !s.ok()) {
+  if (spec.evaluator().kind_case() == skerry::v1::EvaluatorSpec::kExternal) {
+    if (absl::Status s = CheckExternal(spec.evaluator().external()); !s.ok()) {
+      return s;
+    }
+    // Episodes: one request each (docs/evaluator-protocol.md); 0 means 1.
+    const auto& episodes = spec.evaluator().episodes();
+    if (absl::Status s =
+            CheckRange("evaluator.episodes.count", episodes.count(), 0, 1000);
+        !s.ok()) {
+      return s;
+    }
+    if (episodes.aggregate() != skerry::v1::AGGREGATE_UNSPECIFIED) {
+      if (absl::Status s = CheckEnum("evaluator.episodes.aggregate",
+                                     episodes.aggregate(),
+                                     skerry::v1::EpisodeAggregate_descriptor());
+          !s.ok()) {
+        return s;
+      }
+    }
+  } else if (absl::Status s = MakeEvaluator(spec.evaluator()).status();
+             !s.ok()) {
     return s;
   }
+  if (absl::Status s = CheckNetworkRun(spec); !s.ok()) return s;
   return CheckPositiveFinite("evaluator.time_limit_seconds",
                              spec.evaluator().time_limit_seconds());
 }
@@ -387,6 +452,23 @@ void NormalizeIslands(skerry::v1::IslandSpec* isl) {
   if (isl->random_degree() == 0) isl->set_random_degree(1);
 }
 
+// Pole evaluators: their own defaults, then MAXIMIZE, network weights in
+// [-10, 10] and genome_length = the weight count, each only when unset.
+void NormalizeNetworkRun(RunSpec* spec) {
+  if (!pole::IsPoleEvaluator(spec->evaluator())) return;
+  pole::NormalizePoleEvaluator(spec->mutable_evaluator());
+  if (spec->objective() == skerry::v1::OBJECTIVE_UNSPECIFIED) {
+    spec->set_objective(skerry::v1::MAXIMIZE);
+  }
+  if (!spec->has_lower_bound()) spec->set_lower_bound(-10.0);
+  if (!spec->has_upper_bound()) spec->set_upper_bound(10.0);
+  absl::StatusOr<uint64_t> weights = WeightCount(spec->evaluator().network());
+  if (spec->genome_length() == 0 && weights.ok() &&
+      *weights <= kMaxGenomeLength) {
+    spec->set_genome_length(static_cast<uint32_t>(*weights));
+  }
+}
+
 }  // namespace
 
 absl::StatusOr<RunSpec> ParseSpecText(absl::string_view text,
@@ -406,6 +488,7 @@ absl::StatusOr<RunSpec> ParseSpecText(absl::string_view text,
 
 void NormalizeSpec(RunSpec* spec) {
   if (spec->name().empty()) spec->set_name("run");
+  NormalizeNetworkRun(spec);
   if (spec->objective() == skerry::v1::OBJECTIVE_UNSPECIFIED) {
     spec->set_objective(skerry::v1::MINIMIZE);
   }
@@ -438,8 +521,14 @@ void NormalizeSpec(RunSpec* spec) {
 }
 
 absl::Status ValidateSpec(const RunSpec& spec) {
+  // A bad network leaves genome_length unfilled; name the network, not that.
   absl::Status s =
-      CheckRange("genome_length", spec.genome_length(), 1, kMaxGenomeLength);
+      pole::IsPoleEvaluator(spec.evaluator())
+          ? ValidateNetworkSpec(spec.evaluator().network(), "evaluator.network")
+          : absl::OkStatus();
+  if (s.ok()) {
+    s = CheckRange("genome_length", spec.genome_length(), 1, kMaxGenomeLength);
+  }
   if (s.ok()) {
     s = CheckEnum("objective", spec.objective(),
                   skerry::v1::Objective_descriptor());

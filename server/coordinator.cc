@@ -7,10 +7,13 @@
 #include "absl/synchronization/mutex.h"
 #include "common/status_macros.h"
 #include "grpcpp/grpcpp.h"
+#include "server/api/admin_service.h"
 #include "server/api/fleet_service.h"
 #include "server/api/run_service.h"
 #include "server/engine/engine.h"
+#include "server/lineage/lineage_service.h"
 #include "server/scheduler/task_queue.h"
+#include "server/store/owner_lock.h"
 #include "server/store/store.h"
 
 namespace skerry::server {
@@ -26,6 +29,7 @@ class CoordinatorImpl final : public Coordinator {
       const CoordinatorOptions& options) {
     std::unique_ptr<CoordinatorImpl> c(new CoordinatorImpl());
     c->clock_ = options.clock != nullptr ? options.clock : Clock::Real();
+    SKERRY_ASSIGN_OR_RETURN(c->owner_, store::OwnerLock::Acquire(options.db_path));
     SKERRY_ASSIGN_OR_RETURN(c->store_, store::Store::Open(options.db_path));
     c->queue_ = std::make_unique<scheduler::TaskQueue>(c->clock_, options.lease);
     SKERRY_ASSIGN_OR_RETURN(
@@ -36,6 +40,8 @@ class CoordinatorImpl final : public Coordinator {
         options.max_lease_wait);
     c->runs_ = std::make_unique<api::RunServiceImpl>(
         c->store_.get(), c->engine_.get(), c->fleet_.get());
+    SKERRY_ASSIGN_OR_RETURN(c->lineage_,
+                            lineage::LineageServiceImpl::Open(options.db_path));
 
     grpc::ServerBuilder builder;
     if (!options.listen_address.empty()) {
@@ -46,6 +52,9 @@ class CoordinatorImpl final : public Coordinator {
     builder.SetMaxSendMessageSize(kMaxMessageBytes);
     builder.RegisterService(c->fleet_.get());
     builder.RegisterService(c->runs_.get());
+    c->admin_ = std::make_unique<api::AdminServiceImpl>(options.db_path);
+    builder.RegisterService(c->admin_.get());
+    builder.RegisterService(c->lineage_.get());
     c->server_ = builder.BuildAndStart();
     if (c->server_ == nullptr ||
         (!options.listen_address.empty() && c->port_ == 0)) {
@@ -73,11 +82,14 @@ class CoordinatorImpl final : public Coordinator {
       if (shut_down_) return;
       shut_down_ = true;
     }
-    queue_->Shutdown();  // wakes long polls
-    server_->Shutdown(std::chrono::system_clock::now() +
-                      std::chrono::seconds(5));
-    engine_->Shutdown();
-    server_->Wait();
+    // Any part may be missing when Make() failed half-way.
+    if (queue_ != nullptr) queue_->Shutdown();  // wakes long polls
+    if (server_ != nullptr) {
+      server_->Shutdown(std::chrono::system_clock::now() +
+                        std::chrono::seconds(5));
+    }
+    if (engine_ != nullptr) engine_->Shutdown();
+    if (server_ != nullptr) server_->Wait();
   }
 
   void Wait() override {
@@ -89,11 +101,14 @@ class CoordinatorImpl final : public Coordinator {
   CoordinatorImpl() = default;
 
   Clock* clock_ = nullptr;
+  std::unique_ptr<store::OwnerLock> owner_;  // released last
   std::unique_ptr<store::Store> store_;
   std::unique_ptr<scheduler::TaskQueue> queue_;
   std::unique_ptr<engine::Engine> engine_;
   std::unique_ptr<api::FleetServiceImpl> fleet_;
   std::unique_ptr<api::RunServiceImpl> runs_;
+  std::unique_ptr<api::AdminServiceImpl> admin_;
+  std::unique_ptr<lineage::LineageServiceImpl> lineage_;
   std::unique_ptr<grpc::Server> server_;
   int port_ = 0;
 

@@ -19,6 +19,10 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
   --lease-seconds N     how long a worker holds tasks without renewing
                         (default 30)
   --max-wait-ms N       cap on a worker's long poll (default 10000)
+  --check DB            check DB (SQLite integrity and Skerry's invariants:
+                        whole generations, resolvable parent links, counters),
+                        print a report and exit: 0 ok, 1 problems found,
+                        2 cannot read it. Safe while a coordinator runs.
   --help                this text
 )";
 }
@@ -48,6 +52,10 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
     };
     if (arg == "--help" || arg == "-h") {
       f.help = true;
+    } else if (arg == "--check") {
+      absl::StatusOr<std::string> v = value("--check");
+      if (!v.ok()) return v.status();
+      f.check_db = *v;
     } else if (arg == "--db") {
       absl::StatusOr<std::string> v = value("--db");
       if (!v.ok()) return v.status();
@@ -69,7 +77,7 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
           absl::StrCat("unknown argument \"", arg, "\""));
     }
   }
-  if (!f.help && f.options.db_path.empty()) {
+  if (!f.help && f.check_db.empty() && f.options.db_path.empty()) {
     return absl::InvalidArgumentError("--db: a database file is required");
   }
   return f;

@@ -12,6 +12,7 @@ namespace skerry::server {
 struct CoordinatorFlags {
   CoordinatorOptions options;
   bool help = false;
+  std::string check_db;  // --check DB: check and exit
 };
 
 // InvalidArgument names the flag and what it takes.

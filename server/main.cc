@@ -8,6 +8,7 @@
 
 #include "server/coordinator.h"
 #include "server/coordinator_flags.h"
+#include "server/store/check.h"
 
 int main(int argc, char** argv) {
   absl::StatusOr<skerry::server::CoordinatorFlags> flags =
@@ -20,6 +21,18 @@ int main(int argc, char** argv) {
   if (flags->help) {
     std::fputs(skerry::server::CoordinatorUsage().c_str(), stdout);
     return 0;
+  }
+  if (!flags->check_db.empty()) {
+    absl::StatusOr<skerry::store::CheckReport> report =
+        skerry::store::CheckDatabase(flags->check_db);
+    if (!report.ok()) {
+      std::fprintf(stderr, "skerry-coordinator: --check %s: %s\n",
+                   flags->check_db.c_str(),
+                   std::string(report.status().message()).c_str());
+      return 2;
+    }
+    std::fputs(report->ToString().c_str(), stdout);
+    return report->ok() ? 0 : 1;
   }
   // Signals are taken by one thread with sigwait, never by a handler.
   sigset_t signals;
