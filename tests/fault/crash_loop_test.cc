@@ -1,0 +1,223 @@
+// The crash loop: one run with several islands while the harness kills the
+// coordinator with SIGKILL at seeded random moments and restarts it on the same
+// database, kills workers with SIGKILL, and freezes one with SIGSTOP past its
+// lease. At the end the run has finished, SQLite's integrity check and our own
+// invariants hold (--check), no genome is missing or doubled, and the digest
+// equals that of an uninterrupted run of the same spec and seed.
+//
+// SKERRY_CRASH_KILLS sets the number of coordinator kills (default 20, as in CI;
+// use 100 or more locally). Every wait is bounded.
+#include <signal.h>
+
+#include <algorithm>
+#include <cstdlib>
+#include <random>
+#include <string>
+
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
+#include "gtest/gtest.h"
+#include "tests/support/db_check.h"
+#include "tests/support/process.h"
+
+namespace skerry {
+namespace {
+
+using testing::CommandResult;
+using testing::Process;
+using testing::QueryText;
+using testing::RunCommand;
+
+constexpr int kIslands = 4;
+constexpr int kPopulation = 20;
+
+constexpr char kSpec[] = R"(
+name: "crash-loop"
+seed: 99173
+genome_length: 8
+evaluator { builtin { function: "griewank" } }
+ga {
+  population_size: 20
+  selection { method: STOCHASTIC_UNIVERSAL scaling: LINEAR }
+  crossover { method: TWO_POINT rate: 0.8 }
+  mutation { rate: 0.2 step: 20 }
+  elites: 2
+  immigrants: 1
+}
+islands { count: 4 topology: RANDOM random_degree: 2 interval: 4 migrants: 2 }
+stop { max_generations: GENERATIONS }
+)";
+
+// Long enough for the kills wanted: about a dozen generations per kill.
+int GenerationsFor(int kills) { return std::max(250, kills * 13); }
+
+int KillsWanted() {
+  int n = 20;
+  if (const char* env = std::getenv("SKERRY_CRASH_KILLS")) {
+    if (!absl::SimpleAtoi(env, &n) || n < 1 || n > 100000) n = 20;
+  }
+  return n;
+}
+
+std::string DigestIn(const std::string& output) {
+  for (absl::string_view w : absl::StrSplit(output, absl::ByAnyChar(" \n"))) {
+    if (w.size() == 64 &&
+        w.find_first_not_of("0123456789abcdef") == absl::string_view::npos) {
+      return std::string(w);
+    }
+  }
+  return "";
+}
+
+int64_t Evaluations(const std::string& db) {
+  int64_t n = 0;
+  if (!absl::SimpleAtoi(QueryText(db, "SELECT evaluations FROM runs WHERE id = 1"), &n)) {
+    return 0;
+  }
+  return n;
+}
+
+std::string State(const std::string& db) {
+  return QueryText(db, "SELECT state FROM runs WHERE id = 1");
+}
+
+TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
+  testing::TempDir dir;
+  const int kills_wanted = KillsWanted();
+  const int kGenerations = GenerationsFor(kills_wanted);
+  const std::string spec = dir.File("crash.spec");
+  {
+    std::string text = kSpec;
+    text.replace(text.find("GENERATIONS"), 11, absl::StrCat(kGenerations));
+    FILE* f = std::fopen(spec.c_str(), "w");
+    ASSERT_NE(f, nullptr);
+    std::fputs(text.c_str(), f);
+    std::fclose(f);
+  }
+  // The reference: the same spec and seed, nothing disturbed.
+  CommandResult reference = RunCommand({SKERRY_CLI_BIN, "local", spec, "--workers",
+                                        "2", "--db", dir.File("reference.db")},
+                                       absl::Seconds(300));
+  ASSERT_EQ(reference.exit_code, 0) << reference.output;
+  const std::string want = DigestIn(reference.output);
+  ASSERT_EQ(want.size(), 64u) << reference.output;
+
+  const std::string db = dir.File("crash.db");
+  const std::string log = dir.File("coordinator.log");
+  const std::vector<std::string> flags = {"--lease-seconds", "1",
+                                          "--max-wait-ms", "500"};
+  // kill -9 drops the ownership lock with the process, so each restart may
+  // take the database at once.
+  absl::StatusOr<testing::StartedCoordinator> c =
+      testing::StartCoordinator(SKERRY_COORDINATOR_BIN, db, log, flags);
+  ASSERT_TRUE(c.ok()) << c.status();
+  // Later coordinators must listen on the same port so that workers find them.
+  const int port = c->port;
+  const std::string address = c->address();
+  CommandResult submit =
+      RunCommand({SKERRY_CLI_BIN, "--coordinator", address, "submit", spec});
+  ASSERT_EQ(submit.exit_code, 0) << submit.output;
+
+  int worker_serial = 0;
+  auto start_worker = [&]() {
+    absl::StatusOr<Process> w = Process::Start(
+        {SKERRY_WORKER_BIN, "--coordinator", address, "--threads", "2",
+         "--batch", "6", "--name", absl::StrCat("w", worker_serial)},
+        dir.File(absl::StrCat("worker", worker_serial, ".log")));
+    ++worker_serial;
+    EXPECT_TRUE(w.ok()) << w.status();
+    return std::move(*w);
+  };
+  std::vector<Process> workers;
+  workers.push_back(start_worker());
+  workers.push_back(start_worker());
+  workers.push_back(start_worker());
+
+  std::mt19937 rng(20261201);  // seeded: the same moments on every run
+  int kills = 0;
+  int worker_kills = 0;
+  bool froze = false;
+  std::unique_ptr<testing::StartedCoordinator> coordinator =
+      std::make_unique<testing::StartedCoordinator>(std::move(*c));
+  const absl::Time give_up =
+      absl::Now() + absl::Minutes(8) + absl::Seconds(3 * kills_wanted);
+  while (kills < kills_wanted && absl::Now() < give_up) {
+    // Wait for some progress since the last start, then a random moment more.
+    const int64_t before = Evaluations(db);
+    const bool progressed = testing::WaitFor(
+        [&] { return Evaluations(db) > before || State(db) != "2"; },
+        absl::Seconds(60));
+    ASSERT_TRUE(progressed) << "no progress after restart " << kills << "\n"
+                            << coordinator->process.Log();
+    if (State(db) != "2") break;  // finished before all kills were spent
+    absl::SleepFor(absl::Milliseconds(std::uniform_int_distribution<int>(0, 60)(rng)));
+    coordinator->process.Kill();  // SIGKILL
+    ++kills;
+    if (kills % 4 == 0) {
+      // A worker dies too, and a fresh one joins.
+      const size_t victim = static_cast<size_t>(rng() % workers.size());
+      workers[victim].Kill();
+      workers[victim] = start_worker();
+      ++worker_kills;
+    }
+    if (kills == 3) {
+      // Freeze one worker (holding its lease, most likely) past its lease.
+      workers[0].Signal(SIGSTOP);
+      froze = true;
+    }
+    if (kills == 6 && froze) workers[0].Signal(SIGCONT);
+    // The new coordinator listens on the old port so that workers find it.
+    const std::string next_log = dir.File(absl::StrCat("coordinator", kills, ".log"));
+    absl::StatusOr<Process> next = Process::Start(
+        {SKERRY_COORDINATOR_BIN, "--db", db, "--listen",
+         absl::StrCat("127.0.0.1:", port), "--lease-seconds", "1",
+         "--max-wait-ms", "500"},
+        next_log);
+    ASSERT_TRUE(next.ok()) << next.status();
+    coordinator = std::make_unique<testing::StartedCoordinator>(
+        testing::StartedCoordinator{std::move(*next), port});
+    ASSERT_TRUE(testing::WaitFor(
+        [&] {
+          return coordinator->process.Log().find("listening on port") !=
+                 std::string::npos;
+        },
+        absl::Seconds(30)))
+        << coordinator->process.Log();
+  }
+  if (froze) workers[0].Signal(SIGCONT);
+  EXPECT_GE(kills, std::min(kills_wanted, 20))
+      << "the run finished before enough kills; make it longer";
+  RecordProperty("coordinator_kills", kills);
+  RecordProperty("worker_kills", worker_kills);
+
+  ASSERT_TRUE(testing::WaitFor([&] { return State(db) == "4"; }, absl::Minutes(5)))
+      << "run did not finish; state " << State(db) << "\n"
+      << coordinator->process.Log();
+
+  CommandResult digest =
+      RunCommand({SKERRY_CLI_BIN, "--coordinator", address, "digest", "1"});
+  ASSERT_EQ(digest.exit_code, 0) << digest.output;
+  EXPECT_EQ(DigestIn(digest.output), want)
+      << "after " << kills << " coordinator kills and " << worker_kills
+      << " worker kills";
+
+  coordinator->process.Signal(SIGTERM);
+  ASSERT_TRUE(coordinator->process.Wait(absl::Seconds(30)).ok());
+  for (Process& w : workers) w.Kill();
+
+  CommandResult check = RunCommand({SKERRY_COORDINATOR_BIN, "--check", db});
+  EXPECT_EQ(check.exit_code, 0) << check.output;
+  EXPECT_NE(check.output.find("integrity_check: ok"), std::string::npos)
+      << check.output;
+  // No genome missing or doubled: exactly one per natural key.
+  EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE run_id = 1"),
+            absl::StrCat(kIslands * kPopulation * kGenerations));
+  EXPECT_EQ(QueryText(db, "SELECT count(*) FROM (SELECT DISTINCT island, "
+                          "generation, slot FROM genomes WHERE run_id = 1)"),
+            absl::StrCat(kIslands * kPopulation * kGenerations));
+  EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE eval_state = 1"), "0");
+}
+
+}  // namespace
+}  // namespace skerry
