@@ -108,6 +108,9 @@ grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
   if (!outcome.ok()) return ToGrpc(outcome.status());
   resp->set_accepted(outcome->accepted);
   resp->set_ignored(outcome->ignored);
+  for (skerry::v1::RejectedResult& r : outcome->rejected) {
+    *resp->add_rejected() = std::move(r);
+  }
   return grpc::Status::OK;
 }
 

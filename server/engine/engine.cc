@@ -297,10 +297,18 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
   for (size_t j = 0; j < jobs.size(); ++j) {
     for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
       const bool failed = !r.error().empty() || !std::isfinite(r.score());
-      std::optional<scheduler::TaskInfo> info =
-          queue_->Claim(jobs[j]->worker_id, r.task_id(), r.attempt(), failed);
-      if (!info.has_value()) {
+      auto reject = [&](const absl::Status& why) {
         ++outcomes[j].ignored;
+        skerry::v1::RejectedResult* x = &outcomes[j].rejected.emplace_back();
+        x->set_task_id(r.task_id());
+        x->set_code(static_cast<uint32_t>(why.code()));
+        x->set_message(std::string(why.message()));
+      };
+      absl::Status why;
+      std::optional<scheduler::TaskInfo> info = queue_->Claim(
+          jobs[j]->worker_id, r.task_id(), r.attempt(), failed, &why);
+      if (!info.has_value()) {
+        reject(why);
         continue;
       }
       claimed.push_back(info->genome_id);
@@ -314,7 +322,8 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
         // Not part of a live generation any more (the run ended): forget it.
         queue_->Complete({info->genome_id});
         claimed.pop_back();
-        ++outcomes[j].ignored;
+        reject(absl::NotFoundError(absl::StrCat(
+            "task ", r.task_id(), " belongs to a run that has ended")));
         continue;
       }
       Run& run = *run_it->second;

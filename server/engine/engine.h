@@ -62,6 +62,7 @@ namespace skerry::engine {
 struct ReportOutcome {
   uint32_t accepted = 0;
   uint32_t ignored = 0;
+  std::vector<skerry::v1::RejectedResult> rejected;  // one per ignored result
 };
 
 class Engine {

@@ -2,6 +2,8 @@
 
 #include <algorithm>
 
+#include "absl/strings/str_cat.h"
+
 namespace skerry::scheduler {
 
 TaskQueue::TaskQueue(Clock* clock, absl::Duration lease)
@@ -176,16 +178,30 @@ void TaskQueue::Renew(int64_t worker, absl::Span<const uint64_t> genome_ids) {
 }
 
 std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t genome_id,
-                                         uint32_t attempt,
-                                         bool failed_attempt) {
+                                         uint32_t attempt, bool failed_attempt,
+                                         absl::Status* why) {
+  auto refuse = [&](absl::Status s) -> std::optional<TaskInfo> {
+    if (why != nullptr) *why = std::move(s);
+    return std::nullopt;
+  };
   absl::MutexLock l(&mu_);
   auto t = tasks_.find(static_cast<int64_t>(genome_id));
-  if (t == tasks_.end()) return std::nullopt;
+  if (t == tasks_.end()) {
+    return refuse(absl::NotFoundError(absl::StrCat(
+        "task ", genome_id,
+        " is unknown or its result is already stored (duplicate)")));
+  }
   Entry& e = t->second;
-  if (e.state == State::kClaimed) return std::nullopt;
+  if (e.state == State::kClaimed) {
+    return refuse(absl::AbortedError(absl::StrCat(
+        "another result for task ", genome_id, " is being committed")));
+  }
   if (failed_attempt && (e.state != State::kLeased || e.holder != worker ||
                          e.info.attempts != attempt)) {
-    return std::nullopt;
+    return refuse(absl::FailedPreconditionError(absl::StrCat(
+        "failed attempt ", attempt, " of task ", genome_id,
+        " is not from its current lease (attempt ", e.info.attempts,
+        "); not counted")));
   }
   if (e.state == State::kQueued) --runs_[e.info.run_id].queued;
   DropLease(e);

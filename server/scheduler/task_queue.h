@@ -35,6 +35,7 @@
 #include <vector>
 
 #include "absl/base/thread_annotations.h"
+#include "absl/status/status.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "absl/types/span.h"
@@ -82,8 +83,11 @@ class TaskQueue {
 
   // Claims a task for committing a result (see the result rule above). Returns
   // the task, or nothing when the result must be ignored.
+  // When nothing is returned and `why` is given, *why says why (a NotFound,
+  // Aborted or FailedPrecondition status naming the task).
   std::optional<TaskInfo> Claim(int64_t worker, uint64_t genome_id,
-                                uint32_t attempt, bool failed_attempt);
+                                uint32_t attempt, bool failed_attempt,
+                                absl::Status* why = nullptr);
   // The commit holding claimed results succeeded: forget them.
   void Complete(absl::Span<const int64_t> genome_ids);
   // The commit failed, or the attempt failed and may be retried: queue again.

@@ -371,6 +371,12 @@ TEST_F(EngineTest, DuplicateAndUnknownResultsAreIgnored) {
   ReportOutcome again = ReportTasks(*c, {tasks[0]}, TrueSphere);
   EXPECT_EQ(again.accepted, 0u);
   EXPECT_EQ(again.ignored, 1u);
+  // Each ignored result says why.
+  ASSERT_EQ(again.rejected.size(), 1u);
+  EXPECT_EQ(again.rejected[0].task_id(), tasks[0].task_id());
+  EXPECT_EQ(again.rejected[0].code(),
+            static_cast<uint32_t>(absl::StatusCode::kNotFound));
+  EXPECT_THAT(again.rejected[0].message(), ::testing::HasSubstr("duplicate"));
   auto other_score = [](const Task& t, const GenomeRecord& g) {
     TaskResult r = TrueSphere(t, g);
     r.set_score(-123.0);
@@ -387,6 +393,9 @@ TEST_F(EngineTest, DuplicateAndUnknownResultsAreIgnored) {
   ReportOutcome twice = ReportTasks(*c, {tasks[1], tasks[1]}, TrueSphere);
   EXPECT_EQ(twice.accepted, 1u);
   EXPECT_EQ(twice.ignored, 1u);
+  ASSERT_EQ(twice.rejected.size(), 1u);
+  EXPECT_EQ(twice.rejected[0].code(),
+            static_cast<uint32_t>(absl::StatusCode::kAborted));
 
   // A task nobody handed out.
   TaskResult unknown;
