@@ -177,8 +177,9 @@ class Store {
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path,
                                                      const Options& options);
 
-  // A small write transaction that changes nothing: OK when the database can
-  // be written again (after a full disk or an I/O error).
+  // A small write transaction (it bumps PRAGMA user_version, which Skerry does
+  // not otherwise use): OK when the database can be written again (after a
+  // full disk or an I/O error).
   absl::Status ProbeWrite();
 
   const std::string& path() const { return path_; }
