@@ -1,0 +1,350 @@
+// Storage failure under a running engine (server/engine/engine.h, "Storage
+// trouble"): the engine's store is opened through the fault VFS, the test plays
+// the fleet (Lease and Report on the engine and its task queue, as
+// tests/unit/server/engine_test.cc does) and makes every write fail part-way
+// through a run. While the writes fail: Report answers Unavailable and nothing
+// it carried is stored, no work is handed out, every summary names the
+// problem, reads keep working, and a Submit is refused and stores nothing.
+// Once the disk works again the committer's probe (every second of real time)
+// lifts the hold by itself, the results reported again are accepted, and the
+// run ends with the same digest as an uninterrupted run of the same spec.
+#include <filesystem>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "absl/time/clock.h"
+#include "common/clock.h"
+#include "gtest/gtest.h"
+#include "server/engine/engine.h"
+#include "server/scheduler/task_queue.h"
+#include "server/store/check.h"
+#include "server/store/store.h"
+#include "tests/fault/fault_vfs.h"
+#include "tests/support/db_check.h"
+#include "tests/unit/server/temp_dir.h"
+
+namespace skerry::engine {
+namespace {
+
+using skerry::testing::FaultKind;
+using skerry::testing::FaultKindName;
+using skerry::testing::FaultVfs;
+using skerry::testing::QueryText;
+using skerry::testing::TempDir;
+using skerry::v1::RunSpec;
+using skerry::v1::Task;
+using skerry::v1::TaskResult;
+
+constexpr int64_t kWorker = 1;
+constexpr int kMaxFaultPoint = 60;
+
+// Two islands of 6 on a 3-gene sphere for 4 generations, migrating every
+// generation (the same shape as engine_test's SmallSpec, one generation more).
+RunSpec SmallSpec() {
+  RunSpec spec;
+  spec.set_name("engine-fault");
+  spec.set_seed(77);
+  spec.set_genome_length(3);
+  spec.mutable_evaluator()->mutable_builtin()->set_function("sphere");
+  spec.mutable_ga()->set_population_size(6);
+  spec.mutable_ga()->set_elites(1);
+  spec.mutable_ga()->set_immigrants(1);
+  spec.mutable_islands()->set_count(2);
+  spec.mutable_islands()->set_interval(1);
+  spec.mutable_islands()->set_migrants(1);
+  spec.mutable_stop()->set_max_generations(4);
+  return spec;
+}
+
+// Store, queue and engine, opened and closed together.
+struct Harness {
+  std::unique_ptr<store::Store> store;
+  std::unique_ptr<scheduler::TaskQueue> queue;
+  std::unique_ptr<Engine> engine;
+  ~Harness() {
+    engine.reset();  // joins the committer first
+    queue.reset();
+    store.reset();
+  }
+};
+
+std::unique_ptr<Harness> OpenHarness(const std::string& path, bool faulty,
+                                     Clock* clock) {
+  auto h = std::make_unique<Harness>();
+  store::Store::Options options;
+  if (faulty) options.vfs = FaultVfs::kName;
+  absl::StatusOr<std::unique_ptr<store::Store>> s =
+      store::Store::Open(path, options);
+  EXPECT_TRUE(s.ok()) << s.status();
+  if (!s.ok()) return nullptr;
+  h->store = std::move(*s);
+  h->queue = std::make_unique<scheduler::TaskQueue>(clock, absl::Seconds(30));
+  absl::StatusOr<std::unique_ptr<Engine>> e =
+      Engine::Open(h->store.get(), h->queue.get(), clock);
+  EXPECT_TRUE(e.ok()) << e.status();
+  if (!e.ok()) return nullptr;
+  h->engine = std::move(*e);
+  return h;
+}
+
+// Sphere: sum of x_i^2 (Jamil & Yang 2013, see REFERENCES.md).
+std::vector<TaskResult> Score(const std::vector<Task>& tasks) {
+  std::vector<TaskResult> out;
+  for (const Task& t : tasks) {
+    TaskResult r;
+    r.set_task_id(t.task_id());
+    r.set_attempt(t.attempt());
+    double s = 0.0;
+    for (double x : t.genes()) s += x * x;
+    r.set_score(s);
+    r.set_eval_seconds(0.01);
+    out.push_back(r);
+  }
+  return out;
+}
+
+bool Active(Harness& h, int64_t run_id) {
+  absl::StatusOr<skerry::v1::RunSummary> s = h.engine->Summary(run_id);
+  EXPECT_TRUE(s.ok()) << s.status();
+  return s.ok() && (s->state() == skerry::v1::RUNNING ||
+                    s->state() == skerry::v1::QUEUED);
+}
+
+std::string Problem(Harness& h, int64_t run_id) {
+  absl::StatusOr<skerry::v1::RunSummary> s = h.engine->Summary(run_id);
+  EXPECT_TRUE(s.ok()) << s.status();
+  return s.ok() ? s->coordinator_problem() : "summary failed";
+}
+
+// Everything ready to lease, waiting (real time, bounded) for the committer to
+// breed the next generation after a Report.
+std::vector<Task> LeaseReady(Harness& h) {
+  for (int i = 0; i < 40; ++i) {
+    std::vector<Task> tasks =
+        h.queue->Lease(kWorker, 1000, absl::Milliseconds(50));
+    if (!tasks.empty()) return tasks;
+  }
+  return {};
+}
+
+// Waits (bounded, 10 s of real time) for the committer's probe to lift the
+// hold; true when it did.
+bool WaitUntilWritable(Harness& h, int64_t run_id) {
+  for (int i = 0; i < 200; ++i) {
+    if (Problem(h, run_id).empty()) return true;
+    absl::SleepFor(absl::Milliseconds(50));
+  }
+  return false;
+}
+
+void DriveToEnd(Harness& h, int64_t run_id) {
+  for (int round = 0; round < 100; ++round) {
+    if (!Active(h, run_id)) return;
+    std::vector<Task> tasks = LeaseReady(h);
+    ASSERT_FALSE(tasks.empty()) << "run " << run_id << " is active, no tasks";
+    absl::StatusOr<ReportOutcome> out = h.engine->Report(kWorker, Score(tasks));
+    ASSERT_TRUE(out.ok()) << out.status();
+  }
+  FAIL() << "run " << run_id << " did not finish in 100 rounds";
+}
+
+int64_t Submit(Harness& h) {
+  absl::StatusOr<store::RunRecord> run =
+      h.engine->Submit(SmallSpec(), "spec text", "alice");
+  EXPECT_TRUE(run.ok()) << run.status();
+  return run.ok() ? run->id : 0;
+}
+
+std::string Digest(store::Store& s, int64_t run_id) {
+  absl::StatusOr<store::Store::Digest> d = s.RunDigest(run_id);
+  EXPECT_TRUE(d.ok()) << d.status();
+  return d.ok() ? absl::StrCat(d->sha256, " (", d->genomes, " genomes)") : "";
+}
+
+void ExpectConsistent(const std::string& db) {
+  absl::StatusOr<store::CheckReport> report = store::CheckDatabase(db);
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_TRUE(report->ok()) << report->ToString();
+}
+
+long long Count(const std::string& db, const std::string& sql) {
+  return std::stoll("0" + QueryText(db, sql));
+}
+
+class EngineFaultTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    vfs_ = FaultVfs::Install();
+    std::unique_ptr<Harness> h =
+        OpenHarness(ref_dir_.File("ref.db"), false, &clock_);
+    ASSERT_NE(h, nullptr);
+    const int64_t run = Submit(*h);
+    DriveToEnd(*h, run);
+    reference_ = Digest(*h->store, run);
+  }
+
+  FaultVfs* vfs_ = nullptr;
+  FakeClock clock_;
+  TempDir ref_dir_;
+  TempDir dir_;
+  std::string reference_;  // digest of the uninterrupted run
+};
+
+TEST_F(EngineFaultTest, FailingDiskHoldsWorkKeepsResultsAndResumesByItself) {
+  const std::string db = dir_.File("faulty.db");
+  std::unique_ptr<Harness> h = OpenHarness(db, true, &clock_);
+  ASSERT_NE(h, nullptr);
+  const int64_t run = Submit(*h);
+  // Generation 0 of both islands, then generation 1 leased.
+  ASSERT_TRUE(h->engine->Report(kWorker, Score(LeaseReady(*h))).ok());
+  const std::vector<Task> leased = LeaseReady(*h);
+  ASSERT_FALSE(leased.empty());
+  const std::vector<TaskResult> results = Score(leased);
+  const long long pending_before =
+      Count(db, "SELECT count(*) FROM genomes WHERE eval_state = 1");
+  ASSERT_EQ(pending_before, static_cast<long long>(leased.size()));
+
+  vfs_->Arm(FaultKind::kIoErr, 1, /*persistent=*/true);
+  absl::StatusOr<ReportOutcome> refused = h->engine->Report(kWorker, results);
+  ASSERT_FALSE(refused.ok());
+  EXPECT_EQ(refused.status().code(), absl::StatusCode::kUnavailable)
+      << refused.status();
+  EXPECT_NE(refused.status().message().find("report them again"),
+            std::string::npos)
+      << refused.status();
+  // Nothing of the refused report is stored.
+  EXPECT_EQ(Count(db, "SELECT count(*) FROM genomes WHERE eval_state = 1"),
+            pending_before);
+  EXPECT_EQ(Count(db, "SELECT evaluations FROM runs"), 12);
+
+  // Held: no work, the problem in every summary, reads still answered.
+  EXPECT_TRUE(h->queue->Lease(kWorker, 1000, absl::ZeroDuration()).empty());
+  EXPECT_NE(Problem(*h, run), "");
+  absl::StatusOr<std::vector<skerry::v1::RunSummary>> all =
+      h->engine->ListSummaries();
+  ASSERT_TRUE(all.ok()) << all.status();
+  ASSERT_EQ(all->size(), 1u);
+  EXPECT_NE((*all)[0].coordinator_problem(), "");
+
+  // The probe keeps failing while the disk does (bounded wait for one probe).
+  const int64_t counted = vfs_->counted();
+  for (int i = 0; i < 100 && vfs_->counted() == counted; ++i) {
+    absl::SleepFor(absl::Milliseconds(50));
+  }
+  EXPECT_GT(vfs_->counted(), counted) << "the committer never probed";
+  EXPECT_TRUE(h->queue->Lease(kWorker, 1000, absl::ZeroDuration()).empty());
+  EXPECT_NE(Problem(*h, run), "");
+
+  vfs_->Disarm();
+  ASSERT_TRUE(WaitUntilWritable(*h, run)) << "the hold was never lifted";
+  // The same results, reported again, are taken.
+  absl::StatusOr<ReportOutcome> again = h->engine->Report(kWorker, results);
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(again->accepted, results.size());
+  EXPECT_EQ(again->ignored, 0u);
+  DriveToEnd(*h, run);
+  EXPECT_EQ(Digest(*h->store, run), reference_);
+  h.reset();
+  ExpectConsistent(db);
+}
+
+TEST_F(EngineFaultTest, SubmitWhileDiskIsFullIsRefusedAndStoresNothing) {
+  const std::string db = dir_.File("full.db");
+  std::unique_ptr<Harness> h = OpenHarness(db, true, &clock_);
+  ASSERT_NE(h, nullptr);
+  const int64_t run = Submit(*h);
+  vfs_->Arm(FaultKind::kFull, 1, /*persistent=*/true);
+  absl::StatusOr<store::RunRecord> refused =
+      h->engine->Submit(SmallSpec(), "spec text", "bob");
+  vfs_->Disarm();
+  ASSERT_FALSE(refused.ok());
+  EXPECT_EQ(refused.status().code(), absl::StatusCode::kResourceExhausted)
+      << refused.status();
+  EXPECT_NE(refused.status().message().find("full"), std::string::npos)
+      << refused.status();
+  EXPECT_EQ(Count(db, "SELECT count(*) FROM runs"), 1);
+  EXPECT_EQ(Count(db, "SELECT count(*) FROM genomes WHERE run_id != 1"), 0);
+  absl::StatusOr<std::vector<skerry::v1::RunSummary>> all =
+      h->engine->ListSummaries();
+  ASSERT_TRUE(all.ok()) << all.status();
+  EXPECT_EQ(all->size(), 1u);
+  // The first run is untouched and finishes as if nothing happened.
+  ASSERT_TRUE(WaitUntilWritable(*h, run));
+  DriveToEnd(*h, run);
+  EXPECT_EQ(Digest(*h->store, run), reference_);
+  h.reset();
+  ExpectConsistent(db);
+}
+
+// Every write from the Nth on fails while the last results of generation 1
+// are reported: depending on N the results' commit fails (the Report is
+// refused and repeated), or the breeding of generation 2 does (the Report is
+// answered, breeding waits for the disk). Either way the run ends as if
+// nothing had happened.
+class EngineFaultSweep : public EngineFaultTest,
+                         public ::testing::WithParamInterface<FaultKind> {};
+
+TEST_P(EngineFaultSweep, EveryFaultPointAtAGenerationEndRecoversToSameDigest) {
+  const FaultKind kind = GetParam();
+  const std::string prepared = dir_.File("prepared.db");
+  int64_t run = 0;
+  {
+    std::unique_ptr<Harness> h = OpenHarness(prepared, false, &clock_);
+    ASSERT_NE(h, nullptr);
+    run = Submit(*h);
+    ASSERT_TRUE(h->engine->Report(kWorker, Score(LeaseReady(*h))).ok());
+    ASSERT_FALSE(LeaseReady(*h).empty());  // generation 1 has been bred
+  }
+  bool completed = false;
+  for (int n = 1; n <= kMaxFaultPoint && !completed; ++n) {
+    SCOPED_TRACE(absl::StrCat(FaultKindName(kind), " from write ", n));
+    const std::string db = dir_.File(absl::StrCat("case-", n, ".db"));
+    std::filesystem::copy_file(prepared, db);
+    std::unique_ptr<Harness> h = OpenHarness(db, true, &clock_);
+    ASSERT_NE(h, nullptr);
+    const std::vector<TaskResult> results = Score(LeaseReady(*h));
+    ASSERT_FALSE(results.empty());
+
+    vfs_->Arm(kind, n, /*persistent=*/true);
+    absl::StatusOr<ReportOutcome> out = h->engine->Report(kWorker, results);
+    // Settle: the committer holds the engine's lock while it breeds.
+    ASSERT_TRUE(h->engine->ListSummaries().ok());
+    completed = vfs_->injected() == 0;
+    vfs_->Disarm();
+    if (!out.ok()) {
+      EXPECT_EQ(out.status().code(), absl::StatusCode::kUnavailable)
+          << out.status();
+      EXPECT_EQ(Count(db,
+                      "SELECT count(*) FROM genomes WHERE generation = 1 "
+                      "AND eval_state = 1"),
+                static_cast<long long>(results.size()))
+          << "a refused report changed the database";
+    }
+    ASSERT_TRUE(WaitUntilWritable(*h, run));
+    if (!out.ok()) {
+      absl::StatusOr<ReportOutcome> again = h->engine->Report(kWorker, results);
+      ASSERT_TRUE(again.ok()) << again.status();
+      EXPECT_EQ(again->accepted, results.size());
+    }
+    DriveToEnd(*h, run);
+    EXPECT_EQ(Digest(*h->store, run), reference_);
+    h.reset();
+    ExpectConsistent(db);
+    std::filesystem::remove(db);
+  }
+  EXPECT_TRUE(completed) << "still faulting at write " << kMaxFaultPoint;
+}
+
+INSTANTIATE_TEST_SUITE_P(WriteFaults, EngineFaultSweep,
+                         ::testing::Values(FaultKind::kIoErr, FaultKind::kFull,
+                                           FaultKind::kFsync),
+                         [](const ::testing::TestParamInfo<FaultKind>& p) {
+                           return p.param == FaultKind::kIoErr  ? "IoErr"
+                                  : p.param == FaultKind::kFull ? "Full"
+                                                                : "Fsync";
+                         });
+
+}  // namespace
+}  // namespace skerry::engine

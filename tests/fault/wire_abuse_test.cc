@@ -1,0 +1,529 @@
+// Hostile and malformed worker messages against a real coordinator
+// (Coordinator::Start, in-process, listening on 127.0.0.1 port 0) through raw
+// FleetService stubs over a real channel: unknown workers, bad lease sizes, bad
+// joins, duplicate, unknown, foreign, stale and non-finite results, an
+// oversized message, a worker that leases and vanishes, and a flood of joins.
+// Each test checks every "nothing changed" claim against the database itself
+// (a connection of its own, tests/support/db_check.h), and ends with an honest
+// worker finishing the run and CheckDatabase finding no broken invariant.
+//
+// The coordinator runs on a FakeClock, so leases expire when the test moves
+// time, never on their own.
+#include <cmath>
+#include <limits>
+#include <memory>
+#include <set>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "common/clock.h"
+#include "grpcpp/grpcpp.h"
+#include "gtest/gtest.h"
+#include "server/coordinator.h"
+#include "server/store/check.h"
+#include "skerry/v1/fleet.grpc.pb.h"
+#include "skerry/v1/runs.grpc.pb.h"
+#include "tests/support/db_check.h"
+#include "tests/unit/server/temp_dir.h"
+
+namespace skerry {
+namespace {
+
+using skerry::testing::QueryText;
+using skerry::testing::TempDir;
+using skerry::v1::FleetService;
+using skerry::v1::RunService;
+using skerry::v1::Task;
+using skerry::v1::TaskResult;
+
+constexpr uint32_t kPopulation = 6;
+
+// One island of 6 on a 3-gene sphere for 3 generations, two attempts per
+// genome.
+skerry::v1::RunSpec SmallSpec() {
+  skerry::v1::RunSpec spec;
+  spec.set_name("wire-abuse");
+  spec.set_seed(515);
+  spec.set_genome_length(3);
+  spec.mutable_evaluator()->mutable_builtin()->set_function("sphere");
+  spec.mutable_ga()->set_population_size(kPopulation);
+  spec.mutable_ga()->set_elites(1);
+  spec.mutable_islands()->set_count(1);
+  spec.mutable_stop()->set_max_generations(3);
+  spec.set_max_attempts(2);
+  return spec;
+}
+
+// Sphere: sum of x_i^2 (Jamil & Yang 2013, see REFERENCES.md).
+TaskResult Honest(const Task& t) {
+  TaskResult r;
+  r.set_task_id(t.task_id());
+  r.set_attempt(t.attempt());
+  double s = 0.0;
+  for (double x : t.genes()) s += x * x;
+  r.set_score(s);
+  r.set_eval_seconds(0.001);
+  return r;
+}
+
+std::unique_ptr<grpc::ClientContext> Context() {
+  auto ctx = std::make_unique<grpc::ClientContext>();
+  ctx->set_deadline(std::chrono::system_clock::now() +
+                    std::chrono::seconds(30));
+  return ctx;
+}
+
+long long Count(const std::string& db, const std::string& sql) {
+  return std::stoll("0" + QueryText(db, sql));
+}
+
+class WireAbuseTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    db_ = dir_.File("coordinator.db");
+    server::CoordinatorOptions options;
+    options.db_path = db_;
+    options.listen_address = "127.0.0.1:0";
+    options.lease = absl::Seconds(1);
+    options.max_lease_wait = absl::Seconds(1);
+    options.clock = &clock_;
+    absl::StatusOr<std::unique_ptr<server::Coordinator>> c =
+        server::Coordinator::Start(options);
+    ASSERT_TRUE(c.ok()) << c.status();
+    coordinator_ = std::move(*c);
+    ASSERT_GT(coordinator_->port(), 0);
+    channel_ =
+        grpc::CreateChannel(absl::StrCat("127.0.0.1:", coordinator_->port()),
+                            grpc::InsecureChannelCredentials());
+    fleet_ = FleetService::NewStub(channel_);
+    runs_ = RunService::NewStub(channel_);
+    skerry::v1::SubmitRunRequest req;
+    *req.mutable_spec() = SmallSpec();
+    skerry::v1::SubmitRunResponse resp;
+    grpc::Status s = runs_->SubmitRun(Context().get(), req, &resp);
+    ASSERT_TRUE(s.ok()) << s.error_message();
+    run_id_ = resp.run().id();
+  }
+
+  uint64_t Join(const std::string& name = "honest") {
+    skerry::v1::JoinRequest req;
+    req.set_name(name);
+    req.set_host("localhost");
+    req.set_threads(1);
+    skerry::v1::JoinResponse resp;
+    grpc::Status s = fleet_->Join(Context().get(), req, &resp);
+    EXPECT_TRUE(s.ok()) << s.error_message();
+    return resp.worker_id();
+  }
+
+  std::vector<Task> Lease(uint64_t worker, uint32_t max = 1000,
+                          uint32_t wait_ms = 200) {
+    skerry::v1::LeaseRequest req;
+    req.set_worker_id(worker);
+    req.set_max_tasks(max);
+    req.set_wait_ms(wait_ms);
+    skerry::v1::LeaseResponse resp;
+    grpc::Status s = fleet_->Lease(Context().get(), req, &resp);
+    EXPECT_TRUE(s.ok()) << s.error_message();
+    return {resp.tasks().begin(), resp.tasks().end()};
+  }
+
+  grpc::Status Report(uint64_t worker, const std::vector<TaskResult>& results,
+                      skerry::v1::ReportResponse* resp) {
+    skerry::v1::ReportRequest req;
+    req.set_worker_id(worker);
+    for (const TaskResult& r : results) *req.add_results() = r;
+    return fleet_->Report(Context().get(), req, resp);
+  }
+
+  skerry::v1::RunState State() {
+    skerry::v1::RunRef ref;
+    ref.set_run_id(run_id_);
+    skerry::v1::GetRunResponse resp;
+    grpc::Status s = runs_->GetRun(Context().get(), ref, &resp);
+    EXPECT_TRUE(s.ok()) << s.error_message();
+    return resp.run().state();
+  }
+
+  // Everything stored about genomes and the run, for "nothing changed" checks.
+  std::string Snapshot() {
+    std::string snapshot = QueryText(
+        db_,
+        "SELECT group_concat(id || ':' || eval_state || ':' || "
+        "coalesce(score, 'null') || ':' || attempts || ':' || error, ';') || "
+        "'|' || (SELECT evaluations || ':' || state FROM runs) FROM "
+        "(SELECT * FROM genomes ORDER BY id)");
+    EXPECT_NE(snapshot.find('|'), std::string::npos) << "snapshot query failed";
+    return snapshot;
+  }
+
+  // An honest worker finishes the run (moving time on when tasks are held by
+  // someone else's lease); then the database must pass --check.
+  void FinishHonestly() {
+    const uint64_t worker = Join();
+    for (int round = 0; round < 100; ++round) {
+      if (State() != skerry::v1::RUNNING) break;
+      std::vector<Task> tasks = Lease(worker);
+      if (tasks.empty()) {
+        clock_.Advance(absl::Seconds(2));  // expire abandoned leases
+        continue;
+      }
+      std::vector<TaskResult> results;
+      for (const Task& t : tasks) results.push_back(Honest(t));
+      skerry::v1::ReportResponse resp;
+      grpc::Status s = Report(worker, results, &resp);
+      ASSERT_TRUE(s.ok()) << s.error_message();
+    }
+    ASSERT_EQ(State(), skerry::v1::FINISHED);
+    coordinator_.reset();
+    absl::StatusOr<store::CheckReport> report = store::CheckDatabase(db_);
+    ASSERT_TRUE(report.ok()) << report.status();
+    EXPECT_TRUE(report->ok()) << report->ToString();
+    EXPECT_EQ(Count(db_,
+                    "SELECT count(*) FROM genomes WHERE eval_state = 2 "
+                    "AND (score IS NULL OR score != score OR "
+                    "abs(score) > 1.7e308)"),
+              0)
+        << "an evaluated genome without a finite score";
+  }
+
+  TempDir dir_;
+  std::string db_;
+  FakeClock clock_;
+  std::unique_ptr<server::Coordinator> coordinator_;
+  std::shared_ptr<grpc::Channel> channel_;
+  std::unique_ptr<FleetService::Stub> fleet_;
+  std::unique_ptr<RunService::Stub> runs_;
+  uint64_t run_id_ = 0;
+};
+
+TEST_F(WireAbuseTest, UnknownWorkerIsNotFoundAndChangesNothing) {
+  const std::string before = Snapshot();
+  skerry::v1::LeaseRequest lease;
+  lease.set_worker_id(987654321);
+  lease.set_max_tasks(10);
+  skerry::v1::LeaseResponse lease_resp;
+  grpc::Status s = fleet_->Lease(Context().get(), lease, &lease_resp);
+  EXPECT_EQ(s.error_code(), grpc::StatusCode::NOT_FOUND);
+  EXPECT_NE(s.error_message().find("unknown worker 987654321"),
+            std::string::npos)
+      << s.error_message();
+  EXPECT_EQ(lease_resp.tasks_size(), 0);
+
+  // A result for a real task from a worker nobody knows.
+  const uint64_t worker = Join();
+  const std::vector<Task> tasks = Lease(worker);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  skerry::v1::ReportResponse resp;
+  s = Report(987654321, {Honest(tasks[0])}, &resp);
+  EXPECT_EQ(s.error_code(), grpc::StatusCode::NOT_FOUND);
+  EXPECT_EQ(Snapshot(), before);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, LeaseOfZeroOrTooManyTasksIsInvalidArgument) {
+  const uint64_t worker = Join();
+  for (uint32_t bad : {0u, 10001u, std::numeric_limits<uint32_t>::max()}) {
+    SCOPED_TRACE(absl::StrCat("max_tasks ", bad));
+    skerry::v1::LeaseRequest req;
+    req.set_worker_id(worker);
+    req.set_max_tasks(bad);
+    skerry::v1::LeaseResponse resp;
+    grpc::Status s = fleet_->Lease(Context().get(), req, &resp);
+    EXPECT_EQ(s.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
+    EXPECT_NE(s.error_message().find("max_tasks"), std::string::npos)
+        << s.error_message();
+    EXPECT_EQ(resp.tasks_size(), 0);
+  }
+  // No lease was taken: every task is still at its first attempt.
+  const std::vector<Task> tasks = Lease(worker);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  for (const Task& t : tasks) EXPECT_EQ(t.attempt(), 1u);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, JoinWithBadThreadsOrNamesIsInvalidArgument) {
+  const long long workers = Count(db_, "SELECT count(*) FROM workers");
+  struct Bad {
+    uint32_t threads;
+    std::string name;
+    std::string host;
+    std::string field;  // what the message must name
+  };
+  const std::vector<Bad> cases = {
+      {0, "w", "h", "threads"},
+      {4097, "w", "h", "threads"},
+      {std::numeric_limits<uint32_t>::max(), "w", "h", "threads"},
+      {1, std::string(257, 'n'), "h", "name"},
+      {1, "w", std::string(100000, 'h'), "host"},
+  };
+  for (const Bad& b : cases) {
+    SCOPED_TRACE(absl::StrCat("threads ", b.threads, " name ", b.name.size(),
+                              " bytes, host ", b.host.size(), " bytes"));
+    skerry::v1::JoinRequest req;
+    req.set_threads(b.threads);
+    req.set_name(b.name);
+    req.set_host(b.host);
+    skerry::v1::JoinResponse resp;
+    grpc::Status s = fleet_->Join(Context().get(), req, &resp);
+    EXPECT_EQ(s.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
+    EXPECT_NE(s.error_message().find(b.field), std::string::npos)
+        << s.error_message();
+    EXPECT_EQ(resp.worker_id(), 0u);
+  }
+  EXPECT_EQ(Count(db_, "SELECT count(*) FROM workers"), workers);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, DuplicateResultsAreAppliedOnce) {
+  const uint64_t worker = Join();
+  const std::vector<Task> tasks = Lease(worker);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  std::vector<TaskResult> twice;
+  for (const Task& t : tasks) {
+    twice.push_back(Honest(t));
+    twice.push_back(Honest(t));
+  }
+  skerry::v1::ReportResponse resp;
+  grpc::Status s = Report(worker, twice, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), kPopulation);
+  EXPECT_EQ(resp.ignored(), kPopulation);
+  EXPECT_EQ(Count(db_, "SELECT evaluations FROM runs"), kPopulation);
+  EXPECT_EQ(Count(db_,
+                  "SELECT count(*) FROM genomes WHERE generation = 0 AND "
+                  "eval_state = 2 AND attempts = 1"),
+            kPopulation);
+  // The same report again, once everything is committed: all ignored.
+  State();  // settles: the engine breeds under the lock GetRun waits for
+  const std::string before = Snapshot();
+  s = Report(worker, twice, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), 0u);
+  EXPECT_EQ(resp.ignored(), 2 * kPopulation);
+  EXPECT_EQ(Snapshot(), before);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, ResultsForUnknownTasksAreIgnored) {
+  const uint64_t worker = Join();
+  const std::vector<Task> tasks = Lease(worker);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  const std::string before = Snapshot();
+  std::vector<TaskResult> bogus;
+  for (uint64_t id : {uint64_t{0}, uint64_t{123456789},
+                      std::numeric_limits<uint64_t>::max()}) {
+    TaskResult r = Honest(tasks[0]);
+    r.set_task_id(id);
+    bogus.push_back(r);
+    r.set_error("made up");
+    bogus.push_back(r);
+  }
+  skerry::v1::ReportResponse resp;
+  grpc::Status s = Report(worker, bogus, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), 0u);
+  EXPECT_EQ(resp.ignored(), bogus.size());
+  EXPECT_EQ(Snapshot(), before);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, ErrorForAnotherWorkersTaskIsIgnored) {
+  const uint64_t holder = Join("holder");
+  const uint64_t intruder = Join("intruder");
+  const std::vector<Task> tasks = Lease(holder);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  const std::string before = Snapshot();
+  std::vector<TaskResult> failures;
+  for (const Task& t : tasks) {
+    TaskResult r = Honest(t);
+    r.set_error("intruder says it failed");
+    failures.push_back(r);
+  }
+  skerry::v1::ReportResponse resp;
+  grpc::Status s = Report(intruder, failures, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), 0u);
+  EXPECT_EQ(resp.ignored(), kPopulation);
+  EXPECT_EQ(Snapshot(), before);
+  // The holder's results still count.
+  std::vector<TaskResult> honest;
+  for (const Task& t : tasks) honest.push_back(Honest(t));
+  s = Report(holder, honest, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), kPopulation);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, FailureQuotingAStaleOrFutureAttemptIsIgnored) {
+  const uint64_t worker = Join();
+  const std::vector<Task> first = Lease(worker);
+  ASSERT_EQ(first.size(), kPopulation);
+  clock_.Advance(absl::Seconds(2));  // the lease expires
+  const std::vector<Task> second = Lease(worker);
+  ASSERT_EQ(second.size(), kPopulation);
+  for (const Task& t : second) ASSERT_EQ(t.attempt(), 2u);
+  const std::string before = Snapshot();
+  std::vector<TaskResult> stale;
+  for (const Task& t : first) {
+    TaskResult r = Honest(t);
+    r.set_error("stale failure");
+    stale.push_back(r);  // attempt 1
+    r.set_attempt(99);
+    stale.push_back(r);  // an attempt never handed out
+  }
+  skerry::v1::ReportResponse resp;
+  grpc::Status s = Report(worker, stale, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), 0u);
+  EXPECT_EQ(resp.ignored(), stale.size());
+  EXPECT_EQ(Snapshot(), before);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, NonFiniteScoresAreFailedAttemptsNeverEvaluated) {
+  const uint64_t worker = Join();
+  const double kBad[] = {std::nan(""), std::numeric_limits<double>::infinity(),
+                         -std::numeric_limits<double>::infinity()};
+  // Attempt 1 and attempt 2 (max_attempts is 2) of the first three genomes
+  // report non-finite scores: those genomes fail and rank last.
+  std::set<uint64_t> poisoned;
+  for (int attempt = 1; attempt <= 2; ++attempt) {
+    SCOPED_TRACE(absl::StrCat("attempt ", attempt));
+    std::vector<Task> tasks = Lease(worker);
+    std::vector<TaskResult> results;
+    for (const Task& t : tasks) {
+      if (attempt == 1 && poisoned.size() < 3) poisoned.insert(t.task_id());
+      if (poisoned.count(t.task_id()) == 0) continue;
+      ASSERT_EQ(t.attempt(), static_cast<uint32_t>(attempt));
+      TaskResult r = Honest(t);
+      r.set_score(kBad[results.size() % 3]);
+      results.push_back(r);
+    }
+    ASSERT_EQ(results.size(), 3u);
+    skerry::v1::ReportResponse resp;
+    grpc::Status s = Report(worker, results, &resp);
+    ASSERT_TRUE(s.ok()) << s.error_message();
+    EXPECT_EQ(resp.accepted(), 3u);
+    const std::string ids =
+        absl::StrCat(*poisoned.begin(), ",", *std::next(poisoned.begin()), ",",
+                     *poisoned.rbegin());
+    EXPECT_EQ(Count(db_, absl::StrCat("SELECT count(*) FROM genomes WHERE id "
+                                      "IN (",
+                                      ids, ") AND eval_state = 2")),
+              0);
+    EXPECT_EQ(
+        Count(db_, absl::StrCat("SELECT count(*) FROM genomes WHERE id "
+                                "IN (",
+                                ids,
+                                ") AND score IS NULL AND "
+                                "attempts = ",
+                                attempt, " AND error LIKE '%not a finite%'")),
+        3);
+    EXPECT_EQ(Count(db_, absl::StrCat("SELECT count(*) FROM genomes WHERE id "
+                                      "IN (",
+                                      ids, ") AND eval_state = ",
+                                      attempt == 1 ? skerry::v1::PENDING
+                                                   : skerry::v1::FAILED)),
+              3);
+    clock_.Advance(absl::Seconds(2));  // the others' leases expire
+  }
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, OversizedReportIsResourceExhaustedAndChangesNothing) {
+  const uint64_t worker = Join();
+  const std::vector<Task> tasks = Lease(worker);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  const std::string before = Snapshot();
+  {
+    // Over the coordinator's 128 MB message limit (server/coordinator.cc).
+    TaskResult huge = Honest(tasks[0]);
+    huge.set_error(std::string(130u << 20, 'x'));
+    skerry::v1::ReportResponse resp;
+    grpc::Status s = Report(worker, {huge}, &resp);
+    EXPECT_EQ(s.error_code(), grpc::StatusCode::RESOURCE_EXHAUSTED)
+        << s.error_message();
+  }
+  EXPECT_EQ(Snapshot(), before);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, WorkerThatNeverReportsHasItsTasksLeasedAgain) {
+  const uint64_t silent = Join("silent");
+  const uint64_t honest = Join("honest");
+  const std::vector<Task> taken = Lease(silent);
+  ASSERT_EQ(taken.size(), kPopulation);
+  EXPECT_TRUE(Lease(honest, 1000, 0).empty()) << "leased twice at once";
+  clock_.Advance(absl::Milliseconds(1500));  // past the 1 s lease
+  const std::vector<Task> again = Lease(honest);
+  ASSERT_EQ(again.size(), kPopulation);
+  for (const Task& t : again) EXPECT_EQ(t.attempt(), 2u);
+  std::vector<TaskResult> results;
+  for (const Task& t : again) results.push_back(Honest(t));
+  skerry::v1::ReportResponse resp;
+  ASSERT_TRUE(Report(honest, results, &resp).ok());
+  EXPECT_EQ(resp.accepted(), kPopulation);
+  // The silent worker wakes up late: its results change nothing.
+  State();  // settles: the engine breeds under the lock GetRun waits for
+  const std::string before = Snapshot();
+  std::vector<TaskResult> late;
+  for (const Task& t : taken) late.push_back(Honest(t));
+  ASSERT_TRUE(Report(silent, late, &resp).ok());
+  EXPECT_EQ(resp.accepted(), 0u);
+  EXPECT_EQ(Snapshot(), before);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, ReportWithHeldTaskIdsRenewsTheLease) {
+  const uint64_t holder = Join("holder");
+  const uint64_t other = Join("other");
+  const std::vector<Task> taken = Lease(holder);
+  ASSERT_EQ(taken.size(), kPopulation);
+  clock_.Advance(absl::Milliseconds(600));
+  skerry::v1::ReportRequest renew;
+  renew.set_worker_id(holder);
+  for (const Task& t : taken) renew.add_held_task_ids(t.task_id());
+  skerry::v1::ReportResponse resp;
+  ASSERT_TRUE(fleet_->Report(Context().get(), renew, &resp).ok());
+  clock_.Advance(
+      absl::Milliseconds(600));  // 1.2 s after the lease, 0.6 after renewal
+  EXPECT_TRUE(Lease(other, 1000, 0).empty()) << "a renewed lease expired";
+  clock_.Advance(absl::Milliseconds(600));
+  EXPECT_EQ(Lease(other, 1000, 0).size(), kPopulation);
+  FinishHonestly();
+}
+
+TEST_F(WireAbuseTest, FloodOfJoinsLeavesTheCoordinatorCorrect) {
+  const long long workers = Count(db_, "SELECT count(*) FROM workers");
+  constexpr int kThreads = 4;
+  constexpr int kJoinsPerThread = 500;
+  std::vector<std::vector<uint64_t>> ids(kThreads);
+  std::vector<std::thread> threads;
+  for (int t = 0; t < kThreads; ++t) {
+    threads.emplace_back([this, t, &ids] {
+      auto stub = FleetService::NewStub(channel_);
+      for (int i = 0; i < kJoinsPerThread; ++i) {
+        skerry::v1::JoinRequest req;
+        req.set_name(absl::StrCat("flood-", t, "-", i));
+        req.set_threads(1);
+        skerry::v1::JoinResponse resp;
+        if (stub->Join(Context().get(), req, &resp).ok()) {
+          ids[t].push_back(resp.worker_id());
+        }
+      }
+    });
+  }
+  for (std::thread& t : threads) t.join();
+  std::set<uint64_t> distinct;
+  for (const auto& v : ids) distinct.insert(v.begin(), v.end());
+  EXPECT_EQ(distinct.size(), static_cast<size_t>(kThreads * kJoinsPerThread));
+  EXPECT_EQ(Count(db_, "SELECT count(*) FROM workers"),
+            workers + kThreads * kJoinsPerThread);
+  FinishHonestly();
+}
+
+}  // namespace
+}  // namespace skerry
