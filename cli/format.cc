@@ -8,6 +8,7 @@
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "google/protobuf/util/json_util.h"
+#include "server/lineage/dot.h"
 #include "google/protobuf/wrappers.pb.h"
 
 namespace skerry::cli {
@@ -68,22 +69,7 @@ bool IsTerminal(skerry::v1::RunState state) {
 }
 
 std::string OriginName(skerry::v1::Origin origin) {
-  switch (origin) {
-    case skerry::v1::SEEDED:
-      return "seeded";
-    case skerry::v1::ELITE:
-      return "elite";
-    case skerry::v1::CROSSOVER:
-      return "crossover";
-    case skerry::v1::MUTATION:
-      return "mutation";
-    case skerry::v1::IMMIGRANT:
-      return "immigrant";
-    case skerry::v1::MIGRANT:
-      return "migrant";
-    default:
-      return "unknown";
-  }
+  return lineage::OriginLabel(origin);  // one name per origin, everywhere
 }
 
 std::string FormatScore(double score) {

@@ -178,35 +178,32 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
 }
 
 absl::Status Engine::Pause(int64_t run_id) {
-  absl::MutexLock l(&mu_);
-  auto it = runs_.find(run_id);
-  if (it == runs_.end() || it->second->record.state != skerry::v1::RUNNING) {
-    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
-    return absl::FailedPreconditionError(absl::StrCat(
-        "run ", run_id, " is ", skerry::v1::RunState_Name(rec.state),
-        "; only a RUNNING run can be paused"));
-  }
-  SKERRY_RETURN_IF_ERROR(store_->SetRunState(run_id, skerry::v1::PAUSED,
-                                             "paused", clock_->WallMillis()));
-  it->second->record.state = skerry::v1::PAUSED;
-  queue_->SetPaused(run_id, true);
-  NotifyChange();
-  return absl::OkStatus();
+  return Transition(run_id, skerry::v1::RUNNING, skerry::v1::PAUSED, "paused");
 }
 
 absl::Status Engine::Resume(int64_t run_id) {
+  return Transition(run_id, skerry::v1::PAUSED, skerry::v1::RUNNING, "resumed");
+}
+
+absl::Status Engine::Transition(int64_t run_id, skerry::v1::RunState from,
+                                skerry::v1::RunState to, const char* verb) {
   absl::MutexLock l(&mu_);
   auto it = runs_.find(run_id);
-  if (it == runs_.end() || it->second->record.state != skerry::v1::PAUSED) {
+  if (it == runs_.end() || it->second->record.state != from) {
     SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
     return absl::FailedPreconditionError(absl::StrCat(
         "run ", run_id, " is ", skerry::v1::RunState_Name(rec.state),
-        "; only a PAUSED run can be resumed"));
+        "; only a ", skerry::v1::RunState_Name(from), " run can be ", verb));
   }
-  SKERRY_RETURN_IF_ERROR(store_->SetRunState(run_id, skerry::v1::RUNNING, "",
-                                             clock_->WallMillis()));
-  it->second->record.state = skerry::v1::RUNNING;
-  queue_->SetPaused(run_id, false);
+  const std::string message = to == skerry::v1::PAUSED ? "paused" : "";
+  if (absl::Status s = store_->SetRunState(run_id, to, message,
+                                           clock_->WallMillis());
+      !s.ok()) {
+    NoteWriteFailure(s);
+    return s;
+  }
+  it->second->record.state = to;
+  queue_->SetPaused(run_id, to == skerry::v1::PAUSED);
   NotifyChange();
   return absl::OkStatus();
 }

@@ -126,6 +126,10 @@ class Engine {
   Engine(store::Store* store, scheduler::TaskQueue* queue, Clock* clock)
       : store_(store), queue_(queue), clock_(clock) {}
 
+  // Pause and resume: moves an active run from `from` to `to`.
+  absl::Status Transition(int64_t run_id, skerry::v1::RunState from,
+                          skerry::v1::RunState to, const char* verb)
+      ABSL_LOCKS_EXCLUDED(mu_);
   absl::Status Load() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status LoadRun(const store::RunRecord& record)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
