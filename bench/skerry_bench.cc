@@ -5,7 +5,9 @@
 //      coordinator that stores every genome;
 //   2. end-to-end evaluations per second with the trivial "zero" evaluator
 //      through a real coordinator and workers over loopback TCP;
-//   3. the same population evaluated in process, with no coordinator at all.
+//   3. the same population evaluated in process, with no coordinator at all;
+//   and what group commit buys: results committed one per synced transaction
+//   against 256 per transaction.
 // It prints all three and the ratios. Not a test: figures depend on the machine.
 #include <unistd.h>
 
@@ -101,6 +103,44 @@ double RawInsertRate(const BenchOptions& o) {
   sqlite3_close(db);
   RemoveDb(path);
   return o.insert_rows / secs;
+}
+
+// Group commit: the same results committed one per transaction (as a
+// coordinator without group commit would, each synced) and in batches of
+// `batch`, through Store::CommitResults. Returns results per second.
+double CommitRate(const BenchOptions& o, int batch) {
+  const std::string path = TempDb(o, absl::StrCat("commit", batch).c_str());
+  absl::StatusOr<std::unique_ptr<store::Store>> st = store::Store::Open(path);
+  if (!st.ok()) return 0;
+  store::RunRecord run;
+  run.name = "bench";
+  run.spec.set_genome_length(o.genome_length);
+  run.spec.mutable_islands()->set_count(1);
+  std::vector<store::GenomeRecord> genomes(2000);
+  for (uint32_t i = 0; i < genomes.size(); ++i) {
+    genomes[i].slot = i;
+    genomes[i].genes.assign(o.genome_length, 0.5);
+  }
+  if (!(*st)->CreateRun(&run, &genomes).ok()) return 0;
+  const absl::Time start = absl::Now();
+  std::vector<store::ResultUpdate> updates;
+  for (const store::GenomeRecord& g : genomes) {
+    store::ResultUpdate u;
+    u.genome_id = g.id;
+    u.run_id = run.id;
+    u.score = 1.0;
+    u.attempts = 1;
+    updates.push_back(u);
+    if (static_cast<int>(updates.size()) == batch) {
+      if (!(*st)->CommitResults(updates).ok()) return 0;
+      updates.clear();
+    }
+  }
+  if (!updates.empty() && !(*st)->CommitResults(updates).ok()) return 0;
+  const double secs = absl::ToDoubleSeconds(absl::Now() - start);
+  st->reset();
+  RemoveDb(path);
+  return static_cast<double>(genomes.size()) / secs;
 }
 
 // 2. A real coordinator on loopback, real workers (in this process, over TCP).
@@ -243,6 +283,12 @@ int main(int argc, char** argv) {
               o.genome_length, o.population, o.generations, o.workers, o.threads);
   const double raw = skerry::RawInsertRate(o);
   std::printf("raw SQLite insert        %12.0f genome rows/s\n", raw);
+  const double single = skerry::CommitRate(o, 1);
+  const double grouped = skerry::CommitRate(o, 256);
+  std::printf("results, 1 per commit     %12.0f results/s (each commit synced)\n",
+              single);
+  std::printf("results, 256 per commit   %12.0f results/s (group commit: x%.0f)\n",
+              grouped, single > 0 ? grouped / single : 0.0);
   uint64_t evaluations = 0;
   const double e2e = skerry::EndToEndRate(o, &evaluations);
   std::printf("end to end (loopback)    %12.0f evaluations/s  (%llu evaluations)\n",

@@ -1,6 +1,7 @@
 #include "server/api/fleet_service.h"
 
 #include <algorithm>
+#include <iterator>
 #include <vector>
 
 #include "absl/strings/str_cat.h"
@@ -26,9 +27,16 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
                         absl::StrCat("threads: must be from 1 to 4096, got ",
                                      req->threads()));
   }
-  if (req->name().size() > 256 || req->host().size() > 256) {
+  if (req->name().size() > 256 || req->host().size() > 256 ||
+      req->version().size() > 256) {
     return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        "name and host must be at most 256 bytes");
+                        "name, host and version must be at most 256 bytes");
+  }
+  size_t evaluator_bytes = 0;
+  for (const std::string& e : req->evaluators()) evaluator_bytes += e.size() + 1;
+  if (req->evaluators_size() > 1000 || evaluator_bytes > 64 * 1024) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        "evaluators: at most 1000 names and 64 KiB");
   }
   store::WorkerRecord w;
   w.name = req->name().empty() ? "worker" : req->name();
@@ -41,7 +49,14 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
   if (!id.ok()) return ToGrpc(id.status());
   {
     absl::MutexLock l(&mu_);
-    last_seen_[static_cast<uint64_t>(*id)] = clock_->Now();
+    const absl::Time now = clock_->Now();
+    // Forget workers silent for an hour, so a flood of joins cannot grow this
+    // map for good; such a worker gets NOT_FOUND and joins again.
+    for (auto it = last_seen_.begin(); it != last_seen_.end();) {
+      it = now - it->second > absl::Hours(1) ? last_seen_.erase(it)
+                                              : std::next(it);
+    }
+    last_seen_[static_cast<uint64_t>(*id)] = now;
   }
   resp->set_worker_id(static_cast<uint64_t>(*id));
   resp->set_lease_seconds(absl::ToDoubleSeconds(queue_->lease()));

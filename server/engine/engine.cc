@@ -21,6 +21,9 @@ using store::GenomeRecord;
 // read back from the store when a lagging neighbour asks for them.
 constexpr size_t kCompletedKept = 3;
 
+// The most of an evaluation's error text that is stored.
+constexpr size_t kMaxErrorBytes = 64 << 10;
+
 bool IsActive(skerry::v1::RunState s) {
   return s == skerry::v1::QUEUED || s == skerry::v1::RUNNING ||
          s == skerry::v1::PAUSED;
@@ -336,6 +339,11 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
                       ? r.error()
                       : absl::StrCat("score is not a finite number (",
                                      r.score(), ")");
+        // A worker's text is stored: keep it bounded.
+        if (u.error.size() > kMaxErrorBytes) {
+          u.error.resize(kMaxErrorBytes);
+          u.error += " [truncated]";
+        }
         u.state = info->attempts >= run.record.spec.max_attempts()
                       ? skerry::v1::FAILED
                       : skerry::v1::PENDING;

@@ -199,11 +199,24 @@ TEST_F(EngineFaultTest, FailingDiskHoldsWorkKeepsResultsAndResumesByItself) {
   const int64_t run = Submit(*h);
   // Generation 0 of both islands, then generation 1 leased.
   ASSERT_TRUE(h->engine->Report(kWorker, Score(LeaseReady(*h))).ok());
-  const std::vector<Task> leased = LeaseReady(*h);
+  // Settle: the committer queues both islands' generation 1 under the engine's
+  // lock, which ListSummaries waits for.
+  ASSERT_TRUE(h->engine->ListSummaries().ok());
+  // Lease every pending task of generation 1 (both islands), however the
+  // committer's breeding interleaves with these calls (bounded).
+  std::vector<Task> leased;
+  long long pending_before = 0;
+  for (int i = 0; i < 40; ++i) {
+    for (Task& t : LeaseReady(*h)) leased.push_back(std::move(t));
+    pending_before =
+        Count(db, "SELECT count(*) FROM genomes WHERE eval_state = 1");
+    if (!leased.empty() &&
+        pending_before == static_cast<long long>(leased.size())) {
+      break;
+    }
+  }
   ASSERT_FALSE(leased.empty());
   const std::vector<TaskResult> results = Score(leased);
-  const long long pending_before =
-      Count(db, "SELECT count(*) FROM genomes WHERE eval_state = 1");
   ASSERT_EQ(pending_before, static_cast<long long>(leased.size()));
 
   vfs_->Arm(FaultKind::kIoErr, 1, /*persistent=*/true);
