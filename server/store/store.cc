@@ -98,8 +98,14 @@ CREATE INDEX genomes_parent_a ON genomes (parent_a) WHERE parent_a IS NOT NULL;
 CREATE INDEX genomes_parent_b ON genomes (parent_b) WHERE parent_b IS NOT NULL;
 )sql";
 
+// Version 3: failed genomes per run, so `skerry show` counts them without
+// scanning the run.
+constexpr const char* kSchemaV3 = R"sql(
+CREATE INDEX genomes_failed ON genomes (run_id) WHERE eval_state = 3;
+)sql";
+
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2};
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 

@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 2)
+// ## Schema (version 3)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -14,7 +14,7 @@
 //           evaluations, failed, eval_seconds, completed_ms)
 //   workers(id, name, host, threads, evaluators, version, joined_ms, last_seen_ms)
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
-// parent_b (version 2: descendant queries).
+// parent_b (version 2: descendant queries); failed genomes per run (version 3).
 // `spec` is the normalised RunSpec in binary protobuf; `genes` is packed
 // little-endian float64 (common/genes.h); `state`, `origin` and `eval_state` are
 // the enum numbers of proto/skerry/v1. `attempts` counts evaluation attempts made;
@@ -165,7 +165,7 @@ struct WorkerRecord {
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 2;
+  static constexpr int kSchemaVersion = 3;
 
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.

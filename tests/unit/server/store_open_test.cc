@@ -54,12 +54,13 @@ TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
 }
 
 // A version-1 database (as this project shipped it first) is migrated forward
-// in place: the version becomes current and the parent-link indexes of
-// version 2 appear, with the data kept.
+// in place: the version becomes current and the indexes of versions 2 and 3
+// appear, with the data kept.
 TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(path(),
           "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
+          "DROP INDEX genomes_failed; "
           "UPDATE schema_version SET version = 1; "
           "INSERT INTO workers (name, host, threads, evaluators, version, "
           "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
@@ -67,10 +68,11 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   ASSERT_TRUE(again.ok()) << again.status();
   absl::StatusOr<int> v = (*again)->SchemaVersion();
   ASSERT_TRUE(v.ok()) << v.status();
-  EXPECT_EQ(*v, 2);
+  EXPECT_EQ(*v, Store::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM sqlite_master WHERE "
-                             "name IN ('genomes_parent_a', 'genomes_parent_b')"),
-            "2");
+                             "name IN ('genomes_parent_a', 'genomes_parent_b', "
+                             "'genomes_failed')"),
+            "3");
   EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "old");
 }
 
