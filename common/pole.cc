@@ -6,6 +6,7 @@
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "common/episodes.h"
 #include "common/random.h"
 
 namespace skerry::pole {
@@ -81,20 +82,6 @@ absl::Status CheckMaxSteps(absl::string_view path, uint64_t steps) {
              absl::StrCat(steps));
 }
 
-double Aggregate(skerry::v1::EpisodeAggregate how, std::vector<double> v) {
-  if (how == skerry::v1::AGGREGATE_MIN) {
-    return *std::min_element(v.begin(), v.end());
-  }
-  if (how == skerry::v1::AGGREGATE_MEDIAN) {
-    std::sort(v.begin(), v.end());
-    const size_t n = v.size();
-    return n % 2 == 1 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
-  }
-  double sum = 0.0;
-  for (double x : v) sum += x;
-  return sum / static_cast<double>(v.size());
-}
-
 // Start-noise half ranges: those of the generalisation test.
 constexpr double kHalfX = 2.16;
 constexpr double kHalfXDot = 1.35;
@@ -104,11 +91,7 @@ constexpr double kHalfThetaDot = 8.6 * kDegree;
 // Offsets for x, x', theta, theta' of episode `episode` (see EpisodeSpec).
 std::array<double, 4> StartNoise(uint64_t seed, uint32_t episode,
                                  double noise) {
-  StreamKey key;
-  key.run_seed = seed;
-  key.purpose = StreamPurpose::kEvalSeed;
-  key.slot = episode;
-  RandomStream stream(key);
+  RandomStream stream = EpisodeStream(seed, episode);
   std::array<double, 4> out;
   const double half[4] = {kHalfX, kHalfXDot, kHalfTheta, kHalfThetaDot};
   for (int k = 0; k < 4; ++k) out[k] = noise * half[k] * stream.Uniform(-1, 1);
@@ -152,7 +135,7 @@ class PoleEvaluator : public Evaluator {
       if (!score.ok()) return score.status();
       scores.push_back(*score);
     }
-    return Aggregate(episodes.aggregate(), std::move(scores));
+    return AggregateEpisodes(episodes.aggregate(), std::move(scores));
   }
 
  private:

@@ -22,6 +22,7 @@
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
 #include "common/clock.h"
+#include "common/episodes.h"
 #include "common/random.h"
 #include "google/protobuf/util/json_util.h"
 
@@ -169,30 +170,6 @@ std::string DescribeWaitStatus(int status) {
                         ")");
   }
   return "ended";
-}
-
-double Aggregate(skerry::v1::EpisodeAggregate how, std::vector<double> v) {
-  if (how == skerry::v1::AGGREGATE_MIN) {
-    return *std::min_element(v.begin(), v.end());
-  }
-  if (how == skerry::v1::AGGREGATE_MEDIAN) {
-    std::sort(v.begin(), v.end());
-    const size_t n = v.size();
-    return n % 2 == 1 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
-  }
-  double sum = 0.0;
-  for (double x : v) sum += x;
-  return sum / static_cast<double>(v.size());
-}
-
-// Episode e's seed: the first word of the stream (evaluation seed, kEvalSeed,
-// slot e), as the built-in pole evaluators key their episodes.
-uint64_t EpisodeSeed(uint64_t seed, uint32_t episode) {
-  StreamKey key;
-  key.run_seed = seed;
-  key.purpose = StreamPurpose::kEvalSeed;
-  key.slot = episode;
-  return RandomStream(key).NextU64();
 }
 
 std::string Quote(absl::string_view s, size_t max) {
@@ -541,7 +518,8 @@ absl::StatusOr<double> ProcessEvaluator::Evaluate(
   for (uint32_t e = 0; e < options_.episodes; ++e) {
     EvaluationRequest request;
     request.mutable_genes()->Add(genes.begin(), genes.end());
-    request.set_seed(options_.episodes == 1 ? seed : EpisodeSeed(seed, e));
+    request.set_seed(options_.episodes == 1 ? seed
+                                            : EpisodeStream(seed, e).NextU64());
     request.set_episode(e);
     absl::StatusOr<EvaluationResponse> response = Exchange(std::move(request));
     if (!response.ok()) return response.status();
@@ -554,7 +532,7 @@ absl::StatusOr<double> ProcessEvaluator::Evaluate(
                          response->metrics().end());
     scores.push_back(response->score());
   }
-  return Aggregate(options_.aggregate, std::move(scores));
+  return AggregateEpisodes(options_.aggregate, std::move(scores));
 }
 
 absl::StatusOr<ProcessEvaluatorOptions> ProcessOptionsForSpec(

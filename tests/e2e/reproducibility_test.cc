@@ -20,6 +20,7 @@ namespace skerry {
 namespace {
 
 using testing::CommandResult;
+using testing::DigestIn;
 using testing::Process;
 using testing::RunCommand;
 
@@ -43,42 +44,20 @@ islands { count: 3 topology: TWO_WAY_RING interval: 3 migrants: 2
 stop { max_generations: 15 }
 )";
 
-void WriteFile(const std::string& path, const std::string& text) {
-  FILE* f = std::fopen(path.c_str(), "w");
-  ASSERT_NE(f, nullptr) << path;
-  std::fputs(text.c_str(), f);
-  std::fclose(f);
-}
-
-// The hex digest from `skerry digest` or from the "digest" line of `skerry local`.
-std::string DigestIn(const std::string& output) {
-  for (absl::string_view line : absl::StrSplit(output, '\n')) {
-    std::vector<absl::string_view> words =
-        absl::StrSplit(line, ' ', absl::SkipEmpty());
-    for (absl::string_view w : words) {
-      if (w.size() == 64 && w.find_first_not_of("0123456789abcdef") ==
-                                absl::string_view::npos) {
-        return std::string(w);
-      }
-    }
-  }
-  return "";
-}
-
 class ReproducibilityTest : public ::testing::Test {
  protected:
   void SetUp() override {
     spec_ = dir_.File("islands.spec");
-    WriteFile(spec_, kIslandSpec);
+    ASSERT_TRUE(testing::WriteTextFile(spec_, kIslandSpec));
   }
 
   // Runs the spec on a real coordinator with `workers` worker processes of
   // `threads` threads; `before_finish` may disturb the fleet. Returns the
   // digest.
-  std::string RunOnFleet(const std::string& name, int workers, int threads,
-                         const std::function<void(std::vector<Process>&)>&
-                             disturb = nullptr,
-                         const std::vector<std::string>& coordinator_flags = {}) {
+  std::string RunOnFleet(
+      const std::string& name, int workers, int threads,
+      const std::function<void(std::vector<Process>&)>& disturb = nullptr,
+      const std::vector<std::string>& coordinator_flags = {}) {
     const std::string db = dir_.File(name + ".db");
     absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
         SKERRY_COORDINATOR_BIN, db, dir_.File(name + "-coordinator.log"),
@@ -95,11 +74,11 @@ class ReproducibilityTest : public ::testing::Test {
     EXPECT_EQ(submit.exit_code, 0) << submit.output;
     std::vector<Process> fleet;
     for (int i = 0; i < workers; ++i) {
-      absl::StatusOr<Process> w = Process::Start(
-          {SKERRY_WORKER_BIN, "--coordinator", c->address(), "--threads",
-           absl::StrCat(threads), "--batch", "8", "--name",
-           absl::StrCat(name, "-", i)},
-          dir_.File(absl::StrCat(name, "-worker", i, ".log")));
+      absl::StatusOr<Process> w =
+          Process::Start({SKERRY_WORKER_BIN, "--coordinator", c->address(),
+                          "--threads", absl::StrCat(threads), "--batch", "8",
+                          "--name", absl::StrCat(name, "-", i)},
+                         dir_.File(absl::StrCat(name, "-worker", i, ".log")));
       EXPECT_TRUE(w.ok()) << w.status();
       if (w.ok()) fleet.push_back(std::move(*w));
     }
@@ -157,8 +136,9 @@ TEST_F(ReproducibilityTest, FrozenWorkerPastItsLeaseChangesNothing) {
         // Wait until work is flowing, then freeze worker 0 with its lease.
         testing::WaitFor(
             [&] {
-              return testing::QueryText(db_of_.count("frozen") ? db_of_["frozen"]
-                                                               : dir_.File("frozen.db"),
+              return testing::QueryText(db_of_.count("frozen")
+                                            ? db_of_["frozen"]
+                                            : dir_.File("frozen.db"),
                                         "SELECT evaluations FROM runs") != "0";
             },
             absl::Seconds(30));
@@ -170,15 +150,16 @@ TEST_F(ReproducibilityTest, FrozenWorkerPastItsLeaseChangesNothing) {
       {"--lease-seconds", "1"});
   EXPECT_EQ(frozen, reference);
   // Informational: how many genomes needed a second lease.
-  const std::string retried = testing::QueryText(
-      dir_.File("frozen.db"), "SELECT count(*) FROM genomes WHERE attempts > 1");
+  const std::string retried =
+      testing::QueryText(dir_.File("frozen.db"),
+                         "SELECT count(*) FROM genomes WHERE attempts > 1");
   RecordProperty("genomes_leased_again", retried);
 }
 
 TEST_F(ReproducibilityTest, AsynchronousModeKeepsLineageConsistent) {
   std::string text = kIslandSpec;
   text.replace(text.find("interval: 3"), 11, "interval: 3 asynchronous: true");
-  WriteFile(spec_, text);
+  ASSERT_TRUE(testing::WriteTextFile(spec_, text));
   const std::string digest = RunOnFleet("async", 3, 1);
   ASSERT_EQ(digest.size(), 64u);
   const std::vector<testing::StoredGenome> genomes =

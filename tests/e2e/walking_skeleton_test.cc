@@ -41,19 +41,12 @@ islands { count: 2 topology: RING interval: 5 migrants: 2 }
 stop { max_generations: 40 }
 )";
 
-void WriteFile(const std::string& path, const std::string& text) {
-  FILE* f = std::fopen(path.c_str(), "w");
-  ASSERT_NE(f, nullptr) << path;
-  std::fputs(text.c_str(), f);
-  std::fclose(f);
-}
-
 class WalkingSkeletonTest : public ::testing::Test {
  protected:
   void SetUp() override {
     db_ = dir_.File("skerry.db");
-    absl::StatusOr<testing::StartedCoordinator> c =
-        testing::StartCoordinator(SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
+    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
+        SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
     ASSERT_TRUE(c.ok()) << c.status();
     coordinator_ = std::make_unique<testing::StartedCoordinator>(std::move(*c));
     stub_ = skerry::v1::RunService::NewStub(grpc::CreateChannel(
@@ -69,7 +62,8 @@ class WalkingSkeletonTest : public ::testing::Test {
 
   skerry::v1::GetRunResponse GetRun(uint64_t id) {
     grpc::ClientContext ctx;
-    ctx.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
+    ctx.set_deadline(std::chrono::system_clock::now() +
+                     std::chrono::seconds(10));
     skerry::v1::RunRef ref;
     ref.set_run_id(id);
     skerry::v1::GetRunResponse resp;
@@ -83,9 +77,10 @@ class WalkingSkeletonTest : public ::testing::Test {
   std::unique_ptr<skerry::v1::RunService::Stub> stub_;
 };
 
-TEST_F(WalkingSkeletonTest, RastriginRunFinishesWithAChampionBetterThanRandomSearch) {
+TEST_F(WalkingSkeletonTest,
+       RastriginRunFinishesWithAChampionBetterThanRandomSearch) {
   const std::string spec = dir_.File("rastrigin.spec");
-  WriteFile(spec, kRastriginSpec);
+  ASSERT_TRUE(testing::WriteTextFile(spec, kRastriginSpec));
   testing::CommandResult submit = RunCommand(Cli({"submit", spec}));
   ASSERT_EQ(submit.exit_code, 0) << submit.output;
 
@@ -164,7 +159,8 @@ TEST_F(WalkingSkeletonTest, RastriginRunFinishesWithAChampionBetterThanRandomSea
 
 TEST_F(WalkingSkeletonTest, SubmitReportsSyntaxErrorsWithFileLineAndColumn) {
   const std::string spec = dir_.File("broken.spec");
-  WriteFile(spec, "name: \"x\"\ngenome_length: 3\nga { population_size: }\n");
+  ASSERT_TRUE(testing::WriteTextFile(
+      spec, "name: \"x\"\ngenome_length: 3\nga { population_size: }\n"));
   testing::CommandResult r = RunCommand(Cli({"submit", spec}));
   EXPECT_NE(r.exit_code, 0);
   EXPECT_THAT(r.output, HasSubstr(spec + ":3:"));
@@ -172,9 +168,10 @@ TEST_F(WalkingSkeletonTest, SubmitReportsSyntaxErrorsWithFileLineAndColumn) {
 
 TEST_F(WalkingSkeletonTest, SubmitNamesABadFieldAndItsRange) {
   const std::string spec = dir_.File("bad-field.spec");
-  WriteFile(spec,
-            "genome_length: 3\nevaluator { builtin { function: \"sphere\" } }\n"
-            "ga { population_size: 1 }\n");
+  ASSERT_TRUE(testing::WriteTextFile(
+      spec,
+      "genome_length: 3\nevaluator { builtin { function: \"sphere\" } }\n"
+      "ga { population_size: 1 }\n"));
   testing::CommandResult r = RunCommand(Cli({"submit", spec}));
   EXPECT_NE(r.exit_code, 0);
   EXPECT_THAT(r.output, HasSubstr("ga.population_size"));

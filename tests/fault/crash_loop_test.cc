@@ -5,8 +5,8 @@
 // invariants hold (--check), no genome is missing or doubled, and the digest
 // equals that of an uninterrupted run of the same spec and seed.
 //
-// SKERRY_CRASH_KILLS sets the number of coordinator kills (default 20, as in CI;
-// use 100 or more locally). Every wait is bounded.
+// SKERRY_CRASH_KILLS sets the number of coordinator kills (default 20, as in
+// CI; use 100 or more locally). Every wait is bounded.
 #include <signal.h>
 
 #include <algorithm>
@@ -25,6 +25,7 @@ namespace skerry {
 namespace {
 
 using testing::CommandResult;
+using testing::DigestIn;
 using testing::Process;
 using testing::QueryText;
 using testing::RunCommand;
@@ -60,19 +61,10 @@ int KillsWanted() {
   return n;
 }
 
-std::string DigestIn(const std::string& output) {
-  for (absl::string_view w : absl::StrSplit(output, absl::ByAnyChar(" \n"))) {
-    if (w.size() == 64 &&
-        w.find_first_not_of("0123456789abcdef") == absl::string_view::npos) {
-      return std::string(w);
-    }
-  }
-  return "";
-}
-
 int64_t Evaluations(const std::string& db) {
   int64_t n = 0;
-  if (!absl::SimpleAtoi(QueryText(db, "SELECT evaluations FROM runs WHERE id = 1"), &n)) {
+  if (!absl::SimpleAtoi(
+          QueryText(db, "SELECT evaluations FROM runs WHERE id = 1"), &n)) {
     return 0;
   }
   return n;
@@ -90,15 +82,13 @@ TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
   {
     std::string text = kSpec;
     text.replace(text.find("GENERATIONS"), 11, absl::StrCat(kGenerations));
-    FILE* f = std::fopen(spec.c_str(), "w");
-    ASSERT_NE(f, nullptr);
-    std::fputs(text.c_str(), f);
-    std::fclose(f);
+    ASSERT_TRUE(testing::WriteTextFile(spec, text));
   }
   // The reference: the same spec and seed, nothing disturbed.
-  CommandResult reference = RunCommand({SKERRY_CLI_BIN, "local", spec, "--workers",
-                                        "2", "--db", dir.File("reference.db")},
-                                       absl::Seconds(300));
+  CommandResult reference =
+      RunCommand({SKERRY_CLI_BIN, "local", spec, "--workers", "2", "--db",
+                  dir.File("reference.db")},
+                 absl::Seconds(300));
   ASSERT_EQ(reference.exit_code, 0) << reference.output;
   const std::string want = DigestIn(reference.output);
   ASSERT_EQ(want.size(), 64u) << reference.output;
@@ -151,7 +141,8 @@ TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
     ASSERT_TRUE(progressed) << "no progress after restart " << kills << "\n"
                             << coordinator->process.Log();
     if (State(db) != "2") break;  // finished before all kills were spent
-    absl::SleepFor(absl::Milliseconds(std::uniform_int_distribution<int>(0, 60)(rng)));
+    absl::SleepFor(
+        absl::Milliseconds(std::uniform_int_distribution<int>(0, 60)(rng)));
     coordinator->process.Kill();  // SIGKILL
     ++kills;
     if (kills % 4 == 0) {
@@ -168,12 +159,13 @@ TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
     }
     if (kills == 6 && froze) workers[0].Signal(SIGCONT);
     // The new coordinator listens on the old port so that workers find it.
-    const std::string next_log = dir.File(absl::StrCat("coordinator", kills, ".log"));
-    absl::StatusOr<Process> next = Process::Start(
-        {SKERRY_COORDINATOR_BIN, "--db", db, "--listen",
-         absl::StrCat("127.0.0.1:", port), "--lease-seconds", "1",
-         "--max-wait-ms", "500"},
-        next_log);
+    const std::string next_log =
+        dir.File(absl::StrCat("coordinator", kills, ".log"));
+    absl::StatusOr<Process> next =
+        Process::Start({SKERRY_COORDINATOR_BIN, "--db", db, "--listen",
+                        absl::StrCat("127.0.0.1:", port), "--lease-seconds",
+                        "1", "--max-wait-ms", "500"},
+                       next_log);
     ASSERT_TRUE(next.ok()) << next.status();
     coordinator = std::make_unique<testing::StartedCoordinator>(
         testing::StartedCoordinator{std::move(*next), port});
@@ -191,7 +183,8 @@ TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
   RecordProperty("coordinator_kills", kills);
   RecordProperty("worker_kills", worker_kills);
 
-  ASSERT_TRUE(testing::WaitFor([&] { return State(db) == "4"; }, absl::Minutes(5)))
+  ASSERT_TRUE(
+      testing::WaitFor([&] { return State(db) == "4"; }, absl::Minutes(5)))
       << "run did not finish; state " << State(db) << "\n"
       << coordinator->process.Log();
 
@@ -213,10 +206,12 @@ TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
   // No genome missing or doubled: exactly one per natural key.
   EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE run_id = 1"),
             absl::StrCat(kIslands * kPopulation * kGenerations));
-  EXPECT_EQ(QueryText(db, "SELECT count(*) FROM (SELECT DISTINCT island, "
-                          "generation, slot FROM genomes WHERE run_id = 1)"),
+  EXPECT_EQ(QueryText(db,
+                      "SELECT count(*) FROM (SELECT DISTINCT island, "
+                      "generation, slot FROM genomes WHERE run_id = 1)"),
             absl::StrCat(kIslands * kPopulation * kGenerations));
-  EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE eval_state = 1"), "0");
+  EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE eval_state = 1"),
+            "0");
 }
 
 }  // namespace

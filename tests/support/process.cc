@@ -18,7 +18,8 @@ namespace skerry::testing {
 
 TempDir::TempDir() {
   const char* base = getenv("TMPDIR");
-  std::string tmpl = absl::StrCat(base != nullptr ? base : "/tmp", "/skerry-test-XXXXXX");
+  std::string tmpl =
+      absl::StrCat(base != nullptr ? base : "/tmp", "/skerry-test-XXXXXX");
   std::vector<char> buf(tmpl.begin(), tmpl.end());
   buf.push_back('\0');
   const char* made = mkdtemp(buf.data());
@@ -37,8 +38,8 @@ absl::StatusOr<Process> Process::Start(const std::vector<std::string>& argv,
                                        const std::string& log_path) {
   const int fd = open(log_path.c_str(), O_WRONLY | O_CREAT | O_APPEND, 0644);
   if (fd < 0) {
-    return absl::InternalError(absl::StrCat("cannot open ", log_path, ": ",
-                                            std::strerror(errno)));
+    return absl::InternalError(
+        absl::StrCat("cannot open ", log_path, ": ", std::strerror(errno)));
   }
   const pid_t pid = fork();
   if (pid < 0) {
@@ -54,7 +55,8 @@ absl::StatusOr<Process> Process::Start(const std::vector<std::string>& argv,
     sigemptyset(&none);
     sigprocmask(SIG_SETMASK, &none, nullptr);
     std::vector<char*> args;
-    for (const std::string& a : argv) args.push_back(const_cast<char*>(a.c_str()));
+    for (const std::string& a : argv)
+      args.push_back(const_cast<char*>(a.c_str()));
     args.push_back(nullptr);
     execv(args[0], args.data());
     _exit(127);
@@ -159,9 +161,12 @@ absl::StatusOr<StartedCoordinator> StartCoordinator(
         const size_t at = text.find(marker);
         if (at == std::string::npos) return false;
         size_t end = at + marker.size();
-        while (end < text.size() && isdigit(static_cast<unsigned char>(text[end]))) ++end;
-        return absl::SimpleAtoi(text.substr(at + marker.size(), end - at - marker.size()),
-                                &c.port) &&
+        while (end < text.size() &&
+               isdigit(static_cast<unsigned char>(text[end])))
+          ++end;
+        return absl::SimpleAtoi(
+                   text.substr(at + marker.size(), end - at - marker.size()),
+                   &c.port) &&
                c.port > 0;
       },
       absl::Seconds(30));
@@ -170,6 +175,30 @@ absl::StatusOr<StartedCoordinator> StartCoordinator(
         absl::StrCat("coordinator did not start:\n", c.process.Log()));
   }
   return c;
+}
+
+bool WriteTextFile(const std::string& path, const std::string& text) {
+  std::ofstream out(path, std::ios::trunc);
+  out << text;
+  return static_cast<bool>(out);
+}
+
+std::string DigestIn(const std::string& output) {
+  size_t run = 0;
+  for (size_t i = 0; i <= output.size(); ++i) {
+    const bool hex =
+        i < output.size() && ((output[i] >= '0' && output[i] <= '9') ||
+                              (output[i] >= 'a' && output[i] <= 'f'));
+    if (hex) {
+      ++run;
+      continue;
+    }
+    const bool word_end = i == output.size() || output[i] == ' ' ||
+                          output[i] == '\n' || output[i] == '\t';
+    if (run == 64 && word_end) return output.substr(i - 64, 64);
+    run = 0;
+  }
+  return "";
 }
 
 bool WaitFor(const std::function<bool()>& condition, absl::Duration timeout) {

@@ -76,6 +76,13 @@ absl::StatusOr<StartedCoordinator> StartCoordinator(
     const std::string& binary, const std::string& db, const std::string& log,
     const std::vector<std::string>& extra_flags = {});
 
+// Writes `text` to `path` (replacing it); false when it cannot.
+bool WriteTextFile(const std::string& path, const std::string& text);
+
+// The first 64-hex-digit word in `output` (the digest that `skerry digest` and
+// `skerry local` print), or "" when there is none.
+std::string DigestIn(const std::string& output);
+
 // Polls `condition` every 50 ms until it holds or `timeout` passes.
 bool WaitFor(const std::function<bool()>& condition, absl::Duration timeout);
 
