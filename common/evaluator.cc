@@ -130,6 +130,14 @@ std::vector<std::string> BuiltinNames() {
   return names;
 }
 
+absl::StatusOr<double> Evaluator::EvaluateCase(absl::Span<const double>,
+                                               const std::string& case_name,
+                                               uint64_t) {
+  return absl::FailedPreconditionError(absl::StrCat(
+      "validation case \"", case_name,
+      "\": this evaluator has no held-out validation cases"));
+}
+
 absl::StatusOr<std::unique_ptr<Evaluator>> MakeEvaluator(
     const skerry::v1::EvaluatorSpec& spec) {
   if (pole::IsPoleEvaluator(spec)) return pole::MakePoleEvaluator(spec);

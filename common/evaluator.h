@@ -24,6 +24,11 @@ class Evaluator {
   // A non-OK status is a failed attempt; its message is stored with the genome.
   virtual absl::StatusOr<double> Evaluate(absl::Span<const double> genes,
                                           uint64_t seed) = 0;
+  // The score of one held-out validation case (common/validation.h names
+  // them). FailedPrecondition by default: most evaluators have none.
+  virtual absl::StatusOr<double> EvaluateCase(absl::Span<const double> genes,
+                                              const std::string& case_name,
+                                              uint64_t seed);
 };
 
 // A built-in benchmark function: its name as written in a spec, its usual domain

@@ -5,6 +5,8 @@
 #include <string>
 #include <utility>
 
+#include "absl/strings/match.h"
+#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "common/episodes.h"
 #include "common/random.h"
@@ -136,6 +138,24 @@ class PoleEvaluator : public Evaluator {
       scores.push_back(*score);
     }
     return AggregateEpisodes(episodes.aggregate(), std::move(scores));
+  }
+
+  // Case "start-<i>": 1 when the controller balances from generalisation
+  // start i for 1000 steps, else 0 (common/validation.h).
+  absl::StatusOr<double> EvaluateCase(absl::Span<const double> genes,
+                                      const std::string& case_name,
+                                      uint64_t) override {
+    uint32_t index = 0;
+    if (!absl::StartsWith(case_name, "start-") ||
+        !absl::SimpleAtoi(absl::string_view(case_name).substr(6), &index)) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          "validation case \"", case_name,
+          "\": pole evaluators know the cases start-0 ... start-",
+          kGeneralisationStarts - 1));
+    }
+    absl::StatusOr<uint64_t> steps = RunGeneralisationCase(spec_, genes, index);
+    if (!steps.ok()) return steps.status();
+    return *steps >= kGeneralisationSteps ? 1.0 : 0.0;
   }
 
  private:

@@ -28,6 +28,7 @@ enum class StreamPurpose : uint16_t {
   kMigration = 5,   // emigrant choice and replacement, slot = source island
   kEvalSeed = 6,    // the seed handed to the evaluator, per slot
   kTopology = 7,    // random topology of a migration epoch, slot 0
+  kValidation = 8,  // the seed of held-out validation case `slot`
 };
 
 struct StreamKey {

@@ -12,6 +12,7 @@
 #include "common/evaluator.h"
 #include "common/network.h"
 #include "common/pole.h"
+#include "common/validation.h"
 #include "google/protobuf/descriptor.h"
 #include "google/protobuf/io/tokenizer.h"
 #include "google/protobuf/text_format.h"
@@ -373,6 +374,7 @@ absl::Status CheckEvaluator(const RunSpec& spec) {
     return s;
   }
   if (absl::Status s = CheckNetworkRun(spec); !s.ok()) return s;
+  if (absl::Status s = CheckValidation(spec.evaluator()); !s.ok()) return s;
   return CheckPositiveFinite("evaluator.time_limit_seconds",
                              spec.evaluator().time_limit_seconds());
 }
@@ -514,6 +516,7 @@ void NormalizeSpec(RunSpec* spec) {
   if (spec->evaluator().time_limit_seconds() == 0) {
     spec->mutable_evaluator()->set_time_limit_seconds(60);
   }
+  NormalizeValidation(spec->mutable_evaluator());
   if (spec->max_attempts() == 0) spec->set_max_attempts(3);
   if (!HasStopCondition(spec->stop())) {
     spec->mutable_stop()->set_max_generations(100);

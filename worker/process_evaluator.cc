@@ -521,18 +521,33 @@ absl::StatusOr<double> ProcessEvaluator::Evaluate(
     request.set_seed(options_.episodes == 1 ? seed
                                             : EpisodeStream(seed, e).NextU64());
     request.set_episode(e);
-    absl::StatusOr<EvaluationResponse> response = Exchange(std::move(request));
-    if (!response.ok()) return response.status();
-    if (!response->error().empty()) {
-      return absl::UnknownError(
-          absl::StrCat(Name(), " reported: ", response->error()));
-    }
-    last_metrics_.clear();
-    last_metrics_.insert(response->metrics().begin(),
-                         response->metrics().end());
-    scores.push_back(response->score());
+    absl::StatusOr<double> score = Score(std::move(request));
+    if (!score.ok()) return score.status();
+    scores.push_back(*score);
   }
   return AggregateEpisodes(options_.aggregate, std::move(scores));
+}
+
+absl::StatusOr<double> ProcessEvaluator::EvaluateCase(
+    absl::Span<const double> genes, const std::string& case_name,
+    uint64_t seed) {
+  EvaluationRequest request;
+  request.mutable_genes()->Add(genes.begin(), genes.end());
+  request.set_seed(seed);
+  request.set_case_name(case_name);
+  return Score(std::move(request));
+}
+
+absl::StatusOr<double> ProcessEvaluator::Score(EvaluationRequest request) {
+  absl::StatusOr<EvaluationResponse> response = Exchange(std::move(request));
+  if (!response.ok()) return response.status();
+  if (!response->error().empty()) {
+    return absl::UnknownError(
+        absl::StrCat(Name(), " reported: ", response->error()));
+  }
+  last_metrics_.clear();
+  last_metrics_.insert(response->metrics().begin(), response->metrics().end());
+  return response->score();
 }
 
 absl::StatusOr<ProcessEvaluatorOptions> ProcessOptionsForSpec(

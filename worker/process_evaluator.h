@@ -87,6 +87,10 @@ class ProcessEvaluator : public Evaluator {
   // aggregate.
   absl::StatusOr<double> Evaluate(absl::Span<const double> genes,
                                   uint64_t seed) override;
+  // One request with case_name set (episode 0).
+  absl::StatusOr<double> EvaluateCase(absl::Span<const double> genes,
+                                      const std::string& case_name,
+                                      uint64_t seed) override;
 
   // Sends one request (its id is assigned here) and returns the checked
   // answer: same id, and a score unless error is set. A response whose error
@@ -112,6 +116,8 @@ class ProcessEvaluator : public Evaluator {
   ProcessEvaluator(ProcessEvaluatorOptions options, std::string program);
 
   absl::Status EnsureChild();
+  // Exchange, then the score, or the program's error as a failed attempt.
+  absl::StatusOr<double> Score(skerry::v1::EvaluationRequest request);
   absl::StatusOr<std::string> Transact(const std::string& line,
                                        absl::Time deadline);
   absl::StatusOr<skerry::v1::EvaluationResponse> CheckResponse(

@@ -7,6 +7,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/types/span.h"
+#include "common/validation.h"
 #include "worker/process_evaluator.h"
 
 namespace skerry::worker {
@@ -91,11 +92,15 @@ skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,
   absl::StatusOr<Evaluator*> evaluator = cache.Get(task.evaluator());
   if (evaluator.ok()) {
     // Time limits are enforced by evaluators that run in a child process.
+    const auto genes =
+        absl::MakeConstSpan(task.genes().data(), task.genes().size());
     score = Guarded([&]() -> absl::StatusOr<double> {
-      return (*evaluator)
-          ->Evaluate(
-              absl::MakeConstSpan(task.genes().data(), task.genes().size()),
-              task.eval_seed());
+      if (task.kind() == skerry::v1::TASK_VALIDATE) {
+        // eval_seed is the run's seed: the cases' seeds come from it.
+        return ValidateGenes(**evaluator, task.evaluator(), genes,
+                             task.eval_seed());
+      }
+      return (*evaluator)->Evaluate(genes, task.eval_seed());
     });
   } else {
     score = evaluator.status();

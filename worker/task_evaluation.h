@@ -56,7 +56,8 @@ class EvaluatorCache {
   std::map<std::string, absl::StatusOr<std::unique_ptr<Evaluator>>> by_spec_;
 };
 
-// Evaluates task with its evaluator; eval_seconds is measured on clock.
+// Evaluates task with its evaluator (a TASK_VALIDATE task: on the run's
+// held-out cases, common/validation.h); eval_seconds is measured on clock.
 skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,
                                     EvaluatorCache& cache, Clock* clock);
 
