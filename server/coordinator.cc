@@ -10,6 +10,7 @@
 #include "server/api/admin_service.h"
 #include "server/api/fleet_service.h"
 #include "server/api/run_service.h"
+#include "server/api/validation_service.h"
 #include "server/engine/engine.h"
 #include "server/lineage/lineage_service.h"
 #include "server/scheduler/task_queue.h"
@@ -40,6 +41,8 @@ class CoordinatorImpl final : public Coordinator {
         options.max_lease_wait);
     c->runs_ = std::make_unique<api::RunServiceImpl>(
         c->store_.get(), c->engine_.get(), c->fleet_.get());
+    c->validations_ = std::make_unique<api::ValidationServiceImpl>(
+        c->store_.get(), c->engine_.get());
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
                             lineage::LineageServiceImpl::Open(options.db_path));
 
@@ -55,6 +58,7 @@ class CoordinatorImpl final : public Coordinator {
     c->admin_ = std::make_unique<api::AdminServiceImpl>(options.db_path);
     builder.RegisterService(c->admin_.get());
     builder.RegisterService(c->lineage_.get());
+    builder.RegisterService(c->validations_.get());
     c->server_ = builder.BuildAndStart();
     if (c->server_ == nullptr ||
         (!options.listen_address.empty() && c->port_ == 0)) {
@@ -109,6 +113,7 @@ class CoordinatorImpl final : public Coordinator {
   std::unique_ptr<api::RunServiceImpl> runs_;
   std::unique_ptr<api::AdminServiceImpl> admin_;
   std::unique_ptr<lineage::LineageServiceImpl> lineage_;
+  std::unique_ptr<api::ValidationServiceImpl> validations_;
   std::unique_ptr<grpc::Server> server_;
   int port_ = 0;
 

@@ -4,6 +4,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "server/api/grpc_status.h"
+#include "server/api/validation_service.h"
 
 namespace skerry::api {
 namespace {
@@ -89,6 +90,14 @@ grpc::Status RunServiceImpl::GetRun(grpc::ServerContext* ctx,
     if (!list.ok()) return ToGrpc(list.status());
     for (const store::GenomeRecord& g : *list) *resp->add_failed() = ToGenomeProto(g);
   }
+  if (rec->champion_id != 0) {
+    absl::StatusOr<std::optional<store::ValidationRecord>> v =
+        store_->GetValidation(rec->champion_id);
+    if (!v.ok()) return ToGrpc(v.status());
+    if (v->has_value()) {
+      *resp->mutable_champion_validation() = ToValidationProto(**v);
+    }
+  }
   return grpc::Status::OK;
 }
 
@@ -141,6 +150,9 @@ grpc::Status RunServiceImpl::GetHistory(grpc::ServerContext* ctx,
   absl::StatusOr<std::vector<store::StatsRecord>> stats =
       store_->GetStats(RunId(req->run_id()), island);
   if (!stats.ok()) return ToGrpc(stats.status());
+  absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>> validated =
+      store_->ChampionValidationScores(rec->id);
+  if (!validated.ok()) return ToGrpc(validated.status());
   for (const store::StatsRecord& s : *stats) {
     skerry::v1::GenerationStats* g = resp->add_generations();
     g->set_island(s.island);
@@ -152,6 +164,10 @@ grpc::Status RunServiceImpl::GetHistory(grpc::ServerContext* ctx,
     g->set_evaluations(s.evaluations);
     g->set_failed(s.failed);
     g->set_completed_unix_ms(s.completed_ms);
+    if (auto v = validated->find({s.island, s.generation});
+        v != validated->end()) {
+      g->set_validation_score(v->second);
+    }
   }
   return grpc::Status::OK;
 }

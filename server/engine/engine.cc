@@ -55,6 +55,7 @@ absl::StatusOr<std::unique_ptr<Engine>> Engine::Open(
   {
     absl::MutexLock l(&engine->mu_);
     SKERRY_RETURN_IF_ERROR(engine->Load());
+    SKERRY_RETURN_IF_ERROR(engine->LoadValidations());
   }
   engine->committer_ = std::thread([e = engine.get()] { e->CommitterLoop(); });
   return engine;
@@ -292,7 +293,8 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
   };
   absl::MutexLock l(&mu_);
   std::vector<Applied> applied;
-  std::vector<int64_t> claimed;
+  std::vector<int64_t> claimed;  // task ids
+  std::vector<store::ValidationUpdate> validated;
   std::vector<ReportOutcome> outcomes(jobs.size());
   for (size_t j = 0; j < jobs.size(); ++j) {
     for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
@@ -309,6 +311,12 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
           jobs[j]->worker_id, r.task_id(), r.attempt(), failed, &why);
       if (!info.has_value()) {
         reject(why);
+        continue;
+      }
+      if (info->kind == skerry::v1::TASK_VALIDATE) {
+        validated.push_back(ValidationOutcome(*info, r, failed));
+        claimed.push_back(info->task_id());
+        ++outcomes[j].accepted;
         continue;
       }
       claimed.push_back(info->genome_id);
@@ -335,15 +343,7 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
       u.attempts = std::max({info->attempts, r.attempt(), 1u});
       u.eval_seconds = r.eval_seconds();
       if (failed) {
-        u.error = !r.error().empty()
-                      ? r.error()
-                      : absl::StrCat("score is not a finite number (",
-                                     r.score(), ")");
-        // A worker's text is stored: keep it bounded.
-        if (u.error.size() > kMaxErrorBytes) {
-          u.error.resize(kMaxErrorBytes);
-          u.error += " [truncated]";
-        }
+        u.error = FailureText(r);
         u.state = info->attempts >= run.record.spec.max_attempts()
                       ? skerry::v1::FAILED
                       : skerry::v1::PENDING;
@@ -358,8 +358,9 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
   std::vector<store::ResultUpdate> updates;
   updates.reserve(applied.size());
   for (const Applied& a : applied) updates.push_back(a.update);
-  absl::Status committed =
-      updates.empty() ? absl::OkStatus() : store_->CommitResults(updates);
+  absl::Status committed = updates.empty() && validated.empty()
+                               ? absl::OkStatus()
+                               : store_->CommitResults(updates, validated);
   if (!committed.ok()) {
     queue_->Unclaim(claimed);
     NoteWriteFailure(committed);
@@ -381,6 +382,15 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
         island.pending.erase(g.id);
         ++a.run->record.evaluations;
         done.push_back(g.id);
+      }
+    }
+    for (const store::ValidationUpdate& v : validated) {
+      const int64_t task = scheduler::kValidationTaskBase + v.id;
+      if (v.state == skerry::v1::VALIDATION_PENDING) {
+        retry.push_back(task);
+      } else {
+        validations_.erase(v.id);
+        done.push_back(task);
       }
     }
     queue_->Complete(done);
@@ -415,6 +425,19 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
     }
   }
   NotifyChange();
+}
+
+std::string Engine::FailureText(const skerry::v1::TaskResult& r) {
+  std::string text =
+      !r.error().empty()
+          ? r.error()
+          : absl::StrCat("score is not a finite number (", r.score(), ")");
+  // A worker's text is stored: keep it bounded.
+  if (text.size() > kMaxErrorBytes) {
+    text.resize(kMaxErrorBytes);
+    text += " [truncated]";
+  }
+  return text;
 }
 
 void Engine::NoteWriteFailure(const absl::Status& s) {
@@ -586,9 +609,18 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
       }
     }
   }
+  if (has_best) {
+    commit.validate = ChampionValidation(run, island.current, stats.best,
+                                         commit.champion.has_value());
+  }
   SKERRY_RETURN_IF_ERROR(store_->CommitGeneration(commit));
 
   // Committed: bring the cache in line.
+  if (commit.validate.has_value()) {
+    for (const GenomeRecord& gr : island.current) {
+      if (gr.id == commit.validate->genome_id) QueueChampionValidation(run, gr);
+    }
+  }
   if (commit.champion.has_value()) {
     run.record.champion_id = commit.champion->first;
     run.record.best_score = commit.champion->second;

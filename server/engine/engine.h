@@ -29,6 +29,14 @@
 // emigrants from the newest generation <= g each source has completed so far, or
 // none; the run is then not reproducible and its digest depends on the fleet.
 //
+// Held-out validation (common/validation.h, validation.proto): when a run's
+// evaluator declares validation cases, the champion of each island's completed
+// generation (or only a new best, per ValidationSpec.champions) gets a
+// validation request in the same transaction as the generation, and any genome
+// can be validated on request. Validations are tasks of their own kind in the
+// same queue; they never feed back into the search (the digest and the genomes
+// do not depend on them), and they outlive the run's search.
+//
 // Storage trouble (disk full, I/O error): a failed commit changes nothing in the
 // cache; the engine stops handing out work (TaskQueue::SetHeld), says why in
 // every run summary, keeps answering reads, probes the database every second,
@@ -85,6 +93,12 @@ class Engine {
   absl::StatusOr<ReportOutcome> Report(
       int64_t worker_id, const std::vector<skerry::v1::TaskResult>& results);
 
+  // Stores (or finds) a validation of the genome and queues it.
+  // FailedPrecondition when its run declares no validation cases; NotFound
+  // for an unknown genome.
+  absl::StatusOr<store::ValidationRecord> RequestValidation(
+      int64_t genome_id, const std::string& requested_by);
+
   // The run as the user API shows it.
   absl::StatusOr<skerry::v1::RunSummary> Summary(int64_t run_id);
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> ListSummaries();
@@ -114,6 +128,11 @@ class Engine {
     std::vector<Island> islands;
     std::optional<uint32_t> stop_generation;  // set by the target score rule
     std::string finish_reason;
+  };
+  // A queued validation: what its results are checked against.
+  struct PendingValidation {
+    int64_t run_id = 0;
+    uint32_t max_attempts = 1;
   };
   struct ReportJob {
     int64_t worker_id = 0;
@@ -150,6 +169,28 @@ class Engine {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void QueueIsland(const Run& run, const Island& island)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // ---- Validations (engine_validation.cc) ----
+  // Queues every pending validation of the store (at Open).
+  absl::Status LoadValidations() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void QueueValidation(const store::ValidationRecord& v,
+                       const std::vector<double>& genes,
+                       const skerry::v1::RunSpec& spec)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The request for the champion of `generation` (best score `best`) when the
+  // run's policy wants one; new_best: it improves the run's best.
+  std::optional<store::ValidationRequest> ChampionValidation(
+      const Run& run, const std::vector<store::GenomeRecord>& generation,
+      double best, bool new_best) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // After the generation committed: queues its champion's validation when
+  // the store left it pending.
+  void QueueChampionValidation(const Run& run, const store::GenomeRecord& g)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The error text stored for a failed attempt, bounded in size.
+  static std::string FailureText(const skerry::v1::TaskResult& result);
+  // The stored outcome of a claimed validation result.
+  store::ValidationUpdate ValidationOutcome(
+      const scheduler::TaskInfo& info, const skerry::v1::TaskResult& result,
+      bool failed) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status CheckWallTime() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void FailRun(Run& run, const absl::Status& why)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
@@ -169,6 +210,8 @@ class Engine {
 
   absl::Mutex mu_;
   std::map<int64_t, std::unique_ptr<Run>> runs_ ABSL_GUARDED_BY(mu_);  // active
+  // Queued validations by validation id.
+  std::map<int64_t, PendingValidation> validations_ ABSL_GUARDED_BY(mu_);
   uint64_t changes_ ABSL_GUARDED_BY(mu_) = 0;
   absl::Status write_problem_ ABSL_GUARDED_BY(mu_);  // OK: writes succeed
 

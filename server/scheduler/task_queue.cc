@@ -14,23 +14,23 @@ void TaskQueue::Enqueue(Entry& e, bool front) {
   e.holder = 0;
   RunQueue& rq = runs_[e.info.run_id];
   if (front) {
-    rq.ids.push_front(e.info.genome_id);
+    rq.ids.push_front(e.info.task_id());
   } else {
-    rq.ids.push_back(e.info.genome_id);
+    rq.ids.push_back(e.info.task_id());
   }
   ++rq.queued;
 }
 
 void TaskQueue::DropLease(Entry& e) {
   if (e.state == State::kLeased) {
-    deadlines_.erase({e.deadline, e.info.genome_id});
+    deadlines_.erase({e.deadline, e.info.task_id()});
   }
 }
 
 void TaskQueue::Add(std::vector<TaskInfo> tasks) {
   absl::MutexLock l(&mu_);
   for (TaskInfo& t : tasks) {
-    const int64_t id = t.genome_id;
+    const int64_t id = t.task_id();
     auto [it, inserted] = tasks_.try_emplace(id);
     if (!inserted) continue;
     it->second.info = std::move(t);
@@ -40,20 +40,38 @@ void TaskQueue::Add(std::vector<TaskInfo> tasks) {
 
 void TaskQueue::RemoveRun(int64_t run_id) {
   absl::MutexLock l(&mu_);
+  std::deque<int64_t> kept;  // the run's queued validations, in order
+  size_t kept_queued = 0;
   for (auto it = tasks_.begin(); it != tasks_.end();) {
-    if (it->second.info.run_id == run_id) {
+    const TaskInfo& info = it->second.info;
+    if (info.run_id == run_id && info.kind == skerry::v1::TASK_EVALUATE) {
       DropLease(it->second);
       it = tasks_.erase(it);
     } else {
       ++it;
     }
   }
-  runs_.erase(run_id);
+  auto rq = runs_.find(run_id);
+  if (rq == runs_.end()) return;
+  for (int64_t id : rq->second.ids) {
+    auto t = tasks_.find(id);
+    if (t != tasks_.end() && t->second.state == State::kQueued) {
+      kept.push_back(id);
+      ++kept_queued;
+    }
+  }
+  if (kept.empty()) {
+    runs_.erase(rq);
+    return;
+  }
+  rq->second.ids = std::move(kept);
+  rq->second.queued = kept_queued;
+  rq->second.paused = false;  // the run is over: nothing holds these back
 }
 
-void TaskQueue::Remove(absl::Span<const int64_t> genome_ids) {
+void TaskQueue::Remove(absl::Span<const int64_t> task_ids) {
   absl::MutexLock l(&mu_);
-  for (int64_t id : genome_ids) {
+  for (int64_t id : task_ids) {
     auto it = tasks_.find(id);
     if (it == tasks_.end()) continue;
     if (it->second.state == State::kQueued) {
@@ -151,6 +169,7 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
         *task.mutable_genes() = {e.info.genes.begin(), e.info.genes.end()};
         *task.mutable_evaluator() = *e.info.evaluator;
         task.set_eval_seed(e.info.eval_seed);
+        task.set_kind(e.info.kind);
         out.push_back(std::move(task));
         took = true;
         next_run_ = rit->first;
@@ -163,21 +182,21 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
   return out;
 }
 
-void TaskQueue::Renew(int64_t worker, absl::Span<const uint64_t> genome_ids) {
+void TaskQueue::Renew(int64_t worker, absl::Span<const uint64_t> task_ids) {
   absl::MutexLock l(&mu_);
   const absl::Time deadline = clock_->Now() + lease_;
-  for (uint64_t id : genome_ids) {
+  for (uint64_t id : task_ids) {
     auto t = tasks_.find(static_cast<int64_t>(id));
     if (t == tasks_.end()) continue;
     Entry& e = t->second;
     if (e.state != State::kLeased || e.holder != worker) continue;
-    deadlines_.erase({e.deadline, e.info.genome_id});
+    deadlines_.erase({e.deadline, e.info.task_id()});
     e.deadline = deadline;
-    deadlines_.insert({deadline, e.info.genome_id});
+    deadlines_.insert({deadline, e.info.task_id()});
   }
 }
 
-std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t genome_id,
+std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t task_id,
                                          uint32_t attempt, bool failed_attempt,
                                          absl::Status* why) {
   auto refuse = [&](absl::Status s) -> std::optional<TaskInfo> {
@@ -185,21 +204,21 @@ std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t genome_id,
     return std::nullopt;
   };
   absl::MutexLock l(&mu_);
-  auto t = tasks_.find(static_cast<int64_t>(genome_id));
+  auto t = tasks_.find(static_cast<int64_t>(task_id));
   if (t == tasks_.end()) {
     return refuse(absl::NotFoundError(absl::StrCat(
-        "task ", genome_id,
+        "task ", task_id,
         " is unknown or its result is already stored (duplicate)")));
   }
   Entry& e = t->second;
   if (e.state == State::kClaimed) {
     return refuse(absl::AbortedError(absl::StrCat(
-        "another result for task ", genome_id, " is being committed")));
+        "another result for task ", task_id, " is being committed")));
   }
   if (failed_attempt && (e.state != State::kLeased || e.holder != worker ||
                          e.info.attempts != attempt)) {
     return refuse(absl::FailedPreconditionError(absl::StrCat(
-        "failed attempt ", attempt, " of task ", genome_id,
+        "failed attempt ", attempt, " of task ", task_id,
         " is not from its current lease (attempt ", e.info.attempts,
         "); not counted")));
   }
@@ -209,17 +228,17 @@ std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t genome_id,
   return e.info;
 }
 
-void TaskQueue::Complete(absl::Span<const int64_t> genome_ids) {
+void TaskQueue::Complete(absl::Span<const int64_t> task_ids) {
   absl::MutexLock l(&mu_);
-  for (int64_t id : genome_ids) {
+  for (int64_t id : task_ids) {
     auto t = tasks_.find(id);
     if (t != tasks_.end() && t->second.state == State::kClaimed) tasks_.erase(t);
   }
 }
 
-void TaskQueue::Unclaim(absl::Span<const int64_t> genome_ids) {
+void TaskQueue::Unclaim(absl::Span<const int64_t> task_ids) {
   absl::MutexLock l(&mu_);
-  for (int64_t id : genome_ids) {
+  for (int64_t id : task_ids) {
     auto t = tasks_.find(id);
     if (t != tasks_.end() && t->second.state == State::kClaimed) {
       Enqueue(t->second, /*front=*/true);

@@ -20,6 +20,12 @@
 // Runs are served round-robin, so a run with a huge population does not starve a
 // small one; a paused run's tasks stay queued but are not handed out.
 //
+// Two kinds of task share the queue (fleet.proto TaskKind): evaluations of
+// genomes, keyed by genome id, and held-out validations, keyed by
+// kValidationTaskBase + validation id. Every method taking ids takes these task
+// ids. Validations outlive the search: RemoveRun drops a run's evaluations and
+// keeps its validations, so a finished run's champion is still validated.
+//
 // Thread safety: every method may be called from any thread.
 #ifndef SKERRY_SERVER_SCHEDULER_TASK_QUEUE_H_
 #define SKERRY_SERVER_SCHEDULER_TASK_QUEUE_H_
@@ -45,8 +51,13 @@
 
 namespace skerry::scheduler {
 
+// Task ids of validations (fleet.proto): kValidationTaskBase + validation id.
+constexpr int64_t kValidationTaskBase = int64_t{1} << 62;
+
 struct TaskInfo {
+  skerry::v1::TaskKind kind = skerry::v1::TASK_EVALUATE;
   int64_t genome_id = 0;
+  int64_t validation_id = 0;  // TASK_VALIDATE
   int64_t run_id = 0;
   uint32_t island = 0;
   uint32_t generation = 0;
@@ -55,6 +66,14 @@ struct TaskInfo {
   uint64_t eval_seed = 0;
   std::shared_ptr<const skerry::v1::EvaluatorSpec> evaluator;
   uint32_t attempts = 0;  // leases handed out so far (the current attempt number)
+
+  // The id the worker sees and the queue keys on: the genome's id, or
+  // kValidationTaskBase + the validation's id.
+  int64_t task_id() const {
+    return kind == skerry::v1::TASK_VALIDATE
+               ? kValidationTaskBase + validation_id
+               : genome_id;
+  }
 };
 
 class TaskQueue {
@@ -63,11 +82,11 @@ class TaskQueue {
 
   absl::Duration lease() const { return lease_; }
 
-  // Adds queued tasks. A task whose genome id is already known is ignored.
+  // Adds queued tasks. A task whose task id is already known is ignored.
   void Add(std::vector<TaskInfo> tasks);
-  // Drops every task of a run (stopped, finished) or of the given genomes.
+  // Drops every evaluation of a run (stopped, finished), or the given tasks.
   void RemoveRun(int64_t run_id);
-  void Remove(absl::Span<const int64_t> genome_ids);
+  void Remove(absl::Span<const int64_t> task_ids);
   void SetPaused(int64_t run_id, bool paused);
   // Holds every run: nothing is leased while held (the coordinator cannot
   // write its database). Renewals and claims go on.
@@ -79,19 +98,19 @@ class TaskQueue {
   std::vector<skerry::v1::Task> Lease(int64_t worker, uint32_t max_tasks,
                                       absl::Duration wait);
   // Extends the deadlines of tasks that `worker` still holds.
-  void Renew(int64_t worker, absl::Span<const uint64_t> genome_ids);
+  void Renew(int64_t worker, absl::Span<const uint64_t> task_ids);
 
   // Claims a task for committing a result (see the result rule above). Returns
   // the task, or nothing when the result must be ignored.
   // When nothing is returned and `why` is given, *why says why (a NotFound,
   // Aborted or FailedPrecondition status naming the task).
-  std::optional<TaskInfo> Claim(int64_t worker, uint64_t genome_id,
+  std::optional<TaskInfo> Claim(int64_t worker, uint64_t task_id,
                                 uint32_t attempt, bool failed_attempt,
                                 absl::Status* why = nullptr);
   // The commit holding claimed results succeeded: forget them.
-  void Complete(absl::Span<const int64_t> genome_ids);
+  void Complete(absl::Span<const int64_t> task_ids);
   // The commit failed, or the attempt failed and may be retried: queue again.
-  void Unclaim(absl::Span<const int64_t> genome_ids);
+  void Unclaim(absl::Span<const int64_t> task_ids);
 
   // Wakes every waiting Lease call; later calls return at once.
   void Shutdown();

@@ -104,8 +104,31 @@ constexpr const char* kSchemaV3 = R"sql(
 CREATE INDEX genomes_failed ON genomes (run_id) WHERE eval_state = 3;
 )sql";
 
+// Version 4: held-out validations (validation.proto), one per genome at most.
+constexpr const char* kSchemaV4 = R"sql(
+CREATE TABLE validations (
+  id INTEGER PRIMARY KEY,
+  run_id INTEGER NOT NULL,
+  genome_id INTEGER NOT NULL UNIQUE,
+  generation INTEGER NOT NULL,
+  reason INTEGER NOT NULL,
+  state INTEGER NOT NULL,
+  score REAL,
+  cases INTEGER NOT NULL,
+  attempts INTEGER NOT NULL DEFAULT 0,
+  error TEXT NOT NULL DEFAULT '',
+  requested_by TEXT NOT NULL,
+  requested_ms INTEGER NOT NULL,
+  completed_ms INTEGER NOT NULL DEFAULT 0,
+  copied_from INTEGER
+);
+CREATE INDEX validations_run ON validations (run_id, id);
+CREATE INDEX validations_pending ON validations (id) WHERE state = 1;
+)sql";
+
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3};
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3,
+                                       kSchemaV4};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -338,7 +361,9 @@ absl::Status Store::CreateRun(RunRecord* run,
   return txn.Commit();
 }
 
-absl::Status Store::CommitResults(absl::Span<const ResultUpdate> results) {
+absl::Status Store::CommitResults(
+    absl::Span<const ResultUpdate> results,
+    absl::Span<const ValidationUpdate> validations) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   SKERRY_ASSIGN_OR_RETURN(
@@ -372,6 +397,7 @@ absl::Status Store::CommitResults(absl::Span<const ResultUpdate> results) {
     cnt.BindInt(2, run_id);
     SKERRY_RETURN_IF_ERROR(cnt.Run());
   }
+  SKERRY_RETURN_IF_ERROR(ApplyValidationsLocked(validations));
   return txn.Commit();
 }
 
@@ -430,6 +456,9 @@ absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
     upd.BindInt(3, c.run_id);
     SKERRY_RETURN_IF_ERROR(upd.Run());
   }
+  if (c.validate.has_value()) {
+    SKERRY_RETURN_IF_ERROR(RequestValidationLocked(*c.validate).status());
+  }
   if (c.stop_generation.has_value()) {
     SKERRY_ASSIGN_OR_RETURN(
         auto upd, conn_->Prepare("UPDATE runs SET stop_generation = "
@@ -478,6 +507,7 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
     for (const char* sql :
          {"DELETE FROM genomes WHERE run_id = ?1 AND generation > ?2",
           "DELETE FROM generation_stats WHERE run_id = ?1 AND generation > ?2",
+          "DELETE FROM validations WHERE run_id = ?1 AND generation > ?2",
           "UPDATE islands SET generation = min(generation, ?2) WHERE run_id = ?1",
           "UPDATE runs SET stop_generation = ?2 WHERE id = ?1"}) {
       SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare(sql));

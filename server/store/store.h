@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 3)
+// ## Schema (version 4)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -13,8 +13,15 @@
 //   generation_stats(run_id, island, generation, best, mean, worst, diversity,
 //           evaluations, failed, eval_seconds, completed_ms)
 //   workers(id, name, host, threads, evaluators, version, joined_ms, last_seen_ms)
+//   validations(id, run_id, genome_id UNIQUE, generation, reason, state, score,
+//           cases, attempts, error, requested_by, requested_ms, completed_ms,
+//           copied_from)                          (version 4)
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
-// parent_b (version 2: descendant queries); failed genomes per run (version 3).
+// parent_b (version 2: descendant queries); failed genomes per run (version 3);
+// validations per run and pending validations (version 4).
+// A validation's `state` and `reason` are the enum numbers of
+// proto/skerry/v1/validation.proto; `generation` repeats the genome's, so
+// trimming a run past its stop generation trims its validations too.
 // `spec` is the normalised RunSpec in binary protobuf; `genes` is packed
 // little-endian float64 (common/genes.h); `state`, `origin` and `eval_state` are
 // the enum numbers of proto/skerry/v1. `attempts` counts evaluation attempts made;
@@ -24,10 +31,14 @@
 //
 // ## Commit points (each one transaction; a change is acknowledged only after it)
 //   CreateRun         the run, its islands and every island's generation 0
-//   CommitResults     a batch of results (group commit of many Report calls)
+//   CommitResults     a batch of results (group commit of many Report calls),
+//                     with the validation outcomes reported with them
 //   CommitGeneration  one island's next generation whole: its genomes with their
 //                     parent links, the island's generation number, the statistics
-//                     of the generation just completed, the run's best so far
+//                     of the generation just completed, the run's best so far,
+//                     and the validation request for that generation's champion
+//   RequestValidation a validation request for one genome (or the stored one)
+//   CommitValidations a batch of validation outcomes
 //   SetRunState       pause, resume, stop, fail
 //   FinishRun         final state, trimming of generations past the stop
 //                     generation, the champion
@@ -54,9 +65,11 @@
 #define SKERRY_SERVER_STORE_STORE_H_
 
 #include <cstdint>
+#include <map>
 #include <memory>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "absl/base/thread_annotations.h"
@@ -68,6 +81,7 @@
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
 #include "skerry/v1/spec.pb.h"
+#include "skerry/v1/validation.pb.h"
 
 namespace skerry::store {
 
@@ -138,6 +152,49 @@ struct ResultUpdate {
   double eval_seconds = 0.0;
 };
 
+// A held-out validation of one genome (validation.proto Validation).
+struct ValidationRecord {
+  int64_t id = 0;
+  int64_t run_id = 0;
+  int64_t genome_id = 0;
+  uint32_t island = 0;  // the genome's natural key, read from genomes
+  uint32_t generation = 0;
+  uint32_t slot = 0;
+  skerry::v1::ValidationReason reason = skerry::v1::REQUESTED;
+  skerry::v1::ValidationState state = skerry::v1::VALIDATION_PENDING;
+  double score = 0.0;
+  uint32_t cases = 0;
+  uint32_t attempts = 0;
+  std::string error;
+  std::string requested_by;
+  int64_t requested_ms = 0;
+  int64_t completed_ms = 0;
+  int64_t copied_from = 0;
+  // The genome's training outcome, read from genomes.
+  skerry::v1::EvalState training_state = skerry::v1::PENDING;
+  double training_score = 0.0;
+  // The genome's genes: filled by PendingValidations only.
+  std::vector<double> genes;
+};
+
+struct ValidationRequest {
+  int64_t genome_id = 0;
+  uint32_t cases = 0;
+  skerry::v1::ValidationReason reason = skerry::v1::REQUESTED;
+  std::string requested_by;
+  int64_t now_ms = 0;
+};
+
+// One validation's outcome, or one failed attempt (state stays PENDING).
+struct ValidationUpdate {
+  int64_t id = 0;
+  skerry::v1::ValidationState state = skerry::v1::VALIDATION_DONE;
+  double score = 0.0;
+  uint32_t attempts = 0;
+  std::string error;
+  int64_t now_ms = 0;
+};
+
 struct GenerationCommit {
   int64_t run_id = 0;
   uint32_t island = 0;
@@ -150,6 +207,8 @@ struct GenerationCommit {
   // Set when this generation reached the target score: the run's stop
   // generation becomes the smaller of this and any stored one.
   std::optional<uint32_t> stop_generation;
+  // Validate this genome (the completed generation's champion).
+  std::optional<ValidationRequest> validate;
 };
 
 struct WorkerRecord {
@@ -165,7 +224,7 @@ struct WorkerRecord {
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 3;
+  static constexpr int kSchemaVersion = 4;
 
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.
@@ -186,7 +245,10 @@ class Store {
 
   // ---- Commit points ----
   absl::Status CreateRun(RunRecord* run, std::vector<GenomeRecord>* genomes);
-  absl::Status CommitResults(absl::Span<const ResultUpdate> results);
+  // Results and validation outcomes reported together commit together.
+  absl::Status CommitResults(
+      absl::Span<const ResultUpdate> results,
+      absl::Span<const ValidationUpdate> validations = {});
   absl::Status CommitGeneration(const GenerationCommit& commit);
   absl::Status SetRunState(int64_t run_id, skerry::v1::RunState state,
                            const std::string& message, int64_t now_ms);
@@ -197,6 +259,13 @@ class Store {
   absl::Status FinishRun(int64_t run_id, skerry::v1::RunState state,
                          const std::string& message,
                          std::optional<uint32_t> keep_through, int64_t now_ms);
+  // Stores a pending validation of the genome and returns it, unless the
+  // genome has one already (returned as stored). A genome carried over
+  // unchanged (ELITE, MIGRANT) whose parent's validation is done gets a copy of
+  // it (state DONE, copied_from set). NotFound names a missing genome.
+  absl::StatusOr<ValidationRecord> RequestValidation(
+      const ValidationRequest& request);
+  absl::Status CommitValidations(absl::Span<const ValidationUpdate> updates);
   absl::StatusOr<int64_t> RegisterWorker(const WorkerRecord& worker);
   absl::Status TouchWorkers(absl::Span<const int64_t> ids, int64_t now_ms);
 
@@ -228,6 +297,20 @@ class Store {
   absl::StatusOr<Digest> RunDigest(int64_t run_id);
   absl::StatusOr<int> SchemaVersion();
 
+  // ---- Validations ----
+  // Every pending validation, oldest first, genes filled.
+  absl::StatusOr<std::vector<ValidationRecord>> PendingValidations();
+  // The genome's validation, or nothing.
+  absl::StatusOr<std::optional<ValidationRecord>> GetValidation(
+      int64_t genome_id);
+  // The validation scores of a run's generation champions, finished ones
+  // only, keyed by (island, generation).
+  absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>>
+  ChampionValidationScores(int64_t run_id);
+  // A run's validations, newest first, at most `limit`.
+  absl::StatusOr<std::vector<ValidationRecord>> ListValidations(int64_t run_id,
+                                                                int limit);
+
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
       : path_(std::move(path)), conn_(std::move(conn)) {}
@@ -245,6 +328,15 @@ class Store {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<std::vector<GenomeRecord>> QueryGenomes(Statement* stmt)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<ValidationRecord> RequestValidationLocked(
+      const ValidationRequest& request) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status ApplyValidationsLocked(
+      absl::Span<const ValidationUpdate> updates)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<std::optional<ValidationRecord>> GetValidationLocked(
+      int64_t genome_id) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<std::vector<ValidationRecord>> QueryValidations(
+      Statement* stmt, bool with_genes) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const std::string path_;
   absl::Mutex mu_;

@@ -55,12 +55,12 @@ TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
 
 // A version-1 database (as this project shipped it first) is migrated forward
 // in place: the version becomes current and the indexes of versions 2 and 3
-// appear, with the data kept.
+// and the validations table of version 4 appear, with the data kept.
 TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(path(),
           "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
-          "DROP INDEX genomes_failed; "
+          "DROP INDEX genomes_failed; DROP TABLE validations; "
           "UPDATE schema_version SET version = 1; "
           "INSERT INTO workers (name, host, threads, evaluators, version, "
           "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
@@ -71,8 +71,9 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   EXPECT_EQ(*v, Store::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM sqlite_master WHERE "
                              "name IN ('genomes_parent_a', 'genomes_parent_b', "
-                             "'genomes_failed')"),
-            "3");
+                             "'genomes_failed', 'validations', "
+                             "'validations_run', 'validations_pending')"),
+            "6");
   EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "old");
 }
 
