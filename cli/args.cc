@@ -10,6 +10,7 @@
 #include "absl/strings/str_replace.h"
 #include "absl/strings/str_split.h"
 #include "cli/lineage.h"
+#include "cli/validate.h"
 
 namespace skerry::cli {
 namespace {
@@ -277,6 +278,11 @@ const std::vector<CommandSpec>& Commands() {
       return absl::string_view(c.name) == "local";
     });
     all->insert(local, lineage.begin(), lineage.end());
+    std::vector<CommandSpec> validation = ValidationCommandSpecs();
+    local = std::find_if(all->begin(), all->end(), [](const auto& c) {
+      return absl::string_view(c.name) == "local";
+    });
+    all->insert(local, validation.begin(), validation.end());
     return all;
   }();
   return *commands;

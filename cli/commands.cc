@@ -13,12 +13,10 @@
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
+#include "cli/validate.h"
 #include "common/spec.h"
 
 namespace skerry::cli {
-namespace {
-
-using skerry::v1::RunSummary;
 
 int UsageFailure(const absl::Status& status, absl::string_view command,
                  Io& io) {
@@ -28,6 +26,10 @@ int UsageFailure(const absl::Status& status, absl::string_view command,
   }
   return kExitUsage;
 }
+
+namespace {
+
+using skerry::v1::RunSummary;
 
 absl::Status WriteFile(const std::string& path, const std::string& contents) {
   std::ofstream file(path, std::ios::binary | std::ios::trunc);
@@ -314,6 +316,11 @@ int RunCli(const std::vector<std::string>& args,
   if (parsed->command == "local") return LocalCommand(*parsed, io);
   if (IsLineageCommand(parsed->command)) {
     return LineageCommand(*parsed, NetworkLineageStubs(), TerminalConfirm(), io);
+  }
+  if (IsValidationCommand(parsed->command)) {
+    auto validation = skerry::v1::ValidationService::NewStub(
+        CoordinatorChannel(parsed->coordinator));
+    return ValidationCommand(*parsed, *validation, io);
   }
   if (parsed->command == "backup") {
     auto admin = skerry::v1::AdminService::NewStub(

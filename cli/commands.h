@@ -69,6 +69,10 @@ struct LoadedSpec {
 // bad field; NotFound when the file cannot be read.
 absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path);
 
+// Prints a usage error and the `--help` hint for `command`; returns 2.
+int UsageFailure(const absl::Status& status, absl::string_view command,
+                 Io& io);
+
 // Prints `status` on io.err; returns 3 when no coordinator answered, else 1.
 int ReportError(const absl::Status& status, Io& io);
 

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <map>
+#include <optional>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
@@ -137,6 +138,22 @@ std::string FormatRunList(const std::vector<RunSummary>& runs,
       {0, 4, 5, 6});
 }
 
+std::string FormatValidationState(const skerry::v1::Validation& v) {
+  switch (v.state()) {
+    case skerry::v1::VALIDATION_DONE:
+      return absl::StrCat("score ", FormatScore(v.score()), " on ", v.cases(),
+                          v.cases() == 1 ? " held-out case" : " held-out cases");
+    case skerry::v1::VALIDATION_FAILED:
+      return absl::StrCat("failed after ", v.attempts(), " attempts: ",
+                          v.error());
+    default:
+      return v.attempts() == 0
+                 ? "pending"
+                 : absl::StrCat("pending (", v.attempts(),
+                                " attempts so far; last: ", v.error(), ")");
+  }
+}
+
 std::string FormatRunDetails(const skerry::v1::GetRunResponse& response) {
   const RunSummary& run = response.run();
   std::vector<std::vector<std::string>> fields = {
@@ -152,6 +169,10 @@ std::string FormatRunDetails(const skerry::v1::GetRunResponse& response) {
                                       " (genome ", run.champion_id(), ")")
                        : "none yet"},
   };
+  if (response.has_champion_validation()) {
+    fields.push_back(
+        {"validation", FormatValidationState(response.champion_validation())});
+  }
   if (!run.message().empty()) fields.push_back({"message", run.message()});
   if (!run.coordinator_problem().empty()) {
     fields.push_back({"problem", run.coordinator_problem()});
@@ -203,16 +224,23 @@ std::string FormatGenerationTable(const std::vector<GenerationStats>& history,
   if (history.empty()) return "no complete generation yet\n";
   struct Row {
     double best = 0;
+    std::optional<double> validation;  // of the island with the best
     double mean_sum = 0;
     uint64_t evaluations = 0;
     uint32_t islands = 0;
   };
   bool maximize = objective == skerry::v1::MAXIMIZE;
+  bool validated = false;
   std::map<uint32_t, Row> by_generation;
   for (const GenerationStats& stats : history) {
     Row& row = by_generation[stats.generation()];
     bool better = maximize ? stats.best() > row.best : stats.best() < row.best;
-    if (row.islands == 0 || better) row.best = stats.best();
+    validated = validated || stats.has_validation_score();
+    if (row.islands == 0 || better) {
+      row.best = stats.best();
+      row.validation.reset();
+      if (stats.has_validation_score()) row.validation = stats.validation_score();
+    }
     row.mean_sum += stats.mean();
     row.evaluations += stats.evaluations();
     ++row.islands;
@@ -228,19 +256,33 @@ std::string FormatGenerationTable(const std::vector<GenerationStats>& history,
     rows.push_back({absl::StrCat(generation), FormatScore(row.best),
                     FormatScore(row.mean_sum / row.islands),
                     FormatCount(row.evaluations), absl::StrCat(row.islands)});
+    if (validated) {
+      rows.back().insert(rows.back().begin() + 2,
+                         row.validation.has_value() ? FormatScore(*row.validation)
+                                                    : "-");
+    }
   }
   std::string out;
   if (skip > 0) {
     absl::StrAppend(&out, "(", skip,
                     " earlier generations not shown; --all shows every one)\n");
   }
-  absl::StrAppend(&out, FormatTable({"GEN", "BEST", "MEAN", "EVALS", "ISLANDS"},
-                                    rows, {0, 1, 2, 3, 4}));
+  if (validated) {
+    absl::StrAppend(
+        &out, FormatTable({"GEN", "BEST", "VALIDATION", "MEAN", "EVALS",
+                           "ISLANDS"},
+                          rows, {0, 1, 2, 3, 4, 5}));
+  } else {
+    absl::StrAppend(&out,
+                    FormatTable({"GEN", "BEST", "MEAN", "EVALS", "ISLANDS"},
+                                rows, {0, 1, 2, 3, 4}));
+  }
   return out;
 }
 
 std::string FormatHistory(const std::vector<GenerationStats>& history) {
   if (history.empty()) return "no complete generation yet\n";
+  bool validated = false;
   std::vector<std::vector<std::string>> rows;
   for (const GenerationStats& stats : history) {
     rows.push_back(
@@ -248,10 +290,22 @@ std::string FormatHistory(const std::vector<GenerationStats>& history) {
          FormatScore(stats.best()), FormatScore(stats.mean()),
          FormatScore(stats.worst()), FormatScore(stats.diversity()),
          FormatCount(stats.evaluations()), FormatCount(stats.failed())});
+    validated = validated || stats.has_validation_score();
   }
-  return FormatTable({"ISLAND", "GEN", "BEST", "MEAN", "WORST", "DIVERSITY",
-                      "EVALS", "FAILED"},
-                     rows, {0, 1, 2, 3, 4, 5, 6, 7});
+  if (!validated) {
+    return FormatTable({"ISLAND", "GEN", "BEST", "MEAN", "WORST", "DIVERSITY",
+                        "EVALS", "FAILED"},
+                       rows, {0, 1, 2, 3, 4, 5, 6, 7});
+  }
+  for (size_t i = 0; i < history.size(); ++i) {
+    rows[i].insert(rows[i].begin() + 3,
+                   history[i].has_validation_score()
+                       ? FormatScore(history[i].validation_score())
+                       : "-");
+  }
+  return FormatTable({"ISLAND", "GEN", "BEST", "VALIDATION", "MEAN", "WORST",
+                      "DIVERSITY", "EVALS", "FAILED"},
+                     rows, {0, 1, 2, 3, 4, 5, 6, 7, 8});
 }
 
 std::string FormatProgressLine(const RunSummary& run,

@@ -19,6 +19,7 @@
 #include "absl/time/time.h"
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
+#include "skerry/v1/validation.pb.h"
 
 namespace skerry::cli {
 
@@ -49,19 +50,25 @@ std::string FormatTable(const std::vector<std::string>& header,
 std::string FormatRunList(const std::vector<skerry::v1::RunSummary>& runs,
                           absl::TimeZone zone);
 
+// A validation's outcome in words: "score 612 on 625 held-out cases",
+// "pending", "failed after 3 attempts: ...".
+std::string FormatValidationState(const skerry::v1::Validation& validation);
+
 // The summary block of `skerry show`.
 std::string FormatRunDetails(const skerry::v1::GetRunResponse& run);
 // The failed genomes of a run, and why ("" when none failed).
 std::string FormatFailedGenomes(const skerry::v1::GetRunResponse& run);
 
-// Per generation over all islands: the best score (by `objective`), the mean
-// of the islands' means, and the islands that reported it. Only the last
+// Per generation over all islands: the best score (by `objective`), the
+// validation score of that champion (a column shown only when some generation
+// has one), the mean of the islands' means, and the islands that reported it. Only the last
 // `max_rows` generations (0: all), with a line saying how many were left out.
 std::string FormatGenerationTable(
     const std::vector<skerry::v1::GenerationStats>& history,
     skerry::v1::Objective objective, size_t max_rows);
 
-// `skerry history`: one row per (island, generation), as stored.
+// `skerry history`: one row per (island, generation), as stored; a VALIDATION
+// column when some champion has a validation score.
 std::string FormatHistory(
     const std::vector<skerry::v1::GenerationStats>& history);
 
