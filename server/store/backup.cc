@@ -47,6 +47,8 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
         "INSERT INTO dst.genomes SELECT * FROM main.genomes WHERE run_id = ?1",
         "INSERT INTO dst.generation_stats SELECT * FROM main.generation_stats "
         "WHERE run_id = ?1",
+        "INSERT INTO dst.validations SELECT * FROM main.validations "
+        "WHERE run_id = ?1",
         "INSERT INTO dst.workers SELECT * FROM main.workers"}) {
     SKERRY_ASSIGN_OR_RETURN(Statement st, conn->Prepare(sql));
     st.BindInt(1, run_id);

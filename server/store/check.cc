@@ -146,6 +146,12 @@ class Checker {
         "SELECT 'counter', r.evaluations, 'stored', (SELECT count(*) FROM genomes "
         "WHERE run_id = ?1 AND attempts > 0 AND eval_state IN (2, 3)) AS n FROM "
         "runs r WHERE r.id = ?1 AND r.evaluations != n"));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "validation names a genome that is missing or of another run",
+        "SELECT 'validation', v.id, 'genome', v.genome_id FROM validations v "
+        "LEFT JOIN genomes g ON g.id = v.genome_id WHERE v.run_id = ?1 AND "
+        "(g.id IS NULL OR g.run_id != ?1 OR g.generation != v.generation) "
+        "LIMIT 20"));
     return absl::OkStatus();
   }
 

@@ -216,6 +216,23 @@ TEST_F(ValidationE2eTest, EveryGenerationsChampionIsValidatedByTheFleet) {
   EXPECT_EQ(listed.exit_code, 0) << listed.output;
   EXPECT_THAT(listed.output, HasSubstr("requested"));
   EXPECT_THAT(listed.output, HasSubstr("champion"));
+
+  // A one-run backup carries the validations, and --check accepts them.
+  const std::string copy = dir_.File("run1-copy.db");
+  testing::CommandResult backup =
+      RunCommand(Cli({"backup", "1", "--to", copy}));
+  ASSERT_EQ(backup.exit_code, 0) << backup.output;
+  EXPECT_EQ(testing::QueryText(copy, "SELECT count(*) FROM validations"),
+            absl::StrCat(after.size()));
+  testing::CommandResult check =
+      RunCommand({SKERRY_COORDINATOR_BIN, "--check", copy});
+  EXPECT_EQ(check.exit_code, 0) << check.output;
+  testing::CommandResult damage = RunCommand(
+      {"/usr/bin/sqlite3", copy, "UPDATE validations SET genome_id = 999999 WHERE id = 1"});
+  ASSERT_EQ(damage.exit_code, 0) << damage.output;
+  check = RunCommand({SKERRY_COORDINATOR_BIN, "--check", copy});
+  EXPECT_NE(check.exit_code, 0) << check.output;
+  EXPECT_THAT(check.output, HasSubstr("validation names a genome"));
 }
 
 TEST_F(ValidationE2eTest, ExternalCasesAreScoredByTheUsersProgram) {
