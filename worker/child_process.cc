@@ -1,0 +1,153 @@
+#include "worker/child_process.h"
+
+#include <errno.h>
+#include <fcntl.h>
+#include <signal.h>
+#include <sys/stat.h>
+#include <sys/syscall.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cstdlib>
+#include <cstring>
+#include <mutex>
+
+#include "absl/strings/escaping.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
+#include "common/clock.h"
+
+extern char** environ;
+
+namespace skerry::worker::child {
+
+void IgnoreSigpipeOnce() {
+  static std::once_flag once;
+  std::call_once(once, [] {
+    struct sigaction old {};
+    if (sigaction(SIGPIPE, nullptr, &old) == 0 && old.sa_handler == SIG_DFL) {
+      signal(SIGPIPE, SIG_IGN);
+    }
+  });
+}
+
+bool IsExecutableFile(const std::string& path) {
+  struct stat st {};
+  return stat(path.c_str(), &st) == 0 && S_ISREG(st.st_mode) &&
+         access(path.c_str(), X_OK) == 0;
+}
+
+absl::StatusOr<std::string> ResolveProgram(const std::string& name) {
+  const std::string field = "evaluator.external.argv[0]";
+  if (name.empty()) {
+    return absl::InvalidArgumentError(field + ": empty program name");
+  }
+  if (name.find('/') != std::string::npos) {
+    if (name[0] != '/') {
+      return absl::InvalidArgumentError(absl::StrCat(
+          field, ": \"", name,
+          "\" is a relative path; give an absolute path or a program name "
+          "found on the worker's PATH"));
+    }
+    if (!IsExecutableFile(name)) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          field, ": \"", name, "\" is not an executable file on this worker"));
+    }
+    return name;
+  }
+  const char* path = std::getenv("PATH");
+  const std::string search = path != nullptr ? path : "/usr/bin:/bin";
+  for (absl::string_view dir : absl::StrSplit(search, ':')) {
+    const std::string candidate =
+        absl::StrCat(dir.empty() ? "." : dir, "/", name);
+    if (IsExecutableFile(candidate)) return candidate;
+  }
+  return absl::InvalidArgumentError(absl::StrCat(
+      field, ": \"", name, "\" not found on the worker's PATH (", search, ")"));
+}
+
+std::vector<std::string> ChildEnvironment(
+    const std::map<std::string, std::string>& overrides) {
+  std::vector<std::string> env;
+  for (char** e = environ; e != nullptr && *e != nullptr; ++e) {
+    absl::string_view entry(*e);
+    const std::string name(entry.substr(0, entry.find('=')));
+    if (overrides.count(name) == 0) env.emplace_back(entry);
+  }
+  for (const auto& [name, value] : overrides) {
+    env.push_back(absl::StrCat(name, "=", value));
+  }
+  return env;
+}
+
+int RemainingMillis(absl::Time deadline) {
+  const absl::Duration left = deadline - Clock::Real()->Now();
+  if (left <= absl::ZeroDuration()) return 0;
+  return static_cast<int>(
+      std::min<int64_t>(absl::ToInt64Milliseconds(left) + 1, 1 << 30));
+}
+
+void SetNonBlocking(int fd) {
+  const int flags = fcntl(fd, F_GETFL);
+  if (flags >= 0) fcntl(fd, F_SETFL, flags | O_NONBLOCK);
+}
+
+// Between fork and exec only async-signal-safe calls are allowed.
+[[noreturn]] void ExecChild(int in, int out, int err, int status_fd,
+                            const char* program, char* const* argv,
+                            char* const* envp, const char* working_dir,
+                            int max_fd) {
+  setpgid(0, 0);
+  sigset_t none;
+  sigemptyset(&none);
+  sigprocmask(SIG_SETMASK, &none, nullptr);
+  struct sigaction dfl {};
+  dfl.sa_handler = SIG_DFL;
+  for (int sig = 1; sig < NSIG; ++sig) sigaction(sig, &dfl, nullptr);
+  if (dup2(in, 0) < 0 || dup2(out, 1) < 0 || dup2(err, 2) < 0) {
+    const int e = errno;
+    (void)!write(status_fd, &e, sizeof e);
+    _exit(127);
+  }
+  // Every other descriptor goes, except the status pipe (close-on-exec).
+  bool closed = false;
+#ifdef SYS_close_range
+  closed = (status_fd <= 3 ||
+            syscall(SYS_close_range, 3u, static_cast<unsigned>(status_fd - 1),
+                    0u) == 0) &&
+           syscall(SYS_close_range, static_cast<unsigned>(status_fd + 1), ~0u,
+                   0u) == 0;
+#endif
+  for (int fd = 3; !closed && fd < max_fd; ++fd) {
+    if (fd != status_fd) close(fd);
+  }
+  if (working_dir[0] != '\0' && chdir(working_dir) != 0) {
+    const int e = -errno;  // negative: chdir, not exec
+    (void)!write(status_fd, &e, sizeof e);
+    _exit(127);
+  }
+  execve(program, argv, envp);
+  const int e = errno;
+  (void)!write(status_fd, &e, sizeof e);
+  _exit(127);
+}
+
+std::string DescribeWaitStatus(int status) {
+  if (WIFEXITED(status)) {
+    return absl::StrCat("exited with status ", WEXITSTATUS(status));
+  }
+  if (WIFSIGNALED(status)) {
+    const int sig = WTERMSIG(status);
+    return absl::StrCat("was killed by signal ", sig, " (", strsignal(sig),
+                        ")");
+  }
+  return "ended";
+}
+
+std::string Quote(absl::string_view s, size_t max) {
+  std::string out = absl::CHexEscape(s.substr(0, max));
+  if (s.size() > max) absl::StrAppend(&out, "...");
+  return absl::StrCat("\"", out, "\"");
+}
+
+}  // namespace skerry::worker::child
