@@ -8,6 +8,7 @@
 #include "common/genes.h"
 #include "common/sha256.h"
 #include "common/status_macros.h"
+#include "server/store/access_schema.h"
 
 namespace skerry::store {
 namespace {
@@ -105,7 +106,9 @@ CREATE INDEX genomes_failed ON genomes (run_id) WHERE eval_state = 3;
 )sql";
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3};
+// Version 4 (principals, tokens, audit) lives in access_schema.h.
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3,
+                                       kSchemaAccess};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 

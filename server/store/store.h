@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 3)
+// ## Schema (version 4)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -13,8 +13,18 @@
 //   generation_stats(run_id, island, generation, best, mean, worst, diversity,
 //           evaluations, failed, eval_seconds, completed_ms)
 //   workers(id, name, host, threads, evaluators, version, joined_ms, last_seen_ms)
+//   principals(name, created_ms, created_by)            version 4, with
+//   tokens(id, principal, role, hash, note, created_ms, created_by,
+//          revoked_ms, revoked_by)
+//   audit(id, at_ms, principal, role, token_id, method, run_id, peer, code,
+//         message, detail)
+//        (columns and rules in server/store/access_schema.h; methods in
+//        store_access.cc)
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
-// parent_b (version 2: descendant queries); failed genomes per run (version 3).
+// parent_b (version 2: descendant queries); failed genomes per run (version 3);
+// tokens per principal, audit per run and per principal (version 4).
+// `runs.owner` is the name of the principal that submitted the run ("local"
+// when access control is off).
 // `spec` is the normalised RunSpec in binary protobuf; `genes` is packed
 // little-endian float64 (common/genes.h); `state`, `origin` and `eval_state` are
 // the enum numbers of proto/skerry/v1. `attempts` counts evaluation attempts made;
@@ -31,6 +41,10 @@
 //   SetRunState       pause, resume, stop, fail
 //   FinishRun         final state, trimming of generations past the stop
 //                     generation, the champion
+//   CreateToken       a token, and its principal when new
+//   RevokeToken       a token's revocation time and who revoked it
+//   BeginAudit        an audit row, before the change it describes is made
+//   FinishAudit       the outcome of that change
 //
 // ## Pragmas
 //   journal_mode=WAL     readers never block the writer, and one writer commit is
@@ -64,6 +78,7 @@
 #include "absl/status/statusor.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/types/span.h"
+#include "server/store/access_records.h"
 #include "server/store/sqlite.h"
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
@@ -165,7 +180,7 @@ struct WorkerRecord {
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 3;
+  static constexpr int kSchemaVersion = 4;
 
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.
@@ -228,6 +243,27 @@ class Store {
   absl::StatusOr<Digest> RunDigest(int64_t run_id);
   absl::StatusOr<int> SchemaVersion();
 
+  // ---- Principals, tokens, audit (store_access.cc; schema version 4) ----
+  // Creates the token's principal when it is new, then the token; fills in
+  // token->id. AlreadyExists when the hash is already stored.
+  absl::Status CreateToken(TokenRecord* token);
+  // CreateToken for the first admin: FailedPrecondition, naming them, when a
+  // live token of role admin exists already. One transaction.
+  absl::Status CreateFirstAdmin(TokenRecord* token);
+  // NotFound for no such token; FailedPrecondition when already revoked.
+  absl::StatusOr<TokenRecord> RevokeToken(int64_t token_id,
+                                          const std::string& by, int64_t now_ms);
+  // Every token (live first when asked), by id.
+  absl::StatusOr<std::vector<TokenRecord>> ListTokens();
+  absl::StatusOr<int64_t> CountPrincipals();
+  // Inserts `entry` (its code empty: not ended yet); returns its id.
+  absl::StatusOr<int64_t> BeginAudit(const AuditRecord& entry);
+  // Sets code, message, run_id and detail of the row entry.id.
+  absl::Status FinishAudit(const AuditRecord& entry);
+  absl::StatusOr<std::vector<AuditRecord>> QueryAudit(const AuditQuery& query);
+  // The run's owner; empty when there is no such run.
+  absl::StatusOr<std::optional<std::string>> RunOwner(int64_t run_id);
+
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
       : path_(std::move(path)), conn_(std::move(conn)) {}
@@ -245,6 +281,7 @@ class Store {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<std::vector<GenomeRecord>> QueryGenomes(Statement* stmt)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status InsertToken(TokenRecord* token) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const std::string path_;
   absl::Mutex mu_;
