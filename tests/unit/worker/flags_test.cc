@@ -152,6 +152,7 @@ TEST(WorkerFlagsTest, TokenAndTlsFlagsAreKeptForTheChannel) {
   // A client key pair without a CA cannot make a channel.
   WorkerFlags half = *f;
   half.security.tls_ca_file.clear();
+  half.token_file.clear();
   std::string warning;
   auto channel = ConnectFromFlags(
       half, [](const char*) { return std::string(); }, &warning);
