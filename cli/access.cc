@@ -2,8 +2,8 @@
 
 #include "absl/status/status.h"
 #include "absl/strings/match.h"
-#include "absl/strings/strip.h"
 #include "absl/strings/str_cat.h"
+#include "absl/strings/strip.h"
 #include "absl/time/clock.h"
 #include "cli/commands.h"
 #include "cli/format.h"
@@ -36,8 +36,8 @@ std::string ShortMethod(const std::string& method) {
 std::string Outcome(const skerry::v1::AuditEntry& e) {
   if (!e.ended()) return "unfinished";
   if (e.code() == 0) return "done";
-  return absl::StrCat(
-      "failed: ", absl::StatusCodeToString(static_cast<absl::StatusCode>(e.code())));
+  return absl::StrCat("failed: ", absl::StatusCodeToString(
+                                      static_cast<absl::StatusCode>(e.code())));
 }
 
 int TokenCreate(const ParsedArgs& args,
@@ -47,11 +47,12 @@ int TokenCreate(const ParsedArgs& args,
     return Usage("token", "create needs the principal's NAME", io);
   }
   if (!args.Has("role")) {
-    return Usage("token",
-                 "create needs --role viewer|researcher|admin|worker", io);
+    return Usage("token", "create needs --role viewer|researcher|admin|worker",
+                 io);
   }
   absl::StatusOr<auth::Role> role = auth::ParseRole(args.Get("role"));
-  if (!role.ok()) return Usage("token", std::string(role.status().message()), io);
+  if (!role.ok())
+    return Usage("token", std::string(role.status().message()), io);
   skerry::v1::CreateTokenRequest req;
   req.set_principal(args.positionals[1]);
   req.set_role(*role);
@@ -59,10 +60,12 @@ int TokenCreate(const ParsedArgs& args,
   skerry::v1::CreateTokenResponse resp;
   grpc::ClientContext ctx;
   SetDeadline(&ctx);
-  absl::Status s = FromGrpc(stub.CreateToken(&ctx, req, &resp), "CreateToken", target);
+  absl::Status s =
+      FromGrpc(stub.CreateToken(&ctx, req, &resp), "CreateToken", target);
   if (!s.ok()) return ReportError(s, io);
-  *io.err << "token " << resp.token().id() << " for " << resp.token().principal()
-          << " (" << auth::RoleName(resp.token().role())
+  *io.err << "token " << resp.token().id() << " for "
+          << resp.token().principal() << " ("
+          << auth::RoleName(resp.token().role())
           << "); it follows, shown this once: the coordinator keeps only its "
              "hash\n";
   *io.out << resp.secret() << "\n" << std::flush;
@@ -77,9 +80,11 @@ int TokenList(const ParsedArgs& args,
   skerry::v1::ListTokensResponse resp;
   grpc::ClientContext ctx;
   SetDeadline(&ctx);
-  absl::Status s = FromGrpc(stub.ListTokens(&ctx, req, &resp), "ListTokens", target);
+  absl::Status s =
+      FromGrpc(stub.ListTokens(&ctx, req, &resp), "ListTokens", target);
   if (!s.ok()) return ReportError(s, io);
-  *io.out << FormatTokens({resp.tokens().begin(), resp.tokens().end()}, io.zone);
+  *io.out << FormatTokens({resp.tokens().begin(), resp.tokens().end()},
+                          io.zone);
   return kExitOk;
 }
 
@@ -87,7 +92,8 @@ int TokenRevoke(const ParsedArgs& args,
                 skerry::v1::AccessService::StubInterface& stub,
                 const std::string& target, Io& io) {
   if (args.positionals.size() < 2) {
-    return Usage("token", "revoke needs a token ID as `skerry token list` shows it", io);
+    return Usage("token",
+                 "revoke needs a token ID as `skerry token list` shows it", io);
   }
   absl::StatusOr<uint32_t> id =
       ParseBoundedUint("token ID", args.positionals[1], 1, UINT32_MAX);
@@ -97,34 +103,40 @@ int TokenRevoke(const ParsedArgs& args,
   skerry::v1::RevokeTokenResponse resp;
   grpc::ClientContext ctx;
   SetDeadline(&ctx);
-  absl::Status s = FromGrpc(stub.RevokeToken(&ctx, req, &resp), "RevokeToken", target);
+  absl::Status s =
+      FromGrpc(stub.RevokeToken(&ctx, req, &resp), "RevokeToken", target);
   if (!s.ok()) return ReportError(s, io);
   *io.out << "token " << resp.token().id() << " of " << resp.token().principal()
           << " revoked\n";
   return kExitOk;
 }
 
-int Audit(const ParsedArgs& args, skerry::v1::AccessService::StubInterface& stub,
+int Audit(const ParsedArgs& args,
+          skerry::v1::AccessService::StubInterface& stub,
           const std::string& target, Io& io) {
   skerry::v1::QueryAuditRequest req;
   if (args.Has("run")) {
     absl::StatusOr<uint64_t> run = ParseRunId(args.Get("run"));
-    if (!run.ok()) return Usage("audit", std::string(run.status().message()), io);
+    if (!run.ok())
+      return Usage("audit", std::string(run.status().message()), io);
     req.set_run_id(*run);
   }
   req.set_principal(args.Get("principal"));
   req.set_limit(50);
   if (args.Has("limit")) {
-    absl::StatusOr<uint32_t> n = ParseBoundedUint("--limit", args.Get("limit"), 1, 10000);
+    absl::StatusOr<uint32_t> n =
+        ParseBoundedUint("--limit", args.Get("limit"), 1, 10000);
     if (!n.ok()) return Usage("audit", std::string(n.status().message()), io);
     req.set_limit(*n);
   }
   skerry::v1::QueryAuditResponse resp;
   grpc::ClientContext ctx;
   SetDeadline(&ctx);
-  absl::Status s = FromGrpc(stub.QueryAudit(&ctx, req, &resp), "QueryAudit", target);
+  absl::Status s =
+      FromGrpc(stub.QueryAudit(&ctx, req, &resp), "QueryAudit", target);
   if (!s.ok()) return ReportError(s, io);
-  *io.out << FormatAudit({resp.entries().begin(), resp.entries().end()}, io.zone);
+  *io.out << FormatAudit({resp.entries().begin(), resp.entries().end()},
+                         io.zone);
   return kExitOk;
 }
 
@@ -137,8 +149,9 @@ int WhoAmI(skerry::v1::AccessService::StubInterface& stub,
       stub.WhoAmI(&ctx, skerry::v1::WhoAmIRequest(), &resp), "WhoAmI", target);
   if (!s.ok()) return ReportError(s, io);
   if (!resp.access_control()) {
-    *io.out << "access control is off on " << target << ": every caller acts as "
-            << resp.principal() << " (" << auth::RoleName(resp.role()) << ")\n";
+    *io.out << "access control is off on " << target
+            << ": every caller acts as " << resp.principal() << " ("
+            << auth::RoleName(resp.role()) << ")\n";
   } else {
     *io.out << resp.principal() << " (" << auth::RoleName(resp.role())
             << "), token " << resp.token_id() << "\n";
@@ -156,7 +169,8 @@ std::vector<CommandSpec> AccessCommandSpecs() {
         {"note", "TEXT", "with create: a note that list shows"},
         {"all", nullptr, "with list: revoked tokens too"}},
        "manage bearer tokens (admin): create NAME --role ROLE, list, revoke ID",
-       "ACTION is create, list or revoke. `token create NAME --role ROLE` makes "
+       "ACTION is create, list or revoke. `token create NAME --role ROLE` "
+       "makes "
        "a token for principal NAME (a person or a worker machine; created with "
        "its first token) and prints it on standard output, once: the "
        "coordinator keeps only its hash. `token list` shows the live tokens "
@@ -204,17 +218,19 @@ std::string FormatTokens(const std::vector<skerry::v1::TokenInfo>& tokens,
                          absl::TimeZone zone) {
   std::vector<std::vector<std::string>> rows;
   for (const skerry::v1::TokenInfo& t : tokens) {
-    rows.push_back({absl::StrCat(t.id()), t.principal(), auth::RoleName(t.role()),
-                    FormatTimestamp(t.created_unix_ms(), zone), t.created_by(),
-                    t.revoked_unix_ms() == 0
-                        ? "-"
-                        : absl::StrCat(FormatTimestamp(t.revoked_unix_ms(), zone),
-                                       " by ", t.revoked_by()),
-                    t.note()});
+    rows.push_back(
+        {absl::StrCat(t.id()), t.principal(), auth::RoleName(t.role()),
+         FormatTimestamp(t.created_unix_ms(), zone), t.created_by(),
+         t.revoked_unix_ms() == 0
+             ? "-"
+             : absl::StrCat(FormatTimestamp(t.revoked_unix_ms(), zone), " by ",
+                            t.revoked_by()),
+         t.note()});
   }
   if (rows.empty()) return "no tokens\n";
   return FormatTable(
-      {"ID", "PRINCIPAL", "ROLE", "CREATED", "BY", "REVOKED", "NOTE"}, rows, {0});
+      {"ID", "PRINCIPAL", "ROLE", "CREATED", "BY", "REVOKED", "NOTE"}, rows,
+      {0});
 }
 
 std::string FormatAudit(const std::vector<skerry::v1::AuditEntry>& entries,
@@ -222,14 +238,15 @@ std::string FormatAudit(const std::vector<skerry::v1::AuditEntry>& entries,
   std::vector<std::vector<std::string>> rows;
   for (const skerry::v1::AuditEntry& e : entries) {
     rows.push_back({absl::StrCat(e.id()), FormatTimestamp(e.unix_ms(), zone),
-                    e.principal(), auth::RoleName(e.role()), ShortMethod(e.method()),
-                    e.run_id() == 0 ? "-" : absl::StrCat(e.run_id()), Outcome(e),
-                    e.peer(), e.detail()});
+                    e.principal(), auth::RoleName(e.role()),
+                    ShortMethod(e.method()),
+                    e.run_id() == 0 ? "-" : absl::StrCat(e.run_id()),
+                    Outcome(e), e.peer(), e.detail()});
   }
   if (rows.empty()) return "no audit entries\n";
-  return FormatTable({"ID", "WHEN", "WHO", "ROLE", "WHAT", "RUN", "OUTCOME",
-                      "FROM", "DETAIL"},
-                     rows, {0, 5});
+  return FormatTable(
+      {"ID", "WHEN", "WHO", "ROLE", "WHAT", "RUN", "OUTCOME", "FROM", "DETAIL"},
+      rows, {0, 5});
 }
 
 }  // namespace skerry::cli

@@ -241,10 +241,10 @@ absl::Status ParseCommandArgs(const CommandSpec& command,
     }
     if (takes_value && !token.has_value) {
       if (i + 1 >= args.size()) {
-        return UsageError(command.name,
-                          absl::StrCat("--", token.name, " needs a value",
-                                       global ? "" : ": ",
-                                       global ? "" : flag->value));
+        return UsageError(
+            command.name,
+            absl::StrCat("--", token.name, " needs a value", global ? "" : ": ",
+                         global ? "" : flag->value));
       }
       token.value = args[++i];
     }
@@ -432,13 +432,16 @@ std::string GeneralHelp() {
       "  --token TOKEN            bearer token (visible in the process list;\n"
       "                           prefer the next ones)\n"
       "  --token-file FILE        read the token from FILE (default: $",
-      worker::kTokenEnv, ",\n"
+      worker::kTokenEnv,
+      ",\n"
       "                           else ~/.config/skerry/token, else none)\n"
-      "  --tls-ca FILE            TLS: the CA of the coordinator's certificate\n"
+      "  --tls-ca FILE            TLS: the CA of the coordinator's "
+      "certificate\n"
       "                           (default: $SKERRY_TLS_CA; none: plaintext)\n"
       "  --tls-cert FILE          TLS client certificate and key, for a\n"
       "  --tls-key FILE           coordinator that checks clients\n"
-      "                           (default: $SKERRY_TLS_CERT, $SKERRY_TLS_KEY)\n"
+      "                           (default: $SKERRY_TLS_CERT, "
+      "$SKERRY_TLS_KEY)\n"
       "  --tls-server-name NAME   name to expect in the coordinator's "
       "certificate\n"
       "  --help                   this help; `skerry COMMAND --help` for one "

@@ -47,7 +47,7 @@ const CommandSpec* FindCommand(absl::string_view name);
 // Options every command takes, before or after its name. Their values go to
 // ParsedArgs::global, keyed by name without "--".
 inline constexpr const char* kGlobalOptions[] = {
-    "coordinator", "token", "token-file", "tls-ca",
+    "coordinator", "token",   "token-file",     "tls-ca",
     "tls-cert",    "tls-key", "tls-server-name"};
 
 struct ParsedArgs {

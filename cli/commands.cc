@@ -1,8 +1,5 @@
 #include "cli/commands.h"
 
-#include "cli/access.h"
-#include "cli/backup.h"
-
 #include <algorithm>
 #include <cctype>
 #include <cerrno>
@@ -13,6 +10,8 @@
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
+#include "cli/access.h"
+#include "cli/backup.h"
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
@@ -149,7 +148,8 @@ std::string Redact(const std::string& text, const Io& io) {
   for (size_t at = out.find("skt_"); at != std::string::npos;
        at = out.find("skt_", at + 1)) {
     size_t end = at + 4;
-    while (end < out.size() && std::isxdigit(static_cast<unsigned char>(out[end])))
+    while (end < out.size() &&
+           std::isxdigit(static_cast<unsigned char>(out[end])))
       ++end;
     if (end - at - 4 >= 16) out.replace(at + 4, end - at - 4, "[hidden]");
   }
@@ -336,8 +336,8 @@ absl::StatusOr<worker::ClientSecurity> Security(const ParsedArgs& args,
                                                 Io& io) {
   const worker::Getenv getenv =
       io.getenv ? io.getenv : worker::ProcessEnvironment();
-  absl::StatusOr<worker::ResolvedToken> token =
-      worker::ResolveToken(args.Global("token"), args.Global("token-file"), getenv);
+  absl::StatusOr<worker::ResolvedToken> token = worker::ResolveToken(
+      args.Global("token"), args.Global("token-file"), getenv);
   if (!token.ok()) return token.status();
   if (!token->warning.empty()) *io.err << "skerry: " << token->warning << "\n";
   io.secrets.push_back(token->token);

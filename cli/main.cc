@@ -28,8 +28,9 @@ int main(int argc, char** argv) {
       -> std::unique_ptr<skerry::cli::RunClient> {
     auto channel = skerry::cli::CoordinatorChannel(target, security);
     if (!channel.ok()) {
-      *io.err << "skerry: " << skerry::cli::Redact(
-                                   std::string(channel.status().message()), io)
+      *io.err << "skerry: "
+              << skerry::cli::Redact(std::string(channel.status().message()),
+                                     io)
               << "\n";
       return nullptr;
     }

@@ -40,8 +40,8 @@ class CoordinatorImpl final : public Coordinator {
         c->engine_,
         engine::Engine::Open(c->store_.get(), c->queue_.get(), c->clock_));
     SKERRY_ASSIGN_OR_RETURN(
-        c->access_, auth::AccessControl::Open(c->store_.get(), c->clock_,
-                                              options.auth));
+        c->access_,
+        auth::AccessControl::Open(c->store_.get(), c->clock_, options.auth));
     c->fleet_ = std::make_unique<api::FleetServiceImpl>(
         c->store_.get(), c->engine_.get(), c->queue_.get(), c->clock_,
         options.max_lease_wait);
@@ -86,7 +86,8 @@ class CoordinatorImpl final : public Coordinator {
       builder.RegisterService(gate.get());
       c->gates_.push_back(std::move(gate));
     }
-    std::vector<std::unique_ptr<grpc::experimental::ServerInterceptorFactoryInterface>>
+    std::vector<
+        std::unique_ptr<grpc::experimental::ServerInterceptorFactoryInterface>>
         interceptors;
     interceptors.push_back(
         std::make_unique<auth::AuthInterceptorFactory>(c->access_.get()));

@@ -14,8 +14,8 @@
 #include "absl/status/statusor.h"
 #include "absl/time/time.h"
 #include "common/clock.h"
-#include "server/auth/access_control.h"
 #include "grpcpp/channel.h"
+#include "server/auth/access_control.h"
 
 namespace skerry::server {
 

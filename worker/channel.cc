@@ -30,7 +30,8 @@ class BearerInterceptor final : public grpc::experimental::Interceptor {
   explicit BearerInterceptor(const std::string* header) : header_(header) {}
   void Intercept(grpc::experimental::InterceptorBatchMethods* m) override {
     if (m->QueryInterceptionHookPoint(
-            grpc::experimental::InterceptionHookPoints::PRE_SEND_INITIAL_METADATA)) {
+            grpc::experimental::InterceptionHookPoints::
+                PRE_SEND_INITIAL_METADATA)) {
       m->GetSendInitialMetadata()->insert({"authorization", *header_});
     }
     m->Proceed();
@@ -59,8 +60,8 @@ absl::StatusOr<std::string> Slurp(const std::string& what,
                                   const std::string& path) {
   std::ifstream in(path, std::ios::binary);
   if (!in) {
-    return absl::NotFoundError(absl::StrCat(what, ": cannot read ", path, ": ",
-                                            std::strerror(errno)));
+    return absl::NotFoundError(
+        absl::StrCat(what, ": cannot read ", path, ": ", std::strerror(errno)));
   }
   return std::string(std::istreambuf_iterator<char>(in),
                      std::istreambuf_iterator<char>());
@@ -69,8 +70,9 @@ absl::StatusOr<std::string> Slurp(const std::string& what,
 // A token must be a visible-ASCII metadata value.
 absl::Status CheckToken(const std::string& token, const std::string& source) {
   if (token.size() > kMaxTokenBytes) {
-    return absl::InvalidArgumentError(absl::StrCat(
-        "the token from ", source, " is longer than ", kMaxTokenBytes, " bytes"));
+    return absl::InvalidArgumentError(absl::StrCat("the token from ", source,
+                                                   " is longer than ",
+                                                   kMaxTokenBytes, " bytes"));
   }
   for (char c : token) {
     if (c < 0x21 || c > 0x7e) {
@@ -128,7 +130,8 @@ absl::StatusOr<ResolvedToken> ResolveToken(const std::string& flag_token,
                         absl::StrCat("$", kTokenEnv), ""};
   } else {
     std::string dir = getenv("XDG_CONFIG_HOME");
-    if (dir.empty() && !getenv("HOME").empty()) dir = getenv("HOME") + "/.config";
+    if (dir.empty() && !getenv("HOME").empty())
+      dir = getenv("HOME") + "/.config";
     if (dir.empty()) return ResolvedToken();
     out = FromFile(dir + "/skerry/token", false);
   }
@@ -175,7 +178,8 @@ absl::StatusOr<std::shared_ptr<grpc::Channel>> OpenCoordinatorChannel(
       absl::StatusOr<std::string> cert =
           Slurp("--tls-cert", security.tls_cert_file);
       if (!cert.ok()) return cert.status();
-      absl::StatusOr<std::string> key = Slurp("--tls-key", security.tls_key_file);
+      absl::StatusOr<std::string> key =
+          Slurp("--tls-key", security.tls_key_file);
       if (!key.ok()) return key.status();
       tls.pem_cert_chain = *cert;
       tls.pem_private_key = *key;
@@ -185,7 +189,8 @@ absl::StatusOr<std::shared_ptr<grpc::Channel>> OpenCoordinatorChannel(
     }
     creds = grpc::SslCredentials(tls);
   }
-  std::vector<std::unique_ptr<grpc::experimental::ClientInterceptorFactoryInterface>>
+  std::vector<
+      std::unique_ptr<grpc::experimental::ClientInterceptorFactoryInterface>>
       interceptors;
   if (!security.token.empty()) {
     interceptors.push_back(std::make_unique<BearerFactory>(security.token));

@@ -37,10 +37,10 @@ namespace skerry::worker {
 inline constexpr char kTokenEnv[] = "SKERRY_TOKEN";
 
 struct ClientSecurity {
-  std::string token;            // empty: no authorization metadata
-  std::string tls_ca_file;      // set: TLS, verifying the coordinator
-  std::string tls_cert_file;    // client certificate chain (PEM) ...
-  std::string tls_key_file;     // ... and its key, for client-certificate checks
+  std::string token;          // empty: no authorization metadata
+  std::string tls_ca_file;    // set: TLS, verifying the coordinator
+  std::string tls_cert_file;  // client certificate chain (PEM) ...
+  std::string tls_key_file;   // ... and its key, for client-certificate checks
   std::string tls_server_name;  // name to check in the certificate; default:
                                 // the host of the address
 };

@@ -102,7 +102,8 @@ int main(int argc, char** argv) {
                  std::string(channel.status().message()).c_str());
     return 2;
   }
-  if (!warning.empty()) std::fprintf(stderr, "skerry-worker: %s\n", warning.c_str());
+  if (!warning.empty())
+    std::fprintf(stderr, "skerry-worker: %s\n", warning.c_str());
   skerry::worker::Worker worker(skerry::v1::FleetService::NewStub(*channel),
                                 flags->options, skerry::Clock::Real());
   absl::Status status;

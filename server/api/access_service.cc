@@ -18,7 +18,8 @@ skerry::v1::TokenInfo ToTokenInfo(const store::TokenRecord& t) {
   return out;
 }
 
-std::string AccessServiceImpl::CallerName(const grpc::ServerContext* ctx) const {
+std::string AccessServiceImpl::CallerName(
+    const grpc::ServerContext* ctx) const {
   std::optional<auth::Caller> caller = access_->CallerOf(ctx);
   return caller.has_value() ? caller->principal : auth::kLocalPrincipal;
 }
@@ -60,10 +61,10 @@ grpc::Status AccessServiceImpl::RevokeToken(
   absl::StatusOr<store::TokenRecord> t = access_->RevokeToken(
       static_cast<int64_t>(req->token_id()), CallerName(ctx));
   if (!t.ok()) return ToGrpc(t.status());
-  access_->Note(ctx, 0,
-                absl::StrCat("token ", t->id, " of ", t->principal, " (",
-                             auth::RoleName(static_cast<auth::Role>(t->role)),
-                             ")"));
+  access_->Note(
+      ctx, 0,
+      absl::StrCat("token ", t->id, " of ", t->principal, " (",
+                   auth::RoleName(static_cast<auth::Role>(t->role)), ")"));
   *resp->mutable_token() = ToTokenInfo(*t);
   return grpc::Status::OK;
 }

@@ -60,9 +60,9 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
   absl::StatusOr<store::RunRecord> rec =
       engine_->Submit(req->spec(), req->spec_text(), owner);
   if (!rec.ok()) return ToGrpc(rec.status());
-  access_->Note(ctx, rec->id,
-                absl::StrCat("run ", rec->id, " '", rec->name, "' owned by ",
-                             owner));
+  access_->Note(
+      ctx, rec->id,
+      absl::StrCat("run ", rec->id, " '", rec->name, "' owned by ", owner));
   return Summarise(rec->id, resp->mutable_run());
 }
 

@@ -116,8 +116,9 @@ Verdict AccessControl::Admit(
   if (v.rule == nullptr) {
     v.status = grpc::Status(
         grpc::StatusCode::PERMISSION_DENIED,
-        absl::StrCat(method, " has no access rule (server/auth/rules.cc), so "
-                             "it is refused to everyone"));
+        absl::StrCat(method,
+                     " has no access rule (server/auth/rules.cc), so "
+                     "it is refused to everyone"));
     return v;
   }
   if (enabled_ && !RoleAllows(v.rule->permission, v.caller->role)) {
@@ -137,7 +138,8 @@ void AccessControl::Examine(Verdict* v, const void* request,
   if (request != nullptr && v->rule->run_id != nullptr) {
     v->run_id = static_cast<int64_t>(v->rule->run_id(request));
   }
-  if (v->status.ok() && enabled_ && v->rule->permission == Permission::kOwnRun &&
+  if (v->status.ok() && enabled_ &&
+      v->rule->permission == Permission::kOwnRun &&
       v->caller->role != skerry::v1::ROLE_ADMIN) {
     // A missing run and someone else's run get the same answer.
     absl::StatusOr<std::optional<std::string>> owner =
@@ -271,7 +273,8 @@ absl::StatusOr<AccessControl::IssuedToken> Issue(const std::string& principal,
 absl::StatusOr<AccessControl::IssuedToken> AccessControl::CreateToken(
     const std::string& principal, Role role, const std::string& note,
     const std::string& by) {
-  SKERRY_ASSIGN_OR_RETURN(IssuedToken t, Issue(principal, role, note, by, clock_));
+  SKERRY_ASSIGN_OR_RETURN(IssuedToken t,
+                          Issue(principal, role, note, by, clock_));
   SKERRY_RETURN_IF_ERROR(store_->CreateToken(&t.record));
   absl::MutexLock l(&mu_);
   live_[t.record.hash] = FromRecord(t.record);
@@ -290,9 +293,9 @@ absl::StatusOr<store::TokenRecord> AccessControl::RevokeToken(
 
 absl::StatusOr<AccessControl::IssuedToken> AccessControl::InitAdmin(
     store::Store* store, Clock* clock, const std::string& name) {
-  SKERRY_ASSIGN_OR_RETURN(
-      IssuedToken t, Issue(name, skerry::v1::ROLE_ADMIN, "first admin",
-                           "--init-admin", clock));
+  SKERRY_ASSIGN_OR_RETURN(IssuedToken t,
+                          Issue(name, skerry::v1::ROLE_ADMIN, "first admin",
+                                "--init-admin", clock));
   SKERRY_RETURN_IF_ERROR(store->CreateFirstAdmin(&t.record));
   return t;
 }

@@ -18,7 +18,8 @@ struct HandlerOf : grpc::Service {
 
 class GateHandler final : public MethodHandler {
  public:
-  GateHandler(MethodHandler* inner, const Rule* rule, const AccessControl* access)
+  GateHandler(MethodHandler* inner, const Rule* rule,
+              const AccessControl* access)
       : inner_(inner), rule_(rule), access_(access) {}
 
   void RunHandler(const HandlerParameter& p) override {
@@ -45,8 +46,8 @@ class GateHandler final : public MethodHandler {
                                         p.call_requester));
   }
 
-  void* Deserialize(grpc_call* call, grpc_byte_buffer* req, grpc::Status* status,
-                    void** handler_data) override {
+  void* Deserialize(grpc_call* call, grpc_byte_buffer* req,
+                    grpc::Status* status, void** handler_data) override {
     return inner_->Deserialize(call, req, status, handler_data);
   }
 
@@ -76,8 +77,9 @@ absl::StatusOr<std::unique_ptr<GatedService>> GatedService::Wrap(
     const Rule* rule = FindRule(*name);
     if (rule == nullptr) {
       return absl::FailedPreconditionError(absl::StrCat(
-          *name, " has no access rule in server/auth/rules.cc; refusing to "
-                 "serve it"));
+          *name,
+          " has no access rule in server/auth/rules.cc; refusing to "
+          "serve it"));
     }
     if (rule->request != m->input_type()) {
       return absl::FailedPreconditionError(absl::StrCat(
@@ -90,12 +92,13 @@ absl::StatusOr<std::unique_ptr<GatedService>> GatedService::Wrap(
       return absl::InternalError(
           absl::StrCat(*name, ": not a synchronous method"));
     }
-    const auto type =
-        m->client_streaming()
-            ? (m->server_streaming() ? grpc::internal::RpcMethod::BIDI_STREAMING
-                                     : grpc::internal::RpcMethod::CLIENT_STREAMING)
-            : (m->server_streaming() ? grpc::internal::RpcMethod::SERVER_STREAMING
-                                     : grpc::internal::RpcMethod::NORMAL_RPC);
+    const auto type = m->client_streaming()
+                          ? (m->server_streaming()
+                                 ? grpc::internal::RpcMethod::BIDI_STREAMING
+                                 : grpc::internal::RpcMethod::CLIENT_STREAMING)
+                          : (m->server_streaming()
+                                 ? grpc::internal::RpcMethod::SERVER_STREAMING
+                                 : grpc::internal::RpcMethod::NORMAL_RPC);
     gate->AddMethod(new grpc::internal::RpcServiceMethod(
         name->c_str(), type, new GateHandler(handler, rule, access)));
     gate->names_.push_back(std::move(name));

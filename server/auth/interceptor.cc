@@ -10,7 +10,8 @@ using grpc::experimental::InterceptionHookPoints;
 
 class AuthInterceptor final : public grpc::experimental::Interceptor {
  public:
-  AuthInterceptor(AccessControl* access, grpc::experimental::ServerRpcInfo* info)
+  AuthInterceptor(AccessControl* access,
+                  grpc::experimental::ServerRpcInfo* info)
       : access_(access), info_(info) {}
   // The call has ended: its verdict goes with it.
   ~AuthInterceptor() override {
@@ -18,10 +19,10 @@ class AuthInterceptor final : public grpc::experimental::Interceptor {
   }
 
   void Intercept(grpc::experimental::InterceptorBatchMethods* m) override {
-    const bool got_metadata =
-        m->QueryInterceptionHookPoint(InterceptionHookPoints::POST_RECV_INITIAL_METADATA);
-    const bool got_message =
-        m->QueryInterceptionHookPoint(InterceptionHookPoints::POST_RECV_MESSAGE);
+    const bool got_metadata = m->QueryInterceptionHookPoint(
+        InterceptionHookPoints::POST_RECV_INITIAL_METADATA);
+    const bool got_message = m->QueryInterceptionHookPoint(
+        InterceptionHookPoints::POST_RECV_MESSAGE);
     if (got_metadata) {
       std::vector<std::string> authorization;
       auto range = m->GetRecvInitialMetadata()->equal_range("authorization");
@@ -39,7 +40,8 @@ class AuthInterceptor final : public grpc::experimental::Interceptor {
       access_->Record(info_->server_context(), verdict_);
       recorded_ = true;
     }
-    if (m->QueryInterceptionHookPoint(InterceptionHookPoints::PRE_SEND_STATUS) &&
+    if (m->QueryInterceptionHookPoint(
+            InterceptionHookPoints::PRE_SEND_STATUS) &&
         recorded_) {
       // The recorded verdict holds what the handler noted for the audit log.
       std::optional<Verdict> v = access_->Find(info_->server_context());
@@ -65,7 +67,8 @@ class AuthInterceptor final : public grpc::experimental::Interceptor {
 
 }  // namespace
 
-grpc::experimental::Interceptor* AuthInterceptorFactory::CreateServerInterceptor(
+grpc::experimental::Interceptor*
+AuthInterceptorFactory::CreateServerInterceptor(
     grpc::experimental::ServerRpcInfo* info) {
   return new AuthInterceptor(access_, info);
 }

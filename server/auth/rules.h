@@ -30,7 +30,15 @@
 
 namespace skerry::auth {
 
-enum class Permission { kPublic, kRead, kSubmit, kOwnRun, kAdmin, kFleet, kAnyRole };
+enum class Permission {
+  kPublic,
+  kRead,
+  kSubmit,
+  kOwnRun,
+  kAdmin,
+  kFleet,
+  kAnyRole
+};
 
 struct Rule {
   Permission permission = Permission::kAdmin;

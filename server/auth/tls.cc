@@ -17,8 +17,8 @@ absl::StatusOr<std::string> ReadPem(const std::string& flag,
                                     const std::string& path) {
   std::ifstream in(path, std::ios::binary);
   if (!in) {
-    return absl::NotFoundError(absl::StrCat(flag, ": cannot read ", path, ": ",
-                                            std::strerror(errno)));
+    return absl::NotFoundError(
+        absl::StrCat(flag, ": cannot read ", path, ": ", std::strerror(errno)));
   }
   std::ostringstream text;
   text << in.rdbuf();
@@ -54,7 +54,8 @@ absl::StatusOr<std::shared_ptr<grpc::ServerCredentials>> MakeServerCredentials(
   pair.private_key = *key;
   options.pem_key_cert_pairs.push_back(pair);
   if (!files.client_ca.empty()) {
-    absl::StatusOr<std::string> ca = ReadPem("--tls-client-ca", files.client_ca);
+    absl::StatusOr<std::string> ca =
+        ReadPem("--tls-client-ca", files.client_ca);
     if (!ca.ok()) return ca.status();
     options.pem_root_certs = *ca;
     options.client_certificate_request =

@@ -12,8 +12,8 @@ namespace skerry::store {
 struct TokenRecord {
   int64_t id = 0;
   std::string principal;
-  int32_t role = 0;      // skerry.v1.Role number
-  std::string hash;      // SHA-256 of the token, 64 lower-case hex digits
+  int32_t role = 0;  // skerry.v1.Role number
+  std::string hash;  // SHA-256 of the token, 64 lower-case hex digits
   std::string note;
   int64_t created_ms = 0;
   std::string created_by;
@@ -26,10 +26,10 @@ struct AuditRecord {
   int64_t at_ms = 0;
   std::string principal;
   int32_t role = 0;
-  int64_t token_id = 0;  // 0: none (access control off)
-  std::string method;    // full gRPC method name
-  int64_t run_id = 0;    // 0: none
-  std::string peer;      // gRPC's peer string: "ipv4:127.0.0.1:53412"
+  int64_t token_id = 0;         // 0: none (access control off)
+  std::string method;           // full gRPC method name
+  int64_t run_id = 0;           // 0: none
+  std::string peer;             // gRPC's peer string: "ipv4:127.0.0.1:53412"
   std::optional<int32_t> code;  // empty: the call had not ended
   std::string message;
   std::string detail;

@@ -42,8 +42,8 @@ absl::Status Store::InsertToken(TokenRecord* t) {
     SKERRY_RETURN_IF_ERROR(p.Run());
   }
   {
-    SKERRY_ASSIGN_OR_RETURN(auto dup,
-                            conn_->Prepare("SELECT id FROM tokens WHERE hash = ?"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto dup, conn_->Prepare("SELECT id FROM tokens WHERE hash = ?"));
     dup.BindText(1, t->hash);
     SKERRY_ASSIGN_OR_RETURN(bool row, dup.Step());
     if (row) return absl::AlreadyExistsError("a token with this hash exists");
@@ -86,7 +86,8 @@ absl::Status Store::CreateFirstAdmin(TokenRecord* token) {
     }
     if (!admins.empty()) {
       return absl::FailedPreconditionError(absl::StrCat(
-          "an admin with a live token exists already (", absl::StrJoin(admins, ", "),
+          "an admin with a live token exists already (",
+          absl::StrJoin(admins, ", "),
           "); an admin creates further tokens with `skerry token create`"));
     }
   }
@@ -114,13 +115,14 @@ absl::StatusOr<TokenRecord> Store::RevokeToken(int64_t token_id,
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   TokenRecord t;
   {
-    SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat(
-                                        "SELECT ", kTokenColumns,
-                                        " FROM tokens WHERE id = ?")));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto s, conn_->Prepare(absl::StrCat("SELECT ", kTokenColumns,
+                                            " FROM tokens WHERE id = ?")));
     s.BindInt(1, token_id);
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) {
-      return absl::NotFoundError(absl::StrCat("token ", token_id, " not found"));
+      return absl::NotFoundError(
+          absl::StrCat("token ", token_id, " not found"));
     }
     t = ReadToken(s);
   }
@@ -129,8 +131,9 @@ absl::StatusOr<TokenRecord> Store::RevokeToken(int64_t token_id,
         "token ", token_id, " was revoked already, by ", t.revoked_by));
   }
   SKERRY_ASSIGN_OR_RETURN(
-      auto upd, conn_->Prepare("UPDATE tokens SET revoked_ms = ?, revoked_by = ? "
-                               "WHERE id = ?"));
+      auto upd,
+      conn_->Prepare("UPDATE tokens SET revoked_ms = ?, revoked_by = ? "
+                     "WHERE id = ?"));
   upd.BindInt(1, now_ms);
   upd.BindText(2, by);
   upd.BindInt(3, token_id);
@@ -143,9 +146,9 @@ absl::StatusOr<TokenRecord> Store::RevokeToken(int64_t token_id,
 
 absl::StatusOr<std::vector<TokenRecord>> Store::ListTokens() {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat(
-                                      "SELECT ", kTokenColumns,
-                                      " FROM tokens ORDER BY id")));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare(absl::StrCat("SELECT ", kTokenColumns,
+                                          " FROM tokens ORDER BY id")));
   std::vector<TokenRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
@@ -157,7 +160,8 @@ absl::StatusOr<std::vector<TokenRecord>> Store::ListTokens() {
 
 absl::StatusOr<int64_t> Store::CountPrincipals() {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("SELECT count(*) FROM principals"));
+  SKERRY_ASSIGN_OR_RETURN(auto s,
+                          conn_->Prepare("SELECT count(*) FROM principals"));
   SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
   return row ? s.ColumnInt(0) : 0;
 }
@@ -192,12 +196,14 @@ absl::Status Store::FinishAudit(const AuditRecord& e) {
   upd.BindInt(5, e.id);
   SKERRY_RETURN_IF_ERROR(upd.Run());
   if (conn_->Changes() != 1) {
-    return absl::NotFoundError(absl::StrCat("audit entry ", e.id, " not found"));
+    return absl::NotFoundError(
+        absl::StrCat("audit entry ", e.id, " not found"));
   }
   return absl::OkStatus();
 }
 
-absl::StatusOr<std::vector<AuditRecord>> Store::QueryAudit(const AuditQuery& q) {
+absl::StatusOr<std::vector<AuditRecord>> Store::QueryAudit(
+    const AuditQuery& q) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
@@ -232,8 +238,8 @@ absl::StatusOr<std::vector<AuditRecord>> Store::QueryAudit(const AuditQuery& q) 
 
 absl::StatusOr<std::optional<std::string>> Store::RunOwner(int64_t run_id) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s,
-                          conn_->Prepare("SELECT owner FROM runs WHERE id = ?"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare("SELECT owner FROM runs WHERE id = ?"));
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
   if (!row) return std::optional<std::string>();

@@ -23,9 +23,8 @@ inline std::string TokenIn(const std::string& text) {
   for (size_t at = text.find("skt_"); at != std::string::npos;
        at = text.find("skt_", at + 1)) {
     size_t end = at + 4;
-    while (end < text.size() &&
-           ((text[end] >= '0' && text[end] <= '9') ||
-            (text[end] >= 'a' && text[end] <= 'f'))) {
+    while (end < text.size() && ((text[end] >= '0' && text[end] <= '9') ||
+                                 (text[end] >= 'a' && text[end] <= 'f'))) {
       ++end;
     }
     if (end - at == 68) return text.substr(at, 68);
@@ -40,14 +39,15 @@ inline absl::StatusOr<std::string> InitAdmin(const std::string& binary,
   CommandResult r = RunCommand({binary, "--db", db, "--init-admin", name});
   const std::string token = TokenIn(r.output);
   if (r.exit_code != 0 || token.empty()) {
-    return absl::InternalError(
-        absl::StrCat("--init-admin failed (exit ", r.exit_code, "): ", r.output));
+    return absl::InternalError(absl::StrCat("--init-admin failed (exit ",
+                                            r.exit_code, "): ", r.output));
   }
   return token;
 }
 
 inline void Authorize(grpc::ClientContext* ctx, const std::string& token) {
-  ctx->set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
+  ctx->set_deadline(std::chrono::system_clock::now() +
+                    std::chrono::seconds(10));
   if (!token.empty()) ctx->AddMetadata("authorization", "Bearer " + token);
 }
 
@@ -64,7 +64,8 @@ inline absl::StatusOr<skerry::v1::CreateTokenResponse> CreateToken(
   skerry::v1::CreateTokenResponse resp;
   grpc::Status s = access.CreateToken(&ctx, req, &resp);
   if (!s.ok()) {
-    return absl::InternalError(absl::StrCat("CreateToken: ", s.error_message()));
+    return absl::InternalError(
+        absl::StrCat("CreateToken: ", s.error_message()));
   }
   return resp;
 }

@@ -54,7 +54,8 @@ std::vector<std::string> AllMethods() {
     for (int s = 0; s < fd->service_count(); ++s) {
       const google::protobuf::ServiceDescriptor* sd = fd->service(s);
       for (int m = 0; m < sd->method_count(); ++m) {
-        out.push_back(absl::StrCat("/", sd->full_name(), "/", sd->method(m)->name()));
+        out.push_back(
+            absl::StrCat("/", sd->full_name(), "/", sd->method(m)->name()));
       }
     }
   }
@@ -189,13 +190,15 @@ TEST_F(AuthorizationMatrixTest, EveryMethodAnswersAsItsRuleSays) {
       if (!allowed || owner_check) {
         EXPECT_EQ(a.code, grpc::StatusCode::PERMISSION_DENIED) << a.message;
         if (!owner_check) {
-          EXPECT_THAT(a.message, HasSubstr(auth::NeededRoles(rule->permission)));
+          EXPECT_THAT(a.message,
+                      HasSubstr(auth::NeededRoles(rule->permission)));
         }
       } else {
         // Let through: whatever the handler makes of an empty request, but
         // not a refusal, and never a missing handler or a gate failure.
         for (grpc::StatusCode refused :
-             {grpc::StatusCode::UNAUTHENTICATED, grpc::StatusCode::PERMISSION_DENIED,
+             {grpc::StatusCode::UNAUTHENTICATED,
+              grpc::StatusCode::PERMISSION_DENIED,
               grpc::StatusCode::UNIMPLEMENTED, grpc::StatusCode::INTERNAL}) {
           EXPECT_NE(a.code, refused) << a.message;
         }
@@ -256,7 +259,8 @@ TEST_F(AuthorizationMatrixTest, MethodUnknownToTheServerIsRefused) {
 // A researcher may steer only its own runs, and cannot tell another's run from
 // a run that does not exist; an admin may steer any. Every change, refused
 // ones included, is in the audit log with who, what, when and from where.
-TEST_F(AuthorizationMatrixTest, ResearchersSteerOnlyTheirOwnRunsAndAllIsAudited) {
+TEST_F(AuthorizationMatrixTest,
+       ResearchersSteerOnlyTheirOwnRunsAndAllIsAudited) {
   auto other = testing::CreateToken(*access_, tokens_["admin"], "rob",
                                     v1::ROLE_RESEARCHER);
   ASSERT_TRUE(other.ok()) << other.status();
@@ -294,12 +298,14 @@ TEST_F(AuthorizationMatrixTest, ResearchersSteerOnlyTheirOwnRunsAndAllIsAudited)
   grpc::Status missing = pause(other->secret(), run + 1000);
   EXPECT_EQ(theirs.error_code(), grpc::StatusCode::PERMISSION_DENIED);
   EXPECT_EQ(missing.error_code(), grpc::StatusCode::PERMISSION_DENIED);
-  EXPECT_EQ(theirs.error_message(),
-            absl::StrReplaceAll(missing.error_message(),
-                                {{absl::StrCat(run + 1000), absl::StrCat(run)}}))
+  EXPECT_EQ(
+      theirs.error_message(),
+      absl::StrReplaceAll(missing.error_message(),
+                          {{absl::StrCat(run + 1000), absl::StrCat(run)}}))
       << "another's run and a missing run must look the same";
   EXPECT_TRUE(pause(tokens_["researcher"], run).ok());
-  EXPECT_TRUE(steer(tokens_["admin"], run, true).ok()) << "an admin steers any run";
+  EXPECT_TRUE(steer(tokens_["admin"], run, true).ok())
+      << "an admin steers any run";
 
   grpc::ClientContext ctx;
   testing::Authorize(&ctx, tokens_["admin"]);

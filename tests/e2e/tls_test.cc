@@ -17,9 +17,9 @@
 namespace skerry {
 namespace {
 
+using testing::CommandResult;
 using ::testing::HasSubstr;
 using ::testing::Not;
-using testing::CommandResult;
 using testing::RunCommand;
 
 constexpr char kSpec[] = R"(
@@ -62,11 +62,13 @@ class TlsTest : public ::testing::Test {
   // One CA; a server certificate for IP 127.0.0.1; a client certificate.
   // P-256 keys: quick to make (common practice for throwaway test PKI).
   void MakeCertificates() {
-    const std::vector<std::string> ec = {"-newkey", "ec", "-pkeyopt",
-                                         "ec_paramgen_curve:prime256v1", "-nodes"};
-    std::vector<std::string> ca = {"req", "-x509", "-days", "2", "-subj",
-                                   "/CN=skerry test CA", "-keyout", File("ca.key"),
-                                   "-out", File("ca.pem")};
+    const std::vector<std::string> ec = {
+        "-newkey", "ec", "-pkeyopt", "ec_paramgen_curve:prime256v1", "-nodes"};
+    std::vector<std::string> ca = {"req",     "-x509",
+                                   "-days",   "2",
+                                   "-subj",   "/CN=skerry test CA",
+                                   "-keyout", File("ca.key"),
+                                   "-out",    File("ca.pem")};
     ca.insert(ca.begin() + 2, ec.begin(), ec.end());
     ASSERT_NO_FATAL_FAILURE(OpenSsl(ca));
     for (const std::string who : {"server", "client"}) {
@@ -75,8 +77,12 @@ class TlsTest : public ::testing::Test {
           who == "server"
               ? "subjectAltName=IP:127.0.0.1\nextendedKeyUsage=serverAuth\n"
               : "extendedKeyUsage=clientAuth\n"));
-      std::vector<std::string> req = {"req", "-subj", "/CN=skerry " + who,
-                                      "-keyout", File(who + ".key"), "-out",
+      std::vector<std::string> req = {"req",
+                                      "-subj",
+                                      "/CN=skerry " + who,
+                                      "-keyout",
+                                      File(who + ".key"),
+                                      "-out",
                                       File(who + ".csr")};
       req.insert(req.begin() + 1, ec.begin(), ec.end());
       ASSERT_NO_FATAL_FAILURE(OpenSsl(req));
@@ -91,10 +97,10 @@ class TlsTest : public ::testing::Test {
   std::vector<std::string> Cli(const std::string& token_file,
                                std::vector<std::string> args) {
     std::vector<std::string> argv = {
-        SKERRY_CLI_BIN,  "--coordinator", coordinator_->address(),
-        "--tls-ca",      File("ca.pem"),  "--tls-cert",
-        File("client.pem"), "--tls-key",  File("client.key"),
-        "--token-file",  token_file};
+        SKERRY_CLI_BIN,     "--coordinator", coordinator_->address(),
+        "--tls-ca",         File("ca.pem"),  "--tls-cert",
+        File("client.pem"), "--tls-key",     File("client.key"),
+        "--token-file",     token_file};
     argv.insert(argv.end(), args.begin(), args.end());
     return argv;
   }
@@ -111,10 +117,18 @@ class TlsTest : public ::testing::Test {
   }
 
   std::vector<std::string> Worker(const std::string& token_file) {
-    return {SKERRY_WORKER_BIN,   "--coordinator", coordinator_->address(),
-            "--threads",         "2",             "--tls-ca",
-            File("ca.pem"),      "--tls-cert",    File("client.pem"),
-            "--tls-key",         File("client.key"), "--token-file",
+    return {SKERRY_WORKER_BIN,
+            "--coordinator",
+            coordinator_->address(),
+            "--threads",
+            "2",
+            "--tls-ca",
+            File("ca.pem"),
+            "--tls-cert",
+            File("client.pem"),
+            "--tls-key",
+            File("client.key"),
+            "--token-file",
             token_file};
   }
 
@@ -130,11 +144,11 @@ TEST_F(TlsTest, WorkerAndCliFinishARunOverTls) {
   CommandResult submitted =
       RunCommand(Cli(File("rita.token"), {"submit", File("run.spec")}));
   ASSERT_EQ(submitted.exit_code, 0) << submitted.output;
-  auto worker = testing::Process::Start(Worker(File("box1.token")),
-                                        File("worker.log"));
+  auto worker =
+      testing::Process::Start(Worker(File("box1.token")), File("worker.log"));
   ASSERT_TRUE(worker.ok()) << worker.status();
-  CommandResult watched = RunCommand(Cli(File("rita.token"), {"watch", "1"}),
-                                     absl::Seconds(120));
+  CommandResult watched =
+      RunCommand(Cli(File("rita.token"), {"watch", "1"}), absl::Seconds(120));
   EXPECT_EQ(watched.exit_code, 0) << watched.output << worker->Log();
   EXPECT_THAT(watched.output, HasSubstr("finished"));
   worker->Signal(SIGTERM);
@@ -148,9 +162,9 @@ TEST_F(TlsTest, WorkerAndCliFinishARunOverTls) {
 
 TEST_F(TlsTest, ClientsWithoutTheCaOrAClientCertificateAreRefused) {
   // Plaintext against a TLS port: no call gets through.
-  CommandResult plain = RunCommand({SKERRY_CLI_BIN, "--coordinator",
-                                    coordinator_->address(), "--token-file",
-                                    File("admin.token"), "list"});
+  CommandResult plain =
+      RunCommand({SKERRY_CLI_BIN, "--coordinator", coordinator_->address(),
+                  "--token-file", File("admin.token"), "list"});
   EXPECT_EQ(plain.exit_code, 3) << plain.output;
   // TLS but not trusting this CA (the server certificate as the only root).
   CommandResult wrong_ca = RunCommand(
@@ -172,7 +186,8 @@ TEST_F(TlsTest, WorkerWithATokenOfAnotherRoleIsRefused) {
   NewToken("rita", "researcher");
   for (const std::string who : {"rita", "admin"}) {
     SCOPED_TRACE(who);
-    CommandResult r = RunCommand(Worker(File(who + ".token")), absl::Seconds(60));
+    CommandResult r =
+        RunCommand(Worker(File(who + ".token")), absl::Seconds(60));
     EXPECT_EQ(r.exit_code, 1) << r.output;
     EXPECT_THAT(r.output, HasSubstr("PERMISSION_DENIED"));
     EXPECT_THAT(r.output, HasSubstr("needs role worker"));
@@ -185,9 +200,9 @@ TEST_F(TlsTest, CliNeverPrintsTheTokenItUses) {
       RunCommand(Cli(File("admin.token"), {"token", "revoke", "2"}));
   ASSERT_EQ(revoke.exit_code, 0) << revoke.output;
   const std::vector<std::string> base = {
-      SKERRY_CLI_BIN, "--coordinator", coordinator_->address(), "--tls-ca",
-      File("ca.pem"), "--tls-cert", File("client.pem"), "--tls-key",
-      File("client.key")};
+      SKERRY_CLI_BIN,     "--coordinator", coordinator_->address(),
+      "--tls-ca",         File("ca.pem"),  "--tls-cert",
+      File("client.pem"), "--tls-key",     File("client.key")};
   const std::vector<std::vector<std::string>> cases = {
       {"--token", admin_, "list"},
       {"--token", admin_, "token", "list", "--all"},

@@ -71,7 +71,8 @@ TEST(ResolveTokenTest, ProblemsNameTheSourceNeverTheToken) {
   auto spaced = worker::ResolveToken("secret-part two", "", Env({}));
   ASSERT_FALSE(spaced.ok());
   EXPECT_THAT(std::string(spaced.status().message()), HasSubstr("--token"));
-  EXPECT_THAT(std::string(spaced.status().message()), Not(HasSubstr("secret-part")));
+  EXPECT_THAT(std::string(spaced.status().message()),
+              Not(HasSubstr("secret-part")));
   auto missing = worker::ResolveToken("", home.path() + "/nope", Env({}));
   EXPECT_EQ(missing.status().code(), absl::StatusCode::kNotFound);
   const std::string loose = home.Write("loose.token", "abc\n", 0644);
@@ -82,7 +83,8 @@ TEST(ResolveTokenTest, ProblemsNameTheSourceNeverTheToken) {
 }
 
 TEST(AccessArgsTest, GlobalOptionsGoBeforeOrAfterTheCommand) {
-  auto before = ParseArgs({"--token-file", "t", "--tls-ca", "ca.pem", "list"}, "");
+  auto before =
+      ParseArgs({"--token-file", "t", "--tls-ca", "ca.pem", "list"}, "");
   ASSERT_TRUE(before.ok()) << before.status();
   EXPECT_EQ(before->Global("token-file"), "t");
   EXPECT_EQ(before->Global("tls-ca"), "ca.pem");
@@ -99,14 +101,16 @@ TEST(AccessArgsTest, AMistypedTokenOptionIsNotEchoed) {
   auto bad = ParseArgs({"--tokn=skt_secretvalue", "list"}, "");
   ASSERT_FALSE(bad.ok());
   EXPECT_THAT(std::string(bad.status().message()), HasSubstr("--tokn"));
-  EXPECT_THAT(std::string(bad.status().message()), Not(HasSubstr("secretvalue")));
+  EXPECT_THAT(std::string(bad.status().message()),
+              Not(HasSubstr("secretvalue")));
 }
 
 TEST(RedactTest, HidesTheSecretsAndAnythingShapedLikeAToken) {
   Io io;
   io.secrets = {"hunter2"};
   const std::string token = "skt_" + std::string(64, 'a');
-  const std::string out = Redact("bad hunter2 and " + token + " and skt_ab", io);
+  const std::string out =
+      Redact("bad hunter2 and " + token + " and skt_ab", io);
   EXPECT_THAT(out, Not(HasSubstr("hunter2")));
   EXPECT_THAT(out, Not(HasSubstr(std::string(64, 'a'))));
   EXPECT_THAT(out, HasSubstr("skt_ab")) << "too short to be a token";

@@ -55,7 +55,7 @@ Result Cli(const std::vector<std::string>& args) {
   io.err = &err;
   io.getenv = [](const char*) { return std::string(); };  // hermetic
   ClientFactory factory = [](const std::string& target,
-                              const worker::ClientSecurity&) {
+                             const worker::ClientSecurity&) {
     auto channel =
         grpc::CreateChannel(target, grpc::InsecureChannelCredentials());
     return std::make_unique<RunClient>(skerry::v1::RunService::NewStub(channel),

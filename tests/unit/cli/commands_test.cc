@@ -78,7 +78,7 @@ class CommandsTest : public ::testing::Test {
 
   int Cli(std::vector<std::string> args) {
     ClientFactory factory = [this](const std::string& target,
-                                  const worker::ClientSecurity&) {
+                                   const worker::ClientSecurity&) {
       targets_.push_back(target);
       return std::move(client_);
     };

@@ -69,8 +69,10 @@ TEST_F(AccessStoreTest, OnlyTheHashOfATokenIsStored) {
   EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM tokens WHERE hash = '" +
                                  HashToken(admin->secret) + "'"),
             "1");
-  EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM tokens WHERE hash LIKE "
-                             "'%" + admin->secret.substr(4, 20) + "%'"),
+  EXPECT_EQ(RawQuery(path(),
+                     "SELECT count(*) FROM tokens WHERE hash LIKE "
+                     "'%" +
+                         admin->secret.substr(4, 20) + "%'"),
             "0");
   EXPECT_EQ(RawQuery(path(), "SELECT name FROM principals"), "ada");
 }
@@ -123,7 +125,9 @@ TEST_F(AccessStoreTest, RevokedTokenIsUnauthenticatedAtOnce) {
   auto twice = ac->RevokeToken(t->record.id, "ada");
   EXPECT_EQ(twice.status().code(), absl::StatusCode::kFailedPrecondition);
   // Still revoked after a restart: the store is the truth.
-  EXPECT_EQ(Open(AuthMode::kAuto)->Admit(method, Bearer(t->secret)).status.error_code(),
+  EXPECT_EQ(Open(AuthMode::kAuto)
+                ->Admit(method, Bearer(t->secret))
+                .status.error_code(),
             grpc::StatusCode::UNAUTHENTICATED);
 }
 
@@ -132,12 +136,13 @@ TEST_F(AccessStoreTest, RoleRefusalNamesTheRoleNeeded) {
   auto ac = Open(AuthMode::kAuto);
   auto viewer = ac->CreateToken("vic", skerry::v1::ROLE_VIEWER, "", "ada");
   ASSERT_TRUE(viewer.ok());
-  Verdict v = ac->Admit("/skerry.v1.RunService/SubmitRun", Bearer(viewer->secret));
+  Verdict v =
+      ac->Admit("/skerry.v1.RunService/SubmitRun", Bearer(viewer->secret));
   EXPECT_EQ(v.status.error_code(), grpc::StatusCode::PERMISSION_DENIED);
   EXPECT_THAT(v.status.error_message(), HasSubstr("researcher or admin"));
   EXPECT_THAT(v.status.error_message(), HasSubstr("viewer"));
-  Verdict none = ac->Admit("/skerry.v1.RunService/NoSuchMethod",
-                           Bearer(viewer->secret));
+  Verdict none =
+      ac->Admit("/skerry.v1.RunService/NoSuchMethod", Bearer(viewer->secret));
   EXPECT_EQ(none.status.error_code(), grpc::StatusCode::PERMISSION_DENIED);
   EXPECT_THAT(none.status.error_message(), HasSubstr("no access rule"));
   Verdict anonymous = ac->Admit("/skerry.v1.RunService/ListRuns", {});
@@ -176,7 +181,8 @@ TEST_F(AccessStoreTest, AuditEntriesAreFilteredByRunAndPrincipalNewestFirst) {
   ASSERT_TRUE(rows.ok());
   ASSERT_EQ(rows->size(), 2u);
   EXPECT_EQ((*rows)[0].id, 4);
-  EXPECT_FALSE((*rows)[0].code.has_value()) << "not ended: the code stays empty";
+  EXPECT_FALSE((*rows)[0].code.has_value())
+      << "not ended: the code stays empty";
   EXPECT_TRUE((*rows)[1].code.has_value());
 }
 
@@ -184,17 +190,19 @@ TEST_F(AccessStoreTest, AuditEntriesAreFilteredByRunAndPrincipalNewestFirst) {
 // keeps its runs; access control stays off on it until --init-admin.
 TEST_F(AccessStoreTest, Version3DatabaseIsMigratedToTheAccessTables) {
   store_.reset();
-  RawExec(path(),
-          "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
-          "UPDATE schema_version SET version = 3; "
-          "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
-          "created_ms, updated_ms) VALUES ('old', 'local', x'', '', 1, 4, 1, 1)");
+  RawExec(
+      path(),
+      "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
+      "UPDATE schema_version SET version = 3; "
+      "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
+      "created_ms, updated_ms) VALUES ('old', 'local', x'', '', 1, 4, 1, 1)");
   auto again = store::Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   store_ = std::move(*again);
   EXPECT_EQ(*store_->SchemaVersion(), 4);
-  EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM sqlite_master WHERE name IN "
-                             "('principals', 'tokens', 'audit')"),
+  EXPECT_EQ(RawQuery(path(),
+                     "SELECT count(*) FROM sqlite_master WHERE name IN "
+                     "('principals', 'tokens', 'audit')"),
             "3");
   EXPECT_EQ(RawQuery(path(), "SELECT owner FROM runs WHERE name = 'old'"),
             "local");
