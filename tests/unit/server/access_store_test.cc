@@ -199,7 +199,7 @@ TEST_F(AccessStoreTest, Version3DatabaseIsMigratedToTheAccessTables) {
   auto again = store::Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   store_ = std::move(*again);
-  EXPECT_EQ(*store_->SchemaVersion(), 4);
+  EXPECT_EQ(*store_->SchemaVersion(), store::Store::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(),
                      "SELECT count(*) FROM sqlite_master WHERE name IN "
                      "('principals', 'tokens', 'audit')"),
