@@ -9,8 +9,10 @@
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_replace.h"
 #include "absl/strings/str_split.h"
+#include "cli/access.h"
 #include "cli/lineage.h"
 #include "cli/validate.h"
+#include "worker/channel.h"
 
 namespace skerry::cli {
 namespace {
@@ -153,6 +155,23 @@ FlagToken SplitFlag(absl::string_view arg) {
   return token;
 }
 
+bool IsGlobal(absl::string_view name) {
+  for (const char* g : kGlobalOptions) {
+    if (name == g) return true;
+  }
+  return false;
+}
+
+// Stores a global option's value.
+void SetGlobal(const std::string& name, const std::string& value,
+               ParsedArgs* parsed) {
+  if (name == "coordinator") {
+    parsed->coordinator = value;
+  } else {
+    parsed->global[name] = value;
+  }
+}
+
 // Parses the global options before the command; returns the command's index.
 absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
                                    ParsedArgs* parsed) {
@@ -165,18 +184,21 @@ absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
     }
     if (!absl::StartsWith(arg, "-")) break;
     FlagToken token = SplitFlag(arg);
-    if (!absl::StartsWith(arg, "--") || token.name != "coordinator") {
-      return UsageError("", absl::StrCat("unknown option '", arg,
-                                         "' (options before the command: "
-                                         "--coordinator HOST:PORT, --help)"));
+    if (!absl::StartsWith(arg, "--") || !IsGlobal(token.name)) {
+      // The name only: a mistyped --token=... must not echo its value.
+      return UsageError(
+          "", absl::StrCat("unknown option '", arg.substr(0, arg.find('=')),
+                           "' (options before the command: --coordinator, "
+                           "--token, --token-file, --tls-ca, --tls-cert, "
+                           "--tls-key, --tls-server-name, --help)"));
     }
     if (!token.has_value) {
       if (i + 1 >= args.size()) {
-        return UsageError("", "--coordinator needs a value: HOST:PORT");
+        return UsageError("", absl::StrCat("--", token.name, " needs a value"));
       }
       token.value = args[++i];
     }
-    parsed->coordinator = token.value;
+    SetGlobal(token.name, token.value, parsed);
   }
   if (i >= args.size()) {
     return UsageError("", "no command given; `skerry help` lists them");
@@ -208,7 +230,7 @@ absl::Status ParseCommandArgs(const CommandSpec& command,
     }
     FlagToken token = SplitFlag(arg);
     const FlagSpec* flag = FindFlag(command, token.name);
-    bool global = token.name == "coordinator";
+    bool global = flag == nullptr && IsGlobal(token.name);
     if (flag == nullptr && !global) {
       return UsageError(command.name,
                         absl::StrCat("unknown option '--", token.name, "'"));
@@ -220,14 +242,15 @@ absl::Status ParseCommandArgs(const CommandSpec& command,
     }
     if (takes_value && !token.has_value) {
       if (i + 1 >= args.size()) {
-        return UsageError(command.name,
-                          absl::StrCat("--", token.name, " needs a value: ",
-                                       global ? "HOST:PORT" : flag->value));
+        return UsageError(
+            command.name,
+            absl::StrCat("--", token.name, " needs a value", global ? "" : ": ",
+                         global ? "" : flag->value));
       }
       token.value = args[++i];
     }
     if (global) {
-      parsed->coordinator = token.value;
+      SetGlobal(token.name, token.value, parsed);
     } else {
       parsed->flags[token.name] = token.value;
     }
@@ -272,17 +295,18 @@ absl::Status CheckComplete(const CommandSpec& command,
 const std::vector<CommandSpec>& Commands() {
   static const auto* commands = [] {
     auto* all = new std::vector<CommandSpec>(MakeCommands());
-    // The lineage commands (cli/lineage.h) go before `local` and `help`.
-    std::vector<CommandSpec> lineage = LineageCommandSpecs();
+    // The lineage commands (cli/lineage.h), the access commands
+    // (cli/access.h) and the validation commands (cli/validate.h) go before
+    // `local` and `help`.
+    std::vector<CommandSpec> more = LineageCommandSpecs();
+    std::vector<CommandSpec> access = AccessCommandSpecs();
+    more.insert(more.end(), access.begin(), access.end());
+    std::vector<CommandSpec> validation = ValidationCommandSpecs();
+    more.insert(more.end(), validation.begin(), validation.end());
     auto local = std::find_if(all->begin(), all->end(), [](const auto& c) {
       return absl::string_view(c.name) == "local";
     });
-    all->insert(local, lineage.begin(), lineage.end());
-    std::vector<CommandSpec> validation = ValidationCommandSpecs();
-    local = std::find_if(all->begin(), all->end(), [](const auto& c) {
-      return absl::string_view(c.name) == "local";
-    });
-    all->insert(local, validation.begin(), validation.end());
+    all->insert(local, more.begin(), more.end());
     return all;
   }();
   return *commands;
@@ -302,6 +326,11 @@ bool ParsedArgs::Has(absl::string_view flag) const {
 std::string ParsedArgs::Get(absl::string_view flag) const {
   auto it = flags.find(std::string(flag));
   return it == flags.end() ? "" : it->second;
+}
+
+std::string ParsedArgs::Global(absl::string_view option) const {
+  auto it = global.find(std::string(option));
+  return it == global.end() ? "" : it->second;
 }
 
 absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<std::string>& args,
@@ -380,7 +409,8 @@ absl::StatusOr<uint32_t> ParseBoundedUint(absl::string_view what,
 
 std::string GeneralHelp() {
   std::string help =
-      "usage: skerry [--coordinator HOST:PORT] COMMAND [ARGS...]\n\n"
+      "usage: skerry [--coordinator HOST:PORT] [--token-file FILE] COMMAND "
+      "[ARGS...]\n\n"
       "The command-line client of a Skerry coordinator.\n\n"
       "Commands:\n";
   size_t width = 0;
@@ -403,6 +433,21 @@ std::string GeneralHelp() {
       "                           (default: $",
       kCoordinatorEnv, ", else ", kDefaultCoordinator,
       ")\n"
+      "  --token TOKEN            bearer token (visible in the process list;\n"
+      "                           prefer the next ones)\n"
+      "  --token-file FILE        read the token from FILE (default: $",
+      worker::kTokenEnv,
+      ",\n"
+      "                           else ~/.config/skerry/token, else none)\n"
+      "  --tls-ca FILE            TLS: the CA of the coordinator's "
+      "certificate\n"
+      "                           (default: $SKERRY_TLS_CA; none: plaintext)\n"
+      "  --tls-cert FILE          TLS client certificate and key, for a\n"
+      "  --tls-key FILE           coordinator that checks clients\n"
+      "                           (default: $SKERRY_TLS_CERT, "
+      "$SKERRY_TLS_KEY)\n"
+      "  --tls-server-name NAME   name to expect in the coordinator's "
+      "certificate\n"
       "  --help                   this help; `skerry COMMAND --help` for one "
       "command\n\n"
       "Exit codes: 0 success, 1 the operation failed, 2 usage error or bad "

@@ -44,8 +44,17 @@ const std::vector<CommandSpec>& Commands();
 // nullptr when there is no such command.
 const CommandSpec* FindCommand(absl::string_view name);
 
+// Options every command takes, before or after its name. Their values go to
+// ParsedArgs::global, keyed by name without "--".
+inline constexpr const char* kGlobalOptions[] = {
+    "coordinator", "token",   "token-file",     "tls-ca",
+    "tls-cert",    "tls-key", "tls-server-name"};
+
 struct ParsedArgs {
   std::string coordinator;  // HOST:PORT, already checked
+  // --token, --token-file, --tls-ca, --tls-cert, --tls-key, --tls-server-name
+  // when given.
+  std::map<std::string, std::string> global;
   std::string command;      // a name from Commands()
   std::vector<std::string> positionals;
   std::map<std::string, std::string> flags;  // a switch maps to ""
@@ -54,6 +63,8 @@ struct ParsedArgs {
   bool Has(absl::string_view flag) const;
   // The flag's value, or "" when absent.
   std::string Get(absl::string_view flag) const;
+  // A global option's value, or "" when absent.
+  std::string Global(absl::string_view option) const;
 };
 
 // Parses argv without argv[0]. `env_coordinator` is the value of

@@ -10,8 +10,9 @@
 
 namespace skerry::cli {
 
-std::shared_ptr<grpc::Channel> CoordinatorChannel(const std::string& target) {
-  return grpc::CreateChannel(target, grpc::InsecureChannelCredentials());
+absl::StatusOr<std::shared_ptr<grpc::Channel>> CoordinatorChannel(
+    const std::string& target, const worker::ClientSecurity& security) {
+  return worker::OpenCoordinatorChannel(target, security);
 }
 namespace {
 

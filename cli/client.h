@@ -18,10 +18,11 @@
 #include "absl/status/status.h"
 #include "absl/status/statusor.h"
 #include "absl/strings/string_view.h"
-#include "grpcpp/channel.h"
 #include "absl/time/time.h"
+#include "grpcpp/channel.h"
 #include "grpcpp/support/status.h"
 #include "skerry/v1/runs.grpc.pb.h"
+#include "worker/channel.h"
 
 namespace skerry::cli {
 
@@ -39,9 +40,10 @@ absl::Status FromGrpc(const grpc::Status& status, absl::string_view call,
 // True for the codes that mean "no coordinator answered" (exit code 3).
 bool IsUnreachable(const absl::Status& status);
 
-// The channel to a coordinator at HOST:PORT: the one place the CLI chooses
-// credentials.
-std::shared_ptr<grpc::Channel> CoordinatorChannel(const std::string& target);
+// The channel to a coordinator at HOST:PORT with the caller's token and TLS
+// files (worker/channel.h makes it; errors never contain the token).
+absl::StatusOr<std::shared_ptr<grpc::Channel>> CoordinatorChannel(
+    const std::string& target, const worker::ClientSecurity& security);
 
 class RunClient {
  public:

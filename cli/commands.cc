@@ -1,15 +1,17 @@
 #include "cli/commands.h"
 
-#include "cli/backup.h"
-
 #include <algorithm>
+#include <cctype>
 #include <cerrno>
 #include <cstring>
 #include <fstream>
 #include <sstream>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
+#include "cli/access.h"
+#include "cli/backup.h"
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
@@ -20,7 +22,7 @@ namespace skerry::cli {
 
 int UsageFailure(const absl::Status& status, absl::string_view command,
                  Io& io) {
-  *io.err << "skerry: " << status.message() << "\n";
+  *io.err << "skerry: " << Redact(std::string(status.message()), io) << "\n";
   if (!command.empty()) {
     *io.err << "run `skerry " << command << " --help` for its usage\n";
   }
@@ -135,8 +137,29 @@ int Help(const ParsedArgs& args, Io& io) {
 
 }  // namespace
 
+std::string Redact(const std::string& text, const Io& io) {
+  std::string out = text;
+  for (const std::string& secret : io.secrets) {
+    if (secret.empty()) continue;
+    for (size_t at = out.find(secret); at != std::string::npos;
+         at = out.find(secret, at)) {
+      out.replace(at, secret.size(), "[hidden]");
+    }
+  }
+  // Anything shaped like one of our tokens: "skt_" and 64 hex digits.
+  for (size_t at = out.find("skt_"); at != std::string::npos;
+       at = out.find("skt_", at + 1)) {
+    size_t end = at + 4;
+    while (end < out.size() &&
+           std::isxdigit(static_cast<unsigned char>(out[end])))
+      ++end;
+    if (end - at - 4 >= 16) out.replace(at + 4, end - at - 4, "[hidden]");
+  }
+  return out;
+}
+
 int ReportError(const absl::Status& status, Io& io) {
-  *io.err << "skerry: " << status.message() << "\n";
+  *io.err << "skerry: " << Redact(std::string(status.message()), io) << "\n";
   return IsUnreachable(status) ? kExitUnreachable : kExitFailure;
 }
 
@@ -297,9 +320,48 @@ int SteerCommand(RunClient& client, uint64_t run_id, absl::string_view action,
   return kExitOk;
 }
 
+namespace {
+
+// The values given to --token, so that no error ever echoes them.
+std::vector<std::string> TokenArguments(const std::vector<std::string>& args) {
+  std::vector<std::string> out;
+  for (size_t i = 0; i < args.size(); ++i) {
+    if (args[i] == "--token" && i + 1 < args.size()) out.push_back(args[i + 1]);
+    if (absl::StartsWith(args[i], "--token=")) out.push_back(args[i].substr(8));
+  }
+  return out;
+}
+
+// The token (flag, file, environment, config file) and TLS files (flag, else
+// environment) of this invocation.
+absl::StatusOr<worker::ClientSecurity> Security(const ParsedArgs& args,
+                                                Io& io) {
+  const worker::Getenv getenv =
+      io.getenv ? io.getenv : worker::ProcessEnvironment();
+  absl::StatusOr<worker::ResolvedToken> token = worker::ResolveToken(
+      args.Global("token"), args.Global("token-file"), getenv);
+  if (!token.ok()) return token.status();
+  if (!token->warning.empty()) *io.err << "skerry: " << token->warning << "\n";
+  io.secrets.push_back(token->token);
+  worker::ClientSecurity s;
+  s.token = token->token;
+  auto pick = [&](const char* option, const char* env) {
+    std::string v = args.Global(option);
+    return v.empty() ? getenv(env) : v;
+  };
+  s.tls_ca_file = pick("tls-ca", "SKERRY_TLS_CA");
+  s.tls_cert_file = pick("tls-cert", "SKERRY_TLS_CERT");
+  s.tls_key_file = pick("tls-key", "SKERRY_TLS_KEY");
+  s.tls_server_name = args.Global("tls-server-name");
+  return s;
+}
+
+}  // namespace
+
 int RunCli(const std::vector<std::string>& args,
            absl::string_view env_coordinator, const ClientFactory& factory,
            Io& io) {
+  io.secrets = TokenArguments(args);
   absl::StatusOr<ParsedArgs> parsed = ParseArgs(args, env_coordinator);
   if (!parsed.ok()) {
     // Name the command for the `--help` hint when it is a known one.
@@ -314,20 +376,34 @@ int RunCli(const std::vector<std::string>& args,
   }
   if (parsed->help || parsed->command == "help") return Help(*parsed, io);
   if (parsed->command == "local") return LocalCommand(*parsed, io);
-  if (IsLineageCommand(parsed->command)) {
-    return LineageCommand(*parsed, NetworkLineageStubs(), TerminalConfirm(), io);
+  absl::StatusOr<worker::ClientSecurity> security = Security(*parsed, io);
+  if (!security.ok()) return UsageFailure(security.status(), "", io);
+  const std::string& target = parsed->coordinator;
+  auto channel = [&]() { return CoordinatorChannel(target, *security); };
+  if (IsLineageCommand(parsed->command) || parsed->command == "backup" ||
+      IsAccessCommand(parsed->command) ||
+      IsValidationCommand(parsed->command)) {
+    absl::StatusOr<std::shared_ptr<grpc::Channel>> ch = channel();
+    if (!ch.ok()) return UsageFailure(ch.status(), "", io);
+    if (IsLineageCommand(parsed->command)) {
+      LineageStubFactory lineage = [&ch](const std::string&) {
+        return skerry::v1::LineageService::NewStub(*ch);
+      };
+      return LineageCommand(*parsed, lineage, TerminalConfirm(), io);
+    }
+    if (parsed->command == "backup") {
+      auto admin = skerry::v1::AdminService::NewStub(*ch);
+      return BackupCommand(*parsed, *admin, io);
+    }
+    if (IsValidationCommand(parsed->command)) {
+      auto validation = skerry::v1::ValidationService::NewStub(*ch);
+      return ValidationCommand(*parsed, *validation, io);
+    }
+    auto access = skerry::v1::AccessService::NewStub(*ch);
+    return AccessCommand(*parsed, *access, target, io);
   }
-  if (IsValidationCommand(parsed->command)) {
-    auto validation = skerry::v1::ValidationService::NewStub(
-        CoordinatorChannel(parsed->coordinator));
-    return ValidationCommand(*parsed, *validation, io);
-  }
-  if (parsed->command == "backup") {
-    auto admin = skerry::v1::AdminService::NewStub(
-        CoordinatorChannel(parsed->coordinator));
-    return BackupCommand(*parsed, *admin, io);
-  }
-  std::unique_ptr<RunClient> client = factory(parsed->coordinator);
+  std::unique_ptr<RunClient> client = factory(target, *security);
+  if (client == nullptr) return kExitUsage;
   return Dispatch(*parsed, *client, io);
 }
 

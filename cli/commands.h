@@ -46,12 +46,22 @@ struct Io {
   absl::TimeZone zone = absl::UTCTimeZone();
   // How `watch` waits between reconnections; absl::SleepFor when empty.
   std::function<void(absl::Duration)> sleep;
+  // Reads the environment (SKERRY_TOKEN, SKERRY_TLS_*, HOME); the process
+  // environment when empty.
+  worker::Getenv getenv;
+  // Texts never to print (the caller's token): ReportError and usage errors
+  // replace them, and anything shaped like a token, with "[hidden]".
+  std::vector<std::string> secrets;
 };
 
-// Makes the client for a coordinator address (main: a gRPC channel; tests: a
-// mock stub).
-using ClientFactory =
-    std::function<std::unique_ptr<RunClient>(const std::string& target)>;
+// `text` with every secret of `io`, and every "skt_" token, hidden.
+std::string Redact(const std::string& text, const Io& io);
+
+// Makes the client for a coordinator address with the caller's token and TLS
+// files (main: a gRPC channel; tests: a mock stub). nullptr when the channel
+// cannot be made; the factory says why on `err`.
+using ClientFactory = std::function<std::unique_ptr<RunClient>(
+    const std::string& target, const worker::ClientSecurity& security)>;
 
 // The whole CLI: `args` is argv without argv[0]; `env_coordinator` the value
 // of SKERRY_COORDINATOR ("" when unset). Returns the exit code.

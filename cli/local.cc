@@ -97,6 +97,8 @@ int LocalCommand(const ParsedArgs& args, Io& io) {
   server::CoordinatorOptions options;
   options.db_path = args.Get("db");
   options.listen_address = "";  // in-process channels only
+  // Nobody outside this process can reach it: no tokens to check.
+  options.auth = auth::AuthMode::kOff;
   auto coordinator = server::Coordinator::Start(options);
   if (!coordinator.ok()) {
     *io.err << "skerry: cannot start a coordinator on " << options.db_path

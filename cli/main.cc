@@ -23,10 +23,19 @@ int main(int argc, char** argv) {
   io.err = &std::cerr;
   io.interactive = isatty(fileno(stdout)) != 0;
   io.zone = absl::LocalTimeZone();
-  auto factory = [](const std::string& target) {
-    auto channel = skerry::cli::CoordinatorChannel(target);
+  auto factory = [&io](const std::string& target,
+                       const skerry::worker::ClientSecurity& security)
+      -> std::unique_ptr<skerry::cli::RunClient> {
+    auto channel = skerry::cli::CoordinatorChannel(target, security);
+    if (!channel.ok()) {
+      *io.err << "skerry: "
+              << skerry::cli::Redact(std::string(channel.status().message()),
+                                     io)
+              << "\n";
+      return nullptr;
+    }
     return std::make_unique<skerry::cli::RunClient>(
-        skerry::v1::RunService::NewStub(channel), target);
+        skerry::v1::RunService::NewStub(*channel), target);
   };
   return skerry::cli::RunCli(args, env == nullptr ? "" : env, factory, io);
 }

@@ -23,6 +23,7 @@ PACKAGES=(
   libgmock-dev
   libboost-dev
   python3
+  openssl
 )
 
 installed() {

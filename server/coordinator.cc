@@ -7,10 +7,14 @@
 #include "absl/synchronization/mutex.h"
 #include "common/status_macros.h"
 #include "grpcpp/grpcpp.h"
+#include "server/api/access_service.h"
 #include "server/api/admin_service.h"
 #include "server/api/fleet_service.h"
 #include "server/api/run_service.h"
 #include "server/api/validation_service.h"
+#include "server/auth/gate.h"
+#include "server/auth/interceptor.h"
+#include "server/auth/tls.h"
 #include "server/engine/engine.h"
 #include "server/lineage/lineage_service.h"
 #include "server/scheduler/task_queue.h"
@@ -36,29 +40,63 @@ class CoordinatorImpl final : public Coordinator {
     SKERRY_ASSIGN_OR_RETURN(
         c->engine_,
         engine::Engine::Open(c->store_.get(), c->queue_.get(), c->clock_));
+    SKERRY_ASSIGN_OR_RETURN(
+        c->access_,
+        auth::AccessControl::Open(c->store_.get(), c->clock_, options.auth));
     c->fleet_ = std::make_unique<api::FleetServiceImpl>(
         c->store_.get(), c->engine_.get(), c->queue_.get(), c->clock_,
         options.max_lease_wait);
     c->runs_ = std::make_unique<api::RunServiceImpl>(
-        c->store_.get(), c->engine_.get(), c->fleet_.get());
+        c->store_.get(), c->engine_.get(), c->fleet_.get(), c->access_.get());
     c->validations_ = std::make_unique<api::ValidationServiceImpl>(
-        c->store_.get(), c->engine_.get());
+        c->store_.get(), c->engine_.get(), c->access_.get());
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
                             lineage::LineageServiceImpl::Open(options.db_path));
+    c->admin_ = std::make_unique<api::AdminServiceImpl>(options.db_path);
+    c->access_service_ = std::make_unique<api::AccessServiceImpl>(
+        c->store_.get(), c->access_.get());
 
+    auth::TlsServerFiles tls{options.tls_cert_file, options.tls_key_file,
+                             options.tls_client_ca_file};
+    SKERRY_ASSIGN_OR_RETURN(std::shared_ptr<grpc::ServerCredentials> creds,
+                            auth::MakeServerCredentials(tls));
+    c->transport_ =
+        options.listen_address.empty() ? "no network listener"
+        : tls.cert.empty()
+            ? "plaintext (no --tls-cert): tokens travel unencrypted"
+            : (tls.client_ca.empty() ? "TLS"
+                                     : "TLS, client certificates required");
+
+    grpc::EnableDefaultHealthCheckService(true);
     grpc::ServerBuilder builder;
     if (!options.listen_address.empty()) {
-      builder.AddListeningPort(options.listen_address,
-                               grpc::InsecureServerCredentials(), &c->port_);
+      builder.AddListeningPort(options.listen_address, creds, &c->port_);
     }
     builder.SetMaxReceiveMessageSize(kMaxMessageBytes);
     builder.SetMaxSendMessageSize(kMaxMessageBytes);
-    builder.RegisterService(c->fleet_.get());
-    builder.RegisterService(c->runs_.get());
-    c->admin_ = std::make_unique<api::AdminServiceImpl>(options.db_path);
-    builder.RegisterService(c->admin_.get());
-    builder.RegisterService(c->lineage_.get());
-    builder.RegisterService(c->validations_.get());
+    // Every service goes behind the gate; nothing is registered bare.
+    const std::pair<grpc::Service*, std::string> services[] = {
+        {c->fleet_.get(), skerry::v1::FleetService::service_full_name()},
+        {c->runs_.get(), skerry::v1::RunService::service_full_name()},
+        {c->admin_.get(), skerry::v1::AdminService::service_full_name()},
+        {c->lineage_.get(), skerry::v1::LineageService::service_full_name()},
+        {c->validations_.get(),
+         skerry::v1::ValidationService::service_full_name()},
+        {c->access_service_.get(),
+         skerry::v1::AccessService::service_full_name()}};
+    for (const auto& [service, name] : services) {
+      SKERRY_ASSIGN_OR_RETURN(
+          std::unique_ptr<auth::GatedService> gate,
+          auth::GatedService::Wrap(service, name, c->access_.get()));
+      builder.RegisterService(gate.get());
+      c->gates_.push_back(std::move(gate));
+    }
+    std::vector<
+        std::unique_ptr<grpc::experimental::ServerInterceptorFactoryInterface>>
+        interceptors;
+    interceptors.push_back(
+        std::make_unique<auth::AuthInterceptorFactory>(c->access_.get()));
+    builder.experimental().SetInterceptorCreators(std::move(interceptors));
     c->server_ = builder.BuildAndStart();
     if (c->server_ == nullptr ||
         (!options.listen_address.empty() && c->port_ == 0)) {
@@ -72,6 +110,8 @@ class CoordinatorImpl final : public Coordinator {
   ~CoordinatorImpl() override { Shutdown(); }
 
   int port() const override { return port_; }
+  std::string AccessSummary() const override { return access_->Describe(); }
+  std::string TransportSummary() const override { return transport_; }
 
   std::shared_ptr<grpc::Channel> InProcessChannel() override {
     grpc::ChannelArguments args;
@@ -114,8 +154,12 @@ class CoordinatorImpl final : public Coordinator {
   std::unique_ptr<api::AdminServiceImpl> admin_;
   std::unique_ptr<lineage::LineageServiceImpl> lineage_;
   std::unique_ptr<api::ValidationServiceImpl> validations_;
-  std::unique_ptr<grpc::Server> server_;
+  std::unique_ptr<auth::AccessControl> access_;
+  std::unique_ptr<api::AccessServiceImpl> access_service_;
+  std::vector<std::unique_ptr<auth::GatedService>> gates_;
+  std::unique_ptr<grpc::Server> server_;  // destroyed before what it serves
   int port_ = 0;
+  std::string transport_;
 
   absl::Mutex mu_;
   bool shut_down_ ABSL_GUARDED_BY(mu_) = false;
@@ -131,6 +175,18 @@ absl::StatusOr<std::unique_ptr<Coordinator>> Coordinator::Start(
   SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<CoordinatorImpl> c,
                           CoordinatorImpl::Make(options));
   return std::unique_ptr<Coordinator>(std::move(c));
+}
+
+absl::StatusOr<auth::AccessControl::IssuedToken> InitFirstAdmin(
+    const std::string& db_path, const std::string& name) {
+  if (db_path.empty()) {
+    return absl::InvalidArgumentError("--db: a database file is required");
+  }
+  SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<store::OwnerLock> owner,
+                          store::OwnerLock::Acquire(db_path));
+  SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<store::Store> store,
+                          store::Store::Open(db_path));
+  return auth::AccessControl::InitAdmin(store.get(), Clock::Real(), name);
 }
 
 }  // namespace skerry::server

@@ -1,5 +1,8 @@
-// The coordinator: opens the store, resumes every run, serves FleetService and
-// RunService. Used by skerry-coordinator's main and by `skerry local`.
+// The coordinator: opens the store, resumes every run, serves FleetService,
+// RunService, LineageService, AdminService, AccessService and the gRPC health
+// check. Every call passes the access interceptor and the gate (server/auth):
+// one rule table decides who may call what. Used by skerry-coordinator's main
+// and by `skerry local`.
 //
 // Thread safety: Start() once; every other method from any thread.
 #ifndef SKERRY_SERVER_COORDINATOR_H_
@@ -12,6 +15,7 @@
 #include "absl/time/time.h"
 #include "common/clock.h"
 #include "grpcpp/channel.h"
+#include "server/auth/access_control.h"
 
 namespace skerry::server {
 
@@ -23,6 +27,14 @@ struct CoordinatorOptions {
   absl::Duration lease = absl::Seconds(30);         // task lease without renewal
   absl::Duration max_lease_wait = absl::Seconds(10);  // long-poll cap
   Clock* clock = nullptr;                           // default: Clock::Real()
+  // When tokens are checked (server/auth/access_control.h). `skerry local`,
+  // which has no listener, uses kOff.
+  auth::AuthMode auth = auth::AuthMode::kAuto;
+  // TLS on the listening port when both are set (PEM files); with
+  // tls_client_ca, clients must present a certificate signed by that CA.
+  std::string tls_cert_file;
+  std::string tls_key_file;
+  std::string tls_client_ca_file;
 };
 
 class Coordinator {
@@ -33,6 +45,9 @@ class Coordinator {
 
   // The bound TCP port (0 without a listener).
   virtual int port() const = 0;
+  // One line each for the start log: access control, transport security.
+  virtual std::string AccessSummary() const = 0;
+  virtual std::string TransportSummary() const = 0;
   // A channel to this coordinator that does not touch the network.
   virtual std::shared_ptr<grpc::Channel> InProcessChannel() = 0;
   // Stops serving; in-flight commits finish first.
@@ -40,6 +55,14 @@ class Coordinator {
   // Blocks until Shutdown() is called (from a signal handler's thread, say).
   virtual void Wait() = 0;
 };
+
+// `skerry-coordinator --init-admin NAME`: takes the database's owner lock (so
+// no coordinator may be running on it), creates principal NAME with role admin
+// and a token, and returns them; the token is shown to nobody else. Refused
+// (FailedPrecondition) while an admin with a live token exists: that admin
+// makes further tokens with `skerry token create`.
+absl::StatusOr<auth::AccessControl::IssuedToken> InitFirstAdmin(
+    const std::string& db_path, const std::string& name);
 
 }  // namespace skerry::server
 

@@ -2,6 +2,7 @@
 
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "server/auth/access_control.h"
 
 namespace skerry::server {
 
@@ -19,6 +20,19 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
   --lease-seconds N     how long a worker holds tasks without renewing
                         (default 30)
   --max-wait-ms N       cap on a worker's long poll (default 10000)
+  --init-admin NAME     create the first admin principal NAME in the
+                        database, print its token once and exit; refused
+                        while an admin with a live token exists or a
+                        coordinator runs on the database. Turns access
+                        control on (see --auth).
+  --auth auto|on|off    when tokens are checked: auto (default) checks them
+                        once the database holds a principal (after
+                        --init-admin); on requires that; off checks nothing
+                        and everyone acts as 'local' (admin): for recovery
+  --tls-cert FILE       serve TLS with this PEM certificate chain ...
+  --tls-key FILE        ... and this PEM private key
+  --tls-client-ca FILE  require every client to present a certificate
+                        signed by this PEM CA (needs --tls-cert)
   --check DB            check DB (SQLite integrity and Skerry's invariants:
                         whole generations, resolvable parent links, counters),
                         print a report and exit: 0 ok, 1 problems found,
@@ -56,6 +70,24 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
       absl::StatusOr<std::string> v = value("--check");
       if (!v.ok()) return v.status();
       f.check_db = *v;
+    } else if (arg == "--init-admin") {
+      absl::StatusOr<std::string> v = value("--init-admin");
+      if (!v.ok()) return v.status();
+      f.init_admin = *v;
+    } else if (arg == "--auth") {
+      absl::StatusOr<std::string> v = value("--auth");
+      if (!v.ok()) return v.status();
+      absl::StatusOr<auth::AuthMode> mode = auth::ParseAuthMode(*v);
+      if (!mode.ok()) return mode.status();
+      f.options.auth = *mode;
+    } else if (arg == "--tls-cert" || arg == "--tls-key" ||
+               arg == "--tls-client-ca") {
+      absl::StatusOr<std::string> v = value(arg.c_str());
+      if (!v.ok()) return v.status();
+      std::string& field = arg == "--tls-cert"  ? f.options.tls_cert_file
+                           : arg == "--tls-key" ? f.options.tls_key_file
+                                                : f.options.tls_client_ca_file;
+      field = *v;
     } else if (arg == "--db") {
       absl::StatusOr<std::string> v = value("--db");
       if (!v.ok()) return v.status();

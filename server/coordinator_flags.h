@@ -13,6 +13,7 @@ struct CoordinatorFlags {
   CoordinatorOptions options;
   bool help = false;
   std::string check_db;  // --check DB: check and exit
+  std::string init_admin;  // --init-admin NAME: make the first admin and exit
 };
 
 // InvalidArgument names the flag and what it takes.

@@ -34,6 +34,23 @@ int main(int argc, char** argv) {
     std::fputs(report->ToString().c_str(), stdout);
     return report->ok() ? 0 : 1;
   }
+  if (!flags->init_admin.empty()) {
+    auto admin = skerry::server::InitFirstAdmin(flags->options.db_path,
+                                                flags->init_admin);
+    if (!admin.ok()) {
+      std::fprintf(stderr, "skerry-coordinator: --init-admin: %s\n",
+                   std::string(admin.status().message()).c_str());
+      return 1;
+    }
+    std::fprintf(stderr,
+                 "skerry-coordinator: admin '%s' created (token %lld); its "
+                 "token follows, shown this once. Access control is on from "
+                 "the next start.\n",
+                 flags->init_admin.c_str(),
+                 static_cast<long long>(admin->record.id));
+    std::printf("%s\n", admin->secret.c_str());
+    return 0;
+  }
   // Signals are taken by one thread with sigwait, never by a handler.
   sigset_t signals;
   sigemptyset(&signals);
@@ -50,6 +67,8 @@ int main(int argc, char** argv) {
   }
   std::printf("skerry-coordinator: listening on port %d (database %s)\n",
               (*c)->port(), flags->options.db_path.c_str());
+  std::printf("skerry-coordinator: %s\nskerry-coordinator: transport: %s\n",
+              (*c)->AccessSummary().c_str(), (*c)->TransportSummary().c_str());
   std::fflush(stdout);
   std::thread waiter([&signals, &c] {
     int sig = 0;

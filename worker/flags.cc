@@ -99,7 +99,21 @@ absl::Status Apply(absl::string_view flag, absl::string_view value,
         ParseWholeNumber(flag, value, 0, kMaxWaitMsFlag);
     if (!n.ok()) return n.status();
     out.options.wait = absl::Milliseconds(static_cast<int64_t>(*n));
+  } else if (flag == "--token") {
+    if (value.empty()) return FlagError(flag, "must not be empty");
+    out.token = std::string(value);
+  } else if (flag == "--token-file" || flag == "--tls-ca" ||
+             flag == "--tls-cert" || flag == "--tls-key" ||
+             flag == "--tls-server-name") {
+    if (value.empty()) return FlagError(flag, "must not be empty");
+    std::string& field = flag == "--token-file" ? out.token_file
+                         : flag == "--tls-ca"   ? out.security.tls_ca_file
+                         : flag == "--tls-cert" ? out.security.tls_cert_file
+                         : flag == "--tls-key"  ? out.security.tls_key_file
+                                                : out.security.tls_server_name;
+    field = std::string(value);
   } else {
+    // Never echo a value: it might be a token given under a mistyped flag.
     return absl::InvalidArgumentError(
         absl::StrCat("unknown flag \"", flag, "\" (see --help)"));
   }
@@ -156,10 +170,23 @@ absl::StatusOr<WorkerFlags> ParseWorkerFlags(int argc, char** argv) {
   return ParseWorkerFlags(args);
 }
 
+absl::StatusOr<std::shared_ptr<grpc::Channel>> ConnectFromFlags(
+    const WorkerFlags& flags, const Getenv& getenv, std::string* warning) {
+  absl::StatusOr<ResolvedToken> token =
+      ResolveToken(flags.token, flags.token_file, getenv);
+  if (!token.ok()) return token.status();
+  *warning = token->warning;
+  ClientSecurity security = flags.security;
+  security.token = token->token;
+  return OpenCoordinatorChannel(flags.coordinator, security,
+                                flags.options.max_backoff);
+}
+
 std::string WorkerUsage() {
   return absl::StrCat(
       "Usage: skerry-worker --coordinator HOST:PORT --threads N [--name NAME]\n"
-      "                     [--batch N] [--wait-ms N]\n"
+      "                     [--batch N] [--wait-ms N] [--token-file FILE]\n"
+      "                     [--tls-ca FILE [--tls-cert FILE --tls-key FILE]]\n"
       "\n"
       "A stateless evaluation worker. It joins the coordinator at HOST:PORT,\n"
       "leases batches of genome evaluations, evaluates them on N threads and\n"
@@ -190,6 +217,20 @@ std::string WorkerUsage() {
       kMaxWaitMsFlag,
       " (default: 5000);\n"
       "                           the coordinator may cap it\n"
+      "  --token TOKEN            bearer token of role worker (visible to "
+      "other\n"
+      "                           users in the process list: prefer the next)\n"
+      "  --token-file FILE        read the token from FILE's first line\n"
+      "                           (default: $SKERRY_TOKEN, else\n"
+      "                           ~/.config/skerry/token, else no token)\n"
+      "  --tls-ca FILE            TLS: the CA that signed the coordinator's\n"
+      "                           certificate (PEM)\n"
+      "  --tls-cert FILE          TLS client certificate (PEM), with "
+      "--tls-key,\n"
+      "  --tls-key FILE           for a coordinator that checks clients\n"
+      "  --tls-server-name NAME   name to expect in the coordinator's\n"
+      "                           certificate (default: the host of the "
+      "address)\n"
       "  --help                   this text\n"
       "\n"
       "SIGINT or SIGTERM stops the worker: it stops leasing, reports the "

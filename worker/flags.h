@@ -18,6 +18,8 @@
 #include <vector>
 
 #include "absl/status/statusor.h"
+#include "grpcpp/channel.h"
+#include "worker/channel.h"
 #include "worker/worker.h"
 
 namespace skerry::worker {
@@ -31,12 +33,23 @@ struct WorkerFlags {
   bool help = false;
   std::string coordinator;  // HOST:PORT
   WorkerOptions options;    // threads, name, batch, wait filled from flags
+  // TLS files and server name from flags; the token is found by
+  // ConnectFromFlags (flag, file, environment, config file).
+  ClientSecurity security;
+  std::string token;       // --token
+  std::string token_file;  // --token-file
 };
 
 // args excludes the program name. Accepts "--flag value" and "--flag=value".
 absl::StatusOr<WorkerFlags> ParseWorkerFlags(
     const std::vector<std::string>& args);
 absl::StatusOr<WorkerFlags> ParseWorkerFlags(int argc, char** argv);
+
+// The channel the flags ask for, with the token resolved as channel.h says.
+// `warning` gets a line for stderr when there is something to say (never the
+// token). Errors name the flag or the source of the token.
+absl::StatusOr<std::shared_ptr<grpc::Channel>> ConnectFromFlags(
+    const WorkerFlags& flags, const Getenv& getenv, std::string* warning);
 
 // The --help text.
 std::string WorkerUsage();

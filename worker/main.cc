@@ -94,9 +94,17 @@ int main(int argc, char** argv) {
     return 0;
   }
   SignalWatcher::BlockSignals();
-  auto channel = skerry::worker::CreateCoordinatorChannel(
-      flags->coordinator, flags->options.max_backoff);
-  skerry::worker::Worker worker(skerry::v1::FleetService::NewStub(channel),
+  std::string warning;
+  auto channel = skerry::worker::ConnectFromFlags(
+      *flags, skerry::worker::ProcessEnvironment(), &warning);
+  if (!channel.ok()) {
+    std::fprintf(stderr, "skerry-worker: %s\n",
+                 std::string(channel.status().message()).c_str());
+    return 2;
+  }
+  if (!warning.empty())
+    std::fprintf(stderr, "skerry-worker: %s\n", warning.c_str());
+  skerry::worker::Worker worker(skerry::v1::FleetService::NewStub(*channel),
                                 flags->options, skerry::Clock::Real());
   absl::Status status;
   {

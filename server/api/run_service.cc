@@ -55,9 +55,15 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
                         absl::StrCat("spec_text: at most ", kMaxSpecTextBytes,
                                      " bytes"));
   }
+  std::optional<auth::Caller> caller = access_->CallerOf(ctx);
+  const std::string owner =
+      caller.has_value() ? caller->principal : auth::kLocalPrincipal;
   absl::StatusOr<store::RunRecord> rec =
-      engine_->Submit(req->spec(), req->spec_text(), "local");
+      engine_->Submit(req->spec(), req->spec_text(), owner);
   if (!rec.ok()) return ToGrpc(rec.status());
+  access_->Note(
+      ctx, rec->id,
+      absl::StrCat("run ", rec->id, " '", rec->name, "' owned by ", owner));
   return Summarise(rec->id, resp->mutable_run());
 }
 

@@ -8,6 +8,7 @@
 #define SKERRY_SERVER_API_RUN_SERVICE_H_
 
 #include "server/api/fleet_service.h"
+#include "server/auth/access_control.h"
 #include "server/engine/engine.h"
 #include "server/store/store.h"
 #include "skerry/v1/runs.grpc.pb.h"
@@ -19,9 +20,11 @@ skerry::v1::Genome ToGenomeProto(const store::GenomeRecord& g);
 
 class RunServiceImpl final : public skerry::v1::RunService::Service {
  public:
+  // Who may call what is decided before a handler runs (server/auth);
+  // `access` names the caller (a run's owner) and takes audit notes.
   RunServiceImpl(store::Store* store, engine::Engine* engine,
-                 FleetServiceImpl* fleet)
-      : store_(store), engine_(engine), fleet_(fleet) {}
+                 FleetServiceImpl* fleet, auth::AccessControl* access)
+      : store_(store), engine_(engine), fleet_(fleet), access_(access) {}
 
   grpc::Status SubmitRun(grpc::ServerContext* ctx,
                          const skerry::v1::SubmitRunRequest* req,
@@ -55,6 +58,7 @@ class RunServiceImpl final : public skerry::v1::RunService::Service {
   store::Store* const store_;
   engine::Engine* const engine_;
   FleetServiceImpl* const fleet_;
+  auth::AccessControl* const access_;
 };
 
 }  // namespace skerry::api

@@ -75,14 +75,16 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
   }
 }
 
-grpc::Status ValidationServiceImpl::Validate(grpc::ServerContext*,
+grpc::Status ValidationServiceImpl::Validate(grpc::ServerContext* ctx,
                                              const skerry::v1::ValidateRequest* req,
                                              skerry::v1::Validation* resp) {
   absl::StatusOr<int64_t> id = ResolveGenome(store_, req->genome());
   if (!id.ok()) return ToGrpc(id.status());
-  absl::StatusOr<store::ValidationRecord> v =
-      engine_->RequestValidation(*id, /*requested_by=*/"");
+  std::optional<auth::Caller> caller = access_->CallerOf(ctx);
+  absl::StatusOr<store::ValidationRecord> v = engine_->RequestValidation(
+      *id, caller.has_value() ? caller->principal : "");
   if (!v.ok()) return ToGrpc(v.status());
+  access_->Note(ctx, v->run_id, absl::StrCat("genome ", v->genome_id));
   *resp = ToValidationProto(*v);
   return grpc::Status::OK;
 }

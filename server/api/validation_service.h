@@ -8,6 +8,7 @@
 #define SKERRY_SERVER_API_VALIDATION_SERVICE_H_
 
 #include "absl/status/statusor.h"
+#include "server/auth/access_control.h"
 #include "server/engine/engine.h"
 #include "server/store/store.h"
 #include "skerry/v1/validation.grpc.pb.h"
@@ -24,8 +25,9 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
 class ValidationServiceImpl final
     : public skerry::v1::ValidationService::Service {
  public:
-  ValidationServiceImpl(store::Store* store, engine::Engine* engine)
-      : store_(store), engine_(engine) {}
+  ValidationServiceImpl(store::Store* store, engine::Engine* engine,
+                        auth::AccessControl* access)
+      : store_(store), engine_(engine), access_(access) {}
 
   grpc::Status Validate(grpc::ServerContext* ctx,
                         const skerry::v1::ValidateRequest* req,
@@ -40,6 +42,7 @@ class ValidationServiceImpl final
  private:
   store::Store* const store_;
   engine::Engine* const engine_;
+  auth::AccessControl* const access_;  // who asks; audit details
 };
 
 }  // namespace skerry::api

@@ -49,7 +49,9 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
         "WHERE run_id = ?1",
         "INSERT INTO dst.validations SELECT * FROM main.validations "
         "WHERE run_id = ?1",
-        "INSERT INTO dst.workers SELECT * FROM main.workers"}) {
+        "INSERT INTO dst.workers SELECT * FROM main.workers",
+        // The run's audit trail goes with it; tokens and principals do not.
+        "INSERT INTO dst.audit SELECT * FROM main.audit WHERE run_id = ?1"}) {
     SKERRY_ASSIGN_OR_RETURN(Statement st, conn->Prepare(sql));
     st.BindInt(1, run_id);
     absl::Status s = st.Run();

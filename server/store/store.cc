@@ -8,6 +8,7 @@
 #include "common/genes.h"
 #include "common/sha256.h"
 #include "common/status_macros.h"
+#include "server/store/access_schema.h"
 
 namespace skerry::store {
 namespace {
@@ -127,8 +128,9 @@ CREATE INDEX validations_pending ON validations (id) WHERE state = 1;
 )sql";
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
+// Version 5 (principals, tokens, audit) lives in access_schema.h.
 constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3,
-                                       kSchemaV4};
+                                       kSchemaV4, kSchemaAccess};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 

@@ -16,12 +16,22 @@
 //   validations(id, run_id, genome_id UNIQUE, generation, reason, state, score,
 //           cases, attempts, error, requested_by, requested_ms, completed_ms,
 //           copied_from)                          (version 4)
+//   principals(name, created_ms, created_by)            version 5, with
+//   tokens(id, principal, role, hash, note, created_ms, created_by,
+//          revoked_ms, revoked_by)
+//   audit(id, at_ms, principal, role, token_id, method, run_id, peer, code,
+//         message, detail)
+//        (columns and rules in server/store/access_schema.h; methods in
+//        store_access.cc)
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
-// validations per run and pending validations (version 4).
+// validations per run and pending validations (version 4); tokens per
+// principal, audit per run and per principal (version 5).
 // A validation's `state` and `reason` are the enum numbers of
 // proto/skerry/v1/validation.proto; `generation` repeats the genome's, so
 // trimming a run past its stop generation trims its validations too.
+// `runs.owner` is the name of the principal that submitted the run ("local"
+// when access control is off).
 // `spec` is the normalised RunSpec in binary protobuf; `genes` is packed
 // little-endian float64 (common/genes.h); `state`, `origin` and `eval_state` are
 // the enum numbers of proto/skerry/v1. `attempts` counts evaluation attempts made;
@@ -42,6 +52,10 @@
 //   SetRunState       pause, resume, stop, fail
 //   FinishRun         final state, trimming of generations past the stop
 //                     generation, the champion
+//   CreateToken       a token, and its principal when new
+//   RevokeToken       a token's revocation time and who revoked it
+//   BeginAudit        an audit row, before the change it describes is made
+//   FinishAudit       the outcome of that change
 //
 // ## Pragmas
 //   journal_mode=WAL     readers never block the writer, and one writer commit is
@@ -77,6 +91,7 @@
 #include "absl/status/statusor.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/types/span.h"
+#include "server/store/access_records.h"
 #include "server/store/sqlite.h"
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
@@ -224,7 +239,7 @@ struct WorkerRecord {
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 4;
+  static constexpr int kSchemaVersion = 5;
 
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.
@@ -311,6 +326,27 @@ class Store {
   absl::StatusOr<std::vector<ValidationRecord>> ListValidations(int64_t run_id,
                                                                 int limit);
 
+  // ---- Principals, tokens, audit (store_access.cc; schema version 5) ----
+  // Creates the token's principal when it is new, then the token; fills in
+  // token->id. AlreadyExists when the hash is already stored.
+  absl::Status CreateToken(TokenRecord* token);
+  // CreateToken for the first admin: FailedPrecondition, naming them, when a
+  // live token of role admin exists already. One transaction.
+  absl::Status CreateFirstAdmin(TokenRecord* token);
+  // NotFound for no such token; FailedPrecondition when already revoked.
+  absl::StatusOr<TokenRecord> RevokeToken(int64_t token_id,
+                                          const std::string& by, int64_t now_ms);
+  // Every token (live first when asked), by id.
+  absl::StatusOr<std::vector<TokenRecord>> ListTokens();
+  absl::StatusOr<int64_t> CountPrincipals();
+  // Inserts `entry` (its code empty: not ended yet); returns its id.
+  absl::StatusOr<int64_t> BeginAudit(const AuditRecord& entry);
+  // Sets code, message, run_id and detail of the row entry.id.
+  absl::Status FinishAudit(const AuditRecord& entry);
+  absl::StatusOr<std::vector<AuditRecord>> QueryAudit(const AuditQuery& query);
+  // The run's owner; empty when there is no such run.
+  absl::StatusOr<std::optional<std::string>> RunOwner(int64_t run_id);
+
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
       : path_(std::move(path)), conn_(std::move(conn)) {}
@@ -337,6 +373,8 @@ class Store {
       int64_t genome_id) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<std::vector<ValidationRecord>> QueryValidations(
       Statement* stmt, bool with_genes) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+
+  absl::Status InsertToken(TokenRecord* token) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const std::string path_;
   absl::Mutex mu_;

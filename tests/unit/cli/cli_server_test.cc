@@ -53,7 +53,9 @@ Result Cli(const std::vector<std::string>& args) {
   Io io;
   io.out = &out;
   io.err = &err;
-  ClientFactory factory = [](const std::string& target) {
+  io.getenv = [](const char*) { return std::string(); };  // hermetic
+  ClientFactory factory = [](const std::string& target,
+                             const worker::ClientSecurity&) {
     auto channel =
         grpc::CreateChannel(target, grpc::InsecureChannelCredentials());
     return std::make_unique<RunClient>(skerry::v1::RunService::NewStub(channel),

@@ -73,10 +73,12 @@ class CommandsTest : public ::testing::Test {
     io_.out = &out_;
     io_.err = &err_;
     io_.sleep = [this](absl::Duration d) { sleeps_.push_back(d); };
+    io_.getenv = [](const char*) { return std::string(); };  // hermetic
   }
 
   int Cli(std::vector<std::string> args) {
-    ClientFactory factory = [this](const std::string& target) {
+    ClientFactory factory = [this](const std::string& target,
+                                   const worker::ClientSecurity&) {
       targets_.push_back(target);
       return std::move(client_);
     };

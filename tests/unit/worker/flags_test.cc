@@ -134,3 +134,38 @@ TEST(WorkerFlagsTest, ArgvFormSkipsTheProgramName) {
 
 }  // namespace
 }  // namespace skerry::worker
+
+namespace skerry::worker {
+namespace {
+
+TEST(WorkerFlagsTest, TokenAndTlsFlagsAreKeptForTheChannel) {
+  absl::StatusOr<WorkerFlags> f = ParseWorkerFlags(std::vector<std::string>{
+      "--coordinator", "coord.lab:7431", "--threads", "2", "--token-file",
+      "/etc/skerry/worker.token", "--tls-ca=ca.pem", "--tls-cert", "w.pem",
+      "--tls-key", "w.key", "--tls-server-name", "coord.lab"});
+  ASSERT_TRUE(f.ok()) << f.status();
+  EXPECT_EQ(f->token_file, "/etc/skerry/worker.token");
+  EXPECT_EQ(f->security.tls_ca_file, "ca.pem");
+  EXPECT_EQ(f->security.tls_cert_file, "w.pem");
+  EXPECT_EQ(f->security.tls_key_file, "w.key");
+  EXPECT_EQ(f->security.tls_server_name, "coord.lab");
+  // A client key pair without a CA cannot make a channel.
+  WorkerFlags half = *f;
+  half.security.tls_ca_file.clear();
+  half.token_file.clear();
+  std::string warning;
+  auto channel = ConnectFromFlags(
+      half, [](const char*) { return std::string(); }, &warning);
+  EXPECT_EQ(channel.status().code(), absl::StatusCode::kInvalidArgument);
+}
+
+TEST(WorkerFlagsTest, AMistypedFlagDoesNotEchoItsValue) {
+  absl::StatusOr<WorkerFlags> f = ParseWorkerFlags(std::vector<std::string>{
+      "--coordinator", "h:1", "--threads", "1", "--tokn", "skt_secretvalue"});
+  ASSERT_FALSE(f.ok());
+  EXPECT_THAT(std::string(f.status().message()),
+              ::testing::Not(::testing::HasSubstr("secretvalue")));
+}
+
+}  // namespace
+}  // namespace skerry::worker
