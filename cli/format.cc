@@ -152,6 +152,9 @@ std::string FormatRunDetails(const skerry::v1::GetRunResponse& response) {
                                       " (genome ", run.champion_id(), ")")
                        : "none yet"},
   };
+  if (run.priority() > 1) {
+    fields.push_back({"priority", absl::StrCat(run.priority())});
+  }
   if (!run.message().empty()) fields.push_back({"message", run.message()});
   if (!run.coordinator_problem().empty()) {
     fields.push_back({"problem", run.coordinator_problem()});

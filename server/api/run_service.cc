@@ -55,7 +55,7 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
                                      " bytes"));
   }
   absl::StatusOr<store::RunRecord> rec =
-      engine_->Submit(req->spec(), req->spec_text(), "local");
+      engine_->Submit(req->spec(), req->spec_text(), "local", req->priority());
   if (!rec.ok()) return ToGrpc(rec.status());
   return Summarise(rec->id, resp->mutable_run());
 }

@@ -270,6 +270,15 @@ TEST(FormatProgressLineTest, CountsDoneIslandsAndHasNoNewline) {
   EXPECT_THAT(line, Not(HasSubstr("\n")));
 }
 
+TEST(FormatRunDetailsTest, ShowsAPriorityAboveTheDefault) {
+  v1::GetRunResponse response;
+  response.mutable_run()->set_id(4);
+  response.mutable_run()->set_priority(1);
+  EXPECT_THAT(FormatRunDetails(response), Not(HasSubstr("priority")));
+  response.mutable_run()->set_priority(3);
+  EXPECT_THAT(FormatRunDetails(response), HasSubstr("priority    3\n"));
+}
+
 TEST(FormatFinalStateTest, NamesStateEvaluationsBestAndReason) {
   auto run = FromText<v1::RunSummary>(R"pb(
     id: 3
