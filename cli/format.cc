@@ -272,6 +272,10 @@ std::string FormatProgressLine(const RunSummary& run,
   if (!run.coordinator_problem().empty()) {
     absl::StrAppend(&line, "  [coordinator cannot write its database: work held]");
   }
+  if (run.dropped_updates() > 0) {
+    absl::StrAppend(&line, "  [", run.dropped_updates(),
+                    " updates dropped: read too slowly]");
+  }
   // Every island with more than one: generation and best of its last complete
   // generation ("-" before the first).
   if (run.islands_size() > 1) {

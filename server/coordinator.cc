@@ -38,8 +38,10 @@ class CoordinatorImpl final : public Coordinator {
     c->fleet_ = std::make_unique<api::FleetServiceImpl>(
         c->store_.get(), c->engine_.get(), c->queue_.get(), c->clock_,
         options.max_lease_wait);
+    api::WatchHubOptions watch;
+    watch.max_watchers = options.max_watchers;
     c->runs_ = std::make_unique<api::RunServiceImpl>(
-        c->store_.get(), c->engine_.get(), c->fleet_.get());
+        c->store_.get(), c->engine_.get(), c->fleet_.get(), watch);
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
                             lineage::LineageServiceImpl::Open(options.db_path));
 
@@ -84,6 +86,7 @@ class CoordinatorImpl final : public Coordinator {
     }
     // Any part may be missing when Make() failed half-way.
     if (queue_ != nullptr) queue_->Shutdown();  // wakes long polls
+    if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
     if (server_ != nullptr) {
       server_->Shutdown(std::chrono::system_clock::now() +
                         std::chrono::seconds(5));

@@ -1,7 +1,5 @@
 #include "server/api/run_service.h"
 
-#include <algorithm>
-
 #include "absl/strings/str_cat.h"
 #include "server/api/grpc_status.h"
 
@@ -9,11 +7,6 @@ namespace skerry::api {
 namespace {
 
 constexpr size_t kMaxSpecTextBytes = 1 << 20;
-
-bool IsEnded(skerry::v1::RunState s) {
-  return s == skerry::v1::FINISHED || s == skerry::v1::STOPPED ||
-         s == skerry::v1::FAILED_RUN;
-}
 
 int64_t RunId(uint64_t id) { return static_cast<int64_t>(id); }
 
@@ -168,33 +161,9 @@ grpc::Status RunServiceImpl::GetDigest(grpc::ServerContext* ctx,
   return grpc::Status::OK;
 }
 
-grpc::Status RunServiceImpl::WatchRun(
-    grpc::ServerContext* ctx, const skerry::v1::WatchRunRequest* req,
-    grpc::ServerWriter<skerry::v1::RunSummary>* writer) {
-  const absl::Duration interval = absl::Milliseconds(
-      std::clamp<uint32_t>(req->interval_ms() == 0 ? 500 : req->interval_ms(),
-                           50, 60000));
-  uint64_t seen = 0;
-  std::string last_sent;
-  while (!ctx->IsCancelled()) {
-    skerry::v1::RunSummary summary;
-    grpc::Status s = Summarise(RunId(req->run_id()), &summary);
-    if (!s.ok()) return s;
-    summary.set_updated_unix_ms(0);  // compare content, not timestamps
-    std::string bytes = summary.SerializeAsString();
-    if (bytes != last_sent) {
-      if (!writer->Write(summary)) return grpc::Status::OK;  // watcher left
-      last_sent = std::move(bytes);
-    }
-    if (IsEnded(summary.state())) return grpc::Status::OK;
-    const absl::Time next = absl::Now() + interval;
-    // Wait for a change, but wake at least every interval to notice a
-    // cancelled watcher.
-    seen = engine_->WaitForChange(seen, next);
-    const absl::Duration rest = next - absl::Now();
-    if (rest > absl::ZeroDuration()) absl::SleepFor(rest);
-  }
-  return grpc::Status::OK;
+grpc::ServerWriteReactor<skerry::v1::RunSummary>* RunServiceImpl::WatchRun(
+    grpc::CallbackServerContext* ctx, const skerry::v1::WatchRunRequest* req) {
+  return watch_hub_.Watch(*req);
 }
 
 }  // namespace skerry::api
