@@ -36,8 +36,8 @@ namespace {
 
 struct ShareOptions {
   std::vector<uint32_t> priorities = {1, 3};
-  int seconds = 60;      // measuring window
-  int warmup = 5;        // seconds before it
+  int seconds = 60;  // measuring window
+  int warmup = 5;    // seconds before it
   int workers = 4;
   int threads = 4;       // per worker
   int eval_ms = 10;      // sleep per evaluation
@@ -90,7 +90,8 @@ std::vector<uint64_t> Evaluations(skerry::v1::RunService::Stub& runs,
     skerry::v1::GetRunResponse got;
     grpc::Status s = runs.GetRun(&ctx, ref, &got);
     if (!s.ok()) {
-      std::fprintf(stderr, "run %llu: %s\n", static_cast<unsigned long long>(id),
+      std::fprintf(stderr, "run %llu: %s\n",
+                   static_cast<unsigned long long>(id),
                    s.error_message().c_str());
       return {};
     }
@@ -169,16 +170,15 @@ int Measure(const ShareOptions& o) {
     return 2;
   }
   const double capacity = o.workers * o.threads * 1000.0 / o.eval_ms;
-  std::printf("%.0f s measured: %llu evaluations, %.0f/s (fleet capacity %.0f/s)\n",
-              secs, static_cast<unsigned long long>(total), total / secs,
-              capacity);
+  std::printf(
+      "%.0f s measured: %llu evaluations, %.0f/s (fleet capacity %.0f/s)\n",
+      secs, static_cast<unsigned long long>(total), total / secs, capacity);
   const double first = static_cast<double>(after[0] - before[0]);
   double worst = 0;
   for (size_t i = 0; i < ids.size(); ++i) {
     const double got = static_cast<double>(after[i] - before[i]);
     const double ratio = got / first;
-    const double want =
-        static_cast<double>(o.priorities[i]) / o.priorities[0];
+    const double want = static_cast<double>(o.priorities[i]) / o.priorities[0];
     const double off = std::abs(ratio / want - 1);
     worst = std::max(worst, off);
     std::printf(
@@ -257,9 +257,9 @@ int main(int argc, char** argv) {
     } else if (a == "--dir" && has_value) {
       o.dir = argv[++i];
     } else {
-      std::fprintf(stderr,
-                   "skerry-share-bench: unknown or incomplete argument \"%s\"\n",
-                   a.c_str());
+      std::fprintf(
+          stderr, "skerry-share-bench: unknown or incomplete argument \"%s\"\n",
+          a.c_str());
       return 2;
     }
     if (!ok) return 2;

@@ -27,7 +27,10 @@ class RunServiceImpl final
  public:
   RunServiceImpl(store::Store* store, engine::Engine* engine,
                  FleetServiceImpl* fleet, WatchHubOptions watch = {})
-      : store_(store), engine_(engine), fleet_(fleet), watch_hub_(engine, watch) {}
+      : store_(store),
+        engine_(engine),
+        fleet_(fleet),
+        watch_hub_(engine, watch) {}
 
   // Ends every watch stream (UNAVAILABLE); call before the server shuts down.
   void ShutdownWatches() { watch_hub_.Shutdown(); }

@@ -87,7 +87,9 @@ grpc::ServerWriteReactor<RunSummary>* WatchHub::Watch(
   return w;
 }
 
-bool WatchHub::AwakeOrStopping() const { return stopping_ || !channels_.empty(); }
+bool WatchHub::AwakeOrStopping() const {
+  return stopping_ || !channels_.empty();
+}
 
 void WatchHub::Loop() {
   uint64_t seen = 0;  // the engine's change counter at the last refresh

@@ -108,7 +108,7 @@ class WatchHub {
   void FinishWhenIdle(Watcher& w, grpc::Status status,
                       std::vector<Action>* actions)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  static void Perform(std::vector<Action> actions) ABSL_LOCKS_EXCLUDED(mu_);
+  static void Perform(std::vector<Action> actions);  // without mu_
 
   // Reactions of a watcher (from gRPC's threads).
   void WriteDone(Watcher& w, bool ok) ABSL_LOCKS_EXCLUDED(mu_);

@@ -117,8 +117,8 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
   runs_[record.id] = std::move(run);
   queue_->SetPaused(record.id, record.state == skerry::v1::PAUSED);
   // A hand-edited priority below 1 counts as 1; above the bound, as the bound.
-  queue_->SetWeight(record.id,
-                    static_cast<uint32_t>(std::max<int32_t>(record.priority, 1)));
+  queue_->SetWeight(record.id, static_cast<uint32_t>(
+                                   std::max<int32_t>(record.priority, 1)));
   for (const Island& island : r.islands) {
     if (!island.done) QueueIsland(r, island);
   }

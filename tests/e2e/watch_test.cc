@@ -72,8 +72,8 @@ class WatchTest : public ::testing::Test {
 
   uint64_t Submit() {
     skerry::v1::SubmitRunRequest req;
-    EXPECT_TRUE(
-        google::protobuf::TextFormat::ParseFromString(kWatchedSpec, req.mutable_spec()));
+    EXPECT_TRUE(google::protobuf::TextFormat::ParseFromString(
+        kWatchedSpec, req.mutable_spec()));
     skerry::v1::SubmitRunResponse resp;
     grpc::ClientContext ctx;
     ctx.set_deadline(In(absl::Seconds(30)));
@@ -105,7 +105,8 @@ class WatchTest : public ::testing::Test {
   std::unique_ptr<testing::Process> worker_;
 };
 
-TEST_F(WatchTest, FiftyWatchersSeeTheEndAndTheOneThatNeverReadsIsToldWhatItMissed) {
+TEST_F(WatchTest,
+       FiftyWatchersSeeTheEndAndTheOneThatNeverReadsIsToldWhatItMissed) {
   Start();
   const uint64_t run_id = Submit();
   ASSERT_NE(run_id, 0u);

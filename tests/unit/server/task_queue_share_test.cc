@@ -62,8 +62,8 @@ class TaskQueueShareTest : public ::testing::Test {
       ++total[got[0].run_id()];
       const double lag = total[a] / wa - total[b] / wb;
       EXPECT_LE(std::abs(lag), 1 / wa + 1 / wb + 1e-9)
-          << "after " << i + 1 << " hand-outs: run " << a << " has "
-          << total[a] << ", run " << b << " has " << total[b];
+          << "after " << i + 1 << " hand-outs: run " << a << " has " << total[a]
+          << ", run " << b << " has " << total[b];
     }
     return total;
   }
@@ -200,9 +200,9 @@ TEST_F(TaskQueueShareTest, WeightChangeAppliesFromTheNextTask) {
 }
 
 TEST_F(TaskQueueShareTest, WeightsOutsideTheBoundsAreClamped) {
-  queue_.SetWeight(1, 0);                      // as kMinWeight
+  queue_.SetWeight(1, 0);  // as kMinWeight
   queue_.SetWeight(2, kMinWeight);
-  queue_.SetWeight(3, kMaxWeight * 50);        // as kMaxWeight
+  queue_.SetWeight(3, kMaxWeight * 50);  // as kMaxWeight
   queue_.SetWeight(4, kMaxWeight);
   AddTasks(1, 1000);
   AddTasks(2, 1000);
