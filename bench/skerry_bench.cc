@@ -9,17 +9,15 @@
 //   and what group commit buys: results committed one per synced transaction
 //   against 256 per transaction.
 // It prints all three and the ratios. Not a test: figures depend on the machine.
-#include <unistd.h>
-
 #include <cstdio>
 #include <memory>
 #include <string>
 #include <thread>
 #include <vector>
 
-#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
+#include "bench/bench_util.h"
 #include "common/evaluator.h"
 #include "common/genes.h"
 #include "common/random.h"
@@ -44,18 +42,7 @@ struct BenchOptions {
 };
 
 std::string TempDb(const BenchOptions& o, const char* name) {
-  const std::string path =
-      absl::StrCat(o.dir, "/skerry-bench-", getpid(), "-", name, ".db");
-  for (const char* suffix : {"", "-wal", "-shm"}) {
-    unlink((path + suffix).c_str());
-  }
-  return path;
-}
-
-void RemoveDb(const std::string& path) {
-  for (const char* suffix : {"", "-wal", "-shm"}) {
-    unlink((path + suffix).c_str());
-  }
+  return bench::TempDb(o.dir, name);
 }
 
 // 1. Raw inserts through the store's own schema and pragmas.
@@ -101,7 +88,7 @@ double RawInsertRate(const BenchOptions& o) {
   const double secs = absl::ToDoubleSeconds(absl::Now() - start);
   sqlite3_finalize(ins);
   sqlite3_close(db);
-  RemoveDb(path);
+  bench::RemoveDb(path);
   return o.insert_rows / secs;
 }
 
@@ -139,7 +126,7 @@ double CommitRate(const BenchOptions& o, int batch) {
   if (!updates.empty() && !(*st)->CommitResults(updates).ok()) return 0;
   const double secs = absl::ToDoubleSeconds(absl::Now() - start);
   st->reset();
-  RemoveDb(path);
+  bench::RemoveDb(path);
   return static_cast<double>(genomes.size()) / secs;
 }
 
@@ -205,7 +192,7 @@ double EndToEndRate(const BenchOptions& o, uint64_t* evaluations) {
   for (auto& w : workers) w->Stop();
   for (auto& t : threads) t.join();
   (*c)->Shutdown();
-  RemoveDb(path);
+  bench::RemoveDb(path);
   return static_cast<double>(*evaluations) / secs;
 }
 
@@ -231,15 +218,6 @@ double InProcessRate(const BenchOptions& o, uint64_t evaluations) {
   return static_cast<double>(evaluations) / secs;
 }
 
-bool ParseInt(const char* flag, const char* text, int lo, int hi, int* out) {
-  if (!absl::SimpleAtoi(text, out) || *out < lo || *out > hi) {
-    std::fprintf(stderr, "%s: expected a whole number from %d to %d, got \"%s\"\n",
-                 flag, lo, hi, text);
-    return false;
-  }
-  return true;
-}
-
 }  // namespace
 }  // namespace skerry
 
@@ -258,17 +236,17 @@ int main(int argc, char** argv) {
           "and in-process evaluation, and prints the ratios.");
       return 0;
     } else if (a == "--population" && has_value) {
-      ok = skerry::ParseInt("--population", argv[++i], 2, 1000000, &o.population);
+      ok = skerry::bench::ParseInt("--population", argv[++i], 2, 1000000, &o.population);
     } else if (a == "--generations" && has_value) {
-      ok = skerry::ParseInt("--generations", argv[++i], 1, 100000, &o.generations);
+      ok = skerry::bench::ParseInt("--generations", argv[++i], 1, 100000, &o.generations);
     } else if (a == "--genome-length" && has_value) {
-      ok = skerry::ParseInt("--genome-length", argv[++i], 1, 100000, &o.genome_length);
+      ok = skerry::bench::ParseInt("--genome-length", argv[++i], 1, 100000, &o.genome_length);
     } else if (a == "--workers" && has_value) {
-      ok = skerry::ParseInt("--workers", argv[++i], 1, 64, &o.workers);
+      ok = skerry::bench::ParseInt("--workers", argv[++i], 1, 64, &o.workers);
     } else if (a == "--threads" && has_value) {
-      ok = skerry::ParseInt("--threads", argv[++i], 1, 64, &o.threads);
+      ok = skerry::bench::ParseInt("--threads", argv[++i], 1, 64, &o.threads);
     } else if (a == "--insert-rows" && has_value) {
-      ok = skerry::ParseInt("--insert-rows", argv[++i], 1000, 100000000, &o.insert_rows);
+      ok = skerry::bench::ParseInt("--insert-rows", argv[++i], 1000, 100000000, &o.insert_rows);
     } else if (a == "--dir" && has_value) {
       o.dir = argv[++i];
     } else {

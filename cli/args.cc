@@ -23,11 +23,14 @@ std::vector<CommandSpec> MakeCommands() {
   return {
       {"submit",
        {"SPEC_FILE"},
-       {{"watch", nullptr, "watch the run after submitting it"}},
+       {{"watch", nullptr, "watch the run after submitting it"},
+        {"priority", "N",
+         "share of the workers against other runs, 1-1000 (default 1)"}},
        "submit a run spec (protobuf text format); prints the run id",
        "Reads SPEC_FILE, checks it (syntax, then every field against its "
        "allowed range) and submits it to the coordinator. Prints the new run's "
-       "id."},
+       "id. While several runs have work waiting, each gets a share of the "
+       "workers' tasks in proportion to its priority (docs/sharing.md)."},
       {"list", {}, {}, "list every run", "Lists every run, newest last."},
       {"show",
        {"RUN"},

@@ -60,10 +60,12 @@ void RunClient::SetDeadline(grpc::ClientContext* context) const {
 }
 
 absl::StatusOr<RunSummary> RunClient::Submit(const skerry::v1::RunSpec& spec,
-                                             const std::string& spec_text) {
+                                             const std::string& spec_text,
+                                             uint32_t priority) {
   skerry::v1::SubmitRunRequest request;
   *request.mutable_spec() = spec;
   request.set_spec_text(spec_text);
+  request.set_priority(priority);
   skerry::v1::SubmitRunResponse response;
   grpc::ClientContext context;
   SetDeadline(&context);

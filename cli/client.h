@@ -53,8 +53,10 @@ class RunClient {
 
   const std::string& target() const { return target_; }
 
+  // `priority` 0: the coordinator's default (1). docs/sharing.md.
   absl::StatusOr<skerry::v1::RunSummary> Submit(const skerry::v1::RunSpec& spec,
-                                                const std::string& spec_text);
+                                                const std::string& spec_text,
+                                                uint32_t priority = 0);
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> List();
   absl::StatusOr<skerry::v1::GetRunResponse> Get(uint64_t run_id);
   absl::StatusOr<skerry::v1::RunSummary> Pause(uint64_t run_id);

@@ -84,7 +84,16 @@ int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
   }
   const std::string& command = args.command;
   if (command == "submit") {
-    int code = SubmitCommand(client, args.positionals[0], io, &run_id);
+    uint32_t priority = 0;
+    if (args.Has("priority")) {
+      // The bounds of scheduler::kMinWeight and kMaxWeight.
+      absl::StatusOr<uint32_t> n =
+          ParseBoundedUint("--priority", args.Get("priority"), 1, 1000);
+      if (!n.ok()) return UsageFailure(n.status(), command, io);
+      priority = *n;
+    }
+    int code =
+        SubmitCommand(client, args.positionals[0], io, &run_id, priority);
     if (code != kExitOk || !args.Has("watch")) return code;
     return WatchCommand(client, run_id, io);
   }
@@ -189,13 +198,13 @@ absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path) {
 }
 
 int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
-                  uint64_t* run_id) {
+                  uint64_t* run_id, uint32_t priority) {
   absl::StatusOr<LoadedSpec> loaded = LoadSpecFile(spec_path);
   if (!loaded.ok()) {
     *io.err << "skerry: " << loaded.status().message() << "\n";
     return kExitUsage;
   }
-  absl::StatusOr<RunSummary> run = client.Submit(loaded->spec, loaded->text);
+  absl::StatusOr<RunSummary> run = client.Submit(loaded->spec, loaded->text, priority);
   if (!run.ok()) return ReportError(run.status(), io);
   *run_id = run->id();
   *io.out << run->id() << "\n" << std::flush;

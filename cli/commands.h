@@ -87,8 +87,9 @@ int UsageFailure(const absl::Status& status, absl::string_view command,
 int ReportError(const absl::Status& status, Io& io);
 
 // Submits the spec and prints the new run's id; stores it in *run_id.
+// `priority` 0: the coordinator's default.
 int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
-                  uint64_t* run_id);
+                  uint64_t* run_id, uint32_t priority = 0);
 // Follows the run to its end and prints the final state (exit 1 if it failed).
 int WatchCommand(RunClient& client, uint64_t run_id, Io& io);
 // Prints the champion (text, or JSON), to io.out or to `out_path`.

@@ -173,6 +173,9 @@ std::string FormatRunDetails(const skerry::v1::GetRunResponse& response) {
     fields.push_back(
         {"validation", FormatValidationState(response.champion_validation())});
   }
+  if (run.priority() > 1) {
+    fields.push_back({"priority", absl::StrCat(run.priority())});
+  }
   if (!run.message().empty()) fields.push_back({"message", run.message()});
   if (!run.coordinator_problem().empty()) {
     fields.push_back({"problem", run.coordinator_problem()});
@@ -322,6 +325,10 @@ std::string FormatProgressLine(const RunSummary& run,
   }
   if (!run.coordinator_problem().empty()) {
     absl::StrAppend(&line, "  [coordinator cannot write its database: work held]");
+  }
+  if (run.dropped_updates() > 0) {
+    absl::StrAppend(&line, "  [", run.dropped_updates(),
+                    " updates dropped: read too slowly]");
   }
   // Every island with more than one: generation and best of its last complete
   // generation ("-" before the first).

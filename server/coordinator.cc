@@ -1,6 +1,8 @@
 #include "server/coordinator.h"
 
 #include <cstdio>
+#include <map>
+#include <set>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
@@ -46,8 +48,11 @@ class CoordinatorImpl final : public Coordinator {
     c->fleet_ = std::make_unique<api::FleetServiceImpl>(
         c->store_.get(), c->engine_.get(), c->queue_.get(), c->clock_,
         options.max_lease_wait);
+    api::WatchHubOptions watch;
+    watch.max_watchers = options.max_watchers;
     c->runs_ = std::make_unique<api::RunServiceImpl>(
-        c->store_.get(), c->engine_.get(), c->fleet_.get(), c->access_.get());
+        c->store_.get(), c->engine_.get(), c->fleet_.get(), c->access_.get(),
+        watch);
     c->validations_ = std::make_unique<api::ValidationServiceImpl>(
         c->store_.get(), c->engine_.get(), c->access_.get());
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
@@ -75,6 +80,9 @@ class CoordinatorImpl final : public Coordinator {
     builder.SetMaxReceiveMessageSize(kMaxMessageBytes);
     builder.SetMaxSendMessageSize(kMaxMessageBytes);
     // Every service goes behind the gate; nothing is registered bare.
+    // Methods of grpc's callback API, by service (see auth/gate.h).
+    std::map<std::string, std::set<std::string>> callbacks = {
+        {skerry::v1::RunService::service_full_name(), {"WatchRun"}}};
     const std::pair<grpc::Service*, std::string> services[] = {
         {c->fleet_.get(), skerry::v1::FleetService::service_full_name()},
         {c->runs_.get(), skerry::v1::RunService::service_full_name()},
@@ -87,7 +95,8 @@ class CoordinatorImpl final : public Coordinator {
     for (const auto& [service, name] : services) {
       SKERRY_ASSIGN_OR_RETURN(
           std::unique_ptr<auth::GatedService> gate,
-          auth::GatedService::Wrap(service, name, c->access_.get()));
+          auth::GatedService::Wrap(service, name, c->access_.get(),
+                                   callbacks[name]));
       builder.RegisterService(gate.get());
       c->gates_.push_back(std::move(gate));
     }
@@ -128,6 +137,7 @@ class CoordinatorImpl final : public Coordinator {
     }
     // Any part may be missing when Make() failed half-way.
     if (queue_ != nullptr) queue_->Shutdown();  // wakes long polls
+    if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
     if (server_ != nullptr) {
       server_->Shutdown(std::chrono::system_clock::now() +
                         std::chrono::seconds(5));

@@ -8,6 +8,7 @@
 #ifndef SKERRY_SERVER_COORDINATOR_H_
 #define SKERRY_SERVER_COORDINATOR_H_
 
+#include <cstddef>
 #include <memory>
 #include <string>
 
@@ -26,6 +27,7 @@ struct CoordinatorOptions {
   std::string listen_address = "127.0.0.1:7431";
   absl::Duration lease = absl::Seconds(30);         // task lease without renewal
   absl::Duration max_lease_wait = absl::Seconds(10);  // long-poll cap
+  size_t max_watchers = 256;  // concurrent WatchRun streams (watch_hub.h)
   Clock* clock = nullptr;                           // default: Clock::Real()
   // When tokens are checked (server/auth/access_control.h). `skerry local`,
   // which has no listener, uses kOff.

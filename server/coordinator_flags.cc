@@ -33,6 +33,8 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
   --tls-key FILE        ... and this PEM private key
   --tls-client-ca FILE  require every client to present a certificate
                         signed by this PEM CA (needs --tls-cert)
+  --max-watchers N      concurrent `watch` streams served; one more is
+                        refused with RESOURCE_EXHAUSTED (default 256)
   --check DB            check DB (SQLite integrity and Skerry's invariants:
                         whole generations, resolvable parent links, counters),
                         print a report and exit: 0 ok, 1 problems found,
@@ -100,6 +102,14 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
       absl::StatusOr<double> v = number("--lease-seconds", 0.1, 86400);
       if (!v.ok()) return v.status();
       f.options.lease = absl::Seconds(*v);
+    } else if (arg == "--max-watchers") {
+      absl::StatusOr<double> v = number("--max-watchers", 1, 100000);
+      if (!v.ok()) return v.status();
+      if (*v != static_cast<double>(static_cast<size_t>(*v))) {
+        return absl::InvalidArgumentError(absl::StrCat(
+            "--max-watchers: expected a whole number, got ", *v));
+      }
+      f.options.max_watchers = static_cast<size_t>(*v);
     } else if (arg == "--max-wait-ms") {
       absl::StatusOr<double> v = number("--max-wait-ms", 0, 600000);
       if (!v.ok()) return v.status();

@@ -1,7 +1,5 @@
 #include "server/api/run_service.h"
 
-#include <algorithm>
-
 #include "absl/strings/str_cat.h"
 #include "server/api/grpc_status.h"
 #include "server/api/validation_service.h"
@@ -10,11 +8,6 @@ namespace skerry::api {
 namespace {
 
 constexpr size_t kMaxSpecTextBytes = 1 << 20;
-
-bool IsEnded(skerry::v1::RunState s) {
-  return s == skerry::v1::FINISHED || s == skerry::v1::STOPPED ||
-         s == skerry::v1::FAILED_RUN;
-}
 
 int64_t RunId(uint64_t id) { return static_cast<int64_t>(id); }
 
@@ -59,7 +52,7 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
   const std::string owner =
       caller.has_value() ? caller->principal : auth::kLocalPrincipal;
   absl::StatusOr<store::RunRecord> rec =
-      engine_->Submit(req->spec(), req->spec_text(), owner);
+      engine_->Submit(req->spec(), req->spec_text(), owner, req->priority());
   if (!rec.ok()) return ToGrpc(rec.status());
   access_->Note(
       ctx, rec->id,
@@ -190,33 +183,14 @@ grpc::Status RunServiceImpl::GetDigest(grpc::ServerContext* ctx,
   return grpc::Status::OK;
 }
 
-grpc::Status RunServiceImpl::WatchRun(
-    grpc::ServerContext* ctx, const skerry::v1::WatchRunRequest* req,
-    grpc::ServerWriter<skerry::v1::RunSummary>* writer) {
-  const absl::Duration interval = absl::Milliseconds(
-      std::clamp<uint32_t>(req->interval_ms() == 0 ? 500 : req->interval_ms(),
-                           50, 60000));
-  uint64_t seen = 0;
-  std::string last_sent;
-  while (!ctx->IsCancelled()) {
-    skerry::v1::RunSummary summary;
-    grpc::Status s = Summarise(RunId(req->run_id()), &summary);
-    if (!s.ok()) return s;
-    summary.set_updated_unix_ms(0);  // compare content, not timestamps
-    std::string bytes = summary.SerializeAsString();
-    if (bytes != last_sent) {
-      if (!writer->Write(summary)) return grpc::Status::OK;  // watcher left
-      last_sent = std::move(bytes);
-    }
-    if (IsEnded(summary.state())) return grpc::Status::OK;
-    const absl::Time next = absl::Now() + interval;
-    // Wait for a change, but wake at least every interval to notice a
-    // cancelled watcher.
-    seen = engine_->WaitForChange(seen, next);
-    const absl::Duration rest = next - absl::Now();
-    if (rest > absl::ZeroDuration()) absl::SleepFor(rest);
+grpc::ServerWriteReactor<skerry::v1::RunSummary>* RunServiceImpl::WatchRun(
+    grpc::CallbackServerContext* ctx, const skerry::v1::WatchRunRequest* req) {
+  // A callback method: the gate cannot refuse it for us (auth/gate.h).
+  if (access_ != nullptr) {
+    grpc::Status refusal = access_->Refusal(ctx);
+    if (!refusal.ok()) return WatchHub::Refuse(std::move(refusal));
   }
-  return grpc::Status::OK;
+  return watch_hub_.Watch(*req);
 }
 
 }  // namespace skerry::api

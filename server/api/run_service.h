@@ -2,13 +2,17 @@
 // watch). Reads come from the engine's cache and the store; every change goes
 // through the engine so it is committed before it is answered.
 //
+// WatchRun is a callback method served by the watch hub (watch_hub.h): no
+// server thread waits on a watcher.
+//
 // Thread safety: gRPC calls the handlers from many threads; the service holds no
-// state of its own.
+// state of its own beyond the watch hub.
 #ifndef SKERRY_SERVER_API_RUN_SERVICE_H_
 #define SKERRY_SERVER_API_RUN_SERVICE_H_
 
 #include "server/api/fleet_service.h"
 #include "server/auth/access_control.h"
+#include "server/api/watch_hub.h"
 #include "server/engine/engine.h"
 #include "server/store/store.h"
 #include "skerry/v1/runs.grpc.pb.h"
@@ -18,13 +22,23 @@ namespace skerry::api {
 // The user API's view of a stored genome.
 skerry::v1::Genome ToGenomeProto(const store::GenomeRecord& g);
 
-class RunServiceImpl final : public skerry::v1::RunService::Service {
+class RunServiceImpl final
+    : public skerry::v1::RunService::WithCallbackMethod_WatchRun<
+          skerry::v1::RunService::Service> {
  public:
   // Who may call what is decided before a handler runs (server/auth);
   // `access` names the caller (a run's owner) and takes audit notes.
   RunServiceImpl(store::Store* store, engine::Engine* engine,
-                 FleetServiceImpl* fleet, auth::AccessControl* access)
-      : store_(store), engine_(engine), fleet_(fleet), access_(access) {}
+                 FleetServiceImpl* fleet, auth::AccessControl* access,
+                 WatchHubOptions watch = {})
+      : store_(store),
+        engine_(engine),
+        fleet_(fleet),
+        access_(access),
+        watch_hub_(engine, watch) {}
+
+  // Ends every watch stream (UNAVAILABLE); call before the server shuts down.
+  void ShutdownWatches() { watch_hub_.Shutdown(); }
 
   grpc::Status SubmitRun(grpc::ServerContext* ctx,
                          const skerry::v1::SubmitRunRequest* req,
@@ -48,9 +62,9 @@ class RunServiceImpl final : public skerry::v1::RunService::Service {
                           skerry::v1::GetHistoryResponse* resp) override;
   grpc::Status GetDigest(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
                          skerry::v1::DigestResponse* resp) override;
-  grpc::Status WatchRun(grpc::ServerContext* ctx,
-                        const skerry::v1::WatchRunRequest* req,
-                        grpc::ServerWriter<skerry::v1::RunSummary>* writer) override;
+  grpc::ServerWriteReactor<skerry::v1::RunSummary>* WatchRun(
+      grpc::CallbackServerContext* ctx,
+      const skerry::v1::WatchRunRequest* req) override;
 
  private:
   grpc::Status Summarise(int64_t run_id, skerry::v1::RunSummary* out);
@@ -59,6 +73,7 @@ class RunServiceImpl final : public skerry::v1::RunService::Service {
   engine::Engine* const engine_;
   FleetServiceImpl* const fleet_;
   auth::AccessControl* const access_;
+  WatchHub watch_hub_;
 };
 
 }  // namespace skerry::api

@@ -221,6 +221,20 @@ std::optional<Verdict> AccessControl::Find(
   return it->second;
 }
 
+grpc::Status AccessControl::Refusal(const grpc::ServerContextBase* ctx) const {
+  std::optional<Verdict> v = Find(ctx);
+  if (!v.has_value()) {
+    return grpc::Status(grpc::StatusCode::INTERNAL,
+                        "no access verdict for this call; refused");
+  }
+  if (!v->status.ok()) return v->status;
+  if (!v->examined) {
+    return grpc::Status(grpc::StatusCode::INTERNAL,
+                        "the request was not examined; refused");
+  }
+  return grpc::Status::OK;
+}
+
 std::optional<Caller> AccessControl::CallerOf(
     const grpc::ServerContextBase* ctx) const {
   absl::MutexLock l(&mu_);

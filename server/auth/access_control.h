@@ -83,6 +83,9 @@ class AccessControl {
   void Record(const grpc::ServerContextBase* ctx, const Verdict& verdict);
   void Forget(const grpc::ServerContextBase* ctx);
   std::optional<Verdict> Find(const grpc::ServerContextBase* ctx) const;
+  // OK when the call in flight may go ahead; else the status to end it with.
+  // Fails closed: INTERNAL for a call without a verdict or not examined.
+  grpc::Status Refusal(const grpc::ServerContextBase* ctx) const;
 
   // ---- For handlers ----
   // The caller of a call in flight; nullopt when it has none (health check).

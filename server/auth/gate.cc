@@ -23,17 +23,7 @@ class GateHandler final : public MethodHandler {
       : inner_(inner), rule_(rule), access_(access) {}
 
   void RunHandler(const HandlerParameter& p) override {
-    std::optional<Verdict> v = access_->Find(p.server_context);
-    grpc::Status refusal;
-    if (!v.has_value()) {
-      refusal = grpc::Status(grpc::StatusCode::INTERNAL,
-                             "no access verdict for this call; refused");
-    } else if (!v->status.ok()) {
-      refusal = v->status;
-    } else if (!v->examined) {
-      refusal = grpc::Status(grpc::StatusCode::INTERNAL,
-                             "the request was not examined; refused");
-    }
+    const grpc::Status refusal = access_->Refusal(p.server_context);
     if (refusal.ok()) {
       inner_->RunHandler(p);
       return;
@@ -57,11 +47,28 @@ class GateHandler final : public MethodHandler {
   const AccessControl* const access_;
 };
 
+// A callback method's handler, not owned: a refusal cannot be passed to it
+// as a request status (gRPC would answer UNIMPLEMENTED), so the method itself
+// asks AccessControl::Refusal first (see gate.h).
+class CallbackForward final : public MethodHandler {
+ public:
+  explicit CallbackForward(MethodHandler* inner) : inner_(inner) {}
+  void RunHandler(const HandlerParameter& p) override { inner_->RunHandler(p); }
+  void* Deserialize(grpc_call* call, grpc_byte_buffer* req,
+                    grpc::Status* status, void** handler_data) override {
+    return inner_->Deserialize(call, req, status, handler_data);
+  }
+
+ private:
+  MethodHandler* const inner_;
+};
+
 }  // namespace
 
 absl::StatusOr<std::unique_ptr<GatedService>> GatedService::Wrap(
     grpc::Service* inner, const std::string& service_full_name,
-    const AccessControl* access) {
+    const AccessControl* access,
+    const std::set<std::string>& callback_methods) {
   const google::protobuf::ServiceDescriptor* d =
       google::protobuf::DescriptorPool::generated_pool()->FindServiceByName(
           service_full_name);
@@ -99,8 +106,14 @@ absl::StatusOr<std::unique_ptr<GatedService>> GatedService::Wrap(
                           : (m->server_streaming()
                                  ? grpc::internal::RpcMethod::SERVER_STREAMING
                                  : grpc::internal::RpcMethod::NORMAL_RPC);
-    gate->AddMethod(new grpc::internal::RpcServiceMethod(
-        name->c_str(), type, new GateHandler(handler, rule, access)));
+    if (callback_methods.count(m->name()) > 0) {
+      gate->AddMethod(new grpc::internal::RpcServiceMethod(
+          name->c_str(), type, new CallbackForward(handler)));
+      gate->MarkMethodCallback(i, new CallbackForward(handler));
+    } else {
+      gate->AddMethod(new grpc::internal::RpcServiceMethod(
+          name->c_str(), type, new GateHandler(handler, rule, access)));
+    }
     gate->names_.push_back(std::move(name));
   }
   return gate;

@@ -8,12 +8,20 @@
 // Wrap() refuses a service with a method that has no rule in rules.h, or whose
 // rule names another request type: a coordinator missing a rule does not start.
 //
+// Callback methods (grpc's callback API, named in `callback_methods`) are the
+// one exception to "handlers contain no access checks": gRPC's callback
+// handlers turn a failed request status into UNIMPLEMENTED, so the gate
+// forwards them untouched and the method's first act is to ask
+// AccessControl::Refusal and end the call with it (RunService.WatchRun does).
+// The authorisation matrix test covers them like every other method.
+//
 // Thread safety: built once before the server starts; the handlers are
 // called from gRPC's threads and keep no state of their own.
 #ifndef SKERRY_SERVER_AUTH_GATE_H_
 #define SKERRY_SERVER_AUTH_GATE_H_
 
 #include <memory>
+#include <set>
 #include <string>
 #include <vector>
 
@@ -30,7 +38,8 @@ class GatedService final : public grpc::Service {
   // the server itself) and `access` must outlive the gate.
   static absl::StatusOr<std::unique_ptr<GatedService>> Wrap(
       grpc::Service* inner, const std::string& service_full_name,
-      const AccessControl* access);
+      const AccessControl* access,
+      const std::set<std::string>& callback_methods = {});
 
  private:
   GatedService() = default;

@@ -117,6 +117,9 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
   Run& r = *run;
   runs_[record.id] = std::move(run);
   queue_->SetPaused(record.id, record.state == skerry::v1::PAUSED);
+  // A hand-edited priority below 1 counts as 1; above the bound, as the bound.
+  queue_->SetWeight(record.id, static_cast<uint32_t>(
+                                   std::max<int32_t>(record.priority, 1)));
   for (const Island& island : r.islands) {
     if (!island.done) QueueIsland(r, island);
   }
@@ -144,12 +147,20 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
 
 absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
                                                 std::string spec_text,
-                                                std::string owner) {
+                                                std::string owner,
+                                                uint32_t priority) {
+  if (priority == 0) priority = scheduler::kMinWeight;
+  if (priority < scheduler::kMinWeight || priority > scheduler::kMaxWeight) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "priority: must be from ", scheduler::kMinWeight, " to ",
+        scheduler::kMaxWeight, ", got ", priority));
+  }
   SKERRY_ASSIGN_OR_RETURN(RunSpec prepared, PrepareSpec(std::move(spec)));
   absl::MutexLock l(&mu_);
   store::RunRecord rec;
   rec.name = prepared.name();
   rec.owner = std::move(owner);
+  rec.priority = static_cast<int32_t>(priority);
   rec.spec = prepared;
   rec.spec_text = std::move(spec_text);
   rec.state = skerry::v1::RUNNING;
@@ -176,6 +187,7 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   }
   Run& r = *run;
   runs_[rec.id] = std::move(run);
+  queue_->SetWeight(rec.id, priority);
   for (const Island& island : r.islands) QueueIsland(r, island);
   NotifyChange();
   return rec;
@@ -753,6 +765,7 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
   s.set_champion_id(static_cast<uint64_t>(rec->champion_id));
   s.set_message(rec->message);
   s.set_objective(rec->spec.objective());
+  s.set_priority(static_cast<uint32_t>(rec->priority));
   if (!write_problem_.ok()) {
     s.set_coordinator_problem(absl::StrCat(
         "the coordinator cannot write its database (",

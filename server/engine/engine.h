@@ -80,10 +80,13 @@ class Engine {
   ~Engine();
 
   // Validates and stores a new run with generation 0 of every island, then
-  // queues its tasks. InvalidArgument names the bad field.
+  // queues its tasks. InvalidArgument names the bad field. `priority` is the
+  // run's share weight in the task queue, from scheduler::kMinWeight to
+  // kMaxWeight; 0 means kMinWeight (docs/sharing.md).
   absl::StatusOr<store::RunRecord> Submit(skerry::v1::RunSpec spec,
                                           std::string spec_text,
-                                          std::string owner);
+                                          std::string owner,
+                                          uint32_t priority = 0);
   absl::Status Pause(int64_t run_id);
   absl::Status Resume(int64_t run_id);
   absl::Status Stop(int64_t run_id);

@@ -9,10 +9,15 @@ namespace skerry::scheduler {
 TaskQueue::TaskQueue(Clock* clock, absl::Duration lease)
     : clock_(clock), lease_(lease) {}
 
+void TaskQueue::CatchUp(RunQueue& rq) {
+  rq.vtime = std::max(rq.vtime, virtual_now_);
+}
+
 void TaskQueue::Enqueue(Entry& e, bool front) {
   e.state = State::kQueued;
   e.holder = 0;
   RunQueue& rq = runs_[e.info.run_id];
+  if (rq.queued == 0 && !rq.paused) CatchUp(rq);
   if (front) {
     rq.ids.push_front(e.info.task_id());
   } else {
@@ -84,7 +89,14 @@ void TaskQueue::Remove(absl::Span<const int64_t> task_ids) {
 
 void TaskQueue::SetPaused(int64_t run_id, bool paused) {
   absl::MutexLock l(&mu_);
-  runs_[run_id].paused = paused;
+  RunQueue& rq = runs_[run_id];
+  if (rq.paused && !paused && rq.queued > 0) CatchUp(rq);
+  rq.paused = paused;
+}
+
+void TaskQueue::SetWeight(int64_t run_id, uint32_t weight) {
+  absl::MutexLock l(&mu_);
+  runs_[run_id].weight = std::clamp(weight, kMinWeight, kMaxWeight);
 }
 
 void TaskQueue::ExpireLeases(absl::Time now) {
@@ -139,47 +151,60 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
   }
   if (shutdown_) return out;
   const absl::Time deadline = clock_->Now() + lease_;
-  // Round-robin: take one task from each ready run in turn, starting after the
-  // run served last.
   while (out.size() < max_tasks) {
-    bool took = false;
-    auto start = runs_.upper_bound(next_run_);
-    std::vector<std::map<int64_t, RunQueue>::iterator> order;
-    for (auto it = start; it != runs_.end(); ++it) order.push_back(it);
-    for (auto it = runs_.begin(); it != start; ++it) order.push_back(it);
-    for (auto rit : order) {
-      RunQueue& rq = rit->second;
-      if (rq.paused || rq.queued == 0) continue;
-      while (!rq.ids.empty()) {
-        const int64_t id = rq.ids.front();
-        rq.ids.pop_front();
-        auto t = tasks_.find(id);
-        if (t == tasks_.end() || t->second.state != State::kQueued) continue;
-        Entry& e = t->second;
-        --rq.queued;
-        e.state = State::kLeased;
-        e.holder = worker;
-        e.deadline = deadline;
-        ++e.info.attempts;
-        deadlines_.insert({deadline, id});
-        skerry::v1::Task task;
-        task.set_task_id(static_cast<uint64_t>(id));
-        task.set_attempt(e.info.attempts);
-        task.set_run_id(static_cast<uint64_t>(e.info.run_id));
-        *task.mutable_genes() = {e.info.genes.begin(), e.info.genes.end()};
-        *task.mutable_evaluator() = *e.info.evaluator;
-        task.set_eval_seed(e.info.eval_seed);
-        task.set_kind(e.info.kind);
-        out.push_back(std::move(task));
-        took = true;
-        next_run_ = rit->first;
-        break;
-      }
-      if (out.size() >= max_tasks) break;
-    }
-    if (!took) break;
+    auto next = NextRun();
+    if (next == runs_.end()) break;
+    out.push_back(LeaseFrom(next->second, worker, deadline));
   }
   return out;
+}
+
+std::map<int64_t, TaskQueue::RunQueue>::iterator TaskQueue::NextRun() {
+  auto best = runs_.end();
+  for (auto it = runs_.begin(); it != runs_.end(); ++it) {
+    const RunQueue& rq = it->second;
+    if (rq.paused || rq.queued == 0) continue;
+    // Strictly smaller: on a tie the smaller run id (met first) wins.
+    if (best == runs_.end() || rq.vtime < best->second.vtime) best = it;
+  }
+  return best;
+}
+
+skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
+                                      absl::Time deadline) {
+  // rq.queued > 0, so a queued id is in rq.ids; stale ids are skipped.
+  Entry* e = nullptr;
+  while (e == nullptr) {
+    const int64_t id = rq.ids.front();
+    rq.ids.pop_front();
+    auto t = tasks_.find(id);
+    if (t != tasks_.end() && t->second.state == State::kQueued) e = &t->second;
+  }
+  virtual_now_ = rq.vtime;
+  rq.vtime += kVirtualUnit / rq.weight;
+  if (virtual_now_ > (uint64_t{1} << 62)) {
+    // Centuries of hand-outs: shift every clock down, keeping their order
+    // among ready runs (whose clocks are all >= virtual now).
+    for (auto& [id, other] : runs_) {
+      other.vtime -= std::min(other.vtime, virtual_now_);
+    }
+    virtual_now_ = 0;
+  }
+  --rq.queued;
+  e->state = State::kLeased;
+  e->holder = worker;
+  e->deadline = deadline;
+  ++e->info.attempts;
+  deadlines_.insert({deadline, e->info.task_id()});
+  skerry::v1::Task task;
+  task.set_task_id(static_cast<uint64_t>(e->info.task_id()));
+  task.set_attempt(e->info.attempts);
+  task.set_run_id(static_cast<uint64_t>(e->info.run_id));
+  *task.mutable_genes() = {e->info.genes.begin(), e->info.genes.end()};
+  *task.mutable_evaluator() = *e->info.evaluator;
+  task.set_eval_seed(e->info.eval_seed);
+  task.set_kind(e->info.kind);
+  return task;
 }
 
 void TaskQueue::Renew(int64_t worker, absl::Span<const uint64_t> task_ids) {

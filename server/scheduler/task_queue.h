@@ -17,8 +17,28 @@
 // the current lease (holder and attempt), so a stale worker cannot fail a genome.
 // A result for a task that is unknown, claimed or completed changes nothing.
 //
-// Runs are served round-robin, so a run with a huge population does not starve a
-// small one; a paused run's tasks stay queued but are not handed out.
+// Fair share (docs/sharing.md is the user's account): tasks are handed out by
+// start-time fair queuing across runs (Goyal, Vin & Cheng 1996, "Start-time
+// Fair Queuing", SIGCOMM '96; from memory). Every run has a weight W in
+// [kMinWeight, kMaxWeight] (its priority) and a virtual time V, the virtual
+// start of its next task. Each task is taken from the ready run with the
+// smallest V (ties: the smaller run id), and that run's V grows by
+// kVirtualUnit / W. So:
+// - Proportional: two runs that stay ready get tasks in the ratio of their
+//   weights; after any hand-out, |n_a / W_a - n_b / W_b| <= 1/W_a + 1/W_b
+//   (tasks counted since both were ready), whatever their populations. A
+//   run with a huge population cannot starve a small one.
+// - Work conserving: a run with nothing queued, paused, or not yet added
+//   takes no turn; the ready runs share everything between them.
+// - No saved-up credit: when a run becomes ready again (its queue goes from
+//   empty to non-empty, or it is resumed) its V becomes max(V, virtual now),
+//   where virtual now is the V at which the last task was handed out. Time
+//   spent idle, paused or held is not turned into a burst afterwards.
+// - A weight change applies from the next task on; V is kept.
+// A "ready" run is one that is not paused and has a queued task; while the
+// whole queue is held nothing is handed out and no V moves. The share is
+// counted in tasks, not in worker seconds: runs whose evaluations cost more
+// get more worker time per task. Cost: O(runs) per task handed out.
 //
 // Two kinds of task share the queue (fleet.proto TaskKind): evaluations of
 // genomes, keyed by genome id, and held-out validations, keyed by
@@ -53,6 +73,9 @@ namespace skerry::scheduler {
 
 // Task ids of validations (fleet.proto): kValidationTaskBase + validation id.
 constexpr int64_t kValidationTaskBase = int64_t{1} << 62;
+// The bounds of a run's weight (its priority): values outside are clamped.
+inline constexpr uint32_t kMinWeight = 1;
+inline constexpr uint32_t kMaxWeight = 1000;
 
 struct TaskInfo {
   skerry::v1::TaskKind kind = skerry::v1::TASK_EVALUATE;
@@ -88,6 +111,10 @@ class TaskQueue {
   void RemoveRun(int64_t run_id);
   void Remove(absl::Span<const int64_t> task_ids);
   void SetPaused(int64_t run_id, bool paused);
+  // The run's share weight (see the fair share above), clamped to
+  // [kMinWeight, kMaxWeight]. A run never given one has kMinWeight. May be
+  // called before the run's first task is added.
+  void SetWeight(int64_t run_id, uint32_t weight);
   // Holds every run: nothing is leased while held (the coordinator cannot
   // write its database). Renewals and claims go on.
   void SetHeld(bool held);
@@ -134,11 +161,25 @@ class TaskQueue {
     std::deque<int64_t> ids;  // may hold ids no longer queued; skipped lazily
     size_t queued = 0;        // entries of this run in state kQueued
     bool paused = false;
+    uint32_t weight = kMinWeight;
+    uint64_t vtime = 0;  // virtual start of the run's next task
   };
+  // One task costs a run of weight W kVirtualUnit / W of virtual time. The
+  // unit is divisible by every weight from 1 to 16 and by 20, 25, 50, 100,
+  // 1000 ...; for other weights the rounding is under 1.4e-6 of a task.
+  static constexpr uint64_t kVirtualUnit = 720720000;
 
   void ExpireLeases(absl::Time now) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void Enqueue(Entry& e, bool front) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   bool HasReadyLocked() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The run becomes ready: it starts no earlier than virtual now.
+  void CatchUp(RunQueue& rq) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The ready run with the smallest virtual time, or runs_.end().
+  std::map<int64_t, RunQueue>::iterator NextRun()
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Leases the front queued task of `rq` to `worker` until `deadline`.
+  skerry::v1::Task LeaseFrom(RunQueue& rq, int64_t worker, absl::Time deadline)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void DropLease(Entry& e) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   Clock* const clock_;
@@ -148,7 +189,8 @@ class TaskQueue {
   std::unordered_map<int64_t, Entry> tasks_ ABSL_GUARDED_BY(mu_);
   std::map<int64_t, RunQueue> runs_ ABSL_GUARDED_BY(mu_);
   std::set<std::pair<absl::Time, int64_t>> deadlines_ ABSL_GUARDED_BY(mu_);
-  int64_t next_run_ ABSL_GUARDED_BY(mu_) = 0;  // round-robin cursor (run id)
+  // The virtual time at which the last task was handed out.
+  uint64_t virtual_now_ ABSL_GUARDED_BY(mu_) = 0;
   bool shutdown_ ABSL_GUARDED_BY(mu_) = false;
   bool held_ ABSL_GUARDED_BY(mu_) = false;
 };

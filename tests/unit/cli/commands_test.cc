@@ -115,6 +115,33 @@ TEST_F(CommandsTest, SubmitSendsSpecAndTextAndPrintsTheRunId) {
   EXPECT_EQ(targets_, std::vector<std::string>({"127.0.0.1:7431"}));
 }
 
+TEST_F(CommandsTest, SubmitSendsThePriorityGiven) {
+  std::string path = WriteTemp(
+      "prio.spec",
+      "name: \"t\" genome_length: 2\n"
+      "evaluator { builtin { function: \"sphere\" } }\n");
+  v1::SubmitRunRequest sent;
+  v1::SubmitRunResponse response;
+  response.mutable_run()->set_id(42);
+  EXPECT_CALL(*mock_, SubmitRun(_, _, _))
+      .WillOnce(DoAll(
+          Invoke([&](grpc::ClientContext*, const v1::SubmitRunRequest& request,
+                     v1::SubmitRunResponse*) { sent = request; }),
+          SetArgPointee<2>(response), Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"submit", path, "--priority", "3"}), kExitOk) << err_.str();
+  EXPECT_EQ(sent.priority(), 3u);
+}
+
+TEST_F(CommandsTest, SubmitRefusesAPriorityOutOfRangeWithoutCalling) {
+  std::string path = WriteTemp(
+      "prio.spec",
+      "name: \"t\" genome_length: 2\n"
+      "evaluator { builtin { function: \"sphere\" } }\n");
+  // No SubmitRun call is expected (StrictMock).
+  EXPECT_EQ(Cli({"submit", path, "--priority", "1001"}), kExitUsage);
+  EXPECT_THAT(err_.str(), HasSubstr("--priority"));
+}
+
 TEST_F(CommandsTest, EveryUnaryCallCarriesADeadline) {
   absl::Time before = absl::Now();
   EXPECT_CALL(*mock_, ListRuns(_, _, _))

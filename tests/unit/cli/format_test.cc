@@ -270,6 +270,27 @@ TEST(FormatProgressLineTest, CountsDoneIslandsAndHasNoNewline) {
   EXPECT_THAT(line, Not(HasSubstr("\n")));
 }
 
+TEST(FormatProgressLineTest, SaysWhenTheCoordinatorDroppedUpdates) {
+  auto run = FromText<v1::RunSummary>(R"pb(
+    id: 3
+    state: RUNNING
+    dropped_updates: 7
+    islands { generation: 2 }
+  )pb");
+  EXPECT_EQ(FormatProgressLine(run, 0),
+            "run 3 running  gen 2  evals 0  best -  [7 updates dropped: read "
+            "too slowly]");
+}
+
+TEST(FormatRunDetailsTest, ShowsAPriorityAboveTheDefault) {
+  v1::GetRunResponse response;
+  response.mutable_run()->set_id(4);
+  response.mutable_run()->set_priority(1);
+  EXPECT_THAT(FormatRunDetails(response), Not(HasSubstr("priority")));
+  response.mutable_run()->set_priority(3);
+  EXPECT_THAT(FormatRunDetails(response), HasSubstr("priority    3\n"));
+}
+
 TEST(FormatFinalStateTest, NamesStateEvaluationsBestAndReason) {
   auto run = FromText<v1::RunSummary>(R"pb(
     id: 3

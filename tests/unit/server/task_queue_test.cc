@@ -1,6 +1,7 @@
 // Tests for the task queue (server/scheduler/task_queue.h): leases and their
-// expiry on a fake clock, renewal, the result rule of Claim, pausing, the
-// round-robin across runs, and the long poll.
+// expiry on a fake clock, renewal, the result rule of Claim, pausing, equal
+// shares across runs of equal weight, and the long poll. Weighted shares are
+// tested in task_queue_share_test.cc.
 #include "server/scheduler/task_queue.h"
 
 #include <map>
@@ -13,43 +14,19 @@
 #include "common/clock.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/unit/server/task_queue_test_util.h"
 
 namespace skerry::scheduler {
 namespace {
 
+using ::skerry::scheduler::testing::Ids;
+using ::skerry::scheduler::testing::PerRun;
+using ::skerry::scheduler::testing::Tasks;
 using ::testing::ElementsAre;
 using ::testing::IsEmpty;
 
 constexpr absl::Duration kLease = absl::Seconds(10);
 constexpr absl::Duration kNoWait = absl::ZeroDuration();
-
-std::shared_ptr<const skerry::v1::EvaluatorSpec> Sphere() {
-  auto spec = std::make_shared<skerry::v1::EvaluatorSpec>();
-  spec->mutable_builtin()->set_function("sphere");
-  return spec;
-}
-
-// `count` tasks of run `run_id` with genome ids first, first + 1, ...
-std::vector<TaskInfo> Tasks(int64_t run_id, int64_t first, int count) {
-  std::vector<TaskInfo> out;
-  for (int i = 0; i < count; ++i) {
-    TaskInfo t;
-    t.genome_id = first + i;
-    t.run_id = run_id;
-    t.slot = static_cast<uint32_t>(i);
-    t.genes = {0.5 * i, -1.0};
-    t.eval_seed = 1000 + static_cast<uint64_t>(first + i);
-    t.evaluator = Sphere();
-    out.push_back(std::move(t));
-  }
-  return out;
-}
-
-std::vector<uint64_t> Ids(const std::vector<skerry::v1::Task>& tasks) {
-  std::vector<uint64_t> ids;
-  for (const skerry::v1::Task& t : tasks) ids.push_back(t.task_id());
-  return ids;
-}
 
 class TaskQueueTest : public ::testing::Test {
  protected:
@@ -286,13 +263,12 @@ TEST_F(TaskQueueTest, PausedRunWithWaitReturnsEmptyAfterTheWait) {
   EXPECT_THAT(queue_.Lease(1, 10, absl::Milliseconds(20)), IsEmpty());
 }
 
-TEST_F(TaskQueueTest, RoundRobinServesASmallRunBesideAHugeOne) {
+TEST_F(TaskQueueTest, EqualWeightsServeASmallRunBesideAHugeOne) {
   queue_.Add(Tasks(1, 1, 100));
   queue_.Add(Tasks(2, 1000, 2));
   std::vector<skerry::v1::Task> got = queue_.Lease(1, 4, kNoWait);
   ASSERT_EQ(got.size(), 4u);
-  std::map<uint64_t, int> per_run;
-  for (const skerry::v1::Task& t : got) ++per_run[t.run_id()];
+  std::map<uint64_t, int> per_run = PerRun(got);
   EXPECT_EQ(per_run[1], 2);
   EXPECT_EQ(per_run[2], 2);
   // Once the small run is drained, the big one gets everything.
@@ -301,7 +277,7 @@ TEST_F(TaskQueueTest, RoundRobinServesASmallRunBesideAHugeOne) {
   for (const skerry::v1::Task& t : rest) EXPECT_EQ(t.run_id(), 1u);
 }
 
-TEST_F(TaskQueueTest, RoundRobinContinuesAcrossLeaseCalls) {
+TEST_F(TaskQueueTest, EqualSharesContinueAcrossLeaseCalls) {
   queue_.Add(Tasks(1, 1, 10));
   queue_.Add(Tasks(2, 100, 10));
   queue_.Add(Tasks(3, 200, 10));
