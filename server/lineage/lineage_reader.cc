@@ -19,7 +19,6 @@ namespace {
 
 using internal::kNodeColumns;
 using internal::kNodeColumnsG;
-using internal::ReadNode;
 using internal::ReadTransaction;
 using skerry::v1::LineageChunk;
 using skerry::v1::LineageNode;
@@ -35,13 +34,13 @@ uint32_t BatchSize(uint32_t asked) {
 // Ancestors of the genome ?1 no older than generation ?2, the genome itself
 // first. Each parent is found by primary key; UNION keeps one row per genome
 // (every column is a function of the id).
-std::string AncestorsSql(absl::string_view columns,
-                         absl::string_view g_columns) {
-  return absl::StrCat("WITH RECURSIVE anc(", columns, ") AS (SELECT ", columns,
-                      " FROM genomes WHERE id = ?1 UNION SELECT ", g_columns,
+std::string AncestorsSql() {
+  return absl::StrCat("WITH RECURSIVE anc(", kNodeColumns, ") AS (SELECT ",
+                      kNodeColumns, " FROM genomes WHERE id = ?1 UNION SELECT ",
+                      kNodeColumnsG,
                       " FROM anc JOIN genomes g ON g.id IN (anc.parent_a, "
                       "anc.parent_b) WHERE g.generation >= ?2) SELECT ",
-                      columns, " FROM anc");
+                      kNodeColumns, " FROM anc");
 }
 
 // Descendants of ?1 no newer than generation ?2, through the parent_a and
@@ -187,65 +186,69 @@ absl::StatusOr<LineageNode> LineageReader::Resolve(
   return internal::ResolveRef(conn.get(), ref);
 }
 
-absl::Status LineageReader::Ancestors(
-    const skerry::v1::AncestorsRequest& request,
+absl::Status LineageReader::StreamQuery(
+    const skerry::v1::GenomeRef& ref, uint32_t batch_size, const Reach& reach,
+    const std::string& sql,
     const std::function<bool(const StreamHead&)>& on_head,
     const BatchSink& on_batch) {
   SKERRY_ASSIGN_OR_RETURN(Pooled conn, Borrow());
   SKERRY_ASSIGN_OR_RETURN(ReadTransaction txn,
                           ReadTransaction::Begin(conn.get()));
   StreamHead head;
-  SKERRY_ASSIGN_OR_RETURN(head.genome,
-                          internal::ResolveRef(conn.get(), request.genome()));
+  SKERRY_ASSIGN_OR_RETURN(head.genome, internal::ResolveRef(conn.get(), ref));
   const uint32_t gen = head.genome.key().generation();
-  uint32_t oldest = std::min(request.min_generation(), gen);
-  if (request.max_depth() > 0 && request.max_depth() < gen) {
-    oldest = std::max(oldest, gen - request.max_depth());
-  }
+  SKERRY_ASSIGN_OR_RETURN(const uint32_t bound, reach(conn.get(), head.genome));
   SKERRY_ASSIGN_OR_RETURN(
       uint64_t per_gen,
       GenomesPerGeneration(conn.get(), head.genome.key().run_id()));
-  head.at_most = per_gen * (gen - oldest);
+  head.at_most = per_gen * (bound > gen ? bound - gen : gen - bound);
   if (!on_head(head)) return absl::CancelledError("stopped by the reader");
-  if (gen == oldest) return absl::OkStatus();
-  SKERRY_ASSIGN_OR_RETURN(
-      store::Statement stmt,
-      conn->Prepare(AncestorsSql(kNodeColumns, kNodeColumnsG)));
+  if (bound == gen) return absl::OkStatus();
+  SKERRY_ASSIGN_OR_RETURN(store::Statement stmt, conn->Prepare(sql));
   stmt.BindInt(1, static_cast<int64_t>(head.genome.id()));
-  stmt.BindInt(2, oldest);
-  return StreamRows(stmt, head.genome.id(), BatchSize(request.batch_size()),
-                    on_batch);
+  stmt.BindInt(2, bound);
+  return StreamRows(stmt, head.genome.id(), BatchSize(batch_size), on_batch);
+}
+
+absl::Status LineageReader::Ancestors(
+    const skerry::v1::AncestorsRequest& request,
+    const std::function<bool(const StreamHead&)>& on_head,
+    const BatchSink& on_batch) {
+  // The oldest generation asked for.
+  auto oldest = [&request](
+                    store::Connection*,
+                    const LineageNode& genome) -> absl::StatusOr<uint32_t> {
+    const uint32_t gen = genome.key().generation();
+    uint32_t bound = std::min(request.min_generation(), gen);
+    if (request.max_depth() > 0 && request.max_depth() < gen) {
+      bound = std::max(bound, gen - request.max_depth());
+    }
+    return bound;
+  };
+  return StreamQuery(request.genome(), request.batch_size(), oldest,
+                     AncestorsSql(), on_head, on_batch);
 }
 
 absl::Status LineageReader::Descendants(
     const skerry::v1::DescendantsRequest& request,
     const std::function<bool(const StreamHead&)>& on_head,
     const BatchSink& on_batch) {
-  SKERRY_ASSIGN_OR_RETURN(Pooled conn, Borrow());
-  SKERRY_ASSIGN_OR_RETURN(ReadTransaction txn,
-                          ReadTransaction::Begin(conn.get()));
-  StreamHead head;
-  SKERRY_ASSIGN_OR_RETURN(head.genome,
-                          internal::ResolveRef(conn.get(), request.genome()));
-  const uint64_t run_id = head.genome.key().run_id();
-  const uint32_t gen = head.genome.key().generation();
-  SKERRY_ASSIGN_OR_RETURN(uint32_t newest,
-                          NewestGeneration(conn.get(), run_id));
-  newest = std::max(newest, gen);
-  if (request.max_depth() > 0) {
-    newest = std::min<uint64_t>(newest, uint64_t{gen} + request.max_depth());
-  }
-  SKERRY_ASSIGN_OR_RETURN(uint64_t per_gen,
-                          GenomesPerGeneration(conn.get(), run_id));
-  head.at_most = per_gen * (newest - gen);
-  if (!on_head(head)) return absl::CancelledError("stopped by the reader");
-  if (newest == gen) return absl::OkStatus();
-  SKERRY_ASSIGN_OR_RETURN(store::Statement stmt,
-                          conn->Prepare(DescendantsSql()));
-  stmt.BindInt(1, static_cast<int64_t>(head.genome.id()));
-  stmt.BindInt(2, newest);
-  return StreamRows(stmt, head.genome.id(), BatchSize(request.batch_size()),
-                    on_batch);
+  // The newest generation asked for that the run has reached.
+  auto newest = [&request](
+                    store::Connection* conn,
+                    const LineageNode& genome) -> absl::StatusOr<uint32_t> {
+    const uint32_t gen = genome.key().generation();
+    SKERRY_ASSIGN_OR_RETURN(uint32_t bound,
+                            NewestGeneration(conn, genome.key().run_id()));
+    bound = std::max(bound, gen);
+    if (request.max_depth() > 0) {
+      bound = static_cast<uint32_t>(
+          std::min<uint64_t>(bound, uint64_t{gen} + request.max_depth()));
+    }
+    return bound;
+  };
+  return StreamQuery(request.genome(), request.batch_size(), newest,
+                     DescendantsSql(), on_head, on_batch);
 }
 
 namespace {
