@@ -92,18 +92,6 @@ class LineageReader {
   using Pooled = std::unique_ptr<store::Connection,
                                  std::function<void(store::Connection*)>>;
 
-  // The generation bound a streamed query binds as ?2 (the genome's own
-  // generation: nothing to stream).
-  using Reach = std::function<absl::StatusOr<uint32_t>(
-      store::Connection* conn, const skerry::v1::LineageNode& genome)>;
-  // What Ancestors and Descendants share: resolve the genome, send the head
-  // with its bound, then stream the rows of `sql` (?1: the genome's id).
-  absl::Status StreamQuery(
-      const skerry::v1::GenomeRef& ref, uint32_t batch_size, const Reach& reach,
-      const std::string& sql,
-      const std::function<bool(const StreamHead&)>& on_head,
-      const BatchSink& on_batch);
-
   LineageReader(std::string path, ReaderOptions options)
       : path_(std::move(path)), options_(options) {}
   absl::StatusOr<std::unique_ptr<store::Connection>> Connect();
