@@ -35,6 +35,19 @@ void Normalise(std::vector<NodeRow>& layer) {
               layer.end());
 }
 
+// The columns of Columns::kLinks, in the order ReadLink expects.
+constexpr char kLinkColumns[] = "id, island, generation, parent_a, parent_b";
+
+NodeRow ReadLink(const store::Statement& s) {
+  NodeRow r;
+  r.id = static_cast<uint64_t>(s.ColumnInt(0));
+  r.island = static_cast<uint32_t>(s.ColumnInt(1));
+  r.generation = static_cast<uint32_t>(s.ColumnInt(2));
+  r.parent_a = static_cast<uint64_t>(s.ColumnInt(3));  // NULL reads as 0
+  r.parent_b = static_cast<uint64_t>(s.ColumnInt(4));
+  return r;
+}
+
 }  // namespace
 
 void SortUnique(std::vector<uint64_t>& ids, std::vector<uint64_t>& bits) {
@@ -61,13 +74,15 @@ void SortUnique(std::vector<uint64_t>& ids, std::vector<uint64_t>& bits) {
 }
 
 absl::StatusOr<AncestryWalk> AncestryWalk::Make(store::Connection* conn,
+                                                Columns columns,
                                                 uint32_t oldest,
                                                 uint64_t limit) {
   SKERRY_ASSIGN_OR_RETURN(
       store::Statement range,
-      conn->Prepare(absl::StrCat("SELECT ", kNodeColumns,
-                                 " FROM genomes WHERE id >= ?1 AND id <= ?2")));
-  return AncestryWalk(std::move(range), oldest, limit);
+      conn->Prepare(absl::StrCat(
+          "SELECT ", columns == Columns::kNodes ? kNodeColumns : kLinkColumns,
+          " FROM genomes WHERE id >= ?1 AND id <= ?2")));
+  return AncestryWalk(std::move(range), columns, oldest, limit);
 }
 
 void AncestryWalk::Start(int side, const NodeRow& genome) {
@@ -155,7 +170,8 @@ absl::Status AncestryWalk::ReadRanges() {
       const uint64_t id = static_cast<uint64_t>(range_.ColumnInt(0));
       while (next <= last && wanted_[next] < id) ++next;  // missing ones
       if (next > last || wanted_[next] != id) continue;
-      rows_.push_back(ReadRow(range_));
+      rows_.push_back(columns_ == Columns::kNodes ? ReadRow(range_)
+                                                  : ReadLink(range_));
       ++next;
     }
     first = last + 1;

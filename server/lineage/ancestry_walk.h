@@ -45,10 +45,16 @@ class AncestryWalk {
  public:
   static constexpr int kSides = 2;
 
+  // What is read of each genome.
+  enum class Columns {
+    kNodes,  // every column of a NodeRow (kNodeColumns)
+    kLinks,  // id, island, generation and parents; the rest stays 0
+  };
+
   // A walk that reads no genome older than generation `oldest` and gives up
   // (ResourceExhausted) rather than read more than `limit` genomes.
   static absl::StatusOr<AncestryWalk> Make(
-      store::Connection* conn, uint32_t oldest,
+      store::Connection* conn, Columns columns, uint32_t oldest,
       uint64_t limit = std::numeric_limits<uint64_t>::max());
 
   // Adds a genome (already read, e.g. resolved) to a side.
@@ -73,14 +79,19 @@ class AncestryWalk {
   using Generations =
       std::map<uint32_t, std::vector<NodeRow>, std::greater<uint32_t>>;
 
-  AncestryWalk(store::Statement range, uint32_t oldest, uint64_t limit)
-      : range_(std::move(range)), oldest_(oldest), limit_(limit) {}
+  AncestryWalk(store::Statement range, Columns columns, uint32_t oldest,
+               uint64_t limit)
+      : range_(std::move(range)),
+        columns_(columns),
+        oldest_(oldest),
+        limit_(limit) {}
   absl::Status ReadWanted();
   absl::Status ReadRanges();
   absl::Status Descend(int side, uint32_t g);
   uint64_t ChildOf(int side, uint64_t parent) const;
 
   store::Statement range_;  // rows with ?1 <= id <= ?2
+  Columns columns_;
   uint32_t oldest_;
   uint64_t limit_;
   Generations sides_[kSides];

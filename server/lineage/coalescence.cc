@@ -77,8 +77,10 @@ absl::StatusOr<skerry::v1::CoalescenceResponse> LineageReader::Coalescence(
   if (request.max_depth() > 0 && request.max_depth() < start.generation) {
     oldest = start.generation - request.max_depth();
   }
-  SKERRY_ASSIGN_OR_RETURN(internal::AncestryWalk walk,
-                          internal::AncestryWalk::Make(conn.get(), oldest));
+  SKERRY_ASSIGN_OR_RETURN(
+      internal::AncestryWalk walk,
+      internal::AncestryWalk::Make(
+          conn.get(), internal::AncestryWalk::Columns::kLinks, oldest));
   for (const NodeRow& genome : start.genomes) walk.Start(0, genome);
   skerry::v1::CoalescenceResponse out;
   out.set_run_id(start.run_id);

@@ -83,13 +83,19 @@ LineageReader::CommonAncestor(const skerry::v1::GenomeRef& a,
                           internal::ResolveRef(conn.get(), b));
   SKERRY_ASSIGN_OR_RETURN(
       AncestryWalk walk,
-      AncestryWalk::Make(conn.get(), /*oldest=*/0, options_.max_visited));
+      AncestryWalk::Make(conn.get(), AncestryWalk::Columns::kLinks,
+                         /*oldest=*/0, options_.max_visited));
   walk.Start(0, internal::RowOf(out.a()));
   walk.Start(1, internal::RowOf(out.b()));
   SKERRY_ASSIGN_OR_RETURN(std::vector<NodeRow> common, Meet(walk));
   if (!common.empty()) {
     const uint32_t generation = common.front().generation;
-    for (const NodeRow& n : common) internal::ToNode(n, out.add_ancestors());
+    SKERRY_ASSIGN_OR_RETURN(internal::NodeFetcher fetch,
+                            internal::NodeFetcher::Make(conn.get()));
+    for (const NodeRow& n : common) {
+      SKERRY_ASSIGN_OR_RETURN(*out.add_ancestors(),
+                              fetch.Require(static_cast<int64_t>(n.id)));
+    }
     out.set_found(true);
     out.set_depth_a(out.a().key().generation() - generation);
     out.set_depth_b(out.b().key().generation() - generation);

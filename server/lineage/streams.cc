@@ -157,8 +157,10 @@ absl::Status LineageReader::Ancestors(
   SKERRY_ASSIGN_OR_RETURN(
       StreamHead head,
       SendHead(conn.get(), request.genome(), oldest_of, on_head, &oldest));
-  SKERRY_ASSIGN_OR_RETURN(internal::AncestryWalk walk,
-                          internal::AncestryWalk::Make(conn.get(), oldest));
+  SKERRY_ASSIGN_OR_RETURN(
+      internal::AncestryWalk walk,
+      internal::AncestryWalk::Make(
+          conn.get(), internal::AncestryWalk::Columns::kNodes, oldest));
   walk.Start(0, internal::RowOf(head.genome));
   ChunkStream out(request.batch_size(), on_batch);
   // Newest generation first; the genome's own is not in the answer.
