@@ -8,7 +8,9 @@
 //       [--population N] [--repeat N] [--reuse] [--keep]
 //       [--coordinator PATH-TO-skerry-coordinator]
 //
-// Figures go to stdout; nothing here is asserted (see docs/performance.md).
+// Figures go to stdout, each as the median and range of --repeat timed runs
+// after a warm-up, with the load average at the start and the end; nothing
+// here is asserted (see docs/performance.md).
 #include <signal.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -21,6 +23,7 @@
 #include <fstream>
 #include <functional>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include "absl/strings/numbers.h"
@@ -228,9 +231,13 @@ void Build(const Flags& f) {
               std::filesystem::file_size(f.db) / 1e9);
 }
 
-// Median of `repeat` timed runs of `fn` (after one warm-up run), in ms.
-double MedianMs(uint32_t repeat, const std::function<uint64_t()>& fn,
-                uint64_t* answer) {
+// Wall-clock times of `repeat` runs after one warm-up run, in ms.
+struct Timing {
+  double min = 0, median = 0, max = 0;
+};
+
+Timing TimeMs(uint32_t repeat, const std::function<uint64_t()>& fn,
+              uint64_t* answer) {
   *answer = fn();
   std::vector<double> ms;
   for (uint32_t r = 0; r < repeat; ++r) {
@@ -239,7 +246,15 @@ double MedianMs(uint32_t repeat, const std::function<uint64_t()>& fn,
     ms.push_back(Seconds(t) * 1e3);
   }
   std::sort(ms.begin(), ms.end());
-  return ms[ms.size() / 2];
+  return Timing{ms.front(), ms[ms.size() / 2], ms.back()};
+}
+
+// The 1-minute load average, to say how busy the machine was.
+std::string LoadAverage() {
+  std::ifstream in("/proc/loadavg");
+  std::string one;
+  in >> one;
+  return one.empty() ? "unknown" : one;
 }
 
 GenomeRef Key(uint32_t island, uint32_t gen, uint32_t slot) {
@@ -251,9 +266,17 @@ GenomeRef Key(uint32_t island, uint32_t gen, uint32_t slot) {
   return r;
 }
 
-void Report(const char* what, double ms, uint64_t answer, const char* unit) {
-  std::printf("%-46s %10.2f ms  (%llu %s)\n", what, ms,
-              static_cast<unsigned long long>(answer), unit);
+void Report(const std::string& what, const Timing& t, uint64_t answer,
+            const char* unit) {
+  std::printf("%-46s %10.2f ms  [%.2f-%.2f]  (%llu %s)\n", what.c_str(),
+              t.median, t.min, t.max, static_cast<unsigned long long>(answer),
+              unit);
+}
+
+void Ratio(const Timing& t, const Timing& wide, const Timing& bare) {
+  std::printf("%-46s %10.2f x  (%.2f x the ids-only query)\n",
+              "  ratio to the all-columns bare query", t.median / wide.median,
+              t.median / bare.median);
 }
 
 // The bare query: the smallest recursive CTE that finds the same ancestors.
@@ -296,35 +319,41 @@ uint64_t BareWideAncestors(skerry::store::Connection* conn, int64_t id,
   return n - 1;
 }
 
-uint64_t StreamCount(skerry::lineage::LineageReader& reader,
-                     const skerry::v1::AncestorsRequest& req) {
+// Streams an answer through the reader, counting nodes.
+template <typename Request>
+uint64_t StreamCount(
+    const Request& req,
+    absl::Status (skerry::lineage::LineageReader::*query)(
+        const Request&,
+        const std::function<
+            bool(const skerry::lineage::LineageReader::StreamHead&)>&,
+        const skerry::lineage::LineageReader::BatchSink&),
+    skerry::lineage::LineageReader& reader) {
   uint64_t n = 0;
-  absl::Status s = reader.Ancestors(
+  absl::Status s = (reader.*query)(
       req, [](const auto&) { return true; },
       [&](skerry::v1::LineageChunk& b) {
         n += b.nodes_size();
         return true;
       });
-  if (!s.ok()) Die(s, "ancestors");
+  if (!s.ok()) Die(s, "stream");
   return n;
 }
 
-template <typename Request>
-uint64_t GrpcStreamCount(skerry::v1::LineageService::Stub& stub,
-                         const Request& req, bool ancestors) {
+uint64_t GrpcAncestorsCount(skerry::v1::LineageService::Stub& stub,
+                            const skerry::v1::AncestorsRequest& req) {
   grpc::ClientContext ctx;
   skerry::v1::LineageChunk chunk;
   uint64_t n = 0;
-  if (ancestors) {
-    auto r = stub.StreamAncestors(&ctx, req);
-    while (r->Read(&chunk)) n += chunk.nodes_size();
-    if (!r->Finish().ok()) Die(absl::InternalError("stream"), "grpc");
-  }
+  auto r = stub.StreamAncestors(&ctx, req);
+  while (r->Read(&chunk)) n += chunk.nodes_size();
+  if (!r->Finish().ok()) Die(absl::InternalError("stream"), "grpc");
   return n;
 }
 
 void Queries(const Flags& f, skerry::v1::LineageService::Stub* stub) {
-  auto reader = skerry::lineage::LineageReader::Open(f.db);
+  using skerry::lineage::LineageReader;
+  auto reader = LineageReader::Open(f.db);
   if (!reader.ok()) Die(reader.status(), "reader");
   auto bare = skerry::store::Connection::Open(f.db, SQLITE_OPEN_READONLY);
   if (!bare.ok()) Die(bare.status(), "bare connection");
@@ -333,49 +362,41 @@ void Queries(const Flags& f, skerry::v1::LineageService::Stub* stub) {
   const uint32_t depth = std::min<uint32_t>(100, last);
   auto late = (*reader)->Resolve(Key(0, last, 17));
   if (!late.ok()) Die(late.status(), "late genome");
+  const int64_t late_id = static_cast<int64_t>(late->id());
   uint64_t n = 0;
 
-  double bare_ms = MedianMs(
+  const Timing bare_ms = TimeMs(
       f.repeat,
-      [&] {
-        return BareAncestors(bare->get(), static_cast<int64_t>(late->id()),
-                             last - depth);
-      },
-      &n);
-  Report(absl::StrCat("bare recursive SQL, ids only, depth ", depth).c_str(),
-         bare_ms, n, "ancestors");
-  double wide_ms = MedianMs(
+      [&] { return BareAncestors(bare->get(), late_id, last - depth); }, &n);
+  Report(absl::StrCat("bare recursive SQL, ids only, depth ", depth), bare_ms,
+         n, "ancestors");
+  const Timing wide_ms = TimeMs(
       f.repeat,
-      [&] {
-        return BareWideAncestors(bare->get(), static_cast<int64_t>(late->id()),
-                                 last - depth);
-      },
+      [&] { return BareWideAncestors(bare->get(), late_id, last - depth); },
       &n);
-  Report(absl::StrCat("bare recursive SQL, all columns, depth ", depth).c_str(),
+  Report(absl::StrCat("bare recursive SQL, all columns, depth ", depth),
          wide_ms, n, "ancestors");
   skerry::v1::AncestorsRequest req;
   *req.mutable_genome() = Key(0, last, 17);
   req.set_max_depth(depth);
-  double lib_ms = MedianMs(
-      f.repeat, [&] { return StreamCount(**reader, req); }, &n);
-  Report(absl::StrCat("ancestors depth ", depth, " (LineageReader)").c_str(),
-         lib_ms, n, "ancestors");
-  std::printf("%-46s %10.2f x  (%.2f x the ids-only query)\n",
-              "  ratio to the all-columns bare query", lib_ms / wide_ms,
-              lib_ms / bare_ms);
+  const Timing lib_ms = TimeMs(
+      f.repeat,
+      [&] { return StreamCount(req, &LineageReader::Ancestors, **reader); },
+      &n);
+  Report(absl::StrCat("ancestors depth ", depth, " (LineageReader)"), lib_ms, n,
+         "ancestors");
+  Ratio(lib_ms, wide_ms, bare_ms);
   if (stub != nullptr) {
-    double rpc_ms = MedianMs(
-        f.repeat, [&] { return GrpcStreamCount(*stub, req, true); }, &n);
-    Report(absl::StrCat("ancestors depth ", depth, " (gRPC stream)").c_str(),
-           rpc_ms, n, "ancestors");
-    std::printf("%-46s %10.2f x  (%.2f x the ids-only query)\n",
-                "  ratio to the all-columns bare query", rpc_ms / wide_ms,
-                rpc_ms / bare_ms);
+    const Timing rpc_ms = TimeMs(
+        f.repeat, [&] { return GrpcAncestorsCount(*stub, req); }, &n);
+    Report(absl::StrCat("ancestors depth ", depth, " (gRPC stream)"), rpc_ms, n,
+           "ancestors");
+    Ratio(rpc_ms, wide_ms, bare_ms);
   }
 
   GenomeRef champion;
   champion.set_champion_of_run(1);
-  double line_ms = MedianMs(
+  const Timing line_ms = TimeMs(
       f.repeat,
       [&] {
         auto line = (*reader)->LineOfDescent(champion);
@@ -384,7 +405,7 @@ void Queries(const Flags& f, skerry::v1::LineageService::Stub* stub) {
       },
       &n);
   Report("line of descent of the champion", line_ms, n, "steps");
-  double attr_ms = MedianMs(
+  const Timing attr_ms = TimeMs(
       f.repeat,
       [&] {
         auto a = (*reader)->Attribution(champion);
@@ -397,34 +418,41 @@ void Queries(const Flags& f, skerry::v1::LineageService::Stub* stub) {
   skerry::v1::DescendantsRequest dreq;
   *dreq.mutable_genome() = Key(0, last / 2, 0);
   dreq.set_max_depth(10);
-  double desc_ms = MedianMs(
+  const Timing desc_ms = TimeMs(
+      f.repeat,
+      [&] { return StreamCount(dreq, &LineageReader::Descendants, **reader); },
+      &n);
+  Report("descendants depth 10 (slot 0 of a mid generation)", desc_ms, n,
+         "descendants");
+
+  skerry::v1::CoalescenceRequest creq;
+  *creq.mutable_genome() = Key(0, last, 17);
+  creq.set_max_depth(depth);
+  const Timing coal_ms = TimeMs(
       f.repeat,
       [&] {
-        uint64_t count = 0;
-        absl::Status s = (*reader)->Descendants(
-            dreq, [](const auto&) { return true; },
-            [&](skerry::v1::LineageChunk& b) {
-              count += b.nodes_size();
-              return true;
-            });
-        if (!s.ok()) Die(s, "descendants");
-        return count;
+        auto c = (*reader)->Coalescence(creq);
+        if (!c.ok()) Die(c.status(), "coalescence");
+        return static_cast<uint64_t>(c->levels_size());
       },
       &n);
-  Report("descendants depth 10 (best of a mid generation)", desc_ms, n,
-         "descendants");
+  Report(absl::StrCat("coalescence depth ", depth, " (the same genome)"),
+         coal_ms, n, "levels");
 
   struct Pair {
     const char* what;
     GenomeRef a, b;
   };
   const uint32_t other = f.islands / 2;
+  const uint32_t earlier = last >= 100 ? last - 100 : 0;
   for (const Pair& p : {Pair{"common ancestor, same island", Key(0, last, 10),
                              Key(0, last, 20)},
                         Pair{"common ancestor, islands 0 and N/2",
-                             Key(0, last, 10), Key(other, last, 20)}}) {
+                             Key(0, last, 10), Key(other, last, 20)},
+                        Pair{"common ancestor, 0 and N/2, 100 gen apart",
+                             Key(0, last, 10), Key(other, earlier, 20)}}) {
     uint32_t back = 0;
-    double ms = MedianMs(
+    const Timing ms = TimeMs(
         f.repeat,
         [&] {
           auto c = (*reader)->CommonAncestor(p.a, p.b);
@@ -433,7 +461,7 @@ void Queries(const Flags& f, skerry::v1::LineageService::Stub* stub) {
           return c->visited();
         },
         &n);
-    Report(absl::StrCat(p.what, " (", back, " gen back)").c_str(), ms, n,
+    Report(absl::StrCat(p.what, " (", back, " gen back)"), ms, n,
            "genomes read");
   }
 }
@@ -494,12 +522,16 @@ int main(int argc, char** argv) {
   Flags f;
   if (!ParseFlags(argc, argv, &f)) return 2;
   if (!f.reuse || !std::filesystem::exists(f.db)) Build(f);
-  std::printf("queries (median of %u after a warm-up):\n", f.repeat);
+  std::printf(
+      "queries (median [min-max] of %u after a warm-up; load average %s):\n",
+      f.repeat, LoadAverage().c_str());
   if (f.coordinator.empty()) {
     Queries(f, nullptr);
   } else {
     CoordinatorMemory(f);
   }
+  std::printf("load average at the end: %s (%u cores)\n", LoadAverage().c_str(),
+              std::thread::hardware_concurrency());
   if (!f.keep) {
     std::filesystem::remove(f.db);
     std::filesystem::remove(f.db + "-wal");
