@@ -55,8 +55,6 @@ using LineageStubFactory =
 // terminal).
 using Confirm = std::function<std::optional<bool>(const std::string& question)>;
 
-// A gRPC channel to `target`; the default in RunCli.
-LineageStubFactory NetworkLineageStubs();
 // Asks on the terminal (stderr, reading stdin) when stdin is one; else
 // std::nullopt.
 Confirm TerminalConfirm();

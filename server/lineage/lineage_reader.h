@@ -1,13 +1,14 @@
 // LineageReader: the lineage queries (proto/skerry/v1/lineage.proto) over the
 // store's genomes table, on read-only SQLite connections of its own.
 //
-// Ancestry walks parent links with recursive CTEs that look each parent up by
-// its primary key, and descendants use the partial indexes on parent_a and
-// parent_b (schema version 2), so a query costs in proportion to its answer,
-// not to the table. UNION (not UNION ALL) drops the second arrival at a genome
-// reached twice (a diamond). Depth is counted in generations (see
-// lineage.proto); every bound is applied inside the recursion, so nothing past
-// it is read.
+// Ancestors, coalescence and the common ancestor walk the ancestry one
+// generation at a time, reading each generation's parents as rowid ranges
+// (ancestry_walk.h); descendants are a recursive CTE over the partial indexes
+// on parent_a and parent_b (schema version 2); the line of descent looks each
+// parent up by primary key. So a query costs in proportion to its answer, not
+// to the table. A genome reached twice (a diamond) is listed once. Depth is
+// counted in generations (see lineage.proto); every bound is applied while
+// walking, so nothing past it is expanded.
 //
 // Readers never block the coordinator's writer: the database is in WAL mode and
 // each query runs in one read transaction on its own connection (a long stream
@@ -65,7 +66,7 @@ class LineageReader {
     uint64_t at_most = 0;
   };
   // Calls `on_head` once, then `on_batch` with batches of up to `batch_size`
-  // ancestors, newest generation first.
+  // ancestors, newest generation first and by id within a generation.
   absl::Status Ancestors(const skerry::v1::AncestorsRequest& request,
                          const std::function<bool(const StreamHead&)>& on_head,
                          const BatchSink& on_batch);

@@ -11,6 +11,58 @@ namespace skerry::lineage::internal {
 using skerry::v1::GenomeRef;
 using skerry::v1::LineageNode;
 
+NodeRow ReadRow(const store::Statement& s, int first) {
+  NodeRow r;
+  r.id = static_cast<uint64_t>(s.ColumnInt(first));
+  r.run_id = static_cast<uint64_t>(s.ColumnInt(first + 1));
+  r.island = static_cast<uint32_t>(s.ColumnInt(first + 2));
+  r.generation = static_cast<uint32_t>(s.ColumnInt(first + 3));
+  r.slot = static_cast<uint32_t>(s.ColumnInt(first + 4));
+  r.origin = static_cast<skerry::v1::Origin>(s.ColumnInt(first + 5));
+  // A NULL reads as 0, which is what "none" is.
+  r.parent_a = static_cast<uint64_t>(s.ColumnInt(first + 6));
+  r.parent_b = static_cast<uint64_t>(s.ColumnInt(first + 7));
+  r.score = s.ColumnDouble(first + 8);
+  r.state = static_cast<skerry::v1::EvalState>(s.ColumnInt(first + 9));
+  return r;
+}
+
+NodeRow RowOf(const LineageNode& n) {
+  NodeRow r;
+  r.id = n.id();
+  r.run_id = n.key().run_id();
+  r.island = n.key().island();
+  r.generation = n.key().generation();
+  r.slot = n.key().slot();
+  r.origin = n.origin();
+  r.parent_a = n.parent_a();
+  r.parent_b = n.parent_b();
+  r.score = n.score();
+  r.state = n.state();
+  return r;
+}
+
+void ToNode(const NodeRow& r, LineageNode* out) {
+  LineageNode& n = *out;
+  n.set_id(r.id);
+  skerry::v1::GenomeKey* key = n.mutable_key();
+  key->set_run_id(r.run_id);
+  key->set_island(r.island);
+  key->set_generation(r.generation);
+  key->set_slot(r.slot);
+  n.set_origin(r.origin);
+  n.set_parent_a(r.parent_a);
+  n.set_parent_b(r.parent_b);
+  n.set_score(r.score);
+  n.set_state(r.state);
+}
+
+LineageNode ToNode(const NodeRow& r) {
+  LineageNode n;
+  ToNode(r, &n);
+  return n;
+}
+
 LineageNode ReadNode(const store::Statement& s, int first) {
   LineageNode n;
   ReadNodeInto(s, &n, first);
@@ -18,23 +70,14 @@ LineageNode ReadNode(const store::Statement& s, int first) {
 }
 
 void ReadNodeInto(const store::Statement& s, LineageNode* out, int first) {
-  LineageNode& n = *out;
-  n.set_id(static_cast<uint64_t>(s.ColumnInt(first)));
-  n.mutable_key()->set_run_id(static_cast<uint64_t>(s.ColumnInt(first + 1)));
-  n.mutable_key()->set_island(static_cast<uint32_t>(s.ColumnInt(first + 2)));
-  n.mutable_key()->set_generation(
-      static_cast<uint32_t>(s.ColumnInt(first + 3)));
-  n.mutable_key()->set_slot(static_cast<uint32_t>(s.ColumnInt(first + 4)));
-  n.set_origin(static_cast<skerry::v1::Origin>(s.ColumnInt(first + 5)));
-  if (!s.ColumnIsNull(first + 6)) n.set_parent_a(s.ColumnInt(first + 6));
-  if (!s.ColumnIsNull(first + 7)) n.set_parent_b(s.ColumnInt(first + 7));
-  if (!s.ColumnIsNull(first + 8)) n.set_score(s.ColumnDouble(first + 8));
-  n.set_state(static_cast<skerry::v1::EvalState>(s.ColumnInt(first + 9)));
+  ToNode(ReadRow(s, first), out);
 }
 
-std::string NodeName(const LineageNode& n) {
-  return absl::StrCat("#", n.id(), " ", n.key().run_id(), "/", n.key().island(),
-                      "/", n.key().generation(), "/", n.key().slot());
+std::string NodeName(const LineageNode& n) { return NodeName(RowOf(n)); }
+
+std::string NodeName(const NodeRow& n) {
+  return absl::StrCat("#", n.id, " ", n.run_id, "/", n.island, "/",
+                      n.generation, "/", n.slot);
 }
 
 absl::StatusOr<NodeFetcher> NodeFetcher::Make(store::Connection* conn) {
@@ -45,24 +88,29 @@ absl::StatusOr<NodeFetcher> NodeFetcher::Make(store::Connection* conn) {
   return NodeFetcher(std::move(stmt));
 }
 
-absl::StatusOr<std::optional<LineageNode>> NodeFetcher::Get(int64_t id) {
+absl::StatusOr<std::optional<NodeRow>> NodeFetcher::GetRow(int64_t id) {
   stmt_.Reset();
   stmt_.BindInt(1, id);
   SKERRY_ASSIGN_OR_RETURN(bool row, stmt_.Step());
-  if (!row) return std::optional<LineageNode>();
-  return std::optional<LineageNode>(ReadNode(stmt_));
+  if (!row) return std::optional<NodeRow>();
+  return std::optional<NodeRow>(ReadRow(stmt_));
 }
 
-absl::StatusOr<LineageNode> NodeFetcher::Require(int64_t id,
-                                                 const LineageNode* child) {
-  SKERRY_ASSIGN_OR_RETURN(std::optional<LineageNode> node, Get(id));
-  if (node.has_value()) return *std::move(node);
+absl::StatusOr<NodeRow> NodeFetcher::RequireRow(int64_t id,
+                                                const NodeRow* child) {
+  SKERRY_ASSIGN_OR_RETURN(std::optional<NodeRow> row, GetRow(id));
+  if (row.has_value()) return *row;
   if (child != nullptr) {
     return absl::DataLossError(absl::StrCat("genome ", NodeName(*child),
                                             ": parent #", id,
                                             " is not in the database"));
   }
   return absl::NotFoundError(absl::StrCat("no genome with id ", id));
+}
+
+absl::StatusOr<LineageNode> NodeFetcher::Require(int64_t id) {
+  SKERRY_ASSIGN_OR_RETURN(NodeRow row, RequireRow(id));
+  return ToNode(row);
 }
 
 namespace {

@@ -26,6 +26,30 @@ inline constexpr char kNodeColumnsG[] =
     "g.id, g.run_id, g.island, g.generation, g.slot, g.origin, g.parent_a, "
     "g.parent_b, g.score, g.eval_state";
 
+// A row of kNodeColumns as plain values: what a query looks at before (or
+// instead of) making a LineageNode of it, at no allocation.
+struct NodeRow {
+  uint64_t id = 0;
+  uint64_t run_id = 0;
+  uint32_t island = 0;
+  uint32_t generation = 0;
+  uint32_t slot = 0;
+  skerry::v1::Origin origin = skerry::v1::ORIGIN_UNSPECIFIED;
+  uint64_t parent_a = 0;  // 0: none
+  uint64_t parent_b = 0;
+  double score = 0;  // meaningful when scored()
+  skerry::v1::EvalState state = skerry::v1::EVAL_STATE_UNSPECIFIED;
+
+  // True when the genome has a usable score (EVALUATED).
+  bool scored() const { return state == skerry::v1::EVALUATED; }
+};
+
+NodeRow ReadRow(const store::Statement& s, int first = 0);
+NodeRow RowOf(const skerry::v1::LineageNode& n);
+// Fills an existing (cleared) node, e.g. one on an arena.
+void ToNode(const NodeRow& row, skerry::v1::LineageNode* n);
+skerry::v1::LineageNode ToNode(const NodeRow& row);
+
 skerry::v1::LineageNode ReadNode(const store::Statement& s, int first = 0);
 // The same into an existing (cleared) node, e.g. one on an arena.
 void ReadNodeInto(const store::Statement& s, skerry::v1::LineageNode* n,
@@ -33,21 +57,19 @@ void ReadNodeInto(const store::Statement& s, skerry::v1::LineageNode* n,
 
 // "#ID R/I/G/S": how messages name a genome.
 std::string NodeName(const skerry::v1::LineageNode& n);
-
-// True when the node has a usable score (EVALUATED).
-inline bool Scored(const skerry::v1::LineageNode& n) {
-  return n.state() == skerry::v1::EVALUATED;
-}
+std::string NodeName(const NodeRow& n);
 
 // Looks genomes up by primary key with one prepared statement.
 class NodeFetcher {
  public:
   static absl::StatusOr<NodeFetcher> Make(store::Connection* conn);
   // std::nullopt when no genome has that id.
-  absl::StatusOr<std::optional<skerry::v1::LineageNode>> Get(int64_t id);
+  absl::StatusOr<std::optional<NodeRow>> GetRow(int64_t id);
   // NotFound (DataLoss when `child` is given: a dangling parent link).
-  absl::StatusOr<skerry::v1::LineageNode> Require(
-      int64_t id, const skerry::v1::LineageNode* child = nullptr);
+  absl::StatusOr<NodeRow> RequireRow(int64_t id,
+                                     const NodeRow* child = nullptr);
+  // NotFound when no genome has that id.
+  absl::StatusOr<skerry::v1::LineageNode> Require(int64_t id);
 
  private:
   explicit NodeFetcher(store::Statement stmt) : stmt_(std::move(stmt)) {}

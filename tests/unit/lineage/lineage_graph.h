@@ -32,6 +32,7 @@
 #include "gtest/gtest.h"
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
+#include "skerry/v1/lineage.pb.h"
 #include "tests/unit/server/temp_dir.h"
 
 namespace skerry::testing {
@@ -82,6 +83,35 @@ inline std::vector<Row> GraphRows() {
   };
 }
 
+// Inserts genome rows of run 1 into the database at `path`.
+inline void InsertRows(const std::string& path, const std::vector<Row>& rows) {
+  auto conn = store::Connection::Open(path, SQLITE_OPEN_READWRITE);
+  ASSERT_TRUE(conn.ok()) << conn.status();
+  auto ins = (*conn)->Prepare(
+      "INSERT INTO genomes (id, run_id, island, generation, slot, origin, "
+      "parent_a, parent_b, genes, score, eval_state) VALUES "
+      "(?1, 1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)");
+  ASSERT_TRUE(ins.ok()) << ins.status();
+  for (const Row& r : rows) {
+    ins->BindInt(1, r.id);
+    ins->BindInt(2, r.island);
+    ins->BindInt(3, r.generation);
+    ins->BindInt(4, r.slot);
+    ins->BindInt(5, r.origin);
+    ins->BindIdOrNull(6, r.parent_a);
+    ins->BindIdOrNull(7, r.parent_b);
+    ins->BindBlob(8, std::string(8, '\0'));  // one gene, 0.0
+    if (r.score.has_value()) {
+      ins->BindDouble(9, *r.score);
+      ins->BindInt(10, skerry::v1::EVALUATED);
+    } else {
+      ins->BindNull(9);
+      ins->BindInt(10, skerry::v1::FAILED);
+    }
+    ASSERT_TRUE(ins->Run().ok()) << "genome " << r.id;
+  }
+}
+
 // Writes the graph as run 1 of a new database at `path`.
 inline void WriteGraph(const std::string& path,
                        skerry::v1::Objective objective = skerry::v1::MINIMIZE) {
@@ -101,36 +131,29 @@ inline void WriteGraph(const std::string& path,
     ASSERT_TRUE((*s)->CreateRun(&run, &none).ok());
     ASSERT_EQ(run.id, 1);
   }
+  InsertRows(path, GraphRows());
   auto conn = store::Connection::Open(path, SQLITE_OPEN_READWRITE);
   ASSERT_TRUE(conn.ok()) << conn.status();
-  auto ins = (*conn)->Prepare(
-      "INSERT INTO genomes (id, run_id, island, generation, slot, origin, "
-      "parent_a, parent_b, genes, score, eval_state) VALUES "
-      "(?1, 1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)");
-  ASSERT_TRUE(ins.ok()) << ins.status();
-  for (const Row& r : GraphRows()) {
-    ins->BindInt(1, r.id);
-    ins->BindInt(2, r.island);
-    ins->BindInt(3, r.generation);
-    ins->BindInt(4, r.slot);
-    ins->BindInt(5, r.origin);
-    ins->BindIdOrNull(6, r.parent_a);
-    ins->BindIdOrNull(7, r.parent_b);
-    ins->BindBlob(8, std::string(8, '\0'));  // one gene, 0.0
-    if (r.score.has_value()) {
-      ins->BindDouble(9, *r.score);
-      ins->BindInt(10, skerry::v1::EVALUATED);
-    } else {
-      ins->BindNull(9);
-      ins->BindInt(10, skerry::v1::FAILED);
-    }
-    ASSERT_TRUE(ins->Run().ok());
-  }
   ASSERT_TRUE((*conn)
                   ->Exec("UPDATE islands SET generation = 3 WHERE idx = 0; "
                          "UPDATE islands SET generation = 2 WHERE idx = 1; "
                          "UPDATE runs SET champion_id = 31, best_score = 4")
                   .ok());
+}
+
+// A reference to genome `id`.
+inline skerry::v1::GenomeRef RefTo(int64_t id) {
+  skerry::v1::GenomeRef r;
+  r.set_id(static_cast<uint64_t>(id));
+  return r;
+}
+
+// The ids of a list of LineageNodes (a vector or a repeated field), in order.
+template <typename Nodes>
+std::vector<int64_t> IdsOf(const Nodes& ns) {
+  std::vector<int64_t> out;
+  for (const auto& n : ns) out.push_back(static_cast<int64_t>(n.id()));
+  return out;
 }
 
 }  // namespace skerry::testing

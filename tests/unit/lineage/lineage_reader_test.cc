@@ -24,18 +24,9 @@ using ::testing::HasSubstr;
 using ::testing::UnorderedElementsAre;
 namespace t = skerry::testing;
 
-GenomeRef Id(int64_t id) {
-  GenomeRef r;
-  r.set_id(static_cast<uint64_t>(id));
-  return r;
-}
-
-std::vector<int64_t> Ids(
-    const google::protobuf::RepeatedPtrField<LineageNode>& ns) {
-  std::vector<int64_t> out;
-  for (const LineageNode& n : ns) out.push_back(static_cast<int64_t>(n.id()));
-  return out;
-}
+using skerry::testing::RefTo;
+GenomeRef Id(int64_t id) { return RefTo(id); }
+using skerry::testing::IdsOf;
 
 class LineageReaderTest : public ::testing::Test {
  protected:
@@ -90,15 +81,10 @@ class LineageReaderTest : public ::testing::Test {
     EXPECT_TRUE(s.ok()) << s;
     return out;
   }
-  static std::vector<int64_t> IdsOf(const std::vector<LineageNode>& ns) {
-    std::vector<int64_t> out;
-    for (const LineageNode& n : ns) out.push_back(static_cast<int64_t>(n.id()));
-    return out;
-  }
   std::vector<int64_t> Line(int64_t id) {
     auto line = reader_->LineOfDescent(Id(id));
     EXPECT_TRUE(line.ok()) << line.status();
-    return line.ok() ? Ids(line->steps()) : std::vector<int64_t>();
+    return line.ok() ? IdsOf(line->steps()) : std::vector<int64_t>();
   }
 
   TempDir dir_;
@@ -206,6 +192,25 @@ TEST_F(LineageReaderTest, LineOfDescentTakesTheFitterParentAndTiesToA) {
   EXPECT_THAT(line->rule(), HasSubstr("fitter parent"));
 }
 
+TEST_F(LineageReaderTest, LineOfDescentStepsAreWholeNodes) {
+  // I failed (no score); its line is I <- C. W's line runs through the elite
+  // O's failed parent a to G.
+  for (int64_t id : {t::I, t::W}) {
+    auto line = reader_->LineOfDescent(Id(id));
+    ASSERT_TRUE(line.ok()) << line.status();
+    for (const LineageNode& step : line->steps()) {
+      auto node = reader_->Resolve(Id(static_cast<int64_t>(step.id())));
+      ASSERT_TRUE(node.ok()) << node.status();
+      EXPECT_EQ(step.DebugString(), node->DebugString());
+    }
+  }
+  auto i = reader_->LineOfDescent(Id(t::I));
+  ASSERT_TRUE(i.ok());
+  EXPECT_EQ(i->steps(0).state(), skerry::v1::FAILED);
+  EXPECT_EQ(i->steps(0).key().slot(), 2u);
+  EXPECT_EQ(i->steps(1).parent_a(), 0u);
+}
+
 TEST_F(LineageReaderTest, LineOfDescentFollowsTheObjective) {
   reader_.reset();
   TempDir other;
@@ -252,39 +257,6 @@ TEST_F(LineageReaderTest, AttributionReportsIslandCrossings) {
   EXPECT_DOUBLE_EQ(w->total_gain(), 4.0);
   ASSERT_EQ(w->improvements_size(), 1);
   EXPECT_EQ(w->improvements(0).child().id(), t::O);
-}
-
-TEST_F(LineageReaderTest, CommonAncestorIsTheNewestGenerationWhereLinesMeet) {
-  struct Case {
-    int64_t a, b;
-    std::vector<int64_t> want;
-    uint32_t depth_a, depth_b;
-  };
-  for (const Case& c : std::vector<Case>{
-           {t::M, t::N, {t::H}, 1, 1},
-           {t::M, t::O, {t::G}, 1, 1},
-           {t::M, t::P, {t::B}, 2, 2},
-           {t::M, t::H, {t::H}, 1, 0},  // one is the other's ancestor
-           {t::M, t::M, {t::M}, 0, 0},
-           {t::W, t::P, {t::B}, 3, 2},
-           {t::M, t::S, {t::G}, 1, 1},
-       }) {
-    SCOPED_TRACE(::testing::Message() << c.a << " and " << c.b);
-    auto r = reader_->CommonAncestor(Id(c.a), Id(c.b));
-    ASSERT_TRUE(r.ok()) << r.status();
-    EXPECT_TRUE(r->found());
-    EXPECT_EQ(Ids(r->ancestors()), c.want);
-    EXPECT_EQ(r->depth_a(), c.depth_a);
-    EXPECT_EQ(r->depth_b(), c.depth_b);
-  }
-}
-
-TEST_F(LineageReaderTest, CommonAncestorOfSeparateLinesIsNotFound) {
-  // Q descends from the immigrant L alone.
-  auto r = reader_->CommonAncestor(Id(t::M), Id(t::Q));
-  ASSERT_TRUE(r.ok()) << r.status();
-  EXPECT_FALSE(r->found());
-  EXPECT_EQ(r->ancestors_size(), 0);
 }
 
 TEST_F(LineageReaderTest, CoalescenceCountsDistinctAncestorsPerGeneration) {

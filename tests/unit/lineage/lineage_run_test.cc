@@ -8,6 +8,7 @@
 #include <memory>
 #include <set>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "common/clock.h"
@@ -270,8 +271,18 @@ TEST_F(LineageRunTest, LineOfDescentIsAChainOfParentsToAFounder) {
 
 TEST_F(LineageRunTest, CommonAncestorIsCommonAndNoNewerOneExists) {
   const std::vector<int64_t> last = LastGeneration();
+  std::vector<std::pair<int64_t, int64_t>> pairs;
   for (size_t i = 0; i + 1 < last.size(); i += 7) {
-    const int64_t a = last[i], b = last[i + 1];
+    pairs.push_back({last[i], last[i + 1]});
+    // And one from a middle generation, on whatever island.
+    for (const auto& [id, g] : all_) {
+      if (g.generation == kGenerations / 2 && id % 5 == last[i] % 5) {
+        pairs.push_back({last[i], id});
+        break;
+      }
+    }
+  }
+  for (const auto& [a, b] : pairs) {
     SCOPED_TRACE(::testing::Message() << a << " and " << b);
     GenomeRef ra, rb;
     ra.set_id(static_cast<uint64_t>(a));
@@ -299,6 +310,10 @@ TEST_F(LineageRunTest, CommonAncestorIsCommonAndNoNewerOneExists) {
     for (const auto& n : r->ancestors())
       got.insert(static_cast<int64_t>(n.id()));
     EXPECT_EQ(got, want);
+    if (any) {
+      EXPECT_EQ(r->depth_a(), all_.at(a).generation - newest);
+      EXPECT_EQ(r->depth_b(), all_.at(b).generation - newest);
+    }
   }
 }
 
