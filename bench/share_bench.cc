@@ -102,16 +102,9 @@ std::vector<uint64_t> Evaluations(skerry::v1::RunService::Stub& runs,
 
 int Measure(const ShareOptions& o) {
   const std::string path = bench::TempDb(o.dir, "share");
-  server::CoordinatorOptions co;
-  co.db_path = path;
-  co.listen_address = "127.0.0.1:0";
-  absl::StatusOr<std::unique_ptr<server::Coordinator>> c =
-      server::Coordinator::Start(co);
-  if (!c.ok()) {
-    std::fprintf(stderr, "coordinator: %s\n", c.status().ToString().c_str());
-    return 2;
-  }
-  const std::string address = absl::StrCat("127.0.0.1:", (*c)->port());
+  std::optional<bench::Loopback> c = bench::StartLoopback(path);
+  if (!c.has_value()) return 2;
+  const std::string& address = c->address;
   auto runs = skerry::v1::RunService::NewStub(
       grpc::CreateChannel(address, grpc::InsecureChannelCredentials()));
   std::vector<uint64_t> ids;
@@ -155,7 +148,7 @@ int Measure(const ShareOptions& o) {
   const double secs = absl::ToDoubleSeconds(absl::Now() - start);
   for (auto& w : workers) w->Stop();
   for (auto& t : threads) t.join();
-  (*c)->Shutdown();
+  c->coordinator->Shutdown();
   bench::RemoveDb(path);
   if (before.size() != ids.size() || after.size() != ids.size()) return 2;
 

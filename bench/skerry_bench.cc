@@ -133,16 +133,9 @@ double CommitRate(const BenchOptions& o, int batch) {
 // 2. A real coordinator on loopback, real workers (in this process, over TCP).
 double EndToEndRate(const BenchOptions& o, uint64_t* evaluations) {
   const std::string path = TempDb(o, "e2e");
-  server::CoordinatorOptions co;
-  co.db_path = path;
-  co.listen_address = "127.0.0.1:0";
-  absl::StatusOr<std::unique_ptr<server::Coordinator>> c =
-      server::Coordinator::Start(co);
-  if (!c.ok()) {
-    std::fprintf(stderr, "coordinator: %s\n", c.status().ToString().c_str());
-    return 0;
-  }
-  const std::string address = absl::StrCat("127.0.0.1:", (*c)->port());
+  std::optional<bench::Loopback> c = bench::StartLoopback(path);
+  if (!c.has_value()) return 0;
+  const std::string& address = c->address;
   auto runs = skerry::v1::RunService::NewStub(
       grpc::CreateChannel(address, grpc::InsecureChannelCredentials()));
   skerry::v1::SubmitRunRequest req;
@@ -191,7 +184,7 @@ double EndToEndRate(const BenchOptions& o, uint64_t* evaluations) {
   *evaluations = got.run().evaluations();
   for (auto& w : workers) w->Stop();
   for (auto& t : threads) t.join();
-  (*c)->Shutdown();
+  c->coordinator->Shutdown();
   bench::RemoveDb(path);
   return static_cast<double>(*evaluations) / secs;
 }

@@ -144,6 +144,35 @@ class AuthorizationMatrixTest : public ::testing::Test {
     ASSERT_TRUE(access_->RevokeToken(&ctx, req, &resp).ok());
   }
 
+  // Submits `spec_text` with the token of `who`; the run's id (0 on failure).
+  uint64_t SubmitAs(const std::string& who, const std::string& spec_text) {
+    absl::StatusOr<v1::RunSpec> spec = ParseSpecText(spec_text, "inline");
+    EXPECT_TRUE(spec.ok()) << spec.status();
+    if (!spec.ok()) return 0;
+    grpc::ClientContext ctx;
+    testing::Authorize(&ctx, tokens_[who]);
+    v1::SubmitRunRequest req;
+    *req.mutable_spec() = *spec;
+    v1::SubmitRunResponse submitted;
+    grpc::Status s = v1::RunService::NewStub(channel_)->SubmitRun(&ctx, req,
+                                                                 &submitted);
+    EXPECT_TRUE(s.ok()) << s.error_message();
+    EXPECT_EQ(submitted.run().owner(), who);
+    return submitted.run().id();
+  }
+
+  // The audit entries of a run, newest first, as an admin reads them.
+  v1::QueryAuditResponse AuditOf(uint64_t run) {
+    grpc::ClientContext ctx;
+    testing::Authorize(&ctx, tokens_["admin"]);
+    v1::QueryAuditRequest q;
+    q.set_run_id(run);
+    v1::QueryAuditResponse log;
+    grpc::Status s = access_->QueryAudit(&ctx, q, &log);
+    EXPECT_TRUE(s.ok()) << s.error_message();
+    return log;
+  }
+
   static auth::Role RoleOf(const std::string& who) {
     if (who == "viewer") return v1::ROLE_VIEWER;
     if (who == "researcher") return v1::ROLE_RESEARCHER;
@@ -266,23 +295,12 @@ TEST_F(AuthorizationMatrixTest,
                                     v1::ROLE_RESEARCHER);
   ASSERT_TRUE(other.ok()) << other.status();
   auto runs = v1::RunService::NewStub(channel_);
-  absl::StatusOr<v1::RunSpec> spec = ParseSpecText(
+  const uint64_t run = SubmitAs(
+      "researcher",
       "name: \"owned\" seed: 3 genome_length: 2 "
       "evaluator { builtin { function: \"sphere\" } } "
-      "ga { population_size: 6 } stop { max_generations: 50 }",
-      "inline");
-  ASSERT_TRUE(spec.ok()) << spec.status();
-  v1::SubmitRunResponse submitted;
-  {
-    grpc::ClientContext ctx;
-    testing::Authorize(&ctx, tokens_["researcher"]);
-    v1::SubmitRunRequest req;
-    *req.mutable_spec() = *spec;
-    grpc::Status s = runs->SubmitRun(&ctx, req, &submitted);
-    ASSERT_TRUE(s.ok()) << s.error_message();
-  }
-  const uint64_t run = submitted.run().id();
-  EXPECT_EQ(submitted.run().owner(), "researcher");
+      "ga { population_size: 6 } stop { max_generations: 50 }");
+  ASSERT_NE(run, 0u);
   auto steer = [&](const std::string& token, uint64_t id, bool resume) {
     grpc::ClientContext ctx;
     testing::Authorize(&ctx, token);
@@ -308,12 +326,7 @@ TEST_F(AuthorizationMatrixTest,
   EXPECT_TRUE(steer(tokens_["admin"], run, true).ok())
       << "an admin steers any run";
 
-  grpc::ClientContext ctx;
-  testing::Authorize(&ctx, tokens_["admin"]);
-  v1::QueryAuditRequest q;
-  q.set_run_id(run);
-  v1::QueryAuditResponse log;
-  ASSERT_TRUE(access_->QueryAudit(&ctx, q, &log).ok());
+  const v1::QueryAuditResponse log = AuditOf(run);
   ASSERT_EQ(log.entries_size(), 4);  // newest first
   EXPECT_EQ(log.entries(0).principal(), "ada");
   EXPECT_EQ(log.entries(0).method(), "/skerry.v1.RunService/ResumeRun");
@@ -336,24 +349,13 @@ TEST_F(AuthorizationMatrixTest, ValidationRequestsFollowRunOwnership) {
   auto other = testing::CreateToken(*access_, tokens_["admin"], "rob",
                                     v1::ROLE_RESEARCHER);
   ASSERT_TRUE(other.ok()) << other.status();
-  auto runs = v1::RunService::NewStub(channel_);
   auto validations = v1::ValidationService::NewStub(channel_);
-  absl::StatusOr<v1::RunSpec> spec = ParseSpecText(
+  const uint64_t run = SubmitAs(
+      "researcher",
       "name: \"held-out\" seed: 5 evaluator { cart_pole { max_steps: 50 } "
       "validation { generalisation: true champions: ON_REQUEST } } "
-      "ga { population_size: 6 } stop { max_generations: 50 }",
-      "inline");
-  ASSERT_TRUE(spec.ok()) << spec.status();
-  v1::SubmitRunResponse submitted;
-  {
-    grpc::ClientContext ctx;
-    testing::Authorize(&ctx, tokens_["researcher"]);
-    v1::SubmitRunRequest req;
-    *req.mutable_spec() = *spec;
-    grpc::Status s = runs->SubmitRun(&ctx, req, &submitted);
-    ASSERT_TRUE(s.ok()) << s.error_message();
-  }
-  const uint64_t run = submitted.run().id();
+      "ga { population_size: 6 } stop { max_generations: 50 }");
+  ASSERT_NE(run, 0u);
   auto validate = [&](const std::string& token, const v1::GenomeRef& ref,
                       v1::Validation* out) {
     grpc::ClientContext ctx;
@@ -382,12 +384,7 @@ TEST_F(AuthorizationMatrixTest, ValidationRequestsFollowRunOwnership) {
             grpc::StatusCode::PERMISSION_DENIED);
   EXPECT_TRUE(validate(tokens_["admin"], by_id, &v).ok());
 
-  grpc::ClientContext ctx;
-  testing::Authorize(&ctx, tokens_["admin"]);
-  v1::QueryAuditRequest q;
-  q.set_run_id(run);
-  v1::QueryAuditResponse log;
-  ASSERT_TRUE(access_->QueryAudit(&ctx, q, &log).ok());
+  const v1::QueryAuditResponse log = AuditOf(run);
   int asked = 0;
   for (const v1::AuditEntry& e : log.entries()) {
     if (e.method() == "/skerry.v1.ValidationService/Validate") ++asked;

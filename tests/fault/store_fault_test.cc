@@ -30,7 +30,7 @@
 #include "server/store/store.h"
 #include "tests/fault/fault_vfs.h"
 #include "tests/support/db_check.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::store {
 namespace {

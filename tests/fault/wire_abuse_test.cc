@@ -26,7 +26,7 @@
 #include "skerry/v1/fleet.grpc.pb.h"
 #include "skerry/v1/runs.grpc.pb.h"
 #include "tests/support/db_check.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry {
 namespace {

@@ -13,7 +13,7 @@
 #include "server/lineage/lineage_reader.h"
 #include "tests/unit/lineage/lineage_graph.h"
 #include "tests/unit/server/sqlite_test_util.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::lineage {
 namespace {

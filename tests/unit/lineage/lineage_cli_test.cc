@@ -13,7 +13,7 @@
 #include "gtest/gtest.h"
 #include "server/lineage/lineage_service.h"
 #include "tests/unit/lineage/lineage_graph.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::cli {
 namespace {

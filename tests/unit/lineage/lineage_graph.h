@@ -33,7 +33,7 @@
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "skerry/v1/lineage.pb.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::testing {
 

@@ -11,7 +11,7 @@
 #include "gtest/gtest.h"
 #include "tests/unit/lineage/lineage_graph.h"
 #include "tests/unit/server/sqlite_test_util.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::lineage {
 namespace {

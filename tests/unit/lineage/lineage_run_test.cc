@@ -19,7 +19,7 @@
 #include "server/scheduler/task_queue.h"
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::lineage {
 namespace {

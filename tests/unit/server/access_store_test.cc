@@ -12,7 +12,7 @@
 #include "server/auth/tokens.h"
 #include "server/store/store.h"
 #include "tests/unit/server/sqlite_test_util.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::auth {
 namespace {

@@ -15,7 +15,7 @@
 #include "server/scheduler/task_queue.h"
 #include "server/store/store.h"
 #include "tests/unit/server/task_queue_test_util.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::engine {
 namespace {

@@ -18,7 +18,7 @@
 #include "gtest/gtest.h"
 #include "server/scheduler/task_queue.h"
 #include "server/store/store.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::engine {
 namespace {

@@ -10,7 +10,7 @@
 #include "common/spec.h"
 #include "gtest/gtest.h"
 #include "server/store/store.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::store {
 

@@ -12,7 +12,8 @@
 #include "gtest/gtest.h"
 #include "server/store/store.h"
 #include "tests/unit/server/sqlite_test_util.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/unit/server/store_fixture.h"
+#include "tests/support/process.h"
 
 namespace skerry::store {
 namespace {
@@ -24,19 +25,8 @@ using skerry::testing::ReadFileBytes;
 using skerry::testing::TempDir;
 using ::testing::HasSubstr;
 
-class StoreOpenTest : public ::testing::Test {
- protected:
-  void SetUp() override {
-    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path());
-    ASSERT_TRUE(store.ok()) << store.status();
-    store_ = std::move(*store);
-  }
-
-  std::string path() const { return dir_.File("skerry.db"); }
-
-  TempDir dir_;
-  std::unique_ptr<Store> store_;
-};
+// A fresh store in a temporary folder (store_fixture.h).
+using StoreOpenTest = StoreTest;
 
 // ---- Opening and schema versions ----
 

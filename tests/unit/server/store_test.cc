@@ -18,7 +18,7 @@
 #include "gtest/gtest.h"
 #include "tests/unit/server/sqlite_test_util.h"
 #include "tests/unit/server/store_fixture.h"
-#include "tests/unit/server/temp_dir.h"
+#include "tests/support/process.h"
 
 namespace skerry::store {
 namespace {
