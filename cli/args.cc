@@ -54,6 +54,14 @@ std::vector<CommandSpec> MakeCommands() {
        "Pauses a run: no new work is "
        "handed out for it until it is resumed."},
       {"resume", {"RUN"}, {}, "resume a paused run", "Resumes a paused run."},
+      {"priority",
+       {"RUN", "N"},
+       {},
+       "change a run's priority (1 to 1000)",
+       "Sets the run's priority, its weight in the fair share of the fleet: "
+       "while several runs have work waiting, each gets tasks in proportion "
+       "to its priority (docs/sharing.md). It applies from the next task "
+       "handed out and is kept across restarts."},
       {"stop",
        {"RUN"},
        {},

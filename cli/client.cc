@@ -97,6 +97,21 @@ absl::StatusOr<skerry::v1::GetRunResponse> RunClient::Get(uint64_t run_id) {
   return response;
 }
 
+absl::StatusOr<RunSummary> RunClient::SetPriority(uint64_t run_id,
+                                                  uint32_t priority) {
+  skerry::v1::SetPriorityRequest request;
+  request.set_run_id(run_id);
+  request.set_priority(priority);
+  RunSummary response;
+  grpc::ClientContext context;
+  SetDeadline(&context);
+  absl::Status status =
+      FromGrpc(stub_->SetPriority(&context, request, &response), "SetPriority",
+               target_);
+  if (!status.ok()) return status;
+  return response;
+}
+
 absl::StatusOr<RunSummary> RunClient::Pause(uint64_t run_id) {
   RunSummary response;
   grpc::ClientContext context;

@@ -62,6 +62,8 @@ class RunClient {
   absl::StatusOr<skerry::v1::RunSummary> Pause(uint64_t run_id);
   absl::StatusOr<skerry::v1::RunSummary> Resume(uint64_t run_id);
   absl::StatusOr<skerry::v1::RunSummary> Stop(uint64_t run_id);
+  absl::StatusOr<skerry::v1::RunSummary> SetPriority(uint64_t run_id,
+                                                     uint32_t priority);
   absl::StatusOr<skerry::v1::Genome> Champion(uint64_t run_id);
   absl::StatusOr<skerry::v1::DigestResponse> Digest(uint64_t run_id);
   // Every island when `island` is empty.

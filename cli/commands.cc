@@ -105,6 +105,15 @@ int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
     return SteerCommand(client, run_id, command, io);
   }
   if (command == "digest") return DigestCommand(client, run_id, io);
+  if (command == "priority") {
+    absl::StatusOr<uint32_t> n =
+        ParseBoundedUint("PRIORITY", args.positionals[1], 1, 1000);
+    if (!n.ok()) return UsageFailure(n.status(), command, io);
+    absl::StatusOr<RunSummary> run = client.SetPriority(run_id, *n);
+    if (!run.ok()) return ReportError(run.status(), io);
+    *io.out << "run " << run->id() << " priority " << run->priority() << "\n";
+    return kExitOk;
+  }
   if (command == "champion") {
     return ChampionCommand(client, run_id, args.Has("json"), args.Get("out"),
                            io);

@@ -124,6 +124,17 @@ grpc::Status RunServiceImpl::StopRun(grpc::ServerContext* ctx,
   return Summarise(RunId(req->run_id()), resp);
 }
 
+grpc::Status RunServiceImpl::SetPriority(
+    grpc::ServerContext* ctx, const skerry::v1::SetPriorityRequest* req,
+    skerry::v1::RunSummary* resp) {
+  absl::Status s = engine_->SetPriority(RunId(req->run_id()), req->priority());
+  if (!s.ok()) return ToGrpc(s);
+  if (access_ != nullptr) {
+    access_->Note(ctx, 0, absl::StrCat("priority ", req->priority()));
+  }
+  return Summarise(RunId(req->run_id()), resp);
+}
+
 grpc::Status RunServiceImpl::GetChampion(grpc::ServerContext* ctx,
                                          const skerry::v1::RunRef* req,
                                          skerry::v1::GetChampionResponse* resp) {

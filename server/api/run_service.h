@@ -62,6 +62,9 @@ class RunServiceImpl final
                           skerry::v1::GetHistoryResponse* resp) override;
   grpc::Status GetDigest(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
                          skerry::v1::DigestResponse* resp) override;
+  grpc::Status SetPriority(grpc::ServerContext* ctx,
+                           const skerry::v1::SetPriorityRequest* req,
+                           skerry::v1::RunSummary* resp) override;
   grpc::ServerWriteReactor<skerry::v1::RunSummary>* WatchRun(
       grpc::CallbackServerContext* ctx,
       const skerry::v1::WatchRunRequest* req) override;

@@ -68,6 +68,8 @@ std::map<std::string, Rule> Build() {
       {run + "PauseRun", AboutRun<v1::RunRef>(P::kOwnRun, true)},
       {run + "ResumeRun", AboutRun<v1::RunRef>(P::kOwnRun, true)},
       {run + "StopRun", AboutRun<v1::RunRef>(P::kOwnRun, true)},
+      {run + "SetPriority",
+       AboutRun<v1::SetPriorityRequest>(P::kOwnRun, true)},
       {run + "GetChampion", Make<v1::RunRef>(P::kRead)},
       {run + "GetHistory", Make<v1::GetHistoryRequest>(P::kRead)},
       {run + "GetDigest", Make<v1::RunRef>(P::kRead)},

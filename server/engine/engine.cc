@@ -145,16 +145,39 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
   queue_->Add(std::move(tasks));
 }
 
-absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
-                                                std::string spec_text,
-                                                std::string owner,
-                                                uint32_t priority) {
-  if (priority == 0) priority = scheduler::kMinWeight;
+absl::Status Engine::CheckPriority(uint32_t priority) {
   if (priority < scheduler::kMinWeight || priority > scheduler::kMaxWeight) {
     return absl::InvalidArgumentError(absl::StrCat(
         "priority: must be from ", scheduler::kMinWeight, " to ",
         scheduler::kMaxWeight, ", got ", priority));
   }
+  return absl::OkStatus();
+}
+
+absl::Status Engine::SetPriority(int64_t run_id, uint32_t priority) {
+  SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
+  absl::MutexLock l(&mu_);
+  absl::Status s = store_->SetRunPriority(
+      run_id, static_cast<int32_t>(priority), clock_->WallMillis());
+  if (!s.ok()) {
+    if (!absl::IsNotFound(s)) NoteWriteFailure(s);
+    return s;
+  }
+  if (auto it = runs_.find(run_id); it != runs_.end()) {
+    it->second->record.priority = static_cast<int32_t>(priority);
+  }
+  // Also for an ended run: its validations may still be queued.
+  queue_->SetWeight(run_id, priority);
+  NotifyChange();
+  return absl::OkStatus();
+}
+
+absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
+                                                std::string spec_text,
+                                                std::string owner,
+                                                uint32_t priority) {
+  if (priority == 0) priority = scheduler::kMinWeight;
+  SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
   SKERRY_ASSIGN_OR_RETURN(RunSpec prepared, PrepareSpec(std::move(spec)));
   absl::MutexLock l(&mu_);
   store::RunRecord rec;

@@ -87,6 +87,9 @@ class Engine {
                                           std::string spec_text,
                                           std::string owner,
                                           uint32_t priority = 0);
+  // Stores a run's new priority (1 to 1000, else InvalidArgument naming the
+  // field) and gives the queue the new weight. Any run, ended ones too.
+  absl::Status SetPriority(int64_t run_id, uint32_t priority);
   absl::Status Pause(int64_t run_id);
   absl::Status Resume(int64_t run_id);
   absl::Status Stop(int64_t run_id);
@@ -152,6 +155,7 @@ class Engine {
   absl::Status Transition(int64_t run_id, skerry::v1::RunState from,
                           skerry::v1::RunState to, const char* verb)
       ABSL_LOCKS_EXCLUDED(mu_);
+  static absl::Status CheckPriority(uint32_t priority);
   absl::Status Load() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status LoadRun(const store::RunRecord& record)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);

@@ -499,6 +499,22 @@ absl::Status Store::SetRunStarted(int64_t run_id, int64_t now_ms) {
   return upd.Run();
 }
 
+absl::Status Store::SetRunPriority(int64_t run_id, int32_t priority,
+                                   int64_t now_ms) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(
+      auto upd, conn_->Prepare("UPDATE runs SET priority = ?, updated_ms = ? "
+                               "WHERE id = ?"));
+  upd.BindInt(1, priority);
+  upd.BindInt(2, now_ms);
+  upd.BindInt(3, run_id);
+  SKERRY_RETURN_IF_ERROR(upd.Run());
+  if (conn_->Changes() != 1) {
+    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+  }
+  return absl::OkStatus();
+}
+
 absl::Status Store::FinishRun(int64_t run_id, RunState state,
                               const std::string& message,
                               std::optional<uint32_t> keep_through,

@@ -268,6 +268,9 @@ class Store {
   absl::Status SetRunState(int64_t run_id, skerry::v1::RunState state,
                            const std::string& message, int64_t now_ms);
   absl::Status SetRunStarted(int64_t run_id, int64_t now_ms);
+  // NotFound names a missing run.
+  absl::Status SetRunPriority(int64_t run_id, int32_t priority,
+                              int64_t now_ms);
   // Ends a run. With keep_through, generations after it are deleted (a faster
   // island may have bred past the stop generation). The champion is recomputed
   // from the genomes that remain.

@@ -281,6 +281,28 @@ TEST_F(CommandsTest, PausePrintsTheNewState) {
   EXPECT_EQ(out_.str(), "run 3 paused\n");
 }
 
+TEST_F(CommandsTest, PrioritySendsTheNewWeightAndPrintsIt) {
+  v1::SetPriorityRequest asked;
+  v1::RunSummary changed = Summary(v1::RUNNING, 0);
+  changed.set_priority(7);
+  EXPECT_CALL(*mock_, SetPriority(_, _, _))
+      .WillOnce(DoAll(Invoke([&](grpc::ClientContext*,
+                                 const v1::SetPriorityRequest& req,
+                                 v1::RunSummary*) { asked = req; }),
+                      SetArgPointee<2>(changed), Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"priority", "3", "7"}), kExitOk);
+  EXPECT_EQ(asked.run_id(), 3u);
+  EXPECT_EQ(asked.priority(), 7u);
+  EXPECT_EQ(out_.str(), "run 3 priority 7\n");
+}
+
+TEST_F(CommandsTest, PriorityOutOfRangeIsRefusedBeforeAnythingIsSent) {
+  EXPECT_CALL(*mock_, SetPriority(_, _, _)).Times(0);
+  EXPECT_EQ(Cli({"priority", "3", "1001"}), kExitUsage);
+  EXPECT_THAT(err_.str(), HasSubstr("[1, 1000]"));
+  EXPECT_EQ(Cli({"priority", "3"}), kExitUsage);
+}
+
 TEST_F(CommandsTest, DigestPrintsHashAndGenomeCount) {
   v1::DigestResponse digest;
   digest.set_sha256("ab12");

@@ -93,6 +93,10 @@ class MockRunServiceStub : public skerry::v1::RunService::StubInterface {
               (grpc::ClientContext*, const skerry::v1::RunRef&,
                skerry::v1::DigestResponse*),
               (override));
+  MOCK_METHOD(grpc::Status, SetPriority,
+              (grpc::ClientContext*, const skerry::v1::SetPriorityRequest&,
+               skerry::v1::RunSummary*),
+              (override));
   // The sync WatchRun() wraps this private virtual; the reader is owned by
   // the caller.
   MOCK_METHOD(grpc::ClientReaderInterface<skerry::v1::RunSummary>*, WatchRunRaw,
@@ -109,6 +113,7 @@ class MockRunServiceStub : public skerry::v1::RunService::StubInterface {
   SKERRY_NO_ASYNC_UNARY(GetChampion, RunRef, GetChampionResponse)
   SKERRY_NO_ASYNC_UNARY(GetHistory, GetHistoryRequest, GetHistoryResponse)
   SKERRY_NO_ASYNC_UNARY(GetDigest, RunRef, DigestResponse)
+  SKERRY_NO_ASYNC_UNARY(SetPriority, SetPriorityRequest, RunSummary)
   grpc::ClientAsyncReaderInterface<skerry::v1::RunSummary>* AsyncWatchRunRaw(
       grpc::ClientContext*, const skerry::v1::WatchRunRequest&,
       grpc::CompletionQueue*, void*) override {

@@ -129,5 +129,37 @@ TEST_F(EngineShareTest, WeightsComeBackFromTheStoreAfterARestart) {
   EXPECT_NEAR(got[static_cast<uint64_t>(high->id)], 300, 1);
 }
 
+// A changed priority is stored, applies to the next tasks, and survives a
+// restart; a bad one or a missing run changes nothing.
+TEST_F(EngineShareTest, ChangedPriorityAppliesToTheNextTasksAndIsKept) {
+  Open();
+  absl::StatusOr<store::RunRecord> a = Submit(1);
+  absl::StatusOr<store::RunRecord> b = Submit(1);
+  ASSERT_TRUE(a.ok() && b.ok());
+  std::map<uint64_t, int> got = LeaseOneByOne(100);
+  EXPECT_NEAR(got[static_cast<uint64_t>(a->id)], 50, 1);
+  ASSERT_TRUE(engine_->SetPriority(b->id, 4).ok());
+  got = LeaseOneByOne(250);
+  EXPECT_NEAR(got[static_cast<uint64_t>(a->id)], 50, 1);
+  EXPECT_NEAR(got[static_cast<uint64_t>(b->id)], 200, 1);
+  absl::StatusOr<skerry::v1::RunSummary> summary = engine_->Summary(b->id);
+  ASSERT_TRUE(summary.ok()) << summary.status();
+  EXPECT_EQ(summary->priority(), 4u);
+
+  absl::Status bad = engine_->SetPriority(b->id, 0);
+  EXPECT_EQ(bad.code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_THAT(bad.message(), HasSubstr("priority: must be from 1 to 1000"));
+  absl::Status missing = engine_->SetPriority(b->id + 100, 2);
+  EXPECT_EQ(missing.code(), absl::StatusCode::kNotFound);
+  absl::StatusOr<store::RunRecord> stored = store_->GetRun(b->id);
+  ASSERT_TRUE(stored.ok()) << stored.status();
+  EXPECT_EQ(stored->priority, 4);
+
+  Open();
+  got = LeaseOneByOne(100);
+  EXPECT_NEAR(got[static_cast<uint64_t>(a->id)], 20, 1);
+  EXPECT_NEAR(got[static_cast<uint64_t>(b->id)], 80, 1);
+}
+
 }  // namespace
 }  // namespace skerry::engine
