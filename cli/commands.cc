@@ -17,6 +17,7 @@
 #include "cli/local.h"
 #include "cli/validate.h"
 #include "common/spec.h"
+#include "google/protobuf/util/json_util.h"
 
 namespace skerry::cli {
 
@@ -27,6 +28,23 @@ int UsageFailure(const absl::Status& status, absl::string_view command,
     *io.err << "run `skerry " << command << " --help` for its usage\n";
   }
   return kExitUsage;
+}
+
+absl::StatusOr<std::string> MessageJson(const google::protobuf::Message& m) {
+  std::string out;
+  auto status = google::protobuf::util::MessageToJsonString(m, &out);
+  if (!status.ok()) {
+    return absl::InternalError(
+        absl::StrCat("cannot encode the answer as JSON: ", status.ToString()));
+  }
+  return out + "\n";
+}
+
+int PrintJson(const google::protobuf::Message& m, Io& io) {
+  absl::StatusOr<std::string> text = MessageJson(m);
+  if (!text.ok()) return ReportError(text.status(), io);
+  *io.out << *text << std::flush;
+  return kExitOk;
 }
 
 namespace {

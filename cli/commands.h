@@ -25,6 +25,7 @@
 #include "absl/time/time.h"
 #include "cli/args.h"
 #include "cli/client.h"
+#include "google/protobuf/message.h"
 #include "skerry/v1/spec.pb.h"
 
 namespace skerry::cli {
@@ -82,6 +83,12 @@ absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path);
 // Prints a usage error and the `--help` hint for `command`; returns 2.
 int UsageFailure(const absl::Status& status, absl::string_view command,
                  Io& io);
+
+// Protobuf's JSON mapping of `m`, one line ending in "\n"; Internal when it
+// cannot be encoded.
+absl::StatusOr<std::string> MessageJson(const google::protobuf::Message& m);
+// MessageJson(m) on io.out; returns 0, or 1 after printing why it could not.
+int PrintJson(const google::protobuf::Message& m, Io& io);
 
 // Prints `status` on io.err; returns 3 when no coordinator answered, else 1.
 int ReportError(const absl::Status& status, Io& io);

@@ -50,9 +50,6 @@ std::string ScoreText(const skerry::v1::LineageNode& n);
 // stream in; NodeHeader() is its header.
 std::string NodeRow(const skerry::v1::LineageNode& n);
 std::string NodeHeader();
-// Protobuf's JSON mapping of `m`, one line.
-absl::StatusOr<std::string> Json(const google::protobuf::Message& m);
-int PrintJson(const google::protobuf::Message& m, Io& io);
 // The deadline of a unary call.
 void SetDeadline(grpc::ClientContext* ctx);
 

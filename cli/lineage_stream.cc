@@ -80,7 +80,7 @@ class StreamPrinter {
   void Flush() {
     for (LineageChunk& chunk : held_) {
       if (json_) {
-        absl::StatusOr<std::string> text = Json(chunk);
+        absl::StatusOr<std::string> text = MessageJson(chunk);
         *call_.io.out << (text.ok() ? *text : "{}\n");
         continue;
       }

@@ -7,7 +7,6 @@
 #include "absl/time/clock.h"
 #include "cli/format.h"
 #include "cli/lineage_internal.h"
-#include "google/protobuf/util/json_util.h"
 #include "server/lineage/dot.h"
 
 namespace skerry::cli::lineage_internal {
@@ -49,23 +48,6 @@ std::string NodeRow(const LineageNode& n) {
 std::string NodeHeader() {
   return absl::StrFormat("%10s  %-16s  %-9s  %12s  %10s  %10s\n", "id",
                          "genome", "origin", "score", "parent a", "parent b");
-}
-
-absl::StatusOr<std::string> Json(const google::protobuf::Message& m) {
-  std::string out;
-  auto status = google::protobuf::util::MessageToJsonString(m, &out);
-  if (!status.ok()) {
-    return absl::InternalError(
-        absl::StrCat("cannot encode the answer as JSON: ", status.ToString()));
-  }
-  return out + "\n";
-}
-
-int PrintJson(const google::protobuf::Message& m, Io& io) {
-  absl::StatusOr<std::string> text = Json(m);
-  if (!text.ok()) return ReportError(text.status(), io);
-  *io.out << *text << std::flush;
-  return kExitOk;
 }
 
 void SetDeadline(grpc::ClientContext* ctx) {

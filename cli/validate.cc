@@ -8,7 +8,6 @@
 #include "cli/client.h"
 #include "cli/format.h"
 #include "cli/lineage.h"
-#include "google/protobuf/util/json_util.h"
 #include "grpcpp/client_context.h"
 
 namespace skerry::cli {
@@ -48,19 +47,6 @@ std::string TrainingText(const Validation& v) {
     default:
       return "pending";
   }
-}
-
-int PrintJson(const google::protobuf::Message& m, Io& io) {
-  std::string out;
-  auto status = google::protobuf::util::MessageToJsonString(m, &out);
-  if (!status.ok()) {
-    return ReportError(absl::InternalError(absl::StrCat(
-                           "cannot encode the answer as JSON: ",
-                           status.ToString())),
-                       io);
-  }
-  *io.out << out << "\n" << std::flush;
-  return kExitOk;
 }
 
 class Calls {

@@ -120,6 +120,13 @@ absl::Status CheckValidation(const EvaluatorSpec& spec) {
   return absl::OkStatus();
 }
 
+uint32_t ValidationCaseCount(const EvaluatorSpec& spec) {
+  if (!spec.has_validation()) return 0;
+  if (pole::IsPoleEvaluator(spec)) return pole::kGeneralisationStarts;
+  return static_cast<uint32_t>(spec.validation().cases_size() +
+                               spec.validation().seeds_size());
+}
+
 std::vector<ValidationCase> ValidationCases(const EvaluatorSpec& spec,
                                             uint64_t run_seed) {
   std::vector<ValidationCase> out;

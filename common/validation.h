@@ -50,6 +50,8 @@ void NormalizeValidation(skerry::v1::EvaluatorSpec* spec);
 // names, too many cases, unknown enum values.
 absl::Status CheckValidation(const skerry::v1::EvaluatorSpec& spec);
 
+// How many cases ValidationCases returns, without making them.
+uint32_t ValidationCaseCount(const skerry::v1::EvaluatorSpec& spec);
 // The run's cases in the order above. REQUIRES: CheckValidation passed.
 std::vector<ValidationCase> ValidationCases(
     const skerry::v1::EvaluatorSpec& spec, uint64_t run_seed);

@@ -12,8 +12,7 @@ namespace skerry::engine {
 namespace {
 
 uint32_t CaseCount(const skerry::v1::RunSpec& spec) {
-  return static_cast<uint32_t>(
-      ValidationCases(spec.evaluator(), spec.seed()).size());
+  return ValidationCaseCount(spec.evaluator());
 }
 
 }  // namespace

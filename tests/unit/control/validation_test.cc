@@ -112,6 +112,7 @@ TEST(ValidationCasesTest, PoleCasesAreTheSixHundredTwentyFiveStarts) {
   ASSERT_TRUE(spec.ok()) << spec.status();
   std::vector<ValidationCase> cases = ValidationCases(spec->evaluator(), 5);
   ASSERT_EQ(cases.size(), pole::kGeneralisationStarts);
+  EXPECT_EQ(ValidationCaseCount(spec->evaluator()), cases.size());
   EXPECT_EQ(cases.front().name, "start-0");
   EXPECT_EQ(cases.back().name, "start-624");
 }
@@ -124,6 +125,7 @@ TEST(ValidationCasesTest, NamedCaseSeedsDependOnTheRunSeedOnly) {
   std::vector<ValidationCase> b = ValidationCases(spec->evaluator(), 1);
   std::vector<ValidationCase> other = ValidationCases(spec->evaluator(), 2);
   ASSERT_EQ(a.size(), 3u);
+  EXPECT_EQ(ValidationCaseCount(spec->evaluator()), 3u);
   EXPECT_EQ(a[0].name, "dry");
   EXPECT_EQ(a[1].name, "wet");
   EXPECT_EQ(a[2].name, "seed-77");
