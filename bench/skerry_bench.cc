@@ -8,7 +8,8 @@
 //   3. the same population evaluated in process, with no coordinator at all;
 //   and what group commit buys: results committed one per synced transaction
 //   against 256 per transaction.
-// It prints all three and the ratios. Not a test: figures depend on the machine.
+// It prints all three and the ratios. Not a test: figures depend on the
+// machine.
 #include <cstdio>
 #include <memory>
 #include <string>
@@ -69,7 +70,8 @@ double RawInsertRate(const BenchOptions& o) {
   const int per_txn = 1000;
   const absl::Time start = absl::Now();
   for (int row = 0; row < o.insert_rows; ++row) {
-    if (row % per_txn == 0) sqlite3_exec(db, "BEGIN", nullptr, nullptr, nullptr);
+    if (row % per_txn == 0)
+      sqlite3_exec(db, "BEGIN", nullptr, nullptr, nullptr);
     for (double& g : genes) g = rng.Uniform01();
     const std::string packed = PackGenes(genes);
     sqlite3_bind_int(ins, 1, row / o.population);
@@ -168,7 +170,8 @@ double EndToEndRate(const BenchOptions& o, uint64_t* evaluations) {
     grpc::ClientContext ctx;
     skerry::v1::SubmitRunResponse resp;
     grpc::Status s = runs->SubmitRun(&ctx, req, &resp);
-    if (!s.ok()) std::fprintf(stderr, "submit: %s\n", s.error_message().c_str());
+    if (!s.ok())
+      std::fprintf(stderr, "submit: %s\n", s.error_message().c_str());
   }
   skerry::v1::GetRunResponse got;
   for (int polls = 0; polls < 60000; ++polls) {
@@ -229,41 +232,50 @@ int main(int argc, char** argv) {
           "and in-process evaluation, and prints the ratios.");
       return 0;
     } else if (a == "--population" && has_value) {
-      ok = skerry::bench::ParseInt("--population", argv[++i], 2, 1000000, &o.population);
+      ok = skerry::bench::ParseInt("--population", argv[++i], 2, 1000000,
+                                   &o.population);
     } else if (a == "--generations" && has_value) {
-      ok = skerry::bench::ParseInt("--generations", argv[++i], 1, 100000, &o.generations);
+      ok = skerry::bench::ParseInt("--generations", argv[++i], 1, 100000,
+                                   &o.generations);
     } else if (a == "--genome-length" && has_value) {
-      ok = skerry::bench::ParseInt("--genome-length", argv[++i], 1, 100000, &o.genome_length);
+      ok = skerry::bench::ParseInt("--genome-length", argv[++i], 1, 100000,
+                                   &o.genome_length);
     } else if (a == "--workers" && has_value) {
       ok = skerry::bench::ParseInt("--workers", argv[++i], 1, 64, &o.workers);
     } else if (a == "--threads" && has_value) {
       ok = skerry::bench::ParseInt("--threads", argv[++i], 1, 64, &o.threads);
     } else if (a == "--insert-rows" && has_value) {
-      ok = skerry::bench::ParseInt("--insert-rows", argv[++i], 1000, 100000000, &o.insert_rows);
+      ok = skerry::bench::ParseInt("--insert-rows", argv[++i], 1000, 100000000,
+                                   &o.insert_rows);
     } else if (a == "--dir" && has_value) {
       o.dir = argv[++i];
     } else {
-      std::fprintf(stderr, "skerry-bench: unknown or incomplete argument \"%s\"\n",
+      std::fprintf(stderr,
+                   "skerry-bench: unknown or incomplete argument \"%s\"\n",
                    a.c_str());
       return 2;
     }
     if (!ok) return 2;
   }
-  std::printf("skerry-bench: genome length %d, population %d x %d generations, "
-              "%d workers x %d threads\n",
-              o.genome_length, o.population, o.generations, o.workers, o.threads);
+  std::printf(
+      "skerry-bench: genome length %d, population %d x %d generations, "
+      "%d workers x %d threads\n",
+      o.genome_length, o.population, o.generations, o.workers, o.threads);
   const double raw = skerry::RawInsertRate(o);
   std::printf("raw SQLite insert        %12.0f genome rows/s\n", raw);
   const double single = skerry::CommitRate(o, 1);
   const double grouped = skerry::CommitRate(o, 256);
-  std::printf("results, 1 per commit     %12.0f results/s (each commit synced)\n",
-              single);
-  std::printf("results, 256 per commit   %12.0f results/s (group commit: x%.0f)\n",
-              grouped, single > 0 ? grouped / single : 0.0);
+  std::printf(
+      "results, 1 per commit     %12.0f results/s (each commit synced)\n",
+      single);
+  std::printf(
+      "results, 256 per commit   %12.0f results/s (group commit: x%.0f)\n",
+      grouped, single > 0 ? grouped / single : 0.0);
   uint64_t evaluations = 0;
   const double e2e = skerry::EndToEndRate(o, &evaluations);
-  std::printf("end to end (loopback)    %12.0f evaluations/s  (%llu evaluations)\n",
-              e2e, static_cast<unsigned long long>(evaluations));
+  std::printf(
+      "end to end (loopback)    %12.0f evaluations/s  (%llu evaluations)\n",
+      e2e, static_cast<unsigned long long>(evaluations));
   const double local = skerry::InProcessRate(o, evaluations);
   std::printf("in process (no network)  %12.0f evaluations/s\n", local);
   std::printf("ratio end-to-end / raw insert   %.3f  (first target >= 0.25)\n",

@@ -55,7 +55,7 @@ struct ParsedArgs {
   // --token, --token-file, --tls-ca, --tls-cert, --tls-key, --tls-server-name
   // when given.
   std::map<std::string, std::string> global;
-  std::string command;      // a name from Commands()
+  std::string command;  // a name from Commands()
   std::vector<std::string> positionals;
   std::map<std::string, std::string> flags;  // a switch maps to ""
   bool help = false;  // --help given: print the command's help, do nothing else

@@ -63,16 +63,18 @@ int BackupCommand(const ParsedArgs& args,
   if (!status.ok()) {
     std::remove(partial.c_str());
     *io.err << "skerry: backup: " << status.error_message() << "\n";
-    return status.error_code() == grpc::StatusCode::UNAVAILABLE ? kExitUnreachable
-                                                                : kExitFailure;
+    return status.error_code() == grpc::StatusCode::UNAVAILABLE
+               ? kExitUnreachable
+               : kExitFailure;
   }
   if (std::rename(partial.c_str(), target.c_str()) != 0) {
     *io.err << "skerry: backup: cannot rename " << partial << " to " << target
             << "\n";
     return kExitFailure;
   }
-  *io.out << "backup of " << (run_id == 0 ? std::string("the whole database")
-                                          : absl::StrCat("run ", run_id))
+  *io.out << "backup of "
+          << (run_id == 0 ? std::string("the whole database")
+                          : absl::StrCat("run ", run_id))
           << " written to " << target << " (" << FormatCount(written)
           << " bytes)\n"
           << "restore: skerry-coordinator --db " << target << "\n";

@@ -105,9 +105,8 @@ absl::StatusOr<RunSummary> RunClient::SetPriority(uint64_t run_id,
   RunSummary response;
   grpc::ClientContext context;
   SetDeadline(&context);
-  absl::Status status =
-      FromGrpc(stub_->SetPriority(&context, request, &response), "SetPriority",
-               target_);
+  absl::Status status = FromGrpc(
+      stub_->SetPriority(&context, request, &response), "SetPriority", target_);
   if (!status.ok()) return status;
   return response;
 }

@@ -231,7 +231,8 @@ int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
     *io.err << "skerry: " << loaded.status().message() << "\n";
     return kExitUsage;
   }
-  absl::StatusOr<RunSummary> run = client.Submit(loaded->spec, loaded->text, priority);
+  absl::StatusOr<RunSummary> run =
+      client.Submit(loaded->spec, loaded->text, priority);
   if (!run.ok()) return ReportError(run.status(), io);
   *run_id = run->id();
   *io.out << run->id() << "\n" << std::flush;

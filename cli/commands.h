@@ -81,8 +81,7 @@ struct LoadedSpec {
 absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path);
 
 // Prints a usage error and the `--help` hint for `command`; returns 2.
-int UsageFailure(const absl::Status& status, absl::string_view command,
-                 Io& io);
+int UsageFailure(const absl::Status& status, absl::string_view command, Io& io);
 
 // Protobuf's JSON mapping of `m`, one line ending in "\n"; Internal when it
 // cannot be encoded.

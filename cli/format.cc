@@ -9,8 +9,8 @@
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "google/protobuf/util/json_util.h"
-#include "server/lineage/dot.h"
 #include "google/protobuf/wrappers.pb.h"
+#include "server/lineage/dot.h"
 
 namespace skerry::cli {
 namespace {
@@ -141,11 +141,12 @@ std::string FormatRunList(const std::vector<RunSummary>& runs,
 std::string FormatValidationState(const skerry::v1::Validation& v) {
   switch (v.state()) {
     case skerry::v1::VALIDATION_DONE:
-      return absl::StrCat("score ", FormatScore(v.score()), " on ", v.cases(),
-                          v.cases() == 1 ? " held-out case" : " held-out cases");
+      return absl::StrCat(
+          "score ", FormatScore(v.score()), " on ", v.cases(),
+          v.cases() == 1 ? " held-out case" : " held-out cases");
     case skerry::v1::VALIDATION_FAILED:
-      return absl::StrCat("failed after ", v.attempts(), " attempts: ",
-                          v.error());
+      return absl::StrCat("failed after ", v.attempts(),
+                          " attempts: ", v.error());
     default:
       return v.attempts() == 0
                  ? "pending"
@@ -242,7 +243,8 @@ std::string FormatGenerationTable(const std::vector<GenerationStats>& history,
     if (row.islands == 0 || better) {
       row.best = stats.best();
       row.validation.reset();
-      if (stats.has_validation_score()) row.validation = stats.validation_score();
+      if (stats.has_validation_score())
+        row.validation = stats.validation_score();
     }
     row.mean_sum += stats.mean();
     row.evaluations += stats.evaluations();
@@ -260,9 +262,9 @@ std::string FormatGenerationTable(const std::vector<GenerationStats>& history,
                     FormatScore(row.mean_sum / row.islands),
                     FormatCount(row.evaluations), absl::StrCat(row.islands)});
     if (validated) {
-      rows.back().insert(rows.back().begin() + 2,
-                         row.validation.has_value() ? FormatScore(*row.validation)
-                                                    : "-");
+      rows.back().insert(
+          rows.back().begin() + 2,
+          row.validation.has_value() ? FormatScore(*row.validation) : "-");
     }
   }
   std::string out;
@@ -271,14 +273,13 @@ std::string FormatGenerationTable(const std::vector<GenerationStats>& history,
                     " earlier generations not shown; --all shows every one)\n");
   }
   if (validated) {
-    absl::StrAppend(
-        &out, FormatTable({"GEN", "BEST", "VALIDATION", "MEAN", "EVALS",
-                           "ISLANDS"},
-                          rows, {0, 1, 2, 3, 4, 5}));
+    absl::StrAppend(&out, FormatTable({"GEN", "BEST", "VALIDATION", "MEAN",
+                                       "EVALS", "ISLANDS"},
+                                      rows, {0, 1, 2, 3, 4, 5}));
   } else {
-    absl::StrAppend(&out,
-                    FormatTable({"GEN", "BEST", "MEAN", "EVALS", "ISLANDS"},
-                                rows, {0, 1, 2, 3, 4}));
+    absl::StrAppend(
+        &out, FormatTable({"GEN", "BEST", "MEAN", "EVALS", "ISLANDS"}, rows,
+                          {0, 1, 2, 3, 4}));
   }
   return out;
 }
@@ -324,7 +325,8 @@ std::string FormatProgressLine(const RunSummary& run,
     absl::StrAppend(&line, "  islands done ", done, "/", run.islands_size());
   }
   if (!run.coordinator_problem().empty()) {
-    absl::StrAppend(&line, "  [coordinator cannot write its database: work held]");
+    absl::StrAppend(&line,
+                    "  [coordinator cannot write its database: work held]");
   }
   if (run.dropped_updates() > 0) {
     absl::StrAppend(&line, "  [", run.dropped_updates(),

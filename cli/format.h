@@ -61,8 +61,9 @@ std::string FormatFailedGenomes(const skerry::v1::GetRunResponse& run);
 
 // Per generation over all islands: the best score (by `objective`), the
 // validation score of that champion (a column shown only when some generation
-// has one), the mean of the islands' means, and the islands that reported it. Only the last
-// `max_rows` generations (0: all), with a line saying how many were left out.
+// has one), the mean of the islands' means, and the islands that reported it.
+// Only the last `max_rows` generations (0: all), with a line saying how many
+// were left out.
 std::string FormatGenerationTable(
     const std::vector<skerry::v1::GenerationStats>& history,
     skerry::v1::Objective objective, size_t max_rows);

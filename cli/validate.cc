@@ -96,7 +96,8 @@ class Calls {
 };
 
 int ValidateCommand(const ParsedArgs& args, Calls& calls, Io& io) {
-  absl::StatusOr<skerry::v1::GenomeRef> ref = ParseGenomeRef(args.positionals[0]);
+  absl::StatusOr<skerry::v1::GenomeRef> ref =
+      ParseGenomeRef(args.positionals[0]);
   if (!ref.ok()) return UsageFailure(ref.status(), args.command, io);
   uint32_t timeout = kDefaultValidateTimeoutSeconds;
   if (args.Has("timeout")) {
@@ -202,13 +203,13 @@ std::string FormatValidation(const Validation& v, absl::TimeZone zone) {
   };
   if (!v.requested_by().empty()) fields.push_back({"by", v.requested_by()});
   if (v.completed_unix_ms() != 0) {
-    fields.push_back({"completed", FormatTimestamp(v.completed_unix_ms(), zone)});
+    fields.push_back(
+        {"completed", FormatTimestamp(v.completed_unix_ms(), zone)});
   }
   if (v.copied_from() != 0) {
     fields.push_back(
-        {"copied from",
-         absl::StrCat("validation ", v.copied_from(),
-                      " (same genes, one generation earlier)")});
+        {"copied from", absl::StrCat("validation ", v.copied_from(),
+                                     " (same genes, one generation earlier)")});
   }
   std::string out;
   for (const auto& f : fields) {
@@ -222,13 +223,12 @@ std::string FormatValidationList(const std::vector<Validation>& list) {
   if (list.empty()) return "no validations yet\n";
   std::vector<std::vector<std::string>> rows;
   for (const Validation& v : list) {
-    rows.push_back({absl::StrCat(v.id()), absl::StrCat(v.genome_id()),
-                    KeyText(v.key()), ReasonName(v.reason()),
-                    StateName(v.state()), TrainingText(v),
-                    v.state() == skerry::v1::VALIDATION_DONE
-                        ? FormatScore(v.score())
-                        : "-",
-                    absl::StrCat(v.cases())});
+    rows.push_back(
+        {absl::StrCat(v.id()), absl::StrCat(v.genome_id()), KeyText(v.key()),
+         ReasonName(v.reason()), StateName(v.state()), TrainingText(v),
+         v.state() == skerry::v1::VALIDATION_DONE ? FormatScore(v.score())
+                                                  : "-",
+         absl::StrCat(v.cases())});
   }
   return FormatTable({"ID", "GENOME", "KEY", "REASON", "STATE", "TRAINING",
                       "VALIDATION", "CASES"},

@@ -1,5 +1,5 @@
-// The one seam for time. Intervals use the monotonic clock; stored timestamps use
-// wall time. Tests use FakeClock to move time forward instead of sleeping.
+// The one seam for time. Intervals use the monotonic clock; stored timestamps
+// use wall time. Tests use FakeClock to move time forward instead of sleeping.
 //
 // Thread safety: every Clock may be called from any thread.
 #ifndef SKERRY_COMMON_CLOCK_H_

@@ -133,9 +133,9 @@ std::vector<std::string> BuiltinNames() {
 absl::StatusOr<double> Evaluator::EvaluateCase(absl::Span<const double>,
                                                const std::string& case_name,
                                                uint64_t) {
-  return absl::FailedPreconditionError(absl::StrCat(
-      "validation case \"", case_name,
-      "\": this evaluator has no held-out validation cases"));
+  return absl::FailedPreconditionError(
+      absl::StrCat("validation case \"", case_name,
+                   "\": this evaluator has no held-out validation cases"));
 }
 
 absl::StatusOr<std::unique_ptr<Evaluator>> MakeEvaluator(

@@ -1,8 +1,9 @@
 // The evaluator interface and the built-in benchmark functions.
 //
-// An Evaluator turns genes (and an evaluation seed, for stochastic evaluators) into
-// a score. Workers create one Evaluator per evaluation thread, so an implementation
-// need not be thread-safe; Evaluate may be called many times on one instance.
+// An Evaluator turns genes (and an evaluation seed, for stochastic evaluators)
+// into a score. Workers create one Evaluator per evaluation thread, so an
+// implementation need not be thread-safe; Evaluate may be called many times on
+// one instance.
 #ifndef SKERRY_COMMON_EVALUATOR_H_
 #define SKERRY_COMMON_EVALUATOR_H_
 
@@ -31,8 +32,9 @@ class Evaluator {
                                               uint64_t seed);
 };
 
-// A built-in benchmark function: its name as written in a spec, its usual domain
-// (used as the default bounds), its known minimum, and the function itself.
+// A built-in benchmark function: its name as written in a spec, its usual
+// domain (used as the default bounds), its known minimum, and the function
+// itself.
 struct BuiltinFunction {
   const char* name;
   double lower;
@@ -45,7 +47,8 @@ const BuiltinFunction* FindBuiltin(absl::string_view name);
 // All built-in names, in a stable order.
 std::vector<std::string> BuiltinNames();
 
-// Makes the evaluator an EvaluatorSpec describes. InvalidArgument names the field.
+// Makes the evaluator an EvaluatorSpec describes. InvalidArgument names the
+// field.
 absl::StatusOr<std::unique_ptr<Evaluator>> MakeEvaluator(
     const skerry::v1::EvaluatorSpec& spec);
 

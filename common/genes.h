@@ -1,5 +1,5 @@
-// The genome codec: genes as packed little-endian IEEE-754 float64, the form the
-// store keeps in its BLOB column and the digest hashes.
+// The genome codec: genes as packed little-endian IEEE-754 float64, the form
+// the store keeps in its BLOB column and the digest hashes.
 #ifndef SKERRY_COMMON_GENES_H_
 #define SKERRY_COMMON_GENES_H_
 

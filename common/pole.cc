@@ -148,10 +148,10 @@ class PoleEvaluator : public Evaluator {
     uint32_t index = 0;
     if (!absl::StartsWith(case_name, "start-") ||
         !absl::SimpleAtoi(absl::string_view(case_name).substr(6), &index)) {
-      return absl::InvalidArgumentError(absl::StrCat(
-          "validation case \"", case_name,
-          "\": pole evaluators know the cases start-0 ... start-",
-          kGeneralisationStarts - 1));
+      return absl::InvalidArgumentError(
+          absl::StrCat("validation case \"", case_name,
+                       "\": pole evaluators know the cases start-0 ... start-",
+                       kGeneralisationStarts - 1));
     }
     absl::StatusOr<uint64_t> steps = RunGeneralisationCase(spec_, genes, index);
     if (!steps.ok()) return steps.status();

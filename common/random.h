@@ -1,13 +1,13 @@
 // Counter-based random streams: the only source of randomness in a run.
 //
 // A stream is named by (run seed, island, generation, purpose, slot). Its n-th
-// 128-bit block is Philox4x32-10 (Salmon, Moraes, Dror & Shaw 2011, "Parallel random
-// numbers: as easy as 1, 2, 3") of the counter
+// 128-bit block is Philox4x32-10 (Salmon, Moraes, Dror & Shaw 2011, "Parallel
+// random numbers: as easy as 1, 2, 3") of the counter
 //     c0 = n, c1 = slot, c2 = generation, c3 = (purpose << 16) | island
 // under the 64-bit key = run seed (k0 = low 32 bits, k1 = high 32 bits).
-// Nothing depends on which thread, process or machine draws, nor on the order in
-// which streams are used: the same name always yields the same numbers. That is
-// what makes a run a pure function of (spec, seed).
+// Nothing depends on which thread, process or machine draws, nor on the order
+// in which streams are used: the same name always yields the same numbers. That
+// is what makes a run a pure function of (spec, seed).
 //
 // Thread safety: a RandomStream is a small value; use one per thread.
 #ifndef SKERRY_COMMON_RANDOM_H_

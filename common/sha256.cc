@@ -23,8 +23,8 @@ inline uint32_t Rotr(uint32_t x, int n) { return (x >> n) | (x << (32 - n)); }
 }  // namespace
 
 Sha256::Sha256()
-    : h_{0x6a09e667, 0xbb67ae85, 0x3c6ef372, 0xa54ff53a, 0x510e527f,
-         0x9b05688c, 0x1f83d9ab, 0x5be0cd19} {}
+    : h_{0x6a09e667, 0xbb67ae85, 0x3c6ef372, 0xa54ff53a,
+         0x510e527f, 0x9b05688c, 0x1f83d9ab, 0x5be0cd19} {}
 
 void Sha256::Block(const uint8_t* p) {
   uint32_t w[64];
@@ -33,8 +33,10 @@ void Sha256::Block(const uint8_t* p) {
            (uint32_t{p[4 * i + 2]} << 8) | uint32_t{p[4 * i + 3]};
   }
   for (int i = 16; i < 64; ++i) {
-    const uint32_t s0 = Rotr(w[i - 15], 7) ^ Rotr(w[i - 15], 18) ^ (w[i - 15] >> 3);
-    const uint32_t s1 = Rotr(w[i - 2], 17) ^ Rotr(w[i - 2], 19) ^ (w[i - 2] >> 10);
+    const uint32_t s0 =
+        Rotr(w[i - 15], 7) ^ Rotr(w[i - 15], 18) ^ (w[i - 15] >> 3);
+    const uint32_t s1 =
+        Rotr(w[i - 2], 17) ^ Rotr(w[i - 2], 19) ^ (w[i - 2] >> 10);
     w[i] = w[i - 16] + s0 + w[i - 7] + s1;
   }
   uint32_t a = h_[0], b = h_[1], c = h_[2], d = h_[3], e = h_[4], f = h_[5],
@@ -103,11 +105,13 @@ std::array<uint8_t, 32> Sha256::Finish() {
     used_ = 0;
   }
   while (used_ < 56) buf_[used_++] = 0;
-  for (int i = 7; i >= 0; --i) buf_[used_++] = static_cast<uint8_t>(bits >> (8 * i));
+  for (int i = 7; i >= 0; --i)
+    buf_[used_++] = static_cast<uint8_t>(bits >> (8 * i));
   Block(buf_.data());
   std::array<uint8_t, 32> out;
   for (int i = 0; i < 8; ++i) {
-    for (int j = 0; j < 4; ++j) out[4 * i + j] = static_cast<uint8_t>(h_[i] >> (24 - 8 * j));
+    for (int j = 0; j < 4; ++j)
+      out[4 * i + j] = static_cast<uint8_t>(h_[i] >> (24 - 8 * j));
   }
   return out;
 }

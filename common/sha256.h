@@ -1,5 +1,5 @@
-// SHA-256 (FIPS 180-4), for run digests: a hash of a run's genomes that lets two
-// people prove their runs are the same. Not used for anything secret.
+// SHA-256 (FIPS 180-4), for run digests: a hash of a run's genomes that lets
+// two people prove their runs are the same. Not used for anything secret.
 //
 // Thread safety: a Sha256 object is used by one thread at a time.
 #ifndef SKERRY_COMMON_SHA256_H_

@@ -288,20 +288,22 @@ absl::Status CheckMigration(const RunSpec& spec, uint32_t min_pop) {
       in_degree = isl.count() - 1;
     }
     const uint64_t arrivals = in_degree * isl.migrants();
-    const uint64_t taken = arrivals + spec.ga().elites() + spec.ga().immigrants();
+    const uint64_t taken =
+        arrivals + spec.ga().elites() + spec.ga().immigrants();
     if (taken >= min_pop) {
-      s = Bad("islands.migrants",
-              absl::StrCat("each epoch brings ", arrivals,
-                           " migrants to an island (", in_degree, " sources x ",
-                           isl.migrants(), "); with ", spec.ga().elites(),
-                           " elites and ", spec.ga().immigrants(),
-                           " immigrants no slot is left for offspring"),
-              absl::StrCat("[1, ", (min_pop - 1 - spec.ga().elites() -
-                                    std::min<uint64_t>(spec.ga().immigrants(),
-                                                       min_pop)) /
-                                       in_degree,
-                           "]"),
-              absl::StrCat(isl.migrants()));
+      s = Bad(
+          "islands.migrants",
+          absl::StrCat("each epoch brings ", arrivals,
+                       " migrants to an island (", in_degree, " sources x ",
+                       isl.migrants(), "); with ", spec.ga().elites(),
+                       " elites and ", spec.ga().immigrants(),
+                       " immigrants no slot is left for offspring"),
+          absl::StrCat("[1, ",
+                       (min_pop - 1 - spec.ga().elites() -
+                        std::min<uint64_t>(spec.ga().immigrants(), min_pop)) /
+                           in_degree,
+                       "]"),
+          absl::StrCat(isl.migrants()));
     }
   }
   return s;
@@ -335,15 +337,17 @@ absl::Status CheckNetworkRun(const RunSpec& spec) {
 // (its PATH, its files), so submit checks the shape alone.
 absl::Status CheckExternal(const skerry::v1::ExternalEvaluator& ext) {
   if (ext.argv().empty() || ext.argv(0).empty()) {
-    return Bad("evaluator.external.argv", "no program given",
-               "the program then its arguments, e.g. argv: \"/usr/bin/python3\"",
-               ext.argv().empty() ? "nothing" : "an empty argv[0]");
+    return Bad(
+        "evaluator.external.argv", "no program given",
+        "the program then its arguments, e.g. argv: \"/usr/bin/python3\"",
+        ext.argv().empty() ? "nothing" : "an empty argv[0]");
   }
   for (const auto& entry : ext.env()) {
     const std::string& name = entry.first;
     if (name.empty() || name.find('=') != std::string::npos) {
       return Bad("evaluator.external.env", "bad variable name",
-                 "a non-empty name without '='", absl::StrCat("\"", name, "\""));
+                 "a non-empty name without '='",
+                 absl::StrCat("\"", name, "\""));
     }
   }
   return absl::OkStatus();
@@ -362,9 +366,9 @@ absl::Status CheckEvaluator(const RunSpec& spec) {
       return s;
     }
     if (episodes.aggregate() != skerry::v1::AGGREGATE_UNSPECIFIED) {
-      if (absl::Status s = CheckEnum("evaluator.episodes.aggregate",
-                                     episodes.aggregate(),
-                                     skerry::v1::EpisodeAggregate_descriptor());
+      if (absl::Status s =
+              CheckEnum("evaluator.episodes.aggregate", episodes.aggregate(),
+                        skerry::v1::EpisodeAggregate_descriptor());
           !s.ok()) {
         return s;
       }

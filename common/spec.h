@@ -1,9 +1,9 @@
 // Run specs: parsing from protobuf text format, default filling and validation.
 //
-// NormalizeSpec fills every default (documented in spec.proto) so that the stored
-// spec means the same forever; ValidateSpec then checks every field and names the
-// first bad one with its allowed range. The coordinator runs both on every submitted
-// spec; the CLI runs them too, to answer faster.
+// NormalizeSpec fills every default (documented in spec.proto) so that the
+// stored spec means the same forever; ValidateSpec then checks every field and
+// names the first bad one with its allowed range. The coordinator runs both on
+// every submitted spec; the CLI runs them too, to answer faster.
 #ifndef SKERRY_COMMON_SPEC_H_
 #define SKERRY_COMMON_SPEC_H_
 
@@ -16,8 +16,8 @@
 
 namespace skerry {
 
-// Parses text format. A syntax error is InvalidArgument "FILE:LINE:COLUMN: message"
-// (1-based line and column).
+// Parses text format. A syntax error is InvalidArgument "FILE:LINE:COLUMN:
+// message" (1-based line and column).
 absl::StatusOr<skerry::v1::RunSpec> ParseSpecText(absl::string_view text,
                                                   absl::string_view filename);
 

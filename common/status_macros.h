@@ -8,9 +8,9 @@
 #include "absl/status/status.h"
 #include "absl/status/statusor.h"
 
-#define SKERRY_RETURN_IF_ERROR(expr)      \
-  do {                                    \
-    const absl::Status skerry_st_ = (expr); \
+#define SKERRY_RETURN_IF_ERROR(expr)         \
+  do {                                       \
+    const absl::Status skerry_st_ = (expr);  \
     if (!skerry_st_.ok()) return skerry_st_; \
   } while (0)
 
@@ -18,7 +18,7 @@
 #define SKERRY_STATUS_CONCAT_(a, b) SKERRY_STATUS_CONCAT_INNER_(a, b)
 
 // lhs may declare a variable: SKERRY_ASSIGN_OR_RETURN(auto x, F());
-#define SKERRY_ASSIGN_OR_RETURN(lhs, expr)                                  \
+#define SKERRY_ASSIGN_OR_RETURN(lhs, expr)                                   \
   SKERRY_ASSIGN_OR_RETURN_IMPL_(SKERRY_STATUS_CONCAT_(skerry_so_, __LINE__), \
                                 lhs, expr)
 #define SKERRY_ASSIGN_OR_RETURN_IMPL_(tmp, lhs, expr) \

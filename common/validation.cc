@@ -85,8 +85,9 @@ absl::Status CheckValidation(const EvaluatorSpec& spec) {
     return absl::OkStatus();
   }
   if (spec.kind_case() != EvaluatorSpec::kExternal) {
-    return Bad("", "built-in functions have no held-out cases (validation "
-                   "needs a pole evaluator or an external program)");
+    return Bad("",
+               "built-in functions have no held-out cases (validation "
+               "needs a pole evaluator or an external program)");
   }
   if (v.generalisation()) {
     return Bad(".generalisation",
@@ -95,12 +96,13 @@ absl::Status CheckValidation(const EvaluatorSpec& spec) {
   }
   const size_t total = static_cast<size_t>(v.cases_size() + v.seeds_size());
   if (total == 0) {
-    return Bad("", "no cases: give `cases` (names) or `seeds`, or leave "
-                   "validation out");
+    return Bad("",
+               "no cases: give `cases` (names) or `seeds`, or leave "
+               "validation out");
   }
   if (total > kMaxValidationCases) {
-    return Bad("", absl::StrCat("at most ", kMaxValidationCases,
-                                " cases (got ", total, ")"));
+    return Bad("", absl::StrCat("at most ", kMaxValidationCases, " cases (got ",
+                                total, ")"));
   }
   std::set<std::string> seen;
   for (int i = 0; i < v.cases_size(); ++i) {
@@ -139,8 +141,8 @@ std::vector<ValidationCase> ValidationCases(const EvaluatorSpec& spec,
     return out;
   }
   for (int i = 0; i < v.cases_size(); ++i) {
-    RandomStream stream({run_seed, 0, 0, StreamPurpose::kValidation,
-                         static_cast<uint32_t>(i)});
+    RandomStream stream(
+        {run_seed, 0, 0, StreamPurpose::kValidation, static_cast<uint32_t>(i)});
     out.push_back({v.cases(i), stream.NextU64()});
   }
   for (uint64_t seed : v.seeds()) {
@@ -161,11 +163,12 @@ absl::StatusOr<double> ValidateGenes(Evaluator& evaluator,
   std::vector<double> scores;
   scores.reserve(cases.size());
   for (const ValidationCase& c : cases) {
-    absl::StatusOr<double> score = evaluator.EvaluateCase(genes, c.name, c.seed);
+    absl::StatusOr<double> score =
+        evaluator.EvaluateCase(genes, c.name, c.seed);
     if (!score.ok()) {
       return absl::Status(score.status().code(),
-                          absl::StrCat("validation case \"", c.name, "\": ",
-                                       score.status().message()));
+                          absl::StrCat("validation case \"", c.name,
+                                       "\": ", score.status().message()));
     }
     if (!std::isfinite(*score)) {
       return absl::InvalidArgumentError(

@@ -24,6 +24,7 @@ PACKAGES=(
   libboost-dev
   python3
   openssl
+  clang-format
 )
 
 installed() {

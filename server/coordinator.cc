@@ -36,9 +36,11 @@ class CoordinatorImpl final : public Coordinator {
       const CoordinatorOptions& options) {
     std::unique_ptr<CoordinatorImpl> c(new CoordinatorImpl());
     c->clock_ = options.clock != nullptr ? options.clock : Clock::Real();
-    SKERRY_ASSIGN_OR_RETURN(c->owner_, store::OwnerLock::Acquire(options.db_path));
+    SKERRY_ASSIGN_OR_RETURN(c->owner_,
+                            store::OwnerLock::Acquire(options.db_path));
     SKERRY_ASSIGN_OR_RETURN(c->store_, store::Store::Open(options.db_path));
-    c->queue_ = std::make_unique<scheduler::TaskQueue>(c->clock_, options.lease);
+    c->queue_ =
+        std::make_unique<scheduler::TaskQueue>(c->clock_, options.lease);
     SKERRY_ASSIGN_OR_RETURN(
         c->engine_,
         engine::Engine::Open(c->store_.get(), c->queue_.get(), c->clock_));
@@ -136,7 +138,7 @@ class CoordinatorImpl final : public Coordinator {
       shut_down_ = true;
     }
     // Any part may be missing when Make() failed half-way.
-    if (queue_ != nullptr) queue_->Shutdown();  // wakes long polls
+    if (queue_ != nullptr) queue_->Shutdown();       // wakes long polls
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
     if (server_ != nullptr) {
       server_->Shutdown(std::chrono::system_clock::now() +

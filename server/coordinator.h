@@ -25,10 +25,10 @@ struct CoordinatorOptions {
   // host:port; port 0 picks a free one (see Coordinator::port()). Empty: no
   // network listener (in-process channels only, as `skerry local` uses).
   std::string listen_address = "127.0.0.1:7431";
-  absl::Duration lease = absl::Seconds(30);         // task lease without renewal
+  absl::Duration lease = absl::Seconds(30);  // task lease without renewal
   absl::Duration max_lease_wait = absl::Seconds(10);  // long-poll cap
   size_t max_watchers = 256;  // concurrent WatchRun streams (watch_hub.h)
-  Clock* clock = nullptr;                           // default: Clock::Real()
+  Clock* clock = nullptr;     // default: Clock::Real()
   // When tokens are checked (server/auth/access_control.h). `skerry local`,
   // which has no listener, uses kOff.
   auth::AuthMode auth = auth::AuthMode::kAuto;

@@ -43,14 +43,15 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
 )";
 }
 
-absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
-                                                       const char* const* argv) {
+absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
+    int argc, const char* const* argv) {
   CoordinatorFlags f;
   for (int i = 1; i < argc; ++i) {
     const std::string arg = argv[i];
     auto value = [&](const char* name) -> absl::StatusOr<std::string> {
       if (i + 1 >= argc) {
-        return absl::InvalidArgumentError(absl::StrCat(name, ": needs a value"));
+        return absl::InvalidArgumentError(
+            absl::StrCat(name, ": needs a value"));
       }
       return std::string(argv[++i]);
     };
@@ -60,9 +61,9 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
       if (!v.ok()) return v.status();
       double d = 0;
       if (!absl::SimpleAtod(*v, &d) || !(d >= lo && d <= hi)) {
-        return absl::InvalidArgumentError(absl::StrCat(
-            name, ": expected a number from ", lo, " to ", hi, ", got \"", *v,
-            "\""));
+        return absl::InvalidArgumentError(
+            absl::StrCat(name, ": expected a number from ", lo, " to ", hi,
+                         ", got \"", *v, "\""));
       }
       return d;
     };
@@ -106,8 +107,8 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(int argc,
       absl::StatusOr<double> v = number("--max-watchers", 1, 100000);
       if (!v.ok()) return v.status();
       if (*v != static_cast<double>(static_cast<size_t>(*v))) {
-        return absl::InvalidArgumentError(absl::StrCat(
-            "--max-watchers: expected a whole number, got ", *v));
+        return absl::InvalidArgumentError(
+            absl::StrCat("--max-watchers: expected a whole number, got ", *v));
       }
       f.options.max_watchers = static_cast<size_t>(*v);
     } else if (arg == "--max-wait-ms") {

@@ -12,7 +12,7 @@ namespace skerry::server {
 struct CoordinatorFlags {
   CoordinatorOptions options;
   bool help = false;
-  std::string check_db;  // --check DB: check and exit
+  std::string check_db;    // --check DB: check and exit
   std::string init_admin;  // --init-admin NAME: make the first admin and exit
 };
 

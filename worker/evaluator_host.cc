@@ -36,10 +36,11 @@ EvaluationResponse Answer(
   try {
     const auto genes =
         absl::MakeConstSpan(request.genes().data(), request.genes().size());
-    score = request.case_name().empty()
-                ? (*evaluator)->Evaluate(genes, request.seed())
-                : (*evaluator)->EvaluateCase(genes, request.case_name(),
-                                             request.seed());
+    score =
+        request.case_name().empty()
+            ? (*evaluator)->Evaluate(genes, request.seed())
+            : (*evaluator)
+                  ->EvaluateCase(genes, request.case_name(), request.seed());
   } catch (const std::exception& e) {
     score = absl::InternalError(absl::StrCat("evaluator threw: ", e.what()));
   } catch (...) {

@@ -163,7 +163,8 @@ class Worker::Impl {
     // A cancellable call is cancelled by Stop(). A Report is not: cancelling
     // it could lose the answer to a report the coordinator already committed,
     // and the results would be sent twice; it ends within its deadline.
-    ScopedCall(Impl* impl, grpc::ClientContext* context, bool cancellable = true);
+    ScopedCall(Impl* impl, grpc::ClientContext* context,
+               bool cancellable = true);
     ~ScopedCall();
 
    private:

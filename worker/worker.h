@@ -1,8 +1,9 @@
 // The stateless worker: joins a coordinator, leases batches of tasks, evaluates
-// them on N threads, reports batches of results, and leases the next batch while
-// the current one is evaluated. When the coordinator is away it retries with
-// capped exponential backoff and joins again; the only state it ever holds is its
-// current lease, which is safe to lose (the coordinator re-offers expired tasks).
+// them on N threads, reports batches of results, and leases the next batch
+// while the current one is evaluated. When the coordinator is away it retries
+// with capped exponential backoff and joins again; the only state it ever holds
+// is its current lease, which is safe to lose (the coordinator re-offers
+// expired tasks).
 //
 // Thread safety: Run() is called once, from one thread; Stop() from any thread.
 #ifndef SKERRY_WORKER_WORKER_H_
@@ -22,11 +23,11 @@
 namespace skerry::worker {
 
 struct WorkerOptions {
-  std::string name;           // default: host name and pid
-  int threads = 1;            // evaluation threads
-  uint32_t batch = 0;         // tasks per lease; 0: 4 x threads
-  absl::Duration wait = absl::Seconds(5);            // long-poll bound
-  absl::Duration rpc_deadline = absl::Seconds(30);   // per RPC, beyond the wait
+  std::string name;                        // default: host name and pid
+  int threads = 1;                         // evaluation threads
+  uint32_t batch = 0;                      // tasks per lease; 0: 4 x threads
+  absl::Duration wait = absl::Seconds(5);  // long-poll bound
+  absl::Duration rpc_deadline = absl::Seconds(30);  // per RPC, beyond the wait
   absl::Duration max_backoff = absl::Seconds(10);
   absl::Duration report_interval = absl::Milliseconds(200);  // flush bound
   // Stop after this many results have been reported (0: never). For tests and

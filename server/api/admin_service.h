@@ -16,11 +16,12 @@ namespace skerry::api {
 
 class AdminServiceImpl final : public skerry::v1::AdminService::Service {
  public:
-  explicit AdminServiceImpl(std::string db_path) : db_path_(std::move(db_path)) {}
+  explicit AdminServiceImpl(std::string db_path)
+      : db_path_(std::move(db_path)) {}
 
-  grpc::Status Backup(grpc::ServerContext* ctx,
-                      const skerry::v1::BackupRequest* req,
-                      grpc::ServerWriter<skerry::v1::BackupChunk>* writer) override;
+  grpc::Status Backup(
+      grpc::ServerContext* ctx, const skerry::v1::BackupRequest* req,
+      grpc::ServerWriter<skerry::v1::BackupChunk>* writer) override;
 
  private:
   const std::string db_path_;

@@ -23,9 +23,9 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
                                     const skerry::v1::JoinRequest* req,
                                     skerry::v1::JoinResponse* resp) {
   if (req->threads() < 1 || req->threads() > 4096) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("threads: must be from 1 to 4096, got ",
-                                     req->threads()));
+    return grpc::Status(
+        grpc::StatusCode::INVALID_ARGUMENT,
+        absl::StrCat("threads: must be from 1 to 4096, got ", req->threads()));
   }
   if (req->name().size() > 256 || req->host().size() > 256 ||
       req->version().size() > 256) {
@@ -33,7 +33,8 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
                         "name, host and version must be at most 256 bytes");
   }
   size_t evaluator_bytes = 0;
-  for (const std::string& e : req->evaluators()) evaluator_bytes += e.size() + 1;
+  for (const std::string& e : req->evaluators())
+    evaluator_bytes += e.size() + 1;
   if (req->evaluators_size() > 1000 || evaluator_bytes > 64 * 1024) {
     return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
                         "evaluators: at most 1000 names and 64 KiB");
@@ -54,7 +55,7 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
     // map for good; such a worker gets NOT_FOUND and joins again.
     for (auto it = last_seen_.begin(); it != last_seen_.end();) {
       it = now - it->second > absl::Hours(1) ? last_seen_.erase(it)
-                                              : std::next(it);
+                                             : std::next(it);
     }
     last_seen_[static_cast<uint64_t>(*id)] = now;
   }
@@ -82,13 +83,12 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
   grpc::Status known = CheckWorker(req->worker_id());
   if (!known.ok()) return known;
   if (req->max_tasks() == 0 || req->max_tasks() > kMaxTasksPerLease) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("max_tasks: must be from 1 to ",
-                                     kMaxTasksPerLease, ", got ",
-                                     req->max_tasks()));
+    return grpc::Status(
+        grpc::StatusCode::INVALID_ARGUMENT,
+        absl::StrCat("max_tasks: must be from 1 to ", kMaxTasksPerLease,
+                     ", got ", req->max_tasks()));
   }
-  absl::Duration wait =
-      std::min(absl::Milliseconds(req->wait_ms()), max_wait_);
+  absl::Duration wait = std::min(absl::Milliseconds(req->wait_ms()), max_wait_);
   // Answer before the caller's deadline, with a margin for the reply.
   const absl::Duration left =
       absl::FromChrono(ctx->deadline()) - absl::Now() - absl::Milliseconds(200);
@@ -107,10 +107,10 @@ grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
   if (!known.ok()) return known;
   if (req->results_size() > kMaxResultsPerReport ||
       req->held_task_ids_size() > kMaxResultsPerReport) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("a report may carry at most ",
-                                     kMaxResultsPerReport,
-                                     " results and held task ids"));
+    return grpc::Status(
+        grpc::StatusCode::INVALID_ARGUMENT,
+        absl::StrCat("a report may carry at most ", kMaxResultsPerReport,
+                     " results and held task ids"));
   }
   queue_->Renew(static_cast<int64_t>(req->worker_id()),
                 {req->held_task_ids().data(),

@@ -1,10 +1,11 @@
 // FleetService: the workers' side of the coordinator (Join, Lease, Report).
 //
 // It checks every message from outside before anything reaches the engine: a
-// worker must have joined (an unknown id gets NOT_FOUND, "join again"), sizes are
-// bounded, and a Report is answered only after its results are committed.
+// worker must have joined (an unknown id gets NOT_FOUND, "join again"), sizes
+// are bounded, and a Report is answered only after its results are committed.
 //
-// Thread safety: gRPC calls the handlers from many threads; all state is guarded.
+// Thread safety: gRPC calls the handlers from many threads; all state is
+// guarded.
 #ifndef SKERRY_SERVER_API_FLEET_SERVICE_H_
 #define SKERRY_SERVER_API_FLEET_SERVICE_H_
 
@@ -31,7 +32,8 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
                    scheduler::TaskQueue* queue, Clock* clock,
                    absl::Duration max_wait);
 
-  grpc::Status Join(grpc::ServerContext* ctx, const skerry::v1::JoinRequest* req,
+  grpc::Status Join(grpc::ServerContext* ctx,
+                    const skerry::v1::JoinRequest* req,
                     skerry::v1::JoinResponse* resp) override;
   grpc::Status Lease(grpc::ServerContext* ctx,
                      const skerry::v1::LeaseRequest* req,

@@ -44,9 +44,9 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
                                        const skerry::v1::SubmitRunRequest* req,
                                        skerry::v1::SubmitRunResponse* resp) {
   if (req->spec_text().size() > kMaxSpecTextBytes) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("spec_text: at most ", kMaxSpecTextBytes,
-                                     " bytes"));
+    return grpc::Status(
+        grpc::StatusCode::INVALID_ARGUMENT,
+        absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes"));
   }
   std::optional<auth::Caller> caller = access_->CallerOf(ctx);
   const std::string owner =
@@ -87,7 +87,8 @@ grpc::Status RunServiceImpl::GetRun(grpc::ServerContext* ctx,
     absl::StatusOr<std::vector<store::GenomeRecord>> list =
         store_->FailedGenomes(rec->id, 20);
     if (!list.ok()) return ToGrpc(list.status());
-    for (const store::GenomeRecord& g : *list) *resp->add_failed() = ToGenomeProto(g);
+    for (const store::GenomeRecord& g : *list)
+      *resp->add_failed() = ToGenomeProto(g);
   }
   if (rec->champion_id != 0) {
     absl::StatusOr<std::optional<store::ValidationRecord>> v =
@@ -135,24 +136,24 @@ grpc::Status RunServiceImpl::SetPriority(
   return Summarise(RunId(req->run_id()), resp);
 }
 
-grpc::Status RunServiceImpl::GetChampion(grpc::ServerContext* ctx,
-                                         const skerry::v1::RunRef* req,
-                                         skerry::v1::GetChampionResponse* resp) {
+grpc::Status RunServiceImpl::GetChampion(
+    grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+    skerry::v1::GetChampionResponse* resp) {
   absl::StatusOr<std::optional<store::GenomeRecord>> best =
       store_->BestGenome(RunId(req->run_id()));
   if (!best.ok()) return ToGrpc(best.status());
   if (!best->has_value()) {
-    return grpc::Status(grpc::StatusCode::NOT_FOUND,
-                        absl::StrCat("run ", req->run_id(),
-                                     " has no evaluated genome yet"));
+    return grpc::Status(
+        grpc::StatusCode::NOT_FOUND,
+        absl::StrCat("run ", req->run_id(), " has no evaluated genome yet"));
   }
   *resp->mutable_genome() = ToGenomeProto(**best);
   return grpc::Status::OK;
 }
 
-grpc::Status RunServiceImpl::GetHistory(grpc::ServerContext* ctx,
-                                        const skerry::v1::GetHistoryRequest* req,
-                                        skerry::v1::GetHistoryResponse* resp) {
+grpc::Status RunServiceImpl::GetHistory(
+    grpc::ServerContext* ctx, const skerry::v1::GetHistoryRequest* req,
+    skerry::v1::GetHistoryResponse* resp) {
   absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
   if (!rec.ok()) return ToGrpc(rec.status());
   std::optional<uint32_t> island;

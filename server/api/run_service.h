@@ -5,14 +5,14 @@
 // WatchRun is a callback method served by the watch hub (watch_hub.h): no
 // server thread waits on a watcher.
 //
-// Thread safety: gRPC calls the handlers from many threads; the service holds no
-// state of its own beyond the watch hub.
+// Thread safety: gRPC calls the handlers from many threads; the service holds
+// no state of its own beyond the watch hub.
 #ifndef SKERRY_SERVER_API_RUN_SERVICE_H_
 #define SKERRY_SERVER_API_RUN_SERVICE_H_
 
 #include "server/api/fleet_service.h"
-#include "server/auth/access_control.h"
 #include "server/api/watch_hub.h"
+#include "server/auth/access_control.h"
 #include "server/engine/engine.h"
 #include "server/store/store.h"
 #include "skerry/v1/runs.grpc.pb.h"
@@ -50,7 +50,8 @@ class RunServiceImpl final
                       skerry::v1::GetRunResponse* resp) override;
   grpc::Status PauseRun(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
                         skerry::v1::RunSummary* resp) override;
-  grpc::Status ResumeRun(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+  grpc::Status ResumeRun(grpc::ServerContext* ctx,
+                         const skerry::v1::RunRef* req,
                          skerry::v1::RunSummary* resp) override;
   grpc::Status StopRun(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
                        skerry::v1::RunSummary* resp) override;
@@ -60,7 +61,8 @@ class RunServiceImpl final
   grpc::Status GetHistory(grpc::ServerContext* ctx,
                           const skerry::v1::GetHistoryRequest* req,
                           skerry::v1::GetHistoryResponse* resp) override;
-  grpc::Status GetDigest(grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
+  grpc::Status GetDigest(grpc::ServerContext* ctx,
+                         const skerry::v1::RunRef* req,
                          skerry::v1::DigestResponse* resp) override;
   grpc::Status SetPriority(grpc::ServerContext* ctx,
                            const skerry::v1::SetPriorityRequest* req,

@@ -55,9 +55,9 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
       for (const store::GenomeRecord& g : generation) {
         if (g.slot == k.slot()) return g.id;
       }
-      return absl::NotFoundError(absl::StrCat(
-          "genome ", k.run_id(), "/", k.island(), "/", k.generation(), "/",
-          k.slot(), " not found"));
+      return absl::NotFoundError(absl::StrCat("genome ", k.run_id(), "/",
+                                              k.island(), "/", k.generation(),
+                                              "/", k.slot(), " not found"));
     }
     case skerry::v1::GenomeRef::kChampionOfRun: {
       SKERRY_ASSIGN_OR_RETURN(
@@ -75,9 +75,9 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
   }
 }
 
-grpc::Status ValidationServiceImpl::Validate(grpc::ServerContext* ctx,
-                                             const skerry::v1::ValidateRequest* req,
-                                             skerry::v1::Validation* resp) {
+grpc::Status ValidationServiceImpl::Validate(
+    grpc::ServerContext* ctx, const skerry::v1::ValidateRequest* req,
+    skerry::v1::Validation* resp) {
   absl::StatusOr<int64_t> id = ResolveGenome(store_, req->genome());
   if (!id.ok()) return ToGrpc(id.status());
   std::optional<auth::Caller> caller = access_->CallerOf(ctx);
@@ -112,8 +112,9 @@ grpc::Status ValidationServiceImpl::ListValidations(
   if (absl::Status s = store_->GetRun(run_id).status(); !s.ok()) {
     return ToGrpc(s);
   }
-  const uint32_t limit =
-      req->limit() == 0 ? kDefaultListLimit : std::min(req->limit(), kMaxListLimit);
+  const uint32_t limit = req->limit() == 0
+                             ? kDefaultListLimit
+                             : std::min(req->limit(), kMaxListLimit);
   absl::StatusOr<std::vector<store::ValidationRecord>> list =
       store_->ListValidations(run_id, static_cast<int>(limit));
   if (!list.ok()) return ToGrpc(list.status());

@@ -2,8 +2,8 @@
 // Requests go through the engine (stored before they are answered, then queued
 // for the fleet); reads come from the store.
 //
-// Thread safety: gRPC calls the handlers from many threads; the service holds no
-// state of its own.
+// Thread safety: gRPC calls the handlers from many threads; the service holds
+// no state of its own.
 #ifndef SKERRY_SERVER_API_VALIDATION_SERVICE_H_
 #define SKERRY_SERVER_API_VALIDATION_SERVICE_H_
 

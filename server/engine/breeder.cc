@@ -77,8 +77,8 @@ struct ScoredPool {
   size_t n_;
 };
 
-// The genome a migrant replaces in the breeding pool, per the replacement policy.
-// `taken` marks pool members already replaced this epoch.
+// The genome a migrant replaces in the breeding pool, per the replacement
+// policy. `taken` marks pool members already replaced this epoch.
 int ChooseVictim(const RunSpec& spec, absl::Span<const int> rank_of,
                  absl::Span<const int> order, const std::vector<bool>& taken,
                  RandomStream& rng) {
@@ -142,7 +142,8 @@ std::vector<const GenomeRecord*> ChooseEmigrants(
   const std::vector<int> order =
       RankBestFirst(scored.scores, scored.valid(), maximize);
   std::vector<int> rank_of(order.size());
-  for (size_t r = 0; r < order.size(); ++r) rank_of[order[r]] = static_cast<int>(r);
+  for (size_t r = 0; r < order.size(); ++r)
+    rank_of[order[r]] = static_cast<int>(r);
 
   const uint32_t generation = source.empty() ? 0 : source.front().generation;
   const uint32_t island = source.empty() ? 0 : source.front().island;
@@ -182,7 +183,8 @@ std::vector<const GenomeRecord*> ChooseEmigrants(
 }
 
 absl::StatusOr<std::vector<GenomeRecord>> Breed(
-    const RunSpec& spec, uint32_t island, absl::Span<const GenomeRecord> current,
+    const RunSpec& spec, uint32_t island,
+    absl::Span<const GenomeRecord> current,
     absl::Span<const GenomeRecord* const> migrants) {
   const uint32_t next_gen = current.front().generation + 1;
   const uint32_t n = IslandPopulation(spec, island);

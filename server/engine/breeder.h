@@ -2,19 +2,19 @@
 //
 // Seed() makes generation 0; Breed() makes generation g+1 from the completed
 // generation g (and, at a migration epoch, the migrants chosen from the source
-// islands' generation g). Both depend only on the spec, the seed and their inputs,
-// and draw every random number from streams named by (seed, island, generation,
-// purpose, slot) (common/random.h), so a generation is the same however and
-// wherever it is computed: this is the reproducibility contract.
+// islands' generation g). Both depend only on the spec, the seed and their
+// inputs, and draw every random number from streams named by (seed, island,
+// generation, purpose, slot) (common/random.h), so a generation is the same
+// however and wherever it is computed: this is the reproducibility contract.
 //
 // Layout of a bred generation of size N (slots in order):
 //   [0, E)            elites: copies of the E best of generation g
-//   [E, E+M)          migrants (epoch generations only), copies from other islands
-//   [E+M, N-I)        offspring: crossover (with probability rate) then mutation
-//   [N-I, N)          immigrants: fresh uniform genomes
-// Elites and migrants keep their score (no re-evaluation) unless the evaluator is
-// declared noisy. Migrants that would leave no offspring slot are dropped, in
-// source order (only possible with a RANDOM topology).
+//   [E, E+M)          migrants (epoch generations only), copies from other
+//   islands [E+M, N-I)        offspring: crossover (with probability rate) then
+//   mutation [N-I, N)          immigrants: fresh uniform genomes
+// Elites and migrants keep their score (no re-evaluation) unless the evaluator
+// is declared noisy. Migrants that would leave no offspring slot are dropped,
+// in source order (only possible with a RANDOM topology).
 //
 // Thread safety: pure functions; call from any thread.
 #ifndef SKERRY_SERVER_ENGINE_BREEDER_H_
@@ -33,7 +33,8 @@ namespace skerry::engine {
 using store::GenomeRecord;
 
 // Generation 0 of `island` (ids left 0, run_id left 0).
-std::vector<GenomeRecord> Seed(const skerry::v1::RunSpec& spec, uint32_t island);
+std::vector<GenomeRecord> Seed(const skerry::v1::RunSpec& spec,
+                               uint32_t island);
 
 // Chooses `count` emigrants from a completed generation per the spec's emigrant
 // choice (best, random, tournament of 2). Streams: (island of the source,
@@ -42,10 +43,10 @@ std::vector<const GenomeRecord*> ChooseEmigrants(
     const skerry::v1::RunSpec& spec, absl::Span<const GenomeRecord> source,
     uint32_t destination, uint32_t count);
 
-// Generation g+1 of `island` from its completed generation g (`current`, sorted by
-// slot, every genome EVALUATED or FAILED) and `migrants` (empty outside epochs).
-// InvalidArgument when selection cannot proceed (e.g. RAW scaling with a negative
-// score); the message names the generation.
+// Generation g+1 of `island` from its completed generation g (`current`, sorted
+// by slot, every genome EVALUATED or FAILED) and `migrants` (empty outside
+// epochs). InvalidArgument when selection cannot proceed (e.g. RAW scaling with
+// a negative score); the message names the generation.
 absl::StatusOr<std::vector<GenomeRecord>> Breed(
     const skerry::v1::RunSpec& spec, uint32_t island,
     absl::Span<const GenomeRecord> current,

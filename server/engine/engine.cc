@@ -118,8 +118,8 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
   runs_[record.id] = std::move(run);
   queue_->SetPaused(record.id, record.state == skerry::v1::PAUSED);
   // A hand-edited priority below 1 counts as 1; above the bound, as the bound.
-  queue_->SetWeight(record.id, static_cast<uint32_t>(
-                                   std::max<int32_t>(record.priority, 1)));
+  queue_->SetWeight(
+      record.id, static_cast<uint32_t>(std::max<int32_t>(record.priority, 1)));
   for (const Island& island : r.islands) {
     if (!island.done) QueueIsland(r, island);
   }
@@ -137,7 +137,8 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
     t.generation = island.generation;
     t.slot = g.slot;
     t.genes = g.genes;
-    t.eval_seed = EvalSeed(run.record.spec, island.index, island.generation, g.slot);
+    t.eval_seed =
+        EvalSeed(run.record.spec, island.index, island.generation, g.slot);
     t.evaluator = run.evaluator;
     t.attempts = g.attempts;
     tasks.push_back(std::move(t));
@@ -147,9 +148,9 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
 
 absl::Status Engine::CheckPriority(uint32_t priority) {
   if (priority < scheduler::kMinWeight || priority > scheduler::kMaxWeight) {
-    return absl::InvalidArgumentError(absl::StrCat(
-        "priority: must be from ", scheduler::kMinWeight, " to ",
-        scheduler::kMaxWeight, ", got ", priority));
+    return absl::InvalidArgumentError(
+        absl::StrCat("priority: must be from ", scheduler::kMinWeight, " to ",
+                     scheduler::kMaxWeight, ", got ", priority));
   }
   return absl::OkStatus();
 }
@@ -200,7 +201,8 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
 
   auto run = std::make_unique<Run>();
   run->record = rec;
-  run->evaluator = std::make_shared<skerry::v1::EvaluatorSpec>(prepared.evaluator());
+  run->evaluator =
+      std::make_shared<skerry::v1::EvaluatorSpec>(prepared.evaluator());
   run->islands.resize(prepared.islands().count());
   for (uint32_t i = 0; i < run->islands.size(); ++i) run->islands[i].index = i;
   for (GenomeRecord& g : genomes) {
@@ -235,8 +237,8 @@ absl::Status Engine::Transition(int64_t run_id, skerry::v1::RunState from,
         "; only a ", skerry::v1::RunState_Name(from), " run can be ", verb));
   }
   const std::string message = to == skerry::v1::PAUSED ? "paused" : "";
-  if (absl::Status s = store_->SetRunState(run_id, to, message,
-                                           clock_->WallMillis());
+  if (absl::Status s =
+          store_->SetRunState(run_id, to, message, clock_->WallMillis());
       !s.ok()) {
     NoteWriteFailure(s);
     return s;
@@ -252,9 +254,9 @@ absl::Status Engine::Stop(int64_t run_id) {
   auto it = runs_.find(run_id);
   if (it == runs_.end()) {
     SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
-    return absl::FailedPreconditionError(
-        absl::StrCat("run ", run_id, " is already ",
-                     skerry::v1::RunState_Name(rec.state), "; nothing to stop"));
+    return absl::FailedPreconditionError(absl::StrCat(
+        "run ", run_id, " is already ", skerry::v1::RunState_Name(rec.state),
+        "; nothing to stop"));
   }
   // A stopped run keeps every generation it made; no trimming.
   it->second->stop_generation.reset();
@@ -357,7 +359,8 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
       claimed.push_back(info->genome_id);
       auto run_it = runs_.find(info->run_id);
       Island* island = nullptr;
-      if (run_it != runs_.end() && info->island < run_it->second->islands.size()) {
+      if (run_it != runs_.end() &&
+          info->island < run_it->second->islands.size()) {
         island = &run_it->second->islands[info->island];
       }
       if (island == nullptr || island->generation != info->generation ||
@@ -437,9 +440,9 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
       if (committed.ok()) {
         jobs[j]->outcome = outcomes[j];
       } else {
-        jobs[j]->status = absl::UnavailableError(absl::StrCat(
-            "results could not be stored, report them again: ",
-            committed.message()));
+        jobs[j]->status = absl::UnavailableError(
+            absl::StrCat("results could not be stored, report them again: ",
+                         committed.message()));
       }
       jobs[j]->done = true;
     }
@@ -692,9 +695,8 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
 absl::Status Engine::FinishRun(Run& run, skerry::v1::RunState state,
                                const std::string& message) {
   const int64_t id = run.record.id;
-  SKERRY_RETURN_IF_ERROR(store_->FinishRun(id, state, message,
-                                           run.stop_generation,
-                                           clock_->WallMillis()));
+  SKERRY_RETURN_IF_ERROR(store_->FinishRun(
+      id, state, message, run.stop_generation, clock_->WallMillis()));
   queue_->RemoveRun(id);
   runs_.erase(id);
   NotifyChange();
@@ -703,9 +705,9 @@ absl::Status Engine::FinishRun(Run& run, skerry::v1::RunState state,
 
 void Engine::FailRun(Run& run, const absl::Status& why) {
   const int64_t id = run.record.id;
-  absl::Status s = store_->SetRunState(id, skerry::v1::FAILED_RUN,
-                                       std::string(why.message()),
-                                       clock_->WallMillis());
+  absl::Status s =
+      store_->SetRunState(id, skerry::v1::FAILED_RUN,
+                          std::string(why.message()), clock_->WallMillis());
   if (!s.ok()) {
     std::fprintf(stderr, "run %lld: could not record failure: %s\n",
                  static_cast<long long>(id), s.ToString().c_str());
@@ -729,10 +731,11 @@ absl::Status Engine::CheckWallTime() {
   for (int64_t id : expired) {
     Run& run = *runs_[id];
     run.stop_generation.reset();
-    SKERRY_RETURN_IF_ERROR(FinishRun(
-        run, skerry::v1::FINISHED,
-        absl::StrCat("wall-time limit (", run.record.spec.stop().max_wall_seconds(),
-                     " s) reached")));
+    SKERRY_RETURN_IF_ERROR(
+        FinishRun(run, skerry::v1::FINISHED,
+                  absl::StrCat("wall-time limit (",
+                               run.record.spec.stop().max_wall_seconds(),
+                               " s) reached")));
   }
   return absl::OkStatus();
 }
@@ -755,7 +758,8 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::Summary(int64_t run_id) {
 
 absl::StatusOr<std::vector<skerry::v1::RunSummary>> Engine::ListSummaries() {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs, store_->ListRuns());
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs,
+                          store_->ListRuns());
   std::vector<skerry::v1::RunSummary> out;
   for (const store::RunRecord& r : runs) {
     SKERRY_ASSIGN_OR_RETURN(skerry::v1::RunSummary s, SummaryLocked(r.id));
@@ -791,8 +795,7 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
   s.set_priority(static_cast<uint32_t>(rec->priority));
   if (!write_problem_.ok()) {
     s.set_coordinator_problem(absl::StrCat(
-        "the coordinator cannot write its database (",
-        write_problem_.message(),
+        "the coordinator cannot write its database (", write_problem_.message(),
         "); no work is handed out until writes succeed again"));
   }
   auto fill_stats = [](skerry::v1::IslandStatus* is,
@@ -810,9 +813,9 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
       is->set_generation(island.generation);
       const uint32_t pop = IslandPopulation(rec->spec, island.index);
       is->set_population(pop);
-      is->set_evaluated(island.done ? pop
-                                    : pop - static_cast<uint32_t>(
-                                                island.pending.size()));
+      is->set_evaluated(
+          island.done ? pop
+                      : pop - static_cast<uint32_t>(island.pending.size()));
       is->set_done(island.done);
       fill_stats(is, island.last_stats);
     }

@@ -1,33 +1,38 @@
 // The engine: drives every active run from the store's truth.
 //
 // It keeps, per active run and island, the current generation (being evaluated)
-// and the last completed ones it may need for migration: a cache of the store that
-// grows with the active populations, not with the stored history. On Open() it
-// rebuilds that cache from the store alone, queues every pending genome again, and
-// breeds any generation that was complete when the previous coordinator died.
+// and the last completed ones it may need for migration: a cache of the store
+// that grows with the active populations, not with the stored history. On
+// Open() it rebuilds that cache from the store alone, queues every pending
+// genome again, and breeds any generation that was complete when the previous
+// coordinator died.
 //
-// Results arrive from any number of Report calls. They are grouped: one committer
-// thread takes every batch waiting, applies the lot in one transaction
-// (Store::CommitResults), and only then answers the callers (a result is
-// acknowledged only after it is committed). Completed generations are then bred,
-// each in a transaction of its own (Store::CommitGeneration).
+// Results arrive from any number of Report calls. They are grouped: one
+// committer thread takes every batch waiting, applies the lot in one
+// transaction (Store::CommitResults), and only then answers the callers (a
+// result is acknowledged only after it is committed). Completed generations are
+// then bred, each in a transaction of its own (Store::CommitGeneration).
 //
 // Stop rules, all deterministic except wall time:
 // - max_generations: an island stops after generation max_generations - 1.
-// - max_evaluations: shared among islands in proportion to population; an island
+// - max_evaluations: shared among islands in proportion to population; an
+// island
 //   stops at the first generation boundary where its own evaluations reach its
 //   share.
-// - target_score: the run's stop generation is the first generation at which any
-//   island's best reaches the target; every island runs to it (or hits the target
-//   earlier), and generations a faster island bred past it are discarded.
+// - target_score: the run's stop generation is the first generation at which
+// any
+//   island's best reaches the target; every island runs to it (or hits the
+//   target earlier), and generations a faster island bred past it are
+//   discarded.
 // - max_wall_seconds: from the run's first start; not reproducible.
 //
 // Migration (reproducible mode): the generation g+1 of an island at an epoch is
 // bred only once every source island has completed generation g (a source that
 // stopped before g sends nothing), so migrants never depend on timing. In
 // asynchronous mode (islands.asynchronous) the island never waits: it takes
-// emigrants from the newest generation <= g each source has completed so far, or
-// none; the run is then not reproducible and its digest depends on the fleet.
+// emigrants from the newest generation <= g each source has completed so far,
+// or none; the run is then not reproducible and its digest depends on the
+// fleet.
 //
 // Held-out validation (common/validation.h, validation.proto): when a run's
 // evaluator declares validation cases, the champion of each island's completed
@@ -37,11 +42,11 @@
 // same queue; they never feed back into the search (the digest and the genomes
 // do not depend on them), and they outlive the run's search.
 //
-// Storage trouble (disk full, I/O error): a failed commit changes nothing in the
-// cache; the engine stops handing out work (TaskQueue::SetHeld), says why in
-// every run summary, keeps answering reads, probes the database every second,
-// and resumes by itself when a write succeeds. Workers keep their results and
-// report them again.
+// Storage trouble (disk full, I/O error): a failed commit changes nothing in
+// the cache; the engine stops handing out work (TaskQueue::SetHeld), says why
+// in every run summary, keeps answering reads, probes the database every
+// second, and resumes by itself when a write succeeds. Workers keep their
+// results and report them again.
 //
 // Thread safety: every public method may be called from any thread.
 #ifndef SKERRY_SERVER_ENGINE_ENGINE_H_
@@ -113,7 +118,8 @@ class Engine {
   // `seen` or `deadline` passes (real time), and returns its value.
   uint64_t WaitForChange(uint64_t seen, absl::Time deadline);
 
-  // Stops the committer after the batch in flight. Report calls made later fail.
+  // Stops the committer after the batch in flight. Report calls made later
+  // fail.
   void Shutdown();
 
  private:
@@ -121,8 +127,8 @@ class Engine {
     uint32_t index = 0;
     uint32_t generation = 0;
     bool done = false;
-    bool waiting = false;           // bred only when migration sources are ready
-    uint64_t evaluations = 0;       // cumulative, for the evaluation budget
+    bool waiting = false;      // bred only when migration sources are ready
+    uint64_t evaluations = 0;  // cumulative, for the evaluation budget
     std::vector<store::GenomeRecord> current;
     std::map<uint32_t, std::vector<store::GenomeRecord>> completed;  // last few
     std::map<int64_t, uint32_t> pending;  // genome id -> slot
@@ -206,7 +212,8 @@ class Engine {
   void NotifyChange() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // A write failed for a reason of the storage (full disk, I/O error, busy):
   // stop handing out work until ProbeWrite succeeds. Other errors pass.
-  void NoteWriteFailure(const absl::Status& s) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void NoteWriteFailure(const absl::Status& s)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Called by the committer: clears the problem once a probe write succeeds.
   void RetryWrites() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 

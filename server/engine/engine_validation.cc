@@ -41,8 +41,8 @@ void Engine::QueueValidation(const store::ValidationRecord& v,
                              const std::vector<double>& genes,
                              const skerry::v1::RunSpec& spec) {
   if (v.state != skerry::v1::VALIDATION_PENDING) return;
-  if (!validations_.emplace(v.id, PendingValidation{v.run_id,
-                                                    spec.max_attempts()})
+  if (!validations_
+           .emplace(v.id, PendingValidation{v.run_id, spec.max_attempts()})
            .second) {
     return;  // queued already
   }
@@ -57,10 +57,10 @@ void Engine::QueueValidation(const store::ValidationRecord& v,
   t.slot = v.slot;
   t.genes = genes;
   t.eval_seed = spec.seed();  // the cases' seeds derive from it
-  t.evaluator = active != runs_.end()
-                    ? active->second->evaluator
-                    : std::make_shared<skerry::v1::EvaluatorSpec>(
-                          spec.evaluator());
+  t.evaluator =
+      active != runs_.end()
+          ? active->second->evaluator
+          : std::make_shared<skerry::v1::EvaluatorSpec>(spec.evaluator());
   t.attempts = v.attempts;
   queue_->Add({std::move(t)});
 }
@@ -92,8 +92,9 @@ void Engine::QueueChampionValidation(const Run& run,
       store_->GetValidation(g.id);
   if (!v.ok() || !v->has_value()) {
     // Stored with the generation: queued at the next start at the latest.
-    std::fprintf(stderr, "run %lld: champion validation of genome %lld not "
-                         "queued now: %s\n",
+    std::fprintf(stderr,
+                 "run %lld: champion validation of genome %lld not "
+                 "queued now: %s\n",
                  static_cast<long long>(run.record.id),
                  static_cast<long long>(g.id),
                  v.ok() ? "not found" : v.status().ToString().c_str());
@@ -115,7 +116,8 @@ absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(
   if (active != nullptr) {
     spec = active->record.spec;
   } else {
-    SKERRY_ASSIGN_OR_RETURN(store::RunRecord run, store_->GetRun(genome.run_id));
+    SKERRY_ASSIGN_OR_RETURN(store::RunRecord run,
+                            store_->GetRun(genome.run_id));
     spec = std::move(run.spec);
   }
   if (!HasValidation(spec.evaluator())) {

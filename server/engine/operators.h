@@ -1,10 +1,12 @@
 // Genetic operators: fitness scaling, selection, crossover and mutation.
 //
-// Pure functions of their inputs and of the RandomStream they are handed; no global
-// state, so they are safe to call from any thread with a stream of its own.
+// Pure functions of their inputs and of the RandomStream they are handed; no
+// global state, so they are safe to call from any thread with a stream of its
+// own.
 //
 // Conventions shared by every function here:
-// - A population is described by `scores` and `valid` (false: the evaluation failed;
+// - A population is described by `scores` and `valid` (false: the evaluation
+// failed;
 //   such a genome ranks last and gets zero selection weight).
 // - `maximize` says which direction is better.
 // - Results are indices into the population.
@@ -26,13 +28,13 @@ std::vector<int> RankBestFirst(absl::Span<const double> scores,
                                absl::Span<const bool> valid, bool maximize);
 
 // Non-negative selection weights for fitness-proportionate methods (see
-// FitnessScaling in spec.proto). Failed genomes get weight 0. If every weight would
-// be 0 (all equal, or all failed), every valid genome (or every genome, if none is
-// valid) gets weight 1. RAW with a negative score, or with minimisation, is
-// InvalidArgument.
+// FitnessScaling in spec.proto). Failed genomes get weight 0. If every weight
+// would be 0 (all equal, or all failed), every valid genome (or every genome,
+// if none is valid) gets weight 1. RAW with a negative score, or with
+// minimisation, is InvalidArgument.
 absl::StatusOr<std::vector<double>> ScaleFitness(
-    absl::Span<const double> scores, absl::Span<const bool> valid, bool maximize,
-    skerry::v1::FitnessScaling scaling, double linear_factor);
+    absl::Span<const double> scores, absl::Span<const bool> valid,
+    bool maximize, skerry::v1::FitnessScaling scaling, double linear_factor);
 
 // Fitness-proportionate selection: `count` independent spins.
 std::vector<int> SelectRoulette(absl::Span<const double> weights, int count,
@@ -41,15 +43,17 @@ std::vector<int> SelectRoulette(absl::Span<const double> weights, int count,
 // step = sum / count and offset = Uniform(0, step).
 std::vector<int> SelectStochasticUniversal(absl::Span<const double> weights,
                                            int count, RandomStream& rng);
-// The same with a given first pointer in [0, sum / count) (for worked examples).
+// The same with a given first pointer in [0, sum / count) (for worked
+// examples).
 std::vector<int> StochasticUniversalWithOffset(absl::Span<const double> weights,
                                                int count, double offset);
-// Tournament of `size` contestants drawn uniformly with replacement; the best by
-// `rank_of` (0 = best) wins.
+// Tournament of `size` contestants drawn uniformly with replacement; the best
+// by `rank_of` (0 = best) wins.
 std::vector<int> SelectTournament(absl::Span<const int> rank_of, int size,
                                   int count, RandomStream& rng);
-// Linear ranking (Baker 1985): the genome of rank r (0 = best) of N is chosen with
-// probability (pressure - (2 pressure - 2) r / (N - 1)) / N. `order` is best first.
+// Linear ranking (Baker 1985): the genome of rank r (0 = best) of N is chosen
+// with probability (pressure - (2 pressure - 2) r / (N - 1)) / N. `order` is
+// best first.
 std::vector<int> SelectLinearRank(absl::Span<const int> order, double pressure,
                                   int count, RandomStream& rng);
 // Selection probabilities of SelectLinearRank, by rank (for tests and docs).
@@ -66,7 +70,8 @@ absl::StatusOr<std::vector<int>> Select(const skerry::v1::SelectionSpec& spec,
                                         RandomStream& rng);
 
 // Crossover: writes two children of parents a and b (same length).
-// ONE_POINT at cut c (1 <= c < L): child1 = a[0,c) + b[c,L), child2 = b[0,c) + a[c,L).
+// ONE_POINT at cut c (1 <= c < L): child1 = a[0,c) + b[c,L), child2 = b[0,c) +
+// a[c,L).
 void OnePointCrossover(absl::Span<const double> a, absl::Span<const double> b,
                        int cut, std::vector<double>* child1,
                        std::vector<double>* child2);
@@ -81,8 +86,8 @@ std::vector<double> Crossover(const skerry::v1::CrossoverSpec& spec,
                               absl::Span<const double> b, double lower,
                               double upper, RandomStream& rng);
 
-// Gaussian mutation: each gene with probability `rate` gets N(0, step^2) added and
-// is clamped to [lower, upper]. Returns how many genes changed.
+// Gaussian mutation: each gene with probability `rate` gets N(0, step^2) added
+// and is clamped to [lower, upper]. Returns how many genes changed.
 int Mutate(double rate, double step, double lower, double upper,
            std::vector<double>* genes, RandomStream& rng);
 

@@ -38,11 +38,12 @@ std::vector<uint32_t> Destinations(const skerry::v1::RunSpec& spec,
       for (uint32_t j = 0; j < n; ++j) {
         if (j != island) others.push_back(j);
       }
-      const uint32_t k =
-          std::min<uint32_t>(std::max<uint32_t>(1, spec.islands().random_degree()),
-                             static_cast<uint32_t>(others.size()));
+      const uint32_t k = std::min<uint32_t>(
+          std::max<uint32_t>(1, spec.islands().random_degree()),
+          static_cast<uint32_t>(others.size()));
       for (uint32_t i = 0; i < k; ++i) {
-        const uint32_t j = i + static_cast<uint32_t>(rng.Below(others.size() - i));
+        const uint32_t j =
+            i + static_cast<uint32_t>(rng.Below(others.size() - i));
         std::swap(others[i], others[j]);
       }
       out.assign(others.begin(), others.begin() + k);

@@ -1,13 +1,14 @@
-// Migration topologies: which islands send emigrants to which, at the epoch that
-// creates generation g (g a positive multiple of the interval).
+// Migration topologies: which islands send emigrants to which, at the epoch
+// that creates generation g (g a positive multiple of the interval).
 //
 //   RING             i sends to (i + 1) mod n
 //   TWO_WAY_RING     i sends to (i - 1) mod n and (i + 1) mod n
 //   FULLY_CONNECTED  i sends to every other island
-//   RANDOM           i sends to `random_degree` distinct others, drawn afresh each
+//   RANDOM           i sends to `random_degree` distinct others, drawn afresh
+//   each
 //                    epoch from the stream (seed, i, g, kTopology, 0)
-// Lists are sorted and free of duplicates; an island never sends to itself, so a
-// run of one island has no migration.
+// Lists are sorted and free of duplicates; an island never sends to itself, so
+// a run of one island has no migration.
 //
 // Thread safety: pure functions.
 #ifndef SKERRY_SERVER_ENGINE_TOPOLOGY_H_

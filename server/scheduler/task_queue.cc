@@ -139,15 +139,15 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
     ExpireLeases(clock_->Now());
     if (shutdown_ || HasReadyLocked()) break;
     // Wake at least every 100 ms to notice expired leases.
-    const absl::Time wake = std::min(give_up, absl::Now() + absl::Milliseconds(100));
+    const absl::Time wake =
+        std::min(give_up, absl::Now() + absl::Milliseconds(100));
     if (absl::Now() >= give_up) return out;
-    mu_.AwaitWithDeadline(
-        absl::Condition(
-            +[](TaskQueue* q) ABSL_NO_THREAD_SAFETY_ANALYSIS {
-              return q->shutdown_ || q->HasReadyLocked();
-            },
-            this),
-        wake);
+    mu_.AwaitWithDeadline(absl::Condition(
+                              +[](TaskQueue* q) ABSL_NO_THREAD_SAFETY_ANALYSIS {
+                                return q->shutdown_ || q->HasReadyLocked();
+                              },
+                              this),
+                          wake);
   }
   if (shutdown_) return out;
   const absl::Time deadline = clock_->Now() + lease_;
@@ -242,10 +242,10 @@ std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t task_id,
   }
   if (failed_attempt && (e.state != State::kLeased || e.holder != worker ||
                          e.info.attempts != attempt)) {
-    return refuse(absl::FailedPreconditionError(absl::StrCat(
-        "failed attempt ", attempt, " of task ", task_id,
-        " is not from its current lease (attempt ", e.info.attempts,
-        "); not counted")));
+    return refuse(absl::FailedPreconditionError(
+        absl::StrCat("failed attempt ", attempt, " of task ", task_id,
+                     " is not from its current lease (attempt ",
+                     e.info.attempts, "); not counted")));
   }
   if (e.state == State::kQueued) --runs_[e.info.run_id].queued;
   DropLease(e);
@@ -257,7 +257,8 @@ void TaskQueue::Complete(absl::Span<const int64_t> task_ids) {
   absl::MutexLock l(&mu_);
   for (int64_t id : task_ids) {
     auto t = tasks_.find(id);
-    if (t != tasks_.end() && t->second.state == State::kClaimed) tasks_.erase(t);
+    if (t != tasks_.end() && t->second.state == State::kClaimed)
+      tasks_.erase(t);
   }
 }
 

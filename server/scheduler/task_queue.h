@@ -1,21 +1,22 @@
-// The task queue: every genome waiting for an evaluation, the leases held on them,
-// and the fair hand-out of tasks across runs.
+// The task queue: every genome waiting for an evaluation, the leases held on
+// them, and the fair hand-out of tasks across runs.
 //
 // A task is in one of three states:
 //   queued      waiting for a worker
 //   leased      handed to a worker until its deadline; renewed by the worker's
 //               Report; an expired lease goes back to the front of the queue
 //   claimed     a result for it is being committed; nothing else may claim it
-// Complete() removes a task once its result is committed; Unclaim() puts it back
-// when the commit failed.
+// Complete() removes a task once its result is committed; Unclaim() puts it
+// back when the commit failed.
 //
-// Result rule (invariant 5 of DESIGN.md): a successful result is accepted while its
-// task is queued or leased, whoever holds the lease and whatever attempt it quotes,
-// because an evaluation is a pure function of (genes, evaluation seed): a late
-// result from an expired lease is the same number the next worker would compute,
-// and taking it saves that work. A failed attempt counts only when it comes from
-// the current lease (holder and attempt), so a stale worker cannot fail a genome.
-// A result for a task that is unknown, claimed or completed changes nothing.
+// Result rule (invariant 5 of DESIGN.md): a successful result is accepted while
+// its task is queued or leased, whoever holds the lease and whatever attempt it
+// quotes, because an evaluation is a pure function of (genes, evaluation seed):
+// a late result from an expired lease is the same number the next worker would
+// compute, and taking it saves that work. A failed attempt counts only when it
+// comes from the current lease (holder and attempt), so a stale worker cannot
+// fail a genome. A result for a task that is unknown, claimed or completed
+// changes nothing.
 //
 // Fair share (docs/sharing.md is the user's account): tasks are handed out by
 // start-time fair queuing across runs (Goyal, Vin & Cheng 1996, "Start-time
@@ -88,7 +89,8 @@ struct TaskInfo {
   std::vector<double> genes;
   uint64_t eval_seed = 0;
   std::shared_ptr<const skerry::v1::EvaluatorSpec> evaluator;
-  uint32_t attempts = 0;  // leases handed out so far (the current attempt number)
+  uint32_t attempts =
+      0;  // leases handed out so far (the current attempt number)
 
   // The id the worker sees and the queue keys on: the genome's id, or
   // kValidationTaskBase + the validation's id.
@@ -119,9 +121,9 @@ class TaskQueue {
   // write its database). Renewals and claims go on.
   void SetHeld(bool held);
 
-  // Leases up to `max_tasks` tasks to `worker`, waiting up to `wait` (real time)
-  // when none is ready. Expired leases are re-queued first. Each leased task's
-  // attempt count goes up by one.
+  // Leases up to `max_tasks` tasks to `worker`, waiting up to `wait` (real
+  // time) when none is ready. Expired leases are re-queued first. Each leased
+  // task's attempt count goes up by one.
   std::vector<skerry::v1::Task> Lease(int64_t worker, uint32_t max_tasks,
                                       absl::Duration wait);
   // Extends the deadlines of tasks that `worker` still holds.

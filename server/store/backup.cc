@@ -24,17 +24,20 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
     return vac.Run();
   }
   {
-    SKERRY_ASSIGN_OR_RETURN(Statement s, conn->Prepare("SELECT 1 FROM runs WHERE id = ?"));
+    SKERRY_ASSIGN_OR_RETURN(Statement s,
+                            conn->Prepare("SELECT 1 FROM runs WHERE id = ?"));
     s.BindInt(1, run_id);
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
-    if (!row) return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+    if (!row)
+      return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
   }
   {
     // A new, empty database with the current schema.
     SKERRY_ASSIGN_OR_RETURN(auto fresh, Store::Open(destination));
   }
   conn.reset();
-  SKERRY_ASSIGN_OR_RETURN(conn, Connection::Open(source, SQLITE_OPEN_READWRITE));
+  SKERRY_ASSIGN_OR_RETURN(conn,
+                          Connection::Open(source, SQLITE_OPEN_READWRITE));
   sqlite3_busy_timeout(conn->raw(), 5000);
   SKERRY_ASSIGN_OR_RETURN(Statement attach, conn->Prepare("ATTACH ? AS dst"));
   attach.BindText(1, destination);

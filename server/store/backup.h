@@ -5,9 +5,9 @@
 // it is one snapshot of the database as of a commit; in WAL mode that reader
 // never blocks the writer (nor the writer it). A whole-database copy is VACUUM
 // INTO; a one-run copy is a new database with the current schema into which the
-// run's rows (run, islands, genomes, statistics) and the worker table are copied.
-// Either file is a complete Skerry database: start a coordinator on it to
-// restore.
+// run's rows (run, islands, genomes, statistics) and the worker table are
+// copied. Either file is a complete Skerry database: start a coordinator on it
+// to restore.
 //
 // Thread safety: functions; each opens its own connection.
 #ifndef SKERRY_SERVER_STORE_BACKUP_H_

@@ -35,23 +35,27 @@ class Checker {
   explicit Checker(Connection* c) : c_(c) {}
 
   void Problem(std::string p) {
-    if (report.problems.size() < kMaxProblems) report.problems.push_back(std::move(p));
+    if (report.problems.size() < kMaxProblems)
+      report.problems.push_back(std::move(p));
   }
 
   // Each query returns offending rows; `what` describes them.
-  absl::Status Expect(int64_t run, const std::string& what, const std::string& sql) {
+  absl::Status Expect(int64_t run, const std::string& what,
+                      const std::string& sql) {
     SKERRY_ASSIGN_OR_RETURN(auto rows, Rows(c_, sql, run));
     for (const auto& r : rows) {
       std::vector<std::string> cells;
       for (const auto& cell : r) {
         if (!cell.empty()) cells.push_back(cell);
       }
-      Problem(absl::StrCat("run ", run, ": ", what, " (", absl::StrJoin(cells, " "), ")"));
+      Problem(absl::StrCat("run ", run, ": ", what, " (",
+                           absl::StrJoin(cells, " "), ")"));
     }
     return absl::OkStatus();
   }
 
-  absl::Status CheckRun(int64_t run, const skerry::v1::RunSpec& spec, int state) {
+  absl::Status CheckRun(int64_t run, const skerry::v1::RunSpec& spec,
+                        int state) {
     const bool reproducible = !spec.islands().asynchronous();
     SKERRY_ASSIGN_OR_RETURN(
         Statement isl, c_->Prepare("SELECT idx, generation, done FROM islands "
@@ -102,50 +106,58 @@ class Checker {
         }
       }
       if (expected != current + 1) {
-        Problem(absl::StrCat("run ", run, " island ", idx, ": generations end at ",
-                             expected - 1, ", island says ", current));
+        Problem(absl::StrCat("run ", run, " island ", idx,
+                             ": generations end at ", expected - 1,
+                             ", island says ", current));
       }
     }
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "parent link does not resolve within the run",
-        "SELECT 'genome', g.id, 'parent', p FROM (SELECT id, run_id, parent_a AS p "
+        "SELECT 'genome', g.id, 'parent', p FROM (SELECT id, run_id, parent_a "
+        "AS p "
         "FROM genomes WHERE run_id = ?1 AND parent_a IS NOT NULL UNION ALL "
-        "SELECT id, run_id, parent_b FROM genomes WHERE run_id = ?1 AND parent_b "
-        "IS NOT NULL) g LEFT JOIN genomes x ON x.id = g.p WHERE x.id IS NULL OR "
+        "SELECT id, run_id, parent_b FROM genomes WHERE run_id = ?1 AND "
+        "parent_b "
+        "IS NOT NULL) g LEFT JOIN genomes x ON x.id = g.p WHERE x.id IS NULL "
+        "OR "
         "x.run_id != g.run_id LIMIT 20"));
-    SKERRY_RETURN_IF_ERROR(Expect(
-        run,
-        reproducible ? "parent is not of the previous generation"
-                     : "parent is not of an earlier generation",
-        absl::StrCat(
-            "SELECT 'genome', c.id, 'parent', x.id FROM genomes c JOIN genomes x ON "
-            "x.id IN (c.parent_a, c.parent_b) WHERE c.run_id = ?1 AND ",
-            reproducible ? "x.generation != c.generation - 1"
-                         : "x.generation >= c.generation",
-            " LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(
+        Expect(run,
+               reproducible ? "parent is not of the previous generation"
+                            : "parent is not of an earlier generation",
+               absl::StrCat(
+                   "SELECT 'genome', c.id, 'parent', x.id FROM genomes c JOIN "
+                   "genomes x ON "
+                   "x.id IN (c.parent_a, c.parent_b) WHERE c.run_id = ?1 AND ",
+                   reproducible ? "x.generation != c.generation - 1"
+                                : "x.generation >= c.generation",
+                   " LIMIT 20")));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "origin and parent links disagree",
-        absl::StrCat("SELECT 'genome', id, 'origin', origin FROM genomes WHERE "
-                     "run_id = ?1 AND ((origin IN (",
-                     skerry::v1::ELITE, ",", skerry::v1::MIGRANT, ",",
-                     skerry::v1::MUTATION, ",", skerry::v1::CROSSOVER,
-                     ") AND parent_a IS NULL) OR (origin IN (",
-                     skerry::v1::SEEDED, ",", skerry::v1::IMMIGRANT,
-                     ") AND parent_a IS NOT NULL) OR (origin = ",
-                     skerry::v1::CROSSOVER, " AND parent_b IS NULL)) LIMIT 20")));
+        absl::StrCat(
+            "SELECT 'genome', id, 'origin', origin FROM genomes WHERE "
+            "run_id = ?1 AND ((origin IN (",
+            skerry::v1::ELITE, ",", skerry::v1::MIGRANT, ",",
+            skerry::v1::MUTATION, ",", skerry::v1::CROSSOVER,
+            ") AND parent_a IS NULL) OR (origin IN (", skerry::v1::SEEDED, ",",
+            skerry::v1::IMMIGRANT, ") AND parent_a IS NOT NULL) OR (origin = ",
+            skerry::v1::CROSSOVER, " AND parent_b IS NULL)) LIMIT 20")));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "completed generation has no statistics",
-        "SELECT 'island', g.island, 'generation', g.generation FROM (SELECT island, "
+        "SELECT 'island', g.island, 'generation', g.generation FROM (SELECT "
+        "island, "
         "generation FROM genomes WHERE run_id = ?1 GROUP BY island, generation "
         "HAVING sum(eval_state = 1) = 0) g JOIN islands i ON i.run_id = ?1 AND "
         "i.idx = g.island LEFT JOIN generation_stats s ON s.run_id = ?1 AND "
         "s.island = g.island AND s.generation = g.generation WHERE s.run_id IS "
         "NULL AND (g.generation < i.generation OR i.done = 1) LIMIT 20"));
-    SKERRY_RETURN_IF_ERROR(Expect(
-        run, "evaluation counter differs from the evaluations stored",
-        "SELECT 'counter', r.evaluations, 'stored', (SELECT count(*) FROM genomes "
-        "WHERE run_id = ?1 AND attempts > 0 AND eval_state IN (2, 3)) AS n FROM "
-        "runs r WHERE r.id = ?1 AND r.evaluations != n"));
+    SKERRY_RETURN_IF_ERROR(
+        Expect(run, "evaluation counter differs from the evaluations stored",
+               "SELECT 'counter', r.evaluations, 'stored', (SELECT count(*) "
+               "FROM genomes "
+               "WHERE run_id = ?1 AND attempts > 0 AND eval_state IN (2, 3)) "
+               "AS n FROM "
+               "runs r WHERE r.id = ?1 AND r.evaluations != n"));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "validation names a genome that is missing or of another run",
         "SELECT 'validation', v.id, 'genome', v.genome_id FROM validations v "
@@ -182,7 +194,8 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
   sqlite3_busy_timeout(conn->raw(), 5000);
   Checker checker(conn.get());
   {
-    SKERRY_ASSIGN_OR_RETURN(Statement ic, conn->Prepare("PRAGMA integrity_check"));
+    SKERRY_ASSIGN_OR_RETURN(Statement ic,
+                            conn->Prepare("PRAGMA integrity_check"));
     std::vector<std::string> lines;
     while (true) {
       SKERRY_ASSIGN_OR_RETURN(bool row, ic.Step());
@@ -195,8 +208,8 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
   absl::StatusOr<Statement> runs =
       conn->Prepare("SELECT id, spec, state FROM runs ORDER BY id");
   if (!runs.ok()) {
-    return absl::FailedPreconditionError(
-        absl::StrCat(path, ": not a Skerry database (", runs.status().message(), ")"));
+    return absl::FailedPreconditionError(absl::StrCat(
+        path, ": not a Skerry database (", runs.status().message(), ")"));
   }
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, runs->Step());
@@ -212,7 +225,8 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
         checker.CheckRun(id, spec, static_cast<int>(runs->ColumnInt(2))));
   }
   {
-    SKERRY_ASSIGN_OR_RETURN(Statement n, conn->Prepare("SELECT count(*) FROM genomes"));
+    SKERRY_ASSIGN_OR_RETURN(Statement n,
+                            conn->Prepare("SELECT count(*) FROM genomes"));
     SKERRY_ASSIGN_OR_RETURN(bool row, n.Step());
     if (row) checker.report.genomes = n.ColumnInt(0);
   }

@@ -9,7 +9,8 @@
 //     and so is the current one of a finished or stopped island;
 //   - every parent link resolves to a genome of the same run, of an earlier
 //     generation (the previous one, in reproducible mode);
-//   - elites and migrants have a parent; seeded genomes and immigrants have none;
+//   - elites and migrants have a parent; seeded genomes and immigrants have
+//   none;
 //   - each completed generation has its statistics row;
 //   - the run's evaluation counter equals the evaluations stored.
 //
@@ -25,7 +26,7 @@
 namespace skerry::store {
 
 struct CheckReport {
-  std::string integrity;             // "ok" or SQLite's findings
+  std::string integrity;              // "ok" or SQLite's findings
   std::vector<std::string> problems;  // empty when every invariant holds
   int runs = 0;
   long long genomes = 0;

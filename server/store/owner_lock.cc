@@ -52,10 +52,11 @@ absl::StatusOr<std::unique_ptr<OwnerLock>> OwnerLock::Acquire(
   }
   char host[256] = {0};
   gethostname(host, sizeof(host) - 1);
-  const std::string me = absl::StrCat(
-      "pid ", getpid(), " on ", host, ", since ",
-      absl::FormatTime("%Y-%m-%d %H:%M:%S UTC", absl::Now(), absl::UTCTimeZone()),
-      "\n");
+  const std::string me =
+      absl::StrCat("pid ", getpid(), " on ", host, ", since ",
+                   absl::FormatTime("%Y-%m-%d %H:%M:%S UTC", absl::Now(),
+                                    absl::UTCTimeZone()),
+                   "\n");
   if (ftruncate(fd, 0) != 0 ||
       pwrite(fd, me.data(), me.size(), 0) != static_cast<ssize_t>(me.size())) {
     // The lock holds even if the note could not be written.

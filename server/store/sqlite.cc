@@ -9,8 +9,8 @@ absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
     return absl::OkStatus();
   }
   const std::string msg =
-      absl::StrCat(what, ": ", db != nullptr ? sqlite3_errmsg(db) : "",
-                   " (", sqlite3_errstr(rc), ")");
+      absl::StrCat(what, ": ", db != nullptr ? sqlite3_errmsg(db) : "", " (",
+                   sqlite3_errstr(rc), ")");
   switch (rc & 0xff) {
     case SQLITE_BUSY:
     case SQLITE_LOCKED:
@@ -105,8 +105,8 @@ absl::Status Connection::Exec(absl::string_view sql) {
 
 absl::StatusOr<Statement> Connection::Prepare(absl::string_view sql) {
   sqlite3_stmt* stmt = nullptr;
-  const int rc = sqlite3_prepare_v2(db_, sql.data(), static_cast<int>(sql.size()),
-                                    &stmt, nullptr);
+  const int rc = sqlite3_prepare_v2(
+      db_, sql.data(), static_cast<int>(sql.size()), &stmt, nullptr);
   if (rc != SQLITE_OK) {
     return SqliteStatus(rc, db_, absl::StrCat("preparing ", sql.substr(0, 60)));
   }

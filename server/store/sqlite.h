@@ -1,14 +1,14 @@
-// Thin RAII helpers over the SQLite C API: a connection, prepared statements, and
-// turning SQLite result codes into absl::Status where they enter our code.
+// Thin RAII helpers over the SQLite C API: a connection, prepared statements,
+// and turning SQLite result codes into absl::Status where they enter our code.
 //
 // Status codes are chosen by what the caller should do:
 //   SQLITE_BUSY / SQLITE_LOCKED     -> Unavailable (retry the transaction)
 //   SQLITE_IOERR_* / SQLITE_CANTOPEN -> Unavailable (the write failed, nothing
-//                                      was committed; retry when the disk is back)
-//   SQLITE_FULL                     -> ResourceExhausted (free space, then retry)
-//   SQLITE_CONSTRAINT               -> FailedPrecondition
-//   SQLITE_CORRUPT / SQLITE_NOTADB  -> DataLoss
-//   anything else                   -> Internal
+//                                      was committed; retry when the disk is
+//                                      back)
+//   SQLITE_FULL                     -> ResourceExhausted (free space, then
+//   retry) SQLITE_CONSTRAINT               -> FailedPrecondition SQLITE_CORRUPT
+//   / SQLITE_NOTADB  -> DataLoss anything else                   -> Internal
 //
 // Thread safety: none. The owner (Store) serialises access with its own mutex.
 #ifndef SKERRY_SERVER_STORE_SQLITE_H_

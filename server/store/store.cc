@@ -16,8 +16,8 @@ namespace {
 using skerry::v1::EvalState;
 using skerry::v1::RunState;
 
-// Schema version 1. Later versions append a migration to kMigrations; never edit
-// an applied one.
+// Schema version 1. Later versions append a migration to kMigrations; never
+// edit an applied one.
 constexpr const char* kSchemaV1 = R"sql(
 CREATE TABLE schema_version (version INTEGER NOT NULL);
 CREATE TABLE runs (
@@ -228,7 +228,8 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
   absl::StatusOr<int> version = store->StoredVersion();
   if (!version.ok()) return with_path(version.status());
   // WAL is a property of the file and survives reopening.
-  absl::StatusOr<Statement> wal = store->conn_->Prepare("PRAGMA journal_mode=WAL");
+  absl::StatusOr<Statement> wal =
+      store->conn_->Prepare("PRAGMA journal_mode=WAL");
   if (!wal.ok()) return with_path(wal.status());
   absl::StatusOr<bool> row = wal->Step();
   if (!row.ok()) return with_path(row.status());
@@ -249,8 +250,8 @@ absl::StatusOr<int> Store::StoredVersion() {
                                  "type = 'table' AND name = 'schema_version'"));
   SKERRY_ASSIGN_OR_RETURN(bool has_row, probe.Step());
   if (!has_row || probe.ColumnInt(0) == 0) {
-    SKERRY_ASSIGN_OR_RETURN(auto any,
-                            conn_->Prepare("SELECT count(*) FROM sqlite_master"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto any, conn_->Prepare("SELECT count(*) FROM sqlite_master"));
     SKERRY_ASSIGN_OR_RETURN(bool any_row, any.Step());
     if (any_row && any.ColumnInt(0) > 0) {
       return absl::FailedPreconditionError(
@@ -259,19 +260,20 @@ absl::StatusOr<int> Store::StoredVersion() {
     }
     return 0;  // empty: a new database
   }
-  SKERRY_ASSIGN_OR_RETURN(auto v,
-                          conn_->Prepare("SELECT max(version) FROM schema_version"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto v, conn_->Prepare("SELECT max(version) FROM schema_version"));
   SKERRY_ASSIGN_OR_RETURN(bool v_row, v.Step());
   if (!v_row || v.ColumnIsNull(0)) {
     return absl::DataLossError(
-        "schema_version is empty: the database is damaged (nothing was changed)");
+        "schema_version is empty: the database is damaged (nothing was "
+        "changed)");
   }
   const int version = static_cast<int>(v.ColumnInt(0));
   if (version > kSchemaVersion) {
-    return absl::FailedPreconditionError(absl::StrCat(
-        "database schema version ", version,
-        " is newer than this program's version ", kSchemaVersion,
-        "; use a newer Skerry (nothing was changed)"));
+    return absl::FailedPreconditionError(
+        absl::StrCat("database schema version ", version,
+                     " is newer than this program's version ", kSchemaVersion,
+                     "; use a newer Skerry (nothing was changed)"));
   }
   return version;
 }
@@ -291,16 +293,19 @@ absl::Status Store::Migrate(int version) {
 
 absl::StatusOr<int> Store::SchemaVersion() {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("SELECT max(version) FROM schema_version"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare("SELECT max(version) FROM schema_version"));
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
   return row ? static_cast<int>(s.ColumnInt(0)) : 0;
 }
 
 absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
-  SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare(
-               "INSERT INTO genomes (run_id, island, generation, slot, origin, "
-               "parent_a, parent_b, genes, score, eval_state, attempts, error, "
-               "eval_seconds) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?)"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto ins,
+      conn_->Prepare(
+          "INSERT INTO genomes (run_id, island, generation, slot, origin, "
+          "parent_a, parent_b, genes, score, eval_state, attempts, error, "
+          "eval_seconds) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?)"));
   for (GenomeRecord& g : *genomes) {
     ins.BindInt(1, g.run_id);
     ins.BindInt(2, g.island);
@@ -330,10 +335,12 @@ absl::Status Store::CreateRun(RunRecord* run,
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   {
-    SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare(
-                 "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
-                 "priority, message, created_ms, updated_ms, started_ms) "
-                 "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto ins,
+        conn_->Prepare(
+            "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
+            "priority, message, created_ms, updated_ms, started_ms) "
+            "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
     ins.BindText(1, run->name);
     ins.BindText(2, run->owner);
     ins.BindBlob(3, run->spec.SerializeAsString());
@@ -349,8 +356,10 @@ absl::Status Store::CreateRun(RunRecord* run,
     run->id = conn_->LastInsertId();
   }
   {
-    SKERRY_ASSIGN_OR_RETURN(auto isl, conn_->Prepare("INSERT INTO islands (run_id, idx, generation, "
-                            "done) VALUES (?, ?, 0, 0)"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto isl,
+        conn_->Prepare("INSERT INTO islands (run_id, idx, generation, "
+                       "done) VALUES (?, ?, 0, 0)"));
     const uint32_t count = std::max<uint32_t>(1, run->spec.islands().count());
     for (uint32_t i = 0; i < count; ++i) {
       isl.BindInt(1, run->id);
@@ -404,10 +413,12 @@ absl::Status Store::CommitResults(
 }
 
 absl::Status Store::InsertStats(const StatsRecord& s) {
-  SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare("INSERT OR REPLACE INTO generation_stats (run_id, "
-                          "island, generation, best, mean, worst, diversity, "
-                          "evaluations, failed, eval_seconds, completed_ms) "
-                          "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto ins,
+      conn_->Prepare("INSERT OR REPLACE INTO generation_stats (run_id, "
+                     "island, generation, best, mean, worst, diversity, "
+                     "evaluations, failed, eval_seconds, completed_ms) "
+                     "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
   ins.BindInt(1, s.run_id);
   ins.BindInt(2, s.island);
   ins.BindInt(3, s.generation);
@@ -442,8 +453,9 @@ absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
     SKERRY_RETURN_IF_ERROR(InsertGenomes(c.next));
   }
   {
-    SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE islands SET generation = ?, done = ? "
-                            "WHERE run_id = ? AND idx = ?"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto upd, conn_->Prepare("UPDATE islands SET generation = ?, done = ? "
+                                 "WHERE run_id = ? AND idx = ?"));
     upd.BindInt(1, generation);
     upd.BindInt(2, c.island_done ? 1 : 0);
     upd.BindInt(3, c.run_id);
@@ -451,8 +463,10 @@ absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
     SKERRY_RETURN_IF_ERROR(upd.Run());
   }
   if (c.champion.has_value()) {
-    SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET champion_id = ?, best_score = ? "
-                            "WHERE id = ?"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto upd,
+        conn_->Prepare("UPDATE runs SET champion_id = ?, best_score = ? "
+                       "WHERE id = ?"));
     upd.BindInt(1, c.champion->first);
     upd.BindDouble(2, c.champion->second);
     upd.BindInt(3, c.run_id);
@@ -476,8 +490,9 @@ absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
 absl::Status Store::SetRunState(int64_t run_id, RunState state,
                                 const std::string& message, int64_t now_ms) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET state = ?, message = ?, "
-                          "updated_ms = ? WHERE id = ?"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto upd, conn_->Prepare("UPDATE runs SET state = ?, message = ?, "
+                               "updated_ms = ? WHERE id = ?"));
   upd.BindInt(1, state);
   upd.BindText(2, message);
   upd.BindInt(3, now_ms);
@@ -491,8 +506,9 @@ absl::Status Store::SetRunState(int64_t run_id, RunState state,
 
 absl::Status Store::SetRunStarted(int64_t run_id, int64_t now_ms) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET started_ms = ?, updated_ms = ? "
-                          "WHERE id = ? AND started_ms = 0"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto upd, conn_->Prepare("UPDATE runs SET started_ms = ?, updated_ms = ? "
+                               "WHERE id = ? AND started_ms = 0"));
   upd.BindInt(1, now_ms);
   upd.BindInt(2, now_ms);
   upd.BindInt(3, run_id);
@@ -526,7 +542,8 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
          {"DELETE FROM genomes WHERE run_id = ?1 AND generation > ?2",
           "DELETE FROM generation_stats WHERE run_id = ?1 AND generation > ?2",
           "DELETE FROM validations WHERE run_id = ?1 AND generation > ?2",
-          "UPDATE islands SET generation = min(generation, ?2) WHERE run_id = ?1",
+          "UPDATE islands SET generation = min(generation, ?2) WHERE run_id = "
+          "?1",
           "UPDATE runs SET stop_generation = ?2 WHERE id = ?1"}) {
       SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare(sql));
       st.BindInt(1, run_id);
@@ -535,17 +552,21 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
     }
   }
   {
-    SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare("UPDATE runs SET evaluations = (SELECT count(*) "
-                           "FROM genomes WHERE run_id = ?1 AND attempts > 0 "
-                           "AND eval_state IN (2, 3)) WHERE id = ?1"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto st,
+        conn_->Prepare("UPDATE runs SET evaluations = (SELECT count(*) "
+                       "FROM genomes WHERE run_id = ?1 AND attempts > 0 "
+                       "AND eval_state IN (2, 3)) WHERE id = ?1"));
     st.BindInt(1, run_id);
     SKERRY_RETURN_IF_ERROR(st.Run());
   }
   SKERRY_ASSIGN_OR_RETURN(auto best, BestGenomeLocked(run_id));
   {
-    SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE runs SET state = ?, message = ?, "
-                            "updated_ms = ?, champion_id = ?, best_score = ? "
-                            "WHERE id = ?"));
+    SKERRY_ASSIGN_OR_RETURN(
+        auto upd,
+        conn_->Prepare("UPDATE runs SET state = ?, message = ?, "
+                       "updated_ms = ?, champion_id = ?, best_score = ? "
+                       "WHERE id = ?"));
     upd.BindInt(1, state);
     upd.BindText(2, message);
     upd.BindInt(3, now_ms);
@@ -564,9 +585,10 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
 
 absl::StatusOr<int64_t> Store::RegisterWorker(const WorkerRecord& w) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto ins, conn_->Prepare("INSERT INTO workers (name, host, threads, "
-                          "evaluators, version, joined_ms, last_seen_ms) "
-                          "VALUES (?,?,?,?,?,?,?)"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto ins, conn_->Prepare("INSERT INTO workers (name, host, threads, "
+                               "evaluators, version, joined_ms, last_seen_ms) "
+                               "VALUES (?,?,?,?,?,?,?)"));
   ins.BindText(1, w.name);
   ins.BindText(2, w.host);
   ins.BindInt(3, w.threads);
@@ -583,7 +605,9 @@ absl::Status Store::TouchWorkers(absl::Span<const int64_t> ids,
   if (ids.empty()) return absl::OkStatus();
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
-  SKERRY_ASSIGN_OR_RETURN(auto upd, conn_->Prepare("UPDATE workers SET last_seen_ms = ? WHERE id = ?"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto upd,
+      conn_->Prepare("UPDATE workers SET last_seen_ms = ? WHERE id = ?"));
   for (int64_t id : ids) {
     upd.BindInt(1, now_ms);
     upd.BindInt(2, id);
@@ -594,8 +618,9 @@ absl::Status Store::TouchWorkers(absl::Span<const int64_t> ids,
 
 absl::StatusOr<std::vector<RunRecord>> Store::ListRuns() {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
-                                     " FROM runs ORDER BY id")));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
+                                          " FROM runs ORDER BY id")));
   std::vector<RunRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
@@ -608,18 +633,21 @@ absl::StatusOr<std::vector<RunRecord>> Store::ListRuns() {
 
 absl::StatusOr<RunRecord> Store::GetRun(int64_t run_id) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
-                                     " FROM runs WHERE id = ?")));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
+                                          " FROM runs WHERE id = ?")));
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
-  if (!row) return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+  if (!row)
+    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
   return ReadRun(s);
 }
 
 absl::StatusOr<std::vector<IslandRecord>> Store::GetIslands(int64_t run_id) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("SELECT idx, generation, done FROM islands WHERE "
-                        "run_id = ? ORDER BY idx"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare("SELECT idx, generation, done FROM islands WHERE "
+                             "run_id = ? ORDER BY idx"));
   s.BindInt(1, run_id);
   std::vector<IslandRecord> out;
   while (true) {
@@ -649,10 +677,12 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Statement* s) {
 absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
     int64_t run_id, uint32_t island, uint32_t generation) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat(
-             "SELECT ", kGenomeColumns,
-             " FROM genomes WHERE run_id = ? AND island = ? AND generation = ? "
-             "ORDER BY slot")));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s,
+      conn_->Prepare(absl::StrCat(
+          "SELECT ", kGenomeColumns,
+          " FROM genomes WHERE run_id = ? AND island = ? AND generation = ? "
+          "ORDER BY slot")));
   s.BindInt(1, run_id);
   s.BindInt(2, island);
   s.BindInt(3, generation);
@@ -661,12 +691,14 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
 
 absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat("SELECT ", kGenomeColumns,
-                                     " FROM genomes WHERE id = ?")));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare(absl::StrCat("SELECT ", kGenomeColumns,
+                                          " FROM genomes WHERE id = ?")));
   s.BindInt(1, genome_id);
   SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
   if (rows.empty()) {
-    return absl::NotFoundError(absl::StrCat("genome ", genome_id, " not found"));
+    return absl::NotFoundError(
+        absl::StrCat("genome ", genome_id, " not found"));
   }
   return std::move(rows.front());
 }
@@ -674,11 +706,13 @@ absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
 absl::StatusOr<std::vector<StatsRecord>> Store::GetStats(
     int64_t run_id, std::optional<uint32_t> island) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(
-             "SELECT island, generation, best, mean, worst, diversity, "
-             "evaluations, failed, eval_seconds, completed_ms FROM "
-             "generation_stats WHERE run_id = ?1 AND (?2 < 0 OR island = ?2) "
-             "ORDER BY island, generation"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s,
+      conn_->Prepare(
+          "SELECT island, generation, best, mean, worst, diversity, "
+          "evaluations, failed, eval_seconds, completed_ms FROM "
+          "generation_stats WHERE run_id = ?1 AND (?2 < 0 OR island = ?2) "
+          "ORDER BY island, generation"));
   s.BindInt(1, run_id);
   s.BindInt(2, island.has_value() ? static_cast<int64_t>(*island) : -1);
   std::vector<StatsRecord> out;
@@ -704,20 +738,24 @@ absl::StatusOr<std::vector<StatsRecord>> Store::GetStats(
 
 absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeLocked(
     int64_t run_id) {
-  SKERRY_ASSIGN_OR_RETURN(auto run_s, conn_->Prepare("SELECT spec FROM runs WHERE id = ?"));
+  SKERRY_ASSIGN_OR_RETURN(auto run_s,
+                          conn_->Prepare("SELECT spec FROM runs WHERE id = ?"));
   run_s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto run_row, run_s.Step());
-  if (!run_row) return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+  if (!run_row)
+    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
   skerry::v1::RunSpec spec;
   if (!spec.ParseFromString(run_s.ColumnBlob(0))) {
-    return absl::DataLossError(absl::StrCat("run ", run_id, ": stored spec does not parse"));
+    return absl::DataLossError(
+        absl::StrCat("run ", run_id, ": stored spec does not parse"));
   }
   const bool maximize = spec.objective() == skerry::v1::MAXIMIZE;
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(absl::StrCat(
-             "SELECT ", kGenomeColumns,
-             " FROM genomes WHERE run_id = ? AND eval_state = 2 ORDER BY score ",
-             maximize ? "DESC" : "ASC",
-             ", generation, island, slot LIMIT 1")));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s,
+      conn_->Prepare(absl::StrCat(
+          "SELECT ", kGenomeColumns,
+          " FROM genomes WHERE run_id = ? AND eval_state = 2 ORDER BY score ",
+          maximize ? "DESC" : "ASC", ", generation, island, slot LIMIT 1")));
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
   if (rows.empty()) return std::optional<GenomeRecord>();
@@ -731,14 +769,16 @@ absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenome(int64_t run_id) {
 
 absl::StatusOr<int> Store::CountWorkersSeenSince(int64_t since_ms) {
   absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("SELECT count(*) FROM workers WHERE last_seen_ms >= ?"));
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s,
+      conn_->Prepare("SELECT count(*) FROM workers WHERE last_seen_ms >= ?"));
   s.BindInt(1, since_ms);
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
   return row ? static_cast<int>(s.ColumnInt(0)) : 0;
 }
 
 absl::StatusOr<std::vector<GenomeRecord>> Store::FailedGenomes(int64_t run_id,
-                                                              int limit) {
+                                                               int limit) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
       auto s, conn_->Prepare(absl::StrCat(
@@ -777,7 +817,8 @@ absl::StatusOr<Store::Digest> Store::RunDigest(int64_t run_id) {
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) break;
-    for (int c = 0; c < 4; ++c) h.UpdateU32(static_cast<uint32_t>(s.ColumnInt(c)));
+    for (int c = 0; c < 4; ++c)
+      h.UpdateU32(static_cast<uint32_t>(s.ColumnInt(c)));
     for (int c = 4; c < 10; ++c) {
       h.UpdateU32(s.ColumnIsNull(c) ? 0xFFFFFFFFu
                                     : static_cast<uint32_t>(s.ColumnInt(c)));

@@ -12,8 +12,9 @@
 //           UNIQUE(run_id, island, generation, slot)  -- the natural key
 //   generation_stats(run_id, island, generation, best, mean, worst, diversity,
 //           evaluations, failed, eval_seconds, completed_ms)
-//   workers(id, name, host, threads, evaluators, version, joined_ms, last_seen_ms)
-//   validations(id, run_id, genome_id UNIQUE, generation, reason, state, score,
+//   workers(id, name, host, threads, evaluators, version, joined_ms,
+//   last_seen_ms) validations(id, run_id, genome_id UNIQUE, generation, reason,
+//   state, score,
 //           cases, attempts, error, requested_by, requested_ms, completed_ms,
 //           copied_from)                          (version 4)
 //   principals(name, created_ms, created_by)            version 5, with
@@ -33,20 +34,23 @@
 // `runs.owner` is the name of the principal that submitted the run ("local"
 // when access control is off).
 // `spec` is the normalised RunSpec in binary protobuf; `genes` is packed
-// little-endian float64 (common/genes.h); `state`, `origin` and `eval_state` are
-// the enum numbers of proto/skerry/v1. `attempts` counts evaluation attempts made;
-// genomes carried over unchanged (elites, migrants) have 0 and were not evaluated.
-// A genome's selection fitness is not stored: it is derived from the scores of its
-// generation whenever the engine breeds.
+// little-endian float64 (common/genes.h); `state`, `origin` and `eval_state`
+// are the enum numbers of proto/skerry/v1. `attempts` counts evaluation
+// attempts made; genomes carried over unchanged (elites, migrants) have 0 and
+// were not evaluated. A genome's selection fitness is not stored: it is derived
+// from the scores of its generation whenever the engine breeds.
 //
-// ## Commit points (each one transaction; a change is acknowledged only after it)
+// ## Commit points (each one transaction; a change is acknowledged only after
+// it)
 //   CreateRun         the run, its islands and every island's generation 0
 //   CommitResults     a batch of results (group commit of many Report calls),
 //                     with the validation outcomes reported with them
-//   CommitGeneration  one island's next generation whole: its genomes with their
-//                     parent links, the island's generation number, the statistics
-//                     of the generation just completed, the run's best so far,
-//                     and the validation request for that generation's champion
+//   CommitGeneration  one island's next generation whole: its genomes with
+//   their
+//                     parent links, the island's generation number, the
+//                     statistics of the generation just completed, the run's
+//                     best so far, and the validation request for that
+//                     generation's champion
 //   RequestValidation a validation request for one genome (or the stored one)
 //   CommitValidations a batch of validation outcomes
 //   SetRunState       pause, resume, stop, fail
@@ -58,23 +62,26 @@
 //   FinishAudit       the outcome of that change
 //
 // ## Pragmas
-//   journal_mode=WAL     readers never block the writer, and one writer commit is
+//   journal_mode=WAL     readers never block the writer, and one writer commit
+//   is
 //                        one append to the log
-//   synchronous=FULL     the WAL is synced at every commit: an acknowledged result
-//                        survives power loss, not only a process crash. Group commit
-//                        makes this cheap per result. CommitGeneration alone runs
-//                        with synchronous=NORMAL: nobody is answered on it, it can
-//                        be bred again from the generation before, and the WAL is
-//                        synced in order, so the next synced commit (the first
-//                        result of that generation, say) makes it durable too.
+//   synchronous=FULL     the WAL is synced at every commit: an acknowledged
+//   result
+//                        survives power loss, not only a process crash. Group
+//                        commit makes this cheap per result. CommitGeneration
+//                        alone runs with synchronous=NORMAL: nobody is answered
+//                        on it, it can be bred again from the generation
+//                        before, and the WAL is synced in order, so the next
+//                        synced commit (the first result of that generation,
+//                        say) makes it durable too.
 //   busy_timeout=5000    a backup or a second reader may hold a lock briefly
 //   foreign_keys=OFF     parent links are checked by `--check`, not per insert
 //
-// A database written by a newer schema than kSchemaVersion is refused, naming both
-// versions; an older one is migrated forward in one transaction.
+// A database written by a newer schema than kSchemaVersion is refused, naming
+// both versions; an older one is migrated forward in one transaction.
 //
-// Thread safety: every method may be called from any thread; calls are serialised
-// by an internal mutex.
+// Thread safety: every method may be called from any thread; calls are
+// serialised by an internal mutex.
 #ifndef SKERRY_SERVER_STORE_STORE_H_
 #define SKERRY_SERVER_STORE_STORE_H_
 
@@ -245,7 +252,7 @@ class Store {
   // and migrates an older schema. FailedPrecondition for a newer schema.
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path);
   struct Options {
-    std::string vfs;               // SQLite VFS name; empty: the default
+    std::string vfs;  // SQLite VFS name; empty: the default
     int busy_timeout_ms = 5000;
   };
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path,
@@ -269,8 +276,7 @@ class Store {
                            const std::string& message, int64_t now_ms);
   absl::Status SetRunStarted(int64_t run_id, int64_t now_ms);
   // NotFound names a missing run.
-  absl::Status SetRunPriority(int64_t run_id, int32_t priority,
-                              int64_t now_ms);
+  absl::Status SetRunPriority(int64_t run_id, int32_t priority, int64_t now_ms);
   // Ends a run. With keep_through, generations after it are deleted (a faster
   // island may have bred past the stop generation). The champion is recomputed
   // from the genomes that remain.
@@ -299,13 +305,13 @@ class Store {
   // Statistics in (island, generation) order; all islands when island is empty.
   absl::StatusOr<std::vector<StatsRecord>> GetStats(
       int64_t run_id, std::optional<uint32_t> island);
-  // The best evaluated genome of a run; ties go to the earliest generation, then
-  // the lowest island, then the lowest slot.
+  // The best evaluated genome of a run; ties go to the earliest generation,
+  // then the lowest island, then the lowest slot.
   absl::StatusOr<std::optional<GenomeRecord>> BestGenome(int64_t run_id);
   absl::StatusOr<int> CountWorkersSeenSince(int64_t since_ms);
   // FAILED genomes of a run, newest first, at most `limit`; and how many.
   absl::StatusOr<std::vector<GenomeRecord>> FailedGenomes(int64_t run_id,
-                                                         int limit);
+                                                          int limit);
   absl::StatusOr<uint64_t> CountFailed(int64_t run_id);
   // The run digest documented with DigestResponse in runs.proto.
   struct Digest {
@@ -338,7 +344,8 @@ class Store {
   absl::Status CreateFirstAdmin(TokenRecord* token);
   // NotFound for no such token; FailedPrecondition when already revoked.
   absl::StatusOr<TokenRecord> RevokeToken(int64_t token_id,
-                                          const std::string& by, int64_t now_ms);
+                                          const std::string& by,
+                                          int64_t now_ms);
   // Every token (live first when asked), by id.
   absl::StatusOr<std::vector<TokenRecord>> ListTokens();
   absl::StatusOr<int64_t> CountPrincipals();
@@ -377,7 +384,8 @@ class Store {
   absl::StatusOr<std::vector<ValidationRecord>> QueryValidations(
       Statement* stmt, bool with_genes) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
-  absl::Status InsertToken(TokenRecord* token) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status InsertToken(TokenRecord* token)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const std::string path_;
   absl::Mutex mu_;

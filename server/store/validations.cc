@@ -53,8 +53,9 @@ absl::StatusOr<std::vector<ValidationRecord>> Store::QueryValidations(
       absl::StatusOr<std::vector<double>> genes =
           UnpackGenes(s->ColumnBlob(18));
       if (!genes.ok()) {
-        return absl::DataLossError(absl::StrCat(
-            "genome ", r.genome_id, ": stored genes: ", genes.status().message()));
+        return absl::DataLossError(
+            absl::StrCat("genome ", r.genome_id,
+                         ": stored genes: ", genes.status().message()));
       }
       r.genes = *std::move(genes);
     }
@@ -80,11 +81,11 @@ absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
 
   // The genome, and its parent's finished validation when it is a copy.
   SKERRY_ASSIGN_OR_RETURN(
-      auto g, conn_->Prepare(
-                  "SELECT g.run_id, g.generation, g.origin, p.id, p.state, "
-                  "p.score, p.cases FROM genomes g LEFT JOIN validations p "
-                  "ON p.genome_id = g.parent_a AND p.state = 2 "
-                  "WHERE g.id = ?"));
+      auto g,
+      conn_->Prepare("SELECT g.run_id, g.generation, g.origin, p.id, p.state, "
+                     "p.score, p.cases FROM genomes g LEFT JOIN validations p "
+                     "ON p.genome_id = g.parent_a AND p.state = 2 "
+                     "WHERE g.id = ?"));
   g.BindInt(1, request.genome_id);
   SKERRY_ASSIGN_OR_RETURN(bool found, g.Step());
   if (!found) {
@@ -94,9 +95,9 @@ absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
   const int64_t run_id = g.ColumnInt(0);
   const int64_t generation = g.ColumnInt(1);
   const auto origin = static_cast<skerry::v1::Origin>(g.ColumnInt(2));
-  const bool copy = (origin == skerry::v1::ELITE ||
-                     origin == skerry::v1::MIGRANT) &&
-                    !g.ColumnIsNull(3);
+  const bool copy =
+      (origin == skerry::v1::ELITE || origin == skerry::v1::MIGRANT) &&
+      !g.ColumnIsNull(3);
   SKERRY_ASSIGN_OR_RETURN(
       auto ins,
       conn_->Prepare("INSERT INTO validations (run_id, genome_id, generation, "
@@ -181,9 +182,9 @@ absl::StatusOr<std::optional<ValidationRecord>> Store::GetValidation(
 absl::StatusOr<std::optional<ValidationRecord>> Store::GetValidationLocked(
     int64_t genome_id) {
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", kValidationColumns,
-                                          kValidationFrom,
-                                          " WHERE v.genome_id = ?")));
+      auto s,
+      conn_->Prepare(absl::StrCat("SELECT ", kValidationColumns,
+                                  kValidationFrom, " WHERE v.genome_id = ?")));
   s.BindInt(1, genome_id);
   SKERRY_ASSIGN_OR_RETURN(auto rows, QueryValidations(&s, false));
   if (rows.empty()) return std::optional<ValidationRecord>();

@@ -154,8 +154,8 @@ class AuthorizationMatrixTest : public ::testing::Test {
     v1::SubmitRunRequest req;
     *req.mutable_spec() = *spec;
     v1::SubmitRunResponse submitted;
-    grpc::Status s = v1::RunService::NewStub(channel_)->SubmitRun(&ctx, req,
-                                                                 &submitted);
+    grpc::Status s =
+        v1::RunService::NewStub(channel_)->SubmitRun(&ctx, req, &submitted);
     EXPECT_TRUE(s.ok()) << s.error_message();
     EXPECT_EQ(submitted.run().owner(), who);
     return submitted.run().id();
@@ -295,11 +295,11 @@ TEST_F(AuthorizationMatrixTest,
                                     v1::ROLE_RESEARCHER);
   ASSERT_TRUE(other.ok()) << other.status();
   auto runs = v1::RunService::NewStub(channel_);
-  const uint64_t run = SubmitAs(
-      "researcher",
-      "name: \"owned\" seed: 3 genome_length: 2 "
-      "evaluator { builtin { function: \"sphere\" } } "
-      "ga { population_size: 6 } stop { max_generations: 50 }");
+  const uint64_t run =
+      SubmitAs("researcher",
+               "name: \"owned\" seed: 3 genome_length: 2 "
+               "evaluator { builtin { function: \"sphere\" } } "
+               "ga { population_size: 6 } stop { max_generations: 50 }");
   ASSERT_NE(run, 0u);
   auto steer = [&](const std::string& token, uint64_t id, bool resume) {
     grpc::ClientContext ctx;

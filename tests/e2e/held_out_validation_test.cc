@@ -75,7 +75,8 @@ class ValidationE2eTest : public ::testing::Test {
   }
 
   void Submit(const std::string& text) {
-    const std::string spec = dir_.File(absl::StrCat("run", ++runs_made_, ".spec"));
+    const std::string spec =
+        dir_.File(absl::StrCat("run", ++runs_made_, ".spec"));
     ASSERT_TRUE(testing::WriteTextFile(spec, text));
     testing::CommandResult submit = RunCommand(Cli({"submit", spec}));
     ASSERT_EQ(submit.exit_code, 0) << submit.output;
@@ -92,7 +93,8 @@ class ValidationE2eTest : public ::testing::Test {
 
   skerry::v1::RunState State(uint64_t run) {
     grpc::ClientContext ctx;
-    ctx.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
+    ctx.set_deadline(std::chrono::system_clock::now() +
+                     std::chrono::seconds(10));
     skerry::v1::RunRef ref;
     ref.set_run_id(run);
     skerry::v1::GetRunResponse resp;
@@ -102,7 +104,8 @@ class ValidationE2eTest : public ::testing::Test {
 
   std::vector<skerry::v1::Validation> List(uint64_t run) {
     grpc::ClientContext ctx;
-    ctx.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
+    ctx.set_deadline(std::chrono::system_clock::now() +
+                     std::chrono::seconds(10));
     skerry::v1::ListValidationsRequest req;
     req.set_run_id(run);
     req.set_limit(10000);
@@ -124,8 +127,8 @@ class ValidationE2eTest : public ::testing::Test {
           return !list.empty();
         },
         absl::Seconds(240));
-    EXPECT_TRUE(ok) << "coordinator:\n" << coordinator_->process.Log()
-                    << "\nworker 0:\n"
+    EXPECT_TRUE(ok) << "coordinator:\n"
+                    << coordinator_->process.Log() << "\nworker 0:\n"
                     << (workers_.empty() ? "" : workers_[0].Log());
     return list;
   }
@@ -195,9 +198,8 @@ TEST_F(ValidationE2eTest, EveryGenerationsChampionIsValidatedByTheFleet) {
   EXPECT_THAT(history.output, HasSubstr("VALIDATION"));
 
   // Any genome on demand, named by its natural key.
-  testing::CommandResult validate =
-      RunCommand(Cli({"validate", "1/1/2/5", "--timeout", "120"}),
-                 absl::Seconds(150));
+  testing::CommandResult validate = RunCommand(
+      Cli({"validate", "1/1/2/5", "--timeout", "120"}), absl::Seconds(150));
   ASSERT_EQ(validate.exit_code, 0) << validate.output;
   EXPECT_THAT(validate.output, HasSubstr("training:"));
   EXPECT_THAT(validate.output, HasSubstr("(1/1/2/5)"));
@@ -227,8 +229,9 @@ TEST_F(ValidationE2eTest, EveryGenerationsChampionIsValidatedByTheFleet) {
   testing::CommandResult check =
       RunCommand({SKERRY_COORDINATOR_BIN, "--check", copy});
   EXPECT_EQ(check.exit_code, 0) << check.output;
-  testing::CommandResult damage = RunCommand(
-      {"/usr/bin/sqlite3", copy, "UPDATE validations SET genome_id = 999999 WHERE id = 1"});
+  testing::CommandResult damage =
+      RunCommand({"/usr/bin/sqlite3", copy,
+                  "UPDATE validations SET genome_id = 999999 WHERE id = 1"});
   ASSERT_EQ(damage.exit_code, 0) << damage.output;
   check = RunCommand({SKERRY_COORDINATOR_BIN, "--check", copy});
   EXPECT_NE(check.exit_code, 0) << check.output;
@@ -294,8 +297,9 @@ TEST_F(ValidationE2eTest, APendingValidationSurvivesACoordinatorKill) {
 }
 
 TEST_F(ValidationE2eTest, BadRequestsSayWhatIsWrong) {
-  Submit("name: \"plain\" genome_length: 2 evaluator { builtin { function: "
-         "\"sphere\" } } stop { max_generations: 2 }");
+  Submit(
+      "name: \"plain\" genome_length: 2 evaluator { builtin { function: "
+      "\"sphere\" } } stop { max_generations: 2 }");
   testing::CommandResult none = RunCommand(Cli({"validate", "1/best"}));
   EXPECT_EQ(none.exit_code, 1) << none.output;
   EXPECT_THAT(none.output, HasSubstr("has no champion yet"));
@@ -312,8 +316,9 @@ TEST_F(ValidationE2eTest, BadRequestsSayWhatIsWrong) {
   EXPECT_EQ(timeout.exit_code, 2) << timeout.output;
   const std::string bad = dir_.File("bad.spec");
   ASSERT_TRUE(testing::WriteTextFile(
-      bad, "genome_length: 2 evaluator { builtin { function: \"sphere\" } "
-           "validation { cases: \"x\" } }"));
+      bad,
+      "genome_length: 2 evaluator { builtin { function: \"sphere\" } "
+      "validation { cases: \"x\" } }"));
   testing::CommandResult submit = RunCommand(Cli({"submit", bad}));
   EXPECT_EQ(submit.exit_code, 2) << submit.output;
   EXPECT_THAT(submit.output, HasSubstr("evaluator.validation"));

@@ -14,12 +14,13 @@ std::vector<StoredGenome> ReadGenomes(const std::string& db, int64_t run_id) {
   }
   sqlite3_busy_timeout(conn, 5000);
   sqlite3_stmt* s = nullptr;
-  sqlite3_prepare_v2(conn,
-                     "SELECT id, run_id, island, generation, slot, origin, "
-                     "coalesce(parent_a, 0), coalesce(parent_b, 0), genes, "
-                     "score, eval_state, attempts FROM genomes WHERE run_id = ? "
-                     "ORDER BY island, generation, slot",
-                     -1, &s, nullptr);
+  sqlite3_prepare_v2(
+      conn,
+      "SELECT id, run_id, island, generation, slot, origin, "
+      "coalesce(parent_a, 0), coalesce(parent_b, 0), genes, "
+      "score, eval_state, attempts FROM genomes WHERE run_id = ? "
+      "ORDER BY island, generation, slot",
+      -1, &s, nullptr);
   sqlite3_bind_int64(s, 1, run_id);
   while (sqlite3_step(s) == SQLITE_ROW) {
     StoredGenome g;

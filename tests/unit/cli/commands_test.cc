@@ -116,10 +116,10 @@ TEST_F(CommandsTest, SubmitSendsSpecAndTextAndPrintsTheRunId) {
 }
 
 TEST_F(CommandsTest, SubmitSendsThePriorityGiven) {
-  std::string path = WriteTemp(
-      "prio.spec",
-      "name: \"t\" genome_length: 2\n"
-      "evaluator { builtin { function: \"sphere\" } }\n");
+  std::string path =
+      WriteTemp("prio.spec",
+                "name: \"t\" genome_length: 2\n"
+                "evaluator { builtin { function: \"sphere\" } }\n");
   v1::SubmitRunRequest sent;
   v1::SubmitRunResponse response;
   response.mutable_run()->set_id(42);
@@ -133,10 +133,10 @@ TEST_F(CommandsTest, SubmitSendsThePriorityGiven) {
 }
 
 TEST_F(CommandsTest, SubmitRefusesAPriorityOutOfRangeWithoutCalling) {
-  std::string path = WriteTemp(
-      "prio.spec",
-      "name: \"t\" genome_length: 2\n"
-      "evaluator { builtin { function: \"sphere\" } }\n");
+  std::string path =
+      WriteTemp("prio.spec",
+                "name: \"t\" genome_length: 2\n"
+                "evaluator { builtin { function: \"sphere\" } }\n");
   // No SubmitRun call is expected (StrictMock).
   EXPECT_EQ(Cli({"submit", path, "--priority", "1001"}), kExitUsage);
   EXPECT_THAT(err_.str(), HasSubstr("--priority"));
@@ -286,10 +286,10 @@ TEST_F(CommandsTest, PrioritySendsTheNewWeightAndPrintsIt) {
   v1::RunSummary changed = Summary(v1::RUNNING, 0);
   changed.set_priority(7);
   EXPECT_CALL(*mock_, SetPriority(_, _, _))
-      .WillOnce(DoAll(Invoke([&](grpc::ClientContext*,
-                                 const v1::SetPriorityRequest& req,
-                                 v1::RunSummary*) { asked = req; }),
-                      SetArgPointee<2>(changed), Return(grpc::Status::OK)));
+      .WillOnce(DoAll(
+          Invoke([&](grpc::ClientContext*, const v1::SetPriorityRequest& req,
+                     v1::RunSummary*) { asked = req; }),
+          SetArgPointee<2>(changed), Return(grpc::Status::OK)));
   EXPECT_EQ(Cli({"priority", "3", "7"}), kExitOk);
   EXPECT_EQ(asked.run_id(), 3u);
   EXPECT_EQ(asked.priority(), 7u);

@@ -251,9 +251,10 @@ TEST(FormatProgressLineTest, ShowsEveryIslandsGenerationAndBest) {
     islands { island: 1 generation: 13 has_stats: true best: 3.979836 }
     islands { island: 2 generation: 0 }
   )pb");
-  EXPECT_EQ(FormatProgressLine(run, 60),
-            "run 3 running  gen 0-13/60  evals 14,400  best 3.97984  | 0:g12 4.5 "
-            "1:g13 3.97984 2:g0 -");
+  EXPECT_EQ(
+      FormatProgressLine(run, 60),
+      "run 3 running  gen 0-13/60  evals 14,400  best 3.97984  | 0:g12 4.5 "
+      "1:g13 3.97984 2:g0 -");
 }
 
 TEST(FormatProgressLineTest, CountsDoneIslandsAndHasNoNewline) {

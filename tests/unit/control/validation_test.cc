@@ -1,5 +1,7 @@
 // Held-out validation cases (common/validation.h): the spec check, the cases
 // and their seeds, and how case scores combine.
+#include "common/validation.h"
+
 #include <map>
 #include <string>
 #include <vector>
@@ -8,7 +10,6 @@
 #include "common/evaluator.h"
 #include "common/pole.h"
 #include "common/spec.h"
-#include "common/validation.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 
@@ -75,8 +76,7 @@ TEST(ValidationSpecTest, BadDeclarationsNameTheField) {
        "evaluator.validation.seeds[1]: 3 is listed twice"},
       {External("cases: \"seed-4\""), "kept for seeded cases"},
       {External("cases: \"tab\\there\""), "control characters"},
-      {External("generalisation: true"),
-       "evaluator.validation.generalisation"},
+      {External("generalisation: true"), "evaluator.validation.generalisation"},
       {External("cases: \"x\" champions: 9"),
        "evaluator.validation.champions: unknown value 9"},
       {"genome_length: 2 evaluator { builtin { function: \"sphere\" } "
@@ -187,7 +187,8 @@ TEST(ValidateGenesTest, BuiltinFunctionsHaveNoCases) {
   absl::StatusOr<RunSpec> spec = Prepare(
       "genome_length: 2 evaluator { builtin { function: \"sphere\" } }");
   ASSERT_TRUE(spec.ok()) << spec.status();
-  absl::StatusOr<std::unique_ptr<Evaluator>> e = MakeEvaluator(spec->evaluator());
+  absl::StatusOr<std::unique_ptr<Evaluator>> e =
+      MakeEvaluator(spec->evaluator());
   ASSERT_TRUE(e.ok()) << e.status();
   absl::StatusOr<double> score = (*e)->EvaluateCase({0.0, 0.0}, "x", 1);
   EXPECT_EQ(score.status().code(), absl::StatusCode::kFailedPrecondition);

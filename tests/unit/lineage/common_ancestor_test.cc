@@ -14,9 +14,9 @@
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "server/lineage/lineage_reader.h"
+#include "tests/support/process.h"
 #include "tests/unit/lineage/lineage_graph.h"
 #include "tests/unit/server/sqlite_test_util.h"
-#include "tests/support/process.h"
 
 namespace skerry::lineage {
 namespace {

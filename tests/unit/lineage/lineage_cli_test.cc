@@ -12,8 +12,8 @@
 #include "grpcpp/grpcpp.h"
 #include "gtest/gtest.h"
 #include "server/lineage/lineage_service.h"
-#include "tests/unit/lineage/lineage_graph.h"
 #include "tests/support/process.h"
+#include "tests/unit/lineage/lineage_graph.h"
 
 namespace skerry::cli {
 namespace {

@@ -11,8 +11,8 @@
 #include "server/auth/rules.h"
 #include "server/auth/tokens.h"
 #include "server/store/store.h"
-#include "tests/unit/server/sqlite_test_util.h"
 #include "tests/support/process.h"
+#include "tests/unit/server/sqlite_test_util.h"
 
 namespace skerry::auth {
 namespace {

@@ -14,8 +14,8 @@
 #include "server/engine/engine.h"
 #include "server/scheduler/task_queue.h"
 #include "server/store/store.h"
-#include "tests/unit/server/task_queue_test_util.h"
 #include "tests/support/process.h"
+#include "tests/unit/server/task_queue_test_util.h"
 
 namespace skerry::engine {
 namespace {

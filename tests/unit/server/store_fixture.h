@@ -32,8 +32,8 @@ inline RunSpec SmallSpec(uint32_t islands = 2) {
   return prepared.ok() ? *prepared : spec;
 }
 
-inline GenomeRecord MakeGenome(uint32_t island, uint32_t generation, uint32_t slot,
-                        double gene) {
+inline GenomeRecord MakeGenome(uint32_t island, uint32_t generation,
+                               uint32_t slot, double gene) {
   GenomeRecord g;
   g.island = island;
   g.generation = generation;
@@ -45,7 +45,8 @@ inline GenomeRecord MakeGenome(uint32_t island, uint32_t generation, uint32_t sl
 }
 
 // Generation 0 of every island, `per_island` genomes each.
-inline std::vector<GenomeRecord> Generation0(uint32_t islands, uint32_t per_island) {
+inline std::vector<GenomeRecord> Generation0(uint32_t islands,
+                                             uint32_t per_island) {
   std::vector<GenomeRecord> out;
   for (uint32_t i = 0; i < islands; ++i) {
     for (uint32_t s = 0; s < per_island; ++s) {

@@ -11,9 +11,9 @@
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "server/store/store.h"
+#include "tests/support/process.h"
 #include "tests/unit/server/sqlite_test_util.h"
 #include "tests/unit/server/store_fixture.h"
-#include "tests/support/process.h"
 
 namespace skerry::store {
 namespace {
@@ -60,10 +60,11 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   absl::StatusOr<int> v = (*again)->SchemaVersion();
   ASSERT_TRUE(v.ok()) << v.status();
   EXPECT_EQ(*v, Store::kSchemaVersion);
-  EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM sqlite_master WHERE "
-                             "name IN ('genomes_parent_a', 'genomes_parent_b', "
-                             "'genomes_failed', 'validations', "
-                             "'validations_run', 'validations_pending')"),
+  EXPECT_EQ(RawQuery(path(),
+                     "SELECT count(*) FROM sqlite_master WHERE "
+                     "name IN ('genomes_parent_a', 'genomes_parent_b', "
+                     "'genomes_failed', 'validations', "
+                     "'validations_run', 'validations_pending')"),
             "6");
   EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "old");
 }

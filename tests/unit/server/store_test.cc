@@ -16,9 +16,9 @@
 #include "common/spec.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/support/process.h"
 #include "tests/unit/server/sqlite_test_util.h"
 #include "tests/unit/server/store_fixture.h"
-#include "tests/support/process.h"
 
 namespace skerry::store {
 namespace {

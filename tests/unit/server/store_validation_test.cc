@@ -15,9 +15,9 @@ using ::testing::HasSubstr;
 
 class StoreValidationTest : public StoreTest {
  protected:
-  ValidationRecord Request(int64_t genome_id,
-                           skerry::v1::ValidationReason reason =
-                               skerry::v1::REQUESTED) {
+  ValidationRecord Request(
+      int64_t genome_id,
+      skerry::v1::ValidationReason reason = skerry::v1::REQUESTED) {
     ValidationRequest r;
     r.genome_id = genome_id;
     r.cases = 625;
@@ -200,8 +200,8 @@ TEST_F(StoreValidationTest, TrimmingAFinishedRunTrimsItsValidations) {
   Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
   std::vector<GenomeRecord> next = NextGeneration(run, genomes[3], true);
   Request(next[1].id);
-  ASSERT_TRUE(store_->FinishRun(run.id, skerry::v1::FINISHED, "done", 0, 9000)
-                  .ok());
+  ASSERT_TRUE(
+      store_->FinishRun(run.id, skerry::v1::FINISHED, "done", 0, 9000).ok());
   absl::StatusOr<std::vector<ValidationRecord>> list =
       store_->ListValidations(run.id, 10);
   ASSERT_TRUE(list.ok());
