@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 4)
+// ## Schema (version 5)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -13,10 +13,10 @@
 //   generation_stats(run_id, island, generation, best, mean, worst, diversity,
 //           evaluations, failed, eval_seconds, completed_ms)
 //   workers(id, name, host, threads, evaluators, version, joined_ms,
-//   last_seen_ms) validations(id, run_id, genome_id UNIQUE, generation, reason,
-//   state, score,
-//           cases, attempts, error, requested_by, requested_ms, completed_ms,
-//           copied_from)                          (version 4)
+//           last_seen_ms)
+//   validations(id, run_id, genome_id UNIQUE, generation, reason, state,
+//           score, cases, attempts, error, requested_by, requested_ms,
+//           completed_ms, copied_from)              (version 4)
 //   principals(name, created_ms, created_by)            version 5, with
 //   tokens(id, principal, role, hash, note, created_ms, created_by,
 //          revoked_ms, revoked_by)
@@ -40,42 +40,39 @@
 // were not evaluated. A genome's selection fitness is not stored: it is derived
 // from the scores of its generation whenever the engine breeds.
 //
-// ## Commit points (each one transaction; a change is acknowledged only after
-// it)
-//   CreateRun         the run, its islands and every island's generation 0
-//   CommitResults     a batch of results (group commit of many Report calls),
-//                     with the validation outcomes reported with them
-//   CommitGeneration  one island's next generation whole: its genomes with
-//   their
-//                     parent links, the island's generation number, the
-//                     statistics of the generation just completed, the run's
-//                     best so far, and the validation request for that
-//                     generation's champion
-//   RequestValidation a validation request for one genome (or the stored one)
-//   CommitValidations a batch of validation outcomes
-//   SetRunState       pause, resume, stop, fail
-//   FinishRun         final state, trimming of generations past the stop
-//                     generation, the champion
-//   CreateToken       a token, and its principal when new
-//   RevokeToken       a token's revocation time and who revoked it
-//   BeginAudit        an audit row, before the change it describes is made
-//   FinishAudit       the outcome of that change
+// ## Commit points
+// Each is one transaction; a change is acknowledged only after it.
+//   CreateRun          the run, its islands and every island's generation 0
+//   CommitResults      a batch of results (group commit of many Report
+//                      calls), with the validation outcomes reported with them
+//   CommitGeneration   one island's next generation whole: its genomes with
+//                      their parent links, the island's generation number, the
+//                      statistics of the generation just completed, the run's
+//                      best so far, and the validation request for that
+//                      generation's champion
+//   RequestValidation  a validation request for one genome (or the stored one)
+//   CommitValidations  a batch of validation outcomes
+//   SetRunState        pause, resume, stop, fail
+//   FinishRun          final state, trimming of generations past the stop
+//                      generation, the champion
+//   CreateToken        a token, and its principal when new
+//   RevokeToken        a token's revocation time and who revoked it
+//   BeginAudit         an audit row, before the change it describes is made
+//   FinishAudit        the outcome of that change
 //
 // ## Pragmas
-//   journal_mode=WAL     readers never block the writer, and one writer commit
-//   is
-//                        one append to the log
-//   synchronous=FULL     the WAL is synced at every commit: an acknowledged
-//   result
-//                        survives power loss, not only a process crash. Group
-//                        commit makes this cheap per result. CommitGeneration
-//                        alone runs with synchronous=NORMAL: nobody is answered
-//                        on it, it can be bred again from the generation
-//                        before, and the WAL is synced in order, so the next
-//                        synced commit (the first result of that generation,
-//                        say) makes it durable too.
-//   busy_timeout=5000    a backup or a second reader may hold a lock briefly
-//   foreign_keys=OFF     parent links are checked by `--check`, not per insert
+//   journal_mode=WAL   readers never block the writer, and one writer commit
+//                      is one append to the log
+//   synchronous=FULL   the WAL is synced at every commit: an acknowledged
+//                      result survives power loss, not only a process crash.
+//                      Group commit makes this cheap per result.
+//                      CommitGeneration alone runs with synchronous=NORMAL:
+//                      nobody is answered on it, it can be bred again from the
+//                      generation before, and the WAL is synced in order, so
+//                      the next synced commit (the first result of that
+//                      generation, say) makes it durable too.
+//   busy_timeout=5000  a backup or a second reader may hold a lock briefly
+//   foreign_keys=OFF   parent links are checked by `--check`, not per insert
 //
 // A database written by a newer schema than kSchemaVersion is refused, naming
 // both versions; an older one is migrated forward in one transaction.
