@@ -9,6 +9,7 @@
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/engine/breeder.h"
+#include "server/engine/island_step.h"
 #include "server/engine/topology.h"
 
 namespace skerry::engine {
@@ -57,18 +58,23 @@ absl::StatusOr<std::unique_ptr<Engine>> Engine::Open(
     SKERRY_RETURN_IF_ERROR(engine->Load());
     SKERRY_RETURN_IF_ERROR(engine->LoadValidations());
   }
-  engine->committer_ = std::thread([e = engine.get()] { e->CommitterLoop(); });
+  Engine* e = engine.get();
+  GroupCommit::Callbacks callbacks;
+  callbacks.apply = [e](absl::Span<ReportJob* const> jobs,
+                        const std::function<void()>& answer) {
+    e->ApplyReports(jobs, answer);
+  };
+  callbacks.idle = [e] { e->Idle(); };
+  engine->committer_ =
+      std::make_unique<GroupCommit>(std::move(callbacks), absl::Seconds(1));
+  engine->committer_->Start();
   return engine;
 }
 
 Engine::~Engine() { Shutdown(); }
 
 void Engine::Shutdown() {
-  {
-    absl::MutexLock l(&jobs_mu_);
-    stopping_ = true;
-  }
-  if (committer_.joinable()) committer_.join();
+  if (committer_ != nullptr) committer_->Shutdown();
 }
 
 absl::Status Engine::Load() {
@@ -91,9 +97,25 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
                           store_->GetIslands(record.id));
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::StatsRecord> stats,
                           store_->GetStats(record.id, std::nullopt));
+  SKERRY_ASSIGN_OR_RETURN(auto states, store_->GetStrategyStates(record.id));
   for (const store::IslandRecord& ir : islands) {
     Island island;
     island.index = ir.index;
+    SKERRY_ASSIGN_OR_RETURN(island.strategy,
+                            MakeStrategy(record.spec, ir.index));
+    skerry::v1::StrategyState state;
+    auto stored = states.find(ir.index);
+    // A run stored before strategy states were kept has none: its GA needs
+    // none.
+    if (stored != states.end() && !state.ParseFromString(stored->second)) {
+      return absl::DataLossError(
+          absl::StrCat("run ", record.id, " island ", ir.index,
+                       ": the stored strategy state does not parse"));
+    }
+    if (absl::Status s = island.strategy->Restore(state); !s.ok()) {
+      return absl::DataLossError(
+          absl::StrCat("run ", record.id, ": ", s.message()));
+    }
     island.generation = ir.generation;
     island.done = ir.done;
     for (const store::StatsRecord& s : stats) {
@@ -190,11 +212,17 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   rec.state = skerry::v1::RUNNING;
   rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
   std::vector<GenomeRecord> genomes;
+  std::vector<std::unique_ptr<Strategy>> strategies;
+  std::vector<std::string> states;
   for (uint32_t i = 0; i < prepared.islands().count(); ++i) {
-    std::vector<GenomeRecord> g0 = Seed(prepared, i);
+    SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<Strategy> strategy,
+                            MakeStrategy(prepared, i));
+    SKERRY_ASSIGN_OR_RETURN(std::vector<GenomeRecord> g0, strategy->Start());
     for (GenomeRecord& g : g0) genomes.push_back(std::move(g));
+    states.push_back(strategy->Save().SerializeAsString());
+    strategies.push_back(std::move(strategy));
   }
-  if (absl::Status s = store_->CreateRun(&rec, &genomes); !s.ok()) {
+  if (absl::Status s = store_->CreateRun(&rec, &genomes, &states); !s.ok()) {
     NoteWriteFailure(s);
     return s;
   }
@@ -204,7 +232,10 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   run->evaluator =
       std::make_shared<skerry::v1::EvaluatorSpec>(prepared.evaluator());
   run->islands.resize(prepared.islands().count());
-  for (uint32_t i = 0; i < run->islands.size(); ++i) run->islands[i].index = i;
+  for (uint32_t i = 0; i < run->islands.size(); ++i) {
+    run->islands[i].index = i;
+    run->islands[i].strategy = std::move(strategies[i]);
+  }
   for (GenomeRecord& g : genomes) {
     Island& island = run->islands[g.island];
     island.pending[g.id] = g.slot;
@@ -265,63 +296,31 @@ absl::Status Engine::Stop(int64_t run_id) {
 
 absl::StatusOr<ReportOutcome> Engine::Report(
     int64_t worker_id, const std::vector<skerry::v1::TaskResult>& results) {
-  ReportJob job;
-  job.worker_id = worker_id;
-  job.results = &results;
-  absl::MutexLock l(&jobs_mu_);
-  if (stopping_) return absl::UnavailableError("coordinator is shutting down");
-  jobs_.push_back(&job);
-  jobs_mu_.Await(absl::Condition(&job.done));
-  if (!job.status.ok()) return job.status;
-  return job.outcome;
+  return committer_->Submit(worker_id, results);
 }
 
-void Engine::CommitterLoop() {
-  while (true) {
-    std::vector<ReportJob*> jobs;
-    bool stopping = false;
-    {
-      absl::MutexLock l(&jobs_mu_);
-      auto ready = [this]() ABSL_EXCLUSIVE_LOCKS_REQUIRED(jobs_mu_) {
-        return stopping_ || !jobs_.empty();
-      };
-      jobs_mu_.AwaitWithTimeout(absl::Condition(&ready), absl::Seconds(1));
-      jobs.swap(jobs_);
-      stopping = stopping_;
-    }
-    if (!jobs.empty()) ProcessJobs(std::move(jobs));
-    {
-      absl::MutexLock l(&mu_);
-      RetryWrites();
-      if (!write_problem_.ok()) continue;
-      // Retry what a failed write left undone, and apply wall-time limits.
-      std::vector<int64_t> ids;
-      for (const auto& [id, run] : runs_) ids.push_back(id);
-      for (int64_t id : ids) {
-        auto it = runs_.find(id);
-        if (it == runs_.end()) continue;
-        absl::Status s = Advance(*it->second);
-        if (!s.ok()) {
-          NoteWriteFailure(s);
-          std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
-                       s.ToString().c_str());
-        }
-      }
-      NoteWriteFailure(CheckWallTime());
-    }
-    if (stopping) {
-      absl::MutexLock l(&jobs_mu_);
-      for (ReportJob* job : jobs_) {
-        job->status = absl::UnavailableError("coordinator is shutting down");
-        job->done = true;
-      }
-      jobs_.clear();
-      return;
+void Engine::Idle() {
+  absl::MutexLock l(&mu_);
+  RetryWrites();
+  if (!write_problem_.ok()) return;
+  // Retry what a failed write left undone, and apply wall-time limits.
+  std::vector<int64_t> ids;
+  for (const auto& [id, run] : runs_) ids.push_back(id);
+  for (int64_t id : ids) {
+    auto it = runs_.find(id);
+    if (it == runs_.end()) continue;
+    absl::Status s = Advance(*it->second);
+    if (!s.ok()) {
+      NoteWriteFailure(s);
+      std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
+                   s.ToString().c_str());
     }
   }
+  NoteWriteFailure(CheckWallTime());
 }
 
-void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
+void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
+                          const std::function<void()>& answer) {
   struct Applied {
     Run* run;
     uint32_t island;
@@ -434,20 +433,18 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
     queue_->Complete(done);
     queue_->Unclaim(retry);
   }
-  {
-    absl::MutexLock jl(&jobs_mu_);
-    for (size_t j = 0; j < jobs.size(); ++j) {
-      if (committed.ok()) {
-        jobs[j]->outcome = outcomes[j];
-      } else {
-        jobs[j]->status = absl::UnavailableError(
-            absl::StrCat("results could not be stored, report them again: ",
-                         committed.message()));
-      }
-      jobs[j]->done = true;
+  for (size_t j = 0; j < jobs.size(); ++j) {
+    if (committed.ok()) {
+      jobs[j]->outcome = outcomes[j];
+    } else {
+      jobs[j]->status = absl::UnavailableError(
+          absl::StrCat("results could not be stored, report them again: ",
+                       committed.message()));
     }
   }
+  answer();
   if (!committed.ok()) return;
+  // Breed what the batch completed before anyone else takes the lock.
   std::vector<int64_t> touched;
   for (const Applied& a : applied) touched.push_back(a.run->record.id);
   std::sort(touched.begin(), touched.end());
@@ -550,85 +547,101 @@ absl::StatusOr<const std::vector<GenomeRecord>*> Engine::CompletedGeneration(
 }
 
 absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
-  if (island.done) return false;
   const RunSpec& spec = run.record.spec;
-  if (run.stop_generation.has_value() &&
-      island.generation > *run.stop_generation) {
-    // Bred past the run's stop generation: that work is discarded at finish.
-    std::vector<int64_t> ids;
-    for (const auto& [id, slot] : island.pending) ids.push_back(id);
-    queue_->Remove(ids);
-    island.pending.clear();
-    island.current.clear();
-    island.done = true;
-    return true;
-  }
-  if (!island.pending.empty()) return false;
-
   const uint32_t g = island.generation;
-  store::StatsRecord stats = ComputeStats(spec, island.current);
-  stats.run_id = run.record.id;
-  stats.completed_ms = clock_->WallMillis();
-  const bool has_best = stats.failed < island.current.size();
-
-  std::string reason;
-  std::optional<uint32_t> new_stop;
-  if (run.stop_generation.has_value() && g >= *run.stop_generation) {
-    reason = absl::StrCat("target score reached at generation ",
-                          *run.stop_generation);
-  } else if (has_best && MeetsTarget(spec, stats.best)) {
-    new_stop = g;
-    reason = absl::StrCat("target score reached at generation ", g);
-  } else if (spec.stop().max_generations() > 0 &&
-             g + 1 >= spec.stop().max_generations()) {
-    reason = absl::StrCat("generation limit (", spec.stop().max_generations(),
-                          ") reached");
-  } else if (spec.stop().max_evaluations() > 0 &&
-             island.evaluations + stats.evaluations >=
-                 EvaluationShare(spec, island.index)) {
-    reason = absl::StrCat("evaluation budget (", spec.stop().max_evaluations(),
-                          ") reached");
+  IslandFacts facts;
+  facts.done = island.done;
+  facts.evaluating = !island.pending.empty();
+  facts.generation = g;
+  facts.run_stop_generation = run.stop_generation;
+  facts.max_generations = spec.stop().max_generations();
+  facts.max_evaluations = spec.stop().max_evaluations();
+  store::StatsRecord stats;
+  if (!island.done && !facts.evaluating) {
+    stats = ComputeStats(spec, island.current);
+    stats.run_id = run.record.id;
+    stats.completed_ms = clock_->WallMillis();
+    facts.has_best = stats.failed < island.current.size();
+    facts.meets_target = facts.has_best && MeetsTarget(spec, stats.best);
+    facts.evaluations = island.evaluations + stats.evaluations;
+    if (facts.max_evaluations > 0) {
+      facts.evaluation_share = EvaluationShare(spec, island.index);
+    }
   }
-  const bool done = !reason.empty();
+  IslandDecision decision = DecideIslandStep(facts);
 
-  std::vector<GenomeRecord> next;
-  if (!done) {
-    const uint32_t next_gen = g + 1;
-    std::vector<const GenomeRecord*> migrants;
-    if (IsMigrationEpoch(spec, next_gen)) {
-      for (uint32_t src : Sources(spec, island.index, next_gen)) {
-        const std::vector<GenomeRecord>* source_gen = nullptr;
-        bool skip = false;
-        if (spec.islands().asynchronous()) {
-          // Whatever the neighbour completed most recently, up to generation g
-          // (not reproducible: it depends on how far the neighbour got).
-          Island& s = run.islands[src];
-          auto newest = s.completed.upper_bound(g);
-          if (newest == s.completed.begin()) continue;  // nothing yet
-          source_gen = &std::prev(newest)->second;
-        } else {
-          SKERRY_ASSIGN_OR_RETURN(source_gen,
-                                  CompletedGeneration(run, src, g, &skip));
-          if (skip) continue;
-          if (source_gen == nullptr) {
-            island.waiting = true;
-            return false;
-          }
-        }
-        for (const GenomeRecord* m : ChooseEmigrants(
-                 spec, *source_gen, island.index, spec.islands().migrants())) {
-          migrants.push_back(m);
+  // Breeding at an epoch: find the migrants; a source that has not completed
+  // their generation yet makes the island wait (reproducible mode).
+  std::vector<const GenomeRecord*> migrants;
+  if (decision.action == IslandAction::kBreed &&
+      IsMigrationEpoch(spec, g + 1)) {
+    for (uint32_t src : Sources(spec, island.index, g + 1)) {
+      const std::vector<GenomeRecord>* source_gen = nullptr;
+      bool skip = false;
+      if (spec.islands().asynchronous()) {
+        // Whatever the neighbour completed most recently, up to generation g
+        // (not reproducible: it depends on how far the neighbour got).
+        Island& s = run.islands[src];
+        auto newest = s.completed.upper_bound(g);
+        if (newest == s.completed.begin()) continue;  // nothing yet
+        source_gen = &std::prev(newest)->second;
+      } else {
+        SKERRY_ASSIGN_OR_RETURN(source_gen,
+                                CompletedGeneration(run, src, g, &skip));
+        if (skip) continue;
+        if (source_gen == nullptr) {
+          facts.migrants_missing = true;
+          decision = DecideIslandStep(facts);
+          break;
         }
       }
+      for (const GenomeRecord* m : ChooseEmigrants(
+               spec, *source_gen, island.index, spec.islands().migrants())) {
+        migrants.push_back(m);
+      }
     }
+  }
+
+  switch (decision.action) {
+    case IslandAction::kNone:
+      return false;
+    case IslandAction::kDiscard: {
+      // Bred past the run's stop generation: that work is discarded at finish.
+      std::vector<int64_t> ids;
+      for (const auto& [id, slot] : island.pending) ids.push_back(id);
+      queue_->Remove(ids);
+      island.pending.clear();
+      island.current.clear();
+      island.done = true;
+      return true;
+    }
+    case IslandAction::kWait:
+      island.waiting = true;
+      return false;
+    case IslandAction::kFinish:
+    case IslandAction::kBreed:
+      break;
+  }
+  const bool done = decision.action == IslandAction::kFinish;
+  const std::string& reason = decision.reason;
+  const std::optional<uint32_t>& new_stop = decision.new_stop;
+  const bool has_best = facts.has_best;
+
+  std::vector<GenomeRecord> next;
+  skerry::v1::StrategyState before;
+  std::optional<std::string> saved_state;
+  if (!done) {
+    before = island.strategy->Save();
+    absl::Status told = island.strategy->Tell(island.current, migrants);
     absl::StatusOr<std::vector<GenomeRecord>> bred =
-        Breed(spec, island.index, island.current, migrants);
+        told.ok() ? island.strategy->Ask() : told;
     if (!bred.ok()) {
       FailRun(run, bred.status());
       return true;
     }
     next = std::move(*bred);
     for (GenomeRecord& n : next) n.run_id = run.record.id;
+    saved_state = island.strategy->Save().SerializeAsString();
   }
 
   store::GenerationCommit commit;
@@ -638,6 +651,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   commit.island_done = done;
   commit.next = done ? nullptr : &next;
   commit.stop_generation = new_stop;
+  commit.strategy_state = saved_state;
   if (has_best && (!run.record.best_score.has_value() ||
                    Better(spec, stats.best, *run.record.best_score))) {
     for (const GenomeRecord& gr : island.current) {
@@ -651,7 +665,11 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
     commit.validate = ChampionValidation(run, island.current, stats.best,
                                          commit.champion.has_value());
   }
-  SKERRY_RETURN_IF_ERROR(store_->CommitGeneration(commit));
+  if (absl::Status s = store_->CommitGeneration(commit); !s.ok()) {
+    // The cache stays as it was: the strategy forgets what it was told.
+    if (!done) island.strategy->Restore(before).IgnoreError();
+    return s;
+  }
 
   // Committed: bring the cache in line.
   if (commit.validate.has_value()) {

@@ -7,11 +7,19 @@
 // genome again, and breeds any generation that was complete when the previous
 // coordinator died.
 //
-// Results arrive from any number of Report calls. They are grouped: one
-// committer thread takes every batch waiting, applies the lot in one
-// transaction (Store::CommitResults), and only then answers the callers (a
-// result is acknowledged only after it is committed). Completed generations are
-// then bred, each in a transaction of its own (Store::CommitGeneration).
+// Each island's search is a Strategy (strategy.h): the engine asks it for
+// generation 0, and for each completed generation tells it the scores and asks
+// for the next; it never knows which strategy runs. What an island does next
+// (breed, wait for migrants, finish, discard) is DecideIslandStep
+// (island_step.h), a pure function of facts the engine gathers.
+//
+// Results arrive from any number of Report calls. They are grouped
+// (group_commit.h): one committer thread takes every batch waiting, applies the
+// lot in one transaction (Store::CommitResults), and only then answers the
+// callers (a result is acknowledged only after it is committed). Completed
+// generations are then bred, each in a transaction of its own with the
+// strategy's new state (Store::CommitGeneration); a failed commit restores the
+// strategy to the state saved before it was told.
 //
 // Stop rules, all deterministic except wall time:
 // - max_generations: an island stops after generation max_generations - 1.
@@ -65,18 +73,14 @@
 #include "absl/status/statusor.h"
 #include "absl/synchronization/mutex.h"
 #include "common/clock.h"
+#include "server/engine/group_commit.h"
+#include "server/engine/strategy.h"
 #include "server/scheduler/task_queue.h"
 #include "server/store/store.h"
 #include "skerry/v1/fleet.pb.h"
 #include "skerry/v1/runs.pb.h"
 
 namespace skerry::engine {
-
-struct ReportOutcome {
-  uint32_t accepted = 0;
-  uint32_t ignored = 0;
-  std::vector<skerry::v1::RejectedResult> rejected;  // one per ignored result
-};
 
 class Engine {
  public:
@@ -133,6 +137,8 @@ class Engine {
     std::map<uint32_t, std::vector<store::GenomeRecord>> completed;  // last few
     std::map<int64_t, uint32_t> pending;  // genome id -> slot
     std::optional<store::StatsRecord> last_stats;
+    // Made at Submit or restored at Open; saved with every generation.
+    std::unique_ptr<Strategy> strategy;
   };
   struct Run {
     store::RunRecord record;
@@ -146,13 +152,6 @@ class Engine {
     int64_t run_id = 0;
     uint32_t max_attempts = 1;
   };
-  struct ReportJob {
-    int64_t worker_id = 0;
-    const std::vector<skerry::v1::TaskResult>* results = nullptr;
-    bool done = false;
-    absl::Status status;
-    ReportOutcome outcome;
-  };
 
   Engine(store::Store* store, scheduler::TaskQueue* queue, Clock* clock)
       : store_(store), queue_(queue), clock_(clock) {}
@@ -165,8 +164,11 @@ class Engine {
   absl::Status Load() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status LoadRun(const store::RunRecord& record)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  void CommitterLoop();
-  void ProcessJobs(std::vector<ReportJob*> jobs) ABSL_LOCKS_EXCLUDED(mu_);
+  // The group commit's callbacks (group_commit.h), on its thread.
+  void ApplyReports(absl::Span<ReportJob* const> jobs,
+                    const std::function<void()>& answer)
+      ABSL_LOCKS_EXCLUDED(mu_);
+  void Idle() ABSL_LOCKS_EXCLUDED(mu_);
   // Breeds or finishes every island of the run whose generation is complete.
   absl::Status Advance(Run& run) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // One step for one island; returns true when something changed.
@@ -229,11 +231,7 @@ class Engine {
   uint64_t changes_ ABSL_GUARDED_BY(mu_) = 0;
   absl::Status write_problem_ ABSL_GUARDED_BY(mu_);  // OK: writes succeed
 
-  absl::Mutex jobs_mu_ ABSL_ACQUIRED_AFTER(mu_);
-  std::vector<ReportJob*> jobs_ ABSL_GUARDED_BY(jobs_mu_);
-  bool stopping_ ABSL_GUARDED_BY(jobs_mu_) = false;
-
-  std::thread committer_;
+  std::unique_ptr<GroupCommit> committer_;
 };
 
 }  // namespace skerry::engine

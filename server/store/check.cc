@@ -8,6 +8,7 @@
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
 #include "skerry/v1/spec.pb.h"
+#include "skerry/v1/strategy.pb.h"
 
 namespace skerry::store {
 namespace {
@@ -164,6 +165,47 @@ class Checker {
         "LEFT JOIN genomes g ON g.id = v.genome_id WHERE v.run_id = ?1 AND "
         "(g.id IS NULL OR g.run_id != ?1 OR g.generation != v.generation) "
         "LIMIT 20"));
+    return CheckStrategyStates(run, ended);
+  }
+
+  // Every island has a strategy state that parses; an island still searching
+  // has the one that produced its current generation.
+  absl::Status CheckStrategyStates(int64_t run, bool ended) {
+    SKERRY_ASSIGN_OR_RETURN(
+        Statement st,
+        c_->Prepare("SELECT i.idx, i.generation, i.done, s.generation, "
+                    "s.state, s.run_id IS NULL FROM islands i LEFT JOIN "
+                    "strategy_states s ON s.run_id = i.run_id AND s.island = "
+                    "i.idx WHERE i.run_id = ? ORDER BY i.idx"));
+    st.BindInt(1, run);
+    while (true) {
+      SKERRY_ASSIGN_OR_RETURN(bool row, st.Step());
+      if (!row) break;
+      const int64_t idx = st.ColumnInt(0);
+      const std::string where = absl::StrCat("run ", run, " island ", idx);
+      if (st.ColumnInt(5) != 0) {
+        Problem(absl::StrCat(where, ": no strategy state"));
+        continue;
+      }
+      skerry::v1::StrategyState state;
+      if (!state.ParseFromString(st.ColumnBlob(4))) {
+        Problem(absl::StrCat(where, ": strategy state does not parse"));
+        continue;
+      }
+      // Empty: stored before states were kept (a GA, which keeps nothing).
+      const bool empty = st.ColumnBlob(4).empty();
+      const bool searching = !ended && st.ColumnInt(2) == 0;
+      if (searching && !empty && st.ColumnInt(3) != st.ColumnInt(1)) {
+        Problem(absl::StrCat(where, ": strategy state is of generation ",
+                             st.ColumnInt(3), ", the island is at ",
+                             st.ColumnInt(1)));
+      }
+      if (!empty && state.generation() != st.ColumnInt(3)) {
+        Problem(absl::StrCat(where, ": strategy state says generation ",
+                             state.generation(), ", stored as ",
+                             st.ColumnInt(3)));
+      }
+    }
     return absl::OkStatus();
   }
 

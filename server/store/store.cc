@@ -127,10 +127,29 @@ CREATE INDEX validations_run ON validations (run_id, id);
 CREATE INDEX validations_pending ON validations (id) WHERE state = 1;
 )sql";
 
+// Versions 6 to 8: left for migrations made on other branches at the same time
+// (they take these numbers when they land; this one is renumbered then).
+constexpr const char* kSchemaReserved = "";
+
+// Version 9: each island's search strategy state (server/engine/strategy.h).
+// Runs stored before it are GA runs, whose state is empty.
+constexpr const char* kSchemaV9 = R"sql(
+CREATE TABLE strategy_states (
+  run_id INTEGER NOT NULL,
+  island INTEGER NOT NULL,
+  generation INTEGER NOT NULL,
+  state BLOB NOT NULL,
+  PRIMARY KEY (run_id, island)
+);
+INSERT INTO strategy_states (run_id, island, generation, state)
+  SELECT run_id, idx, generation, X'' FROM islands;
+)sql";
+
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h.
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3,
-                                       kSchemaV4, kSchemaAccess};
+constexpr const char* kMigrations[] = {
+    kSchemaV1,       kSchemaV2,       kSchemaV3,       kSchemaV4, kSchemaAccess,
+    kSchemaReserved, kSchemaReserved, kSchemaReserved, kSchemaV9};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -331,7 +350,8 @@ absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
 }
 
 absl::Status Store::CreateRun(RunRecord* run,
-                              std::vector<GenomeRecord>* genomes) {
+                              std::vector<GenomeRecord>* genomes,
+                              const std::vector<std::string>* strategy_states) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   {
@@ -365,6 +385,17 @@ absl::Status Store::CreateRun(RunRecord* run,
       isl.BindInt(1, run->id);
       isl.BindInt(2, i);
       SKERRY_RETURN_IF_ERROR(isl.Run());
+    }
+    SKERRY_ASSIGN_OR_RETURN(
+        auto st, conn_->Prepare("INSERT INTO strategy_states (run_id, island, "
+                                "generation, state) VALUES (?, ?, 0, ?)"));
+    for (uint32_t i = 0; i < count; ++i) {
+      st.BindInt(1, run->id);
+      st.BindInt(2, i);
+      st.BindBlob(3, strategy_states != nullptr && i < strategy_states->size()
+                         ? (*strategy_states)[i]
+                         : std::string());
+      SKERRY_RETURN_IF_ERROR(st.Run());
     }
   }
   for (GenomeRecord& g : *genomes) g.run_id = run->id;
@@ -461,6 +492,17 @@ absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
     upd.BindInt(3, c.run_id);
     upd.BindInt(4, c.island);
     SKERRY_RETURN_IF_ERROR(upd.Run());
+  }
+  if (c.strategy_state.has_value()) {
+    SKERRY_ASSIGN_OR_RETURN(
+        auto st,
+        conn_->Prepare("INSERT OR REPLACE INTO strategy_states (run_id, "
+                       "island, generation, state) VALUES (?, ?, ?, ?)"));
+    st.BindInt(1, c.run_id);
+    st.BindInt(2, c.island);
+    st.BindInt(3, generation);
+    st.BindBlob(4, *c.strategy_state);
+    SKERRY_RETURN_IF_ERROR(st.Run());
   }
   if (c.champion.has_value()) {
     SKERRY_ASSIGN_OR_RETURN(
@@ -659,6 +701,22 @@ absl::StatusOr<std::vector<IslandRecord>> Store::GetIslands(int64_t run_id) {
     r.generation = static_cast<uint32_t>(s.ColumnInt(1));
     r.done = s.ColumnInt(2) != 0;
     out.push_back(r);
+  }
+  return out;
+}
+
+absl::StatusOr<std::map<uint32_t, std::string>> Store::GetStrategyStates(
+    int64_t run_id) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare("SELECT island, state FROM strategy_states WHERE "
+                             "run_id = ? ORDER BY island"));
+  s.BindInt(1, run_id);
+  std::map<uint32_t, std::string> out;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
+    if (!row) break;
+    out[static_cast<uint32_t>(s.ColumnInt(0))] = s.ColumnBlob(1);
   }
   return out;
 }

@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 5)
+// ## Schema (version 9)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -24,6 +24,12 @@
 //         message, detail)
 //        (columns and rules in server/store/access_schema.h; methods in
 //        store_access.cc)
+//   strategy_states(run_id, island, generation, state BLOB)   version 9
+//        PRIMARY KEY (run_id, island): the island's search strategy as it
+//        was when it produced `generation` (a serialised StrategyState,
+//        proto/skerry/v1/strategy.proto). Versions 6 to 8 are kept for
+//        migrations made beside it; a migrated database gets an empty state
+//        per island (a GA's, which keeps nothing).
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
 // validations per run and pending validations (version 4); tokens per
@@ -42,14 +48,16 @@
 //
 // ## Commit points
 // Each is one transaction; a change is acknowledged only after it.
-//   CreateRun          the run, its islands and every island's generation 0
+//   CreateRun          the run, its islands, every island's generation 0 and
+//                      its strategy state
 //   CommitResults      a batch of results (group commit of many Report
 //                      calls), with the validation outcomes reported with them
 //   CommitGeneration   one island's next generation whole: its genomes with
 //                      their parent links, the island's generation number, the
 //                      statistics of the generation just completed, the run's
-//                      best so far, and the validation request for that
-//                      generation's champion
+//                      best so far, the validation request for that
+//                      generation's champion, and the island's strategy
+//                      state that produced the next generation
 //   RequestValidation  a validation request for one genome (or the stored one)
 //   CommitValidations  a batch of validation outcomes
 //   SetRunState        pause, resume, stop, fail
@@ -228,6 +236,9 @@ struct GenerationCommit {
   std::optional<uint32_t> stop_generation;
   // Validate this genome (the completed generation's champion).
   std::optional<ValidationRequest> validate;
+  // The island's strategy state after producing `next` (a serialised
+  // StrategyState); unset: unchanged.
+  std::optional<std::string> strategy_state;
 };
 
 struct WorkerRecord {
@@ -243,7 +254,7 @@ struct WorkerRecord {
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 5;
+  static constexpr int kSchemaVersion = 9;
 
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.
@@ -263,7 +274,11 @@ class Store {
   const std::string& path() const { return path_; }
 
   // ---- Commit points ----
-  absl::Status CreateRun(RunRecord* run, std::vector<GenomeRecord>* genomes);
+  // `strategy_states[i]`: island i's serialised StrategyState after seeding;
+  // null or short: empty states.
+  absl::Status CreateRun(
+      RunRecord* run, std::vector<GenomeRecord>* genomes,
+      const std::vector<std::string>* strategy_states = nullptr);
   // Results and validation outcomes reported together commit together.
   absl::Status CommitResults(
       absl::Span<const ResultUpdate> results,
@@ -295,6 +310,9 @@ class Store {
   // NotFound names the run.
   absl::StatusOr<RunRecord> GetRun(int64_t run_id);
   absl::StatusOr<std::vector<IslandRecord>> GetIslands(int64_t run_id);
+  // Each island's stored strategy state (serialised StrategyState), by island.
+  absl::StatusOr<std::map<uint32_t, std::string>> GetStrategyStates(
+      int64_t run_id);
   absl::StatusOr<std::vector<GenomeRecord>> GetGeneration(int64_t run_id,
                                                           uint32_t island,
                                                           uint32_t generation);

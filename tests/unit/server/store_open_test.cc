@@ -52,6 +52,7 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
           "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
           "DROP INDEX genomes_failed; DROP TABLE validations; "
           "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
+          "DROP TABLE strategy_states; "
           "UPDATE schema_version SET version = 1; "
           "INSERT INTO workers (name, host, threads, evaluators, version, "
           "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");

@@ -1,0 +1,101 @@
+// Group commit of worker reports.
+//
+// Any number of threads hand in a batch of results with Submit() and block.
+// One committer thread takes every batch waiting and has them applied together
+// by the `apply` callback: one store transaction, then `answer()` wakes every
+// caller, then whatever follows (the engine breeds what the batch completed,
+// still holding its lock, so a caller that takes that lock next sees it
+// done). A result is acknowledged only after the transaction that holds it
+// committed.
+// Between batches, and at least every `tick` when nothing arrives, the
+// committer runs `idle` (the engine retries what a failed write left undone
+// and applies wall-time limits).
+//
+// Thread safety: Submit and Shutdown from any thread; the callbacks run on the
+// committer thread only, never concurrently with each other. `answer` takes
+// the class's own mutex, so `apply` may call it holding a lock of its own that
+// Submit's callers never hold.
+#ifndef SKERRY_SERVER_ENGINE_GROUP_COMMIT_H_
+#define SKERRY_SERVER_ENGINE_GROUP_COMMIT_H_
+
+#include <cstdint>
+#include <functional>
+#include <thread>
+#include <vector>
+
+#include "absl/base/thread_annotations.h"
+#include "absl/status/status.h"
+#include "absl/status/statusor.h"
+#include "absl/synchronization/mutex.h"
+#include "absl/time/time.h"
+#include "absl/types/span.h"
+#include "skerry/v1/fleet.pb.h"
+
+namespace skerry::engine {
+
+struct ReportOutcome {
+  uint32_t accepted = 0;
+  uint32_t ignored = 0;
+  std::vector<skerry::v1::RejectedResult> rejected;  // one per ignored result
+};
+
+// One Submit call's batch, as `apply` sees it: it sets status (not OK: the
+// caller is told to report again) and outcome.
+struct ReportJob {
+  int64_t worker_id = 0;
+  const std::vector<skerry::v1::TaskResult>* results = nullptr;
+  absl::Status status;
+  ReportOutcome outcome;
+};
+
+class GroupCommit {
+ public:
+  struct Callbacks {
+    // Must call `answer` exactly once, after setting every job's outcome.
+    std::function<void(absl::Span<ReportJob* const> jobs,
+                       const std::function<void()>& answer)>
+        apply;
+    std::function<void()> idle;
+  };
+  GroupCommit(Callbacks callbacks, absl::Duration tick)
+      : callbacks_(std::move(callbacks)), tick_(tick) {}
+  ~GroupCommit() { Shutdown(); }
+
+  // Starts the committer thread.
+  void Start();
+
+  // Blocks until the batch is applied; Unavailable when it was not (retry) or
+  // when the committer is shutting down.
+  absl::StatusOr<ReportOutcome> Submit(
+      int64_t worker_id, const std::vector<skerry::v1::TaskResult>& results);
+
+  // Stops the committer after the batch in flight; batches still waiting are
+  // answered Unavailable, and later Submit calls fail.
+  void Shutdown();
+
+  // How many calls wait for the next batch (tests only).
+  size_t WaitingForTest() {
+    absl::MutexLock l(&mu_);
+    return waiting_.size();
+  }
+
+ private:
+  struct Waiting {
+    ReportJob job;
+    bool done = false;
+  };
+  void Loop();
+
+  const Callbacks callbacks_;
+  const absl::Duration tick_;
+
+  absl::Mutex mu_;
+  std::vector<Waiting*> waiting_ ABSL_GUARDED_BY(mu_);
+  bool stopping_ ABSL_GUARDED_BY(mu_) = false;
+
+  std::thread thread_;
+};
+
+}  // namespace skerry::engine
+
+#endif  // SKERRY_SERVER_ENGINE_GROUP_COMMIT_H_

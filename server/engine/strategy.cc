@@ -1,0 +1,88 @@
+#include "server/engine/strategy.h"
+
+#include <utility>
+
+#include "absl/strings/str_cat.h"
+#include "server/engine/breeder.h"
+
+namespace skerry::engine {
+namespace {
+
+using store::GenomeRecord;
+
+// The generational GA of breeder.h. Its state is its population, which is
+// stored as genomes; Tell keeps a copy of the completed generation and the
+// migrants until Ask breeds from them.
+class GaStrategy : public Strategy {
+ public:
+  GaStrategy(const skerry::v1::RunSpec& spec, uint32_t island)
+      : spec_(spec), island_(island) {}
+
+  absl::StatusOr<std::vector<GenomeRecord>> Start() override {
+    generation_ = 0;
+    return Seed(spec_, island_);
+  }
+
+  absl::Status Tell(absl::Span<const GenomeRecord> completed,
+                    absl::Span<const GenomeRecord* const> migrants) override {
+    if (completed.empty()) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("island ", island_, ": told an empty generation"));
+    }
+    completed_.assign(completed.begin(), completed.end());
+    migrants_.clear();
+    for (const GenomeRecord* m : migrants) migrants_.push_back(*m);
+    return absl::OkStatus();
+  }
+
+  absl::StatusOr<std::vector<GenomeRecord>> Ask() override {
+    if (completed_.empty()) {
+      return absl::FailedPreconditionError(
+          absl::StrCat("island ", island_, ": asked before told"));
+    }
+    std::vector<const GenomeRecord*> migrants;
+    for (const GenomeRecord& m : migrants_) migrants.push_back(&m);
+    absl::StatusOr<std::vector<GenomeRecord>> next =
+        Breed(spec_, island_, completed_, migrants);
+    if (next.ok()) generation_ = completed_.front().generation + 1;
+    completed_.clear();
+    migrants_.clear();
+    return next;
+  }
+
+  skerry::v1::StrategyState Save() const override {
+    skerry::v1::StrategyState s;
+    s.set_generation(generation_);
+    s.mutable_ga();
+    return s;
+  }
+
+  absl::Status Restore(const skerry::v1::StrategyState& state) override {
+    // A state stored before strategies were saved has no kind: it is a GA's.
+    if (state.kind_case() != skerry::v1::StrategyState::kGa &&
+        state.kind_case() != skerry::v1::StrategyState::KIND_NOT_SET) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("island ", island_, ": the saved state is not a GA's"));
+    }
+    generation_ = state.generation();
+    completed_.clear();
+    migrants_.clear();
+    return absl::OkStatus();
+  }
+
+ private:
+  const skerry::v1::RunSpec spec_;
+  const uint32_t island_;
+  uint32_t generation_ = 0;
+  std::vector<GenomeRecord> completed_;
+  std::vector<GenomeRecord> migrants_;
+};
+
+}  // namespace
+
+absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
+    const skerry::v1::RunSpec& spec, uint32_t island) {
+  return std::make_unique<GaStrategy>(spec, island);
+}
+
+}  // namespace skerry::engine

@@ -1,0 +1,70 @@
+// The search strategy of one island, as the engine drives it.
+//
+// The engine knows no strategy: for every island it asks a Strategy for
+// generation 0, and whenever a generation is complete it tells the strategy
+// the scores (with the migrants that arrive at an epoch) and asks for the next
+// generation. Each genome the strategy returns carries its origin and parent
+// links; ids and run ids are left 0 for the store to fill in.
+//
+// State: whatever a strategy keeps between generations is saved as a
+// StrategyState (proto/skerry/v1/strategy.proto) and stored in the same
+// transaction as the generation it produced, so a coordinator killed at any
+// instant restores it with Restore() and continues bit for bit. Every random
+// number comes from the counter-based streams of common/random.h, keyed by
+// (seed, island, generation, purpose, slot), never from the strategy's state.
+//
+// Protocol, per island: Start() once (generation 0); then, for each completed
+// generation g in order, Tell(g's genomes, migrants) followed by Ask() for
+// generation g + 1. Save() may be called at any time; after Restore(s) the
+// strategy is as it was when s was saved. A Tell that the engine could not
+// commit is undone by Restore()ing the state saved before it.
+//
+// Thread safety: an instance belongs to one island; the engine calls it under
+// its mutex. Distinct instances are independent.
+#ifndef SKERRY_SERVER_ENGINE_STRATEGY_H_
+#define SKERRY_SERVER_ENGINE_STRATEGY_H_
+
+#include <cstdint>
+#include <memory>
+#include <vector>
+
+#include "absl/status/status.h"
+#include "absl/status/statusor.h"
+#include "absl/types/span.h"
+#include "server/store/store.h"
+#include "skerry/v1/spec.pb.h"
+#include "skerry/v1/strategy.pb.h"
+
+namespace skerry::engine {
+
+class Strategy {
+ public:
+  virtual ~Strategy() = default;
+
+  // Generation 0 of the island.
+  virtual absl::StatusOr<std::vector<store::GenomeRecord>> Start() = 0;
+
+  // The completed generation (sorted by slot, every genome EVALUATED or
+  // FAILED) and the migrants chosen for the next one (empty outside epochs).
+  // InvalidArgument when the scores cannot be used (the message names the
+  // generation); the engine then fails the run.
+  virtual absl::Status Tell(
+      absl::Span<const store::GenomeRecord> completed,
+      absl::Span<const store::GenomeRecord* const> migrants) = 0;
+
+  // The next generation, from what the last Tell said.
+  virtual absl::StatusOr<std::vector<store::GenomeRecord>> Ask() = 0;
+
+  virtual skerry::v1::StrategyState Save() const = 0;
+  // InvalidArgument (DataLoss-worthy; the caller says where it came from) when
+  // the state is not one this strategy saved.
+  virtual absl::Status Restore(const skerry::v1::StrategyState& state) = 0;
+};
+
+// The strategy the spec names, for `island`.
+absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
+    const skerry::v1::RunSpec& spec, uint32_t island);
+
+}  // namespace skerry::engine
+
+#endif  // SKERRY_SERVER_ENGINE_STRATEGY_H_

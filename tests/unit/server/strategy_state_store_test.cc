@@ -1,0 +1,177 @@
+// Tests for the strategy states of server/store/store.h (schema version 9):
+// stored with generation 0 and with each bred generation, in the same
+// transaction; migrated databases get an empty state; --check verifies them.
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+#include "server/store/check.h"
+#include "server/store/store.h"
+#include "skerry/v1/strategy.pb.h"
+#include "tests/unit/server/sqlite_test_util.h"
+#include "tests/unit/server/store_fixture.h"
+
+namespace skerry::store {
+namespace {
+
+using skerry::testing::RawExec;
+using skerry::testing::RawQuery;
+using ::testing::HasSubstr;
+
+using StrategyStateStoreTest = StoreTest;
+
+std::string GaState(uint32_t generation) {
+  skerry::v1::StrategyState s;
+  s.set_generation(generation);
+  s.mutable_ga();
+  return s.SerializeAsString();
+}
+
+// Generation 1 of island 0, four genomes made from `genomes` (generation 0).
+std::vector<GenomeRecord> NextGeneration(const RunRecord& run) {
+  std::vector<GenomeRecord> next;
+  for (uint32_t s = 0; s < 4; ++s) {
+    GenomeRecord g = MakeGenome(0, 1, s, 2.0 + s);
+    g.run_id = run.id;
+    g.origin = skerry::v1::SEEDED;  // no parent needed for the check
+    next.push_back(g);
+  }
+  return next;
+}
+
+GenerationCommit Commit(const RunRecord& run, std::vector<GenomeRecord>* next,
+                        std::string state) {
+  GenerationCommit c;
+  c.run_id = run.id;
+  c.island = 0;
+  c.completed.run_id = run.id;
+  c.completed.generation = 0;
+  c.completed.evaluations = 4;
+  c.next = next;
+  c.strategy_state = std::move(state);
+  return c;
+}
+
+TEST_F(StrategyStateStoreTest, CreateRunStoresEachIslandsState) {
+  RunRecord run = MakeRun(SmallSpec(2));
+  std::vector<GenomeRecord> genomes = Generation0(2, 4);
+  const std::vector<std::string> states = {GaState(0), "island one"};
+  ASSERT_TRUE(store_->CreateRun(&run, &genomes, &states).ok());
+  absl::StatusOr<std::map<uint32_t, std::string>> stored =
+      store_->GetStrategyStates(run.id);
+  ASSERT_TRUE(stored.ok()) << stored.status();
+  ASSERT_EQ(stored->size(), 2u);
+  EXPECT_EQ(stored->at(0), GaState(0));
+  EXPECT_EQ(stored->at(1), "island one");
+}
+
+TEST_F(StrategyStateStoreTest, CreateRunWithoutStatesStoresEmptyOnes) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(2, &genomes);
+  absl::StatusOr<std::map<uint32_t, std::string>> stored =
+      store_->GetStrategyStates(run.id);
+  ASSERT_TRUE(stored.ok()) << stored.status();
+  ASSERT_EQ(stored->size(), 2u);
+  EXPECT_EQ(stored->at(0), "");
+}
+
+TEST_F(StrategyStateStoreTest, CommitGenerationReplacesTheIslandsState) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(1, &genomes);
+  Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
+  std::vector<GenomeRecord> next = NextGeneration(run);
+  ASSERT_TRUE(store_->CommitGeneration(Commit(run, &next, GaState(1))).ok());
+  absl::StatusOr<std::map<uint32_t, std::string>> stored =
+      store_->GetStrategyStates(run.id);
+  ASSERT_TRUE(stored.ok());
+  EXPECT_EQ(stored->at(0), GaState(1));
+  EXPECT_EQ(RawQuery(path(), "SELECT generation FROM strategy_states"), "1");
+}
+
+TEST_F(StrategyStateStoreTest, FailedCommitGenerationKeepsTheOldState) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(1, &genomes);
+  Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
+  std::vector<GenomeRecord> next = NextGeneration(run);
+  next[2].slot = 1;  // slot 1 twice breaks the natural key: nothing commits
+  EXPECT_FALSE(store_->CommitGeneration(Commit(run, &next, GaState(1))).ok());
+  absl::StatusOr<std::map<uint32_t, std::string>> stored =
+      store_->GetStrategyStates(run.id);
+  ASSERT_TRUE(stored.ok());
+  EXPECT_EQ(stored->at(0), "");
+}
+
+TEST_F(StrategyStateStoreTest, CommitWithoutAStateLeavesItAlone) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(1, &genomes);
+  Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
+  GenerationCommit c = Commit(run, nullptr, "");
+  c.strategy_state.reset();
+  c.island_done = true;
+  ASSERT_TRUE(store_->CommitGeneration(c).ok());
+  EXPECT_EQ(RawQuery(path(), "SELECT length(state) FROM strategy_states"), "0");
+}
+
+// A database of the version before (5, say) gets one empty state per island,
+// at the island's generation, and passes the check.
+TEST_F(StrategyStateStoreTest, OlderDatabaseGetsAnEmptyStatePerIsland) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(2, &genomes);
+  store_.reset();
+  RawExec(path(),
+          "DROP TABLE strategy_states; UPDATE schema_version SET version = 5");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(RawQuery(path(),
+                     "SELECT count(*) FROM strategy_states WHERE "
+                     "length(state) = 0 AND generation = 0"),
+            "2");
+  absl::StatusOr<CheckReport> report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_TRUE(report->ok()) << report->ToString();
+}
+
+TEST_F(StrategyStateStoreTest, CheckReportsAMissingState) {
+  std::vector<GenomeRecord> genomes;
+  CreateRun(2, &genomes);
+  RawExec(path(), "DELETE FROM strategy_states WHERE island = 1");
+  absl::StatusOr<CheckReport> report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_THAT(report->ToString(),
+              HasSubstr("run 1 island 1: no strategy state"));
+}
+
+TEST_F(StrategyStateStoreTest, CheckReportsAStateThatDoesNotParse) {
+  std::vector<GenomeRecord> genomes;
+  CreateRun(1, &genomes);
+  RawExec(path(), "UPDATE strategy_states SET state = x'ffffffff'");
+  absl::StatusOr<CheckReport> report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_THAT(report->ToString(),
+              HasSubstr("run 1 island 0: strategy state does not parse"));
+}
+
+// The state of an island still searching must be the one that produced its
+// current generation: a state left behind (generation 0 while the island is
+// at 1) means the two were not written together.
+TEST_F(StrategyStateStoreTest, CheckReportsAStateOfAnotherGeneration) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(1, &genomes);
+  Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
+  std::vector<GenomeRecord> next = NextGeneration(run);
+  ASSERT_TRUE(store_->CommitGeneration(Commit(run, &next, GaState(1))).ok());
+  absl::StatusOr<CheckReport> report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok());
+  EXPECT_TRUE(report->ok()) << report->ToString();
+  RawExec(path(), "UPDATE strategy_states SET generation = 0, state = x'1200'");
+  report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok());
+  EXPECT_THAT(report->ToString(),
+              HasSubstr("run 1 island 0: strategy state is of generation 0, "
+                        "the island is at 1"));
+}
+
+}  // namespace
+}  // namespace skerry::store

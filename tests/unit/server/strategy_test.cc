@@ -1,0 +1,123 @@
+// Tests for the strategy interface (server/engine/strategy.h) as the GA
+// implements it: the same generations as the breeder's own functions, the
+// ask/tell protocol's errors, and saving and restoring.
+#include "server/engine/strategy.h"
+
+#include <memory>
+#include <vector>
+
+#include "common/spec.h"
+#include "gtest/gtest.h"
+#include "server/engine/breeder.h"
+
+namespace skerry::engine {
+namespace {
+
+using skerry::v1::RunSpec;
+
+RunSpec GaSpec() {
+  RunSpec spec;
+  spec.set_name("strategy-test");
+  spec.set_seed(23);
+  spec.set_genome_length(4);
+  spec.mutable_evaluator()->mutable_builtin()->set_function("rastrigin");
+  spec.mutable_ga()->set_population_size(12);
+  spec.mutable_ga()->set_elites(2);
+  spec.mutable_ga()->set_immigrants(1);
+  spec.mutable_islands()->set_count(2);
+  spec.mutable_islands()->set_interval(1);
+  spec.mutable_islands()->set_migrants(2);
+  absl::StatusOr<RunSpec> prepared = PrepareSpec(spec);
+  EXPECT_TRUE(prepared.ok()) << prepared.status();
+  return prepared.ok() ? *prepared : spec;
+}
+
+// Ids from first_id by slot; score = sum of squares.
+std::vector<GenomeRecord> Evaluated(std::vector<GenomeRecord> gen,
+                                    int64_t first_id) {
+  for (GenomeRecord& g : gen) {
+    g.id = first_id + g.slot;
+    g.state = skerry::v1::EVALUATED;
+    double s = 0.0;
+    for (double x : g.genes) s += x * x;
+    g.score = s;
+    g.attempts = 1;
+  }
+  return gen;
+}
+
+void ExpectSameGeneration(const std::vector<GenomeRecord>& a,
+                          const std::vector<GenomeRecord>& b) {
+  ASSERT_EQ(a.size(), b.size());
+  for (size_t i = 0; i < a.size(); ++i) {
+    SCOPED_TRACE(i);
+    EXPECT_EQ(a[i].slot, b[i].slot);
+    EXPECT_EQ(a[i].generation, b[i].generation);
+    EXPECT_EQ(a[i].origin, b[i].origin);
+    EXPECT_EQ(a[i].parent_a, b[i].parent_a);
+    EXPECT_EQ(a[i].parent_b, b[i].parent_b);
+    EXPECT_EQ(a[i].genes, b[i].genes);  // bit for bit
+    EXPECT_EQ(a[i].state, b[i].state);
+  }
+}
+
+// The GA behind the interface makes exactly what Seed and Breed make, over
+// several generations with migrants arriving every generation.
+TEST(GaStrategyTest, MakesTheBreedersGenerationsBitForBit) {
+  const RunSpec spec = GaSpec();
+  absl::StatusOr<std::unique_ptr<Strategy>> made = MakeStrategy(spec, 1);
+  ASSERT_TRUE(made.ok()) << made.status();
+  Strategy& ga = **made;
+  absl::StatusOr<std::vector<GenomeRecord>> g0 = ga.Start();
+  ASSERT_TRUE(g0.ok());
+  ExpectSameGeneration(*g0, Seed(spec, 1));
+
+  std::vector<GenomeRecord> current = Evaluated(*g0, 100);
+  const std::vector<GenomeRecord> other = Evaluated(Seed(spec, 0), 1);
+  for (int step = 0; step < 4; ++step) {
+    std::vector<const GenomeRecord*> migrants = {&other[3], &other[5]};
+    ASSERT_TRUE(ga.Tell(current, migrants).ok());
+    absl::StatusOr<std::vector<GenomeRecord>> next = ga.Ask();
+    ASSERT_TRUE(next.ok()) << next.status();
+    absl::StatusOr<std::vector<GenomeRecord>> expected =
+        Breed(spec, 1, current, migrants);
+    ASSERT_TRUE(expected.ok());
+    ExpectSameGeneration(*next, *expected);
+    EXPECT_EQ(ga.Save().generation(), current.front().generation + 1);
+    current = Evaluated(*next, 1000 * (step + 2));
+  }
+}
+
+TEST(GaStrategyTest, AskBeforeTellIsAnError) {
+  absl::StatusOr<std::unique_ptr<Strategy>> ga = MakeStrategy(GaSpec(), 0);
+  ASSERT_TRUE(ga.ok());
+  ASSERT_TRUE((*ga)->Start().ok());
+  EXPECT_TRUE(absl::IsFailedPrecondition((*ga)->Ask().status()));
+  EXPECT_TRUE(absl::IsInvalidArgument((*ga)->Tell({}, {})));
+}
+
+// Restoring the state saved before a Tell undoes it: the engine relies on
+// this when a generation's commit fails.
+TEST(GaStrategyTest, RestoreUndoesATell) {
+  const RunSpec spec = GaSpec();
+  absl::StatusOr<std::unique_ptr<Strategy>> ga = MakeStrategy(spec, 0);
+  ASSERT_TRUE(ga.ok());
+  absl::StatusOr<std::vector<GenomeRecord>> g0 = (*ga)->Start();
+  ASSERT_TRUE(g0.ok());
+  const skerry::v1::StrategyState before = (*ga)->Save();
+  EXPECT_EQ(before.kind_case(), skerry::v1::StrategyState::kGa);
+  ASSERT_TRUE((*ga)->Tell(Evaluated(*g0, 1), {}).ok());
+  ASSERT_TRUE((*ga)->Restore(before).ok());
+  EXPECT_TRUE(absl::IsFailedPrecondition((*ga)->Ask().status()));
+  EXPECT_EQ((*ga)->Save().SerializeAsString(), before.SerializeAsString());
+}
+
+// A run stored before strategy states were kept restores from an empty state.
+TEST(GaStrategyTest, RestoresFromAnEmptyState) {
+  absl::StatusOr<std::unique_ptr<Strategy>> ga = MakeStrategy(GaSpec(), 0);
+  ASSERT_TRUE(ga.ok());
+  EXPECT_TRUE((*ga)->Restore(skerry::v1::StrategyState()).ok());
+}
+
+}  // namespace
+}  // namespace skerry::engine
