@@ -29,6 +29,8 @@ enum class StreamPurpose : uint16_t {
   kEvalSeed = 6,    // the seed handed to the evaluator, per slot
   kTopology = 7,    // random topology of a migration epoch, slot 0
   kValidation = 8,  // the seed of held-out validation case `slot`
+  kSample = 9,      // an ES sample's standard-normal vector, per slot
+  kStart = 10,      // an ES search's start (generation = restart number)
 };
 
 struct StreamKey {

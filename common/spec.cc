@@ -12,6 +12,7 @@
 #include "common/evaluator.h"
 #include "common/network.h"
 #include "common/pole.h"
+#include "common/strategy_spec.h"
 #include "common/validation.h"
 #include "google/protobuf/descriptor.h"
 #include "google/protobuf/io/tokenizer.h"
@@ -175,7 +176,10 @@ absl::Status CheckIslandSizes(const RunSpec& spec) {
 }
 
 uint32_t SmallestIsland(const RunSpec& spec) {
-  uint32_t smallest = spec.ga().population_size();
+  uint32_t smallest = IslandPopulation(spec, 0);
+  if (StrategyOf(spec) == StrategyKind::kGa) {
+    smallest = spec.ga().population_size();
+  }
   for (uint32_t i = 0; i < spec.islands().count(); ++i) {
     smallest = std::min(smallest, IslandPopulation(spec, i));
   }
@@ -511,11 +515,14 @@ void NormalizeSpec(RunSpec* spec) {
   if (!spec->has_init_upper() && spec->has_upper_bound()) {
     spec->set_init_upper(spec->upper_bound());
   }
-  auto* ga = spec->mutable_ga();
-  if (ga->population_size() == 0) ga->set_population_size(50);
-  if (!ga->has_elites()) ga->set_elites(1);
-  NormalizeSelection(ga->mutable_selection());
-  NormalizeVariation(spec);
+  NormalizeStrategy(spec);
+  if (StrategyOf(*spec) == StrategyKind::kGa) {
+    auto* ga = spec->mutable_ga();
+    if (ga->population_size() == 0) ga->set_population_size(50);
+    if (!ga->has_elites()) ga->set_elites(1);
+    NormalizeSelection(ga->mutable_selection());
+    NormalizeVariation(spec);
+  }
   NormalizeIslands(spec->mutable_islands());
   if (spec->evaluator().time_limit_seconds() == 0) {
     spec->mutable_evaluator()->set_time_limit_seconds(60);
@@ -543,16 +550,20 @@ absl::Status ValidateSpec(const RunSpec& spec) {
   if (s.ok()) s = CheckEvaluator(spec);
   if (s.ok()) s = CheckBounds(spec);
   if (s.ok()) s = CheckInitRange(spec);
-  if (s.ok()) {
+  if (s.ok()) s = ValidateStrategy(spec);
+  const bool ga = StrategyOf(spec) == StrategyKind::kGa;
+  if (s.ok() && ga) {
     s = CheckRange("ga.population_size", spec.ga().population_size(),
                    kMinPopulation, kMaxPopulation);
   }
   if (s.ok()) s = CheckIslandSizes(spec);
   if (!s.ok()) return s;
   const uint32_t min_pop = SmallestIsland(spec);
-  s = CheckBreeding(spec, min_pop);
-  if (s.ok()) s = CheckSelection(spec, min_pop);
-  if (s.ok()) s = CheckVariation(spec);
+  if (ga) {
+    s = CheckBreeding(spec, min_pop);
+    if (s.ok()) s = CheckSelection(spec, min_pop);
+    if (s.ok()) s = CheckVariation(spec);
+  }
   if (s.ok()) s = CheckMigration(spec, min_pop);
   if (s.ok()) s = CheckStop(spec);
   if (s.ok()) {
@@ -564,6 +575,9 @@ absl::Status ValidateSpec(const RunSpec& spec) {
 uint32_t IslandPopulation(const RunSpec& spec, uint32_t island) {
   if (island < static_cast<uint32_t>(spec.islands().population_sizes_size())) {
     return spec.islands().population_sizes(static_cast<int>(island));
+  }
+  if (StrategyOf(spec) != StrategyKind::kGa) {
+    return CmaSpecOf(spec).population_size();
   }
   return spec.ga().population_size();
 }

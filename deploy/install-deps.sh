@@ -22,6 +22,7 @@ PACKAGES=(
   libgtest-dev
   libgmock-dev
   libboost-dev
+  libeigen3-dev
   python3
   openssl
   clang-format

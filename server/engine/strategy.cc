@@ -3,7 +3,9 @@
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "common/strategy_spec.h"
 #include "server/engine/breeder.h"
+#include "server/engine/cma_strategy.h"
 
 namespace skerry::engine {
 namespace {
@@ -82,6 +84,9 @@ class GaStrategy : public Strategy {
 
 absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
     const skerry::v1::RunSpec& spec, uint32_t island) {
+  if (StrategyOf(spec) != StrategyKind::kGa) {
+    return MakeCmaStrategy(spec, island);
+  }
   return std::make_unique<GaStrategy>(spec, island);
 }
 

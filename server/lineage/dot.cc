@@ -56,6 +56,8 @@ std::string OriginLabel(skerry::v1::Origin origin) {
       return "immigrant";
     case skerry::v1::MIGRANT:
       return "migrant";
+    case skerry::v1::SAMPLED:
+      return "sampled";
     default:
       return absl::StrCat("origin ", static_cast<int>(origin));
   }

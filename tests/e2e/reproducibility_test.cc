@@ -44,6 +44,18 @@ islands { count: 3 topology: TWO_WAY_RING interval: 3 migrants: 2
 stop { max_generations: 15 }
 )";
 
+// The evolution strategies on two islands: each island a search of its own,
+// a better migrant moving its mean every 3 generations.
+constexpr char kStrategySpec[] = R"(
+name: "two-searches"
+seed: 424244
+genome_length: 6
+evaluator { builtin { function: "rosenbrock" } }
+strategy { KIND { } }
+islands { count: 2 topology: RING interval: 3 migrants: 1 }
+stop { max_generations: 25 }
+)";
+
 class ReproducibilityTest : public ::testing::Test {
  protected:
   void SetUp() override {
@@ -122,6 +134,32 @@ TEST_F(ReproducibilityTest, DigestIsTheSameWhateverTheFleet) {
   }
   // 4 epochs (generations 3, 6, 9, 12) x 3 islands x 2 sources x 2 migrants.
   EXPECT_EQ(crossings, 4 * 3 * 2 * 2);
+}
+
+// Every evolution strategy: the same digest with one worker, three workers of
+// two threads, and `skerry local`.
+TEST_F(ReproducibilityTest, EveryStrategysDigestIsTheSameWhateverTheFleet) {
+  for (const std::string kind : {"cma_es", "sep_cma_es"}) {
+    SCOPED_TRACE(kind);
+    std::string text = kStrategySpec;
+    text.replace(text.find("KIND"), 4, kind);
+    ASSERT_TRUE(testing::WriteTextFile(spec_, text));
+    const std::string one = RunOnFleet(kind + "-one", 1, 1);
+    ASSERT_EQ(one.size(), 64u);
+    EXPECT_EQ(RunOnFleet(kind + "-three", 3, 2), one)
+        << "3 workers x 2 threads";
+    CommandResult local =
+        RunCommand({SKERRY_CLI_BIN, "local", spec_, "--workers", "3", "--db",
+                    dir_.File(kind + "-local.db")});
+    ASSERT_EQ(local.exit_code, 0) << local.output;
+    EXPECT_EQ(DigestIn(local.output), one) << "skerry local\n" << local.output;
+    // 2 islands x 25 generations of the default 4 + floor(3 ln 6) = 9.
+    EXPECT_EQ(testing::ReadGenomes(db_of_[kind + "-one"], 1).size(),
+              2u * 25u * 9u);
+    CommandResult check =
+        RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_of_[kind + "-one"]});
+    EXPECT_EQ(check.exit_code, 0) << check.output;
+  }
 }
 
 // A worker frozen (SIGSTOP) while it holds leased tasks, past its lease, then

@@ -11,6 +11,7 @@
 
 #include <algorithm>
 #include <cstdlib>
+#include <ostream>
 #include <random>
 #include <string>
 
@@ -31,7 +32,6 @@ using testing::QueryText;
 using testing::RunCommand;
 
 constexpr int kIslands = 4;
-constexpr int kPopulation = 20;
 
 constexpr char kSpec[] = R"(
 name: "crash-loop"
@@ -50,11 +50,34 @@ islands { count: 4 topology: RANDOM random_degree: 2 interval: 4 migrants: 2 }
 stop { max_generations: GENERATIONS }
 )";
 
+// The evolution strategies: four islands of 10 samples (each island a search
+// of its own, a better migrant moving its mean), restarting whenever a stop
+// criterion holds, which on Griewank happens many times in 250 generations.
+constexpr char kCmaSpec[] = R"(
+name: "crash-loop-cma"
+seed: 99174
+genome_length: 8
+evaluator { builtin { function: "griewank" } }
+strategy { KIND { population_size: 10 sigma: 100 } }
+islands { count: 4 topology: RING interval: 4 migrants: 1 }
+stop { max_generations: GENERATIONS }
+)";
+
+struct LoopCase {
+  const char* name;
+  const char* spec;
+  const char* kind;  // replaces KIND in the spec
+  int population;
+  int default_kills;  // without SKERRY_CRASH_KILLS
+};
+
+// Test names print the case's name, not its bytes.
+void PrintTo(const LoopCase& c, std::ostream* os) { *os << c.name; }
+
 // Long enough for the kills wanted: about a dozen generations per kill.
 int GenerationsFor(int kills) { return std::max(250, kills * 13); }
 
-int KillsWanted() {
-  int n = 20;
+int KillsWanted(int n) {
   if (const char* env = std::getenv("SKERRY_CRASH_KILLS")) {
     if (!absl::SimpleAtoi(env, &n) || n < 1 || n > 100000) n = 20;
   }
@@ -74,14 +97,21 @@ std::string State(const std::string& db) {
   return QueryText(db, "SELECT state FROM runs WHERE id = 1");
 }
 
-TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
+class CrashLoopTest : public ::testing::TestWithParam<LoopCase> {};
+
+TEST_P(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
   testing::TempDir dir;
-  const int kills_wanted = KillsWanted();
+  const LoopCase& param = GetParam();
+  const int kPopulation = param.population;
+  const int kills_wanted = KillsWanted(param.default_kills);
   const int kGenerations = GenerationsFor(kills_wanted);
   const std::string spec = dir.File("crash.spec");
   {
-    std::string text = kSpec;
+    std::string text = param.spec;
     text.replace(text.find("GENERATIONS"), 11, absl::StrCat(kGenerations));
+    if (size_t k = text.find("KIND"); k != std::string::npos) {
+      text.replace(k, 4, param.kind);
+    }
     ASSERT_TRUE(testing::WriteTextFile(spec, text));
   }
   // The reference: the same spec and seed, nothing disturbed.
@@ -178,7 +208,7 @@ TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
         << coordinator->process.Log();
   }
   if (froze) workers[0].Signal(SIGCONT);
-  EXPECT_GE(kills, std::min(kills_wanted, 20))
+  EXPECT_GE(kills, std::min(kills_wanted, param.default_kills))
       << "the run finished before enough kills; make it longer";
   RecordProperty("coordinator_kills", kills);
   RecordProperty("worker_kills", worker_kills);
@@ -213,6 +243,17 @@ TEST(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
   EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE eval_state = 1"),
             "0");
 }
+
+// The GA with the kills CI has always made; each evolution strategy with
+// fewer, to keep CI time reasonable (SKERRY_CRASH_KILLS sets all of them).
+INSTANTIATE_TEST_SUITE_P(
+    EveryStrategy, CrashLoopTest,
+    ::testing::Values(LoopCase{"ga", kSpec, "", 20, 20},
+                      LoopCase{"cma_es", kCmaSpec, "cma_es", 10, 8},
+                      LoopCase{"sep_cma_es", kCmaSpec, "sep_cma_es", 10, 8}),
+    [](const ::testing::TestParamInfo<LoopCase>& param_info) {
+      return std::string(param_info.param.name);
+    });
 
 }  // namespace
 }  // namespace skerry

@@ -121,3 +121,84 @@ TEST(GaStrategyTest, RestoresFromAnEmptyState) {
 
 }  // namespace
 }  // namespace skerry::engine
+
+namespace skerry::engine {
+namespace {
+
+RunSpec CmaSpec(const std::string& kind) {
+  absl::StatusOr<RunSpec> spec = ParseSpecText(
+      "seed: 5 genome_length: 4 evaluator { builtin { function: "
+      "\"sphere\" } } strategy { " +
+          kind + " { } }",
+      "cma.spec");
+  EXPECT_TRUE(spec.ok()) << spec.status();
+  absl::StatusOr<RunSpec> prepared = PrepareSpec(*spec);
+  EXPECT_TRUE(prepared.ok()) << prepared.status();
+  return *prepared;
+}
+
+// A CMA-ES island saved after any generation and restored in a new instance
+// (a restarted coordinator) makes the same generations bit for bit.
+TEST(CmaStrategyTest, RestoredIslandContinuesBitForBit) {
+  for (const std::string kind : {"cma_es", "sep_cma_es"}) {
+    SCOPED_TRACE(kind);
+    const RunSpec spec = CmaSpec(kind);
+    absl::StatusOr<std::unique_ptr<Strategy>> a = MakeStrategy(spec, 0);
+    ASSERT_TRUE(a.ok());
+    absl::StatusOr<std::vector<GenomeRecord>> gen = (*a)->Start();
+    ASSERT_TRUE(gen.ok());
+    EXPECT_EQ(gen->size(), 8u);  // 4 + floor(3 ln 4)
+    EXPECT_EQ(gen->front().origin, skerry::v1::SAMPLED);
+    std::unique_ptr<Strategy> b;
+    for (int g = 0; g < 12; ++g) {
+      std::vector<GenomeRecord> done = Evaluated(*gen, 100 * (g + 1));
+      if (g == 5) {
+        absl::StatusOr<std::unique_ptr<Strategy>> made = MakeStrategy(spec, 0);
+        ASSERT_TRUE(made.ok());
+        b = std::move(*made);
+        ASSERT_TRUE(b->Restore((*a)->Save()).ok());
+      }
+      ASSERT_TRUE((*a)->Tell(done, {}).ok());
+      gen = (*a)->Ask();
+      ASSERT_TRUE(gen.ok());
+      if (b != nullptr) {
+        ASSERT_TRUE(b->Tell(done, {}).ok());
+        absl::StatusOr<std::vector<GenomeRecord>> other = b->Ask();
+        ASSERT_TRUE(other.ok());
+        ExpectSameGeneration(*other, *gen);
+      }
+    }
+    EXPECT_EQ(b->Save().SerializeAsString(), (*a)->Save().SerializeAsString());
+  }
+}
+
+// A migrant better than every sample becomes the mean: the next generation
+// is drawn around it.
+TEST(CmaStrategyTest, ABetterMigrantMovesTheMean) {
+  const RunSpec spec = CmaSpec("cma_es");
+  absl::StatusOr<std::unique_ptr<Strategy>> s = MakeStrategy(spec, 0);
+  ASSERT_TRUE(s.ok());
+  absl::StatusOr<std::vector<GenomeRecord>> gen = (*s)->Start();
+  ASSERT_TRUE(gen.ok());
+  GenomeRecord migrant;
+  migrant.genes = {0.0, 0.0, 0.0, 0.0};
+  migrant.state = skerry::v1::EVALUATED;
+  migrant.score = -1.0;  // better than any sphere value
+  const GenomeRecord* migrants[] = {&migrant};
+  ASSERT_TRUE((*s)->Tell(Evaluated(*gen, 1), migrants).ok());
+  const skerry::v1::StrategyState state = (*s)->Save();
+  ASSERT_EQ(state.cma_es().search().mean_size(), 4);
+  for (double m : state.cma_es().search().mean()) EXPECT_EQ(m, 0.0);
+}
+
+TEST(CmaStrategyTest, AGaStateIsRefused) {
+  absl::StatusOr<std::unique_ptr<Strategy>> s =
+      MakeStrategy(CmaSpec("cma_es"), 0);
+  ASSERT_TRUE(s.ok());
+  skerry::v1::StrategyState ga;
+  ga.mutable_ga();
+  EXPECT_TRUE(absl::IsInvalidArgument((*s)->Restore(ga)));
+}
+
+}  // namespace
+}  // namespace skerry::engine

@@ -1,0 +1,38 @@
+// The `strategy` part of a run spec (spec.proto StrategySpec): which search
+// strategy a run uses, its defaults and its checks. Called by NormalizeSpec and
+// ValidateSpec (common/spec.h); the engine reads StrategyOf() to make each
+// island's strategy.
+//
+// Thread safety: pure functions.
+#ifndef SKERRY_COMMON_STRATEGY_SPEC_H_
+#define SKERRY_COMMON_STRATEGY_SPEC_H_
+
+#include <cstdint>
+
+#include "absl/status/status.h"
+#include "skerry/v1/spec.pb.h"
+
+namespace skerry {
+
+enum class StrategyKind { kGa, kCmaEs, kSepCmaEs };
+
+StrategyKind StrategyOf(const skerry::v1::RunSpec& spec);
+
+// CMA-ES or sep-CMA-ES parameters; REQUIRES: StrategyOf(spec) is one of them.
+const skerry::v1::CmaEsSpec& CmaSpecOf(const skerry::v1::RunSpec& spec);
+
+// Moves `strategy.ga` to the top-level `ga` (one form for the GA, so stored
+// GA specs mean what they meant); fills the CMA-ES defaults. Needs
+// genome_length and the initial range normalised first.
+void NormalizeStrategy(skerry::v1::RunSpec* spec);
+
+// The strategy's own fields and the combinations a run cannot have, each
+// error naming the field.
+absl::Status ValidateStrategy(const skerry::v1::RunSpec& spec);
+
+// The CMA-ES default population, 4 + floor(3 ln n) (Hansen 2016, Table 1).
+uint32_t DefaultCmaPopulation(uint32_t genome_length);
+
+}  // namespace skerry
+
+#endif  // SKERRY_COMMON_STRATEGY_SPEC_H_

@@ -1,0 +1,80 @@
+// Tests for the `strategy` part of a run spec (common/strategy_spec.h): the
+// GA's two spellings, the CMA-ES defaults, and errors naming the field.
+#include "common/strategy_spec.h"
+
+#include <string>
+
+#include "common/spec.h"
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+
+namespace skerry {
+namespace {
+
+using ::testing::HasSubstr;
+
+absl::StatusOr<skerry::v1::RunSpec> Prepare(const std::string& extra,
+                                            bool noisy = false) {
+  absl::StatusOr<skerry::v1::RunSpec> spec = ParseSpecText(
+      "genome_length: 10 evaluator { builtin { function: \"sphere\" } } " +
+          extra,
+      "test.spec");
+  if (!spec.ok()) return spec.status();
+  spec->mutable_evaluator()->set_noisy(noisy);
+  return PrepareSpec(*spec);
+}
+
+TEST(StrategySpecTest, StrategyGaMeansTheTopLevelGa) {
+  absl::StatusOr<skerry::v1::RunSpec> a =
+      Prepare("strategy { ga { population_size: 12 } }");
+  absl::StatusOr<skerry::v1::RunSpec> b = Prepare("ga { population_size: 12 }");
+  ASSERT_TRUE(a.ok()) << a.status();
+  ASSERT_TRUE(b.ok()) << b.status();
+  EXPECT_EQ(a->SerializeAsString(), b->SerializeAsString());
+  EXPECT_EQ(StrategyOf(*a), StrategyKind::kGa);
+}
+
+// Defaults: lambda = 4 + floor(3 ln 10) = 10 (Hansen 2016, Table 1); sigma =
+// 0.3 x the initial range's width, here sphere's [-5.12, 5.12] (Jamil & Yang
+// 2013): 0.3 x 10.24 = 3.072.
+TEST(StrategySpecTest, CmaDefaultsFollowTheTutorial) {
+  absl::StatusOr<skerry::v1::RunSpec> spec = Prepare("strategy { cma_es { } }");
+  ASSERT_TRUE(spec.ok()) << spec.status();
+  EXPECT_EQ(StrategyOf(*spec), StrategyKind::kCmaEs);
+  EXPECT_EQ(spec->strategy().cma_es().population_size(), 10u);
+  EXPECT_DOUBLE_EQ(spec->strategy().cma_es().sigma(), 3.072);
+  EXPECT_EQ(IslandPopulation(*spec, 0), 10u);
+  EXPECT_FALSE(spec->has_ga());
+  EXPECT_EQ(DefaultCmaPopulation(1), 4u);
+  EXPECT_EQ(DefaultCmaPopulation(100), 17u);  // 4 + floor(13.8155)
+}
+
+TEST(StrategySpecTest, BadCombinationsNameTheField) {
+  struct Case {
+    std::string extra;
+    std::string message;
+    bool noisy = false;
+  };
+  const Case cases[] = {
+      {"ga { population_size: 10 } strategy { ga { population_size: 12 } }",
+       "strategy.ga: the GA is set twice"},
+      {"ga { population_size: 10 } strategy { cma_es { } }",
+       "ga: set beside strategy.cma_es"},
+      {"strategy { sep_cma_es { population_size: 3 } }",
+       "strategy.sep_cma_es.population_size: out of range"},
+      {"strategy { cma_es { sigma: -1 } }", "strategy.cma_es.sigma"},
+      {"strategy { cma_es { } } islands { count: 2 population_sizes: [8, 9] }",
+       "islands.population_sizes: per-island sizes are for the GA"},
+      {"strategy { cma_es { } }", "evaluator.noisy", true},
+  };
+  for (const Case& c : cases) {
+    SCOPED_TRACE(c.extra);
+    absl::StatusOr<skerry::v1::RunSpec> spec = Prepare(c.extra, c.noisy);
+    ASSERT_FALSE(spec.ok());
+    EXPECT_TRUE(absl::IsInvalidArgument(spec.status()));
+    EXPECT_THAT(spec.status().message(), HasSubstr(c.message));
+  }
+}
+
+}  // namespace
+}  // namespace skerry
