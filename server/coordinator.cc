@@ -1,5 +1,7 @@
 #include "server/coordinator.h"
 
+#include <unistd.h>
+
 #include <cstdio>
 #include <map>
 #include <set>
@@ -54,7 +56,7 @@ class CoordinatorImpl final : public Coordinator {
     watch.max_watchers = options.max_watchers;
     c->runs_ = std::make_unique<api::RunServiceImpl>(
         c->store_.get(), c->engine_.get(), c->fleet_.get(), c->access_.get(),
-        watch);
+        watch, options.budgets);
     c->validations_ = std::make_unique<api::ValidationServiceImpl>(
         c->store_.get(), c->engine_.get(), c->access_.get());
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
@@ -114,6 +116,14 @@ class CoordinatorImpl final : public Coordinator {
       return absl::UnavailableError(absl::StrCat(
           "cannot listen on ", options.listen_address,
           " (address in use, or not an address of this machine?)"));
+    }
+    // The standard health service answers for the whole server ("") by
+    // itself; each of our services is SERVING too, until Shutdown.
+    if (grpc::HealthCheckServiceInterface* health =
+            c->server_->GetHealthCheckService()) {
+      for (const auto& [service, name] : services) {
+        health->SetServingStatus(name, true);
+      }
     }
     return c;
   }
@@ -178,6 +188,16 @@ class CoordinatorImpl final : public Coordinator {
 };
 
 }  // namespace
+
+SpecBudgets MachineSpecBudgets() {
+  const long pages = sysconf(_SC_PHYS_PAGES);
+  const long page_size = sysconf(_SC_PAGESIZE);
+  const uint64_t memory =
+      pages > 0 && page_size > 0
+          ? static_cast<uint64_t>(pages) * static_cast<uint64_t>(page_size)
+          : 0;  // unknown: DefaultSpecBudgets' floor
+  return DefaultSpecBudgets(memory);
+}
 
 absl::StatusOr<std::unique_ptr<Coordinator>> Coordinator::Start(
     const CoordinatorOptions& options) {
