@@ -3,6 +3,10 @@
 // It checks every message from outside before anything reaches the engine: a
 // worker must have joined (an unknown id gets NOT_FOUND, "join again"), sizes
 // are bounded, and a Report is answered only after its results are committed.
+// Every field of every result is checked here, and a bad result is rejected
+// alone (INVALID_ARGUMENT in its RejectedResult), so nothing a worker sends can
+// fail the group commit that holds other workers' results. Whose results are
+// taken is the task queue's result rule (server/scheduler/task_queue.h).
 //
 // Thread safety: gRPC calls the handlers from many threads; all state is
 // guarded.
