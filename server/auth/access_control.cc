@@ -176,9 +176,11 @@ void AccessControl::Examine(Verdict* v, const void* request,
     absl::StatusOr<std::optional<std::string>> owner =
         store_->RunOwner(v->run_id);
     if (!owner.ok()) {
-      v->status = grpc::Status(grpc::StatusCode::UNAVAILABLE,
-                               absl::StrCat("cannot check the run's owner: ",
-                                            owner.status().message()));
+      // The store's code says what to do (UNAVAILABLE: retry; DATA_LOSS: a
+      // damaged database).
+      v->status = api::ToGrpc(absl::Status(
+          owner.status().code(), absl::StrCat("cannot check the run's owner: ",
+                                              owner.status().message())));
     } else if (!owner->has_value() || **owner != v->caller->principal) {
       v->status = grpc::Status(
           grpc::StatusCode::PERMISSION_DENIED,
