@@ -127,8 +127,8 @@ TEST(RequestBoundsTest, UnknownFieldsAreBounded) {
 TEST(QuoteTest, LongInputIsQuotedAsAPrefixWithItsLength) {
   EXPECT_EQ(QuotePrefix("sphere"), "\"sphere\"");
   const std::string quoted = QuotePrefix(std::string(1 << 20, 'f'));
-  EXPECT_EQ(quoted, absl::StrCat("\"", std::string(64, 'f'),
-                                 "...\" (1048576 bytes)"));
+  EXPECT_EQ(quoted,
+            absl::StrCat("\"", std::string(64, 'f'), "...\" (1048576 bytes)"));
   // Never cut inside a UTF-8 sequence: "é" is C3 A9.
   std::string accents;
   for (int i = 0; i < 40; ++i) accents += "\xc3\xa9";
@@ -200,7 +200,8 @@ TEST(SpecBudgetTest, EachBudgetNamesItsFlagAndZeroMeansNone) {
   SpecBudgets small_tasks;
   small_tasks.max_task_bytes = 8 * 1000;
   EXPECT_THAT(
-      std::string(PrepareSpec(Spec(10, 1000, 1), small_tasks).status().message()),
+      std::string(
+          PrepareSpec(Spec(10, 1000, 1), small_tasks).status().message()),
       HasSubstr("(--max-task-bytes)"));
 }
 
