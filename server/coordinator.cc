@@ -156,11 +156,15 @@ class CoordinatorImpl final : public Coordinator {
     }
     if (engine_ != nullptr) engine_->Shutdown();
     if (server_ != nullptr) server_->Wait();
+    absl::MutexLock l(&mu_);
+    stopped_ = true;
   }
 
   void Wait() override {
+    // Until Shutdown() has finished, not merely begun: the caller may
+    // destroy the coordinator next (skerry-coordinator's main returns).
     absl::MutexLock l(&mu_);
-    mu_.Await(absl::Condition(&shut_down_));
+    mu_.Await(absl::Condition(&stopped_));
   }
 
  private:
@@ -184,7 +188,8 @@ class CoordinatorImpl final : public Coordinator {
   std::string transport_;
 
   absl::Mutex mu_;
-  bool shut_down_ ABSL_GUARDED_BY(mu_) = false;
+  bool shut_down_ ABSL_GUARDED_BY(mu_) = false;  // Shutdown() has begun
+  bool stopped_ ABSL_GUARDED_BY(mu_) = false;    // Shutdown() has finished
 };
 
 }  // namespace

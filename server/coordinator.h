@@ -60,7 +60,8 @@ class Coordinator {
   virtual std::shared_ptr<grpc::Channel> InProcessChannel() = 0;
   // Stops serving; in-flight commits finish first.
   virtual void Shutdown() = 0;
-  // Blocks until Shutdown() is called (from a signal handler's thread, say).
+  // Blocks until Shutdown(), called from another thread (a signal handler's,
+  // say), has finished.
   virtual void Wait() = 0;
 };
 
