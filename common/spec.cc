@@ -595,6 +595,9 @@ SpecBudgets DefaultSpecBudgets(uint64_t physical_memory_bytes) {
   // even on a small machine.
   b.max_generation_genes =
       std::max<uint64_t>(physical_memory_bytes / 1024, uint64_t{1} << 20);
+  // SQLite writes on the order of 10^5 genome rows a second here
+  // (docs/performance.md): 10^6 is a commit of about ten seconds.
+  b.max_generation_genomes = 1000000;
   b.max_evaluator_bytes = 1 << 20;
   b.max_name_bytes = 256;
   // A lease answer holds at least one task (server/api/fleet_service.h).
@@ -623,6 +626,12 @@ absl::StatusOr<RunSpec> PrepareSpec(RunSpec spec, const SpecBudgets& budgets) {
   uint64_t population = 0;
   for (uint32_t i = 0; i < prepared->islands().count(); ++i) {
     population += IslandPopulation(*prepared, i);
+  }
+  if (absl::Status s = OverBudget("genomes per generation (over all islands)",
+                                  population, budgets.max_generation_genomes,
+                                  "--max-generation-genomes");
+      !s.ok()) {
+    return s;
   }
   const uint64_t genes = population * prepared->genome_length();
   if (absl::Status s = OverBudget(

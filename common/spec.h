@@ -40,6 +40,9 @@ struct SpecBudgets {
   // Genes of one generation, all islands: sum of island populations times
   // genome_length (--max-generation-genes).
   uint64_t max_generation_genes = 0;
+  // Genomes of one generation, all islands: one generation is written in one
+  // transaction, which other writes wait for (--max-generation-genomes).
+  uint64_t max_generation_genomes = 0;
   // The serialised EvaluatorSpec, which every task carries
   // (--max-evaluator-bytes).
   uint64_t max_evaluator_bytes = 0;
@@ -52,7 +55,8 @@ struct SpecBudgets {
 
 // Defaults for a machine with `physical_memory_bytes` of memory: a generation
 // of at most physical memory / 1024 genes (the coordinator holds a few copies
-// of each gene), and fixed byte budgets that fit in one gRPC message.
+// of each gene) and 10^6 genomes (a transaction of seconds), and fixed byte
+// budgets that fit in one gRPC message.
 SpecBudgets DefaultSpecBudgets(uint64_t physical_memory_bytes);
 
 // PrepareSpec, with the budgets: the sizes sent (name, evaluator) are checked

@@ -48,6 +48,10 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
                         islands); a bigger spec is refused at submit
                         (default: this machine's memory in bytes / 1024,
                         at least 1048576)
+  --max-generation-genomes N
+                        budget: genomes of one generation of a run, all
+                        islands; each generation is one transaction
+                        (default 1000000)
   --max-evaluator-bytes N
                         budget: bytes of a run's serialised evaluator spec,
                         which every task carries (default 1048576)
@@ -132,6 +136,7 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
       }
       f.options.max_watchers = static_cast<size_t>(*v);
     } else if (arg == "--max-generation-genes" ||
+               arg == "--max-generation-genomes" ||
                arg == "--max-evaluator-bytes" || arg == "--max-name-bytes" ||
                arg == "--max-task-bytes") {
       const bool task = arg == "--max-task-bytes";
@@ -145,10 +150,12 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
             v->substr(0, 32), v->size() > 32 ? "...\"" : "\""));
       }
       SpecBudgets& b = f.options.budgets;
-      uint64_t& field = arg == "--max-generation-genes" ? b.max_generation_genes
-                        : arg == "--max-evaluator-bytes" ? b.max_evaluator_bytes
-                        : arg == "--max-name-bytes"      ? b.max_name_bytes
-                                                         : b.max_task_bytes;
+      uint64_t& field =
+          arg == "--max-generation-genomes" ? b.max_generation_genomes
+          : arg == "--max-generation-genes" ? b.max_generation_genes
+          : arg == "--max-evaluator-bytes"  ? b.max_evaluator_bytes
+          : arg == "--max-name-bytes"       ? b.max_name_bytes
+                                            : b.max_task_bytes;
       field = n;
     } else if (arg == "--max-wait-ms") {
       absl::StatusOr<double> v = number("--max-wait-ms", 0, 600000);

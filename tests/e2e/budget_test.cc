@@ -79,16 +79,18 @@ TEST_F(BudgetTest, MillionByMillionSpecIsRefusedAndTheCoordinatorServesOn) {
 }
 
 TEST_F(BudgetTest, EachBudgetFlagIsEnforcedAndNamedInTheRefusal) {
-  Start({"--max-generation-genes", "2000", "--max-name-bytes", "8",
-         "--max-evaluator-bytes", "64", "--max-task-bytes", "4096"});
+  Start({"--max-generation-genes", "2000", "--max-generation-genomes", "50",
+         "--max-name-bytes", "8", "--max-evaluator-bytes", "64",
+         "--max-task-bytes", "4096"});
   struct Case {
     std::string name;
     std::string spec;
     std::string flag;
   };
   const std::vector<Case> cases = {
-      {"genes", Spec("genes", 100, 30), "--max-generation-genes"},
+      {"genes", Spec("genes", 40, 60), "--max-generation-genes"},
       {"name", Spec("a-long-name", 6, 3), "--max-name-bytes"},
+      {"genomes", Spec("genomes", 51, 2), "--max-generation-genomes"},
       {"evaluator",
        "name: \"ext\" genome_length: 3 lower_bound: -1 upper_bound: 1 "
        "evaluator { external { argv: \"" +

@@ -197,6 +197,13 @@ TEST(SpecBudgetTest, EachBudgetNamesItsFlagAndZeroMeansNone) {
       std::string(1 << 20, 'a'));
   EXPECT_THAT(std::string(PrepareSpec(external, machine).status().message()),
               HasSubstr("(--max-evaluator-bytes)"));
+  skerry::v1::RunSpec crowd = Spec(1000000, 1, 2);  // 2 islands of 10^6
+  EXPECT_THAT(std::string(PrepareSpec(crowd, machine).status().message()),
+              HasSubstr("genomes per generation (over all islands): 2000000 "
+                        "exceeds the coordinator's budget of 1000000 "
+                        "(--max-generation-genomes)"));
+  EXPECT_TRUE(PrepareSpec(Spec(1000000, 1, 1), machine).ok())
+      << "one island of the largest population";
   SpecBudgets small_tasks;
   small_tasks.max_task_bytes = 8 * 1000;
   EXPECT_THAT(
@@ -215,12 +222,13 @@ TEST(SpecBudgetTest, BudgetFlagsSetTheCoordinatorsBudgets) {
   absl::StatusOr<server::CoordinatorFlags> f =
       Parse({"--db", "x.db", "--max-generation-genes", "5000",
              "--max-evaluator-bytes", "4096", "--max-name-bytes", "32",
-             "--max-task-bytes", "65536"});
+             "--max-task-bytes", "65536", "--max-generation-genomes", "77"});
   ASSERT_TRUE(f.ok()) << f.status();
   EXPECT_EQ(f->options.budgets.max_generation_genes, 5000u);
   EXPECT_EQ(f->options.budgets.max_evaluator_bytes, 4096u);
   EXPECT_EQ(f->options.budgets.max_name_bytes, 32u);
   EXPECT_EQ(f->options.budgets.max_task_bytes, 65536u);
+  EXPECT_EQ(f->options.budgets.max_generation_genomes, 77u);
   absl::StatusOr<server::CoordinatorFlags> defaults = Parse({"--db", "x.db"});
   ASSERT_TRUE(defaults.ok());
   EXPECT_GE(defaults->options.budgets.max_generation_genes, uint64_t{1} << 20);
