@@ -151,6 +151,11 @@ class CoordinatorImpl final : public Coordinator {
     if (queue_ != nullptr) queue_->Shutdown();       // wakes long polls
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
     if (server_ != nullptr) {
+      // Health checks answer NOT_SERVING from now on, for every service.
+      if (grpc::HealthCheckServiceInterface* health =
+              server_->GetHealthCheckService()) {
+        health->Shutdown();
+      }
       server_->Shutdown(std::chrono::system_clock::now() +
                         std::chrono::seconds(5));
     }

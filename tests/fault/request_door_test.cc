@@ -9,6 +9,7 @@
 #include <chrono>
 #include <memory>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include "absl/strings/str_cat.h"
@@ -337,6 +338,32 @@ TEST_F(RequestDoorTest, HealthCheckIsServingForEverySkerryService) {
   grpc::Status s =
       Raw("/grpc.health.v1.Health/Check", std::string("\x0a\x03xyz", 5));
   EXPECT_EQ(s.error_code(), grpc::StatusCode::NOT_FOUND);
+
+  // A health watcher of RunService sees SERVING, then NOT_SERVING (2) when
+  // the coordinator shuts down.
+  const std::string name = skerry::v1::RunService::service_full_name();
+  grpc::internal::RpcMethod rpc("/grpc.health.v1.Health/Watch",
+                                grpc::internal::RpcMethod::SERVER_STREAMING);
+  std::unique_ptr<grpc::ClientContext> ctx = Context();
+  std::unique_ptr<grpc::ClientReader<grpc::ByteBuffer>> reader(
+      grpc::internal::ClientReaderFactory<grpc::ByteBuffer>::Create(
+          channel_.get(), rpc, ctx.get(),
+          Bytes(std::string(1, '\x0a') + static_cast<char>(name.size()) +
+                name)));
+  grpc::ByteBuffer update;
+  ASSERT_TRUE(reader->Read(&update));
+  EXPECT_EQ(Flatten(update), std::string("\x08\x01", 2));
+  std::thread stop([&] { coordinator_->Shutdown(); });
+  std::vector<std::string> seen;
+  while (seen.size() < 10 && reader->Read(&update)) {
+    seen.push_back(Flatten(update));
+    if (seen.back() == std::string("\x08\x02", 2)) break;
+  }
+  ctx->TryCancel();  // so that the shutdown need not wait for this stream
+  reader->Finish().IgnoreError();
+  stop.join();
+  ASSERT_FALSE(seen.empty()) << "no update before the stream ended";
+  EXPECT_EQ(seen.back(), std::string("\x08\x02", 2));
 }
 
 // Issue 11: a viewer token created on an open coordinator turned access
