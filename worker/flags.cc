@@ -227,7 +227,8 @@ std::string WorkerUsage() {
       kMaxWaitMsFlag,
       " (default: 5000);\n"
       "                           the coordinator may cap it\n"
-      "  --exit-when-idle SECONDS exit (code 0) after holding no task and "
+      "  --exit-when-idle SECONDS\n"
+      "                           exit (code 0) after holding no task and "
       "being\n"
       "                           given none for SECONDS, 1 to ",
       kMaxExitWhenIdleFlag,
