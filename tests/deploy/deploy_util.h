@@ -35,8 +35,8 @@ CommandResult RunTool(std::vector<std::string> argv,
 // A run spec on the sphere function evaluated by programs/slow_sphere.py,
 // which sleeps `seconds` per evaluation: a run of islands x population x
 // generations evaluations that lasts long enough to be disturbed.
-std::string SlowSphereSpec(const std::string& name, int islands,
-                           int population, int generations, double seconds);
+std::string SlowSphereSpec(const std::string& name, int islands, int population,
+                           int generations, double seconds);
 
 // The port in a coordinator's "listening on port N" line, or 0.
 int ListeningPort(const std::string& log);

@@ -39,11 +39,10 @@ TEST(DpkgInstallTest, PackageInstallsWithAptItsProgramsRunAndItRemovesCleanly) {
       RunTool({"getent", "passwd", "skerry"}).exit_code == 0;
   testing::TempDir dir;
   CommandResult built =
-      RunTool({"sh", "-c",
-               absl::StrCat("cd '", SKERRY_BUILD_DIR,
-                            "' && cpack --config CPackConfig.cmake -G DEB -B '",
-                            dir.path(), "'")},
-              absl::Seconds(300));
+      RunTool({"env", std::string("BUILD_DIR=") + SKERRY_BUILD_DIR,
+               "PACKAGE_DIR=" + dir.path(), "JOBS=1",
+               SKERRY_SOURCE_DIR "/scripts/package"},
+              absl::Seconds(600));
   ASSERT_EQ(built.exit_code, 0) << built.output;
   const std::string deb =
       RunTool({"sh", "-c",

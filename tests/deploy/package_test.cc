@@ -1,5 +1,5 @@
-// The Debian package: built by CPack from this build tree (as
-// scripts/package does), inspected with dpkg-deb, unpacked into a throwaway
+// The Debian package: built by scripts/package from this build tree,
+// inspected with dpkg-deb, unpacked into a throwaway
 // root, and its dependencies checked against the libraries the binaries
 // really load. Installing it on this machine is the opt-in `deploy` tier
 // (dpkg_install_test.cc).
@@ -28,12 +28,12 @@ class PackageTest : public ::testing::Test {
  protected:
   static void SetUpTestSuite() {
     dir_ = new testing::TempDir();
-    build_ = new testing::CommandResult(RunTool(
-        {"sh", "-c",
-         absl::StrCat("cd '", SKERRY_BUILD_DIR,
-                      "' && cpack --config CPackConfig.cmake -G DEB -B '",
-                      dir_->path(), "'")},
-        absl::Seconds(300)));
+    // scripts/package on this build tree (its binaries are up to date).
+    build_ = new testing::CommandResult(
+        RunTool({"env", std::string("BUILD_DIR=") + SKERRY_BUILD_DIR,
+                 "PACKAGE_DIR=" + dir_->path(), "JOBS=1",
+                 SKERRY_SOURCE_DIR "/scripts/package"},
+                absl::Seconds(600)));
   }
   static void TearDownTestSuite() {
     delete build_;
