@@ -240,7 +240,8 @@ class Worker::Impl {
   // A short (non-waiting) lease found no work: wait for an empty queue, then
   // long-poll, rather than asking again at once.
   bool short_lease_was_empty_ ABSL_GUARDED_BY(mu_) = false;
-  // When the worker last held a task (or started).
+  // When the worker last held a task (or started): set on leasing, on
+  // finishing an evaluation, and whenever IdleTooLong() finds work held.
   absl::Time last_busy_ ABSL_GUARDED_BY(mu_) = absl::InfinitePast();
 
   absl::Mutex calls_mu_;
@@ -493,6 +494,8 @@ void Worker::Impl::EvalLoop() {
     }
     TaskResult result = EvaluateTask(task, cache, clock_);
     absl::MutexLock l(&mu_);
+    // The lease loop may not look again before this result is reported.
+    last_busy_ = clock_->Now();
     working_.erase(task.task_id());
     results_.push_back(std::move(result));
   }
