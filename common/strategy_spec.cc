@@ -13,6 +13,7 @@ using skerry::v1::StrategySpec;
 constexpr uint32_t kMinCmaPopulation = 4;
 constexpr uint32_t kMaxCmaPopulation = 100000;
 constexpr double kMaxSigma = 1e6;
+constexpr uint64_t kMaxCovarianceEntries = uint64_t{1} << 26;
 
 const char* FieldOf(const RunSpec& spec) {
   return spec.strategy().kind_case() == StrategySpec::kSepCmaEs
@@ -97,6 +98,20 @@ absl::Status ValidateStrategy(const RunSpec& spec) {
     return absl::InvalidArgumentError(
         absl::StrCat(field, ".sigma: out of range (allowed: (0, ", kMaxSigma,
                      "]; got ", cma.sigma(), ")"));
+  }
+  if (StrategyOf(spec) == StrategyKind::kCmaEs) {
+    // Two n x n matrices of doubles per island (covariance and eigenvectors):
+    // at most 2^26 entries over all islands, 1 GiB.
+    const uint64_t n = spec.genome_length();
+    const uint64_t islands =
+        spec.islands().count() > 0 ? spec.islands().count() : 1;
+    if (n * n * islands > kMaxCovarianceEntries) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          "strategy.cma_es: genome_length ", n, " on ", islands,
+          " islands needs ", islands, " covariance matrices of ", n, " x ", n,
+          " (allowed: n x n x islands up to ", kMaxCovarianceEntries,
+          "); use strategy.sep_cma_es, whose cost grows with n"));
+    }
   }
   if (spec.evaluator().noisy()) {
     return absl::InvalidArgumentError(absl::StrCat(

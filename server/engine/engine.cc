@@ -202,15 +202,8 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   if (priority == 0) priority = scheduler::kMinWeight;
   SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
   SKERRY_ASSIGN_OR_RETURN(RunSpec prepared, PrepareSpec(std::move(spec)));
-  absl::MutexLock l(&mu_);
-  store::RunRecord rec;
-  rec.name = prepared.name();
-  rec.owner = std::move(owner);
-  rec.priority = static_cast<int32_t>(priority);
-  rec.spec = prepared;
-  rec.spec_text = std::move(spec_text);
-  rec.state = skerry::v1::RUNNING;
-  rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
+  // Generation 0 is a pure function of the spec: made before the lock is
+  // taken, so that seeding a large run never stalls the other calls.
   std::vector<GenomeRecord> genomes;
   std::vector<std::unique_ptr<Strategy>> strategies;
   std::vector<std::string> states;
@@ -222,6 +215,15 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
     states.push_back(strategy->Save().SerializeAsString());
     strategies.push_back(std::move(strategy));
   }
+  absl::MutexLock l(&mu_);
+  store::RunRecord rec;
+  rec.name = prepared.name();
+  rec.owner = std::move(owner);
+  rec.priority = static_cast<int32_t>(priority);
+  rec.spec = prepared;
+  rec.spec_text = std::move(spec_text);
+  rec.state = skerry::v1::RUNNING;
+  rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
   if (absl::Status s = store_->CreateRun(&rec, &genomes, &states); !s.ok()) {
     NoteWriteFailure(s);
     return s;
@@ -436,10 +438,18 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
   for (size_t j = 0; j < jobs.size(); ++j) {
     if (committed.ok()) {
       jobs[j]->outcome = outcomes[j];
-    } else {
+    } else if (absl::IsUnavailable(committed) ||
+               absl::IsResourceExhausted(committed)) {
+      // UNAVAILABLE means storage trouble, and only that: retry later.
       jobs[j]->status = absl::UnavailableError(
           absl::StrCat("results could not be stored, report them again: ",
                        committed.message()));
+    } else {
+      // A damaged database, or a bug here: retrying will not fix either.
+      jobs[j]->status = absl::Status(
+          absl::IsDataLoss(committed) ? absl::StatusCode::kDataLoss
+                                      : absl::StatusCode::kInternal,
+          absl::StrCat("results could not be stored: ", committed.ToString()));
     }
   }
   answer();

@@ -76,5 +76,21 @@ TEST(StrategySpecTest, BadCombinationsNameTheField) {
   }
 }
 
+// Full CMA-ES keeps n x n matrices: a genome too long for them is refused,
+// pointing to the separable variant, which accepts it.
+TEST(StrategySpecTest, FullCmaRefusesAGenomeTooLongForItsMatrices) {
+  absl::StatusOr<skerry::v1::RunSpec> spec = ParseSpecText(
+      "genome_length: 9000 evaluator { builtin { function: "
+      "\"sphere\" } } strategy { cma_es { } }",
+      "long.spec");
+  ASSERT_TRUE(spec.ok()) << spec.status();
+  absl::StatusOr<skerry::v1::RunSpec> full = PrepareSpec(*spec);
+  EXPECT_TRUE(absl::IsInvalidArgument(full.status()));
+  EXPECT_THAT(full.status().message(),
+              HasSubstr("strategy.cma_es: genome_length 9000 on 1 islands"));
+  spec->mutable_strategy()->mutable_sep_cma_es();
+  EXPECT_TRUE(PrepareSpec(*spec).ok());
+}
+
 }  // namespace
 }  // namespace skerry
