@@ -25,6 +25,8 @@ PACKAGES=(
   python3
   openssl
   clang-format
+  # skerry-worker runs evaluator programs in a bubblewrap sandbox
+  bubblewrap
 )
 
 installed() {
