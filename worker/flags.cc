@@ -117,6 +117,11 @@ absl::Status Apply(absl::string_view flag, absl::string_view value,
       }
       out.evaluator_dirs.emplace_back(dir);
     }
+  } else if (flag == "--exit-when-idle") {
+    absl::StatusOr<uint64_t> n =
+        ParseWholeNumber(flag, value, 1, kMaxExitWhenIdleFlag);
+    if (!n.ok()) return n.status();
+    out.options.exit_when_idle = absl::Seconds(static_cast<int64_t>(*n));
   } else if (flag == "--token") {
     if (value.empty()) return FlagError(flag, "must not be empty");
     out.token = std::string(value);
@@ -148,6 +153,10 @@ absl::StatusOr<WorkerFlags> ParseWorkerFlags(
     absl::string_view arg = args[i];
     if (arg == "--help" || arg == "-h") {
       out.help = true;
+      return out;
+    }
+    if (arg == "--version") {
+      out.version = true;
       return out;
     }
     if (!absl::StartsWith(arg, "--")) {
@@ -241,9 +250,9 @@ void ScrubTokenFromProcess(int argc, char** argv) {
 std::string WorkerUsage() {
   return absl::StrCat(
       "Usage: skerry-worker --coordinator HOST:PORT --threads N [--name NAME]\n"
-      "                     [--batch N] [--wait-ms N] [--token-file FILE]\n"
-      "                     [--sandbox auto|bwrap|none] [--evaluator-dirs "
-      "DIRS]\n"
+      "                     [--batch N] [--wait-ms N] [--exit-when-idle S]\n"
+      "                     [--token-file FILE] [--sandbox auto|bwrap|none]\n"
+      "                     [--evaluator-dirs DIRS]\n"
       "                     [--tls-ca FILE [--tls-cert FILE --tls-key FILE]]\n"
       "\n"
       "A stateless evaluation worker. It joins the coordinator at HOST:PORT,\n"
@@ -275,6 +284,14 @@ std::string WorkerUsage() {
       kMaxWaitMsFlag,
       " (default: 5000);\n"
       "                           the coordinator may cap it\n"
+      "  --exit-when-idle SECONDS\n"
+      "                           exit (code 0) after holding no task and "
+      "being\n"
+      "                           given none for SECONDS, 1 to ",
+      kMaxExitWhenIdleFlag,
+      ";\n"
+      "                           time the coordinator is unreachable counts\n"
+      "                           (default: never; for batch allocations)\n"
       "  --token TOKEN            bearer token of role worker (visible to "
       "other\n"
       "                           users in the process list until the worker\n"
@@ -313,6 +330,7 @@ std::string WorkerUsage() {
       "                           config folder; nothing outside them and "
       "/usr\n"
       "  --help                   this text\n"
+      "  --version                print the version and the worker protocol\n"
       "\n"
       "SIGINT or SIGTERM stops the worker: it kills its evaluator programs, "
       "reports\n"
