@@ -24,9 +24,11 @@ const std::vector<FieldBound>* BuildTable() {
       {"skerry.v1.JoinRequest.name", 0, 256, ""},
       {"skerry.v1.JoinRequest.host", 0, 256, ""},
       {"skerry.v1.JoinRequest.version", 0, 256, ""},
+      {"skerry.v1.JoinRequest.sandbox", 0, 256, ""},
       {"skerry.v1.JoinRequest.evaluators", 1000, 256, ""},
       {"skerry.v1.ReportRequest.results", 100000, 0, ""},
       {"skerry.v1.ReportRequest.held_task_ids", 100000, 0, ""},
+      {"skerry.v1.HandBackRequest.task_ids", 100000, 0, ""},
       {"skerry.v1.TaskResult.error", 0, 1 * kMiB,
        "FleetService.Report: a longer error rejects that result alone"},
       // RunService

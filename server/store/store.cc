@@ -127,8 +127,18 @@ CREATE INDEX validations_run ON validations (run_id, id);
 CREATE INDEX validations_pending ON validations (id) WHERE state = 1;
 )sql";
 
-// Versions 6 to 8: left for migrations made on other branches at the same time
-// (they take these numbers when they land; this one is renumbered then).
+// Version 6 is taken by another change being made at the same time; this
+// placeholder keeps the numbering until both are merged.
+constexpr const char* kSchemaV6 = "SELECT 1;";
+
+// Version 7: how each worker confines its evaluator programs (fleet.proto
+// JoinRequest.sandbox), for the worker listing.
+constexpr const char* kSchemaV7 = R"sql(
+ALTER TABLE workers ADD COLUMN sandbox TEXT NOT NULL DEFAULT '';
+)sql";
+
+// Version 8: left for a migration made on another branch at the same time
+// (it takes this number when it lands; this one is renumbered then).
 constexpr const char* kSchemaReserved = "";
 
 // Version 9: each island's search strategy state (server/engine/strategy.h).
@@ -147,9 +157,9 @@ INSERT INTO strategy_states (run_id, island, generation, state)
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h.
-constexpr const char* kMigrations[] = {
-    kSchemaV1,       kSchemaV2,       kSchemaV3,       kSchemaV4, kSchemaAccess,
-    kSchemaReserved, kSchemaReserved, kSchemaReserved, kSchemaV9};
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,       kSchemaV3,
+                                       kSchemaV4, kSchemaAccess,   kSchemaV6,
+                                       kSchemaV7, kSchemaReserved, kSchemaV9};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -628,9 +638,10 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
 absl::StatusOr<int64_t> Store::RegisterWorker(const WorkerRecord& w) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto ins, conn_->Prepare("INSERT INTO workers (name, host, threads, "
-                               "evaluators, version, joined_ms, last_seen_ms) "
-                               "VALUES (?,?,?,?,?,?,?)"));
+      auto ins,
+      conn_->Prepare("INSERT INTO workers (name, host, threads, "
+                     "evaluators, version, joined_ms, last_seen_ms, sandbox) "
+                     "VALUES (?,?,?,?,?,?,?,?)"));
   ins.BindText(1, w.name);
   ins.BindText(2, w.host);
   ins.BindInt(3, w.threads);
@@ -638,6 +649,7 @@ absl::StatusOr<int64_t> Store::RegisterWorker(const WorkerRecord& w) {
   ins.BindText(5, w.version);
   ins.BindInt(6, w.joined_ms);
   ins.BindInt(7, w.last_seen_ms);
+  ins.BindText(8, w.sandbox);
   SKERRY_RETURN_IF_ERROR(ins.Run());
   return conn_->LastInsertId();
 }

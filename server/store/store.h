@@ -13,7 +13,7 @@
 //   generation_stats(run_id, island, generation, best, mean, worst, diversity,
 //           evaluations, failed, eval_seconds, completed_ms)
 //   workers(id, name, host, threads, evaluators, version, joined_ms,
-//           last_seen_ms)
+//           last_seen_ms, sandbox)                 sandbox: version 7
 //   validations(id, run_id, genome_id UNIQUE, generation, reason, state,
 //           score, cases, attempts, error, requested_by, requested_ms,
 //           completed_ms, copied_from)              (version 4)
@@ -27,8 +27,8 @@
 //   strategy_states(run_id, island, generation, state BLOB)   version 9
 //        PRIMARY KEY (run_id, island): the island's search strategy as it
 //        was when it produced `generation` (a serialised StrategyState,
-//        proto/skerry/v1/strategy.proto). Versions 6 to 8 are kept for
-//        migrations made beside it; a migrated database gets an empty state
+//        proto/skerry/v1/strategy.proto). Version 8 is kept for
+//        a migration made beside it; a migrated database gets an empty state
 //        per island (a GA's, which keeps nothing).
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
@@ -250,6 +250,7 @@ struct WorkerRecord {
   std::string version;
   int64_t joined_ms = 0;
   int64_t last_seen_ms = 0;
+  std::string sandbox;  // JoinRequest.sandbox: "bwrap", "none: <reason>"
 };
 
 class Store {

@@ -195,6 +195,7 @@ TEST_F(AccessStoreTest, Version4DatabaseIsMigratedToTheAccessTables) {
       path(),
       "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
       "DROP TABLE strategy_states; "
+      "ALTER TABLE workers DROP COLUMN sandbox; "
       "UPDATE schema_version SET version = 4; "
       "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
       "created_ms, updated_ms) VALUES ('old', 'local', x'', '', 1, 4, 1, 1)");

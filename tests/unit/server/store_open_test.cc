@@ -53,6 +53,7 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
           "DROP INDEX genomes_failed; DROP TABLE validations; "
           "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
           "DROP TABLE strategy_states; "
+          "ALTER TABLE workers DROP COLUMN sandbox; "
           "UPDATE schema_version SET version = 1; "
           "INSERT INTO workers (name, host, threads, evaluators, version, "
           "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
@@ -68,6 +69,31 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
                      "'validations_run', 'validations_pending')"),
             "6");
   EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "old");
+}
+
+// Version 7: a version-5 database gains workers.sandbox; workers that
+// joined before it keep their rows with an empty sandbox.
+TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
+  store_.reset();
+  RawExec(
+      path(),
+      "ALTER TABLE workers DROP COLUMN sandbox; DROP TABLE strategy_states; "
+      "UPDATE schema_version SET version = 5; "
+      "INSERT INTO workers (name, host, threads, evaluators, version, "
+      "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(RawQuery(path(), "SELECT name || '/' || sandbox FROM workers"),
+            "old/");
+  WorkerRecord w;
+  w.name = "new";
+  w.host = "h";
+  w.threads = 2;
+  w.sandbox = "bwrap";
+  ASSERT_TRUE((*again)->RegisterWorker(w).ok());
+  EXPECT_EQ(RawQuery(path(), "SELECT sandbox FROM workers WHERE name = 'new'"),
+            "bwrap");
 }
 
 TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {

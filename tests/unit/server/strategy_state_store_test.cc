@@ -114,14 +114,14 @@ TEST_F(StrategyStateStoreTest, CommitWithoutAStateLeavesItAlone) {
   EXPECT_EQ(RawQuery(path(), "SELECT length(state) FROM strategy_states"), "0");
 }
 
-// A database of the version before (5, say) gets one empty state per island,
+// A database of the version before (8) gets one empty state per island,
 // at the island's generation, and passes the check.
 TEST_F(StrategyStateStoreTest, OlderDatabaseGetsAnEmptyStatePerIsland) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(2, &genomes);
   store_.reset();
   RawExec(path(),
-          "DROP TABLE strategy_states; UPDATE schema_version SET version = 5");
+          "DROP TABLE strategy_states; UPDATE schema_version SET version = 8");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(RawQuery(path(),
