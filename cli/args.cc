@@ -201,7 +201,7 @@ absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
           "", absl::StrCat("unknown option '", arg.substr(0, arg.find('=')),
                            "' (options before the command: --coordinator, "
                            "--token, --token-file, --tls-ca, --tls-cert, "
-                           "--tls-key, --tls-server-name, --help)"));
+                           "--tls-key, --tls-server-name, --timeout, --help)"));
     }
     if (!token.has_value) {
       if (i + 1 >= args.size()) {
@@ -459,6 +459,11 @@ std::string GeneralHelp() {
       "$SKERRY_TLS_KEY)\n"
       "  --tls-server-name NAME   name to expect in the coordinator's "
       "certificate\n"
+      "  --timeout SECONDS        how long each call, and each connection "
+      "attempt,\n"
+      "                           may take, 1-3600 (default: 30 s per call, "
+      "20 s\n"
+      "                           to connect; raise it on slow links)\n"
       "  --help                   this help; `skerry COMMAND --help` for one "
       "command\n\n"
       "Exit codes: 0 success, 1 the operation failed, 2 usage error or bad "

@@ -99,6 +99,12 @@ absl::Status Apply(absl::string_view flag, absl::string_view value,
         ParseWholeNumber(flag, value, 0, kMaxWaitMsFlag);
     if (!n.ok()) return n.status();
     out.options.wait = absl::Milliseconds(static_cast<int64_t>(*n));
+  } else if (flag == "--timeout") {
+    absl::StatusOr<uint64_t> n =
+        ParseWholeNumber(flag, value, 1, kMaxTimeoutFlag);
+    if (!n.ok()) return n.status();
+    out.options.rpc_deadline = absl::Seconds(static_cast<int64_t>(*n));
+    out.connect_timeout = out.options.rpc_deadline;
   } else if (flag == "--token") {
     if (value.empty()) return FlagError(flag, "must not be empty");
     out.token = std::string(value);
@@ -179,13 +185,15 @@ absl::StatusOr<std::shared_ptr<grpc::Channel>> ConnectFromFlags(
   ClientSecurity security = flags.security;
   security.token = token->token;
   return OpenCoordinatorChannel(flags.coordinator, security,
-                                flags.options.max_backoff);
+                                flags.options.max_backoff,
+                                flags.connect_timeout);
 }
 
 std::string WorkerUsage() {
   return absl::StrCat(
       "Usage: skerry-worker --coordinator HOST:PORT --threads N [--name NAME]\n"
-      "                     [--batch N] [--wait-ms N] [--token-file FILE]\n"
+      "                     [--batch N] [--wait-ms N] [--timeout SECONDS]\n"
+      "                     [--token-file FILE]\n"
       "                     [--tls-ca FILE [--tls-cert FILE --tls-key FILE]]\n"
       "\n"
       "A stateless evaluation worker. It joins the coordinator at HOST:PORT,\n"
@@ -217,6 +225,12 @@ std::string WorkerUsage() {
       kMaxWaitMsFlag,
       " (default: 5000);\n"
       "                           the coordinator may cap it\n"
+      "  --timeout SECONDS        how long each call beyond its wait, and "
+      "each\n"
+      "                           connection attempt, may take, 1 to ",
+      kMaxTimeoutFlag,
+      "\n"
+      "                           (default: 30 s per call, 20 s to connect)\n"
       "  --token TOKEN            bearer token of role worker (visible to "
       "other\n"
       "                           users in the process list: prefer the next)\n"

@@ -28,6 +28,7 @@ namespace skerry::worker {
 inline constexpr int kMaxThreadsFlag = 1024;
 inline constexpr uint32_t kMaxBatchFlag = 100000;
 inline constexpr uint32_t kMaxWaitMsFlag = 600000;  // ten minutes
+inline constexpr uint32_t kMaxTimeoutFlag = 3600;   // seconds
 
 struct WorkerFlags {
   bool help = false;
@@ -38,6 +39,8 @@ struct WorkerFlags {
   ClientSecurity security;
   std::string token;       // --token
   std::string token_file;  // --token-file
+  // --timeout: one connection attempt's bound (options.rpc_deadline too).
+  absl::Duration connect_timeout = kDefaultConnectTimeout;
 };
 
 // args excludes the program name. Accepts "--flag value" and "--flag=value".
