@@ -24,4 +24,38 @@ Clock* Clock::Real() {
   return clock;
 }
 
+bool FakeClock::AwaitWithTimeout(absl::Mutex* mu, const absl::Condition& cond,
+                                 absl::Duration timeout) {
+  const absl::Time deadline = Now() + timeout;
+  {
+    absl::MutexLock l(&waiters_mu_);
+    waiters_.insert(mu);
+  }
+  struct Wake {
+    const absl::Condition* cond;
+    FakeClock* clock;
+    absl::Time deadline;
+    bool operator()() const { return cond->Eval() || clock->Now() >= deadline; }
+  } wake{&cond, this, deadline};
+  while (!mu->AwaitWithTimeout(absl::Condition(&wake), kRecheck)) {
+  }
+  {
+    absl::MutexLock l(&waiters_mu_);
+    waiters_.erase(waiters_.find(mu));
+  }
+  return cond.Eval();
+}
+
+void FakeClock::WakeWaiters() {
+  // absl::Mutex evaluates its waiters' conditions when it is released: lock
+  // and release each waiter's mutex. A busy one needs nothing: its holder's
+  // release does the same. TryLock never blocks, so waiters_mu_ (which a
+  // waiter takes while holding its mutex) cannot deadlock with it, and
+  // holding waiters_mu_ keeps every listed mutex alive.
+  absl::MutexLock l(&waiters_mu_);
+  for (absl::Mutex* m : waiters_) {
+    if (m->TryLock()) m->Unlock();
+  }
+}
+
 }  // namespace skerry
