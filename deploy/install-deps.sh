@@ -25,6 +25,7 @@ PACKAGES=(
   python3
   openssl
   clang-format
+  clang
 )
 
 installed() {
