@@ -193,6 +193,10 @@ absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
       parsed->command = "help";
       return args.size();
     }
+    if (arg == "--version") {
+      parsed->command = "version";
+      return args.size();
+    }
     if (!absl::StartsWith(arg, "-")) break;
     FlagToken token = SplitFlag(arg);
     if (!absl::StartsWith(arg, "--") || !IsGlobal(token.name)) {
@@ -201,7 +205,8 @@ absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
           "", absl::StrCat("unknown option '", arg.substr(0, arg.find('=')),
                            "' (options before the command: --coordinator, "
                            "--token, --token-file, --tls-ca, --tls-cert, "
-                           "--tls-key, --tls-server-name, --timeout, --help)"));
+                           "--tls-key, --tls-server-name, --timeout, --help, "
+                           "--version)"));
     }
     if (!token.has_value) {
       if (i + 1 >= args.size()) {
@@ -465,7 +470,8 @@ std::string GeneralHelp() {
       "20 s\n"
       "                           to connect; raise it on slow links)\n"
       "  --help                   this help; `skerry COMMAND --help` for one "
-      "command\n\n"
+      "command\n"
+      "  --version                print the version and exit\n\n"
       "Exit codes: 0 success, 1 the operation failed, 2 usage error or bad "
       "input,\n3 cannot reach the coordinator.\n");
   return help;

@@ -19,6 +19,7 @@
 #include "cli/local.h"
 #include "cli/validate.h"
 #include "common/spec.h"
+#include "common/version.h"
 #include "google/protobuf/util/json_util.h"
 
 namespace skerry::cli {
@@ -420,6 +421,10 @@ int RunCli(const std::vector<std::string>& args,
     return UsageFailure(parsed.status(), command, io);
   }
   if (parsed->help || parsed->command == "help") return Help(*parsed, io);
+  if (parsed->command == "version") {
+    *io.out << VersionLine("skerry");
+    return 0;
+  }
   SetCallTimeout(absl::ZeroDuration());
   if (!parsed->Global("timeout").empty()) {
     absl::StatusOr<uint32_t> seconds =

@@ -40,6 +40,7 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
                         print a report and exit: 0 ok, 1 problems found,
                         2 cannot read it. Safe while a coordinator runs.
   --help                this text
+  --version             print the version and the worker protocols spoken
 )";
 }
 
@@ -69,6 +70,8 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
     };
     if (arg == "--help" || arg == "-h") {
       f.help = true;
+    } else if (arg == "--version") {
+      f.version = true;
     } else if (arg == "--check") {
       absl::StatusOr<std::string> v = value("--check");
       if (!v.ok()) return v.status();
@@ -120,7 +123,8 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
           absl::StrCat("unknown argument \"", arg, "\""));
     }
   }
-  if (!f.help && f.check_db.empty() && f.options.db_path.empty()) {
+  if (!f.help && !f.version && f.check_db.empty() &&
+      f.options.db_path.empty()) {
     return absl::InvalidArgumentError("--db: a database file is required");
   }
   return f;

@@ -6,6 +6,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "common/version.h"
 #include "server/api/grpc_status.h"
 
 namespace skerry::api {
@@ -22,6 +23,22 @@ FleetServiceImpl::FleetServiceImpl(store::Store* store, engine::Engine* engine,
 grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
                                     const skerry::v1::JoinRequest* req,
                                     skerry::v1::JoinResponse* resp) {
+  // 0: a worker from before the field, which spoke protocol 1.
+  const uint32_t protocol = std::max<uint32_t>(req->protocol_version(), 1);
+  if (protocol < kMinProtocolVersion || protocol > kProtocolVersion) {
+    // UNIMPLEMENTED: retrying cannot help; one side must be upgraded.
+    return grpc::Status(
+        grpc::StatusCode::UNIMPLEMENTED,
+        absl::StrCat(
+            "worker protocol ", protocol, " (release \"",
+            req->version().substr(0, 64), "\") is not spoken by this ",
+            "coordinator (release ", kVersion, ", worker protocol ",
+            kMinProtocolVersion == kProtocolVersion
+                ? absl::StrCat(kProtocolVersion)
+                : absl::StrCat(kMinProtocolVersion, " to ", kProtocolVersion),
+            "): install matching versions of skerry-worker and "
+            "skerry-coordinator"));
+  }
   if (req->threads() < 1 || req->threads() > 4096) {
     return grpc::Status(
         grpc::StatusCode::INVALID_ARGUMENT,
