@@ -38,7 +38,7 @@ void GroupCommit::Loop() {
       auto ready = [this]() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
         return stopping_ || !waiting_.empty();
       };
-      mu_.AwaitWithTimeout(absl::Condition(&ready), tick_);
+      clock_->AwaitWithTimeout(&mu_, absl::Condition(&ready), tick_);
       batch.swap(waiting_);
       stopping = stopping_;
     }

@@ -29,6 +29,7 @@
 #include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "absl/types/span.h"
+#include "common/clock.h"
 #include "skerry/v1/fleet.pb.h"
 
 namespace skerry::engine {
@@ -57,8 +58,9 @@ class GroupCommit {
         apply;
     std::function<void()> idle;
   };
-  GroupCommit(Callbacks callbacks, absl::Duration tick)
-      : callbacks_(std::move(callbacks)), tick_(tick) {}
+  // The tick runs on `clock`, so a test's FakeClock drives it.
+  GroupCommit(Callbacks callbacks, Clock* clock, absl::Duration tick)
+      : callbacks_(std::move(callbacks)), clock_(clock), tick_(tick) {}
   ~GroupCommit() { Shutdown(); }
 
   // Starts the committer thread.
@@ -87,6 +89,7 @@ class GroupCommit {
   void Loop();
 
   const Callbacks callbacks_;
+  Clock* const clock_;
   const absl::Duration tick_;
 
   absl::Mutex mu_;

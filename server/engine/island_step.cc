@@ -26,6 +26,9 @@ IslandDecision DecideIslandStep(const IslandFacts& f) {
   } else if (f.max_evaluations > 0 && f.evaluations >= f.evaluation_share) {
     d.reason =
         absl::StrCat("evaluation budget (", f.max_evaluations, ") reached");
+  } else if (f.wall_time_up) {
+    d.reason =
+        absl::StrCat("wall-time limit (", f.max_wall_seconds, " s) reached");
   }
   if (!d.reason.empty()) {
     d.action = IslandAction::kFinish;

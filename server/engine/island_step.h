@@ -12,7 +12,8 @@
 //             generation the migrants come from (reproducible mode)
 //   kBreed    complete: tell the strategy the scores and ask for the next
 // Stop rules in order: the run's stop generation, the target score, the
-// generation limit, the island's share of the evaluation budget.
+// generation limit, the island's share of the evaluation budget, the run's
+// wall time (not reproducible).
 //
 // Thread safety: a pure function; call from any thread.
 #ifndef SKERRY_SERVER_ENGINE_ISLAND_STEP_H_
@@ -38,6 +39,9 @@ struct IslandFacts {
   uint64_t max_evaluations = 0;  // the run's budget; 0: no limit
   uint64_t evaluations = 0;  // the island's, including the current generation
   uint64_t evaluation_share = 0;  // the island's share of the budget
+  // The run's wall-time limit (max_wall_seconds, not 0) has passed.
+  bool wall_time_up = false;
+  double max_wall_seconds = 0;
   // A migration source has not completed the generation migrants come from.
   bool migrants_missing = false;
 };

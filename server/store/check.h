@@ -14,7 +14,8 @@
 //   - each completed generation has its statistics row;
 //   - the run's evaluation counter equals the evaluations stored;
 //   - every island has a strategy state that parses, of the island's current
-//     generation while the island still searches.
+//     generation while the island still searches;
+//   - every island of a finished, stopped or failed run is marked done.
 //
 // Thread safety: a function; opens its own connection.
 #ifndef SKERRY_SERVER_STORE_CHECK_H_

@@ -27,7 +27,7 @@ TEST(GroupCommitTest, CallersGetTheOutcomeApplySet) {
     answer();
   };
   cb.idle = [] {};
-  GroupCommit gc(std::move(cb), absl::Milliseconds(10));
+  GroupCommit gc(std::move(cb), Clock::Real(), absl::Milliseconds(10));
   gc.Start();
   const auto results = Results(3);
   absl::StatusOr<ReportOutcome> out = gc.Submit(7, results);
@@ -43,7 +43,7 @@ TEST(GroupCommitTest, AFailedApplyIsUnavailableToTheCaller) {
     answer();
   };
   cb.idle = [] {};
-  GroupCommit gc(std::move(cb), absl::Milliseconds(10));
+  GroupCommit gc(std::move(cb), Clock::Real(), absl::Milliseconds(10));
   gc.Start();
   const auto results = Results(1);
   absl::StatusOr<ReportOutcome> out = gc.Submit(1, results);
@@ -67,7 +67,7 @@ TEST(GroupCommitTest, CallsArrivingDuringACommitAreAppliedTogether) {
     answer();
   };
   cb.idle = [] {};
-  GroupCommit gc(std::move(cb), absl::Milliseconds(10));
+  GroupCommit gc(std::move(cb), Clock::Real(), absl::Milliseconds(10));
   gc.Start();
   const auto results = Results(1);
   std::thread first([&] { EXPECT_TRUE(gc.Submit(1, results).ok()); });
@@ -95,7 +95,7 @@ TEST(GroupCommitTest, AnApplyThatForgetsToAnswerStillReleasesCallers) {
   GroupCommit::Callbacks cb;
   cb.apply = [](absl::Span<ReportJob* const>, const std::function<void()>&) {};
   cb.idle = [] {};
-  GroupCommit gc(std::move(cb), absl::Milliseconds(10));
+  GroupCommit gc(std::move(cb), Clock::Real(), absl::Milliseconds(10));
   gc.Start();
   const auto results = Results(1);
   EXPECT_TRUE(gc.Submit(1, results).ok());
@@ -110,7 +110,7 @@ TEST(GroupCommitTest, IdleRunsWithoutReportsAndSubmitAfterShutdownFails) {
   cb.idle = [&] {
     if (!notified.exchange(true)) idled.Notify();
   };
-  GroupCommit gc(std::move(cb), absl::Milliseconds(1));
+  GroupCommit gc(std::move(cb), Clock::Real(), absl::Milliseconds(1));
   gc.Start();
   EXPECT_TRUE(idled.WaitForNotificationWithTimeout(absl::Seconds(30)));
   gc.Shutdown();

@@ -132,6 +132,28 @@ TEST(IslandStepTest, EveryRuleInItsOrder) {
       },
       IslandAction::kFinish, "generation limit (5) reached");
   add(
+      "wall time up: finishes at the generation boundary",
+      [](IslandFacts& f) {
+        f.wall_time_up = true;
+        f.max_wall_seconds = 2.5;
+      },
+      IslandAction::kFinish, "wall-time limit (2.5 s) reached");
+  add(
+      "the budget wins over the wall time",
+      [](IslandFacts& f) {
+        f.wall_time_up = true;
+        f.max_evaluations = 200;
+        f.evaluation_share = 50;
+      },
+      IslandAction::kFinish, "evaluation budget (200) reached");
+  add(
+      "wall time waits for the generation to complete",
+      [](IslandFacts& f) {
+        f.wall_time_up = true;
+        f.evaluating = true;
+      },
+      IslandAction::kNone);
+  add(
       "waits for a migration source",
       [](IslandFacts& f) { f.migrants_missing = true; }, IslandAction::kWait);
   add(
