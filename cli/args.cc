@@ -11,6 +11,7 @@
 #include "absl/strings/str_split.h"
 #include "cli/access.h"
 #include "cli/lineage.h"
+#include "cli/report.h"
 #include "cli/validate.h"
 #include "worker/channel.h"
 
@@ -222,7 +223,10 @@ absl::Status ParseCommandArgs(const CommandSpec& command,
                               ParsedArgs* parsed) {
   bool only_positionals = false;
   for (; i < args.size(); ++i) {
-    const std::string& arg = args[i];
+    // "-o FILE" is short for "--out FILE", for the commands that write files.
+    const std::string arg =
+        args[i] == "-o" && FindFlag(command, "out") != nullptr ? "--out"
+                                                               : args[i];
     if (only_positionals || !absl::StartsWith(arg, "-") || arg == "-") {
       parsed->positionals.push_back(arg);
       continue;
@@ -282,7 +286,10 @@ absl::Status CheckComplete(const CommandSpec& command,
                      command.positionals[parsed.positionals.size()],
                      " (usage: skerry ", command.name, " ", expected, ")"));
   }
-  if (parsed.positionals.size() > command.positionals.size()) {
+  // A last positional written "[NAME...]" takes any number of values.
+  const bool variadic = !command.positionals.empty() &&
+                        absl::EndsWith(command.positionals.back(), "...]");
+  if (!variadic && parsed.positionals.size() > command.positionals.size()) {
     return UsageError(
         command.name,
         absl::StrCat("unexpected argument '",
@@ -314,6 +321,8 @@ const std::vector<CommandSpec>& Commands() {
     more.insert(more.end(), access.begin(), access.end());
     std::vector<CommandSpec> validation = ValidationCommandSpecs();
     more.insert(more.end(), validation.begin(), validation.end());
+    std::vector<CommandSpec> report = ReportCommandSpecs();
+    more.insert(more.end(), report.begin(), report.end());
     auto local = std::find_if(all->begin(), all->end(), [](const auto& c) {
       return absl::string_view(c.name) == "local";
     });

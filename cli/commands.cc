@@ -15,6 +15,7 @@
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
+#include "cli/report.h"
 #include "cli/validate.h"
 #include "common/spec.h"
 #include "google/protobuf/util/json_util.h"
@@ -419,7 +420,7 @@ int RunCli(const std::vector<std::string>& args,
   auto channel = [&]() { return CoordinatorChannel(target, *security); };
   if (IsLineageCommand(parsed->command) || parsed->command == "backup" ||
       IsAccessCommand(parsed->command) ||
-      IsValidationCommand(parsed->command)) {
+      IsValidationCommand(parsed->command) || parsed->command == "report") {
     absl::StatusOr<std::shared_ptr<grpc::Channel>> ch = channel();
     if (!ch.ok()) return UsageFailure(ch.status(), "", io);
     if (IsLineageCommand(parsed->command)) {
@@ -431,6 +432,11 @@ int RunCli(const std::vector<std::string>& args,
     if (parsed->command == "backup") {
       auto admin = skerry::v1::AdminService::NewStub(*ch);
       return BackupCommand(*parsed, *admin, io);
+    }
+    if (parsed->command == "report") {
+      auto runs = skerry::v1::RunService::NewStub(*ch);
+      auto lineage = skerry::v1::LineageService::NewStub(*ch);
+      return ReportCommand(*parsed, *runs, *lineage, io);
     }
     if (IsValidationCommand(parsed->command)) {
       auto validation = skerry::v1::ValidationService::NewStub(*ch);

@@ -25,6 +25,13 @@ PACKAGES=(
   python3
   openssl
   clang-format
+  # The report page and the coordinator's web port (docs/report.md).
+  libcpp-httplib-dev
+  libjs-chart.js
+  # Tests: a headless browser loads the report and the live page; promtool
+  # checks /metrics (the prometheus package, which brings its web assets).
+  chromium
+  prometheus
 )
 
 installed() {

@@ -18,6 +18,9 @@
 #include "server/auth/interceptor.h"
 #include "server/auth/tls.h"
 #include "server/engine/engine.h"
+#include "server/http/fleet_metrics.h"
+#include "server/http/fleet_status.h"
+#include "server/http/http_server.h"
 #include "server/lineage/lineage_service.h"
 #include "server/scheduler/task_queue.h"
 #include "server/store/owner_lock.h"
@@ -60,6 +63,14 @@ class CoordinatorImpl final : public Coordinator {
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
                             lineage::LineageServiceImpl::Open(options.db_path));
     c->admin_ = std::make_unique<api::AdminServiceImpl>(options.db_path);
+    c->metrics_ = std::make_unique<http::FleetMetrics>();
+    c->fleet_->set_metrics(c->metrics_.get());
+    c->parts_ = http::CoordinatorParts{
+        c->store_.get(),   c->queue_.get(), c->fleet_.get(), c->engine_.get(),
+        c->metrics_.get(), c->clock_,       options.db_path};
+    c->admin_->SetWorkerSource([parts = c->parts_](uint32_t limit) {
+      return http::ListWorkers(parts, limit);
+    });
     c->access_service_ = std::make_unique<api::AccessServiceImpl>(
         c->store_.get(), c->access_.get());
 
@@ -115,12 +126,30 @@ class CoordinatorImpl final : public Coordinator {
           "cannot listen on ", options.listen_address,
           " (address in use, or not an address of this machine?)"));
     }
+    if (!options.http_address.empty()) {
+      http::HttpOptions web{options.http_address, options.chart_library,
+                            options.tls_cert_file, options.tls_key_file,
+                            options.tls_client_ca_file};
+      http::HttpSources sources;
+      sources.channel = c->InProcessChannel();
+      sources.access = c->access_.get();
+      sources.gauges = [parts = c->parts_] {
+        return http::GatherGauges(parts);
+      };
+      sources.counts = [metrics = c->metrics_.get()] { return metrics->Get(); };
+      SKERRY_ASSIGN_OR_RETURN(c->http_,
+                              http::HttpServer::Start(web, std::move(sources)));
+    }
     return c;
   }
 
   ~CoordinatorImpl() override { Shutdown(); }
 
   int port() const override { return port_; }
+  int http_port() const override {
+    return http_ != nullptr ? http_->port() : 0;
+  }
+  bool http_tls() const override { return http_ != nullptr && http_->tls(); }
   std::string AccessSummary() const override { return access_->Describe(); }
   std::string TransportSummary() const override { return transport_; }
 
@@ -138,6 +167,7 @@ class CoordinatorImpl final : public Coordinator {
       shut_down_ = true;
     }
     // Any part may be missing when Make() failed half-way.
+    if (http_ != nullptr) http_->Shutdown();         // it calls the services
     if (queue_ != nullptr) queue_->Shutdown();       // wakes long polls
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
     if (server_ != nullptr) {
@@ -168,8 +198,11 @@ class CoordinatorImpl final : public Coordinator {
   std::unique_ptr<api::ValidationServiceImpl> validations_;
   std::unique_ptr<auth::AccessControl> access_;
   std::unique_ptr<api::AccessServiceImpl> access_service_;
+  std::unique_ptr<http::FleetMetrics> metrics_;
+  http::CoordinatorParts parts_;
   std::vector<std::unique_ptr<auth::GatedService>> gates_;
-  std::unique_ptr<grpc::Server> server_;  // destroyed before what it serves
+  std::unique_ptr<grpc::Server> server_;    // destroyed before what it serves
+  std::unique_ptr<http::HttpServer> http_;  // destroyed before server_
   int port_ = 0;
   std::string transport_;
 

@@ -37,6 +37,10 @@ struct CoordinatorOptions {
   std::string tls_cert_file;
   std::string tls_key_file;
   std::string tls_client_ca_file;
+  // The read-only web port (server/http/http_server.h): HOST:PORT, port 0
+  // picks a free one; empty (the default): none. It uses the TLS files above.
+  std::string http_address;
+  std::string chart_library = "/usr/share/javascript/chart.js/chart.min.js";
 };
 
 class Coordinator {
@@ -47,6 +51,9 @@ class Coordinator {
 
   // The bound TCP port (0 without a listener).
   virtual int port() const = 0;
+  // The web port (0 without --http), and whether it serves HTTPS.
+  virtual int http_port() const = 0;
+  virtual bool http_tls() const = 0;
   // One line each for the start log: access control, transport security.
   virtual std::string AccessSummary() const = 0;
   virtual std::string TransportSummary() const = 0;

@@ -67,6 +67,10 @@ int main(int argc, char** argv) {
   }
   std::printf("skerry-coordinator: listening on port %d (database %s)\n",
               (*c)->port(), flags->options.db_path.c_str());
+  if ((*c)->http_port() != 0) {
+    std::printf("skerry-coordinator: web page on %s port %d\n",
+                (*c)->http_tls() ? "https" : "http", (*c)->http_port());
+  }
   std::printf("skerry-coordinator: %s\nskerry-coordinator: transport: %s\n",
               (*c)->AccessSummary().c_str(), (*c)->TransportSummary().c_str());
   std::fflush(stdout);

@@ -118,9 +118,16 @@ grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
   if (req->results_size() == 0) return grpc::Status::OK;
   std::vector<skerry::v1::TaskResult> results(req->results().begin(),
                                               req->results().end());
+  const absl::Time arrived = clock_->Now();
   absl::StatusOr<engine::ReportOutcome> outcome =
       engine_->Report(static_cast<int64_t>(req->worker_id()), results);
   if (!outcome.ok()) return ToGrpc(outcome.status());
+  if (metrics_ != nullptr) {
+    const absl::Time now = clock_->Now();
+    metrics_->NoteReport(static_cast<int64_t>(req->worker_id()), results,
+                         outcome->accepted, outcome->rejected, now - arrived,
+                         now);
+  }
   resp->set_accepted(outcome->accepted);
   resp->set_ignored(outcome->ignored);
   for (skerry::v1::RejectedResult& r : outcome->rejected) {

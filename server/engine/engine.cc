@@ -751,6 +751,11 @@ uint64_t Engine::WaitForChange(uint64_t seen, absl::Time deadline) {
   return changes_;
 }
 
+std::string Engine::StorageProblem() {
+  absl::MutexLock l(&mu_);
+  return std::string(write_problem_.message());
+}
+
 absl::StatusOr<skerry::v1::RunSummary> Engine::Summary(int64_t run_id) {
   absl::MutexLock l(&mu_);
   return SummaryLocked(run_id);

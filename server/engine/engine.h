@@ -112,6 +112,9 @@ class Engine {
 
   // The run as the user API shows it.
   absl::StatusOr<skerry::v1::RunSummary> Summary(int64_t run_id);
+  // Why work is held because the database cannot be written; "" when writes
+  // succeed.
+  std::string StorageProblem();
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> ListSummaries();
 
   // A counter that grows whenever any run changes; waits until it exceeds

@@ -306,6 +306,13 @@ class Store {
   // then the lowest island, then the lowest slot.
   absl::StatusOr<std::optional<GenomeRecord>> BestGenome(int64_t run_id);
   absl::StatusOr<int> CountWorkersSeenSince(int64_t since_ms);
+  // The `limit` workers seen last, newest first, with the sandbox column
+  // when the schema has one (worker_list.cc).
+  struct WorkerRow {
+    WorkerRecord worker;
+    std::optional<std::string> sandbox;
+  };
+  absl::StatusOr<std::vector<WorkerRow>> ListWorkers(int limit);
   // FAILED genomes of a run, newest first, at most `limit`; and how many.
   absl::StatusOr<std::vector<GenomeRecord>> FailedGenomes(int64_t run_id,
                                                           int limit);
