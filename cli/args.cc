@@ -13,6 +13,7 @@
 #include "cli/lineage.h"
 #include "cli/report.h"
 #include "cli/validate.h"
+#include "cli/workers.h"
 #include "worker/channel.h"
 
 namespace skerry::cli {
@@ -323,6 +324,8 @@ const std::vector<CommandSpec>& Commands() {
     more.insert(more.end(), validation.begin(), validation.end());
     std::vector<CommandSpec> report = ReportCommandSpecs();
     more.insert(more.end(), report.begin(), report.end());
+    std::vector<CommandSpec> workers = WorkersCommandSpecs();
+    more.insert(more.end(), workers.begin(), workers.end());
     auto local = std::find_if(all->begin(), all->end(), [](const auto& c) {
       return absl::string_view(c.name) == "local";
     });

@@ -17,6 +17,7 @@
 #include "cli/local.h"
 #include "cli/report.h"
 #include "cli/validate.h"
+#include "cli/workers.h"
 #include "common/spec.h"
 #include "google/protobuf/util/json_util.h"
 
@@ -420,7 +421,8 @@ int RunCli(const std::vector<std::string>& args,
   auto channel = [&]() { return CoordinatorChannel(target, *security); };
   if (IsLineageCommand(parsed->command) || parsed->command == "backup" ||
       IsAccessCommand(parsed->command) ||
-      IsValidationCommand(parsed->command) || parsed->command == "report") {
+      IsValidationCommand(parsed->command) || parsed->command == "report" ||
+      parsed->command == "workers") {
     absl::StatusOr<std::shared_ptr<grpc::Channel>> ch = channel();
     if (!ch.ok()) return UsageFailure(ch.status(), "", io);
     if (IsLineageCommand(parsed->command)) {
@@ -432,6 +434,10 @@ int RunCli(const std::vector<std::string>& args,
     if (parsed->command == "backup") {
       auto admin = skerry::v1::AdminService::NewStub(*ch);
       return BackupCommand(*parsed, *admin, io);
+    }
+    if (parsed->command == "workers") {
+      auto admin = skerry::v1::AdminService::NewStub(*ch);
+      return WorkersCommand(*parsed, *admin, io);
     }
     if (parsed->command == "report") {
       auto runs = skerry::v1::RunService::NewStub(*ch);

@@ -413,6 +413,21 @@ TEST_F(ReportPageTest, LivePageFollowsARunningRunAndRefusesWithoutAToken) {
        absl::StrCat(SKERRY_PROMTOOL_BIN, " check metrics < ", file)});
   EXPECT_EQ(check.exit_code, 0) << check.output;
 
+  // `skerry workers` with a viewer's token: the worker, busy.
+  testing::CommandResult workers =
+      RunCommand({SKERRY_CLI_BIN, "--coordinator", coordinator_->address(),
+                  "--token", viewer->secret(), "workers"});
+  ASSERT_EQ(workers.exit_code, 0) << workers.output;
+  EXPECT_THAT(workers.output, HasSubstr("IN FLIGHT"));
+  EXPECT_THAT(workers.output, HasSubstr("rastrigin"));
+  std::vector<std::string> lines =
+      absl::StrSplit(workers.output, '\n', absl::SkipEmpty());
+  EXPECT_EQ(lines.size(), 2u) << workers.output;  // header and one worker
+  EXPECT_EQ(RunCommand({SKERRY_CLI_BIN, "--coordinator",
+                        coordinator_->address(), "workers"})
+                .exit_code,
+            1);  // no token
+
   // Stopped, the page shows what the database holds.
   ASSERT_EQ(RunCommand(Cli({"stop", "1"})).exit_code, 0);
   ASSERT_TRUE(testing::WaitFor(
