@@ -19,8 +19,7 @@ std::vector<CommandSpec> ReportCommandSpecs() {
        {"RUN", "[RUN...]"},
        {{"out", "FILE", "write the page to FILE (-o FILE)", true},
         {"chart-library", "FILE",
-         "Chart.js to inline (default: Debian's libjs-chart.js, "
-         "/usr/share/javascript/chart.js/chart.min.js)"}},
+         "Chart.js to inline (default: Debian's libjs-chart.js)"}},
        "write an HTML report of one or more runs",
        "Writes one self-contained HTML file that opens offline: best, mean "
        "and worst score per generation of every island, diversity, "
