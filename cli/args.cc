@@ -77,6 +77,13 @@ std::vector<CommandSpec> MakeCommands() {
        "print a run's best genome",
        "Prints the run's best genome: id, natural key (run/island/generation/"
        "slot), score and genes."},
+      {"network",
+       {"RUN"},
+       {{"out", "FILE", "write the network to FILE (-o FILE)", true}},
+       "export the champion's network as JSON",
+       "Writes the run's champion as a network in the format of "
+       "docs/network-format.md (pole evaluators), with the run, genome, score "
+       "and evaluation seed as notes, to run it without Skerry."},
       {"history",
        {"RUN"},
        {{"island", "N", "only island N (default: every island)"}},

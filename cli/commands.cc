@@ -15,6 +15,7 @@
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
+#include "cli/network_command.h"
 #include "cli/report.h"
 #include "cli/validate.h"
 #include "cli/workers.h"
@@ -133,6 +134,9 @@ int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
     if (!run.ok()) return ReportError(run.status(), io);
     *io.out << "run " << run->id() << " priority " << run->priority() << "\n";
     return kExitOk;
+  }
+  if (command == "network") {
+    return NetworkCommand(client, run_id, args.Get("out"), io);
   }
   if (command == "champion") {
     return ChampionCommand(client, run_id, args.Has("json"), args.Get("out"),
@@ -299,6 +303,9 @@ int ChampionCommand(RunClient& client, uint64_t run_id, bool json,
     text = *std::move(encoded);
   } else {
     text = FormatChampion(*genome, name);
+    // The seed its evaluator was given: re-score it outside Skerry with it.
+    absl::StrAppend(&text, "eval seed   ", GenomeEvalSeed(run->spec(), *genome),
+                    "\n");
   }
   if (out_path.empty()) {
     *io.out << text << std::flush;

@@ -14,6 +14,7 @@
 #include "gmock/gmock.h"
 #include "google/protobuf/text_format.h"
 #include "gtest/gtest.h"
+#include "server/engine/breeder.h"
 #include "tests/unit/cli/mock_run_service.h"
 
 namespace skerry::cli {
@@ -441,6 +442,55 @@ TEST_F(CommandsTest, ChampionPrintsTheGenomeWithTheSpecName) {
   EXPECT_THAT(
       out_.str(),
       HasSubstr("key         run 3 / island 1 / generation 9 / slot 4\n"));
+}
+
+TEST_F(CommandsTest, ChampionShowsTheSeedItsEvaluatorWasGiven) {
+  EXPECT_CALL(*mock_, GetRun(_, _, _))
+      .WillOnce(
+          DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
+  EXPECT_CALL(*mock_, GetChampion(_, _, _))
+      .WillOnce(DoAll(SetArgPointee<2>(Champion()), Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"champion", "3"}), kExitOk);
+  // The seed the coordinator puts in the genome's task (engine.cc).
+  const v1::GenomeKey k = Champion().genome().key();
+  EXPECT_THAT(out_.str(), HasSubstr(absl::StrCat(
+                              "eval seed   ",
+                              engine::EvalSeed(RunningRun().spec(), k.island(),
+                                               k.generation(), k.slot()),
+                              "\n")));
+}
+
+TEST_F(CommandsTest, NetworkWritesTheChampionsNetworkWithItsSeed) {
+  v1::GetRunResponse run = RunningRun();
+  v1::NetworkSpec* net =
+      run.mutable_spec()->mutable_evaluator()->mutable_network();
+  net->set_inputs(2);
+  v1::LayerSpec* out = net->add_layers();  // one neuron: 2 weights, a bias
+  out->set_size(1);
+  out->set_activation(v1::ACTIVATION_TANH);
+  v1::GetChampionResponse champion = Champion();
+  champion.mutable_genome()->clear_genes();
+  for (double g : {0.5, -1.0, 0.25}) champion.mutable_genome()->add_genes(g);
+  EXPECT_CALL(*mock_, GetRun(_, _, _))
+      .WillOnce(DoAll(SetArgPointee<2>(run), Return(grpc::Status::OK)));
+  EXPECT_CALL(*mock_, GetChampion(_, _, _))
+      .WillOnce(DoAll(SetArgPointee<2>(champion), Return(grpc::Status::OK)));
+  const std::string path = ::testing::TempDir() + "/network.json";
+  EXPECT_EQ(Cli({"network", "3", "-o", path}), kExitOk) << err_.str();
+  std::stringstream written;
+  written << std::ifstream(path).rdbuf();
+  EXPECT_THAT(written.str(), HasSubstr("skerry-network"));
+  EXPECT_THAT(written.str(), HasSubstr("evaluation_seed"));
+  EXPECT_THAT(written.str(), HasSubstr("-1"));
+}
+
+TEST_F(CommandsTest, NetworkOfARunWithoutNetworksSaysWhy) {
+  EXPECT_CALL(*mock_, GetRun(_, _, _))
+      .WillOnce(
+          DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"network", "3", "-o", ::testing::TempDir() + "/n.json"}),
+            kExitFailure);
+  EXPECT_THAT(err_.str(), HasSubstr("not networks"));
 }
 
 TEST_F(CommandsTest, ChampionJsonGoesToTheOutFile) {
