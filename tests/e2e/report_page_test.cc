@@ -454,5 +454,43 @@ TEST_F(ReportPageTest, LivePageFollowsARunningRunAndRefusesWithoutAToken) {
                                  "runs WHERE id = 1"));
 }
 
+TEST_F(ReportPageTest, WebPortServesHttpsWithTheGrpcCertificate) {
+  // A throwaway self-signed certificate for 127.0.0.1 (P-256: quick to make,
+  // common practice for test PKI).
+  testing::CommandResult made = RunCommand(
+      {SKERRY_OPENSSL_BIN, "req", "-x509", "-newkey", "ec", "-pkeyopt",
+       "ec_paramgen_curve:prime256v1", "-nodes", "-days", "2", "-subj",
+       "/CN=skerry web test", "-addext", "subjectAltName=IP:127.0.0.1",
+       "-keyout", dir_.File("server.key"), "-out", dir_.File("server.pem")});
+  ASSERT_EQ(made.exit_code, 0) << made.output;
+  Start({"--tls-cert", dir_.File("server.pem"), "--tls-key",
+         dir_.File("server.key"), "--http", "127.0.0.1:0"});
+  int port = 0;
+  ASSERT_TRUE(testing::WaitFor(
+      [&] {
+        const std::string log = coordinator_->process.Log();
+        const size_t at = log.find("web page on https port ");
+        return at != std::string::npos &&
+               absl::SimpleAtoi(
+                   log.substr(at + 23, log.find('\n', at) - at - 23), &port);
+      },
+      absl::Seconds(10)))
+      << coordinator_->process.Log();
+  // Trusting only the gRPC port's certificate, the web port verifies.
+  constexpr char kFetch[] = R"PY(import ssl, sys, urllib.request
+ctx = ssl.create_default_context(cafile=sys.argv[1])
+with urllib.request.urlopen(sys.argv[2], context=ctx, timeout=30) as r:
+    print(r.status)
+    print(r.read().decode())
+)PY";
+  testing::CommandResult fetched =
+      RunCommand({"/usr/bin/python3", "-c", kFetch, dir_.File("server.pem"),
+                  absl::StrCat("https://127.0.0.1:", port, "/metrics")});
+  ASSERT_EQ(fetched.exit_code, 0) << fetched.output;
+  EXPECT_THAT(fetched.output, HasSubstr("200\n# HELP skerry_results_total"));
+  // Plain HTTP gets no page from it.
+  EXPECT_NE(HttpGet(port, "/metrics", "").first, 200);
+}
+
 }  // namespace
 }  // namespace skerry
