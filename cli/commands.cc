@@ -15,6 +15,7 @@
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
+#include "cli/metrics_text.h"
 #include "cli/network_command.h"
 #include "cli/report.h"
 #include "cli/validate.h"
@@ -306,6 +307,7 @@ int ChampionCommand(RunClient& client, uint64_t run_id, bool json,
     // The seed its evaluator was given: re-score it outside Skerry with it.
     absl::StrAppend(&text, "eval seed   ", GenomeEvalSeed(run->spec(), *genome),
                     "\n");
+    text += FormatGenomeMetrics(genome->metrics());
   }
   if (out_path.empty()) {
     *io.out << text << std::flush;
@@ -331,7 +333,8 @@ int ShowCommand(RunClient& client, uint64_t run_id, bool all_rows, Io& io) {
   if (!history.ok()) return ReportError(history.status(), io);
   *io.out << FormatRunDetails(*run) << "\n"
           << FormatGenerationTable(*history, run->run().objective(),
-                                   all_rows ? 0 : kDefaultHistoryRows);
+                                   all_rows ? 0 : kDefaultHistoryRows)
+          << FormatMetricMeans(*history, all_rows ? 0 : kDefaultHistoryRows);
   return kExitOk;
 }
 
@@ -339,7 +342,7 @@ int HistoryCommand(RunClient& client, uint64_t run_id,
                    std::optional<uint32_t> island, Io& io) {
   auto history = client.History(run_id, island);
   if (!history.ok()) return ReportError(history.status(), io);
-  *io.out << FormatHistory(*history);
+  *io.out << FormatHistory(*history) << FormatMetricMeans(*history);
   return kExitOk;
 }
 

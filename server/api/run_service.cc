@@ -148,6 +148,11 @@ grpc::Status RunServiceImpl::GetChampion(
         absl::StrCat("run ", req->run_id(), " has no evaluated genome yet"));
   }
   *resp->mutable_genome() = ToGenomeProto(**best);
+  absl::StatusOr<std::map<std::string, double>> metrics =
+      store_->GetGenomeMetrics((*best)->id);
+  if (!metrics.ok()) return ToGrpc(metrics.status());
+  resp->mutable_genome()->mutable_metrics()->insert(metrics->begin(),
+                                                    metrics->end());
   return grpc::Status::OK;
 }
 
@@ -164,6 +169,8 @@ grpc::Status RunServiceImpl::GetHistory(
   absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>> validated =
       store_->ChampionValidationScores(rec->id);
   if (!validated.ok()) return ToGrpc(validated.status());
+  auto metric_means = store_->MetricMeans(rec->id);
+  if (!metric_means.ok()) return ToGrpc(metric_means.status());
   for (const store::StatsRecord& s : *stats) {
     skerry::v1::GenerationStats* g = resp->add_generations();
     g->set_island(s.island);
@@ -178,6 +185,10 @@ grpc::Status RunServiceImpl::GetHistory(
     if (auto v = validated->find({s.island, s.generation});
         v != validated->end()) {
       g->set_validation_score(v->second);
+    }
+    if (auto m = metric_means->find({s.island, s.generation});
+        m != metric_means->end()) {
+      g->mutable_metric_means()->insert(m->second.begin(), m->second.end());
     }
   }
   return grpc::Status::OK;

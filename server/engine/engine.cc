@@ -6,6 +6,7 @@
 #include <iterator>
 
 #include "absl/strings/str_cat.h"
+#include "common/metric_bounds.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/engine/breeder.h"
@@ -335,7 +336,11 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
   std::vector<ReportOutcome> outcomes(jobs.size());
   for (size_t j = 0; j < jobs.size(); ++j) {
     for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
-      const bool failed = !r.error().empty() || !std::isfinite(r.score());
+      // Metrics beyond their bounds make the attempt a failed one.
+      const absl::Status metrics =
+          r.error().empty() ? CheckMetrics(r.metrics()) : absl::OkStatus();
+      const bool failed =
+          !r.error().empty() || !std::isfinite(r.score()) || !metrics.ok();
       auto reject = [&](const absl::Status& why) {
         ++outcomes[j].ignored;
         skerry::v1::RejectedResult* x = &outcomes[j].rejected.emplace_back();
@@ -381,13 +386,15 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
       u.attempts = std::max({info->attempts, r.attempt(), 1u});
       u.eval_seconds = r.eval_seconds();
       if (failed) {
-        u.error = FailureText(r);
+        u.error =
+            metrics.ok() ? FailureText(r) : std::string(metrics.message());
         u.state = info->attempts >= run.record.spec.max_attempts()
                       ? skerry::v1::FAILED
                       : skerry::v1::PENDING;
       } else {
         u.state = skerry::v1::EVALUATED;
         u.score = r.score();
+        u.metrics.insert(r.metrics().begin(), r.metrics().end());
       }
       applied.push_back({&run, info->island, info->slot, std::move(u)});
       ++outcomes[j].accepted;

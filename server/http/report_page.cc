@@ -1,6 +1,7 @@
 #include "server/http/report_page.h"
 
 #include <fstream>
+#include <map>
 #include <sstream>
 
 #include "absl/status/status.h"
@@ -72,6 +73,10 @@ constexpr const char* kCharts[][3] = {
      "x: generation (count); y: score (evaluator units) of each genome on the "
      "line that improved on its parent, coloured by the operator that made "
      "it."},
+    {"chart-metrics", "Evaluator metrics: mean per generation",
+     "x: generation (count); y: the metric's mean over the generation's "
+     "genomes, in the units the evaluator gives it. One line per island and "
+     "metric."},
     {"chart-migration", "Island crossings on the champion's line",
      "x: generation (count); y: island index the line moved to (migrants "
      "arriving, offspring of parents from two islands)."},
@@ -137,6 +142,18 @@ std::string SummaryTable(const std::vector<RunReportData>& runs) {
   return out + "</table>\n";
 }
 
+// "name=value; ..." by name.
+std::string MetricCell(const GenerationStats& g) {
+  const std::map<std::string, double> sorted(g.metric_means().begin(),
+                                             g.metric_means().end());
+  std::string out;
+  for (const auto& [name, value] : sorted) {
+    absl::StrAppend(&out, out.empty() ? "" : "; ", HtmlEscape(name), "=",
+                    Num(value));
+  }
+  return out;
+}
+
 std::string HistoryTable(const RunReportData& r) {
   const uint64_t id = r.run.run().id();
   std::string out = absl::StrCat(
@@ -145,7 +162,8 @@ std::string HistoryTable(const RunReportData& r) {
       " rows)</summary>\n<table class=\"history\" data-run=\"", id,
       "\"><tr><th>island</th><th>generation</th><th>best</th><th>mean</"
       "th><th>worst</th><th>diversity</th><th>evaluations</th><th>failed</"
-      "th><th>validation</th><th class=\"t\">completed (UTC)</th></tr>\n");
+      "th><th>validation</th><th class=\"t\">completed (UTC)</th><th "
+      "class=\"t\">evaluator metrics (means)</th></tr>\n");
   for (const GenerationStats& g : r.history) {
     absl::StrAppend(
         &out, "<tr data-island=\"", g.island(), "\" data-generation=\"",
@@ -154,7 +172,8 @@ std::string HistoryTable(const RunReportData& r) {
         Num(g.worst()), "</td><td>", Num(g.diversity()), "</td><td>",
         g.evaluations(), "</td><td>", g.failed(), "</td><td>",
         g.has_validation_score() ? Num(g.validation_score()) : "",
-        "</td><td class=\"t\">", Time(g.completed_unix_ms()), "</td></tr>\n");
+        "</td><td class=\"t\">", Time(g.completed_unix_ms()),
+        "</td><td class=\"t\">", MetricCell(g), "</td></tr>\n");
   }
   return out + "</table></details>\n";
 }

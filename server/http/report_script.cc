@@ -106,7 +106,7 @@ absl::string_view ReportScript() {
   function draw(runs) {
     const many = runs.length > 1;
     const score = [], diversity = [], rates = [], validation = [], descent = [],
-          migration = [];
+          migration = [], metrics = [];
     runs.forEach(function (run, r) {
       const id = run.run.run.id;
       const prefix = many ? "run " + id + " " : "";
@@ -121,6 +121,15 @@ absl::string_view ReportScript() {
         score.push(line(prefix + "island " + i + " mean", pts(function (g) { return g.mean; }), c, [6, 3]));
         score.push(line(prefix + "island " + i + " worst", pts(function (g) { return g.worst; }), c, [1, 3]));
         diversity.push(line(prefix + "island " + i, pts(function (g) { return g.diversity; }), c, dash));
+        const names = new Set();
+        for (const g of rows) for (const n of Object.keys(g.metricMeans || {})) names.add(n);
+        let m = 0;
+        for (const n of Array.from(names).sort()) {
+          const withIt = rows.filter(function (g) { return g.metricMeans && n in g.metricMeans; });
+          metrics.push(line(prefix + "island " + i + " " + n, withIt.map(function (g) {
+            return {x: num(g.generation), y: num(g.metricMeans[n])}; }),
+            colour(many ? r : i), [[], [6, 3], [1, 3], [12, 3, 2, 3]][m++ % 4]));
+        }
         const valid = rows.filter(function (g) { return g.validationScore !== undefined && g.validationScore !== null; });
         if (valid.length > 0) {
           validation.push(line(prefix + "island " + i + " training", valid.map(function (g) {
@@ -162,6 +171,9 @@ absl::string_view ReportScript() {
           "the spec declares no held-out cases, or none is validated yet");
     chart("chart-descent", "scatter", descent, "generation (count)", "score (evaluator units)",
           "the run has no champion yet");
+    chart("chart-metrics", "line", metrics, "generation (count)",
+          "metric mean (the evaluator's units)",
+          "the evaluator returned no named metrics");
     chart("chart-migration", "scatter", migration, "generation (count)", "island (index)",
           "the champion's line never left its first island");
     check();

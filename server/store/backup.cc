@@ -52,6 +52,8 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
         "WHERE run_id = ?1",
         "INSERT INTO dst.validations SELECT * FROM main.validations "
         "WHERE run_id = ?1",
+        "INSERT INTO dst.genome_metrics SELECT * FROM main.genome_metrics "
+        "WHERE run_id = ?1",
         "INSERT INTO dst.workers SELECT * FROM main.workers",
         // The run's audit trail goes with it; tokens and principals do not.
         "INSERT INTO dst.audit SELECT * FROM main.audit WHERE run_id = ?1"}) {

@@ -127,10 +127,24 @@ CREATE INDEX validations_run ON validations (run_id, id);
 CREATE INDEX validations_pending ON validations (id) WHERE state = 1;
 )sql";
 
+// The metrics migration: evaluator metrics per genome (TaskResult.metrics).
+// Meant as version 8 once the versions of parallel branches are in; the lead
+// renumbers it at merge.
+constexpr const char* kSchemaMetrics = R"sql(
+CREATE TABLE genome_metrics (
+  run_id INTEGER NOT NULL,
+  genome_id INTEGER NOT NULL,
+  name TEXT NOT NULL,
+  value REAL NOT NULL,
+  PRIMARY KEY (genome_id, name)
+) WITHOUT ROWID;
+CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
+)sql";
+
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h.
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2, kSchemaV3,
-                                       kSchemaV4, kSchemaAccess};
+constexpr const char* kMigrations[] = {
+    kSchemaV1, kSchemaV2, kSchemaV3, kSchemaV4, kSchemaAccess, kSchemaMetrics};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -399,6 +413,9 @@ absl::Status Store::CommitResults(
           "genome ", r.genome_id, " is not pending; batch not applied"));
     }
     if (r.state != skerry::v1::PENDING) ++finished_per_run[r.run_id];
+    if (r.state == skerry::v1::EVALUATED && !r.metrics.empty()) {
+      SKERRY_RETURN_IF_ERROR(InsertMetricsLocked(r));
+    }
   }
   SKERRY_ASSIGN_OR_RETURN(
       auto cnt, conn_->Prepare("UPDATE runs SET evaluations = evaluations + ? "
@@ -539,7 +556,9 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   if (keep_through.has_value()) {
     for (const char* sql :
-         {"DELETE FROM genomes WHERE run_id = ?1 AND generation > ?2",
+         {"DELETE FROM genome_metrics WHERE run_id = ?1 AND genome_id IN "
+          "(SELECT id FROM genomes WHERE run_id = ?1 AND generation > ?2)",
+          "DELETE FROM genomes WHERE run_id = ?1 AND generation > ?2",
           "DELETE FROM generation_stats WHERE run_id = ?1 AND generation > ?2",
           "DELETE FROM validations WHERE run_id = ?1 AND generation > ?2",
           "UPDATE islands SET generation = min(generation, ?2) WHERE run_id = "

@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 5)
+// ## Schema (version 6)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -24,6 +24,11 @@
 //         message, detail)
 //        (columns and rules in server/store/access_schema.h; methods in
 //        store_access.cc)
+//   genome_metrics(run_id, genome_id, name, value)       the metrics
+//        migration (meant as version 8 at merge; here the next after 5):
+//        an evaluator's named side measurements, at most 32 per genome
+//        (common/metric_bounds.h), PRIMARY KEY (genome_id, name); methods in
+//        metrics.cc
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
 // validations per run and pending validations (version 4); tokens per
@@ -169,6 +174,9 @@ struct ResultUpdate {
   uint32_t attempts = 0;
   std::string error;
   double eval_seconds = 0.0;
+  // The evaluator's named side measurements (EVALUATED only), already
+  // bounded (common/metric_bounds.h); stored in genome_metrics.
+  std::map<std::string, double> metrics;
 };
 
 // A held-out validation of one genome (validation.proto Validation).
@@ -243,7 +251,7 @@ struct WorkerRecord {
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 5;
+  static constexpr int kSchemaVersion = 6;
 
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.
@@ -306,6 +314,13 @@ class Store {
   // then the lowest island, then the lowest slot.
   absl::StatusOr<std::optional<GenomeRecord>> BestGenome(int64_t run_id);
   absl::StatusOr<int> CountWorkersSeenSince(int64_t since_ms);
+  // A genome's evaluator metrics (metrics.cc); empty when it has none.
+  absl::StatusOr<std::map<std::string, double>> GetGenomeMetrics(
+      int64_t genome_id);
+  // Each metric's mean per (island, generation) over the run's genomes.
+  absl::StatusOr<
+      std::map<std::pair<uint32_t, uint32_t>, std::map<std::string, double>>>
+  MetricMeans(int64_t run_id);
   // The `limit` workers seen last, newest first, with the sandbox column
   // when the schema has one (worker_list.cc).
   struct WorkerRow {
@@ -380,6 +395,8 @@ class Store {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<ValidationRecord> RequestValidationLocked(
       const ValidationRequest& request) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status InsertMetricsLocked(const ResultUpdate& r)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status ApplyValidationsLocked(
       absl::Span<const ValidationUpdate> updates)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);

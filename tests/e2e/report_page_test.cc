@@ -14,12 +14,14 @@
 
 #include <cmath>
 #include <cstdlib>
+#include <map>
 #include <string>
 #include <vector>
 
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
+#include "common/genes.h"
 #include "gmock/gmock.h"
 #include "google/protobuf/struct.pb.h"
 #include "google/protobuf/util/json_util.h"
@@ -490,6 +492,93 @@ with urllib.request.urlopen(sys.argv[2], context=ctx, timeout=30) as r:
   EXPECT_THAT(fetched.output, HasSubstr("200\n# HELP skerry_results_total"));
   // Plain HTTP gets no page from it.
   EXPECT_NE(HttpGet(port, "/metrics", "").first, 200);
+}
+
+// An external evaluator that returns two named metrics with each score:
+// abs_sum = sum of |gene| and first = gene 0, easy to recompute from the
+// stored genes.
+constexpr char kMetricsScript[] = R"PY(import json, sys
+for line in sys.stdin:
+    r = json.loads(line)
+    g = r.get("genes", [])
+    print(json.dumps({"id": r["id"], "score": sum(x * x for x in g),
+                      "metrics": {"abs_sum": sum(abs(x) for x in g),
+                                  "first": g[0]}}), flush=True)
+)PY";
+
+TEST_F(ReportPageTest, EvaluatorMetricsAreStoredShownAndPlotted) {
+  const std::string script = dir_.File("metrics.py");
+  ASSERT_TRUE(testing::WriteTextFile(script, kMetricsScript));
+  Start({});
+  Submit(absl::StrCat(R"(
+name: "with-metrics"
+seed: 3
+genome_length: 3
+lower_bound: -2
+upper_bound: 2
+evaluator { external { argv: "/usr/bin/python3" argv: ")",
+                      script, R"(" } }
+ga { population_size: 8 elites: 1 }
+islands { count: 2 interval: 2 migrants: 1 }
+stop { max_generations: 5 }
+)"));
+  StartWorker("");
+  testing::CommandResult w =
+      RunCommand(Cli({"watch", "1"}), absl::Seconds(300));
+  ASSERT_EQ(w.exit_code, 0) << w.output;
+
+  // Stored per genome: each value recomputed from the stored genes.
+  std::map<int64_t, std::vector<double>> genes;
+  for (const testing::StoredGenome& g : testing::ReadGenomes(db_, 1)) {
+    absl::StatusOr<std::vector<double>> v = UnpackGenes(g.genes);
+    ASSERT_TRUE(v.ok());
+    genes[g.id] = *v;
+  }
+  const std::string rows = testing::QueryText(
+      db_,
+      "SELECT group_concat(genome_id || ' ' || name || ' ' || "
+      "printf('%.17g', value), ';') FROM genome_metrics WHERE run_id = 1");
+  std::vector<std::string> stored = absl::StrSplit(rows, ';');
+  // Every genome evaluated (seeded, bred, immigrant) has both metrics.
+  EXPECT_EQ(stored.size(),
+            2 * std::stoul(testing::QueryText(
+                    db_,
+                    "SELECT count(*) FROM genomes WHERE run_id = 1 AND "
+                    "attempts > 0 AND eval_state = 2")));
+  for (const std::string& row : stored) {
+    std::vector<std::string> f = absl::StrSplit(row, ' ');
+    ASSERT_EQ(f.size(), 3u) << row;
+    const std::vector<double>& x = genes[std::stoll(f[0])];
+    ASSERT_EQ(x.size(), 3u);
+    const double want =
+        f[1] == "first" ? x[0]
+                        : std::fabs(x[0]) + std::fabs(x[1]) + std::fabs(x[2]);
+    EXPECT_DOUBLE_EQ(Number(f[2]), want) << row;
+  }
+
+  // Shown by champion and history.
+  testing::CommandResult champion = RunCommand(Cli({"champion", "1"}));
+  EXPECT_THAT(champion.output, HasSubstr("metric      abs_sum  "));
+  EXPECT_THAT(champion.output, HasSubstr("metric      first  "));
+  testing::CommandResult history = RunCommand(Cli({"history", "1"}));
+  EXPECT_THAT(history.output,
+              HasSubstr("evaluator metrics, mean per generation:"));
+  EXPECT_THAT(history.output, HasSubstr("abs_sum"));
+
+  // Plotted: one line per island and metric.
+  const std::string page = dir_.File("metrics.html");
+  ASSERT_EQ(RunCommand(Cli({"report", "1", "-o", page})).exit_code, 0);
+  Page shown = Browse(
+      {"file://" + page, kChartsDone,
+       "({lines: String(window.skerryCharts['chart-metrics'].data.datasets"
+       ".length), expected: document.getElementById('script-status')"
+       ".dataset.expected, drawn: document.getElementById('script-status')"
+       ".dataset.drawn})",
+       "", ""});
+  ASSERT_TRUE(shown.ready());
+  EXPECT_THAT(shown.List("errors"), ::testing::IsEmpty());
+  EXPECT_EQ(shown.Value("lines"), "4");  // 2 islands x 2 metrics
+  EXPECT_EQ(shown.Value("drawn"), shown.Value("expected"));
 }
 
 }  // namespace
