@@ -52,6 +52,7 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
           "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
           "DROP INDEX genomes_failed; DROP TABLE validations; "
           "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
+          "DROP TABLE genome_metrics; "
           "UPDATE schema_version SET version = 1; "
           "INSERT INTO workers (name, host, threads, evaluators, version, "
           "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
@@ -67,6 +68,25 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
                      "'validations_run', 'validations_pending')"),
             "6");
   EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "old");
+}
+
+// A database of the version before the metrics migration gains the
+// genome_metrics table and keeps its data.
+TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
+  store_.reset();
+  RawExec(path(),
+          "DROP TABLE genome_metrics; "
+          "UPDATE schema_version SET version = 5; "
+          "INSERT INTO workers (name, host, threads, evaluators, version, "
+          "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(RawQuery(path(),
+                     "SELECT count(*) FROM sqlite_master WHERE name IN "
+                     "('genome_metrics', 'genome_metrics_run')"),
+            "2");
+  EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "kept");
 }
 
 TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
