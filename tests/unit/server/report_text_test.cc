@@ -1,6 +1,4 @@
 // The report page's HTML and JSON, and the Prometheus text of /metrics.
-#include "server/http/report_page.h"
-
 #include <cstdlib>
 #include <string>
 
@@ -12,6 +10,7 @@
 #include "google/protobuf/util/json_util.h"
 #include "gtest/gtest.h"
 #include "server/http/fleet_metrics.h"
+#include "server/http/report_page.h"
 
 namespace skerry::http {
 namespace {
