@@ -193,6 +193,7 @@ TEST_F(AccessStoreTest, Version4DatabaseIsMigratedToTheAccessTables) {
   RawExec(
       path(),
       "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
+      "DROP TABLE genome_metrics; "
       "UPDATE schema_version SET version = 4; "
       "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
       "created_ms, updated_ms) VALUES ('old', 'local', x'', '', 1, 4, 1, 1)");
