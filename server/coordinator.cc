@@ -1,5 +1,7 @@
 #include "server/coordinator.h"
 
+#include <unistd.h>
+
 #include <cstdio>
 #include <map>
 #include <set>
@@ -57,7 +59,7 @@ class CoordinatorImpl final : public Coordinator {
     watch.max_watchers = options.max_watchers;
     c->runs_ = std::make_unique<api::RunServiceImpl>(
         c->store_.get(), c->engine_.get(), c->fleet_.get(), c->access_.get(),
-        watch);
+        watch, options.budgets);
     c->validations_ = std::make_unique<api::ValidationServiceImpl>(
         c->store_.get(), c->engine_.get(), c->access_.get());
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
@@ -126,6 +128,14 @@ class CoordinatorImpl final : public Coordinator {
           "cannot listen on ", options.listen_address,
           " (address in use, or not an address of this machine?)"));
     }
+    // The standard health service answers for the whole server ("") by
+    // itself; each of our services is SERVING too, until Shutdown.
+    if (grpc::HealthCheckServiceInterface* health =
+            c->server_->GetHealthCheckService()) {
+      for (const auto& [service, name] : services) {
+        health->SetServingStatus(name, true);
+      }
+    }
     if (!options.http_address.empty()) {
       http::HttpOptions web{options.http_address, options.chart_library,
                             options.tls_cert_file, options.tls_key_file,
@@ -171,16 +181,25 @@ class CoordinatorImpl final : public Coordinator {
     if (queue_ != nullptr) queue_->Shutdown();       // wakes long polls
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
     if (server_ != nullptr) {
+      // Health checks answer NOT_SERVING from now on, for every service.
+      if (grpc::HealthCheckServiceInterface* health =
+              server_->GetHealthCheckService()) {
+        health->Shutdown();
+      }
       server_->Shutdown(std::chrono::system_clock::now() +
                         std::chrono::seconds(5));
     }
     if (engine_ != nullptr) engine_->Shutdown();
     if (server_ != nullptr) server_->Wait();
+    absl::MutexLock l(&mu_);
+    stopped_ = true;
   }
 
   void Wait() override {
+    // Until Shutdown() has finished, not merely begun: the caller may
+    // destroy the coordinator next (skerry-coordinator's main returns).
     absl::MutexLock l(&mu_);
-    mu_.Await(absl::Condition(&shut_down_));
+    mu_.Await(absl::Condition(&stopped_));
   }
 
  private:
@@ -207,10 +226,21 @@ class CoordinatorImpl final : public Coordinator {
   std::string transport_;
 
   absl::Mutex mu_;
-  bool shut_down_ ABSL_GUARDED_BY(mu_) = false;
+  bool shut_down_ ABSL_GUARDED_BY(mu_) = false;  // Shutdown() has begun
+  bool stopped_ ABSL_GUARDED_BY(mu_) = false;    // Shutdown() has finished
 };
 
 }  // namespace
+
+SpecBudgets MachineSpecBudgets() {
+  const long pages = sysconf(_SC_PHYS_PAGES);
+  const long page_size = sysconf(_SC_PAGESIZE);
+  const uint64_t memory =
+      pages > 0 && page_size > 0
+          ? static_cast<uint64_t>(pages) * static_cast<uint64_t>(page_size)
+          : 0;  // unknown: DefaultSpecBudgets' floor
+  return DefaultSpecBudgets(memory);
+}
 
 absl::StatusOr<std::unique_ptr<Coordinator>> Coordinator::Start(
     const CoordinatorOptions& options) {

@@ -15,10 +15,14 @@
 #include "absl/status/statusor.h"
 #include "absl/time/time.h"
 #include "common/clock.h"
+#include "common/spec.h"
 #include "grpcpp/channel.h"
 #include "server/auth/access_control.h"
 
 namespace skerry::server {
+
+// DefaultSpecBudgets for this machine's physical memory.
+SpecBudgets MachineSpecBudgets();
 
 struct CoordinatorOptions {
   std::string db_path;
@@ -37,6 +41,8 @@ struct CoordinatorOptions {
   std::string tls_cert_file;
   std::string tls_key_file;
   std::string tls_client_ca_file;
+  // What one run may ask for (common/spec.h); SubmitRun refuses more.
+  SpecBudgets budgets = MachineSpecBudgets();
   // The read-only web port (server/http/http_server.h): HOST:PORT, port 0
   // picks a free one; empty (the default): none. It uses the TLS files above.
   std::string http_address;
@@ -61,7 +67,8 @@ class Coordinator {
   virtual std::shared_ptr<grpc::Channel> InProcessChannel() = 0;
   // Stops serving; in-flight commits finish first.
   virtual void Shutdown() = 0;
-  // Blocks until Shutdown() is called (from a signal handler's thread, say).
+  // Blocks until Shutdown(), called from another thread (a signal handler's,
+  // say), has finished.
   virtual void Wait() = 0;
 };
 

@@ -48,11 +48,15 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
         grpc::StatusCode::INVALID_ARGUMENT,
         absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes"));
   }
+  // The coordinator's budgets, before the engine allocates anything.
+  absl::StatusOr<skerry::v1::RunSpec> prepared =
+      PrepareSpec(req->spec(), budgets_);
+  if (!prepared.ok()) return ToGrpc(prepared.status());
   std::optional<auth::Caller> caller = access_->CallerOf(ctx);
   const std::string owner =
       caller.has_value() ? caller->principal : auth::kLocalPrincipal;
-  absl::StatusOr<store::RunRecord> rec =
-      engine_->Submit(req->spec(), req->spec_text(), owner, req->priority());
+  absl::StatusOr<store::RunRecord> rec = engine_->Submit(
+      *std::move(prepared), req->spec_text(), owner, req->priority());
   if (!rec.ok()) return ToGrpc(rec.status());
   access_->Note(
       ctx, rec->id,

@@ -24,6 +24,7 @@ void FleetMetrics::NoteReport(
     ++counts_.ignored_by_code[absl::StatusCodeToString(
         static_cast<absl::StatusCode>(r.code()))];
   }
+  if (results.empty()) return;  // refused at the door: nothing committed
   const double seconds = absl::ToDoubleSeconds(commit);
   size_t b = 0;
   while (b < kCommitBuckets.size() && seconds > kCommitBuckets[b]) ++b;

@@ -51,8 +51,9 @@ class FleetMetrics {
     std::map<int64_t, WorkerCounts> workers;
   };
 
-  // One Report with results: what it carried, what came of it, and how long
-  // the engine took to commit it.
+  // One Report with results: those that passed the door (`results`, sent to
+  // the engine, which took `commit` to commit them), how many were applied,
+  // and every rejected one, at the door or by the engine.
   void NoteReport(int64_t worker,
                   const std::vector<skerry::v1::TaskResult>& results,
                   uint32_t applied,
