@@ -343,6 +343,11 @@ absl::Status CheckExternal(const skerry::v1::ExternalEvaluator& ext) {
         "the program then its arguments, e.g. argv: \"/usr/bin/python3\"",
         ext.argv().empty() ? "nothing" : "an empty argv[0]");
   }
+  if (ext.memory_limit_mb() > (1u << 20)) {
+    return Bad("evaluator.external.memory_limit_mb", "too large",
+               "at most 1048576 (1 TiB); 0 for no limit",
+               absl::StrCat(ext.memory_limit_mb()));
+  }
   for (const auto& entry : ext.env()) {
     const std::string& name = entry.first;
     if (name.empty() || name.find('=') != std::string::npos) {

@@ -28,6 +28,8 @@ PACKAGES=(
   python3
   openssl
   clang-format
+  # skerry-worker runs evaluator programs in a bubblewrap sandbox
+  bubblewrap
   # Deploy tests: the package (dpkg-shlibdeps, readelf), the units
   # (systemd-analyze), the manifests (PyYAML), network namespaces (ip, tc).
   dpkg-dev

@@ -3,6 +3,8 @@
 #include <errno.h>
 #include <fcntl.h>
 #include <signal.h>
+#include <sys/prctl.h>
+#include <sys/resource.h>
 #include <sys/stat.h>
 #include <sys/syscall.h>
 #include <unistd.h>
@@ -15,9 +17,6 @@
 #include "absl/strings/escaping.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
-#include "common/clock.h"
-
-extern char** environ;
 
 namespace skerry::worker::child {
 
@@ -37,7 +36,8 @@ bool IsExecutableFile(const std::string& path) {
          access(path.c_str(), X_OK) == 0;
 }
 
-absl::StatusOr<std::string> ResolveProgram(const std::string& name) {
+absl::StatusOr<std::string> ResolveProgram(const std::string& name,
+                                           const std::string& search_path) {
   const std::string field = "evaluator.external.argv[0]";
   if (name.empty()) {
     return absl::InvalidArgumentError(field + ": empty program name");
@@ -56,7 +56,9 @@ absl::StatusOr<std::string> ResolveProgram(const std::string& name) {
     return name;
   }
   const char* path = std::getenv("PATH");
-  const std::string search = path != nullptr ? path : "/usr/bin:/bin";
+  const std::string search = !search_path.empty() ? search_path
+                             : path != nullptr    ? path
+                                                  : "/usr/bin:/bin";
   for (absl::string_view dir : absl::StrSplit(search, ':')) {
     const std::string candidate =
         absl::StrCat(dir.empty() ? "." : dir, "/", name);
@@ -66,25 +68,10 @@ absl::StatusOr<std::string> ResolveProgram(const std::string& name) {
       field, ": \"", name, "\" not found on the worker's PATH (", search, ")"));
 }
 
-std::vector<std::string> ChildEnvironment(
-    const std::map<std::string, std::string>& overrides) {
-  std::vector<std::string> env;
-  for (char** e = environ; e != nullptr && *e != nullptr; ++e) {
-    absl::string_view entry(*e);
-    const std::string name(entry.substr(0, entry.find('=')));
-    if (overrides.count(name) == 0) env.emplace_back(entry);
-  }
-  for (const auto& [name, value] : overrides) {
-    env.push_back(absl::StrCat(name, "=", value));
-  }
-  return env;
-}
-
-int RemainingMillis(absl::Time deadline) {
-  const absl::Duration left = deadline - Clock::Real()->Now();
-  if (left <= absl::ZeroDuration()) return 0;
+int PollMillis(absl::Duration slice) {
+  if (slice <= absl::ZeroDuration()) return 0;
   return static_cast<int>(
-      std::min<int64_t>(absl::ToInt64Milliseconds(left) + 1, 1 << 30));
+      std::min<int64_t>(absl::ToInt64Milliseconds(slice) + 1, 1 << 30));
 }
 
 void SetNonBlocking(int fd) {
@@ -96,8 +83,18 @@ void SetNonBlocking(int fd) {
 [[noreturn]] void ExecChild(int in, int out, int err, int status_fd,
                             const char* program, char* const* argv,
                             char* const* envp, const char* working_dir,
-                            int max_fd) {
+                            int max_fd, const ChildLimits& limits) {
   setpgid(0, 0);
+  // Die with the worker, even when it is killed with SIGKILL.
+  prctl(PR_SET_PDEATHSIG, SIGKILL);
+  if (getppid() != limits.parent) _exit(127);  // it died before the prctl
+  struct rlimit no_core {};
+  setrlimit(RLIMIT_CORE, &no_core);
+  if (limits.address_space > 0) {
+    struct rlimit as {};
+    as.rlim_cur = as.rlim_max = static_cast<rlim_t>(limits.address_space);
+    setrlimit(RLIMIT_AS, &as);
+  }
   sigset_t none;
   sigemptyset(&none);
   sigprocmask(SIG_SETMASK, &none, nullptr);
@@ -130,6 +127,32 @@ void SetNonBlocking(int fd) {
   const int e = errno;
   (void)!write(status_fd, &e, sizeof e);
   _exit(127);
+}
+
+bool ChildRegistry::Add(pid_t pid) {
+  absl::MutexLock l(&mu_);
+  if (stopped_) return false;
+  pids_.insert(pid);
+  return true;
+}
+
+void ChildRegistry::Remove(pid_t pid) {
+  absl::MutexLock l(&mu_);
+  pids_.erase(pid);
+}
+
+void ChildRegistry::KillAll() {
+  absl::MutexLock l(&mu_);
+  stopped_ = true;
+  for (pid_t pid : pids_) {
+    kill(-pid, SIGKILL);
+    kill(pid, SIGKILL);  // in case its setpgid had not happened yet
+  }
+}
+
+bool ChildRegistry::stopped() {
+  absl::MutexLock l(&mu_);
+  return stopped_;
 }
 
 std::string DescribeWaitStatus(int status) {

@@ -8,12 +8,18 @@
 #ifndef SKERRY_WORKER_CHILD_PROCESS_H_
 #define SKERRY_WORKER_CHILD_PROCESS_H_
 
+#include <sys/types.h>
+
+#include <cstdint>
 #include <map>
+#include <set>
 #include <string>
 #include <vector>
 
+#include "absl/base/thread_annotations.h"
 #include "absl/status/statusor.h"
 #include "absl/strings/string_view.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 
 namespace skerry::worker::child {
@@ -22,22 +28,49 @@ namespace skerry::worker::child {
 // child that closes its stdin makes write(2) fail with EPIPE instead.
 void IgnoreSigpipeOnce();
 bool IsExecutableFile(const std::string& path);
-// An absolute path, or a name looked up on PATH. InvalidArgument names
+// An absolute path, or a name looked up on `search_path` (a PATH value;
+// empty: this process's PATH). InvalidArgument names
 // evaluator.external.argv[0] and says why.
-absl::StatusOr<std::string> ResolveProgram(const std::string& name);
-// This process's environment with `overrides` added or replacing entries.
-std::vector<std::string> ChildEnvironment(
-    const std::map<std::string, std::string>& overrides);
-// Milliseconds left until `deadline` (real time), for poll(2); 0 when past.
-int RemainingMillis(absl::Time deadline);
+absl::StatusOr<std::string> ResolveProgram(const std::string& name,
+                                           const std::string& search_path = "");
+// Milliseconds for poll(2), rounded up, from a real-time slice.
+int PollMillis(absl::Duration slice);
 void SetNonBlocking(int fd);
-// In the child after fork: own process group, default signals, the three
-// pipes as stdin/stdout/stderr, every other descriptor closed, then exec. On
-// failure errno is written to status_fd (negated for chdir) and it exits 127.
+
+// What the child sets up between fork and exec besides its pipes.
+struct ChildLimits {
+  pid_t parent = 0;            // the forking process: the child dies with it
+  uint64_t address_space = 0;  // RLIMIT_AS in bytes; 0: unchanged
+};
+// In the child after fork: own process group, SIGKILL when the parent dies
+// (PR_SET_PDEATHSIG, and an exit if it is already gone), no core files, the
+// limits, default signals, the three pipes as stdin/stdout/stderr, every
+// other descriptor closed, then exec. On failure errno is written to
+// status_fd (negated for chdir) and it exits 127.
 [[noreturn]] void ExecChild(int in, int out, int err, int status_fd,
                             const char* program, char* const* argv,
                             char* const* envp, const char* working_dir,
-                            int max_fd);
+                            int max_fd, const ChildLimits& limits);
+
+// The live evaluator children of one worker (each the leader of its own
+// process group), so that stopping the worker ends them all at once.
+// Thread safety: every method from any thread.
+class ChildRegistry {
+ public:
+  // Records a started child. False once KillAll was called: the caller must
+  // kill the child it just started and start no other.
+  bool Add(pid_t pid);
+  void Remove(pid_t pid);
+  // Kills the process group of every recorded child with SIGKILL (the
+  // caller reaps them); from now on Add fails.
+  void KillAll();
+  bool stopped();
+
+ private:
+  absl::Mutex mu_;
+  std::set<pid_t> pids_ ABSL_GUARDED_BY(mu_);
+  bool stopped_ ABSL_GUARDED_BY(mu_) = false;
+};
 // "exited with status 3", "was killed by signal 9 (Killed)".
 std::string DescribeWaitStatus(int status);
 // At most `max` bytes of s, C-escaped and quoted, "..." when cut.

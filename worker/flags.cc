@@ -1,11 +1,16 @@
 #include "worker/flags.h"
 
+#include <unistd.h>
+
 #include <cstdint>
+#include <cstdlib>
+#include <cstring>
 #include <set>
 
 #include "absl/status/status.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
 #include "absl/strings/string_view.h"
 
 namespace skerry::worker {
@@ -99,6 +104,19 @@ absl::Status Apply(absl::string_view flag, absl::string_view value,
         ParseWholeNumber(flag, value, 0, kMaxWaitMsFlag);
     if (!n.ok()) return n.status();
     out.options.wait = absl::Milliseconds(static_cast<int64_t>(*n));
+  } else if (flag == "--sandbox") {
+    absl::StatusOr<SandboxMode> mode = ParseSandboxMode(value);
+    if (!mode.ok()) return mode.status();
+    out.sandbox = *mode;
+  } else if (flag == "--evaluator-dirs") {
+    for (absl::string_view dir : absl::StrSplit(value, ':')) {
+      if (dir.empty() || dir[0] != '/') {
+        return FlagError(flag, absl::StrCat("expected absolute folders "
+                                            "separated by ':', got \"",
+                                            value.substr(0, 256), "\""));
+      }
+      out.evaluator_dirs.emplace_back(dir);
+    }
   } else if (flag == "--exit-when-idle") {
     absl::StatusOr<uint64_t> n =
         ParseWholeNumber(flag, value, 1, kMaxExitWhenIdleFlag);
@@ -191,11 +209,50 @@ absl::StatusOr<std::shared_ptr<grpc::Channel>> ConnectFromFlags(
                                 flags.options.max_backoff);
 }
 
+std::vector<std::string> SecretPaths(const WorkerFlags& flags,
+                                     const Getenv& getenv) {
+  std::vector<std::string> out;
+  auto absolute = [](const std::string& path) {
+    if (path.empty() || path[0] == '/') return path;
+    char buf[4096];
+    return getcwd(buf, sizeof buf) == nullptr ? path
+                                              : absl::StrCat(buf, "/", path);
+  };
+  for (const std::string* p :
+       {&flags.token_file, &flags.security.tls_key_file,
+        &flags.security.tls_cert_file, &flags.security.tls_ca_file}) {
+    if (!p->empty()) out.push_back(absolute(*p));
+  }
+  std::string config = getenv("XDG_CONFIG_HOME");
+  if (config.empty() && !getenv("HOME").empty()) {
+    config = getenv("HOME") + "/.config";
+  }
+  if (!config.empty()) out.push_back(absolute(config + "/skerry"));
+  return out;
+}
+
+void ScrubTokenFromProcess(int argc, char** argv) {
+  for (int i = 1; i < argc; ++i) {
+    char* value = nullptr;
+    if (std::strcmp(argv[i], "--token") == 0 && i + 1 < argc) {
+      value = argv[i + 1];
+    } else if (std::strncmp(argv[i], "--token=", 8) == 0) {
+      value = argv[i] + 8;
+    }
+    if (value != nullptr) std::memset(value, 'x', std::strlen(value));
+  }
+  if (char* env = std::getenv(kTokenEnv); env != nullptr) {
+    std::memset(env, 0, std::strlen(env));
+    unsetenv(kTokenEnv);
+  }
+}
+
 std::string WorkerUsage() {
   return absl::StrCat(
       "Usage: skerry-worker --coordinator HOST:PORT --threads N [--name NAME]\n"
       "                     [--batch N] [--wait-ms N] [--exit-when-idle S]\n"
-      "                     [--token-file FILE]\n"
+      "                     [--token-file FILE] [--sandbox auto|bwrap|none]\n"
+      "                     [--evaluator-dirs DIRS]\n"
       "                     [--tls-ca FILE [--tls-cert FILE --tls-key FILE]]\n"
       "\n"
       "A stateless evaluation worker. It joins the coordinator at HOST:PORT,\n"
@@ -237,7 +294,8 @@ std::string WorkerUsage() {
       "                           (default: never; for batch allocations)\n"
       "  --token TOKEN            bearer token of role worker (visible to "
       "other\n"
-      "                           users in the process list: prefer the next)\n"
+      "                           users in the process list until the worker\n"
+      "                           has read it: prefer the next)\n"
       "  --token-file FILE        read the token from FILE's first line\n"
       "                           (default: $SKERRY_TOKEN, else\n"
       "                           ~/.config/skerry/token, else no token)\n"
@@ -249,14 +307,43 @@ std::string WorkerUsage() {
       "  --tls-server-name NAME   name to expect in the coordinator's\n"
       "                           certificate (default: the host of the "
       "address)\n"
+      "  --sandbox MODE           where evaluator programs run: bwrap (a\n"
+      "                           bubblewrap sandbox: their own folder "
+      "read-only,\n"
+      "                           a private /tmp, no other file of this "
+      "machine's\n"
+      "                           outside /usr, no view of other processes, "
+      "no\n"
+      "                           network unless the spec asks; refuse to "
+      "start\n"
+      "                           when bwrap cannot run), none (no sandbox: "
+      "user\n"
+      "                           code can read the worker's token), or auto\n"
+      "                           (default: bwrap where it works, else none "
+      "with\n"
+      "                           a warning); reported to the coordinator\n"
+      "  --evaluator-dirs DIR[:DIR...]  with bwrap: the folders evaluator\n"
+      "                           programs may come from (default: the "
+      "current\n"
+      "                           folder); a program's folder inside them is\n"
+      "                           shown read-only, except the token file and\n"
+      "                           config folder; nothing outside them and "
+      "/usr\n"
       "  --help                   this text\n"
       "  --version                print the version and the worker protocol\n"
       "\n"
-      "SIGINT or SIGTERM stops the worker: it stops leasing, reports the "
-      "results\n"
-      "it has, and exits. A second signal exits at once.\n"
+      "SIGINT or SIGTERM stops the worker: it kills its evaluator programs, "
+      "reports\n"
+      "the results it has, hands every other task back to the coordinator "
+      "(another\n"
+      "worker can take it at once) and exits. A second signal kills the "
+      "evaluator\n"
+      "programs and exits at once. Evaluator programs die with the worker "
+      "even\n"
+      "when it is killed.\n"
       "Exit codes: 0 stopped, 1 the coordinator refused the worker, 2 usage "
-      "error.\n");
+      "error\n"
+      "(or --sandbox bwrap where bwrap cannot run).\n");
 }
 
 }  // namespace skerry::worker

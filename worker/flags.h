@@ -20,6 +20,7 @@
 #include "absl/status/statusor.h"
 #include "grpcpp/channel.h"
 #include "worker/channel.h"
+#include "worker/sandbox.h"
 #include "worker/worker.h"
 
 namespace skerry::worker {
@@ -38,8 +39,10 @@ struct WorkerFlags {
   // TLS files and server name from flags; the token is found by
   // ConnectFromFlags (flag, file, environment, config file).
   ClientSecurity security;
-  std::string token;       // --token
-  std::string token_file;  // --token-file
+  std::string token;                         // --token
+  std::string token_file;                    // --token-file
+  SandboxMode sandbox = SandboxMode::kAuto;  // --sandbox
+  std::vector<std::string> evaluator_dirs;   // --evaluator-dirs, split at ':'
 };
 
 // args excludes the program name. Accepts "--flag value" and "--flag=value".
@@ -52,6 +55,16 @@ absl::StatusOr<WorkerFlags> ParseWorkerFlags(int argc, char** argv);
 // token). Errors name the flag or the source of the token.
 absl::StatusOr<std::shared_ptr<grpc::Channel>> ConnectFromFlags(
     const WorkerFlags& flags, const Getenv& getenv, std::string* warning);
+
+// Files and folders no evaluator may see: the token file, the config folder
+// the token may come from, the TLS files.
+std::vector<std::string> SecretPaths(const WorkerFlags& flags,
+                                     const Getenv& getenv);
+
+// Once the token has been read: overwrites the value of --token in this
+// process's argv and of $SKERRY_TOKEN in its environment (and unsets it), so
+// neither /proc/PID/cmdline nor /proc/PID/environ shows it from now on.
+void ScrubTokenFromProcess(int argc, char** argv);
 
 // The --help text.
 std::string WorkerUsage();

@@ -24,7 +24,8 @@ namespace {
 
 // SIGINT and SIGTERM are blocked in every thread and taken by this one with
 // sigwait, so no work happens inside a signal handler. The first signal stops
-// the worker gracefully; a second one exits at once.
+// the worker promptly (Worker::Stop: evaluators killed, results reported, the
+// rest handed back); a second one kills the evaluators and exits at once.
 class SignalWatcher {
  public:
   explicit SignalWatcher(skerry::worker::Worker* worker) : worker_(worker) {
@@ -64,6 +65,7 @@ class SignalWatcher {
             stderr, "skerry-worker: stopping (signal again to exit at once)\n");
         worker_->Stop();
       } else {
+        worker_->KillEvaluators();
         _exit(128 + sig);
       }
     }
@@ -99,9 +101,11 @@ int main(int argc, char** argv) {
     return 0;
   }
   SignalWatcher::BlockSignals();
+  const skerry::worker::Getenv getenv = skerry::worker::ProcessEnvironment();
   std::string warning;
-  auto channel = skerry::worker::ConnectFromFlags(
-      *flags, skerry::worker::ProcessEnvironment(), &warning);
+  // The token is read here, once; then it leaves argv and the environment.
+  auto channel = skerry::worker::ConnectFromFlags(*flags, getenv, &warning);
+  skerry::worker::ScrubTokenFromProcess(argc, argv);
   if (!channel.ok()) {
     std::fprintf(stderr, "skerry-worker: %s\n",
                  std::string(channel.status().message()).c_str());
@@ -109,6 +113,19 @@ int main(int argc, char** argv) {
   }
   if (!warning.empty())
     std::fprintf(stderr, "skerry-worker: %s\n", warning.c_str());
+  std::string sandbox_warning;
+  auto sandbox = skerry::worker::SetUpSandbox(
+      flags->sandbox, skerry::worker::SecretPaths(*flags, getenv),
+      flags->evaluator_dirs, &sandbox_warning);
+  if (!sandbox.ok()) {
+    std::fprintf(stderr, "skerry-worker: %s\n",
+                 std::string(sandbox.status().message()).c_str());
+    return 2;
+  }
+  if (!sandbox_warning.empty()) {
+    std::fprintf(stderr, "skerry-worker: %s\n", sandbox_warning.c_str());
+  }
+  flags->options.sandbox = *sandbox;
   skerry::worker::Worker worker(skerry::v1::FleetService::NewStub(*channel),
                                 flags->options, skerry::Clock::Real());
   absl::Status status;

@@ -4,6 +4,7 @@
 #include <fcntl.h>
 #include <poll.h>
 #include <signal.h>
+#include <sys/stat.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -17,6 +18,7 @@
 #include "absl/strings/escaping.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "absl/time/clock.h"
 #include "common/clock.h"
 #include "common/episodes.h"
 #include "common/random.h"
@@ -42,14 +44,28 @@ struct ProcessEvaluator::Child {
   }
 };
 
-using child::ChildEnvironment;
 using child::DescribeWaitStatus;
 using child::ExecChild;
 using child::IgnoreSigpipeOnce;
+using child::PollMillis;
 using child::Quote;
-using child::RemainingMillis;
 using child::ResolveProgram;
 using child::SetNonBlocking;
+
+namespace {
+// Inside the sandbox only /usr is visible: program names are found there.
+constexpr char kSandboxSearchPath[] = "/usr/local/bin:/usr/bin:/bin";
+// How often a wait for a child's exit looks again (real time; the wait's
+// bound is on the clock).
+constexpr absl::Duration kExitPoll = absl::Milliseconds(5);
+// How long a child whose pipes closed gets to exit by itself, so its exit
+// status and traceback can be reported.
+constexpr absl::Duration kExitGrace = absl::Milliseconds(200);
+
+bool Sandboxed(const ProcessEvaluatorOptions& o) {
+  return o.sandbox != nullptr && o.sandbox->enabled();
+}
+}  // namespace
 
 absl::StatusOr<std::unique_ptr<ProcessEvaluator>> ProcessEvaluator::Create(
     ProcessEvaluatorOptions options) {
@@ -65,7 +81,13 @@ absl::StatusOr<std::unique_ptr<ProcessEvaluator>> ProcessEvaluator::Create(
                      absl::FormatDuration(options.time_limit), ")"));
   }
   if (options.episodes == 0) options.episodes = 1;
-  absl::StatusOr<std::string> program = ResolveProgram(options.argv[0]);
+  if (options.memory_limit_mb > (1u << 20)) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "evaluator.external.memory_limit_mb: at most 1048576 (1 TiB), got ",
+        options.memory_limit_mb));
+  }
+  absl::StatusOr<std::string> program = ResolveProgram(
+      options.argv[0], Sandboxed(options) ? kSandboxSearchPath : "");
   if (!program.ok()) return program.status();
   IgnoreSigpipeOnce();
   return std::unique_ptr<ProcessEvaluator>(
@@ -76,21 +98,27 @@ ProcessEvaluator::ProcessEvaluator(ProcessEvaluatorOptions options,
                                    std::string program)
     : options_(std::move(options)),
       program_(std::move(program)),
-      env_(ChildEnvironment(options_.env)) {}
+      env_(ScrubbedEnvironment(ProcessEnvironmentEntries(), options_.env,
+                               Sandboxed(options_))),
+      clock_(options_.clock != nullptr ? options_.clock : Clock::Real()),
+      last_used_(clock_->Now()) {}
 
 ProcessEvaluator::~ProcessEvaluator() {
   if (child_ == nullptr) return;
   // Closing stdin asks a well-behaved program to finish.
   close(child_->in);
   child_->in = -1;
-  const absl::Time deadline = Clock::Real()->Now() + options_.shutdown_grace;
-  while (Clock::Real()->Now() < deadline) {
+  const absl::Time deadline = clock_->Now() + options_.shutdown_grace;
+  while (clock_->Now() < deadline) {
     if (waitpid(child_->pid, nullptr, WNOHANG) == child_->pid) {
       kill(-child_->pid, SIGKILL);  // anything it left behind
+      Forget(child_->pid);
       child_.reset();
       return;
     }
-    usleep(5000);
+    if (options_.registry != nullptr && options_.registry->stopped()) break;
+    // A real pause (the exit is a real event); the grace is on the clock.
+    absl::SleepFor(std::min(kExitPoll, clock_->PollSlice(deadline)));
   }
   KillChild();
 }
@@ -111,7 +139,30 @@ absl::Status ProcessEvaluator::EnsureChild() {
     }
     // It exited after its last answer: start another quietly.
     kill(-child_->pid, SIGKILL);
+    Forget(child_->pid);
     child_.reset();
+  }
+  if (options_.registry != nullptr && options_.registry->stopped()) {
+    return absl::CancelledError(
+        absl::StrCat(Name(), ": not started: the worker is stopping"));
+  }
+  const bool sandboxed = Sandboxed(options_);
+  if (sandboxed && !options_.working_dir.empty()) {
+    struct stat st {};
+    if (stat(options_.working_dir.c_str(), &st) != 0 || !S_ISDIR(st.st_mode)) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          Name(), ": cannot enter working_dir \"", options_.working_dir,
+          "\": ", std::strerror(errno == 0 ? ENOTDIR : errno)));
+    }
+  }
+  // The command: the program itself, or bwrap running it.
+  std::vector<std::string> command = {program_};
+  command.insert(command.end(), options_.argv.begin() + 1, options_.argv.end());
+  if (sandboxed) {
+    absl::StatusOr<std::vector<std::string>> wrapped = options_.sandbox->Wrap(
+        program_, options_.argv, options_.working_dir, options_.network);
+    if (!wrapped.ok()) return wrapped.status();
+    command = *std::move(wrapped);
   }
   int pipes[4][2];
   for (int i = 0; i < 4; ++i) {
@@ -130,11 +181,11 @@ absl::Status ProcessEvaluator::EnsureChild() {
   int* err = pipes[2];
   int* st = pipes[3];
   std::vector<char*> argv;
-  argv.push_back(const_cast<char*>(program_.c_str()));
-  for (size_t i = 1; i < options_.argv.size(); ++i) {
-    argv.push_back(const_cast<char*>(options_.argv[i].c_str()));
-  }
+  for (std::string& c : command) argv.push_back(c.data());
   argv.push_back(nullptr);
+  child::ChildLimits limits;
+  limits.parent = getpid();
+  limits.address_space = uint64_t{options_.memory_limit_mb} << 20;
   std::vector<char*> envp;
   for (const std::string& e : env_)
     envp.push_back(const_cast<char*>(e.c_str()));
@@ -144,8 +195,8 @@ absl::Status ProcessEvaluator::EnsureChild() {
 
   const pid_t pid = fork();
   if (pid == 0) {
-    ExecChild(in[0], out[1], err[1], st[1], program_.c_str(), argv.data(),
-              envp.data(), options_.working_dir.c_str(), max_fd);
+    ExecChild(in[0], out[1], err[1], st[1], argv[0], argv.data(), envp.data(),
+              sandboxed ? "" : options_.working_dir.c_str(), max_fd, limits);
   }
   const int fork_errno = errno;
   for (int fd : {in[0], out[1], err[1], st[1]}) close(fd);
@@ -155,6 +206,8 @@ absl::Status ProcessEvaluator::EnsureChild() {
         Name(), ": cannot start a process: ", std::strerror(fork_errno)));
   }
   setpgid(pid, pid);  // also done in the child; whichever runs first wins
+  const bool recorded =
+      options_.registry == nullptr || options_.registry->Add(pid);
   child_ = std::make_unique<Child>();
   child_->pid = pid;
   child_->in = in[1];
@@ -169,6 +222,11 @@ absl::Status ProcessEvaluator::EnsureChild() {
     n = read(st[0], &child_errno, sizeof child_errno);
   } while (n < 0 && errno == EINTR);
   close(st[0]);
+  if (!recorded) {
+    KillChild();
+    return absl::CancelledError(
+        absl::StrCat(Name(), ": not started: the worker is stopping"));
+  }
   if (n == static_cast<ssize_t>(sizeof child_errno)) {
     KillChild();
     const bool in_chdir = child_errno < 0;
@@ -176,7 +234,7 @@ absl::Status ProcessEvaluator::EnsureChild() {
         Name(), ": cannot ",
         in_chdir
             ? absl::StrCat("enter working_dir \"", options_.working_dir, "\"")
-            : absl::StrCat("execute \"", program_, "\""),
+            : absl::StrCat("execute \"", command[0], "\""),
         ": ", std::strerror(std::abs(child_errno))));
   }
   for (int fd : {child_->in, child_->out, child_->err}) SetNonBlocking(fd);
@@ -190,7 +248,12 @@ void ProcessEvaluator::KillChild() {
   int status = 0;
   while (waitpid(child_->pid, &status, 0) < 0 && errno == EINTR) {
   }
+  Forget(child_->pid);
   child_.reset();
+}
+
+void ProcessEvaluator::Forget(pid_t pid) {
+  if (options_.registry != nullptr) options_.registry->Remove(pid);
 }
 
 void ProcessEvaluator::DrainStderr() {
@@ -225,10 +288,14 @@ absl::Status ProcessEvaluator::Fail(absl::StatusCode code,
     // traceback on stderr) can be reported.
     int status = 0;
     bool exited = false;
-    for (int i = 0; i < (may_be_exiting ? 40 : 1) && !exited; ++i) {
+    const absl::Time grace_end =
+        clock_->Now() + (may_be_exiting ? kExitGrace : absl::ZeroDuration());
+    while (true) {
       DrainStderr();
       exited = waitpid(pid, &status, WNOHANG) == pid;
-      if (!exited && may_be_exiting) usleep(5000);
+      if (exited || clock_->Now() >= grace_end) break;
+      if (options_.registry != nullptr && options_.registry->stopped()) break;
+      absl::SleepFor(std::min(kExitPoll, clock_->PollSlice(grace_end)));
     }
     if (exited) {
       fate = DescribeWaitStatus(status);
@@ -242,6 +309,7 @@ absl::Status ProcessEvaluator::Fail(absl::StatusCode code,
     }
     DrainStderr();  // what the dead group left in the pipe
     fate = absl::StrCat("pid ", pid, " ", fate);
+    Forget(pid);
     child_.reset();
   }
   std::string tail = stderr_tail_;
@@ -281,14 +349,15 @@ absl::StatusOr<std::string> ProcessEvaluator::Transact(const std::string& line,
     if (err_at >= 0) fds[n++] = {child_->err, POLLIN, 0};
     const int in_at = written < line.size() ? n : -1;
     if (in_at >= 0) fds[n++] = {child_->in, POLLOUT, 0};
-    const int ms = RemainingMillis(deadline);
-    if (ms == 0) return absl::DeadlineExceededError("");
+    const absl::Duration slice = clock_->PollSlice(deadline);
+    if (slice <= absl::ZeroDuration()) return absl::DeadlineExceededError("");
+    const int ms = PollMillis(slice);
     const int ready = poll(fds, static_cast<nfds_t>(n), ms);
     if (ready < 0 && errno == EINTR) continue;
     if (ready < 0) {
       return absl::InternalError(absl::StrCat("poll: ", std::strerror(errno)));
     }
-    if (ready == 0) continue;  // the deadline check above ends it
+    if (ready == 0) continue;  // the clock is looked at again above
     if (err_at >= 0 && fds[err_at].revents != 0) DrainStderr();
     if (in_at >= 0 && fds[in_at].revents != 0) {
       const ssize_t w =
@@ -346,7 +415,8 @@ absl::StatusOr<EvaluationResponse> ProcessEvaluator::CheckResponse(
 
 absl::StatusOr<EvaluationResponse> ProcessEvaluator::Exchange(
     EvaluationRequest request) {
-  const absl::Time deadline = Clock::Real()->Now() + options_.time_limit;
+  const absl::Time deadline = clock_->Now() + options_.time_limit;
+  last_used_ = clock_->Now();
   if (absl::Status s = EnsureChild(); !s.ok()) return s;
   const uint64_t id = next_id_++;
   request.set_id(id);

@@ -16,7 +16,10 @@
 // Create() makes SIGPIPE ignored in the whole process (if it was at its
 // default), so a write to a dead child is an EPIPE error instead of a signal.
 // The child gets the default signal mask and dispositions, its own process
-// group, and no descriptor of the worker's but its stdin, stdout and stderr.
+// group, SIGKILL when the worker dies (PR_SET_PDEATHSIG), no core files, a
+// scrubbed environment (no token, nothing of the worker's but PATH, locale
+// and the like) and no descriptor of the worker's but its stdin, stdout and
+// stderr. With a sandbox (sandbox.h) it runs inside bubblewrap.
 //
 // Thread safety: one thread at a time (the worker makes one per evaluation
 // thread, through EvaluatorCache). Distinct instances are independent.
@@ -44,9 +47,12 @@
 #include "absl/status/statusor.h"
 #include "absl/time/time.h"
 #include "absl/types/span.h"
+#include "common/clock.h"
 #include "common/evaluator.h"
 #include "skerry/v1/evaluator.pb.h"
 #include "skerry/v1/spec.pb.h"
+#include "worker/child_process.h"
+#include "worker/sandbox.h"
 
 namespace skerry::worker {
 
@@ -54,8 +60,18 @@ struct ProcessEvaluatorOptions {
   // The program and its arguments. argv[0]: an absolute path, or a name
   // without '/' looked up on the worker's PATH.
   std::vector<std::string> argv;
-  std::string working_dir;                 // empty: the worker's
-  std::map<std::string, std::string> env;  // added to the worker's environment
+  std::string working_dir;  // empty: the worker's
+  // Added to the scrubbed environment (sandbox.h, ScrubbedEnvironment).
+  std::map<std::string, std::string> env;
+  // Null or disabled: no sandbox. Else the child runs inside it.
+  std::shared_ptr<const Sandbox> sandbox;
+  bool network = false;          // inside the sandbox
+  uint32_t memory_limit_mb = 0;  // RLIMIT_AS; 0: none
+  // Where started children are recorded, so the worker can end them all at
+  // once (and no new one starts after that). Null: none.
+  std::shared_ptr<child::ChildRegistry> registry;
+  // Time limits and grace periods are measured on it. Null: the real clock.
+  Clock* clock = nullptr;
   // From sending a request to reading its whole answer (for a fresh child,
   // its start-up counts too).
   absl::Duration time_limit = absl::Seconds(60);
@@ -109,6 +125,8 @@ class ProcessEvaluator : public Evaluator {
   const std::map<std::string, double>& last_metrics() const {
     return last_metrics_;
   }
+  // When the last request was sent (on the clock), or creation time.
+  absl::Time last_used() const { return last_used_; }
   // argv[0] as resolved on PATH.
   const std::string& program() const { return program_; }
 
@@ -131,18 +149,22 @@ class ProcessEvaluator : public Evaluator {
   // Appends what the child's stderr holds now to stderr_tail_ (no waiting).
   void DrainStderr();
   void KillChild();
+  // Removes pid from the registry (if any).
+  void Forget(pid_t pid);
   std::string Name() const;
 
   // Constant after construction.
   const ProcessEvaluatorOptions options_;
   const std::string program_;
   const std::vector<std::string> env_;  // NAME=value, the child's environment
+  Clock* const clock_;
 
   std::unique_ptr<Child> child_;
   uint64_t next_id_ = 1;
   int starts_ = 0;
   int failures_ = 0;
   std::string stderr_tail_;  // of the current (or last) child
+  absl::Time last_used_;
   std::map<std::string, double> last_metrics_;
 };
 

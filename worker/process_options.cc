@@ -28,6 +28,8 @@ absl::StatusOr<ProcessEvaluatorOptions> ProcessOptionsForSpec(
     o.argv.assign(ext.argv().begin(), ext.argv().end());
     o.working_dir = ext.working_dir();
     o.env.insert(ext.env().begin(), ext.env().end());
+    o.network = ext.network();
+    o.memory_limit_mb = ext.memory_limit_mb();
     o.episodes = std::max<uint32_t>(1, spec.episodes().count());
     if (spec.episodes().aggregate() != skerry::v1::AGGREGATE_UNSPECIFIED) {
       o.aggregate = spec.episodes().aggregate();

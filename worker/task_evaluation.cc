@@ -1,7 +1,9 @@
 #include "worker/task_evaluation.h"
 
+#include <algorithm>
 #include <cmath>
 #include <exception>
+#include <iterator>
 #include <utility>
 
 #include "absl/status/status.h"
@@ -33,9 +35,10 @@ auto Guarded(F&& f) -> decltype(f()) {
 
 }  // namespace
 
-EvaluatorFactory WorkerEvaluatorFactory(std::vector<std::string> host_command) {
-  return [host_command =
-              std::move(host_command)](const skerry::v1::EvaluatorSpec& spec)
+EvaluatorFactory WorkerEvaluatorFactory(std::vector<std::string> host_command,
+                                        ChildSetting setting) {
+  return [host_command = std::move(host_command),
+          setting = std::move(setting)](const skerry::v1::EvaluatorSpec& spec)
              -> absl::StatusOr<std::unique_ptr<Evaluator>> {
     if (spec.kind_case() != skerry::v1::EvaluatorSpec::kExternal &&
         !spec.isolate()) {
@@ -44,6 +47,9 @@ EvaluatorFactory WorkerEvaluatorFactory(std::vector<std::string> host_command) {
     absl::StatusOr<ProcessEvaluatorOptions> options =
         ProcessOptionsForSpec(spec, host_command);
     if (!options.ok()) return options.status();
+    options->sandbox = setting.sandbox;
+    options->registry = setting.registry;
+    options->clock = setting.clock;
     absl::StatusOr<std::unique_ptr<ProcessEvaluator>> evaluator =
         ProcessEvaluator::Create(*std::move(options));
     if (!evaluator.ok()) return evaluator.status();
@@ -58,29 +64,60 @@ absl::StatusOr<std::unique_ptr<Evaluator>> MakeWorkerEvaluator(
   return (*factory)(spec);
 }
 
-EvaluatorCache::EvaluatorCache(EvaluatorFactory factory)
-    : factory_(std::move(factory)) {
+EvaluatorCache::EvaluatorCache(EvaluatorFactory factory, Clock* clock,
+                               CacheLimits limits)
+    : factory_(std::move(factory)),
+      clock_(clock != nullptr ? clock : Clock::Real()),
+      limits_(limits) {
   if (!factory_) factory_ = &MakeWorkerEvaluator;
+}
+
+void EvaluatorCache::ReapIdle() {
+  const absl::Time now = clock_->Now();
+  for (auto it = by_spec_.begin(); it != by_spec_.end();) {
+    it = now - it->second.last_used > limits_.max_idle ? by_spec_.erase(it)
+                                                       : std::next(it);
+  }
+}
+
+absl::Duration EvaluatorCache::TimeToNextExpiry() {
+  if (by_spec_.empty()) return limits_.max_idle;
+  absl::Time oldest = absl::InfiniteFuture();
+  for (const auto& [key, entry] : by_spec_) {
+    oldest = std::min(oldest, entry.last_used);
+  }
+  return std::max(absl::ZeroDuration(),
+                  oldest + limits_.max_idle - clock_->Now()) +
+         absl::Milliseconds(1);
 }
 
 absl::StatusOr<Evaluator*> EvaluatorCache::Get(
     const skerry::v1::EvaluatorSpec& spec) {
+  ReapIdle();
   std::string key = spec.SerializeAsString();
   auto it = by_spec_.find(key);
   if (it == by_spec_.end()) {
-    it = by_spec_
-             .emplace(
-                 std::move(key),
-                 Guarded([&]() -> absl::StatusOr<std::unique_ptr<Evaluator>> {
-                   return factory_(spec);
-                 }))
-             .first;
+    // Room for the new one: the least recently used go first.
+    while (!by_spec_.empty() &&
+           by_spec_.size() >= std::max<size_t>(limits_.max_entries, 1)) {
+      auto oldest = by_spec_.begin();
+      for (auto o = by_spec_.begin(); o != by_spec_.end(); ++o) {
+        if (o->second.last_used < oldest->second.last_used) oldest = o;
+      }
+      by_spec_.erase(oldest);
+    }
+    Entry entry{Guarded([&]() -> absl::StatusOr<std::unique_ptr<Evaluator>> {
+                  return factory_(spec);
+                }),
+                clock_->Now()};
+    it = by_spec_.emplace(std::move(key), std::move(entry)).first;
   }
-  if (!it->second.ok()) return it->second.status();
-  if (*it->second == nullptr) {
+  it->second.last_used = clock_->Now();
+  if (!it->second.evaluator.ok()) return it->second.evaluator.status();
+  if (*it->second.evaluator == nullptr) {
     return absl::InternalError("evaluator factory returned no evaluator");
   }
-  return it->second->get();
+  return it->second.evaluator->get();
 }
 
 skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,

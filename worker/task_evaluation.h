@@ -25,6 +25,8 @@
 #include "common/evaluator.h"
 #include "skerry/v1/fleet.pb.h"
 #include "skerry/v1/spec.pb.h"
+#include "worker/child_process.h"
+#include "worker/sandbox.h"
 
 namespace skerry::worker {
 
@@ -34,26 +36,57 @@ using EvaluatorFactory =
     std::function<absl::StatusOr<std::unique_ptr<Evaluator>>(
         const skerry::v1::EvaluatorSpec&)>;
 
+// What every child-process evaluator of one worker shares.
+struct ChildSetting {
+  std::shared_ptr<const Sandbox> sandbox;          // null: none
+  std::shared_ptr<child::ChildRegistry> registry;  // null: none
+  Clock* clock = nullptr;                          // null: the real clock
+};
+
 // The worker's dispatch: `external` or `isolate` -> a ProcessEvaluator (for
 // isolate, host_command is the evaluator host to run; empty: this executable
 // with --evaluator-host), anything else -> MakeEvaluator in-process.
-EvaluatorFactory WorkerEvaluatorFactory(std::vector<std::string> host_command);
+EvaluatorFactory WorkerEvaluatorFactory(std::vector<std::string> host_command,
+                                        ChildSetting setting = {});
 // WorkerEvaluatorFactory({}) applied to spec.
 absl::StatusOr<std::unique_ptr<Evaluator>> MakeWorkerEvaluator(
     const skerry::v1::EvaluatorSpec& spec);
 
+// How many evaluators a cache keeps, and for how long unused.
+struct CacheLimits {
+  size_t max_entries = 4;
+  absl::Duration max_idle = absl::Minutes(5);
+};
+
 // One thread's evaluators, keyed by the spec's serialized bytes. A spec that
 // cannot be made is remembered too, so it is not retried for every task.
+// Evaluators (and with them their child processes) are dropped when unused
+// for longer than max_idle (by Get and ReapIdle) and, least recently used
+// first, when more than max_entries are kept; a dropped one is made again
+// when its spec comes back.
 class EvaluatorCache {
  public:
-  explicit EvaluatorCache(EvaluatorFactory factory);
-  // The evaluator for spec, or why there is none. The pointer stays valid for
-  // the cache's lifetime.
+  explicit EvaluatorCache(EvaluatorFactory factory, Clock* clock = nullptr,
+                          CacheLimits limits = {});
+  // The evaluator for spec, or why there is none. The pointer stays valid
+  // until the next Get or ReapIdle.
   absl::StatusOr<Evaluator*> Get(const skerry::v1::EvaluatorSpec& spec);
+  // Drops the evaluators unused for longer than max_idle.
+  void ReapIdle();
+  // How long until ReapIdle would drop one (just past it); max_idle when the
+  // cache is empty.
+  absl::Duration TimeToNextExpiry();
+  size_t size() const { return by_spec_.size(); }
 
  private:
+  struct Entry {
+    absl::StatusOr<std::unique_ptr<Evaluator>> evaluator;
+    absl::Time last_used;
+  };
   EvaluatorFactory factory_;
-  std::map<std::string, absl::StatusOr<std::unique_ptr<Evaluator>>> by_spec_;
+  Clock* const clock_;
+  const CacheLimits limits_;
+  std::map<std::string, Entry> by_spec_;
 };
 
 // Evaluates task with its evaluator (a TASK_VALIDATE task: on the run's

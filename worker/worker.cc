@@ -25,6 +25,8 @@
 namespace skerry::worker {
 namespace {
 
+using skerry::v1::HandBackRequest;
+using skerry::v1::HandBackResponse;
 using skerry::v1::JoinRequest;
 using skerry::v1::JoinResponse;
 using skerry::v1::LeaseRequest;
@@ -149,10 +151,16 @@ class Worker::Impl {
        WorkerOptions options, Clock* clock)
       : stub_(std::move(stub)),
         options_(WithDefaults(std::move(options))),
-        clock_(clock != nullptr ? clock : Clock::Real()) {}
+        clock_(clock != nullptr ? clock : Clock::Real()),
+        registry_(std::make_shared<child::ChildRegistry>()),
+        make_evaluator_(options_.make_evaluator
+                            ? options_.make_evaluator
+                            : WorkerEvaluatorFactory(
+                                  {}, {options_.sandbox, registry_, clock_})) {}
 
   absl::Status Run();
   void Stop();
+  void KillEvaluators() { registry_->KillAll(); }
   uint64_t results_reported() const { return reported_.load(); }
   bool exited_idle() const { return exited_idle_.load(); }
 
@@ -177,6 +185,8 @@ class Worker::Impl {
   void EvalLoop();
   void ReportLoop(uint32_t seed);
   void FinalReport();
+  // Hands back every task still held (the worker is leaving).
+  void HandBackRest();
 
   // Joins unless already joined, retrying with backoff. Sets *id. False when
   // stopping or when the coordinator refused the worker for good.
@@ -220,6 +230,8 @@ class Worker::Impl {
   const std::unique_ptr<skerry::v1::FleetService::StubInterface> stub_;
   const WorkerOptions options_;
   Clock* const clock_;
+  const std::shared_ptr<child::ChildRegistry> registry_;
+  const EvaluatorFactory make_evaluator_;
 
   // Held across a Join RPC so that only one thread joins at a time.
   // Lock order: join_mu_, then mu_ or calls_mu_.
@@ -299,6 +311,7 @@ absl::Status Worker::Impl::Run() {
   }
   for (std::thread& t : threads) t.join();
   FinalReport();
+  HandBackRest();
   absl::MutexLock l(&mu_);
   return give_up_;
 }
@@ -308,6 +321,8 @@ void Worker::Impl::Stop() {
     absl::MutexLock l(&mu_);
     stopping_ = true;
   }
+  // Evaluations in progress end now; their tasks are handed back.
+  registry_->KillAll();
   absl::MutexLock l(&calls_mu_);
   cancel_calls_ = true;
   for (grpc::ClientContext* context : calls_) context->TryCancel();
@@ -331,6 +346,9 @@ bool Worker::Impl::EnsureJoined(Backoff& backoff, uint64_t* id) {
     for (const std::string& name : BuiltinNames()) request.add_evaluators(name);
     request.set_version(kVersion);
     request.set_protocol_version(kProtocolVersion);
+    request.set_sandbox(options_.sandbox != nullptr
+                            ? options_.sandbox->state()
+                            : "none: no sandbox configured");
     JoinResponse response;
     grpc::ClientContext context;
     SetDeadline(&context, options_.rpc_deadline);
@@ -385,7 +403,7 @@ bool Worker::Impl::HandleFailure(const grpc::Status& status,
 
 bool Worker::Impl::SleepUnlessStopping(absl::Duration d) {
   absl::MutexLock l(&mu_);
-  mu_.AwaitWithTimeout(absl::Condition(&stopping_), d);
+  clock_->AwaitWithTimeout(&mu_, absl::Condition(&stopping_), d);
   return !stopping_;
 }
 
@@ -482,18 +500,33 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
 }
 
 void Worker::Impl::EvalLoop() {
-  EvaluatorCache cache(options_.make_evaluator);
+  EvaluatorCache cache(make_evaluator_, clock_, options_.evaluator_cache);
   while (true) {
+    // An idle thread still lets go of evaluators unused for too long.
+    const absl::Duration idle_check = cache.TimeToNextExpiry();
     Task task;
+    bool have_task = false;
     {
       absl::MutexLock l(&mu_);
-      mu_.Await(absl::Condition(this, &Impl::TaskOrStopping));
-      if (stopping_) return;  // queued tasks are abandoned; their leases expire
-      task = std::move(queue_.front());
-      queue_.pop_front();
+      const bool woken = clock_->AwaitWithTimeout(
+          &mu_, absl::Condition(this, &Impl::TaskOrStopping), idle_check);
+      // Queued tasks stay in working_: they are handed back.
+      if (stopping_) return;
+      if (woken) {
+        task = std::move(queue_.front());
+        queue_.pop_front();
+        have_task = true;
+      }
+    }
+    if (!have_task) {
+      cache.ReapIdle();
+      continue;
     }
     TaskResult result = EvaluateTask(task, cache, clock_);
     absl::MutexLock l(&mu_);
+    // An evaluation that failed while stopping was most likely cut short by
+    // Stop(): it is handed back, not reported as a failed attempt.
+    if (stopping_ && !result.error().empty()) return;
     // The lease loop may not look again before this result is reported.
     last_busy_ = clock_->Now();
     working_.erase(task.task_id());
@@ -532,12 +565,13 @@ void Worker::Impl::ReportLoop(uint32_t seed) {
     {
       absl::MutexLock l(&mu_);
       // Wake for results, or when the held lease needs renewing.
-      const bool have_results = mu_.AwaitWithTimeout(
-          absl::Condition(this, &Impl::ResultsOrStopping), renewal_);
+      const bool have_results = clock_->AwaitWithTimeout(
+          &mu_, absl::Condition(this, &Impl::ResultsOrStopping), renewal_);
       if (stopping_) return;
       if (have_results && results_.size() < options_.batch) {
-        mu_.AwaitWithTimeout(absl::Condition(this, &Impl::BatchOrStopping),
-                             options_.report_interval);
+        clock_->AwaitWithTimeout(&mu_,
+                                 absl::Condition(this, &Impl::BatchOrStopping),
+                                 options_.report_interval);
         if (stopping_) return;
       }
       if (results_.empty() && working_.empty()) continue;
@@ -579,6 +613,23 @@ void Worker::Impl::FinalReport() {
   if (stub_->Report(&context, request, &response).ok()) CommitReported(taken);
 }
 
+void Worker::Impl::HandBackRest() {
+  HandBackRequest request;
+  {
+    absl::MutexLock l(&mu_);
+    if (!joined_) return;
+    request.set_worker_id(worker_id_);
+    for (uint64_t id : working_) request.add_task_ids(id);
+  }
+  // Also tasks of a Lease whose answer Stop() cut off.
+  request.set_all_held(true);
+  HandBackResponse response;
+  grpc::ClientContext context;
+  SetDeadline(&context, std::min(kFinalReportDeadline, options_.rpc_deadline));
+  // Failure is harmless: the leases then expire.
+  (void)stub_->HandBack(&context, request, &response);
+}
+
 Worker::Worker(std::unique_ptr<skerry::v1::FleetService::StubInterface> stub,
                WorkerOptions options, Clock* clock)
     : impl_(
@@ -589,6 +640,8 @@ Worker::~Worker() = default;
 absl::Status Worker::Run() { return impl_->Run(); }
 
 void Worker::Stop() { impl_->Stop(); }
+
+void Worker::KillEvaluators() { impl_->KillEvaluators(); }
 
 uint64_t Worker::results_reported() const { return impl_->results_reported(); }
 

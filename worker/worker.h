@@ -5,6 +5,13 @@
 // is its current lease, which is safe to lose (the coordinator re-offers
 // expired tasks).
 //
+// Stopping (Stop(): the first SIGINT or SIGTERM) is prompt: evaluator child
+// processes are killed at once (their evaluations are not reported as
+// failures), results already computed are reported, and every task still
+// held is handed back (FleetService.HandBack) so another worker can lease it
+// without waiting for the lease to expire. Every wait (backoff, report
+// interval, idle evaluators) is measured on the Clock.
+//
 // Thread safety: Run() is called once, from one thread; Stop() from any thread.
 #ifndef SKERRY_WORKER_WORKER_H_
 #define SKERRY_WORKER_WORKER_H_
@@ -18,6 +25,8 @@
 #include "absl/time/time.h"
 #include "common/clock.h"
 #include "skerry/v1/fleet.grpc.pb.h"
+#include "worker/child_process.h"
+#include "worker/sandbox.h"
 #include "worker/task_evaluation.h"
 
 namespace skerry::worker {
@@ -37,9 +46,15 @@ struct WorkerOptions {
   // (0: never). Time the coordinator is unreachable counts as idle, so a
   // worker on a batch allocation ends when its run and coordinator do.
   absl::Duration exit_when_idle = absl::ZeroDuration();
-  // Makes the evaluators (one per evaluation thread and spec). Empty:
-  // MakeEvaluator. Tests inject evaluators they control.
+  // Makes the evaluators (one per evaluation thread and spec). Empty: the
+  // worker's dispatch (WorkerEvaluatorFactory) with the sandbox below. Tests
+  // inject evaluators they control.
   EvaluatorFactory make_evaluator;
+  // Where evaluator programs run; reported at Join. Null: no sandbox.
+  std::shared_ptr<const Sandbox> sandbox;
+  // Evaluators kept per evaluation thread, and how long an unused one (and
+  // its child process) is kept.
+  CacheLimits evaluator_cache;
 };
 
 class Worker {
@@ -53,6 +68,9 @@ class Worker {
   // Asks Run() to return soon; results already computed are reported first when
   // the coordinator is reachable.
   void Stop();
+  // Kills every evaluator child process now (SIGKILL to each process group);
+  // no new one starts. Safe from any thread, e.g. before exiting at once.
+  void KillEvaluators();
 
   uint64_t results_reported() const;
   // True when Run() ended because of exit_when_idle.

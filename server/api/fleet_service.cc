@@ -46,9 +46,10 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
         absl::StrCat("threads: must be from 1 to 4096, got ", req->threads()));
   }
   if (req->name().size() > 256 || req->host().size() > 256 ||
-      req->version().size() > 256) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        "name, host and version must be at most 256 bytes");
+      req->version().size() > 256 || req->sandbox().size() > 256) {
+    return grpc::Status(
+        grpc::StatusCode::INVALID_ARGUMENT,
+        "name, host, version and sandbox must be at most 256 bytes");
   }
   size_t evaluator_bytes = 0;
   for (const std::string& e : req->evaluators())
@@ -63,6 +64,7 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
   w.threads = req->threads();
   w.evaluators = absl::StrJoin(req->evaluators(), ",");
   w.version = req->version();
+  w.sandbox = req->sandbox();
   w.joined_ms = w.last_seen_ms = clock_->WallMillis();
   absl::StatusOr<int64_t> id = store_->RegisterWorker(w);
   if (!id.ok()) return ToGrpc(id.status());
@@ -199,6 +201,23 @@ absl::Status FleetServiceImpl::CheckResult(const skerry::v1::TaskResult& r,
   // score: any double; one that is not finite is a failed attempt
   // (fleet.proto), stored with an error text and no score.
   return absl::OkStatus();
+}
+
+grpc::Status FleetServiceImpl::HandBack(grpc::ServerContext* ctx,
+                                        const skerry::v1::HandBackRequest* req,
+                                        skerry::v1::HandBackResponse* resp) {
+  grpc::Status known = CheckWorker(req->worker_id());
+  if (!known.ok()) return known;
+  if (req->task_ids_size() > kMaxResultsPerReport) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        absl::StrCat("task_ids: at most ", kMaxResultsPerReport,
+                                     ", got ", req->task_ids_size()));
+  }
+  resp->set_requeued(static_cast<uint32_t>(queue_->HandBack(
+      static_cast<int64_t>(req->worker_id()),
+      {req->task_ids().data(), static_cast<size_t>(req->task_ids_size())},
+      req->all_held())));
+  return grpc::Status::OK;
 }
 
 int FleetServiceImpl::ActiveWorkers(absl::Duration within) {

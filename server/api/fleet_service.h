@@ -1,4 +1,5 @@
-// FleetService: the workers' side of the coordinator (Join, Lease, Report).
+// FleetService: the workers' side of the coordinator (Join, Lease, Report,
+// HandBack).
 //
 // It checks every message from outside before anything reaches the engine: a
 // worker must have joined (an unknown id gets NOT_FOUND, "join again"), sizes
@@ -53,6 +54,10 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
   grpc::Status Report(grpc::ServerContext* ctx,
                       const skerry::v1::ReportRequest* req,
                       skerry::v1::ReportResponse* resp) override;
+  // A leaving worker's tasks are queued again at once (TaskQueue::HandBack).
+  grpc::Status HandBack(grpc::ServerContext* ctx,
+                        const skerry::v1::HandBackRequest* req,
+                        skerry::v1::HandBackResponse* resp) override;
 
   // Workers heard from within the last `within`.
   int ActiveWorkers(absl::Duration within);

@@ -80,6 +80,7 @@ std::map<std::string, Rule> Build() {
       {fleet + "Join", Make<v1::JoinRequest>(P::kFleet)},
       {fleet + "Lease", Make<v1::LeaseRequest>(P::kFleet)},
       {fleet + "Report", Make<v1::ReportRequest>(P::kFleet)},
+      {fleet + "HandBack", Make<v1::HandBackRequest>(P::kFleet)},
 
       {lineage + "GetGenomeNode", Make<v1::GenomeRef>(P::kRead)},
       {lineage + "StreamAncestors", Make<v1::AncestorsRequest>(P::kRead)},

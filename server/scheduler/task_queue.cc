@@ -150,7 +150,9 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
                               this),
                           wake);
   }
-  if (shutdown_) return out;
+  // A worker that has left may still have a long poll waiting here (its
+  // caller cancelled it): it must not take the tasks it handed back.
+  if (shutdown_ || departed_.count(worker) > 0) return out;
   const absl::Time deadline = clock_->Now() + lease_;
   size_t bytes = 0;
   while (out.size() < max_tasks) {
@@ -243,6 +245,30 @@ void TaskQueue::Renew(int64_t worker, absl::Span<const uint64_t> task_ids) {
     e.deadline = deadline;
     deadlines_.insert({deadline, e.info.task_id()});
   }
+}
+
+size_t TaskQueue::HandBack(int64_t worker, absl::Span<const uint64_t> task_ids,
+                           bool all_held) {
+  absl::MutexLock l(&mu_);
+  std::vector<int64_t> ids(task_ids.begin(), task_ids.end());
+  if (all_held) {
+    departed_.insert(worker);
+    for (const auto& [id, e] : tasks_) {
+      if (e.state == State::kLeased && e.holder == worker) ids.push_back(id);
+    }
+  }
+  size_t requeued = 0;
+  for (int64_t id : ids) {
+    auto t = tasks_.find(id);
+    if (t == tasks_.end()) continue;
+    Entry& e = t->second;
+    if (e.state != State::kLeased || e.holder != worker) continue;
+    DropLease(e);
+    if (e.info.attempts > 0) --e.info.attempts;
+    Enqueue(e, /*front=*/true);
+    ++requeued;
+  }
+  return requeued;
 }
 
 std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t task_id,

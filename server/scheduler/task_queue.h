@@ -140,6 +140,14 @@ class TaskQueue {
                                       size_t max_bytes = SIZE_MAX);
   // Extends the deadlines of tasks that `worker` still holds.
   void Renew(int64_t worker, absl::Span<const uint64_t> task_ids);
+  // A leaving worker gives tasks back: each of task_ids (with all_held, every
+  // task) leased to `worker` is queued again at once, at the front, and its
+  // attempt count goes back down by one (a handed-back lease is not an
+  // attempt). With all_held the worker has left: Lease calls under its id,
+  // including one still waiting whose caller has gone, hand out nothing
+  // more. Returns how many were queued again.
+  size_t HandBack(int64_t worker, absl::Span<const uint64_t> task_ids,
+                  bool all_held);
 
   // Claims a task for committing a result (see the result rule above). Returns
   // the task, or nothing when the result must be ignored.
@@ -219,6 +227,8 @@ class TaskQueue {
   uint64_t virtual_now_ ABSL_GUARDED_BY(mu_) = 0;
   bool shutdown_ ABSL_GUARDED_BY(mu_) = false;
   bool held_ ABSL_GUARDED_BY(mu_) = false;
+  // Workers that handed back everything (HandBack with all_held).
+  std::set<int64_t> departed_ ABSL_GUARDED_BY(mu_);
 };
 
 }  // namespace skerry::scheduler

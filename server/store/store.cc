@@ -127,9 +127,17 @@ CREATE INDEX validations_run ON validations (run_id, id);
 CREATE INDEX validations_pending ON validations (id) WHERE state = 1;
 )sql";
 
-// The metrics migration: evaluator metrics per genome (TaskResult.metrics).
-// Meant as version 8 once the versions of parallel branches are in; the lead
-// renumbers it at merge.
+// Version 6 is taken by another change being made at the same time; this
+// placeholder keeps the numbering until both are merged.
+constexpr const char* kSchemaV6 = "SELECT 1;";
+
+// Version 7: how each worker confines its evaluator programs (fleet.proto
+// JoinRequest.sandbox), for the worker listing.
+constexpr const char* kSchemaV7 = R"sql(
+ALTER TABLE workers ADD COLUMN sandbox TEXT NOT NULL DEFAULT '';
+)sql";
+
+// Version 8: evaluator metrics per genome (TaskResult.metrics).
 constexpr const char* kSchemaMetrics = R"sql(
 CREATE TABLE genome_metrics (
   run_id INTEGER NOT NULL,
@@ -143,8 +151,9 @@ CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h.
-constexpr const char* kMigrations[] = {
-    kSchemaV1, kSchemaV2, kSchemaV3, kSchemaV4, kSchemaAccess, kSchemaMetrics};
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,     kSchemaV3,
+                                       kSchemaV4, kSchemaAccess, kSchemaV6,
+                                       kSchemaV7, kSchemaMetrics};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -605,9 +614,10 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
 absl::StatusOr<int64_t> Store::RegisterWorker(const WorkerRecord& w) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto ins, conn_->Prepare("INSERT INTO workers (name, host, threads, "
-                               "evaluators, version, joined_ms, last_seen_ms) "
-                               "VALUES (?,?,?,?,?,?,?)"));
+      auto ins,
+      conn_->Prepare("INSERT INTO workers (name, host, threads, "
+                     "evaluators, version, joined_ms, last_seen_ms, sandbox) "
+                     "VALUES (?,?,?,?,?,?,?,?)"));
   ins.BindText(1, w.name);
   ins.BindText(2, w.host);
   ins.BindInt(3, w.threads);
@@ -615,6 +625,7 @@ absl::StatusOr<int64_t> Store::RegisterWorker(const WorkerRecord& w) {
   ins.BindText(5, w.version);
   ins.BindInt(6, w.joined_ms);
   ins.BindInt(7, w.last_seen_ms);
+  ins.BindText(8, w.sandbox);
   SKERRY_RETURN_IF_ERROR(ins.Run());
   return conn_->LastInsertId();
 }

@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 6)
+// ## Schema (version 8)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -13,7 +13,7 @@
 //   generation_stats(run_id, island, generation, best, mean, worst, diversity,
 //           evaluations, failed, eval_seconds, completed_ms)
 //   workers(id, name, host, threads, evaluators, version, joined_ms,
-//           last_seen_ms)
+//           last_seen_ms, sandbox)                 sandbox: version 7
 //   validations(id, run_id, genome_id UNIQUE, generation, reason, state,
 //           score, cases, attempts, error, requested_by, requested_ms,
 //           completed_ms, copied_from)              (version 4)
@@ -24,8 +24,7 @@
 //         message, detail)
 //        (columns and rules in server/store/access_schema.h; methods in
 //        store_access.cc)
-//   genome_metrics(run_id, genome_id, name, value)       the metrics
-//        migration (meant as version 8 at merge; here the next after 5):
+//   genome_metrics(run_id, genome_id, name, value)       version 8:
 //        an evaluator's named side measurements, at most 32 per genome
 //        (common/metric_bounds.h), PRIMARY KEY (genome_id, name); methods in
 //        metrics.cc
@@ -247,11 +246,12 @@ struct WorkerRecord {
   std::string version;
   int64_t joined_ms = 0;
   int64_t last_seen_ms = 0;
+  std::string sandbox;  // JoinRequest.sandbox: "bwrap", "none: <reason>"
 };
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 6;
+  static constexpr int kSchemaVersion = 8;
 
   // Opens (creating when missing) the database at `path`, applies the pragmas
   // and migrates an older schema. FailedPrecondition for a newer schema.

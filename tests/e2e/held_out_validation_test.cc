@@ -85,7 +85,8 @@ class ValidationE2eTest : public ::testing::Test {
   void StartWorker() {
     absl::StatusOr<testing::Process> w = testing::Process::Start(
         {SKERRY_WORKER_BIN, "--coordinator", coordinator_->address(),
-         "--threads", "2", "--name", absl::StrCat("w", workers_.size())},
+         "--threads", "2", "--name", absl::StrCat("w", workers_.size()),
+         "--evaluator-dirs", dir_.path()},
         dir_.File(absl::StrCat("worker", workers_.size(), ".log")));
     ASSERT_TRUE(w.ok()) << w.status();
     workers_.push_back(std::move(*w));

@@ -77,7 +77,8 @@ class ExternalEndToEndTest : public ::testing::Test {
   void StartWorker() {
     absl::StatusOr<testing::Process> w = testing::Process::Start(
         {SKERRY_WORKER_BIN, "--coordinator", coordinator_->address(),
-         "--threads", "2", "--name", "e2e"},
+         "--threads", "2", "--name", "e2e", "--evaluator-dirs",
+         absl::StrCat(SKERRY_EXAMPLES_DIR, ":", SKERRY_TEST_PROGRAMS_DIR)},
         dir_.File("worker.log"));
     ASSERT_TRUE(w.ok()) << w.status();
     worker_ = std::make_unique<testing::Process>(std::move(*w));

@@ -194,6 +194,7 @@ TEST_F(AccessStoreTest, Version4DatabaseIsMigratedToTheAccessTables) {
   RawExec(
       path(),
       "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
+      "ALTER TABLE workers DROP COLUMN sandbox; "
       "DROP TABLE genome_metrics; "
       "UPDATE schema_version SET version = 4; "
       "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "

@@ -390,5 +390,35 @@ TEST_F(TaskQueueTest, WaitingLeaseReturnsWhenShutdownIsCalled) {
   EXPECT_THAT(queue_.Lease(1, 10, absl::Seconds(30)), IsEmpty());
 }
 
+// HandBack: a leaving worker's tasks go back at once, before the rest of
+// the queue, and the hand-back is not counted as an attempt.
+TEST_F(TaskQueueTest, HandedBackTasksAreLeasedAgainAtOnceWithTheSameAttempt) {
+  queue_.Add(Tasks(1, 1, 4));
+  ASSERT_EQ(queue_.Lease(1, 2, kNoWait).size(), 2u);  // tasks 1, 2 to worker 1
+  ASSERT_EQ(queue_.Lease(2, 1, kNoWait).size(), 1u);  // task 3 to worker 2
+  // Task 3 is not worker 1's, task 9 is unknown: both left alone.
+  EXPECT_EQ(queue_.HandBack(1, {1, 3, 9}, /*all_held=*/false), 1u);
+  EXPECT_EQ(queue_.HandBack(1, {}, /*all_held=*/true), 1u);  // task 2
+  std::vector<skerry::v1::Task> again = queue_.Lease(3, 10, kNoWait);
+  EXPECT_THAT(Ids(again), ElementsAre(2, 1, 4));
+  for (const skerry::v1::Task& t : again) EXPECT_EQ(t.attempt(), 1u);
+  EXPECT_EQ(queue_.counts().leased, 4u);
+}
+
+// Regression: a worker that left had a long poll still waiting at the
+// coordinator (its caller had cancelled it); that call took the tasks the
+// worker had just handed back, for a whole lease.
+TEST_F(TaskQueueTest, ALeftWorkersWaitingLeaseTakesNothing) {
+  queue_.Add(Tasks(1, 1, 2));
+  ASSERT_EQ(queue_.Lease(1, 2, kNoWait).size(), 2u);
+  std::vector<skerry::v1::Task> forgotten;
+  std::thread waiting(
+      [&] { forgotten = queue_.Lease(1, 10, absl::Seconds(30)); });
+  EXPECT_EQ(queue_.HandBack(1, {1, 2}, /*all_held=*/true), 2u);
+  waiting.join();
+  EXPECT_THAT(forgotten, IsEmpty());
+  EXPECT_THAT(Ids(queue_.Lease(2, 10, kNoWait)), ElementsAre(2, 1));
+}
+
 }  // namespace
 }  // namespace skerry::scheduler

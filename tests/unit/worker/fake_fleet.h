@@ -2,8 +2,9 @@
 // 127.0.0.1 (port 0) that hands out a fixed set of tasks, records every Join,
 // Lease and Report, and can be told to fail calls or to forget its workers.
 //
-// Invariant: a task is handed out at most once (no lease expiry), so a task
-// reported twice means the worker evaluated or reported it twice.
+// Invariant: a task is handed out at most once (no lease expiry) unless it
+// is handed back (HandBack queues it again, at the front), so a task reported
+// twice means the worker evaluated or reported it twice.
 //
 // Thread safety: every method may be called from any thread; the gRPC handlers
 // run on the server's threads.
@@ -17,6 +18,7 @@
 #include <memory>
 #include <set>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "absl/strings/str_cat.h"
@@ -49,6 +51,8 @@ struct FleetState {
   std::set<uint64_t> leased;                           // handed out so far
   int failed_calls = 0;
   int leases_waiting = 0;  // Lease calls now in their long poll
+  std::vector<skerry::v1::HandBackRequest> hand_backs;
+  std::set<uint64_t> handed_back;  // task ids queued again by HandBack
 };
 
 class FakeFleet final : public skerry::v1::FleetService::Service {
@@ -138,6 +142,8 @@ class FakeFleet final : public skerry::v1::FleetService::Service {
     state_.leases.push_back(*request);
     for (uint32_t i = 0; i < request->max_tasks() && !pending_.empty(); ++i) {
       state_.leased.insert(pending_.front().task_id());
+      held_[pending_.front().task_id()] = {request->worker_id(),
+                                           pending_.front()};
       *response->add_tasks() = pending_.front();
       pending_.pop_front();
     }
@@ -166,6 +172,7 @@ class FakeFleet final : public skerry::v1::FleetService::Service {
     }
     uint32_t accepted = 0;
     for (const auto& r : record.results) {
+      held_.erase(r.task_id());
       if (++state_.times_reported[r.task_id()] == 1) {
         state_.results[r.task_id()] = r;
         ++accepted;
@@ -175,6 +182,34 @@ class FakeFleet final : public skerry::v1::FleetService::Service {
     response->set_ignored(static_cast<uint32_t>(record.results.size()) -
                           accepted);
     state_.reports.push_back(std::move(record));
+    return grpc::Status::OK;
+  }
+
+  grpc::Status HandBack(grpc::ServerContext*,
+                        const skerry::v1::HandBackRequest* request,
+                        skerry::v1::HandBackResponse* response) override {
+    absl::MutexLock l(&mu_);
+    if (known_ids_.count(request->worker_id()) == 0) return UnknownWorker();
+    state_.hand_backs.push_back(*request);
+    std::set<uint64_t> ids(request->task_ids().begin(),
+                           request->task_ids().end());
+    if (request->all_held()) {
+      for (const auto& [id, held] : held_) {
+        if (held.first == request->worker_id()) ids.insert(id);
+      }
+    }
+    uint32_t requeued = 0;
+    for (uint64_t id : ids) {
+      auto it = held_.find(id);
+      if (it == held_.end() || it->second.first != request->worker_id()) {
+        continue;
+      }
+      pending_.push_front(it->second.second);
+      state_.handed_back.insert(id);
+      held_.erase(it);
+      ++requeued;
+    }
+    response->set_requeued(requeued);
     return grpc::Status::OK;
   }
 
@@ -199,6 +234,9 @@ class FakeFleet final : public skerry::v1::FleetService::Service {
   absl::Mutex mu_;
   FleetState state_ ABSL_GUARDED_BY(mu_);
   std::deque<skerry::v1::Task> pending_ ABSL_GUARDED_BY(mu_);
+  // Leased and not reported: task id -> (worker id, task).
+  std::map<uint64_t, std::pair<uint64_t, skerry::v1::Task>> held_
+      ABSL_GUARDED_BY(mu_);
   std::set<uint64_t> known_ids_ ABSL_GUARDED_BY(mu_);
   uint64_t next_id_ ABSL_GUARDED_BY(mu_) = 101;
   double lease_seconds_ ABSL_GUARDED_BY(mu_) = 30.0;

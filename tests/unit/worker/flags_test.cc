@@ -1,5 +1,6 @@
 #include "worker/flags.h"
 
+#include <cstdlib>
 #include <string>
 #include <vector>
 
@@ -165,6 +166,49 @@ TEST(WorkerFlagsTest, AMistypedFlagDoesNotEchoItsValue) {
   ASSERT_FALSE(f.ok());
   EXPECT_THAT(std::string(f.status().message()),
               ::testing::Not(::testing::HasSubstr("secretvalue")));
+}
+
+TEST(WorkerFlagsTest, SandboxDefaultsToAutoAndTakesEvaluatorFolders) {
+  absl::StatusOr<WorkerFlags> plain =
+      ParseWorkerFlags({"--coordinator", "h:1", "--threads", "1"});
+  ASSERT_TRUE(plain.ok()) << plain.status();
+  EXPECT_EQ(plain->sandbox, SandboxMode::kAuto);
+  EXPECT_TRUE(plain->evaluator_dirs.empty());
+  absl::StatusOr<WorkerFlags> f = ParseWorkerFlags(
+      {"--coordinator", "h:1", "--threads", "1", "--sandbox=none",
+       "--evaluator-dirs", "/opt/evaluators:/srv/models"});
+  ASSERT_TRUE(f.ok()) << f.status();
+  EXPECT_EQ(f->sandbox, SandboxMode::kNone);
+  EXPECT_EQ(f->evaluator_dirs,
+            (std::vector<std::string>{"/opt/evaluators", "/srv/models"}));
+  EXPECT_THAT(std::string(ParseWorkerFlags({"--coordinator", "h:1", "--threads",
+                                            "1", "--sandbox", "off"})
+                              .status()
+                              .message()),
+              HasSubstr("--sandbox: expected auto, bwrap or none"));
+  EXPECT_THAT(std::string(ParseWorkerFlags({"--coordinator", "h:1", "--threads",
+                                            "1", "--evaluator-dirs", "rel/dir"})
+                              .status()
+                              .message()),
+              HasSubstr("--evaluator-dirs: expected absolute folders"));
+  EXPECT_THAT(WorkerUsage(), HasSubstr("--sandbox MODE"));
+}
+
+// The token leaves argv and the environment once read, so /proc/PID/cmdline
+// and /proc/PID/environ no longer show it.
+TEST(WorkerFlagsTest, ScrubTokenOverwritesArgvAndTheEnvironment) {
+  char prog[] = "skerry-worker";
+  char flag[] = "--token";
+  char value[] = "skt_secret";
+  char joined[] = "--token=skt_other";
+  char* argv[] = {prog, flag, value, joined, nullptr};
+  setenv("SKERRY_TOKEN", "skt_env", 1);
+  const char* env_value = std::getenv("SKERRY_TOKEN");
+  ASSERT_NE(env_value, nullptr);
+  ScrubTokenFromProcess(4, argv);
+  EXPECT_EQ(std::string(value), "xxxxxxxxxx");
+  EXPECT_EQ(std::string(joined), "--token=xxxxxxxxx");
+  EXPECT_EQ(std::getenv("SKERRY_TOKEN"), nullptr);
 }
 
 TEST(WorkerFlagsTest, ExitWhenIdleTakesWholeSecondsInItsRange) {

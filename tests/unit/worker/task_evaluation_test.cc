@@ -135,5 +135,71 @@ TEST(EvaluatorCacheTest, AFactoryFailureIsRememberedAndReported) {
   EXPECT_EQ(made, 1);
 }
 
+// An evaluator that counts the live instances (for the cache's limits).
+class Counted : public Evaluator {
+ public:
+  explicit Counted(int* live) : live_(live) { ++*live_; }
+  ~Counted() override { --*live_; }
+  absl::StatusOr<double> Evaluate(absl::Span<const double>, uint64_t) override {
+    return 1.0;
+  }
+
+ private:
+  int* live_;
+};
+
+TEST(EvaluatorCacheTest, UnusedEvaluatorIsDroppedAfterTheIdleTime) {
+  FakeClock clock;
+  int live = 0;
+  CacheLimits limits;
+  limits.max_idle = absl::Minutes(5);
+  EvaluatorCache cache(
+      [&](const skerry::v1::EvaluatorSpec&)
+          -> absl::StatusOr<std::unique_ptr<Evaluator>> {
+        return std::make_unique<Counted>(&live);
+      },
+      &clock, limits);
+  EvaluateTask(MakeTask("sphere", {1.0}), cache, &clock);
+  EvaluateTask(MakeTask("rastrigin", {1.0}), cache, &clock);
+  EXPECT_EQ(live, 2);
+  clock.Advance(absl::Minutes(3));
+  EvaluateTask(MakeTask("sphere", {1.0}), cache, &clock);  // used again
+  clock.Advance(absl::Minutes(3));
+  cache.ReapIdle();
+  EXPECT_EQ(live, 1) << "rastrigin was idle for 6 minutes, sphere for 3";
+  EXPECT_EQ(cache.TimeToNextExpiry(), absl::Minutes(2) + absl::Milliseconds(1));
+  clock.Advance(absl::Minutes(3));
+  cache.ReapIdle();
+  EXPECT_EQ(live, 0);
+  EXPECT_EQ(cache.size(), 0u);
+}
+
+TEST(EvaluatorCacheTest, KeepsAtMostMaxEntriesDroppingTheLeastRecentlyUsed) {
+  FakeClock clock;
+  int live = 0;
+  int made = 0;
+  CacheLimits limits;
+  limits.max_entries = 2;
+  EvaluatorCache cache(
+      [&](const skerry::v1::EvaluatorSpec&)
+          -> absl::StatusOr<std::unique_ptr<Evaluator>> {
+        ++made;
+        return std::make_unique<Counted>(&live);
+      },
+      &clock, limits);
+  for (const char* f : {"sphere", "rastrigin", "sphere", "ackley"}) {
+    clock.Advance(absl::Seconds(1));
+    EvaluateTask(MakeTask(f, {1.0}), cache, &clock);
+    EXPECT_LE(live, 2);
+  }
+  EXPECT_EQ(made, 3);
+  // rastrigin was the least recently used: made again; sphere was kept.
+  EvaluateTask(MakeTask("sphere", {1.0}), cache, &clock);
+  EXPECT_EQ(made, 3);
+  EvaluateTask(MakeTask("rastrigin", {1.0}), cache, &clock);
+  EXPECT_EQ(made, 4);
+  EXPECT_EQ(live, 2);
+}
+
 }  // namespace
 }  // namespace skerry::worker

@@ -5,13 +5,16 @@
 #include <atomic>
 #include <cmath>
 #include <memory>
+#include <set>
 #include <string>
 #include <thread>
 #include <vector>
 
 #include "absl/status/status.h"
 #include "absl/synchronization/notification.h"
+#include "absl/time/clock.h"
 #include "absl/time/time.h"
+#include "common/clock.h"
 #include "common/version.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
@@ -31,6 +34,24 @@ using ::testing::IsEmpty;
 using ::testing::Not;
 
 constexpr absl::Duration kLimit = absl::Seconds(30);
+
+}  // namespace
+}  // namespace skerry::worker
+
+namespace skerry::testing {
+// Waits (real time, bounded) until n == want.
+bool WaitForCount(const std::atomic<int>& n, int want, absl::Duration limit) {
+  const absl::Time end = absl::Now() + limit;
+  while (n.load() != want) {
+    if (absl::Now() >= end) return false;
+    absl::SleepFor(absl::Milliseconds(5));
+  }
+  return true;
+}
+}  // namespace skerry::testing
+
+namespace skerry::worker {
+namespace {
 // genes[0] of a task whose evaluation waits for the test's gate.
 constexpr double kGatedMarker = 1000.0;
 
@@ -90,10 +111,11 @@ class GatedSphere : public Evaluator {
 // Runs a worker on its own thread; stops and joins it on destruction.
 class RunningWorker {
  public:
-  RunningWorker(const std::string& address, WorkerOptions options)
+  RunningWorker(const std::string& address, WorkerOptions options,
+                Clock* clock = Clock::Real())
       : worker_(skerry::v1::FleetService::NewStub(
                     CreateCoordinatorChannel(address, absl::Milliseconds(200))),
-                std::move(options), Clock::Real()),
+                std::move(options), clock),
         thread_([this] {
           status_ = worker_.Run();
           done_.Notify();
@@ -397,6 +419,92 @@ TEST_F(WorkerTest, RefusedJoinEndsRunWithTheCoordinatorsError) {
   ASSERT_TRUE(w.WaitDone());
   EXPECT_EQ(w.status().code(), absl::StatusCode::kPermissionDenied);
   EXPECT_THAT(w.status().message(), HasSubstr("Join"));
+}
+
+// Regression for "SIGINT leaves tasks to wait for their lease to expire":
+// Stop() reports what is done and hands every other task back at once, and
+// none of them is reported as a failed attempt.
+TEST_F(WorkerTest, StopHandsBackTheTasksItHoldsAndReportsNoneAsFailed) {
+  std::vector<Task> tasks = {MakeTask(1, "sphere", {kGatedMarker, 1.0}),
+                             MakeTask(2), MakeTask(3), MakeTask(4)};
+  fleet().AddTasks(tasks);
+  // One thread: task 1 waits for the gate, 2 to 4 wait in the local queue.
+  RunningWorker w(server_.address(), GatedOptions(1, 4));
+  ASSERT_TRUE(fleet().WaitUntil(
+      [](const FleetState& s) { return s.leased.size() == 4; }));
+  w.worker().Stop();
+  OpenGate();
+  ASSERT_TRUE(w.WaitDone());
+  EXPECT_TRUE(w.status().ok()) << w.status();
+  const FleetState s = fleet().Snapshot();
+  ASSERT_EQ(s.hand_backs.size(), 1u);
+  EXPECT_TRUE(s.hand_backs[0].all_held());
+  EXPECT_EQ(s.hand_backs[0].worker_id(), 101u);
+  // Tasks 2 to 4 never started; task 1 finished if it had started (the
+  // gate held it, not Stop), else it went back too. Each is one or the
+  // other, and no result is a failure.
+  for (uint64_t id : {2, 3, 4}) {
+    EXPECT_EQ(s.handed_back.count(id), 1u) << id;
+    EXPECT_EQ(s.results.count(id), 0u) << id;
+  }
+  EXPECT_NE(s.handed_back.count(1), s.results.count(1));
+  for (const auto& [id, r] : s.results) EXPECT_EQ(r.error(), "") << id;
+}
+
+// The backoff after a failed call waits on the worker's clock: with a fake
+// clock nothing is retried until the test moves time.
+TEST_F(WorkerTest, BackoffWaitsOnTheClock) {
+  FakeClock clock;
+  fleet().FailJoins(1);
+  RunningWorker w(server_.address(), Options(1, 1), &clock);
+  ASSERT_TRUE(fleet().WaitUntil(
+      [](const FleetState& s) { return s.failed_calls == 1; }));
+  ASSERT_TRUE(clock.AwaitWaiters(1));  // the backoff
+  EXPECT_THAT(fleet().Snapshot().joins, IsEmpty());
+  clock.Advance(absl::Milliseconds(200));  // the cap: any delay has passed
+  EXPECT_TRUE(fleet().WaitUntil(
+      [](const FleetState& s) { return s.joins.size() == 1; }));
+}
+
+// Regression for "a long-lived worker keeps an evaluator process per thread
+// for every evaluator spec it has ever run": an idle one is let go (on the
+// clock) even when the thread gets no more tasks.
+TEST_F(WorkerTest, IdleEvaluatorsAreLetGoOnTheClock) {
+  FakeClock clock;
+  auto live = std::make_shared<std::atomic<int>>(0);
+  class Counted : public Evaluator {
+   public:
+    explicit Counted(std::shared_ptr<std::atomic<int>> live)
+        : live_(std::move(live)) {
+      ++*live_;
+    }
+    ~Counted() override { --*live_; }
+    absl::StatusOr<double> Evaluate(absl::Span<const double>,
+                                    uint64_t) override {
+      return 1.0;
+    }
+
+   private:
+    std::shared_ptr<std::atomic<int>> live_;
+  };
+  WorkerOptions options = Options(1, 4);
+  options.evaluator_cache.max_idle = absl::Minutes(5);
+  options.make_evaluator = [live](const skerry::v1::EvaluatorSpec&)
+      -> absl::StatusOr<std::unique_ptr<Evaluator>> {
+    return std::make_unique<Counted>(live);
+  };
+  fleet().AddTasks(
+      {MakeTask(1, "sphere"), MakeTask(2, "rastrigin"), MakeTask(3, "ackley")});
+  RunningWorker w(server_.address(), options, &clock);
+  ASSERT_TRUE(
+      fleet().WaitUntil([](const FleetState& s) { return AllReported(s, 3); }));
+  EXPECT_EQ(*live, 3);
+  clock.Advance(absl::Minutes(4));
+  // Not yet idle for five minutes.
+  EXPECT_FALSE(
+      ::skerry::testing::WaitForCount(*live, 0, absl::Milliseconds(300)));
+  clock.Advance(absl::Minutes(2));
+  EXPECT_TRUE(::skerry::testing::WaitForCount(*live, 0, absl::Seconds(30)));
 }
 
 TEST_F(WorkerTest, BadOptionsAreRejectedByRun) {

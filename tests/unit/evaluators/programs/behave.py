@@ -15,6 +15,7 @@ flaky      like good, but a negative first gene makes it crash (traceback)
 episode    score = episode number; metrics: seed
 fds        score = how many descriptors besides 0, 1, 2 it holds
 env        score = float($SKERRY_TEST_VALUE); error unless cwd == argv[2]
+env_names  score 0; metrics: one entry (value 1) per environment variable
 partial    writes half a line and exits
 """
 import json
@@ -49,12 +50,14 @@ for line in sys.stdin:
         print("behave: about to fail on request %s" % rid, file=sys.stderr)
         raise RuntimeError("simulated crash in the model")  # exit status 1
     elif mode == "hang":
+        # The stderr line comes first: once the pid file exists, it is in
+        # the pipe.
+        print("behave: hanging on request %s" % rid, file=sys.stderr, flush=True)
         if len(sys.argv) > 2:
             child = subprocess.Popen(["sleep", "1000"])
             with open(sys.argv[2] + ".tmp", "w") as f:
                 f.write(str(child.pid))
             os.rename(sys.argv[2] + ".tmp", sys.argv[2])
-        print("behave: hanging on request %s" % rid, file=sys.stderr, flush=True)
         time.sleep(1000)
     elif mode == "garbage":
         print("behave: printing garbage", file=sys.stderr, flush=True)
@@ -84,6 +87,9 @@ for line in sys.stdin:
             reply({"id": rid, "error": "cwd is " + os.getcwd()})
         else:
             reply({"id": rid, "score": float(os.environ["SKERRY_TEST_VALUE"])})
+    elif mode == "env_names":
+        reply({"id": rid, "score": 0.0,
+               "metrics": {name: 1 for name in os.environ}})
     elif mode == "partial":
         sys.stdout.write('{"id": ')
         sys.stdout.flush()
