@@ -94,149 +94,149 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   ASSERT_TRUE((*again)->RegisterWorker(w).ok());
   EXPECT_EQ(RawQuery(path(), "SELECT sandbox FROM workers WHERE name = 'new'"),
             "bwrap");
-  // A database of the version before the metrics migration gains the
-  // genome_metrics table and keeps its data.
-  TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
-    store_.reset();
-    RawExec(path(),
-            "DROP TABLE genome_metrics; "
-            "UPDATE schema_version SET version = 7; "
-            "INSERT INTO workers (name, host, threads, evaluators, version, "
-            "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
-    absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
-    ASSERT_TRUE(again.ok()) << again.status();
-    EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
-    EXPECT_EQ(RawQuery(path(),
-                       "SELECT count(*) FROM sqlite_master WHERE name IN "
-                       "('genome_metrics', 'genome_metrics_run')"),
-              "2");
-    EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "kept");
+}
+
+// A database of the version before the metrics migration gains the
+// genome_metrics table and keeps its data.
+TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
+  store_.reset();
+  RawExec(path(),
+          "DROP TABLE genome_metrics; "
+          "UPDATE schema_version SET version = 7; "
+          "INSERT INTO workers (name, host, threads, evaluators, version, "
+          "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(RawQuery(path(),
+                     "SELECT count(*) FROM sqlite_master WHERE name IN "
+                     "('genome_metrics', 'genome_metrics_run')"),
+            "2");
+  EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "kept");
+}
+
+TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
+  store_.reset();
+  const int newer = Store::kSchemaVersion + 1;
+  RawExec(path(), absl::StrCat("UPDATE schema_version SET version = ", newer));
+  const std::string before = ReadFileBytes(path());
+
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path());
+  ASSERT_FALSE(store.ok());
+  EXPECT_EQ(store.status().code(), absl::StatusCode::kFailedPrecondition)
+      << store.status();
+  EXPECT_THAT(Message(store.status()),
+              HasSubstr(absl::StrCat("version ", newer)));
+  EXPECT_THAT(Message(store.status()),
+              HasSubstr(absl::StrCat("version ", Store::kSchemaVersion)));
+  EXPECT_THAT(Message(store.status()), HasSubstr(path()));
+
+  EXPECT_EQ(RawQuery(path(), "SELECT max(version) FROM schema_version"),
+            absl::StrCat(newer));
+  EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
+}
+
+TEST(StoreForeignFileTest, ForeignTablesWithoutSchemaVersionAreRefused) {
+  TempDir dir;
+  const std::string path = dir.File("other.db");
+  RawExec(path,
+          "CREATE TABLE inventory (item TEXT, count INTEGER);"
+          "INSERT INTO inventory VALUES ('rope', 3);");
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+  EXPECT_EQ(store.status().code(), absl::StatusCode::kFailedPrecondition)
+      << store.status();
+  EXPECT_THAT(Message(store.status()), HasSubstr("schema_version"));
+  EXPECT_THAT(Message(store.status()), HasSubstr(path));
+  // The foreign data is still there and no table of ours was added.
+  EXPECT_EQ(RawQuery(path, "SELECT count FROM inventory WHERE item = 'rope'"),
+            "3");
+  EXPECT_EQ(RawQuery(path, "SELECT count(*) FROM sqlite_master"), "1");
+}
+
+// Refusing a database that is not ours must not modify it in any way.
+TEST(StoreForeignFileTest, ForeignDatabaseFileIsLeftByteForByteUnchanged) {
+  TempDir dir;
+  const std::string path = dir.File("other.db");
+  RawExec(path,
+          "CREATE TABLE inventory (item TEXT, count INTEGER);"
+          "INSERT INTO inventory VALUES ('rope', 3);");
+  const std::string before = ReadFileBytes(path);
+  ASSERT_EQ(RawQuery(path, "PRAGMA journal_mode"), "delete");
+
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+
+  EXPECT_EQ(RawQuery(path, "PRAGMA journal_mode"), "delete")
+      << "Store::Open switched a database it refused to WAL mode";
+  EXPECT_TRUE(ReadFileBytes(path) == before) << "the refused file changed";
+}
+
+TEST(StoreForeignFileTest, NonDatabaseFileIsRefusedWithClearError) {
+  TempDir dir;
+  const std::string path = dir.File("notes.txt");
+  const std::string text =
+      "These are the notes of a field trip, not a database. They go on for a "
+      "while so that the file is longer than a database header would be.\n";
+  {
+    std::ofstream out(path, std::ios::binary);
+    out << text << text << text;
   }
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+  EXPECT_NE(store.status().code(), absl::StatusCode::kInternal)
+      << store.status();
+  EXPECT_THAT(Message(store.status()), HasSubstr("not a database"));
+  EXPECT_THAT(Message(store.status()), HasSubstr(path));
+  EXPECT_TRUE(ReadFileBytes(path) == text + text + text)
+      << "the refused file changed";
+}
 
-  TEST_F(StoreOpenTest,
-         NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
-    store_.reset();
-    const int newer = Store::kSchemaVersion + 1;
-    RawExec(path(),
-            absl::StrCat("UPDATE schema_version SET version = ", newer));
-    const std::string before = ReadFileBytes(path());
+TEST(StoreForeignFileTest, MissingDirectoryIsRefusedNamingThePath) {
+  TempDir dir;
+  const std::string path = dir.File("no/such/dir/skerry.db");
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  ASSERT_FALSE(store.ok());
+  EXPECT_THAT(Message(store.status()), HasSubstr(path));
+}
 
-    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path());
-    ASSERT_FALSE(store.ok());
-    EXPECT_EQ(store.status().code(), absl::StatusCode::kFailedPrecondition)
-        << store.status();
-    EXPECT_THAT(Message(store.status()),
-                HasSubstr(absl::StrCat("version ", newer)));
-    EXPECT_THAT(Message(store.status()),
-                HasSubstr(absl::StrCat("version ", Store::kSchemaVersion)));
-    EXPECT_THAT(Message(store.status()), HasSubstr(path()));
+// ---- Pragmas ----
 
-    EXPECT_EQ(RawQuery(path(), "SELECT max(version) FROM schema_version"),
-              absl::StrCat(newer));
-    EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
-  }
+// Captures the handle of every connection opened in this process, so the test
+// can ask the store's own connection for its per-connection pragmas.
+std::vector<sqlite3*>* OpenedConnections() {
+  static auto* v = new std::vector<sqlite3*>();
+  return v;
+}
 
-  TEST(StoreForeignFileTest, ForeignTablesWithoutSchemaVersionAreRefused) {
-    TempDir dir;
-    const std::string path = dir.File("other.db");
-    RawExec(path,
-            "CREATE TABLE inventory (item TEXT, count INTEGER);"
-            "INSERT INTO inventory VALUES ('rope', 3);");
-    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
-    ASSERT_FALSE(store.ok());
-    EXPECT_EQ(store.status().code(), absl::StatusCode::kFailedPrecondition)
-        << store.status();
-    EXPECT_THAT(Message(store.status()), HasSubstr("schema_version"));
-    EXPECT_THAT(Message(store.status()), HasSubstr(path));
-    // The foreign data is still there and no table of ours was added.
-    EXPECT_EQ(RawQuery(path, "SELECT count FROM inventory WHERE item = 'rope'"),
-              "3");
-    EXPECT_EQ(RawQuery(path, "SELECT count(*) FROM sqlite_master"), "1");
-  }
+int CaptureConnection(sqlite3* db, const char** /*err*/,
+                      const sqlite3_api_routines* /*api*/) {
+  OpenedConnections()->push_back(db);
+  return SQLITE_OK;
+}
 
-  // Refusing a database that is not ours must not modify it in any way.
-  TEST(StoreForeignFileTest, ForeignDatabaseFileIsLeftByteForByteUnchanged) {
-    TempDir dir;
-    const std::string path = dir.File("other.db");
-    RawExec(path,
-            "CREATE TABLE inventory (item TEXT, count INTEGER);"
-            "INSERT INTO inventory VALUES ('rope', 3);");
-    const std::string before = ReadFileBytes(path);
-    ASSERT_EQ(RawQuery(path, "PRAGMA journal_mode"), "delete");
+TEST(StorePragmaTest, JournalModeIsWalAndSynchronousIsFull) {
+  TempDir dir;
+  const std::string path = dir.File("skerry.db");
+  OpenedConnections()->clear();
+  ASSERT_EQ(sqlite3_auto_extension(
+                reinterpret_cast<void (*)(void)>(&CaptureConnection)),
+            SQLITE_OK);
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
+  sqlite3_cancel_auto_extension(
+      reinterpret_cast<void (*)(void)>(&CaptureConnection));
+  ASSERT_TRUE(store.ok()) << store.status();
+  ASSERT_EQ(OpenedConnections()->size(), 1u);
+  sqlite3* conn = OpenedConnections()->front();
 
-    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
-    ASSERT_FALSE(store.ok());
-
-    EXPECT_EQ(RawQuery(path, "PRAGMA journal_mode"), "delete")
-        << "Store::Open switched a database it refused to WAL mode";
-    EXPECT_TRUE(ReadFileBytes(path) == before) << "the refused file changed";
-  }
-
-  TEST(StoreForeignFileTest, NonDatabaseFileIsRefusedWithClearError) {
-    TempDir dir;
-    const std::string path = dir.File("notes.txt");
-    const std::string text =
-        "These are the notes of a field trip, not a database. They go on for a "
-        "while so that the file is longer than a database header would be.\n";
-    {
-      std::ofstream out(path, std::ios::binary);
-      out << text << text << text;
-    }
-    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
-    ASSERT_FALSE(store.ok());
-    EXPECT_NE(store.status().code(), absl::StatusCode::kInternal)
-        << store.status();
-    EXPECT_THAT(Message(store.status()), HasSubstr("not a database"));
-    EXPECT_THAT(Message(store.status()), HasSubstr(path));
-    EXPECT_TRUE(ReadFileBytes(path) == text + text + text)
-        << "the refused file changed";
-  }
-
-  TEST(StoreForeignFileTest, MissingDirectoryIsRefusedNamingThePath) {
-    TempDir dir;
-    const std::string path = dir.File("no/such/dir/skerry.db");
-    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
-    ASSERT_FALSE(store.ok());
-    EXPECT_THAT(Message(store.status()), HasSubstr(path));
-  }
-
-  // ---- Pragmas ----
-
-  // Captures the handle of every connection opened in this process, so the test
-  // can ask the store's own connection for its per-connection pragmas.
-  std::vector<sqlite3*>* OpenedConnections() {
-    static auto* v = new std::vector<sqlite3*>();
-    return v;
-  }
-
-  int CaptureConnection(sqlite3 * db, const char** /*err*/,
-                        const sqlite3_api_routines* /*api*/) {
-    OpenedConnections()->push_back(db);
-    return SQLITE_OK;
-  }
-
-  TEST(StorePragmaTest, JournalModeIsWalAndSynchronousIsFull) {
-    TempDir dir;
-    const std::string path = dir.File("skerry.db");
-    OpenedConnections()->clear();
-    ASSERT_EQ(sqlite3_auto_extension(
-                  reinterpret_cast<void (*)(void)>(&CaptureConnection)),
-              SQLITE_OK);
-    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path);
-    sqlite3_cancel_auto_extension(
-        reinterpret_cast<void (*)(void)>(&CaptureConnection));
-    ASSERT_TRUE(store.ok()) << store.status();
-    ASSERT_EQ(OpenedConnections()->size(), 1u);
-    sqlite3* conn = OpenedConnections()->front();
-
-    EXPECT_EQ(RawQuery(conn, "PRAGMA journal_mode"), "wal");
-    // synchronous: 0 OFF, 1 NORMAL, 2 FULL, 3 EXTRA (sqlite.org/pragma.html).
-    EXPECT_EQ(RawQuery(conn, "PRAGMA synchronous"), "2");
-    EXPECT_EQ(RawQuery(conn, "PRAGMA busy_timeout"), "5000");
-    EXPECT_EQ(RawQuery(conn, "PRAGMA foreign_keys"), "0");
-    // WAL is a property of the file: a fresh connection sees it too.
-    EXPECT_EQ(RawQuery(path, "PRAGMA journal_mode"), "wal");
-  }
+  EXPECT_EQ(RawQuery(conn, "PRAGMA journal_mode"), "wal");
+  // synchronous: 0 OFF, 1 NORMAL, 2 FULL, 3 EXTRA (sqlite.org/pragma.html).
+  EXPECT_EQ(RawQuery(conn, "PRAGMA synchronous"), "2");
+  EXPECT_EQ(RawQuery(conn, "PRAGMA busy_timeout"), "5000");
+  EXPECT_EQ(RawQuery(conn, "PRAGMA foreign_keys"), "0");
+  // WAL is a property of the file: a fresh connection sees it too.
+  EXPECT_EQ(RawQuery(path, "PRAGMA journal_mode"), "wal");
+}
 
 }  // namespace
 }  // namespace skerry::store
