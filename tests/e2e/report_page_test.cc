@@ -229,9 +229,11 @@ class ReportPageTest : public ::testing::Test {
     ASSERT_EQ(r.exit_code, 0) << r.output;
   }
 
-  void StartWorker(const std::string& token) {
+  void StartWorker(const std::string& token,
+                   const std::vector<std::string>& extra = {}) {
     std::vector<std::string> argv = {SKERRY_WORKER_BIN, "--coordinator",
                                      coordinator_->address(), "--threads", "2"};
+    argv.insert(argv.end(), extra.begin(), extra.end());
     if (!token.empty()) {
       argv.push_back("--token");
       argv.push_back(token);
@@ -522,7 +524,9 @@ ga { population_size: 8 elites: 1 }
 islands { count: 2 interval: 2 migrants: 1 }
 stop { max_generations: 5 }
 )"));
-  StartWorker("");
+  // The evaluator program lives in the test's folder: let the sandbox show
+  // it.
+  StartWorker("", {"--evaluator-dirs", dir_.path()});
   testing::CommandResult w =
       RunCommand(Cli({"watch", "1"}), absl::Seconds(300));
   ASSERT_EQ(w.exit_code, 0) << w.output;
