@@ -5,6 +5,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/strip.h"
 #include "absl/time/clock.h"
+#include "cli/client.h"
 #include "cli/commands.h"
 #include "cli/format.h"
 #include "grpcpp/client_context.h"
@@ -13,10 +14,10 @@
 namespace skerry::cli {
 namespace {
 
-constexpr absl::Duration kDeadline = absl::Seconds(10);
+constexpr absl::Duration kDeadline = absl::Seconds(30);
 
 void SetDeadline(grpc::ClientContext* ctx) {
-  ctx->set_deadline(absl::ToChronoTime(absl::Now() + kDeadline));
+  ctx->set_deadline(absl::ToChronoTime(absl::Now() + CallDeadline(kDeadline)));
 }
 
 int Usage(const std::string& command, const std::string& what, Io& io) {

@@ -214,7 +214,8 @@ absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
           "", absl::StrCat("unknown option '", arg.substr(0, arg.find('=')),
                            "' (options before the command: --coordinator, "
                            "--token, --token-file, --tls-ca, --tls-cert, "
-                           "--tls-key, --tls-server-name, --help, --version)"));
+                           "--tls-key, --tls-server-name, --timeout, --help, "
+                           "--version)"));
     }
     if (!token.has_value) {
       if (i + 1 >= args.size()) {
@@ -482,6 +483,11 @@ std::string GeneralHelp() {
       "$SKERRY_TLS_KEY)\n"
       "  --tls-server-name NAME   name to expect in the coordinator's "
       "certificate\n"
+      "  --timeout SECONDS        how long each call, and each connection "
+      "attempt,\n"
+      "                           may take, 1-3600 (default: 30 s per call, "
+      "20 s\n"
+      "                           to connect; raise it on slow links)\n"
       "  --help                   this help; `skerry COMMAND --help` for one "
       "command\n"
       "  --version                print the version and exit\n\n"

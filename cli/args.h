@@ -46,14 +46,16 @@ const CommandSpec* FindCommand(absl::string_view name);
 
 // Options every command takes, before or after its name. Their values go to
 // ParsedArgs::global, keyed by name without "--".
+// After the command, a command's own flag of the same name wins (`validate
+// --timeout` is how long it waits for the validation).
 inline constexpr const char* kGlobalOptions[] = {
-    "coordinator", "token",   "token-file",     "tls-ca",
-    "tls-cert",    "tls-key", "tls-server-name"};
+    "coordinator", "token",   "token-file",      "tls-ca",
+    "tls-cert",    "tls-key", "tls-server-name", "timeout"};
 
 struct ParsedArgs {
   std::string coordinator;  // HOST:PORT, already checked
-  // --token, --token-file, --tls-ca, --tls-cert, --tls-key, --tls-server-name
-  // when given.
+  // --token, --token-file, --tls-ca, --tls-cert, --tls-key, --tls-server-name,
+  // --timeout when given.
   std::map<std::string, std::string> global;
   std::string command;  // a name from Commands()
   std::vector<std::string> positionals;

@@ -1,5 +1,7 @@
 #include "cli/client.h"
 
+#include <atomic>
+#include <cstdint>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
@@ -10,9 +12,31 @@
 
 namespace skerry::cli {
 
+namespace {
+
+// Nanoseconds; 0: no --timeout.
+std::atomic<int64_t> call_timeout_ns{0};
+
+}  // namespace
+
+void SetCallTimeout(absl::Duration timeout) {
+  call_timeout_ns.store(absl::ToInt64Nanoseconds(timeout));
+}
+
+absl::Duration CallTimeout() {
+  return absl::Nanoseconds(call_timeout_ns.load());
+}
+
+absl::Duration CallDeadline(absl::Duration fallback) {
+  const absl::Duration chosen = CallTimeout();
+  return chosen > absl::ZeroDuration() ? chosen : fallback;
+}
+
 absl::StatusOr<std::shared_ptr<grpc::Channel>> CoordinatorChannel(
     const std::string& target, const worker::ClientSecurity& security) {
-  return worker::OpenCoordinatorChannel(target, security);
+  return worker::OpenCoordinatorChannel(
+      target, security, absl::Seconds(10),
+      CallDeadline(worker::kDefaultConnectTimeout));
 }
 namespace {
 
@@ -56,7 +80,8 @@ RunClient::RunClient(
     : stub_(std::move(stub)), target_(std::move(target)), options_(options) {}
 
 void RunClient::SetDeadline(grpc::ClientContext* context) const {
-  context->set_deadline(absl::ToChronoTime(absl::Now() + options_.deadline));
+  context->set_deadline(
+      absl::ToChronoTime(absl::Now() + CallDeadline(options_.deadline)));
 }
 
 absl::StatusOr<RunSummary> RunClient::Submit(const skerry::v1::RunSpec& spec,

@@ -27,9 +27,18 @@
 namespace skerry::cli {
 
 struct ClientOptions {
-  absl::Duration deadline = absl::Seconds(10);  // per unary call
+  absl::Duration deadline = absl::Seconds(30);  // per unary call
   uint32_t watch_interval_ms = 500;             // minimum gap between updates
 };
+
+// The per-call timeout chosen by `--timeout SECONDS` for this invocation
+// (zero: none chosen). RunCli sets it before any call is made; every unary
+// call's deadline is CallDeadline(its own default), and channels allow a
+// connection attempt as long. The CLI runs one command per process.
+void SetCallTimeout(absl::Duration timeout);
+absl::Duration CallTimeout();
+// `fallback` unless --timeout was given.
+absl::Duration CallDeadline(absl::Duration fallback);
 
 // The status a failed call becomes: same code; message "CALL: MESSAGE", and
 // for UNAVAILABLE or DEADLINE_EXCEEDED one saying the coordinator at `target`

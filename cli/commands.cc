@@ -1,5 +1,7 @@
 #include "cli/commands.h"
 
+#include <sys/stat.h>
+
 #include <algorithm>
 #include <cctype>
 #include <cerrno>
@@ -208,6 +210,12 @@ int ReportError(const absl::Status& status, Io& io) {
 }
 
 absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path) {
+  // An ifstream opens a directory and reads it as empty: a spec of defaults.
+  struct stat st {};
+  if (stat(path.c_str(), &st) == 0 && S_ISDIR(st.st_mode)) {
+    return absl::InvalidArgumentError(
+        absl::StrCat(path, " is a directory, not a spec file"));
+  }
   std::ifstream file(path, std::ios::binary);
   if (!file) {
     return absl::NotFoundError(
@@ -428,6 +436,13 @@ int RunCli(const std::vector<std::string>& args,
   if (parsed->command == "version") {
     *io.out << VersionLine("skerry");
     return 0;
+  }
+  SetCallTimeout(absl::ZeroDuration());
+  if (!parsed->Global("timeout").empty()) {
+    absl::StatusOr<uint32_t> seconds =
+        ParseBoundedUint("--timeout", parsed->Global("timeout"), 1, 3600);
+    if (!seconds.ok()) return UsageFailure(seconds.status(), "", io);
+    SetCallTimeout(absl::Seconds(*seconds));
   }
   if (parsed->command == "local") return LocalCommand(*parsed, io);
   absl::StatusOr<worker::ClientSecurity> security = Security(*parsed, io);

@@ -5,6 +5,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "absl/time/clock.h"
+#include "cli/client.h"
 #include "cli/format.h"
 #include "cli/lineage_internal.h"
 #include "server/lineage/dot.h"
@@ -51,7 +52,8 @@ std::string NodeHeader() {
 }
 
 void SetDeadline(grpc::ClientContext* ctx) {
-  ctx->set_deadline(absl::ToChronoTime(absl::Now() + kUnaryDeadline));
+  ctx->set_deadline(
+      absl::ToChronoTime(absl::Now() + CallDeadline(kUnaryDeadline)));
 }
 
 }  // namespace skerry::cli::lineage_internal

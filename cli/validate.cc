@@ -82,7 +82,8 @@ class Calls {
 
  private:
   static void Deadline(grpc::ClientContext* ctx) {
-    ctx->set_deadline(absl::ToChronoTime(absl::Now() + absl::Seconds(10)));
+    ctx->set_deadline(
+        absl::ToChronoTime(absl::Now() + CallDeadline(absl::Seconds(30))));
   }
   template <typename T>
   absl::StatusOr<T> Check(const grpc::Status& s, absl::string_view call,

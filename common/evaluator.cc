@@ -152,6 +152,15 @@ absl::StatusOr<std::unique_ptr<Evaluator>> MakeEvaluator(
       spec.kind_case() == skerry::v1::EvaluatorSpec::kBuiltin
           ? FindBuiltin(name)
           : nullptr;
+  if (function == nullptr && name.empty()) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        spec.kind_case() == skerry::v1::EvaluatorSpec::kBuiltin
+            ? "evaluator.builtin.function: not set"
+            : "evaluator: missing",
+        "; name a built-in function, for example evaluator { builtin { "
+        "function: \"sphere\" } } (allowed: ",
+        absl::StrJoin(BuiltinNames(), ", "), ")"));
+  }
   if (function == nullptr) {
     return absl::InvalidArgumentError(absl::StrCat(
         "evaluator.builtin.function: unknown function ", QuotePrefix(name),

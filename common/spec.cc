@@ -15,8 +15,6 @@
 #include "common/quote.h"
 #include "common/validation.h"
 #include "google/protobuf/descriptor.h"
-#include "google/protobuf/io/tokenizer.h"
-#include "google/protobuf/text_format.h"
 
 namespace skerry {
 namespace {
@@ -28,30 +26,6 @@ constexpr uint32_t kMinPopulation = 2;
 constexpr uint32_t kMaxPopulation = 1000000;
 constexpr uint32_t kMaxIslands = 256;
 constexpr uint32_t kMaxAttempts = 100;
-
-// Keeps the first error the text-format parser reports, with 1-based position.
-class FirstErrorCollector : public google::protobuf::io::ErrorCollector {
- public:
-  explicit FirstErrorCollector(absl::string_view filename)
-      : filename_(filename) {}
-
-  void AddError(int line, google::protobuf::io::ColumnNumber column,
-                const std::string& message) override {
-    if (!first_.empty()) return;
-    if (line < 0) {
-      first_ = absl::StrCat(filename_, ": ", message);
-    } else {
-      first_ = absl::StrCat(filename_, ":", line + 1, ":", column + 1, ": ",
-                            message);
-    }
-  }
-
-  const std::string& first() const { return first_; }
-
- private:
-  std::string filename_;
-  std::string first_;
-};
 
 absl::Status Bad(absl::string_view path, absl::string_view what,
                  absl::string_view allowed, absl::string_view got) {
@@ -359,6 +333,14 @@ absl::Status CheckExternal(const skerry::v1::ExternalEvaluator& ext) {
 }
 
 absl::Status CheckEvaluator(const RunSpec& spec) {
+  if (spec.evaluator().kind_case() == skerry::v1::EvaluatorSpec::KIND_NOT_SET) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "evaluator: missing: say what scores a genome (allowed: evaluator { "
+        "builtin { function: \"sphere\" } } or another of ",
+        absl::StrJoin(BuiltinNames(), ", "),
+        "; external { argv: \"./my-sim\" }; cart_pole { }; double_pole { }; "
+        "docs/spec-reference.md)"));
+  }
   if (spec.evaluator().kind_case() == skerry::v1::EvaluatorSpec::kExternal) {
     if (absl::Status s = CheckExternal(spec.evaluator().external()); !s.ok()) {
       return s;
@@ -481,21 +463,6 @@ void NormalizeNetworkRun(RunSpec* spec) {
 }
 
 }  // namespace
-
-absl::StatusOr<RunSpec> ParseSpecText(absl::string_view text,
-                                      absl::string_view filename) {
-  google::protobuf::TextFormat::Parser parser;
-  FirstErrorCollector errors(filename);
-  parser.RecordErrorsTo(&errors);
-  RunSpec spec;
-  if (!parser.ParseFromString(std::string(text), &spec)) {
-    return absl::InvalidArgumentError(
-        errors.first().empty()
-            ? absl::StrCat(filename, ": cannot parse run spec")
-            : errors.first());
-  }
-  return spec;
-}
 
 void NormalizeSpec(RunSpec* spec) {
   if (spec->name().empty()) spec->set_name("run");

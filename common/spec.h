@@ -17,8 +17,10 @@
 
 namespace skerry {
 
-// Parses text format. A syntax error is InvalidArgument "FILE:LINE:COLUMN:
-// message" (1-based line and column).
+// Parses text format (common/spec_text.cc). A syntax error is
+// InvalidArgument "FILE:LINE:COLUMN: message": 1-based line and column, the
+// column in characters, at the token the problem is about. A string field
+// that is not UTF-8 is InvalidArgument naming the field.
 absl::StatusOr<skerry::v1::RunSpec> ParseSpecText(absl::string_view text,
                                                   absl::string_view filename);
 

@@ -30,6 +30,8 @@ PACKAGES=(
   clang-format
   # skerry-worker runs evaluator programs in a bubblewrap sandbox
   bubblewrap
+  # scripts/clang-check: clang's -Wthread-safety over the libraries.
+  clang
   # Deploy tests: the package (dpkg-shlibdeps, readelf), the units
   # (systemd-analyze), the manifests (PyYAML), network namespaces (ip, tc).
   dpkg-dev

@@ -145,12 +145,18 @@ absl::StatusOr<ResolvedToken> ResolveToken(const std::string& flag_token,
 
 absl::StatusOr<std::shared_ptr<grpc::Channel>> OpenCoordinatorChannel(
     const std::string& address, const ClientSecurity& security,
-    absl::Duration max_backoff) {
+    absl::Duration max_backoff, absl::Duration connect_timeout) {
   grpc::ChannelArguments args;
   const int64_t cap_ms =
       std::clamp<int64_t>(absl::ToInt64Milliseconds(max_backoff), 100, 120000);
+  // gRPC gives each connection attempt max(backoff, minimum reconnect backoff)
+  // to finish (doc/connection-backoff.md: MIN_CONNECT_TIMEOUT). At 100 ms, a
+  // link whose first bytes take longer never connected: the minimum is the
+  // connect timeout, and only the first retry's delay is short.
+  const int64_t connect_ms = std::clamp<int64_t>(
+      absl::ToInt64Milliseconds(connect_timeout), 100, 3600 * 1000);
   args.SetInt(GRPC_ARG_INITIAL_RECONNECT_BACKOFF_MS, 100);
-  args.SetInt(GRPC_ARG_MIN_RECONNECT_BACKOFF_MS, 100);
+  args.SetInt(GRPC_ARG_MIN_RECONNECT_BACKOFF_MS, static_cast<int>(connect_ms));
   args.SetInt(GRPC_ARG_MAX_RECONNECT_BACKOFF_MS, static_cast<int>(cap_ms));
   // Leases and reports can carry many genomes.
   args.SetMaxReceiveMessageSize(256 << 20);
@@ -200,9 +206,11 @@ absl::StatusOr<std::shared_ptr<grpc::Channel>> OpenCoordinatorChannel(
 }
 
 std::shared_ptr<grpc::Channel> CreateCoordinatorChannel(
-    const std::string& address, absl::Duration max_backoff) {
+    const std::string& address, absl::Duration max_backoff,
+    absl::Duration connect_timeout) {
   // Plaintext without a token cannot fail.
-  return *OpenCoordinatorChannel(address, ClientSecurity(), max_backoff);
+  return *OpenCoordinatorChannel(address, ClientSecurity(), max_backoff,
+                                 connect_timeout);
 }
 
 }  // namespace skerry::worker

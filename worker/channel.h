@@ -18,6 +18,10 @@
 //
 // The channel's own reconnect backoff is capped at max_backoff, so a restarted
 // coordinator is found again about as fast as the worker's RPC retries expect.
+// A connection attempt (TCP, TLS and the HTTP/2 handshake) may take up to
+// connect_timeout: gRPC uses its minimum reconnect backoff as that bound, so
+// the first retry stays quick (100 ms) while a link with seconds of latency
+// still connects (kDefaultConnectTimeout; both programs' --timeout).
 //
 // Thread safety: pure functions; the returned channel may be shared by
 // threads.
@@ -35,6 +39,9 @@
 namespace skerry::worker {
 
 inline constexpr char kTokenEnv[] = "SKERRY_TOKEN";
+
+// How long one connection attempt may take unless --timeout says otherwise.
+inline constexpr absl::Duration kDefaultConnectTimeout = absl::Seconds(20);
 
 struct ClientSecurity {
   std::string token;          // empty: no authorization metadata
@@ -62,13 +69,16 @@ absl::StatusOr<ResolvedToken> ResolveToken(const std::string& flag_token,
 
 // address is HOST:PORT. InvalidArgument for half a client key pair or a TLS
 // file given without a CA; NotFound for a file that cannot be read.
+// connect_timeout is clamped to [100 ms, 1 hour].
 absl::StatusOr<std::shared_ptr<grpc::Channel>> OpenCoordinatorChannel(
     const std::string& address, const ClientSecurity& security,
-    absl::Duration max_backoff = absl::Seconds(10));
+    absl::Duration max_backoff = absl::Seconds(10),
+    absl::Duration connect_timeout = kDefaultConnectTimeout);
 
 // Plaintext, no token (benchmarks and tests on loopback).
 std::shared_ptr<grpc::Channel> CreateCoordinatorChannel(
-    const std::string& address, absl::Duration max_backoff = absl::Seconds(10));
+    const std::string& address, absl::Duration max_backoff = absl::Seconds(10),
+    absl::Duration connect_timeout = kDefaultConnectTimeout);
 
 }  // namespace skerry::worker
 

@@ -117,6 +117,12 @@ absl::Status Apply(absl::string_view flag, absl::string_view value,
       }
       out.evaluator_dirs.emplace_back(dir);
     }
+  } else if (flag == "--timeout") {
+    absl::StatusOr<uint64_t> n =
+        ParseWholeNumber(flag, value, 1, kMaxTimeoutFlag);
+    if (!n.ok()) return n.status();
+    out.options.rpc_deadline = absl::Seconds(static_cast<int64_t>(*n));
+    out.connect_timeout = out.options.rpc_deadline;
   } else if (flag == "--exit-when-idle") {
     absl::StatusOr<uint64_t> n =
         ParseWholeNumber(flag, value, 1, kMaxExitWhenIdleFlag);
@@ -206,7 +212,8 @@ absl::StatusOr<std::shared_ptr<grpc::Channel>> ConnectFromFlags(
   ClientSecurity security = flags.security;
   security.token = token->token;
   return OpenCoordinatorChannel(flags.coordinator, security,
-                                flags.options.max_backoff);
+                                flags.options.max_backoff,
+                                flags.connect_timeout);
 }
 
 std::vector<std::string> SecretPaths(const WorkerFlags& flags,
@@ -252,7 +259,7 @@ std::string WorkerUsage() {
       "Usage: skerry-worker --coordinator HOST:PORT --threads N [--name NAME]\n"
       "                     [--batch N] [--wait-ms N] [--exit-when-idle S]\n"
       "                     [--token-file FILE] [--sandbox auto|bwrap|none]\n"
-      "                     [--evaluator-dirs DIRS]\n"
+      "                     [--evaluator-dirs DIRS] [--timeout SECONDS]\n"
       "                     [--tls-ca FILE [--tls-cert FILE --tls-key FILE]]\n"
       "\n"
       "A stateless evaluation worker. It joins the coordinator at HOST:PORT,\n"
@@ -284,6 +291,12 @@ std::string WorkerUsage() {
       kMaxWaitMsFlag,
       " (default: 5000);\n"
       "                           the coordinator may cap it\n"
+      "  --timeout SECONDS        how long each call beyond its wait, and "
+      "each\n"
+      "                           connection attempt, may take, 1 to ",
+      kMaxTimeoutFlag,
+      "\n"
+      "                           (default: 30 s per call, 20 s to connect)\n"
       "  --exit-when-idle SECONDS\n"
       "                           exit (code 0) after holding no task and "
       "being\n"

@@ -30,6 +30,7 @@ inline constexpr int kMaxThreadsFlag = 1024;
 inline constexpr uint32_t kMaxBatchFlag = 100000;
 inline constexpr uint32_t kMaxWaitMsFlag = 600000;        // ten minutes
 inline constexpr uint32_t kMaxExitWhenIdleFlag = 604800;  // a week, in seconds
+inline constexpr uint32_t kMaxTimeoutFlag = 3600;         // seconds
 
 struct WorkerFlags {
   bool help = false;
@@ -43,6 +44,8 @@ struct WorkerFlags {
   std::string token_file;                    // --token-file
   SandboxMode sandbox = SandboxMode::kAuto;  // --sandbox
   std::vector<std::string> evaluator_dirs;   // --evaluator-dirs, split at ':'
+  // --timeout: one connection attempt's bound (options.rpc_deadline too).
+  absl::Duration connect_timeout = kDefaultConnectTimeout;
 };
 
 // args excludes the program name. Accepts "--flag value" and "--flag=value".

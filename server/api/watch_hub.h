@@ -17,6 +17,11 @@
 // counts such misses, at most one per interval, and every summary it is sent
 // carries the count so far. The final summary of an ended run is never
 // dropped: it is sent once the watcher takes it, then the stream ends (OK).
+// A write completes when gRPC's flow control admits it, that is once the
+// client's library has room for it in its receive window, not when the
+// client's program reads it: a client that stops reading gets what its window
+// already holds before it gets the newest summary and the count
+// (docs/sharing.md). The hub cannot see further than that.
 //
 // Limits: at most `max_watchers` streams at once per coordinator; one more is
 // refused with RESOURCE_EXHAUSTED naming the limit. A run that does not exist

@@ -288,7 +288,9 @@ void Engine::CommitterLoop() {
       auto ready = [this]() ABSL_EXCLUSIVE_LOCKS_REQUIRED(jobs_mu_) {
         return stopping_ || !jobs_.empty();
       };
-      jobs_mu_.AwaitWithTimeout(absl::Condition(&ready), absl::Seconds(1));
+      // The tick: on the engine's clock, so a test's FakeClock drives it.
+      clock_->AwaitWithTimeout(&jobs_mu_, absl::Condition(&ready),
+                               absl::Seconds(1));
       jobs.swap(jobs_);
       stopping = stopping_;
     }
@@ -297,7 +299,7 @@ void Engine::CommitterLoop() {
       absl::MutexLock l(&mu_);
       RetryWrites();
       if (!write_problem_.ok()) continue;
-      // Retry what a failed write left undone, and apply wall-time limits.
+      // Retry what a failed write left undone.
       std::vector<int64_t> ids;
       for (const auto& [id, run] : runs_) ids.push_back(id);
       for (int64_t id : ids) {
@@ -310,7 +312,6 @@ void Engine::CommitterLoop() {
                        s.ToString().c_str());
         }
       }
-      NoteWriteFailure(CheckWallTime());
     }
     if (stopping) {
       absl::MutexLock l(&jobs_mu_);
@@ -423,6 +424,7 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
       g.attempts = a.update.attempts;
       g.error = a.update.error;
       g.eval_seconds = a.update.eval_seconds;
+      if (g.state == skerry::v1::FAILED) a.run->last_error = g.error;
       if (g.state == skerry::v1::PENDING) {
         retry.push_back(g.id);
       } else {
@@ -543,6 +545,22 @@ absl::Status Engine::Advance(Run& run) {
                                     [](const Island& i) { return i.done; });
   if (!all_done) return absl::OkStatus();
   std::string why = run.finish_reason.empty() ? "finished" : run.finish_reason;
+  if (!run.record.best_score.has_value()) {
+    // Nothing was ever scored: no champion, and nothing worth calling done.
+    for (const Island& island : run.islands) {
+      for (const auto& [g, genomes] : island.completed) {
+        for (const GenomeRecord& genome : genomes) {
+          if (run.last_error.empty()) run.last_error = genome.error;
+        }
+      }
+    }
+    return FinishRun(run, skerry::v1::FAILED_RUN,
+                     absl::StrCat("every evaluation failed, so the run has no "
+                                  "champion (",
+                                  why, "); the last error: ",
+                                  run.last_error.empty() ? "none recorded"
+                                                         : run.last_error));
+  }
   return FinishRun(run, skerry::v1::FINISHED, why);
 }
 
@@ -606,6 +624,9 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
                  EvaluationShare(spec, island.index)) {
     reason = absl::StrCat("evaluation budget (", spec.stop().max_evaluations(),
                           ") reached");
+  } else if (WallTimeIsUp(run)) {
+    reason = absl::StrCat("wall-time limit (", spec.stop().max_wall_seconds(),
+                          " s) reached");
   }
   const bool done = !reason.empty();
 
@@ -723,9 +744,10 @@ absl::Status Engine::FinishRun(Run& run, skerry::v1::RunState state,
 
 void Engine::FailRun(Run& run, const absl::Status& why) {
   const int64_t id = run.record.id;
+  // FinishRun marks every island done too: an ended run has no live island.
   absl::Status s =
-      store_->SetRunState(id, skerry::v1::FAILED_RUN,
-                          std::string(why.message()), clock_->WallMillis());
+      store_->FinishRun(id, skerry::v1::FAILED_RUN, std::string(why.message()),
+                        std::nullopt, clock_->WallMillis());
   if (!s.ok()) {
     std::fprintf(stderr, "run %lld: could not record failure: %s\n",
                  static_cast<long long>(id), s.ToString().c_str());
@@ -736,26 +758,10 @@ void Engine::FailRun(Run& run, const absl::Status& why) {
   NotifyChange();
 }
 
-absl::Status Engine::CheckWallTime() {
-  const int64_t now = clock_->WallMillis();
-  std::vector<int64_t> expired;
-  for (const auto& [id, run] : runs_) {
-    const double limit = run->record.spec.stop().max_wall_seconds();
-    if (limit > 0 && run->record.state == skerry::v1::RUNNING &&
-        now - run->record.started_ms >= static_cast<int64_t>(limit * 1000)) {
-      expired.push_back(id);
-    }
-  }
-  for (int64_t id : expired) {
-    Run& run = *runs_[id];
-    run.stop_generation.reset();
-    SKERRY_RETURN_IF_ERROR(
-        FinishRun(run, skerry::v1::FINISHED,
-                  absl::StrCat("wall-time limit (",
-                               run.record.spec.stop().max_wall_seconds(),
-                               " s) reached")));
-  }
-  return absl::OkStatus();
+bool Engine::WallTimeIsUp(const Run& run) {
+  const double limit = run.record.spec.stop().max_wall_seconds();
+  return limit > 0 && clock_->WallMillis() - run.record.started_ms >=
+                          static_cast<int64_t>(limit * 1000);
 }
 
 void Engine::NotifyChange() { ++changes_; }

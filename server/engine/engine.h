@@ -24,7 +24,12 @@
 //   island's best reaches the target; every island runs to it (or hits the
 //   target earlier), and generations a faster island bred past it are
 //   discarded.
-// - max_wall_seconds: from the run's first start; not reproducible.
+// - max_wall_seconds: from the run's first start, an island stops at the first
+//   generation boundary past the limit (its final generation is complete);
+//   not reproducible.
+// Whatever ends a run (these rules, a user's stop, a failure) marks every
+// island done in the same transaction (Store::FinishRun). A run none of whose
+// genomes was ever scored ends FAILED_RUN with the last error, not FINISHED.
 //
 // Migration (reproducible mode): the generation g+1 of an island at an epoch is
 // bred only once every source island has completed generation g (a source that
@@ -45,8 +50,8 @@
 // Storage trouble (disk full, I/O error): a failed commit changes nothing in
 // the cache; the engine stops handing out work (TaskQueue::SetHeld), says why
 // in every run summary, keeps answering reads, probes the database every
-// second, and resumes by itself when a write succeeds. Workers keep their
-// results and report them again.
+// second of the engine's clock (the committer's tick), and resumes by itself
+// when a write succeeds. Workers keep their results and report them again.
 //
 // Thread safety: every public method may be called from any thread.
 #ifndef SKERRY_SERVER_ENGINE_ENGINE_H_
@@ -143,6 +148,7 @@ class Engine {
     std::vector<Island> islands;
     std::optional<uint32_t> stop_generation;  // set by the target score rule
     std::string finish_reason;
+    std::string last_error;  // of the latest failed genome, for the message
   };
   // A queued validation: what its results are checked against.
   struct PendingValidation {
@@ -207,7 +213,7 @@ class Engine {
   store::ValidationUpdate ValidationOutcome(
       const scheduler::TaskInfo& info, const skerry::v1::TaskResult& result,
       bool failed) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  absl::Status CheckWallTime() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  bool WallTimeIsUp(const Run& run) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void FailRun(Run& run, const absl::Status& why)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<skerry::v1::RunSummary> SummaryLocked(int64_t run_id)

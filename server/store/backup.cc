@@ -29,7 +29,8 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
     s.BindInt(1, run_id);
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row)
-      return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+      return absl::NotFoundError(
+          absl::StrCat("run ", static_cast<uint64_t>(run_id), " not found"));
   }
   {
     // A new, empty database with the current schema.

@@ -173,6 +173,19 @@ class Checker {
   Connection* c_;
 };
 
+// An ended run (finished, stopped, failed) has no live island: whatever ended
+// it marked every island done in the same transaction (Store::FinishRun).
+absl::Status CheckEndedRunIslandsDone(Checker& checker, int64_t run,
+                                      int state) {
+  if (state != skerry::v1::FINISHED && state != skerry::v1::STOPPED &&
+      state != skerry::v1::FAILED_RUN) {
+    return absl::OkStatus();
+  }
+  return checker.Expect(run, "island of an ended run is not marked done",
+                        "SELECT 'island', idx FROM islands WHERE run_id = ?1 "
+                        "AND done = 0 LIMIT 20");
+}
+
 }  // namespace
 
 std::string CheckReport::ToString() const {
@@ -223,6 +236,8 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     ++checker.report.runs;
     SKERRY_RETURN_IF_ERROR(
         checker.CheckRun(id, spec, static_cast<int>(runs->ColumnInt(2))));
+    SKERRY_RETURN_IF_ERROR(CheckEndedRunIslandsDone(
+        checker, id, static_cast<int>(runs->ColumnInt(2))));
   }
   {
     SKERRY_ASSIGN_OR_RETURN(Statement n,

@@ -12,7 +12,8 @@
 //   - elites and migrants have a parent; seeded genomes and immigrants have
 //   none;
 //   - each completed generation has its statistics row;
-//   - the run's evaluation counter equals the evaluations stored.
+//   - the run's evaluation counter equals the evaluations stored;
+//   - every island of a finished, stopped or failed run is marked done.
 //
 // Thread safety: a function; opens its own connection.
 #ifndef SKERRY_SERVER_STORE_CHECK_H_

@@ -525,7 +525,8 @@ absl::Status Store::SetRunState(int64_t run_id, RunState state,
   upd.BindInt(4, run_id);
   SKERRY_RETURN_IF_ERROR(upd.Run());
   if (conn_->Changes() != 1) {
-    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+    return absl::NotFoundError(
+        absl::StrCat("run ", static_cast<uint64_t>(run_id), " not found"));
   }
   return absl::OkStatus();
 }
@@ -552,7 +553,8 @@ absl::Status Store::SetRunPriority(int64_t run_id, int32_t priority,
   upd.BindInt(3, run_id);
   SKERRY_RETURN_IF_ERROR(upd.Run());
   if (conn_->Changes() != 1) {
-    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+    return absl::NotFoundError(
+        absl::StrCat("run ", static_cast<uint64_t>(run_id), " not found"));
   }
   return absl::OkStatus();
 }
@@ -578,6 +580,14 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
       st.BindInt(2, *keep_through);
       SKERRY_RETURN_IF_ERROR(st.Run());
     }
+  }
+  {
+    // An ended run has no live island (skerry-coordinator --check).
+    SKERRY_ASSIGN_OR_RETURN(
+        auto st,
+        conn_->Prepare("UPDATE islands SET done = 1 WHERE run_id = ?1"));
+    st.BindInt(1, run_id);
+    SKERRY_RETURN_IF_ERROR(st.Run());
   }
   {
     SKERRY_ASSIGN_OR_RETURN(
@@ -669,7 +679,8 @@ absl::StatusOr<RunRecord> Store::GetRun(int64_t run_id) {
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
   if (!row)
-    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+    return absl::NotFoundError(
+        absl::StrCat("run ", static_cast<uint64_t>(run_id), " not found"));
   return ReadRun(s);
 }
 
@@ -727,8 +738,8 @@ absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
   s.BindInt(1, genome_id);
   SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
   if (rows.empty()) {
-    return absl::NotFoundError(
-        absl::StrCat("genome ", genome_id, " not found"));
+    return absl::NotFoundError(absl::StrCat(
+        "genome ", static_cast<uint64_t>(genome_id), " not found"));
   }
   return std::move(rows.front());
 }
@@ -773,7 +784,8 @@ absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeLocked(
   run_s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto run_row, run_s.Step());
   if (!run_row)
-    return absl::NotFoundError(absl::StrCat("run ", run_id, " not found"));
+    return absl::NotFoundError(
+        absl::StrCat("run ", static_cast<uint64_t>(run_id), " not found"));
   skerry::v1::RunSpec spec;
   if (!spec.ParseFromString(run_s.ColumnBlob(0))) {
     return absl::DataLossError(

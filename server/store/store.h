@@ -57,8 +57,8 @@
 //   RequestValidation  a validation request for one genome (or the stored one)
 //   CommitValidations  a batch of validation outcomes
 //   SetRunState        pause, resume, stop, fail
-//   FinishRun          final state, trimming of generations past the stop
-//                      generation, the champion
+//   FinishRun          final state, every island done, trimming of
+//                      generations past the stop generation, the champion
 //   CreateToken        a token, and its principal when new
 //   RevokeToken        a token's revocation time and who revoked it
 //   BeginAudit         an audit row, before the change it describes is made
@@ -284,7 +284,7 @@ class Store {
   absl::Status SetRunPriority(int64_t run_id, int32_t priority, int64_t now_ms);
   // Ends a run. With keep_through, generations after it are deleted (a faster
   // island may have bred past the stop generation). The champion is recomputed
-  // from the genomes that remain.
+  // from the genomes that remain. Every island of the run is marked done.
   absl::Status FinishRun(int64_t run_id, skerry::v1::RunState state,
                          const std::string& message,
                          std::optional<uint32_t> keep_through, int64_t now_ms);

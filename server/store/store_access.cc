@@ -121,8 +121,8 @@ absl::StatusOr<TokenRecord> Store::RevokeToken(int64_t token_id,
     s.BindInt(1, token_id);
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) {
-      return absl::NotFoundError(
-          absl::StrCat("token ", token_id, " not found"));
+      return absl::NotFoundError(absl::StrCat(
+          "token ", static_cast<uint64_t>(token_id), " not found"));
     }
     t = ReadToken(s);
   }

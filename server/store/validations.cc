@@ -89,8 +89,8 @@ absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
   g.BindInt(1, request.genome_id);
   SKERRY_ASSIGN_OR_RETURN(bool found, g.Step());
   if (!found) {
-    return absl::NotFoundError(
-        absl::StrCat("genome ", request.genome_id, " not found"));
+    return absl::NotFoundError(absl::StrCat(
+        "genome ", static_cast<uint64_t>(request.genome_id), " not found"));
   }
   const int64_t run_id = g.ColumnInt(0);
   const int64_t generation = g.ColumnInt(1);

@@ -25,17 +25,25 @@ namespace {
 using skerry::v1::RunSummary;
 using ::testing::HasSubstr;
 
-// 32 islands make a summary of about a kilobyte and an update per generation
-// of any island: plenty of updates for the watchers.
+// 128 islands make a summary of at least 800 bytes, larger than the silent
+// watcher's receive window (kSilentWindow), and an update per generation of
+// any island: plenty of updates for the watchers.
 constexpr char kWatchedSpec[] = R"pb(
   name: "watched"
   seed: 77
   genome_length: 4
   evaluator { builtin { function: "sphere" } }
-  ga { population_size: 8 elites: 1 }
-  islands { count: 32 topology: RING interval: 5 migrants: 1 }
-  stop { max_generations: 60 }
+  ga { population_size: 4 elites: 1 }
+  islands { count: 128 topology: RING interval: 5 migrants: 1 }
+  stop { max_generations: 15 }
 )pb";
+
+// The silent watcher's HTTP/2 receive window. A summary larger than it cannot
+// be taken until the watcher reads, so its very first write stays in flight:
+// every later change is then due while a write is outstanding, and is dropped
+// whatever the machine's speed (the earlier form of this test relied on the
+// run outlasting a few writes, which a faster machine may not do).
+constexpr int kSilentWindow = 512;
 
 constexpr int kReaders = 49;
 
@@ -115,7 +123,7 @@ TEST_F(WatchTest,
   // is only replenished as it reads (no bandwidth probing).
   grpc::ChannelArguments small_window;
   small_window.SetInt(GRPC_ARG_HTTP2_BDP_PROBE, 0);
-  small_window.SetInt(GRPC_ARG_HTTP2_STREAM_LOOKAHEAD_BYTES, 1024);
+  small_window.SetInt(GRPC_ARG_HTTP2_STREAM_LOOKAHEAD_BYTES, kSilentWindow);
   auto silent_stub = skerry::v1::RunService::NewStub(grpc::CreateCustomChannel(
       coordinator_->address(), grpc::InsecureChannelCredentials(),
       small_window));
@@ -155,6 +163,9 @@ TEST_F(WatchTest,
     EXPECT_EQ(seen[i].updates.back().evaluations(), stored.run().evaluations())
         << "the final summary";
   }
+  // The precondition of the silent watcher's case (kSilentWindow).
+  ASSERT_GT(seen[0].updates.front().ByteSizeLong(),
+            static_cast<size_t>(kSilentWindow));
 
   // Now the silent watcher reads: the update the coordinator was stuck on,
   // then the latest (final) one, which says how many it missed.
@@ -164,6 +175,9 @@ TEST_F(WatchTest,
   const RunSummary& last = late.updates.back();
   EXPECT_EQ(last.state(), skerry::v1::FINISHED);
   EXPECT_GT(last.dropped_updates(), 0u);
+  // Its first write never completed until it read: it gets that summary, then
+  // the newest (final) one with the count, and nothing in between.
+  EXPECT_EQ(late.updates.size(), 2u);
   EXPECT_LT(late.updates.size(), seen[0].updates.size())
       << "the silent watcher was not sent every update";
   for (const RunSummary& s : late.updates) {

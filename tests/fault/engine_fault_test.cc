@@ -129,12 +129,14 @@ std::vector<Task> LeaseReady(Harness& h) {
   return {};
 }
 
-// Waits (bounded, 10 s of real time) for the committer's probe to lift the
-// hold; true when it did.
-bool WaitUntilWritable(Harness& h, int64_t run_id) {
+// Moves the engine's clock a second at a time, so that the committer's tick
+// probes the database, until the hold is lifted (bounded: 200 ticks); true
+// when it was.
+bool WaitUntilWritable(Harness& h, FakeClock& clock, int64_t run_id) {
   for (int i = 0; i < 200; ++i) {
     if (Problem(h, run_id).empty()) return true;
-    absl::SleepFor(absl::Milliseconds(50));
+    clock.Advance(absl::Seconds(1));
+    absl::SleepFor(absl::Milliseconds(10));  // let the woken tick run
   }
   return false;
 }
@@ -244,14 +246,16 @@ TEST_F(EngineFaultTest, FailingDiskHoldsWorkKeepsResultsAndResumesByItself) {
   // The probe keeps failing while the disk does (bounded wait for one probe).
   const int64_t counted = vfs_->counted();
   for (int i = 0; i < 100 && vfs_->counted() == counted; ++i) {
-    absl::SleepFor(absl::Milliseconds(50));
+    clock_.Advance(absl::Seconds(1));  // the committer's tick probes
+    absl::SleepFor(absl::Milliseconds(10));
   }
   EXPECT_GT(vfs_->counted(), counted) << "the committer never probed";
   EXPECT_TRUE(h->queue->Lease(kWorker, 1000, absl::ZeroDuration()).empty());
   EXPECT_NE(Problem(*h, run), "");
 
   vfs_->Disarm();
-  ASSERT_TRUE(WaitUntilWritable(*h, run)) << "the hold was never lifted";
+  ASSERT_TRUE(WaitUntilWritable(*h, clock_, run))
+      << "the hold was never lifted";
   // The same results, reported again, are taken.
   absl::StatusOr<ReportOutcome> again = h->engine->Report(kWorker, results);
   ASSERT_TRUE(again.ok()) << again.status();
@@ -284,7 +288,7 @@ TEST_F(EngineFaultTest, SubmitWhileDiskIsFullIsRefusedAndStoresNothing) {
   ASSERT_TRUE(all.ok()) << all.status();
   EXPECT_EQ(all->size(), 1u);
   // The first run is untouched and finishes as if nothing happened.
-  ASSERT_TRUE(WaitUntilWritable(*h, run));
+  ASSERT_TRUE(WaitUntilWritable(*h, clock_, run));
   DriveToEnd(*h, run);
   EXPECT_EQ(Digest(*h->store, run), reference_);
   h.reset();
@@ -335,7 +339,7 @@ TEST_P(EngineFaultSweep, EveryFaultPointAtAGenerationEndRecoversToSameDigest) {
                 static_cast<long long>(results.size()))
           << "a refused report changed the database";
     }
-    ASSERT_TRUE(WaitUntilWritable(*h, run));
+    ASSERT_TRUE(WaitUntilWritable(*h, clock_, run));
     if (!out.ok()) {
       absl::StatusOr<ReportOutcome> again = h->engine->Report(kWorker, results);
       ASSERT_TRUE(again.ok()) << again.status();

@@ -29,6 +29,7 @@ namespace skerry::cli {
 namespace {
 
 using ::testing::HasSubstr;
+using ::testing::Not;
 
 const std::string kQuickSpec =
     std::string(SKERRY_EXAMPLES_DIR) + "/sphere-quick.spec";
@@ -180,6 +181,60 @@ TEST(CliLocalTest, LocalRejectsZeroWorkers) {
   Result local = Cli({"local", kQuickSpec, "--workers", "0", "--db", "x.db"});
   EXPECT_EQ(local.code, kExitUsage);
   EXPECT_THAT(local.err, HasSubstr("--workers must be an integer in [1, 256]"));
+}
+
+// The observed bug: a run id past the signed range came back as
+// "run -1 not found".
+TEST_F(CoordinatorFixture, RunIdPastTheSignedRangeIsPrintedUnsigned) {
+  Result shown =
+      Cli({"--coordinator", target_, "show", "18446744073709551615"});
+  EXPECT_EQ(shown.code, kExitFailure) << shown.err;
+  EXPECT_THAT(shown.err, HasSubstr("run 18446744073709551615 not found"));
+  EXPECT_THAT(shown.err, Not(HasSubstr("-1")));
+}
+
+// The observed bug: `skerry submit DIR` read the directory as an empty spec.
+TEST_F(CoordinatorFixture, SubmittingADirectoryIsAUsageError) {
+  Result submitted =
+      Cli({"--coordinator", target_, "submit", ::testing::TempDir()});
+  EXPECT_EQ(submitted.code, kExitUsage) << submitted.err;
+  EXPECT_THAT(submitted.err, HasSubstr("is a directory, not a spec file"));
+  Result listed = Cli({"--coordinator", target_, "list"});
+  EXPECT_THAT(listed.out, Not(HasSubstr("run ")));  // nothing was submitted
+}
+
+// The observed bug: invalid UTF-8 in a spec ended in libprotobuf log lines and
+// exit 1, after `local` had made its database.
+TEST(CliLocalTest, InvalidUtf8SpecIsAUsageErrorNamingTheFieldAndMakesNoDb) {
+  const std::string spec = ::testing::TempDir() + "/utf8.spec";
+  {
+    std::ofstream out(spec, std::ios::binary);
+    out << "name: \"caf\xE9\"\ngenome_length: 2\n"
+        << "evaluator { builtin { function: \"sphere\" } }\n";
+  }
+  std::string db = FreshDb("cli_local_utf8.db");
+  Result local = Cli({"local", spec, "--workers", "1", "--db", db});
+  EXPECT_EQ(local.code, kExitUsage) << local.err;
+  EXPECT_THAT(local.err, HasSubstr("utf8.spec:1:11: name: not valid UTF-8"));
+  EXPECT_FALSE(std::ifstream(db).good()) << "no database for a bad spec";
+}
+
+// The observed bug: a run whose every genome failed ended `finished` with no
+// champion, and `local` exited 0 without saying why.
+TEST(CliLocalTest, RunWhoseEveryEvaluationFailsEndsFailedAndLocalSaysWhy) {
+  const std::string spec = ::testing::TempDir() + "/failing.spec";
+  {
+    std::ofstream out(spec);
+    out << "name: \"always-fails\"\ngenome_length: 2\n"
+        << "lower_bound: -1\nupper_bound: 1\nmax_attempts: 1\n"
+        << "evaluator { external { argv: \"/bin/false\" } }\n"
+        << "ga { population_size: 4 }\nstop { max_generations: 2 }\n";
+  }
+  std::string db = FreshDb("cli_local_failing.db");
+  Result local = Cli({"local", spec, "--workers", "1", "--db", db});
+  EXPECT_EQ(local.code, kExitFailure) << local.out << local.err;
+  EXPECT_THAT(local.out, HasSubstr("run 1 failed"));
+  EXPECT_THAT(local.out, HasSubstr("every evaluation failed"));
 }
 
 }  // namespace

@@ -150,11 +150,31 @@ TEST_F(CommandsTest, EveryUnaryCallCarriesADeadline) {
                            const v1::ListRunsRequest&, v1::ListRunsResponse*) {
         absl::Time deadline = absl::FromChrono(context->deadline());
         EXPECT_GT(deadline, before);
-        EXPECT_LE(deadline, absl::Now() + absl::Seconds(10));
+        EXPECT_LE(deadline, absl::Now() + absl::Seconds(30));
         return grpc::Status::OK;
       }));
   EXPECT_EQ(Cli({"list"}), kExitOk);
   EXPECT_EQ(out_.str(), "no runs\n");
+}
+
+TEST_F(CommandsTest, TimeoutOptionSetsEveryCallsDeadline) {
+  absl::Time before = absl::Now();
+  EXPECT_CALL(*mock_, ListRuns(_, _, _))
+      .WillOnce(Invoke([&](grpc::ClientContext* context,
+                           const v1::ListRunsRequest&, v1::ListRunsResponse*) {
+        absl::Time deadline = absl::FromChrono(context->deadline());
+        EXPECT_GT(deadline, before + absl::Seconds(100));
+        EXPECT_LE(deadline, absl::Now() + absl::Seconds(120));
+        return grpc::Status::OK;
+      }));
+  EXPECT_EQ(Cli({"--timeout", "120", "list"}), kExitOk);
+  EXPECT_EQ(CallTimeout(), absl::Seconds(120));
+}
+
+TEST_F(CommandsTest, TimeoutOutOfRangeIsAUsageErrorNamingTheOption) {
+  EXPECT_EQ(Cli({"--timeout", "0", "list"}), kExitUsage);
+  EXPECT_THAT(err_.str(),
+              HasSubstr("--timeout must be an integer in [1, 3600]"));
 }
 
 TEST_F(CommandsTest,

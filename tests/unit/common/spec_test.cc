@@ -17,6 +17,7 @@ namespace {
 using skerry::v1::RunSpec;
 using ::testing::HasSubstr;
 using ::testing::MatchesRegex;
+using ::testing::Not;
 using ::testing::StartsWith;
 
 constexpr char kExampleSpec[] = R"pb(
@@ -71,10 +72,66 @@ TEST(ParseSpecTextTest, UnknownFieldIsNamedWithItsLine) {
   const absl::StatusOr<RunSpec> spec = ParseSpecText(
       "genome_length: 10\nga {\n  bogus_field: 1\n}\n", "runs/bad.spec");
   ASSERT_FALSE(spec.ok());
-  // protobuf points just past the unknown name: column 14.
+  // At the unknown name itself (column 3), not the ':' after it.
   EXPECT_THAT(std::string(spec.status().message()),
-              StartsWith("runs/bad.spec:3:14: "));
+              StartsWith("runs/bad.spec:3:3: "));
   EXPECT_THAT(std::string(spec.status().message()), HasSubstr("bogus_field"));
+}
+
+// The observed bug: errors pointed at the token after the problem, and
+// columns counted UTF-8 bytes instead of characters.
+TEST(ParseSpecTextTest, ParseErrorPointsAtTheTokenAndCountsCharacters) {
+  // "\xC3\xA9" is one character (e acute): "bogus" starts at character 11,
+  // byte 12.
+  const absl::StatusOr<RunSpec> spec =
+      ParseSpecText("name: \"\xC3\xA9\" bogus: 1\n", "x.spec");
+  ASSERT_FALSE(spec.ok());
+  EXPECT_THAT(std::string(spec.status().message()),
+              StartsWith("x.spec:1:11: "));
+  EXPECT_THAT(std::string(spec.status().message()), HasSubstr("bogus"));
+  // A tab is one character too.
+  const absl::StatusOr<RunSpec> tabbed =
+      ParseSpecText("ga {\n\tbogus: 1\n}\n", "x.spec");
+  ASSERT_FALSE(tabbed.ok());
+  EXPECT_THAT(std::string(tabbed.status().message()),
+              StartsWith("x.spec:2:2: "));
+}
+
+// The observed bug: invalid UTF-8 in a spec ended in libprotobuf log lines
+// when the spec was sent, and exit 1.
+TEST(ParseSpecTextTest, InvalidUtf8InAStringFieldIsRefusedNamingTheField) {
+  const absl::StatusOr<RunSpec> raw =
+      ParseSpecText("genome_length: 2\nname: \"ab\xFF\"\n", "x.spec");
+  ASSERT_FALSE(raw.ok());
+  EXPECT_EQ(raw.status().code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_THAT(std::string(raw.status().message()),
+              StartsWith("x.spec:2:10: name: not valid UTF-8"));
+  EXPECT_THAT(std::string(raw.status().message()), HasSubstr("0xFF"));
+  // Through an escape, in a nested repeated field: named by its path.
+  const absl::StatusOr<RunSpec> escaped = ParseSpecText(
+      "evaluator { external { argv: \"sim\" argv: \"\\377\" } }\n", "x.spec");
+  ASSERT_FALSE(escaped.ok());
+  EXPECT_THAT(
+      std::string(escaped.status().message()),
+      StartsWith("x.spec: evaluator.external.argv[1]: not valid UTF-8"));
+  // Valid UTF-8 is taken as it is.
+  EXPECT_EQ(Parse("name: \"r\xC3\xA9glage\"\n").name(), "r\xC3\xA9glage");
+}
+
+// The observed bug: a spec without an evaluator read as unknown function "".
+TEST(ValidateSpecTest, MissingEvaluatorSaysSoAndHowToSetIt) {
+  RunSpec spec = Parse("genome_length: 2\n");
+  absl::StatusOr<RunSpec> prepared = PrepareSpec(spec);
+  ASSERT_FALSE(prepared.ok());
+  const std::string message(prepared.status().message());
+  EXPECT_THAT(message, StartsWith("evaluator: missing"));
+  EXPECT_THAT(message, HasSubstr("builtin { function: \"sphere\" }"));
+  EXPECT_THAT(message, Not(HasSubstr("unknown function")));
+  spec.mutable_evaluator()->mutable_builtin();  // builtin {} with no function
+  prepared = PrepareSpec(spec);
+  ASSERT_FALSE(prepared.ok());
+  EXPECT_THAT(std::string(prepared.status().message()),
+              StartsWith("evaluator.builtin.function: not set"));
 }
 
 TEST(ParseSpecTextTest, BadValueReportsPosition) {
@@ -212,7 +269,7 @@ std::vector<BadCase> BadCases() {
          s->set_lower_bound(-1);
          s->set_upper_bound(1);
        },
-       "evaluator.builtin.function"},
+       "evaluator"},
       {"negative time limit",
        [](RunSpec* s) { s->mutable_evaluator()->set_time_limit_seconds(-1); },
        "evaluator.time_limit_seconds"},
@@ -422,7 +479,8 @@ TEST(ValidateSpecTest, EveryBadFieldIsNamedWithRangeAndValue) {
     EXPECT_THAT(message, StartsWith(absl::StrCat(c.field, ": ")));
     // The evaluator's message quotes the bad name instead of a "got" part.
     EXPECT_THAT(message,
-                c.field == std::string("evaluator.builtin.function")
+                c.field == std::string("evaluator.builtin.function") ||
+                        c.field == std::string("evaluator")
                     ? MatchesRegex(".*: .+ \\(allowed: .+\\)")
                     : MatchesRegex(".*: .+ \\(allowed: .+; got .+\\)"));
   }
