@@ -52,7 +52,10 @@ class Coordinator {
   virtual std::string TransportSummary() const = 0;
   // A channel to this coordinator that does not touch the network.
   virtual std::shared_ptr<grpc::Channel> InProcessChannel() = 0;
-  // Stops serving; in-flight commits finish first.
+  // Stops serving: the engine first (its in-flight commit gets a deadline,
+  // then is interrupted and rolled back: nothing acknowledged is lost), then
+  // the server (5 s for calls in flight). Idempotent; a second caller returns
+  // when the first has finished. Bounded in time.
   virtual void Shutdown() = 0;
   // Blocks until Shutdown() is called (from a signal handler's thread, say).
   virtual void Wait() = 0;

@@ -8,8 +8,18 @@
 
 namespace skerry::api {
 
+// Sent as the error details of every UNAVAILABLE the coordinator itself
+// answers (storage trouble, shutting down), so that a client can tell "the
+// coordinator answered: unavailable" from "nothing answered", which gRPC
+// reports with the same code (cli/client.h, IsUnreachable).
+inline constexpr char kAnsweredUnavailable[] = "skerry-coordinator-answered";
+
 inline grpc::Status ToGrpc(const absl::Status& s) {
   if (s.ok()) return grpc::Status::OK;
+  if (absl::IsUnavailable(s)) {
+    return grpc::Status(grpc::StatusCode::UNAVAILABLE, std::string(s.message()),
+                        kAnsweredUnavailable);
+  }
   return grpc::Status(static_cast<grpc::StatusCode>(s.code()),
                       std::string(s.message()));
 }

@@ -1,10 +1,14 @@
 #include "server/store/check.h"
 
+#include <sys/stat.h>
+
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
+#include "server/store/row_sums.h"
 #include "server/store/sqlite.h"
+#include "server/store/store.h"
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
 #include "skerry/v1/spec.pb.h"
@@ -158,6 +162,7 @@ class Checker {
                "WHERE run_id = ?1 AND attempts > 0 AND eval_state IN (2, 3)) "
                "AS n FROM "
                "runs r WHERE r.id = ?1 AND r.evaluations != n"));
+    SKERRY_RETURN_IF_ERROR(CheckContent(run));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "validation names a genome that is missing or of another run",
         "SELECT 'validation', v.id, 'genome', v.genome_id FROM validations v "
@@ -167,7 +172,64 @@ class Checker {
     return absl::OkStatus();
   }
 
+  // What the rows say: checksums (row_sums.h) and the content rules.
+  absl::Status CheckContent(int64_t run) {
+    const std::string key =
+        "'island', island, 'generation', generation, 'slot', slot, "
+        "'genome', id";
+    if (has_sums) SKERRY_RETURN_IF_ERROR(CheckSums(run, key));
+    return CheckRules(run, key);
+  }
+
+  absl::Status CheckSums(int64_t run, const std::string& key) {
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "genome content does not match its checksum (damaged)",
+        absl::StrCat("SELECT ", key, " FROM genomes WHERE run_id = ?1 AND ",
+                     "sum IS NOT skerry_row_sum(", kGenomeSumColumns,
+                     ") LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "island row does not match its checksum (damaged)",
+        absl::StrCat("SELECT 'island', idx FROM islands WHERE run_id = ?1 AND ",
+                     "sum IS NOT skerry_row_sum(", kIslandSumColumns,
+                     ") LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "statistics row does not match its checksum (damaged)",
+        absl::StrCat("SELECT 'island', island, 'generation', generation FROM "
+                     "generation_stats WHERE run_id = ?1 AND sum IS NOT "
+                     "skerry_row_sum(",
+                     kStatsSumColumns, ") LIMIT 20")));
+    return absl::OkStatus();
+  }
+
+  absl::Status CheckRules(int64_t run, const std::string& key) {
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "evaluated genome has no score",
+        absl::StrCat("SELECT ", key, " FROM genomes WHERE run_id = ?1 AND ",
+                     "eval_state = ", skerry::v1::EVALUATED,
+                     " AND score IS NULL LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "failed genome has no error text",
+        absl::StrCat("SELECT ", key, " FROM genomes WHERE run_id = ?1 AND ",
+                     "eval_state = ", skerry::v1::FAILED,
+                     " AND error = '' LIMIT 20")));
+    // Elites and migrants are copies: the same genes as their parent, and,
+    // when not evaluated again (attempts 0), the same outcome.
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "genome carried over unchanged differs from its parent",
+        absl::StrCat(
+            "SELECT 'island', c.island, 'generation', c.generation, 'slot', "
+            "c.slot, 'genome', c.id, 'parent', p.id FROM genomes c JOIN "
+            "genomes p ON p.id = c.parent_a WHERE c.run_id = ?1 AND "
+            "c.origin IN (",
+            skerry::v1::ELITE, ",", skerry::v1::MIGRANT,
+            ") AND (c.genes != p.genes OR (c.attempts = 0 AND c.eval_state "
+            "!= 1 AND (c.eval_state != p.eval_state OR c.score IS NOT "
+            "p.score))) LIMIT 20")));
+    return absl::OkStatus();
+  }
+
   CheckReport report;
+  bool has_sums = true;  // schema version 6 or later
 
  private:
   Connection* c_;
@@ -189,6 +251,16 @@ std::string CheckReport::ToString() const {
 }
 
 absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
+  // The file rule of Store::Open: nothing is created here, an empty file is
+  // not a database.
+  struct stat st;
+  if (stat(path.c_str(), &st) != 0) {
+    return absl::NotFoundError(absl::StrCat(path, ": no such file"));
+  }
+  if (S_ISREG(st.st_mode) && st.st_size == 0) {
+    return absl::FailedPreconditionError(
+        absl::StrCat(path, ": ", kEmptyFileMessage));
+  }
   SKERRY_ASSIGN_OR_RETURN(auto conn,
                           Connection::Open(path, SQLITE_OPEN_READONLY));
   sqlite3_busy_timeout(conn->raw(), 5000);
@@ -205,8 +277,25 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     checker.report.integrity = absl::StrJoin(lines, "; ");
   }
   SKERRY_RETURN_IF_ERROR(conn->Exec("BEGIN"));  // one snapshot for every query
-  absl::StatusOr<Statement> runs =
-      conn->Prepare("SELECT id, spec, state FROM runs ORDER BY id");
+  {
+    absl::StatusOr<Statement> v =
+        conn->Prepare("SELECT max(version) FROM schema_version");
+    absl::StatusOr<bool> row = v.ok() ? v->Step() : absl::StatusOr<bool>(false);
+    // Before version 6 rows had no checksums; a coordinator start adds them.
+    checker.has_sums = row.ok() && *row && v->ColumnInt(0) >= 6;
+    // The schema of the current version, compared object by object (an older
+    // version is migrated by the coordinator's next start, not compared).
+    if (row.ok() && *row && v->ColumnInt(0) == Store::kSchemaVersion) {
+      if (absl::Status schema = VerifySchema(conn.get()); !schema.ok()) {
+        checker.Problem(std::string(schema.message()));
+      }
+    }
+  }
+  absl::StatusOr<Statement> runs = conn->Prepare(
+      checker.has_sums
+          ? absl::StrCat("SELECT id, spec, state, sum IS skerry_row_sum(",
+                         kRunSumColumns, ") FROM runs ORDER BY id")
+          : "SELECT id, spec, state, 1 FROM runs ORDER BY id");
   if (!runs.ok()) {
     return absl::FailedPreconditionError(absl::StrCat(
         path, ": not a Skerry database (", runs.status().message(), ")"));
@@ -216,6 +305,10 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     if (!row) break;
     skerry::v1::RunSpec spec;
     const int64_t id = runs->ColumnInt(0);
+    if (runs->ColumnInt(3) != 1) {
+      checker.Problem(absl::StrCat(
+          "run ", id, ": run record does not match its checksum (damaged)"));
+    }
     if (!spec.ParseFromString(runs->ColumnBlob(1))) {
       checker.Problem(absl::StrCat("run ", id, ": stored spec does not parse"));
       continue;

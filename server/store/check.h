@@ -12,7 +12,15 @@
 //   - elites and migrants have a parent; seeded genomes and immigrants have
 //   none;
 //   - each completed generation has its statistics row;
-//   - the run's evaluation counter equals the evaluations stored.
+//   - the run's evaluation counter equals the evaluations stored;
+//   - every row of runs, islands, genomes and generation_stats matches its
+//     checksum (row_sums.h): changed genes, scores, parents... show here;
+//   - an evaluated genome has a score, a failed one its error text;
+//   - an elite or migrant has its parent's genes, and, when it was not
+//     evaluated again, its parent's outcome.
+//
+// The file rule is Store::Open's: a missing or empty (0-byte) file is not a
+// Skerry database, and neither is one without its schema.
 //
 // Thread safety: a function; opens its own connection.
 #ifndef SKERRY_SERVER_STORE_CHECK_H_
