@@ -251,7 +251,11 @@ int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
   for (int retry = 0;
        retry < kSubmitRetries && !run.ok() && IsUnreachable(run.status());
        ++retry) {
-    absl::SleepFor(absl::Seconds(1 << retry));
+    if (io.sleep) {
+      io.sleep(absl::Seconds(1 << retry));
+    } else {
+      absl::SleepFor(absl::Seconds(1 << retry));
+    }
     run = client.Submit(loaded->spec, loaded->text, priority, request_id);
   }
   if (!run.ok()) return ReportError(run.status(), io);

@@ -40,6 +40,7 @@ class CoordinatorImpl final : public Coordinator {
                             store::OwnerLock::Acquire(options.db_path));
     store::Store::Options open;
     open.initialise_empty_file = c->owner_->created();
+    open.vfs = options.sqlite_vfs;
     SKERRY_ASSIGN_OR_RETURN(c->store_,
                             store::Store::Open(options.db_path, open));
     // Refuse a file --check would call malformed, and one it cannot write

@@ -37,6 +37,9 @@ struct CoordinatorOptions {
   std::string tls_cert_file;
   std::string tls_key_file;
   std::string tls_client_ca_file;
+  // The SQLite VFS the store is opened with; empty: the default. A test seam
+  // (tests/fault: a disk that fails on demand).
+  std::string sqlite_vfs;
 };
 
 class Coordinator {

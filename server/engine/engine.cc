@@ -377,10 +377,16 @@ void Engine::CommitterLoop() {
       stopping = stopping_;
     }
     if (!jobs.empty()) ProcessJobs(std::move(jobs));
-    {
+    // While writes fail there is nothing to retry or breed, and a shutdown
+    // must not wait for the disk (it used to hang here until space came back).
+    bool held = false;
+    if (!stopping) {
       absl::MutexLock l(&mu_);
       RetryWrites();
-      if (!write_problem_.ok()) continue;
+      held = !write_problem_.ok();
+    }
+    if (!held && !stopping) {
+      absl::MutexLock l(&mu_);
       // Retry what a failed write left undone, and apply wall-time limits.
       std::vector<int64_t> ids;
       for (const auto& [id, run] : runs_) ids.push_back(id);

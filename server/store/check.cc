@@ -327,4 +327,35 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
   return checker.report;
 }
 
+absl::Status VerifyRowSums(Connection* conn, int64_t run_id,
+                           const std::string& schema) {
+  const struct {
+    const char* table;
+    const char* columns;
+    const char* run_column;
+    const char* what;  // SQL naming the row
+  } tables[] = {
+      {"runs", kRunSumColumns, "id", "'its run record'"},
+      {"islands", kIslandSumColumns, "run_id", "'island ' || idx"},
+      {"genomes", kGenomeSumColumns, "run_id",
+       "'island ' || island || ' generation ' || generation || ' slot ' || "
+       "slot || ' (genome ' || id || ')'"},
+      {"generation_stats", kStatsSumColumns, "run_id",
+       "'island ' || island || ' generation ' || generation || "
+       "' statistics'"},
+  };
+  for (const auto& t : tables) {
+    SKERRY_ASSIGN_OR_RETURN(
+        Statement s,
+        conn->Prepare(absl::StrCat(
+            "SELECT ", t.run_column, ", ", t.what, " FROM ", schema, ".",
+            t.table, " WHERE (?1 = 0 OR ", t.run_column,
+            " = ?1) AND sum IS NOT skerry_row_sum(", t.columns, ") LIMIT 1")));
+    s.BindInt(1, run_id);
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (row) return DamagedRow(s.ColumnInt(0), s.ColumnText(1));
+  }
+  return absl::OkStatus();
+}
+
 }  // namespace skerry::store

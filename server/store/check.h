@@ -30,6 +30,7 @@
 #include <vector>
 
 #include "absl/status/statusor.h"
+#include "server/store/sqlite.h"
 
 namespace skerry::store {
 
@@ -44,6 +45,13 @@ struct CheckReport {
 
 // Fails only when the file cannot be read as a Skerry database at all.
 absl::StatusOr<CheckReport> CheckDatabase(const std::string& path);
+
+// Every row of runs, islands, genomes and generation_stats (of `run_id`, or of
+// every run when 0) in database `schema` ("main", or an attached name)
+// against its checksum: DATA_LOSS naming the first damaged row. Used by
+// backups, before a copy is trusted.
+absl::Status VerifyRowSums(Connection* conn, int64_t run_id,
+                           const std::string& schema = "main");
 
 }  // namespace skerry::store
 

@@ -96,6 +96,28 @@ class CoordinatorFixture : public ::testing::Test {
   std::thread worker_thread_;
 };
 
+TEST_F(CoordinatorFixture,
+       RetriedSubmitWithTheSameRequestIdReturnsTheFirstRun) {
+  absl::StatusOr<LoadedSpec> spec = LoadSpecFile(kQuickSpec);
+  ASSERT_TRUE(spec.ok()) << spec.status();
+  RunClient client(skerry::v1::RunService::NewStub(grpc::CreateChannel(
+                       target_, grpc::InsecureChannelCredentials())),
+                   target_);
+  auto first = client.Submit(spec->spec, spec->text, 0, "retry-me");
+  ASSERT_TRUE(first.ok()) << first.status();
+  auto again = client.Submit(spec->spec, spec->text, 0, "retry-me");
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(again->id(), first->id());
+  auto other = client.Submit(spec->spec, spec->text, 0, "another");
+  ASSERT_TRUE(other.ok()) << other.status();
+  EXPECT_NE(other->id(), first->id());
+  auto listed = client.List();
+  ASSERT_TRUE(listed.ok());
+  EXPECT_EQ(listed->size(), 2u);
+  auto bad = client.Submit(spec->spec, spec->text, 0, "has space");
+  EXPECT_TRUE(absl::IsInvalidArgument(bad.status())) << bad.status();
+}
+
 TEST_F(CoordinatorFixture, SubmitWatchShowHistoryAndChampionOverLoopback) {
   Result submitted =
       Cli({"--coordinator", target_, "submit", kQuickSpec, "--watch"});

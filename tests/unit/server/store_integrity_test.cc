@@ -16,6 +16,7 @@
 #include "absl/strings/str_cat.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "server/store/backup.h"
 #include "server/store/check.h"
 #include "server/store/owner_lock.h"
 #include "server/store/sqlite.h"
@@ -121,6 +122,28 @@ TEST_F(IntegrityTest, CheckNamesAFlippedScore) {
   EXPECT_TRUE(absl::IsDataLoss((*s)->BestGenome(run.id).status()) ||
               (*s)->BestGenome(run.id).ok());
   EXPECT_TRUE(absl::IsDataLoss((*s)->GetGeneration(run.id, 0, 0).status()));
+}
+
+TEST_F(IntegrityTest, BackupOfADamagedRunIsRefusedNamingTheDamage) {
+  const int64_t run = MakeRunAndClose();
+  ASSERT_TRUE(FlipStoredDouble(path(), kMarkedGene));
+  for (int64_t which : {run, int64_t{0}}) {
+    const std::string copy = dir_.File(absl::StrCat("copy", which, ".db"));
+    absl::Status s = BackupDatabase(path(), which, copy);
+    EXPECT_TRUE(absl::IsDataLoss(s)) << s;
+    EXPECT_THAT(std::string(s.message()),
+                HasSubstr("island 1 generation 0 slot 2"));
+    EXPECT_FALSE(std::filesystem::exists(copy));
+  }
+}
+
+TEST_F(IntegrityTest, BackupOfAnUndamagedRunPassesCheck) {
+  const int64_t run = MakeRunAndClose();
+  const std::string copy = dir_.File("copy.db");
+  ASSERT_TRUE(BackupDatabase(path(), run, copy).ok());
+  absl::StatusOr<CheckReport> report = CheckDatabase(copy);
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_TRUE(report->ok()) << report->ToString();
 }
 
 TEST_F(IntegrityTest, UndamagedDatabasePassesCheckWithChecksums) {
