@@ -1,5 +1,7 @@
 // The CLI against a real coordinator: over loopback TCP (port 0) with a real
 // gRPC channel, and `skerry local` with everything in one process.
+#include <unistd.h>
+
 #include <cstdio>
 #include <fstream>
 #include <memory>
@@ -33,8 +35,10 @@ using ::testing::HasSubstr;
 const std::string kQuickSpec =
     std::string(SKERRY_EXAMPLES_DIR) + "/sphere-quick.spec";
 
+// Per process: ctest runs these tests in parallel processes.
 std::string FreshDb(const std::string& name) {
-  std::string path = ::testing::TempDir() + "/" + name;
+  std::string path =
+      absl::StrCat(::testing::TempDir(), "/", getpid(), "-", name);
   for (const char* suffix : {"", "-wal", "-shm"}) {
     std::remove((path + suffix).c_str());
   }

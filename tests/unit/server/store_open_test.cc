@@ -45,18 +45,6 @@ TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
   EXPECT_EQ((*again)->path(), path());
 }
 
-// Takes a database back from version 6 to version 5 (its triggers, indexes
-// and columns), with a raw connection, as SQLite 3.35+ can drop columns.
-constexpr char kUndoVersion6[] =
-    "DROP TRIGGER runs_sum_insert; DROP TRIGGER runs_sum_update; "
-    "DROP TRIGGER islands_sum_insert; DROP TRIGGER islands_sum_update; "
-    "DROP TRIGGER genomes_sum_insert; DROP TRIGGER genomes_sum_update; "
-    "DROP TRIGGER generation_stats_sum_insert; "
-    "DROP TRIGGER generation_stats_sum_update; DROP INDEX runs_request; "
-    "ALTER TABLE runs DROP COLUMN sum; ALTER TABLE runs DROP COLUMN "
-    "request_id; ALTER TABLE islands DROP COLUMN sum; ALTER TABLE genomes DROP "
-    "COLUMN sum; ALTER TABLE generation_stats DROP COLUMN sum; ";
-
 // A version-5 database gets its rows' checksums computed by the migration:
 // its data reads back, and --check finds every row sound.
 TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
@@ -64,7 +52,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
   ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
   store_.reset();
-  RawExec(path(), std::string(kUndoVersion6) +
+  RawExec(path(), std::string(skerry::testing::kUndoVersion6) +
                       "UPDATE genomes SET score = 7.5, eval_state = 2, "
                       "attempts = 1 WHERE slot = 1; "
                       "UPDATE schema_version SET version = 5;");
@@ -88,7 +76,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
 TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(path(),
-          std::string(kUndoVersion6) +
+          std::string(skerry::testing::kUndoVersion6) +
               "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
               "DROP INDEX genomes_failed; DROP TABLE validations; "
               "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
