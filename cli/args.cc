@@ -193,6 +193,10 @@ absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
       parsed->command = "help";
       return args.size();
     }
+    if (arg == "--version") {
+      parsed->command = "version";
+      return args.size();
+    }
     if (!absl::StartsWith(arg, "-")) break;
     FlagToken token = SplitFlag(arg);
     if (!absl::StartsWith(arg, "--") || !IsGlobal(token.name)) {
@@ -201,7 +205,7 @@ absl::StatusOr<size_t> ParseGlobal(const std::vector<std::string>& args,
           "", absl::StrCat("unknown option '", arg.substr(0, arg.find('=')),
                            "' (options before the command: --coordinator, "
                            "--token, --token-file, --tls-ca, --tls-cert, "
-                           "--tls-key, --tls-server-name, --help)"));
+                           "--tls-key, --tls-server-name, --help, --version)"));
     }
     if (!token.has_value) {
       if (i + 1 >= args.size()) {
@@ -460,7 +464,8 @@ std::string GeneralHelp() {
       "  --tls-server-name NAME   name to expect in the coordinator's "
       "certificate\n"
       "  --help                   this help; `skerry COMMAND --help` for one "
-      "command\n\n"
+      "command\n"
+      "  --version                print the version and exit\n\n"
       "Exit codes: 0 success, 1 the operation failed, 2 usage error or bad "
       "input,\n3 cannot reach the coordinator.\n");
   return help;

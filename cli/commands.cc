@@ -18,6 +18,7 @@
 #include "cli/local.h"
 #include "cli/validate.h"
 #include "common/spec.h"
+#include "common/version.h"
 #include "google/protobuf/util/json_util.h"
 
 namespace skerry::cli {
@@ -437,6 +438,10 @@ int RunCli(const std::vector<std::string>& args,
     return UsageFailure(parsed.status(), command, io);
   }
   if (parsed->help || parsed->command == "help") return Help(*parsed, io);
+  if (parsed->command == "version") {
+    *io.out << VersionLine("skerry");
+    return 0;
+  }
   if (parsed->command == "local") return LocalCommand(*parsed, io);
   absl::StatusOr<worker::ClientSecurity> security = Security(*parsed, io);
   if (!security.ok()) return UsageFailure(security.status(), "", io);

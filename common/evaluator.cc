@@ -7,6 +7,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "common/pole.h"
+#include "common/quote.h"
 
 namespace skerry {
 namespace {
@@ -153,8 +154,8 @@ absl::StatusOr<std::unique_ptr<Evaluator>> MakeEvaluator(
           : nullptr;
   if (function == nullptr) {
     return absl::InvalidArgumentError(absl::StrCat(
-        "evaluator.builtin.function: unknown function \"", name,
-        "\" (allowed: ", absl::StrJoin(BuiltinNames(), ", "), ")"));
+        "evaluator.builtin.function: unknown function ", QuotePrefix(name),
+        " (allowed: ", absl::StrJoin(BuiltinNames(), ", "), ")"));
   }
   return std::unique_ptr<Evaluator>(new BuiltinEvaluator(function));
 }

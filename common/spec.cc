@@ -12,6 +12,7 @@
 #include "common/evaluator.h"
 #include "common/network.h"
 #include "common/pole.h"
+#include "common/quote.h"
 #include "common/validation.h"
 #include "google/protobuf/descriptor.h"
 #include "google/protobuf/io/tokenizer.h"
@@ -346,8 +347,7 @@ absl::Status CheckExternal(const skerry::v1::ExternalEvaluator& ext) {
     const std::string& name = entry.first;
     if (name.empty() || name.find('=') != std::string::npos) {
       return Bad("evaluator.external.env", "bad variable name",
-                 "a non-empty name without '='",
-                 absl::StrCat("\"", name, "\""));
+                 "a non-empty name without '='", QuotePrefix(name));
     }
   }
   return absl::OkStatus();
@@ -572,6 +572,88 @@ absl::StatusOr<RunSpec> PrepareSpec(RunSpec spec) {
   NormalizeSpec(&spec);
   if (absl::Status s = ValidateSpec(spec); !s.ok()) return s;
   return spec;
+}
+
+namespace {
+
+absl::Status OverBudget(absl::string_view what, uint64_t value, uint64_t limit,
+                        absl::string_view flag) {
+  if (limit == 0 || value <= limit) return absl::OkStatus();
+  return absl::InvalidArgumentError(absl::StrCat(
+      "budget ", what, ": ", value, " exceeds the coordinator's budget of ",
+      limit, " (", flag, ")"));
+}
+
+// A task's fixed fields (ids, attempt, seed, kind) and framing, with room.
+constexpr uint64_t kTaskOverheadBytes = 64;
+
+}  // namespace
+
+SpecBudgets DefaultSpecBudgets(uint64_t physical_memory_bytes) {
+  SpecBudgets b;
+  // At least 2^20 genes (a population of 1000 networks of 1000 weights),
+  // even on a small machine.
+  b.max_generation_genes =
+      std::max<uint64_t>(physical_memory_bytes / 1024, uint64_t{1} << 20);
+  // SQLite writes on the order of 10^5 genome rows a second here
+  // (docs/performance.md): 10^6 is a commit of about ten seconds.
+  b.max_generation_genomes = 1000000;
+  b.max_evaluator_bytes = 1 << 20;
+  b.max_name_bytes = 256;
+  // A lease answer holds at least one task (server/api/fleet_service.h).
+  b.max_task_bytes = 16 << 20;
+  return b;
+}
+
+absl::StatusOr<RunSpec> PrepareSpec(RunSpec spec, const SpecBudgets& budgets) {
+  // Before anything is made from the spec: the sizes as sent.
+  if (absl::Status s = OverBudget("name bytes", spec.name().size(),
+                                  budgets.max_name_bytes, "--max-name-bytes");
+      !s.ok()) {
+    return s;
+  }
+  if (absl::Status s =
+          OverBudget("evaluator bytes (the serialised evaluator spec)",
+                     spec.evaluator().ByteSizeLong(),
+                     budgets.max_evaluator_bytes, "--max-evaluator-bytes");
+      !s.ok()) {
+    return s;
+  }
+  absl::StatusOr<RunSpec> prepared = PrepareSpec(std::move(spec));
+  if (!prepared.ok()) return prepared.status();
+  // Validated: every factor is within its range, so no product overflows
+  // (at most 256 islands x 10^6 x 10^6).
+  uint64_t population = 0;
+  for (uint32_t i = 0; i < prepared->islands().count(); ++i) {
+    population += IslandPopulation(*prepared, i);
+  }
+  if (absl::Status s = OverBudget("genomes per generation (over all islands)",
+                                  population, budgets.max_generation_genomes,
+                                  "--max-generation-genomes");
+      !s.ok()) {
+    return s;
+  }
+  const uint64_t genes = population * prepared->genome_length();
+  if (absl::Status s = OverBudget(
+          absl::StrCat("genes per generation (", population,
+                       " genomes over all islands x genome_length ",
+                       prepared->genome_length(), ")"),
+          genes, budgets.max_generation_genes, "--max-generation-genes");
+      !s.ok()) {
+    return s;
+  }
+  const uint64_t task_bytes = 8 * uint64_t{prepared->genome_length()} +
+                              prepared->evaluator().ByteSizeLong() +
+                              kTaskOverheadBytes;
+  if (absl::Status s = OverBudget(
+          absl::StrCat("task bytes (8 x genome_length ",
+                       prepared->genome_length(), " + the evaluator spec + ",
+                       kTaskOverheadBytes, ")"),
+          task_bytes, budgets.max_task_bytes, "--max-task-bytes");
+      !s.ok()) {
+    return s;
+  }
+  return prepared;
 }
 
 }  // namespace skerry

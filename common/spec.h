@@ -7,6 +7,7 @@
 #ifndef SKERRY_COMMON_SPEC_H_
 #define SKERRY_COMMON_SPEC_H_
 
+#include <cstdint>
 #include <string>
 
 #include "absl/status/status.h"
@@ -32,6 +33,38 @@ uint32_t IslandPopulation(const skerry::v1::RunSpec& spec, uint32_t island);
 
 // Both, then returns the normalised spec.
 absl::StatusOr<skerry::v1::RunSpec> PrepareSpec(skerry::v1::RunSpec spec);
+
+// What a coordinator is willing to take on for one run: its flags, checked
+// on every submitted spec before anything is allocated for it. 0: no budget.
+struct SpecBudgets {
+  // Genes of one generation, all islands: sum of island populations times
+  // genome_length (--max-generation-genes).
+  uint64_t max_generation_genes = 0;
+  // Genomes of one generation, all islands: one generation is written in one
+  // transaction, which other writes wait for (--max-generation-genomes).
+  uint64_t max_generation_genomes = 0;
+  // The serialised EvaluatorSpec, which every task carries
+  // (--max-evaluator-bytes).
+  uint64_t max_evaluator_bytes = 0;
+  // The run's name, which every RunSummary carries (--max-name-bytes).
+  uint64_t max_name_bytes = 0;
+  // One task as a worker receives it: genes, evaluator and ids
+  // (--max-task-bytes).
+  uint64_t max_task_bytes = 0;
+};
+
+// Defaults for a machine with `physical_memory_bytes` of memory: a generation
+// of at most physical memory / 1024 genes (the coordinator holds a few copies
+// of each gene) and 10^6 genomes (a transaction of seconds), and fixed byte
+// budgets that fit in one gRPC message.
+SpecBudgets DefaultSpecBudgets(uint64_t physical_memory_bytes);
+
+// PrepareSpec, with the budgets: the sizes sent (name, evaluator) are checked
+// before normalisation, the generation and task sizes after validation.
+// InvalidArgument "budget ...: VALUE exceeds the coordinator's budget of
+// LIMIT (--FLAG)".
+absl::StatusOr<skerry::v1::RunSpec> PrepareSpec(skerry::v1::RunSpec spec,
+                                                const SpecBudgets& budgets);
 
 }  // namespace skerry
 

@@ -4,6 +4,9 @@
 # Idempotent and non-interactive: asks dpkg-query which packages are missing and
 # installs only those, running `apt-get update` once first, and only when
 # something is missing. Uses sudo only when not already root.
+#
+#   deploy/install-deps.sh                # build, test (every default tier), run
+#   deploy/install-deps.sh --deploy-tier  # and the opt-in deploy tier: Slurm, munge
 set -euo pipefail
 
 PACKAGES=(
@@ -25,7 +28,21 @@ PACKAGES=(
   python3
   openssl
   clang-format
+  # Deploy tests: the package (dpkg-shlibdeps, readelf), the units
+  # (systemd-analyze), the manifests (PyYAML), network namespaces (ip, tc).
+  dpkg-dev
+  binutils
+  systemd
+  python3-yaml
+  iproute2
 )
+if [[ "${1:-}" == "--deploy-tier" ]]; then
+  # A real single-node Slurm for tests/deploy/slurm_test.cc.
+  PACKAGES+=(slurmd slurmctld slurm-client munge)
+elif [[ $# -gt 0 ]]; then
+  echo "install-deps: unknown argument \"$1\" (only --deploy-tier)" >&2
+  exit 2
+fi
 
 installed() {
   local status

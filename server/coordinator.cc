@@ -1,5 +1,7 @@
 #include "server/coordinator.h"
 
+#include <unistd.h>
+
 #include <cstdio>
 #include <map>
 #include <set>
@@ -66,7 +68,7 @@ class CoordinatorImpl final : public Coordinator {
     watch.max_watchers = options.max_watchers;
     c->runs_ = std::make_unique<api::RunServiceImpl>(
         c->store_.get(), c->engine_.get(), c->fleet_.get(), c->access_.get(),
-        watch);
+        watch, options.budgets);
     c->validations_ = std::make_unique<api::ValidationServiceImpl>(
         c->store_.get(), c->engine_.get(), c->access_.get());
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
@@ -127,6 +129,14 @@ class CoordinatorImpl final : public Coordinator {
           "cannot listen on ", options.listen_address,
           " (address in use, or not an address of this machine?)"));
     }
+    // The standard health service answers for the whole server ("") by
+    // itself; each of our services is SERVING too, until Shutdown.
+    if (grpc::HealthCheckServiceInterface* health =
+            c->server_->GetHealthCheckService()) {
+      for (const auto& [service, name] : services) {
+        health->SetServingStatus(name, true);
+      }
+    }
     return c;
   }
 
@@ -148,7 +158,7 @@ class CoordinatorImpl final : public Coordinator {
       absl::MutexLock l(&mu_);
       if (shut_down_) {
         // Idempotent: a second caller returns once the first has finished.
-        mu_.Await(absl::Condition(&shutdown_finished_));
+        mu_.Await(absl::Condition(&stopped_));
         return;
       }
       shut_down_ = true;
@@ -161,17 +171,24 @@ class CoordinatorImpl final : public Coordinator {
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
     if (engine_ != nullptr) engine_->Shutdown();
     if (server_ != nullptr) {
+      // Health checks answer NOT_SERVING from now on, for every service.
+      if (grpc::HealthCheckServiceInterface* health =
+              server_->GetHealthCheckService()) {
+        health->Shutdown();
+      }
       server_->Shutdown(std::chrono::system_clock::now() +
                         std::chrono::seconds(5));
       server_->Wait();
     }
     absl::MutexLock l(&mu_);
-    shutdown_finished_ = true;
+    stopped_ = true;
   }
 
   void Wait() override {
+    // Until Shutdown() has finished, not merely begun: the caller may
+    // destroy the coordinator next (skerry-coordinator's main returns).
     absl::MutexLock l(&mu_);
-    mu_.Await(absl::Condition(&shut_down_));
+    mu_.Await(absl::Condition(&stopped_));
   }
 
  private:
@@ -195,11 +212,21 @@ class CoordinatorImpl final : public Coordinator {
   std::string transport_;
 
   absl::Mutex mu_;
-  bool shut_down_ ABSL_GUARDED_BY(mu_) = false;
-  bool shutdown_finished_ ABSL_GUARDED_BY(mu_) = false;
+  bool shut_down_ ABSL_GUARDED_BY(mu_) = false;  // Shutdown() has begun
+  bool stopped_ ABSL_GUARDED_BY(mu_) = false;    // Shutdown() has finished
 };
 
 }  // namespace
+
+SpecBudgets MachineSpecBudgets() {
+  const long pages = sysconf(_SC_PHYS_PAGES);
+  const long page_size = sysconf(_SC_PAGESIZE);
+  const uint64_t memory =
+      pages > 0 && page_size > 0
+          ? static_cast<uint64_t>(pages) * static_cast<uint64_t>(page_size)
+          : 0;  // unknown: DefaultSpecBudgets' floor
+  return DefaultSpecBudgets(memory);
+}
 
 absl::StatusOr<std::unique_ptr<Coordinator>> Coordinator::Start(
     const CoordinatorOptions& options) {

@@ -15,10 +15,14 @@
 #include "absl/status/statusor.h"
 #include "absl/time/time.h"
 #include "common/clock.h"
+#include "common/spec.h"
 #include "grpcpp/channel.h"
 #include "server/auth/access_control.h"
 
 namespace skerry::server {
+
+// DefaultSpecBudgets for this machine's physical memory.
+SpecBudgets MachineSpecBudgets();
 
 struct CoordinatorOptions {
   std::string db_path;
@@ -40,6 +44,8 @@ struct CoordinatorOptions {
   // The SQLite VFS the store is opened with; empty: the default. A test seam
   // (tests/fault: a disk that fails on demand).
   std::string sqlite_vfs;
+  // What one run may ask for (common/spec.h); SubmitRun refuses more.
+  SpecBudgets budgets = MachineSpecBudgets();
 };
 
 class Coordinator {
@@ -60,7 +66,8 @@ class Coordinator {
   // the server (5 s for calls in flight). Idempotent; a second caller returns
   // when the first has finished. Bounded in time.
   virtual void Shutdown() = 0;
-  // Blocks until Shutdown() is called (from a signal handler's thread, say).
+  // Blocks until Shutdown(), called from another thread (a signal handler's,
+  // say), has finished.
   virtual void Wait() = 0;
 };
 

@@ -2,9 +2,16 @@
 
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "server/api/fleet_service.h"
 #include "server/auth/access_control.h"
 
 namespace skerry::server {
+namespace {
+
+// A task must fit in a lease answer with room to spare.
+constexpr uint64_t kMaxTaskBytesFlag = api::FleetServiceImpl::kMaxLeaseBytes;
+
+}  // namespace
 
 std::string CoordinatorUsage() {
   return R"(Usage: skerry-coordinator --db FILE [--listen HOST:PORT] [options]
@@ -35,11 +42,29 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
                         signed by this PEM CA (needs --tls-cert)
   --max-watchers N      concurrent `watch` streams served; one more is
                         refused with RESOURCE_EXHAUSTED (default 256)
+  --max-generation-genes N
+                        budget: genes of one generation of a run, all
+                        islands (population x genome_length summed over
+                        islands); a bigger spec is refused at submit
+                        (default: this machine's memory in bytes / 1024,
+                        at least 1048576)
+  --max-generation-genomes N
+                        budget: genomes of one generation of a run, all
+                        islands; each generation is one transaction
+                        (default 1000000)
+  --max-evaluator-bytes N
+                        budget: bytes of a run's serialised evaluator spec,
+                        which every task carries (default 1048576)
+  --max-name-bytes N    budget: bytes of a run's name (default 256)
+  --max-task-bytes N    budget: bytes of one task as a worker receives it,
+                        genes and evaluator spec; at most 67108864
+                        (default 16777216)
   --check DB            check DB (SQLite integrity and Skerry's invariants:
                         whole generations, resolvable parent links, counters),
                         print a report and exit: 0 ok, 1 problems found,
                         2 cannot read it. Safe while a coordinator runs.
   --help                this text
+  --version             print the version and the worker protocols spoken
 )";
 }
 
@@ -69,6 +94,8 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
     };
     if (arg == "--help" || arg == "-h") {
       f.help = true;
+    } else if (arg == "--version") {
+      f.version = true;
     } else if (arg == "--check") {
       absl::StatusOr<std::string> v = value("--check");
       if (!v.ok()) return v.status();
@@ -111,6 +138,28 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
             absl::StrCat("--max-watchers: expected a whole number, got ", *v));
       }
       f.options.max_watchers = static_cast<size_t>(*v);
+    } else if (arg == "--max-generation-genes" ||
+               arg == "--max-generation-genomes" ||
+               arg == "--max-evaluator-bytes" || arg == "--max-name-bytes" ||
+               arg == "--max-task-bytes") {
+      const bool task = arg == "--max-task-bytes";
+      absl::StatusOr<std::string> v = value(arg.c_str());
+      if (!v.ok()) return v.status();
+      uint64_t n = 0;
+      const uint64_t hi = task ? kMaxTaskBytesFlag : uint64_t{1} << 40;
+      if (!absl::SimpleAtoi(*v, &n) || n < 1 || n > hi) {
+        return absl::InvalidArgumentError(absl::StrCat(
+            arg, ": expected a whole number from 1 to ", hi, ", got \"",
+            v->substr(0, 32), v->size() > 32 ? "...\"" : "\""));
+      }
+      SpecBudgets& b = f.options.budgets;
+      uint64_t& field =
+          arg == "--max-generation-genomes" ? b.max_generation_genomes
+          : arg == "--max-generation-genes" ? b.max_generation_genes
+          : arg == "--max-evaluator-bytes"  ? b.max_evaluator_bytes
+          : arg == "--max-name-bytes"       ? b.max_name_bytes
+                                            : b.max_task_bytes;
+      field = n;
     } else if (arg == "--max-wait-ms") {
       absl::StatusOr<double> v = number("--max-wait-ms", 0, 600000);
       if (!v.ok()) return v.status();
@@ -120,7 +169,8 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
           absl::StrCat("unknown argument \"", arg, "\""));
     }
   }
-  if (!f.help && f.check_db.empty() && f.options.db_path.empty()) {
+  if (!f.help && !f.version && f.check_db.empty() &&
+      f.options.db_path.empty()) {
     return absl::InvalidArgumentError("--db: a database file is required");
   }
   return f;

@@ -12,6 +12,7 @@ namespace skerry::server {
 struct CoordinatorFlags {
   CoordinatorOptions options;
   bool help = false;
+  bool version = false;    // --version: print it and exit
   std::string check_db;    // --check DB: check and exit
   std::string init_admin;  // --init-admin NAME: make the first admin and exit
 };

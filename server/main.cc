@@ -8,6 +8,7 @@
 #include <string>
 #include <thread>
 
+#include "common/version.h"
 #include "server/coordinator.h"
 #include "server/coordinator_flags.h"
 #include "server/store/check.h"
@@ -22,6 +23,10 @@ int main(int argc, char** argv) {
   }
   if (flags->help) {
     std::fputs(skerry::server::CoordinatorUsage().c_str(), stdout);
+    return 0;
+  }
+  if (flags->version) {
+    std::fputs(skerry::VersionLine("skerry-coordinator").c_str(), stdout);
     return 0;
   }
   if (!flags->check_db.empty()) {

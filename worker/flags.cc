@@ -99,6 +99,11 @@ absl::Status Apply(absl::string_view flag, absl::string_view value,
         ParseWholeNumber(flag, value, 0, kMaxWaitMsFlag);
     if (!n.ok()) return n.status();
     out.options.wait = absl::Milliseconds(static_cast<int64_t>(*n));
+  } else if (flag == "--exit-when-idle") {
+    absl::StatusOr<uint64_t> n =
+        ParseWholeNumber(flag, value, 1, kMaxExitWhenIdleFlag);
+    if (!n.ok()) return n.status();
+    out.options.exit_when_idle = absl::Seconds(static_cast<int64_t>(*n));
   } else if (flag == "--token") {
     if (value.empty()) return FlagError(flag, "must not be empty");
     out.token = std::string(value);
@@ -130,6 +135,10 @@ absl::StatusOr<WorkerFlags> ParseWorkerFlags(
     absl::string_view arg = args[i];
     if (arg == "--help" || arg == "-h") {
       out.help = true;
+      return out;
+    }
+    if (arg == "--version") {
+      out.version = true;
       return out;
     }
     if (!absl::StartsWith(arg, "--")) {
@@ -185,7 +194,8 @@ absl::StatusOr<std::shared_ptr<grpc::Channel>> ConnectFromFlags(
 std::string WorkerUsage() {
   return absl::StrCat(
       "Usage: skerry-worker --coordinator HOST:PORT --threads N [--name NAME]\n"
-      "                     [--batch N] [--wait-ms N] [--token-file FILE]\n"
+      "                     [--batch N] [--wait-ms N] [--exit-when-idle S]\n"
+      "                     [--token-file FILE]\n"
       "                     [--tls-ca FILE [--tls-cert FILE --tls-key FILE]]\n"
       "\n"
       "A stateless evaluation worker. It joins the coordinator at HOST:PORT,\n"
@@ -217,6 +227,14 @@ std::string WorkerUsage() {
       kMaxWaitMsFlag,
       " (default: 5000);\n"
       "                           the coordinator may cap it\n"
+      "  --exit-when-idle SECONDS\n"
+      "                           exit (code 0) after holding no task and "
+      "being\n"
+      "                           given none for SECONDS, 1 to ",
+      kMaxExitWhenIdleFlag,
+      ";\n"
+      "                           time the coordinator is unreachable counts\n"
+      "                           (default: never; for batch allocations)\n"
       "  --token TOKEN            bearer token of role worker (visible to "
       "other\n"
       "                           users in the process list: prefer the next)\n"
@@ -232,6 +250,7 @@ std::string WorkerUsage() {
       "                           certificate (default: the host of the "
       "address)\n"
       "  --help                   this text\n"
+      "  --version                print the version and the worker protocol\n"
       "\n"
       "SIGINT, SIGTERM or SIGHUP stops the worker: it stops leasing, reports "
       "the "

@@ -27,10 +27,12 @@ namespace skerry::worker {
 // Ranges accepted on the command line.
 inline constexpr int kMaxThreadsFlag = 1024;
 inline constexpr uint32_t kMaxBatchFlag = 100000;
-inline constexpr uint32_t kMaxWaitMsFlag = 600000;  // ten minutes
+inline constexpr uint32_t kMaxWaitMsFlag = 600000;        // ten minutes
+inline constexpr uint32_t kMaxExitWhenIdleFlag = 604800;  // a week, in seconds
 
 struct WorkerFlags {
   bool help = false;
+  bool version = false;     // --version: print it and exit
   std::string coordinator;  // HOST:PORT
   WorkerOptions options;    // threads, name, batch, wait filled from flags
   // TLS files and server name from flags; the token is found by

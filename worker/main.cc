@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "common/clock.h"
+#include "common/version.h"
 #include "skerry/v1/fleet.grpc.pb.h"
 #include "worker/channel.h"
 #include "worker/evaluator_host.h"
@@ -97,6 +98,10 @@ int main(int argc, char** argv) {
     std::fputs(skerry::worker::WorkerUsage().c_str(), stdout);
     return 0;
   }
+  if (flags->version) {
+    std::fputs(skerry::VersionLine("skerry-worker").c_str(), stdout);
+    return 0;
+  }
   SignalWatcher::BlockSignals();
   std::string warning;
   auto channel = skerry::worker::ConnectFromFlags(
@@ -118,6 +123,10 @@ int main(int argc, char** argv) {
   if (!status.ok()) {
     std::fprintf(stderr, "skerry-worker: %s\n", status.ToString().c_str());
     return 1;
+  }
+  if (worker.exited_idle()) {
+    std::fprintf(stderr, "skerry-worker: no work for %s (--exit-when-idle)\n",
+                 absl::FormatDuration(flags->options.exit_when_idle).c_str());
   }
   std::fprintf(stderr, "skerry-worker: stopped after reporting %llu results\n",
                static_cast<unsigned long long>(worker.results_reported()));

@@ -18,6 +18,7 @@
 #include "absl/strings/string_view.h"
 #include "absl/synchronization/mutex.h"
 #include "common/evaluator.h"
+#include "common/version.h"
 #include "grpcpp/client_context.h"
 #include "grpcpp/support/status.h"
 
@@ -33,7 +34,6 @@ using skerry::v1::ReportResponse;
 using skerry::v1::Task;
 using skerry::v1::TaskResult;
 
-constexpr char kVersion[] = "0.1.0";
 constexpr int kMaxThreads = 4096;
 constexpr absl::Duration kInitialBackoff = absl::Milliseconds(100);
 constexpr absl::Duration kFinalReportDeadline = absl::Seconds(2);
@@ -154,6 +154,7 @@ class Worker::Impl {
   absl::Status Run();
   void Stop();
   uint64_t results_reported() const { return reported_.load(); }
+  bool exited_idle() const { return exited_idle_.load(); }
 
  private:
   // Registers an RPC's context for the call's duration, so Stop() can cancel
@@ -196,6 +197,11 @@ class Worker::Impl {
   size_t BuildReport(ReportRequest* request, bool with_held)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   bool WantsLease() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Restarts the idle time while any task is held; true once
+  // options_.exit_when_idle has passed with none.
+  bool IdleTooLong() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Stops the worker (exited_idle) when IdleTooLong(); true then.
+  bool StopIfIdleTooLong();
   bool TaskOrStopping() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
     return stopping_ || !queue_.empty();
   }
@@ -234,6 +240,9 @@ class Worker::Impl {
   // A short (non-waiting) lease found no work: wait for an empty queue, then
   // long-poll, rather than asking again at once.
   bool short_lease_was_empty_ ABSL_GUARDED_BY(mu_) = false;
+  // When the worker last held a task (or started): set on leasing, on
+  // finishing an evaluation, and whenever IdleTooLong() finds work held.
+  absl::Time last_busy_ ABSL_GUARDED_BY(mu_) = absl::InfinitePast();
 
   absl::Mutex calls_mu_;
   std::set<grpc::ClientContext*> calls_ ABSL_GUARDED_BY(calls_mu_);
@@ -241,6 +250,7 @@ class Worker::Impl {
 
   std::atomic<uint64_t> reported_{0};
   std::atomic<bool> ran_{false};
+  std::atomic<bool> exited_idle_{false};
 };
 
 Worker::Impl::ScopedCall::ScopedCall(Impl* impl, grpc::ClientContext* context,
@@ -265,6 +275,10 @@ absl::Status Worker::Impl::Run() {
   }
   if (absl::Status s = CheckOptions(options_); !s.ok()) return s;
   const uint32_t seed = static_cast<uint32_t>(getpid());
+  {
+    absl::MutexLock l(&mu_);
+    last_busy_ = clock_->Now();
+  }
   {
     Backoff backoff(options_.max_backoff, seed);
     uint64_t id = 0;
@@ -316,6 +330,7 @@ bool Worker::Impl::EnsureJoined(Backoff& backoff, uint64_t* id) {
     request.set_threads(static_cast<uint32_t>(options_.threads));
     for (const std::string& name : BuiltinNames()) request.add_evaluators(name);
     request.set_version(kVersion);
+    request.set_protocol_version(kProtocolVersion);
     JoinResponse response;
     grpc::ClientContext context;
     SetDeadline(&context, options_.rpc_deadline);
@@ -337,6 +352,7 @@ bool Worker::Impl::EnsureJoined(Backoff& backoff, uint64_t* id) {
       GiveUp(Refused(status, "Join"));
       return false;
     }
+    if (StopIfIdleTooLong()) return false;
     if (!SleepUnlessStopping(backoff.Next())) return false;
   }
 }
@@ -393,6 +409,26 @@ bool Worker::Impl::WantsLease() const {
   return !(short_lease_was_empty_ && !queue_.empty());
 }
 
+bool Worker::Impl::IdleTooLong() {
+  if (options_.exit_when_idle <= absl::ZeroDuration()) return false;
+  const absl::Time now = clock_->Now();
+  if (!queue_.empty() || !working_.empty() || !results_.empty()) {
+    last_busy_ = now;
+    return false;
+  }
+  return now - last_busy_ >= options_.exit_when_idle;
+}
+
+bool Worker::Impl::StopIfIdleTooLong() {
+  {
+    absl::MutexLock l(&mu_);
+    if (!IdleTooLong()) return false;
+  }
+  exited_idle_.store(true);
+  Stop();
+  return true;
+}
+
 void Worker::Impl::LeaseLoop(uint32_t seed) {
   Backoff backoff(options_.max_backoff, seed);
   while (true) {
@@ -403,6 +439,7 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
       if (stopping_) return;
       long_poll = queue_.empty();
     }
+    if (StopIfIdleTooLong()) return;
     uint64_t id = 0;
     if (!EnsureJoined(backoff, &id)) return;
     const absl::Duration wait =
@@ -429,6 +466,7 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
     const bool empty = response.tasks().empty();
     {
       absl::MutexLock l(&mu_);
+      if (!empty) last_busy_ = clock_->Now();
       for (Task& task : *response.mutable_tasks()) {
         // A task offered again while still held here is already being handled.
         if (working_.insert(task.task_id()).second) {
@@ -456,6 +494,8 @@ void Worker::Impl::EvalLoop() {
     }
     TaskResult result = EvaluateTask(task, cache, clock_);
     absl::MutexLock l(&mu_);
+    // The lease loop may not look again before this result is reported.
+    last_busy_ = clock_->Now();
     working_.erase(task.task_id());
     results_.push_back(std::move(result));
   }
@@ -551,5 +591,7 @@ absl::Status Worker::Run() { return impl_->Run(); }
 void Worker::Stop() { impl_->Stop(); }
 
 uint64_t Worker::results_reported() const { return impl_->results_reported(); }
+
+bool Worker::exited_idle() const { return impl_->exited_idle(); }
 
 }  // namespace skerry::worker

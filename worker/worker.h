@@ -33,6 +33,10 @@ struct WorkerOptions {
   // Stop after this many results have been reported (0: never). For tests and
   // the benchmark.
   uint64_t max_results = 0;
+  // Stop once the worker has held no task and been given none for this long
+  // (0: never). Time the coordinator is unreachable counts as idle, so a
+  // worker on a batch allocation ends when its run and coordinator do.
+  absl::Duration exit_when_idle = absl::ZeroDuration();
   // Makes the evaluators (one per evaluation thread and spec). Empty:
   // MakeEvaluator. Tests inject evaluators they control.
   EvaluatorFactory make_evaluator;
@@ -51,6 +55,8 @@ class Worker {
   void Stop();
 
   uint64_t results_reported() const;
+  // True when Run() ended because of exit_when_idle.
+  bool exited_idle() const;
 
  private:
   class Impl;

@@ -1,11 +1,13 @@
 #include "server/api/fleet_service.h"
 
 #include <algorithm>
+#include <cmath>
 #include <iterator>
 #include <vector>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "common/version.h"
 #include "server/api/grpc_status.h"
 
 namespace skerry::api {
@@ -22,6 +24,22 @@ FleetServiceImpl::FleetServiceImpl(store::Store* store, engine::Engine* engine,
 grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
                                     const skerry::v1::JoinRequest* req,
                                     skerry::v1::JoinResponse* resp) {
+  // 0: a worker from before the field, which spoke protocol 1.
+  const uint32_t protocol = std::max<uint32_t>(req->protocol_version(), 1);
+  if (protocol < kMinProtocolVersion || protocol > kProtocolVersion) {
+    // UNIMPLEMENTED: retrying cannot help; one side must be upgraded.
+    return grpc::Status(
+        grpc::StatusCode::UNIMPLEMENTED,
+        absl::StrCat(
+            "worker protocol ", protocol, " (release \"",
+            req->version().substr(0, 64), "\") is not spoken by this ",
+            "coordinator (release ", kVersion, ", worker protocol ",
+            kMinProtocolVersion == kProtocolVersion
+                ? absl::StrCat(kProtocolVersion)
+                : absl::StrCat(kMinProtocolVersion, " to ", kProtocolVersion),
+            "): install matching versions of skerry-worker and "
+            "skerry-coordinator"));
+  }
   if (req->threads() < 1 || req->threads() > 4096) {
     return grpc::Status(
         grpc::StatusCode::INVALID_ARGUMENT,
@@ -97,8 +115,9 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
   const absl::Duration left =
       absl::FromChrono(ctx->deadline()) - absl::Now() - absl::Milliseconds(200);
   wait = std::max(absl::ZeroDuration(), std::min(wait, left));
-  std::vector<skerry::v1::Task> tasks = queue_->Lease(
-      static_cast<int64_t>(req->worker_id()), req->max_tasks(), wait);
+  std::vector<skerry::v1::Task> tasks =
+      queue_->Lease(static_cast<int64_t>(req->worker_id()), req->max_tasks(),
+                    wait, kMaxLeaseBytes);
   for (skerry::v1::Task& t : tasks) *resp->add_tasks() = std::move(t);
   resp->set_lease_seconds(absl::ToDoubleSeconds(queue_->lease()));
   return grpc::Status::OK;
@@ -120,17 +139,62 @@ grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
                 {req->held_task_ids().data(),
                  static_cast<size_t>(req->held_task_ids_size())});
   if (req->results_size() == 0) return grpc::Status::OK;
-  std::vector<skerry::v1::TaskResult> results(req->results().begin(),
-                                              req->results().end());
+  // Every field of every result is checked here, so that nothing the store
+  // would refuse reaches the group commit, where it would fail every
+  // worker's results with it. A bad result is rejected alone.
+  std::vector<skerry::v1::TaskResult> results;
+  results.reserve(static_cast<size_t>(req->results_size()));
+  uint32_t refused = 0;
+  for (int i = 0; i < req->results_size(); ++i) {
+    const skerry::v1::TaskResult& r = req->results(i);
+    absl::Status bad = CheckResult(r, i);
+    if (bad.ok()) {
+      results.push_back(r);
+      continue;
+    }
+    ++refused;
+    skerry::v1::RejectedResult* x = resp->add_rejected();
+    x->set_task_id(r.task_id());
+    x->set_code(static_cast<uint32_t>(bad.code()));
+    x->set_message(std::string(bad.message()));
+  }
+  resp->set_ignored(refused);
+  if (results.empty()) return grpc::Status::OK;
   absl::StatusOr<engine::ReportOutcome> outcome =
       engine_->Report(static_cast<int64_t>(req->worker_id()), results);
   if (!outcome.ok()) return ToGrpc(outcome.status());
   resp->set_accepted(outcome->accepted);
-  resp->set_ignored(outcome->ignored);
+  resp->set_ignored(refused + outcome->ignored);
   for (skerry::v1::RejectedResult& r : outcome->rejected) {
     *resp->add_rejected() = std::move(r);
   }
   return grpc::Status::OK;
+}
+
+absl::Status FleetServiceImpl::CheckResult(const skerry::v1::TaskResult& r,
+                                           int index) {
+  const std::string where =
+      absl::StrCat("results[", index, "] (task ", r.task_id(), ")");
+  if (r.attempt() == 0) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        where,
+        ".attempt: must be the attempt its Task carried (1 or more), "
+        "got 0"));
+  }
+  if (!std::isfinite(r.eval_seconds()) || r.eval_seconds() < 0 ||
+      r.eval_seconds() > kMaxEvalSeconds) {
+    return absl::InvalidArgumentError(
+        absl::StrCat(where, ".eval_seconds: must be a finite number from 0 to ",
+                     kMaxEvalSeconds, ", got ", r.eval_seconds()));
+  }
+  if (r.error().size() > kMaxResultErrorBytes) {
+    return absl::InvalidArgumentError(
+        absl::StrCat(where, ".error: at most ", kMaxResultErrorBytes,
+                     " bytes, got ", r.error().size()));
+  }
+  // score: any double; one that is not finite is a failed attempt
+  // (fleet.proto), stored with an error text and no score.
+  return absl::OkStatus();
 }
 
 int FleetServiceImpl::ActiveWorkers(absl::Duration within) {

@@ -3,6 +3,10 @@
 // It checks every message from outside before anything reaches the engine: a
 // worker must have joined (an unknown id gets NOT_FOUND, "join again"), sizes
 // are bounded, and a Report is answered only after its results are committed.
+// Every field of every result is checked here, and a bad result is rejected
+// alone (INVALID_ARGUMENT in its RejectedResult), so nothing a worker sends can
+// fail the group commit that holds other workers' results. Whose results are
+// taken is the task queue's result rule (server/scheduler/task_queue.h).
 //
 // Thread safety: gRPC calls the handlers from many threads; all state is
 // guarded.
@@ -27,6 +31,13 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
  public:
   static constexpr uint32_t kMaxTasksPerLease = 10000;
   static constexpr int kMaxResultsPerReport = 100000;
+  // Bytes of tasks in one Lease answer: half the coordinator's 128 MiB
+  // message limit (server/coordinator.cc); one task is always sent, and
+  // --max-task-bytes may not exceed this.
+  static constexpr size_t kMaxLeaseBytes = 64 << 20;
+  // Bounds of a TaskResult's fields (docs/protocol.md, "Bounds").
+  static constexpr double kMaxEvalSeconds = 1e7;  // about 116 days
+  static constexpr size_t kMaxResultErrorBytes = 1 << 20;
 
   FleetServiceImpl(store::Store* store, engine::Engine* engine,
                    scheduler::TaskQueue* queue, Clock* clock,
@@ -47,6 +58,9 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
 
  private:
   grpc::Status CheckWorker(uint64_t worker_id);
+  // InvalidArgument naming results[index] and the field when a result
+  // cannot be stored as it is.
+  static absl::Status CheckResult(const skerry::v1::TaskResult& r, int index);
 
   store::Store* const store_;
   engine::Engine* const engine_;

@@ -58,6 +58,10 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
                         absl::StrCat("request_id: up to ", kMaxRequestIdBytes,
                                      " printable ASCII characters, no spaces"));
   }
+  // The coordinator's budgets, before the engine allocates anything.
+  absl::StatusOr<skerry::v1::RunSpec> prepared =
+      PrepareSpec(req->spec(), budgets_);
+  if (!prepared.ok()) return ToGrpc(prepared.status());
   std::optional<auth::Caller> caller = access_->CallerOf(ctx);
   const std::string owner =
       caller.has_value() ? caller->principal : auth::kLocalPrincipal;
@@ -69,8 +73,9 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
   absl::StatusOr<std::optional<int64_t>> first = earlier();
   if (!first.ok()) return ToGrpc(first.status());
   if (first->has_value()) return Summarise(**first, resp->mutable_run());
-  absl::StatusOr<store::RunRecord> rec = engine_->Submit(
-      req->spec(), req->spec_text(), owner, req->priority(), req->request_id());
+  absl::StatusOr<store::RunRecord> rec =
+      engine_->Submit(*std::move(prepared), req->spec_text(), owner,
+                      req->priority(), req->request_id());
   if (!rec.ok()) {
     // Two attempts of one submission raced: the loser returns the winner's.
     first = earlier();

@@ -10,6 +10,7 @@
 #ifndef SKERRY_SERVER_API_RUN_SERVICE_H_
 #define SKERRY_SERVER_API_RUN_SERVICE_H_
 
+#include "common/spec.h"
 #include "server/api/fleet_service.h"
 #include "server/api/watch_hub.h"
 #include "server/auth/access_control.h"
@@ -28,13 +29,16 @@ class RunServiceImpl final
  public:
   // Who may call what is decided before a handler runs (server/auth);
   // `access` names the caller (a run's owner) and takes audit notes.
+  // `budgets` bound every submitted spec (common/spec.h); the default is no
+  // budget.
   RunServiceImpl(store::Store* store, engine::Engine* engine,
                  FleetServiceImpl* fleet, auth::AccessControl* access,
-                 WatchHubOptions watch = {})
+                 WatchHubOptions watch = {}, SpecBudgets budgets = {})
       : store_(store),
         engine_(engine),
         fleet_(fleet),
         access_(access),
+        budgets_(budgets),
         watch_hub_(engine, watch) {}
 
   // Ends every watch stream (UNAVAILABLE); call before the server shuts down.
@@ -78,6 +82,7 @@ class RunServiceImpl final
   engine::Engine* const engine_;
   FleetServiceImpl* const fleet_;
   auth::AccessControl* const access_;
+  const SpecBudgets budgets_;
   WatchHub watch_hub_;
 };
 

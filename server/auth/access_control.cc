@@ -6,7 +6,10 @@
 #include "absl/strings/ascii.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "common/quote.h"
 #include "common/status_macros.h"
+#include "server/api/grpc_status.h"
+#include "server/api/request_bounds.h"
 #include "server/auth/tokens.h"
 
 namespace skerry::auth {
@@ -114,11 +117,13 @@ Verdict AccessControl::Admit(
     v.caller = *caller;
   }
   if (v.rule == nullptr) {
+    // Every method served has a rule (the gate will not serve one without),
+    // so a method without one is not served: UNIMPLEMENTED, as gRPC itself
+    // would answer.
     v.status = grpc::Status(
-        grpc::StatusCode::PERMISSION_DENIED,
-        absl::StrCat(method,
-                     " has no access rule (server/auth/rules.cc), so "
-                     "it is refused to everyone"));
+        grpc::StatusCode::UNIMPLEMENTED,
+        absl::StrCat("no method ", QuotePrefix(method),
+                     " on this coordinator (see proto/skerry/v1/)"));
     return v;
   }
   if (enabled_ && !RoleAllows(v.rule->permission, v.caller->role)) {
@@ -134,6 +139,24 @@ Verdict AccessControl::Admit(
 void AccessControl::Examine(Verdict* v, const void* request,
                             const std::string& peer) {
   v->examined = true;
+  if (request == nullptr && v->rule != nullptr && v->rule->request != nullptr &&
+      v->status.ok()) {
+    // gRPC's own answer would be INTERNAL with no message.
+    v->status = grpc::Status(
+        grpc::StatusCode::INVALID_ARGUMENT,
+        absl::StrCat("the request could not be decoded as ",
+                     v->rule->request->full_name(),
+                     " (not that message in protobuf wire format, or a "
+                     "string field that is not valid UTF-8)"));
+  }
+  if (request != nullptr && v->rule != nullptr && v->rule->message != nullptr &&
+      v->status.ok()) {
+    // Every string and list bounded before any handler sees the request.
+    if (absl::Status s = api::CheckRequestBounds(*v->rule->message(request));
+        !s.ok()) {
+      v->status = api::ToGrpc(s);
+    }
+  }
   if (v->rule == nullptr || !v->caller.has_value()) return;
   if (request != nullptr && v->rule->run_id != nullptr) {
     v->run_id = static_cast<int64_t>(v->rule->run_id(request));
@@ -153,9 +176,11 @@ void AccessControl::Examine(Verdict* v, const void* request,
     absl::StatusOr<std::optional<std::string>> owner =
         store_->RunOwner(v->run_id);
     if (!owner.ok()) {
-      v->status = grpc::Status(grpc::StatusCode::UNAVAILABLE,
-                               absl::StrCat("cannot check the run's owner: ",
-                                            owner.status().message()));
+      // The store's code says what to do (UNAVAILABLE: retry; DATA_LOSS: a
+      // damaged database).
+      v->status = api::ToGrpc(absl::Status(
+          owner.status().code(), absl::StrCat("cannot check the run's owner: ",
+                                              owner.status().message())));
     } else if (!owner->has_value() || **owner != v->caller->principal) {
       v->status = grpc::Status(
           grpc::StatusCode::PERMISSION_DENIED,
@@ -297,6 +322,24 @@ absl::StatusOr<AccessControl::IssuedToken> AccessControl::CreateToken(
     const std::string& by) {
   SKERRY_ASSIGN_OR_RETURN(IssuedToken t,
                           Issue(principal, role, note, by, clock_));
+  if (role != skerry::v1::ROLE_ADMIN) {
+    // The first principal turns access control on at the next start
+    // (--auth auto): were it not an admin, nobody could then manage tokens.
+    bool admin = false;
+    {
+      absl::MutexLock l(&mu_);
+      for (const auto& [hash, caller] : live_) {
+        admin = admin || caller.role == skerry::v1::ROLE_ADMIN;
+      }
+    }
+    if (!admin) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "no admin has a live token yet, so a ", RoleName(role),
+          " token would turn access control on at the next start with "
+          "nobody able to manage it; create an admin token first (role "
+          "admin, or skerry-coordinator --init-admin NAME)"));
+    }
+  }
   SKERRY_RETURN_IF_ERROR(store_->CreateToken(&t.record));
   absl::MutexLock l(&mu_);
   live_[t.record.hash] = FromRecord(t.record);

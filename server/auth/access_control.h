@@ -74,7 +74,11 @@ class AccessControl {
   Verdict Admit(absl::string_view method,
                 const std::vector<std::string>& authorization) const;
   // With the request (nullptr when it did not parse): ownership, and the audit
-  // row of an audited call. `peer` is where the call came from.
+  // row of an audited call. `peer` is where the call came from. An admitted
+  // request that did not parse is refused with INVALID_ARGUMENT naming its
+  // type (gRPC would send INTERNAL with no message), and one with a string or
+  // list over its bound (server/api/request_bounds.h) with INVALID_ARGUMENT
+  // naming the field.
   void Examine(Verdict* verdict, const void* request, const std::string& peer);
   // Writes the outcome of an audited call.
   void Conclude(const Verdict& verdict, const grpc::Status& sent);
@@ -100,7 +104,10 @@ class AccessControl {
     store::TokenRecord record;
     std::string secret;  // shown once, never stored
   };
-  // InvalidArgument for a bad name, role or note.
+  // InvalidArgument for a bad name, role or note. FailedPrecondition for a
+  // role other than admin while no admin has a live token: the first
+  // principal turns access control on at the next start (kAuto), and an
+  // open coordinator must not lock everyone out that way.
   absl::StatusOr<IssuedToken> CreateToken(const std::string& principal,
                                           Role role, const std::string& note,
                                           const std::string& by);

@@ -20,6 +20,9 @@ Rule Make(Permission permission, bool audited = false) {
   r.audited = audited;
   r.request = Request::descriptor();
   r.destroy = [](void* p) { static_cast<Request*>(p)->~Request(); };
+  r.message = [](const void* p) -> const google::protobuf::Message* {
+    return static_cast<const Request*>(p);
+  };
   return r;
 }
 

@@ -26,6 +26,7 @@
 
 #include "absl/strings/string_view.h"
 #include "google/protobuf/descriptor.h"
+#include "google/protobuf/message.h"
 #include "server/auth/roles.h"
 
 namespace skerry::auth {
@@ -55,6 +56,9 @@ struct Rule {
   uint64_t (*genome_id)(const void* request) = nullptr;
   // Runs the request's destructor (for calls the gate refuses).
   void (*destroy)(void* request) = nullptr;
+  // The request as a protobuf message (for the bounds of server/api/
+  // request_bounds.h).
+  const google::protobuf::Message* (*message)(const void* request) = nullptr;
 };
 
 // Every rule, by full method name.

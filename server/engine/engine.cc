@@ -266,6 +266,13 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   if (priority == 0) priority = scheduler::kMinWeight;
   SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
   SKERRY_ASSIGN_OR_RETURN(RunSpec prepared, PrepareSpec(std::move(spec)));
+  // Generation 0 is a pure function of the spec: made before the lock is
+  // taken, so that seeding a large run never stalls the other calls.
+  std::vector<GenomeRecord> genomes;
+  for (uint32_t i = 0; i < prepared.islands().count(); ++i) {
+    std::vector<GenomeRecord> g0 = Seed(prepared, i);
+    for (GenomeRecord& g : g0) genomes.push_back(std::move(g));
+  }
   absl::MutexLock l(&mu_);
   store::RunRecord rec;
   rec.name = prepared.name();
@@ -276,11 +283,6 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   rec.spec_text = std::move(spec_text);
   rec.state = skerry::v1::RUNNING;
   rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
-  std::vector<GenomeRecord> genomes;
-  for (uint32_t i = 0; i < prepared.islands().count(); ++i) {
-    std::vector<GenomeRecord> g0 = Seed(prepared, i);
-    for (GenomeRecord& g : g0) genomes.push_back(std::move(g));
-  }
   if (absl::Status s = store_->CreateRun(&rec, &genomes); !s.ok()) {
     NoteWriteFailure(s);
     return s;
@@ -555,10 +557,19 @@ void Engine::ProcessJobs(std::vector<ReportJob*> jobs) {
     for (size_t j = 0; j < jobs.size(); ++j) {
       if (committed.ok()) {
         jobs[j]->outcome = outcomes[j];
-      } else {
+      } else if (absl::IsUnavailable(committed) ||
+                 absl::IsResourceExhausted(committed)) {
+        // UNAVAILABLE means storage trouble, and only that: retry later.
         jobs[j]->status = absl::UnavailableError(
             absl::StrCat("results could not be stored, report them again: ",
                          committed.message()));
+      } else {
+        // A damaged database, or a bug here: retrying will not fix either.
+        jobs[j]->status = absl::Status(
+            absl::IsDataLoss(committed) ? absl::StatusCode::kDataLoss
+                                        : absl::StatusCode::kInternal,
+            absl::StrCat("results could not be stored: ",
+                         committed.ToString()));
       }
       jobs[j]->done = true;
     }

@@ -130,7 +130,8 @@ bool TaskQueue::HasReadyLocked() const {
 
 std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
                                                uint32_t max_tasks,
-                                               absl::Duration wait) {
+                                               absl::Duration wait,
+                                               size_t max_bytes) {
   std::vector<skerry::v1::Task> out;
   if (max_tasks == 0) return out;
   absl::MutexLock l(&mu_);
@@ -151,12 +152,32 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
   }
   if (shutdown_) return out;
   const absl::Time deadline = clock_->Now() + lease_;
+  size_t bytes = 0;
   while (out.size() < max_tasks) {
     auto next = NextRun();
     if (next == runs_.end()) break;
+    // The answer must fit in one gRPC message: stop before the task that
+    // would make it too big.
+    const size_t size = FrontTaskBytes(next->second);
+    if (!out.empty() && size > max_bytes - std::min(bytes, max_bytes)) break;
+    bytes += size;
     out.push_back(LeaseFrom(next->second, worker, deadline));
   }
   return out;
+}
+
+size_t TaskQueue::FrontTaskBytes(RunQueue& rq) {
+  while (true) {
+    auto t = tasks_.find(rq.ids.front());
+    if (t != tasks_.end() && t->second.state == State::kQueued) {
+      const TaskInfo& info = t->second.info;
+      // Genes are packed doubles; 64 bytes cover the ids, attempt, seed,
+      // kind and the framing of the task and its fields.
+      return 8 * info.genes.size() +
+             (info.evaluator ? info.evaluator->ByteSizeLong() : 0) + 64;
+    }
+    rq.ids.pop_front();
+  }
 }
 
 std::map<int64_t, TaskQueue::RunQueue>::iterator TaskQueue::NextRun() {
@@ -195,6 +216,9 @@ skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
   e->holder = worker;
   e->deadline = deadline;
   ++e->info.attempts;
+  if (e->holders.size() >= kMaxHoldersKept)
+    e->holders.erase(e->holders.begin());
+  e->holders.emplace_back(e->info.attempts, worker);
   deadlines_.insert({deadline, e->info.task_id()});
   skerry::v1::Task task;
   task.set_task_id(static_cast<uint64_t>(e->info.task_id()));
@@ -239,6 +263,15 @@ std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t task_id,
   if (e.state == State::kClaimed) {
     return refuse(absl::AbortedError(absl::StrCat(
         "another result for task ", task_id, " is being committed")));
+  }
+  const bool leased_to_worker =
+      std::find(e.holders.begin(), e.holders.end(),
+                std::make_pair(attempt, worker)) != e.holders.end();
+  if (!leased_to_worker) {
+    return refuse(absl::PermissionDeniedError(absl::StrCat(
+        "attempt ", attempt, " of task ", task_id, " was not leased to worker ",
+        worker,
+        " by this coordinator; a worker may report only tasks leased to it")));
   }
   if (failed_attempt && (e.state != State::kLeased || e.holder != worker ||
                          e.info.attempts != attempt)) {

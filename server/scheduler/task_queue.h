@@ -9,14 +9,21 @@
 // Complete() removes a task once its result is committed; Unclaim() puts it
 // back when the commit failed.
 //
-// Result rule (invariant 5 of DESIGN.md): a successful result is accepted while
-// its task is queued or leased, whoever holds the lease and whatever attempt it
-// quotes, because an evaluation is a pure function of (genes, evaluation seed):
-// a late result from an expired lease is the same number the next worker would
-// compute, and taking it saves that work. A failed attempt counts only when it
-// comes from the current lease (holder and attempt), so a stale worker cannot
-// fail a genome. A result for a task that is unknown, claimed or completed
-// changes nothing.
+// Result rule (invariant 5 of DESIGN.md; docs/safety.md says why): a result is
+// taken only from a worker the task was leased to. A successful result is
+// accepted while its task is queued or leased when the attempt it quotes was
+// leased to the worker reporting it: the current lease, or an earlier one of
+// the same task (a late result). An evaluation is a pure function of (genes,
+// evaluation seed), so a late result from an expired lease is the same number
+// the next worker would compute, and taking it saves that work. A result for
+// an attempt that was never leased to the reporting worker (another worker's
+// lease, an attempt never handed out, a task never leased, or a lease made by
+// an earlier coordinator process) is refused with PermissionDenied: a worker
+// can score only what it was given. The last kMaxHoldersKept leases of a task
+// are remembered; a result from an older one is refused the same way. A failed
+// attempt counts only when it comes from the current lease (holder and
+// attempt), so a stale worker cannot fail a genome. A result for a task that
+// is unknown, claimed or completed changes nothing.
 //
 // Fair share (docs/sharing.md is the user's account): tasks are handed out by
 // start-time fair queuing across runs (Goyal, Vin & Cheng 1996, "Start-time
@@ -51,6 +58,7 @@
 #ifndef SKERRY_SERVER_SCHEDULER_TASK_QUEUE_H_
 #define SKERRY_SERVER_SCHEDULER_TASK_QUEUE_H_
 
+#include <cstddef>
 #include <cstdint>
 #include <deque>
 #include <map>
@@ -77,6 +85,8 @@ constexpr int64_t kValidationTaskBase = int64_t{1} << 62;
 // The bounds of a run's weight (its priority): values outside are clamped.
 inline constexpr uint32_t kMinWeight = 1;
 inline constexpr uint32_t kMaxWeight = 1000;
+// Leases of one task remembered for the result rule (late results).
+inline constexpr size_t kMaxHoldersKept = 16;
 
 struct TaskInfo {
   skerry::v1::TaskKind kind = skerry::v1::TASK_EVALUATE;
@@ -123,16 +133,18 @@ class TaskQueue {
 
   // Leases up to `max_tasks` tasks to `worker`, waiting up to `wait` (real
   // time) when none is ready. Expired leases are re-queued first. Each leased
-  // task's attempt count goes up by one.
+  // task's attempt count goes up by one. The tasks' sizes (TaskBytes) add up
+  // to at most `max_bytes`, except that one task is always handed out.
   std::vector<skerry::v1::Task> Lease(int64_t worker, uint32_t max_tasks,
-                                      absl::Duration wait);
+                                      absl::Duration wait,
+                                      size_t max_bytes = SIZE_MAX);
   // Extends the deadlines of tasks that `worker` still holds.
   void Renew(int64_t worker, absl::Span<const uint64_t> task_ids);
 
   // Claims a task for committing a result (see the result rule above). Returns
   // the task, or nothing when the result must be ignored.
   // When nothing is returned and `why` is given, *why says why (a NotFound,
-  // Aborted or FailedPrecondition status naming the task).
+  // Aborted, PermissionDenied or FailedPrecondition status naming the task).
   std::optional<TaskInfo> Claim(int64_t worker, uint64_t task_id,
                                 uint32_t attempt, bool failed_attempt,
                                 absl::Status* why = nullptr);
@@ -158,6 +170,8 @@ class TaskQueue {
     State state = State::kQueued;
     int64_t holder = 0;
     absl::Time deadline;
+    // (attempt, worker) of the last kMaxHoldersKept leases, oldest first.
+    std::vector<std::pair<uint32_t, int64_t>> holders;
   };
   struct RunQueue {
     std::deque<int64_t> ids;  // may hold ids no longer queued; skipped lazily
@@ -183,6 +197,9 @@ class TaskQueue {
   skerry::v1::Task LeaseFrom(RunQueue& rq, int64_t worker, absl::Time deadline)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void DropLease(Entry& e) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The size on the wire of the front queued task of `rq` (rq.queued > 0),
+  // an upper estimate; drops stale ids from the front.
+  size_t FrontTaskBytes(RunQueue& rq) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   Clock* const clock_;
   const absl::Duration lease_;

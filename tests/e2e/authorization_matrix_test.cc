@@ -279,11 +279,17 @@ TEST_F(AuthorizationMatrixTest, HealthCheckNeedsNoToken) {
   EXPECT_EQ(a.code, grpc::StatusCode::OK) << a.message;
 }
 
-TEST_F(AuthorizationMatrixTest, MethodUnknownToTheServerIsRefused) {
+// Issue 11: an unknown method was PERMISSION_DENIED; gRPC clients expect
+// UNIMPLEMENTED. Without a valid token the token is still checked first.
+TEST_F(AuthorizationMatrixTest, MethodUnknownToTheServerIsUnimplemented) {
   Answer a = CallRaw(channel_, "/skerry.v1.RunService/DropEverything",
                      tokens_["admin"]);
-  EXPECT_EQ(a.code, grpc::StatusCode::PERMISSION_DENIED) << a.message;
-  EXPECT_THAT(a.message, HasSubstr("no access rule"));
+  EXPECT_EQ(a.code, grpc::StatusCode::UNIMPLEMENTED) << a.message;
+  EXPECT_THAT(a.message, HasSubstr("no method"));
+  Answer anonymous =
+      CallRaw(channel_, "/skerry.v1.RunService/DropEverything", "");
+  EXPECT_EQ(anonymous.code, grpc::StatusCode::UNAUTHENTICATED)
+      << anonymous.message;
 }
 
 // A researcher may steer only its own runs, and cannot tell another's run from

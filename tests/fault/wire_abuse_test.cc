@@ -18,6 +18,7 @@
 #include <vector>
 
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
 #include "common/clock.h"
 #include "grpcpp/grpcpp.h"
 #include "gtest/gtest.h"
@@ -430,6 +431,153 @@ TEST_F(WireAbuseTest, NonFiniteScoresAreFailedAttemptsNeverEvaluated) {
               3);
     clock_.Advance(absl::Seconds(2));  // the others' leases expire
   }
+  FinishHonestly();
+}
+
+// Issue 11: any worker could store any finite score for any pending genome,
+// leased to another worker or never leased, and a hostile score became the
+// champion.
+TEST_F(WireAbuseTest, ScoreFromAWorkerNotHoldingTheLeaseIsRejected) {
+  const uint64_t intruder = Join("intruder");
+  // Never leased: the genome ids are in the database for anyone to guess.
+  const std::vector<std::string> ids = absl::StrSplit(
+      QueryText(db_, "SELECT group_concat(id) FROM genomes ORDER BY id"), ',');
+  ASSERT_EQ(ids.size(), kPopulation);
+  auto forged = [](uint64_t task_id, uint32_t attempt) {
+    TaskResult r;
+    r.set_task_id(task_id);
+    r.set_attempt(attempt);
+    r.set_score(-1e9);  // far better than any sphere value
+    r.set_eval_seconds(0.001);
+    return r;
+  };
+  std::vector<TaskResult> unleased;
+  for (const std::string& id : ids) {
+    unleased.push_back(forged(std::stoull(id), 1));
+  }
+  const std::string before = Snapshot();
+  skerry::v1::ReportResponse resp;
+  grpc::Status s = Report(intruder, unleased, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), 0u);
+  EXPECT_EQ(resp.ignored(), kPopulation);
+  ASSERT_EQ(resp.rejected_size(), static_cast<int>(kPopulation));
+  for (const skerry::v1::RejectedResult& r : resp.rejected()) {
+    EXPECT_EQ(r.code(),
+              static_cast<uint32_t>(grpc::StatusCode::PERMISSION_DENIED))
+        << r.message();
+  }
+  EXPECT_EQ(Snapshot(), before);
+
+  // Leased to another worker: the intruder quotes the holder's very attempt.
+  const uint64_t holder = Join("holder");
+  const std::vector<Task> tasks = Lease(holder);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  std::vector<TaskResult> stolen;
+  for (const Task& t : tasks)
+    stolen.push_back(forged(t.task_id(), t.attempt()));
+  s = Report(intruder, stolen, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), 0u);
+  ASSERT_EQ(resp.rejected_size(), static_cast<int>(kPopulation));
+  for (const skerry::v1::RejectedResult& r : resp.rejected()) {
+    EXPECT_EQ(r.code(),
+              static_cast<uint32_t>(grpc::StatusCode::PERMISSION_DENIED))
+        << r.message();
+  }
+  EXPECT_EQ(Snapshot(), before);
+
+  // The holder's honest results count, and no forged score is anywhere.
+  std::vector<TaskResult> honest;
+  for (const Task& t : tasks) honest.push_back(Honest(t));
+  s = Report(holder, honest, &resp);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(resp.accepted(), kPopulation);
+  FinishHonestly();
+  EXPECT_EQ(Count(db_, "SELECT count(*) FROM genomes WHERE score < 0"), 0);
+  EXPECT_EQ(Count(db_, "SELECT count(*) FROM runs WHERE best_score < 0"), 0);
+}
+
+// Issue 11: one result with a non-finite eval_seconds failed the whole group
+// commit (UNAVAILABLE, NOT NULL constraint failed), every time it was resent,
+// and honest workers' results in the same group failed with it.
+TEST_F(WireAbuseTest, BadResultFieldIsRejectedAloneAndHonestResultsCommit) {
+  const uint64_t sloppy = Join("sloppy");
+  const uint64_t honest = Join("honest");
+  const std::vector<Task> mine = Lease(sloppy, 3);
+  const std::vector<Task> theirs = Lease(honest, 3);
+  ASSERT_EQ(mine.size(), 3u);
+  ASSERT_EQ(theirs.size(), 3u);
+  struct Bad {
+    double eval_seconds;
+    std::string error;
+    const char* field;
+  };
+  const Bad kBad[] = {
+      {std::nan(""), "", "eval_seconds"},
+      {std::numeric_limits<double>::infinity(), "", "eval_seconds"},
+      {-1.0, "", "eval_seconds"},
+      {1e300, "", "eval_seconds"},
+      {0.1, std::string((1 << 20) + 1, 'e'), "error"},
+  };
+  for (int round = 0; round < 2; ++round) {  // and once more, resent
+    for (const Bad& bad : kBad) {
+      SCOPED_TRACE(absl::StrCat("round ", round, ", ", bad.field, " ",
+                                bad.eval_seconds));
+      std::vector<TaskResult> sloppy_results;
+      for (const Task& t : mine) sloppy_results.push_back(Honest(t));
+      sloppy_results[1].set_eval_seconds(bad.eval_seconds);
+      sloppy_results[1].set_error(bad.error);
+      // Sent at the same moment as an honest worker's report, so that both
+      // may land in one group commit.
+      skerry::v1::ReportResponse theirs_resp;
+      grpc::Status theirs_status;
+      std::thread other([&] {
+        std::vector<TaskResult> results;
+        for (const Task& t : theirs) results.push_back(Honest(t));
+        auto stub = FleetService::NewStub(channel_);
+        skerry::v1::ReportRequest req;
+        req.set_worker_id(honest);
+        // Only the first time: after that they are duplicates.
+        if (round == 0 && &bad == &kBad[0]) {
+          for (const TaskResult& r : results) *req.add_results() = r;
+        }
+        for (const Task& t : theirs) req.add_held_task_ids(t.task_id());
+        theirs_status = stub->Report(Context().get(), req, &theirs_resp);
+      });
+      skerry::v1::ReportResponse resp;
+      grpc::Status s = Report(sloppy, sloppy_results, &resp);
+      other.join();
+      ASSERT_TRUE(s.ok()) << s.error_code() << " " << s.error_message();
+      ASSERT_TRUE(theirs_status.ok()) << theirs_status.error_message();
+      if (round == 0 && &bad == &kBad[0]) {
+        EXPECT_EQ(theirs_resp.accepted(), 3u);
+        EXPECT_EQ(resp.accepted(), 2u) << "the good two of the sloppy three";
+      } else {
+        EXPECT_EQ(resp.accepted(), 0u) << "the good two are duplicates now";
+      }
+      bool found = false;
+      for (const skerry::v1::RejectedResult& r : resp.rejected()) {
+        if (r.task_id() != mine[1].task_id()) continue;
+        found = true;
+        EXPECT_EQ(r.code(),
+                  static_cast<uint32_t>(grpc::StatusCode::INVALID_ARGUMENT));
+        EXPECT_NE(r.message().find(bad.field), std::string::npos)
+            << r.message();
+        EXPECT_LT(r.message().size(), 300u) << "quotes no content";
+      }
+      EXPECT_TRUE(found) << "the bad result is rejected by name";
+    }
+  }
+  // The bad result's genome is still pending at attempt 1: nothing stored.
+  EXPECT_EQ(Count(db_, absl::StrCat("SELECT count(*) FROM genomes WHERE id = ",
+                                    mine[1].task_id(),
+                                    " AND eval_state = ", skerry::v1::PENDING)),
+            1);
+  // Its worker may still send it properly.
+  skerry::v1::ReportResponse resp;
+  ASSERT_TRUE(Report(sloppy, {Honest(mine[1])}, &resp).ok());
+  EXPECT_EQ(resp.accepted(), 1u);
   FinishHonestly();
 }
 

@@ -193,6 +193,70 @@ TEST_F(TaskQueueTest, ClaimedTaskIsNotClaimableTwice) {
   EXPECT_FALSE(queue_.Claim(2, 1, 1, false).has_value());
 }
 
+// Issue 11: any worker could store any finite score for any pending genome.
+TEST_F(TaskQueueTest, ScoreFromAWorkerNotHoldingTheLeaseIsRefused) {
+  queue_.Add(Tasks(1, 1, 1));
+  ASSERT_EQ(queue_.Lease(1, 1, kNoWait).size(), 1u);  // worker 1, attempt 1
+  absl::Status why;
+  EXPECT_FALSE(queue_.Claim(2, 1, 1, /*failed_attempt=*/false, &why))
+      << "another worker's lease";
+  EXPECT_TRUE(absl::IsPermissionDenied(why)) << why;
+  EXPECT_NE(why.message().find("not leased to worker 2"), std::string::npos)
+      << why;
+  EXPECT_FALSE(queue_.Claim(1, 1, 2, false)) << "an attempt never handed out";
+  EXPECT_EQ(queue_.counts().leased, 1u) << "the holder's lease is untouched";
+  EXPECT_TRUE(queue_.Claim(1, 1, 1, false)) << "the holder";
+}
+
+TEST_F(TaskQueueTest, ScoreForATaskNeverLeasedIsRefused) {
+  queue_.Add(Tasks(1, 1, 1));
+  absl::Status why;
+  for (uint32_t attempt : {0u, 1u}) {
+    EXPECT_FALSE(queue_.Claim(1, 1, attempt, /*failed_attempt=*/false, &why));
+    EXPECT_TRUE(absl::IsPermissionDenied(why)) << why;
+  }
+  EXPECT_EQ(queue_.counts().queued, 1u);
+}
+
+TEST_F(TaskQueueTest, LateScoreFromAnyEarlierHolderIsAccepted) {
+  queue_.Add(Tasks(1, 1, 1));
+  for (int64_t worker = 1; worker <= 3; ++worker) {
+    ASSERT_EQ(queue_.Lease(worker, 1, kNoWait).size(), 1u);
+    clock_.Advance(kLease + absl::Seconds(1));  // each lease expires
+  }
+  // Worker 2 held attempt 2 only.
+  EXPECT_FALSE(queue_.Claim(2, 1, 1, false)) << "attempt 1 was worker 1's";
+  EXPECT_FALSE(queue_.Claim(2, 1, 3, false)) << "attempt 3 was worker 3's";
+  EXPECT_TRUE(queue_.Claim(2, 1, 2, false)) << "its own, late";
+}
+
+TEST_F(TaskQueueTest, OnlyTheLastLeasesOfATaskAreRemembered) {
+  queue_.Add(Tasks(1, 1, 1));
+  for (size_t i = 0; i <= kMaxHoldersKept; ++i) {
+    ASSERT_EQ(queue_.Lease(static_cast<int64_t>(100 + i), 1, kNoWait).size(),
+              1u);
+    clock_.Advance(kLease + absl::Seconds(1));
+  }
+  EXPECT_FALSE(queue_.Claim(100, 1, 1, false)) << "forgotten, refused";
+  EXPECT_TRUE(queue_.Claim(101, 1, 2, false));
+}
+
+TEST_F(TaskQueueTest, LeaseStopsBeforeTheAnswerOutgrowsItsByteBudget) {
+  queue_.Add(Tasks(1, 1, 10));
+  const std::vector<skerry::v1::Task> one = queue_.Lease(1, 1, kNoWait);
+  ASSERT_EQ(one.size(), 1u);
+  const size_t task_bytes = one[0].ByteSizeLong();
+  // A budget of three and a half tasks (by the queue's upper estimate,
+  // which is at least the encoded size) gives at most three.
+  std::vector<skerry::v1::Task> got =
+      queue_.Lease(1, 100, kNoWait, task_bytes * 3 + task_bytes / 2 + 200);
+  EXPECT_GE(got.size(), 1u);
+  EXPECT_LE(got.size(), 3u);
+  // However small the budget, one task is handed out.
+  EXPECT_EQ(queue_.Lease(1, 100, kNoWait, 1).size(), 1u);
+  EXPECT_EQ(queue_.counts().queued, 10u - 1u - got.size() - 1u);
+}
+
 TEST_F(TaskQueueTest, UnknownTaskIsNotClaimed) {
   EXPECT_FALSE(queue_.Claim(1, 12345, 1, false).has_value());
 }

@@ -167,5 +167,31 @@ TEST(WorkerFlagsTest, AMistypedFlagDoesNotEchoItsValue) {
               ::testing::Not(::testing::HasSubstr("secretvalue")));
 }
 
+TEST(WorkerFlagsTest, ExitWhenIdleTakesWholeSecondsInItsRange) {
+  absl::StatusOr<WorkerFlags> f = ParseWorkerFlags(
+      {"--coordinator=h:1", "--threads=1", "--exit-when-idle", "300"});
+  ASSERT_TRUE(f.ok()) << f.status();
+  EXPECT_EQ(f->options.exit_when_idle, absl::Seconds(300));
+  f = ParseWorkerFlags({"--coordinator=h:1", "--threads=1"});
+  ASSERT_TRUE(f.ok()) << f.status();
+  EXPECT_EQ(f->options.exit_when_idle, absl::ZeroDuration());  // never
+  for (const char* bad : {"0", "-5", "1.5", "604801", "soon"}) {
+    SCOPED_TRACE(bad);
+    f = ParseWorkerFlags(
+        {"--coordinator=h:1", "--threads=1", "--exit-when-idle", bad});
+    ASSERT_FALSE(f.ok());
+    EXPECT_THAT(f.status().message(), HasSubstr("--exit-when-idle"));
+    EXPECT_THAT(f.status().message(), HasSubstr(bad));
+  }
+  EXPECT_THAT(WorkerUsage(), HasSubstr("--exit-when-idle SECONDS"));
+}
+
+TEST(WorkerFlagsTest, VersionNeedsNoOtherFlag) {
+  absl::StatusOr<WorkerFlags> f = ParseWorkerFlags({"--version"});
+  ASSERT_TRUE(f.ok()) << f.status();
+  EXPECT_TRUE(f->version);
+  EXPECT_THAT(WorkerUsage(), HasSubstr("--version"));
+}
+
 }  // namespace
 }  // namespace skerry::worker

@@ -12,6 +12,7 @@
 #include "absl/status/status.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/time.h"
+#include "common/version.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "tests/unit/worker/fake_fleet.h"
@@ -405,6 +406,56 @@ TEST_F(WorkerTest, BadOptionsAreRejectedByRun) {
   EXPECT_EQ(w.status().code(), absl::StatusCode::kInvalidArgument);
   EXPECT_THAT(w.status().message(), HasSubstr("threads"));
   EXPECT_THAT(fleet().Snapshot().joins, IsEmpty());
+}
+
+TEST_F(WorkerTest, ExitWhenIdleEndsRunOnlyAfterEveryTaskIsReported) {
+  const std::vector<Task> tasks = SphereTasks(1, 12);
+  fleet().AddTasks(tasks);
+  WorkerOptions options = Options(2, 3);
+  options.exit_when_idle = absl::Milliseconds(300);
+  RunningWorker w(server_.address(), options);
+  ASSERT_TRUE(w.WaitDone());
+  EXPECT_TRUE(w.status().ok()) << w.status();
+  EXPECT_TRUE(w.worker().exited_idle());
+  EXPECT_EQ(w.worker().results_reported(), tasks.size());
+  ExpectSphereResults(fleet().Snapshot(), tasks);
+}
+
+TEST_F(WorkerTest, ExitWhenIdleCountsTimeTheCoordinatorIsUnreachable) {
+  const std::string address = server_.address();
+  server_.Shutdown();  // nothing listens there now: Join is retried
+  WorkerOptions options = Options(1, 1);
+  options.exit_when_idle = absl::Milliseconds(300);
+  RunningWorker w(address, options);
+  ASSERT_TRUE(w.WaitDone());
+  EXPECT_TRUE(w.status().ok()) << w.status();
+  EXPECT_TRUE(w.worker().exited_idle());
+}
+
+TEST_F(WorkerTest, WithoutExitWhenIdleAnIdleWorkerKeepsPolling) {
+  RunningWorker w(server_.address(), Options(1, 1));
+  // Several empty long polls (200 ms each) come and go; the worker stays.
+  ASSERT_TRUE(fleet().WaitUntil(
+      [](const FleetState& s) { return s.leases.size() >= 3; }));
+  EXPECT_FALSE(w.WaitDone(absl::ZeroDuration()));
+  EXPECT_FALSE(w.worker().exited_idle());
+}
+
+TEST_F(WorkerTest, JoinStatesTheWorkerProtocolVersion) {
+  RunningWorker w(server_.address(), Options(1, 1));
+  ASSERT_TRUE(
+      fleet().WaitUntil([](const FleetState& s) { return !s.joins.empty(); }));
+  EXPECT_EQ(fleet().Snapshot().joins[0].protocol_version(), kProtocolVersion);
+}
+
+TEST_F(WorkerTest, JoinRefusedAsUnimplementedEndsRunWithoutRetrying) {
+  // A coordinator that does not speak the worker's protocol answers
+  // UNIMPLEMENTED (server/api/fleet_service.cc): retrying cannot help.
+  fleet().RefuseJoins(grpc::StatusCode::UNIMPLEMENTED);
+  RunningWorker w(server_.address(), Options(1, 1));
+  ASSERT_TRUE(w.WaitDone());
+  EXPECT_EQ(w.status().code(), absl::StatusCode::kUnimplemented);
+  EXPECT_THAT(w.status().message(), HasSubstr("refused Join"));
 }
 
 }  // namespace
