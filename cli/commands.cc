@@ -7,6 +7,7 @@
 #include <cerrno>
 #include <cstring>
 #include <fstream>
+#include <random>
 #include <sstream>
 
 #include "absl/strings/match.h"
@@ -240,6 +241,17 @@ absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path) {
   return loaded;
 }
 
+// Retries of a submission nothing answered (1 s, then 2 s apart).
+constexpr int kSubmitRetries = 2;
+
+std::string NewRequestId() {
+  std::random_device device;
+  std::string id;
+  for (int i = 0; i < 4; ++i)
+    absl::StrAppend(&id, absl::Hex(device(), absl::kZeroPad8));
+  return id;
+}
+
 int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
                   uint64_t* run_id, uint32_t priority) {
   absl::StatusOr<LoadedSpec> loaded = LoadSpecFile(spec_path);
@@ -247,8 +259,21 @@ int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
     *io.err << "skerry: " << loaded.status().message() << "\n";
     return kExitUsage;
   }
+  // One id per invocation, reused on retry: a submission that reached the
+  // coordinator but whose answer was lost is not made twice.
+  const std::string request_id = NewRequestId();
   absl::StatusOr<RunSummary> run =
-      client.Submit(loaded->spec, loaded->text, priority);
+      client.Submit(loaded->spec, loaded->text, priority, request_id);
+  for (int retry = 0;
+       retry < kSubmitRetries && !run.ok() && IsUnreachable(run.status());
+       ++retry) {
+    if (io.sleep) {
+      io.sleep(absl::Seconds(1 << retry));
+    } else {
+      absl::SleepFor(absl::Seconds(1 << retry));
+    }
+    run = client.Submit(loaded->spec, loaded->text, priority, request_id);
+  }
   if (!run.ok()) return ReportError(run.status(), io);
   *run_id = run->id();
   *io.out << run->id() << "\n" << std::flush;

@@ -43,7 +43,19 @@ class CoordinatorImpl final : public Coordinator {
     c->clock_ = options.clock != nullptr ? options.clock : Clock::Real();
     SKERRY_ASSIGN_OR_RETURN(c->owner_,
                             store::OwnerLock::Acquire(options.db_path));
-    SKERRY_ASSIGN_OR_RETURN(c->store_, store::Store::Open(options.db_path));
+    store::Store::Options open;
+    open.initialise_empty_file = c->owner_->created();
+    open.vfs = options.sqlite_vfs;
+    SKERRY_ASSIGN_OR_RETURN(c->store_,
+                            store::Store::Open(options.db_path, open));
+    // Refuse a file --check would call malformed, and one it cannot write
+    // (rather than start, serve reads and fail every write).
+    SKERRY_RETURN_IF_ERROR(c->store_->QuickCheck());
+    if (absl::Status w = c->store_->ProbeWrite(); !w.ok()) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "cannot write the database ", options.db_path, " (", w.message(),
+          "); check the file's and its folder's permissions and free space"));
+    }
     c->queue_ =
         std::make_unique<scheduler::TaskQueue>(c->clock_, options.lease);
     SKERRY_ASSIGN_OR_RETURN(
@@ -173,13 +185,21 @@ class CoordinatorImpl final : public Coordinator {
   void Shutdown() override {
     {
       absl::MutexLock l(&mu_);
-      if (shut_down_) return;
+      if (shut_down_) {
+        // Idempotent: a second caller returns once the first has finished.
+        mu_.Await(absl::Condition(&stopped_));
+        return;
+      }
       shut_down_ = true;
     }
-    // Any part may be missing when Make() failed half-way.
+    // Any part may be missing when Make() failed half-way. The engine stops
+    // first: waiting Report calls are answered (UNAVAILABLE, results kept by
+    // the workers) and its in-flight commit is bounded (Engine::Shutdown), so
+    // no handler is left blocked when the server drains.
     if (http_ != nullptr) http_->Shutdown();         // it calls the services
     if (queue_ != nullptr) queue_->Shutdown();       // wakes long polls
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
+    if (engine_ != nullptr) engine_->Shutdown();
     if (server_ != nullptr) {
       // Health checks answer NOT_SERVING from now on, for every service.
       if (grpc::HealthCheckServiceInterface* health =
@@ -188,9 +208,8 @@ class CoordinatorImpl final : public Coordinator {
       }
       server_->Shutdown(std::chrono::system_clock::now() +
                         std::chrono::seconds(5));
+      server_->Wait();
     }
-    if (engine_ != nullptr) engine_->Shutdown();
-    if (server_ != nullptr) server_->Wait();
     absl::MutexLock l(&mu_);
     stopped_ = true;
   }
@@ -259,8 +278,10 @@ absl::StatusOr<auth::AccessControl::IssuedToken> InitFirstAdmin(
   }
   SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<store::OwnerLock> owner,
                           store::OwnerLock::Acquire(db_path));
+  store::Store::Options open;
+  open.initialise_empty_file = owner->created();
   SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<store::Store> store,
-                          store::Store::Open(db_path));
+                          store::Store::Open(db_path, open));
   return auth::AccessControl::InitAdmin(store.get(), Clock::Real(), name);
 }
 

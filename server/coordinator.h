@@ -41,6 +41,9 @@ struct CoordinatorOptions {
   std::string tls_cert_file;
   std::string tls_key_file;
   std::string tls_client_ca_file;
+  // The SQLite VFS the store is opened with; empty: the default. A test seam
+  // (tests/fault: a disk that fails on demand).
+  std::string sqlite_vfs;
   // What one run may ask for (common/spec.h); SubmitRun refuses more.
   SpecBudgets budgets = MachineSpecBudgets();
   // The read-only web port (server/http/http_server.h): HOST:PORT, port 0
@@ -65,7 +68,10 @@ class Coordinator {
   virtual std::string TransportSummary() const = 0;
   // A channel to this coordinator that does not touch the network.
   virtual std::shared_ptr<grpc::Channel> InProcessChannel() = 0;
-  // Stops serving; in-flight commits finish first.
+  // Stops serving: the engine first (its in-flight commit gets a deadline,
+  // then is interrupted and rolled back: nothing acknowledged is lost), then
+  // the server (5 s for calls in flight). Idempotent; a second caller returns
+  // when the first has finished. Bounded in time.
   virtual void Shutdown() = 0;
   // Blocks until Shutdown(), called from another thread (a signal handler's,
   // say), has finished.

@@ -67,7 +67,11 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
   w.sandbox = req->sandbox();
   w.joined_ms = w.last_seen_ms = clock_->WallMillis();
   absl::StatusOr<int64_t> id = store_->RegisterWorker(w);
-  if (!id.ok()) return ToGrpc(id.status());
+  if (!id.ok()) {
+    // Held, logged and shown like any failed commit (engine.h).
+    engine_->NoteStorageTrouble(id.status());
+    return ToGrpc(id.status());
+  }
   {
     absl::MutexLock l(&mu_);
     const absl::Time now = clock_->Now();

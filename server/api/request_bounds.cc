@@ -38,6 +38,8 @@ const std::vector<FieldBound>* BuildTable() {
        "the engine (common/metric_bounds.h), with TaskResult.metrics"},
       // RunService
       {"skerry.v1.SubmitRunRequest.spec_text", 0, 1 * kMiB, ""},
+      {"skerry.v1.SubmitRunRequest.request_id", 0, 128,
+       "RunService.SubmitRun: printable ASCII, no spaces"},
       {"skerry.v1.SubmitRunRequest.spec", 0, 0,
        "the coordinator's budgets (--max-name-bytes, --max-evaluator-bytes, "
        "--max-task-bytes, --max-generation-genes) and ValidateSpec"},

@@ -24,6 +24,10 @@
 //         message, detail)
 //        (columns and rules in server/store/access_schema.h; methods in
 //        store_access.cc)
+// Version 6 adds `sum` to runs, islands, genomes and generation_stats: a
+// checksum of the row's other columns, kept by triggers (row_sums.h), checked
+// on every read of those rows and by `--check`; and runs.request_id, the
+// client's id of the SubmitRun that made the run, UNIQUE(owner, request_id).
 //   genome_metrics(run_id, genome_id, name, value)       version 8:
 //        an evaluator's named side measurements, at most 32 per genome
 //        (common/metric_bounds.h), PRIMARY KEY (genome_id, name); methods in
@@ -124,6 +128,11 @@ struct RunRecord {
   int64_t champion_id = 0;
   std::optional<double> best_score;
   std::optional<uint32_t> stop_generation;
+  // The client's id of the SubmitRun that made it; empty when none was given.
+  std::string request_id;
+  // Set by ListRuns when the stored row does not match its checksum or its
+  // spec does not parse (DATA_LOSS naming the run); the fields may be wrong.
+  absl::Status damage;
 };
 
 struct IslandRecord {
@@ -249,16 +258,26 @@ struct WorkerRecord {
   std::string sandbox;  // JoinRequest.sandbox: "bwrap", "none: <reason>"
 };
 
+// What Store::Open and `--check` say of a 0-byte file.
+inline constexpr const char* kEmptyFileMessage =
+    "not a Skerry database: the file is empty (0 bytes). Only a file that does "
+    "not exist yet becomes a new database; remove the empty file to start one";
+
 class Store {
  public:
   static constexpr int kSchemaVersion = 8;
 
-  // Opens (creating when missing) the database at `path`, applies the pragmas
-  // and migrates an older schema. FailedPrecondition for a newer schema.
+  // Opens the database at `path`, applies the pragmas and migrates an older
+  // schema. Only a file that does not exist is created (and initialised); an
+  // empty file or one without Skerry's schema is refused, unchanged
+  // (FailedPrecondition), as is a newer schema.
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path);
   struct Options {
     std::string vfs;  // SQLite VFS name; empty: the default
     int busy_timeout_ms = 5000;
+    // The caller made the empty file itself a moment ago (OwnerLock does,
+    // to lock it): initialise it as if it had been absent.
+    bool initialise_empty_file = false;
   };
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path,
                                                      const Options& options);
@@ -269,6 +288,16 @@ class Store {
   absl::Status ProbeWrite();
 
   const std::string& path() const { return path_; }
+
+  // Makes the statement running now, if any, fail soon (sqlite3_interrupt):
+  // its transaction is rolled back. For a bounded shutdown; any thread, no
+  // lock taken.
+  void Interrupt() { sqlite3_interrupt(raw_); }
+
+  // SQLite's quick_check (structure, no index contents), and the schema
+  // (tables, indexes, triggers) compared with this version's: DATA_LOSS
+  // naming the first findings. Run at coordinator start.
+  absl::Status QuickCheck();
 
   // ---- Commit points ----
   absl::Status CreateRun(RunRecord* run, std::vector<GenomeRecord>* genomes);
@@ -299,7 +328,15 @@ class Store {
   absl::Status TouchWorkers(absl::Span<const int64_t> ids, int64_t now_ms);
 
   // ---- Reads ----
+  // Every run; a damaged run's record comes with `damage` set.
   absl::StatusOr<std::vector<RunRecord>> ListRuns();
+  // Reads every row of the run the engine keeps in memory (the run, its
+  // islands and statistics, every island's newest generation) and checks
+  // them: DATA_LOSS naming the first damage found.
+  absl::Status VerifyActiveRun(int64_t run_id);
+  // The run `owner` submitted with `request_id`, if any.
+  absl::StatusOr<std::optional<int64_t>> FindRunByRequest(
+      const std::string& owner, const std::string& request_id);
   // NotFound names the run.
   absl::StatusOr<RunRecord> GetRun(int64_t run_id);
   absl::StatusOr<std::vector<IslandRecord>> GetIslands(int64_t run_id);
@@ -378,10 +415,11 @@ class Store {
 
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
-      : path_(std::move(path)), conn_(std::move(conn)) {}
+      : path_(std::move(path)), raw_(conn->raw()), conn_(std::move(conn)) {}
   // The schema version stored (0 for an empty file); refuses foreign, damaged
   // and newer databases without writing anything.
   absl::StatusOr<int> StoredVersion() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<Digest> RunDigestUnnamed(int64_t run_id);
   absl::Status Migrate(int from_version) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status CommitGenerationLocked(const GenerationCommit& commit)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
@@ -409,9 +447,14 @@ class Store {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const std::string path_;
+  sqlite3* const raw_;  // conn_'s, for Interrupt only
   absl::Mutex mu_;
   std::unique_ptr<Connection> conn_ ABSL_GUARDED_BY(mu_);
 };
+
+// DATA_LOSS naming the first object whose schema differs from a fresh
+// database's of this version (Store::QuickCheck and `--check`).
+absl::Status VerifySchema(Connection* conn);
 
 }  // namespace skerry::store
 

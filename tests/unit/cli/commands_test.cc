@@ -93,6 +93,7 @@ class CommandsTest : public ::testing::Test {
   Io io_;
   std::vector<absl::Duration> sleeps_;
   std::vector<std::string> targets_;
+  uint64_t run_id_ = 0;
 };
 
 TEST_F(CommandsTest, SubmitSendsSpecAndTextAndPrintsTheRunId) {
@@ -131,6 +132,72 @@ TEST_F(CommandsTest, SubmitSendsThePriorityGiven) {
           SetArgPointee<2>(response), Return(grpc::Status::OK)));
   EXPECT_EQ(Cli({"submit", path, "--priority", "3"}), kExitOk) << err_.str();
   EXPECT_EQ(sent.priority(), 3u);
+}
+
+TEST_F(CommandsTest, SubmitRetriesWithTheSameRequestIdWhenNothingAnswered) {
+  std::string path =
+      WriteTemp("retry.spec",
+                "name: \"t\" genome_length: 2\n"
+                "evaluator { builtin { function: \"sphere\" } }\n");
+  std::vector<std::string> ids;
+  v1::SubmitRunResponse response;
+  response.mutable_run()->set_id(43);
+  auto record = [&](grpc::ClientContext*, const v1::SubmitRunRequest& request,
+                    v1::SubmitRunResponse*) {
+    ids.push_back(request.request_id());
+  };
+  EXPECT_CALL(*mock_, SubmitRun(_, _, _))
+      .WillOnce(DoAll(Invoke(record),
+                      Return(grpc::Status(grpc::StatusCode::UNAVAILABLE,
+                                          "failed to connect"))))
+      .WillOnce(DoAll(Invoke(record), SetArgPointee<2>(response),
+                      Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"submit", path}), kExitOk) << err_.str();
+  EXPECT_EQ(out_.str(), "43\n");
+  ASSERT_EQ(ids.size(), 2u);
+  EXPECT_GE(ids[0].size(), 16u);
+  EXPECT_EQ(ids[0], ids[1]);  // the retry is the same submission
+  EXPECT_EQ(sleeps_.size(), 1u);
+}
+
+TEST_F(CommandsTest, EachInvocationMakesItsOwnRequestId) {
+  std::string path =
+      WriteTemp("ids.spec",
+                "name: \"t\" genome_length: 2\n"
+                "evaluator { builtin { function: \"sphere\" } }\n");
+  std::vector<std::string> ids;
+  v1::SubmitRunResponse response;
+  response.mutable_run()->set_id(44);
+  EXPECT_CALL(*mock_, SubmitRun(_, _, _))
+      .Times(2)
+      .WillRepeatedly(DoAll(
+          Invoke([&](grpc::ClientContext*, const v1::SubmitRunRequest& request,
+                     v1::SubmitRunResponse*) {
+            ids.push_back(request.request_id());
+          }),
+          SetArgPointee<2>(response), Return(grpc::Status::OK)));
+  EXPECT_EQ(SubmitCommand(*client_, path, io_, &run_id_), kExitOk);
+  EXPECT_EQ(SubmitCommand(*client_, path, io_, &run_id_), kExitOk);
+  ASSERT_EQ(ids.size(), 2u);
+  EXPECT_NE(ids[0], ids[1]);
+}
+
+TEST_F(CommandsTest, UnavailableTheCoordinatorAnsweredIsNotUnreachable) {
+  EXPECT_CALL(*mock_, ListRuns(_, _, _))
+      .WillOnce(Return(grpc::Status(grpc::StatusCode::UNAVAILABLE,
+                                    "results could not be stored",
+                                    kAnsweredUnavailable)));
+  EXPECT_EQ(Cli({"list"}), kExitFailure);
+  EXPECT_THAT(err_.str(), HasSubstr("answered: unavailable"));
+  EXPECT_THAT(err_.str(), ::testing::Not(HasSubstr("cannot reach")));
+}
+
+TEST_F(CommandsTest, UnavailableWithNoAnswerIsUnreachable) {
+  EXPECT_CALL(*mock_, ListRuns(_, _, _))
+      .WillOnce(Return(
+          grpc::Status(grpc::StatusCode::UNAVAILABLE, "failed to connect")));
+  EXPECT_EQ(Cli({"list"}), kExitUnreachable);
+  EXPECT_THAT(err_.str(), HasSubstr("cannot reach"));
 }
 
 TEST_F(CommandsTest, SubmitRefusesAPriorityOutOfRangeWithoutCalling) {
