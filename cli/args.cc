@@ -11,7 +11,9 @@
 #include "absl/strings/str_split.h"
 #include "cli/access.h"
 #include "cli/lineage.h"
+#include "cli/report.h"
 #include "cli/validate.h"
+#include "cli/workers.h"
 #include "worker/channel.h"
 
 namespace skerry::cli {
@@ -75,6 +77,13 @@ std::vector<CommandSpec> MakeCommands() {
        "print a run's best genome",
        "Prints the run's best genome: id, natural key (run/island/generation/"
        "slot), score and genes."},
+      {"network",
+       {"RUN"},
+       {{"out", "FILE", "write the network to FILE (-o FILE)", true}},
+       "export the champion's network as JSON",
+       "Writes the run's champion as a network in the format of "
+       "docs/network-format.md (pole evaluators), with the run, genome, score "
+       "and evaluation seed as notes, to run it without Skerry."},
       {"history",
        {"RUN"},
        {{"island", "N", "only island N (default: every island)"}},
@@ -227,7 +236,10 @@ absl::Status ParseCommandArgs(const CommandSpec& command,
                               ParsedArgs* parsed) {
   bool only_positionals = false;
   for (; i < args.size(); ++i) {
-    const std::string& arg = args[i];
+    // "-o FILE" is short for "--out FILE", for the commands that write files.
+    const std::string arg =
+        args[i] == "-o" && FindFlag(command, "out") != nullptr ? "--out"
+                                                               : args[i];
     if (only_positionals || !absl::StartsWith(arg, "-") || arg == "-") {
       parsed->positionals.push_back(arg);
       continue;
@@ -287,7 +299,10 @@ absl::Status CheckComplete(const CommandSpec& command,
                      command.positionals[parsed.positionals.size()],
                      " (usage: skerry ", command.name, " ", expected, ")"));
   }
-  if (parsed.positionals.size() > command.positionals.size()) {
+  // A last positional written "[NAME...]" takes any number of values.
+  const bool variadic = !command.positionals.empty() &&
+                        absl::EndsWith(command.positionals.back(), "...]");
+  if (!variadic && parsed.positionals.size() > command.positionals.size()) {
     return UsageError(
         command.name,
         absl::StrCat("unexpected argument '",
@@ -319,6 +334,10 @@ const std::vector<CommandSpec>& Commands() {
     more.insert(more.end(), access.begin(), access.end());
     std::vector<CommandSpec> validation = ValidationCommandSpecs();
     more.insert(more.end(), validation.begin(), validation.end());
+    std::vector<CommandSpec> report = ReportCommandSpecs();
+    more.insert(more.end(), report.begin(), report.end());
+    std::vector<CommandSpec> workers = WorkersCommandSpecs();
+    more.insert(more.end(), workers.begin(), workers.end());
     auto local = std::find_if(all->begin(), all->end(), [](const auto& c) {
       return absl::string_view(c.name) == "local";
     });

@@ -57,6 +57,15 @@ absl::Status FromGrpc(const grpc::Status& status, absl::string_view call,
   auto code = static_cast<absl::StatusCode>(status.error_code());
   std::string detail = status.error_message();
   if (detail.empty()) detail = "no message";
+  if (status.error_code() == grpc::StatusCode::UNAVAILABLE &&
+      status.error_details() == kAnsweredUnavailable) {
+    absl::Status answered(
+        code,
+        absl::StrCat("the coordinator at ", target, " answered: unavailable (",
+                     call, ": ", detail, "); try again later"));
+    answered.SetPayload(kAnsweredPayload, absl::Cord("1"));
+    return answered;
+  }
   if (status.error_code() == grpc::StatusCode::UNAVAILABLE) {
     return absl::Status(
         code, absl::StrCat("cannot reach the coordinator at ", target, " (",
@@ -71,6 +80,7 @@ absl::Status FromGrpc(const grpc::Status& status, absl::string_view call,
 }
 
 bool IsUnreachable(const absl::Status& status) {
+  if (status.GetPayload(kAnsweredPayload).has_value()) return false;
   return absl::IsUnavailable(status) || absl::IsDeadlineExceeded(status);
 }
 
@@ -86,8 +96,10 @@ void RunClient::SetDeadline(grpc::ClientContext* context) const {
 
 absl::StatusOr<RunSummary> RunClient::Submit(const skerry::v1::RunSpec& spec,
                                              const std::string& spec_text,
-                                             uint32_t priority) {
+                                             uint32_t priority,
+                                             const std::string& request_id) {
   skerry::v1::SubmitRunRequest request;
+  request.set_request_id(request_id);
   *request.mutable_spec() = spec;
   request.set_spec_text(spec_text);
   request.set_priority(priority);

@@ -46,7 +46,14 @@ absl::Duration CallDeadline(absl::Duration fallback);
 absl::Status FromGrpc(const grpc::Status& status, absl::string_view call,
                       absl::string_view target);
 
-// True for the codes that mean "no coordinator answered" (exit code 3).
+// The same as server/api/grpc_status.h's: the details of an UNAVAILABLE the
+// coordinator itself sent.
+inline constexpr char kAnsweredUnavailable[] = "skerry-coordinator-answered";
+// The payload FromGrpc puts on such a status.
+inline constexpr char kAnsweredPayload[] = "skerry.dev/answered";
+
+// True for the codes that mean "no coordinator answered" (exit code 3); false
+// for an UNAVAILABLE the coordinator answered (storage trouble: exit code 1).
 bool IsUnreachable(const absl::Status& status);
 
 // The channel to a coordinator at HOST:PORT with the caller's token and TLS
@@ -63,9 +70,10 @@ class RunClient {
   const std::string& target() const { return target_; }
 
   // `priority` 0: the coordinator's default (1). docs/sharing.md.
-  absl::StatusOr<skerry::v1::RunSummary> Submit(const skerry::v1::RunSpec& spec,
-                                                const std::string& spec_text,
-                                                uint32_t priority = 0);
+  // `request_id`: the same on every retry of one submission (runs.proto).
+  absl::StatusOr<skerry::v1::RunSummary> Submit(
+      const skerry::v1::RunSpec& spec, const std::string& spec_text,
+      uint32_t priority = 0, const std::string& request_id = "");
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> List();
   absl::StatusOr<skerry::v1::GetRunResponse> Get(uint64_t run_id);
   absl::StatusOr<skerry::v1::RunSummary> Pause(uint64_t run_id);

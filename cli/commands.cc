@@ -7,6 +7,7 @@
 #include <cerrno>
 #include <cstring>
 #include <fstream>
+#include <random>
 #include <sstream>
 
 #include "absl/strings/match.h"
@@ -17,7 +18,11 @@
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
+#include "cli/metrics_text.h"
+#include "cli/network_command.h"
+#include "cli/report.h"
 #include "cli/validate.h"
+#include "cli/workers.h"
 #include "common/spec.h"
 #include "common/version.h"
 #include "google/protobuf/util/json_util.h"
@@ -135,6 +140,9 @@ int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
     *io.out << "run " << run->id() << " priority " << run->priority() << "\n";
     return kExitOk;
   }
+  if (command == "network") {
+    return NetworkCommand(client, run_id, args.Get("out"), io);
+  }
   if (command == "champion") {
     return ChampionCommand(client, run_id, args.Has("json"), args.Get("out"),
                            io);
@@ -233,6 +241,17 @@ absl::StatusOr<LoadedSpec> LoadSpecFile(const std::string& path) {
   return loaded;
 }
 
+// Retries of a submission nothing answered (1 s, then 2 s apart).
+constexpr int kSubmitRetries = 2;
+
+std::string NewRequestId() {
+  std::random_device device;
+  std::string id;
+  for (int i = 0; i < 4; ++i)
+    absl::StrAppend(&id, absl::Hex(device(), absl::kZeroPad8));
+  return id;
+}
+
 int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
                   uint64_t* run_id, uint32_t priority) {
   absl::StatusOr<LoadedSpec> loaded = LoadSpecFile(spec_path);
@@ -240,8 +259,21 @@ int SubmitCommand(RunClient& client, const std::string& spec_path, Io& io,
     *io.err << "skerry: " << loaded.status().message() << "\n";
     return kExitUsage;
   }
+  // One id per invocation, reused on retry: a submission that reached the
+  // coordinator but whose answer was lost is not made twice.
+  const std::string request_id = NewRequestId();
   absl::StatusOr<RunSummary> run =
-      client.Submit(loaded->spec, loaded->text, priority);
+      client.Submit(loaded->spec, loaded->text, priority, request_id);
+  for (int retry = 0;
+       retry < kSubmitRetries && !run.ok() && IsUnreachable(run.status());
+       ++retry) {
+    if (io.sleep) {
+      io.sleep(absl::Seconds(1 << retry));
+    } else {
+      absl::SleepFor(absl::Seconds(1 << retry));
+    }
+    run = client.Submit(loaded->spec, loaded->text, priority, request_id);
+  }
   if (!run.ok()) return ReportError(run.status(), io);
   *run_id = run->id();
   *io.out << run->id() << "\n" << std::flush;
@@ -306,6 +338,10 @@ int ChampionCommand(RunClient& client, uint64_t run_id, bool json,
     text = *std::move(encoded);
   } else {
     text = FormatChampion(*genome, name);
+    // The seed its evaluator was given: re-score it outside Skerry with it.
+    absl::StrAppend(&text, "eval seed   ", GenomeEvalSeed(run->spec(), *genome),
+                    "\n");
+    text += FormatGenomeMetrics(genome->metrics());
   }
   if (out_path.empty()) {
     *io.out << text << std::flush;
@@ -331,7 +367,8 @@ int ShowCommand(RunClient& client, uint64_t run_id, bool all_rows, Io& io) {
   if (!history.ok()) return ReportError(history.status(), io);
   *io.out << FormatRunDetails(*run) << "\n"
           << FormatGenerationTable(*history, run->run().objective(),
-                                   all_rows ? 0 : kDefaultHistoryRows);
+                                   all_rows ? 0 : kDefaultHistoryRows)
+          << FormatMetricMeans(*history, all_rows ? 0 : kDefaultHistoryRows);
   return kExitOk;
 }
 
@@ -339,7 +376,7 @@ int HistoryCommand(RunClient& client, uint64_t run_id,
                    std::optional<uint32_t> island, Io& io) {
   auto history = client.History(run_id, island);
   if (!history.ok()) return ReportError(history.status(), io);
-  *io.out << FormatHistory(*history);
+  *io.out << FormatHistory(*history) << FormatMetricMeans(*history);
   return kExitOk;
 }
 
@@ -439,7 +476,8 @@ int RunCli(const std::vector<std::string>& args,
   auto channel = [&]() { return CoordinatorChannel(target, *security); };
   if (IsLineageCommand(parsed->command) || parsed->command == "backup" ||
       IsAccessCommand(parsed->command) ||
-      IsValidationCommand(parsed->command)) {
+      IsValidationCommand(parsed->command) || parsed->command == "report" ||
+      parsed->command == "workers") {
     absl::StatusOr<std::shared_ptr<grpc::Channel>> ch = channel();
     if (!ch.ok()) return UsageFailure(ch.status(), "", io);
     if (IsLineageCommand(parsed->command)) {
@@ -451,6 +489,15 @@ int RunCli(const std::vector<std::string>& args,
     if (parsed->command == "backup") {
       auto admin = skerry::v1::AdminService::NewStub(*ch);
       return BackupCommand(*parsed, *admin, io);
+    }
+    if (parsed->command == "workers") {
+      auto admin = skerry::v1::AdminService::NewStub(*ch);
+      return WorkersCommand(*parsed, *admin, io);
+    }
+    if (parsed->command == "report") {
+      auto runs = skerry::v1::RunService::NewStub(*ch);
+      auto lineage = skerry::v1::LineageService::NewStub(*ch);
+      return ReportCommand(*parsed, *runs, *lineage, io);
     }
     if (IsValidationCommand(parsed->command)) {
       auto validation = skerry::v1::ValidationService::NewStub(*ch);

@@ -40,6 +40,13 @@ PACKAGES=(
   systemd
   python3-yaml
   iproute2
+  # The report page and the coordinator's web port (docs/report.md).
+  libcpp-httplib-dev
+  libjs-chart.js
+  # Tests: a headless browser loads the report and the live page; promtool
+  # checks /metrics (the prometheus package, which brings its web assets).
+  chromium
+  prometheus
 )
 if [[ "${1:-}" == "--deploy-tier" ]]; then
   # A real single-node Slurm for tests/deploy/slurm_test.cc.

@@ -20,6 +20,9 @@
 #include "server/auth/interceptor.h"
 #include "server/auth/tls.h"
 #include "server/engine/engine.h"
+#include "server/http/fleet_metrics.h"
+#include "server/http/fleet_status.h"
+#include "server/http/http_server.h"
 #include "server/lineage/lineage_service.h"
 #include "server/scheduler/task_queue.h"
 #include "server/store/owner_lock.h"
@@ -40,7 +43,19 @@ class CoordinatorImpl final : public Coordinator {
     c->clock_ = options.clock != nullptr ? options.clock : Clock::Real();
     SKERRY_ASSIGN_OR_RETURN(c->owner_,
                             store::OwnerLock::Acquire(options.db_path));
-    SKERRY_ASSIGN_OR_RETURN(c->store_, store::Store::Open(options.db_path));
+    store::Store::Options open;
+    open.initialise_empty_file = c->owner_->created();
+    open.vfs = options.sqlite_vfs;
+    SKERRY_ASSIGN_OR_RETURN(c->store_,
+                            store::Store::Open(options.db_path, open));
+    // Refuse a file --check would call malformed, and one it cannot write
+    // (rather than start, serve reads and fail every write).
+    SKERRY_RETURN_IF_ERROR(c->store_->QuickCheck());
+    if (absl::Status w = c->store_->ProbeWrite(); !w.ok()) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "cannot write the database ", options.db_path, " (", w.message(),
+          "); check the file's and its folder's permissions and free space"));
+    }
     c->queue_ =
         std::make_unique<scheduler::TaskQueue>(c->clock_, options.lease);
     SKERRY_ASSIGN_OR_RETURN(
@@ -62,6 +77,14 @@ class CoordinatorImpl final : public Coordinator {
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
                             lineage::LineageServiceImpl::Open(options.db_path));
     c->admin_ = std::make_unique<api::AdminServiceImpl>(options.db_path);
+    c->metrics_ = std::make_unique<http::FleetMetrics>();
+    c->fleet_->set_metrics(c->metrics_.get());
+    c->parts_ = http::CoordinatorParts{
+        c->store_.get(),   c->queue_.get(), c->fleet_.get(), c->engine_.get(),
+        c->metrics_.get(), c->clock_,       options.db_path};
+    c->admin_->SetWorkerSource([parts = c->parts_](uint32_t limit) {
+      return http::ListWorkers(parts, limit);
+    });
     c->access_service_ = std::make_unique<api::AccessServiceImpl>(
         c->store_.get(), c->access_.get());
 
@@ -125,12 +148,30 @@ class CoordinatorImpl final : public Coordinator {
         health->SetServingStatus(name, true);
       }
     }
+    if (!options.http_address.empty()) {
+      http::HttpOptions web{options.http_address, options.chart_library,
+                            options.tls_cert_file, options.tls_key_file,
+                            options.tls_client_ca_file};
+      http::HttpSources sources;
+      sources.channel = c->InProcessChannel();
+      sources.access = c->access_.get();
+      sources.gauges = [parts = c->parts_] {
+        return http::GatherGauges(parts);
+      };
+      sources.counts = [metrics = c->metrics_.get()] { return metrics->Get(); };
+      SKERRY_ASSIGN_OR_RETURN(c->http_,
+                              http::HttpServer::Start(web, std::move(sources)));
+    }
     return c;
   }
 
   ~CoordinatorImpl() override { Shutdown(); }
 
   int port() const override { return port_; }
+  int http_port() const override {
+    return http_ != nullptr ? http_->port() : 0;
+  }
+  bool http_tls() const override { return http_ != nullptr && http_->tls(); }
   std::string AccessSummary() const override { return access_->Describe(); }
   std::string TransportSummary() const override { return transport_; }
 
@@ -144,12 +185,21 @@ class CoordinatorImpl final : public Coordinator {
   void Shutdown() override {
     {
       absl::MutexLock l(&mu_);
-      if (shut_down_) return;
+      if (shut_down_) {
+        // Idempotent: a second caller returns once the first has finished.
+        mu_.Await(absl::Condition(&stopped_));
+        return;
+      }
       shut_down_ = true;
     }
-    // Any part may be missing when Make() failed half-way.
+    // Any part may be missing when Make() failed half-way. The engine stops
+    // first: waiting Report calls are answered (UNAVAILABLE, results kept by
+    // the workers) and its in-flight commit is bounded (Engine::Shutdown), so
+    // no handler is left blocked when the server drains.
+    if (http_ != nullptr) http_->Shutdown();         // it calls the services
     if (queue_ != nullptr) queue_->Shutdown();       // wakes long polls
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
+    if (engine_ != nullptr) engine_->Shutdown();
     if (server_ != nullptr) {
       // Health checks answer NOT_SERVING from now on, for every service.
       if (grpc::HealthCheckServiceInterface* health =
@@ -158,9 +208,8 @@ class CoordinatorImpl final : public Coordinator {
       }
       server_->Shutdown(std::chrono::system_clock::now() +
                         std::chrono::seconds(5));
+      server_->Wait();
     }
-    if (engine_ != nullptr) engine_->Shutdown();
-    if (server_ != nullptr) server_->Wait();
     absl::MutexLock l(&mu_);
     stopped_ = true;
   }
@@ -187,8 +236,11 @@ class CoordinatorImpl final : public Coordinator {
   std::unique_ptr<api::ValidationServiceImpl> validations_;
   std::unique_ptr<auth::AccessControl> access_;
   std::unique_ptr<api::AccessServiceImpl> access_service_;
+  std::unique_ptr<http::FleetMetrics> metrics_;
+  http::CoordinatorParts parts_;
   std::vector<std::unique_ptr<auth::GatedService>> gates_;
-  std::unique_ptr<grpc::Server> server_;  // destroyed before what it serves
+  std::unique_ptr<grpc::Server> server_;    // destroyed before what it serves
+  std::unique_ptr<http::HttpServer> http_;  // destroyed before server_
   int port_ = 0;
   std::string transport_;
 
@@ -226,8 +278,10 @@ absl::StatusOr<auth::AccessControl::IssuedToken> InitFirstAdmin(
   }
   SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<store::OwnerLock> owner,
                           store::OwnerLock::Acquire(db_path));
+  store::Store::Options open;
+  open.initialise_empty_file = owner->created();
   SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<store::Store> store,
-                          store::Store::Open(db_path));
+                          store::Store::Open(db_path, open));
   return auth::AccessControl::InitAdmin(store.get(), Clock::Real(), name);
 }
 

@@ -41,8 +41,15 @@ struct CoordinatorOptions {
   std::string tls_cert_file;
   std::string tls_key_file;
   std::string tls_client_ca_file;
+  // The SQLite VFS the store is opened with; empty: the default. A test seam
+  // (tests/fault: a disk that fails on demand).
+  std::string sqlite_vfs;
   // What one run may ask for (common/spec.h); SubmitRun refuses more.
   SpecBudgets budgets = MachineSpecBudgets();
+  // The read-only web port (server/http/http_server.h): HOST:PORT, port 0
+  // picks a free one; empty (the default): none. It uses the TLS files above.
+  std::string http_address;
+  std::string chart_library = "/usr/share/javascript/chart.js/chart.min.js";
 };
 
 class Coordinator {
@@ -53,12 +60,18 @@ class Coordinator {
 
   // The bound TCP port (0 without a listener).
   virtual int port() const = 0;
+  // The web port (0 without --http), and whether it serves HTTPS.
+  virtual int http_port() const = 0;
+  virtual bool http_tls() const = 0;
   // One line each for the start log: access control, transport security.
   virtual std::string AccessSummary() const = 0;
   virtual std::string TransportSummary() const = 0;
   // A channel to this coordinator that does not touch the network.
   virtual std::shared_ptr<grpc::Channel> InProcessChannel() = 0;
-  // Stops serving; in-flight commits finish first.
+  // Stops serving: the engine first (its in-flight commit gets a deadline,
+  // then is interrupted and rolled back: nothing acknowledged is lost), then
+  // the server (5 s for calls in flight). Idempotent; a second caller returns
+  // when the first has finished. Bounded in time.
   virtual void Shutdown() = 0;
   // Blocks until Shutdown(), called from another thread (a signal handler's,
   // say), has finished.

@@ -40,6 +40,15 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
   --tls-key FILE        ... and this PEM private key
   --tls-client-ca FILE  require every client to present a certificate
                         signed by this PEM CA (needs --tls-cert)
+  --http HOST:PORT      also serve a read-only web page (live charts of the
+                        runs, the workers, queue and storage) and Prometheus
+                        metrics at /metrics on this address (port 0: a free
+                        one, printed at start); same tokens as gRPC (a
+                        viewer's is enough) and, with --tls-cert, HTTPS with
+                        the same certificate. Off by default. docs/report.md
+  --chart-library FILE  Chart.js for that page (default: Debian's
+                        libjs-chart.js, /usr/share/javascript/chart.js/
+                        chart.min.js)
   --max-watchers N      concurrent `watch` streams served; one more is
                         refused with RESOURCE_EXHAUSTED (default 256)
   --max-generation-genes N
@@ -118,6 +127,10 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
                            : arg == "--tls-key" ? f.options.tls_key_file
                                                 : f.options.tls_client_ca_file;
       field = *v;
+    } else if (arg == "--http" || arg == "--chart-library") {
+      absl::StatusOr<std::string> v = value(arg.c_str());
+      if (!v.ok()) return v.status();
+      (arg == "--http" ? f.options.http_address : f.options.chart_library) = *v;
     } else if (arg == "--db") {
       absl::StatusOr<std::string> v = value("--db");
       if (!v.ok()) return v.status();

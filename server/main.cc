@@ -1,6 +1,8 @@
-// skerry-coordinator: flags, the object graph, serve until SIGINT or SIGTERM.
+// skerry-coordinator: flags, the object graph, serve until SIGINT, SIGTERM
+// or SIGHUP.
 #include <pthread.h>
 #include <signal.h>
+#include <unistd.h>
 
 #include <cstdio>
 #include <string>
@@ -56,11 +58,14 @@ int main(int argc, char** argv) {
     std::printf("%s\n", admin->secret.c_str());
     return 0;
   }
-  // Signals are taken by one thread with sigwait, never by a handler.
+  // Signals are taken with sigwait, never by a handler. SIGHUP (the terminal
+  // closed, or `kill -HUP`) stops the coordinator like SIGTERM: it has no
+  // configuration to reload and logs to stderr (docs/operations.md).
   sigset_t signals;
   sigemptyset(&signals);
   sigaddset(&signals, SIGINT);
   sigaddset(&signals, SIGTERM);
+  sigaddset(&signals, SIGHUP);
   pthread_sigmask(SIG_BLOCK, &signals, nullptr);
 
   absl::StatusOr<std::unique_ptr<skerry::server::Coordinator>> c =
@@ -72,16 +77,33 @@ int main(int argc, char** argv) {
   }
   std::printf("skerry-coordinator: listening on port %d (database %s)\n",
               (*c)->port(), flags->options.db_path.c_str());
+  if ((*c)->http_port() != 0) {
+    std::printf("skerry-coordinator: web page on %s port %d\n",
+                (*c)->http_tls() ? "https" : "http", (*c)->http_port());
+  }
   std::printf("skerry-coordinator: %s\nskerry-coordinator: transport: %s\n",
               (*c)->AccessSummary().c_str(), (*c)->TransportSummary().c_str());
   std::fflush(stdout);
-  std::thread waiter([&signals, &c] {
-    int sig = 0;
-    sigwait(&signals, &sig);
-    std::fprintf(stderr, "skerry-coordinator: signal %d, shutting down\n", sig);
-    (*c)->Shutdown();
-  });
-  (*c)->Wait();
-  waiter.detach();
+  // The main thread alone owns shutdown: it waits for the signal, stops the
+  // coordinator (bounded in time, Coordinator::Shutdown), destroys it, and
+  // only then returns; no other thread touches it meanwhile.
+  int sig = 0;
+  while (sigwait(&signals, &sig) != 0) {
+  }
+  std::fprintf(stderr,
+               "skerry-coordinator: signal %d, shutting down (signal again to "
+               "exit at once)\n",
+               sig);
+  std::thread([signals] {
+    int again = 0;
+    while (sigwait(&signals, &again) != 0) {
+    }
+    std::fprintf(stderr, "skerry-coordinator: signal %d again, exiting now\n",
+                 again);
+    _exit(128 + again);
+  }).detach();
+  (*c)->Shutdown();
+  c->reset();
+  std::fprintf(stderr, "skerry-coordinator: stopped\n");
   return 0;
 }

@@ -22,10 +22,10 @@
 
 namespace {
 
-// SIGINT and SIGTERM are blocked in every thread and taken by this one with
-// sigwait, so no work happens inside a signal handler. The first signal stops
-// the worker promptly (Worker::Stop: evaluators killed, results reported, the
-// rest handed back); a second one kills the evaluators and exits at once.
+// SIGINT, SIGTERM and SIGHUP are blocked in every thread and taken by this one
+// with sigwait, so no work happens inside a signal handler. The first signal
+// stops the worker promptly (Worker::Stop: evaluators killed, results reported,
+// the rest handed back); a second one kills the evaluators and exits at once.
 class SignalWatcher {
  public:
   explicit SignalWatcher(skerry::worker::Worker* worker) : worker_(worker) {
@@ -50,6 +50,10 @@ class SignalWatcher {
     sigemptyset(&set);
     sigaddset(&set, SIGINT);
     sigaddset(&set, SIGTERM);
+    // A hangup (the terminal closed, or `kill -HUP`) stops it the same way:
+    // it has no configuration to reload and logs to stderr
+    // (docs/operations.md).
+    sigaddset(&set, SIGHUP);
     return set;
   }
 

@@ -456,6 +456,8 @@ absl::StatusOr<double> ProcessEvaluator::Evaluate(
     absl::Span<const double> genes, uint64_t seed) {
   std::vector<double> scores;
   scores.reserve(options_.episodes);
+  // Each metric's mean over the episodes that reported it.
+  std::map<std::string, std::pair<double, int>> sums;
   for (uint32_t e = 0; e < options_.episodes; ++e) {
     EvaluationRequest request;
     request.mutable_genes()->Add(genes.begin(), genes.end());
@@ -465,6 +467,14 @@ absl::StatusOr<double> ProcessEvaluator::Evaluate(
     absl::StatusOr<double> score = Score(std::move(request));
     if (!score.ok()) return score.status();
     scores.push_back(*score);
+    for (const auto& [name, value] : last_metrics_) {
+      sums[name].first += value;
+      ++sums[name].second;
+    }
+  }
+  last_metrics_.clear();
+  for (const auto& [name, sum] : sums) {
+    last_metrics_[name] = sum.first / sum.second;
   }
   return AggregateEpisodes(options_.aggregate, std::move(scores));
 }

@@ -120,7 +120,8 @@ class ProcessEvaluator : public Evaluator {
   int failures() const { return failures_; }
   // The running child's pid, or -1.
   pid_t child_pid() const;
-  // The metrics of the last successful response.
+  // The metrics of the last successful Evaluate (each the mean over its
+  // episodes) or EvaluateCase.
   const std::map<std::string, double>& last_metrics() const {
     return last_metrics_;
   }

@@ -9,6 +9,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/types/span.h"
+#include "common/metric_bounds.h"
 #include "common/validation.h"
 #include "worker/process_evaluator.h"
 
@@ -150,6 +151,20 @@ skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,
         absl::StrCat("evaluator returned a non-finite score (", *score, ")"));
   } else {
     result.set_score(*score);
+    // An evaluator in a child process may return named side measurements.
+    auto* process =
+        evaluator.ok() ? dynamic_cast<ProcessEvaluator*>(*evaluator) : nullptr;
+    if (process != nullptr && task.kind() == skerry::v1::TASK_EVALUATE &&
+        !process->last_metrics().empty()) {
+      absl::Status bounded = CheckMetrics(process->last_metrics());
+      if (!bounded.ok()) {
+        result.clear_score();
+        result.set_error(std::string(bounded.message()));
+      } else {
+        result.mutable_metrics()->insert(process->last_metrics().begin(),
+                                         process->last_metrics().end());
+      }
+    }
   }
   return result;
 }

@@ -59,4 +59,23 @@ grpc::Status AdminServiceImpl::Backup(
   return grpc::Status::OK;
 }
 
+grpc::Status AdminServiceImpl::ListWorkers(
+    grpc::ServerContext* ctx, const skerry::v1::ListWorkersRequest* req,
+    skerry::v1::ListWorkersResponse* resp) {
+  if (req->limit() > kMaxWorkerLimit) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        absl::StrCat("limit: at most ", kMaxWorkerLimit,
+                                     ", got ", req->limit()));
+  }
+  if (!worker_source_) {
+    return grpc::Status(grpc::StatusCode::UNIMPLEMENTED,
+                        "this coordinator keeps no worker list");
+  }
+  absl::StatusOr<skerry::v1::ListWorkersResponse> workers =
+      worker_source_(req->limit() == 0 ? kDefaultWorkerLimit : req->limit());
+  if (!workers.ok()) return ToGrpc(workers.status());
+  *resp = *std::move(workers);
+  return grpc::Status::OK;
+}
+
 }  // namespace skerry::api

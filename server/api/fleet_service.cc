@@ -67,7 +67,11 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
   w.sandbox = req->sandbox();
   w.joined_ms = w.last_seen_ms = clock_->WallMillis();
   absl::StatusOr<int64_t> id = store_->RegisterWorker(w);
-  if (!id.ok()) return ToGrpc(id.status());
+  if (!id.ok()) {
+    // Held, logged and shown like any failed commit (engine.h).
+    engine_->NoteStorageTrouble(id.status());
+    return ToGrpc(id.status());
+  }
   {
     absl::MutexLock l(&mu_);
     const absl::Time now = clock_->Now();
@@ -157,14 +161,22 @@ grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
     x->set_message(std::string(bad.message()));
   }
   resp->set_ignored(refused);
-  if (results.empty()) return grpc::Status::OK;
-  absl::StatusOr<engine::ReportOutcome> outcome =
-      engine_->Report(static_cast<int64_t>(req->worker_id()), results);
-  if (!outcome.ok()) return ToGrpc(outcome.status());
-  resp->set_accepted(outcome->accepted);
-  resp->set_ignored(refused + outcome->ignored);
-  for (skerry::v1::RejectedResult& r : outcome->rejected) {
-    *resp->add_rejected() = std::move(r);
+  const absl::Time arrived = clock_->Now();
+  if (!results.empty()) {
+    absl::StatusOr<engine::ReportOutcome> outcome =
+        engine_->Report(static_cast<int64_t>(req->worker_id()), results);
+    if (!outcome.ok()) return ToGrpc(outcome.status());
+    resp->set_accepted(outcome->accepted);
+    resp->set_ignored(refused + outcome->ignored);
+    for (skerry::v1::RejectedResult& r : outcome->rejected) {
+      *resp->add_rejected() = std::move(r);
+    }
+  }
+  if (metrics_ != nullptr) {
+    const absl::Time now = clock_->Now();
+    metrics_->NoteReport(
+        static_cast<int64_t>(req->worker_id()), results, resp->accepted(),
+        {resp->rejected().begin(), resp->rejected().end()}, now - arrived, now);
   }
   return grpc::Status::OK;
 }

@@ -22,6 +22,7 @@
 #include "absl/time/time.h"
 #include "common/clock.h"
 #include "server/engine/engine.h"
+#include "server/http/fleet_metrics.h"
 #include "server/scheduler/task_queue.h"
 #include "server/store/store.h"
 #include "skerry/v1/fleet.grpc.pb.h"
@@ -60,6 +61,9 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
 
   // Workers heard from within the last `within`.
   int ActiveWorkers(absl::Duration within);
+  // Counts each Report's results there (server/http/fleet_metrics.h); call
+  // before serving. nullptr: count nothing.
+  void set_metrics(http::FleetMetrics* metrics) { metrics_ = metrics; }
 
  private:
   grpc::Status CheckWorker(uint64_t worker_id);
@@ -72,6 +76,7 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
   scheduler::TaskQueue* const queue_;
   Clock* const clock_;
   const absl::Duration max_wait_;
+  http::FleetMetrics* metrics_ = nullptr;  // set before serving
 
   absl::Mutex mu_;
   std::map<uint64_t, absl::Time> last_seen_ ABSL_GUARDED_BY(mu_);

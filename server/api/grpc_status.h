@@ -19,6 +19,12 @@
 
 namespace skerry::api {
 
+// Sent as the error details of every UNAVAILABLE the coordinator itself
+// answers (storage trouble, shutting down), so that a client can tell "the
+// coordinator answered: unavailable" from "nothing answered", which gRPC
+// reports with the same code (cli/client.h, IsUnreachable).
+inline constexpr char kAnsweredUnavailable[] = "skerry-coordinator-answered";
+
 inline constexpr size_t kMaxStatusMessageBytes = 1024;
 
 inline grpc::Status ToGrpc(const absl::Status& s) {
@@ -27,6 +33,10 @@ inline grpc::Status ToGrpc(const absl::Status& s) {
   if (message.size() < s.message().size()) {
     absl::StrAppend(&message, " [", s.message().size() - message.size(),
                     " more bytes cut]");
+  }
+  if (absl::IsUnavailable(s)) {
+    return grpc::Status(grpc::StatusCode::UNAVAILABLE, message,
+                        kAnsweredUnavailable);
   }
   return grpc::Status(static_cast<grpc::StatusCode>(s.code()), message);
 }

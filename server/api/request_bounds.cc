@@ -31,8 +31,15 @@ const std::vector<FieldBound>* BuildTable() {
       {"skerry.v1.HandBackRequest.task_ids", 100000, 0, ""},
       {"skerry.v1.TaskResult.error", 0, 1 * kMiB,
        "FleetService.Report: a longer error rejects that result alone"},
+      {"skerry.v1.TaskResult.metrics", 0, 0,
+       "the engine (common/metric_bounds.h: 32 metrics, names of 64 "
+       "bytes): more makes that attempt a failed one, alone"},
+      {"skerry.v1.TaskResult.MetricsEntry.key", 0, 0,
+       "the engine (common/metric_bounds.h), with TaskResult.metrics"},
       // RunService
       {"skerry.v1.SubmitRunRequest.spec_text", 0, 1 * kMiB, ""},
+      {"skerry.v1.SubmitRunRequest.request_id", 0, 128,
+       "RunService.SubmitRun: printable ASCII, no spaces"},
       {"skerry.v1.SubmitRunRequest.spec", 0, 0,
        "the coordinator's budgets (--max-name-bytes, --max-evaluator-bytes, "
        "--max-task-bytes, --max-generation-genes) and ValidateSpec"},

@@ -1,5 +1,7 @@
 #include "server/api/run_service.h"
 
+#include <algorithm>
+
 #include "absl/strings/str_cat.h"
 #include "server/api/grpc_status.h"
 #include "server/api/validation_service.h"
@@ -8,6 +10,7 @@ namespace skerry::api {
 namespace {
 
 constexpr size_t kMaxSpecTextBytes = 1 << 20;
+constexpr size_t kMaxRequestIdBytes = 128;
 
 int64_t RunId(uint64_t id) { return static_cast<int64_t>(id); }
 
@@ -48,6 +51,13 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
         grpc::StatusCode::INVALID_ARGUMENT,
         absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes"));
   }
+  if (req->request_id().size() > kMaxRequestIdBytes ||
+      !std::all_of(req->request_id().begin(), req->request_id().end(),
+                   [](char c) { return c > ' ' && c < 127; })) {
+    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
+                        absl::StrCat("request_id: up to ", kMaxRequestIdBytes,
+                                     " printable ASCII characters, no spaces"));
+  }
   // The coordinator's budgets, before the engine allocates anything.
   absl::StatusOr<skerry::v1::RunSpec> prepared =
       PrepareSpec(req->spec(), budgets_);
@@ -55,9 +65,25 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
   std::optional<auth::Caller> caller = access_->CallerOf(ctx);
   const std::string owner =
       caller.has_value() ? caller->principal : auth::kLocalPrincipal;
-  absl::StatusOr<store::RunRecord> rec = engine_->Submit(
-      *std::move(prepared), req->spec_text(), owner, req->priority());
-  if (!rec.ok()) return ToGrpc(rec.status());
+  // A retried submission returns the run its first attempt made.
+  auto earlier = [&]() -> absl::StatusOr<std::optional<int64_t>> {
+    if (req->request_id().empty()) return std::optional<int64_t>();
+    return store_->FindRunByRequest(owner, req->request_id());
+  };
+  absl::StatusOr<std::optional<int64_t>> first = earlier();
+  if (!first.ok()) return ToGrpc(first.status());
+  if (first->has_value()) return Summarise(**first, resp->mutable_run());
+  absl::StatusOr<store::RunRecord> rec =
+      engine_->Submit(*std::move(prepared), req->spec_text(), owner,
+                      req->priority(), req->request_id());
+  if (!rec.ok()) {
+    // Two attempts of one submission raced: the loser returns the winner's.
+    first = earlier();
+    if (first.ok() && first->has_value()) {
+      return Summarise(**first, resp->mutable_run());
+    }
+    return ToGrpc(rec.status());
+  }
   access_->Note(
       ctx, rec->id,
       absl::StrCat("run ", rec->id, " '", rec->name, "' owned by ", owner));
@@ -152,6 +178,11 @@ grpc::Status RunServiceImpl::GetChampion(
         absl::StrCat("run ", req->run_id(), " has no evaluated genome yet"));
   }
   *resp->mutable_genome() = ToGenomeProto(**best);
+  absl::StatusOr<std::map<std::string, double>> metrics =
+      store_->GetGenomeMetrics((*best)->id);
+  if (!metrics.ok()) return ToGrpc(metrics.status());
+  resp->mutable_genome()->mutable_metrics()->insert(metrics->begin(),
+                                                    metrics->end());
   return grpc::Status::OK;
 }
 
@@ -168,6 +199,8 @@ grpc::Status RunServiceImpl::GetHistory(
   absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>> validated =
       store_->ChampionValidationScores(rec->id);
   if (!validated.ok()) return ToGrpc(validated.status());
+  auto metric_means = store_->MetricMeans(rec->id);
+  if (!metric_means.ok()) return ToGrpc(metric_means.status());
   for (const store::StatsRecord& s : *stats) {
     skerry::v1::GenerationStats* g = resp->add_generations();
     g->set_island(s.island);
@@ -182,6 +215,10 @@ grpc::Status RunServiceImpl::GetHistory(
     if (auto v = validated->find({s.island, s.generation});
         v != validated->end()) {
       g->set_validation_score(v->second);
+    }
+    if (auto m = metric_means->find({s.island, s.generation});
+        m != metric_means->end()) {
+      g->mutable_metric_means()->insert(m->second.begin(), m->second.end());
     }
   }
   return grpc::Status::OK;

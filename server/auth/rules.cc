@@ -92,6 +92,7 @@ std::map<std::string, Rule> Build() {
       {lineage + "GetAttribution", Make<v1::AttributionRequest>(P::kRead)},
 
       {admin + "Backup", AboutRun<v1::BackupRequest>(P::kAdmin, true)},
+      {admin + "ListWorkers", Make<v1::ListWorkersRequest>(P::kRead)},
 
       {access + "CreateToken", Make<v1::CreateTokenRequest>(P::kAdmin, true)},
       {access + "ListTokens", Make<v1::ListTokensRequest>(P::kAdmin)},

@@ -5,12 +5,15 @@
 #include <cstdio>
 #include <iterator>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "common/metric_bounds.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/engine/breeder.h"
 #include "server/engine/island_step.h"
 #include "server/engine/topology.h"
+#include "server/store/row_sums.h"
 
 namespace skerry::engine {
 namespace {
@@ -65,6 +68,9 @@ absl::StatusOr<std::unique_ptr<Engine>> Engine::Open(
     e->ApplyReports(jobs, answer);
   };
   callbacks.idle = [e] { e->Idle(); };
+  // A commit still running at shutdown's deadline is interrupted: its
+  // transaction rolls back, its results were not acknowledged.
+  callbacks.interrupt = [store] { store->Interrupt(); };
   engine->committer_ = std::make_unique<GroupCommit>(std::move(callbacks),
                                                      clock, absl::Seconds(1));
   engine->committer_->Start();
@@ -81,10 +87,61 @@ absl::Status Engine::Load() {
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs,
                           store_->ListRuns());
   for (const store::RunRecord& r : runs) {
+    if (!r.damage.ok()) {
+      MarkDamaged(r.id, r.damage, &r);
+      continue;
+    }
     if (!IsActive(r.state)) continue;
-    SKERRY_RETURN_IF_ERROR(LoadRun(r));
+    absl::Status s = LoadRun(r);
+    if (absl::IsDataLoss(s)) {
+      MarkDamaged(r.id, s, &r);
+      continue;
+    }
+    SKERRY_RETURN_IF_ERROR(s);
   }
   return absl::OkStatus();
+}
+
+void Engine::MarkDamaged(int64_t run_id, const absl::Status& why,
+                         const store::RunRecord* record) {
+  if (damaged_.count(run_id) != 0) return;
+  Damaged d;
+  auto it = runs_.find(run_id);
+  if (it != runs_.end()) {
+    d.record = it->second->record;
+  } else if (record != nullptr) {
+    d.record = *record;
+  } else {
+    d.record.id = run_id;
+  }
+  // SQLite's own findings do not say whose rows they are in.
+  const std::string prefix = absl::StrCat("run ", run_id, " ");
+  d.why = absl::StartsWith(why.message(), prefix)
+              ? why
+              : absl::Status(why.code(),
+                             absl::StrCat("run ", run_id,
+                                          " is damaged: ", why.message()));
+  std::fprintf(stderr,
+               "skerry-coordinator: run %lld is damaged and stops: %s; the "
+               "other runs go on\n",
+               static_cast<long long>(run_id), why.ToString().c_str());
+  queue_->RemoveRun(run_id);
+  runs_.erase(run_id);
+  damaged_[run_id] = std::move(d);
+  NotifyChange();
+}
+
+void Engine::NoteRunWriteFailure(int64_t run_id, const absl::Status& s) {
+  if (absl::IsDataLoss(s)) {
+    MarkDamaged(run_id, s);
+  } else {
+    NoteWriteFailure(s);
+  }
+}
+
+void Engine::NoteStorageTrouble(const absl::Status& s) {
+  absl::MutexLock l(&mu_);
+  NoteWriteFailure(s);
 }
 
 absl::Status Engine::LoadRun(const store::RunRecord& record) {
@@ -126,6 +183,19 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
     SKERRY_ASSIGN_OR_RETURN(
         island.current,
         store_->GetGeneration(record.id, ir.index, ir.generation));
+    // A generation is written whole (invariant 3): a short one is damage (a
+    // lost index entry, say), not a generation to finish with fewer genomes.
+    const uint32_t pop = IslandPopulation(record.spec, ir.index);
+    bool whole = island.current.size() == pop;
+    for (size_t i = 0; whole && i < island.current.size(); ++i) {
+      whole = island.current[i].slot == i;
+    }
+    if (!whole) {
+      return store::DamagedRow(
+          record.id, absl::StrCat("island ", ir.index, " generation ",
+                                  ir.generation, " (", island.current.size(),
+                                  " genomes read, ", pop, " expected)"));
+    }
     if (island.done) {
       island.completed[island.generation] = std::move(island.current);
       island.current.clear();
@@ -198,7 +268,8 @@ absl::Status Engine::SetPriority(int64_t run_id, uint32_t priority) {
 absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
                                                 std::string spec_text,
                                                 std::string owner,
-                                                uint32_t priority) {
+                                                uint32_t priority,
+                                                std::string request_id) {
   if (priority == 0) priority = scheduler::kMinWeight;
   SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
   SKERRY_ASSIGN_OR_RETURN(RunSpec prepared, PrepareSpec(std::move(spec)));
@@ -219,6 +290,7 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   store::RunRecord rec;
   rec.name = prepared.name();
   rec.owner = std::move(owner);
+  rec.request_id = std::move(request_id);
   rec.priority = static_cast<int32_t>(priority);
   rec.spec = prepared;
   rec.spec_text = std::move(spec_text);
@@ -304,6 +376,7 @@ absl::StatusOr<ReportOutcome> Engine::Report(
 void Engine::Idle() {
   absl::MutexLock l(&mu_);
   RetryWrites();
+  // While writes fail there is nothing to retry or breed.
   if (!write_problem_.ok()) return;
   // Retry what a failed write left undone.
   std::vector<int64_t> ids;
@@ -313,9 +386,9 @@ void Engine::Idle() {
     if (it == runs_.end()) continue;
     absl::Status s = Advance(*it->second);
     if (!s.ok()) {
-      NoteWriteFailure(s);
       std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
                    s.ToString().c_str());
+      NoteRunWriteFailure(id, s);
     }
   }
 }
@@ -335,7 +408,11 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
   std::vector<ReportOutcome> outcomes(jobs.size());
   for (size_t j = 0; j < jobs.size(); ++j) {
     for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
-      const bool failed = !r.error().empty() || !std::isfinite(r.score());
+      // Metrics beyond their bounds make the attempt a failed one.
+      const absl::Status metrics =
+          r.error().empty() ? CheckMetrics(r.metrics()) : absl::OkStatus();
+      const bool failed =
+          !r.error().empty() || !std::isfinite(r.score()) || !metrics.ok();
       auto reject = [&](const absl::Status& why) {
         ++outcomes[j].ignored;
         skerry::v1::RejectedResult* x = &outcomes[j].rejected.emplace_back();
@@ -381,13 +458,15 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
       u.attempts = std::max({info->attempts, r.attempt(), 1u});
       u.eval_seconds = r.eval_seconds();
       if (failed) {
-        u.error = FailureText(r);
+        u.error =
+            metrics.ok() ? FailureText(r) : std::string(metrics.message());
         u.state = info->attempts >= run.record.spec.max_attempts()
                       ? skerry::v1::FAILED
                       : skerry::v1::PENDING;
       } else {
         u.state = skerry::v1::EVALUATED;
         u.score = r.score();
+        u.metrics.insert(r.metrics().begin(), r.metrics().end());
       }
       applied.push_back({&run, info->island, info->slot, std::move(u)});
       ++outcomes[j].accepted;
@@ -401,9 +480,31 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
                                : store_->CommitResults(updates, validated);
   if (!committed.ok()) {
     queue_->Unclaim(claimed);
-    NoteWriteFailure(committed);
     std::fprintf(stderr, "results not committed: %s\n",
                  committed.ToString().c_str());
+    if (absl::IsDataLoss(committed)) {
+      // Damage, not a full disk: find the runs it is in and stop those.
+      std::vector<int64_t> ids;
+      for (const Applied& a : applied) ids.push_back(a.run->record.id);
+      std::sort(ids.begin(), ids.end());
+      ids.erase(std::unique(ids.begin(), ids.end()), ids.end());
+      std::vector<int64_t> damaged;
+      for (int64_t id : ids) {
+        absl::Status v = store_->VerifyActiveRun(id);
+        if (absl::IsDataLoss(v)) {
+          MarkDamaged(id, v);
+          damaged.push_back(id);
+        }
+      }
+      // Damage no run's rows show (an index page, say): every run of the
+      // batch stops, or the batch would fail again forever.
+      if (damaged.empty()) {
+        for (int64_t id : ids) MarkDamaged(id, committed);
+      }
+      applied.clear();
+    } else {
+      NoteWriteFailure(committed);
+    }
   } else {
     std::vector<int64_t> done, retry;
     for (Applied& a : applied) {
@@ -464,9 +565,9 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
     if (it == runs_.end()) continue;
     absl::Status s = Advance(*it->second);
     if (!s.ok()) {
-      NoteWriteFailure(s);
       std::fprintf(stderr, "run %lld: %s\n", static_cast<long long>(id),
                    s.ToString().c_str());
+      NoteRunWriteFailure(id, s);
     }
   }
   NotifyChange();
@@ -491,7 +592,6 @@ void Engine::NoteWriteFailure(const absl::Status& s) {
     case absl::StatusCode::kResourceExhausted:
     case absl::StatusCode::kUnavailable:
     case absl::StatusCode::kInternal:
-    case absl::StatusCode::kDataLoss:
       break;
     default:
       return;  // not the storage's fault
@@ -782,9 +882,19 @@ uint64_t Engine::WaitForChange(uint64_t seen, absl::Time deadline) {
   return changes_;
 }
 
+std::string Engine::StorageProblem() {
+  absl::MutexLock l(&mu_);
+  return std::string(write_problem_.message());
+}
+
 absl::StatusOr<skerry::v1::RunSummary> Engine::Summary(int64_t run_id) {
   absl::MutexLock l(&mu_);
-  return SummaryLocked(run_id);
+  absl::StatusOr<skerry::v1::RunSummary> s = SummaryLocked(run_id);
+  if (absl::IsDataLoss(s.status())) {
+    MarkDamaged(run_id, s.status());
+    s = SummaryLocked(run_id);
+  }
+  return s;
 }
 
 absl::StatusOr<std::vector<skerry::v1::RunSummary>> Engine::ListSummaries() {
@@ -793,14 +903,34 @@ absl::StatusOr<std::vector<skerry::v1::RunSummary>> Engine::ListSummaries() {
                           store_->ListRuns());
   std::vector<skerry::v1::RunSummary> out;
   for (const store::RunRecord& r : runs) {
-    SKERRY_ASSIGN_OR_RETURN(skerry::v1::RunSummary s, SummaryLocked(r.id));
-    out.push_back(std::move(s));
+    if (!r.damage.ok()) MarkDamaged(r.id, r.damage, &r);
+    absl::StatusOr<skerry::v1::RunSummary> s = SummaryLocked(r.id);
+    if (absl::IsDataLoss(s.status())) {
+      // One damaged run does not hide the others.
+      MarkDamaged(r.id, s.status(), &r);
+      s = SummaryLocked(r.id);
+    }
+    if (!s.ok()) return s.status();
+    out.push_back(*std::move(s));
   }
   return out;
 }
 
 absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
   skerry::v1::RunSummary s;
+  if (auto d = damaged_.find(run_id); d != damaged_.end()) {
+    const store::RunRecord& rec = d->second.record;
+    s.set_id(static_cast<uint64_t>(run_id));
+    s.set_name(rec.name);
+    s.set_owner(rec.owner);
+    s.set_state(skerry::v1::FAILED_RUN);
+    s.set_evaluations(static_cast<uint64_t>(rec.evaluations));
+    s.set_created_unix_ms(rec.created_ms);
+    s.set_updated_unix_ms(rec.updated_ms);
+    s.set_priority(static_cast<uint32_t>(rec.priority));
+    s.set_message(std::string(d->second.why.message()));
+    return s;
+  }
   auto it = runs_.find(run_id);
   store::RunRecord stored;
   const store::RunRecord* rec = nullptr;

@@ -55,11 +55,21 @@
 // same queue; they never feed back into the search (the digest and the genomes
 // do not depend on them), and they outlive the run's search.
 //
-// Storage trouble (disk full, I/O error): a failed commit changes nothing in
-// the cache; the engine stops handing out work (TaskQueue::SetHeld), says why
-// in every run summary, keeps answering reads, probes the database every
-// second of the engine's clock (the committer's tick), and resumes by itself
-// when a write succeeds. Workers keep their results and report them again.
+// Storage trouble (disk full, I/O error, a file it may not write): a failed
+// commit changes nothing in the cache; the engine stops handing out work
+// (TaskQueue::SetHeld), says why in every run summary and on stderr, keeps
+// answering reads, probes the database every second of the engine's clock (the
+// committer's tick), and resumes by itself when a write succeeds. Workers keep
+// their results and report them again. Every write path goes through this, the
+// fleet's Join included (NoteStorageTrouble).
+//
+// Damage is not storage trouble. A run whose rows fail their checksums
+// (store/row_sums.h) or whose pages SQLite finds corrupt (DATA_LOSS) is marked
+// damaged, in memory only (writing to a damaged file could spread the damage):
+// its work stops, its summary says FAILED with the damage named, and the
+// other runs go on. At Open, damaged runs are found by reading what the cache
+// needs; later, by any read or commit of theirs that fails with DATA_LOSS.
+// The damage stays until the run is restored (docs/operations.md).
 //
 // Thread safety: every public method may be called from any thread.
 #ifndef SKERRY_SERVER_ENGINE_ENGINE_H_
@@ -96,11 +106,14 @@ class Engine {
   // Validates and stores a new run with generation 0 of every island, then
   // queues its tasks. InvalidArgument names the bad field. `priority` is the
   // run's share weight in the task queue, from scheduler::kMinWeight to
-  // kMaxWeight; 0 means kMinWeight (docs/sharing.md).
+  // kMaxWeight; 0 means kMinWeight (docs/sharing.md). A non-empty
+  // `request_id` is stored with the run (unique per owner: a second run with
+  // the same pair is refused with FailedPrecondition).
   absl::StatusOr<store::RunRecord> Submit(skerry::v1::RunSpec spec,
                                           std::string spec_text,
                                           std::string owner,
-                                          uint32_t priority = 0);
+                                          uint32_t priority = 0,
+                                          std::string request_id = "");
   // Stores a run's new priority (1 to 1000, else InvalidArgument naming the
   // field) and gives the queue the new weight. Any run, ended ones too.
   absl::Status SetPriority(int64_t run_id, uint32_t priority);
@@ -121,14 +134,21 @@ class Engine {
 
   // The run as the user API shows it.
   absl::StatusOr<skerry::v1::RunSummary> Summary(int64_t run_id);
+  // Why work is held because the database cannot be written; "" when writes
+  // succeed.
+  std::string StorageProblem();
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> ListSummaries();
 
   // A counter that grows whenever any run changes; waits until it exceeds
   // `seen` or `deadline` passes (real time), and returns its value.
   uint64_t WaitForChange(uint64_t seen, absl::Time deadline);
 
+  // A write outside the engine (the fleet's Join, say) failed: storage
+  // trouble is held and shown as if a commit had failed; other codes pass.
+  void NoteStorageTrouble(const absl::Status& s) ABSL_LOCKS_EXCLUDED(mu_);
+
   // Stops the committer after the batch in flight. Report calls made later
-  // fail.
+  // fail. Idempotent; any thread.
   void Shutdown();
 
  private:
@@ -218,6 +238,15 @@ class Engine {
   absl::StatusOr<skerry::v1::RunSummary> SummaryLocked(int64_t run_id)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void NotifyChange() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Stops the run's work and remembers why (see "Damage" above). `record`:
+  // what is known of the run when it is not active.
+  void MarkDamaged(int64_t run_id, const absl::Status& why,
+                   const store::RunRecord* record = nullptr)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // A commit for run `run_id` failed: damage marks it, storage trouble holds
+  // the work (NoteWriteFailure).
+  void NoteRunWriteFailure(int64_t run_id, const absl::Status& s)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // A write failed for a reason of the storage (full disk, I/O error, busy):
   // stop handing out work until ProbeWrite succeeds. Other errors pass.
   void NoteWriteFailure(const absl::Status& s)
@@ -236,6 +265,11 @@ class Engine {
   std::map<int64_t, PendingValidation> validations_ ABSL_GUARDED_BY(mu_);
   uint64_t changes_ ABSL_GUARDED_BY(mu_) = 0;
   absl::Status write_problem_ ABSL_GUARDED_BY(mu_);  // OK: writes succeed
+  struct Damaged {
+    store::RunRecord record;
+    absl::Status why;
+  };
+  std::map<int64_t, Damaged> damaged_ ABSL_GUARDED_BY(mu_);
 
   std::unique_ptr<GroupCommit> committer_;
 };

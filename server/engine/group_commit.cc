@@ -1,5 +1,6 @@
 #include "server/engine/group_commit.h"
 
+#include <cstdio>
 #include <utility>
 
 namespace skerry::engine {
@@ -22,9 +23,28 @@ absl::StatusOr<ReportOutcome> GroupCommit::Submit(
 }
 
 void GroupCommit::Shutdown() {
+  absl::MutexLock once(&shutdown_mu_);
   {
     absl::MutexLock l(&mu_);
     stopping_ = true;
+    // The batch in flight gets a deadline (real time: a hung disk does not
+    // follow a test's clock); then its statement is interrupted and its
+    // transaction rolled back. Its results were not acknowledged, so the
+    // workers report them again to the next coordinator.
+    auto exited = [this]()
+                      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) { return exited_; };
+    for (int attempt = 0; attempt <= kShutdownInterrupts && thread_.joinable();
+         ++attempt) {
+      if (mu_.AwaitWithTimeout(
+              absl::Condition(&exited),
+              attempt == 0 ? shutdown_grace_ : absl::Seconds(1))) {
+        break;
+      }
+      std::fprintf(stderr,
+                   "skerry-coordinator: the commit in flight did not end in "
+                   "time; interrupting it\n");
+      if (callbacks_.interrupt) callbacks_.interrupt();
+    }
   }
   if (thread_.joinable()) thread_.join();
 }
@@ -55,7 +75,7 @@ void GroupCommit::Loop() {
       callbacks_.apply(jobs, answer);
       if (!answered) answer();  // never leave a caller blocked
     }
-    callbacks_.idle();
+    if (!stopping) callbacks_.idle();
     if (stopping) {
       absl::MutexLock l(&mu_);
       for (Waiting* w : waiting_) {
@@ -63,6 +83,7 @@ void GroupCommit::Loop() {
         w->done = true;
       }
       waiting_.clear();
+      exited_ = true;
       return;
     }
   }

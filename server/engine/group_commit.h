@@ -9,7 +9,8 @@
 // committed.
 // Between batches, and at least every `tick` when nothing arrives, the
 // committer runs `idle` (the engine retries what a failed write left undone
-// and applies wall-time limits).
+// and applies wall-time limits); not once shutting down, so that a shutdown
+// does not wait for a failing disk.
 //
 // Thread safety: Submit and Shutdown from any thread; the callbacks run on the
 // committer thread only, never concurrently with each other. `answer` takes
@@ -57,10 +58,20 @@ class GroupCommit {
                        const std::function<void()>& answer)>
         apply;
     std::function<void()> idle;
+    // Makes the `apply` in flight fail soon (the store's interrupt): for a
+    // shutdown that must not wait for a hung disk. Any thread; may be empty.
+    std::function<void()> interrupt;
   };
+  static constexpr absl::Duration kShutdownGrace = absl::Seconds(10);
+  static constexpr int kShutdownInterrupts = 9;
+
   // The tick runs on `clock`, so a test's FakeClock drives it.
-  GroupCommit(Callbacks callbacks, Clock* clock, absl::Duration tick)
-      : callbacks_(std::move(callbacks)), clock_(clock), tick_(tick) {}
+  GroupCommit(Callbacks callbacks, Clock* clock, absl::Duration tick,
+              absl::Duration shutdown_grace = kShutdownGrace)
+      : callbacks_(std::move(callbacks)),
+        clock_(clock),
+        tick_(tick),
+        shutdown_grace_(shutdown_grace) {}
   ~GroupCommit() { Shutdown(); }
 
   // Starts the committer thread.
@@ -72,7 +83,11 @@ class GroupCommit {
       int64_t worker_id, const std::vector<skerry::v1::TaskResult>& results);
 
   // Stops the committer after the batch in flight; batches still waiting are
-  // answered Unavailable, and later Submit calls fail.
+  // answered Unavailable, and later Submit calls fail. Bounded: a batch still
+  // in flight after the shutdown grace (real time) is interrupted
+  // (callbacks.interrupt), again every second, at most kShutdownInterrupts
+  // times; then the thread is joined. Idempotent; a second caller waits until
+  // the first has joined.
   void Shutdown();
 
   // How many calls wait for the next batch (tests only).
@@ -91,10 +106,14 @@ class GroupCommit {
   const Callbacks callbacks_;
   Clock* const clock_;
   const absl::Duration tick_;
+  const absl::Duration shutdown_grace_;
 
   absl::Mutex mu_;
   std::vector<Waiting*> waiting_ ABSL_GUARDED_BY(mu_);
   bool stopping_ ABSL_GUARDED_BY(mu_) = false;
+  bool exited_ ABSL_GUARDED_BY(mu_) = false;  // the loop has returned
+
+  absl::Mutex shutdown_mu_ ABSL_ACQUIRED_BEFORE(mu_);  // the one joining
 
   std::thread thread_;
 };

@@ -336,6 +336,19 @@ void TaskQueue::Shutdown() {
   shutdown_ = true;
 }
 
+TaskQueue::Load TaskQueue::load() const {
+  absl::MutexLock l(&mu_);
+  Load load;
+  for (const auto& [id, e] : tasks_) {
+    if (e.state == State::kQueued) {
+      ++load.queued_by_run[e.info.run_id];
+    } else {
+      ++load.held_by_worker[e.holder];
+    }
+  }
+  return load;
+}
+
 TaskQueue::Counts TaskQueue::counts() const {
   absl::MutexLock l(&mu_);
   Counts c;

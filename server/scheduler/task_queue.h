@@ -170,6 +170,13 @@ class TaskQueue {
     size_t claimed = 0;
   };
   Counts counts() const;
+  // Tasks waiting per run, and tasks leased or claimed per worker (for the
+  // metrics and the worker list).
+  struct Load {
+    std::map<int64_t, size_t> queued_by_run;
+    std::map<int64_t, size_t> held_by_worker;
+  };
+  Load load() const;
 
  private:
   enum class State { kQueued, kLeased, kClaimed };

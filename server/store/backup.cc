@@ -4,6 +4,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/status_macros.h"
+#include "server/store/check.h"
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
 
@@ -21,7 +22,14 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
   if (run_id == 0) {
     SKERRY_ASSIGN_OR_RETURN(Statement vac, conn->Prepare("VACUUM INTO ?"));
     vac.BindText(1, destination);
-    return vac.Run();
+    SKERRY_RETURN_IF_ERROR(vac.Run());
+    // The copy holds the rows' checksums as stored: check them there, so a
+    // backup of damaged rows says so instead of passing for a good copy.
+    SKERRY_ASSIGN_OR_RETURN(
+        auto copy, Connection::Open(destination, SQLITE_OPEN_READONLY));
+    absl::Status sums = VerifyRowSums(copy.get(), 0);
+    if (!sums.ok()) unlink(destination.c_str());
+    return sums;
   }
   {
     SKERRY_ASSIGN_OR_RETURN(Statement s,
@@ -45,6 +53,14 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
   SKERRY_RETURN_IF_ERROR(attach.Run());
   // One transaction: a single snapshot of the source, one commit of the copy.
   SKERRY_RETURN_IF_ERROR(conn->Exec("BEGIN"));
+  // The copy's rows get fresh checksums as they are inserted, so the source's
+  // are checked first, in the same snapshot: a damaged run is not copied.
+  if (absl::Status sums = VerifyRowSums(conn.get(), run_id); !sums.ok()) {
+    conn->Exec("ROLLBACK").IgnoreError();
+    conn->Exec("DETACH dst").IgnoreError();
+    unlink(destination.c_str());
+    return sums;
+  }
   for (const char* sql :
        {"INSERT INTO dst.runs SELECT * FROM main.runs WHERE id = ?1",
         "INSERT INTO dst.islands SELECT * FROM main.islands WHERE run_id = ?1",
@@ -52,6 +68,10 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
         "INSERT INTO dst.generation_stats SELECT * FROM main.generation_stats "
         "WHERE run_id = ?1",
         "INSERT INTO dst.validations SELECT * FROM main.validations "
+        "WHERE run_id = ?1",
+        "INSERT INTO dst.genome_metrics SELECT * FROM main.genome_metrics "
+        "WHERE run_id = ?1",
+        "INSERT INTO dst.strategy_states SELECT * FROM main.strategy_states "
         "WHERE run_id = ?1",
         "INSERT INTO dst.workers SELECT * FROM main.workers",
         // The run's audit trail goes with it; tokens and principals do not.

@@ -1,10 +1,15 @@
 #include "server/store/check.h"
 
+#include <sys/stat.h>
+
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "absl/strings/str_split.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
+#include "server/store/row_sums.h"
 #include "server/store/sqlite.h"
+#include "server/store/store.h"
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
 #include "skerry/v1/spec.pb.h"
@@ -159,12 +164,14 @@ class Checker {
                "WHERE run_id = ?1 AND attempts > 0 AND eval_state IN (2, 3)) "
                "AS n FROM "
                "runs r WHERE r.id = ?1 AND r.evaluations != n"));
+    SKERRY_RETURN_IF_ERROR(CheckContent(run));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "validation names a genome that is missing or of another run",
         "SELECT 'validation', v.id, 'genome', v.genome_id FROM validations v "
         "LEFT JOIN genomes g ON g.id = v.genome_id WHERE v.run_id = ?1 AND "
         "(g.id IS NULL OR g.run_id != ?1 OR g.generation != v.generation) "
         "LIMIT 20"));
+    if (!has_strategy_states) return absl::OkStatus();
     return CheckStrategyStates(run, ended);
   }
 
@@ -173,10 +180,14 @@ class Checker {
   absl::Status CheckStrategyStates(int64_t run, bool ended) {
     SKERRY_ASSIGN_OR_RETURN(
         Statement st,
-        c_->Prepare("SELECT i.idx, i.generation, i.done, s.generation, "
-                    "s.state, s.run_id IS NULL FROM islands i LEFT JOIN "
-                    "strategy_states s ON s.run_id = i.run_id AND s.island = "
-                    "i.idx WHERE i.run_id = ? ORDER BY i.idx"));
+        c_->Prepare(absl::StrCat(
+            "SELECT i.idx, i.generation, i.done, s.generation, s.state, "
+            "s.run_id IS NULL, s.sum IS skerry_row_sum(s.",
+            absl::StrJoin(absl::StrSplit(kStrategyStateSumColumns, ", "),
+                          ", s."),
+            ") FROM islands i LEFT JOIN strategy_states s ON s.run_id = "
+            "i.run_id AND s.island = i.idx WHERE i.run_id = ? ORDER BY "
+            "i.idx")));
     st.BindInt(1, run);
     while (true) {
       SKERRY_ASSIGN_OR_RETURN(bool row, st.Step());
@@ -185,6 +196,11 @@ class Checker {
       const std::string where = absl::StrCat("run ", run, " island ", idx);
       if (st.ColumnInt(5) != 0) {
         Problem(absl::StrCat(where, ": no strategy state"));
+        continue;
+      }
+      if (st.ColumnInt(6) != 1) {
+        Problem(absl::StrCat(
+            where, ": strategy state does not match its checksum (damaged)"));
         continue;
       }
       skerry::v1::StrategyState state;
@@ -209,7 +225,67 @@ class Checker {
     return absl::OkStatus();
   }
 
+  // What the rows say: checksums (row_sums.h) and the content rules.
+  absl::Status CheckContent(int64_t run) {
+    const std::string key =
+        "'island', island, 'generation', generation, 'slot', slot, "
+        "'genome', id";
+    if (has_sums) SKERRY_RETURN_IF_ERROR(CheckSums(run, key));
+    return CheckRules(run, key);
+  }
+
+  absl::Status CheckSums(int64_t run, const std::string& key) {
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "genome content does not match its checksum (damaged)",
+        absl::StrCat("SELECT ", key, " FROM genomes WHERE run_id = ?1 AND ",
+                     "sum IS NOT skerry_row_sum(", kGenomeSumColumns,
+                     ") LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "island row does not match its checksum (damaged)",
+        absl::StrCat("SELECT 'island', idx FROM islands WHERE run_id = ?1 AND ",
+                     "sum IS NOT skerry_row_sum(", kIslandSumColumns,
+                     ") LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "statistics row does not match its checksum (damaged)",
+        absl::StrCat("SELECT 'island', island, 'generation', generation FROM "
+                     "generation_stats WHERE run_id = ?1 AND sum IS NOT "
+                     "skerry_row_sum(",
+                     kStatsSumColumns, ") LIMIT 20")));
+    return absl::OkStatus();
+  }
+
+  absl::Status CheckRules(int64_t run, const std::string& key) {
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "evaluated genome has no score",
+        absl::StrCat("SELECT ", key, " FROM genomes WHERE run_id = ?1 AND ",
+                     "eval_state = ", skerry::v1::EVALUATED,
+                     " AND score IS NULL LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "failed genome has no error text",
+        absl::StrCat("SELECT ", key, " FROM genomes WHERE run_id = ?1 AND ",
+                     "eval_state = ", skerry::v1::FAILED,
+                     " AND error = '' LIMIT 20")));
+    // Elites and migrants are copies: the same genes as their parent, and,
+    // when not evaluated again (attempts 0), the same outcome (a failed
+    // genome's score means nothing, so only an evaluated copy's score is
+    // compared).
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "genome carried over unchanged differs from its parent",
+        absl::StrCat(
+            "SELECT 'island', c.island, 'generation', c.generation, 'slot', "
+            "c.slot, 'genome', c.id, 'parent', p.id FROM genomes c JOIN "
+            "genomes p ON p.id = c.parent_a WHERE c.run_id = ?1 AND "
+            "c.origin IN (",
+            skerry::v1::ELITE, ",", skerry::v1::MIGRANT,
+            ") AND (c.genes != p.genes OR (c.attempts = 0 AND c.eval_state "
+            "!= 1 AND (c.eval_state != p.eval_state OR (c.eval_state = 2 AND "
+            "c.score IS NOT p.score)))) LIMIT 20")));
+    return absl::OkStatus();
+  }
+
   CheckReport report;
+  bool has_sums = true;             // schema version 6 or later
+  bool has_strategy_states = true;  // schema version 9 or later
 
  private:
   Connection* c_;
@@ -244,6 +320,16 @@ std::string CheckReport::ToString() const {
 }
 
 absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
+  // The file rule of Store::Open: nothing is created here, an empty file is
+  // not a database.
+  struct stat st;
+  if (stat(path.c_str(), &st) != 0) {
+    return absl::NotFoundError(absl::StrCat(path, ": no such file"));
+  }
+  if (S_ISREG(st.st_mode) && st.st_size == 0) {
+    return absl::FailedPreconditionError(
+        absl::StrCat(path, ": ", kEmptyFileMessage));
+  }
   SKERRY_ASSIGN_OR_RETURN(auto conn,
                           Connection::Open(path, SQLITE_OPEN_READONLY));
   sqlite3_busy_timeout(conn->raw(), 5000);
@@ -260,8 +346,26 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     checker.report.integrity = absl::StrJoin(lines, "; ");
   }
   SKERRY_RETURN_IF_ERROR(conn->Exec("BEGIN"));  // one snapshot for every query
-  absl::StatusOr<Statement> runs =
-      conn->Prepare("SELECT id, spec, state FROM runs ORDER BY id");
+  {
+    absl::StatusOr<Statement> v =
+        conn->Prepare("SELECT max(version) FROM schema_version");
+    absl::StatusOr<bool> row = v.ok() ? v->Step() : absl::StatusOr<bool>(false);
+    // Before version 6 rows had no checksums; a coordinator start adds them.
+    checker.has_sums = row.ok() && *row && v->ColumnInt(0) >= 6;
+    checker.has_strategy_states = row.ok() && *row && v->ColumnInt(0) >= 9;
+    // The schema of the current version, compared object by object (an older
+    // version is migrated by the coordinator's next start, not compared).
+    if (row.ok() && *row && v->ColumnInt(0) == Store::kSchemaVersion) {
+      if (absl::Status schema = VerifySchema(conn.get()); !schema.ok()) {
+        checker.Problem(std::string(schema.message()));
+      }
+    }
+  }
+  absl::StatusOr<Statement> runs = conn->Prepare(
+      checker.has_sums
+          ? absl::StrCat("SELECT id, spec, state, sum IS skerry_row_sum(",
+                         kRunSumColumns, ") FROM runs ORDER BY id")
+          : "SELECT id, spec, state, 1 FROM runs ORDER BY id");
   if (!runs.ok()) {
     return absl::FailedPreconditionError(absl::StrCat(
         path, ": not a Skerry database (", runs.status().message(), ")"));
@@ -271,6 +375,10 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     if (!row) break;
     skerry::v1::RunSpec spec;
     const int64_t id = runs->ColumnInt(0);
+    if (runs->ColumnInt(3) != 1) {
+      checker.Problem(absl::StrCat(
+          "run ", id, ": run record does not match its checksum (damaged)"));
+    }
     if (!spec.ParseFromString(runs->ColumnBlob(1))) {
       checker.Problem(absl::StrCat("run ", id, ": stored spec does not parse"));
       continue;
@@ -289,6 +397,39 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
   }
   conn->Exec("COMMIT").IgnoreError();
   return checker.report;
+}
+
+absl::Status VerifyRowSums(Connection* conn, int64_t run_id,
+                           const std::string& schema) {
+  const struct {
+    const char* table;
+    const char* columns;
+    const char* run_column;
+    const char* what;  // SQL naming the row
+  } tables[] = {
+      {"runs", kRunSumColumns, "id", "'its run record'"},
+      {"islands", kIslandSumColumns, "run_id", "'island ' || idx"},
+      {"genomes", kGenomeSumColumns, "run_id",
+       "'island ' || island || ' generation ' || generation || ' slot ' || "
+       "slot || ' (genome ' || id || ')'"},
+      {"generation_stats", kStatsSumColumns, "run_id",
+       "'island ' || island || ' generation ' || generation || "
+       "' statistics'"},
+      {"strategy_states", kStrategyStateSumColumns, "run_id",
+       "'island ' || island || ' strategy state'"},
+  };
+  for (const auto& t : tables) {
+    SKERRY_ASSIGN_OR_RETURN(
+        Statement s,
+        conn->Prepare(absl::StrCat(
+            "SELECT ", t.run_column, ", ", t.what, " FROM ", schema, ".",
+            t.table, " WHERE (?1 = 0 OR ", t.run_column,
+            " = ?1) AND sum IS NOT skerry_row_sum(", t.columns, ") LIMIT 1")));
+    s.BindInt(1, run_id);
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (row) return DamagedRow(s.ColumnInt(0), s.ColumnText(1));
+  }
+  return absl::OkStatus();
 }
 
 }  // namespace skerry::store

@@ -16,6 +16,14 @@
 //   - every island has a strategy state that parses, of the island's current
 //     generation while the island still searches;
 //   - every island of a finished, stopped or failed run is marked done.
+//   - every row of runs, islands, genomes and generation_stats matches its
+//     checksum (row_sums.h): changed genes, scores, parents... show here;
+//   - an evaluated genome has a score, a failed one its error text;
+//   - an elite or migrant has its parent's genes, and, when it was not
+//     evaluated again, its parent's outcome.
+//
+// The file rule is Store::Open's: a missing or empty (0-byte) file is not a
+// Skerry database, and neither is one without its schema.
 //
 // Thread safety: a function; opens its own connection.
 #ifndef SKERRY_SERVER_STORE_CHECK_H_
@@ -25,6 +33,7 @@
 #include <vector>
 
 #include "absl/status/statusor.h"
+#include "server/store/sqlite.h"
 
 namespace skerry::store {
 
@@ -39,6 +48,13 @@ struct CheckReport {
 
 // Fails only when the file cannot be read as a Skerry database at all.
 absl::StatusOr<CheckReport> CheckDatabase(const std::string& path);
+
+// Every row of runs, islands, genomes and generation_stats (of `run_id`, or of
+// every run when 0) in database `schema` ("main", or an attached name)
+// against its checksum: DATA_LOSS naming the first damaged row. Used by
+// backups, before a copy is trusted.
+absl::Status VerifyRowSums(Connection* conn, int64_t run_id,
+                           const std::string& schema = "main");
 
 }  // namespace skerry::store
 

@@ -2,66 +2,79 @@
 
 #include <fcntl.h>
 #include <sys/file.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cerrno>
 #include <cstring>
+#include <fstream>
 #include <string>
+#include <vector>
 
+#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
-#include "absl/strings/strip.h"
-#include "absl/time/clock.h"
-#include "absl/time/time.h"
+#include "absl/strings/str_split.h"
 
 namespace skerry::store {
 namespace {
 
-std::string ReadAll(int fd) {
-  std::string out;
-  char buf[512];
-  lseek(fd, 0, SEEK_SET);
-  ssize_t n;
-  while ((n = read(fd, buf, sizeof(buf))) > 0 && out.size() < 4096) {
-    out.append(buf, static_cast<size_t>(n));
+// The pid holding an flock on the file open as `fd`, from /proc/locks
+// ("1: FLOCK  ADVISORY  WRITE 1234 08:01:5678 0 EOF"); empty when unknown.
+std::string FlockHolder(int fd) {
+  struct stat st;
+  if (fstat(fd, &st) != 0) return "";
+  std::ifstream in("/proc/locks");
+  std::string line;
+  for (int n = 0; n < 100000 && std::getline(in, line); ++n) {
+    std::vector<std::string> f =
+        absl::StrSplit(line, ' ', absl::SkipWhitespace());
+    if (f.size() < 6 || f[1] != "FLOCK") continue;
+    // f[5] is MAJOR:MINOR:INODE in hex:hex:decimal.
+    std::vector<std::string> dev = absl::StrSplit(f[5], ':');
+    if (dev.size() != 3) continue;
+    unsigned long long ino = 0;
+    if (!absl::SimpleAtoi(dev[2], &ino) || ino != st.st_ino) continue;
+    return f[4];
   }
-  return out;
+  return "";
 }
 
 }  // namespace
 
 absl::StatusOr<std::unique_ptr<OwnerLock>> OwnerLock::Acquire(
     const std::string& db_path) {
-  const std::string path = db_path + ".owner";
-  const int fd = open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+  bool created = false;
+  int fd = open(db_path.c_str(), O_RDWR | O_CLOEXEC);
+  if (fd < 0 && errno == ENOENT) {
+    fd = open(db_path.c_str(), O_RDWR | O_CREAT | O_EXCL | O_CLOEXEC, 0644);
+    created = fd >= 0;
+    if (fd < 0 && errno == EEXIST)
+      fd = open(db_path.c_str(), O_RDWR | O_CLOEXEC);
+  }
+  if (fd < 0 && (errno == EACCES || errno == EROFS)) {
+    // Lockable read-only too; Coordinator::Start then refuses to run on a
+    // file it cannot write, with a message of its own.
+    fd = open(db_path.c_str(), O_RDONLY | O_CLOEXEC);
+  }
   if (fd < 0) {
     return absl::UnavailableError(absl::StrCat(
-        "cannot open the ownership file ", path, ": ", std::strerror(errno)));
+        "cannot open the database ", db_path, ": ", std::strerror(errno)));
   }
   if (flock(fd, LOCK_EX | LOCK_NB) != 0) {
     const int err = errno;
-    std::string holder(absl::StripAsciiWhitespace(ReadAll(fd)));
+    const std::string holder = FlockHolder(fd);
     close(fd);
     if (err == EWOULDBLOCK) {
       return absl::FailedPreconditionError(absl::StrCat(
           "database ", db_path, " is owned by another running coordinator (",
-          holder.empty() ? "holder unknown" : holder,
-          "); only one coordinator may use a database at a time"));
+          holder.empty() ? "holder unknown" : absl::StrCat("pid ", holder),
+          "), perhaps through another name or link of the same file; only "
+          "one coordinator may use a database at a time"));
     }
     return absl::UnavailableError(
-        absl::StrCat("cannot lock ", path, ": ", std::strerror(err)));
+        absl::StrCat("cannot lock ", db_path, ": ", std::strerror(err)));
   }
-  char host[256] = {0};
-  gethostname(host, sizeof(host) - 1);
-  const std::string me =
-      absl::StrCat("pid ", getpid(), " on ", host, ", since ",
-                   absl::FormatTime("%Y-%m-%d %H:%M:%S UTC", absl::Now(),
-                                    absl::UTCTimeZone()),
-                   "\n");
-  if (ftruncate(fd, 0) != 0 ||
-      pwrite(fd, me.data(), me.size(), 0) != static_cast<ssize_t>(me.size())) {
-    // The lock holds even if the note could not be written.
-  }
-  return std::unique_ptr<OwnerLock>(new OwnerLock(fd));
+  return std::unique_ptr<OwnerLock>(new OwnerLock(fd, created));
 }
 
 OwnerLock::~OwnerLock() {

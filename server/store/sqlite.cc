@@ -1,6 +1,7 @@
 #include "server/store/sqlite.h"
 
 #include "absl/strings/str_cat.h"
+#include "server/store/row_sums.h"
 
 namespace skerry::store {
 
@@ -90,6 +91,13 @@ absl::StatusOr<std::unique_ptr<Connection>> Connection::Open(
     return s;
   }
   sqlite3_extended_result_codes(db, 1);
+  // Every connection can compute and check row checksums (row_sums.h).
+  const int fn = RegisterRowSumFunction(db);
+  if (fn != SQLITE_OK) {
+    absl::Status s = SqliteStatus(fn, db, "registering skerry_row_sum");
+    sqlite3_close(db);
+    return s;
+  }
   return std::unique_ptr<Connection>(new Connection(db));
 }
 

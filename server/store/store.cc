@@ -1,14 +1,18 @@
 #include "server/store/store.h"
 
+#include <sys/stat.h>
+
 #include <cstring>
 #include <map>
 #include <utility>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
 #include "common/sha256.h"
 #include "common/status_macros.h"
 #include "server/store/access_schema.h"
+#include "server/store/row_sums.h"
 
 namespace skerry::store {
 namespace {
@@ -127,54 +131,126 @@ CREATE INDEX validations_run ON validations (run_id, id);
 CREATE INDEX validations_pending ON validations (id) WHERE state = 1;
 )sql";
 
-// Version 6 is taken by another change being made at the same time; this
-// placeholder keeps the numbering until both are merged.
-constexpr const char* kSchemaV6 = "SELECT 1;";
-
 // Version 7: how each worker confines its evaluator programs (fleet.proto
 // JoinRequest.sandbox), for the worker listing.
 constexpr const char* kSchemaV7 = R"sql(
 ALTER TABLE workers ADD COLUMN sandbox TEXT NOT NULL DEFAULT '';
 )sql";
 
-// Version 8: left for a migration made on another branch at the same time
-// (it takes this number when it lands; this one is renumbered then).
-constexpr const char* kSchemaReserved = "";
-
-// Version 9: each island's search strategy state (server/engine/strategy.h).
-// Runs stored before it are GA runs, whose state is empty.
-constexpr const char* kSchemaV9 = R"sql(
-CREATE TABLE strategy_states (
+// Version 8: evaluator metrics per genome (TaskResult.metrics).
+constexpr const char* kSchemaMetrics = R"sql(
+CREATE TABLE genome_metrics (
   run_id INTEGER NOT NULL,
-  island INTEGER NOT NULL,
-  generation INTEGER NOT NULL,
-  state BLOB NOT NULL,
-  PRIMARY KEY (run_id, island)
-);
-INSERT INTO strategy_states (run_id, island, generation, state)
-  SELECT run_id, idx, generation, X'' FROM islands;
+  genome_id INTEGER NOT NULL,
+  name TEXT NOT NULL,
+  value REAL NOT NULL,
+  PRIMARY KEY (genome_id, name)
+) WITHOUT ROWID;
+CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
 )sql";
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
-// Version 5 (principals, tokens, audit) lives in access_schema.h.
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,       kSchemaV3,
-                                       kSchemaV4, kSchemaAccess,   kSchemaV6,
-                                       kSchemaV7, kSchemaReserved, kSchemaV9};
+// Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
+// (row checksums, submit request ids) is built by SchemaV6(), version 9
+// (strategy states, with their checksums) by SchemaV9().
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,      kSchemaV3,
+                                       kSchemaV4, kSchemaAccess,  nullptr,
+                                       kSchemaV7, kSchemaMetrics, nullptr};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
-constexpr const char* kRunColumns =
-    "id, name, owner, spec, spec_text, state, priority, message, created_ms, "
-    "updated_ms, started_ms, evaluations, champion_id, best_score, "
-    "stop_generation";
+// The triggers that keep `sum` = skerry_row_sum(columns) on every insert and
+// update of `table` (row_sums.h). `key` matches the row just written.
+std::string SumTriggers(const char* table, const char* columns,
+                        const char* key) {
+  const std::string set =
+      absl::StrCat("UPDATE ", table, " SET sum = skerry_row_sum(", columns,
+                   ") WHERE ", key, "; END;\n");
+  return absl::StrCat("CREATE TRIGGER ", table, "_sum_insert AFTER INSERT ON ",
+                      table, " BEGIN ", set, "CREATE TRIGGER ", table,
+                      "_sum_update AFTER UPDATE OF ", columns, " ON ", table,
+                      " BEGIN ", set);
+}
 
-absl::StatusOr<RunRecord> ReadRun(const Statement& s) {
+// Version 6: a checksum on every row of runs, islands, genomes and
+// generation_stats (row_sums.h), computed here for the rows already stored;
+// and the client's request id of a submitted run, unique per owner, so that a
+// retried SubmitRun finds the run its first attempt made.
+std::string SchemaV6() {
+  std::string sql =
+      "ALTER TABLE runs ADD COLUMN request_id TEXT;\n"
+      "CREATE UNIQUE INDEX runs_request ON runs (owner, request_id) "
+      "WHERE request_id IS NOT NULL;\n";
+  const struct {
+    const char* table;
+    const char* columns;
+    const char* key;
+  } tables[] = {
+      {"runs", kRunSumColumns, "id = NEW.id"},
+      {"islands", kIslandSumColumns, "run_id = NEW.run_id AND idx = NEW.idx"},
+      {"genomes", kGenomeSumColumns, "id = NEW.id"},
+      {"generation_stats", kStatsSumColumns,
+       "run_id = NEW.run_id AND island = NEW.island AND "
+       "generation = NEW.generation"},
+  };
+  for (const auto& t : tables) {
+    absl::StrAppend(&sql, "ALTER TABLE ", t.table,
+                    " ADD COLUMN sum INTEGER;\nUPDATE ", t.table,
+                    " SET sum = skerry_row_sum(", t.columns, ");\n",
+                    SumTriggers(t.table, t.columns, t.key));
+  }
+  return sql;
+}
+
+// Version 9: each island's search strategy state (server/engine/strategy.h),
+// with its row checksum kept like those of version 6. Runs stored before it
+// are GA runs, whose state is empty.
+std::string SchemaV9() {
+  return absl::StrCat(
+      "CREATE TABLE strategy_states (\n"
+      "  run_id INTEGER NOT NULL,\n"
+      "  island INTEGER NOT NULL,\n"
+      "  generation INTEGER NOT NULL,\n"
+      "  state BLOB NOT NULL,\n"
+      "  sum INTEGER,\n"
+      "  PRIMARY KEY (run_id, island)\n"
+      ");\n",
+      SumTriggers("strategy_states", kStrategyStateSumColumns,
+                  "run_id = NEW.run_id AND island = NEW.island"),
+      "INSERT INTO strategy_states (run_id, island, generation, state)\n"
+      "  SELECT run_id, idx, generation, X'' FROM islands;\n");
+}
+
+std::string MigrationSql(int from_version) {
+  if (from_version == 5) return SchemaV6();
+  if (from_version == 8) return SchemaV9();
+  return kMigrations[from_version];
+}
+
+// Selected after a table's columns: 1 when the row matches its checksum.
+std::string SumMatches(const char* columns) {
+  return absl::StrCat("(sum IS skerry_row_sum(", columns, "))");
+}
+
+const std::string& RunColumns() {
+  static const std::string* columns = new std::string(absl::StrCat(
+      "id, name, owner, spec, spec_text, state, priority, message, "
+      "created_ms, updated_ms, started_ms, evaluations, champion_id, "
+      "best_score, stop_generation, ",
+      SumMatches(kRunSumColumns), ", coalesce(request_id, '')"));
+  return *columns;
+}
+
+// A damaged row comes back with `damage` set (see ListRuns); GetRun turns it
+// into an error.
+RunRecord ReadRun(const Statement& s) {
   RunRecord r;
   r.id = s.ColumnInt(0);
+  if (s.ColumnInt(15) != 1) r.damage = DamagedRun(r.id);
   r.name = s.ColumnText(1);
   r.owner = s.ColumnText(2);
-  if (!r.spec.ParseFromString(s.ColumnBlob(3))) {
-    return absl::DataLossError(
+  if (!r.spec.ParseFromString(s.ColumnBlob(3)) && r.damage.ok()) {
+    r.damage = absl::DataLossError(
         absl::StrCat("run ", r.id, ": stored spec does not parse"));
   }
   r.spec_text = s.ColumnText(4);
@@ -190,12 +266,17 @@ absl::StatusOr<RunRecord> ReadRun(const Statement& s) {
   if (!s.ColumnIsNull(14)) {
     r.stop_generation = static_cast<uint32_t>(s.ColumnInt(14));
   }
+  r.request_id = s.ColumnText(16);
   return r;
 }
 
-constexpr const char* kGenomeColumns =
-    "id, run_id, island, generation, slot, origin, parent_a, parent_b, genes, "
-    "score, eval_state, attempts, error, eval_seconds";
+const std::string& GenomeColumns() {
+  static const std::string* columns = new std::string(absl::StrCat(
+      "id, run_id, island, generation, slot, origin, parent_a, parent_b, "
+      "genes, score, eval_state, attempts, error, eval_seconds, ",
+      SumMatches(kGenomeSumColumns)));
+  return *columns;
+}
 
 absl::StatusOr<GenomeRecord> ReadGenome(const Statement& s) {
   GenomeRecord g;
@@ -204,6 +285,9 @@ absl::StatusOr<GenomeRecord> ReadGenome(const Statement& s) {
   g.island = static_cast<uint32_t>(s.ColumnInt(2));
   g.generation = static_cast<uint32_t>(s.ColumnInt(3));
   g.slot = static_cast<uint32_t>(s.ColumnInt(4));
+  if (s.ColumnInt(14) != 1) {
+    return DamagedGenome(g.run_id, g.island, g.generation, g.slot, g.id);
+  }
   g.origin = static_cast<skerry::v1::Origin>(s.ColumnInt(5));
   g.parent_a = s.ColumnIsNull(6) ? 0 : s.ColumnInt(6);
   g.parent_b = s.ColumnIsNull(7) ? 0 : s.ColumnInt(7);
@@ -246,6 +330,14 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
   auto with_path = [&path](const absl::Status& s) {
     return absl::Status(s.code(), absl::StrCat(path, ": ", s.message()));
   };
+  // The file rule, the same as `--check`'s (check.h): only an absent file
+  // becomes a new database; an existing one must already be Skerry's.
+  struct stat st;
+  const bool existed = stat(path.c_str(), &st) == 0 &&
+                       !(options.initialise_empty_file && st.st_size == 0);
+  if (existed && S_ISREG(st.st_mode) && st.st_size == 0) {
+    return with_path(absl::FailedPreconditionError(kEmptyFileMessage));
+  }
   absl::StatusOr<std::unique_ptr<Connection>> conn = Connection::Open(
       path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX,
       options.vfs);
@@ -256,6 +348,22 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
   // Check the file is ours and not newer before changing anything in it.
   absl::StatusOr<int> version = store->StoredVersion();
   if (!version.ok()) return with_path(version.status());
+  if (existed && *version == 0) {
+    return with_path(absl::FailedPreconditionError(
+        "not a Skerry database: it has no schema_version table (nothing was "
+        "changed; only a file that does not exist yet becomes a new "
+        "database)"));
+  }
+  // SQLite opens a file it may not write read-only without an error (the
+  // file's permissions; a header whose write version it does not know, as a
+  // flipped bit makes it): every commit would then fail, and the coordinator
+  // would hold its work forever. Refused here instead.
+  if (existed && sqlite3_db_readonly(store->conn_->raw(), "main") == 1) {
+    return with_path(absl::FailedPreconditionError(
+        "the database can only be read, not written (the file's permissions, "
+        "or a damaged file header; `skerry-coordinator --check` says more); "
+        "nothing was changed"));
+  }
   // WAL is a property of the file and survives reopening.
   absl::StatusOr<Statement> wal =
       store->conn_->Prepare("PRAGMA journal_mode=WAL");
@@ -311,13 +419,78 @@ absl::Status Store::Migrate(int version) {
   if (version == kSchemaVersion) return absl::OkStatus();
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   for (int v = version; v < kSchemaVersion; ++v) {
-    SKERRY_RETURN_IF_ERROR(conn_->Exec(kMigrations[v]));
+    SKERRY_RETURN_IF_ERROR(conn_->Exec(MigrationSql(v)));
     if (v > 0) {
       SKERRY_RETURN_IF_ERROR(conn_->Exec(
           absl::StrCat("UPDATE schema_version SET version = ", v + 1)));
     }
   }
   return txn.Commit();
+}
+
+absl::Status VerifySchema(Connection* conn) {
+  // The schema a fresh database of this version has, made in memory by the
+  // same migrations: any difference in the file's is damage (or a hand edit).
+  SKERRY_ASSIGN_OR_RETURN(auto fresh,
+                          Connection::Open(":memory:", SQLITE_OPEN_READWRITE));
+  for (int v = 0; v < Store::kSchemaVersion; ++v) {
+    SKERRY_RETURN_IF_ERROR(fresh->Exec(MigrationSql(v)));
+  }
+  auto objects =
+      [](Connection* c) -> absl::StatusOr<std::map<std::string, std::string>> {
+    SKERRY_ASSIGN_OR_RETURN(
+        auto s, c->Prepare("SELECT type || ' ' || name, coalesce(sql, '') "
+                           "FROM sqlite_master WHERE name NOT LIKE "
+                           "'sqlite_stat%'"));
+    std::map<std::string, std::string> out;
+    while (true) {
+      SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+      if (!row) break;
+      out[s.ColumnText(0)] = s.ColumnText(1);
+    }
+    return out;
+  };
+  SKERRY_ASSIGN_OR_RETURN(auto want, objects(fresh.get()));
+  SKERRY_ASSIGN_OR_RETURN(auto got, objects(conn));
+  for (const auto& [name, sql] : want) {
+    auto it = got.find(name);
+    if (it == got.end() || it->second != sql) {
+      return absl::DataLossError(absl::StrCat(
+          "the database's schema is damaged: ", name,
+          it == got.end() ? " is missing" : " differs from Skerry's"));
+    }
+  }
+  for (const auto& [name, sql] : got) {
+    if (want.count(name) == 0) {
+      return absl::DataLossError(absl::StrCat(
+          "the database's schema is damaged: ", name, " is not Skerry's"));
+    }
+  }
+  return absl::OkStatus();
+}
+
+absl::Status Store::QuickCheck() {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("PRAGMA quick_check(20)"));
+  std::vector<std::string> lines;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (!row) break;
+    lines.push_back(s.ColumnText(0));
+  }
+  if (lines.size() == 1 && lines[0] == "ok") {
+    absl::Status schema = VerifySchema(conn_.get());
+    if (schema.ok()) return schema;
+    return absl::DataLossError(
+        absl::StrCat(path_, ": ", schema.message(),
+                     "; docs/operations.md says how to restore from a backup"));
+  }
+  std::string found;
+  for (const std::string& line : lines) absl::StrAppend(&found, "; ", line);
+  return absl::DataLossError(absl::StrCat(
+      path_, ": the database file is malformed (SQLite's quick_check", found,
+      "); `skerry-coordinator --check` says more, docs/operations.md says how "
+      "to restore from a backup"));
 }
 
 absl::StatusOr<int> Store::SchemaVersion() {
@@ -369,8 +542,8 @@ absl::Status Store::CreateRun(RunRecord* run,
         auto ins,
         conn_->Prepare(
             "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
-            "priority, message, created_ms, updated_ms, started_ms) "
-            "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
+            "priority, message, created_ms, updated_ms, started_ms, "
+            "request_id) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)"));
     ins.BindText(1, run->name);
     ins.BindText(2, run->owner);
     ins.BindBlob(3, run->spec.SerializeAsString());
@@ -382,6 +555,11 @@ absl::Status Store::CreateRun(RunRecord* run,
     ins.BindInt(9, run->created_ms);
     ins.BindInt(10, run->updated_ms);
     ins.BindInt(11, run->started_ms);
+    if (run->request_id.empty()) {
+      ins.BindNull(12);
+    } else {
+      ins.BindText(12, run->request_id);
+    }
     SKERRY_RETURN_IF_ERROR(ins.Run());
     run->id = conn_->LastInsertId();
   }
@@ -440,6 +618,9 @@ absl::Status Store::CommitResults(
           "genome ", r.genome_id, " is not pending; batch not applied"));
     }
     if (r.state != skerry::v1::PENDING) ++finished_per_run[r.run_id];
+    if (r.state == skerry::v1::EVALUATED && !r.metrics.empty()) {
+      SKERRY_RETURN_IF_ERROR(InsertMetricsLocked(r));
+    }
   }
   SKERRY_ASSIGN_OR_RETURN(
       auto cnt, conn_->Prepare("UPDATE runs SET evaluations = evaluations + ? "
@@ -593,7 +774,9 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   if (keep_through.has_value()) {
     for (const char* sql :
-         {"DELETE FROM genomes WHERE run_id = ?1 AND generation > ?2",
+         {"DELETE FROM genome_metrics WHERE run_id = ?1 AND genome_id IN "
+          "(SELECT id FROM genomes WHERE run_id = ?1 AND generation > ?2)",
+          "DELETE FROM genomes WHERE run_id = ?1 AND generation > ?2",
           "DELETE FROM generation_stats WHERE run_id = ?1 AND generation > ?2",
           "DELETE FROM validations WHERE run_id = ?1 AND generation > ?2",
           "UPDATE islands SET generation = min(generation, ?2) WHERE run_id = "
@@ -683,36 +866,65 @@ absl::Status Store::TouchWorkers(absl::Span<const int64_t> ids,
 absl::StatusOr<std::vector<RunRecord>> Store::ListRuns() {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
+      auto s, conn_->Prepare(absl::StrCat("SELECT ", RunColumns(),
                                           " FROM runs ORDER BY id")));
   std::vector<RunRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
     if (!row) break;
-    SKERRY_ASSIGN_OR_RETURN(auto r, ReadRun(s));
-    out.push_back(std::move(r));
+    out.push_back(ReadRun(s));
   }
   return out;
+}
+
+absl::StatusOr<std::optional<int64_t>> Store::FindRunByRequest(
+    const std::string& owner, const std::string& request_id) {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, conn_->Prepare("SELECT id FROM runs WHERE owner = ? AND "
+                             "request_id = ?"));
+  s.BindText(1, owner);
+  s.BindText(2, request_id);
+  SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+  if (!row) return std::optional<int64_t>();
+  return std::optional<int64_t>(s.ColumnInt(0));
 }
 
 absl::StatusOr<RunRecord> Store::GetRun(int64_t run_id) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", kRunColumns,
+      auto s, conn_->Prepare(absl::StrCat("SELECT ", RunColumns(),
                                           " FROM runs WHERE id = ?")));
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
   if (!row)
     return absl::NotFoundError(
         absl::StrCat("run ", static_cast<uint64_t>(run_id), " not found"));
-  return ReadRun(s);
+  RunRecord r = ReadRun(s);
+  if (!r.damage.ok()) return r.damage;
+  return r;
+}
+
+absl::Status Store::VerifyActiveRun(int64_t run_id) {
+  SKERRY_ASSIGN_OR_RETURN(RunRecord run, GetRun(run_id));
+  SKERRY_ASSIGN_OR_RETURN(std::vector<IslandRecord> islands,
+                          GetIslands(run_id));
+  SKERRY_RETURN_IF_ERROR(GetStats(run_id, std::nullopt).status());
+  SKERRY_RETURN_IF_ERROR(GetStrategyStates(run_id).status());
+  for (const IslandRecord& i : islands) {
+    SKERRY_RETURN_IF_ERROR(
+        GetGeneration(run_id, i.index, i.generation).status());
+  }
+  return absl::OkStatus();
 }
 
 absl::StatusOr<std::vector<IslandRecord>> Store::GetIslands(int64_t run_id) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare("SELECT idx, generation, done FROM islands WHERE "
-                             "run_id = ? ORDER BY idx"));
+      auto s,
+      conn_->Prepare(absl::StrCat(
+          "SELECT idx, generation, done, ", SumMatches(kIslandSumColumns),
+          " FROM islands WHERE run_id = ? ORDER BY idx")));
   s.BindInt(1, run_id);
   std::vector<IslandRecord> out;
   while (true) {
@@ -723,6 +935,9 @@ absl::StatusOr<std::vector<IslandRecord>> Store::GetIslands(int64_t run_id) {
     r.index = static_cast<uint32_t>(s.ColumnInt(0));
     r.generation = static_cast<uint32_t>(s.ColumnInt(1));
     r.done = s.ColumnInt(2) != 0;
+    if (s.ColumnInt(3) != 1) {
+      return DamagedRow(run_id, absl::StrCat("island ", r.index));
+    }
     out.push_back(r);
   }
   return out;
@@ -732,14 +947,21 @@ absl::StatusOr<std::map<uint32_t, std::string>> Store::GetStrategyStates(
     int64_t run_id) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare("SELECT island, state FROM strategy_states WHERE "
-                             "run_id = ? ORDER BY island"));
+      auto s,
+      conn_->Prepare(absl::StrCat(
+          "SELECT island, state, ", SumMatches(kStrategyStateSumColumns),
+          " FROM strategy_states WHERE run_id = ? ORDER BY island")));
   s.BindInt(1, run_id);
   std::map<uint32_t, std::string> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
     if (!row) break;
-    out[static_cast<uint32_t>(s.ColumnInt(0))] = s.ColumnBlob(1);
+    const auto island = static_cast<uint32_t>(s.ColumnInt(0));
+    if (s.ColumnInt(2) != 1) {
+      return DamagedRow(run_id,
+                        absl::StrCat("island ", island, " strategy state"));
+    }
+    out[island] = s.ColumnBlob(1);
   }
   return out;
 }
@@ -761,7 +983,7 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
       conn_->Prepare(absl::StrCat(
-          "SELECT ", kGenomeColumns,
+          "SELECT ", GenomeColumns(),
           " FROM genomes WHERE run_id = ? AND island = ? AND generation = ? "
           "ORDER BY slot")));
   s.BindInt(1, run_id);
@@ -773,7 +995,7 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
 absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", kGenomeColumns,
+      auto s, conn_->Prepare(absl::StrCat("SELECT ", GenomeColumns(),
                                           " FROM genomes WHERE id = ?")));
   s.BindInt(1, genome_id);
   SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
@@ -788,12 +1010,13 @@ absl::StatusOr<std::vector<StatsRecord>> Store::GetStats(
     int64_t run_id, std::optional<uint32_t> island) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s,
-      conn_->Prepare(
-          "SELECT island, generation, best, mean, worst, diversity, "
-          "evaluations, failed, eval_seconds, completed_ms FROM "
-          "generation_stats WHERE run_id = ?1 AND (?2 < 0 OR island = ?2) "
-          "ORDER BY island, generation"));
+      auto s, conn_->Prepare(absl::StrCat(
+                  "SELECT island, generation, best, mean, worst, "
+                  "diversity, evaluations, failed, eval_seconds, "
+                  "completed_ms, ",
+                  SumMatches(kStatsSumColumns),
+                  " FROM generation_stats WHERE run_id = ?1 AND "
+                  "(?2 < 0 OR island = ?2) ORDER BY island, generation")));
   s.BindInt(1, run_id);
   s.BindInt(2, island.has_value() ? static_cast<int64_t>(*island) : -1);
   std::vector<StatsRecord> out;
@@ -812,6 +1035,11 @@ absl::StatusOr<std::vector<StatsRecord>> Store::GetStats(
     r.failed = static_cast<uint32_t>(s.ColumnInt(7));
     r.eval_seconds = s.ColumnDouble(8);
     r.completed_ms = s.ColumnInt(9);
+    if (s.ColumnInt(10) != 1) {
+      return DamagedRow(run_id,
+                        absl::StrCat("island ", r.island, " generation ",
+                                     r.generation, " statistics"));
+    }
     out.push_back(r);
   }
   return out;
@@ -835,7 +1063,7 @@ absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeLocked(
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
       conn_->Prepare(absl::StrCat(
-          "SELECT ", kGenomeColumns,
+          "SELECT ", GenomeColumns(),
           " FROM genomes WHERE run_id = ? AND eval_state = 2 ORDER BY score ",
           maximize ? "DESC" : "ASC", ", generation, island, slot LIMIT 1")));
   s.BindInt(1, run_id);
@@ -864,7 +1092,7 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::FailedGenomes(int64_t run_id,
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
       auto s, conn_->Prepare(absl::StrCat(
-                  "SELECT ", kGenomeColumns,
+                  "SELECT ", GenomeColumns(),
                   " FROM genomes WHERE run_id = ? AND eval_state = 3 "
                   "ORDER BY id DESC LIMIT ?")));
   s.BindInt(1, run_id);
@@ -883,22 +1111,41 @@ absl::StatusOr<uint64_t> Store::CountFailed(int64_t run_id) {
 }
 
 absl::StatusOr<Store::Digest> Store::RunDigest(int64_t run_id) {
+  absl::StatusOr<Digest> d = RunDigestUnnamed(run_id);
+  if (absl::IsDataLoss(d.status()) &&
+      !absl::StartsWith(d.status().message(), absl::StrCat("run ", run_id))) {
+    return absl::DataLossError(
+        absl::StrCat("run ", run_id, " is damaged: ", d.status().message(),
+                     "; `skerry-coordinator --check` lists the damage"));
+  }
+  return d;
+}
+
+absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(
+      conn_->Prepare(absl::StrCat(
           "SELECT g.island, g.generation, g.slot, g.origin, pa.island, "
           "pa.generation, pa.slot, pb.island, pb.generation, pb.slot, g.genes, "
-          "g.eval_state, g.score FROM genomes g "
+          "g.eval_state, g.score, g.ok, g.id FROM (SELECT *, ",
+          SumMatches(kGenomeSumColumns),
+          " AS ok FROM genomes WHERE run_id = ?1) g "
           "LEFT JOIN genomes pa ON pa.id = g.parent_a "
           "LEFT JOIN genomes pb ON pb.id = g.parent_b "
-          "WHERE g.run_id = ? ORDER BY g.island, g.generation, g.slot"));
+          "ORDER BY g.island, g.generation, g.slot")));
   s.BindInt(1, run_id);
   Sha256 h;
   Digest d;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) break;
+    if (s.ColumnInt(13) != 1) {
+      return DamagedGenome(run_id, static_cast<uint32_t>(s.ColumnInt(0)),
+                           static_cast<uint32_t>(s.ColumnInt(1)),
+                           static_cast<uint32_t>(s.ColumnInt(2)),
+                           s.ColumnInt(14));
+    }
     for (int c = 0; c < 4; ++c)
       h.UpdateU32(static_cast<uint32_t>(s.ColumnInt(c)));
     for (int c = 4; c < 10; ++c) {

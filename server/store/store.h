@@ -24,12 +24,20 @@
 //         message, detail)
 //        (columns and rules in server/store/access_schema.h; methods in
 //        store_access.cc)
-//   strategy_states(run_id, island, generation, state BLOB)   version 9
+// Version 6 adds `sum` to runs, islands, genomes and generation_stats: a
+// checksum of the row's other columns, kept by triggers (row_sums.h), checked
+// on every read of those rows and by `--check`; and runs.request_id, the
+// client's id of the SubmitRun that made the run, UNIQUE(owner, request_id).
+//   genome_metrics(run_id, genome_id, name, value)       version 8:
+//        an evaluator's named side measurements, at most 32 per genome
+//        (common/metric_bounds.h), PRIMARY KEY (genome_id, name); methods in
+//        metrics.cc
+//   strategy_states(run_id, island, generation, state BLOB, sum)   version 9
 //        PRIMARY KEY (run_id, island): the island's search strategy as it
 //        was when it produced `generation` (a serialised StrategyState,
-//        proto/skerry/v1/strategy.proto). Version 8 is kept for
-//        a migration made beside it; a migrated database gets an empty state
-//        per island (a GA's, which keeps nothing).
+//        proto/skerry/v1/strategy.proto), with its row checksum kept and
+//        checked like those of version 6. A migrated database gets an empty
+//        state per island (a GA's, which keeps nothing).
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
 // validations per run and pending validations (version 4); tokens per
@@ -128,6 +136,11 @@ struct RunRecord {
   int64_t champion_id = 0;
   std::optional<double> best_score;
   std::optional<uint32_t> stop_generation;
+  // The client's id of the SubmitRun that made it; empty when none was given.
+  std::string request_id;
+  // Set by ListRuns when the stored row does not match its checksum or its
+  // spec does not parse (DATA_LOSS naming the run); the fields may be wrong.
+  absl::Status damage;
 };
 
 struct IslandRecord {
@@ -177,6 +190,9 @@ struct ResultUpdate {
   uint32_t attempts = 0;
   std::string error;
   double eval_seconds = 0.0;
+  // The evaluator's named side measurements (EVALUATED only), already
+  // bounded (common/metric_bounds.h); stored in genome_metrics.
+  std::map<std::string, double> metrics;
 };
 
 // A held-out validation of one genome (validation.proto Validation).
@@ -253,16 +269,26 @@ struct WorkerRecord {
   std::string sandbox;  // JoinRequest.sandbox: "bwrap", "none: <reason>"
 };
 
+// What Store::Open and `--check` say of a 0-byte file.
+inline constexpr const char* kEmptyFileMessage =
+    "not a Skerry database: the file is empty (0 bytes). Only a file that does "
+    "not exist yet becomes a new database; remove the empty file to start one";
+
 class Store {
  public:
   static constexpr int kSchemaVersion = 9;
 
-  // Opens (creating when missing) the database at `path`, applies the pragmas
-  // and migrates an older schema. FailedPrecondition for a newer schema.
+  // Opens the database at `path`, applies the pragmas and migrates an older
+  // schema. Only a file that does not exist is created (and initialised); an
+  // empty file or one without Skerry's schema is refused, unchanged
+  // (FailedPrecondition), as is a newer schema.
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path);
   struct Options {
     std::string vfs;  // SQLite VFS name; empty: the default
     int busy_timeout_ms = 5000;
+    // The caller made the empty file itself a moment ago (OwnerLock does,
+    // to lock it): initialise it as if it had been absent.
+    bool initialise_empty_file = false;
   };
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path,
                                                      const Options& options);
@@ -273,6 +299,16 @@ class Store {
   absl::Status ProbeWrite();
 
   const std::string& path() const { return path_; }
+
+  // Makes the statement running now, if any, fail soon (sqlite3_interrupt):
+  // its transaction is rolled back. For a bounded shutdown; any thread, no
+  // lock taken.
+  void Interrupt() { sqlite3_interrupt(raw_); }
+
+  // SQLite's quick_check (structure, no index contents), and the schema
+  // (tables, indexes, triggers) compared with this version's: DATA_LOSS
+  // naming the first findings. Run at coordinator start.
+  absl::Status QuickCheck();
 
   // ---- Commit points ----
   // `strategy_states[i]`: island i's serialised StrategyState after seeding;
@@ -307,7 +343,15 @@ class Store {
   absl::Status TouchWorkers(absl::Span<const int64_t> ids, int64_t now_ms);
 
   // ---- Reads ----
+  // Every run; a damaged run's record comes with `damage` set.
   absl::StatusOr<std::vector<RunRecord>> ListRuns();
+  // Reads every row of the run the engine keeps in memory (the run, its
+  // islands, statistics and strategy states, every island's newest
+  // generation) and checks them: DATA_LOSS naming the first damage found.
+  absl::Status VerifyActiveRun(int64_t run_id);
+  // The run `owner` submitted with `request_id`, if any.
+  absl::StatusOr<std::optional<int64_t>> FindRunByRequest(
+      const std::string& owner, const std::string& request_id);
   // NotFound names the run.
   absl::StatusOr<RunRecord> GetRun(int64_t run_id);
   absl::StatusOr<std::vector<IslandRecord>> GetIslands(int64_t run_id);
@@ -325,6 +369,20 @@ class Store {
   // then the lowest island, then the lowest slot.
   absl::StatusOr<std::optional<GenomeRecord>> BestGenome(int64_t run_id);
   absl::StatusOr<int> CountWorkersSeenSince(int64_t since_ms);
+  // A genome's evaluator metrics (metrics.cc); empty when it has none.
+  absl::StatusOr<std::map<std::string, double>> GetGenomeMetrics(
+      int64_t genome_id);
+  // Each metric's mean per (island, generation) over the run's genomes.
+  absl::StatusOr<
+      std::map<std::pair<uint32_t, uint32_t>, std::map<std::string, double>>>
+  MetricMeans(int64_t run_id);
+  // The `limit` workers seen last, newest first, with the sandbox column
+  // when the schema has one (worker_list.cc).
+  struct WorkerRow {
+    WorkerRecord worker;
+    std::optional<std::string> sandbox;
+  };
+  absl::StatusOr<std::vector<WorkerRow>> ListWorkers(int limit);
   // FAILED genomes of a run, newest first, at most `limit`; and how many.
   absl::StatusOr<std::vector<GenomeRecord>> FailedGenomes(int64_t run_id,
                                                           int limit);
@@ -375,10 +433,11 @@ class Store {
 
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
-      : path_(std::move(path)), conn_(std::move(conn)) {}
+      : path_(std::move(path)), raw_(conn->raw()), conn_(std::move(conn)) {}
   // The schema version stored (0 for an empty file); refuses foreign, damaged
   // and newer databases without writing anything.
   absl::StatusOr<int> StoredVersion() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<Digest> RunDigestUnnamed(int64_t run_id);
   absl::Status Migrate(int from_version) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status CommitGenerationLocked(const GenerationCommit& commit)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
@@ -392,6 +451,8 @@ class Store {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<ValidationRecord> RequestValidationLocked(
       const ValidationRequest& request) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status InsertMetricsLocked(const ResultUpdate& r)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status ApplyValidationsLocked(
       absl::Span<const ValidationUpdate> updates)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
@@ -404,9 +465,14 @@ class Store {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const std::string path_;
+  sqlite3* const raw_;  // conn_'s, for Interrupt only
   absl::Mutex mu_;
   std::unique_ptr<Connection> conn_ ABSL_GUARDED_BY(mu_);
 };
+
+// DATA_LOSS naming the first object whose schema differs from a fresh
+// database's of this version (Store::QuickCheck and `--check`).
+absl::Status VerifySchema(Connection* conn);
 
 }  // namespace skerry::store
 

@@ -148,10 +148,14 @@ class NetnsTest : public ::testing::Test {
     ASSERT_EQ(submit.exit_code, 0) << submit.output;
     for (int i = 0; i < 2; ++i) {
       absl::StatusOr<Process> w = Process::Start(
-          InNs(worker_ns_[i],
-               {SKERRY_WORKER_BIN, "--coordinator",
-                absl::StrCat(coordinator_ip_[i], ":", port_), "--threads", "2",
-                "--name", absl::StrCat("apart-", i)}),
+          InNs(
+              worker_ns_[i],
+              {SKERRY_WORKER_BIN, "--coordinator",
+               absl::StrCat(coordinator_ip_[i], ":", port_), "--threads", "2",
+               "--name", absl::StrCat("apart-", i),
+               // The evaluator program lives here; the sandbox shows only
+               // these folders to evaluator programs.
+               "--evaluator-dirs", SKERRY_SOURCE_DIR "/tests/deploy/programs"}),
           dir_.File(absl::StrCat("worker", i, ".log")));
       ASSERT_TRUE(w.ok()) << w.status();
       workers_.push_back(std::move(*w));

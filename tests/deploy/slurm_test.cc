@@ -172,14 +172,14 @@ class SlurmTest : public ::testing::Test {
   CommandResult SubmitWorkers(const std::vector<std::string>& options,
                               int idle_seconds) {
     std::vector<std::string> argv = {
-        "env",
-        "SLURM_CONF=" + conf_,
+        "env", "SLURM_CONF=" + conf_,
         "SKERRY_COORDINATOR=" + coordinator_->address(),
         std::string("SKERRY_WORKER=") + SKERRY_WORKER_BIN,
         absl::StrCat("SKERRY_IDLE_SECONDS=", idle_seconds),
-        "sbatch",
-        "--wait",
-        "--output=" + dir_.File("worker-%A_%a.log")};
+        // The evaluator program's folder, shown to the evaluator sandbox.
+        std::string("SKERRY_WORKER_FLAGS=--evaluator-dirs ") + SKERRY_SOURCE_DIR
+            "/tests/deploy/programs",
+        "sbatch", "--wait", "--output=" + dir_.File("worker-%A_%a.log")};
     argv.insert(argv.end(), options.begin(), options.end());
     argv.push_back(SKERRY_SOURCE_DIR "/deploy/slurm/skerry-workers.sbatch");
     return RunTool(argv, absl::Seconds(600));

@@ -8,6 +8,8 @@
 // are also written out by hand below, independent of the table.
 #include <dirent.h>
 
+#include <fstream>
+#include <iterator>
 #include <map>
 #include <set>
 #include <string>
@@ -43,7 +45,14 @@ std::vector<std::string> AllMethods() {
   if (dir == nullptr) return out;
   std::set<std::string> files;
   while (dirent* e = readdir(dir)) {
-    if (absl::EndsWith(e->d_name, ".proto")) files.insert(e->d_name);
+    if (!absl::EndsWith(e->d_name, ".proto")) continue;
+    // A file of storage messages only (strategy.proto) declares no service:
+    // nothing here to call, and a binary that does not use it may leave its
+    // generated code out.
+    std::ifstream in(absl::StrCat(SKERRY_PROTO_DIR, "/", e->d_name));
+    const std::string text((std::istreambuf_iterator<char>(in)),
+                           std::istreambuf_iterator<char>());
+    if (text.find("\nservice ") != std::string::npos) files.insert(e->d_name);
   }
   closedir(dir);
   for (const std::string& f : files) {

@@ -177,9 +177,10 @@ TEST_F(WatchTest,
   EXPECT_GT(last.dropped_updates(), 0u);
   // Its first write never completed until it read: it gets that summary, then
   // the newest (final) one with the count, and nothing in between.
+  // That it was not sent every update is what dropped_updates() > 0 says.
+  // (The readers may be coalesced down to two updates as well when 49
+  // threads share two cores, so their counts are no yardstick for it.)
   EXPECT_EQ(late.updates.size(), 2u);
-  EXPECT_LT(late.updates.size(), seen[0].updates.size())
-      << "the silent watcher was not sent every update";
   for (const RunSummary& s : late.updates) {
     EXPECT_LE(s.dropped_updates(), last.dropped_updates()) << "counts grow";
   }

@@ -35,6 +35,19 @@ TEST(ParseArgsTest, EnvironmentOverridesDefaultAndFlagOverridesEnvironment) {
   EXPECT_EQ(with_equals->coordinator, "lab-5:1");
 }
 
+TEST(ParseArgsTest, ReportTakesSeveralRunsAndDashOIsOut) {
+  auto parsed = Parse({"report", "1", "2", "3", "-o", "runs.html"});
+  ASSERT_TRUE(parsed.ok()) << parsed.status();
+  EXPECT_EQ(parsed->positionals, (std::vector<std::string>{"1", "2", "3"}));
+  EXPECT_EQ(parsed->Get("out"), "runs.html");
+  auto missing_out = Parse({"report", "1"});
+  EXPECT_THAT(std::string(missing_out.status().message()), HasSubstr("--out"));
+  // -o means --out only for commands that write a file.
+  EXPECT_FALSE(Parse({"list", "-o", "x"}).ok());
+  // A command with a fixed count still refuses extra arguments.
+  EXPECT_FALSE(Parse({"digest", "1", "2"}).ok());
+}
+
 TEST(ParseArgsTest, CoordinatorAfterTheCommandIsAcceptedToo) {
   auto parsed = Parse({"show", "4", "--coordinator", "h:2"});
   ASSERT_TRUE(parsed.ok()) << parsed.status();

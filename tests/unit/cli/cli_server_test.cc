@@ -1,5 +1,7 @@
 // The CLI against a real coordinator: over loopback TCP (port 0) with a real
 // gRPC channel, and `skerry local` with everything in one process.
+#include <unistd.h>
+
 #include <cstdio>
 #include <fstream>
 #include <memory>
@@ -34,8 +36,10 @@ using ::testing::Not;
 const std::string kQuickSpec =
     std::string(SKERRY_EXAMPLES_DIR) + "/sphere-quick.spec";
 
+// Per process: ctest runs these tests in parallel processes.
 std::string FreshDb(const std::string& name) {
-  std::string path = ::testing::TempDir() + "/" + name;
+  std::string path =
+      absl::StrCat(::testing::TempDir(), "/", getpid(), "-", name);
   for (const char* suffix : {"", "-wal", "-shm"}) {
     std::remove((path + suffix).c_str());
   }
@@ -96,6 +100,28 @@ class CoordinatorFixture : public ::testing::Test {
   std::unique_ptr<worker::Worker> worker_;
   std::thread worker_thread_;
 };
+
+TEST_F(CoordinatorFixture,
+       RetriedSubmitWithTheSameRequestIdReturnsTheFirstRun) {
+  absl::StatusOr<LoadedSpec> spec = LoadSpecFile(kQuickSpec);
+  ASSERT_TRUE(spec.ok()) << spec.status();
+  RunClient client(skerry::v1::RunService::NewStub(grpc::CreateChannel(
+                       target_, grpc::InsecureChannelCredentials())),
+                   target_);
+  auto first = client.Submit(spec->spec, spec->text, 0, "retry-me");
+  ASSERT_TRUE(first.ok()) << first.status();
+  auto again = client.Submit(spec->spec, spec->text, 0, "retry-me");
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(again->id(), first->id());
+  auto other = client.Submit(spec->spec, spec->text, 0, "another");
+  ASSERT_TRUE(other.ok()) << other.status();
+  EXPECT_NE(other->id(), first->id());
+  auto listed = client.List();
+  ASSERT_TRUE(listed.ok());
+  EXPECT_EQ(listed->size(), 2u);
+  auto bad = client.Submit(spec->spec, spec->text, 0, "has space");
+  EXPECT_TRUE(absl::IsInvalidArgument(bad.status())) << bad.status();
+}
 
 TEST_F(CoordinatorFixture, SubmitWatchShowHistoryAndChampionOverLoopback) {
   Result submitted =

@@ -14,6 +14,7 @@
 #include "gmock/gmock.h"
 #include "google/protobuf/text_format.h"
 #include "gtest/gtest.h"
+#include "server/engine/breeder.h"
 #include "tests/unit/cli/mock_run_service.h"
 
 namespace skerry::cli {
@@ -92,6 +93,7 @@ class CommandsTest : public ::testing::Test {
   Io io_;
   std::vector<absl::Duration> sleeps_;
   std::vector<std::string> targets_;
+  uint64_t run_id_ = 0;
 };
 
 TEST_F(CommandsTest, SubmitSendsSpecAndTextAndPrintsTheRunId) {
@@ -130,6 +132,72 @@ TEST_F(CommandsTest, SubmitSendsThePriorityGiven) {
           SetArgPointee<2>(response), Return(grpc::Status::OK)));
   EXPECT_EQ(Cli({"submit", path, "--priority", "3"}), kExitOk) << err_.str();
   EXPECT_EQ(sent.priority(), 3u);
+}
+
+TEST_F(CommandsTest, SubmitRetriesWithTheSameRequestIdWhenNothingAnswered) {
+  std::string path =
+      WriteTemp("retry.spec",
+                "name: \"t\" genome_length: 2\n"
+                "evaluator { builtin { function: \"sphere\" } }\n");
+  std::vector<std::string> ids;
+  v1::SubmitRunResponse response;
+  response.mutable_run()->set_id(43);
+  auto record = [&](grpc::ClientContext*, const v1::SubmitRunRequest& request,
+                    v1::SubmitRunResponse*) {
+    ids.push_back(request.request_id());
+  };
+  EXPECT_CALL(*mock_, SubmitRun(_, _, _))
+      .WillOnce(DoAll(Invoke(record),
+                      Return(grpc::Status(grpc::StatusCode::UNAVAILABLE,
+                                          "failed to connect"))))
+      .WillOnce(DoAll(Invoke(record), SetArgPointee<2>(response),
+                      Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"submit", path}), kExitOk) << err_.str();
+  EXPECT_EQ(out_.str(), "43\n");
+  ASSERT_EQ(ids.size(), 2u);
+  EXPECT_GE(ids[0].size(), 16u);
+  EXPECT_EQ(ids[0], ids[1]);  // the retry is the same submission
+  EXPECT_EQ(sleeps_.size(), 1u);
+}
+
+TEST_F(CommandsTest, EachInvocationMakesItsOwnRequestId) {
+  std::string path =
+      WriteTemp("ids.spec",
+                "name: \"t\" genome_length: 2\n"
+                "evaluator { builtin { function: \"sphere\" } }\n");
+  std::vector<std::string> ids;
+  v1::SubmitRunResponse response;
+  response.mutable_run()->set_id(44);
+  EXPECT_CALL(*mock_, SubmitRun(_, _, _))
+      .Times(2)
+      .WillRepeatedly(DoAll(
+          Invoke([&](grpc::ClientContext*, const v1::SubmitRunRequest& request,
+                     v1::SubmitRunResponse*) {
+            ids.push_back(request.request_id());
+          }),
+          SetArgPointee<2>(response), Return(grpc::Status::OK)));
+  EXPECT_EQ(SubmitCommand(*client_, path, io_, &run_id_), kExitOk);
+  EXPECT_EQ(SubmitCommand(*client_, path, io_, &run_id_), kExitOk);
+  ASSERT_EQ(ids.size(), 2u);
+  EXPECT_NE(ids[0], ids[1]);
+}
+
+TEST_F(CommandsTest, UnavailableTheCoordinatorAnsweredIsNotUnreachable) {
+  EXPECT_CALL(*mock_, ListRuns(_, _, _))
+      .WillOnce(Return(grpc::Status(grpc::StatusCode::UNAVAILABLE,
+                                    "results could not be stored",
+                                    kAnsweredUnavailable)));
+  EXPECT_EQ(Cli({"list"}), kExitFailure);
+  EXPECT_THAT(err_.str(), HasSubstr("answered: unavailable"));
+  EXPECT_THAT(err_.str(), ::testing::Not(HasSubstr("cannot reach")));
+}
+
+TEST_F(CommandsTest, UnavailableWithNoAnswerIsUnreachable) {
+  EXPECT_CALL(*mock_, ListRuns(_, _, _))
+      .WillOnce(Return(
+          grpc::Status(grpc::StatusCode::UNAVAILABLE, "failed to connect")));
+  EXPECT_EQ(Cli({"list"}), kExitUnreachable);
+  EXPECT_THAT(err_.str(), HasSubstr("cannot reach"));
 }
 
 TEST_F(CommandsTest, SubmitRefusesAPriorityOutOfRangeWithoutCalling) {
@@ -461,6 +529,55 @@ TEST_F(CommandsTest, ChampionPrintsTheGenomeWithTheSpecName) {
   EXPECT_THAT(
       out_.str(),
       HasSubstr("key         run 3 / island 1 / generation 9 / slot 4\n"));
+}
+
+TEST_F(CommandsTest, ChampionShowsTheSeedItsEvaluatorWasGiven) {
+  EXPECT_CALL(*mock_, GetRun(_, _, _))
+      .WillOnce(
+          DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
+  EXPECT_CALL(*mock_, GetChampion(_, _, _))
+      .WillOnce(DoAll(SetArgPointee<2>(Champion()), Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"champion", "3"}), kExitOk);
+  // The seed the coordinator puts in the genome's task (engine.cc).
+  const v1::GenomeKey k = Champion().genome().key();
+  EXPECT_THAT(out_.str(), HasSubstr(absl::StrCat(
+                              "eval seed   ",
+                              engine::EvalSeed(RunningRun().spec(), k.island(),
+                                               k.generation(), k.slot()),
+                              "\n")));
+}
+
+TEST_F(CommandsTest, NetworkWritesTheChampionsNetworkWithItsSeed) {
+  v1::GetRunResponse run = RunningRun();
+  v1::NetworkSpec* net =
+      run.mutable_spec()->mutable_evaluator()->mutable_network();
+  net->set_inputs(2);
+  v1::LayerSpec* out = net->add_layers();  // one neuron: 2 weights, a bias
+  out->set_size(1);
+  out->set_activation(v1::ACTIVATION_TANH);
+  v1::GetChampionResponse champion = Champion();
+  champion.mutable_genome()->clear_genes();
+  for (double g : {0.5, -1.0, 0.25}) champion.mutable_genome()->add_genes(g);
+  EXPECT_CALL(*mock_, GetRun(_, _, _))
+      .WillOnce(DoAll(SetArgPointee<2>(run), Return(grpc::Status::OK)));
+  EXPECT_CALL(*mock_, GetChampion(_, _, _))
+      .WillOnce(DoAll(SetArgPointee<2>(champion), Return(grpc::Status::OK)));
+  const std::string path = ::testing::TempDir() + "/network.json";
+  EXPECT_EQ(Cli({"network", "3", "-o", path}), kExitOk) << err_.str();
+  std::stringstream written;
+  written << std::ifstream(path).rdbuf();
+  EXPECT_THAT(written.str(), HasSubstr("skerry-network"));
+  EXPECT_THAT(written.str(), HasSubstr("evaluation_seed"));
+  EXPECT_THAT(written.str(), HasSubstr("-1"));
+}
+
+TEST_F(CommandsTest, NetworkOfARunWithoutNetworksSaysWhy) {
+  EXPECT_CALL(*mock_, GetRun(_, _, _))
+      .WillOnce(
+          DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
+  EXPECT_EQ(Cli({"network", "3", "-o", ::testing::TempDir() + "/n.json"}),
+            kExitFailure);
+  EXPECT_THAT(err_.str(), HasSubstr("not networks"));
 }
 
 TEST_F(CommandsTest, ChampionJsonGoesToTheOutFile) {

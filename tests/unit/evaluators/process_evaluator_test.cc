@@ -19,6 +19,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "common/clock.h"
+#include "common/episodes.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "tests/support/process.h"
@@ -369,8 +370,16 @@ TEST(ProcessEvaluatorTest, EpisodesSendOneRequestEachAndAggregate) {
     absl::StatusOr<double> score = e->Evaluate(kGenes, 42);
     ASSERT_TRUE(score.ok()) << score.status();
     EXPECT_DOUBLE_EQ(*score, c.expected);
-    // The last episode got its own seed, not the evaluation seed.
+    // Each episode got its own seed, not the evaluation seed, and a metric
+    // is its mean over the episodes.
+    double mean_seed_low = 0;
+    for (uint32_t ep = 0; ep < 4; ++ep) {
+      mean_seed_low +=
+          static_cast<double>(EpisodeStream(42, ep).NextU64() % (1ull << 32)) /
+          4;
+    }
     EXPECT_NE(e->last_metrics().at("seed_low"), 42.0);
+    EXPECT_DOUBLE_EQ(e->last_metrics().at("seed_low"), mean_seed_low);
   }
 }
 

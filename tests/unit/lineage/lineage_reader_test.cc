@@ -296,11 +296,18 @@ TEST_F(LineageReaderTest, CoalescenceCountsDistinctAncestorsPerGeneration) {
 }
 
 TEST_F(LineageReaderTest, DanglingParentLinkIsDataLossNamingIt) {
-  skerry::testing::RawExec(
-      dir_.File("graph.db"),
-      "INSERT INTO genomes (id, run_id, island, generation, slot, origin, "
-      "parent_a, genes, score, eval_state) VALUES "
-      "(40, 1, 0, 4, 0, 4, 99, x'0000000000000000', 1, 2)");
+  // Through a Skerry connection: the row's checksum is right, only its
+  // parent link dangles.
+  auto conn =
+      store::Connection::Open(dir_.File("graph.db"), SQLITE_OPEN_READWRITE);
+  ASSERT_TRUE(conn.ok()) << conn.status();
+  ASSERT_TRUE((*conn)
+                  ->Exec("INSERT INTO genomes (id, run_id, island, generation, "
+                         "slot, origin, parent_a, genes, score, eval_state) "
+                         "VALUES (40, 1, 0, 4, 0, 4, 99, x'0000000000000000', "
+                         "1, 2)")
+                  .ok());
+  conn->reset();
   auto line = reader_->LineOfDescent(Id(40));
   EXPECT_TRUE(absl::IsDataLoss(line.status())) << line.status();
   EXPECT_THAT(t::Message(line.status()), HasSubstr("#99"));

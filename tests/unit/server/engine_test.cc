@@ -480,6 +480,32 @@ TEST_F(EngineTest, NonFiniteScoreCountsAsAFailedAttempt) {
   (void)run_id;
 }
 
+TEST_F(EngineTest, MetricsBeyondTheirBoundsMakeAFailedAttemptAndAreNotStored) {
+  std::unique_ptr<Coordinator> c = Open();
+  ASSERT_NE(c, nullptr);
+  RunSpec spec = SmallSpec();
+  spec.set_max_attempts(1);
+  Submit(*c, spec);
+  std::vector<Task> tasks = c->queue->Lease(kWorker, 2, absl::ZeroDuration());
+  ASSERT_EQ(tasks.size(), 2u);
+  // The first result's metrics are fine; the second's name has a space.
+  int n = 0;
+  auto scorer = [&n](const Task& t, const GenomeRecord& g) {
+    TaskResult r = TrueSphere(t, g);
+    (*r.mutable_metrics())[n++ == 0 ? "ok_name" : "bad name"] = 1.5;
+    return r;
+  };
+  EXPECT_EQ(ReportTasks(*c, tasks, scorer).accepted, 2u);
+  auto good = c->store->GetGenome(static_cast<int64_t>(tasks[0].task_id()));
+  auto bad = c->store->GetGenome(static_cast<int64_t>(tasks[1].task_id()));
+  ASSERT_TRUE(good.ok() && bad.ok());
+  EXPECT_EQ(good->state, skerry::v1::EVALUATED);
+  EXPECT_EQ(c->store->GetGenomeMetrics(good->id)->at("ok_name"), 1.5);
+  EXPECT_EQ(bad->state, skerry::v1::FAILED);
+  EXPECT_THAT(bad->error, HasSubstr("\"bad name\" may hold only"));
+  EXPECT_TRUE(c->store->GetGenomeMetrics(bad->id)->empty());
+}
+
 TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
   std::unique_ptr<Coordinator> c = Open();
   ASSERT_NE(c, nullptr);

@@ -118,5 +118,60 @@ TEST(GroupCommitTest, IdleRunsWithoutReportsAndSubmitAfterShutdownFails) {
   EXPECT_TRUE(absl::IsUnavailable(gc.Submit(1, results).status()));
 }
 
+// A commit that hangs (a stuck disk) does not hold a shutdown forever: after
+// the grace the committer is interrupted (the store's sqlite3_interrupt, in
+// the engine), its callers are told to report again, and Shutdown returns.
+TEST(GroupCommitTest, ShutdownInterruptsACommitThatDoesNotEnd) {
+  absl::Notification applying, interrupted;
+  GroupCommit::Callbacks cb;
+  cb.apply = [&](absl::Span<ReportJob* const> jobs,
+                 const std::function<void()>& answer) {
+    applying.Notify();
+    // Bounded: a broken interrupt fails the test instead of hanging it.
+    const bool ok =
+        interrupted.WaitForNotificationWithTimeout(absl::Seconds(60));
+    for (ReportJob* j : jobs) {
+      j->status =
+          absl::UnavailableError(ok ? "interrupted" : "never interrupted");
+    }
+    answer();
+  };
+  cb.idle = [] {};
+  std::atomic<int> interrupts{0};
+  cb.interrupt = [&] {
+    if (interrupts.fetch_add(1) == 0) interrupted.Notify();
+  };
+  GroupCommit gc(std::move(cb), Clock::Real(), absl::Milliseconds(10),
+                 absl::Milliseconds(50));
+  gc.Start();
+  const auto results = Results(1);
+  absl::StatusOr<ReportOutcome> out;
+  std::thread caller([&] { out = gc.Submit(1, results); });
+  ASSERT_TRUE(applying.WaitForNotificationWithTimeout(absl::Seconds(30)));
+  gc.Shutdown();
+  caller.join();
+  EXPECT_GE(interrupts.load(), 1);
+  EXPECT_TRUE(absl::IsUnavailable(out.status())) << out.status();
+  EXPECT_EQ(out.status().message(), "interrupted");
+}
+
+// The coordinator's main thread and the engine's destructor may both shut
+// down: both return, the committer joined once.
+TEST(GroupCommitTest, ShutdownFromTwoThreadsAtOnceReturnsInBoth) {
+  GroupCommit::Callbacks cb;
+  cb.apply = [](absl::Span<ReportJob* const>,
+                const std::function<void()>& answer) { answer(); };
+  cb.idle = [] {};
+  GroupCommit gc(std::move(cb), Clock::Real(), absl::Milliseconds(1));
+  gc.Start();
+  std::thread a([&] { gc.Shutdown(); });
+  std::thread b([&] { gc.Shutdown(); });
+  a.join();
+  b.join();
+  gc.Shutdown();  // and once more, after both
+  const auto results = Results(1);
+  EXPECT_TRUE(absl::IsUnavailable(gc.Submit(1, results).status()));
+}
+
 }  // namespace
 }  // namespace skerry::engine

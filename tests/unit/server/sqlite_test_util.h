@@ -27,6 +27,23 @@ inline std::string ReadFileBytes(const std::string& path) {
                      std::istreambuf_iterator<char>());
 }
 
+// SQL that takes a database back from schema version 6 to version 5 (its
+// checksum triggers, index and columns; SQLite 3.35+ drops columns), for
+// tests that build an older database from a current one.
+inline constexpr char kUndoVersion6[] =
+    "DROP TRIGGER runs_sum_insert; DROP TRIGGER runs_sum_update; "
+    "DROP TRIGGER islands_sum_insert; DROP TRIGGER islands_sum_update; "
+    "DROP TRIGGER genomes_sum_insert; DROP TRIGGER genomes_sum_update; "
+    "DROP TRIGGER generation_stats_sum_insert; "
+    "DROP TRIGGER generation_stats_sum_update; DROP INDEX runs_request; "
+    "ALTER TABLE runs DROP COLUMN sum; ALTER TABLE runs DROP COLUMN "
+    "request_id; ALTER TABLE islands DROP COLUMN sum; ALTER TABLE genomes DROP "
+    "COLUMN sum; ALTER TABLE generation_stats DROP COLUMN sum; ";
+
+// SQL that takes a database back from schema version 9 to version 8 (the
+// strategy states; their checksum triggers go with the table).
+inline constexpr char kUndoVersion9[] = "DROP TABLE strategy_states; ";
+
 // Runs SQL on a raw connection of our own (not the store's).
 inline void RawExec(const std::string& path, const std::string& sql) {
   sqlite3* db = nullptr;

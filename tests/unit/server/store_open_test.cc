@@ -10,6 +10,7 @@
 #include "absl/strings/str_cat.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "server/store/check.h"
 #include "server/store/store.h"
 #include "tests/support/process.h"
 #include "tests/unit/server/sqlite_test_util.h"
@@ -24,6 +25,7 @@ using skerry::testing::RawQuery;
 using skerry::testing::ReadFileBytes;
 using skerry::testing::TempDir;
 using ::testing::HasSubstr;
+using ::testing::Not;
 
 // A fresh store in a temporary folder (store_fixture.h).
 using StoreOpenTest = StoreTest;
@@ -43,20 +45,50 @@ TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
   EXPECT_EQ((*again)->path(), path());
 }
 
+// A version-5 database gets its rows' checksums computed by the migration:
+// its data reads back, and --check finds every row sound.
+TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
+  RunRecord run = MakeRun(SmallSpec(2));
+  std::vector<GenomeRecord> genomes = Generation0(2, 4);
+  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
+  store_.reset();
+  RawExec(path(), std::string(skerry::testing::kUndoVersion9) +
+                      std::string("DROP TABLE genome_metrics; "
+                                  "ALTER TABLE workers DROP COLUMN sandbox; ") +
+                      skerry::testing::kUndoVersion6 +
+                      "UPDATE genomes SET score = 7.5, eval_state = 2, "
+                      "attempts = 1 WHERE slot = 1; "
+                      "UPDATE schema_version SET version = 5;");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  absl::StatusOr<std::vector<GenomeRecord>> gen =
+      (*again)->GetGeneration(run.id, 1, 0);
+  ASSERT_TRUE(gen.ok()) << gen.status();
+  EXPECT_EQ((*gen)[1].score, 7.5);
+  EXPECT_TRUE((*again)->QuickCheck().ok());
+  again->reset();
+  absl::StatusOr<CheckReport> report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_THAT(report->ToString(), Not(HasSubstr("checksum")));
+}
+
 // A version-1 database (as this project shipped it first) is migrated forward
 // in place: the version becomes current and the indexes of versions 2 and 3
 // and the validations table of version 4 appear, with the data kept.
 TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(path(),
-          "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
-          "DROP INDEX genomes_failed; DROP TABLE validations; "
-          "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
-          "DROP TABLE strategy_states; "
-          "ALTER TABLE workers DROP COLUMN sandbox; "
-          "UPDATE schema_version SET version = 1; "
-          "INSERT INTO workers (name, host, threads, evaluators, version, "
-          "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
+          std::string(skerry::testing::kUndoVersion9) +
+              std::string("DROP TABLE genome_metrics; "
+                          "ALTER TABLE workers DROP COLUMN sandbox; ") +
+              skerry::testing::kUndoVersion6 +
+              "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
+              "DROP INDEX genomes_failed; DROP TABLE validations; "
+              "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
+              "UPDATE schema_version SET version = 1; "
+              "INSERT INTO workers (name, host, threads, evaluators, version, "
+              "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   absl::StatusOr<int> v = (*again)->SchemaVersion();
@@ -75,12 +107,14 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
 // joined before it keep their rows with an empty sandbox.
 TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   store_.reset();
-  RawExec(
-      path(),
-      "ALTER TABLE workers DROP COLUMN sandbox; DROP TABLE strategy_states; "
-      "UPDATE schema_version SET version = 5; "
-      "INSERT INTO workers (name, host, threads, evaluators, version, "
-      "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
+  RawExec(path(),
+          std::string(skerry::testing::kUndoVersion9) +
+              std::string("DROP TABLE genome_metrics; "
+                          "ALTER TABLE workers DROP COLUMN sandbox; ") +
+              skerry::testing::kUndoVersion6 +
+              "UPDATE schema_version SET version = 5; "
+              "INSERT INTO workers (name, host, threads, evaluators, version, "
+              "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
@@ -94,6 +128,45 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   ASSERT_TRUE((*again)->RegisterWorker(w).ok());
   EXPECT_EQ(RawQuery(path(), "SELECT sandbox FROM workers WHERE name = 'new'"),
             "bwrap");
+}
+
+// A database of the version before the metrics migration gains the
+// genome_metrics table and keeps its data.
+TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
+  store_.reset();
+  RawExec(
+      path(),
+      std::string(skerry::testing::kUndoVersion9) +
+          "DROP TABLE genome_metrics; "
+          "UPDATE schema_version SET version = 7; "
+          "INSERT INTO workers (name, host, threads, evaluators, version, "
+          "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(RawQuery(path(),
+                     "SELECT count(*) FROM sqlite_master WHERE name IN "
+                     "('genome_metrics', 'genome_metrics_run')"),
+            "2");
+  EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "kept");
+}
+
+// Regression: a flipped bit in the header's write version (byte 18) made
+// SQLite open the file read-only without a word; every commit then failed and
+// the coordinator held its work forever (found by the corruption sweep).
+TEST_F(StoreOpenTest, HeaderThatForbidsWritingIsRefusedAtOpenNotAStall) {
+  store_.reset();
+  std::string bytes = ReadFileBytes(path());
+  ASSERT_GT(bytes.size(), 100u);
+  bytes[18] = 3;  // SQLite file format: write version 3 is read-only
+  {
+    std::ofstream out(path(), std::ios::binary | std::ios::trunc);
+    out.write(bytes.data(), static_cast<std::streamsize>(bytes.size()));
+  }
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path());
+  EXPECT_TRUE(absl::IsFailedPrecondition(store.status())) << store.status();
+  EXPECT_THAT(Message(store.status()), HasSubstr("can only be read"));
+  EXPECT_EQ(ReadFileBytes(path()), bytes);  // nothing was changed
 }
 
 TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {

@@ -147,6 +147,29 @@ TEST_F(StoreTest, CommitResultsStoresScoresAndCountsEvaluations) {
   EXPECT_EQ(stored->evaluations, 1) << "only the final result counts";
 }
 
+TEST_F(StoreTest, CommitResultsStoresMetricsWithTheScore) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(1, &genomes);
+  std::vector<ResultUpdate> updates(1);
+  updates[0].genome_id = genomes[0].id;
+  updates[0].run_id = run.id;
+  updates[0].state = skerry::v1::EVALUATED;
+  updates[0].score = 1;
+  updates[0].attempts = 1;
+  updates[0].metrics = {{"max_temp_c", 22.5}, {"vent_travel", 1.75}};
+  ASSERT_TRUE(store_->CommitResults(updates).ok());
+  absl::StatusOr<std::map<std::string, double>> m =
+      store_->GetGenomeMetrics(genomes[0].id);
+  ASSERT_TRUE(m.ok()) << m.status();
+  EXPECT_EQ(*m, updates[0].metrics);
+  EXPECT_TRUE(store_->GetGenomeMetrics(genomes[1].id)->empty());
+  auto means = store_->MetricMeans(run.id);
+  ASSERT_TRUE(means.ok());
+  const std::pair<uint32_t, uint32_t> key(genomes[0].island,
+                                          genomes[0].generation);
+  EXPECT_EQ((*means)[key].at("vent_travel"), 1.75);
+}
+
 TEST_F(StoreTest, CommitResultsRefusesBatchWithNonPendingGenomeAndAppliesNone) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(1, &genomes);

@@ -1,13 +1,19 @@
 // Tests for the strategy states of server/store/store.h (schema version 9):
 // stored with generation 0 and with each bred generation, in the same
-// transaction; migrated databases get an empty state; --check verifies them.
+// transaction, each row with its checksum (row_sums.h); migrated databases
+// get an empty state; --check verifies them; a one-run backup carries them.
+#include <sqlite3.h>
+
+#include <fstream>
 #include <memory>
 #include <string>
 #include <vector>
 
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "server/store/backup.h"
 #include "server/store/check.h"
+#include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "skerry/v1/strategy.pb.h"
 #include "tests/unit/server/sqlite_test_util.h"
@@ -18,6 +24,7 @@ namespace {
 
 using skerry::testing::RawExec;
 using skerry::testing::RawQuery;
+using skerry::testing::ReadFileBytes;
 using ::testing::HasSubstr;
 
 using StrategyStateStoreTest = StoreTest;
@@ -27,6 +34,15 @@ std::string GaState(uint32_t generation) {
   s.set_generation(generation);
   s.mutable_ga();
   return s.SerializeAsString();
+}
+
+// Runs `sql` on a connection of Skerry's own, which keeps the row checksums
+// right: an edit only the content rules can find.
+void SkerryExec(const std::string& path, const std::string& sql) {
+  absl::StatusOr<std::unique_ptr<Connection>> conn =
+      Connection::Open(path, SQLITE_OPEN_READWRITE);
+  ASSERT_TRUE(conn.ok()) << conn.status();
+  EXPECT_TRUE((*conn)->Exec(sql).ok()) << sql;
 }
 
 // Generation 1 of island 0, four genomes made from `genomes` (generation 0).
@@ -146,7 +162,7 @@ TEST_F(StrategyStateStoreTest, CheckReportsAMissingState) {
 TEST_F(StrategyStateStoreTest, CheckReportsAStateThatDoesNotParse) {
   std::vector<GenomeRecord> genomes;
   CreateRun(1, &genomes);
-  RawExec(path(), "UPDATE strategy_states SET state = x'ffffffff'");
+  SkerryExec(path(), "UPDATE strategy_states SET state = x'ffffffff'");
   absl::StatusOr<CheckReport> report = CheckDatabase(path());
   ASSERT_TRUE(report.ok()) << report.status();
   EXPECT_THAT(report->ToString(),
@@ -165,12 +181,80 @@ TEST_F(StrategyStateStoreTest, CheckReportsAStateOfAnotherGeneration) {
   absl::StatusOr<CheckReport> report = CheckDatabase(path());
   ASSERT_TRUE(report.ok());
   EXPECT_TRUE(report->ok()) << report->ToString();
-  RawExec(path(), "UPDATE strategy_states SET generation = 0, state = x'1200'");
+  SkerryExec(path(),
+             "UPDATE strategy_states SET generation = 0, state = x'1200'");
   report = CheckDatabase(path());
   ASSERT_TRUE(report.ok());
   EXPECT_THAT(report->ToString(),
               HasSubstr("run 1 island 0: strategy state is of generation 0, "
                         "the island is at 1"));
+}
+
+// Schema version 9 keeps a checksum on every state row: a flipped bit in a
+// stored state is DATA_LOSS naming run and island where the engine reads it,
+// and `--check` names it too.
+TEST_F(StrategyStateStoreTest, FlippedStateBitIsDataLossOnReadAndInCheck) {
+  RunRecord run = MakeRun(SmallSpec(2));
+  std::vector<GenomeRecord> genomes = Generation0(2, 4);
+  const std::string marked = "a state marked 5eb1a2c3 for finding";
+  const std::vector<std::string> states = {"", marked};
+  ASSERT_TRUE(store_->CreateRun(&run, &genomes, &states).ok());
+  store_.reset();  // the WAL folds into the file
+  std::string bytes = ReadFileBytes(path());
+  const size_t at = bytes.find(marked);
+  ASSERT_NE(at, std::string::npos);
+  bytes[at + 3] = static_cast<char>(bytes[at + 3] ^ 0x10);
+  {
+    std::ofstream out(path(), std::ios::binary | std::ios::trunc);
+    out.write(bytes.data(), static_cast<std::streamsize>(bytes.size()));
+  }
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  absl::StatusOr<std::map<uint32_t, std::string>> read =
+      (*again)->GetStrategyStates(run.id);
+  EXPECT_TRUE(absl::IsDataLoss(read.status())) << read.status();
+  EXPECT_THAT(std::string(read.status().message()),
+              HasSubstr("run 1 island 1 strategy state"));
+  EXPECT_TRUE(absl::IsDataLoss((*again)->VerifyActiveRun(run.id)));
+  again->reset();
+  absl::StatusOr<CheckReport> report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_THAT(report->ToString(),
+              HasSubstr("run 1 island 1: strategy state does not match its "
+                        "checksum (damaged)"));
+}
+
+TEST_F(StrategyStateStoreTest, HandEditOfAStateWithoutSkerrysConnectionFails) {
+  std::vector<GenomeRecord> genomes;
+  CreateRun(1, &genomes);
+  store_.reset();
+  sqlite3* db = nullptr;
+  ASSERT_EQ(sqlite3_open(path().c_str(), &db), SQLITE_OK);
+  char* err = nullptr;
+  EXPECT_NE(sqlite3_exec(db, "UPDATE strategy_states SET state = x'00'",
+                         nullptr, nullptr, &err),
+            SQLITE_OK);
+  EXPECT_THAT(std::string(err != nullptr ? err : ""),
+              HasSubstr("skerry_row_sum"));
+  sqlite3_free(err);
+  sqlite3_close(db);
+}
+
+// Regression: a backup of one run left its strategy states behind, so the
+// copy failed `--check` ("no strategy state") and a run restored from it
+// could not continue its CMA-ES.
+TEST_F(StrategyStateStoreTest, BackupOfOneRunCarriesItsStrategyStates) {
+  RunRecord run = MakeRun(SmallSpec(2));
+  std::vector<GenomeRecord> genomes = Generation0(2, 4);
+  const std::vector<std::string> states = {GaState(0), GaState(0)};
+  ASSERT_TRUE(store_->CreateRun(&run, &genomes, &states).ok());
+  store_.reset();
+  const std::string copy = dir_.File("one-run.db");
+  ASSERT_TRUE(BackupDatabase(path(), run.id, copy).ok());
+  absl::StatusOr<CheckReport> report = CheckDatabase(copy);
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_TRUE(report->ok()) << report->ToString();
+  EXPECT_EQ(RawQuery(copy, "SELECT count(*) FROM strategy_states"), "2");
 }
 
 }  // namespace
