@@ -134,7 +134,10 @@ TEST_F(SeriesTest, SeriesIsSubmittedAtomicallyListedSteeredAndChecked) {
   ASSERT_EQ(list.exit_code, 0) << list.output;
   EXPECT_THAT(list.output, HasSubstr("series low-rate (4 runs)"));
   EXPECT_THAT(list.output, HasSubstr("series ring-sphere-2 (1 run)"));
-  EXPECT_THAT(list.output, Not(HasSubstr("\n7 ")));  // nothing half-made
+  // The refused series made no run: runs 1 to 6 are all there is.
+  CommandResult seventh = Cli({"show", "7"});
+  EXPECT_EQ(seventh.exit_code, 1) << seventh.output;
+  EXPECT_THAT(seventh.output, HasSubstr("7"));
 
   CommandResult pause = Cli({"series", "pause", "low-rate"});
   ASSERT_EQ(pause.exit_code, 0) << pause.output;
@@ -253,6 +256,48 @@ TEST_F(SeriesTest, ExtendedRunEqualsLongerRunFromTheStart) {
   CommandResult check =
       RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_}, absl::Seconds(60));
   EXPECT_EQ(check.exit_code, 0) << check.output;
+}
+
+// The other stop rules: a target moved further and a larger evaluation
+// budget, on two islands (where the target rule makes a faster island's
+// generations past the stop generation be discarded at the first finish).
+TEST_F(SeriesTest, ExtendedTargetAndBudgetEqualRunsGivenThemFromTheStart) {
+  const std::string base = R"(
+name: "sphere-two-islands"
+seed: 5
+genome_length: 4
+evaluator { builtin { function: "sphere" } }
+ga { population_size: 10 mutation { rate: 0.3 step: 0.3 } elites: 1 }
+islands { count: 2 topology: RING interval: 2 migrants: 1 }
+)";
+  const std::string near = WriteSpec(
+      "near.spec", base + "stop { target_score: 1.0 max_generations: 80 }");
+  const std::string far = WriteSpec(
+      "far.spec", base + "stop { target_score: 0.01 max_generations: 80 }");
+  const std::string small =
+      WriteSpec("small.spec", base + "stop { max_evaluations: 150 }");
+  const std::string large =
+      WriteSpec("large.spec", base + "stop { max_evaluations: 600 }");
+  for (const std::string& spec : {near, small, far, large}) {
+    ASSERT_EQ(Cli({"submit", spec}).exit_code, 0);  // runs 1 to 4
+  }
+  StartWorkers(2);
+  const std::string near_digest = Finish(1);
+  const std::string small_digest = Finish(2);
+  CommandResult wrong_way = Cli({"extend", "1", "--target", "2"});
+  EXPECT_EQ(wrong_way.exit_code, 1);
+  EXPECT_THAT(wrong_way.output, HasSubstr("minimising: it may only go down"));
+  ASSERT_EQ(Cli({"extend", "1", "--target", "0.01"}).exit_code, 0);
+  ASSERT_EQ(Cli({"extend", "2", "--evaluations", "600"}).exit_code, 0);
+  const std::string far_digest = Finish(3);
+  const std::string large_digest = Finish(4);
+  EXPECT_EQ(Finish(1), far_digest);
+  EXPECT_EQ(Finish(2), large_digest);
+  EXPECT_NE(near_digest, far_digest);
+  EXPECT_NE(small_digest, large_digest);
+  EXPECT_THAT(Cli({"show", "1"}).output, HasSubstr("target score reached"));
+  EXPECT_THAT(Cli({"show", "2"}).output,
+              HasSubstr("evaluation budget (600) reached"));
 }
 
 }  // namespace
