@@ -140,7 +140,8 @@ std::vector<CommandSpec> CompareCommandSpecs() {
        "& Fan definition 7); with --target, how many runs reached X and the "
        "median evaluations they took; and between each two groups the "
        "Mann-Whitney U rank-sum test on the best score at the last "
-       "checkpoint, two-sided, with its p-value, exact for small samples "
+       "checkpoint every group reached, two-sided, with its p-value, exact for "
+       "small samples "
        "without ties, else the normal approximation with tie and continuity "
        "correction (the output says which)."},
   };

@@ -4,8 +4,8 @@
 // median and quartiles of the best score its runs had reached by then; the
 // success rate at a target score, with the evaluations it took; and, between
 // each two groups, the Mann-Whitney U rank-sum test on the best score at the
-// last checkpoint (common/rank_sum.h), saying whether its p-value is exact or
-// a normal approximation.
+// last checkpoint every group reached (common/rank_sum.h), saying whether its
+// p-value is exact or a normal approximation.
 //
 // A run's best score against evaluations is read from its per-generation
 // statistics (GetHistory): generations are taken in order of generation, then
