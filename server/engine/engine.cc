@@ -278,14 +278,7 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   std::vector<GenomeRecord> genomes;
   std::vector<std::unique_ptr<Strategy>> strategies;
   std::vector<std::string> states;
-  for (uint32_t i = 0; i < prepared.islands().count(); ++i) {
-    SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<Strategy> strategy,
-                            MakeStrategy(prepared, i));
-    SKERRY_ASSIGN_OR_RETURN(std::vector<GenomeRecord> g0, strategy->Start());
-    for (GenomeRecord& g : g0) genomes.push_back(std::move(g));
-    states.push_back(strategy->Save().SerializeAsString());
-    strategies.push_back(std::move(strategy));
-  }
+  SKERRY_RETURN_IF_ERROR(SeedIslands(prepared, &genomes, &strategies, &states));
   absl::MutexLock l(&mu_);
   store::RunRecord rec;
   rec.name = prepared.name();
@@ -301,6 +294,29 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
     return s;
   }
 
+  Activate(rec, std::move(genomes), std::move(strategies));
+  return rec;
+}
+
+absl::Status Engine::SeedIslands(
+    const RunSpec& prepared, std::vector<GenomeRecord>* genomes,
+    std::vector<std::unique_ptr<Strategy>>* strategies,
+    std::vector<std::string>* states) {
+  for (uint32_t i = 0; i < prepared.islands().count(); ++i) {
+    SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<Strategy> strategy,
+                            MakeStrategy(prepared, i));
+    SKERRY_ASSIGN_OR_RETURN(std::vector<GenomeRecord> g0, strategy->Start());
+    for (GenomeRecord& g : g0) genomes->push_back(std::move(g));
+    states->push_back(strategy->Save().SerializeAsString());
+    strategies->push_back(std::move(strategy));
+  }
+  return absl::OkStatus();
+}
+
+void Engine::Activate(const store::RunRecord& rec,
+                      std::vector<GenomeRecord> genomes,
+                      std::vector<std::unique_ptr<Strategy>> strategies) {
+  const RunSpec& prepared = rec.spec;
   auto run = std::make_unique<Run>();
   run->record = rec;
   run->evaluator =
@@ -317,10 +333,9 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   }
   Run& r = *run;
   runs_[rec.id] = std::move(run);
-  queue_->SetWeight(rec.id, priority);
+  queue_->SetWeight(rec.id, static_cast<uint32_t>(rec.priority));
   for (const Island& island : r.islands) QueueIsland(r, island);
   NotifyChange();
-  return rec;
 }
 
 absl::Status Engine::Pause(int64_t run_id) {

@@ -114,6 +114,20 @@ class Engine {
                                           std::string owner,
                                           uint32_t priority = 0,
                                           std::string request_id = "");
+  // A seed series (engine_series.cc): one run of `spec` per seed (the spec's
+  // own seed replaced), all stored with the series in one transaction, or
+  // none. `series` names it (Store::CreateSeries refuses a name in use);
+  // members and ids are filled in.
+  absl::StatusOr<std::vector<store::RunRecord>> SubmitSeries(
+      skerry::v1::RunSpec spec, std::string spec_text,
+      store::SeriesRecord* series, uint32_t priority = 0);
+  // Raises an ended run's stop rule to `stop` and lets it go on
+  // (engine_series.cc; study.proto ExtendRunRequest says what may change).
+  // InvalidArgument names a field that would lower the rule;
+  // FailedPrecondition a run that is not FINISHED or STOPPED, or one whose
+  // strategy is not the GA (a CMA-ES state may be of a generation trimmed
+  // at the finish).
+  absl::Status Extend(int64_t run_id, const skerry::v1::StopSpec& stop);
   // Stores a run's new priority (1 to 1000, else InvalidArgument naming the
   // field) and gives the queue the new weight. Any run, ended ones too.
   absl::Status SetPriority(int64_t run_id, uint32_t priority);
@@ -187,6 +201,20 @@ class Engine {
                           skerry::v1::RunState to, const char* verb)
       ABSL_LOCKS_EXCLUDED(mu_);
   static absl::Status CheckPriority(uint32_t priority);
+  // Takes a run just stored by CreateRun into the cache and queues its
+  // generation 0.
+  void Activate(const store::RunRecord& rec,
+                std::vector<store::GenomeRecord> genomes,
+                std::vector<std::unique_ptr<Strategy>> strategies)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Generation 0 of every island from its strategy, the strategies, and
+  // their states after it (as CreateRun stores them). A pure function of the
+  // spec: called before the lock is taken.
+  static absl::Status SeedIslands(
+      const skerry::v1::RunSpec& prepared,
+      std::vector<store::GenomeRecord>* genomes,
+      std::vector<std::unique_ptr<Strategy>>* strategies,
+      std::vector<std::string>* states);
   absl::Status Load() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status LoadRun(const store::RunRecord& record)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);

@@ -8,6 +8,7 @@
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/store/row_sums.h"
+#include "server/store/series_store.h"
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "skerry/v1/genome.pb.h"
@@ -285,7 +286,7 @@ class Checker {
 
   CheckReport report;
   bool has_sums = true;             // schema version 6 or later
-  bool has_strategy_states = true;  // schema version 9 or later
+  bool has_strategy_states = true;  // schema version 10 or later
 
  private:
   Connection* c_;
@@ -352,7 +353,7 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     absl::StatusOr<bool> row = v.ok() ? v->Step() : absl::StatusOr<bool>(false);
     // Before version 6 rows had no checksums; a coordinator start adds them.
     checker.has_sums = row.ok() && *row && v->ColumnInt(0) >= 6;
-    checker.has_strategy_states = row.ok() && *row && v->ColumnInt(0) >= 9;
+    checker.has_strategy_states = row.ok() && *row && v->ColumnInt(0) >= 10;
     // The schema of the current version, compared object by object (an older
     // version is migrated by the coordinator's next start, not compared).
     if (row.ok() && *row && v->ColumnInt(0) == Store::kSchemaVersion) {
@@ -389,6 +390,7 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     SKERRY_RETURN_IF_ERROR(CheckEndedRunIslandsDone(
         checker, id, static_cast<int>(runs->ColumnInt(2))));
   }
+  SKERRY_RETURN_IF_ERROR(CheckSeriesRows(conn.get(), &checker.report.problems));
   {
     SKERRY_ASSIGN_OR_RETURN(Statement n,
                             conn->Prepare("SELECT count(*) FROM genomes"));

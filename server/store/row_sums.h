@@ -4,7 +4,7 @@
 // b-trees, indexes), not what the rows say: a byte flipped inside a genome's
 // genes or score leaves a well-formed file that answers wrongly. So every row
 // of the tables a run's answers and digest depend on (runs, islands, genomes,
-// generation_stats; strategy_states from version 9) carries `sum`: the first 8
+// generation_stats; strategy_states from version 10) carries `sum`: the first 8
 // bytes of a SHA-256 over every other column of the row, written by triggers in
 // the same statement (and so the same transaction) as the row itself (schema
 // version 6). Any reader can recompute it with the SQL function
@@ -51,7 +51,7 @@ inline constexpr const char* kGenomeSumColumns =
 inline constexpr const char* kStatsSumColumns =
     "run_id, island, generation, best, mean, worst, diversity, evaluations, "
     "failed, eval_seconds, completed_ms";
-// Schema version 9 (strategy_states), kept the same way.
+// Schema version 10 (strategy_states), kept the same way.
 inline constexpr const char* kStrategyStateSumColumns =
     "run_id, island, generation, state";
 

@@ -13,6 +13,7 @@
 #include "common/status_macros.h"
 #include "server/store/access_schema.h"
 #include "server/store/row_sums.h"
+#include "server/store/series_store.h"
 
 namespace skerry::store {
 namespace {
@@ -151,11 +152,12 @@ CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
-// (row checksums, submit request ids) is built by SchemaV6(), version 9
-// (strategy states, with their checksums) by SchemaV9().
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,      kSchemaV3,
-                                       kSchemaV4, kSchemaAccess,  nullptr,
-                                       kSchemaV7, kSchemaMetrics, nullptr};
+// (row checksums, submit request ids) is built by SchemaV6(); version 9
+// (seed series) by SchemaSeries() (series_store.h), version 10 (strategy
+// states, with their checksums) by SchemaV10().
+constexpr const char* kMigrations[] = {
+    kSchemaV1, kSchemaV2, kSchemaV3,      kSchemaV4, kSchemaAccess,
+    nullptr,   kSchemaV7, kSchemaMetrics, nullptr,   nullptr};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -202,10 +204,10 @@ std::string SchemaV6() {
   return sql;
 }
 
-// Version 9: each island's search strategy state (server/engine/strategy.h),
+// Version 10: each island's search strategy state (server/engine/strategy.h),
 // with its row checksum kept like those of version 6. Runs stored before it
 // are GA runs, whose state is empty.
-std::string SchemaV9() {
+std::string SchemaV10() {
   return absl::StrCat(
       "CREATE TABLE strategy_states (\n"
       "  run_id INTEGER NOT NULL,\n"
@@ -223,7 +225,8 @@ std::string SchemaV9() {
 
 std::string MigrationSql(int from_version) {
   if (from_version == 5) return SchemaV6();
-  if (from_version == 8) return SchemaV9();
+  if (from_version == 8) return SchemaSeries();
+  if (from_version == 9) return SchemaV10();
   return kMigrations[from_version];
 }
 
@@ -537,6 +540,13 @@ absl::Status Store::CreateRun(RunRecord* run,
                               const std::vector<std::string>* strategy_states) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_RETURN_IF_ERROR(CreateRunLocked(run, genomes, strategy_states));
+  return txn.Commit();
+}
+
+absl::Status Store::CreateRunLocked(
+    RunRecord* run, std::vector<GenomeRecord>* genomes,
+    const std::vector<std::string>* strategy_states) {
   {
     SKERRY_ASSIGN_OR_RETURN(
         auto ins,
@@ -587,8 +597,7 @@ absl::Status Store::CreateRun(RunRecord* run,
     }
   }
   for (GenomeRecord& g : *genomes) g.run_id = run->id;
-  SKERRY_RETURN_IF_ERROR(InsertGenomes(genomes));
-  return txn.Commit();
+  return InsertGenomes(genomes);
 }
 
 absl::Status Store::CommitResults(

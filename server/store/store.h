@@ -32,7 +32,11 @@
 //        an evaluator's named side measurements, at most 32 per genome
 //        (common/metric_bounds.h), PRIMARY KEY (genome_id, name); methods in
 //        metrics.cc
-//   strategy_states(run_id, island, generation, state BLOB, sum)   version 9
+//   series(id, name UNIQUE, owner, created_ms, request_id, sum)  version 9:
+//   series_runs(run_id PRIMARY KEY, series_id, position, seed, sum)
+//        seed series (study.proto SubmitSeries), with checksums as in
+//        version 6; schema and methods in series_store.{h,cc}
+//   strategy_states(run_id, island, generation, state BLOB, sum)  version 10
 //        PRIMARY KEY (run_id, island): the island's search strategy as it
 //        was when it produced `generation` (a serialised StrategyState,
 //        proto/skerry/v1/strategy.proto), with its row checksum kept and
@@ -58,6 +62,11 @@
 // Each is one transaction; a change is acknowledged only after it.
 //   CreateRun          the run, its islands, every island's generation 0 and
 //                      its strategy state
+//   CreateSeries       every run of a series as CreateRun does, and the
+//                      series with its members
+//   ExtendRun          an ended run's raised stop rule, its islands live
+//                      again, the statistics of each newest generation
+//                      dropped (recomputed when the engine breeds on)
 //   CommitResults      a batch of results (group commit of many Report
 //                      calls), with the validation outcomes reported with them
 //   CommitGeneration   one island's next generation whole: its genomes with
@@ -112,6 +121,7 @@
 #include "absl/synchronization/mutex.h"
 #include "absl/types/span.h"
 #include "server/store/access_records.h"
+#include "server/store/series_records.h"
 #include "server/store/sqlite.h"
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
@@ -276,7 +286,7 @@ inline constexpr const char* kEmptyFileMessage =
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 9;
+  static constexpr int kSchemaVersion = 10;
 
   // Opens the database at `path`, applies the pragmas and migrates an older
   // schema. Only a file that does not exist is created (and initialised); an
@@ -431,6 +441,33 @@ class Store {
   // The run's owner; empty when there is no such run.
   absl::StatusOr<std::optional<std::string>> RunOwner(int64_t run_id);
 
+  // ---- Seed series and extension (series_store.cc; schema version 9) ----
+  // Every run (ids filled in, genomes[i] its generation 0) and the series
+  // (id and members filled in) in one transaction. AlreadyExists names a
+  // series name in use.
+  // `strategy_states[i]`: run i's as CreateRun takes them (null: empty).
+  absl::Status CreateSeries(
+      SeriesRecord* series, std::vector<RunRecord>* runs,
+      std::vector<std::vector<GenomeRecord>>* genomes,
+      const std::vector<std::vector<std::string>>* strategy_states = nullptr);
+  // The series `owner` submitted with `request_id`, with its members.
+  absl::StatusOr<std::optional<SeriesRecord>> FindSeriesByRequest(
+      const std::string& owner, const std::string& request_id);
+  // `base`, or `base`-2, -3... : the first name no series has.
+  absl::StatusOr<std::string> UnusedSeriesName(const std::string& base);
+  // Run id -> series name, for every run in a series. DATA_LOSS names a row
+  // that does not match its checksum.
+  absl::StatusOr<std::map<int64_t, std::string>> SeriesOfRuns();
+  // The run's series name, or "" when it has none.
+  absl::StatusOr<std::string> SeriesOfRun(int64_t run_id);
+  // Stores `spec` (its raised stop rule) for an ended run and makes it RUNNING
+  // again: islands live, stop generation cleared, the wall clock restarted
+  // at now_ms, the statistics row of each island's newest generation deleted
+  // so that the engine completes that generation again (its numbers come out
+  // the same). FailedPrecondition unless the run is FINISHED or STOPPED.
+  absl::Status ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
+                         int64_t now_ms);
+
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
       : path_(std::move(path)), raw_(conn->raw()), conn_(std::move(conn)) {}
@@ -439,6 +476,12 @@ class Store {
   absl::StatusOr<int> StoredVersion() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<Digest> RunDigestUnnamed(int64_t run_id);
   absl::Status Migrate(int from_version) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status CreateRunLocked(RunRecord* run,
+                               std::vector<GenomeRecord>* genomes,
+                               const std::vector<std::string>* strategy_states)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<std::vector<std::pair<int64_t, uint64_t>>> SeriesMembersLocked(
+      int64_t series_id) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status CommitGenerationLocked(const GenerationCommit& commit)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status InsertGenomes(std::vector<GenomeRecord>* genomes)

@@ -40,9 +40,9 @@ inline constexpr char kUndoVersion6[] =
     "request_id; ALTER TABLE islands DROP COLUMN sum; ALTER TABLE genomes DROP "
     "COLUMN sum; ALTER TABLE generation_stats DROP COLUMN sum; ";
 
-// SQL that takes a database back from schema version 9 to version 8 (the
+// SQL that takes a database back from schema version 10 to version 9 (the
 // strategy states; their checksum triggers go with the table).
-inline constexpr char kUndoVersion9[] = "DROP TABLE strategy_states; ";
+inline constexpr char kUndoVersion10[] = "DROP TABLE strategy_states; ";
 
 // Runs SQL on a raw connection of our own (not the store's).
 inline void RawExec(const std::string& path, const std::string& sql) {

@@ -1,4 +1,4 @@
-// Tests for the strategy states of server/store/store.h (schema version 9):
+// Tests for the strategy states of server/store/store.h (schema version 10):
 // stored with generation 0 and with each bred generation, in the same
 // transaction, each row with its checksum (row_sums.h); migrated databases
 // get an empty state; --check verifies them; a one-run backup carries them.
@@ -130,14 +130,14 @@ TEST_F(StrategyStateStoreTest, CommitWithoutAStateLeavesItAlone) {
   EXPECT_EQ(RawQuery(path(), "SELECT length(state) FROM strategy_states"), "0");
 }
 
-// A database of the version before (8) gets one empty state per island,
+// A database of the version before (9) gets one empty state per island,
 // at the island's generation, and passes the check.
 TEST_F(StrategyStateStoreTest, OlderDatabaseGetsAnEmptyStatePerIsland) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(2, &genomes);
   store_.reset();
   RawExec(path(),
-          "DROP TABLE strategy_states; UPDATE schema_version SET version = 8");
+          "DROP TABLE strategy_states; UPDATE schema_version SET version = 9");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(RawQuery(path(),
@@ -190,7 +190,7 @@ TEST_F(StrategyStateStoreTest, CheckReportsAStateOfAnotherGeneration) {
                         "the island is at 1"));
 }
 
-// Schema version 9 keeps a checksum on every state row: a flipped bit in a
+// Schema version 10 keeps a checksum on every state row: a flipped bit in a
 // stored state is DATA_LOSS naming run and island where the engine reads it,
 // and `--check` names it too.
 TEST_F(StrategyStateStoreTest, FlippedStateBitIsDataLossOnReadAndInCheck) {
