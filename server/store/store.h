@@ -278,6 +278,10 @@ class Store {
     // The caller made the empty file itself a moment ago (OwnerLock does,
     // to lock it): initialise it as if it had been absent.
     bool initialise_empty_file = false;
+    // `--read-only`: SQLITE_OPEN_READONLY, no pragma set, no migration. The
+    // file must exist and be at this program's schema version exactly
+    // (FailedPrecondition otherwise, naming both versions).
+    bool read_only = false;
   };
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path,
                                                      const Options& options);
