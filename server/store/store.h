@@ -358,6 +358,11 @@ class Store {
   // A genome's evaluator metrics (metrics.cc); empty when it has none.
   absl::StatusOr<std::map<std::string, double>> GetGenomeMetrics(
       int64_t genome_id);
+  // Migrants per (island, generation) that received them, by the island of
+  // each migrant's parent (migrations.cc).
+  absl::StatusOr<
+      std::map<std::pair<uint32_t, uint32_t>, std::map<uint32_t, uint32_t>>>
+  MigrationCounts(int64_t run_id);
   // Each metric's mean per (island, generation) over the run's genomes.
   absl::StatusOr<
       std::map<std::pair<uint32_t, uint32_t>, std::map<std::string, double>>>
