@@ -67,8 +67,10 @@ absl::StatusOr<std::unique_ptr<Engine>> Engine::Open(
 absl::StatusOr<std::unique_ptr<Engine>> Engine::OpenReadOnly(
     store::Store* store, scheduler::TaskQueue* queue, Clock* clock) {
   std::unique_ptr<Engine> engine(new Engine(store, queue, clock, true));
-  absl::MutexLock l(&engine->mu_);
-  SKERRY_RETURN_IF_ERROR(engine->Load());
+  {
+    absl::MutexLock l(&engine->mu_);
+    SKERRY_RETURN_IF_ERROR(engine->Load());
+  }
   return engine;  // no committer thread: nothing is ever written
 }
 
