@@ -113,9 +113,7 @@ std::vector<CommandSpec> MakeCommands() {
        {{"workers", "N", "number of in-process workers (1 thread each)", true},
         {"db", "FILE", "SQLite database file to keep the run in", true},
         {"http", "HOST:PORT",
-         "also serve the live web page (charts, workers, /metrics) while the "
-         "run goes on; port 0 picks a free one. No tokens: keep HOST "
-         "127.0.0.1"}},
+         "also serve the live page (no tokens: keep HOST 127.0.0.1)"}},
        "run a spec in one process: coordinator, workers (--http: live page)",
        "Starts a coordinator on FILE with no network listener, N in-process "
        "workers, submits SPEC_FILE, follows the run to its end, prints the "
