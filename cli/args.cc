@@ -123,12 +123,15 @@ std::vector<CommandSpec> MakeCommands() {
       {"local",
        {"SPEC_FILE"},
        {{"workers", "N", "number of in-process workers (1 thread each)", true},
-        {"db", "FILE", "SQLite database file to keep the run in", true}},
-       "run a spec in one process: coordinator and workers",
+        {"db", "FILE", "SQLite database file to keep the run in", true},
+        {"http", "HOST:PORT",
+         "also serve the live page (no tokens: keep HOST 127.0.0.1)"}},
+       "run a spec in one process: coordinator, workers (--http: live page)",
        "Starts a coordinator on FILE with no network listener, N in-process "
        "workers, submits SPEC_FILE, follows the run to its end, prints the "
-       "champion and shuts everything down. The --coordinator option is not "
-       "used."},
+       "champion and shuts everything down. With --http, the coordinator's "
+       "live page is served on HOST:PORT until the run ends (its address is "
+       "printed first). The --coordinator option is not used."},
       {"help",
        {"[COMMAND]"},
        {},

@@ -99,11 +99,20 @@ int LocalCommand(const ParsedArgs& args, Io& io) {
   options.listen_address = "";  // in-process channels only
   // Nobody outside this process can reach it: no tokens to check.
   options.auth = auth::AuthMode::kOff;
+  // The same live page as `skerry-coordinator --http` (docs/report.md).
+  if (args.Has("http")) options.http_address = args.Get("http");
   auto coordinator = server::Coordinator::Start(options);
   if (!coordinator.ok()) {
     *io.err << "skerry: cannot start a coordinator on " << options.db_path
             << ": " << coordinator.status().message() << "\n";
     return kExitFailure;
+  }
+  if ((*coordinator)->http_port() != 0) {
+    const std::string& address = options.http_address;
+    *io.out << "live page   http://"
+            << address.substr(0, address.rfind(':') + 1)
+            << (*coordinator)->http_port() << "/\n"
+            << std::flush;
   }
   int code = RunOnCoordinator(**coordinator, spec_path, *workers, io);
   (*coordinator)->Shutdown();

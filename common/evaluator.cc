@@ -91,10 +91,27 @@ constexpr BuiltinFunction kBuiltins[] = {
     {"zero", -1.0, 1.0, &Zero},
 };
 
+// The coordinate every gene of the function's global minimiser shares, or NaN
+// when it has none (zero: every point is a minimiser).
+// Sphere, Rastrigin, Ackley, Griewank: 0; Rosenbrock: 1 (Jamil & Yang 2013).
+// Schwefel 2.26: 420.968746; Styblinski-Tang: -2.903534028 (REFERENCES.md,
+// derived from the definitions: the root of the one-dimensional derivative).
+double OptimumCoordinate(absl::string_view name) {
+  if (name == "rosenbrock") return 1.0;
+  if (name == "schwefel") return 420.968746;
+  if (name == "styblinski_tang") return -2.903534028;
+  if (name == "zero") return std::nan("");
+  return 0.0;
+}
+
 class BuiltinEvaluator : public Evaluator {
  public:
   explicit BuiltinEvaluator(const BuiltinFunction* function)
-      : function_(function) {}
+      : function_(function), optimum_(OptimumCoordinate(function->name)) {}
+
+  const std::map<std::string, double>& LastMetrics() const override {
+    return metrics_;
+  }
 
   absl::StatusOr<double> Evaluate(absl::Span<const double> genes,
                                   uint64_t /*seed*/) override {
@@ -109,11 +126,27 @@ class BuiltinEvaluator : public Evaluator {
                          genes[i], ")"));
       }
     }
+    // How far the genes are from the known minimiser (a good score far from
+    // it is a local optimum), and how many left the usual domain (Schwefel's
+    // function, for one, scores better than its minimum outside it).
+    metrics_.clear();
+    // `zero` measures the system, not a function: no metric rows to store.
+    if (std::isnan(optimum_)) return function_->fn(genes);
+    double squares = 0.0;
+    double outside = 0.0;
+    for (double g : genes) {
+      squares += (g - optimum_) * (g - optimum_);
+      if (g < function_->lower || g > function_->upper) outside += 1.0;
+    }
+    metrics_["distance_to_optimum"] = std::sqrt(squares);
+    metrics_["genes_outside_domain"] = outside;
     return function_->fn(genes);
   }
 
  private:
   const BuiltinFunction* function_;
+  const double optimum_;
+  std::map<std::string, double> metrics_;
 };
 
 }  // namespace
@@ -129,6 +162,11 @@ std::vector<std::string> BuiltinNames() {
   std::vector<std::string> names;
   for (const BuiltinFunction& f : kBuiltins) names.emplace_back(f.name);
   return names;
+}
+
+const std::map<std::string, double>& Evaluator::LastMetrics() const {
+  static const auto* none = new std::map<std::string, double>();
+  return *none;
 }
 
 absl::StatusOr<double> Evaluator::EvaluateCase(absl::Span<const double>,

@@ -8,6 +8,7 @@
 #define SKERRY_COMMON_EVALUATOR_H_
 
 #include <cstdint>
+#include <map>
 #include <memory>
 #include <string>
 #include <vector>
@@ -30,6 +31,12 @@ class Evaluator {
   virtual absl::StatusOr<double> EvaluateCase(absl::Span<const double> genes,
                                               const std::string& case_name,
                                               uint64_t seed);
+  // The named side measurements of the last successful Evaluate (bounded by
+  // common/metric_bounds.h), reported with its score and stored per genome.
+  // Empty by default. Built-in functions: distance_to_optimum and
+  // genes_outside_domain; pole balancers: steps_balanced,
+  // max_pole_angle_deg, max_cart_travel_m (docs/spec-reference.md).
+  virtual const std::map<std::string, double>& LastMetrics() const;
 };
 
 // A built-in benchmark function: its name as written in a spec, its usual

@@ -131,13 +131,31 @@ class PoleEvaluator : public Evaluator {
     if (!controller.ok()) return controller.status();
     const auto& episodes = spec_.episodes();
     std::vector<double> scores;
+    metrics_.clear();
+    // Each metric is the mean over the episodes, as for external evaluators.
+    double steps = 0.0, angle = 0.0, travel = 0.0;
     for (uint32_t e = 0; e < episodes.count(); ++e) {
-      absl::StatusOr<double> score =
-          Episode(StartNoise(seed, e, episodes.start_noise()), **controller);
+      EpisodeTrace trace;
+      absl::StatusOr<double> score = Episode(
+          StartNoise(seed, e, episodes.start_noise()), **controller, &trace);
       if (!score.ok()) return score.status();
       scores.push_back(*score);
+      steps += static_cast<double>(trace.steps);
+      angle += trace.max_pole_angle;
+      travel += trace.max_cart_travel;
+    }
+    if (episodes.count() > 0) {
+      const double n = episodes.count();
+      constexpr double kDegrees = 180.0 / 3.14159265358979323846;
+      metrics_["steps_balanced"] = steps / n;
+      metrics_["max_pole_angle_deg"] = angle / n * kDegrees;
+      metrics_["max_cart_travel_m"] = travel / n;
     }
     return AggregateEpisodes(episodes.aggregate(), std::move(scores));
+  }
+
+  const std::map<std::string, double>& LastMetrics() const override {
+    return metrics_;
   }
 
   // Case "start-<i>": 1 when the controller balances from generalisation
@@ -160,12 +178,12 @@ class PoleEvaluator : public Evaluator {
 
  private:
   absl::StatusOr<double> Episode(const std::array<double, 4>& noise,
-                                 Controller& controller) {
+                                 Controller& controller, EpisodeTrace* trace) {
     if (spec_.kind_case() == EvaluatorSpec::kCartPole) {
       CartPoleState start{noise[0], noise[1], noise[2], noise[3]};
       absl::StatusOr<uint64_t> steps =
           BalanceCartPole(MakeCartPoleTask(spec_), start,
-                          spec_.cart_pole().max_steps(), controller);
+                          spec_.cart_pole().max_steps(), controller, trace);
       if (!steps.ok()) return steps.status();
       return static_cast<double>(*steps);
     }
@@ -173,15 +191,16 @@ class PoleEvaluator : public Evaluator {
     DoublePoleState start = DoublePoleStart(task.hide_velocities);
     for (int k = 0; k < 4; ++k) start[k] += noise[k];
     if (spec_.double_pole().fitness() == skerry::v1::GRUAU_DAMPING) {
-      return DampingFitness(task, start, controller);
+      return DampingFitness(task, start, controller, trace);
     }
     absl::StatusOr<uint64_t> steps = BalanceDoublePole(
-        task, start, spec_.double_pole().max_steps(), controller);
+        task, start, spec_.double_pole().max_steps(), controller, trace);
     if (!steps.ok()) return steps.status();
     return static_cast<double>(*steps);
   }
 
   const EvaluatorSpec spec_;
+  std::map<std::string, double> metrics_;  // of the last Evaluate
 };
 
 }  // namespace
@@ -353,10 +372,15 @@ std::vector<double> ObserveDoublePole(const DoublePoleState& s,
 absl::StatusOr<uint64_t> BalanceCartPole(const CartPoleTask& task,
                                          CartPoleState start,
                                          uint64_t max_steps,
-                                         Controller& controller) {
+                                         Controller& controller,
+                                         EpisodeTrace* trace) {
+  EpisodeTrace local;
+  if (trace == nullptr) trace = &local;
+  *trace = EpisodeTrace();
   controller.Reset();
   CartPoleState s = start;
   if (CartPoleFailed(task.params, s)) return 0;
+  trace->Note(s.x, s.theta);
   for (uint64_t t = 0; t < max_steps; ++t) {
     absl::StatusOr<double> u =
         controller.Act(ObserveCartPole(s, task.hide_velocities));
@@ -366,6 +390,8 @@ absl::StatusOr<uint64_t> BalanceCartPole(const CartPoleTask& task,
         task.continuous_force ? f * Clamp1(*u) : (*u > 0.0 ? f : -f);
     s = CartPoleStep(task.params, s, force);
     if (CartPoleFailed(task.params, s)) return t;
+    trace->Note(s.x, s.theta);
+    trace->steps = t + 1;
   }
   return max_steps;
 }
@@ -373,29 +399,43 @@ absl::StatusOr<uint64_t> BalanceCartPole(const CartPoleTask& task,
 absl::StatusOr<uint64_t> BalanceDoublePole(const DoublePoleTask& task,
                                            const DoublePoleState& start,
                                            uint64_t max_steps,
-                                           Controller& controller) {
+                                           Controller& controller,
+                                           EpisodeTrace* trace) {
+  EpisodeTrace local;
+  if (trace == nullptr) trace = &local;
+  *trace = EpisodeTrace();
   controller.Reset();
   DoublePoleState s = start;
   if (DoublePoleFailed(task.params, s)) return 0;
+  trace->Note(s[0], std::max(std::fabs(s[2]), std::fabs(s[4])));
   for (uint64_t t = 0; t < max_steps; ++t) {
     absl::StatusOr<double> u =
         controller.Act(ObserveDoublePole(s, task.hide_velocities));
     if (!u.ok()) return u.status();
     s = DoublePoleAct(task.params, s, *u);
     if (DoublePoleFailed(task.params, s)) return t;
+    trace->Note(s[0], std::max(std::fabs(s[2]), std::fabs(s[4])));
+    trace->steps = t + 1;
   }
   return max_steps;
 }
 
 absl::StatusOr<double> DampingFitness(const DoublePoleTask& task,
                                       const DoublePoleState& start,
-                                      Controller& controller) {
+                                      Controller& controller,
+                                      EpisodeTrace* trace) {
+  EpisodeTrace local;
+  if (trace == nullptr) trace = &local;
+  *trace = EpisodeTrace();
   constexpr uint64_t kSteps = 1000;
   constexpr size_t kWindow = 100;
   controller.Reset();
   DoublePoleState s = start;
   std::array<double, kWindow> jiggle{};  // ring buffer of the last 100 steps
   uint64_t t = 0;
+  if (!DoublePoleFailed(task.params, s)) {
+    trace->Note(s[0], std::max(std::fabs(s[2]), std::fabs(s[4])));
+  }
   while (t < kSteps && !DoublePoleFailed(task.params, s)) {
     absl::StatusOr<double> u =
         controller.Act(ObserveDoublePole(s, task.hide_velocities));
@@ -405,6 +445,8 @@ absl::StatusOr<double> DampingFitness(const DoublePoleTask& task,
     jiggle[t % kWindow] =
         std::fabs(s[0]) + std::fabs(s[1]) + std::fabs(s[2]) + std::fabs(s[3]);
     ++t;
+    trace->Note(s[0], std::max(std::fabs(s[2]), std::fabs(s[4])));
+    trace->steps = t;
   }
   const double f1 = static_cast<double>(t) / kSteps;
   double f2 = 0.0;

@@ -30,7 +30,9 @@
 #ifndef SKERRY_COMMON_POLE_H_
 #define SKERRY_COMMON_POLE_H_
 
+#include <algorithm>
 #include <array>
+#include <cmath>
 #include <cstdint>
 #include <memory>
 #include <vector>
@@ -167,22 +169,38 @@ struct DoublePoleTask {
   bool hide_velocities = false;
 };
 
+// What an episode did besides its score, over the states it balanced (the
+// start and every state after a step that did not fail): the evaluators'
+// metrics (Evaluator::LastMetrics).
+struct EpisodeTrace {
+  uint64_t steps = 0;            // steps balanced
+  double max_pole_angle = 0.0;   // largest |theta| of any pole, radians
+  double max_cart_travel = 0.0;  // largest |x|, metres
+  void Note(double x, double theta) {
+    max_cart_travel = std::max(max_cart_travel, std::fabs(x));
+    max_pole_angle = std::max(max_pole_angle, std::fabs(theta));
+  }
+};
+
 // Steps balanced from `start` before failure, at most max_steps. Resets the
-// controller first.
+// controller first. `trace`, when given, receives the episode's trace.
 absl::StatusOr<uint64_t> BalanceCartPole(const CartPoleTask& task,
                                          CartPoleState start,
                                          uint64_t max_steps,
-                                         Controller& controller);
+                                         Controller& controller,
+                                         EpisodeTrace* trace = nullptr);
 absl::StatusOr<uint64_t> BalanceDoublePole(const DoublePoleTask& task,
                                            const DoublePoleState& start,
                                            uint64_t max_steps,
-                                           Controller& controller);
+                                           Controller& controller,
+                                           EpisodeTrace* trace = nullptr);
 // Gruau, Whitley & Pyeatt 1996 damping fitness over at most 1000 steps (from
 // memory): 0.1 t / 1000 + 0.9 f2, f2 = 0 if t < 100, else 0.75 / (sum over the
 // last 100 steps of |x| + |x'| + |theta_1| + |theta_1'|), SI units.
 absl::StatusOr<double> DampingFitness(const DoublePoleTask& task,
                                       const DoublePoleState& start,
-                                      Controller& controller);
+                                      Controller& controller,
+                                      EpisodeTrace* trace = nullptr);
 
 // ---- Generalisation test ----
 

@@ -42,29 +42,39 @@ class CoordinatorImpl final : public Coordinator {
       const CoordinatorOptions& options) {
     std::unique_ptr<CoordinatorImpl> c(new CoordinatorImpl());
     c->clock_ = options.clock != nullptr ? options.clock : Clock::Real();
-    SKERRY_ASSIGN_OR_RETURN(c->owner_,
-                            store::OwnerLock::Acquire(options.db_path));
+    SKERRY_ASSIGN_OR_RETURN(
+        c->owner_, options.read_only
+                       ? store::OwnerLock::AcquireShared(options.db_path)
+                       : store::OwnerLock::Acquire(options.db_path));
     store::Store::Options open;
     open.initialise_empty_file = c->owner_->created();
     open.vfs = options.sqlite_vfs;
+    open.read_only = options.read_only;
     SKERRY_ASSIGN_OR_RETURN(c->store_,
                             store::Store::Open(options.db_path, open));
     // Refuse a file --check would call malformed, and one it cannot write
-    // (rather than start, serve reads and fail every write).
+    // (rather than start, serve reads and fail every write), unless asked
+    // to serve it read-only.
     SKERRY_RETURN_IF_ERROR(c->store_->QuickCheck());
-    if (absl::Status w = c->store_->ProbeWrite(); !w.ok()) {
+    if (absl::Status w =
+            options.read_only ? absl::OkStatus() : c->store_->ProbeWrite();
+        !w.ok()) {
       return absl::FailedPreconditionError(absl::StrCat(
           "cannot write the database ", options.db_path, " (", w.message(),
-          "); check the file's and its folder's permissions and free space"));
+          "); check the file's and its folder's permissions and free space, "
+          "or serve it with --read-only"));
     }
     c->queue_ =
         std::make_unique<scheduler::TaskQueue>(c->clock_, options.lease);
     SKERRY_ASSIGN_OR_RETURN(
-        c->engine_,
-        engine::Engine::Open(c->store_.get(), c->queue_.get(), c->clock_));
+        c->engine_, options.read_only
+                        ? engine::Engine::OpenReadOnly(
+                              c->store_.get(), c->queue_.get(), c->clock_)
+                        : engine::Engine::Open(c->store_.get(), c->queue_.get(),
+                                               c->clock_));
     SKERRY_ASSIGN_OR_RETURN(
-        c->access_,
-        auth::AccessControl::Open(c->store_.get(), c->clock_, options.auth));
+        c->access_, auth::AccessControl::Open(c->store_.get(), c->clock_,
+                                              options.auth, options.read_only));
     c->fleet_ = std::make_unique<api::FleetServiceImpl>(
         c->store_.get(), c->engine_.get(), c->queue_.get(), c->clock_,
         options.max_lease_wait);

@@ -50,6 +50,11 @@ struct CoordinatorOptions {
   // picks a free one; empty (the default): none. It uses the TLS files above.
   std::string http_address;
   std::string chart_library = "/usr/share/javascript/chart.js/chart.min.js";
+  // `--read-only`: open an existing database without writing (no migration,
+  // a shared owner lock: store::OwnerLock::AcquireShared), serve every read,
+  // refuse every call that would write with FAILED_PRECONDITION
+  // (common/read_only.h). docs/operations.md.
+  bool read_only = false;
 };
 
 class Coordinator {

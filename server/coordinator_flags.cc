@@ -46,6 +46,13 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
                         one, printed at start); same tokens as gRPC (a
                         viewer's is enough) and, with --tls-cert, HTTPS with
                         the same certificate. Off by default. docs/report.md
+  --read-only           serve an existing database without writing it: no
+                        migration, no work for workers; every call that
+                        would change it (submit, pause, stop, tokens,
+                        backup, worker Join...) is refused with
+                        FAILED_PRECONDITION. Several read-only coordinators
+                        may serve one file; none while a writing one runs.
+                        docs/operations.md
   --chart-library FILE  Chart.js for that page (default: Debian's
                         libjs-chart.js, /usr/share/javascript/chart.js/
                         chart.min.js)
@@ -105,6 +112,8 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
       f.help = true;
     } else if (arg == "--version") {
       f.version = true;
+    } else if (arg == "--read-only") {
+      f.options.read_only = true;
     } else if (arg == "--check") {
       absl::StatusOr<std::string> v = value("--check");
       if (!v.ok()) return v.status();

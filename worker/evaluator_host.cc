@@ -4,6 +4,7 @@
 #include <cstdio>
 #include <exception>
 #include <iostream>
+#include <map>
 #include <memory>
 #include <utility>
 
@@ -52,6 +53,13 @@ EvaluationResponse Answer(
                            : std::string(score.status().message()));
   } else {
     response.set_score(*score);
+    // A built-in's metrics (Evaluator::LastMetrics) travel as an external
+    // program's do.
+    if (request.case_name().empty()) {
+      const std::map<std::string, double>& metrics =
+          (*evaluator)->LastMetrics();
+      response.mutable_metrics()->insert(metrics.begin(), metrics.end());
+    }
   }
   return response;
 }

@@ -125,6 +125,9 @@ class ProcessEvaluator : public Evaluator {
   const std::map<std::string, double>& last_metrics() const {
     return last_metrics_;
   }
+  const std::map<std::string, double>& LastMetrics() const override {
+    return last_metrics_;
+  }
   // When the last request was sent (on the clock), or creation time.
   absl::Time last_used() const { return last_used_; }
   // argv[0] as resolved on PATH.

@@ -4,6 +4,7 @@
 #include <cmath>
 #include <exception>
 #include <iterator>
+#include <map>
 #include <utility>
 
 #include "absl/status/status.h"
@@ -151,18 +152,18 @@ skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,
         absl::StrCat("evaluator returned a non-finite score (", *score, ")"));
   } else {
     result.set_score(*score);
-    // An evaluator in a child process may return named side measurements.
-    auto* process =
-        evaluator.ok() ? dynamic_cast<ProcessEvaluator*>(*evaluator) : nullptr;
-    if (process != nullptr && task.kind() == skerry::v1::TASK_EVALUATE &&
-        !process->last_metrics().empty()) {
-      absl::Status bounded = CheckMetrics(process->last_metrics());
+    // Named side measurements: an external program's, or a built-in's
+    // (Evaluator::LastMetrics).
+    const std::map<std::string, double>* metrics =
+        evaluator.ok() ? &(*evaluator)->LastMetrics() : nullptr;
+    if (metrics != nullptr && task.kind() == skerry::v1::TASK_EVALUATE &&
+        !metrics->empty()) {
+      absl::Status bounded = CheckMetrics(*metrics);
       if (!bounded.ok()) {
         result.clear_score();
         result.set_error(std::string(bounded.message()));
       } else {
-        result.mutable_metrics()->insert(process->last_metrics().begin(),
-                                         process->last_metrics().end());
+        result.mutable_metrics()->insert(metrics->begin(), metrics->end());
       }
     }
   }

@@ -18,6 +18,7 @@
 #include "absl/strings/string_view.h"
 #include "absl/synchronization/mutex.h"
 #include "common/evaluator.h"
+#include "common/read_only.h"
 #include "common/version.h"
 #include "grpcpp/client_context.h"
 #include "grpcpp/support/status.h"
@@ -54,9 +55,12 @@ Next Classify(const grpc::Status& status) {
   switch (status.error_code()) {
     case grpc::StatusCode::OK:
       return Next::kDone;
-    case grpc::StatusCode::NOT_FOUND:            // the worker id is unknown
-    case grpc::StatusCode::FAILED_PRECONDITION:  // e.g. a new fleet table
+    case grpc::StatusCode::NOT_FOUND:  // the worker id is unknown
       return Next::kRejoin;
+    case grpc::StatusCode::FAILED_PRECONDITION:
+      // A --read-only coordinator never has work: waiting cannot help.
+      if (IsReadOnlyRefusal(status.error_message())) return Next::kGiveUp;
+      return Next::kRejoin;  // e.g. a new fleet table
     case grpc::StatusCode::UNAUTHENTICATED:
     case grpc::StatusCode::PERMISSION_DENIED:
     case grpc::StatusCode::UNIMPLEMENTED:  // not a coordinator

@@ -213,6 +213,13 @@ grpc::Status RunServiceImpl::GetHistory(
   if (!validated.ok()) return ToGrpc(validated.status());
   auto metric_means = store_->MetricMeans(rec->id);
   if (!metric_means.ok()) return ToGrpc(metric_means.status());
+  std::map<std::pair<uint32_t, uint32_t>, std::map<uint32_t, uint32_t>>
+      migrations;
+  if (req->with_migrations()) {
+    auto counted = store_->MigrationCounts(rec->id);
+    if (!counted.ok()) return ToGrpc(counted.status());
+    migrations = *std::move(counted);
+  }
   for (const store::StatsRecord& s : *stats) {
     skerry::v1::GenerationStats* g = resp->add_generations();
     g->set_island(s.island);
@@ -231,6 +238,10 @@ grpc::Status RunServiceImpl::GetHistory(
     if (auto m = metric_means->find({s.island, s.generation});
         m != metric_means->end()) {
       g->mutable_metric_means()->insert(m->second.begin(), m->second.end());
+    }
+    if (auto m = migrations.find({s.island, s.generation});
+        m != migrations.end()) {
+      g->mutable_migrants_from()->insert(m->second.begin(), m->second.end());
     }
   }
   return grpc::Status::OK;

@@ -7,6 +7,7 @@
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "common/quote.h"
+#include "common/read_only.h"
 #include "common/status_macros.h"
 #include "server/api/grpc_status.h"
 #include "server/api/request_bounds.h"
@@ -37,7 +38,7 @@ absl::StatusOr<AuthMode> ParseAuthMode(absl::string_view text) {
 }
 
 absl::StatusOr<std::unique_ptr<AccessControl>> AccessControl::Open(
-    store::Store* store, Clock* clock, AuthMode mode) {
+    store::Store* store, Clock* clock, AuthMode mode, bool read_only) {
   SKERRY_ASSIGN_OR_RETURN(int64_t principals, store->CountPrincipals());
   if (mode == AuthMode::kOn && principals == 0) {
     return absl::FailedPreconditionError(
@@ -46,7 +47,8 @@ absl::StatusOr<std::unique_ptr<AccessControl>> AccessControl::Open(
   }
   const bool enabled =
       mode == AuthMode::kOn || (mode == AuthMode::kAuto && principals > 0);
-  std::unique_ptr<AccessControl> ac(new AccessControl(store, clock, enabled));
+  std::unique_ptr<AccessControl> ac(
+      new AccessControl(store, clock, enabled, read_only));
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::TokenRecord> tokens,
                           store->ListTokens());
   absl::MutexLock l(&ac->mu_);
@@ -58,13 +60,20 @@ absl::StatusOr<std::unique_ptr<AccessControl>> AccessControl::Open(
 
 std::string AccessControl::Describe() const {
   absl::MutexLock l(&mu_);
+  const char* read_only =
+      read_only_ ? "; read-only (--read-only): every call that would change "
+                   "the database is refused"
+                 : "";
   if (!enabled_) {
-    return "access control off: every caller acts as 'local' (admin); "
-           "--init-admin NAME turns it on";
+    return absl::StrCat(
+        "access control off: every caller acts as 'local' (admin); "
+        "--init-admin NAME turns it on",
+        read_only);
   }
   return absl::StrCat("access control on: ", live_.size(),
                       " live token(s); every call but the health check needs "
-                      "one");
+                      "one",
+                      read_only);
 }
 
 absl::StatusOr<Caller> AccessControl::Authenticate(
@@ -133,6 +142,16 @@ Verdict AccessControl::Admit(
                      "; the token of ", v.caller->principal, " has role ",
                      RoleName(v.caller->role)));
   }
+  // Audited methods are the ones that change something; every fleet call
+  // writes (a worker row, results, hand-backs).
+  if (v.status.ok() && read_only_ &&
+      (v.rule->audited || v.rule->permission == Permission::kFleet)) {
+    v.status =
+        grpc::Status(grpc::StatusCode::FAILED_PRECONDITION,
+                     absl::StrCat(kReadOnlyRefusal, ": ", method,
+                                  " would change the database; send it to the "
+                                  "coordinator that writes this database"));
+  }
   return v;
 }
 
@@ -189,7 +208,7 @@ void AccessControl::Examine(Verdict* v, const void* request,
                        "the runs it submitted (role admin may change any)"));
     }
   }
-  if (!v->rule->audited) return;
+  if (!v->rule->audited || read_only_) return;
   store::AuditRecord e;
   e.at_ms = clock_->WallMillis();
   e.principal = v->caller->principal;

@@ -62,8 +62,12 @@ struct Verdict {
 
 class AccessControl {
  public:
+  // `read_only` (skerry-coordinator --read-only): every call that would
+  // change the database (an audited method, or any FleetService call) is
+  // refused with FAILED_PRECONDITION (common/read_only.h) after the token and
+  // role checks, and no audit row is written for any call.
   static absl::StatusOr<std::unique_ptr<AccessControl>> Open(
-      store::Store* store, Clock* clock, AuthMode mode);
+      store::Store* store, Clock* clock, AuthMode mode, bool read_only = false);
 
   bool enabled() const { return enabled_; }
   // One line for the coordinator's start log.
@@ -121,8 +125,11 @@ class AccessControl {
                                                const std::string& name);
 
  private:
-  AccessControl(store::Store* store, Clock* clock, bool enabled)
-      : store_(store), clock_(clock), enabled_(enabled) {}
+  AccessControl(store::Store* store, Clock* clock, bool enabled, bool read_only)
+      : store_(store),
+        clock_(clock),
+        enabled_(enabled),
+        read_only_(read_only) {}
   absl::StatusOr<Caller> Authenticate(
       const std::vector<std::string>& authorization) const;
 
@@ -130,6 +137,7 @@ class AccessControl {
   store::Store* const store_;
   Clock* const clock_;
   const bool enabled_;
+  const bool read_only_;
 
   mutable absl::Mutex mu_;
   std::map<std::string, Caller> live_ ABSL_GUARDED_BY(mu_);  // by token hash

@@ -77,6 +77,16 @@ absl::StatusOr<std::unique_ptr<Engine>> Engine::Open(
   return engine;
 }
 
+absl::StatusOr<std::unique_ptr<Engine>> Engine::OpenReadOnly(
+    store::Store* store, scheduler::TaskQueue* queue, Clock* clock) {
+  std::unique_ptr<Engine> engine(new Engine(store, queue, clock, true));
+  {
+    absl::MutexLock l(&engine->mu_);
+    SKERRY_RETURN_IF_ERROR(engine->Load());
+  }
+  return engine;  // no committer thread: nothing is ever written
+}
+
 Engine::~Engine() { Shutdown(); }
 
 void Engine::Shutdown() {
@@ -208,6 +218,7 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
   }
   Run& r = *run;
   runs_[record.id] = std::move(run);
+  if (read_only_) return absl::OkStatus();  // no task, no breeding
   queue_->SetPaused(record.id, record.state == skerry::v1::PAUSED);
   // A hand-edited priority below 1 counts as 1; above the bound, as the bound.
   queue_->SetWeight(

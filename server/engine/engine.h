@@ -101,6 +101,12 @@ class Engine {
  public:
   static absl::StatusOr<std::unique_ptr<Engine>> Open(
       store::Store* store, scheduler::TaskQueue* queue, Clock* clock);
+  // For `skerry-coordinator --read-only` (docs/operations.md): loads every run
+  // to answer summaries, but queues no task, breeds nothing and starts no
+  // committer, so it never writes. The coordinator refuses every call that
+  // would reach a writing method (server/read_only.h).
+  static absl::StatusOr<std::unique_ptr<Engine>> OpenReadOnly(
+      store::Store* store, scheduler::TaskQueue* queue, Clock* clock);
   ~Engine();
 
   // Validates and stores a new run with generation 0 of every island, then
@@ -193,8 +199,9 @@ class Engine {
     uint32_t max_attempts = 1;
   };
 
-  Engine(store::Store* store, scheduler::TaskQueue* queue, Clock* clock)
-      : store_(store), queue_(queue), clock_(clock) {}
+  Engine(store::Store* store, scheduler::TaskQueue* queue, Clock* clock,
+         bool read_only = false)
+      : store_(store), queue_(queue), clock_(clock), read_only_(read_only) {}
 
   // Pause and resume: moves an active run from `from` to `to`.
   absl::Status Transition(int64_t run_id, skerry::v1::RunState from,
@@ -286,6 +293,7 @@ class Engine {
   store::Store* const store_;
   scheduler::TaskQueue* const queue_;
   Clock* const clock_;
+  const bool read_only_;  // OpenReadOnly: never queue, breed or write
 
   absl::Mutex mu_;
   std::map<int64_t, std::unique_ptr<Run>> runs_ ABSL_GUARDED_BY(mu_);  // active

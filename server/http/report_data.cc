@@ -42,6 +42,7 @@ absl::StatusOr<RunReportData> FetchReportData(
     skerry::v1::GetHistoryRequest req;
     req.set_run_id(run_id);
     req.set_all_islands(true);
+    req.set_with_migrations(true);  // the migration chart
     skerry::v1::GetHistoryResponse resp;
     grpc::Status s = runs.GetHistory(&ctx, req, &resp);
     if (!s.ok()) return Failed(s, "GetHistory");

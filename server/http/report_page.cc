@@ -77,9 +77,12 @@ constexpr const char* kCharts[][3] = {
      "x: generation (count); y: the metric's mean over the generation's "
      "genomes, in the units the evaluator gives it. One line per island and "
      "metric."},
-    {"chart-migration", "Island crossings on the champion's line",
-     "x: generation (count); y: island index the line moved to (migrants "
-     "arriving, offspring of parents from two islands)."},
+    {"chart-migration",
+     "Migration events: migrants per generation and island "
+     "pair",
+     "x: generation (count); y: migrants (count) that arrived at an island "
+     "from another in that generation, every migration of the run. One "
+     "series per pair, source to destination."},
 };
 
 std::string ChartFigures() {
@@ -154,6 +157,17 @@ std::string MetricCell(const GenerationStats& g) {
   return out;
 }
 
+// "0: 2; 3: 1": migrants this island's generation received, by source.
+std::string MigrantCell(const GenerationStats& g) {
+  std::map<uint32_t, uint32_t> sorted(g.migrants_from().begin(),
+                                      g.migrants_from().end());
+  std::string out;
+  for (const auto& [from, count] : sorted) {
+    absl::StrAppend(&out, out.empty() ? "" : "; ", from, ": ", count);
+  }
+  return out;
+}
+
 std::string HistoryTable(const RunReportData& r) {
   const uint64_t id = r.run.run().id();
   std::string out = absl::StrCat(
@@ -163,7 +177,8 @@ std::string HistoryTable(const RunReportData& r) {
       "\"><tr><th>island</th><th>generation</th><th>best</th><th>mean</"
       "th><th>worst</th><th>diversity</th><th>evaluations</th><th>failed</"
       "th><th>validation</th><th class=\"t\">completed (UTC)</th><th "
-      "class=\"t\">evaluator metrics (means)</th></tr>\n");
+      "class=\"t\">evaluator metrics (means)</th><th class=\"t\">migrants "
+      "from (island: count)</th></tr>\n");
   for (const GenerationStats& g : r.history) {
     absl::StrAppend(
         &out, "<tr data-island=\"", g.island(), "\" data-generation=\"",
@@ -173,7 +188,8 @@ std::string HistoryTable(const RunReportData& r) {
         g.evaluations(), "</td><td>", g.failed(), "</td><td>",
         g.has_validation_score() ? Num(g.validation_score()) : "",
         "</td><td class=\"t\">", Time(g.completed_unix_ms()),
-        "</td><td class=\"t\">", MetricCell(g), "</td></tr>\n");
+        "</td><td class=\"t\">", MetricCell(g), "</td><td class=\"t\">",
+        MigrantCell(g), "</td></tr>\n");
   }
   return out + "</table></details>\n";
 }

@@ -155,10 +155,23 @@ absl::string_view ReportScript() {
                         pointRadius: 4, borderColor: ORIGIN_COLOUR[o] || "#000000",
                         backgroundColor: ORIGIN_COLOUR[o] || "#000000"});
         }
-        migration.push({label: prefix + "crossings", showLine: false, pointRadius: 4,
-          pointStyle: "triangle", borderColor: colour(r), backgroundColor: colour(r),
-          data: a.crossings.map(function (c) {
-            return {x: num(c.generation), y: num(c.toIsland)}; })});
+      }
+      // Every migration event: one series per (source, destination) pair.
+      const pairs = new Map();
+      for (const g of run.history) {
+        for (const from of Object.keys(g.migrantsFrom || {}).sort()) {
+          const key = from + " to " + num(g.island);
+          if (!pairs.has(key)) pairs.set(key, []);
+          pairs.get(key).push({x: num(g.generation), y: num(g.migrantsFrom[from])});
+        }
+      }
+      let p = 0;
+      for (const key of Array.from(pairs.keys()).sort()) {
+        const c = colour(many ? r : p);
+        migration.push({label: prefix + "island " + key, showLine: false, pointRadius: 4,
+          pointStyle: ["triangle", "circle", "rect", "star"][p++ % 4],
+          borderColor: c, backgroundColor: c,
+          data: pairs.get(key).sort(function (u, v) { return u.x - v.x; })});
       }
     });
     chart("chart-score", "line", score, "generation (count)", "score (evaluator units)",
@@ -174,8 +187,8 @@ absl::string_view ReportScript() {
     chart("chart-metrics", "line", metrics, "generation (count)",
           "metric mean (the evaluator's units)",
           "the evaluator returned no named metrics");
-    chart("chart-migration", "scatter", migration, "generation (count)", "island (index)",
-          "the champion's line never left its first island");
+    chart("chart-migration", "scatter", migration, "generation (count)",
+          "migrants arriving (count)", "no migration happened (one island, or no epoch yet)");
     check();
   }
 

@@ -5,6 +5,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/status_macros.h"
+#include "server/store/row_sums.h"
 
 namespace skerry::lineage::internal {
 namespace {
@@ -81,7 +82,8 @@ absl::StatusOr<AncestryWalk> AncestryWalk::Make(store::Connection* conn,
       store::Statement range,
       conn->Prepare(absl::StrCat(
           "SELECT ", columns == Columns::kNodes ? kNodeColumns : kLinkColumns,
-          " FROM genomes WHERE id >= ?1 AND id <= ?2")));
+          " FROM genomes WHERE id >= ?1 AND id <= ?2 AND ",
+          store::kGenomeChecked)));
   return AncestryWalk(std::move(range), columns, oldest, limit);
 }
 

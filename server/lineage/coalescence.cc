@@ -9,6 +9,7 @@
 #include "server/lineage/ancestry_walk.h"
 #include "server/lineage/lineage_reader.h"
 #include "server/lineage/node_sql.h"
+#include "server/store/row_sums.h"
 
 namespace skerry::lineage {
 namespace {
@@ -48,7 +49,7 @@ absl::StatusOr<Start> StartOf(store::Connection* conn,
           "SELECT ", internal::kNodeColumns,
           " FROM genomes WHERE run_id = ?1 AND island IN (",
           p.all_islands() ? "SELECT idx FROM islands WHERE run_id = ?1" : "?3",
-          ") AND generation = ?2")));
+          ") AND generation = ?2 AND ", store::kGenomeChecked)));
   s.BindInt(1, static_cast<int64_t>(p.run_id()));
   s.BindInt(2, p.generation());
   if (!p.all_islands()) s.BindInt(3, p.island());

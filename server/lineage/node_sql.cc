@@ -5,6 +5,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/status_macros.h"
+#include "server/store/row_sums.h"
 
 namespace skerry::lineage::internal {
 
@@ -84,7 +85,8 @@ absl::StatusOr<NodeFetcher> NodeFetcher::Make(store::Connection* conn) {
   SKERRY_ASSIGN_OR_RETURN(
       store::Statement stmt,
       conn->Prepare(absl::StrCat("SELECT ", kNodeColumns,
-                                 " FROM genomes WHERE id = ?1")));
+                                 " FROM genomes WHERE id = ?1 AND ",
+                                 store::kGenomeChecked)));
   return NodeFetcher(std::move(stmt));
 }
 
@@ -122,7 +124,8 @@ absl::StatusOr<LineageNode> ByKey(store::Connection* conn,
       conn->Prepare(
           absl::StrCat("SELECT ", kNodeColumns,
                        " FROM genomes WHERE run_id = ?1 AND "
-                       "island = ?2 AND generation = ?3 AND slot = ?4")));
+                       "island = ?2 AND generation = ?3 AND slot = ?4 AND ",
+                       store::kGenomeChecked)));
   s.BindInt(1, static_cast<int64_t>(key.run_id()));
   s.BindInt(2, key.island());
   s.BindInt(3, key.generation());

@@ -13,6 +13,7 @@
 #include "server/lineage/ancestry_walk.h"
 #include "server/lineage/lineage_reader.h"
 #include "server/lineage/node_sql.h"
+#include "server/store/row_sums.h"
 
 namespace skerry::lineage {
 namespace {
@@ -33,11 +34,15 @@ constexpr uint32_t kMaxBatch = 10000;
 std::string DescendantsSql() {
   return absl::StrCat(
       "WITH RECURSIVE d(", kNodeColumns, ") AS (SELECT ", kNodeColumns,
-      " FROM genomes WHERE id = ?1 UNION SELECT ", kNodeColumnsG,
+      " FROM genomes WHERE id = ?1 AND ", store::kGenomeChecked,
+      " UNION SELECT ", kNodeColumnsG,
       " FROM d JOIN genomes g ON g.parent_a = d.id WHERE g.generation <= ?2 "
-      "UNION SELECT ",
-      kNodeColumnsG,
-      " FROM d JOIN genomes g ON g.parent_b = d.id WHERE g.generation <= ?2) "
+      "AND ",
+      store::kGenomeCheckedG, " UNION SELECT ", kNodeColumnsG,
+      " FROM d JOIN genomes g ON g.parent_b = d.id WHERE g.generation <= ?2 "
+      "AND ",
+      store::kGenomeCheckedG,
+      ") "
       "SELECT ",
       kNodeColumns, " FROM d");
 }

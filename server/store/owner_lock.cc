@@ -68,13 +68,44 @@ absl::StatusOr<std::unique_ptr<OwnerLock>> OwnerLock::Acquire(
       return absl::FailedPreconditionError(absl::StrCat(
           "database ", db_path, " is owned by another running coordinator (",
           holder.empty() ? "holder unknown" : absl::StrCat("pid ", holder),
-          "), perhaps through another name or link of the same file; only "
-          "one coordinator may use a database at a time"));
+          "), perhaps through another name or link of the same file, or "
+          "by --read-only coordinators; only one coordinator may write a "
+          "database, and no --read-only one may serve it meanwhile"));
     }
     return absl::UnavailableError(
         absl::StrCat("cannot lock ", db_path, ": ", std::strerror(err)));
   }
   return std::unique_ptr<OwnerLock>(new OwnerLock(fd, created));
+}
+
+absl::StatusOr<std::unique_ptr<OwnerLock>> OwnerLock::AcquireShared(
+    const std::string& db_path) {
+  const int fd = open(db_path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0 && errno == ENOENT) {
+    return absl::NotFoundError(absl::StrCat(
+        "no database ", db_path,
+        "; --read-only serves an existing one and creates nothing"));
+  }
+  if (fd < 0) {
+    return absl::UnavailableError(absl::StrCat(
+        "cannot open the database ", db_path, ": ", std::strerror(errno)));
+  }
+  if (flock(fd, LOCK_SH | LOCK_NB) != 0) {
+    const int err = errno;
+    const std::string holder = FlockHolder(fd);
+    close(fd);
+    if (err == EWOULDBLOCK) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "database ", db_path, " is owned by a running coordinator (",
+          holder.empty() ? "holder unknown" : absl::StrCat("pid ", holder),
+          ") that writes it; a --read-only coordinator would show its active "
+          "runs as they were at start. Ask that coordinator (a viewer token "
+          "is enough), or serve a copy read-only (skerry backup)"));
+    }
+    return absl::UnavailableError(
+        absl::StrCat("cannot lock ", db_path, ": ", std::strerror(err)));
+  }
+  return std::unique_ptr<OwnerLock>(new OwnerLock(fd, false));
 }
 
 OwnerLock::~OwnerLock() {

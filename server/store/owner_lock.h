@@ -34,6 +34,13 @@ class OwnerLock {
   // Store::Open to initialise.
   static absl::StatusOr<std::unique_ptr<OwnerLock>> Acquire(
       const std::string& db_path);
+  // `--read-only`: a shared flock on an existing file (NotFound when it is
+  // missing; nothing is created). Any number of read-only coordinators may
+  // hold it together; a writing coordinator (Acquire) is refused while one
+  // does, and a read-only one is refused while a writing one runs, since it
+  // would show that writer's active runs as they were when it started.
+  static absl::StatusOr<std::unique_ptr<OwnerLock>> AcquireShared(
+      const std::string& db_path);
   ~OwnerLock();
   OwnerLock(const OwnerLock&) = delete;
   OwnerLock& operator=(const OwnerLock&) = delete;

@@ -12,7 +12,7 @@ namespace {
 
 // One tag byte per value, then its content, so that (1, NULL) and (NULL, 1)
 // or "ab","c" and "a","bc" hash differently.
-void RowSum(sqlite3_context* ctx, int argc, sqlite3_value** argv) {
+uint64_t SumOf(int argc, sqlite3_value** argv) {
   Sha256 h;
   for (int i = 0; i < argc; ++i) {
     sqlite3_value* v = argv[i];
@@ -50,7 +50,30 @@ void RowSum(sqlite3_context* ctx, int argc, sqlite3_value** argv) {
   const std::array<uint8_t, 32> digest = h.Finish();
   uint64_t out = 0;
   for (int i = 0; i < 8; ++i) out = (out << 8) | digest[i];
-  sqlite3_result_int64(ctx, static_cast<sqlite3_int64>(out));
+  return out;
+}
+
+void RowSum(sqlite3_context* ctx, int argc, sqlite3_value** argv) {
+  sqlite3_result_int64(ctx, static_cast<sqlite3_int64>(SumOf(argc, argv)));
+}
+
+// skerry_genome_checked(sum, <kGenomeSumColumns>): 1, or an SQLITE_CORRUPT
+// error whose message is kDamagedRowMarker and DamagedGenome's message.
+void GenomeChecked(sqlite3_context* ctx, int argc, sqlite3_value** argv) {
+  if (argc == 15 && static_cast<uint64_t>(sqlite3_value_int64(argv[0])) ==
+                        SumOf(argc - 1, argv + 1)) {
+    sqlite3_result_int(ctx, 1);
+    return;
+  }
+  // Arguments 1..5 are id, run_id, island, generation, slot.
+  auto at = [&](int i) { return i < argc ? sqlite3_value_int64(argv[i]) : 0; };
+  const absl::Status damaged = DamagedGenome(
+      at(2), static_cast<uint32_t>(at(3)), static_cast<uint32_t>(at(4)),
+      static_cast<uint32_t>(at(5)), at(1));
+  const std::string message =
+      absl::StrCat(kDamagedRowMarker, damaged.message());
+  sqlite3_result_error(ctx, message.c_str(), static_cast<int>(message.size()));
+  sqlite3_result_error_code(ctx, SQLITE_CORRUPT);
 }
 
 constexpr const char* kWhatToDo =
@@ -78,9 +101,13 @@ absl::Status DamagedRow(int64_t run_id, const std::string& what) {
 }
 
 int RegisterRowSumFunction(sqlite3* db) {
-  return sqlite3_create_function_v2(db, "skerry_row_sum", -1,
+  const int rc = sqlite3_create_function_v2(
+      db, "skerry_row_sum", -1, SQLITE_UTF8 | SQLITE_DETERMINISTIC, nullptr,
+      &RowSum, nullptr, nullptr, nullptr);
+  if (rc != SQLITE_OK) return rc;
+  return sqlite3_create_function_v2(db, "skerry_genome_checked", 15,
                                     SQLITE_UTF8 | SQLITE_DETERMINISTIC, nullptr,
-                                    &RowSum, nullptr, nullptr, nullptr);
+                                    &GenomeChecked, nullptr, nullptr, nullptr);
 }
 
 }  // namespace skerry::store

@@ -55,6 +55,22 @@ inline constexpr const char* kStatsSumColumns =
 inline constexpr const char* kStrategyStateSumColumns =
     "run_id, island, generation, state";
 
+// SQL for a WHERE clause that verifies each genome row a query reads (the
+// lineage queries use it): true when the row matches its sum, else the
+// statement fails with SQLITE_CORRUPT and a message that starts with
+// kDamagedRowMarker followed by DamagedGenome's message, which SqliteStatus
+// (sqlite.cc) turns into exactly that DATA_LOSS. `G` qualifies the columns
+// with the table alias "g.".
+inline constexpr const char* kGenomeChecked =
+    "skerry_genome_checked(sum, id, run_id, island, generation, slot, origin, "
+    "parent_a, parent_b, genes, score, eval_state, attempts, error, "
+    "eval_seconds)";
+inline constexpr const char* kGenomeCheckedG =
+    "skerry_genome_checked(g.sum, g.id, g.run_id, g.island, g.generation, "
+    "g.slot, g.origin, g.parent_a, g.parent_b, g.genes, g.score, "
+    "g.eval_state, g.attempts, g.error, g.eval_seconds)";
+inline constexpr const char kDamagedRowMarker[] = "skerry damaged row: ";
+
 // DATA_LOSS for a row whose content does not match its checksum, naming it
 // and what to do.
 absl::Status DamagedRun(int64_t run_id);
@@ -63,7 +79,8 @@ absl::Status DamagedGenome(int64_t run_id, uint32_t island, uint32_t generation,
 // `what` names the row: "island 2", "island 2 generation 7 statistics".
 absl::Status DamagedRow(int64_t run_id, const std::string& what);
 
-// Registers skerry_row_sum(...) on `db`. SQLITE_OK or SQLite's error code.
+// Registers skerry_row_sum(...) and skerry_genome_checked(...) on `db`.
+// SQLITE_OK or SQLite's error code.
 int RegisterRowSumFunction(sqlite3* db);
 
 }  // namespace skerry::store

@@ -1,5 +1,8 @@
 #include "server/store/sqlite.h"
 
+#include <cstring>
+
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "server/store/row_sums.h"
 
@@ -23,7 +26,16 @@ absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
       return absl::UnavailableError(msg);
     case SQLITE_CONSTRAINT:
       return absl::FailedPreconditionError(msg);
-    case SQLITE_CORRUPT:
+    case SQLITE_CORRUPT: {
+      // A row that failed its checksum (row_sums.h): its own message alone,
+      // which names the run, island, generation and slot.
+      const absl::string_view err =
+          db != nullptr ? sqlite3_errmsg(db) : absl::string_view();
+      if (absl::StartsWith(err, kDamagedRowMarker)) {
+        return absl::DataLossError(err.substr(strlen(kDamagedRowMarker)));
+      }
+      return absl::DataLossError(msg);
+    }
     case SQLITE_NOTADB:
       return absl::DataLossError(msg);
     default:

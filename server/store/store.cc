@@ -341,8 +341,16 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
   if (existed && S_ISREG(st.st_mode) && st.st_size == 0) {
     return with_path(absl::FailedPreconditionError(kEmptyFileMessage));
   }
+  if (options.read_only && !existed) {
+    return with_path(absl::NotFoundError(
+        "no such database; --read-only serves an existing one and creates "
+        "nothing"));
+  }
   absl::StatusOr<std::unique_ptr<Connection>> conn = Connection::Open(
-      path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX,
+      path,
+      (options.read_only ? SQLITE_OPEN_READONLY
+                         : SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE) |
+          SQLITE_OPEN_FULLMUTEX,
       options.vfs);
   if (!conn.ok()) return conn.status();  // already names the path
   sqlite3_busy_timeout((*conn)->raw(), options.busy_timeout_ms);
@@ -356,6 +364,16 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
         "not a Skerry database: it has no schema_version table (nothing was "
         "changed; only a file that does not exist yet becomes a new "
         "database)"));
+  }
+  if (options.read_only) {
+    if (*version != kSchemaVersion) {
+      return with_path(absl::FailedPreconditionError(absl::StrCat(
+          "schema version ", *version, ", this program's is ", kSchemaVersion,
+          "; --read-only does not migrate: start a coordinator of this "
+          "version once without --read-only (it migrates the file), or "
+          "serve it with the version that wrote it")));
+    }
+    return store;
   }
   // SQLite opens a file it may not write read-only without an error (the
   // file's permissions; a header whose write version it does not know, as a

@@ -299,6 +299,10 @@ class Store {
     // The caller made the empty file itself a moment ago (OwnerLock does,
     // to lock it): initialise it as if it had been absent.
     bool initialise_empty_file = false;
+    // `--read-only`: SQLITE_OPEN_READONLY, no pragma set, no migration. The
+    // file must exist and be at this program's schema version exactly
+    // (FailedPrecondition otherwise, naming both versions).
+    bool read_only = false;
   };
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path,
                                                      const Options& options);
@@ -382,6 +386,11 @@ class Store {
   // A genome's evaluator metrics (metrics.cc); empty when it has none.
   absl::StatusOr<std::map<std::string, double>> GetGenomeMetrics(
       int64_t genome_id);
+  // Migrants per (island, generation) that received them, by the island of
+  // each migrant's parent (migrations.cc).
+  absl::StatusOr<
+      std::map<std::pair<uint32_t, uint32_t>, std::map<uint32_t, uint32_t>>>
+  MigrationCounts(int64_t run_id);
   // Each metric's mean per (island, generation) over the run's genomes.
   absl::StatusOr<
       std::map<std::pair<uint32_t, uint32_t>, std::map<std::string, double>>>

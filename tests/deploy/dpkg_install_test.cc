@@ -64,6 +64,10 @@ TEST(DpkgInstallTest, PackageInstallsWithAptItsProgramsRunAndItRemovesCleanly) {
   }
   EXPECT_EQ(RunTool({"getent", "passwd", "skerry"}).exit_code, 0)
       << "postinst did not make the system user";
+  // The worker unit's --evaluator-dirs default must exist, or every worker
+  // started by the unit refuses to start.
+  EXPECT_TRUE(testing::PathExists("/usr/local/lib/skerry/evaluators"))
+      << "postinst did not make the evaluator folder";
   if (testing::OnPath("man")) {
     EXPECT_THAT(RunTool({"man", "-w", "skerry-worker"}).output,
                 HasSubstr("skerry-worker.1"));
@@ -89,6 +93,8 @@ TEST(DpkgInstallTest, PackageInstallsWithAptItsProgramsRunAndItRemovesCleanly) {
                                 absl::Seconds(300));
   EXPECT_EQ(purge.exit_code, 0) << purge.output;
   EXPECT_FALSE(testing::PathExists("/etc/skerry/worker.env"));
+  EXPECT_FALSE(testing::PathExists("/usr/local/lib/skerry/evaluators"))
+      << "postrm left the (empty) evaluator folder";
   // The package keeps its user (a database may still belong to it); the test
   // takes away the one its install made.
   if (!user_existed) RunTool({"userdel", "skerry"});

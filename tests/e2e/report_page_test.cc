@@ -150,7 +150,9 @@ constexpr char kReportValues[] = R"JS(({
   history: Array.from(document.querySelectorAll('table.history[data-run="1"] tr[data-island]'))
       .map(tr => Array.from(tr.cells).slice(0, 7).map(td => td.textContent).join(' ')).join('\n'),
   summary: Array.from(document.querySelectorAll('#summary tr[data-run]'))
-      .map(tr => Array.from(tr.cells).map(td => td.textContent).join('|')).join('\n')
+      .map(tr => Array.from(tr.cells).map(td => td.textContent).join('|')).join('\n'),
+  migration: window.skerryCharts['chart-migration'].data.datasets.flatMap(
+      d => d.data.map(p => d.label + '|' + p.x + '|' + p.y)).sort().join('\n')
 }))JS";
 
 double Number(const std::string& text) {
@@ -326,6 +328,16 @@ TEST_F(ReportPageTest, ReportDrawsEveryChartOfflineWithTheDatabaseNumbers) {
                                  "FROM runs WHERE id = 1"));
   testing::CommandResult digest = RunCommand(Cli({"digest", "1"}));
   EXPECT_THAT(summary[10], HasSubstr(testing::DigestIn(digest.output)));
+  // Every migration event of the run, per generation and island pair, as
+  // stored: each MIGRANT genome, counted by its parent's island.
+  const std::string events = testing::QueryText(
+      db_,
+      "SELECT group_concat(e, char(10)) FROM (SELECT 'island ' || p.island || "
+      "' to ' || g.island || '|' || g.generation || '|' || count(*) AS e FROM "
+      "genomes g JOIN genomes p ON p.id = g.parent_a WHERE g.run_id = 1 AND "
+      "g.origin = 6 GROUP BY g.island, g.generation, p.island ORDER BY e)");
+  ASSERT_FALSE(events.empty()) << "the run had no migration";
+  EXPECT_EQ(page.Value("migration"), events);
 
   // Two runs overlay on the same charts.
   const std::string two = dir_.File("two.html");

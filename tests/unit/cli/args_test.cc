@@ -195,8 +195,9 @@ TEST(HelpTest, GeneralHelpListsEveryCommand) {
 
 TEST(HelpTest, CommandHelpShowsUsageWithRequiredAndOptionalFlags) {
   std::string help = CommandHelp(*FindCommand("local"));
-  EXPECT_THAT(
-      help, HasSubstr("usage: skerry local SPEC_FILE --workers N --db FILE\n"));
+  EXPECT_THAT(help,
+              HasSubstr("usage: skerry local SPEC_FILE --workers N --db FILE "
+                        "[--http HOST:PORT]\n"));
   std::string champion = CommandHelp(*FindCommand("champion"));
   EXPECT_THAT(champion,
               HasSubstr("usage: skerry champion RUN [--json] [--out FILE]\n"));

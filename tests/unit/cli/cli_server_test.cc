@@ -143,13 +143,17 @@ TEST_F(CoordinatorFixture, SubmitWatchShowHistoryAndChampionOverLoopback) {
   EXPECT_THAT(shown.out, HasSubstr("state       finished\n"));
   EXPECT_THAT(shown.out, HasSubstr("EVALS  ISLANDS\n"));
 
-  // sphere-quick.spec runs 5 generations on one island: header + 5 rows.
+  // sphere-quick.spec runs 5 generations on one island: header + 5 rows,
+  // then the built-in's metrics (title, header + 5 rows).
   Result history =
       Cli({"--coordinator", target_, "history", id, "--island", "0"});
   EXPECT_EQ(history.code, kExitOk) << history.err;
   std::vector<std::string> rows =
       absl::StrSplit(history.out, '\n', absl::SkipEmpty());
-  EXPECT_EQ(rows.size(), 6u) << history.out;
+  EXPECT_EQ(rows.size(), 13u) << history.out;
+  EXPECT_THAT(history.out,
+              HasSubstr("evaluator metrics, mean per generation:\n"));
+  EXPECT_THAT(history.out, HasSubstr("distance_to_optimum"));
 
   Result champion = Cli({"--coordinator", target_, "champion", id, "--json"});
   ASSERT_EQ(champion.code, kExitOk) << champion.err;

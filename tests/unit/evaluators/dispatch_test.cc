@@ -9,6 +9,7 @@
 
 #include "absl/strings/escaping.h"
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
 #include "common/evaluator.h"
 #include "common/spec.h"
 #include "gmock/gmock.h"
@@ -61,10 +62,22 @@ TEST(EvaluatorHostTest, AnswersEachRequestWithItsIdAndTheBuiltinsScore) {
       "{\"id\":5,\"genes\":[3]}\n");
   std::ostringstream out;
   ASSERT_TRUE(ServeEvaluations(Sphere(), in, out).ok());
-  // Sphere: sum x_i^2 (Jamil & Yang 2013).
-  EXPECT_EQ(out.str(),
-            "{\"id\":\"4\",\"metrics\":{},\"error\":\"\",\"score\":5.25}\n"
-            "{\"id\":\"5\",\"metrics\":{},\"error\":\"\",\"score\":9}\n");
+  // Sphere: sum x_i^2 (Jamil & Yang 2013); the built-in's metrics travel
+  // too: the distance to the minimiser 0 is sqrt(5.25) and 3. (Map order in
+  // protobuf's JSON is not fixed: each field is looked for on its own.)
+  std::vector<std::string> lines =
+      absl::StrSplit(out.str(), '\n', absl::SkipEmpty());
+  ASSERT_EQ(lines.size(), 2u) << out.str();
+  EXPECT_THAT(
+      lines[0],
+      ::testing::AllOf(HasSubstr("\"id\":\"4\""), HasSubstr("\"score\":5.25"),
+                       HasSubstr("\"distance_to_optimum\":2.29128784747792"),
+                       HasSubstr("\"genes_outside_domain\":0"),
+                       HasSubstr("\"error\":\"\"")));
+  EXPECT_THAT(lines[1], ::testing::AllOf(
+                            HasSubstr("\"id\":\"5\""), HasSubstr("\"score\":9"),
+                            HasSubstr("\"distance_to_optimum\":3"),
+                            HasSubstr("\"genes_outside_domain\":0")));
 }
 
 TEST(EvaluatorHostTest, BadLineAndEvaluatorErrorsBecomeResponseErrors) {

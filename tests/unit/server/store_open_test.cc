@@ -197,6 +197,56 @@ TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
   EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
 }
 
+// `--read-only` (Store::Options::read_only) never migrates: an older file is
+// refused naming both versions and left byte for byte as it was.
+TEST_F(StoreOpenTest, ReadOnlyOpenRefusesAnOlderSchemaAndChangesNothing) {
+  store_.reset();
+  RawExec(path(),
+          "DROP TABLE genome_metrics; UPDATE schema_version SET version = 7");
+  const std::string before = ReadFileBytes(path());
+  Store::Options read_only;
+  read_only.read_only = true;
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path(), read_only);
+  ASSERT_FALSE(store.ok());
+  EXPECT_EQ(store.status().code(), absl::StatusCode::kFailedPrecondition);
+  EXPECT_THAT(Message(store.status()), HasSubstr("schema version 7"));
+  EXPECT_THAT(
+      Message(store.status()),
+      HasSubstr(absl::StrCat("this program's is ", Store::kSchemaVersion)));
+  EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
+}
+
+TEST_F(StoreOpenTest, ReadOnlyStoreReadsAndEveryWriteFails) {
+  RunRecord run = MakeRun(SmallSpec(1));
+  std::vector<GenomeRecord> genomes = Generation0(1, 4);
+  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
+  store_.reset();
+  const std::string before = ReadFileBytes(path());
+  Store::Options read_only;
+  read_only.read_only = true;
+  absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path(), read_only);
+  ASSERT_TRUE(store.ok()) << store.status();
+  absl::StatusOr<RunRecord> got = (*store)->GetRun(run.id);
+  ASSERT_TRUE(got.ok()) << got.status();
+  EXPECT_EQ(got->name, run.name);
+  EXPECT_FALSE((*store)->ProbeWrite().ok());
+  store->reset();
+  EXPECT_TRUE(ReadFileBytes(path()) == before) << "a read-only store wrote";
+}
+
+TEST(StoreForeignFileTest, ReadOnlyOpenOfAMissingFileCreatesNothing) {
+  TempDir dir;
+  Store::Options read_only;
+  read_only.read_only = true;
+  absl::StatusOr<std::unique_ptr<Store>> store =
+      Store::Open(dir.File("absent.db"), read_only);
+  ASSERT_FALSE(store.ok());
+  EXPECT_EQ(store.status().code(), absl::StatusCode::kNotFound);
+  EXPECT_TRUE(ReadFileBytes(dir.File("absent.db")).empty());
+  std::ifstream probe(dir.File("absent.db"));
+  EXPECT_FALSE(probe.good());
+}
+
 TEST(StoreForeignFileTest, ForeignTablesWithoutSchemaVersionAreRefused) {
   TempDir dir;
   const std::string path = dir.File("other.db");

@@ -49,6 +49,16 @@ TEST(EvaluateTaskTest, SphereScoreIsTheSumOfSquares) {
   EXPECT_DOUBLE_EQ(r.score(), 5.25);
 }
 
+TEST(EvaluateTaskTest, BuiltinMetricsTravelWithTheResult) {
+  EvaluatorCache cache(nullptr);  // MakeEvaluator
+  const skerry::v1::TaskResult r =
+      EvaluateTask(MakeTask("sphere", {1.0, -2.0, 0.5}), cache, Clock::Real());
+  ASSERT_EQ(r.metrics().count("distance_to_optimum"), 1u);
+  // sqrt(5.25): the distance from the origin, sphere's minimiser.
+  EXPECT_DOUBLE_EQ(r.metrics().at("distance_to_optimum"), std::sqrt(5.25));
+  EXPECT_EQ(r.metrics().at("genes_outside_domain"), 0.0);
+}
+
 TEST(EvaluateTaskTest, EvalSecondsComesFromTheClock) {
   FakeClock clock;
   class Slow : public Evaluator {
