@@ -216,7 +216,8 @@ const std::string& RunColumns() {
       "id, name, owner, spec, spec_text, state, priority, message, "
       "created_ms, updated_ms, started_ms, evaluations, champion_id, "
       "best_score, stop_generation, ",
-      SumMatches(kRunSumColumns), ", coalesce(request_id, '')"));
+      SumMatches(kRunSumColumns),
+      ", coalesce(request_id, ''), parent_run, parent_generation"));
   return *columns;
 }
 
@@ -246,6 +247,10 @@ RunRecord ReadRun(const Statement& s) {
     r.stop_generation = static_cast<uint32_t>(s.ColumnInt(14));
   }
   r.request_id = s.ColumnText(16);
+  if (!s.ColumnIsNull(17)) r.parent_run = s.ColumnInt(17);
+  if (!s.ColumnIsNull(18)) {
+    r.parent_generation = static_cast<uint32_t>(s.ColumnInt(18));
+  }
   return r;
 }
 
@@ -332,6 +337,13 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
         "not a Skerry database: it has no schema_version table (nothing was "
         "changed; only a file that does not exist yet becomes a new "
         "database)"));
+  }
+  if (*version == 0) {
+    // Before any table exists, or it has no effect: pages freed by deleting
+    // a run (run_delete.cc) can then be given back to the file system.
+    // Older files keep auto_vacuum=NONE (docs/operations.md).
+    absl::Status av = store->conn_->Exec("PRAGMA auto_vacuum=INCREMENTAL");
+    if (!av.ok()) return with_path(av);
   }
   // WAL is a property of the file and survives reopening.
   absl::StatusOr<Statement> wal =
