@@ -68,6 +68,8 @@
 //   DeleteRun          an ended run's rows, all of them (run_delete.cc)
 //   CreateFork         a fork: its run, islands, copied statistics and
 //                      copied generation (fork_store.cc)
+//   ImportRuns         every run of an exported file, ids remapped
+//                      (run_transfer.cc)
 //   BeginAudit         an audit row, before the change it describes is made
 //   FinishAudit        the outcome of that change
 //
@@ -415,6 +417,13 @@ class Store {
   // Every token (live first when asked), by id.
   absl::StatusOr<std::vector<TokenRecord>> ListTokens();
   absl::StatusOr<int64_t> CountPrincipals();
+  // Inserts `entry` (its code empty: not ended yet); returns its id.
+  absl::StatusOr<int64_t> BeginAudit(const AuditRecord& entry);
+  // Sets code, message, run_id and detail of the row entry.id.
+  absl::Status FinishAudit(const AuditRecord& entry);
+  absl::StatusOr<std::vector<AuditRecord>> QueryAudit(const AuditQuery& query);
+  // The run's owner; empty when there is no such run.
+  absl::StatusOr<std::optional<std::string>> RunOwner(int64_t run_id);
 
   // ---- Deleting runs (run_delete.cc) ----
   struct Deleted {
@@ -450,13 +459,6 @@ class Store {
   // parent run is gone.
   absl::Status CreateFork(RunRecord* run, std::vector<StatsRecord>* stats,
                           std::vector<GenomeRecord>* genomes);
-  // Inserts `entry` (its code empty: not ended yet); returns its id.
-  absl::StatusOr<int64_t> BeginAudit(const AuditRecord& entry);
-  // Sets code, message, run_id and detail of the row entry.id.
-  absl::Status FinishAudit(const AuditRecord& entry);
-  absl::StatusOr<std::vector<AuditRecord>> QueryAudit(const AuditQuery& query);
-  // The run's owner; empty when there is no such run.
-  absl::StatusOr<std::optional<std::string>> RunOwner(int64_t run_id);
 
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
