@@ -232,6 +232,33 @@ TEST_F(ForkTest, UnchangedForkRepeatsItsParentAndLineageCrossesIntoIt) {
   EXPECT_EQ(coalescence.exit_code, 0) << coalescence.output;
 
   StopAndCheck();
+  // `--check` accepts the links into the parent because the run row names
+  // it: the same rows without that are reported (the checksum triggers are
+  // dropped for the edit and put back).
+  const std::string orphaned = dir_.File("orphaned.db");
+  ASSERT_EQ(RunCommand({"/bin/cp", db_, orphaned}).exit_code, 0);
+  const std::string triggers = testing::QueryText(
+      orphaned,
+      "SELECT group_concat(sql, '; ') FROM sqlite_master WHERE type = "
+      "'trigger' AND tbl_name = 'runs'");
+  const std::string drops = testing::QueryText(
+      orphaned,
+      "SELECT group_concat('DROP TRIGGER ' || name, '; ') FROM sqlite_master "
+      "WHERE type = 'trigger' AND tbl_name = 'runs'");
+  CommandResult edit = RunCommand(
+      {"/usr/bin/sqlite3", orphaned,
+       absl::StrCat(drops,
+                    "; UPDATE runs SET parent_run = NULL, parent_generation = "
+                    "NULL WHERE id = 2; ",
+                    triggers, ";")});
+  ASSERT_EQ(edit.exit_code, 0) << edit.output;
+  CommandResult check =
+      RunCommand({SKERRY_COORDINATOR_BIN, "--check", orphaned});
+  EXPECT_EQ(check.exit_code, 1) << check.output;
+  EXPECT_THAT(check.output,
+              HasSubstr("run 2: parent link does not resolve within the run"));
+  EXPECT_THAT(check.output,
+              HasSubstr("run 2 island 0: generation 0 is missing"));
 }
 
 TEST_F(ForkTest, ForkWithChangesStartsFromTheCopiedGenerationAndGoesItsWay) {
