@@ -1,10 +1,11 @@
 // Store::DeleteRun (store.h): every row of an ended run, in one transaction,
 // then the freed pages given back to the file system.
 //
-// Refused while the run is active (the engine holds it in memory) and while
-// a fork of it exists: a fork's first generation links to this run's genomes
-// (fork_store.cc), and deleting them would leave its lineage dangling. Audit
-// rows naming the run stay: the audit log is the history of who did what.
+// A run's membership of a seed series goes with it, and a series left
+// empty. Refused while the run is active (the engine holds it in memory) and
+// while a fork of it exists: a fork's first generation links to this run's
+// genomes (fork_store.cc), and deleting them would leave its lineage dangling.
+// Audit rows naming the run stay: the audit log is the history of who did what.
 #include <vector>
 
 #include "absl/strings/str_cat.h"
@@ -76,6 +77,11 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(int64_t run_id) {
                             "DELETE FROM genomes WHERE run_id = ?1",
                             "DELETE FROM generation_stats WHERE run_id = ?1",
                             "DELETE FROM islands WHERE run_id = ?1",
+                            // Its place in a seed series (series_store.h); a
+                            // series left with no run goes too.
+                            "DELETE FROM series_runs WHERE run_id = ?1",
+                            "DELETE FROM series WHERE id NOT IN (SELECT "
+                            "series_id FROM series_runs)",
                             "DELETE FROM runs WHERE id = ?1"}) {
       SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare(sql));
       st.BindInt(1, run_id);
