@@ -45,6 +45,32 @@ std::vector<CommandSpec> MakeCommands() {
        "--seeds, submits one run of the spec per seed, all or none, as a "
        "series (`skerry series`, `skerry compare`) and prints each run's id "
        "and seed."},
+      {"fork",
+       {"RUN"},
+       {{"at", "GEN",
+         "the generation whose populations the new run starts from", true},
+        {"set", "TEXT",
+         "spec changes in protobuf text format: 'ga { elites: 2 }'"},
+        {"set-file", "FILE", "the same changes read from a file"},
+        {"priority", "N", "share of the workers, 1-1000 (default: RUN's)"}},
+       "start a new run from another run's populations at a generation",
+       "Makes a new run (a fork) whose islands start from copies of RUN's "
+       "genomes at generation GEN, with RUN's spec changed by --set and "
+       "--set-file (they may not both name one field). Prints the new run's "
+       "id. genome_length, objective, islands.count and the population sizes "
+       "may not change. Without changes the fork repeats RUN from that "
+       "generation on, genome for genome. Lineage commands follow a fork's "
+       "genomes into RUN's. See docs/user-guide.md, \"fork\"."},
+      {"delete",
+       {"RUN"},
+       {{"yes", nullptr, "confirm: the run's rows go for good", true}},
+       "delete an ended run and everything stored of it",
+       "Deletes RUN's rows from the coordinator's database: the run, its "
+       "islands, genomes, statistics, validations and metrics (the audit log "
+       "keeps its entries). Only a finished, stopped or failed run can be "
+       "deleted, and not while forks of it exist. --yes is required. Take a "
+       "copy first with `skerry backup RUN --to FILE` if you may want it "
+       "back. The owner or an admin."},
       {"list", {}, {}, "list every run", "Lists every run, newest last."},
       {"show",
        {"RUN"},

@@ -112,6 +112,28 @@ absl::StatusOr<RunSummary> RunClient::Submit(const skerry::v1::RunSpec& spec,
   return response.run();
 }
 
+absl::StatusOr<RunSummary> RunClient::Fork(
+    const skerry::v1::ForkRunRequest& request) {
+  skerry::v1::SubmitRunResponse response;
+  grpc::ClientContext context;
+  SetDeadline(&context);
+  absl::Status status = FromGrpc(stub_->ForkRun(&context, request, &response),
+                                 "ForkRun", target_);
+  if (!status.ok()) return status;
+  return response.run();
+}
+
+absl::StatusOr<skerry::v1::DeleteRunResponse> RunClient::Delete(
+    uint64_t run_id) {
+  skerry::v1::DeleteRunResponse response;
+  grpc::ClientContext context;
+  SetDeadline(&context);
+  absl::Status status = FromGrpc(
+      stub_->DeleteRun(&context, Ref(run_id), &response), "DeleteRun", target_);
+  if (!status.ok()) return status;
+  return response;
+}
+
 absl::StatusOr<std::vector<RunSummary>> RunClient::List() {
   skerry::v1::ListRunsResponse response;
   grpc::ClientContext context;

@@ -74,6 +74,11 @@ class RunClient {
   absl::StatusOr<skerry::v1::RunSummary> Submit(
       const skerry::v1::RunSpec& spec, const std::string& spec_text,
       uint32_t priority = 0, const std::string& request_id = "");
+  // RunService.ForkRun (cli/fork.cc).
+  absl::StatusOr<skerry::v1::RunSummary> Fork(
+      const skerry::v1::ForkRunRequest& request);
+  // RunService.DeleteRun (cli/housekeeping.cc).
+  absl::StatusOr<skerry::v1::DeleteRunResponse> Delete(uint64_t run_id);
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> List();
   absl::StatusOr<skerry::v1::GetRunResponse> Get(uint64_t run_id);
   absl::StatusOr<skerry::v1::RunSummary> Pause(uint64_t run_id);

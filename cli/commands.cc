@@ -17,7 +17,9 @@
 #include "cli/backup.h"
 #include "cli/compare.h"
 #include "cli/compare_page.h"
+#include "cli/fork.h"
 #include "cli/format.h"
+#include "cli/housekeeping.h"
 #include "cli/lineage.h"
 #include "cli/local.h"
 #include "cli/metrics_text.h"
@@ -133,6 +135,11 @@ int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
     if (code != kExitOk || !args.Has("watch")) return code;
     return WatchCommand(client, run_id, io);
   }
+  if (command == "fork") {
+    uint64_t fork_id = 0;
+    return ForkCommand(args, client, run_id, io, &fork_id);
+  }
+  if (command == "delete") return DeleteCommand(client, run_id, io);
   if (command == "list") return ListCommand(client, io);
   if (command == "series") return SeriesCommand(args, client, io);
   if (command == "compare") return CompareCommand(args, client, io);

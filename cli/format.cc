@@ -128,7 +128,13 @@ std::string FormatRunList(const std::vector<RunSummary>& runs,
   if (runs.empty()) return "no runs\n";
   std::vector<std::vector<std::string>> rows;
   for (const RunSummary& run : runs) {
-    rows.push_back({absl::StrCat(run.id()), run.name(), run.owner(),
+    // A fork says whose: "NAME (fork of 3 at 12)".
+    const std::string name =
+        run.parent_run() == 0
+            ? run.name()
+            : absl::StrCat(run.name(), " (fork of ", run.parent_run(), " at ",
+                           run.parent_generation(), ")");
+    rows.push_back({absl::StrCat(run.id()), name, run.owner(),
                     RunStateName(run.state()), GenerationRange(run),
                     FormatCount(run.evaluations()), RunBest(run),
                     FormatTimestamp(run.created_unix_ms(), zone)});
@@ -173,6 +179,11 @@ std::string FormatRunDetails(const skerry::v1::GetRunResponse& response) {
   if (response.has_champion_validation()) {
     fields.push_back(
         {"validation", FormatValidationState(response.champion_validation())});
+  }
+  if (run.parent_run() != 0) {
+    fields.push_back({"forked from",
+                      absl::StrCat("run ", run.parent_run(), " at generation ",
+                                   run.parent_generation())});
   }
   if (run.priority() > 1) {
     fields.push_back({"priority", absl::StrCat(run.priority())});

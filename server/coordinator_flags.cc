@@ -79,6 +79,11 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
                         whole generations, resolvable parent links, counters),
                         print a report and exit: 0 ok, 1 problems found,
                         2 cannot read it. Safe while a coordinator runs.
+  --import FILE         import every run of FILE (a `skerry backup` of
+                        another coordinator) into the --db database, with
+                        new ids, and exit; refused while a coordinator serves
+                        that database, and for a damaged file or one of
+                        another schema version
   --help                this text
   --version             print the version and the worker protocols spoken
 )";
@@ -118,6 +123,10 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
       absl::StatusOr<std::string> v = value("--check");
       if (!v.ok()) return v.status();
       f.check_db = *v;
+    } else if (arg == "--import") {
+      absl::StatusOr<std::string> v = value("--import");
+      if (!v.ok()) return v.status();
+      f.import_file = *v;
     } else if (arg == "--init-admin") {
       absl::StatusOr<std::string> v = value("--init-admin");
       if (!v.ok()) return v.status();

@@ -12,9 +12,10 @@ namespace skerry::server {
 struct CoordinatorFlags {
   CoordinatorOptions options;
   bool help = false;
-  bool version = false;    // --version: print it and exit
-  std::string check_db;    // --check DB: check and exit
-  std::string init_admin;  // --init-admin NAME: make the first admin and exit
+  bool version = false;     // --version: print it and exit
+  std::string check_db;     // --check DB: check and exit
+  std::string init_admin;   // --init-admin NAME: make the first admin and exit
+  std::string import_file;  // --import FILE: import its runs into --db, exit
 };
 
 // InvalidArgument names the flag and what it takes.

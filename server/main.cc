@@ -12,6 +12,7 @@
 #include "server/coordinator.h"
 #include "server/coordinator_flags.h"
 #include "server/store/check.h"
+#include "server/store/run_transfer.h"
 
 int main(int argc, char** argv) {
   absl::StatusOr<skerry::server::CoordinatorFlags> flags =
@@ -40,6 +41,17 @@ int main(int argc, char** argv) {
     }
     std::fputs(report->ToString().c_str(), stdout);
     return report->ok() ? 0 : 1;
+  }
+  if (!flags->import_file.empty()) {
+    absl::StatusOr<std::string> imported = skerry::store::ImportIntoDatabase(
+        flags->options.db_path, flags->import_file);
+    if (!imported.ok()) {
+      std::fprintf(stderr, "skerry-coordinator: --import: %s\n",
+                   std::string(imported.status().message()).c_str());
+      return 1;
+    }
+    std::fputs(imported->c_str(), stdout);
+    return 0;
   }
   if (!flags->init_admin.empty()) {
     auto admin = skerry::server::InitFirstAdmin(flags->options.db_path,

@@ -43,6 +43,9 @@ const std::vector<FieldBound>* BuildTable() {
       {"skerry.v1.SubmitRunRequest.spec", 0, 0,
        "the coordinator's budgets (--max-name-bytes, --max-evaluator-bytes, "
        "--max-task-bytes, --max-generation-genes) and ValidateSpec"},
+      {"skerry.v1.ForkRunRequest.changes", 0, 1 * kMiB, ""},
+      {"skerry.v1.ForkRunRequest.request_id", 0, 128,
+       "RunService.ForkRun: printable ASCII, no spaces"},
       // StudyService
       {"skerry.v1.SubmitSeriesRequest.spec_text", 0, 1 * kMiB, ""},
       {"skerry.v1.SubmitSeriesRequest.seeds", 100, 0, ""},

@@ -71,6 +71,13 @@ class RunServiceImpl final
   grpc::Status SetPriority(grpc::ServerContext* ctx,
                            const skerry::v1::SetPriorityRequest* req,
                            skerry::v1::RunSummary* resp) override;
+  // run_service_fork.cc
+  grpc::Status ForkRun(grpc::ServerContext* ctx,
+                       const skerry::v1::ForkRunRequest* req,
+                       skerry::v1::SubmitRunResponse* resp) override;
+  grpc::Status DeleteRun(grpc::ServerContext* ctx,
+                         const skerry::v1::RunRef* req,
+                         skerry::v1::DeleteRunResponse* resp) override;
   grpc::ServerWriteReactor<skerry::v1::RunSummary>* WatchRun(
       grpc::CallbackServerContext* ctx,
       const skerry::v1::WatchRunRequest* req) override;

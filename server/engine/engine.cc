@@ -980,6 +980,8 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
   s.set_message(rec->message);
   s.set_objective(rec->spec.objective());
   s.set_priority(static_cast<uint32_t>(rec->priority));
+  s.set_parent_run(static_cast<uint64_t>(rec->parent_run));
+  s.set_parent_generation(rec->parent_generation);
   if (!write_problem_.ok()) {
     s.set_coordinator_problem(absl::StrCat(
         "the coordinator cannot write its database (", write_problem_.message(),

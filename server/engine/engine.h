@@ -120,6 +120,22 @@ class Engine {
                                           std::string owner,
                                           uint32_t priority = 0,
                                           std::string request_id = "");
+  // Makes a fork of run `parent_id` (engine_fork.cc): a new run whose
+  // islands start at `generation` from copies of the parent's genomes there
+  // (server/engine/fork_spec.h says what `spec` may change; it comes
+  // prepared). InvalidArgument names a field that may not change;
+  // FailedPrecondition when the parent has not reached `generation` on every
+  // island or no longer holds it; NotFound for no such parent. `priority` 0:
+  // the parent's.
+  absl::StatusOr<store::RunRecord> Fork(int64_t parent_id, uint32_t generation,
+                                        skerry::v1::RunSpec spec,
+                                        std::string spec_text,
+                                        std::string owner, uint32_t priority,
+                                        std::string request_id);
+  // Deletes an ended (or damaged) run and everything stored of it
+  // (engine_delete.cc; Store::DeleteRun says what is refused), and forgets
+  // its queued validations.
+  absl::StatusOr<store::Store::Deleted> Delete(int64_t run_id);
   // A seed series (engine_series.cc): one run of `spec` per seed (the spec's
   // own seed replaced), all stored with the series in one transaction, or
   // none. `series` names it (Store::CreateSeries refuses a name in use);

@@ -59,11 +59,15 @@ absl::StatusOr<uint64_t> GenomesPerGeneration(store::Connection* conn,
   return total;
 }
 
+// The newest generation of the run and of its forks, and theirs: a genome's
+// descendants may live on in a fork that went further than its own run.
 absl::StatusOr<uint32_t> NewestGeneration(store::Connection* conn,
                                           uint64_t run_id) {
   SKERRY_ASSIGN_OR_RETURN(
       store::Statement s,
-      conn->Prepare("SELECT max(generation) FROM islands WHERE run_id = ?1"));
+      conn->Prepare("WITH RECURSIVE line(id) AS (SELECT ?1 UNION SELECT r.id "
+                    "FROM runs r JOIN line ON r.parent_run = line.id) SELECT "
+                    "max(generation) FROM islands WHERE run_id IN line"));
   s.BindInt(1, static_cast<int64_t>(run_id));
   SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
   if (!row || s.ColumnIsNull(0)) return 0u;

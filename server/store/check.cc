@@ -64,6 +64,17 @@ class Checker {
   absl::Status CheckRun(int64_t run, const skerry::v1::RunSpec& spec,
                         int state) {
     const bool reproducible = !spec.islands().asynchronous();
+    // A fork's generations start where it left its parent, and the links of
+    // its first generation name the parent's genomes (fork_store.cc).
+    int64_t first_generation = 0;
+    {
+      SKERRY_ASSIGN_OR_RETURN(
+          Statement f, c_->Prepare("SELECT coalesce(parent_generation, 0) "
+                                   "FROM runs WHERE id = ?"));
+      f.BindInt(1, run);
+      SKERRY_ASSIGN_OR_RETURN(bool row, f.Step());
+      if (row) first_generation = f.ColumnInt(0);
+    }
     SKERRY_ASSIGN_OR_RETURN(
         Statement isl, c_->Prepare("SELECT idx, generation, done FROM islands "
                                    "WHERE run_id = ? ORDER BY idx"));
@@ -85,7 +96,7 @@ class Checker {
                       "generation ORDER BY generation"));
       gens.BindInt(1, run);
       gens.BindInt(2, idx);
-      int64_t expected = 0;
+      int64_t expected = first_generation;
       while (true) {
         SKERRY_ASSIGN_OR_RETURN(bool g_row, gens.Step());
         if (!g_row) break;
@@ -126,8 +137,9 @@ class Checker {
         "SELECT id, run_id, parent_b FROM genomes WHERE run_id = ?1 AND "
         "parent_b "
         "IS NOT NULL) g LEFT JOIN genomes x ON x.id = g.p WHERE x.id IS NULL "
-        "OR "
-        "x.run_id != g.run_id LIMIT 20"));
+        "OR (x.run_id != g.run_id AND NOT EXISTS (SELECT 1 FROM runs r, "
+        "genomes c WHERE r.id = ?1 AND c.id = g.id AND x.run_id = "
+        "r.parent_run AND c.generation = r.parent_generation)) LIMIT 20"));
     SKERRY_RETURN_IF_ERROR(
         Expect(run,
                reproducible ? "parent is not of the previous generation"

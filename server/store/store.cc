@@ -240,7 +240,8 @@ const std::string& RunColumns() {
       "id, name, owner, spec, spec_text, state, priority, message, "
       "created_ms, updated_ms, started_ms, evaluations, champion_id, "
       "best_score, stop_generation, ",
-      SumMatches(kRunSumColumns), ", coalesce(request_id, '')"));
+      SumMatches(kRunSumColumns),
+      ", coalesce(request_id, ''), parent_run, parent_generation"));
   return *columns;
 }
 
@@ -270,6 +271,10 @@ RunRecord ReadRun(const Statement& s) {
     r.stop_generation = static_cast<uint32_t>(s.ColumnInt(14));
   }
   r.request_id = s.ColumnText(16);
+  if (!s.ColumnIsNull(17)) r.parent_run = s.ColumnInt(17);
+  if (!s.ColumnIsNull(18)) {
+    r.parent_generation = static_cast<uint32_t>(s.ColumnInt(18));
+  }
   return r;
 }
 
@@ -384,6 +389,13 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
         "the database can only be read, not written (the file's permissions, "
         "or a damaged file header; `skerry-coordinator --check` says more); "
         "nothing was changed"));
+  }
+  if (*version == 0) {
+    // Before any table exists, or it has no effect: pages freed by deleting
+    // a run (run_delete.cc) can then be given back to the file system.
+    // Older files keep auto_vacuum=NONE (docs/operations.md).
+    absl::Status av = store->conn_->Exec("PRAGMA auto_vacuum=INCREMENTAL");
+    if (!av.ok()) return with_path(av);
   }
   // WAL is a property of the file and survives reopening.
   absl::StatusOr<Statement> wal =

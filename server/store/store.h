@@ -82,6 +82,11 @@
 //                      generations past the stop generation, the champion
 //   CreateToken        a token, and its principal when new
 //   RevokeToken        a token's revocation time and who revoked it
+//   DeleteRun          an ended run's rows, all of them (run_delete.cc)
+//   CreateFork         a fork: its run, islands, copied statistics and
+//                      copied generation (fork_store.cc)
+//   ImportRuns         every run of an exported file, ids remapped
+//                      (run_transfer.cc)
 //   BeginAudit         an audit row, before the change it describes is made
 //   FinishAudit        the outcome of that change
 //
@@ -98,6 +103,9 @@
 //                      generation, say) makes it durable too.
 //   busy_timeout=5000  a backup or a second reader may hold a lock briefly
 //   foreign_keys=OFF   parent links are checked by `--check`, not per insert
+//   auto_vacuum=INCREMENTAL  set when a database is created (it cannot be
+//                      set later without a VACUUM): DeleteRun gives the freed
+//                      pages back with `PRAGMA incremental_vacuum`
 //
 // A database written by a newer schema than kSchemaVersion is refused, naming
 // both versions; an older one is migrated forward in one transaction.
@@ -148,6 +156,10 @@ struct RunRecord {
   std::optional<uint32_t> stop_generation;
   // The client's id of the SubmitRun that made it; empty when none was given.
   std::string request_id;
+  // A fork's parent run and the generation it started from (fork_store.cc);
+  // 0 for a run submitted anew.
+  int64_t parent_run = 0;
+  uint32_t parent_generation = 0;
   // Set by ListRuns when the stored row does not match its checksum or its
   // spec does not parse (DATA_LOSS naming the run); the fields may be wrong.
   absl::Status damage;
@@ -450,6 +462,40 @@ class Store {
   // The run's owner; empty when there is no such run.
   absl::StatusOr<std::optional<std::string>> RunOwner(int64_t run_id);
 
+  // ---- Deleting runs (run_delete.cc) ----
+  struct Deleted {
+    uint64_t genomes = 0;
+    uint64_t bytes_freed = 0;  // given back to the file system
+  };
+  // Deletes an ended run's rows (run, islands, genomes, statistics,
+  // validations, metrics; audit rows stay), then runs an incremental vacuum.
+  // NotFound for no such run; FailedPrecondition, changing nothing, while the
+  // run is not ended or while forks of it exist (their lineage leads into
+  // it), naming them.
+  absl::StatusOr<Deleted> DeleteRun(int64_t run_id);
+
+  // ---- Importing runs (run_transfer.cc) ----
+  struct Imported {
+    std::vector<std::pair<int64_t, int64_t>> runs;  // (id in the file, new id)
+    uint64_t genomes = 0;
+  };
+  // Copies every run of the Skerry database `file` (a `skerry backup`) into
+  // this one, with new ids for runs, genomes and validations and every link
+  // between them remapped, in one transaction. Refused, changing nothing:
+  // a file that is not a Skerry database, of another schema version (naming
+  // both), damaged (quick_check, schema, row checksums), or holding a fork
+  // without its parent run.
+  absl::StatusOr<Imported> ImportRuns(const std::string& file);
+
+  // ---- Forks (fork_store.cc) ----
+  // Stores a fork: the run row (with run->parent_run and
+  // run->parent_generation), its islands at that generation, the parent's
+  // statistics of the generations before it (`stats`) and the copies of the
+  // parent's genomes of that generation (`genomes`, parent links kept: they
+  // name the parent's genomes). One transaction. FailedPrecondition when the
+  // parent run is gone.
+  absl::Status CreateFork(RunRecord* run, std::vector<StatsRecord>* stats,
+                          std::vector<GenomeRecord>* genomes);
   // ---- Seed series and extension (series_store.cc; schema version 9) ----
   // Every run (ids filled in, genomes[i] its generation 0) and the series
   // (id and members filled in) in one transaction. AlreadyExists names a

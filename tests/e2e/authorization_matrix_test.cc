@@ -262,6 +262,11 @@ TEST_F(AuthorizationMatrixTest, KeyCellsWrittenOutByHand) {
       {"/skerry.v1.RunService/SubmitRun", "researcher", false},
       {"/skerry.v1.RunService/StopRun", "viewer", true},
       {"/skerry.v1.RunService/StopRun", "admin", false},
+      {"/skerry.v1.RunService/ForkRun", "viewer", true},
+      {"/skerry.v1.RunService/ForkRun", "researcher", false},
+      {"/skerry.v1.RunService/DeleteRun", "viewer", true},
+      {"/skerry.v1.RunService/DeleteRun", "researcher", true},  // run 0
+      {"/skerry.v1.RunService/DeleteRun", "admin", false},
       {"/skerry.v1.FleetService/Join", "admin", true},
       {"/skerry.v1.FleetService/Join", "researcher", true},
       {"/skerry.v1.FleetService/Lease", "worker", false},

@@ -97,6 +97,14 @@ class MockRunServiceStub : public skerry::v1::RunService::StubInterface {
               (grpc::ClientContext*, const skerry::v1::SetPriorityRequest&,
                skerry::v1::RunSummary*),
               (override));
+  MOCK_METHOD(grpc::Status, ForkRun,
+              (grpc::ClientContext*, const skerry::v1::ForkRunRequest&,
+               skerry::v1::SubmitRunResponse*),
+              (override));
+  MOCK_METHOD(grpc::Status, DeleteRun,
+              (grpc::ClientContext*, const skerry::v1::RunRef&,
+               skerry::v1::DeleteRunResponse*),
+              (override));
   // The sync WatchRun() wraps this private virtual; the reader is owned by
   // the caller.
   MOCK_METHOD(grpc::ClientReaderInterface<skerry::v1::RunSummary>*, WatchRunRaw,
@@ -114,6 +122,8 @@ class MockRunServiceStub : public skerry::v1::RunService::StubInterface {
   SKERRY_NO_ASYNC_UNARY(GetHistory, GetHistoryRequest, GetHistoryResponse)
   SKERRY_NO_ASYNC_UNARY(GetDigest, RunRef, DigestResponse)
   SKERRY_NO_ASYNC_UNARY(SetPriority, SetPriorityRequest, RunSummary)
+  SKERRY_NO_ASYNC_UNARY(ForkRun, ForkRunRequest, SubmitRunResponse)
+  SKERRY_NO_ASYNC_UNARY(DeleteRun, RunRef, DeleteRunResponse)
   grpc::ClientAsyncReaderInterface<skerry::v1::RunSummary>* AsyncWatchRunRaw(
       grpc::ClientContext*, const skerry::v1::WatchRunRequest&,
       grpc::CompletionQueue*, void*) override {
