@@ -111,12 +111,21 @@ std::vector<CommandSpec> MakeCommands() {
       {"local",
        {"SPEC_FILE"},
        {{"workers", "N", "number of in-process workers (1 thread each)", true},
-        {"db", "FILE", "SQLite database file to keep the run in", true}},
+        {"db", "FILE", "SQLite database file to keep the run in", true},
+        {"sandbox", "MODE",
+         "where evaluator programs run: auto (default), bwrap or none, as "
+         "for skerry-worker"},
+        {"evaluator-dirs", "DIRS",
+         "with bwrap: absolute folders, separated by ':', evaluator programs "
+         "may be shown from (default: the current folder)"}},
        "run a spec in one process: coordinator and workers",
        "Starts a coordinator on FILE with no network listener, N in-process "
        "workers, submits SPEC_FILE, follows the run to its end, prints the "
-       "champion and shuts everything down. The --coordinator option is not "
-       "used."},
+       "champion and shuts everything down. External evaluator programs run "
+       "in the same sandbox as under skerry-worker (--sandbox auto: "
+       "bubblewrap where it works, else a warning); they never see the "
+       "database or the client's config folder. The --coordinator option is "
+       "not used."},
       {"help",
        {"[COMMAND]"},
        {},

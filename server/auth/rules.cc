@@ -76,6 +76,7 @@ std::map<std::string, Rule> Build() {
       {run + "GetHistory", Make<v1::GetHistoryRequest>(P::kRead)},
       {run + "GetDigest", Make<v1::RunRef>(P::kRead)},
       {run + "WatchRun", Make<v1::WatchRunRequest>(P::kRead)},
+      {run + "FollowRun", Make<v1::FollowRunRequest>(P::kRead)},
 
       {fleet + "Join", Make<v1::JoinRequest>(P::kFleet)},
       {fleet + "Lease", Make<v1::LeaseRequest>(P::kFleet)},

@@ -11,6 +11,7 @@
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "server/store/check.h"
+#include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "tests/support/process.h"
 #include "tests/unit/server/sqlite_test_util.h"
@@ -52,12 +53,13 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
   ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
   store_.reset();
-  RawExec(path(), std::string("DROP TABLE genome_metrics; "
-                              "ALTER TABLE workers DROP COLUMN sandbox; ") +
-                      skerry::testing::kUndoVersion6 +
-                      "UPDATE genomes SET score = 7.5, eval_state = 2, "
-                      "attempts = 1 WHERE slot = 1; "
-                      "UPDATE schema_version SET version = 5;");
+  RawExec(path(),
+          std::string("DROP TABLE fleet_keys; DROP TABLE genome_metrics; "
+                      "ALTER TABLE workers DROP COLUMN sandbox; ") +
+              skerry::testing::kUndoVersion6 +
+              "UPDATE genomes SET score = 7.5, eval_state = 2, "
+              "attempts = 1 WHERE slot = 1; "
+              "UPDATE schema_version SET version = 5;");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
@@ -78,7 +80,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
 TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(path(),
-          std::string("DROP TABLE genome_metrics; "
+          std::string("DROP TABLE fleet_keys; DROP TABLE genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
               skerry::testing::kUndoVersion6 +
               "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
@@ -106,7 +108,7 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
 TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   store_.reset();
   RawExec(path(),
-          std::string("DROP TABLE genome_metrics; "
+          std::string("DROP TABLE fleet_keys; DROP TABLE genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
               skerry::testing::kUndoVersion6 +
               "UPDATE schema_version SET version = 5; "
@@ -132,7 +134,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
 TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
   store_.reset();
   RawExec(path(),
-          "DROP TABLE genome_metrics; "
+          "DROP TABLE fleet_keys; DROP TABLE genome_metrics; "
           "UPDATE schema_version SET version = 7; "
           "INSERT INTO workers (name, host, threads, evaluators, version, "
           "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
@@ -144,6 +146,38 @@ TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
                      "('genome_metrics', 'genome_metrics_run')"),
             "2");
   EXPECT_EQ(RawQuery(path(), "SELECT name FROM workers"), "kept");
+}
+
+// A database of the version before the fleet key gains the fleet_keys table;
+// the key is made once and is the same after a reopen (a restart), so worker
+// secrets and lease proofs outlive the coordinator process.
+TEST_F(StoreOpenTest, DatabaseBeforeTheFleetKeyGainsItAndKeepsOneKey) {
+  store_.reset();
+  RawExec(path(),
+          "DROP TABLE fleet_keys; UPDATE schema_version SET version = 8");
+  absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  absl::StatusOr<std::string> key = (*again)->FleetKey();
+  ASSERT_TRUE(key.ok()) << key.status();
+  EXPECT_EQ(key->size(), 32u);
+  again->reset();
+  absl::StatusOr<std::unique_ptr<Store>> reopened = Store::Open(path());
+  ASSERT_TRUE(reopened.ok()) << reopened.status();
+  absl::StatusOr<std::string> same = (*reopened)->FleetKey();
+  ASSERT_TRUE(same.ok()) << same.status();
+  EXPECT_EQ(*same, *key);
+  EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM fleet_keys"), "1");
+}
+
+// A database the coordinator may not write (its permissions changed) is
+// storage trouble, which holds work until writes succeed, not an INTERNAL
+// error, which would not.
+TEST(SqliteStatusTest, ReadOnlyOrForbiddenFileIsStorageTrouble) {
+  EXPECT_TRUE(absl::IsUnavailable(SqliteStatus(SQLITE_READONLY, nullptr, "w")));
+  EXPECT_TRUE(absl::IsUnavailable(SqliteStatus(SQLITE_PERM, nullptr, "w")));
+  EXPECT_TRUE(absl::IsUnavailable(SqliteStatus(SQLITE_IOERR, nullptr, "w")));
+  EXPECT_TRUE(absl::IsInternal(SqliteStatus(SQLITE_MISUSE, nullptr, "w")));
 }
 
 TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
