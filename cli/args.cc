@@ -112,12 +112,9 @@ std::vector<CommandSpec> MakeCommands() {
        {"SPEC_FILE"},
        {{"workers", "N", "number of in-process workers (1 thread each)", true},
         {"db", "FILE", "SQLite database file to keep the run in", true},
-        {"sandbox", "MODE",
-         "where evaluator programs run: auto (default), bwrap or none, as "
-         "for skerry-worker"},
+        {"sandbox", "MODE", "auto (default), bwrap or none: as skerry-worker"},
         {"evaluator-dirs", "DIRS",
-         "with bwrap: absolute folders, separated by ':', evaluator programs "
-         "may be shown from (default: the current folder)"}},
+         "with bwrap: folders programs may be seen in"}},
        "run a spec in one process: coordinator and workers",
        "Starts a coordinator on FILE with no network listener, N in-process "
        "workers, submits SPEC_FILE, follows the run to its end, prints the "
@@ -507,13 +504,21 @@ std::string GeneralHelp() {
 
 std::string CommandHelp(const CommandSpec& command) {
   std::string usage = absl::StrCat("usage: skerry ", command.name);
-  for (const char* positional : command.positionals) {
-    absl::StrAppend(&usage, " ", positional);
-  }
+  // Words past 80 columns go on to a new line, under the first argument.
+  const size_t indent = usage.size() + 1;
+  size_t line_start = 0;
+  auto add = [&](const std::string& word) {
+    if (usage.size() - line_start + 1 + word.size() > 80) {
+      absl::StrAppend(&usage, "\n", std::string(indent - 1, ' '));
+      line_start = usage.size() - (indent - 1);
+    }
+    absl::StrAppend(&usage, " ", word);
+  };
+  for (const char* positional : command.positionals) add(positional);
   for (const FlagSpec& flag : command.flags) {
     std::string text = absl::StrCat("--", flag.name);
     if (flag.value != nullptr) absl::StrAppend(&text, " ", flag.value);
-    absl::StrAppend(&usage, " ", flag.required ? text : "[" + text + "]");
+    add(flag.required ? text : "[" + text + "]");
   }
   std::string help =
       absl::StrCat(usage, "\n\n", Wrap(command.details, 78), "\n");

@@ -195,8 +195,10 @@ TEST(HelpTest, GeneralHelpListsEveryCommand) {
 
 TEST(HelpTest, CommandHelpShowsUsageWithRequiredAndOptionalFlags) {
   std::string help = CommandHelp(*FindCommand("local"));
-  EXPECT_THAT(
-      help, HasSubstr("usage: skerry local SPEC_FILE --workers N --db FILE\n"));
+  EXPECT_THAT(help,
+              HasSubstr("usage: skerry local SPEC_FILE --workers N --db FILE "
+                        "[--sandbox MODE]\n                    "
+                        "[--evaluator-dirs DIRS]\n"));
   std::string champion = CommandHelp(*FindCommand("champion"));
   EXPECT_THAT(champion,
               HasSubstr("usage: skerry champion RUN [--json] [--out FILE]\n"));
