@@ -237,6 +237,43 @@ TEST_F(WireAbuseTest, UnknownWorkerIsNotFoundAndChangesNothing) {
   FinishHonestly();
 }
 
+// Worker ids are small numbers: any worker could act under another's id
+// (renew, hand back, report its leases). Every call now quotes the worker
+// secret Join gave with the id; another's id with one's own secret, or with
+// none, is NOT_FOUND and changes nothing.
+TEST_F(WireAbuseTest, AnotherWorkersIdWithoutItsSecretIsNotFound) {
+  const uint64_t honest = Join("honest");
+  const uint64_t thief = Join("thief");
+  const std::vector<Task> tasks = Lease(honest);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  const std::string before = Snapshot();
+  for (const std::string& secret : {SecretOf(thief), std::string()}) {
+    SCOPED_TRACE(secret.empty() ? "no secret" : "the thief's secret");
+    skerry::v1::ReportRequest req;
+    req.set_worker_id(honest);
+    req.set_worker_secret(secret);
+    TaskResult forged = Honest(tasks[0]);
+    forged.set_score(-1e9);
+    *req.add_results() = forged;
+    skerry::v1::ReportResponse resp;
+    grpc::Status s = fleet_->Report(Context().get(), req, &resp);
+    EXPECT_EQ(s.error_code(), grpc::StatusCode::NOT_FOUND) << s.error_message();
+    skerry::v1::HandBackRequest back;
+    back.set_worker_id(honest);
+    back.set_worker_secret(secret);
+    back.set_all_held(true);
+    skerry::v1::HandBackResponse back_resp;
+    s = fleet_->HandBack(Context().get(), back, &back_resp);
+    EXPECT_EQ(s.error_code(), grpc::StatusCode::NOT_FOUND) << s.error_message();
+  }
+  EXPECT_EQ(Snapshot(), before);
+  // The honest worker still holds its lease and reports.
+  skerry::v1::ReportResponse resp;
+  ASSERT_TRUE(Report(honest, {Honest(tasks[0])}, &resp).ok());
+  EXPECT_EQ(resp.accepted(), 1u);
+  FinishHonestly();
+}
+
 TEST_F(WireAbuseTest, LeaseOfZeroOrTooManyTasksIsInvalidArgument) {
   const uint64_t worker = Join();
   for (uint32_t bad : {0u, 10001u, std::numeric_limits<uint32_t>::max()}) {
