@@ -42,6 +42,9 @@ grpc::Status RunServiceImpl::Summarise(int64_t run_id,
   if (!s.ok()) return ToGrpc(s.status());
   *out = std::move(*s);
   out->set_name(AnsweredName(out->name(), budgets_.max_name_bytes));
+  absl::StatusOr<std::string> series = store_->SeriesOfRun(run_id);
+  if (!series.ok()) return ToGrpc(series.status());
+  out->set_series(*series);
   return grpc::Status::OK;
 }
 
@@ -98,9 +101,16 @@ grpc::Status RunServiceImpl::ListRuns(grpc::ServerContext* ctx,
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> runs =
       engine_->ListSummaries();
   if (!runs.ok()) return ToGrpc(runs.status());
+  absl::StatusOr<std::map<int64_t, std::string>> series =
+      store_->SeriesOfRuns();
+  if (!series.ok()) return ToGrpc(series.status());
   for (auto& r : *runs) {
     // An old run's name may be far over the budget (common/quote.h).
     r.set_name(AnsweredName(r.name(), budgets_.max_name_bytes));
+    if (auto it = series->find(static_cast<int64_t>(r.id()));
+        it != series->end()) {
+      r.set_series(it->second);
+    }
     *resp->add_runs() = std::move(r);
   }
   return grpc::Status::OK;

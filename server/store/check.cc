@@ -7,6 +7,7 @@
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/store/row_sums.h"
+#include "server/store/series_store.h"
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "skerry/v1/genome.pb.h"
@@ -358,6 +359,7 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path,
                        max_name_bytes, " bytes"));
     }
   }
+  SKERRY_RETURN_IF_ERROR(CheckSeriesRows(conn.get(), &checker.report.problems));
   {
     SKERRY_ASSIGN_OR_RETURN(Statement n,
                             conn->Prepare("SELECT count(*) FROM genomes"));

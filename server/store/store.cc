@@ -13,6 +13,7 @@
 #include "common/status_macros.h"
 #include "server/store/access_schema.h"
 #include "server/store/row_sums.h"
+#include "server/store/series_store.h"
 
 namespace skerry::store {
 namespace {
@@ -149,7 +150,7 @@ CREATE TABLE genome_metrics (
 CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
 )sql";
 
-// Version 9: the fleet key (Store::FleetKey): worker secrets and lease proofs
+// Version 10: the fleet key (Store::FleetKey): worker secrets and lease proofs
 // (server/auth/fleet_seal.h) outlive a coordinator restart.
 constexpr const char* kSchemaFleetKey = R"sql(
 CREATE TABLE fleet_keys (
@@ -160,10 +161,11 @@ CREATE TABLE fleet_keys (
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
-// (row checksums, submit request ids) is built by SchemaV6().
+// (row checksums, submit request ids) is built by SchemaV6(); version 9
+// (seed series) by SchemaSeries() (series_store.h).
 constexpr const char* kMigrations[] = {
-    kSchemaV1, kSchemaV2, kSchemaV3,      kSchemaV4,      kSchemaAccess,
-    nullptr,   kSchemaV7, kSchemaMetrics, kSchemaFleetKey};
+    kSchemaV1, kSchemaV2, kSchemaV3,      kSchemaV4, kSchemaAccess,
+    nullptr,   kSchemaV7, kSchemaMetrics, nullptr,   kSchemaFleetKey};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -212,6 +214,7 @@ std::string SchemaV6() {
 
 std::string MigrationSql(int from_version) {
   if (from_version == 5) return SchemaV6();
+  if (from_version == 8) return SchemaSeries();
   return kMigrations[from_version];
 }
 
@@ -514,6 +517,12 @@ absl::Status Store::CreateRun(RunRecord* run,
                               std::vector<GenomeRecord>* genomes) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_RETURN_IF_ERROR(CreateRunLocked(run, genomes));
+  return txn.Commit();
+}
+
+absl::Status Store::CreateRunLocked(RunRecord* run,
+                                    std::vector<GenomeRecord>* genomes) {
   {
     SKERRY_ASSIGN_OR_RETURN(
         auto ins,
@@ -553,8 +562,7 @@ absl::Status Store::CreateRun(RunRecord* run,
     }
   }
   for (GenomeRecord& g : *genomes) g.run_id = run->id;
-  SKERRY_RETURN_IF_ERROR(InsertGenomes(genomes));
-  return txn.Commit();
+  return InsertGenomes(genomes);
 }
 
 absl::Status Store::CommitResults(
