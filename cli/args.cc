@@ -151,13 +151,19 @@ std::vector<CommandSpec> MakeCommands() {
        {{"workers", "N", "number of in-process workers (1 thread each)", true},
         {"db", "FILE", "SQLite database file to keep the run in", true},
         {"http", "HOST:PORT",
-         "also serve the live page (no tokens: keep HOST 127.0.0.1)"}},
+         "also serve the live page (no tokens: keep HOST 127.0.0.1)"},
+        {"sandbox", "MODE", "auto (default), bwrap or none: as skerry-worker"},
+        {"evaluator-dirs", "DIRS",
+         "with bwrap: folders programs may be seen in"}},
        "run a spec in one process: coordinator, workers (--http: live page)",
        "Starts a coordinator on FILE with no network listener, N in-process "
        "workers, submits SPEC_FILE, follows the run to its end, prints the "
        "champion and shuts everything down. With --http, the coordinator's "
        "live page is served on HOST:PORT until the run ends (its address is "
-       "printed first). The --coordinator option is not used."},
+       "printed first). External evaluator programs run in the same sandbox "
+       "as under skerry-worker (--sandbox auto: bubblewrap where it works, "
+       "else a warning); they never see the database or the client's config "
+       "folder. The --coordinator option is not used."},
       {"help",
        {"[COMMAND]"},
        {},

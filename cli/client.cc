@@ -239,15 +239,23 @@ absl::StatusOr<std::vector<skerry::v1::GenerationStats>> RunClient::History(
 
 absl::Status RunClient::Watch(
     uint64_t run_id, const std::function<void(const RunSummary&)>& on_update) {
-  skerry::v1::WatchRunRequest request;
+  // FollowRun: the next summary is asked for only once this one has been
+  // handled, so a slow terminal never gets a backlog of stale ones.
+  skerry::v1::FollowRunRequest request;
   request.set_run_id(run_id);
   request.set_interval_ms(options_.watch_interval_ms);
   grpc::ClientContext context;  // no deadline: a run may last days
-  std::unique_ptr<grpc::ClientReaderInterface<RunSummary>> reader =
-      stub_->WatchRun(&context, request);
+  std::unique_ptr<grpc::ClientReaderWriterInterface<
+      skerry::v1::FollowRunRequest, RunSummary>>
+      stream = stub_->FollowRun(&context);
+  bool asking = stream->Write(request);
   RunSummary summary;
-  while (reader->Read(&summary)) on_update(summary);
-  return FromGrpc(reader->Finish(), "WatchRun", target_);
+  while (stream->Read(&summary)) {
+    on_update(summary);
+    // The server may have ended the stream after its final summary.
+    if (asking) asking = stream->Write(skerry::v1::FollowRunRequest());
+  }
+  return FromGrpc(stream->Finish(), "FollowRun", target_);
 }
 
 }  // namespace skerry::cli

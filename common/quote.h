@@ -40,6 +40,23 @@ inline std::string QuotePrefix(absl::string_view text, size_t max_bytes = 64) {
                       " bytes)");
 }
 
+// Bytes of a run name the coordinator answers with when it has no name
+// budget of its own (--max-name-bytes 0 in tests).
+inline constexpr size_t kAnsweredNameFallbackBytes = 4096;
+
+// A stored run name as the coordinator answers with it (list, show, watch,
+// the live page). Runs stored before the name budget existed may have names
+// of megabytes; such a name is cut to its first `max_bytes` bytes (at a UTF-8
+// boundary; 0: kAnsweredNameFallbackBytes) and marked:
+// "first bytes...[name truncated: 10485760 bytes]". The stored name is
+// unchanged. docs/operations.md, "Budgets".
+inline std::string AnsweredName(absl::string_view name, size_t max_bytes) {
+  if (max_bytes == 0) max_bytes = kAnsweredNameFallbackBytes;
+  if (name.size() <= max_bytes) return std::string(name);
+  return absl::StrCat(Utf8Prefix(name, max_bytes),
+                      "...[name truncated: ", name.size(), " bytes]");
+}
+
 }  // namespace skerry
 
 #endif  // SKERRY_COMMON_QUOTE_H_

@@ -8,6 +8,8 @@
 // a new coordinator (or the reverse) would misunderstand each other; a
 // coordinator speaks every protocol from kMinProtocolVersion to
 // kProtocolVersion and refuses any other at Join, naming both versions.
+// Protocol 2: worker secrets and lease proofs (fleet.proto), which protocol 1
+// workers do not send.
 //
 // Thread safety: constants only.
 #ifndef SKERRY_COMMON_VERSION_H_
@@ -21,8 +23,8 @@
 namespace skerry {
 
 inline constexpr char kVersion[] = "0.1.0";  // SKERRY_RELEASE_VERSION
-inline constexpr uint32_t kProtocolVersion = 1;
-inline constexpr uint32_t kMinProtocolVersion = 1;
+inline constexpr uint32_t kProtocolVersion = 2;
+inline constexpr uint32_t kMinProtocolVersion = 2;
 
 // The --version line of `program`, e.g. "skerry-worker 0.1.0 (worker
 // protocol 1)".

@@ -122,7 +122,8 @@ class CoordinatorImpl final : public Coordinator {
     // Every service goes behind the gate; nothing is registered bare.
     // Methods of grpc's callback API, by service (see auth/gate.h).
     std::map<std::string, std::set<std::string>> callbacks = {
-        {skerry::v1::RunService::service_full_name(), {"WatchRun"}}};
+        {skerry::v1::RunService::service_full_name(),
+         {"WatchRun", "FollowRun"}}};
     const std::pair<grpc::Service*, std::string> services[] = {
         {c->fleet_.get(), skerry::v1::FleetService::service_full_name()},
         {c->runs_.get(), skerry::v1::RunService::service_full_name()},

@@ -32,7 +32,8 @@ int main(int argc, char** argv) {
   }
   if (!flags->check_db.empty()) {
     absl::StatusOr<skerry::store::CheckReport> report =
-        skerry::store::CheckDatabase(flags->check_db);
+        skerry::store::CheckDatabase(flags->check_db,
+                                     flags->options.budgets.max_name_bytes);
     if (!report.ok()) {
       std::fprintf(stderr, "skerry-coordinator: --check %s: %s\n",
                    flags->check_db.c_str(),

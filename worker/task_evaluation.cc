@@ -126,6 +126,7 @@ skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,
   skerry::v1::TaskResult result;
   result.set_task_id(task.task_id());
   result.set_attempt(task.attempt());
+  result.set_lease_proof(task.lease_proof());
   const absl::Time start = clock->Now();
   absl::StatusOr<double> score;
   absl::StatusOr<Evaluator*> evaluator = cache.Get(task.evaluator());

@@ -210,6 +210,16 @@ class Worker::Impl {
 
   size_t BuildReport(ReportRequest* request, bool with_held)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  std::string Secret() {
+    absl::MutexLock l(&mu_);
+    return worker_secret_;
+  }
+  // A result for the task waits to be reported.
+  bool HasResult(uint64_t task_id) const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
+    return std::any_of(
+        results_.begin(), results_.end(),
+        [task_id](const TaskResult& r) { return r.task_id() == task_id; });
+  }
   bool WantsLease() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Restarts the idle time while any task is held; true once
   // options_.exit_when_idle has passed with none.
@@ -246,6 +256,8 @@ class Worker::Impl {
   absl::Status give_up_ ABSL_GUARDED_BY(mu_);
   bool joined_ ABSL_GUARDED_BY(mu_) = false;
   uint64_t worker_id_ ABSL_GUARDED_BY(mu_) = 0;
+  // JoinResponse.worker_secret, quoted with worker_id_ in every call.
+  std::string worker_secret_ ABSL_GUARDED_BY(mu_);
   absl::Duration renewal_ ABSL_GUARDED_BY(mu_) = kDefaultRenewal;
   // Leased tasks not yet started.
   std::deque<Task> queue_ ABSL_GUARDED_BY(mu_);
@@ -367,6 +379,7 @@ bool Worker::Impl::EnsureJoined(Backoff& backoff, uint64_t* id) {
       absl::MutexLock l(&mu_);
       joined_ = true;
       worker_id_ = response.worker_id();
+      worker_secret_ = response.worker_secret();
       continue;
     }
     if (Classify(status) == Next::kGiveUp ||
@@ -468,6 +481,7 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
         long_poll ? options_.wait : absl::ZeroDuration();
     LeaseRequest request;
     request.set_worker_id(id);
+    request.set_worker_secret(Secret());
     request.set_max_tasks(options_.batch);
     request.set_wait_ms(static_cast<uint32_t>(absl::ToInt64Milliseconds(wait)));
     LeaseResponse response;
@@ -490,7 +504,10 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
       absl::MutexLock l(&mu_);
       if (!empty) last_busy_ = clock_->Now();
       for (Task& task : *response.mutable_tasks()) {
-        // A task offered again while still held here is already being handled.
+        // A task offered again while still held here is already being
+        // handled; one whose result waits to be reported (the coordinator
+        // restarted, say) is not evaluated again: that result is sent.
+        if (HasResult(task.task_id())) continue;
         if (working_.insert(task.task_id()).second) {
           queue_.push_back(std::move(task));
         }
@@ -584,6 +601,7 @@ void Worker::Impl::ReportLoop(uint32_t seed) {
     uint64_t id = 0;
     if (!EnsureJoined(backoff, &id)) return;
     request.set_worker_id(id);
+    request.set_worker_secret(Secret());
     ReportResponse response;
     grpc::ClientContext context;
     SetDeadline(&context, options_.rpc_deadline);
@@ -608,6 +626,7 @@ void Worker::Impl::FinalReport() {
     absl::MutexLock l(&mu_);
     if (results_.empty() || !joined_) return;
     request.set_worker_id(worker_id_);
+    request.set_worker_secret(worker_secret_);
     // No held ids: the worker is leaving, so its other tasks may expire.
     taken = BuildReport(&request, /*with_held=*/false);
   }
@@ -623,6 +642,7 @@ void Worker::Impl::HandBackRest() {
     absl::MutexLock l(&mu_);
     if (!joined_) return;
     request.set_worker_id(worker_id_);
+    request.set_worker_secret(worker_secret_);
     for (uint64_t id : working_) request.add_task_ids(id);
   }
   // Also tasks of a Lease whose answer Stop() cut off.

@@ -58,6 +58,8 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
     return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
                         "evaluators: at most 1000 names and 64 KiB");
   }
+  absl::StatusOr<const auth::FleetSeal*> seal = Seal();
+  if (!seal.ok()) return ToGrpc(seal.status());
   store::WorkerRecord w;
   w.name = req->name().empty() ? "worker" : req->name();
   w.host = req->host();
@@ -84,27 +86,43 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
     last_seen_[static_cast<uint64_t>(*id)] = now;
   }
   resp->set_worker_id(static_cast<uint64_t>(*id));
+  resp->set_worker_secret((*seal)->WorkerSecret(static_cast<uint64_t>(*id)));
   resp->set_lease_seconds(absl::ToDoubleSeconds(queue_->lease()));
   return grpc::Status::OK;
 }
 
-grpc::Status FleetServiceImpl::CheckWorker(uint64_t worker_id) {
+absl::StatusOr<const auth::FleetSeal*> FleetServiceImpl::Seal() {
   absl::MutexLock l(&mu_);
-  auto it = last_seen_.find(worker_id);
-  if (it == last_seen_.end()) {
-    return grpc::Status(
-        grpc::StatusCode::NOT_FOUND,
-        absl::StrCat("unknown worker ", worker_id,
-                     " (the coordinator may have restarted): join again"));
+  if (seal_ == nullptr) {
+    absl::StatusOr<std::string> key = store_->FleetKey();
+    if (!key.ok()) {
+      engine_->NoteStorageTrouble(key.status());
+      return key.status();
+    }
+    seal_ = std::make_unique<const auth::FleetSeal>(*std::move(key));
   }
-  it->second = clock_->Now();
+  return seal_.get();
+}
+
+grpc::Status FleetServiceImpl::CheckWorker(uint64_t worker_id,
+                                           const std::string& secret) {
+  absl::StatusOr<const auth::FleetSeal*> seal = Seal();
+  if (!seal.ok()) return ToGrpc(seal.status());
+  if (!(*seal)->IsWorkerSecret(worker_id, secret)) {
+    return grpc::Status(grpc::StatusCode::NOT_FOUND,
+                        absl::StrCat("unknown worker ", worker_id,
+                                     ", or not its worker_secret: join again"));
+  }
+  // Known again after a restart, or after an hour's silence (Join).
+  absl::MutexLock l(&mu_);
+  last_seen_[worker_id] = clock_->Now();
   return grpc::Status::OK;
 }
 
 grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
                                      const skerry::v1::LeaseRequest* req,
                                      skerry::v1::LeaseResponse* resp) {
-  grpc::Status known = CheckWorker(req->worker_id());
+  grpc::Status known = CheckWorker(req->worker_id(), req->worker_secret());
   if (!known.ok()) return known;
   if (req->max_tasks() == 0 || req->max_tasks() > kMaxTasksPerLease) {
     return grpc::Status(
@@ -120,7 +138,12 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
   std::vector<skerry::v1::Task> tasks =
       queue_->Lease(static_cast<int64_t>(req->worker_id()), req->max_tasks(),
                     wait, kMaxLeaseBytes);
-  for (skerry::v1::Task& t : tasks) *resp->add_tasks() = std::move(t);
+  absl::StatusOr<const auth::FleetSeal*> seal = Seal();  // known: CheckWorker
+  for (skerry::v1::Task& t : tasks) {
+    t.set_lease_proof(
+        (*seal)->LeaseProof(req->worker_id(), t.task_id(), t.attempt()));
+    *resp->add_tasks() = std::move(t);
+  }
   resp->set_lease_seconds(absl::ToDoubleSeconds(queue_->lease()));
   return grpc::Status::OK;
 }
@@ -128,7 +151,7 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
 grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
                                       const skerry::v1::ReportRequest* req,
                                       skerry::v1::ReportResponse* resp) {
-  grpc::Status known = CheckWorker(req->worker_id());
+  grpc::Status known = CheckWorker(req->worker_id(), req->worker_secret());
   if (!known.ok()) return known;
   if (req->results_size() > kMaxResultsPerReport ||
       req->held_task_ids_size() > kMaxResultsPerReport) {
@@ -144,6 +167,7 @@ grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
   // Every field of every result is checked here, so that nothing the store
   // would refuse reaches the group commit, where it would fail every
   // worker's results with it. A bad result is rejected alone.
+  absl::StatusOr<const auth::FleetSeal*> seal = Seal();  // known: CheckWorker
   std::vector<skerry::v1::TaskResult> results;
   results.reserve(static_cast<size_t>(req->results_size()));
   uint32_t refused = 0;
@@ -151,6 +175,14 @@ grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
     const skerry::v1::TaskResult& r = req->results(i);
     absl::Status bad = CheckResult(r, i);
     if (bad.ok()) {
+      // A lease this process may not know (made before a restart) is known
+      // from its proof; a wrong proof proves nothing and is ignored.
+      if (!r.lease_proof().empty() &&
+          (*seal)->IsLeaseProof(req->worker_id(), r.task_id(), r.attempt(),
+                                r.lease_proof())) {
+        queue_->NoteLease(static_cast<int64_t>(req->worker_id()), r.task_id(),
+                          r.attempt());
+      }
       results.push_back(r);
       continue;
     }
@@ -210,7 +242,7 @@ absl::Status FleetServiceImpl::CheckResult(const skerry::v1::TaskResult& r,
 grpc::Status FleetServiceImpl::HandBack(grpc::ServerContext* ctx,
                                         const skerry::v1::HandBackRequest* req,
                                         skerry::v1::HandBackResponse* resp) {
-  grpc::Status known = CheckWorker(req->worker_id());
+  grpc::Status known = CheckWorker(req->worker_id(), req->worker_secret());
   if (!known.ok()) return known;
   if (req->task_ids_size() > kMaxResultsPerReport) {
     return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,

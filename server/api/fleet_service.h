@@ -2,12 +2,17 @@
 // HandBack).
 //
 // It checks every message from outside before anything reaches the engine: a
-// worker must have joined (an unknown id gets NOT_FOUND, "join again"), sizes
+// worker must quote the worker secret Join gave it with its id (a wrong one
+// gets NOT_FOUND, "join again"; a right one is taken after a coordinator
+// restart too, so a worker keeps its id and its leases' results), sizes
 // are bounded, and a Report is answered only after its results are committed.
 // Every field of every result is checked here, and a bad result is rejected
 // alone (INVALID_ARGUMENT in its RejectedResult), so nothing a worker sends can
 // fail the group commit that holds other workers' results. Whose results are
-// taken is the task queue's result rule (server/scheduler/task_queue.h).
+// taken is the task queue's result rule (server/scheduler/task_queue.h); each
+// task leased carries a lease proof, and a result quoting a valid one is known
+// as that worker's lease even when an earlier process made it
+// (server/auth/fleet_seal.h).
 //
 // Thread safety: gRPC calls the handlers from many threads; all state is
 // guarded.
@@ -16,11 +21,14 @@
 
 #include <cstdint>
 #include <map>
+#include <memory>
+#include <string>
 
 #include "absl/base/thread_annotations.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "common/clock.h"
+#include "server/auth/fleet_seal.h"
 #include "server/engine/engine.h"
 #include "server/http/fleet_metrics.h"
 #include "server/scheduler/task_queue.h"
@@ -66,7 +74,11 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
   void set_metrics(http::FleetMetrics* metrics) { metrics_ = metrics; }
 
  private:
-  grpc::Status CheckWorker(uint64_t worker_id);
+  // OK when `secret` is the worker secret of `worker_id`; the worker is then
+  // known (again) and seen now.
+  grpc::Status CheckWorker(uint64_t worker_id, const std::string& secret);
+  // The seal made from the store's fleet key, read at the first call.
+  absl::StatusOr<const auth::FleetSeal*> Seal();
   // InvalidArgument naming results[index] and the field when a result
   // cannot be stored as it is.
   static absl::Status CheckResult(const skerry::v1::TaskResult& r, int index);
@@ -80,6 +92,7 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
 
   absl::Mutex mu_;
   std::map<uint64_t, absl::Time> last_seen_ ABSL_GUARDED_BY(mu_);
+  std::unique_ptr<const auth::FleetSeal> seal_ ABSL_GUARDED_BY(mu_);
 };
 
 }  // namespace skerry::api

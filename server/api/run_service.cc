@@ -3,6 +3,7 @@
 #include <algorithm>
 
 #include "absl/strings/str_cat.h"
+#include "common/quote.h"
 #include "server/api/grpc_status.h"
 #include "server/api/validation_service.h"
 
@@ -40,6 +41,7 @@ grpc::Status RunServiceImpl::Summarise(int64_t run_id,
   absl::StatusOr<skerry::v1::RunSummary> s = engine_->Summary(run_id);
   if (!s.ok()) return ToGrpc(s.status());
   *out = std::move(*s);
+  out->set_name(AnsweredName(out->name(), budgets_.max_name_bytes));
   absl::StatusOr<std::string> series = store_->SeriesOfRun(run_id);
   if (!series.ok()) return ToGrpc(series.status());
   out->set_series(*series);
@@ -103,6 +105,8 @@ grpc::Status RunServiceImpl::ListRuns(grpc::ServerContext* ctx,
       store_->SeriesOfRuns();
   if (!series.ok()) return ToGrpc(series.status());
   for (auto& r : *runs) {
+    // An old run's name may be far over the budget (common/quote.h).
+    r.set_name(AnsweredName(r.name(), budgets_.max_name_bytes));
     if (auto it = series->find(static_cast<int64_t>(r.id()));
         it != series->end()) {
       r.set_series(it->second);
@@ -120,6 +124,8 @@ grpc::Status RunServiceImpl::GetRun(grpc::ServerContext* ctx,
   absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
   if (!rec.ok()) return ToGrpc(rec.status());
   *resp->mutable_spec() = rec->spec;
+  resp->mutable_spec()->set_name(
+      AnsweredName(rec->spec.name(), budgets_.max_name_bytes));
   resp->set_workers(
       static_cast<uint32_t>(fleet_->ActiveWorkers(absl::Minutes(1))));
   absl::StatusOr<uint64_t> failed = store_->CountFailed(rec->id);
@@ -267,6 +273,17 @@ grpc::ServerWriteReactor<skerry::v1::RunSummary>* RunServiceImpl::WatchRun(
     if (!refusal.ok()) return WatchHub::Refuse(std::move(refusal));
   }
   return watch_hub_.Watch(*req);
+}
+
+grpc::ServerBidiReactor<skerry::v1::FollowRunRequest, skerry::v1::RunSummary>*
+RunServiceImpl::FollowRun(grpc::CallbackServerContext* ctx) {
+  // A callback method: the gate cannot refuse it for us (auth/gate.h). Its
+  // first message is judged when it comes.
+  if (access_ == nullptr) return watch_hub_.Follow(nullptr);
+  grpc::Status refusal = access_->Refusal(ctx, /*before_message=*/true);
+  if (!refusal.ok()) return WatchHub::RefuseFollow(std::move(refusal));
+  auth::AccessControl* access = access_;
+  return watch_hub_.Follow([access, ctx] { return access->Refusal(ctx); });
 }
 
 }  // namespace skerry::api

@@ -2,8 +2,8 @@
 // watch). Reads come from the engine's cache and the store; every change goes
 // through the engine so it is committed before it is answered.
 //
-// WatchRun is a callback method served by the watch hub (watch_hub.h): no
-// server thread waits on a watcher.
+// WatchRun and FollowRun are callback methods served by the watch hub
+// (watch_hub.h): no server thread waits on a watcher.
 //
 // Thread safety: gRPC calls the handlers from many threads; the service holds
 // no state of its own beyond the watch hub.
@@ -25,7 +25,8 @@ skerry::v1::Genome ToGenomeProto(const store::GenomeRecord& g);
 
 class RunServiceImpl final
     : public skerry::v1::RunService::WithCallbackMethod_WatchRun<
-          skerry::v1::RunService::Service> {
+          skerry::v1::RunService::WithCallbackMethod_FollowRun<
+              skerry::v1::RunService::Service>> {
  public:
   // Who may call what is decided before a handler runs (server/auth);
   // `access` names the caller (a run's owner) and takes audit notes.
@@ -39,7 +40,14 @@ class RunServiceImpl final
         fleet_(fleet),
         access_(access),
         budgets_(budgets),
-        watch_hub_(engine, watch) {}
+        watch_hub_(engine, WithNameBound(watch, budgets)) {}
+
+  // The watch options, with run names bounded like every other answer's.
+  static WatchHubOptions WithNameBound(WatchHubOptions watch,
+                                       const SpecBudgets& budgets) {
+    watch.max_name_bytes = budgets.max_name_bytes;
+    return watch;
+  }
 
   // Ends every watch stream (UNAVAILABLE); call before the server shuts down.
   void ShutdownWatches() { watch_hub_.Shutdown(); }
@@ -81,6 +89,8 @@ class RunServiceImpl final
   grpc::ServerWriteReactor<skerry::v1::RunSummary>* WatchRun(
       grpc::CallbackServerContext* ctx,
       const skerry::v1::WatchRunRequest* req) override;
+  grpc::ServerBidiReactor<skerry::v1::FollowRunRequest, skerry::v1::RunSummary>*
+  FollowRun(grpc::CallbackServerContext* ctx) override;
 
  private:
   grpc::Status Summarise(int64_t run_id, skerry::v1::RunSummary* out);

@@ -17,11 +17,15 @@
 // counts such misses, at most one per interval, and every summary it is sent
 // carries the count so far. The final summary of an ended run is never
 // dropped: it is sent once the watcher takes it, then the stream ends (OK).
-// A write completes when gRPC's flow control admits it, that is once the
-// client's library has room for it in its receive window, not when the
-// client's program reads it: a client that stops reading gets what its window
-// already holds before it gets the newest summary and the count
-// (docs/sharing.md). The hub cannot see further than that.
+// A WatchRun write completes when gRPC's flow control admits it, that is once
+// the client's library has room for it in its receive window, not when the
+// client's program reads it: a WatchRun client that stops reading gets what
+// its window already holds before the newest summary and the count. FollowRun
+// (client-paced, a bidi stream) removes that cause: a summary is sent only
+// when the client asks for one, one per request message, so a client that
+// stops reading and asking holds at most the one it asked for; an update due
+// with nothing asked is dropped and counted the same way, and the final
+// summary waits to be asked for (docs/sharing.md).
 //
 // Limits: at most `max_watchers` streams at once per coordinator; one more is
 // refused with RESOURCE_EXHAUSTED naming the limit. A run that does not exist
@@ -36,6 +40,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <functional>
 #include <map>
 #include <memory>
 #include <set>
@@ -58,6 +63,9 @@ struct WatchHubOptions {
   // How often the hub looks for changes and due watchers: the finest
   // interval a watcher can get, and the delay of its first summary.
   absl::Duration tick = absl::Milliseconds(20);
+  // Run names longer than this are sent cut and marked (AnsweredName in
+  // common/quote.h); 0: its fallback.
+  size_t max_name_bytes = 0;
 };
 
 class WatchHub {
@@ -76,9 +84,18 @@ class WatchHub {
   grpc::ServerWriteReactor<skerry::v1::RunSummary>* Watch(
       const skerry::v1::WatchRunRequest& request);
 
+  // The reactor that serves one FollowRun call: its first message names the
+  // run. `admit`, when set, is asked once that message has come (its access
+  // check); a refusal ends the call with it.
+  grpc::ServerBidiReactor<skerry::v1::FollowRunRequest, skerry::v1::RunSummary>*
+  Follow(std::function<grpc::Status()> admit);
+
   // A reactor that ends the call with `status` at once (a refused call).
   static grpc::ServerWriteReactor<skerry::v1::RunSummary>* Refuse(
       grpc::Status status);
+  static grpc::ServerBidiReactor<skerry::v1::FollowRunRequest,
+                                 skerry::v1::RunSummary>*
+  RefuseFollow(grpc::Status status);
 
   // Ends every stream with UNAVAILABLE, refuses new ones, and stops the hub
   // thread. Streams whose last write is stuck end when gRPC cancels them.
@@ -89,6 +106,8 @@ class WatchHub {
 
  private:
   class Watcher;
+  class StreamWatcher;
+  class PacedWatcher;
   // One watched run: its newest summary and who watches it.
   struct Channel {
     std::shared_ptr<const skerry::v1::RunSummary> latest;
@@ -119,8 +138,17 @@ class WatchHub {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   static void Perform(std::vector<Action> actions);  // without mu_
 
+  // Clamps a requested interval (0: the default).
+  static absl::Duration Interval(uint32_t ms);
+  // RESOURCE_EXHAUSTED when another watcher would pass the limit.
+  grpc::Status RoomForOneMore() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+
   // Reactions of a watcher (from gRPC's threads).
   void WriteDone(Watcher& w, bool ok) ABSL_LOCKS_EXCLUDED(mu_);
+  // A FollowRun request arrived (ok), or the client will send no more.
+  // `refusal`: the first message was refused access; the call ends with it.
+  void Asked(Watcher& w, const skerry::v1::FollowRunRequest& request, bool ok,
+             grpc::Status refusal) ABSL_LOCKS_EXCLUDED(mu_);
   void Cancelled(Watcher& w) ABSL_LOCKS_EXCLUDED(mu_);
   void Done(Watcher* w) ABSL_LOCKS_EXCLUDED(mu_);
 
@@ -130,6 +158,8 @@ class WatchHub {
 
   mutable absl::Mutex mu_;
   std::map<int64_t, Channel> channels_ ABSL_GUARDED_BY(mu_);
+  // FollowRun watchers whose first message (naming the run) has not come.
+  std::set<Watcher*> unnamed_ ABSL_GUARDED_BY(mu_);
   size_t watchers_ ABSL_GUARDED_BY(mu_) = 0;
   bool stopping_ ABSL_GUARDED_BY(mu_) = false;
 

@@ -265,14 +265,15 @@ std::optional<Verdict> AccessControl::Find(
   return it->second;
 }
 
-grpc::Status AccessControl::Refusal(const grpc::ServerContextBase* ctx) const {
+grpc::Status AccessControl::Refusal(const grpc::ServerContextBase* ctx,
+                                    bool before_message) const {
   std::optional<Verdict> v = Find(ctx);
   if (!v.has_value()) {
     return grpc::Status(grpc::StatusCode::INTERNAL,
                         "no access verdict for this call; refused");
   }
   if (!v->status.ok()) return v->status;
-  if (!v->examined) {
+  if (!v->examined && !before_message) {
     return grpc::Status(grpc::StatusCode::INTERNAL,
                         "the request was not examined; refused");
   }

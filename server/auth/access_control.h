@@ -93,7 +93,11 @@ class AccessControl {
   std::optional<Verdict> Find(const grpc::ServerContextBase* ctx) const;
   // OK when the call in flight may go ahead; else the status to end it with.
   // Fails closed: INTERNAL for a call without a verdict or not examined.
-  grpc::Status Refusal(const grpc::ServerContextBase* ctx) const;
+  // A client-streaming call has no message yet when its handler starts: with
+  // `before_message` only its metadata (token, role) is judged then, and the
+  // handler asks again (without) once its first message has come.
+  grpc::Status Refusal(const grpc::ServerContextBase* ctx,
+                       bool before_message = false) const;
 
   // ---- For handlers ----
   // The caller of a call in flight; nullopt when it has none (health check).

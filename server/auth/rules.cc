@@ -80,6 +80,7 @@ std::map<std::string, Rule> Build() {
       {run + "GetHistory", Make<v1::GetHistoryRequest>(P::kRead)},
       {run + "GetDigest", Make<v1::RunRef>(P::kRead)},
       {run + "WatchRun", Make<v1::WatchRunRequest>(P::kRead)},
+      {run + "FollowRun", Make<v1::FollowRunRequest>(P::kRead)},
 
       {study + "SubmitSeries", Make<v1::SubmitSeriesRequest>(P::kSubmit, true)},
       {study + "ExtendRun", AboutRun<v1::ExtendRunRequest>(P::kOwnRun, true)},

@@ -9,6 +9,7 @@
 #error "cpp-httplib without OpenSSL: HTTPS would be impossible"
 #endif
 
+#include <memory>
 #include <thread>
 
 #include "absl/strings/numbers.h"
@@ -169,6 +170,15 @@ class HttpServerImpl final : public HttpServer {
     };
   }
 
+  // A call on the caller's behalf: their authorization and the deadline.
+  std::unique_ptr<grpc::ClientContext> CallContext(
+      const std::string& authorization) const {
+    auto ctx = std::make_unique<grpc::ClientContext>();
+    ctx->set_deadline(absl::ToChronoTime(absl::Now() + kCallDeadline));
+    Prepare(authorization)(ctx.get());
+    return ctx;
+  }
+
   void SendJson(httplib::Response& res, const absl::StatusOr<std::string>& j) {
     if (!j.ok()) return Fail(res, j.status());
     res.set_header("Cache-Control", "no-store");
@@ -185,11 +195,8 @@ class HttpServerImpl final : public HttpServer {
                                      httplib::Response& res) {
       std::optional<std::string> token = Admit(req, res);
       if (!token) return;
-      grpc::ClientContext ctx;
-      ctx.set_deadline(absl::ToChronoTime(absl::Now() + kCallDeadline));
-      Prepare (*token)(&ctx);
       skerry::v1::ListRunsResponse runs;
-      grpc::Status s = runs_->ListRuns(&ctx, {}, &runs);
+      grpc::Status s = runs_->ListRuns(CallContext(*token).get(), {}, &runs);
       if (!s.ok()) return Fail(res, api::FromGrpc(s));
       SendJson(res, Json(runs));
     });
@@ -213,11 +220,9 @@ class HttpServerImpl final : public HttpServer {
                                       httplib::Response& res) {
       std::optional<std::string> token = Admit(req, res);
       if (!token) return;
-      grpc::ClientContext ctx;
-      ctx.set_deadline(absl::ToChronoTime(absl::Now() + kCallDeadline));
-      Prepare (*token)(&ctx);
       skerry::v1::ListWorkersResponse workers;
-      grpc::Status s = admin_->ListWorkers(&ctx, {}, &workers);
+      grpc::Status s =
+          admin_->ListWorkers(CallContext(*token).get(), {}, &workers);
       if (!s.ok()) return Fail(res, api::FromGrpc(s));
       absl::StatusOr<CoordinatorGauges> g = sources_.gauges();
       if (!g.ok()) return Fail(res, g.status());

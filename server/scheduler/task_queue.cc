@@ -312,6 +312,19 @@ std::optional<TaskInfo> TaskQueue::Claim(int64_t worker, uint64_t task_id,
   return e.info;
 }
 
+void TaskQueue::NoteLease(int64_t worker, uint64_t task_id, uint32_t attempt) {
+  absl::MutexLock l(&mu_);
+  auto t = tasks_.find(static_cast<int64_t>(task_id));
+  if (t == tasks_.end()) return;
+  std::vector<std::pair<uint32_t, int64_t>>& holders = t->second.holders;
+  const std::pair<uint32_t, int64_t> lease(attempt, worker);
+  if (std::find(holders.begin(), holders.end(), lease) != holders.end()) {
+    return;
+  }
+  if (holders.size() >= kMaxHoldersKept) holders.erase(holders.begin());
+  holders.insert(holders.begin(), lease);
+}
+
 void TaskQueue::Complete(absl::Span<const int64_t> task_ids) {
   absl::MutexLock l(&mu_);
   for (int64_t id : task_ids) {

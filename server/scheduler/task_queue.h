@@ -17,10 +17,13 @@
 // evaluation seed), so a late result from an expired lease is the same number
 // the next worker would compute, and taking it saves that work. A result for
 // an attempt that was never leased to the reporting worker (another worker's
-// lease, an attempt never handed out, a task never leased, or a lease made by
-// an earlier coordinator process) is refused with PermissionDenied: a worker
-// can score only what it was given. The last kMaxHoldersKept leases of a task
-// are remembered; a result from an older one is refused the same way. A failed
+// lease, an attempt never handed out, a task never leased) is refused with
+// PermissionDenied: a worker can score only what it was given. The last
+// kMaxHoldersKept leases of a task are remembered; a result from an older one
+// is refused the same way. This memory dies with the process: a lease an
+// earlier coordinator process made is known again through NoteLease, called
+// by FleetService for a result whose lease proof (server/auth/fleet_seal.h,
+// keyed by the database) shows that lease was made. A failed
 // attempt counts only when it comes from the current lease (holder and
 // attempt), so a stale worker cannot fail a genome. A result for a task that
 // is unknown, claimed or completed changes nothing.
@@ -156,6 +159,11 @@ class TaskQueue {
   std::optional<TaskInfo> Claim(int64_t worker, uint64_t task_id,
                                 uint32_t attempt, bool failed_attempt,
                                 absl::Status* why = nullptr);
+  // Records that attempt `attempt` of the task was leased to `worker` (by
+  // this or an earlier coordinator process: the caller checked its lease
+  // proof), so that Claim takes its result like any late one. Does nothing
+  // for an unknown task or a lease already known.
+  void NoteLease(int64_t worker, uint64_t task_id, uint32_t attempt);
   // The commit holding claimed results succeeded: forget them.
   void Complete(absl::Span<const int64_t> task_ids);
   // The commit failed, or the attempt failed and may be retried: queue again.

@@ -329,10 +329,15 @@ std::string CheckReport::ToString() const {
                     problems.size() >= kMaxProblems ? "+" : "", " problems\n");
     for (const std::string& p : problems) absl::StrAppend(&out, "  ", p, "\n");
   }
+  if (!warnings.empty()) {
+    absl::StrAppend(&out, "warnings: ", warnings.size(), "\n");
+    for (const std::string& w : warnings) absl::StrAppend(&out, "  ", w, "\n");
+  }
   return out;
 }
 
-absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
+absl::StatusOr<CheckReport> CheckDatabase(const std::string& path,
+                                          uint64_t max_name_bytes) {
   // The file rule of Store::Open: nothing is created here, an empty file is
   // not a database.
   struct stat st;
@@ -401,6 +406,25 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
         checker.CheckRun(id, spec, static_cast<int>(runs->ColumnInt(2))));
     SKERRY_RETURN_IF_ERROR(CheckEndedRunIslandsDone(
         checker, id, static_cast<int>(runs->ColumnInt(2))));
+  }
+  if (max_name_bytes > 0) {
+    // Names from before the name budget: answers cut them; say so.
+    SKERRY_ASSIGN_OR_RETURN(
+        Statement long_names,
+        conn->Prepare("SELECT id, length(CAST(name AS BLOB)) FROM runs WHERE "
+                      "length(CAST(name AS BLOB)) > ?1 ORDER BY id LIMIT 100"));
+    long_names.BindInt(1, static_cast<int64_t>(max_name_bytes));
+    while (true) {
+      SKERRY_ASSIGN_OR_RETURN(bool row, long_names.Step());
+      if (!row) break;
+      checker.report.warnings.push_back(
+          absl::StrCat("run ", long_names.ColumnInt(0), ": name of ",
+                       long_names.ColumnInt(1),
+                       " bytes, over --max-name-bytes ", max_name_bytes,
+                       " (stored before the budget); answers show its "
+                       "first ",
+                       max_name_bytes, " bytes"));
+    }
   }
   SKERRY_RETURN_IF_ERROR(CheckSeriesRows(conn.get(), &checker.report.problems));
   {

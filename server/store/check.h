@@ -29,6 +29,7 @@
 #ifndef SKERRY_SERVER_STORE_CHECK_H_
 #define SKERRY_SERVER_STORE_CHECK_H_
 
+#include <cstdint>
 #include <string>
 #include <vector>
 
@@ -40,6 +41,10 @@ namespace skerry::store {
 struct CheckReport {
   std::string integrity;              // "ok" or SQLite's findings
   std::vector<std::string> problems;  // empty when every invariant holds
+  // Findings that break no invariant but deserve a look: run names longer
+  // than the name budget (stored before it existed; answers cut them,
+  // common/quote.h AnsweredName). They do not make ok() false.
+  std::vector<std::string> warnings;
   int runs = 0;
   long long genomes = 0;
   bool ok() const { return integrity == "ok" && problems.empty(); }
@@ -47,7 +52,9 @@ struct CheckReport {
 };
 
 // Fails only when the file cannot be read as a Skerry database at all.
-absl::StatusOr<CheckReport> CheckDatabase(const std::string& path);
+// `max_name_bytes`: the name budget (--max-name-bytes) warned about.
+absl::StatusOr<CheckReport> CheckDatabase(const std::string& path,
+                                          uint64_t max_name_bytes = 256);
 
 // Every row of runs, islands, genomes and generation_stats (of `run_id`, or of
 // every run when 0) in database `schema` ("main", or an attached name)

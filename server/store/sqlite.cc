@@ -23,6 +23,11 @@ absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
       return absl::ResourceExhaustedError(msg);
     case SQLITE_IOERR:
     case SQLITE_CANTOPEN:
+    // A file it may not write (permissions changed under it) is storage
+    // trouble like a failing disk: the engine holds work until a write
+    // succeeds, and an INTERNAL error (a bug) need not hold anything.
+    case SQLITE_READONLY:
+    case SQLITE_PERM:
       return absl::UnavailableError(msg);
     case SQLITE_CONSTRAINT:
       return absl::FailedPreconditionError(msg);

@@ -150,14 +150,24 @@ CREATE TABLE genome_metrics (
 CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
 )sql";
 
+// Version 11: the fleet key (Store::FleetKey): worker secrets and lease proofs
+// (server/auth/fleet_seal.h) outlive a coordinator restart.
+constexpr const char* kSchemaFleetKey = R"sql(
+CREATE TABLE fleet_keys (
+  name TEXT PRIMARY KEY,
+  key BLOB NOT NULL
+) WITHOUT ROWID;
+)sql";
+
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
 // (row checksums, submit request ids) is built by SchemaV6(); version 9
 // (seed series) by SchemaSeries() (series_store.h), version 10 (strategy
-// states, with their checksums) by SchemaV10().
+// states, with their checksums) by SchemaV10(); version 11 is the fleet key.
 constexpr const char* kMigrations[] = {
     kSchemaV1, kSchemaV2, kSchemaV3,      kSchemaV4, kSchemaAccess,
-    nullptr,   kSchemaV7, kSchemaMetrics, nullptr,   nullptr};
+    nullptr,   kSchemaV7, kSchemaMetrics, nullptr,   nullptr,
+    kSchemaFleetKey};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 

@@ -42,6 +42,10 @@
 //        proto/skerry/v1/strategy.proto), with its row checksum kept and
 //        checked like those of version 6. A migrated database gets an empty
 //        state per island (a GA's, which keeps nothing).
+//   fleet_keys(name PRIMARY KEY, key BLOB)              version 11: the key
+//        of worker secrets and lease proofs (server/auth/fleet_seal.h); a
+//        copy of the database carries it, so a restored coordinator still
+//        knows its workers
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
 // validations per run and pending validations (version 4); tokens per
@@ -298,7 +302,7 @@ inline constexpr const char* kEmptyFileMessage =
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 10;
+  static constexpr int kSchemaVersion = 11;
 
   // Opens the database at `path`, applies the pragmas and migrates an older
   // schema. Only a file that does not exist is created (and initialised); an
@@ -367,6 +371,9 @@ class Store {
   absl::Status CommitValidations(absl::Span<const ValidationUpdate> updates);
   absl::StatusOr<int64_t> RegisterWorker(const WorkerRecord& worker);
   absl::Status TouchWorkers(absl::Span<const int64_t> ids, int64_t now_ms);
+  // The fleet key (server/auth/fleet_seal.h): 32 random bytes, made and
+  // committed at the first call, the same ever after (worker_list.cc).
+  absl::StatusOr<std::string> FleetKey();
 
   // ---- Reads ----
   // Every run; a damaged run's record comes with `damage` set.

@@ -1,6 +1,11 @@
 // The store's worker list (store.h, ListWorkers): the workers table read
 // newest first. A database whose workers table has a `sandbox` column
-// (added with the worker sandbox) shows it; one without shows none.
+// (added with the worker sandbox) shows it; one without shows none. Also the
+// fleet key (Store::FleetKey).
+#include <sys/random.h>
+
+#include <cerrno>
+#include <cstring>
 #include <string>
 #include <utility>
 
@@ -48,6 +53,40 @@ absl::StatusOr<std::vector<Store::WorkerRow>> Store::ListWorkers(int limit) {
     rows.push_back(std::move(w));
   }
   return rows;
+}
+
+}  // namespace skerry::store
+
+namespace skerry::store {
+
+absl::StatusOr<std::string> Store::FleetKey() {
+  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  {
+    SKERRY_ASSIGN_OR_RETURN(
+        auto get,
+        conn_->Prepare("SELECT key FROM fleet_keys WHERE name = 'fleet'"));
+    SKERRY_ASSIGN_OR_RETURN(bool row, get.Step());
+    if (row) return get.ColumnBlob(0);
+  }
+  std::string key(32, '\0');
+  size_t got = 0;
+  while (got < key.size()) {
+    const ssize_t n = getrandom(key.data() + got, key.size() - got, 0);
+    if (n < 0 && errno == EINTR) continue;
+    if (n < 0) {
+      return absl::InternalError(
+          absl::StrCat("getrandom for the fleet key: ", std::strerror(errno)));
+    }
+    got += static_cast<size_t>(n);
+  }
+  SKERRY_ASSIGN_OR_RETURN(
+      auto put,
+      conn_->Prepare("INSERT INTO fleet_keys (name, key) VALUES ('fleet', ?)"));
+  put.BindBlob(1, key);
+  SKERRY_RETURN_IF_ERROR(put.Run());
+  SKERRY_RETURN_IF_ERROR(txn.Commit());
+  return key;
 }
 
 }  // namespace skerry::store

@@ -105,10 +105,10 @@ TEST_F(LifecycleTest, JoinWithAnUnspokenProtocolIsRefusedNamingBothVersions) {
   EXPECT_THAT(refused.error_message(),
               HasSubstr(absl::StrCat("release ", kVersion, ", worker protocol ",
                                      kProtocolVersion, ")")));
-  // Its own protocol is spoken, and 0 (a worker from before the field) is
-  // protocol 1.
+  // Its own protocol is spoken. 0 (a worker from before the field) is
+  // protocol 1, which sends no worker secret: refused the same way.
   EXPECT_TRUE(Join(kProtocolVersion, &response).ok());
-  EXPECT_TRUE(Join(0, &response).ok());
+  EXPECT_EQ(Join(0, &response).error_code(), grpc::StatusCode::UNIMPLEMENTED);
 }
 
 TEST_F(LifecycleTest, WorkerWithExitWhenIdleLeavesAfterTheRunFinishes) {

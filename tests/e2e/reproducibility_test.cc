@@ -10,6 +10,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
+#include "common/version.h"
 #include "gmock/gmock.h"
 #include "grpcpp/grpcpp.h"
 #include "gtest/gtest.h"
@@ -180,6 +181,7 @@ TEST_F(ReproducibilityTest, FrozenWorkerPastItsLeaseChangesNothing) {
   ASSERT_EQ(reference.size(), 64u);
   std::vector<skerry::v1::Task> held;
   uint64_t frozen_id = 0;
+  std::string frozen_secret;
   std::shared_ptr<grpc::Channel> channel;
   const std::string frozen = RunOnFleet(
       "frozen", 1, 1,
@@ -203,6 +205,7 @@ TEST_F(ReproducibilityTest, FrozenWorkerPastItsLeaseChangesNothing) {
         auto fleet = skerry::v1::FleetService::NewStub(channel);
         skerry::v1::ReportRequest report;
         report.set_worker_id(frozen_id);
+        report.set_worker_secret(frozen_secret);
         for (const auto& t : held) {
           skerry::v1::TaskResult* r = report.add_results();
           r->set_task_id(t.task_id());
@@ -224,6 +227,7 @@ TEST_F(ReproducibilityTest, FrozenWorkerPastItsLeaseChangesNothing) {
             grpc::CreateChannel(address, grpc::InsecureChannelCredentials());
         auto fleet = skerry::v1::FleetService::NewStub(channel);
         skerry::v1::JoinRequest join;
+        join.set_protocol_version(kProtocolVersion);
         join.set_name("frozen");
         join.set_threads(1);
         join.add_evaluators("ackley");
@@ -232,8 +236,10 @@ TEST_F(ReproducibilityTest, FrozenWorkerPastItsLeaseChangesNothing) {
         jctx.set_deadline(absl::ToChronoTime(absl::Now() + absl::Seconds(30)));
         ASSERT_TRUE(fleet->Join(&jctx, join, &joined).ok());
         frozen_id = joined.worker_id();
+        frozen_secret = joined.worker_secret();
         skerry::v1::LeaseRequest lease;
         lease.set_worker_id(frozen_id);
+        lease.set_worker_secret(frozen_secret);
         lease.set_max_tasks(5);
         lease.set_wait_ms(1000);
         skerry::v1::LeaseResponse leased;

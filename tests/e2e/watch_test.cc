@@ -2,7 +2,8 @@
 // skerry-coordinator binary on a loopback port, a real SQLite file and a real
 // skerry-worker: 49 watchers that read, one that reads nothing until the run
 // has finished (on a channel with a small receive window, so the coordinator
-// cannot push its updates past it), the watcher limit, and an unknown run.
+// cannot push its updates past it); a client-paced follower (FollowRun) that
+// reads nothing on a default channel; the watcher limit, and an unknown run.
 // No time is asserted; every wait is bounded.
 #include <csignal>
 #include <memory>
@@ -106,6 +107,18 @@ class WatchTest : public ::testing::Test {
     return req;
   }
 
+  // A FollowRun stream whose first request (naming the run) is written.
+  std::unique_ptr<
+      grpc::ClientReaderWriter<skerry::v1::FollowRunRequest, RunSummary>>
+  Follow(grpc::ClientContext* ctx, uint64_t run_id, uint32_t interval_ms) {
+    auto follower = stub_->FollowRun(ctx);
+    skerry::v1::FollowRunRequest first;
+    first.set_run_id(run_id);
+    first.set_interval_ms(interval_ms);
+    EXPECT_TRUE(follower->Write(first));
+    return follower;
+  }
+
   testing::TempDir dir_;
   std::unique_ptr<testing::StartedCoordinator> coordinator_;
   std::shared_ptr<grpc::Channel> channel_;
@@ -184,6 +197,68 @@ TEST_F(WatchTest,
   for (const RunSummary& s : late.updates) {
     EXPECT_LE(s.dropped_updates(), last.dropped_updates()) << "counts grow";
   }
+}
+
+// A WatchRun watcher that reads nothing got a backlog of stale summaries
+// whenever its HTTP/2 window was the default (it grows to megabytes): the
+// coordinator's writes completed into the window. FollowRun sends only what
+// was asked for, so the same silent watcher, on a channel with default
+// settings, holds one summary and is then sent the newest with the count.
+TEST_F(WatchTest, SilentFollowerOnADefaultChannelGetsTheNewestAndWhatItMissed) {
+  Start();
+  const uint64_t run_id = Submit();
+  ASSERT_NE(run_id, 0u);
+  grpc::ClientContext ctx;
+  ctx.set_deadline(In(absl::Seconds(400)));
+  auto follower = Follow(&ctx, run_id, 50);
+  StartWorker();
+  const bool finished = testing::WaitFor(
+      [&] {
+        grpc::ClientContext get_ctx;
+        get_ctx.set_deadline(In(absl::Seconds(30)));
+        skerry::v1::RunRef ref;
+        ref.set_run_id(run_id);
+        skerry::v1::GetRunResponse got;
+        return stub_->GetRun(&get_ctx, ref, &got).ok() &&
+               got.run().state() == skerry::v1::FINISHED;
+      },
+      absl::Seconds(300));
+  ASSERT_TRUE(finished) << coordinator_->process.Log();
+  // An update is due one interval (50 ms) after the last one sent; let a few
+  // pass so that the final one is due while nothing is asked for.
+  absl::SleepFor(absl::Milliseconds(200));
+
+  std::vector<RunSummary> got;
+  RunSummary s;
+  while (got.size() < 10 && follower->Read(&s)) {
+    got.push_back(s);
+    if (!follower->Write(skerry::v1::FollowRunRequest())) break;
+  }
+  follower->WritesDone();
+  grpc::Status status = follower->Finish();
+  EXPECT_TRUE(status.ok()) << status.error_message();
+  ASSERT_FALSE(got.empty());
+  EXPECT_LE(got.size(), 2u) << "a backlog of stale summaries";
+  EXPECT_EQ(got.back().state(), skerry::v1::FINISHED);
+  EXPECT_GT(got.back().dropped_updates(), 0u);
+}
+
+// A follower is sent one summary per request: with the first request only,
+// it gets one, and closing its side ends the stream (OK).
+TEST_F(WatchTest, FollowerGetsOneSummaryPerRequestAndEndsWhenItCloses) {
+  Start();
+  const uint64_t run_id = Submit();
+  ASSERT_NE(run_id, 0u);
+  grpc::ClientContext ctx;
+  ctx.set_deadline(In(absl::Seconds(60)));
+  auto follower = Follow(&ctx, run_id, 0);
+  ASSERT_TRUE(follower->WritesDone());
+  std::vector<RunSummary> got;
+  RunSummary s;
+  while (got.size() < 10 && follower->Read(&s)) got.push_back(s);
+  EXPECT_TRUE(follower->Finish().ok());
+  ASSERT_EQ(got.size(), 1u);
+  EXPECT_EQ(got[0].id(), run_id);
 }
 
 TEST_F(WatchTest, WatchersOverTheLimitAreRefusedWithResourceExhausted) {

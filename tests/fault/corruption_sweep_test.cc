@@ -30,6 +30,7 @@
 #include "server/scheduler/task_queue.h"
 #include "server/store/check.h"
 #include "server/store/store.h"
+#include "tests/support/engine_harness.h"
 #include "tests/support/process.h"
 
 namespace skerry::engine {
@@ -42,33 +43,9 @@ using skerry::v1::TaskResult;
 
 constexpr int64_t kWorker = 1;
 
-// Two islands of 6 on a 3-gene sphere for 4 generations (engine_fault_test's).
-RunSpec SmallSpec() {
-  RunSpec spec;
-  spec.set_name("sweep");
-  spec.set_seed(91);
-  spec.set_genome_length(3);
-  spec.mutable_evaluator()->mutable_builtin()->set_function("sphere");
-  spec.mutable_ga()->set_population_size(6);
-  spec.mutable_ga()->set_elites(1);
-  spec.mutable_ga()->set_immigrants(1);
-  spec.mutable_islands()->set_count(2);
-  spec.mutable_islands()->set_interval(1);
-  spec.mutable_islands()->set_migrants(1);
-  spec.mutable_stop()->set_max_generations(4);
-  return spec;
-}
+using Harness = skerry::testing::EngineHarness;
 
-struct Harness {
-  std::unique_ptr<store::Store> store;
-  std::unique_ptr<scheduler::TaskQueue> queue;
-  std::unique_ptr<Engine> engine;
-  ~Harness() {
-    engine.reset();
-    queue.reset();
-    store.reset();
-  }
-};
+RunSpec SmallSpec() { return skerry::testing::SmallSphereSpec("sweep", 91); }
 
 // Opens as the coordinator does at start; the status says why it would not.
 absl::StatusOr<std::unique_ptr<Harness>> OpenLikeTheCoordinator(
@@ -91,19 +68,8 @@ absl::StatusOr<std::unique_ptr<Harness>> OpenLikeTheCoordinator(
   return h;
 }
 
-// Sphere: sum of x_i^2 (Jamil & Yang 2013, see REFERENCES.md).
 std::vector<TaskResult> Score(const std::vector<Task>& tasks) {
-  std::vector<TaskResult> out;
-  for (const Task& t : tasks) {
-    TaskResult r;
-    r.set_task_id(t.task_id());
-    r.set_attempt(t.attempt());
-    double s = 0.0;
-    for (double x : t.genes()) s += x * x;
-    r.set_score(s);
-    out.push_back(r);
-  }
-  return out;
+  return skerry::testing::SphereResults(tasks, 0.0);
 }
 
 // The run's state as the engine shows it.

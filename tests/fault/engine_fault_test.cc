@@ -23,6 +23,7 @@
 #include "server/store/store.h"
 #include "tests/fault/fault_vfs.h"
 #include "tests/support/db_check.h"
+#include "tests/support/engine_harness.h"
 #include "tests/support/process.h"
 
 namespace skerry::engine {
@@ -40,69 +41,26 @@ using skerry::v1::TaskResult;
 constexpr int64_t kWorker = 1;
 constexpr int kMaxFaultPoint = 60;
 
-// Two islands of 6 on a 3-gene sphere for 4 generations, migrating every
-// generation (the same shape as engine_test's SmallSpec, one generation more).
-RunSpec SmallSpec() {
-  RunSpec spec;
-  spec.set_name("engine-fault");
-  spec.set_seed(77);
-  spec.set_genome_length(3);
-  spec.mutable_evaluator()->mutable_builtin()->set_function("sphere");
-  spec.mutable_ga()->set_population_size(6);
-  spec.mutable_ga()->set_elites(1);
-  spec.mutable_ga()->set_immigrants(1);
-  spec.mutable_islands()->set_count(2);
-  spec.mutable_islands()->set_interval(1);
-  spec.mutable_islands()->set_migrants(1);
-  spec.mutable_stop()->set_max_generations(4);
-  return spec;
-}
+using Harness = skerry::testing::EngineHarness;
 
-// Store, queue and engine, opened and closed together.
-struct Harness {
-  std::unique_ptr<store::Store> store;
-  std::unique_ptr<scheduler::TaskQueue> queue;
-  std::unique_ptr<Engine> engine;
-  ~Harness() {
-    engine.reset();  // joins the committer first
-    queue.reset();
-    store.reset();
-  }
-};
+RunSpec SmallSpec() {
+  return skerry::testing::SmallSphereSpec("engine-fault", 77);
+}
 
 std::unique_ptr<Harness> OpenHarness(const std::string& path, bool faulty,
                                      Clock* clock) {
-  auto h = std::make_unique<Harness>();
   store::Store::Options options;
   if (faulty) options.vfs = FaultVfs::kName;
-  absl::StatusOr<std::unique_ptr<store::Store>> s =
-      store::Store::Open(path, options);
-  EXPECT_TRUE(s.ok()) << s.status();
-  if (!s.ok()) return nullptr;
-  h->store = std::move(*s);
-  h->queue = std::make_unique<scheduler::TaskQueue>(clock, absl::Seconds(30));
-  absl::StatusOr<std::unique_ptr<Engine>> e =
-      Engine::Open(h->store.get(), h->queue.get(), clock);
-  EXPECT_TRUE(e.ok()) << e.status();
-  if (!e.ok()) return nullptr;
-  h->engine = std::move(*e);
-  return h;
+  absl::StatusOr<std::unique_ptr<Harness>> h =
+      skerry::testing::OpenEngineHarness(path, options, /*quick_check=*/false,
+                                         clock);
+  EXPECT_TRUE(h.ok()) << h.status();
+  if (!h.ok()) return nullptr;
+  return *std::move(h);
 }
 
-// Sphere: sum of x_i^2 (Jamil & Yang 2013, see REFERENCES.md).
 std::vector<TaskResult> Score(const std::vector<Task>& tasks) {
-  std::vector<TaskResult> out;
-  for (const Task& t : tasks) {
-    TaskResult r;
-    r.set_task_id(t.task_id());
-    r.set_attempt(t.attempt());
-    double s = 0.0;
-    for (double x : t.genes()) s += x * x;
-    r.set_score(s);
-    r.set_eval_seconds(0.01);
-    out.push_back(r);
-  }
-  return out;
+  return skerry::testing::SphereResults(tasks, 0.01);
 }
 
 bool Active(Harness& h, int64_t run_id) {

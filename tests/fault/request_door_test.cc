@@ -15,6 +15,7 @@
 #include "absl/strings/str_cat.h"
 #include "common/clock.h"
 #include "common/spec.h"
+#include "common/version.h"
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/impl/client_unary_call.h"
 #include "grpcpp/impl/rpc_method.h"
@@ -227,6 +228,7 @@ TEST_F(RequestDoorTest, StringsAndListsOverTheirBoundsAreInvalidArgument) {
   {
     SCOPED_TRACE("JoinRequest.evaluators");
     skerry::v1::JoinRequest req;
+    req.set_protocol_version(kProtocolVersion);
     req.set_threads(1);
     for (int i = 0; i < 1001; ++i) req.add_evaluators("sphere");
     skerry::v1::JoinResponse resp;

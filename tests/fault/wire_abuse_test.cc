@@ -20,6 +20,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "common/clock.h"
+#include "common/version.h"
 #include "grpcpp/grpcpp.h"
 #include "gtest/gtest.h"
 #include "server/coordinator.h"
@@ -110,19 +111,28 @@ class WireAbuseTest : public ::testing::Test {
 
   uint64_t Join(const std::string& name = "honest") {
     skerry::v1::JoinRequest req;
+    req.set_protocol_version(kProtocolVersion);
     req.set_name(name);
     req.set_host("localhost");
     req.set_threads(1);
     skerry::v1::JoinResponse resp;
     grpc::Status s = fleet_->Join(Context().get(), req, &resp);
     EXPECT_TRUE(s.ok()) << s.error_message();
+    secrets_[resp.worker_id()] = resp.worker_secret();
     return resp.worker_id();
+  }
+
+  // The worker secret Join gave `worker`; none for a worker never joined.
+  std::string SecretOf(uint64_t worker) const {
+    auto it = secrets_.find(worker);
+    return it == secrets_.end() ? std::string() : it->second;
   }
 
   std::vector<Task> Lease(uint64_t worker, uint32_t max = 1000,
                           uint32_t wait_ms = 200) {
     skerry::v1::LeaseRequest req;
     req.set_worker_id(worker);
+    req.set_worker_secret(SecretOf(worker));
     req.set_max_tasks(max);
     req.set_wait_ms(wait_ms);
     skerry::v1::LeaseResponse resp;
@@ -135,6 +145,7 @@ class WireAbuseTest : public ::testing::Test {
                       skerry::v1::ReportResponse* resp) {
     skerry::v1::ReportRequest req;
     req.set_worker_id(worker);
+    req.set_worker_secret(SecretOf(worker));
     for (const TaskResult& r : results) *req.add_results() = r;
     return fleet_->Report(Context().get(), req, resp);
   }
@@ -198,12 +209,14 @@ class WireAbuseTest : public ::testing::Test {
   std::unique_ptr<FleetService::Stub> fleet_;
   std::unique_ptr<RunService::Stub> runs_;
   uint64_t run_id_ = 0;
+  std::map<uint64_t, std::string> secrets_;
 };
 
 TEST_F(WireAbuseTest, UnknownWorkerIsNotFoundAndChangesNothing) {
   const std::string before = Snapshot();
   skerry::v1::LeaseRequest lease;
   lease.set_worker_id(987654321);
+  lease.set_worker_secret(SecretOf(987654321));
   lease.set_max_tasks(10);
   skerry::v1::LeaseResponse lease_resp;
   grpc::Status s = fleet_->Lease(Context().get(), lease, &lease_resp);
@@ -224,12 +237,50 @@ TEST_F(WireAbuseTest, UnknownWorkerIsNotFoundAndChangesNothing) {
   FinishHonestly();
 }
 
+// Worker ids are small numbers: any worker could act under another's id
+// (renew, hand back, report its leases). Every call now quotes the worker
+// secret Join gave with the id; another's id with one's own secret, or with
+// none, is NOT_FOUND and changes nothing.
+TEST_F(WireAbuseTest, AnotherWorkersIdWithoutItsSecretIsNotFound) {
+  const uint64_t honest = Join("honest");
+  const uint64_t thief = Join("thief");
+  const std::vector<Task> tasks = Lease(honest);
+  ASSERT_EQ(tasks.size(), kPopulation);
+  const std::string before = Snapshot();
+  for (const std::string& secret : {SecretOf(thief), std::string()}) {
+    SCOPED_TRACE(secret.empty() ? "no secret" : "the thief's secret");
+    skerry::v1::ReportRequest req;
+    req.set_worker_id(honest);
+    req.set_worker_secret(secret);
+    TaskResult forged = Honest(tasks[0]);
+    forged.set_score(-1e9);
+    *req.add_results() = forged;
+    skerry::v1::ReportResponse resp;
+    grpc::Status s = fleet_->Report(Context().get(), req, &resp);
+    EXPECT_EQ(s.error_code(), grpc::StatusCode::NOT_FOUND) << s.error_message();
+    skerry::v1::HandBackRequest back;
+    back.set_worker_id(honest);
+    back.set_worker_secret(secret);
+    back.set_all_held(true);
+    skerry::v1::HandBackResponse back_resp;
+    s = fleet_->HandBack(Context().get(), back, &back_resp);
+    EXPECT_EQ(s.error_code(), grpc::StatusCode::NOT_FOUND) << s.error_message();
+  }
+  EXPECT_EQ(Snapshot(), before);
+  // The honest worker still holds its lease and reports.
+  skerry::v1::ReportResponse resp;
+  ASSERT_TRUE(Report(honest, {Honest(tasks[0])}, &resp).ok());
+  EXPECT_EQ(resp.accepted(), 1u);
+  FinishHonestly();
+}
+
 TEST_F(WireAbuseTest, LeaseOfZeroOrTooManyTasksIsInvalidArgument) {
   const uint64_t worker = Join();
   for (uint32_t bad : {0u, 10001u, std::numeric_limits<uint32_t>::max()}) {
     SCOPED_TRACE(absl::StrCat("max_tasks ", bad));
     skerry::v1::LeaseRequest req;
     req.set_worker_id(worker);
+    req.set_worker_secret(SecretOf(worker));
     req.set_max_tasks(bad);
     skerry::v1::LeaseResponse resp;
     grpc::Status s = fleet_->Lease(Context().get(), req, &resp);
@@ -264,6 +315,7 @@ TEST_F(WireAbuseTest, JoinWithBadThreadsOrNamesIsInvalidArgument) {
     SCOPED_TRACE(absl::StrCat("threads ", b.threads, " name ", b.name.size(),
                               " bytes, host ", b.host.size(), " bytes"));
     skerry::v1::JoinRequest req;
+    req.set_protocol_version(kProtocolVersion);
     req.set_threads(b.threads);
     req.set_name(b.name);
     req.set_host(b.host);
@@ -538,6 +590,7 @@ TEST_F(WireAbuseTest, BadResultFieldIsRejectedAloneAndHonestResultsCommit) {
         auto stub = FleetService::NewStub(channel_);
         skerry::v1::ReportRequest req;
         req.set_worker_id(honest);
+        req.set_worker_secret(SecretOf(honest));
         // Only the first time: after that they are duplicates.
         if (round == 0 && &bad == &kBad[0]) {
           for (const TaskResult& r : results) *req.add_results() = r;
@@ -633,6 +686,7 @@ TEST_F(WireAbuseTest, ReportWithHeldTaskIdsRenewsTheLease) {
   clock_.Advance(absl::Milliseconds(600));
   skerry::v1::ReportRequest renew;
   renew.set_worker_id(holder);
+  renew.set_worker_secret(SecretOf(holder));
   for (const Task& t : taken) renew.add_held_task_ids(t.task_id());
   skerry::v1::ReportResponse resp;
   ASSERT_TRUE(fleet_->Report(Context().get(), renew, &resp).ok());
@@ -655,6 +709,7 @@ TEST_F(WireAbuseTest, FloodOfJoinsLeavesTheCoordinatorCorrect) {
       auto stub = FleetService::NewStub(channel_);
       for (int i = 0; i < kJoinsPerThread; ++i) {
         skerry::v1::JoinRequest req;
+        req.set_protocol_version(kProtocolVersion);
         req.set_name(absl::StrCat("flood-", t, "-", i));
         req.set_threads(1);
         skerry::v1::JoinResponse resp;

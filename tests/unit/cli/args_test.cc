@@ -197,7 +197,9 @@ TEST(HelpTest, CommandHelpShowsUsageWithRequiredAndOptionalFlags) {
   std::string help = CommandHelp(*FindCommand("local"));
   EXPECT_THAT(help,
               HasSubstr("usage: skerry local SPEC_FILE --workers N --db FILE "
-                        "[--http HOST:PORT]\n"));
+                        "[--http HOST:PORT]"));
+  EXPECT_THAT(help, HasSubstr("[--sandbox MODE]"));
+  EXPECT_THAT(help, HasSubstr("[--evaluator-dirs DIRS]"));
   std::string champion = CommandHelp(*FindCommand("champion"));
   EXPECT_THAT(champion,
               HasSubstr("usage: skerry champion RUN [--json] [--out FILE]\n"));

@@ -21,7 +21,7 @@ namespace skerry::cli {
 namespace {
 
 using ::skerry::cli::testing::MockRunServiceStub;
-using ::skerry::cli::testing::ScriptedReader;
+using ::skerry::cli::testing::ScriptedFollower;
 using ::testing::_;
 using ::testing::DoAll;
 using ::testing::HasSubstr;
@@ -413,19 +413,22 @@ TEST_F(CommandsTest, WatchPrintsOneLinePerUpdateWhenNotATerminal) {
   EXPECT_CALL(*mock_, GetRun(_, _, _))
       .WillOnce(
           DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
-  EXPECT_CALL(*mock_, WatchRunRaw(_, _))
-      .WillOnce(Invoke(
-          [](grpc::ClientContext* context, const v1::WatchRunRequest& request) {
-            EXPECT_EQ(request.run_id(), 3u);
-            // A run may last days: the stream has no deadline.
-            EXPECT_EQ(context->deadline(),
-                      std::chrono::system_clock::time_point::max());
-            return new ScriptedReader(
-                {Summary(v1::RUNNING, 10), Summary(v1::RUNNING, 20),
-                 Summary(v1::FINISHED, 30)},
-                grpc::Status::OK);
-          }));
+  std::vector<v1::FollowRunRequest> asks;
+  EXPECT_CALL(*mock_, FollowRunRaw(_))
+      .WillOnce(Invoke([&asks](grpc::ClientContext* context) {
+        // A run may last days: the stream has no deadline.
+        EXPECT_EQ(context->deadline(),
+                  std::chrono::system_clock::time_point::max());
+        return new ScriptedFollower(
+            {Summary(v1::RUNNING, 10), Summary(v1::RUNNING, 20),
+             Summary(v1::FINISHED, 30)},
+            grpc::Status::OK, &asks);
+      }));
   EXPECT_EQ(Cli({"watch", "3"}), kExitOk) << err_.str();
+  // The first request names the run; one more is asked for after each
+  // summary is printed, never ahead of it.
+  ASSERT_EQ(asks.size(), 4u);
+  EXPECT_EQ(asks[0].run_id(), 3u);
   EXPECT_EQ(out_.str(),
             "run 3 running  gen 1/60  evals 10  best -\n"
             "run 3 running  gen 2/60  evals 20  best -\n"
@@ -438,8 +441,8 @@ TEST_F(CommandsTest, WatchRedrawsOneLineInPlaceOnATerminal) {
   EXPECT_CALL(*mock_, GetRun(_, _, _))
       .WillOnce(
           DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
-  EXPECT_CALL(*mock_, WatchRunRaw(_, _))
-      .WillOnce(Return(new ScriptedReader(
+  EXPECT_CALL(*mock_, FollowRunRaw(_))
+      .WillOnce(Return(new ScriptedFollower(
           {Summary(v1::RUNNING, 10), Summary(v1::FINISHED, 20)},
           grpc::Status::OK)));
   EXPECT_EQ(Cli({"watch", "3"}), kExitOk);
@@ -454,18 +457,18 @@ TEST_F(CommandsTest, WatchReconnectsWhenTheCoordinatorComesBack) {
       .WillOnce(
           DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
   grpc::Status gone(grpc::StatusCode::UNAVAILABLE, "Socket closed");
-  EXPECT_CALL(*mock_, WatchRunRaw(_, _))
-      .WillOnce(Return(new ScriptedReader({Summary(v1::RUNNING, 10)}, gone)))
-      .WillOnce(Return(new ScriptedReader({}, gone)))
-      .WillOnce(Return(new ScriptedReader({}, gone)))
+  EXPECT_CALL(*mock_, FollowRunRaw(_))
+      .WillOnce(Return(new ScriptedFollower({Summary(v1::RUNNING, 10)}, gone)))
+      .WillOnce(Return(new ScriptedFollower({}, gone)))
+      .WillOnce(Return(new ScriptedFollower({}, gone)))
       .WillOnce(Return(
-          new ScriptedReader({Summary(v1::FINISHED, 30)}, grpc::Status::OK)));
+          new ScriptedFollower({Summary(v1::FINISHED, 30)}, grpc::Status::OK)));
   EXPECT_EQ(Cli({"watch", "3"}), kExitOk);
   EXPECT_EQ(sleeps_,
             std::vector<absl::Duration>(
                 {absl::Seconds(1), absl::Seconds(2), absl::Seconds(4)}));
   EXPECT_THAT(err_.str(),
-              HasSubstr("(WatchRun: Socket closed); retrying in 1s"));
+              HasSubstr("(FollowRun: Socket closed); retrying in 1s"));
   EXPECT_THAT(out_.str(),
               HasSubstr("run 3 finished after 30 evaluations; no score yet\n"));
 }
@@ -475,12 +478,11 @@ TEST_F(CommandsTest, WatchGivesUpAfterBoundedReconnections) {
       .WillOnce(
           DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
   grpc::Status gone(grpc::StatusCode::UNAVAILABLE, "connection refused");
-  EXPECT_CALL(*mock_, WatchRunRaw(_, _))
+  EXPECT_CALL(*mock_, FollowRunRaw(_))
       .Times(kWatchRetries + 1)
-      .WillRepeatedly(
-          Invoke([gone](grpc::ClientContext*, const v1::WatchRunRequest&) {
-            return new ScriptedReader({}, gone);
-          }));
+      .WillRepeatedly(Invoke([gone](grpc::ClientContext*) {
+        return new ScriptedFollower({}, gone);
+      }));
   EXPECT_EQ(Cli({"watch", "3"}), kExitUnreachable);
   EXPECT_EQ(sleeps_.size(), static_cast<size_t>(kWatchRetries));
   EXPECT_EQ(sleeps_.back(), kWatchMaxBackoff);
@@ -618,9 +620,9 @@ TEST_F(CommandsTest, SubmitWithWatchFollowsTheNewRun) {
   EXPECT_CALL(*mock_, GetRun(_, _, _))
       .WillOnce(
           DoAll(SetArgPointee<2>(RunningRun()), Return(grpc::Status::OK)));
-  EXPECT_CALL(*mock_, WatchRunRaw(_, _))
+  EXPECT_CALL(*mock_, FollowRunRaw(_))
       .WillOnce(Return(
-          new ScriptedReader({Summary(v1::FINISHED, 10)}, grpc::Status::OK)));
+          new ScriptedFollower({Summary(v1::FINISHED, 10)}, grpc::Status::OK)));
   EXPECT_EQ(Cli({"submit", path, "--watch"}), kExitOk);
   EXPECT_THAT(out_.str(), HasSubstr("3\nrun 3 finished  gen 1/60"));
 }

@@ -1,5 +1,5 @@
 // A gmock of RunService::StubInterface for CLI tests (grpc only generates one
-// with a plugin flag), and a scripted server-stream reader for WatchRun.
+// with a plugin flag), and scripted stream readers for WatchRun and FollowRun.
 //
 // Invariant: only the sync methods the CLI calls are mocked; the async ones
 // return nullptr and must not be called.
@@ -40,6 +40,38 @@ class ScriptedReader
   std::vector<skerry::v1::RunSummary> updates_;
   grpc::Status status_;
   size_t next_ = 0;
+};
+
+// FollowRun's client side over a ScriptedReader: the requests written are
+// kept (asks) and the summaries read come from the script.
+class ScriptedFollower
+    : public grpc::ClientReaderWriterInterface<skerry::v1::FollowRunRequest,
+                                               skerry::v1::RunSummary> {
+ public:
+  // `asks`, when given, receives every request written (it outlives the
+  // stream, which the client deletes).
+  ScriptedFollower(std::vector<skerry::v1::RunSummary> updates,
+                   grpc::Status status,
+                   std::vector<skerry::v1::FollowRunRequest>* asks = nullptr)
+      : reader_(std::move(updates), std::move(status)), asks_(asks) {}
+  bool Read(skerry::v1::RunSummary* message) override {
+    return reader_.Read(message);
+  }
+  bool NextMessageSize(uint32_t* size) override {
+    return reader_.NextMessageSize(size);
+  }
+  bool Write(const skerry::v1::FollowRunRequest& request,
+             grpc::WriteOptions) override {
+    if (asks_ != nullptr) asks_->push_back(request);
+    return true;
+  }
+  bool WritesDone() override { return true; }
+  grpc::Status Finish() override { return reader_.Finish(); }
+  void WaitForInitialMetadata() override {}
+
+ private:
+  ScriptedReader reader_;
+  std::vector<skerry::v1::FollowRunRequest>* const asks_;
 };
 
 #define SKERRY_NO_ASYNC_UNARY(Method, Request, Response)                   \
@@ -110,6 +142,10 @@ class MockRunServiceStub : public skerry::v1::RunService::StubInterface {
   MOCK_METHOD(grpc::ClientReaderInterface<skerry::v1::RunSummary>*, WatchRunRaw,
               (grpc::ClientContext*, const skerry::v1::WatchRunRequest&),
               (override));
+  // The sync FollowRun() wraps this; the stream is owned by the caller.
+  MOCK_METHOD((grpc::ClientReaderWriterInterface<skerry::v1::FollowRunRequest,
+                                                 skerry::v1::RunSummary>*),
+              FollowRunRaw, (grpc::ClientContext*), (override));
 
  private:
   SKERRY_NO_ASYNC_UNARY(SubmitRun, SubmitRunRequest, SubmitRunResponse)
@@ -133,6 +169,18 @@ class MockRunServiceStub : public skerry::v1::RunService::StubInterface {
   PrepareAsyncWatchRunRaw(grpc::ClientContext*,
                           const skerry::v1::WatchRunRequest&,
                           grpc::CompletionQueue*) override {
+    return nullptr;
+  }
+  grpc::ClientAsyncReaderWriterInterface<skerry::v1::FollowRunRequest,
+                                         skerry::v1::RunSummary>*
+  AsyncFollowRunRaw(grpc::ClientContext*, grpc::CompletionQueue*,
+                    void*) override {
+    return nullptr;
+  }
+  grpc::ClientAsyncReaderWriterInterface<skerry::v1::FollowRunRequest,
+                                         skerry::v1::RunSummary>*
+  PrepareAsyncFollowRunRaw(grpc::ClientContext*,
+                           grpc::CompletionQueue*) override {
     return nullptr;
   }
 };

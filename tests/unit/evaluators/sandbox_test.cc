@@ -137,8 +137,41 @@ class TokenTheftTest : public ::testing::Test {
     return error;
   }
 
+  // `skerry local` (in-process workers) with `sandbox_flag`: the thief is
+  // given a token file outside its folder, and the token is in the local
+  // process's environment. Returns the error text stored for a genome.
+  std::string RunThiefLocally(const std::string& sandbox_flag) {
+    const std::string prog = dir_.File("prog");
+    const std::string outside = dir_.File("outside");
+    mkdir(prog.c_str(), 0755);
+    mkdir(outside.c_str(), 0755);
+    const std::string program = prog + "/thief.py";
+    const std::string token_file = outside + "/secret.token";
+    {
+      std::ifstream in(std::string(SKERRY_TEST_PROGRAMS_DIR) + "/thief.py");
+      std::ofstream(program) << in.rdbuf();
+    }
+    EXPECT_TRUE(testing::WriteTextFile(token_file, token_ + "\n"));
+    const std::string spec_path = dir_.File("thief.spec");
+    EXPECT_TRUE(testing::WriteTextFile(
+        spec_path,
+        absl::StrReplaceAll(kThiefSpec, {{"PROGRAM", program},
+                                         {"TOKEN_FILE", token_file},
+                                         {"CONFIG_TOKEN", dir_.File("db")}})));
+    const std::string db = dir_.File("local.db");
+    setenv("SKERRY_TOKEN", token_.c_str(), 1);
+    local_ = testing::RunCommand(
+        {SKERRY_CLI_BIN, "local", spec_path, "--workers", "1", "--db", db,
+         "--sandbox", sandbox_flag, "--evaluator-dirs", prog},
+        absl::Seconds(180));
+    unsetenv("SKERRY_TOKEN");
+    return testing::QueryText(
+        db, "SELECT error FROM genomes WHERE error != '' LIMIT 1");
+  }
+
   testing::TempDir dir_;
   const std::string token_ = CanaryToken();
+  testing::CommandResult local_;
   std::string sandbox_state_;
 };
 
@@ -162,6 +195,25 @@ TEST_F(TokenTheftTest, WithoutASandboxTheSameEvaluatorFindsTheToken) {
   EXPECT_THAT(error, HasSubstr(token_));
   EXPECT_THAT(error, HasSubstr("file "));
   EXPECT_EQ(sandbox_state_, "none: --sandbox none");
+}
+
+// `skerry local` ran external evaluators with no sandbox at all.
+TEST_F(TokenTheftTest, LocalRunsEvaluatorsInTheSandboxOutOfReachOfOtherFiles) {
+  if (const std::string why = BwrapUnavailable(); !why.empty()) {
+    GTEST_SKIP() << "bubblewrap cannot run on this machine: " << why;
+  }
+  const std::string error = RunThiefLocally("bwrap");
+  EXPECT_THAT(error, HasSubstr("thief tried")) << local_.output;
+  EXPECT_THAT(error, HasSubstr("found: nothing"));
+  EXPECT_THAT(error, Not(HasSubstr(token_)));
+}
+
+// The control: under `local --sandbox none` the same program reads the file
+// outside its folder (and the token in the local process's environment).
+TEST_F(TokenTheftTest, LocalWithSandboxNoneLetsTheSameEvaluatorReadOutside) {
+  const std::string error = RunThiefLocally("none");
+  EXPECT_THAT(error, HasSubstr(token_)) << local_.output;
+  EXPECT_THAT(error, HasSubstr("file "));
 }
 
 TEST(SandboxTest, ChildEnvironmentIsScrubbed) {

@@ -44,6 +44,10 @@ inline constexpr char kUndoVersion6[] =
 // strategy states; their checksum triggers go with the table).
 inline constexpr char kUndoVersion10[] = "DROP TABLE strategy_states; ";
 
+// SQL that takes a database back from schema version 11 to version 10 (the
+// fleet key of worker secrets and lease proofs).
+inline constexpr char kUndoVersion11[] = "DROP TABLE fleet_keys; ";
+
 // Runs SQL on a raw connection of our own (not the store's).
 inline void RawExec(const std::string& path, const std::string& sql) {
   sqlite3* db = nullptr;

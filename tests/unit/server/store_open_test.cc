@@ -11,6 +11,7 @@
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "server/store/check.h"
+#include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "tests/support/process.h"
 #include "tests/unit/server/sqlite_test_util.h"
@@ -53,7 +54,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
   ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
   store_.reset();
   RawExec(path(),
-          std::string(skerry::testing::kUndoVersion10) +
+          std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
               std::string("DROP TABLE series; DROP TABLE series_runs; DROP "
                           "TABLE genome_metrics; "
                           "ALTER TABLE workers DROP COLUMN sandbox; ") +
@@ -82,7 +83,7 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion10) +
+      std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
           std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
                       "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
@@ -113,7 +114,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion10) +
+      std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
           std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
                       "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
@@ -142,7 +143,7 @@ TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion10) +
+      std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
           "DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
           "genome_metrics; "
           "UPDATE schema_version SET version = 7; "

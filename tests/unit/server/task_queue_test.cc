@@ -193,6 +193,27 @@ TEST_F(TaskQueueTest, ClaimedTaskIsNotClaimableTwice) {
   EXPECT_FALSE(queue_.Claim(2, 1, 1, false).has_value());
 }
 
+// Results of an earlier coordinator's leases were refused after a restart
+// (its lease memory died with it) and evaluated again. A lease shown by its
+// proof (FleetService checks it) is noted, and its result is taken once.
+TEST_F(TaskQueueTest, NotedLeaseOfAnEarlierProcessIsTakenOnce) {
+  queue_.Add(Tasks(1, 1, 1));  // rebuilt after a restart: queued, no holders
+  absl::Status why;
+  EXPECT_FALSE(queue_.Claim(7, 1, 1, /*failed_attempt=*/false, &why));
+  EXPECT_TRUE(absl::IsPermissionDenied(why)) << why;
+  queue_.NoteLease(7, 1, 1);
+  queue_.NoteLease(7, 1, 1);  // twice: nothing more
+  EXPECT_FALSE(queue_.Claim(8, 1, 1, false)) << "another worker";
+  EXPECT_FALSE(queue_.Claim(7, 1, 2, false)) << "another attempt";
+  std::optional<TaskInfo> info = queue_.Claim(7, 1, 1, false);
+  ASSERT_TRUE(info.has_value());
+  queue_.Complete({1});
+  EXPECT_FALSE(queue_.Claim(7, 1, 1, false)) << "taken once";
+  EXPECT_THAT(queue_.Lease(9, 10, kNoWait), IsEmpty());
+  queue_.NoteLease(7, 99, 1);  // an unknown task: nothing happens
+  EXPECT_EQ(queue_.counts().queued, 0u);
+}
+
 // Issue 11: any worker could store any finite score for any pending genome.
 TEST_F(TaskQueueTest, ScoreFromAWorkerNotHoldingTheLeaseIsRefused) {
   queue_.Add(Tasks(1, 1, 1));
