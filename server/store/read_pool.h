@@ -39,7 +39,7 @@ namespace skerry::store {
 class ReadPool {
  public:
   struct Options {
-    std::string vfs;  // the writer's VFS (fault tests), empty: the default
+    std::string vfs;  // SQLite VFS name; empty: the default
     int busy_timeout_ms = 5000;
     int max_idle = 4;
     // Page cache per connection, in KiB (SQLite's default is 2 MiB).

@@ -374,8 +374,10 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
   absl::Status s = store->conn_->Exec("PRAGMA synchronous=FULL");
   if (s.ok()) s = store->Migrate(*version);
   if (!s.ok()) return with_path(s);
+  // The readers use SQLite's default VFS even when the writer has another:
+  // Options::vfs is how the fault tests fail the writer's commit points, and
+  // it forwards to the default VFS, so both share the file's locks.
   ReadPool::Options read_options;
-  read_options.vfs = options.vfs;
   read_options.busy_timeout_ms = options.busy_timeout_ms;
   store->readers_ = std::make_unique<ReadPool>(path, read_options);
   return store;

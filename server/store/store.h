@@ -279,7 +279,7 @@ class Store {
   // (FailedPrecondition), as is a newer schema.
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path);
   struct Options {
-    std::string vfs;  // SQLite VFS name; empty: the default
+    std::string vfs;  // SQLite VFS name of the writer; empty: the default
     int busy_timeout_ms = 5000;
     // The caller made the empty file itself a moment ago (OwnerLock does,
     // to lock it): initialise it as if it had been absent.
@@ -342,7 +342,8 @@ class Store {
 
   // ---- Reads ----
   // ListRuns, GetRun, GetIslands, GetGeneration, GetGenome, GetStats,
-  // BestGenome, FailedGenomes, CountFailed and RunDigest run on the read
+  // BestGenome, FailedGenomes, CountFailed, RunDigest, GetGenomeMetrics,
+  // MetricMeans and ChampionValidationScores run on the read
   // pool's connections (read_pool.h), each in one snapshot of the newest
   // commit: they never take the writer's mutex, so a long digest does not
   // delay a commit, and a commit does not wait for them.
@@ -469,11 +470,13 @@ class Store {
 
   const std::string path_;
   sqlite3* const raw_;  // conn_'s, for Interrupt only
-  // Set once by Open, before the store is shared; the reads in "Reads"
-  // below run on it, never on conn_.
-  std::unique_ptr<ReadPool> readers_;
   absl::Mutex mu_;
   std::unique_ptr<Connection> conn_ ABSL_GUARDED_BY(mu_);
+  // Set once by Open, before the store is shared; the pooled reads under
+  // "Reads" run on it, never on conn_. Declared after conn_ so that it is
+  // closed first: the writer, closing last, checkpoints the WAL into the
+  // database file and removes it (a read-only connection cannot).
+  std::unique_ptr<ReadPool> readers_;
 };
 
 // DATA_LOSS naming the first object whose schema differs from a fresh

@@ -6,6 +6,7 @@
 // inside its snapshot while a commit runs, and the commit must finish before
 // the read is let go. Every wait is bounded.
 #include <atomic>
+#include <filesystem>
 #include <memory>
 #include <string>
 #include <thread>
@@ -163,6 +164,21 @@ TEST_F(StoreTest, EachReadSeesTheNewestCommit) {
     std::vector<ResultUpdate> one = Scores({genomes[round]});
     ASSERT_TRUE(store_->CommitResults(one).ok());
   }
+}
+
+// Regression: the read pool's connections outlived the writer, so the
+// writer did not close last and left the WAL beside the file (a copy of the
+// file alone then lacked the newest commits).
+TEST_F(StoreTest, ClosingTheStoreAfterReadsFoldsTheWalIntoTheFile) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord run = CreateRun(1, &genomes);
+  Evaluate(genomes, {1, 2, 3, 4});
+  ASSERT_TRUE(store_->RunDigest(run.id).ok());  // leaves an idle reader
+  ASSERT_TRUE(store_->GetRun(run.id).ok());
+  store_.reset();
+  const std::string wal = path() + "-wal";
+  EXPECT_FALSE(std::filesystem::exists(wal) &&
+               std::filesystem::file_size(wal) > 0);
 }
 
 // Rows written by the genome insert and the result update carry sums they
