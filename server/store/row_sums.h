@@ -7,8 +7,8 @@
 // generation_stats) carries `sum`: the first 8 bytes of a SHA-256 over every
 // other column of the row, written in the same statement (and so the same
 // transaction) as the row itself: by the statement, which computes it with
-// skerry_row_sum() (the genome inserts and result updates, schema version 9),
-// or else by triggers (schema version 6; since 9 they fire only when the
+// skerry_row_sum() (the genome inserts and result updates, schema version 10),
+// or else by triggers (schema version 6; since 10 they fire only when the
 // statement left the sum NULL or unchanged). Any reader can
 // recompute it with the SQL function skerry_row_sum(), registered on every
 // Connection (sqlite.cc), and compare.

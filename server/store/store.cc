@@ -13,6 +13,7 @@
 #include "common/status_macros.h"
 #include "server/store/access_schema.h"
 #include "server/store/row_sums.h"
+#include "server/store/series_store.h"
 
 namespace skerry::store {
 namespace {
@@ -151,10 +152,12 @@ CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
-// (row checksums, submit request ids) is built by SchemaV6().
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,      kSchemaV3,
-                                       kSchemaV4, kSchemaAccess,  nullptr,
-                                       kSchemaV7, kSchemaMetrics, nullptr};
+// (row checksums, submit request ids) is built by SchemaV6(); version 9
+// (seed series) by SchemaSeries() (series_store.h); version 10 (row sums
+// written by the hot statements) by SchemaV10().
+constexpr const char* kMigrations[] = {
+    kSchemaV1, kSchemaV2, kSchemaV3,      kSchemaV4, kSchemaAccess,
+    nullptr,   kSchemaV7, kSchemaMetrics, nullptr,   nullptr};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -176,7 +179,7 @@ constexpr SumTable kSumTables[] = {
 
 // The triggers that keep `sum` = skerry_row_sum(columns) on every insert and
 // update of `table` (row_sums.h), as version 6 made them: each rewrites the
-// row it fired for. Version 9 (SumTriggersV9) replaces them.
+// row it fired for. Version 10 (SchemaV10) replaces them.
 std::string SumTriggers(const char* table, const char* columns, const char* key,
                         const char* insert_when = "",
                         const char* update_when = "") {
@@ -207,7 +210,7 @@ std::string SchemaV6() {
   return sql;
 }
 
-// Version 9: the triggers write the sum only when the statement did not: an
+// Version 10: the triggers write the sum only when the statement did not: an
 // INSERT that leaves it NULL, an UPDATE that leaves it as it was. The hot
 // statements (a generation's genome inserts, a group commit's result updates)
 // compute it themselves, in the same statement, so each of those rows is
@@ -215,7 +218,7 @@ std::string SchemaV6() {
 // The guarantee is unchanged: every row's sum is checked on every read and
 // by `--check`, and a statement that sets a wrong sum makes its row read as
 // damaged, as a hand edit would.
-std::string SchemaV9() {
+std::string SchemaV10() {
   std::string sql;
   for (const SumTable& t : kSumTables) {
     absl::StrAppend(
@@ -229,7 +232,8 @@ std::string SchemaV9() {
 
 std::string MigrationSql(int from_version) {
   if (from_version == 5) return SchemaV6();
-  if (from_version == 8) return SchemaV9();
+  if (from_version == 8) return SchemaSeries();
+  if (from_version == 9) return SchemaV10();
   return kMigrations[from_version];
 }
 
@@ -506,7 +510,7 @@ absl::StatusOr<int> Store::SchemaVersion() {
 absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
   // The id is chosen here, as SQLite would (the largest rowid plus one; the
   // table has no AUTOINCREMENT), because the row's sum covers it and is
-  // computed in the INSERT itself (schema version 9, SchemaV9).
+  // computed in the INSERT itself (schema version 10, SchemaV10).
   int64_t next_id = 0;
   {
     SKERRY_ASSIGN_OR_RETURN(
@@ -552,6 +556,12 @@ absl::Status Store::CreateRun(RunRecord* run,
                               std::vector<GenomeRecord>* genomes) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_RETURN_IF_ERROR(CreateRunLocked(run, genomes));
+  return txn.Commit();
+}
+
+absl::Status Store::CreateRunLocked(RunRecord* run,
+                                    std::vector<GenomeRecord>* genomes) {
   {
     SKERRY_ASSIGN_OR_RETURN(
         auto ins,
@@ -591,8 +601,7 @@ absl::Status Store::CreateRun(RunRecord* run,
     }
   }
   for (GenomeRecord& g : *genomes) g.run_id = run->id;
-  SKERRY_RETURN_IF_ERROR(InsertGenomes(genomes));
-  return txn.Commit();
+  return InsertGenomes(genomes);
 }
 
 absl::Status Store::CommitResults(

@@ -1,6 +1,6 @@
 // Reads off the writer (server/store/read_pool.h), statements cached and
 // bindings checked (server/store/sqlite.h), and row sums written by the
-// statements themselves (schema version 9, server/store/row_sums.h).
+// statements themselves (schema version 10, server/store/row_sums.h).
 //
 // Concurrency is tested with a blocking hook, not a timer: a read is held
 // inside its snapshot while a commit runs, and the commit must finish before
@@ -199,7 +199,7 @@ TEST_F(StoreTest, SumsComputedByTheStatementsPassReadsAndCheck) {
   EXPECT_TRUE(report->ok()) << report->ToString();
 }
 
-// Since version 9 the triggers leave alone a statement that writes the sum
+// Since version 10 the triggers leave alone a statement that writes the sum
 // itself: a wrong one must still read as damage.
 TEST_F(StoreTest, AStatementThatWritesAWrongSumReadsAsDamaged) {
   std::vector<GenomeRecord> genomes;
@@ -226,13 +226,13 @@ TEST_F(StoreTest, AStatementThatWritesAWrongSumReadsAsDamaged) {
   EXPECT_FALSE(report->ok());
 }
 
-// A version-8 database (triggers that always rewrite the row) gets the
-// version-9 triggers, and its rows still verify.
-TEST_F(StoreTest, Version8DatabaseGetsTriggersThatSparePrecomputedSums) {
+// A version-9 database (triggers that always rewrite the row) gets the
+// version-10 triggers, and its rows still verify.
+TEST_F(StoreTest, Version9DatabaseGetsTriggersThatSparePrecomputedSums) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(1, &genomes);
   store_.reset();
-  std::string v8;
+  std::string v9;
   const struct {
     const char* table;
     const char* columns;
@@ -249,7 +249,7 @@ TEST_F(StoreTest, Version8DatabaseGetsTriggersThatSparePrecomputedSums) {
     const std::string set =
         absl::StrCat("UPDATE ", t.table, " SET sum = skerry_row_sum(",
                      t.columns, ") WHERE ", t.key, "; END;");
-    absl::StrAppend(&v8, "DROP TRIGGER ", t.table, "_sum_insert; DROP TRIGGER ",
+    absl::StrAppend(&v9, "DROP TRIGGER ", t.table, "_sum_insert; DROP TRIGGER ",
                     t.table, "_sum_update; CREATE TRIGGER ", t.table,
                     "_sum_insert AFTER INSERT ON ", t.table, " BEGIN ", set,
                     " CREATE TRIGGER ", t.table, "_sum_update AFTER UPDATE OF ",
@@ -260,12 +260,12 @@ TEST_F(StoreTest, Version8DatabaseGetsTriggersThatSparePrecomputedSums) {
     ASSERT_TRUE(conn.ok()) << conn.status();
     ASSERT_TRUE(
         (*conn)
-            ->Exec(absl::StrCat(v8, "UPDATE schema_version SET version = 8;"))
+            ->Exec(absl::StrCat(v9, "UPDATE schema_version SET version = 9;"))
             .ok());
   }
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  EXPECT_EQ(*(*again)->SchemaVersion(), 9);
+  EXPECT_EQ(*(*again)->SchemaVersion(), 10);
   EXPECT_TRUE((*again)->QuickCheck().ok());
   EXPECT_EQ(skerry::testing::RawQuery(
                 path(),
