@@ -77,7 +77,7 @@ absl::Status BackupDatabase(const std::string& source, int64_t run_id,
         // The run's audit trail goes with it; tokens and principals do not.
         "INSERT INTO dst.audit SELECT * FROM main.audit WHERE run_id = ?1"}) {
     SKERRY_ASSIGN_OR_RETURN(Statement st, conn->Prepare(sql));
-    st.BindInt(1, run_id);
+    if (st.ParameterCount() > 0) st.BindInt(1, run_id);  // not workers'
     absl::Status s = st.Run();
     if (!s.ok()) {
       conn->Exec("ROLLBACK").IgnoreError();

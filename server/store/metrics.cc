@@ -24,10 +24,11 @@ absl::Status Store::InsertMetricsLocked(const ResultUpdate& r) {
 
 absl::StatusOr<std::map<std::string, double>> Store::GetGenomeMetrics(
     int64_t genome_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare("SELECT name, value FROM genome_metrics WHERE "
-                             "genome_id = ? ORDER BY name"));
+      auto s,
+      reader->PrepareCached("SELECT name, value FROM genome_metrics WHERE "
+                            "genome_id = ? ORDER BY name"));
   s.BindInt(1, genome_id);
   std::map<std::string, double> out;
   while (true) {
@@ -41,13 +42,13 @@ absl::StatusOr<std::map<std::string, double>> Store::GetGenomeMetrics(
 absl::StatusOr<
     std::map<std::pair<uint32_t, uint32_t>, std::map<std::string, double>>>
 Store::MetricMeans(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s,
-      conn_->Prepare("SELECT g.island, g.generation, m.name, avg(m.value) "
-                     "FROM genome_metrics m JOIN genomes g ON g.id = "
-                     "m.genome_id WHERE m.run_id = ? GROUP BY g.island, "
-                     "g.generation, m.name"));
+      auto s, reader->PrepareCached(
+                  "SELECT g.island, g.generation, m.name, avg(m.value) "
+                  "FROM genome_metrics m JOIN genomes g ON g.id = "
+                  "m.genome_id WHERE m.run_id = ? GROUP BY g.island, "
+                  "g.generation, m.name"));
   s.BindInt(1, run_id);
   std::map<std::pair<uint32_t, uint32_t>, std::map<std::string, double>> out;
   while (true) {

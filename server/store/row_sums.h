@@ -4,11 +4,15 @@
 // b-trees, indexes), not what the rows say: a byte flipped inside a genome's
 // genes or score leaves a well-formed file that answers wrongly. So every row
 // of the tables a run's answers and digest depend on (runs, islands, genomes,
-// generation_stats; strategy_states from version 10) carries `sum`: the first 8
-// bytes of a SHA-256 over every other column of the row, written by triggers in
-// the same statement (and so the same transaction) as the row itself (schema
-// version 6). Any reader can recompute it with the SQL function
-// skerry_row_sum(), registered on every Connection (sqlite.cc), and compare.
+// generation_stats; strategy_states from version 10) carries `sum`: the first
+// 8 bytes of a SHA-256 over every other column of the row, written in the same
+// statement (and so the same transaction) as the row itself: by the statement,
+// which computes it with skerry_row_sum() (the genome inserts and result
+// updates, schema version 12), or else by triggers (schema version 6; since 12
+// those of runs, islands, genomes and generation_stats fire only when the
+// statement left the sum NULL or unchanged). Any reader can recompute it with
+// the SQL function skerry_row_sum(), registered on every Connection
+// (sqlite.cc), and compare.
 //
 // Invariant: for every row of those tables, sum = skerry_row_sum(<columns in
 // the order of the k*SumColumns lists below>). The store checks it on every

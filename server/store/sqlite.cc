@@ -50,19 +50,39 @@ absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
 
 Statement& Statement::operator=(Statement&& other) noexcept {
   if (this != &other) {
-    if (stmt_ != nullptr) sqlite3_finalize(stmt_);
+    Release();
     db_ = other.db_;
     stmt_ = other.stmt_;
+    lent_flag_ = other.lent_flag_;
+    bind_rc_ = other.bind_rc_;
+    bind_index_ = other.bind_index_;
     other.stmt_ = nullptr;
+    other.lent_flag_ = nullptr;
   }
   return *this;
 }
 
-Statement::~Statement() {
-  if (stmt_ != nullptr) sqlite3_finalize(stmt_);
+Statement::~Statement() { Release(); }
+
+void Statement::Release() {
+  if (stmt_ == nullptr) return;
+  if (lent_flag_ != nullptr) {
+    sqlite3_reset(stmt_);
+    sqlite3_clear_bindings(stmt_);
+    *lent_flag_ = false;
+  } else {
+    sqlite3_finalize(stmt_);
+  }
+  stmt_ = nullptr;
+  lent_flag_ = nullptr;
 }
 
 absl::StatusOr<bool> Statement::Step() {
+  if (bind_rc_ != SQLITE_OK) {
+    return SqliteStatus(bind_rc_, db_,
+                        absl::StrCat("binding parameter ", bind_index_, " of ",
+                                     sqlite3_sql(stmt_)));
+  }
   const int rc = sqlite3_step(stmt_);
   if (rc == SQLITE_ROW) return true;
   if (rc == SQLITE_DONE) return false;
@@ -81,6 +101,8 @@ absl::Status Statement::Run() {
 void Statement::Reset() {
   sqlite3_reset(stmt_);
   sqlite3_clear_bindings(stmt_);
+  bind_rc_ = SQLITE_OK;
+  bind_index_ = 0;
 }
 
 std::string Statement::ColumnText(int i) const {
@@ -118,7 +140,10 @@ absl::StatusOr<std::unique_ptr<Connection>> Connection::Open(
   return std::unique_ptr<Connection>(new Connection(db));
 }
 
-Connection::~Connection() { sqlite3_close_v2(db_); }
+Connection::~Connection() {
+  for (auto& [sql, entry] : cache_) sqlite3_finalize(entry->stmt);
+  sqlite3_close_v2(db_);
+}
 
 absl::Status Connection::Exec(absl::string_view sql) {
   const std::string s(sql);

@@ -10,6 +10,17 @@
 //   retry) SQLITE_CONSTRAINT               -> FailedPrecondition SQLITE_CORRUPT
 //   / SQLITE_NOTADB  -> DataLoss anything else                   -> Internal
 //
+// Every sqlite3_bind_* result is checked: the first failed binding (say
+// SQLITE_TOOBIG or SQLITE_RANGE) is kept and returned by the next Step() or
+// Run(), which then runs nothing, so a statement never runs with a parameter
+// silently left NULL.
+//
+// Connection::PrepareCached keeps statements prepared once per connection
+// (sqlite3_prepare_v3 with SQLITE_PREPARE_PERSISTENT; statement_cache.cc) and
+// lends them out: the Statement it returns resets and clears the cached one
+// when it goes away instead of finalising it, so its read transaction ends
+// with it.
+//
 // Thread safety: none. The owner (Store) serialises access with its own mutex.
 #ifndef SKERRY_SERVER_STORE_SQLITE_H_
 #define SKERRY_SERVER_STORE_SQLITE_H_
@@ -17,6 +28,7 @@
 #include <sqlite3.h>
 
 #include <cstdint>
+#include <map>
 #include <memory>
 #include <string>
 
@@ -39,17 +51,19 @@ class Statement {
   Statement& operator=(const Statement&) = delete;
   ~Statement();
 
-  // Binding is 1-based, as in SQLite.
-  void BindInt(int i, int64_t v) { sqlite3_bind_int64(stmt_, i, v); }
-  void BindDouble(int i, double v) { sqlite3_bind_double(stmt_, i, v); }
-  void BindNull(int i) { sqlite3_bind_null(stmt_, i); }
+  // Binding is 1-based, as in SQLite. A failure is kept for Step()/Run().
+  void BindInt(int i, int64_t v) { Check(i, sqlite3_bind_int64(stmt_, i, v)); }
+  void BindDouble(int i, double v) {
+    Check(i, sqlite3_bind_double(stmt_, i, v));
+  }
+  void BindNull(int i) { Check(i, sqlite3_bind_null(stmt_, i)); }
   void BindText(int i, absl::string_view v) {
-    sqlite3_bind_text(stmt_, i, v.data(), static_cast<int>(v.size()),
-                      SQLITE_TRANSIENT);
+    Check(i, sqlite3_bind_text64(stmt_, i, v.data(), v.size(), SQLITE_TRANSIENT,
+                                 SQLITE_UTF8));
   }
   void BindBlob(int i, absl::string_view v) {
-    sqlite3_bind_blob(stmt_, i, v.data(), static_cast<int>(v.size()),
-                      SQLITE_TRANSIENT);
+    Check(i,
+          sqlite3_bind_blob64(stmt_, i, v.data(), v.size(), SQLITE_TRANSIENT));
   }
   // Binds NULL when v == 0 (used for optional foreign keys).
   void BindIdOrNull(int i, int64_t v) {
@@ -60,14 +74,16 @@ class Statement {
     }
   }
 
-  // Steps once. Returns true when a row is ready, false when done.
+  // Steps once. Returns true when a row is ready, false when done; the kept
+  // binding failure, if any, without stepping.
   absl::StatusOr<bool> Step();
   // Steps to completion, expecting no rows.
   absl::Status Run();
-  // Ready for reuse with new bindings.
+  // Ready for reuse with new bindings (forgets a binding failure).
   void Reset();
 
   int ColumnCount() const { return sqlite3_column_count(stmt_); }
+  int ParameterCount() const { return sqlite3_bind_parameter_count(stmt_); }
   int64_t ColumnInt(int i) const { return sqlite3_column_int64(stmt_, i); }
   double ColumnDouble(int i) const { return sqlite3_column_double(stmt_, i); }
   bool ColumnIsNull(int i) const {
@@ -77,8 +93,22 @@ class Statement {
   std::string ColumnBlob(int i) const;
 
  private:
+  friend class Connection;
+  void Check(int i, int rc) {
+    if (rc != SQLITE_OK && bind_rc_ == SQLITE_OK) {
+      bind_rc_ = rc;
+      bind_index_ = i;
+    }
+  }
+  // Finalises an owned statement; resets and hands back a lent one.
+  void Release();
+
   sqlite3* db_ = nullptr;
   sqlite3_stmt* stmt_ = nullptr;
+  // Set for a statement lent by PrepareCached: the cache's in-use flag.
+  bool* lent_flag_ = nullptr;
+  int bind_rc_ = SQLITE_OK;
+  int bind_index_ = 0;
 };
 
 class Connection {
@@ -91,12 +121,23 @@ class Connection {
   // Runs one or more statements without results.
   absl::Status Exec(absl::string_view sql);
   absl::StatusOr<Statement> Prepare(absl::string_view sql);
+  // The statement for `sql` from this connection's cache, prepared on first
+  // use (statement_cache.cc). While one is lent, the same text asked again
+  // (a nested use) gets a fresh, uncached statement.
+  absl::StatusOr<Statement> PrepareCached(absl::string_view sql);
   int64_t LastInsertId() const { return sqlite3_last_insert_rowid(db_); }
   int Changes() const { return sqlite3_changes(db_); }
 
  private:
+  struct CachedStatement {
+    sqlite3_stmt* stmt = nullptr;
+    bool lent = false;
+  };
   explicit Connection(sqlite3* db) : db_(db) {}
   sqlite3* db_;
+  // Finalised before the connection closes; entries never move (unique_ptr),
+  // so a lent Statement's flag stays valid while the connection lives.
+  std::map<std::string, std::unique_ptr<CachedStatement>, std::less<>> cache_;
 };
 
 // BEGIN IMMEDIATE ... COMMIT, rolled back on destruction unless committed.

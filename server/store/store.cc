@@ -163,25 +163,44 @@ CREATE TABLE fleet_keys (
 // Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
 // (row checksums, submit request ids) is built by SchemaV6(); version 9
 // (seed series) by SchemaSeries() (series_store.h), version 10 (strategy
-// states, with their checksums) by SchemaV10(); version 11 is the fleet key.
+// states, with their checksums) by SchemaV10(); version 11 is the fleet key;
+// version 12 (row sums written by the hot statements) by SchemaV12().
 constexpr const char* kMigrations[] = {
     kSchemaV1, kSchemaV2, kSchemaV3,      kSchemaV4, kSchemaAccess,
     nullptr,   kSchemaV7, kSchemaMetrics, nullptr,   nullptr,
-    kSchemaFleetKey};
+    kSchemaFleetKey, nullptr};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
+// The tables with a row checksum (row_sums.h): name, hashed columns, and the
+// condition that matches the row a trigger fires for.
+struct SumTable {
+  const char* table;
+  const char* columns;
+  const char* key;
+};
+constexpr SumTable kSumTables[] = {
+    {"runs", kRunSumColumns, "id = NEW.id"},
+    {"islands", kIslandSumColumns, "run_id = NEW.run_id AND idx = NEW.idx"},
+    {"genomes", kGenomeSumColumns, "id = NEW.id"},
+    {"generation_stats", kStatsSumColumns,
+     "run_id = NEW.run_id AND island = NEW.island AND "
+     "generation = NEW.generation"},
+};
+
 // The triggers that keep `sum` = skerry_row_sum(columns) on every insert and
-// update of `table` (row_sums.h). `key` matches the row just written.
-std::string SumTriggers(const char* table, const char* columns,
-                        const char* key) {
+// update of `table` (row_sums.h), as version 6 made them: each rewrites the
+// row it fired for. Version 12 (SchemaV12) replaces them.
+std::string SumTriggers(const char* table, const char* columns, const char* key,
+                        const char* insert_when = "",
+                        const char* update_when = "") {
   const std::string set =
       absl::StrCat("UPDATE ", table, " SET sum = skerry_row_sum(", columns,
                    ") WHERE ", key, "; END;\n");
   return absl::StrCat("CREATE TRIGGER ", table, "_sum_insert AFTER INSERT ON ",
-                      table, " BEGIN ", set, "CREATE TRIGGER ", table,
-                      "_sum_update AFTER UPDATE OF ", columns, " ON ", table,
-                      " BEGIN ", set);
+                      table, insert_when, " BEGIN ", set, "CREATE TRIGGER ",
+                      table, "_sum_update AFTER UPDATE OF ", columns, " ON ",
+                      table, update_when, " BEGIN ", set);
 }
 
 // Version 6: a checksum on every row of runs, islands, genomes and
@@ -193,19 +212,7 @@ std::string SchemaV6() {
       "ALTER TABLE runs ADD COLUMN request_id TEXT;\n"
       "CREATE UNIQUE INDEX runs_request ON runs (owner, request_id) "
       "WHERE request_id IS NOT NULL;\n";
-  const struct {
-    const char* table;
-    const char* columns;
-    const char* key;
-  } tables[] = {
-      {"runs", kRunSumColumns, "id = NEW.id"},
-      {"islands", kIslandSumColumns, "run_id = NEW.run_id AND idx = NEW.idx"},
-      {"genomes", kGenomeSumColumns, "id = NEW.id"},
-      {"generation_stats", kStatsSumColumns,
-       "run_id = NEW.run_id AND island = NEW.island AND "
-       "generation = NEW.generation"},
-  };
-  for (const auto& t : tables) {
+  for (const SumTable& t : kSumTables) {
     absl::StrAppend(&sql, "ALTER TABLE ", t.table,
                     " ADD COLUMN sum INTEGER;\nUPDATE ", t.table,
                     " SET sum = skerry_row_sum(", t.columns, ");\n",
@@ -233,10 +240,31 @@ std::string SchemaV10() {
       "  SELECT run_id, idx, generation, X'' FROM islands;\n");
 }
 
+// Version 12: the triggers write the sum only when the statement did not: an
+// INSERT that leaves it NULL, an UPDATE that leaves it as it was. The hot
+// statements (a generation's genome inserts, a group commit's result updates)
+// compute it themselves, in the same statement, so each of those rows is
+// written once instead of twice; every other writer is covered as before.
+// The guarantee is unchanged: every row's sum is checked on every read and
+// by `--check`, and a statement that sets a wrong sum makes its row read as
+// damaged, as a hand edit would.
+std::string SchemaV12() {
+  std::string sql;
+  for (const SumTable& t : kSumTables) {
+    absl::StrAppend(
+        &sql, "DROP TRIGGER ", t.table, "_sum_insert;\nDROP TRIGGER ", t.table,
+        "_sum_update;\n",
+        SumTriggers(t.table, t.columns, t.key, " WHEN NEW.sum IS NULL",
+                    " WHEN NEW.sum IS OLD.sum"));
+  }
+  return sql;
+}
+
 std::string MigrationSql(int from_version) {
   if (from_version == 5) return SchemaV6();
   if (from_version == 8) return SchemaSeries();
   if (from_version == 9) return SchemaV10();
+  if (from_version == 11) return SchemaV12();
   return kMigrations[from_version];
 }
 
@@ -421,6 +449,12 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
   absl::Status s = store->conn_->Exec("PRAGMA synchronous=FULL");
   if (s.ok()) s = store->Migrate(*version);
   if (!s.ok()) return with_path(s);
+  // The readers use SQLite's default VFS even when the writer has another:
+  // Options::vfs is how the fault tests fail the writer's commit points, and
+  // it forwards to the default VFS, so both share the file's locks.
+  ReadPool::Options read_options;
+  read_options.busy_timeout_ms = options.busy_timeout_ms;
+  store->readers_ = std::make_unique<ReadPool>(path, read_options);
   return store;
 }
 
@@ -545,32 +579,46 @@ absl::StatusOr<int> Store::SchemaVersion() {
 }
 
 absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
+  // The id is chosen here, as SQLite would (the largest rowid plus one; the
+  // table has no AUTOINCREMENT), because the row's sum covers it and is
+  // computed in the INSERT itself (schema version 12, SchemaV12).
+  int64_t next_id = 0;
+  {
+    SKERRY_ASSIGN_OR_RETURN(
+        auto top,
+        conn_->PrepareCached("SELECT coalesce(max(id), 0) FROM genomes"));
+    SKERRY_ASSIGN_OR_RETURN(bool row, top.Step());
+    if (row) next_id = top.ColumnInt(0);
+  }
   SKERRY_ASSIGN_OR_RETURN(
       auto ins,
-      conn_->Prepare(
-          "INSERT INTO genomes (run_id, island, generation, slot, origin, "
+      conn_->PrepareCached(
+          "INSERT INTO genomes (id, run_id, island, generation, slot, origin, "
           "parent_a, parent_b, genes, score, eval_state, attempts, error, "
-          "eval_seconds) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?)"));
+          "eval_seconds, sum) VALUES (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,"
+          "?13,?14,skerry_row_sum(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,"
+          "?14))"));
   for (GenomeRecord& g : *genomes) {
-    ins.BindInt(1, g.run_id);
-    ins.BindInt(2, g.island);
-    ins.BindInt(3, g.generation);
-    ins.BindInt(4, g.slot);
-    ins.BindInt(5, g.origin);
-    ins.BindIdOrNull(6, g.parent_a);
-    ins.BindIdOrNull(7, g.parent_b);
-    ins.BindBlob(8, PackGenes(g.genes));
+    ins.BindInt(1, ++next_id);
+    ins.BindInt(2, g.run_id);
+    ins.BindInt(3, g.island);
+    ins.BindInt(4, g.generation);
+    ins.BindInt(5, g.slot);
+    ins.BindInt(6, g.origin);
+    ins.BindIdOrNull(7, g.parent_a);
+    ins.BindIdOrNull(8, g.parent_b);
+    ins.BindBlob(9, PackGenes(g.genes));
     if (g.state == skerry::v1::PENDING) {
-      ins.BindNull(9);
+      ins.BindNull(10);
     } else {
-      ins.BindDouble(9, g.score);
+      ins.BindDouble(10, g.score);
     }
-    ins.BindInt(10, g.state);
-    ins.BindInt(11, g.attempts);
-    ins.BindText(12, g.error);
-    ins.BindDouble(13, g.eval_seconds);
+    ins.BindInt(11, g.state);
+    ins.BindInt(12, g.attempts);
+    ins.BindText(13, g.error);
+    ins.BindDouble(14, g.eval_seconds);
     SKERRY_RETURN_IF_ERROR(ins.Run());
-    g.id = conn_->LastInsertId();
+    g.id = next_id;
   }
   return absl::OkStatus();
 }
@@ -646,9 +694,12 @@ absl::Status Store::CommitResults(
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   SKERRY_ASSIGN_OR_RETURN(
-      auto upd, conn_->Prepare("UPDATE genomes SET eval_state = ?, score = ?, "
-                               "attempts = ?, error = ?, eval_seconds = ? "
-                               "WHERE id = ? AND eval_state = 1"));
+      auto upd,
+      conn_->PrepareCached(
+          "UPDATE genomes SET eval_state = ?1, score = ?2, attempts = ?3, "
+          "error = ?4, eval_seconds = ?5, sum = skerry_row_sum(id, run_id, "
+          "island, generation, slot, origin, parent_a, parent_b, genes, ?2, "
+          "?1, ?3, ?4, ?5) WHERE id = ?6 AND eval_state = 1"));
   std::map<int64_t, int64_t> finished_per_run;
   for (const ResultUpdate& r : results) {
     upd.BindInt(1, r.state);
@@ -854,7 +905,7 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
     st.BindInt(1, run_id);
     SKERRY_RETURN_IF_ERROR(st.Run());
   }
-  SKERRY_ASSIGN_OR_RETURN(auto best, BestGenomeLocked(run_id));
+  SKERRY_ASSIGN_OR_RETURN(auto best, BestGenomeOn(conn_.get(), run_id));
   {
     SKERRY_ASSIGN_OR_RETURN(
         auto upd,
@@ -913,10 +964,10 @@ absl::Status Store::TouchWorkers(absl::Span<const int64_t> ids,
 }
 
 absl::StatusOr<std::vector<RunRecord>> Store::ListRuns() {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", RunColumns(),
-                                          " FROM runs ORDER BY id")));
+      auto s, reader->PrepareCached(absl::StrCat("SELECT ", RunColumns(),
+                                                 " FROM runs ORDER BY id")));
   std::vector<RunRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
@@ -940,10 +991,10 @@ absl::StatusOr<std::optional<int64_t>> Store::FindRunByRequest(
 }
 
 absl::StatusOr<RunRecord> Store::GetRun(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", RunColumns(),
-                                          " FROM runs WHERE id = ?")));
+      auto s, reader->PrepareCached(absl::StrCat("SELECT ", RunColumns(),
+                                                 " FROM runs WHERE id = ?")));
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto row, s.Step());
   if (!row)
@@ -968,10 +1019,10 @@ absl::Status Store::VerifyActiveRun(int64_t run_id) {
 }
 
 absl::StatusOr<std::vector<IslandRecord>> Store::GetIslands(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      reader->PrepareCached(absl::StrCat(
           "SELECT idx, generation, done, ", SumMatches(kIslandSumColumns),
           " FROM islands WHERE run_id = ? ORDER BY idx")));
   s.BindInt(1, run_id);
@@ -1028,10 +1079,10 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Statement* s) {
 
 absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
     int64_t run_id, uint32_t island, uint32_t generation) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      reader->PrepareCached(absl::StrCat(
           "SELECT ", GenomeColumns(),
           " FROM genomes WHERE run_id = ? AND island = ? AND generation = ? "
           "ORDER BY slot")));
@@ -1042,10 +1093,10 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
 }
 
 absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", GenomeColumns(),
-                                          " FROM genomes WHERE id = ?")));
+      auto s, reader->PrepareCached(absl::StrCat(
+                  "SELECT ", GenomeColumns(), " FROM genomes WHERE id = ?")));
   s.BindInt(1, genome_id);
   SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
   if (rows.empty()) {
@@ -1057,9 +1108,9 @@ absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
 
 absl::StatusOr<std::vector<StatsRecord>> Store::GetStats(
     int64_t run_id, std::optional<uint32_t> island) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat(
+      auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT island, generation, best, mean, worst, "
                   "diversity, evaluations, failed, eval_seconds, "
                   "completed_ms, ",
@@ -1094,10 +1145,10 @@ absl::StatusOr<std::vector<StatsRecord>> Store::GetStats(
   return out;
 }
 
-absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeLocked(
-    int64_t run_id) {
+absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeOn(
+    Connection* conn, int64_t run_id) {
   SKERRY_ASSIGN_OR_RETURN(auto run_s,
-                          conn_->Prepare("SELECT spec FROM runs WHERE id = ?"));
+                          conn->Prepare("SELECT spec FROM runs WHERE id = ?"));
   run_s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(auto run_row, run_s.Step());
   if (!run_row)
@@ -1111,7 +1162,7 @@ absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeLocked(
   const bool maximize = spec.objective() == skerry::v1::MAXIMIZE;
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      conn->Prepare(absl::StrCat(
           "SELECT ", GenomeColumns(),
           " FROM genomes WHERE run_id = ? AND eval_state = 2 ORDER BY score ",
           maximize ? "DESC" : "ASC", ", generation, island, slot LIMIT 1")));
@@ -1122,8 +1173,8 @@ absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeLocked(
 }
 
 absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenome(int64_t run_id) {
-  absl::MutexLock l(&mu_);
-  return BestGenomeLocked(run_id);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
+  return BestGenomeOn(reader.get(), run_id);
 }
 
 absl::StatusOr<int> Store::CountWorkersSeenSince(int64_t since_ms) {
@@ -1138,9 +1189,9 @@ absl::StatusOr<int> Store::CountWorkersSeenSince(int64_t since_ms) {
 
 absl::StatusOr<std::vector<GenomeRecord>> Store::FailedGenomes(int64_t run_id,
                                                                int limit) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat(
+      auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT ", GenomeColumns(),
                   " FROM genomes WHERE run_id = ? AND eval_state = 3 "
                   "ORDER BY id DESC LIMIT ?")));
@@ -1150,10 +1201,11 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::FailedGenomes(int64_t run_id,
 }
 
 absl::StatusOr<uint64_t> Store::CountFailed(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare("SELECT count(*) FROM genomes WHERE run_id = ? "
-                             "AND eval_state = 3"));
+      auto s,
+      reader->PrepareCached("SELECT count(*) FROM genomes WHERE run_id = ? "
+                            "AND eval_state = 3"));
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
   return row ? static_cast<uint64_t>(s.ColumnInt(0)) : 0;
@@ -1171,10 +1223,10 @@ absl::StatusOr<Store::Digest> Store::RunDigest(int64_t run_id) {
 }
 
 absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      reader->PrepareCached(absl::StrCat(
           "SELECT g.island, g.generation, g.slot, g.origin, pa.island, "
           "pa.generation, pa.slot, pb.island, pb.generation, pb.slot, g.genes, "
           "g.eval_state, g.score, g.ok, g.id FROM (SELECT *, ",

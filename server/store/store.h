@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 9)
+// ## Schema (version 12)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -46,6 +46,10 @@
 //        of worker secrets and lease proofs (server/auth/fleet_seal.h); a
 //        copy of the database carries it, so a restored coordinator still
 //        knows its workers
+// Version 12 changes only the checksum triggers of runs, islands, genomes
+// and generation_stats: they write the sum when the statement did not
+// (store.cc, SchemaV12), so the genome inserts and result updates that
+// compute it themselves write each row once.
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
 // validations per run and pending validations (version 4); tokens per
@@ -95,8 +99,9 @@
 //   FinishAudit        the outcome of that change
 //
 // ## Pragmas
-//   journal_mode=WAL   readers never block the writer, and one writer commit
-//                      is one append to the log
+//   journal_mode=WAL   readers (the read pool's own connections) never block
+//                      the writer, and one writer commit is one append to
+//                      the log
 //   synchronous=FULL   the WAL is synced at every commit: an acknowledged
 //                      result survives power loss, not only a process crash.
 //                      Group commit makes this cheap per result.
@@ -114,8 +119,9 @@
 // A database written by a newer schema than kSchemaVersion is refused, naming
 // both versions; an older one is migrated forward in one transaction.
 //
-// Thread safety: every method may be called from any thread; calls are
-// serialised by an internal mutex.
+// Thread safety: every method may be called from any thread. Writes (and the
+// reads not listed under "Reads" as pooled) are serialised by an internal
+// mutex on the one writer connection; pooled reads run beside them.
 #ifndef SKERRY_SERVER_STORE_STORE_H_
 #define SKERRY_SERVER_STORE_STORE_H_
 
@@ -133,6 +139,7 @@
 #include "absl/synchronization/mutex.h"
 #include "absl/types/span.h"
 #include "server/store/access_records.h"
+#include "server/store/read_pool.h"
 #include "server/store/series_records.h"
 #include "server/store/sqlite.h"
 #include "skerry/v1/genome.pb.h"
@@ -302,7 +309,7 @@ inline constexpr const char* kEmptyFileMessage =
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 11;
+  static constexpr int kSchemaVersion = 12;
 
   // Opens the database at `path`, applies the pragmas and migrates an older
   // schema. Only a file that does not exist is created (and initialised); an
@@ -310,7 +317,7 @@ class Store {
   // (FailedPrecondition), as is a newer schema.
   static absl::StatusOr<std::unique_ptr<Store>> Open(const std::string& path);
   struct Options {
-    std::string vfs;  // SQLite VFS name; empty: the default
+    std::string vfs;  // SQLite VFS name of the writer; empty: the default
     int busy_timeout_ms = 5000;
     // The caller made the empty file itself a moment ago (OwnerLock does,
     // to lock it): initialise it as if it had been absent.
@@ -333,7 +340,14 @@ class Store {
   // Makes the statement running now, if any, fail soon (sqlite3_interrupt):
   // its transaction is rolled back. For a bounded shutdown; any thread, no
   // lock taken.
-  void Interrupt() { sqlite3_interrupt(raw_); }
+  void Interrupt() {
+    sqlite3_interrupt(raw_);
+    readers_->Interrupt();
+  }
+
+  // The read-only connections the reads run on (read_pool.h); tests hold a
+  // read open across a commit through it.
+  ReadPool* readers() { return readers_.get(); }
 
   // SQLite's quick_check (structure, no index contents), and the schema
   // (tables, indexes, triggers) compared with this version's: DATA_LOSS
@@ -376,6 +390,12 @@ class Store {
   absl::StatusOr<std::string> FleetKey();
 
   // ---- Reads ----
+  // ListRuns, GetRun, GetIslands, GetGeneration, GetGenome, GetStats,
+  // BestGenome, FailedGenomes, CountFailed, RunDigest, GetGenomeMetrics,
+  // MetricMeans and ChampionValidationScores run on the read
+  // pool's connections (read_pool.h), each in one snapshot of the newest
+  // commit: they never take the writer's mutex, so a long digest does not
+  // delay a commit, and a commit does not wait for them.
   // Every run; a damaged run's record comes with `damage` set.
   absl::StatusOr<std::vector<RunRecord>> ListRuns();
   // Reads every row of the run the engine keeps in memory (the run, its
@@ -550,10 +570,13 @@ class Store {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status InsertStats(const StatsRecord& stats)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  absl::StatusOr<std::optional<GenomeRecord>> BestGenomeLocked(int64_t run_id)
-      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  absl::StatusOr<std::vector<GenomeRecord>> QueryGenomes(Statement* stmt)
-      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // On the writer (under mu_) or a reader's lease.
+  static absl::StatusOr<std::optional<GenomeRecord>> BestGenomeOn(
+      Connection* conn, int64_t run_id);
+  static absl::StatusOr<std::vector<GenomeRecord>> QueryGenomes(
+      Statement* stmt);
+  // A read transaction on a connection of the read pool (read_pool.h).
+  absl::StatusOr<ReadPool::Lease> Reader() { return readers_->Acquire(); }
   absl::StatusOr<ValidationRecord> RequestValidationLocked(
       const ValidationRequest& request) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status InsertMetricsLocked(const ResultUpdate& r)
@@ -573,6 +596,11 @@ class Store {
   sqlite3* const raw_;  // conn_'s, for Interrupt only
   absl::Mutex mu_;
   std::unique_ptr<Connection> conn_ ABSL_GUARDED_BY(mu_);
+  // Set once by Open, before the store is shared; the pooled reads under
+  // "Reads" run on it, never on conn_. Declared after conn_ so that it is
+  // closed first: the writer, closing last, checkpoints the WAL into the
+  // database file and removes it (a read-only connection cannot).
+  std::unique_ptr<ReadPool> readers_;
 };
 
 // DATA_LOSS naming the first object whose schema differs from a fresh

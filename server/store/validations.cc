@@ -193,9 +193,9 @@ absl::StatusOr<std::optional<ValidationRecord>> Store::GetValidationLocked(
 
 absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>>
 Store::ChampionValidationScores(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat(
+      auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT g.island, g.generation, v.score", kValidationFrom,
                   " WHERE v.run_id = ? AND v.reason = ? AND v.state = ?")));
   s.BindInt(1, run_id);

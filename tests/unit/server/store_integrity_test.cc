@@ -140,7 +140,8 @@ TEST_F(IntegrityTest, BackupOfADamagedRunIsRefusedNamingTheDamage) {
 TEST_F(IntegrityTest, BackupOfAnUndamagedRunPassesCheck) {
   const int64_t run = MakeRunAndClose();
   const std::string copy = dir_.File("copy.db");
-  ASSERT_TRUE(BackupDatabase(path(), run, copy).ok());
+  absl::Status backup = BackupDatabase(path(), run, copy);
+  ASSERT_TRUE(backup.ok()) << backup;
   absl::StatusOr<CheckReport> report = CheckDatabase(copy);
   ASSERT_TRUE(report.ok()) << report.status();
   EXPECT_TRUE(report->ok()) << report->ToString();

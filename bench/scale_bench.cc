@@ -1,0 +1,231 @@
+#include "bench/scale_bench.h"
+
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <atomic>
+#include <cstdio>
+#include <fstream>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "absl/time/clock.h"
+#include "bench/bench_util.h"
+#include "common/clock.h"
+#include "common/random.h"
+#include "google/protobuf/message_lite.h"
+#include "grpcpp/grpcpp.h"
+#include "grpcpp/support/client_interceptor.h"
+#include "skerry/v1/fleet.grpc.pb.h"
+#include "skerry/v1/runs.grpc.pb.h"
+#include "worker/worker.h"
+
+namespace skerry::bench {
+namespace {
+
+// "zero" after a fixed sleep: an evaluation-bound fleet, as with a real
+// simulator, without the sleep taking a CPU from the coordinator.
+class SleepyZero final : public Evaluator {
+ public:
+  explicit SleepyZero(double ms) : busy_(absl::Microseconds(ms * 1000)) {}
+  absl::StatusOr<double> Evaluate(absl::Span<const double> genes,
+                                  uint64_t) override {
+    if (busy_ > absl::ZeroDuration()) absl::SleepFor(busy_);
+    return genes.empty() ? 0.0 : 0.0 * genes[0];
+  }
+
+ private:
+  absl::Duration busy_;
+};
+
+// Counts the protobuf payload of every message a worker sends and receives
+// (not HTTP/2 framing or headers): the bytes that grow with the genomes.
+struct WireCount {
+  std::atomic<uint64_t> sent{0};
+  std::atomic<uint64_t> received{0};
+};
+
+class CountingInterceptor final : public grpc::experimental::Interceptor {
+ public:
+  explicit CountingInterceptor(WireCount* count) : count_(count) {}
+  void Intercept(grpc::experimental::InterceptorBatchMethods* m) override {
+    using grpc::experimental::InterceptionHookPoints;
+    if (m->QueryInterceptionHookPoint(
+            InterceptionHookPoints::PRE_SEND_MESSAGE)) {
+      const void* msg = m->GetSendMessage();
+      if (msg != nullptr) {
+        count_->sent += static_cast<const google::protobuf::MessageLite*>(msg)
+                            ->ByteSizeLong();
+      }
+    }
+    if (m->QueryInterceptionHookPoint(
+            InterceptionHookPoints::POST_RECV_MESSAGE)) {
+      void* msg = m->GetRecvMessage();
+      if (msg != nullptr) {
+        count_->received +=
+            static_cast<google::protobuf::MessageLite*>(msg)->ByteSizeLong();
+      }
+    }
+    m->Proceed();
+  }
+
+ private:
+  WireCount* count_;
+};
+
+class CountingFactory final
+    : public grpc::experimental::ClientInterceptorFactoryInterface {
+ public:
+  explicit CountingFactory(WireCount* count) : count_(count) {}
+  grpc::experimental::Interceptor* CreateClientInterceptor(
+      grpc::experimental::ClientRpcInfo*) override {
+    return new CountingInterceptor(count_);
+  }
+
+ private:
+  WireCount* count_;
+};
+
+std::shared_ptr<grpc::Channel> CountedChannel(const std::string& address,
+                                              WireCount* count) {
+  grpc::ChannelArguments args;
+  args.SetMaxReceiveMessageSize(256 << 20);
+  args.SetMaxSendMessageSize(256 << 20);
+  std::vector<
+      std::unique_ptr<grpc::experimental::ClientInterceptorFactoryInterface>>
+      factories;
+  factories.push_back(std::make_unique<CountingFactory>(count));
+  return grpc::experimental::CreateCustomChannelWithInterceptors(
+      address, grpc::InsecureChannelCredentials(), args, std::move(factories));
+}
+
+uint64_t FileBytes(const std::string& path) {
+  struct stat st;
+  return stat(path.c_str(), &st) == 0 ? static_cast<uint64_t>(st.st_size) : 0;
+}
+
+uint64_t PeakRssKib() {
+  std::ifstream in("/proc/self/status");
+  std::string line;
+  while (std::getline(in, line)) {
+    if (line.rfind("VmHWM:", 0) == 0) {
+      return std::strtoull(line.c_str() + 6, nullptr, 10);
+    }
+  }
+  return 0;
+}
+
+}  // namespace
+
+std::unique_ptr<Evaluator> BenchEvaluator(double eval_ms) {
+  return std::make_unique<SleepyZero>(eval_ms);
+}
+
+std::string LoadAverage() {
+  std::ifstream in("/proc/loadavg");
+  double a = 0, b = 0, c = 0;
+  in >> a >> b >> c;
+  char buf[64];
+  std::snprintf(buf, sizeof(buf), "load average %.2f, %.2f, %.2f", a, b, c);
+  return buf;
+}
+
+absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
+  const std::string path = TempDb(o.dir, "e2e");
+  std::optional<Loopback> c = StartLoopback(path);
+  if (!c.has_value()) return absl::UnavailableError("no coordinator");
+  const std::string& address = c->address;
+  auto runs = skerry::v1::RunService::NewStub(
+      grpc::CreateChannel(address, grpc::InsecureChannelCredentials()));
+  skerry::v1::SubmitRunRequest req;
+  skerry::v1::RunSpec* spec = req.mutable_spec();
+  spec->set_name("bench-zero");
+  spec->set_seed(1);
+  spec->set_genome_length(o.genome_length);
+  spec->mutable_evaluator()->mutable_builtin()->set_function("zero");
+  spec->mutable_ga()->set_population_size(o.population);
+  spec->mutable_ga()->set_elites(0);
+  spec->mutable_stop()->set_max_generations(o.generations);
+
+  WireCount wire;
+  std::vector<std::unique_ptr<worker::Worker>> workers;
+  std::vector<std::thread> threads;
+  for (int i = 0; i < o.workers; ++i) {
+    worker::WorkerOptions wo;
+    wo.name = absl::StrCat("bench-", i);
+    wo.threads = o.threads;
+    wo.batch = o.batch;
+    const double ms = o.eval_ms;
+    wo.make_evaluator = [ms](const skerry::v1::EvaluatorSpec&)
+        -> absl::StatusOr<std::unique_ptr<Evaluator>> {
+      return BenchEvaluator(ms);
+    };
+    workers.push_back(std::make_unique<worker::Worker>(
+        skerry::v1::FleetService::NewStub(CountedChannel(address, &wire)), wo,
+        Clock::Real()));
+  }
+  for (auto& w : workers) {
+    threads.emplace_back([&w] { w->Run().IgnoreError(); });
+  }
+  const absl::Time start = absl::Now();
+  {
+    grpc::ClientContext ctx;
+    skerry::v1::SubmitRunResponse resp;
+    grpc::Status s = runs->SubmitRun(&ctx, req, &resp);
+    if (!s.ok()) {
+      std::fprintf(stderr, "submit: %s\n", s.error_message().c_str());
+    }
+  }
+  skerry::v1::GetRunResponse got;
+  // Bounded: at most 60,000 polls of 5 ms.
+  for (int polls = 0; polls < 60000; ++polls) {
+    grpc::ClientContext ctx;
+    skerry::v1::RunRef ref;
+    ref.set_run_id(1);
+    got.Clear();
+    runs->GetRun(&ctx, ref, &got);
+    if (got.run().state() == skerry::v1::FINISHED) break;
+    absl::SleepFor(absl::Milliseconds(5));
+  }
+  EndToEndFigures f;
+  f.seconds = absl::ToDoubleSeconds(absl::Now() - start);
+  f.evaluations = got.run().evaluations();
+  f.rate = static_cast<double>(f.evaluations) / std::max(1e-9, f.seconds);
+  for (auto& w : workers) w->Stop();
+  for (auto& t : threads) t.join();
+  f.db_bytes = FileBytes(path) + FileBytes(path + "-wal");
+  f.sent_bytes = wire.sent;
+  f.received_bytes = wire.received;
+  c->coordinator->Shutdown();
+  f.peak_rss_kib = PeakRssKib();
+  RemoveDb(path);
+  return f;
+}
+
+double InProcessRate(const EndToEndOptions& o, uint64_t evaluations,
+                     int threads) {
+  std::vector<std::thread> pool;
+  std::atomic<uint64_t> next{0};
+  const absl::Time start = absl::Now();
+  for (int t = 0; t < threads; ++t) {
+    pool.emplace_back([&, t] {
+      std::unique_ptr<Evaluator> ev = BenchEvaluator(o.eval_ms);
+      StreamKey key;
+      key.run_seed = static_cast<uint64_t>(t) + 1;
+      RandomStream rng(key);
+      std::vector<double> genes(o.genome_length);
+      while (next.fetch_add(1) < evaluations) {
+        for (double& g : genes) g = rng.Uniform01();
+        ev->Evaluate(genes, 0).IgnoreError();
+      }
+    });
+  }
+  for (auto& t : pool) t.join();
+  const double secs =
+      std::max(1e-9, absl::ToDoubleSeconds(absl::Now() - start));
+  return static_cast<double>(evaluations) / secs;
+}
+
+}  // namespace skerry::bench
