@@ -10,8 +10,10 @@
 #include "absl/strings/str_replace.h"
 #include "absl/strings/str_split.h"
 #include "cli/access.h"
+#include "cli/compare.h"
 #include "cli/lineage.h"
 #include "cli/report.h"
+#include "cli/series.h"
 #include "cli/validate.h"
 #include "cli/workers.h"
 #include "common/host_port.h"
@@ -28,12 +30,22 @@ std::vector<CommandSpec> MakeCommands() {
        {"SPEC_FILE"},
        {{"watch", nullptr, "watch the run after submitting it"},
         {"priority", "N",
-         "share of the workers against other runs, 1-1000 (default 1)"}},
-       "submit a run spec (protobuf text format); prints the run id",
+         "share of the workers against other runs, 1-1000 (default 1)"},
+        {"seeds", "LIST",
+         "submit one run per seed as a series, e.g. 1-20 or 1,3,5-7 (at most "
+         "100)"},
+        {"series", "NAME",
+         "the series' name with --seeds (default: the spec's name, made "
+         "unique)"}},
+       "submit a run spec (protobuf text format); prints the run id; with "
+       "--seeds LIST [--series NAME], one run per seed as a series",
        "Reads SPEC_FILE, checks it (syntax, then every field against its "
        "allowed range) and submits it to the coordinator. Prints the new run's "
        "id. While several runs have work waiting, each gets a share of the "
-       "workers' tasks in proportion to its priority (docs/sharing.md)."},
+       "workers' tasks in proportion to its priority (docs/sharing.md). With "
+       "--seeds, submits one run of the spec per seed, all or none, as a "
+       "series (`skerry series`, `skerry compare`) and prints each run's id "
+       "and seed."},
       {"list", {}, {}, "list every run", "Lists every run, newest last."},
       {"show",
        {"RUN"},
@@ -337,6 +349,10 @@ const std::vector<CommandSpec>& Commands() {
     more.insert(more.end(), validation.begin(), validation.end());
     std::vector<CommandSpec> report = ReportCommandSpecs();
     more.insert(more.end(), report.begin(), report.end());
+    std::vector<CommandSpec> series = SeriesCommandSpecs();
+    more.insert(more.end(), series.begin(), series.end());
+    std::vector<CommandSpec> compare = CompareCommandSpecs();
+    more.insert(more.end(), compare.begin(), compare.end());
     std::vector<CommandSpec> workers = WorkersCommandSpecs();
     more.insert(more.end(), workers.begin(), workers.end());
     auto local = std::find_if(all->begin(), all->end(), [](const auto& c) {
@@ -490,14 +506,24 @@ std::string GeneralHelp() {
 }
 
 std::string CommandHelp(const CommandSpec& command) {
+  // The usage line wraps at 80 columns, continued under the arguments.
   std::string usage = absl::StrCat("usage: skerry ", command.name);
-  for (const char* positional : command.positionals) {
-    absl::StrAppend(&usage, " ", positional);
-  }
+  const std::string continued(std::min<size_t>(usage.size() + 1, 24), ' ');
+  size_t column = usage.size();
+  auto add = [&](const std::string& word) {
+    if (column + 1 + word.size() > 80) {
+      absl::StrAppend(&usage, "\n", continued, word);
+      column = continued.size() + word.size();
+    } else {
+      absl::StrAppend(&usage, " ", word);
+      column += 1 + word.size();
+    }
+  };
+  for (const char* positional : command.positionals) add(positional);
   for (const FlagSpec& flag : command.flags) {
     std::string text = absl::StrCat("--", flag.name);
     if (flag.value != nullptr) absl::StrAppend(&text, " ", flag.value);
-    absl::StrAppend(&usage, " ", flag.required ? text : "[" + text + "]");
+    add(flag.required ? text : "[" + text + "]");
   }
   std::string help =
       absl::StrCat(usage, "\n\n", Wrap(command.details, 78), "\n");
@@ -509,9 +535,12 @@ std::string CommandHelp(const CommandSpec& command) {
   for (const FlagSpec& flag : command.flags) {
     std::string text = absl::StrCat("--", flag.name);
     if (flag.value != nullptr) absl::StrAppend(&text, " ", flag.value);
-    absl::StrAppend(&help, "  ", text,
-                    std::string(text.size() < 14 ? 16 - text.size() : 2, ' '),
-                    flag.help, "\n");
+    const size_t pad = text.size() < 14 ? 16 - text.size() : 2;
+    const std::string indent(2 + text.size() + pad, ' ');
+    absl::StrAppend(&help, "  ", text, std::string(pad, ' '),
+                    absl::StrReplaceAll(Wrap(flag.help, 80 - indent.size()),
+                                        {{"\n", "\n" + indent}}),
+                    "\n");
   }
   return help;
 }

@@ -15,11 +15,14 @@
 #include "absl/time/clock.h"
 #include "cli/access.h"
 #include "cli/backup.h"
+#include "cli/compare.h"
+#include "cli/compare_page.h"
 #include "cli/format.h"
 #include "cli/lineage.h"
 #include "cli/metrics_text.h"
 #include "cli/network_command.h"
 #include "cli/report.h"
+#include "cli/series.h"
 #include "cli/validate.h"
 #include "cli/workers.h"
 #include "common/spec.h"
@@ -102,13 +105,20 @@ void Sleep(absl::Duration d, Io& io) {
 
 int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
   uint64_t run_id = 0;
-  if (!args.positionals.empty() && args.command != "submit") {
+  if (!args.positionals.empty() && args.command != "submit" &&
+      args.command != "series" && args.command != "compare") {
     absl::StatusOr<uint64_t> id = ParseRunId(args.positionals[0]);
     if (!id.ok()) return UsageFailure(id.status(), args.command, io);
     run_id = *id;
   }
   const std::string& command = args.command;
   if (command == "submit") {
+    if (args.Has("series")) {
+      return UsageFailure(absl::InvalidArgumentError(
+                              "--series: names a series, so it goes with "
+                              "--seeds LIST"),
+                          command, io);
+    }
     uint32_t priority = 0;
     if (args.Has("priority")) {
       // The bounds of scheduler::kMinWeight and kMaxWeight.
@@ -123,6 +133,8 @@ int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
     return WatchCommand(client, run_id, io);
   }
   if (command == "list") return ListCommand(client, io);
+  if (command == "series") return SeriesCommand(args, client, io);
+  if (command == "compare") return CompareCommand(args, client, io);
   if (command == "show")
     return ShowCommand(client, run_id, args.Has("all"), io);
   if (command == "watch") return WatchCommand(client, run_id, io);
@@ -355,7 +367,7 @@ int ChampionCommand(RunClient& client, uint64_t run_id, bool json,
 int ListCommand(RunClient& client, Io& io) {
   absl::StatusOr<std::vector<RunSummary>> runs = client.List();
   if (!runs.ok()) return ReportError(runs.status(), io);
-  *io.out << FormatRunList(*runs, io.zone);
+  *io.out << FormatGroupedRunList(*runs, io.zone);
   return kExitOk;
 }
 
@@ -483,7 +495,8 @@ int RunCli(const std::vector<std::string>& args,
   if (IsLineageCommand(parsed->command) || parsed->command == "backup" ||
       IsAccessCommand(parsed->command) ||
       IsValidationCommand(parsed->command) || parsed->command == "report" ||
-      parsed->command == "workers") {
+      parsed->command == "workers" || parsed->command == "extend" ||
+      (parsed->command == "submit" && parsed->Has("seeds"))) {
     absl::StatusOr<std::shared_ptr<grpc::Channel>> ch = channel();
     if (!ch.ok()) return UsageFailure(ch.status(), "", io);
     if (IsLineageCommand(parsed->command)) {
@@ -496,9 +509,19 @@ int RunCli(const std::vector<std::string>& args,
       auto admin = skerry::v1::AdminService::NewStub(*ch);
       return BackupCommand(*parsed, *admin, io);
     }
+    if (parsed->command == "extend" || parsed->command == "submit") {
+      auto study = skerry::v1::StudyService::NewStub(*ch);
+      return parsed->command == "extend"
+                 ? ExtendCommand(*parsed, *study, io)
+                 : SubmitSeriesCommand(*parsed, *study, io);
+    }
     if (parsed->command == "workers") {
       auto admin = skerry::v1::AdminService::NewStub(*ch);
       return WorkersCommand(*parsed, *admin, io);
+    }
+    if (parsed->command == "report" && NamesASeries(parsed->positionals)) {
+      RunClient client(skerry::v1::RunService::NewStub(*ch), target);
+      return ReportComparisonCommand(*parsed, client, io);
     }
     if (parsed->command == "report") {
       auto runs = skerry::v1::RunService::NewStub(*ch);

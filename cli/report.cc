@@ -16,7 +16,7 @@ namespace skerry::cli {
 std::vector<CommandSpec> ReportCommandSpecs() {
   return {
       {"report",
-       {"RUN", "[RUN...]"},
+       {"RUN|SERIES", "[RUN|SERIES...]"},
        {{"out", "FILE", "write the page to FILE (-o FILE)", true},
         {"chart-library", "FILE",
          "Chart.js to inline (default: Debian's libjs-chart.js)"}},
@@ -27,7 +27,10 @@ std::vector<CommandSpec> ReportCommandSpecs() {
        "the champion's line of descent with its improvement steps and the "
        "operators and islands that made them, the spec, state and digest. "
        "Several runs overlay on the same charts (at most 8). Every number is "
-       "also in a table. docs/report.md."},
+       "also in a table. Given a series name, it writes instead the "
+       "comparison of `skerry compare` as a page: each group's median best "
+       "score against evaluations with its quartiles, the numbers in a "
+       "table, and the rank-sum tests. docs/report.md."},
   };
 }
 

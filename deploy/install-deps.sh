@@ -50,6 +50,8 @@ PACKAGES=(
   # checks /metrics (the prometheus package, which brings its web assets).
   chromium
   prometheus
+  # Tests: the rank-sum test of `skerry compare` against scipy.stats.
+  python3-scipy
 )
 if [[ "${1:-}" == "--deploy-tier" ]]; then
   # A real single-node Slurm for tests/deploy/slurm_test.cc.

@@ -15,6 +15,7 @@
 #include "server/api/admin_service.h"
 #include "server/api/fleet_service.h"
 #include "server/api/run_service.h"
+#include "server/api/study_service.h"
 #include "server/api/validation_service.h"
 #include "server/auth/gate.h"
 #include "server/auth/interceptor.h"
@@ -72,6 +73,8 @@ class CoordinatorImpl final : public Coordinator {
     c->runs_ = std::make_unique<api::RunServiceImpl>(
         c->store_.get(), c->engine_.get(), c->fleet_.get(), c->access_.get(),
         watch, options.budgets);
+    c->study_ = std::make_unique<api::StudyServiceImpl>(
+        c->store_.get(), c->engine_.get(), c->access_.get(), options.budgets);
     c->validations_ = std::make_unique<api::ValidationServiceImpl>(
         c->store_.get(), c->engine_.get(), c->access_.get());
     SKERRY_ASSIGN_OR_RETURN(c->lineage_,
@@ -113,6 +116,7 @@ class CoordinatorImpl final : public Coordinator {
     const std::pair<grpc::Service*, std::string> services[] = {
         {c->fleet_.get(), skerry::v1::FleetService::service_full_name()},
         {c->runs_.get(), skerry::v1::RunService::service_full_name()},
+        {c->study_.get(), skerry::v1::StudyService::service_full_name()},
         {c->admin_.get(), skerry::v1::AdminService::service_full_name()},
         {c->lineage_.get(), skerry::v1::LineageService::service_full_name()},
         {c->validations_.get(),
@@ -231,6 +235,7 @@ class CoordinatorImpl final : public Coordinator {
   std::unique_ptr<engine::Engine> engine_;
   std::unique_ptr<api::FleetServiceImpl> fleet_;
   std::unique_ptr<api::RunServiceImpl> runs_;
+  std::unique_ptr<api::StudyServiceImpl> study_;
   std::unique_ptr<api::AdminServiceImpl> admin_;
   std::unique_ptr<lineage::LineageServiceImpl> lineage_;
   std::unique_ptr<api::ValidationServiceImpl> validations_;

@@ -43,6 +43,15 @@ const std::vector<FieldBound>* BuildTable() {
       {"skerry.v1.SubmitRunRequest.spec", 0, 0,
        "the coordinator's budgets (--max-name-bytes, --max-evaluator-bytes, "
        "--max-task-bytes, --max-generation-genes) and ValidateSpec"},
+      // StudyService
+      {"skerry.v1.SubmitSeriesRequest.spec_text", 0, 1 * kMiB, ""},
+      {"skerry.v1.SubmitSeriesRequest.seeds", 100, 0, ""},
+      {"skerry.v1.SubmitSeriesRequest.name", 0, 64,
+       "StudyService.SubmitSeries: letters, digits, '.', '-', '_'"},
+      {"skerry.v1.SubmitSeriesRequest.request_id", 0, 128,
+       "StudyService.SubmitSeries: printable ASCII, no spaces"},
+      {"skerry.v1.SubmitSeriesRequest.spec", 0, 0,
+       "the coordinator's budgets, as SubmitRunRequest.spec"},
       // AccessService
       {"skerry.v1.CreateTokenRequest.principal", 0, 64, ""},
       {"skerry.v1.CreateTokenRequest.note", 0, 256, ""},

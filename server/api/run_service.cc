@@ -40,6 +40,9 @@ grpc::Status RunServiceImpl::Summarise(int64_t run_id,
   absl::StatusOr<skerry::v1::RunSummary> s = engine_->Summary(run_id);
   if (!s.ok()) return ToGrpc(s.status());
   *out = std::move(*s);
+  absl::StatusOr<std::string> series = store_->SeriesOfRun(run_id);
+  if (!series.ok()) return ToGrpc(series.status());
+  out->set_series(*series);
   return grpc::Status::OK;
 }
 
@@ -96,7 +99,16 @@ grpc::Status RunServiceImpl::ListRuns(grpc::ServerContext* ctx,
   absl::StatusOr<std::vector<skerry::v1::RunSummary>> runs =
       engine_->ListSummaries();
   if (!runs.ok()) return ToGrpc(runs.status());
-  for (auto& r : *runs) *resp->add_runs() = std::move(r);
+  absl::StatusOr<std::map<int64_t, std::string>> series =
+      store_->SeriesOfRuns();
+  if (!series.ok()) return ToGrpc(series.status());
+  for (auto& r : *runs) {
+    if (auto it = series->find(static_cast<int64_t>(r.id()));
+        it != series->end()) {
+      r.set_series(it->second);
+    }
+    *resp->add_runs() = std::move(r);
+  }
   return grpc::Status::OK;
 }
 

@@ -5,6 +5,7 @@
 #include "skerry/v1/fleet.pb.h"
 #include "skerry/v1/lineage.pb.h"
 #include "skerry/v1/runs.pb.h"
+#include "skerry/v1/study.pb.h"
 #include "skerry/v1/validation.pb.h"
 
 namespace skerry::auth {
@@ -64,6 +65,7 @@ std::map<std::string, Rule> Build() {
   const std::string admin = "/skerry.v1.AdminService/";
   const std::string access = "/skerry.v1.AccessService/";
   const std::string validation = "/skerry.v1.ValidationService/";
+  const std::string study = "/skerry.v1.StudyService/";
   return {
       {run + "SubmitRun", Make<v1::SubmitRunRequest>(P::kSubmit, true)},
       {run + "ListRuns", Make<v1::ListRunsRequest>(P::kRead)},
@@ -76,6 +78,9 @@ std::map<std::string, Rule> Build() {
       {run + "GetHistory", Make<v1::GetHistoryRequest>(P::kRead)},
       {run + "GetDigest", Make<v1::RunRef>(P::kRead)},
       {run + "WatchRun", Make<v1::WatchRunRequest>(P::kRead)},
+
+      {study + "SubmitSeries", Make<v1::SubmitSeriesRequest>(P::kSubmit, true)},
+      {study + "ExtendRun", AboutRun<v1::ExtendRunRequest>(P::kOwnRun, true)},
 
       {fleet + "Join", Make<v1::JoinRequest>(P::kFleet)},
       {fleet + "Lease", Make<v1::LeaseRequest>(P::kFleet)},

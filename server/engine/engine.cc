@@ -289,6 +289,13 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
     return s;
   }
 
+  Activate(rec, std::move(genomes));
+  return rec;
+}
+
+void Engine::Activate(const store::RunRecord& rec,
+                      std::vector<GenomeRecord> genomes) {
+  const RunSpec& prepared = rec.spec;
   auto run = std::make_unique<Run>();
   run->record = rec;
   run->evaluator =
@@ -302,10 +309,9 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   }
   Run& r = *run;
   runs_[rec.id] = std::move(run);
-  queue_->SetWeight(rec.id, priority);
+  queue_->SetWeight(rec.id, static_cast<uint32_t>(rec.priority));
   for (const Island& island : r.islands) QueueIsland(r, island);
   NotifyChange();
-  return rec;
 }
 
 absl::Status Engine::Pause(int64_t run_id) {

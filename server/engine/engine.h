@@ -110,6 +110,18 @@ class Engine {
                                           std::string owner,
                                           uint32_t priority = 0,
                                           std::string request_id = "");
+  // A seed series (engine_series.cc): one run of `spec` per seed (the spec's
+  // own seed replaced), all stored with the series in one transaction, or
+  // none. `series` names it (Store::CreateSeries refuses a name in use);
+  // members and ids are filled in.
+  absl::StatusOr<std::vector<store::RunRecord>> SubmitSeries(
+      skerry::v1::RunSpec spec, std::string spec_text,
+      store::SeriesRecord* series, uint32_t priority = 0);
+  // Raises an ended run's stop rule to `stop` and lets it go on
+  // (engine_series.cc; study.proto ExtendRunRequest says what may change).
+  // InvalidArgument names a field that would lower the rule;
+  // FailedPrecondition a run that is not FINISHED or STOPPED.
+  absl::Status Extend(int64_t run_id, const skerry::v1::StopSpec& stop);
   // Stores a run's new priority (1 to 1000, else InvalidArgument naming the
   // field) and gives the queue the new weight. Any run, ended ones too.
   absl::Status SetPriority(int64_t run_id, uint32_t priority);
@@ -188,6 +200,11 @@ class Engine {
                           skerry::v1::RunState to, const char* verb)
       ABSL_LOCKS_EXCLUDED(mu_);
   static absl::Status CheckPriority(uint32_t priority);
+  // Takes a run just stored by CreateRun into the cache and queues its
+  // generation 0.
+  void Activate(const store::RunRecord& rec,
+                std::vector<store::GenomeRecord> genomes)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status Load() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status LoadRun(const store::RunRecord& record)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);

@@ -7,6 +7,7 @@
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/store/row_sums.h"
+#include "server/store/series_store.h"
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "skerry/v1/genome.pb.h"
@@ -334,6 +335,7 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path) {
     SKERRY_RETURN_IF_ERROR(CheckEndedRunIslandsDone(
         checker, id, static_cast<int>(runs->ColumnInt(2))));
   }
+  SKERRY_RETURN_IF_ERROR(CheckSeriesRows(conn.get(), &checker.report.problems));
   {
     SKERRY_ASSIGN_OR_RETURN(Statement n,
                             conn->Prepare("SELECT count(*) FROM genomes"));

@@ -13,6 +13,7 @@
 #include "common/status_macros.h"
 #include "server/store/access_schema.h"
 #include "server/store/row_sums.h"
+#include "server/store/series_store.h"
 
 namespace skerry::store {
 namespace {
@@ -151,10 +152,11 @@ CREATE INDEX genome_metrics_run ON genome_metrics (run_id);
 
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
-// (row checksums, submit request ids) is built by SchemaV6().
-constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,     kSchemaV3,
-                                       kSchemaV4, kSchemaAccess, nullptr,
-                                       kSchemaV7, kSchemaMetrics};
+// (row checksums, submit request ids) is built by SchemaV6(); version 9
+// (seed series) by SchemaSeries() (series_store.h).
+constexpr const char* kMigrations[] = {kSchemaV1, kSchemaV2,      kSchemaV3,
+                                       kSchemaV4, kSchemaAccess,  nullptr,
+                                       kSchemaV7, kSchemaMetrics, nullptr};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -203,6 +205,7 @@ std::string SchemaV6() {
 
 std::string MigrationSql(int from_version) {
   if (from_version == 5) return SchemaV6();
+  if (from_version == 8) return SchemaSeries();
   return kMigrations[from_version];
 }
 
@@ -505,6 +508,12 @@ absl::Status Store::CreateRun(RunRecord* run,
                               std::vector<GenomeRecord>* genomes) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  SKERRY_RETURN_IF_ERROR(CreateRunLocked(run, genomes));
+  return txn.Commit();
+}
+
+absl::Status Store::CreateRunLocked(RunRecord* run,
+                                    std::vector<GenomeRecord>* genomes) {
   {
     SKERRY_ASSIGN_OR_RETURN(
         auto ins,
@@ -544,8 +553,7 @@ absl::Status Store::CreateRun(RunRecord* run,
     }
   }
   for (GenomeRecord& g : *genomes) g.run_id = run->id;
-  SKERRY_RETURN_IF_ERROR(InsertGenomes(genomes));
-  return txn.Commit();
+  return InsertGenomes(genomes);
 }
 
 absl::Status Store::CommitResults(

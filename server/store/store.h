@@ -1,7 +1,7 @@
 // The store: every run, island, genome and statistic in one SQLite file. The
 // database is the truth; the coordinator's memory is a cache of it.
 //
-// ## Schema (version 8)
+// ## Schema (version 9)
 //   schema_version(version)                      one row
 //   runs(id, name, owner, spec BLOB, spec_text, seed, state, priority, message,
 //        created_ms, updated_ms, started_ms, parent_run, parent_generation,
@@ -32,6 +32,10 @@
 //        an evaluator's named side measurements, at most 32 per genome
 //        (common/metric_bounds.h), PRIMARY KEY (genome_id, name); methods in
 //        metrics.cc
+//   series(id, name UNIQUE, owner, created_ms, request_id, sum)  version 9:
+//   series_runs(run_id PRIMARY KEY, series_id, position, seed, sum)
+//        seed series (study.proto SubmitSeries), with checksums as in
+//        version 6; schema and methods in series_store.{h,cc}
 // Indexes: the natural key; pending genomes per run (restart); parent_a and
 // parent_b (version 2: descendant queries); failed genomes per run (version 3);
 // validations per run and pending validations (version 4); tokens per
@@ -51,6 +55,11 @@
 // ## Commit points
 // Each is one transaction; a change is acknowledged only after it.
 //   CreateRun          the run, its islands and every island's generation 0
+//   CreateSeries       every run of a series as CreateRun does, and the
+//                      series with its members
+//   ExtendRun          an ended run's raised stop rule, its islands live
+//                      again, the statistics of each newest generation
+//                      dropped (recomputed when the engine breeds on)
 //   CommitResults      a batch of results (group commit of many Report
 //                      calls), with the validation outcomes reported with them
 //   CommitGeneration   one island's next generation whole: its genomes with
@@ -105,6 +114,7 @@
 #include "absl/types/span.h"
 #include "server/store/access_records.h"
 #include "server/store/records.h"
+#include "server/store/series_records.h"
 #include "server/store/sqlite.h"
 #include "skerry/v1/genome.pb.h"
 #include "skerry/v1/runs.pb.h"
@@ -235,7 +245,7 @@ inline constexpr const char* kEmptyFileMessage =
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 8;
+  static constexpr int kSchemaVersion = 9;
 
   // Opens the database at `path`, applies the pragmas and migrates an older
   // schema. Only a file that does not exist is created (and initialised); an
@@ -383,6 +393,30 @@ class Store {
   // The run's owner; empty when there is no such run.
   absl::StatusOr<std::optional<std::string>> RunOwner(int64_t run_id);
 
+  // ---- Seed series and extension (series_store.cc; schema version 9) ----
+  // Every run (ids filled in, genomes[i] its generation 0) and the series
+  // (id and members filled in) in one transaction. AlreadyExists names a
+  // series name in use.
+  absl::Status CreateSeries(SeriesRecord* series, std::vector<RunRecord>* runs,
+                            std::vector<std::vector<GenomeRecord>>* genomes);
+  // The series `owner` submitted with `request_id`, with its members.
+  absl::StatusOr<std::optional<SeriesRecord>> FindSeriesByRequest(
+      const std::string& owner, const std::string& request_id);
+  // `base`, or `base`-2, -3... : the first name no series has.
+  absl::StatusOr<std::string> UnusedSeriesName(const std::string& base);
+  // Run id -> series name, for every run in a series. DATA_LOSS names a row
+  // that does not match its checksum.
+  absl::StatusOr<std::map<int64_t, std::string>> SeriesOfRuns();
+  // The run's series name, or "" when it has none.
+  absl::StatusOr<std::string> SeriesOfRun(int64_t run_id);
+  // Stores `spec` (its raised stop rule) for an ended run and makes it RUNNING
+  // again: islands live, stop generation cleared, the wall clock restarted
+  // at now_ms, the statistics row of each island's newest generation deleted
+  // so that the engine completes that generation again (its numbers come out
+  // the same). FailedPrecondition unless the run is FINISHED or STOPPED.
+  absl::Status ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
+                         int64_t now_ms);
+
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
       : path_(std::move(path)), raw_(conn->raw()), conn_(std::move(conn)) {}
@@ -391,6 +425,11 @@ class Store {
   absl::StatusOr<int> StoredVersion() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<Digest> RunDigestUnnamed(int64_t run_id);
   absl::Status Migrate(int from_version) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status CreateRunLocked(RunRecord* run,
+                               std::vector<GenomeRecord>* genomes)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::StatusOr<std::vector<std::pair<int64_t, uint64_t>>> SeriesMembersLocked(
+      int64_t series_id) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status CommitGenerationLocked(const GenerationCommit& commit)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status InsertGenomes(std::vector<GenomeRecord>* genomes)

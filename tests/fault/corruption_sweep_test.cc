@@ -78,6 +78,11 @@ absl::StatusOr<std::unique_ptr<Harness>> OpenLikeTheCoordinator(
   if (!s.ok()) return s.status();
   h->store = std::move(*s);
   if (absl::Status q = h->store->QuickCheck(); !q.ok()) return q;
+  // As the coordinator does (coordinator.cc): a file it cannot write is
+  // refused at start. Without this a flip of header byte 18 (the write
+  // version: 3 makes SQLite open the file read-only) stalled here while the
+  // real coordinator refuses it.
+  if (absl::Status w = h->store->ProbeWrite(); !w.ok()) return w;
   h->queue = std::make_unique<scheduler::TaskQueue>(clock, absl::Seconds(30));
   absl::StatusOr<std::unique_ptr<Engine>> e =
       Engine::Open(h->store.get(), h->queue.get(), clock);

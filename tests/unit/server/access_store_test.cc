@@ -192,7 +192,8 @@ TEST_F(AccessStoreTest, AuditEntriesAreFilteredByRunAndPrincipalNewestFirst) {
 TEST_F(AccessStoreTest, Version4DatabaseIsMigratedToTheAccessTables) {
   store_.reset();
   RawExec(path(),
-          std::string("DROP TABLE genome_metrics; "
+          std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
+                      "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
               skerry::testing::kUndoVersion6 +
               "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "

@@ -52,7 +52,8 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
   ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
   store_.reset();
-  RawExec(path(), std::string("DROP TABLE genome_metrics; "
+  RawExec(path(), std::string("DROP TABLE series; DROP TABLE series_runs; DROP "
+                              "TABLE genome_metrics; "
                               "ALTER TABLE workers DROP COLUMN sandbox; ") +
                       skerry::testing::kUndoVersion6 +
                       "UPDATE genomes SET score = 7.5, eval_state = 2, "
@@ -78,7 +79,8 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
 TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(path(),
-          std::string("DROP TABLE genome_metrics; "
+          std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
+                      "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
               skerry::testing::kUndoVersion6 +
               "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
@@ -106,7 +108,8 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
 TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   store_.reset();
   RawExec(path(),
-          std::string("DROP TABLE genome_metrics; "
+          std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
+                      "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
               skerry::testing::kUndoVersion6 +
               "UPDATE schema_version SET version = 5; "
@@ -131,11 +134,12 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
 // genome_metrics table and keeps its data.
 TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
   store_.reset();
-  RawExec(path(),
-          "DROP TABLE genome_metrics; "
-          "UPDATE schema_version SET version = 7; "
-          "INSERT INTO workers (name, host, threads, evaluators, version, "
-          "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
+  RawExec(
+      path(),
+      "DROP TABLE series; DROP TABLE series_runs; DROP TABLE genome_metrics; "
+      "UPDATE schema_version SET version = 7; "
+      "INSERT INTO workers (name, host, threads, evaluators, version, "
+      "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
