@@ -77,8 +77,8 @@ class ModuleGraphTest(unittest.TestCase):
     def test_file_built_into_another_modules_library_is_refused(self):
         with open(os.path.join(self.tmp, "server/store/extra.cc"), "w") as f:
             f.write('#include "server/store/store.h"\n')
-        self.edit("server/engine/CMakeLists.txt", "  engine_validation.cc)",
-                  "  engine_validation.cc\n  ../store/extra.cc)")
+        self.edit("server/engine/CMakeLists.txt", "  engine.cc\n",
+                  "  engine.cc\n  ../store/extra.cc\n")
         self.assertRefused("extra.cc is built into skerry_engine",
                            "library skerry_store")
 
