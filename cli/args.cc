@@ -16,6 +16,7 @@
 #include "cli/series.h"
 #include "cli/validate.h"
 #include "cli/workers.h"
+#include "common/host_port.h"
 #include "worker/channel.h"
 
 namespace skerry::cli {
@@ -451,18 +452,10 @@ absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<std::string>& args,
   return parsed;
 }
 
+// The worker's rule too (common/host_port.h): the CLI used to accept an
+// unbracketed IPv6 address and a host with a space, which the worker refused.
 absl::Status CheckCoordinatorAddress(absl::string_view address) {
-  size_t colon = address.rfind(':');
-  uint32_t port = 0;
-  bool ok = colon != absl::string_view::npos && colon > 0 &&
-            absl::SimpleAtoi(address.substr(colon + 1), &port) && port >= 1 &&
-            port <= 65535;
-  if (!ok) {
-    return absl::InvalidArgumentError(
-        absl::StrCat("coordinator address '", address,
-                     "' is not HOST:PORT with a port in [1, 65535]"));
-  }
-  return absl::OkStatus();
+  return ParseHostPort("coordinator address", address).status();
 }
 
 absl::StatusOr<uint64_t> ParseRunId(absl::string_view text) {

@@ -21,7 +21,6 @@
 #include "cli/format.h"
 #include "cli/housekeeping.h"
 #include "cli/lineage.h"
-#include "cli/local.h"
 #include "cli/metrics_text.h"
 #include "cli/network_command.h"
 #include "cli/report.h"
@@ -488,7 +487,14 @@ int RunCli(const std::vector<std::string>& args,
     if (!seconds.ok()) return UsageFailure(seconds.status(), "", io);
     SetCallTimeout(absl::Seconds(*seconds));
   }
-  if (parsed->command == "local") return LocalCommand(*parsed, io);
+  if (parsed->command == "local") {
+    if (!io.run_local) {
+      *io.err << "skerry: local: this program was built without the embedded "
+                 "coordinator\n";
+      return kExitUsage;
+    }
+    return io.run_local(*parsed, io);
+  }
   absl::StatusOr<worker::ClientSecurity> security = Security(*parsed, io);
   if (!security.ok()) return UsageFailure(security.status(), "", io);
   const std::string& target = parsed->coordinator;

@@ -53,6 +53,10 @@ struct Io {
   // Texts never to print (the caller's token): ReportError and usage errors
   // replace them, and anything shaped like a token, with "[hidden]".
   std::vector<std::string> secrets;
+  // `skerry local` (cli/local.h, library skerry_cli_local): the one seam
+  // through which the client embeds a coordinator and workers. main sets it;
+  // left empty, `local` says this program cannot run one.
+  std::function<int(const ParsedArgs&, Io&)> run_local;
 };
 
 // `text` with every secret of `io`, and every "skt_" token, hidden.

@@ -11,6 +11,7 @@
 
 #include "cli/client.h"
 #include "cli/commands.h"
+#include "cli/local.h"
 #include "grpcpp/create_channel.h"
 #include "grpcpp/security/credentials.h"
 #include "skerry/v1/runs.grpc.pb.h"
@@ -23,6 +24,7 @@ int main(int argc, char** argv) {
   io.err = &std::cerr;
   io.interactive = isatty(fileno(stdout)) != 0;
   io.zone = absl::LocalTimeZone();
+  io.run_local = skerry::cli::LocalCommand;
   auto factory = [&io](const std::string& target,
                        const skerry::worker::ClientSecurity& security)
       -> std::unique_ptr<skerry::cli::RunClient> {

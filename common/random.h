@@ -7,7 +7,10 @@
 // under the 64-bit key = run seed (k0 = low 32 bits, k1 = high 32 bits).
 // Nothing depends on which thread, process or machine draws, nor on the order
 // in which streams are used: the same name always yields the same numbers. That
-// is what makes a run a pure function of (spec, seed).
+// is what makes a run a pure function of (spec, seed). The integer words are
+// exact everywhere; Normal() goes through libm (log, sqrt, sin, cos), whose
+// last bit may differ between C libraries, so a run is reproducible per
+// platform (docs/user-guide.md, "Reproducibility").
 //
 // Thread safety: a RandomStream is a small value; use one per thread.
 #ifndef SKERRY_COMMON_RANDOM_H_

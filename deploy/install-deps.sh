@@ -21,11 +21,15 @@ PACKAGES=(
   protobuf-compiler
   libabsl-dev
   libsqlite3-dev
+  # SHA-256 through OpenSSL's EVP (common/sha256.h)
+  libssl-dev
   sqlite3
   libgtest-dev
   libgmock-dev
   libboost-dev
   libeigen3-dev
+  # random_test checks the Philox streams against Random123's own header
+  librandom123-dev
   python3
   openssl
   clang-format

@@ -1,7 +1,13 @@
 #include "server/coordinator_flags.h"
 
+#include <optional>
+#include <string>
+#include <utility>
+
+#include "absl/strings/match.h"
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "common/host_port.h"
 #include "server/api/fleet_service.h"
 #include "server/auth/access_control.h"
 
@@ -93,8 +99,22 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
     int argc, const char* const* argv) {
   CoordinatorFlags f;
   for (int i = 1; i < argc; ++i) {
-    const std::string arg = argv[i];
+    std::string arg = argv[i];
+    // --name=value is --name value, as the worker and the CLI take it.
+    std::optional<std::string> inline_value;
+    if (absl::StartsWith(arg, "--")) {
+      const size_t eq = arg.find('=');
+      if (eq != std::string::npos) {
+        inline_value = arg.substr(eq + 1);
+        arg.resize(eq);
+      }
+    }
     auto value = [&](const char* name) -> absl::StatusOr<std::string> {
+      if (inline_value.has_value()) {
+        std::string v = *std::move(inline_value);
+        inline_value.reset();
+        return v;
+      }
       if (i + 1 >= argc) {
         return absl::InvalidArgumentError(
             absl::StrCat(name, ": needs a value"));
@@ -148,6 +168,11 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
     } else if (arg == "--http" || arg == "--chart-library") {
       absl::StatusOr<std::string> v = value(arg.c_str());
       if (!v.ok()) return v.status();
+      if (arg == "--http") {
+        absl::StatusOr<HostPort> address =
+            ParseHostPort("--http", *v, /*allow_port_zero=*/true);
+        if (!address.ok()) return address.status();
+      }
       (arg == "--http" ? f.options.http_address : f.options.chart_library) = *v;
     } else if (arg == "--db") {
       absl::StatusOr<std::string> v = value("--db");
@@ -156,6 +181,9 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
     } else if (arg == "--listen") {
       absl::StatusOr<std::string> v = value("--listen");
       if (!v.ok()) return v.status();
+      absl::StatusOr<HostPort> address =
+          ParseHostPort("--listen", *v, /*allow_port_zero=*/true);
+      if (!address.ok()) return address.status();
       f.options.listen_address = *v;
     } else if (arg == "--lease-seconds") {
       absl::StatusOr<double> v = number("--lease-seconds", 0.1, 86400);
@@ -198,6 +226,10 @@ absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
     } else {
       return absl::InvalidArgumentError(
           absl::StrCat("unknown argument \"", arg, "\""));
+    }
+    if (inline_value.has_value()) {
+      return absl::InvalidArgumentError(
+          absl::StrCat(arg, ": takes no value, got \"", *inline_value, "\""));
     }
   }
   if (!f.help && !f.version && f.check_db.empty() &&

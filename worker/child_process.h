@@ -47,6 +47,9 @@ struct ChildLimits {
 // limits, default signals, the three pipes as stdin/stdout/stderr, every
 // other descriptor closed, then exec. On failure errno is written to
 // status_fd (negated for chdir) and it exits 127.
+// Why fork and not posix_spawn (which the sandbox probe and the tests'
+// processes use): PR_SET_PDEATHSIG, the rlimits and the check that the parent
+// is still there cannot be set through posix_spawn attributes.
 [[noreturn]] void ExecChild(int in, int out, int err, int status_fd,
                             const char* program, char* const* argv,
                             char* const* envp, const char* working_dir,

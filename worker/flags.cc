@@ -12,6 +12,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "absl/strings/string_view.h"
+#include "common/host_port.h"
 
 namespace skerry::worker {
 namespace {
@@ -40,31 +41,9 @@ absl::StatusOr<uint64_t> ParseWholeNumber(absl::string_view flag,
   return value;
 }
 
-// HOST:PORT, where HOST may be a bracketed IPv6 literal.
+// HOST:PORT, the syntax all three programs share (common/host_port.h).
 absl::Status CheckAddress(absl::string_view flag, absl::string_view text) {
-  auto bad = [&](absl::string_view why) {
-    return FlagError(flag, absl::StrCat("expected HOST:PORT (", why,
-                                        "), got \"", text, "\""));
-  };
-  const size_t colon = text.rfind(':');
-  if (colon == absl::string_view::npos) return bad("no port");
-  absl::string_view host = text.substr(0, colon);
-  absl::string_view port = text.substr(colon + 1);
-  if (absl::StartsWith(host, "[")) {
-    if (!absl::EndsWith(host, "]") || host.size() < 3) {
-      return bad("unbalanced brackets around the IPv6 address");
-    }
-  } else if (host.find(':') != absl::string_view::npos) {
-    return bad("an IPv6 address must be in brackets, as [::1]:7431");
-  }
-  if (host.empty()) return bad("empty host");
-  for (char c : host) {
-    if (c == ' ' || c == '\t' || c == '/') return bad("bad character in host");
-  }
-  if (!ParseWholeNumber(flag, port, 1, 65535).ok()) {
-    return bad("port must be a whole number from 1 to 65535");
-  }
-  return absl::OkStatus();
+  return ParseHostPort(flag, text).status();
 }
 
 absl::Status CheckName(absl::string_view flag, absl::string_view text) {

@@ -2,6 +2,7 @@
 
 #include <errno.h>
 #include <fcntl.h>
+#include <spawn.h>
 #include <sys/stat.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -112,22 +113,24 @@ std::string ProbeFailure(const std::string& bwrap) {
   cargv.push_back(nullptr);
   int err[2];
   if (pipe2(err, O_CLOEXEC) != 0) return "cannot make a pipe";
-  const pid_t pid = fork();
-  if (pid == 0) {
-    dup2(err[1], 2);
-    const int null = open("/dev/null", O_RDWR);
-    if (null >= 0) {
-      dup2(null, 0);
-      dup2(null, 1);
-    }
-    char* const envp[] = {nullptr};
-    execve(cargv[0], cargv.data(), envp);
-    _exit(127);
-  }
+  // A short probe that the worker waits for: no process group or parent-death
+  // signal needed (unlike evaluators, child_process.h), so posix_spawn.
+  posix_spawn_file_actions_t actions;
+  posix_spawn_file_actions_init(&actions);
+  posix_spawn_file_actions_adddup2(&actions, err[1],
+                                   2);  // first: err[1] may be 0
+  posix_spawn_file_actions_addopen(&actions, 0, "/dev/null", O_RDWR, 0);
+  posix_spawn_file_actions_adddup2(&actions, 0, 1);
+  posix_spawn_file_actions_addclosefrom_np(&actions, 3);
+  char* const envp[] = {nullptr};
+  pid_t pid = -1;
+  const int spawn_error =
+      posix_spawn(&pid, cargv[0], &actions, nullptr, cargv.data(), envp);
+  posix_spawn_file_actions_destroy(&actions);
   close(err[1]);
-  if (pid < 0) {
+  if (spawn_error != 0) {
     close(err[0]);
-    return absl::StrCat("cannot start bwrap: ", std::strerror(errno));
+    return absl::StrCat("cannot start bwrap: ", std::strerror(spawn_error));
   }
   std::string text;
   char buf[512];

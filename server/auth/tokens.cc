@@ -6,6 +6,7 @@
 #include <cstdint>
 #include <cstring>
 
+#include "absl/strings/escaping.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "common/sha256.h"
@@ -24,13 +25,9 @@ absl::StatusOr<std::string> NewToken() {
     }
     got += static_cast<size_t>(n);
   }
-  static constexpr char kHex[] = "0123456789abcdef";
-  std::string token = kTokenPrefix;
-  for (uint8_t b : bytes) {
-    token.push_back(kHex[b >> 4]);
-    token.push_back(kHex[b & 15]);
-  }
-  return token;
+  return absl::StrCat(
+      kTokenPrefix, absl::BytesToHexString(absl::string_view(
+                        reinterpret_cast<const char*>(bytes), sizeof(bytes))));
 }
 
 std::string HashToken(absl::string_view token) {

@@ -25,7 +25,7 @@
 
 #include "absl/status/statusor.h"
 #include "absl/types/span.h"
-#include "server/store/store.h"
+#include "server/store/records.h"
 #include "skerry/v1/spec.pb.h"
 
 namespace skerry::engine {

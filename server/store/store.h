@@ -140,6 +140,7 @@
 #include "absl/types/span.h"
 #include "server/store/access_records.h"
 #include "server/store/read_pool.h"
+#include "server/store/records.h"
 #include "server/store/series_records.h"
 #include "server/store/sqlite.h"
 #include "skerry/v1/genome.pb.h"
@@ -181,37 +182,6 @@ struct IslandRecord {
   uint32_t index = 0;
   uint32_t generation = 0;
   bool done = false;
-};
-
-struct GenomeRecord {
-  int64_t id = 0;
-  int64_t run_id = 0;
-  uint32_t island = 0;
-  uint32_t generation = 0;
-  uint32_t slot = 0;
-  skerry::v1::Origin origin = skerry::v1::SEEDED;
-  int64_t parent_a = 0;
-  int64_t parent_b = 0;
-  std::vector<double> genes;
-  double score = 0.0;
-  skerry::v1::EvalState state = skerry::v1::PENDING;
-  uint32_t attempts = 0;
-  std::string error;
-  double eval_seconds = 0.0;
-};
-
-struct StatsRecord {
-  int64_t run_id = 0;
-  uint32_t island = 0;
-  uint32_t generation = 0;
-  double best = 0.0;
-  double mean = 0.0;
-  double worst = 0.0;
-  double diversity = 0.0;
-  uint32_t evaluations = 0;
-  uint32_t failed = 0;
-  double eval_seconds = 0.0;
-  int64_t completed_ms = 0;
 };
 
 // One genome's evaluation outcome, or one failed attempt (state stays PENDING).

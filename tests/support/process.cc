@@ -2,12 +2,14 @@
 
 #include <fcntl.h>
 #include <signal.h>
+#include <spawn.h>
 #include <stdlib.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
 #include <cerrno>
 #include <cstring>
+#include <filesystem>
 #include <fstream>
 #include <sstream>
 
@@ -28,10 +30,9 @@ TempDir::TempDir() {
 
 TempDir::~TempDir() {
   if (path_ == "/tmp" || path_.empty()) return;
-  const std::string cmd = absl::StrCat("rm -rf '", path_, "'");
-  if (system(cmd.c_str()) != 0) {
-    // Best effort: a leftover folder in /tmp is harmless.
-  }
+  // Best effort: a leftover folder in /tmp is harmless.
+  std::error_code ignored;
+  std::filesystem::remove_all(path_, ignored);
 }
 
 absl::StatusOr<Process> Process::Start(const std::vector<std::string>& argv,
@@ -41,27 +42,34 @@ absl::StatusOr<Process> Process::Start(const std::vector<std::string>& argv,
     return absl::InternalError(
         absl::StrCat("cannot open ", log_path, ": ", std::strerror(errno)));
   }
-  const pid_t pid = fork();
-  if (pid < 0) {
-    close(fd);
-    return absl::InternalError(absl::StrCat("fork: ", std::strerror(errno)));
-  }
-  if (pid == 0) {
-    dup2(fd, 1);
-    dup2(fd, 2);
-    close(fd);
-    // Children must not inherit a blocked signal mask from test threads.
-    sigset_t none;
-    sigemptyset(&none);
-    sigprocmask(SIG_SETMASK, &none, nullptr);
-    std::vector<char*> args;
-    for (const std::string& a : argv)
-      args.push_back(const_cast<char*>(a.c_str()));
-    args.push_back(nullptr);
-    execv(args[0], args.data());
-    _exit(127);
-  }
+  // stdout and stderr to the log; no other descriptor of the test (sockets,
+  // databases, pipes of other children) leaks into the child.
+  posix_spawn_file_actions_t actions;
+  posix_spawn_file_actions_init(&actions);
+  posix_spawn_file_actions_adddup2(&actions, fd, 1);
+  posix_spawn_file_actions_adddup2(&actions, fd, 2);
+  posix_spawn_file_actions_addclosefrom_np(&actions, 3);
+  // Children must not inherit a blocked signal mask from test threads.
+  posix_spawnattr_t attr;
+  posix_spawnattr_init(&attr);
+  sigset_t none;
+  sigemptyset(&none);
+  posix_spawnattr_setsigmask(&attr, &none);
+  posix_spawnattr_setflags(&attr, POSIX_SPAWN_SETSIGMASK);
+  std::vector<char*> args;
+  for (const std::string& a : argv)
+    args.push_back(const_cast<char*>(a.c_str()));
+  args.push_back(nullptr);
+  pid_t pid = -1;
+  const int err =
+      posix_spawn(&pid, args[0], &actions, &attr, args.data(), environ);
+  posix_spawnattr_destroy(&attr);
+  posix_spawn_file_actions_destroy(&actions);
   close(fd);
+  if (err != 0) {
+    return absl::InternalError(
+        absl::StrCat("cannot start ", argv[0], ": ", std::strerror(err)));
+  }
   return Process(pid, log_path);
 }
 

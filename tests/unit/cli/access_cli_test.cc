@@ -4,6 +4,7 @@
 #include <sys/stat.h>
 
 #include <cstdlib>
+#include <filesystem>
 #include <fstream>
 #include <map>
 #include <string>
@@ -27,12 +28,17 @@ class TempHome {
     char tmpl[] = "/tmp/skerry-home-XXXXXX";
     path_ = mkdtemp(tmpl);
   }
-  ~TempHome() { std::system(("rm -rf '" + path_ + "'").c_str()); }
+  ~TempHome() {
+    std::error_code ignored;
+    std::filesystem::remove_all(path_, ignored);
+  }
   const std::string& path() const { return path_; }
   std::string Write(const std::string& rel, const std::string& text,
                     mode_t mode = 0600) {
     const std::string file = path_ + "/" + rel;
-    std::system(("mkdir -p \"$(dirname '" + file + "')\"").c_str());
+    std::error_code ignored;
+    std::filesystem::create_directories(
+        std::filesystem::path(file).parent_path(), ignored);
     std::ofstream(file) << text;
     chmod(file.c_str(), mode);
     return file;

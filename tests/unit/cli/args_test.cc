@@ -69,6 +69,23 @@ TEST(ParseArgsTest, BadCoordinatorAddressIsAUsageErrorNamingIt) {
   }
 }
 
+// Regression: the CLI accepted "::1:7431" and "a b:1", which the worker
+// refuses; both now share common/host_port.h.
+TEST(ParseArgsTest, UnbracketedIpv6CoordinatorIsRefusedLikeTheWorker) {
+  auto parsed = Parse({"--coordinator", "::1:7431", "list"});
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(), HasSubstr("in brackets"));
+  auto bracketed = Parse({"--coordinator", "[::1]:7431", "list"});
+  ASSERT_TRUE(bracketed.ok()) << bracketed.status();
+  EXPECT_EQ(bracketed->coordinator, "[::1]:7431");
+}
+
+TEST(ParseArgsTest, CoordinatorHostWithSpaceIsRefusedLikeTheWorker) {
+  auto parsed = Parse({"--coordinator", "a b:1", "list"});
+  ASSERT_FALSE(parsed.ok());
+  EXPECT_THAT(parsed.status().message(), HasSubstr("bad character in host"));
+}
+
 TEST(ParseArgsTest, BadAddressFromEnvironmentSaysWhereItCameFrom) {
   auto parsed = Parse({"list"}, "oops");
   ASSERT_FALSE(parsed.ok());

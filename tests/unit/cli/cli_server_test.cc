@@ -15,6 +15,7 @@
 #include "absl/strings/str_split.h"
 #include "cli/client.h"
 #include "cli/commands.h"
+#include "cli/local.h"
 #include "common/clock.h"
 #include "gmock/gmock.h"
 #include "google/protobuf/struct.pb.h"
@@ -59,6 +60,7 @@ Result Cli(const std::vector<std::string>& args) {
   io.out = &out;
   io.err = &err;
   io.getenv = [](const char*) { return std::string(); };  // hermetic
+  io.run_local = LocalCommand;
   ClientFactory factory = [](const std::string& target,
                              const worker::ClientSecurity&) {
     auto channel =

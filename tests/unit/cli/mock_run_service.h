@@ -1,8 +1,8 @@
-// A gmock of RunService::StubInterface for CLI tests (grpc only generates one
-// with a plugin flag), and scripted stream readers for WatchRun and FollowRun.
+// The generated gmock of RunService::StubInterface for CLI tests, and
+// scripted stream readers for WatchRun and FollowRun.
 //
-// Invariant: only the sync methods the CLI calls are mocked; the async ones
-// return nullptr and must not be called.
+// Invariant: the mock is protoc's, never edited by hand; a StrictMock fails a
+// test on any call it does not expect, async ones included.
 // Thread safety: as gmock; use from the test's thread.
 #ifndef SKERRY_TESTS_UNIT_CLI_MOCK_RUN_SERVICE_H_
 #define SKERRY_TESTS_UNIT_CLI_MOCK_RUN_SERVICE_H_
@@ -14,6 +14,7 @@
 #include "gmock/gmock.h"
 #include "grpcpp/support/sync_stream.h"
 #include "skerry/v1/runs.grpc.pb.h"
+#include "skerry/v1/runs_mock.grpc.pb.h"
 
 namespace skerry::cli::testing {
 
@@ -74,118 +75,10 @@ class ScriptedFollower
   std::vector<skerry::v1::FollowRunRequest>* const asks_;
 };
 
-#define SKERRY_NO_ASYNC_UNARY(Method, Request, Response)                   \
-  grpc::ClientAsyncResponseReaderInterface<skerry::v1::Response>*          \
-      Async##Method##Raw(grpc::ClientContext*, const skerry::v1::Request&, \
-                         grpc::CompletionQueue*) override {                \
-    return nullptr;                                                        \
-  }                                                                        \
-  grpc::ClientAsyncResponseReaderInterface<skerry::v1::Response>*          \
-      PrepareAsync##Method##Raw(grpc::ClientContext*,                      \
-                                const skerry::v1::Request&,                \
-                                grpc::CompletionQueue*) override {         \
-    return nullptr;                                                        \
-  }
-
-class MockRunServiceStub : public skerry::v1::RunService::StubInterface {
- public:
-  MOCK_METHOD(grpc::Status, SubmitRun,
-              (grpc::ClientContext*, const skerry::v1::SubmitRunRequest&,
-               skerry::v1::SubmitRunResponse*),
-              (override));
-  MOCK_METHOD(grpc::Status, ListRuns,
-              (grpc::ClientContext*, const skerry::v1::ListRunsRequest&,
-               skerry::v1::ListRunsResponse*),
-              (override));
-  MOCK_METHOD(grpc::Status, GetRun,
-              (grpc::ClientContext*, const skerry::v1::RunRef&,
-               skerry::v1::GetRunResponse*),
-              (override));
-  MOCK_METHOD(grpc::Status, PauseRun,
-              (grpc::ClientContext*, const skerry::v1::RunRef&,
-               skerry::v1::RunSummary*),
-              (override));
-  MOCK_METHOD(grpc::Status, ResumeRun,
-              (grpc::ClientContext*, const skerry::v1::RunRef&,
-               skerry::v1::RunSummary*),
-              (override));
-  MOCK_METHOD(grpc::Status, StopRun,
-              (grpc::ClientContext*, const skerry::v1::RunRef&,
-               skerry::v1::RunSummary*),
-              (override));
-  MOCK_METHOD(grpc::Status, GetChampion,
-              (grpc::ClientContext*, const skerry::v1::RunRef&,
-               skerry::v1::GetChampionResponse*),
-              (override));
-  MOCK_METHOD(grpc::Status, GetHistory,
-              (grpc::ClientContext*, const skerry::v1::GetHistoryRequest&,
-               skerry::v1::GetHistoryResponse*),
-              (override));
-  MOCK_METHOD(grpc::Status, GetDigest,
-              (grpc::ClientContext*, const skerry::v1::RunRef&,
-               skerry::v1::DigestResponse*),
-              (override));
-  MOCK_METHOD(grpc::Status, SetPriority,
-              (grpc::ClientContext*, const skerry::v1::SetPriorityRequest&,
-               skerry::v1::RunSummary*),
-              (override));
-  MOCK_METHOD(grpc::Status, ForkRun,
-              (grpc::ClientContext*, const skerry::v1::ForkRunRequest&,
-               skerry::v1::SubmitRunResponse*),
-              (override));
-  MOCK_METHOD(grpc::Status, DeleteRun,
-              (grpc::ClientContext*, const skerry::v1::RunRef&,
-               skerry::v1::DeleteRunResponse*),
-              (override));
-  // The sync WatchRun() wraps this private virtual; the reader is owned by
-  // the caller.
-  MOCK_METHOD(grpc::ClientReaderInterface<skerry::v1::RunSummary>*, WatchRunRaw,
-              (grpc::ClientContext*, const skerry::v1::WatchRunRequest&),
-              (override));
-  // The sync FollowRun() wraps this; the stream is owned by the caller.
-  MOCK_METHOD((grpc::ClientReaderWriterInterface<skerry::v1::FollowRunRequest,
-                                                 skerry::v1::RunSummary>*),
-              FollowRunRaw, (grpc::ClientContext*), (override));
-
- private:
-  SKERRY_NO_ASYNC_UNARY(SubmitRun, SubmitRunRequest, SubmitRunResponse)
-  SKERRY_NO_ASYNC_UNARY(ListRuns, ListRunsRequest, ListRunsResponse)
-  SKERRY_NO_ASYNC_UNARY(GetRun, RunRef, GetRunResponse)
-  SKERRY_NO_ASYNC_UNARY(PauseRun, RunRef, RunSummary)
-  SKERRY_NO_ASYNC_UNARY(ResumeRun, RunRef, RunSummary)
-  SKERRY_NO_ASYNC_UNARY(StopRun, RunRef, RunSummary)
-  SKERRY_NO_ASYNC_UNARY(GetChampion, RunRef, GetChampionResponse)
-  SKERRY_NO_ASYNC_UNARY(GetHistory, GetHistoryRequest, GetHistoryResponse)
-  SKERRY_NO_ASYNC_UNARY(GetDigest, RunRef, DigestResponse)
-  SKERRY_NO_ASYNC_UNARY(SetPriority, SetPriorityRequest, RunSummary)
-  SKERRY_NO_ASYNC_UNARY(ForkRun, ForkRunRequest, SubmitRunResponse)
-  SKERRY_NO_ASYNC_UNARY(DeleteRun, RunRef, DeleteRunResponse)
-  grpc::ClientAsyncReaderInterface<skerry::v1::RunSummary>* AsyncWatchRunRaw(
-      grpc::ClientContext*, const skerry::v1::WatchRunRequest&,
-      grpc::CompletionQueue*, void*) override {
-    return nullptr;
-  }
-  grpc::ClientAsyncReaderInterface<skerry::v1::RunSummary>*
-  PrepareAsyncWatchRunRaw(grpc::ClientContext*,
-                          const skerry::v1::WatchRunRequest&,
-                          grpc::CompletionQueue*) override {
-    return nullptr;
-  }
-  grpc::ClientAsyncReaderWriterInterface<skerry::v1::FollowRunRequest,
-                                         skerry::v1::RunSummary>*
-  AsyncFollowRunRaw(grpc::ClientContext*, grpc::CompletionQueue*,
-                    void*) override {
-    return nullptr;
-  }
-  grpc::ClientAsyncReaderWriterInterface<skerry::v1::FollowRunRequest,
-                                         skerry::v1::RunSummary>*
-  PrepareAsyncFollowRunRaw(grpc::ClientContext*,
-                           grpc::CompletionQueue*) override {
-    return nullptr;
-  }
-};
-
-#undef SKERRY_NO_ASYNC_UNARY
+// The RunService stub mock is generated by protoc's gRPC plugin
+// (generate_mock_code=true, proto/CMakeLists.txt): every RPC, sync and async,
+// is there as soon as it is in runs.proto.
+using MockRunServiceStub = skerry::v1::MockRunServiceStub;
 
 }  // namespace skerry::cli::testing
 

@@ -8,6 +8,14 @@
 
 #include "gtest/gtest.h"
 
+// Random123 (Debian's librandom123-dev) is the reference implementation of
+// Philox by its authors; where its header is installed, our block function is
+// checked against it (RandomStreamTest.PhiloxEqualsRandom123).
+#if __has_include(<Random123/philox.h>)
+#include <Random123/philox.h>
+#define SKERRY_HAVE_RANDOM123 1
+#endif
+
 namespace skerry {
 namespace {
 
@@ -162,6 +170,36 @@ TEST(RandomStreamTest, BernoulliMatchesProbability) {
   EXPECT_NEAR(static_cast<double>(hits) / kDraws, 0.3, 0.0073);
   EXPECT_FALSE(rng.Bernoulli(0.0));
   EXPECT_TRUE(rng.Bernoulli(1.0));
+}
+
+// Philox4x32-10 against Random123's own philox4x32_R(10, ...) (Salmon et al.
+// 2011; the authors' reference header) on counters and keys drawn from a
+// simple generator: every word of the counter and key is exercised.
+TEST(Philox4x32Test, EqualsRandom123ReferenceHeader) {
+#ifndef SKERRY_HAVE_RANDOM123
+  GTEST_SKIP() << "Random123/philox.h is not installed (Debian package "
+                  "librandom123-dev); the known-answer tests above still run";
+#else
+  uint64_t x = 0x9e3779b97f4a7c15ull;  // splitmix64 as the input source
+  auto next = [&x]() {
+    x += 0x9e3779b97f4a7c15ull;
+    uint64_t z = x;
+    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ull;
+    z = (z ^ (z >> 27)) * 0x94d049bb133111ebull;
+    return static_cast<uint32_t>(z ^ (z >> 31));
+  };
+  for (int i = 0; i < 10000; ++i) {
+    const Block counter{next(), next(), next(), next()};
+    const std::array<uint32_t, 2> key{next(), next()};
+    philox4x32_ctr_t c = {{counter[0], counter[1], counter[2], counter[3]}};
+    philox4x32_key_t k = {{key[0], key[1]}};
+    const philox4x32_ctr_t want = philox4x32_R(10, c, k);
+    ASSERT_EQ(Philox4x32_10(counter, key),
+              (Block{want.v[0], want.v[1], want.v[2], want.v[3]}))
+        << "counter " << counter[0] << "," << counter[1] << "," << counter[2]
+        << "," << counter[3] << " key " << key[0] << "," << key[1];
+  }
+#endif
 }
 
 }  // namespace

@@ -16,6 +16,7 @@
 #include <string>
 #include <vector>
 
+#include "absl/strings/escaping.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_replace.h"
@@ -36,14 +37,10 @@ using ::testing::Not;
 // exists only in this test; the coordinator runs without access control,
 // so the worker sends it and nobody checks it.
 std::string CanaryToken() {
-  std::string hex;
+  std::string bytes(32, '\0');
   std::ifstream random("/dev/urandom", std::ios::binary);
-  for (int i = 0; i < 32; ++i) {
-    const int byte = random.get() & 0xff;
-    hex += "0123456789abcdef"[byte >> 4];
-    hex += "0123456789abcdef"[byte & 15];
-  }
-  return "skt_" + hex;
+  random.read(bytes.data(), static_cast<std::streamsize>(bytes.size()));
+  return "skt_" + absl::BytesToHexString(bytes);
 }
 
 // Why bwrap cannot run here, or "" when it can.

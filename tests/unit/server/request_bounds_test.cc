@@ -246,5 +246,50 @@ TEST(SpecBudgetTest, BudgetFlagsSetTheCoordinatorsBudgets) {
   }
 }
 
+// Regression: the coordinator took --listen unchecked (gRPC failed later
+// with no word on the flag); it now follows the same HOST:PORT rule as the
+// worker and the CLI, with port 0 for a free port.
+TEST(CoordinatorFlagsTest, ListenIsCheckedAsHostPort) {
+  for (const char* good : {"127.0.0.1:0", "[::1]:7431", "0.0.0.0:7431"}) {
+    SCOPED_TRACE(good);
+    absl::StatusOr<server::CoordinatorFlags> f =
+        Parse({"--db", "x.db", "--listen", good});
+    ASSERT_TRUE(f.ok()) << f.status();
+    EXPECT_EQ(f->options.listen_address, good);
+  }
+  for (const char* bad : {"::1:7431", "a b:1", "h:65536", "nohost", "h:"}) {
+    SCOPED_TRACE(bad);
+    absl::StatusOr<server::CoordinatorFlags> f =
+        Parse({"--db", "x.db", "--listen", bad});
+    ASSERT_FALSE(f.ok());
+    EXPECT_THAT(std::string(f.status().message()), HasSubstr("--listen"));
+    EXPECT_THAT(std::string(f.status().message()), HasSubstr(bad));
+  }
+  absl::StatusOr<server::CoordinatorFlags> http =
+      Parse({"--db", "x.db", "--http", "a b:80"});
+  ASSERT_FALSE(http.ok());
+  EXPECT_THAT(std::string(http.status().message()), HasSubstr("--http"));
+}
+
+// Regression: the coordinator refused --name=value, which the worker and
+// the CLI take.
+TEST(CoordinatorFlagsTest, NameEqualsValueIsAccepted) {
+  absl::StatusOr<server::CoordinatorFlags> f =
+      Parse({"--db=x.db", "--listen=127.0.0.1:0", "--lease-seconds=2.5",
+             "--max-name-bytes=32"});
+  ASSERT_TRUE(f.ok()) << f.status();
+  EXPECT_EQ(f->options.db_path, "x.db");
+  EXPECT_EQ(f->options.listen_address, "127.0.0.1:0");
+  EXPECT_EQ(f->options.lease, absl::Seconds(2.5));
+  EXPECT_EQ(f->options.budgets.max_name_bytes, 32u);
+}
+
+TEST(CoordinatorFlagsTest, FlagWithoutValueRefusesEqualsValue) {
+  absl::StatusOr<server::CoordinatorFlags> f =
+      Parse({"--db", "x.db", "--version=yes"});
+  ASSERT_FALSE(f.ok());
+  EXPECT_THAT(std::string(f.status().message()), HasSubstr("takes no value"));
+}
+
 }  // namespace
 }  // namespace skerry::api

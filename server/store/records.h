@@ -1,0 +1,53 @@
+// The rows of a run's genomes and per-generation statistics, as plain
+// structs: what the store writes and reads, and what the pure breeder
+// (server/engine/breeder.h) computes. This header knows no SQLite, so the
+// genetic algorithm can be built and tested without the store.
+//
+// Invariant: a GenomeRecord is keyed by (run_id, island, generation, slot);
+// id is the store's row id (0 until stored).
+// Thread safety: plain values; no shared state.
+#ifndef SKERRY_SERVER_STORE_RECORDS_H_
+#define SKERRY_SERVER_STORE_RECORDS_H_
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "skerry/v1/genome.pb.h"
+
+namespace skerry::store {
+
+struct GenomeRecord {
+  int64_t id = 0;
+  int64_t run_id = 0;
+  uint32_t island = 0;
+  uint32_t generation = 0;
+  uint32_t slot = 0;
+  skerry::v1::Origin origin = skerry::v1::SEEDED;
+  int64_t parent_a = 0;
+  int64_t parent_b = 0;
+  std::vector<double> genes;
+  double score = 0.0;
+  skerry::v1::EvalState state = skerry::v1::PENDING;
+  uint32_t attempts = 0;
+  std::string error;
+  double eval_seconds = 0.0;
+};
+
+struct StatsRecord {
+  int64_t run_id = 0;
+  uint32_t island = 0;
+  uint32_t generation = 0;
+  double best = 0.0;
+  double mean = 0.0;
+  double worst = 0.0;
+  double diversity = 0.0;
+  uint32_t evaluations = 0;
+  uint32_t failed = 0;
+  double eval_seconds = 0.0;
+  int64_t completed_ms = 0;
+};
+
+}  // namespace skerry::store
+
+#endif  // SKERRY_SERVER_STORE_RECORDS_H_
