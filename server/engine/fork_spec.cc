@@ -4,6 +4,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/spec.h"
+#include "common/strategy_spec.h"
 #include "google/protobuf/text_format.h"
 #include "google/protobuf/util/message_differencer.h"
 
@@ -42,6 +43,21 @@ absl::StatusOr<RunSpec> MergeForkChanges(const RunSpec& parent,
 
 absl::Status CheckForkChanges(const RunSpec& parent, const RunSpec& fork,
                               uint32_t generation) {
+  // A CMA-ES island's distribution is stored as of its newest generation
+  // only (strategy_states keeps one row per island), so it cannot be put
+  // back as it was at an earlier one: forks are of GA runs (whose strategy
+  // keeps nothing) until the states are kept per generation.
+  if (StrategyOf(parent) != StrategyKind::kGa) {
+    return absl::FailedPreconditionError(
+        "strategy: only runs of the GA can be forked; a CMA-ES island keeps "
+        "its search distribution as of its newest generation only, so it "
+        "cannot start again from an earlier one");
+  }
+  if (StrategyOf(fork) != StrategyKind::kGa) {
+    return absl::InvalidArgumentError(
+        "strategy: a fork may not change it (the parent's is the GA); the "
+        "fork starts from copies of the parent's genomes");
+  }
   if (fork.genome_length() != parent.genome_length()) {
     return Unchangeable("genome_length", absl::StrCat(parent.genome_length()),
                         absl::StrCat(fork.genome_length()));

@@ -73,6 +73,7 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(int64_t run_id) {
       if (row) out.genomes = static_cast<uint64_t>(q.ColumnInt(0));
     }
     for (const char* sql : {"DELETE FROM genome_metrics WHERE run_id = ?1",
+                            "DELETE FROM strategy_states WHERE run_id = ?1",
                             "DELETE FROM validations WHERE run_id = ?1",
                             "DELETE FROM genomes WHERE run_id = ?1",
                             "DELETE FROM generation_stats WHERE run_id = ?1",
@@ -84,7 +85,10 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(int64_t run_id) {
                             "series_id FROM series_runs)",
                             "DELETE FROM runs WHERE id = ?1"}) {
       SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare(sql));
-      st.BindInt(1, run_id);
+      // Every bind is checked (sqlite.h): bind only where there is a ?1.
+      if (absl::string_view(sql).find("?1") != absl::string_view::npos) {
+        st.BindInt(1, run_id);
+      }
       SKERRY_RETURN_IF_ERROR(st.Run());
     }
     SKERRY_RETURN_IF_ERROR(txn.Commit());

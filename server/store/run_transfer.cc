@@ -17,6 +17,7 @@
 #include <memory>
 #include <vector>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "common/status_macros.h"
@@ -154,12 +155,19 @@ absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
         "INSERT INTO main.genome_metrics (run_id, genome_id, name, value) "
         "SELECT run_id + ?1, genome_id + ?2, name, value FROM "
         "import_src.genome_metrics",
+        "INSERT INTO main.strategy_states (run_id, island, generation, state) "
+        "SELECT run_id + ?1, island, generation, state FROM "
+        "import_src.strategy_states",
     };
     for (const char* sql : kCopies) {
       SKERRY_ASSIGN_OR_RETURN(Statement st, conn_->Prepare(sql));
-      st.BindInt(1, run_off);
-      st.BindInt(2, genome_off);
-      st.BindInt(3, validation_off);
+      // Every bind is checked (sqlite.h): bind only the offsets used.
+      const int64_t offsets[] = {run_off, genome_off, validation_off};
+      for (int i = 0; i < 3; ++i) {
+        if (absl::StrContains(sql, absl::StrCat("?", i + 1))) {
+          st.BindInt(i + 1, offsets[i]);
+        }
+      }
       SKERRY_RETURN_IF_ERROR(st.Run());
     }
     SKERRY_ASSIGN_OR_RETURN(

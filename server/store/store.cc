@@ -166,9 +166,8 @@ CREATE TABLE fleet_keys (
 // states, with their checksums) by SchemaV10(); version 11 is the fleet key;
 // version 12 (row sums written by the hot statements) by SchemaV12().
 constexpr const char* kMigrations[] = {
-    kSchemaV1, kSchemaV2, kSchemaV3,      kSchemaV4, kSchemaAccess,
-    nullptr,   kSchemaV7, kSchemaMetrics, nullptr,   nullptr,
-    kSchemaFleetKey, nullptr};
+    kSchemaV1, kSchemaV2,      kSchemaV3, kSchemaV4, kSchemaAccess,   nullptr,
+    kSchemaV7, kSchemaMetrics, nullptr,   nullptr,   kSchemaFleetKey, nullptr};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -416,6 +415,10 @@ absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path,
           "version once without --read-only (it migrates the file), or "
           "serve it with the version that wrote it")));
     }
+    // The reads run on the read pool here too (its connections only read).
+    ReadPool::Options read_options;
+    read_options.busy_timeout_ms = options.busy_timeout_ms;
+    store->readers_ = std::make_unique<ReadPool>(path, read_options);
     return store;
   }
   // SQLite opens a file it may not write read-only without an error (the

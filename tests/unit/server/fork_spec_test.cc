@@ -85,6 +85,29 @@ TEST(ForkSpecTest, FieldsThatShapeTheGenomesAreRefusedByName) {
   }
 }
 
+// A CMA-ES island keeps its distribution as of its newest generation only, so
+// a fork (which starts at an earlier one) of a CMA-ES run is refused, naming
+// the field, rather than starting with a distribution it never had.
+TEST(ForkSpecTest, RunsOfAStrategyThatKeepsStateAreRefusedNamingTheStrategy) {
+  absl::StatusOr<RunSpec> spec = ParseSpecText(R"(
+name: "cma-parent"
+seed: 5
+genome_length: 6
+evaluator { builtin { function: "sphere" } }
+strategy { cma_es { } }
+stop { max_generations: 40 }
+)",
+                                               "parent");
+  ASSERT_TRUE(spec.ok()) << spec.status();
+  absl::StatusOr<RunSpec> parent = PrepareSpec(*spec);
+  ASSERT_TRUE(parent.ok()) << parent.status();
+  absl::StatusOr<RunSpec> merged = MergeForkChanges(*parent, "");
+  ASSERT_TRUE(merged.ok()) << merged.status();
+  absl::Status s = CheckForkChanges(*parent, *merged, 10);
+  EXPECT_TRUE(absl::IsFailedPrecondition(s)) << s;
+  EXPECT_THAT(s.message(), HasSubstr("strategy"));
+}
+
 TEST(ForkSpecTest, ScoresAreKeptOnlyWithTheSameEvaluatorAndSeed) {
   EXPECT_TRUE(ForkKeepsScores(Parent(), Forked("ga { elites: 3 }")));
   EXPECT_FALSE(ForkKeepsScores(Parent(), Forked("seed: 6")));
