@@ -193,7 +193,8 @@ TEST_F(AccessStoreTest, Version4DatabaseIsMigratedToTheAccessTables) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
+      std::string(skerry::testing::kUndoVersion11) +
+          skerry::testing::kUndoVersion10 +
           std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
                       "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +

@@ -116,7 +116,8 @@ TEST_F(SeriesStoreTest, DatabaseBeforeSeriesGainsTheSeriesTables) {
   std::vector<GenomeRecord> genomes;
   RunRecord run = CreateRun(1, &genomes);
   store_.reset();
-  RawExec(path(), std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
+  RawExec(path(), std::string(skerry::testing::kUndoVersion11) +
+                      skerry::testing::kUndoVersion10 +
                       "DROP TABLE series; DROP TABLE series_runs; "
                       "UPDATE schema_version SET version = 8;");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());

@@ -54,7 +54,8 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
   ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
   store_.reset();
   RawExec(path(),
-          std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
+          std::string(skerry::testing::kUndoVersion11) +
+              skerry::testing::kUndoVersion10 +
               std::string("DROP TABLE series; DROP TABLE series_runs; DROP "
                           "TABLE genome_metrics; "
                           "ALTER TABLE workers DROP COLUMN sandbox; ") +
@@ -83,7 +84,8 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
+      std::string(skerry::testing::kUndoVersion11) +
+          skerry::testing::kUndoVersion10 +
           std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
                       "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
@@ -114,7 +116,8 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
+      std::string(skerry::testing::kUndoVersion11) +
+          skerry::testing::kUndoVersion10 +
           std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
                       "genome_metrics; "
                       "ALTER TABLE workers DROP COLUMN sandbox; ") +
@@ -143,7 +146,8 @@ TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion11) + skerry::testing::kUndoVersion10 +
+      std::string(skerry::testing::kUndoVersion11) +
+          skerry::testing::kUndoVersion10 +
           "DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
           "genome_metrics; "
           "UPDATE schema_version SET version = 7; "
