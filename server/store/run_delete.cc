@@ -97,6 +97,7 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(int64_t run_id) {
   // auto_vacuum=NONE (a file made before this version) it does nothing, and
   // the free pages are reused by later rows instead.
   auto pages = [this]() -> absl::StatusOr<int64_t> {
+    mu_.AssertHeld();  // called under the lock above (for -Wthread-safety)
     SKERRY_ASSIGN_OR_RETURN(auto q, conn_->Prepare("PRAGMA page_count"));
     SKERRY_ASSIGN_OR_RETURN(bool row, q.Step());
     return row ? q.ColumnInt(0) : 0;

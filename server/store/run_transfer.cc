@@ -113,6 +113,7 @@ absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
   }
   Imported out;
   absl::Status copied = [&]() -> absl::Status {
+    mu_.AssertHeld();  // called under the lock above (for -Wthread-safety)
     SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
     SKERRY_ASSIGN_OR_RETURN(
         int64_t run_off,
