@@ -1,5 +1,6 @@
 #include "server/api/request_bounds.h"
 
+#include <algorithm>
 #include <string>
 #include <unordered_map>
 
@@ -158,6 +159,17 @@ const FieldBound* FindBound(const FieldDescriptor* field) {
 
 absl::Status CheckRequestBounds(const Message& request) {
   return Walk(request, "");
+}
+
+absl::Status CheckRequestId(const std::string& id) {
+  if (id.size() > kMaxRequestIdBytes ||
+      !std::all_of(id.begin(), id.end(),
+                   [](char c) { return c > ' ' && c < 127; })) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("request_id: up to ", kMaxRequestIdBytes,
+                     " printable ASCII characters, no spaces"));
+  }
+  return absl::OkStatus();
 }
 
 }  // namespace skerry::api

@@ -21,6 +21,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <string>
 #include <vector>
 
 #include "absl/status/status.h"
@@ -49,6 +50,12 @@ const FieldBound* FindBound(const google::protobuf::FieldDescriptor* field);
 // InvalidArgument naming the first field over its bound ("results[3].error:
 // at most N bytes, got M"); quotes no content.
 absl::Status CheckRequestBounds(const google::protobuf::Message& request);
+
+// A client-chosen request id (SubmitRun, ForkRun, SubmitSeries): empty, or up
+// to kMaxRequestIdBytes printable ASCII characters without spaces; otherwise
+// INVALID_ARGUMENT naming the field.
+inline constexpr size_t kMaxRequestIdBytes = 128;
+absl::Status CheckRequestId(const std::string& id);
 
 }  // namespace skerry::api
 

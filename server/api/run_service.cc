@@ -5,13 +5,13 @@
 #include "absl/strings/str_cat.h"
 #include "common/quote.h"
 #include "server/api/grpc_status.h"
+#include "server/api/request_bounds.h"
 #include "server/api/validation_service.h"
 
 namespace skerry::api {
 namespace {
 
 constexpr size_t kMaxSpecTextBytes = 1 << 20;
-constexpr size_t kMaxRequestIdBytes = 128;
 
 int64_t RunId(uint64_t id) { return static_cast<int64_t>(id); }
 
@@ -56,12 +56,8 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
         grpc::StatusCode::INVALID_ARGUMENT,
         absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes"));
   }
-  if (req->request_id().size() > kMaxRequestIdBytes ||
-      !std::all_of(req->request_id().begin(), req->request_id().end(),
-                   [](char c) { return c > ' ' && c < 127; })) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("request_id: up to ", kMaxRequestIdBytes,
-                                     " printable ASCII characters, no spaces"));
+  if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
+    return ToGrpc(s);
   }
   // The coordinator's budgets, before the engine allocates anything.
   absl::StatusOr<skerry::v1::RunSpec> prepared =

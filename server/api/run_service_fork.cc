@@ -6,6 +6,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "server/api/grpc_status.h"
+#include "server/api/request_bounds.h"
 #include "server/api/run_service.h"
 #include "server/engine/fork_spec.h"
 
@@ -13,7 +14,6 @@ namespace skerry::api {
 namespace {
 
 constexpr size_t kMaxChangesBytes = 1 << 20;
-constexpr size_t kMaxRequestIdBytes = 128;
 
 // What the fork stores as its spec text: the parent's, then the changes as
 // comments, so that the text says where the run came from.
@@ -39,12 +39,8 @@ grpc::Status RunServiceImpl::ForkRun(grpc::ServerContext* ctx,
         grpc::StatusCode::INVALID_ARGUMENT,
         absl::StrCat("changes: at most ", kMaxChangesBytes, " bytes"));
   }
-  if (req->request_id().size() > kMaxRequestIdBytes ||
-      !std::all_of(req->request_id().begin(), req->request_id().end(),
-                   [](char c) { return c > ' ' && c < 127; })) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("request_id: up to ", kMaxRequestIdBytes,
-                                     " printable ASCII characters, no spaces"));
+  if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
+    return ToGrpc(s);
   }
   const int64_t parent_id = static_cast<int64_t>(req->run_id());
   absl::StatusOr<store::RunRecord> parent = store_->GetRun(parent_id);

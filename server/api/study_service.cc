@@ -6,12 +6,12 @@
 
 #include "absl/strings/str_cat.h"
 #include "server/api/grpc_status.h"
+#include "server/api/request_bounds.h"
 
 namespace skerry::api {
 namespace {
 
 constexpr size_t kMaxSpecTextBytes = 1 << 20;
-constexpr size_t kMaxRequestIdBytes = 128;
 
 bool NameChar(char c) {
   return std::isalnum(static_cast<unsigned char>(c)) || c == '.' || c == '-' ||
@@ -70,11 +70,8 @@ grpc::Status StudyServiceImpl::SubmitSeries(
     return invalid(
         absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes"));
   }
-  if (req->request_id().size() > kMaxRequestIdBytes ||
-      !std::all_of(req->request_id().begin(), req->request_id().end(),
-                   [](char c) { return c > ' ' && c < 127; })) {
-    return invalid(absl::StrCat("request_id: up to ", kMaxRequestIdBytes,
-                                " printable ASCII characters, no spaces"));
+  if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
+    return invalid(std::string(s.message()));
   }
   if (req->seeds().empty() ||
       static_cast<size_t>(req->seeds().size()) > kMaxSeriesSeeds) {

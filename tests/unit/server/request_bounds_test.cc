@@ -69,6 +69,20 @@ TEST(RequestBoundsTest, EveryStringAndListOfEveryRequestHasABound) {
   }
 }
 
+// The one rule for client-chosen request ids of SubmitRun, ForkRun and
+// SubmitSeries (each of them used to spell it out).
+TEST(RequestBoundsTest, RequestIdsArePrintableWithoutSpacesAndBounded) {
+  EXPECT_TRUE(CheckRequestId("").ok());
+  EXPECT_TRUE(CheckRequestId(std::string(kMaxRequestIdBytes, 'a')).ok());
+  for (const std::string& bad :
+       {std::string(kMaxRequestIdBytes + 1, 'a'), std::string("a b"),
+        std::string("tab\there"), std::string("\xc3\xa9")}) {
+    absl::Status s = CheckRequestId(bad);
+    EXPECT_TRUE(absl::IsInvalidArgument(s)) << bad;
+    EXPECT_THAT(s.message(), HasSubstr("request_id"));
+  }
+}
+
 TEST(RequestBoundsTest, EveryRowNamesARealField) {
   const auto* pool = google::protobuf::DescriptorPool::generated_pool();
   for (const FieldBound& b : RequestBounds()) {
