@@ -43,20 +43,20 @@ const std::vector<FieldBound>* BuildTable() {
        "the engine (common/metric_bounds.h), with TaskResult.metrics"},
       // RunService
       {"skerry.v1.SubmitRunRequest.spec_text", 0, 1 * kMiB, ""},
-      {"skerry.v1.SubmitRunRequest.request_id", 0, 128,
+      {"skerry.v1.SubmitRunRequest.request_id", 0, kMaxRequestIdBytes,
        "RunService.SubmitRun: printable ASCII, no spaces"},
       {"skerry.v1.SubmitRunRequest.spec", 0, 0,
        "the coordinator's budgets (--max-name-bytes, --max-evaluator-bytes, "
        "--max-task-bytes, --max-generation-genes) and ValidateSpec"},
       {"skerry.v1.ForkRunRequest.changes", 0, 1 * kMiB, ""},
-      {"skerry.v1.ForkRunRequest.request_id", 0, 128,
+      {"skerry.v1.ForkRunRequest.request_id", 0, kMaxRequestIdBytes,
        "RunService.ForkRun: printable ASCII, no spaces"},
       // StudyService
       {"skerry.v1.SubmitSeriesRequest.spec_text", 0, 1 * kMiB, ""},
       {"skerry.v1.SubmitSeriesRequest.seeds", 100, 0, ""},
       {"skerry.v1.SubmitSeriesRequest.name", 0, 64,
        "StudyService.SubmitSeries: letters, digits, '.', '-', '_'"},
-      {"skerry.v1.SubmitSeriesRequest.request_id", 0, 128,
+      {"skerry.v1.SubmitSeriesRequest.request_id", 0, kMaxRequestIdBytes,
        "StudyService.SubmitSeries: printable ASCII, no spaces"},
       {"skerry.v1.SubmitSeriesRequest.spec", 0, 0,
        "the coordinator's budgets, as SubmitRunRequest.spec"},

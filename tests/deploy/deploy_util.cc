@@ -73,6 +73,14 @@ std::string SlowSphereSpec(const std::string& name, int islands, int population,
       "stop { max_generations: ", generations, " }\n");
 }
 
+CommandResult RunLocalReference(const std::string& spec,
+                                const std::string& db) {
+  return RunCommand(
+      {SKERRY_CLI_BIN, "local", spec, "--workers", "2", "--db", db,
+       "--evaluator-dirs", SKERRY_SOURCE_DIR "/tests/deploy/programs"},
+      absl::Seconds(600));
+}
+
 int ListeningPort(const std::string& log) {
   const std::string marker = "listening on port ";
   const size_t at = log.find(marker);

@@ -38,6 +38,11 @@ CommandResult RunTool(std::vector<std::string> argv,
 std::string SlowSphereSpec(const std::string& name, int islands, int population,
                            int generations, double seconds);
 
+// `skerry local SPEC --workers 2 --db DB`, the loopback reference of a run
+// disturbed by the network tests: its evaluators are sandboxed like a
+// worker's, so the test programs' folder is passed as --evaluator-dirs.
+CommandResult RunLocalReference(const std::string& spec, const std::string& db);
+
 // The port in a coordinator's "listening on port N" line, or 0.
 int ListeningPort(const std::string& log);
 

@@ -191,12 +191,8 @@ class NetnsTest : public ::testing::Test {
     CommandResult digest = Cli({"digest", "1"});
     EXPECT_EQ(digest.exit_code, 0) << digest.output;
 
-    CommandResult local = testing::RunCommand(
-        {SKERRY_CLI_BIN, "local", spec_, "--workers", "2", "--db",
-         dir_.File("loopback.db"),
-         // local sandboxes its evaluators like a worker
-         "--evaluator-dirs", SKERRY_SOURCE_DIR "/tests/deploy/programs"},
-        absl::Seconds(600));
+    CommandResult local =
+        testing::RunLocalReference(spec_, dir_.File("loopback.db"));
     EXPECT_EQ(local.exit_code, 0) << local.output;
     const std::string expected = testing::DigestIn(local.output);
     EXPECT_FALSE(expected.empty()) << local.output;

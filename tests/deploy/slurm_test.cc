@@ -199,12 +199,8 @@ class SlurmTest : public ::testing::Test {
   // the database passes --check.
   void ExpectFinishedAsOnLoopback(const std::string& spec) {
     EXPECT_THAT(Cli({"show", "1"}).output, HasSubstr("finished"));
-    CommandResult local = testing::RunCommand(
-        {SKERRY_CLI_BIN, "local", spec, "--workers", "2", "--db",
-         dir_.File("loopback.db"),
-         // local sandboxes its evaluators like a worker
-         "--evaluator-dirs", SKERRY_SOURCE_DIR "/tests/deploy/programs"},
-        absl::Seconds(600));
+    CommandResult local =
+        testing::RunLocalReference(spec, dir_.File("loopback.db"));
     ASSERT_EQ(local.exit_code, 0) << local.output;
     EXPECT_EQ(testing::DigestIn(Cli({"digest", "1"}).output),
               testing::DigestIn(local.output));
