@@ -7,6 +7,7 @@
 #include <sys/resource.h>
 #include <sys/stat.h>
 #include <sys/syscall.h>
+#include <sys/wait.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -79,28 +80,55 @@ void SetNonBlocking(int fd) {
   if (flags >= 0) fcntl(fd, F_SETFL, flags | O_NONBLOCK);
 }
 
+namespace {
+
+// The guardian's answer to its worker's death (and to a SIGTERM from anyone):
+// the whole process group goes, itself included.
+void KillOwnGroup(int) { kill(0, SIGKILL); }
+
+// In the guardian: waits for the program and ends as it ended, so that the
+// worker's waitpid(2) sees the program's own exit status or signal.
+[[noreturn]] void EndAsTheProgramEnds(pid_t program) {
+  int status = 0;
+  while (waitpid(program, &status, 0) < 0) {
+    if (errno != EINTR) _exit(127);
+  }
+  if (WIFEXITED(status)) _exit(WEXITSTATUS(status));
+  const int sig = WTERMSIG(status);
+  struct sigaction dfl {};
+  dfl.sa_handler = SIG_DFL;
+  sigaction(sig, &dfl, nullptr);
+  kill(getpid(), sig);
+  _exit(128 + sig);
+}
+
+}  // namespace
+
 // Between fork and exec only async-signal-safe calls are allowed.
 [[noreturn]] void ExecChild(int in, int out, int err, int status_fd,
                             const char* program, char* const* argv,
                             char* const* envp, const char* working_dir,
                             int max_fd, const ChildLimits& limits) {
   setpgid(0, 0);
-  // Die with the worker, even when it is killed with SIGKILL.
-  prctl(PR_SET_PDEATHSIG, SIGKILL);
+  // This process stays as the group's guardian: when the worker dies, even by
+  // SIGKILL, it kills the whole group, so that no process the program
+  // started outlives the worker (PR_SET_PDEATHSIG reaches only a direct
+  // child, and the kernel clears it in that child's own children).
+  struct sigaction guard {};
+  guard.sa_handler = KillOwnGroup;
+  sigaction(SIGTERM, &guard, nullptr);
+  prctl(PR_SET_PDEATHSIG, SIGTERM);
   if (getppid() != limits.parent) _exit(127);  // it died before the prctl
   struct rlimit no_core {};
   setrlimit(RLIMIT_CORE, &no_core);
-  if (limits.address_space > 0) {
-    struct rlimit as {};
-    as.rlim_cur = as.rlim_max = static_cast<rlim_t>(limits.address_space);
-    setrlimit(RLIMIT_AS, &as);
-  }
   sigset_t none;
   sigemptyset(&none);
   sigprocmask(SIG_SETMASK, &none, nullptr);
   struct sigaction dfl {};
   dfl.sa_handler = SIG_DFL;
-  for (int sig = 1; sig < NSIG; ++sig) sigaction(sig, &dfl, nullptr);
+  for (int sig = 1; sig < NSIG; ++sig) {
+    if (sig != SIGTERM) sigaction(sig, &dfl, nullptr);
+  }
   if (dup2(in, 0) < 0 || dup2(out, 1) < 0 || dup2(err, 2) < 0) {
     const int e = errno;
     (void)!write(status_fd, &e, sizeof e);
@@ -122,6 +150,27 @@ void SetNonBlocking(int fd) {
     const int e = -errno;  // negative: chdir, not exec
     (void)!write(status_fd, &e, sizeof e);
     _exit(127);
+  }
+  const pid_t guardian = getpid();
+  const pid_t child = _Fork();  // async-signal-safe, unlike fork(3)
+  if (child < 0) {
+    const int e = errno;
+    (void)!write(status_fd, &e, sizeof e);
+    _exit(127);
+  }
+  if (child > 0) {
+    // The guardian keeps no end of the program's pipes: their ends close
+    // when the program's do, and the status pipe when it execs.
+    for (int fd : {0, 1, 2, status_fd}) close(fd);
+    EndAsTheProgramEnds(child);
+  }
+  prctl(PR_SET_PDEATHSIG, SIGKILL);
+  if (getppid() != guardian) _exit(127);
+  sigaction(SIGTERM, &dfl, nullptr);
+  if (limits.address_space > 0) {  // the program's alone
+    struct rlimit as {};
+    as.rlim_cur = as.rlim_max = static_cast<rlim_t>(limits.address_space);
+    setrlimit(RLIMIT_AS, &as);
   }
   execve(program, argv, envp);
   const int e = errno;

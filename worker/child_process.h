@@ -42,11 +42,15 @@ struct ChildLimits {
   pid_t parent = 0;            // the forking process: the child dies with it
   uint64_t address_space = 0;  // RLIMIT_AS in bytes; 0: unchanged
 };
-// In the child after fork: own process group, SIGKILL when the parent dies
-// (PR_SET_PDEATHSIG, and an exit if it is already gone), no core files, the
-// limits, default signals, the three pipes as stdin/stdout/stderr, every
-// other descriptor closed, then exec. On failure errno is written to
-// status_fd (negated for chdir) and it exits 127.
+// In the child after fork: own process group, no core files, default
+// signals, the three pipes as stdin/stdout/stderr, every other descriptor
+// closed; then it forks once more. The program runs in the second child
+// (SIGKILL when its parent dies, the limits, exec). The first stays as the
+// group's guardian: when the worker dies, even by SIGKILL (PR_SET_PDEATHSIG,
+// and an exit if it is already gone), it kills the whole group, so nothing
+// the program started outlives the worker; otherwise it waits for the
+// program and ends as the program ended (exit status or signal). On failure
+// errno is written to status_fd (negated for chdir) and it exits 127.
 // Why fork and not posix_spawn (which the sandbox probe and the tests'
 // processes use): PR_SET_PDEATHSIG, the rlimits and the check that the parent
 // is still there cannot be set through posix_spawn attributes.

@@ -16,7 +16,8 @@
 // Create() makes SIGPIPE ignored in the whole process (if it was at its
 // default), so a write to a dead child is an EPIPE error instead of a signal.
 // The child gets the default signal mask and dispositions, its own process
-// group, SIGKILL when the worker dies (PR_SET_PDEATHSIG), no core files, a
+// group, whose every process dies with the worker, even one killed by SIGKILL
+// (a guardian process leads the group: child_process.h), no core files, a
 // scrubbed environment (no token, nothing of the worker's but PATH, locale
 // and the like) and no descriptor of the worker's but its stdin, stdout and
 // stderr. With a sandbox (sandbox.h) it runs inside bubblewrap.

@@ -144,8 +144,13 @@ void Engine::MarkDamaged(int64_t run_id, const absl::Status& why,
 void Engine::NoteRunWriteFailure(int64_t run_id, const absl::Status& s) {
   if (absl::IsDataLoss(s)) {
     MarkDamaged(run_id, s);
-  } else {
+  } else if (IsStorageTrouble(s)) {
     NoteWriteFailure(s);
+  } else if (auto it = runs_.find(run_id); it != runs_.end()) {
+    // A bug, not the disk: the same write would fail every tick.
+    FailRun(*it->second, absl::InternalError(absl::StrCat(
+                             "the coordinator could not go on with this run: ",
+                             s.ToString())));
   }
 }
 
@@ -401,9 +406,15 @@ absl::StatusOr<ReportOutcome> Engine::Report(
 
 void Engine::Idle() {
   absl::MutexLock l(&mu_);
+  for (int pass = 0; pass < kImmediatePasses && IdlePass(); ++pass) {
+  }
+}
+
+bool Engine::IdlePass() {
+  const bool held = !write_problem_.ok();
   RetryWrites();
   // While writes fail there is nothing to retry or breed.
-  if (!write_problem_.ok()) return;
+  if (!write_problem_.ok()) return false;
   // Retry what a failed write left undone.
   std::vector<int64_t> ids;
   for (const auto& [id, run] : runs_) ids.push_back(id);
@@ -417,20 +428,17 @@ void Engine::Idle() {
       NoteRunWriteFailure(id, s);
     }
   }
+  return held && !write_problem_.ok();
 }
 
 void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
                           const std::function<void()>& answer) {
-  struct Applied {
-    Run* run;
-    uint32_t island;
-    uint32_t slot;
-    store::ResultUpdate update;
-  };
+  using Applied = AppliedResult;
   absl::MutexLock l(&mu_);
   std::vector<Applied> applied;
   std::vector<int64_t> claimed;  // task ids
   std::vector<store::ValidationUpdate> validated;
+  std::vector<ValidatedResult> validated_from;  // one for each of validated
   std::vector<ReportOutcome> outcomes(jobs.size());
   for (size_t j = 0; j < jobs.size(); ++j) {
     for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
@@ -455,6 +463,7 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
       }
       if (info->kind == skerry::v1::TASK_VALIDATE) {
         validated.push_back(ValidationOutcome(*info, r, failed));
+        validated_from.push_back({j, &r, *info});
         claimed.push_back(info->task_id());
         ++outcomes[j].accepted;
         continue;
@@ -494,7 +503,8 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
         u.score = r.score();
         u.metrics.insert(r.metrics().begin(), r.metrics().end());
       }
-      applied.push_back({&run, info->island, info->slot, std::move(u)});
+      applied.push_back({j, &r, &run, info->island, info->slot,
+                         run.record.spec.max_attempts(), std::move(u)});
       ++outcomes[j].accepted;
     }
   }
@@ -504,6 +514,17 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
   absl::Status committed = updates.empty() && validated.empty()
                                ? absl::OkStatus()
                                : store_->CommitResults(updates, validated);
+  if (!committed.ok() && !IsStorageTrouble(committed) &&
+      !absl::IsDataLoss(committed)) {
+    // Neither the disk nor damage: one result the store will not take must
+    // not fail the others with it, nor come back every time it is resent.
+    std::fprintf(stderr,
+                 "skerry-coordinator: results not committed together (%s); "
+                 "committing them one by one\n",
+                 committed.ToString().c_str());
+    SalvageBatch(&applied, &validated, &validated_from, &outcomes);
+    committed = absl::OkStatus();
+  }
   if (!committed.ok()) {
     queue_->Unclaim(claimed);
     std::fprintf(stderr, "results not committed: %s\n",
@@ -612,15 +633,23 @@ std::string Engine::FailureText(const skerry::v1::TaskResult& r) {
   return text;
 }
 
+bool Engine::IsStorageTrouble(const absl::Status& s) {
+  // The store's mapping (store/sqlite.cc, SqliteStatus): busy, I/O errors and
+  // files it may not write are UNAVAILABLE, a full disk RESOURCE_EXHAUSTED.
+  return absl::IsUnavailable(s) || absl::IsResourceExhausted(s);
+}
+
 void Engine::NoteWriteFailure(const absl::Status& s) {
   if (s.ok()) return;
-  switch (s.code()) {
-    case absl::StatusCode::kResourceExhausted:
-    case absl::StatusCode::kUnavailable:
-    case absl::StatusCode::kInternal:
-      break;
-    default:
-      return;  // not the storage's fault
+  if (!IsStorageTrouble(s)) {
+    // Not the storage's fault: holding the fleet would not fix it.
+    if (absl::IsInternal(s)) {
+      std::fprintf(stderr,
+                   "skerry-coordinator: internal error (%s); the work that "
+                   "met it fails, the rest goes on\n",
+                   s.ToString().c_str());
+    }
+    return;
   }
   if (!write_problem_.ok()) return;
   write_problem_ = s;

@@ -61,7 +61,17 @@
 // answering reads, probes the database every second of the engine's clock (the
 // committer's tick), and resumes by itself when a write succeeds. Workers keep
 // their results and report them again. Every write path goes through this, the
-// fleet's Join included (NoteStorageTrouble).
+// fleet's Join included (NoteStorageTrouble). A probe that succeeds lifts the
+// hold, and when the pass's own writes fail again at once (a lock taken
+// between the probe and the work) the committer tries again at once, a few
+// times, rather than a tick later.
+//
+// Only storage trouble (UNAVAILABLE, RESOURCE_EXHAUSTED from the store) holds
+// the fleet. Any other failed write (INTERNAL, a constraint: a bug, or a value
+// the store will not take) is logged and fails only what caused it: a batch of
+// results is committed result by result and the one that fails alone is
+// stored as a failed attempt naming the error; a run whose breeding fails so
+// ends FAILED_RUN with the error; a call gets the error back.
 //
 // Damage is not storage trouble. A run whose rows fail their checksums
 // (store/row_sums.h) or whose pages SQLite finds corrupt (DATA_LOSS) is marked
@@ -246,6 +256,37 @@ class Engine {
                     const std::function<void()>& answer)
       ABSL_LOCKS_EXCLUDED(mu_);
   void Idle() ABSL_LOCKS_EXCLUDED(mu_);
+  // One pass of Idle: lifts the hold when a probe write succeeds, then breeds
+  // what failed writes left undone. True when this pass lifted the hold and
+  // its own writes set it again (a write failed between the probe and the
+  // work, as a busy lock does): worth another pass at once.
+  bool IdlePass() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // A claimed result of a report batch, on its way to the store.
+  struct AppliedResult {
+    size_t job;  // its report's index in the batch
+    const skerry::v1::TaskResult* result;
+    Run* run;
+    uint32_t island;
+    uint32_t slot;
+    uint32_t max_attempts;  // the run's
+    store::ResultUpdate update;
+  };
+  struct ValidatedResult {
+    size_t job;
+    const skerry::v1::TaskResult* result;
+    scheduler::TaskInfo info;
+  };
+  // The batch's commit failed for a reason that is neither the storage's nor
+  // damage (a bug, or a result the store will not hold: engine_salvage.cc).
+  // Commits each result alone instead; one that fails alone is stored as a
+  // failed attempt naming the error, and one that cannot be stored even so is
+  // refused (in `outcomes`) and queued again. On return `applied` and
+  // `validated` hold what was committed; the rest is unclaimed.
+  void SalvageBatch(std::vector<AppliedResult>* applied,
+                    std::vector<store::ValidationUpdate>* validated,
+                    std::vector<ValidatedResult>* validated_from,
+                    std::vector<ReportOutcome>* outcomes)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Breeds or finishes every island of the run whose generation is complete.
   absl::Status Advance(Run& run) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // One step for one island; returns true when something changed.
@@ -295,15 +336,23 @@ class Engine {
                    const store::RunRecord* record = nullptr)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // A commit for run `run_id` failed: damage marks it, storage trouble holds
-  // the work (NoteWriteFailure).
+  // the work (NoteWriteFailure), and anything else (a bug: retrying will not
+  // fix it) fails that run alone with the error, so that it neither stops the
+  // fleet nor repeats every tick.
   void NoteRunWriteFailure(int64_t run_id, const absl::Status& s)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  // A write failed for a reason of the storage (full disk, I/O error, busy):
-  // stop handing out work until ProbeWrite succeeds. Other errors pass.
+  // A write failed for a reason of the storage (UNAVAILABLE: busy, I/O
+  // error, a file it may not write; RESOURCE_EXHAUSTED: a full disk): stop
+  // handing out work until ProbeWrite succeeds. Any other error (INTERNAL: a
+  // bug) is logged and holds nothing: the caller fails or skips its work.
   void NoteWriteFailure(const absl::Status& s)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Called by the committer: clears the problem once a probe write succeeds.
   void RetryWrites() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // UNAVAILABLE or RESOURCE_EXHAUSTED: the storage's trouble, which holds.
+  static bool IsStorageTrouble(const absl::Status& s);
+  // Idle passes run at once, at most, before waiting for the next tick.
+  static constexpr int kImmediatePasses = 4;
 
   // Constant after construction.
   store::Store* const store_;

@@ -163,13 +163,21 @@ class Checker {
             skerry::v1::CROSSOVER, " AND parent_b IS NULL)) LIMIT 20")));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "completed generation has no statistics",
-        "SELECT 'island', g.island, 'generation', g.generation FROM (SELECT "
-        "island, "
-        "generation FROM genomes WHERE run_id = ?1 GROUP BY island, generation "
-        "HAVING sum(eval_state = 1) = 0) g JOIN islands i ON i.run_id = ?1 AND "
-        "i.idx = g.island LEFT JOIN generation_stats s ON s.run_id = ?1 AND "
-        "s.island = g.island AND s.generation = g.generation WHERE s.run_id IS "
-        "NULL AND (g.generation < i.generation OR i.done = 1) LIMIT 20"));
+        absl::StrCat(
+            "SELECT 'island', g.island, 'generation', g.generation FROM "
+            "(SELECT "
+            "island, "
+            "generation FROM genomes WHERE run_id = ?1 GROUP BY island, "
+            "generation "
+            "HAVING sum(eval_state = 1) = 0) g JOIN islands i ON i.run_id = ?1 "
+            "AND "
+            "i.idx = g.island JOIN runs r ON r.id = ?1 LEFT JOIN "
+            "generation_stats "
+            "s ON s.run_id = ?1 AND s.island = g.island AND s.generation = "
+            "g.generation WHERE s.run_id IS NULL AND (g.generation < "
+            "i.generation "
+            "OR (i.done = 1 AND r.state != ",
+            skerry::v1::FAILED_RUN, ")) LIMIT 20")));
     SKERRY_RETURN_IF_ERROR(
         Expect(run, "evaluation counter differs from the evaluations stored",
                "SELECT 'counter', r.evaluations, 'stored', (SELECT count(*) "

@@ -11,7 +11,9 @@
 //     generation (the previous one, in reproducible mode);
 //   - elites and migrants have a parent; seeded genomes and immigrants have
 //   none;
-//   - each completed generation has its statistics row;
+//   - each completed generation has its statistics row (but the last one of
+//     a run that failed: the failure may have stopped it before they were
+//     written, as an internal error while breeding does);
 //   - the run's evaluation counter equals the evaluations stored;
 //   - every island has a strategy state that parses, of the island's current
 //     generation while the island still searches;

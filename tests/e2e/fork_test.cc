@@ -100,21 +100,16 @@ class ForkTest : public ::testing::Test {
         SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
     ASSERT_TRUE(c.ok()) << c.status();
     coordinator_.emplace(*std::move(c));
-    for (int i = 0; i < 2; ++i) {
-      absl::StatusOr<Process> w = Process::Start(
-          {SKERRY_WORKER_BIN, "--coordinator", coordinator_->address(),
-           "--threads", "2", "--batch", "8", "--name", absl::StrCat("w", i)},
-          dir_.File(absl::StrCat("worker", i, ".log")));
-      ASSERT_TRUE(w.ok()) << w.status();
-      workers_.push_back(std::move(*w));
-    }
+    absl::StatusOr<std::vector<Process>> fleet =
+        testing::StartWorkers(SKERRY_WORKER_BIN, coordinator_->address(), 2, 2,
+                              "w", dir_.File("worker"));
+    ASSERT_TRUE(fleet.ok()) << fleet.status();
+    workers_ = std::move(*fleet);
   }
 
   CommandResult Cli(std::vector<std::string> args) {
-    std::vector<std::string> argv = {SKERRY_CLI_BIN, "--coordinator",
-                                     coordinator_->address()};
-    argv.insert(argv.end(), args.begin(), args.end());
-    return RunCommand(argv, absl::Seconds(300));
+    return testing::RunCli(SKERRY_CLI_BIN, coordinator_->address(), args,
+                           absl::Seconds(300));
   }
 
   // Submits the spec and follows run 1 to its end.

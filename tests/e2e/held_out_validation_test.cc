@@ -19,6 +19,7 @@
 #include "skerry/v1/validation.grpc.pb.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
+#include "tests/support/specs.h"
 
 namespace skerry {
 namespace {
@@ -26,17 +27,7 @@ namespace {
 using ::testing::HasSubstr;
 using testing::RunCommand;
 
-constexpr char kCartPoleSpec[] = R"(
-name: "trolley-arm"
-seed: 7
-evaluator {
-  cart_pole { max_steps: 500 }
-  validation { generalisation: true }
-}
-ga { population_size: 12 elites: 1 }
-islands { count: 2 interval: 2 migrants: 1 }
-stop { max_generations: 4 }
-)";
+const std::string kCartPoleSpec = testing::CartPoleValidatedSpec(500, 4);
 
 // Scores case c of genes x as sum(x) + length(c) + (seed mod 97): easy to
 // recompute here from the stored genes and the run's cases.

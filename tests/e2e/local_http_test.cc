@@ -1,10 +1,6 @@
 // `skerry local --http HOST:PORT` (issue 15): while a local run goes on, the
 // live page and its JSON are served on a loopback port, and they follow the
-// run. The real `skerry` binary; plain HTTP GETs over a socket.
-#include <arpa/inet.h>
-#include <netinet/in.h>
-#include <sys/socket.h>
-#include <unistd.h>
+// run. The real `skerry` binary; plain HTTP GETs (tests/support/http_get.h).
 
 #include <csignal>
 #include <string>
@@ -14,6 +10,7 @@
 #include "absl/strings/str_cat.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/support/http_get.h"
 #include "tests/support/process.h"
 
 namespace skerry {
@@ -37,36 +34,7 @@ ga {
 stop { max_generations: 1000000 }
 )";
 
-// One GET on 127.0.0.1 without a token: the status code and body.
-std::pair<int, std::string> HttpGet(int port, const std::string& path) {
-  int fd = socket(AF_INET, SOCK_STREAM, 0);
-  sockaddr_in addr{};
-  addr.sin_family = AF_INET;
-  addr.sin_port = htons(static_cast<uint16_t>(port));
-  addr.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
-  timeval tv{30, 0};
-  setsockopt(fd, SOL_SOCKET, SO_RCVTIMEO, &tv, sizeof(tv));
-  if (connect(fd, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)) != 0) {
-    close(fd);
-    return {-1, "connect failed"};
-  }
-  const std::string req =
-      absl::StrCat("GET ", path,
-                   " HTTP/1.1\r\nHost: 127.0.0.1\r\nConnection: close\r\n\r\n");
-  (void)!write(fd, req.data(), req.size());
-  std::string resp;
-  char buf[65536];
-  for (int i = 0; i < 100000; ++i) {
-    const ssize_t n = read(fd, buf, sizeof(buf));
-    if (n <= 0) break;
-    resp.append(buf, static_cast<size_t>(n));
-  }
-  close(fd);
-  int code = -1;
-  if (resp.size() > 12) (void)absl::SimpleAtoi(resp.substr(9, 3), &code);
-  const size_t body = resp.find("\r\n\r\n");
-  return {code, body == std::string::npos ? "" : resp.substr(body + 4)};
-}
+using testing::HttpGet;
 
 // The number after `"key":` (proto3 JSON writes 64-bit integers as strings).
 uint64_t JsonNumber(const std::string& json, const std::string& key) {

@@ -7,10 +7,6 @@
 // database, the live page following a running run, access refused without a
 // token, and /metrics accepted by `promtool check metrics` (Debian's prometheus
 // package).
-#include <arpa/inet.h>
-#include <netinet/in.h>
-#include <sys/socket.h>
-#include <unistd.h>
 
 #include <cmath>
 #include <cstdlib>
@@ -30,7 +26,9 @@
 #include "skerry/v1/access.grpc.pb.h"
 #include "tests/e2e/access_fixture.h"
 #include "tests/support/db_check.h"
+#include "tests/support/http_get.h"
 #include "tests/support/process.h"
+#include "tests/support/specs.h"
 
 namespace skerry {
 namespace {
@@ -40,38 +38,16 @@ using testing::RunCommand;
 
 // Two islands with migration and held-out validation, so that every chart of
 // the report has data (the same cart-pole spec as held_out_validation_test).
-constexpr char kValidatedSpec[] = R"(
-name: "trolley-arm"
-seed: 7
-evaluator {
-  cart_pole { max_steps: 200 }
-  validation { generalisation: true }
-}
-ga { population_size: 12 elites: 1 }
-islands { count: 2 interval: 2 migrants: 1 }
-stop { max_generations: 6 }
-)";
+const std::string kValidatedSpec = testing::CartPoleValidatedSpec(200, 6);
 
-constexpr char kSphereSpec[] = R"(
-name: "sphere-three"
-seed: 11
-genome_length: 4
-evaluator { builtin { function: "sphere" } }
-ga { population_size: 16 immigrants: 1 }
-islands { count: 3 interval: 3 migrants: 1 }
-stop { max_generations: 12 }
-)";
+const std::string kSphereSpec = testing::BuiltinIslandSpec(
+    "sphere-three", 11, 4, "sphere", "population_size: 16 immigrants: 1",
+    "count: 3 interval: 3 migrants: 1", 12);
 
 // Runs until stopped: the live page must see it advance.
-constexpr char kLongSpec[] = R"(
-name: "long-rastrigin"
-seed: 5
-genome_length: 10
-evaluator { builtin { function: "rastrigin" } }
-ga { population_size: 40 }
-islands { count: 2 interval: 10 migrants: 1 }
-stop { max_generations: 1000000 }
-)";
+const std::string kLongSpec = testing::BuiltinIslandSpec(
+    "long-rastrigin", 5, 10, "rastrigin", "population_size: 40",
+    "count: 2 interval: 10 migrants: 1", 1000000);
 
 // The browser's answer (cdp_driver.py prints one JSON object).
 struct Page {
@@ -167,40 +143,7 @@ void ExpectClose(const std::string& page, const std::string& db) {
   EXPECT_NEAR(a, b, 1e-9 * std::max(1.0, std::fabs(b))) << page << " vs " << db;
 }
 
-// One GET on 127.0.0.1: the status code and body.
-std::pair<int, std::string> HttpGet(int port, const std::string& path,
-                                    const std::string& token) {
-  int fd = socket(AF_INET, SOCK_STREAM, 0);
-  sockaddr_in addr{};
-  addr.sin_family = AF_INET;
-  addr.sin_port = htons(static_cast<uint16_t>(port));
-  addr.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
-  timeval tv{30, 0};
-  setsockopt(fd, SOL_SOCKET, SO_RCVTIMEO, &tv, sizeof(tv));
-  if (connect(fd, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)) != 0) {
-    close(fd);
-    return {-1, "connect failed"};
-  }
-  std::string req = absl::StrCat("GET ", path,
-                                 " HTTP/1.1\r\nHost: 127.0.0.1\r\n"
-                                 "Connection: close\r\n");
-  if (!token.empty())
-    absl::StrAppend(&req, "Authorization: Bearer ", token, "\r\n");
-  req += "\r\n";
-  (void)!write(fd, req.data(), req.size());
-  std::string resp;
-  char buf[65536];
-  for (int i = 0; i < 100000; ++i) {
-    ssize_t n = read(fd, buf, sizeof(buf));
-    if (n <= 0) break;
-    resp.append(buf, static_cast<size_t>(n));
-  }
-  close(fd);
-  int code = -1;
-  if (resp.size() > 12) (void)absl::SimpleAtoi(resp.substr(9, 3), &code);
-  const size_t body = resp.find("\r\n\r\n");
-  return {code, body == std::string::npos ? "" : resp.substr(body + 4)};
-}
+using testing::HttpGet;
 
 class ReportPageTest : public ::testing::Test {
  protected:

@@ -83,25 +83,18 @@ class ReproducibilityTest : public ::testing::Test {
     EXPECT_TRUE(c.ok()) << c.status();
     if (!c.ok()) return "";
     auto cli = [&](std::vector<std::string> args) {
-      std::vector<std::string> argv = {SKERRY_CLI_BIN, "--coordinator",
-                                       c->address()};
-      argv.insert(argv.end(), args.begin(), args.end());
-      return RunCommand(argv);
+      return testing::RunCli(SKERRY_CLI_BIN, c->address(), args);
     };
     CommandResult submit = cli({"submit", spec_});
     EXPECT_EQ(submit.exit_code, 0) << submit.output;
     db_of_[name] = db;
     if (before_fleet) before_fleet(c->address());
+    absl::StatusOr<std::vector<Process>> started =
+        testing::StartWorkers(SKERRY_WORKER_BIN, c->address(), workers, threads,
+                              name + "-", dir_.File(name + "-worker"));
+    EXPECT_TRUE(started.ok()) << started.status();
     std::vector<Process> fleet;
-    for (int i = 0; i < workers; ++i) {
-      absl::StatusOr<Process> w =
-          Process::Start({SKERRY_WORKER_BIN, "--coordinator", c->address(),
-                          "--threads", absl::StrCat(threads), "--batch", "8",
-                          "--name", absl::StrCat(name, "-", i)},
-                         dir_.File(absl::StrCat(name, "-worker", i, ".log")));
-      EXPECT_TRUE(w.ok()) << w.status();
-      if (w.ok()) fleet.push_back(std::move(*w));
-    }
+    if (started.ok()) fleet = std::move(*started);
     if (disturb) disturb(fleet);
     CommandResult watch = cli({"watch", "1"});
     EXPECT_EQ(watch.exit_code, 0) << watch.output << c->process.Log();

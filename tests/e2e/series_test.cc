@@ -55,10 +55,8 @@ class SeriesTest : public ::testing::Test {
   }
 
   CommandResult Cli(std::vector<std::string> args) {
-    std::vector<std::string> argv = {SKERRY_CLI_BIN, "--coordinator",
-                                     coordinator_->address()};
-    argv.insert(argv.end(), args.begin(), args.end());
-    return RunCommand(argv, absl::Seconds(120));
+    return testing::RunCli(SKERRY_CLI_BIN, coordinator_->address(), args,
+                           absl::Seconds(120));
   }
 
   std::string WriteSpec(const std::string& name, const std::string& text) {
@@ -68,14 +66,11 @@ class SeriesTest : public ::testing::Test {
   }
 
   void StartWorkers(int n) {
-    for (int i = 0; i < n; ++i) {
-      absl::StatusOr<Process> w = Process::Start(
-          {SKERRY_WORKER_BIN, "--coordinator", coordinator_->address(),
-           "--threads", "2", "--batch", "8", "--name", absl::StrCat("w", i)},
-          dir_.File(absl::StrCat("worker", i, ".log")));
-      ASSERT_TRUE(w.ok()) << w.status();
-      workers_.push_back(std::move(*w));
-    }
+    absl::StatusOr<std::vector<Process>> fleet =
+        testing::StartWorkers(SKERRY_WORKER_BIN, coordinator_->address(), n, 2,
+                              "w", dir_.File("worker"));
+    ASSERT_TRUE(fleet.ok()) << fleet.status();
+    for (Process& w : *fleet) workers_.push_back(std::move(w));
   }
 
   // Follows the run to its end; returns its digest.

@@ -17,6 +17,7 @@
 #include "server/store/store.h"
 #include "tests/fault/fault_vfs.h"
 #include "tests/support/process.h"
+#include "tests/support/specs.h"
 
 namespace skerry::server {
 namespace {
@@ -26,15 +27,9 @@ using skerry::testing::FaultVfs;
 using skerry::testing::Process;
 using skerry::testing::TempDir;
 
-constexpr char kSpec[] = R"(
-name: "failing-disk"
-seed: 515
-genome_length: 5
-evaluator { builtin { function: "sphere" } }
-ga { population_size: 16 elites: 1 }
-islands { count: 2 interval: 2 migrants: 1 }
-stop { max_generations: 100000 }
-)";
+const std::string kSpec = skerry::testing::BuiltinIslandSpec(
+    "failing-disk", 515, 5, "sphere", "population_size: 16 elites: 1",
+    "count: 2 interval: 2 migrants: 1", 100000);
 
 CoordinatorOptions Options(const std::string& db, int port) {
   CoordinatorOptions o;

@@ -13,6 +13,7 @@
 #include <string>
 #include <vector>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "common/clock.h"
@@ -21,6 +22,7 @@
 #include "server/scheduler/task_queue.h"
 #include "server/store/check.h"
 #include "server/store/store.h"
+#include "sqlite3.h"
 #include "tests/fault/fault_vfs.h"
 #include "tests/support/db_check.h"
 #include "tests/support/engine_harness.h"
@@ -133,6 +135,29 @@ long long Count(const std::string& db, const std::string& sql) {
   return std::stoll("0" + QueryText(db, sql));
 }
 
+// Runs `sql` on the database file through a connection of the test's own.
+void ExecSql(const std::string& db, const std::string& sql) {
+  sqlite3* conn = nullptr;
+  ASSERT_EQ(sqlite3_open(db.c_str(), &conn), SQLITE_OK);
+  sqlite3_busy_timeout(conn, 5000);
+  char* error = nullptr;
+  const int rc = sqlite3_exec(conn, sql.c_str(), nullptr, nullptr, &error);
+  EXPECT_EQ(rc, SQLITE_OK) << (error != nullptr ? error : "") << " in " << sql;
+  sqlite3_free(error);
+  sqlite3_close(conn);
+}
+
+// A trigger that makes SQLite fail the statement that fires it with a
+// runtime error of its own (SQLITE_ERROR, which the store maps to INTERNAL:
+// neither storage trouble nor damage). abs() of the smallest 64-bit integer
+// is "integer overflow" (SQLite's documentation of abs(X)).
+std::string PoisonTrigger(const std::string& name, const std::string& event,
+                          const std::string& when) {
+  return absl::StrCat("CREATE TRIGGER ", name, " BEFORE ", event,
+                      " ON genomes WHEN ", when,
+                      " BEGIN SELECT abs(-9223372036854775807 - 1); END;");
+}
+
 class EngineFaultTest : public ::testing::Test {
  protected:
   void SetUp() override {
@@ -143,6 +168,16 @@ class EngineFaultTest : public ::testing::Test {
     const int64_t run = Submit(*h);
     DriveToEnd(*h, run);
     reference_ = Digest(*h->store, run);
+  }
+
+  // A database at `path` whose run (*run) has generation 0 evaluated and
+  // generation 1 bred, its tasks not yet leased.
+  void PrepareGeneration1(const std::string& path, int64_t* run) {
+    std::unique_ptr<Harness> h = OpenHarness(path, false, &clock_);
+    ASSERT_NE(h, nullptr);
+    *run = Submit(*h);
+    ASSERT_TRUE(h->engine->Report(kWorker, Score(LeaseReady(*h))).ok());
+    ASSERT_FALSE(LeaseReady(*h).empty());  // generation 1 has been bred
   }
 
   FaultVfs* vfs_ = nullptr;
@@ -253,6 +288,128 @@ TEST_F(EngineFaultTest, SubmitWhileDiskIsFullIsRefusedAndStoresNothing) {
   ExpectConsistent(db);
 }
 
+// Regression: an INTERNAL error from the store (a bug, or a value it will not
+// take) was taken for storage trouble and held the whole fleet, and one such
+// result failed every other result committed with it, every time it was
+// sent again.
+TEST_F(EngineFaultTest,
+       InternalErrorInAResultCommitHoldsNothingAndFailsOnlyThatResult) {
+  const std::string db = dir_.File("internal.db");
+  std::unique_ptr<Harness> h = OpenHarness(db, false, &clock_);
+  ASSERT_NE(h, nullptr);
+  const int64_t run = Submit(*h);
+  ExecSql(db, PoisonTrigger("poison", "UPDATE",
+                            "NEW.eval_state = 2 AND NEW.score = 12345.5"));
+  std::vector<Task> tasks = LeaseReady(*h);
+  ASSERT_GT(tasks.size(), 1u);
+  std::vector<TaskResult> results = Score(tasks);
+  results[0].set_score(12345.5);  // finite and valid: only the store balks
+  const int64_t poisoned = static_cast<int64_t>(tasks[0].task_id());
+
+  absl::StatusOr<ReportOutcome> out = h->engine->Report(kWorker, results);
+  ASSERT_TRUE(out.ok()) << out.status();
+  EXPECT_EQ(out->accepted, results.size());
+  EXPECT_EQ(out->ignored, 0u);
+  // Nothing held: no problem named, and the poisoned genome is offered again.
+  EXPECT_EQ(Problem(*h, run), "");
+  EXPECT_EQ(Count(db, "SELECT count(*) FROM genomes WHERE eval_state = 2"),
+            static_cast<long long>(results.size() - 1));
+  const std::string where = absl::StrCat(" FROM genomes WHERE id = ", poisoned);
+  EXPECT_EQ(Count(db, "SELECT eval_state" + where), 1) << "pending again";
+  EXPECT_EQ(Count(db, "SELECT attempts" + where), 1);
+  EXPECT_TRUE(absl::StrContains(QueryText(db, "SELECT error" + where),
+                                "could not store this result"))
+      << QueryText(db, "SELECT error" + where);
+  std::vector<Task> again = LeaseReady(*h);
+  ASSERT_EQ(again.size(), 1u);
+  EXPECT_EQ(static_cast<int64_t>(again[0].task_id()), poisoned);
+  EXPECT_EQ(again[0].attempt(), 2u);
+  // Its honest score is taken, and the run ends as an undisturbed one does.
+  ASSERT_TRUE(h->engine->Report(kWorker, Score(again)).ok());
+  DriveToEnd(*h, run);
+  EXPECT_EQ(Digest(*h->store, run), reference_);
+}
+
+// Regression: an INTERNAL error while breeding held the fleet (and, once not
+// held, would fail again every tick). Only the run that met it ends, failed
+// with the error; the other run goes on to the end.
+TEST_F(EngineFaultTest,
+       InternalErrorWhileBreedingFailsThatRunAloneAndHoldsNothing) {
+  const std::string db = dir_.File("breeding.db");
+  std::unique_ptr<Harness> h = OpenHarness(db, false, &clock_);
+  ASSERT_NE(h, nullptr);
+  const int64_t doomed = Submit(*h);
+  const int64_t healthy = Submit(*h);
+  ExecSql(db, PoisonTrigger("poison", "INSERT",
+                            absl::StrCat("NEW.run_id = ", doomed,
+                                         " AND NEW.generation = 1")));
+  for (int round = 0; round < 100 && Active(*h, healthy); ++round) {
+    std::vector<Task> tasks = LeaseReady(*h);
+    ASSERT_FALSE(tasks.empty()) << "run " << healthy << " has no tasks";
+    ASSERT_TRUE(h->engine->Report(kWorker, Score(tasks)).ok());
+    EXPECT_EQ(Problem(*h, healthy), "") << "the fleet was held";
+  }
+  absl::StatusOr<skerry::v1::RunSummary> ended = h->engine->Summary(doomed);
+  ASSERT_TRUE(ended.ok()) << ended.status();
+  EXPECT_EQ(ended->state(), skerry::v1::FAILED_RUN);
+  EXPECT_TRUE(absl::StrContains(ended->message(), "integer overflow"))
+      << ended->message();
+  EXPECT_FALSE(Active(*h, healthy));
+  EXPECT_EQ(Digest(*h->store, healthy).empty(), false);
+  h.reset();
+  ExecSql(db, "DROP TRIGGER poison");
+  ExpectConsistent(db);
+}
+
+// Regression: when a probe write lifted the hold and the very next write
+// failed again (the disk was full for the generation but not for the small
+// probe, or a lock was taken in between), the engine waited a whole tick
+// before trying again. It tries again at once.
+TEST_F(EngineFaultTest, HoldSetAgainRightAfterAProbeIsRetriedAtOnce) {
+  const std::string prepared = dir_.File("probe-prepared.db");
+  int64_t run = 0;
+  ASSERT_NO_FATAL_FAILURE(PrepareGeneration1(prepared, &run));
+  // Find the write at which the results of generation 1 are stored but its
+  // successor's breeding fails (bounded, as the sweep below).
+  for (int n = 1; n <= kMaxFaultPoint; ++n) {
+    SCOPED_TRACE(absl::StrCat("disk full from write ", n));
+    const std::string db = dir_.File(absl::StrCat("probe-", n, ".db"));
+    std::filesystem::copy_file(prepared, db);
+    std::unique_ptr<Harness> h = OpenHarness(db, true, &clock_);
+    ASSERT_NE(h, nullptr);
+    const std::vector<TaskResult> results = Score(LeaseReady(*h));
+    ASSERT_FALSE(results.empty());
+    vfs_->Arm(FaultKind::kFull, n, /*persistent=*/true);
+    absl::StatusOr<ReportOutcome> out = h->engine->Report(kWorker, results);
+    // The committer has bred, probed (failing) and waits for its next tick.
+    ASSERT_TRUE(clock_.AwaitWaiters(1));
+    if (!out.ok() || Problem(*h, run).empty()) {
+      vfs_->Disarm();
+      ASSERT_TRUE(WaitUntilWritable(*h, clock_, run));
+      continue;
+    }
+    // Held, generation 2 unbred. The next probe succeeds and the write after
+    // it (the breeding's first) fails once.
+    vfs_->Arm(FaultKind::kFull, int64_t{1} << 40, /*persistent=*/false);
+    ASSERT_TRUE(h->store->ProbeWrite().ok());
+    const int64_t probe_writes = vfs_->counted();
+    vfs_->Arm(FaultKind::kFull, probe_writes + 1, /*persistent=*/false);
+    clock_.Advance(absl::Seconds(1));  // one tick, and no more
+    for (int i = 0;
+         i < 300 && !(vfs_->injected() == 1 && Problem(*h, run).empty()); ++i) {
+      absl::SleepFor(absl::Milliseconds(10));
+    }
+    EXPECT_EQ(vfs_->injected(), 1) << "the breeding after the probe never "
+                                      "failed: the case was not made";
+    EXPECT_EQ(Problem(*h, run), "") << "held until the next tick";
+    vfs_->Disarm();
+    DriveToEnd(*h, run);
+    EXPECT_EQ(Digest(*h->store, run), reference_);
+    return;
+  }
+  FAIL() << "no write point failed the breeding alone";
+}
+
 // Every write from the Nth on fails while the last results of generation 1
 // are reported: depending on N the results' commit fails (the Report is
 // refused and repeated), or the breeding of generation 2 does (the Report is
@@ -265,13 +422,7 @@ TEST_P(EngineFaultSweep, EveryFaultPointAtAGenerationEndRecoversToSameDigest) {
   const FaultKind kind = GetParam();
   const std::string prepared = dir_.File("prepared.db");
   int64_t run = 0;
-  {
-    std::unique_ptr<Harness> h = OpenHarness(prepared, false, &clock_);
-    ASSERT_NE(h, nullptr);
-    run = Submit(*h);
-    ASSERT_TRUE(h->engine->Report(kWorker, Score(LeaseReady(*h))).ok());
-    ASSERT_FALSE(LeaseReady(*h).empty());  // generation 1 has been bred
-  }
+  ASSERT_NO_FATAL_FAILURE(PrepareGeneration1(prepared, &run));
   bool completed = false;
   for (int n = 1; n <= kMaxFaultPoint && !completed; ++n) {
     SCOPED_TRACE(absl::StrCat(FaultKindName(kind), " from write ", n));

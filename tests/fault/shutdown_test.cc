@@ -16,6 +16,7 @@
 #include "gtest/gtest.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
+#include "tests/support/specs.h"
 
 namespace skerry {
 namespace {
@@ -25,15 +26,9 @@ using testing::Process;
 using testing::QueryText;
 using testing::RunCommand;
 
-constexpr char kSpec[] = R"(
-name: "shutdown"
-seed: 4242
-genome_length: 6
-evaluator { builtin { function: "rastrigin" } }
-ga { population_size: 20 elites: 1 }
-islands { count: 2 interval: 3 migrants: 1 }
-stop { max_generations: 100000 }
-)";
+const std::string kSpec = testing::BuiltinIslandSpec(
+    "shutdown", 4242, 6, "rastrigin", "population_size: 20 elites: 1",
+    "count: 2 interval: 3 migrants: 1", 100000);
 
 int64_t Evaluations(const std::string& db) {
   int64_t n = 0;
@@ -50,30 +45,14 @@ class ShutdownTest : public ::testing::Test {
 
   // A coordinator on `port` (0: any), waited for until it listens.
   std::unique_ptr<testing::StartedCoordinator> Start(int port, int serial) {
-    absl::StatusOr<Process> p =
-        Process::Start({SKERRY_COORDINATOR_BIN, "--db", db(), "--listen",
-                        absl::StrCat("127.0.0.1:", port), "--lease-seconds",
-                        "2", "--max-wait-ms", "300"},
-                       dir_.File(absl::StrCat("coordinator", serial, ".log")));
-    EXPECT_TRUE(p.ok()) << p.status();
-    if (!p.ok()) return nullptr;
-    auto c = std::make_unique<testing::StartedCoordinator>(
-        testing::StartedCoordinator{std::move(*p), port});
-    const bool up = testing::WaitFor(
-        [&] {
-          return c->process.Log().find("listening on port") !=
-                 std::string::npos;
-        },
-        absl::Seconds(30));
-    EXPECT_TRUE(up) << c->process.Log();
-    if (!up) return nullptr;
-    if (port == 0) {
-      const std::string log = c->process.Log();
-      const size_t at = log.find("listening on port ") + 18;
-      EXPECT_TRUE(
-          absl::SimpleAtoi(log.substr(at, log.find(' ', at) - at), &c->port));
-    }
-    return c;
+    absl::StatusOr<testing::StartedCoordinator> c =
+        testing::StartCoordinatorOnPort(
+            SKERRY_COORDINATOR_BIN, db(),
+            dir_.File(absl::StrCat("coordinator", serial, ".log")), port,
+            {"--lease-seconds", "2", "--max-wait-ms", "300"});
+    EXPECT_TRUE(c.ok()) << c.status();
+    if (!c.ok()) return nullptr;
+    return std::make_unique<testing::StartedCoordinator>(std::move(*c));
   }
 
   Process StartWorker(const std::string& address, int serial) {

@@ -155,8 +155,14 @@ std::string StartedCoordinator::address() const {
 absl::StatusOr<StartedCoordinator> StartCoordinator(
     const std::string& binary, const std::string& db, const std::string& log,
     const std::vector<std::string>& extra_flags) {
+  return StartCoordinatorOnPort(binary, db, log, 0, extra_flags);
+}
+
+absl::StatusOr<StartedCoordinator> StartCoordinatorOnPort(
+    const std::string& binary, const std::string& db, const std::string& log,
+    int port, const std::vector<std::string>& extra_flags) {
   std::vector<std::string> argv = {binary, "--db", db, "--listen",
-                                   "127.0.0.1:0"};
+                                   absl::StrCat("127.0.0.1:", port)};
   argv.insert(argv.end(), extra_flags.begin(), extra_flags.end());
   unlink(log.c_str());
   absl::StatusOr<Process> p = Process::Start(argv, log);
@@ -183,6 +189,31 @@ absl::StatusOr<StartedCoordinator> StartCoordinator(
         absl::StrCat("coordinator did not start:\n", c.process.Log()));
   }
   return c;
+}
+
+CommandResult RunCli(const std::string& cli_bin, const std::string& address,
+                     const std::vector<std::string>& args,
+                     absl::Duration timeout) {
+  std::vector<std::string> argv = {cli_bin, "--coordinator", address};
+  argv.insert(argv.end(), args.begin(), args.end());
+  return RunCommand(argv, timeout);
+}
+
+absl::StatusOr<std::vector<Process>> StartWorkers(
+    const std::string& worker_bin, const std::string& address, int count,
+    int threads, const std::string& name_prefix,
+    const std::string& log_prefix) {
+  std::vector<Process> fleet;
+  for (int i = 0; i < count; ++i) {
+    absl::StatusOr<Process> w =
+        Process::Start({worker_bin, "--coordinator", address, "--threads",
+                        absl::StrCat(threads), "--batch", "8", "--name",
+                        absl::StrCat(name_prefix, i)},
+                       absl::StrCat(log_prefix, i, ".log"));
+    if (!w.ok()) return w.status();
+    fleet.push_back(std::move(*w));
+  }
+  return fleet;
 }
 
 bool WriteTextFile(const std::string& path, const std::string& text) {

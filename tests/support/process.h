@@ -75,6 +75,25 @@ struct StartedCoordinator {
 absl::StatusOr<StartedCoordinator> StartCoordinator(
     const std::string& binary, const std::string& db, const std::string& log,
     const std::vector<std::string>& extra_flags = {});
+// The same on a given port of 127.0.0.1 (0: any), as a restart on the port
+// the fleet knows needs.
+absl::StatusOr<StartedCoordinator> StartCoordinatorOnPort(
+    const std::string& binary, const std::string& db, const std::string& log,
+    int port, const std::vector<std::string>& extra_flags = {});
+
+// Runs the `skerry` CLI at `cli_bin` against the coordinator at `address`:
+// `cli_bin --coordinator address args...`, bounded by `timeout`.
+CommandResult RunCli(const std::string& cli_bin, const std::string& address,
+                     const std::vector<std::string>& args,
+                     absl::Duration timeout = absl::Seconds(60));
+
+// Starts `count` skerry-worker processes (`worker_bin`) against the
+// coordinator at `address`, each with `threads` threads taking batches of 8,
+// worker i named `<name_prefix>i` and logging to `<log_prefix>i.log`. The
+// workers already started are stopped when one cannot start.
+absl::StatusOr<std::vector<Process>> StartWorkers(
+    const std::string& worker_bin, const std::string& address, int count,
+    int threads, const std::string& name_prefix, const std::string& log_prefix);
 
 // Writes `text` to `path` (replacing it); false when it cannot.
 bool WriteTextFile(const std::string& path, const std::string& text);

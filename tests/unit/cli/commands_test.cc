@@ -20,7 +20,6 @@
 namespace skerry::cli {
 namespace {
 
-using ::skerry::cli::testing::MockRunServiceStub;
 using ::skerry::cli::testing::ScriptedFollower;
 using ::testing::_;
 using ::testing::DoAll;
@@ -28,7 +27,6 @@ using ::testing::HasSubstr;
 using ::testing::Invoke;
 using ::testing::Return;
 using ::testing::SetArgPointee;
-using ::testing::StrictMock;
 
 template <typename T>
 T FromText(const std::string& text) {
@@ -65,34 +63,8 @@ v1::GetRunResponse RunningRun() {
   )pb");
 }
 
-class CommandsTest : public ::testing::Test {
+class CommandsTest : public ::skerry::cli::testing::MockCliTest {
  protected:
-  CommandsTest() {
-    auto mock = std::make_unique<StrictMock<MockRunServiceStub>>();
-    mock_ = mock.get();
-    client_ = std::make_unique<RunClient>(std::move(mock), "127.0.0.1:7431");
-    io_.out = &out_;
-    io_.err = &err_;
-    io_.sleep = [this](absl::Duration d) { sleeps_.push_back(d); };
-    io_.getenv = [](const char*) { return std::string(); };  // hermetic
-  }
-
-  int Cli(std::vector<std::string> args) {
-    ClientFactory factory = [this](const std::string& target,
-                                   const worker::ClientSecurity&) {
-      targets_.push_back(target);
-      return std::move(client_);
-    };
-    return RunCli(args, "", factory, io_);
-  }
-
-  StrictMock<MockRunServiceStub>* mock_;
-  std::unique_ptr<RunClient> client_;
-  std::ostringstream out_;
-  std::ostringstream err_;
-  Io io_;
-  std::vector<absl::Duration> sleeps_;
-  std::vector<std::string> targets_;
   uint64_t run_id_ = 0;
 };
 

@@ -18,47 +18,20 @@
 namespace skerry::cli {
 namespace {
 
-using ::skerry::cli::testing::MockRunServiceStub;
 using ::testing::_;
 using ::testing::DoAll;
 using ::testing::HasSubstr;
 using ::testing::Invoke;
 using ::testing::Return;
 using ::testing::SetArgPointee;
-using ::testing::StrictMock;
 
-class ForkCliTest : public ::testing::Test {
+class ForkCliTest : public ::skerry::cli::testing::MockCliTest {
  protected:
-  ForkCliTest() {
-    auto mock = std::make_unique<StrictMock<MockRunServiceStub>>();
-    mock_ = mock.get();
-    client_ = std::make_unique<RunClient>(std::move(mock), "127.0.0.1:7431");
-    io_.out = &out_;
-    io_.err = &err_;
-    io_.sleep = [this](absl::Duration d) { sleeps_.push_back(d); };
-    io_.getenv = [](const char*) { return std::string(); };  // hermetic
-  }
-
-  int Cli(std::vector<std::string> args) {
-    ClientFactory factory = [this](const std::string&,
-                                   const worker::ClientSecurity&) {
-      return std::move(client_);
-    };
-    return RunCli(args, "", factory, io_);
-  }
-
   static v1::SubmitRunResponse Made(uint64_t id) {
     v1::SubmitRunResponse r;
     r.mutable_run()->set_id(id);
     return r;
   }
-
-  StrictMock<MockRunServiceStub>* mock_;
-  std::unique_ptr<RunClient> client_;
-  std::ostringstream out_;
-  std::ostringstream err_;
-  Io io_;
-  std::vector<absl::Duration> sleeps_;
 };
 
 TEST_F(ForkCliTest, ForkSendsRunGenerationAndTheChangesOfFileThenSet) {

@@ -1,5 +1,6 @@
-// The generated gmock of RunService::StubInterface for CLI tests, and
-// scripted stream readers for WatchRun and FollowRun.
+// The generated gmock of RunService::StubInterface for CLI tests, scripted
+// stream readers for WatchRun and FollowRun, and the fixture that runs the CLI
+// against the mock (MockCliTest).
 //
 // Invariant: the mock is protoc's, never edited by hand; a StrictMock fails a
 // test on any call it does not expect, async ones included.
@@ -8,11 +9,18 @@
 #define SKERRY_TESTS_UNIT_CLI_MOCK_RUN_SERVICE_H_
 
 #include <cstddef>
+#include <memory>
+#include <sstream>
+#include <string>
 #include <utility>
 #include <vector>
 
+#include "absl/time/time.h"
+#include "cli/client.h"
+#include "cli/commands.h"
 #include "gmock/gmock.h"
 #include "grpcpp/support/sync_stream.h"
+#include "gtest/gtest.h"
 #include "skerry/v1/runs.grpc.pb.h"
 #include "skerry/v1/runs_mock.grpc.pb.h"
 
@@ -79,6 +87,40 @@ class ScriptedFollower
 // (generate_mock_code=true, proto/CMakeLists.txt): every RPC, sync and async,
 // is there as soon as it is in runs.proto.
 using MockRunServiceStub = skerry::v1::MockRunServiceStub;
+
+// A fixture for commands run against the mock: `Cli(args)` runs the CLI with
+// a client over a StrictMock stub (mock_), its output in out_ and err_, its
+// sleeps recorded instead of slept, no environment, and every coordinator
+// address it connected to in targets_.
+class MockCliTest : public ::testing::Test {
+ protected:
+  MockCliTest() {
+    auto mock = std::make_unique<::testing::StrictMock<MockRunServiceStub>>();
+    mock_ = mock.get();
+    client_ = std::make_unique<RunClient>(std::move(mock), "127.0.0.1:7431");
+    io_.out = &out_;
+    io_.err = &err_;
+    io_.sleep = [this](absl::Duration d) { sleeps_.push_back(d); };
+    io_.getenv = [](const char*) { return std::string(); };  // hermetic
+  }
+
+  int Cli(std::vector<std::string> args) {
+    ClientFactory factory = [this](const std::string& target,
+                                   const worker::ClientSecurity&) {
+      targets_.push_back(target);
+      return std::move(client_);
+    };
+    return RunCli(args, "", factory, io_);
+  }
+
+  ::testing::StrictMock<MockRunServiceStub>* mock_;
+  std::unique_ptr<RunClient> client_;
+  std::ostringstream out_;
+  std::ostringstream err_;
+  Io io_;
+  std::vector<absl::Duration> sleeps_;
+  std::vector<std::string> targets_;
+};
 
 }  // namespace skerry::cli::testing
 

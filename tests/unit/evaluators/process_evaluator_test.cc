@@ -49,6 +49,16 @@ std::unique_ptr<ProcessEvaluator> MustCreate(ProcessEvaluatorOptions o) {
   return e.ok() ? *std::move(e) : nullptr;
 }
 
+// The message of the failure of one evaluation by a fresh child that behaves
+// as `mode` says ("" and a test failure when it did not fail).
+std::string FirstFailure(const std::string& mode) {
+  auto e = MustCreate(Behave(mode));
+  if (e == nullptr) return "";
+  absl::StatusOr<double> score = e->Evaluate(kGenes, 1);
+  EXPECT_FALSE(score.ok()) << mode << " scored " << *score;
+  return score.ok() ? "" : std::string(score.status().message());
+}
+
 // True once /proc says pid is gone or a zombie (bounded wait).
 bool ProcessGone(pid_t pid) {
   return testing::WaitFor(
@@ -247,42 +257,25 @@ TEST(ProcessEvaluatorTest, ChildEnvironmentHoldsNoTokenOfTheWorker) {
 }
 
 TEST(ProcessEvaluatorTest, GarbageLineFailsWithTheLineQuoted) {
-  auto e = MustCreate(Behave("garbage"));
-  ASSERT_NE(e, nullptr);
-  absl::StatusOr<double> score = e->Evaluate(kGenes, 1);
-  ASSERT_FALSE(score.ok());
-  const std::string message(score.status().message());
+  const std::string message = FirstFailure("garbage");
   EXPECT_THAT(message, HasSubstr("not an EvaluationResponse in JSON"));
   EXPECT_THAT(message, HasSubstr("hello, this is not json"));
   EXPECT_THAT(message, HasSubstr("behave: printing garbage"));
 }
 
 TEST(ProcessEvaluatorTest, WrongIdFails) {
-  auto e = MustCreate(Behave("wrong_id"));
-  ASSERT_NE(e, nullptr);
-  absl::StatusOr<double> score = e->Evaluate(kGenes, 1);
-  ASSERT_FALSE(score.ok());
-  EXPECT_THAT(std::string(score.status().message()),
-              HasSubstr("answered request 1 with id 2"));
-  EXPECT_THAT(std::string(score.status().message()),
-              HasSubstr("stderr was empty"));
+  const std::string message = FirstFailure("wrong_id");
+  EXPECT_THAT(message, HasSubstr("answered request 1 with id 2"));
+  EXPECT_THAT(message, HasSubstr("stderr was empty"));
 }
 
 TEST(ProcessEvaluatorTest, AnswerWithoutScoreOrErrorFails) {
-  auto e = MustCreate(Behave("no_score"));
-  ASSERT_NE(e, nullptr);
-  absl::StatusOr<double> score = e->Evaluate(kGenes, 1);
-  ASSERT_FALSE(score.ok());
-  EXPECT_THAT(std::string(score.status().message()),
+  EXPECT_THAT(FirstFailure("no_score"),
               HasSubstr("with neither score nor error"));
 }
 
 TEST(ProcessEvaluatorTest, PartialLineThenExitFails) {
-  auto e = MustCreate(Behave("partial"));
-  ASSERT_NE(e, nullptr);
-  absl::StatusOr<double> score = e->Evaluate(kGenes, 1);
-  ASSERT_FALSE(score.ok());
-  EXPECT_THAT(std::string(score.status().message()),
+  EXPECT_THAT(FirstFailure("partial"),
               HasSubstr("after a partial line \"{\\\"id\\\": \""));
 }
 

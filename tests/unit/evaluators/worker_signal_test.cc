@@ -78,6 +78,18 @@ std::vector<pid_t> ProcessesNaming(const std::string& marker) {
   return out;
 }
 
+// Every evaluator program and its child end (bounded wait).
+void ExpectGone(const std::vector<Started>& started) {
+  for (const Started& s : started) {
+    EXPECT_TRUE(
+        testing::WaitFor([&] { return !Alive(s.program); }, absl::Seconds(20)))
+        << "evaluator " << s.program << " outlived its worker";
+    EXPECT_TRUE(testing::WaitFor([&] { return !Alive(s.grandchild); },
+                                 absl::Seconds(20)))
+        << "the evaluator's child " << s.grandchild << " outlived the worker";
+  }
+}
+
 class WorkerSignalTest : public ::testing::Test {
  protected:
   void SetUp() override {
@@ -154,14 +166,7 @@ TEST_F(WorkerSignalTest,
   ASSERT_TRUE(code.ok()) << "the worker did not stop after SIGINT\n"
                          << first->Log();
   EXPECT_EQ(*code, 0) << first->Log();
-  for (const Started& s : started) {
-    EXPECT_TRUE(
-        testing::WaitFor([&] { return !Alive(s.program); }, absl::Seconds(20)))
-        << "evaluator " << s.program << " outlived its worker";
-    EXPECT_TRUE(testing::WaitFor([&] { return !Alive(s.grandchild); },
-                                 absl::Seconds(20)))
-        << "the evaluator's child " << s.grandchild << " outlived the worker";
-  }
+  ExpectGone(started);
 
   // The tasks were handed back: another worker leases them now, not after
   // the ten-minute lease.
@@ -198,6 +203,23 @@ TEST_F(WorkerSignalTest, SandboxedEvaluatorsDieWithAWorkerKilledBySigkill) {
       [&] { return ProcessesNaming(folder_).size() >= 6; }, absl::Seconds(120)))
       << worker->Log();
   worker->Kill();
+  EXPECT_TRUE(testing::WaitFor([&] { return ProcessesNaming(folder_).empty(); },
+                               absl::Seconds(20)))
+      << ProcessesNaming(folder_).size() << " evaluator processes remain";
+}
+
+// Regression: a worker without a sandbox killed by SIGKILL (as every test's
+// Process does at its end) took its evaluator programs with it but left their
+// own children (hang_forever.py's sleeping grandchild) running for good.
+TEST_F(WorkerSignalTest,
+       UnsandboxedEvaluatorsAndTheirChildrenDieWithAWorkerKilledBySigkill) {
+  std::unique_ptr<testing::Process> worker = StartWorker("killed", "none");
+  ASSERT_NE(worker, nullptr);
+  ASSERT_TRUE(WaitForStarted(worker->pid(), 2)) << worker->Log();
+  const std::vector<Started> started = StartedUnder(worker->pid());
+  ASSERT_EQ(started.size(), 2u);
+  worker->Kill();
+  ExpectGone(started);
   EXPECT_TRUE(testing::WaitFor([&] { return ProcessesNaming(folder_).empty(); },
                                absl::Seconds(20)))
       << ProcessesNaming(folder_).size() << " evaluator processes remain";

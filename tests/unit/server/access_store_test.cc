@@ -191,19 +191,11 @@ TEST_F(AccessStoreTest, AuditEntriesAreFilteredByRunAndPrincipalNewestFirst) {
 // keeps its runs; access control stays off on it until --init-admin.
 TEST_F(AccessStoreTest, Version4DatabaseIsMigratedToTheAccessTables) {
   store_.reset();
-  RawExec(
-      path(),
-      std::string(skerry::testing::kUndoVersion11) +
-          skerry::testing::kUndoVersion10 +
-          std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
-                      "genome_metrics; "
-                      "ALTER TABLE workers DROP COLUMN sandbox; ") +
-          skerry::testing::kUndoVersion6 +
-          "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
-          "UPDATE schema_version SET version = 4; "
-          "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
-          "created_ms, updated_ms) VALUES ('old', 'local', x'', '', 1, 4, "
-          "1, 1)");
+  RawExec(path(),
+          skerry::testing::UndoSchemaTo(4) +
+              "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
+              "created_ms, updated_ms) VALUES ('old', 'local', x'', '', 1, 4, "
+              "1, 1)");
   auto again = store::Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   store_ = std::move(*again);

@@ -116,10 +116,7 @@ TEST_F(SeriesStoreTest, DatabaseBeforeSeriesGainsTheSeriesTables) {
   std::vector<GenomeRecord> genomes;
   RunRecord run = CreateRun(1, &genomes);
   store_.reset();
-  RawExec(path(), std::string(skerry::testing::kUndoVersion11) +
-                      skerry::testing::kUndoVersion10 +
-                      "DROP TABLE series; DROP TABLE series_runs; "
-                      "UPDATE schema_version SET version = 8;");
+  RawExec(path(), skerry::testing::UndoSchemaTo(8));
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);

@@ -48,6 +48,34 @@ inline constexpr char kUndoVersion10[] = "DROP TABLE strategy_states; ";
 // fleet key of worker secrets and lease proofs).
 inline constexpr char kUndoVersion11[] = "DROP TABLE fleet_keys; ";
 
+// SQL that takes a database of the current schema (Store::kSchemaVersion, 12)
+// back to schema version `version` (1 to 12), each version's undo in turn
+// from the newest down, and sets the stored version: for tests that build
+// an older database from a current one and open it to migrate it forward.
+// Version 12 changed only how row sums are written, so it has nothing to
+// undo. Append the new version's undo here when a migration is added.
+inline std::string UndoSchemaTo(int version) {
+  const char* const undo[] = {
+      /* 12 */ "",
+      /* 11 */ kUndoVersion11,
+      /* 10 */ kUndoVersion10,
+      /* 9 (seed series) */ "DROP TABLE series; DROP TABLE series_runs; ",
+      /* 8 (metrics) */ "DROP TABLE genome_metrics; ",
+      /* 7 (sandbox) */ "ALTER TABLE workers DROP COLUMN sandbox; ",
+      /* 6 */ kUndoVersion6,
+      /* 5 (access) */
+      "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; ",
+      /* 4 */ "DROP TABLE validations; ",
+      /* 3 */ "DROP INDEX genomes_failed; ",
+      /* 2 */ "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; ",
+  };
+  std::string sql;
+  for (int v = 12; v > version && v >= 2; --v) sql += undo[12 - v];
+  sql +=
+      "UPDATE schema_version SET version = " + std::to_string(version) + "; ";
+  return sql;
+}
+
 // Runs SQL on a raw connection of our own (not the store's).
 inline void RawExec(const std::string& path, const std::string& sql) {
   sqlite3* db = nullptr;

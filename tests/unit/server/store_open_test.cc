@@ -25,6 +25,7 @@ using skerry::testing::RawExec;
 using skerry::testing::RawQuery;
 using skerry::testing::ReadFileBytes;
 using skerry::testing::TempDir;
+using skerry::testing::UndoSchemaTo;
 using ::testing::HasSubstr;
 using ::testing::Not;
 
@@ -53,16 +54,9 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
   ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
   store_.reset();
-  RawExec(path(),
-          std::string(skerry::testing::kUndoVersion11) +
-              skerry::testing::kUndoVersion10 +
-              std::string("DROP TABLE series; DROP TABLE series_runs; DROP "
-                          "TABLE genome_metrics; "
-                          "ALTER TABLE workers DROP COLUMN sandbox; ") +
-              skerry::testing::kUndoVersion6 +
-              "UPDATE genomes SET score = 7.5, eval_state = 2, "
-              "attempts = 1 WHERE slot = 1; "
-              "UPDATE schema_version SET version = 5;");
+  RawExec(path(), UndoSchemaTo(5) +
+                      "UPDATE genomes SET score = 7.5, eval_state = 2, "
+                      "attempts = 1 WHERE slot = 1; ");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
@@ -82,20 +76,10 @@ TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
 // and the validations table of version 4 appear, with the data kept.
 TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
   store_.reset();
-  RawExec(
-      path(),
-      std::string(skerry::testing::kUndoVersion11) +
-          skerry::testing::kUndoVersion10 +
-          std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
-                      "genome_metrics; "
-                      "ALTER TABLE workers DROP COLUMN sandbox; ") +
-          skerry::testing::kUndoVersion6 +
-          "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; "
-          "DROP INDEX genomes_failed; DROP TABLE validations; "
-          "DROP TABLE principals; DROP TABLE tokens; DROP TABLE audit; "
-          "UPDATE schema_version SET version = 1; "
-          "INSERT INTO workers (name, host, threads, evaluators, version, "
-          "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
+  RawExec(path(),
+          UndoSchemaTo(1) +
+              "INSERT INTO workers (name, host, threads, evaluators, version, "
+              "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   absl::StatusOr<int> v = (*again)->SchemaVersion();
@@ -114,17 +98,10 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
 // joined before it keep their rows with an empty sandbox.
 TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   store_.reset();
-  RawExec(
-      path(),
-      std::string(skerry::testing::kUndoVersion11) +
-          skerry::testing::kUndoVersion10 +
-          std::string("DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
-                      "genome_metrics; "
-                      "ALTER TABLE workers DROP COLUMN sandbox; ") +
-          skerry::testing::kUndoVersion6 +
-          "UPDATE schema_version SET version = 5; "
-          "INSERT INTO workers (name, host, threads, evaluators, version, "
-          "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
+  RawExec(path(),
+          UndoSchemaTo(5) +
+              "INSERT INTO workers (name, host, threads, evaluators, version, "
+              "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
@@ -146,11 +123,7 @@ TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
   store_.reset();
   RawExec(
       path(),
-      std::string(skerry::testing::kUndoVersion11) +
-          skerry::testing::kUndoVersion10 +
-          "DROP TABLE series; DROP TABLE series_runs; DROP TABLE "
-          "genome_metrics; "
-          "UPDATE schema_version SET version = 7; "
+      UndoSchemaTo(7) +
           "INSERT INTO workers (name, host, threads, evaluators, version, "
           "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
@@ -206,8 +179,7 @@ TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
 // refused naming both versions and left byte for byte as it was.
 TEST_F(StoreOpenTest, ReadOnlyOpenRefusesAnOlderSchemaAndChangesNothing) {
   store_.reset();
-  RawExec(path(),
-          "DROP TABLE genome_metrics; UPDATE schema_version SET version = 7");
+  RawExec(path(), UndoSchemaTo(7));
   const std::string before = ReadFileBytes(path());
   Store::Options read_only;
   read_only.read_only = true;

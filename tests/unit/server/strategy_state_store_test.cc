@@ -136,9 +136,7 @@ TEST_F(StrategyStateStoreTest, OlderDatabaseGetsAnEmptyStatePerIsland) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(2, &genomes);
   store_.reset();
-  RawExec(path(),
-          "DROP TABLE fleet_keys; DROP TABLE strategy_states; "
-          "UPDATE schema_version SET version = 9");
+  RawExec(path(), skerry::testing::UndoSchemaTo(9));
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   EXPECT_EQ(RawQuery(path(),
