@@ -238,5 +238,27 @@ TEST(HelpTest, HelpLinesFitInEightyColumns) {
   }
 }
 
+// Dispatch, `skerry help` and usage errors all come from the command table:
+// a row without a handler would be listed but could not run.
+TEST(CommandTableTest, EveryCommandHasAHandler) {
+  for (const CommandSpec& command : Commands()) {
+    SCOPED_TRACE(command.name);
+    EXPECT_NE(command.handler, nullptr);
+    EXPECT_NE(FindCommand(command.name), nullptr);
+  }
+}
+
+TEST(CommandTableTest, OnlyHelpAndLocalGoWithoutTheCoordinatorAddress) {
+  for (const CommandSpec& command : Commands()) {
+    SCOPED_TRACE(command.name);
+    const std::string name = command.name;
+    EXPECT_EQ(command.reach == CommandReach::kCoordinator,
+              name != "help" && name != "local");
+  }
+  // So a bad address stops `list` but not `help`.
+  EXPECT_FALSE(Parse({"--coordinator", "nohost", "list"}).ok());
+  EXPECT_TRUE(Parse({"--coordinator", "nohost", "help"}).ok());
+}
+
 }  // namespace
 }  // namespace skerry::cli
