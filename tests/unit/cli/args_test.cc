@@ -5,6 +5,7 @@
 
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/unit/common/host_port_cases.h"
 
 namespace skerry::cli {
 namespace {
@@ -258,6 +259,24 @@ TEST(CommandTableTest, OnlyHelpAndLocalGoWithoutTheCoordinatorAddress) {
   // So a bad address stops `list` but not `help`.
   EXPECT_FALSE(Parse({"--coordinator", "nohost", "list"}).ok());
   EXPECT_TRUE(Parse({"--coordinator", "nohost", "help"}).ok());
+}
+
+// The shared HOST:PORT table (tests/unit/common/host_port_cases.h) through
+// --coordinator: a client needs a port from 1 to 65535.
+TEST(ParseArgsTest, CoordinatorFollowsTheSharedHostPortTable) {
+  for (const skerry::testdata::HostPortCase& c :
+       skerry::testdata::HostPortCases()) {
+    SCOPED_TRACE(c.text);
+    auto parsed = Parse({"--coordinator", c.text, "list"});
+    ASSERT_EQ(parsed.ok(), c.client_ok) << parsed.status();
+    if (parsed.ok()) {
+      EXPECT_EQ(parsed->coordinator, c.text);
+    } else {
+      EXPECT_THAT(parsed.status().message(),
+                  HasSubstr("coordinator address: expected HOST:PORT"));
+      EXPECT_THAT(parsed.status().message(), HasSubstr(c.why));
+    }
+  }
 }
 
 }  // namespace
