@@ -34,7 +34,7 @@ absl::Status DaemonFlagError(absl::string_view name, absl::string_view expected,
 }
 
 absl::StatusOr<DaemonCommandLine> ParseDaemonFlags(
-    const std::vector<std::string>& args, const std::vector<DaemonFlag>& rows,
+    const std::vector<std::string>& args, absl::Span<const DaemonFlag> rows,
     bool repeats) {
   DaemonCommandLine out;
   for (size_t i = 0; i < args.size(); ++i) {

@@ -33,6 +33,7 @@
 #include "absl/status/statusor.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/string_view.h"
+#include "absl/types/span.h"
 #include "common/quote.h"
 
 namespace skerry {
@@ -88,7 +89,7 @@ struct DaemonCommandLine {
 // InvalidArgument as the header says; Internal when a row names no Abseil
 // flag (a bug of the caller).
 absl::StatusOr<DaemonCommandLine> ParseDaemonFlags(
-    const std::vector<std::string>& args, const std::vector<DaemonFlag>& rows,
+    const std::vector<std::string>& args, absl::Span<const DaemonFlag> rows,
     bool repeats);
 
 // InvalidArgument "--NAME: expected EXPECTED, got "TEXT"", the message of a

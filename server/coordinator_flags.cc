@@ -57,7 +57,7 @@ namespace {
 constexpr char kLeaseRange[] = "a number from 0.1 to 86400";
 constexpr char kWaitRange[] = "a number from 0 to 600000";
 
-const std::vector<DaemonFlag> kFlags = {
+constexpr DaemonFlag kFlags[] = {
     {"db"},
     {"listen"},
     {"lease-seconds", kLeaseRange},

@@ -50,7 +50,7 @@ namespace {
 
 constexpr size_t kMaxNameLength = 256;
 
-const std::vector<DaemonFlag> kFlags = {
+constexpr DaemonFlag kFlags[] = {
     {"coordinator"},     {"threads"}, {"name"},           {"batch"},
     {"wait-ms"},         {"timeout"}, {"exit-when-idle"}, {"token"},
     {"token-file"},      {"tls-ca"},  {"tls-cert"},       {"tls-key"},

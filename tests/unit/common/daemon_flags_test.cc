@@ -23,10 +23,10 @@ namespace {
 
 using ::testing::HasSubstr;
 
-const std::vector<DaemonFlag> kRows = {{"test-count"},
-                                       {"test-switch"},
-                                       {"test-address"},
-                                       {"test-ratio", "a number from 0 to 1"}};
+constexpr DaemonFlag kRows[] = {{"test-count"},
+                                {"test-switch"},
+                                {"test-address"},
+                                {"test-ratio", "a number from 0 to 1"}};
 
 absl::StatusOr<DaemonCommandLine> Parse(std::vector<std::string> args,
                                         bool repeats = true) {
