@@ -8,6 +8,7 @@
 #include "cli/client.h"
 #include "cli/commands.h"
 #include "cli/format.h"
+#include "cli/handlers.h"
 #include "grpcpp/client_context.h"
 #include "server/auth/roles.h"
 
@@ -176,7 +177,8 @@ std::vector<CommandSpec> AccessCommandSpecs() {
        "its first token) and prints it on standard output, once: the "
        "coordinator keeps only its hash. `token list` shows the live tokens "
        "(--all: revoked ones too), never their text. `token revoke ID` ends a "
-       "token at once. Needs a token of role admin."},
+       "token at once. Needs a token of role admin.",
+       AccessHandler},
       {"audit",
        {},
        {{"run", "N", "only entries about run N"},
@@ -186,13 +188,15 @@ std::vector<CommandSpec> AccessCommandSpecs() {
        "Prints the audit log, newest first: every submit, pause, resume, stop, "
        "backup and token change, with who asked, when, from which address, "
        "and how it ended (refused calls by a known token included). Needs a "
-       "token of role admin."},
+       "token of role admin.",
+       AccessHandler},
       {"whoami",
        {},
        {},
        "show whom the coordinator takes you to be",
        "Prints the principal and role of your token as the coordinator sees "
-       "them, or says that access control is off. Any valid token may ask."},
+       "them, or says that access control is off. Any valid token may ask.",
+       AccessHandler},
   };
 }
 

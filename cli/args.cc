@@ -11,6 +11,7 @@
 #include "absl/strings/str_split.h"
 #include "cli/access.h"
 #include "cli/compare.h"
+#include "cli/handlers.h"
 #include "cli/lineage.h"
 #include "cli/report.h"
 #include "cli/series.h"
@@ -45,7 +46,8 @@ std::vector<CommandSpec> MakeCommands() {
        "workers' tasks in proportion to its priority (docs/sharing.md). With "
        "--seeds, submits one run of the spec per seed, all or none, as a "
        "series (`skerry series`, `skerry compare`) and prints each run's id "
-       "and seed."},
+       "and seed.",
+       SubmitHandler},
       {"fork",
        {"RUN"},
        {{"at", "GEN",
@@ -61,7 +63,8 @@ std::vector<CommandSpec> MakeCommands() {
        "id. genome_length, objective, islands.count and the population sizes "
        "may not change. Without changes the fork repeats RUN from that "
        "generation on, genome for genome. Lineage commands follow a fork's "
-       "genomes into RUN's. See docs/user-guide.md, \"fork\"."},
+       "genomes into RUN's. See docs/user-guide.md, \"fork\".",
+       ForkHandler},
       {"delete",
        {"RUN"},
        {{"yes", nullptr, "confirm: the run's rows go for good", true}},
@@ -71,15 +74,22 @@ std::vector<CommandSpec> MakeCommands() {
        "keeps its entries). Only a finished, stopped or failed run can be "
        "deleted, and not while forks of it exist. --yes is required. Take a "
        "copy first with `skerry backup RUN --to FILE` if you may want it "
-       "back. The owner or an admin."},
-      {"list", {}, {}, "list every run", "Lists every run, newest last."},
+       "back. The owner or an admin.",
+       DeleteHandler},
+      {"list",
+       {},
+       {},
+       "list every run",
+       "Lists every run, newest last.",
+       ListHandler},
       {"show",
        {"RUN"},
        {{"all", nullptr, "print every generation, not only the last 20"}},
        "show a run: state, islands, champion, per-generation progress",
        "Shows a run's state, evaluation count, workers, each island's "
        "generation and best/mean score, the champion's score, then the best "
-       "and mean score of each generation over all islands."},
+       "and mean score of each generation over all islands.",
+       ShowHandler},
       {"watch",
        {"RUN"},
        {},
@@ -87,14 +97,21 @@ std::vector<CommandSpec> MakeCommands() {
        "Follows a run until it finishes, is stopped or fails, then prints its "
        "final state. On a terminal one progress line is redrawn in place; "
        "otherwise every update is printed on its own line. Keeps trying when "
-       "the coordinator goes away for a while."},
+       "the coordinator goes away for a while.",
+       WatchHandler},
       {"pause",
        {"RUN"},
        {},
        "pause a run",
        "Pauses a run: no new work is "
-       "handed out for it until it is resumed."},
-      {"resume", {"RUN"}, {}, "resume a paused run", "Resumes a paused run."},
+       "handed out for it until it is resumed.",
+       SteerHandler},
+      {"resume",
+       {"RUN"},
+       {},
+       "resume a paused run",
+       "Resumes a paused run.",
+       SteerHandler},
       {"priority",
        {"RUN", "N"},
        {},
@@ -102,12 +119,14 @@ std::vector<CommandSpec> MakeCommands() {
        "Sets the run's priority, its weight in the fair share of the fleet: "
        "while several runs have work waiting, each gets tasks in proportion "
        "to its priority (docs/sharing.md). It applies from the next task "
-       "handed out and is kept across restarts."},
+       "handed out and is kept across restarts.",
+       PriorityHandler},
       {"stop",
        {"RUN"},
        {},
        "stop a run for good",
-       "Stops a run for good; its champion so far stays."},
+       "Stops a run for good; its champion so far stays.",
+       SteerHandler},
       {"champion",
        {"RUN"},
        {{"json", nullptr,
@@ -115,20 +134,23 @@ std::vector<CommandSpec> MakeCommands() {
         {"out", "FILE", "write to FILE instead of standard output"}},
        "print a run's best genome",
        "Prints the run's best genome: id, natural key (run/island/generation/"
-       "slot), score and genes."},
+       "slot), score and genes.",
+       ChampionHandler},
       {"network",
        {"RUN"},
        {{"out", "FILE", "write the network to FILE (-o FILE)", true}},
        "export the champion's network as JSON",
        "Writes the run's champion as a network in the format of "
        "docs/network-format.md (pole evaluators), with the run, genome, score "
-       "and evaluation seed as notes, to run it without Skerry."},
+       "and evaluation seed as notes, to run it without Skerry.",
+       NetworkHandler},
       {"history",
        {"RUN"},
        {{"island", "N", "only island N (default: every island)"}},
        "print per-generation statistics of a run",
        "Prints best, mean and worst score, diversity and evaluations of every "
-       "generation of every island (or of one island)."},
+       "generation of every island (or of one island).",
+       HistoryHandler},
       {"digest",
        {"RUN"},
        {},
@@ -138,7 +160,8 @@ std::vector<CommandSpec> MakeCommands() {
        "how many genomes it covers. Two runs of one spec and seed have the "
        "same "
        "digest however many workers ran them and however often the "
-       "coordinator restarted."},
+       "coordinator restarted.",
+       DigestHandler},
       {"backup",
        {"RUN"},
        {{"to", "FILE", "where to write the copy (must not exist)", true}},
@@ -146,7 +169,8 @@ std::vector<CommandSpec> MakeCommands() {
        "Writes a consistent copy of run RUN (or of the whole database, with "
        "RUN = all) to FILE on this machine, made while the coordinator keeps "
        "working. Restore by starting a coordinator on FILE: "
-       "skerry-coordinator --db FILE."},
+       "skerry-coordinator --db FILE.",
+       BackupHandler},
       {"local",
        {"SPEC_FILE"},
        {{"workers", "N", "number of in-process workers (1 thread each)", true},
@@ -164,12 +188,16 @@ std::vector<CommandSpec> MakeCommands() {
        "printed first). External evaluator programs run in the same sandbox "
        "as under skerry-worker (--sandbox auto: bubblewrap where it works, "
        "else a warning); they never see the database or the client's config "
-       "folder. The --coordinator option is not used."},
+       "folder. The --coordinator option is not used.",
+       LocalHandler,
+       CommandReach::kEmbedded},
       {"help",
        {"[COMMAND]"},
        {},
        "print help for every command, or for one",
-       "Prints the list of commands, or the help of COMMAND."},
+       "Prints the list of commands, or the help of COMMAND.",
+       HelpHandler,
+       CommandReach::kNone},
   };
 }
 
@@ -439,7 +467,7 @@ absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<std::string>& args,
   if (parsed.help) return parsed;
   status = CheckComplete(*command, parsed);
   if (!status.ok()) return status;
-  bool uses_network = parsed.command != "help" && parsed.command != "local";
+  bool uses_network = command->reach == CommandReach::kCoordinator;
   status = uses_network ? CheckCoordinatorAddress(parsed.coordinator)
                         : absl::OkStatus();
   if (!status.ok()) {

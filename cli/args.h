@@ -1,5 +1,8 @@
 // Command-line parsing for `skerry`: the command table (names, arguments,
-// flags, help text), the parser, and typed accessors for argument values.
+// flags, help text, handler), the parser, and typed accessors for argument
+// values. The table is the one list of commands: RunCli dispatches through
+// each row's handler (cli/handlers.h), `skerry help` lists the rows, and
+// usage errors name their flags and arguments.
 //
 // Invariant: a ParsedArgs returned by ParseArgs names a known command, carries
 // every required positional argument and flag of that command, and only flags
@@ -30,13 +33,26 @@ struct FlagSpec {
   bool required = false;
 };
 
+struct CommandContext;  // what a handler is given: cli/handlers.h
+// Runs a parsed command; returns the process's exit code (cli/commands.h).
+using CommandHandler = int (*)(CommandContext& context);
+
+// What a command needs before its handler runs.
+enum class CommandReach {
+  kCoordinator,  // a checked --coordinator address, the token and TLS files
+  kEmbedded,     // a coordinator of its own (`local`): the call timeout only
+  kNone,         // nothing (`help`)
+};
+
 struct CommandSpec {
   const char* name;
   // Positional argument names; a name in brackets ("[COMMAND]") is optional.
   std::vector<const char*> positionals;
   std::vector<FlagSpec> flags;
-  const char* summary;  // one line, for `skerry help`
-  const char* details;  // a paragraph, for `skerry COMMAND --help`
+  const char* summary;               // one line, for `skerry help`
+  const char* details;               // a paragraph, for `skerry COMMAND --help`
+  CommandHandler handler = nullptr;  // every row has one (ArgsTest checks)
+  CommandReach reach = CommandReach::kCoordinator;
 };
 
 // Every command, in the order `skerry help` lists them.

@@ -19,6 +19,7 @@
 #include "cli/compare_page.h"
 #include "cli/fork.h"
 #include "cli/format.h"
+#include "cli/handlers.h"
 #include "cli/housekeeping.h"
 #include "cli/lineage.h"
 #include "cli/metrics_text.h"
@@ -103,101 +104,6 @@ void Sleep(absl::Duration d, Io& io) {
   } else {
     absl::SleepFor(d);
   }
-}
-
-int Dispatch(const ParsedArgs& args, RunClient& client, Io& io) {
-  uint64_t run_id = 0;
-  if (!args.positionals.empty() && args.command != "submit" &&
-      args.command != "series" && args.command != "compare") {
-    absl::StatusOr<uint64_t> id = ParseRunId(args.positionals[0]);
-    if (!id.ok()) return UsageFailure(id.status(), args.command, io);
-    run_id = *id;
-  }
-  const std::string& command = args.command;
-  if (command == "submit") {
-    if (args.Has("series")) {
-      return UsageFailure(absl::InvalidArgumentError(
-                              "--series: names a series, so it goes with "
-                              "--seeds LIST"),
-                          command, io);
-    }
-    uint32_t priority = 0;
-    if (args.Has("priority")) {
-      // The bounds of scheduler::kMinWeight and kMaxWeight.
-      absl::StatusOr<uint32_t> n =
-          ParseBoundedUint("--priority", args.Get("priority"), 1, 1000);
-      if (!n.ok()) return UsageFailure(n.status(), command, io);
-      priority = *n;
-    }
-    int code =
-        SubmitCommand(client, args.positionals[0], io, &run_id, priority);
-    if (code != kExitOk || !args.Has("watch")) return code;
-    return WatchCommand(client, run_id, io);
-  }
-  if (command == "fork") {
-    uint64_t fork_id = 0;
-    return ForkCommand(args, client, run_id, io, &fork_id);
-  }
-  if (command == "delete") return DeleteCommand(client, run_id, io);
-  if (command == "list") return ListCommand(client, io);
-  if (command == "series") return SeriesCommand(args, client, io);
-  if (command == "compare") return CompareCommand(args, client, io);
-  if (command == "show")
-    return ShowCommand(client, run_id, args.Has("all"), io);
-  if (command == "watch") return WatchCommand(client, run_id, io);
-  if (command == "pause" || command == "resume" || command == "stop") {
-    return SteerCommand(client, run_id, command, io);
-  }
-  if (command == "digest") return DigestCommand(client, run_id, io);
-  if (command == "priority") {
-    absl::StatusOr<uint32_t> n =
-        ParseBoundedUint("PRIORITY", args.positionals[1], 1, 1000);
-    if (!n.ok()) return UsageFailure(n.status(), command, io);
-    absl::StatusOr<RunSummary> run = client.SetPriority(run_id, *n);
-    if (!run.ok()) return ReportError(run.status(), io);
-    *io.out << "run " << run->id() << " priority " << run->priority() << "\n";
-    return kExitOk;
-  }
-  if (command == "network") {
-    return NetworkCommand(client, run_id, args.Get("out"), io);
-  }
-  if (command == "champion") {
-    return ChampionCommand(client, run_id, args.Has("json"), args.Get("out"),
-                           io);
-  }
-  if (command == "history") {
-    std::optional<uint32_t> island;
-    if (args.Has("island")) {
-      absl::StatusOr<uint32_t> n =
-          ParseBoundedUint("--island", args.Get("island"), 0, 255);
-      if (!n.ok()) return UsageFailure(n.status(), command, io);
-      island = *n;
-    }
-    return HistoryCommand(client, run_id, island, io);
-  }
-  return UsageFailure(absl::InvalidArgumentError(
-                          absl::StrCat("command '", command, "' not handled")),
-                      "", io);
-}
-
-int Help(const ParsedArgs& args, Io& io) {
-  if (args.command == "help" && !args.positionals.empty()) {
-    const CommandSpec* command = FindCommand(args.positionals[0]);
-    if (command == nullptr) {
-      return UsageFailure(
-          absl::InvalidArgumentError(absl::StrCat("help: unknown command '",
-                                                  args.positionals[0], "'")),
-          "help", io);
-    }
-    *io.out << CommandHelp(*command);
-    return kExitOk;
-  }
-  if (args.command == "help") {
-    *io.out << GeneralHelp();
-  } else {
-    *io.out << CommandHelp(*FindCommand(args.command));
-  }
-  return kExitOk;
 }
 
 }  // namespace
@@ -475,11 +381,18 @@ int RunCli(const std::vector<std::string>& args,
     }
     return UsageFailure(parsed.status(), command, io);
   }
-  if (parsed->help || parsed->command == "help") return Help(*parsed, io);
-  if (parsed->command == "version") {
+  if (parsed->command == "version") {  // --version, an option
     *io.out << VersionLine("skerry");
     return 0;
   }
+  const CommandSpec& command = *FindCommand(parsed->command);
+  // `help` answers --help itself, with the list of commands.
+  if (parsed->help && command.reach != CommandReach::kNone) {
+    *io.out << CommandHelp(command);
+    return kExitOk;
+  }
+  CommandContext context{*parsed, io, factory, {}};
+  if (command.reach == CommandReach::kNone) return command.handler(context);
   SetCallTimeout(absl::ZeroDuration());
   if (!parsed->Global("timeout").empty()) {
     absl::StatusOr<uint32_t> seconds =
@@ -487,64 +400,13 @@ int RunCli(const std::vector<std::string>& args,
     if (!seconds.ok()) return UsageFailure(seconds.status(), "", io);
     SetCallTimeout(absl::Seconds(*seconds));
   }
-  if (parsed->command == "local") {
-    if (!io.run_local) {
-      *io.err << "skerry: local: this program was built without the embedded "
-                 "coordinator\n";
-      return kExitUsage;
-    }
-    return io.run_local(*parsed, io);
+  if (command.reach == CommandReach::kEmbedded) {
+    return command.handler(context);
   }
   absl::StatusOr<worker::ClientSecurity> security = Security(*parsed, io);
   if (!security.ok()) return UsageFailure(security.status(), "", io);
-  const std::string& target = parsed->coordinator;
-  auto channel = [&]() { return CoordinatorChannel(target, *security); };
-  if (IsLineageCommand(parsed->command) || parsed->command == "backup" ||
-      IsAccessCommand(parsed->command) ||
-      IsValidationCommand(parsed->command) || parsed->command == "report" ||
-      parsed->command == "workers" || parsed->command == "extend" ||
-      (parsed->command == "submit" && parsed->Has("seeds"))) {
-    absl::StatusOr<std::shared_ptr<grpc::Channel>> ch = channel();
-    if (!ch.ok()) return UsageFailure(ch.status(), "", io);
-    if (IsLineageCommand(parsed->command)) {
-      LineageStubFactory lineage = [&ch](const std::string&) {
-        return skerry::v1::LineageService::NewStub(*ch);
-      };
-      return LineageCommand(*parsed, lineage, TerminalConfirm(), io);
-    }
-    if (parsed->command == "backup") {
-      auto admin = skerry::v1::AdminService::NewStub(*ch);
-      return BackupCommand(*parsed, *admin, io);
-    }
-    if (parsed->command == "extend" || parsed->command == "submit") {
-      auto study = skerry::v1::StudyService::NewStub(*ch);
-      return parsed->command == "extend"
-                 ? ExtendCommand(*parsed, *study, io)
-                 : SubmitSeriesCommand(*parsed, *study, io);
-    }
-    if (parsed->command == "workers") {
-      auto admin = skerry::v1::AdminService::NewStub(*ch);
-      return WorkersCommand(*parsed, *admin, io);
-    }
-    if (parsed->command == "report" && NamesASeries(parsed->positionals)) {
-      RunClient client(skerry::v1::RunService::NewStub(*ch), target);
-      return ReportComparisonCommand(*parsed, client, io);
-    }
-    if (parsed->command == "report") {
-      auto runs = skerry::v1::RunService::NewStub(*ch);
-      auto lineage = skerry::v1::LineageService::NewStub(*ch);
-      return ReportCommand(*parsed, *runs, *lineage, io);
-    }
-    if (IsValidationCommand(parsed->command)) {
-      auto validation = skerry::v1::ValidationService::NewStub(*ch);
-      return ValidationCommand(*parsed, *validation, io);
-    }
-    auto access = skerry::v1::AccessService::NewStub(*ch);
-    return AccessCommand(*parsed, *access, target, io);
-  }
-  std::unique_ptr<RunClient> client = factory(target, *security);
-  if (client == nullptr) return kExitUsage;
-  return Dispatch(*parsed, *client, io);
+  context.security = *std::move(security);
+  return command.handler(context);
 }
 
 }  // namespace skerry::cli

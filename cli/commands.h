@@ -1,6 +1,7 @@
 // The commands of `skerry`: each takes a RunClient and an Io, prints what the
 // user asked for on io.out, errors on io.err, and returns the exit code.
-// RunCli parses the arguments and dispatches; main.cc only builds the channel.
+// RunCli parses the arguments and runs the command's handler from the command
+// table (cli/handlers.h); main.cc only builds the channel.
 //
 // Invariant: a command never exits the process and never throws; every failure
 // is one line on io.err starting "skerry: " and a non-zero exit code:

@@ -11,6 +11,7 @@
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_split.h"
 #include "cli/format.h"
+#include "cli/handlers.h"
 #include "cli/series.h"
 #include "common/rank_sum.h"
 
@@ -143,7 +144,8 @@ std::vector<CommandSpec> CompareCommandSpecs() {
        "checkpoint every group reached, two-sided, with its p-value, exact for "
        "small samples "
        "without ties, else the normal approximation with tie and continuity "
-       "correction (the output says which)."},
+       "correction (the output says which).",
+       CompareHandler},
   };
 }
 

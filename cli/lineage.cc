@@ -14,6 +14,7 @@
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
 #include "cli/format.h"
+#include "cli/handlers.h"
 #include "cli/lineage_internal.h"
 #include "grpcpp/create_channel.h"
 #include "grpcpp/security/credentials.h"
@@ -91,32 +92,38 @@ std::vector<CommandSpec> LineageCommandSpecs() {
         {"dot", nullptr, "print a Graphviz DOT graph of the ancestry"},
         kYes},
        "print a genome's ancestors (stream; asks before huge answers)",
-       ancestors.c_str()},
+       ancestors.c_str(),
+       LineageHandler},
       {"descent",
        {"GENOME"},
        {kJson},
        "print a genome's line of descent back to its founder",
-       descent.c_str()},
+       descent.c_str(),
+       LineageHandler},
       {"descendants",
        {"GENOME"},
        {kDepth, kJson, kYes},
        "print a genome's descendants",
-       descendants.c_str()},
+       descendants.c_str(),
+       LineageHandler},
       {"common-ancestor",
        {"GENOME", "GENOME"},
        {kJson},
        "print the most recent common ancestors of two genomes",
-       common.c_str()},
+       common.c_str(),
+       LineageHandler},
       {"coalescence",
        {"TARGET"},
        {kDepth, kJson},
        "count distinct ancestors per generation of a genome or population",
-       coalescence.c_str()},
+       coalescence.c_str(),
+       LineageHandler},
       {"attribution",
        {"GENOME"},
        {kJson},
        "which origins and islands made a genome's improvements",
-       attribution.c_str()},
+       attribution.c_str(),
+       LineageHandler},
   };
 }
 

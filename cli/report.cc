@@ -8,6 +8,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "absl/time/time.h"
+#include "cli/handlers.h"
 #include "server/http/report_data.h"
 #include "server/http/report_page.h"
 
@@ -30,7 +31,8 @@ std::vector<CommandSpec> ReportCommandSpecs() {
        "also in a table. Given a series name, it writes instead the "
        "comparison of `skerry compare` as a page: each group's median best "
        "score against evaluations with its quartiles, the numbers in a "
-       "table, and the rank-sum tests. docs/report.md."},
+       "table, and the rank-sum tests. docs/report.md.",
+       ReportHandler},
   };
 }
 

@@ -9,6 +9,7 @@
 #include "absl/strings/str_split.h"
 #include "absl/strings/strip.h"
 #include "cli/format.h"
+#include "cli/handlers.h"
 
 namespace skerry::cli {
 namespace {
@@ -118,7 +119,8 @@ std::vector<CommandSpec> SeriesCommandSpecs() {
        "and their states. `show NAME` lists the series' runs; `pause NAME`, "
        "`resume NAME` and `stop NAME` act on each of its runs that can take "
        "the action (running, paused, not yet ended) and leave the others, "
-       "naming each. A series is made by `skerry submit SPEC --seeds LIST`."},
+       "naming each. A series is made by `skerry submit SPEC --seeds LIST`.",
+       SeriesHandler},
       {"extend",
        {"RUN"},
        {{"generations", "N", "raise the generation limit to N"},
@@ -135,7 +137,8 @@ std::vector<CommandSpec> SeriesCommandSpecs() {
        "may not lower it; give at least one. The run then makes the very "
        "genomes a run submitted with the raised rule from the start makes "
        "(same digest), except under a wall-time limit, which is never "
-       "reproducible."},
+       "reproducible.",
+       ExtendHandler},
   };
 }
 

@@ -7,6 +7,7 @@
 #include "absl/time/clock.h"
 #include "cli/client.h"
 #include "cli/format.h"
+#include "cli/handlers.h"
 #include "cli/lineage.h"
 #include "grpcpp/client_context.h"
 
@@ -171,14 +172,16 @@ std::vector<CommandSpec> ValidationCommandSpecs() {
        "answer and prints it beside the training score. GENOME is ID, #ID, "
        "RUN/ISLAND/GENERATION/SLOT or RUN/best. A genome is validated once; "
        "asking again prints the stored validation. Exit 1 when the "
-       "validation failed or is still pending at the timeout."},
+       "validation failed or is still pending at the timeout.",
+       ValidationHandler},
       {"validations",
        {"RUN"},
        {{"limit", "N", "at most N, newest first (default 100)"}, kJsonFlag},
        "list a run's validations, newest first",
        "Lists the held-out validations of a run: each generation's champion "
        "(as the spec's validation.champions says) and the genomes people "
-       "asked for, with training and validation scores."},
+       "asked for, with training and validation scores.",
+       ValidationHandler},
   };
 }
 

@@ -6,6 +6,7 @@
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "cli/format.h"
+#include "cli/handlers.h"
 #include "grpcpp/grpcpp.h"
 #include "server/api/grpc_status.h"
 
@@ -22,7 +23,8 @@ std::vector<CommandSpec> WorkersCommandSpecs() {
        "host, threads, the built-in evaluators it runs, version, when it was "
        "last seen, tasks leased to it now, evaluations per second (since the "
        "coordinator started) and how it sandboxes external evaluators. Each "
-       "start of a worker is a new id."},
+       "start of a worker is a new id.",
+       WorkersHandler},
   };
 }
 

@@ -1,5 +1,7 @@
 #include "common/host_port.h"
 
+#include <utility>
+
 #include "absl/status/status.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
@@ -7,12 +9,13 @@
 
 namespace skerry {
 
-absl::StatusOr<HostPort> ParseHostPort(absl::string_view flag,
-                                       absl::string_view text,
-                                       bool allow_port_zero) {
+namespace {
+
+// The rule, with errors that do not name the flag.
+absl::StatusOr<HostPort> Parse(absl::string_view text, bool allow_port_zero) {
   auto bad = [&](absl::string_view why) {
     return absl::InvalidArgumentError(absl::StrCat(
-        flag, ": expected HOST:PORT (", why, "), got ", QuotePrefix(text)));
+        "expected HOST:PORT (", why, "), got ", QuotePrefix(text)));
   };
   const size_t colon = text.rfind(':');
   if (colon == absl::string_view::npos) return bad("no port");
@@ -47,6 +50,38 @@ absl::StatusOr<HostPort> ParseHostPort(absl::string_view flag,
         absl::StrCat("port must be a whole number from ", lo, " to 65535"));
   }
   return HostPort{std::string(host), static_cast<uint32_t>(value)};
+}
+
+}  // namespace
+
+std::string HostPort::ToString() const {
+  return empty() ? std::string() : absl::StrCat(host, ":", port);
+}
+
+absl::StatusOr<HostPort> ParseHostPort(absl::string_view flag,
+                                       absl::string_view text,
+                                       bool allow_port_zero) {
+  absl::StatusOr<HostPort> address = Parse(text, allow_port_zero);
+  if (!address.ok()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat(flag, ": ", address.status().message()));
+  }
+  return address;
+}
+
+bool AbslParseFlag(absl::string_view text, HostPort* address,
+                   std::string* error) {
+  absl::StatusOr<HostPort> parsed = Parse(text, /*allow_port_zero=*/true);
+  if (!parsed.ok()) {
+    *error = std::string(parsed.status().message());
+    return false;
+  }
+  *address = *std::move(parsed);
+  return true;
+}
+
+std::string AbslUnparseFlag(const HostPort& address) {
+  return address.ToString();
 }
 
 }  // namespace skerry

@@ -22,14 +22,25 @@
 namespace skerry {
 
 struct HostPort {
-  std::string host;  // brackets kept for IPv6: "[::1]"
+  std::string host;  // brackets kept for IPv6: "[::1]"; empty: no address
   uint32_t port = 0;
+
+  bool empty() const { return host.empty(); }
+  // "HOST:PORT" as it was parsed; "" when empty.
+  std::string ToString() const;
 };
 
 // `flag` names the source in errors ("--listen", "coordinator address").
 absl::StatusOr<HostPort> ParseHostPort(absl::string_view flag,
                                        absl::string_view text,
                                        bool allow_port_zero = false);
+
+// The Abseil flag type (absl/flags/marshalling.h): the rule above with port 0
+// allowed. `error` says what was expected and quotes `text`; the caller names
+// the flag (common/daemon_flags.h).
+bool AbslParseFlag(absl::string_view text, HostPort* address,
+                   std::string* error);
+std::string AbslUnparseFlag(const HostPort& address);
 
 }  // namespace skerry
 

@@ -1,21 +1,84 @@
 #include "server/coordinator_flags.h"
 
-#include <optional>
+#include <algorithm>
 #include <string>
-#include <utility>
+#include <vector>
 
-#include "absl/strings/match.h"
-#include "absl/strings/numbers.h"
+#include "absl/flags/flag.h"
 #include "absl/strings/str_cat.h"
+#include "common/daemon_flags.h"
 #include "common/host_port.h"
 #include "server/api/fleet_service.h"
 #include "server/auth/access_control.h"
 
+// The coordinator's flags, written with '-' for '_' (common/daemon_flags.h).
+// They hold what the command line says; CoordinatorOptions keeps the defaults
+// of the flags not given. The help of each is CoordinatorUsage().
+using skerry::HostPort;
+using WatcherCount = skerry::WholeNumber<1, 100000>;
+using Budget = skerry::WholeNumber<1, uint64_t{1} << 40>;
+// A task must fit in a lease answer with room to spare.
+using TaskBudget =
+    skerry::WholeNumber<1, skerry::api::FleetServiceImpl::kMaxLeaseBytes>;
+ABSL_FLAG(std::string, db, "", "database file (created when missing)");
+ABSL_FLAG(HostPort, listen, HostPort({"127.0.0.1", 7431}),
+          "address to serve on; port 0 picks a free port");
+ABSL_FLAG(double, lease_seconds, 30,
+          "how long a worker holds tasks without renewing");
+ABSL_FLAG(double, max_wait_ms, 10000, "cap on a worker's long poll");
+ABSL_FLAG(std::string, init_admin, "",
+          "create the first admin principal, print its token, exit");
+ABSL_FLAG(std::string, auth, "auto", "when tokens are checked: auto|on|off");
+ABSL_FLAG(std::string, tls_cert, "", "TLS certificate chain (PEM)");
+ABSL_FLAG(std::string, tls_key, "", "TLS private key (PEM)");
+ABSL_FLAG(std::string, tls_client_ca, "",
+          "require client certificates signed by this CA (PEM)");
+ABSL_FLAG(HostPort, http, HostPort(),
+          "also serve the web page and /metrics here (default: off)");
+ABSL_FLAG(bool, read_only, false, "serve an existing database unchanged");
+ABSL_FLAG(std::string, chart_library,
+          "/usr/share/javascript/chart.js/chart.min.js",
+          "Chart.js for the web page");
+ABSL_FLAG(WatcherCount, max_watchers, {256}, "concurrent watch streams served");
+ABSL_FLAG(Budget, max_generation_genes, {},
+          "budget: genes of one generation of a run");
+ABSL_FLAG(Budget, max_generation_genomes, {},
+          "budget: genomes of one generation of a run");
+ABSL_FLAG(Budget, max_evaluator_bytes, {},
+          "budget: bytes of a run's serialised evaluator spec");
+ABSL_FLAG(Budget, max_name_bytes, {}, "budget: bytes of a run's name");
+ABSL_FLAG(TaskBudget, max_task_bytes, {}, "budget: bytes of one task");
+ABSL_FLAG(std::string, check, "", "check a database, print a report, exit");
+ABSL_FLAG(std::string, import, "", "import the runs of a backup file, exit");
+
 namespace skerry::server {
 namespace {
 
-// A task must fit in a lease answer with room to spare.
-constexpr uint64_t kMaxTaskBytesFlag = api::FleetServiceImpl::kMaxLeaseBytes;
+constexpr char kLeaseRange[] = "a number from 0.1 to 86400";
+constexpr char kWaitRange[] = "a number from 0 to 600000";
+
+constexpr DaemonFlag kFlags[] = {
+    {"db"},
+    {"listen"},
+    {"lease-seconds", kLeaseRange},
+    {"max-wait-ms", kWaitRange},
+    {"init-admin"},
+    {"auth"},
+    {"tls-cert"},
+    {"tls-key"},
+    {"tls-client-ca"},
+    {"http"},
+    {"read-only"},
+    {"chart-library"},
+    {"max-watchers"},
+    {"max-generation-genes"},
+    {"max-generation-genomes"},
+    {"max-evaluator-bytes"},
+    {"max-name-bytes"},
+    {"max-task-bytes"},
+    {"check"},
+    {"import"},
+};
 
 }  // namespace
 
@@ -97,143 +160,75 @@ Stop it with SIGINT or SIGTERM; killing it outright loses nothing committed.
 
 absl::StatusOr<CoordinatorFlags> ParseCoordinatorFlags(
     int argc, const char* const* argv) {
+  // Only the flags given are read: each parse sets them afresh, so one left
+  // from an earlier parse in this process (tests) is never seen.
+  const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
+  absl::StatusOr<DaemonCommandLine> line =
+      ParseDaemonFlags(args, kFlags, /*repeats=*/true);
+  if (!line.ok()) return line.status();
   CoordinatorFlags f;
-  for (int i = 1; i < argc; ++i) {
-    std::string arg = argv[i];
-    // --name=value is --name value, as the worker and the CLI take it.
-    std::optional<std::string> inline_value;
-    if (absl::StartsWith(arg, "--")) {
-      const size_t eq = arg.find('=');
-      if (eq != std::string::npos) {
-        inline_value = arg.substr(eq + 1);
-        arg.resize(eq);
-      }
-    }
-    auto value = [&](const char* name) -> absl::StatusOr<std::string> {
-      if (inline_value.has_value()) {
-        std::string v = *std::move(inline_value);
-        inline_value.reset();
-        return v;
-      }
-      if (i + 1 >= argc) {
-        return absl::InvalidArgumentError(
-            absl::StrCat(name, ": needs a value"));
-      }
-      return std::string(argv[++i]);
-    };
-    auto number = [&](const char* name, double lo,
-                      double hi) -> absl::StatusOr<double> {
-      absl::StatusOr<std::string> v = value(name);
-      if (!v.ok()) return v.status();
-      double d = 0;
-      if (!absl::SimpleAtod(*v, &d) || !(d >= lo && d <= hi)) {
-        return absl::InvalidArgumentError(
-            absl::StrCat(name, ": expected a number from ", lo, " to ", hi,
-                         ", got \"", *v, "\""));
-      }
-      return d;
-    };
-    if (arg == "--help" || arg == "-h") {
-      f.help = true;
-    } else if (arg == "--version") {
-      f.version = true;
-    } else if (arg == "--read-only") {
-      f.options.read_only = true;
-    } else if (arg == "--check") {
-      absl::StatusOr<std::string> v = value("--check");
-      if (!v.ok()) return v.status();
-      f.check_db = *v;
-    } else if (arg == "--import") {
-      absl::StatusOr<std::string> v = value("--import");
-      if (!v.ok()) return v.status();
-      f.import_file = *v;
-    } else if (arg == "--init-admin") {
-      absl::StatusOr<std::string> v = value("--init-admin");
-      if (!v.ok()) return v.status();
-      f.init_admin = *v;
-    } else if (arg == "--auth") {
-      absl::StatusOr<std::string> v = value("--auth");
-      if (!v.ok()) return v.status();
-      absl::StatusOr<auth::AuthMode> mode = auth::ParseAuthMode(*v);
-      if (!mode.ok()) return mode.status();
-      f.options.auth = *mode;
-    } else if (arg == "--tls-cert" || arg == "--tls-key" ||
-               arg == "--tls-client-ca") {
-      absl::StatusOr<std::string> v = value(arg.c_str());
-      if (!v.ok()) return v.status();
-      std::string& field = arg == "--tls-cert"  ? f.options.tls_cert_file
-                           : arg == "--tls-key" ? f.options.tls_key_file
-                                                : f.options.tls_client_ca_file;
-      field = *v;
-    } else if (arg == "--http" || arg == "--chart-library") {
-      absl::StatusOr<std::string> v = value(arg.c_str());
-      if (!v.ok()) return v.status();
-      if (arg == "--http") {
-        absl::StatusOr<HostPort> address =
-            ParseHostPort("--http", *v, /*allow_port_zero=*/true);
-        if (!address.ok()) return address.status();
-      }
-      (arg == "--http" ? f.options.http_address : f.options.chart_library) = *v;
-    } else if (arg == "--db") {
-      absl::StatusOr<std::string> v = value("--db");
-      if (!v.ok()) return v.status();
-      f.options.db_path = *v;
-    } else if (arg == "--listen") {
-      absl::StatusOr<std::string> v = value("--listen");
-      if (!v.ok()) return v.status();
-      absl::StatusOr<HostPort> address =
-          ParseHostPort("--listen", *v, /*allow_port_zero=*/true);
-      if (!address.ok()) return address.status();
-      f.options.listen_address = *v;
-    } else if (arg == "--lease-seconds") {
-      absl::StatusOr<double> v = number("--lease-seconds", 0.1, 86400);
-      if (!v.ok()) return v.status();
-      f.options.lease = absl::Seconds(*v);
-    } else if (arg == "--max-watchers") {
-      absl::StatusOr<double> v = number("--max-watchers", 1, 100000);
-      if (!v.ok()) return v.status();
-      if (*v != static_cast<double>(static_cast<size_t>(*v))) {
-        return absl::InvalidArgumentError(
-            absl::StrCat("--max-watchers: expected a whole number, got ", *v));
-      }
-      f.options.max_watchers = static_cast<size_t>(*v);
-    } else if (arg == "--max-generation-genes" ||
-               arg == "--max-generation-genomes" ||
-               arg == "--max-evaluator-bytes" || arg == "--max-name-bytes" ||
-               arg == "--max-task-bytes") {
-      const bool task = arg == "--max-task-bytes";
-      absl::StatusOr<std::string> v = value(arg.c_str());
-      if (!v.ok()) return v.status();
-      uint64_t n = 0;
-      const uint64_t hi = task ? kMaxTaskBytesFlag : uint64_t{1} << 40;
-      if (!absl::SimpleAtoi(*v, &n) || n < 1 || n > hi) {
-        return absl::InvalidArgumentError(absl::StrCat(
-            arg, ": expected a whole number from 1 to ", hi, ", got \"",
-            v->substr(0, 32), v->size() > 32 ? "...\"" : "\""));
-      }
-      SpecBudgets& b = f.options.budgets;
-      uint64_t& field =
-          arg == "--max-generation-genomes" ? b.max_generation_genomes
-          : arg == "--max-generation-genes" ? b.max_generation_genes
-          : arg == "--max-evaluator-bytes"  ? b.max_evaluator_bytes
-          : arg == "--max-name-bytes"       ? b.max_name_bytes
-                                            : b.max_task_bytes;
-      field = n;
-    } else if (arg == "--max-wait-ms") {
-      absl::StatusOr<double> v = number("--max-wait-ms", 0, 600000);
-      if (!v.ok()) return v.status();
-      f.options.max_lease_wait = absl::Milliseconds(*v);
-    } else {
-      return absl::InvalidArgumentError(
-          absl::StrCat("unknown argument \"", arg, "\""));
-    }
-    if (inline_value.has_value()) {
-      return absl::InvalidArgumentError(
-          absl::StrCat(arg, ": takes no value, got \"", *inline_value, "\""));
-    }
+  f.help = line->help;
+  f.version = line->version;
+  auto given = [&](const char* name) { return line->given.count(name) > 0; };
+  CoordinatorOptions& o = f.options;
+  if (given("check")) f.check_db = absl::GetFlag(FLAGS_check);
+  if (given("import")) f.import_file = absl::GetFlag(FLAGS_import);
+  if (given("init-admin")) f.init_admin = absl::GetFlag(FLAGS_init_admin);
+  o.read_only = given("read-only");
+  if (given("db")) o.db_path = absl::GetFlag(FLAGS_db);
+  if (given("listen"))
+    o.listen_address = absl::GetFlag(FLAGS_listen).ToString();
+  if (given("http")) o.http_address = absl::GetFlag(FLAGS_http).ToString();
+  if (given("chart-library")) {
+    o.chart_library = absl::GetFlag(FLAGS_chart_library);
   }
-  if (!f.help && !f.version && f.check_db.empty() &&
-      f.options.db_path.empty()) {
+  if (given("tls-cert")) o.tls_cert_file = absl::GetFlag(FLAGS_tls_cert);
+  if (given("tls-key")) o.tls_key_file = absl::GetFlag(FLAGS_tls_key);
+  if (given("tls-client-ca")) {
+    o.tls_client_ca_file = absl::GetFlag(FLAGS_tls_client_ca);
+  }
+  if (given("auth")) {
+    absl::StatusOr<auth::AuthMode> mode =
+        auth::ParseAuthMode(absl::GetFlag(FLAGS_auth));
+    if (!mode.ok()) return mode.status();
+    o.auth = *mode;
+  }
+  if (given("lease-seconds")) {
+    const double seconds = absl::GetFlag(FLAGS_lease_seconds);
+    if (!(seconds >= 0.1 && seconds <= 86400)) {
+      return DaemonFlagError("lease-seconds", kLeaseRange,
+                             absl::StrCat(seconds));
+    }
+    o.lease = absl::Seconds(seconds);
+  }
+  if (given("max-wait-ms")) {
+    const double ms = absl::GetFlag(FLAGS_max_wait_ms);
+    if (!(ms >= 0 && ms <= 600000)) {
+      return DaemonFlagError("max-wait-ms", kWaitRange, absl::StrCat(ms));
+    }
+    o.max_lease_wait = absl::Milliseconds(ms);
+  }
+  if (given("max-watchers")) {
+    o.max_watchers = absl::GetFlag(FLAGS_max_watchers).value;
+  }
+  SpecBudgets& b = o.budgets;
+  if (given("max-generation-genes")) {
+    b.max_generation_genes = absl::GetFlag(FLAGS_max_generation_genes).value;
+  }
+  if (given("max-generation-genomes")) {
+    b.max_generation_genomes =
+        absl::GetFlag(FLAGS_max_generation_genomes).value;
+  }
+  if (given("max-evaluator-bytes")) {
+    b.max_evaluator_bytes = absl::GetFlag(FLAGS_max_evaluator_bytes).value;
+  }
+  if (given("max-name-bytes")) {
+    b.max_name_bytes = absl::GetFlag(FLAGS_max_name_bytes).value;
+  }
+  if (given("max-task-bytes")) {
+    b.max_task_bytes = absl::GetFlag(FLAGS_max_task_bytes).value;
+  }
+  if (!f.help && !f.version && f.check_db.empty() && o.db_path.empty()) {
     return absl::InvalidArgumentError("--db: a database file is required");
   }
   return f;

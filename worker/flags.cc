@@ -5,45 +5,60 @@
 #include <cstdint>
 #include <cstdlib>
 #include <cstring>
-#include <set>
 
+#include "absl/flags/flag.h"
 #include "absl/status/status.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "absl/strings/string_view.h"
+#include "common/daemon_flags.h"
 #include "common/host_port.h"
+#include "common/quote.h"
+
+// The worker's flags, written with '-' for '_' (common/daemon_flags.h). They
+// hold what the command line says; WorkerFlags keeps the defaults of the
+// flags not given. The help of each is WorkerUsage().
+using skerry::HostPort;
+using ThreadCount = skerry::WholeNumber<1, skerry::worker::kMaxThreadsFlag>;
+using BatchSize = skerry::WholeNumber<1, skerry::worker::kMaxBatchFlag>;
+using WaitMs = skerry::WholeNumber<0, skerry::worker::kMaxWaitMsFlag>;
+using TimeoutSeconds = skerry::WholeNumber<1, skerry::worker::kMaxTimeoutFlag>;
+using IdleSeconds =
+    skerry::WholeNumber<1, skerry::worker::kMaxExitWhenIdleFlag>;
+ABSL_FLAG(HostPort, coordinator, HostPort(),
+          "the coordinator's address (required)");
+ABSL_FLAG(ThreadCount, threads, {}, "evaluation threads (required)");
+ABSL_FLAG(std::string, name, "", "shown in the coordinator's worker list");
+ABSL_FLAG(BatchSize, batch, {}, "tasks per lease (default: 4 x threads)");
+ABSL_FLAG(WaitMs, wait_ms, {5000}, "how long a lease waits for work");
+ABSL_FLAG(TimeoutSeconds, timeout, {30}, "bound of each call and connection");
+ABSL_FLAG(IdleSeconds, exit_when_idle, {}, "exit after SECONDS without work");
+ABSL_FLAG(std::string, token, "", "bearer token of role worker");
+ABSL_FLAG(std::string, token_file, "", "read the token from FILE");
+ABSL_FLAG(std::string, tls_ca, "", "TLS: the coordinator's CA (PEM)");
+ABSL_FLAG(std::string, tls_cert, "", "TLS client certificate (PEM)");
+ABSL_FLAG(std::string, tls_key, "", "TLS client key (PEM)");
+ABSL_FLAG(std::string, tls_server_name, "",
+          "name to expect in the coordinator's certificate");
+ABSL_FLAG(std::string, sandbox, "auto", "auto, bwrap or none");
+ABSL_FLAG(std::string, evaluator_dirs, "",
+          "with bwrap: folders evaluator programs may come from");
 
 namespace skerry::worker {
 namespace {
 
 constexpr size_t kMaxNameLength = 256;
 
+constexpr DaemonFlag kFlags[] = {
+    {"coordinator"},     {"threads"}, {"name"},           {"batch"},
+    {"wait-ms"},         {"timeout"}, {"exit-when-idle"}, {"token"},
+    {"token-file"},      {"tls-ca"},  {"tls-cert"},       {"tls-key"},
+    {"tls-server-name"}, {"sandbox"}, {"evaluator-dirs"},
+};
+
 absl::Status FlagError(absl::string_view flag, absl::string_view what) {
   return absl::InvalidArgumentError(absl::StrCat(flag, ": ", what));
-}
-
-// Digits only (no sign, no spaces), within [lo, hi].
-absl::StatusOr<uint64_t> ParseWholeNumber(absl::string_view flag,
-                                          absl::string_view text, uint64_t lo,
-                                          uint64_t hi) {
-  auto bad = [&] {
-    return FlagError(flag, absl::StrCat("expected a whole number from ", lo,
-                                        " to ", hi, ", got \"", text, "\""));
-  };
-  if (text.empty() || text.size() > 19) return bad();
-  uint64_t value = 0;
-  for (char c : text) {
-    if (c < '0' || c > '9') return bad();
-    value = value * 10 + static_cast<uint64_t>(c - '0');
-  }
-  if (value < lo || value > hi) return bad();
-  return value;
-}
-
-// HOST:PORT, the syntax all three programs share (common/host_port.h).
-absl::Status CheckAddress(absl::string_view flag, absl::string_view text) {
-  return ParseHostPort(flag, text).status();
 }
 
 absl::Status CheckName(absl::string_view flag, absl::string_view text) {
@@ -60,71 +75,11 @@ absl::Status CheckName(absl::string_view flag, absl::string_view text) {
   return absl::OkStatus();
 }
 
-absl::Status Apply(absl::string_view flag, absl::string_view value,
-                   WorkerFlags& out) {
-  if (flag == "--coordinator") {
-    if (absl::Status s = CheckAddress(flag, value); !s.ok()) return s;
-    out.coordinator = std::string(value);
-  } else if (flag == "--threads") {
-    absl::StatusOr<uint64_t> n =
-        ParseWholeNumber(flag, value, 1, kMaxThreadsFlag);
-    if (!n.ok()) return n.status();
-    out.options.threads = static_cast<int>(*n);
-  } else if (flag == "--name") {
-    if (absl::Status s = CheckName(flag, value); !s.ok()) return s;
-    out.options.name = std::string(value);
-  } else if (flag == "--batch") {
-    absl::StatusOr<uint64_t> n =
-        ParseWholeNumber(flag, value, 1, kMaxBatchFlag);
-    if (!n.ok()) return n.status();
-    out.options.batch = static_cast<uint32_t>(*n);
-  } else if (flag == "--wait-ms") {
-    absl::StatusOr<uint64_t> n =
-        ParseWholeNumber(flag, value, 0, kMaxWaitMsFlag);
-    if (!n.ok()) return n.status();
-    out.options.wait = absl::Milliseconds(static_cast<int64_t>(*n));
-  } else if (flag == "--sandbox") {
-    absl::StatusOr<SandboxMode> mode = ParseSandboxMode(value);
-    if (!mode.ok()) return mode.status();
-    out.sandbox = *mode;
-  } else if (flag == "--evaluator-dirs") {
-    for (absl::string_view dir : absl::StrSplit(value, ':')) {
-      if (dir.empty() || dir[0] != '/') {
-        return FlagError(flag, absl::StrCat("expected absolute folders "
-                                            "separated by ':', got \"",
-                                            value.substr(0, 256), "\""));
-      }
-      out.evaluator_dirs.emplace_back(dir);
-    }
-  } else if (flag == "--timeout") {
-    absl::StatusOr<uint64_t> n =
-        ParseWholeNumber(flag, value, 1, kMaxTimeoutFlag);
-    if (!n.ok()) return n.status();
-    out.options.rpc_deadline = absl::Seconds(static_cast<int64_t>(*n));
-    out.connect_timeout = out.options.rpc_deadline;
-  } else if (flag == "--exit-when-idle") {
-    absl::StatusOr<uint64_t> n =
-        ParseWholeNumber(flag, value, 1, kMaxExitWhenIdleFlag);
-    if (!n.ok()) return n.status();
-    out.options.exit_when_idle = absl::Seconds(static_cast<int64_t>(*n));
-  } else if (flag == "--token") {
-    if (value.empty()) return FlagError(flag, "must not be empty");
-    out.token = std::string(value);
-  } else if (flag == "--token-file" || flag == "--tls-ca" ||
-             flag == "--tls-cert" || flag == "--tls-key" ||
-             flag == "--tls-server-name") {
-    if (value.empty()) return FlagError(flag, "must not be empty");
-    std::string& field = flag == "--token-file" ? out.token_file
-                         : flag == "--tls-ca"   ? out.security.tls_ca_file
-                         : flag == "--tls-cert" ? out.security.tls_cert_file
-                         : flag == "--tls-key"  ? out.security.tls_key_file
-                                                : out.security.tls_server_name;
-    field = std::string(value);
-  } else {
-    // Never echo a value: it might be a token given under a mistyped flag.
-    return absl::InvalidArgumentError(
-        absl::StrCat("unknown flag \"", flag, "\" (see --help)"));
-  }
+// A file or name flag's value, refused when empty.
+absl::Status NonEmpty(absl::string_view flag, const std::string& value,
+                      std::string* field) {
+  if (value.empty()) return FlagError(flag, "must not be empty");
+  *field = value;
   return absl::OkStatus();
 }
 
@@ -132,46 +87,89 @@ absl::Status Apply(absl::string_view flag, absl::string_view value,
 
 absl::StatusOr<WorkerFlags> ParseWorkerFlags(
     const std::vector<std::string>& args) {
+  absl::StatusOr<DaemonCommandLine> line =
+      ParseDaemonFlags(args, kFlags, /*repeats=*/false);
+  if (!line.ok()) return line.status();
   WorkerFlags out;
-  std::set<std::string> seen;
-  for (size_t i = 0; i < args.size(); ++i) {
-    absl::string_view arg = args[i];
-    if (arg == "--help" || arg == "-h") {
-      out.help = true;
-      return out;
-    }
-    if (arg == "--version") {
-      out.version = true;
-      return out;
-    }
-    if (!absl::StartsWith(arg, "--")) {
-      return absl::InvalidArgumentError(absl::StrCat(
-          "unexpected argument \"", arg, "\" (flags start with --)"));
-    }
-    std::string flag;
-    std::string value;
-    const size_t eq = arg.find('=');
-    if (eq != absl::string_view::npos) {
-      flag = std::string(arg.substr(0, eq));
-      value = std::string(arg.substr(eq + 1));
-    } else {
-      flag = std::string(arg);
-      if (i + 1 >= args.size()) return FlagError(flag, "missing value");
-      value = args[++i];
-    }
-    if (!seen.insert(flag).second) {
-      return FlagError(flag, "given more than once");
-    }
-    if (absl::Status s = Apply(flag, value, out); !s.ok()) return s;
-  }
-  if (out.coordinator.empty()) {
+  out.help = line->help;
+  out.version = line->version;
+  if (out.help || out.version) return out;
+  // Only the flags given are read: each parse sets them afresh, so one left
+  // from an earlier parse in this process (tests) is never seen.
+  auto given = [&](const char* name) { return line->given.count(name) > 0; };
+  if (!given("coordinator")) {
     return absl::InvalidArgumentError(
         "--coordinator HOST:PORT is required (see --help)");
   }
-  if (seen.count("--threads") == 0) {
+  const HostPort coordinator = absl::GetFlag(FLAGS_coordinator);
+  // Port 0 asks a listener for a free port; a client must name one.
+  absl::Status address =
+      ParseHostPort("--coordinator", coordinator.ToString()).status();
+  if (!address.ok()) return address;
+  out.coordinator = coordinator.ToString();
+  if (!given("threads")) {
     return absl::InvalidArgumentError(
         "--threads N is required: the number of evaluation threads (see "
         "--help)");
+  }
+  out.options.threads = static_cast<int>(absl::GetFlag(FLAGS_threads).value);
+  if (given("name")) {
+    const std::string name = absl::GetFlag(FLAGS_name);
+    if (absl::Status s = CheckName("--name", name); !s.ok()) return s;
+    out.options.name = name;
+  }
+  if (given("batch")) {
+    out.options.batch = static_cast<uint32_t>(absl::GetFlag(FLAGS_batch).value);
+  }
+  if (given("wait-ms")) {
+    out.options.wait = absl::Milliseconds(
+        static_cast<int64_t>(absl::GetFlag(FLAGS_wait_ms).value));
+  }
+  if (given("timeout")) {
+    out.options.rpc_deadline =
+        absl::Seconds(static_cast<int64_t>(absl::GetFlag(FLAGS_timeout).value));
+    out.connect_timeout = out.options.rpc_deadline;
+  }
+  if (given("exit-when-idle")) {
+    out.options.exit_when_idle = absl::Seconds(
+        static_cast<int64_t>(absl::GetFlag(FLAGS_exit_when_idle).value));
+  }
+  if (given("sandbox")) {
+    absl::StatusOr<SandboxMode> mode =
+        ParseSandboxMode(absl::GetFlag(FLAGS_sandbox));
+    if (!mode.ok()) return mode.status();
+    out.sandbox = *mode;
+  }
+  if (given("evaluator-dirs")) {
+    const std::string dirs = absl::GetFlag(FLAGS_evaluator_dirs);
+    for (absl::string_view dir : absl::StrSplit(dirs, ':')) {
+      if (dir.empty() || dir[0] != '/') {
+        return FlagError("--evaluator-dirs",
+                         absl::StrCat("expected absolute folders "
+                                      "separated by ':', got ",
+                                      QuotePrefix(dirs, 256)));
+      }
+      out.evaluator_dirs.emplace_back(dir);
+    }
+  }
+  struct Text {
+    const char* flag;
+    const absl::Flag<std::string>& value;
+    std::string* field;
+  };
+  for (const Text& t : {
+           Text{"token", FLAGS_token, &out.token},
+           Text{"token-file", FLAGS_token_file, &out.token_file},
+           Text{"tls-ca", FLAGS_tls_ca, &out.security.tls_ca_file},
+           Text{"tls-cert", FLAGS_tls_cert, &out.security.tls_cert_file},
+           Text{"tls-key", FLAGS_tls_key, &out.security.tls_key_file},
+           Text{"tls-server-name", FLAGS_tls_server_name,
+                &out.security.tls_server_name},
+       }) {
+    if (!given(t.flag)) continue;
+    absl::Status s =
+        NonEmpty(absl::StrCat("--", t.flag), absl::GetFlag(t.value), t.field);
+    if (!s.ok()) return s;
   }
   return out;
 }

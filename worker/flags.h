@@ -1,11 +1,13 @@
-// The command line of skerry-worker, parsed by hand into WorkerOptions.
+// The command line of skerry-worker, read through its Abseil flags
+// (common/daemon_flags.h) into WorkerOptions.
 //
 // Invariant: a WorkerFlags returned by ParseWorkerFlags is complete and valid
 // (unless help is set, in which case nothing else is looked at): the
 // coordinator address has a host and a port in [1, 65535], every number is in
 // its range. Errors name the flag and quote the bad value.
 //
-// Thread safety: pure functions; call from any thread.
+// Thread safety: ParseWorkerFlags sets the process's flags: one parse at a
+// time (common/daemon_flags.h); the other functions are pure.
 //
 // Usage:
 //   absl::StatusOr<WorkerFlags> flags = ParseWorkerFlags(argc, argv);

@@ -55,8 +55,8 @@ grpc::Status AccessServiceImpl::RevokeToken(
     skerry::v1::RevokeTokenResponse* resp) {
   if (req->token_id() == 0 ||
       req->token_id() > static_cast<uint64_t>(INT64_MAX)) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        "token_id: a token id as ListTokens shows it");
+    return ToGrpc(absl::InvalidArgumentError(
+        "token_id: a token id as ListTokens shows it"));
   }
   absl::StatusOr<store::TokenRecord> t = access_->RevokeToken(
       static_cast<int64_t>(req->token_id()), CallerName(ctx));
@@ -73,13 +73,13 @@ grpc::Status AccessServiceImpl::QueryAudit(
     grpc::ServerContext* ctx, const skerry::v1::QueryAuditRequest* req,
     skerry::v1::QueryAuditResponse* resp) {
   if (req->limit() > kMaxAuditEntries) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("limit: at most ", kMaxAuditEntries));
+    return ToGrpc(absl::InvalidArgumentError(
+        absl::StrCat("limit: at most ", kMaxAuditEntries)));
   }
   if (req->run_id() > static_cast<uint64_t>(INT64_MAX) ||
       req->before_id() > static_cast<uint64_t>(INT64_MAX)) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        "run_id and before_id must fit in 63 bits");
+    return ToGrpc(
+        absl::InvalidArgumentError("run_id and before_id must fit in 63 bits"));
   }
   store::AuditQuery q;
   q.run_id = static_cast<int64_t>(req->run_id());

@@ -37,8 +37,8 @@ grpc::Status AdminServiceImpl::Backup(
   if (!made.ok()) return ToGrpc(made);
   FILE* f = std::fopen(tmp.path.c_str(), "rb");
   if (f == nullptr) {
-    return grpc::Status(grpc::StatusCode::INTERNAL,
-                        absl::StrCat("cannot read the copy ", tmp.path));
+    return ToGrpc(
+        absl::InternalError(absl::StrCat("cannot read the copy ", tmp.path)));
   }
   std::fseek(f, 0, SEEK_END);
   const long total = std::ftell(f);
@@ -63,13 +63,12 @@ grpc::Status AdminServiceImpl::ListWorkers(
     grpc::ServerContext* ctx, const skerry::v1::ListWorkersRequest* req,
     skerry::v1::ListWorkersResponse* resp) {
   if (req->limit() > kMaxWorkerLimit) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("limit: at most ", kMaxWorkerLimit,
-                                     ", got ", req->limit()));
+    return ToGrpc(absl::InvalidArgumentError(absl::StrCat(
+        "limit: at most ", kMaxWorkerLimit, ", got ", req->limit())));
   }
   if (!worker_source_) {
-    return grpc::Status(grpc::StatusCode::UNIMPLEMENTED,
-                        "this coordinator keeps no worker list");
+    return ToGrpc(
+        absl::UnimplementedError("this coordinator keeps no worker list"));
   }
   absl::StatusOr<skerry::v1::ListWorkersResponse> workers =
       worker_source_(req->limit() == 0 ? kDefaultWorkerLimit : req->limit());

@@ -28,35 +28,31 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
   const uint32_t protocol = std::max<uint32_t>(req->protocol_version(), 1);
   if (protocol < kMinProtocolVersion || protocol > kProtocolVersion) {
     // UNIMPLEMENTED: retrying cannot help; one side must be upgraded.
-    return grpc::Status(
-        grpc::StatusCode::UNIMPLEMENTED,
-        absl::StrCat(
-            "worker protocol ", protocol, " (release \"",
-            req->version().substr(0, 64), "\") is not spoken by this ",
-            "coordinator (release ", kVersion, ", worker protocol ",
-            kMinProtocolVersion == kProtocolVersion
-                ? absl::StrCat(kProtocolVersion)
-                : absl::StrCat(kMinProtocolVersion, " to ", kProtocolVersion),
-            "): install matching versions of skerry-worker and "
-            "skerry-coordinator"));
+    return ToGrpc(absl::UnimplementedError(absl::StrCat(
+        "worker protocol ", protocol, " (release \"",
+        req->version().substr(0, 64), "\") is not spoken by this ",
+        "coordinator (release ", kVersion, ", worker protocol ",
+        kMinProtocolVersion == kProtocolVersion
+            ? absl::StrCat(kProtocolVersion)
+            : absl::StrCat(kMinProtocolVersion, " to ", kProtocolVersion),
+        "): install matching versions of skerry-worker and "
+        "skerry-coordinator")));
   }
   if (req->threads() < 1 || req->threads() > 4096) {
-    return grpc::Status(
-        grpc::StatusCode::INVALID_ARGUMENT,
-        absl::StrCat("threads: must be from 1 to 4096, got ", req->threads()));
+    return ToGrpc(absl::InvalidArgumentError(
+        absl::StrCat("threads: must be from 1 to 4096, got ", req->threads())));
   }
   if (req->name().size() > 256 || req->host().size() > 256 ||
       req->version().size() > 256 || req->sandbox().size() > 256) {
-    return grpc::Status(
-        grpc::StatusCode::INVALID_ARGUMENT,
-        "name, host, version and sandbox must be at most 256 bytes");
+    return ToGrpc(absl::InvalidArgumentError(
+        "name, host, version and sandbox must be at most 256 bytes"));
   }
   size_t evaluator_bytes = 0;
   for (const std::string& e : req->evaluators())
     evaluator_bytes += e.size() + 1;
   if (req->evaluators_size() > 1000 || evaluator_bytes > 64 * 1024) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        "evaluators: at most 1000 names and 64 KiB");
+    return ToGrpc(absl::InvalidArgumentError(
+        "evaluators: at most 1000 names and 64 KiB"));
   }
   absl::StatusOr<const auth::FleetSeal*> seal = Seal();
   if (!seal.ok()) return ToGrpc(seal.status());
@@ -104,31 +100,30 @@ absl::StatusOr<const auth::FleetSeal*> FleetServiceImpl::Seal() {
   return seal_.get();
 }
 
-grpc::Status FleetServiceImpl::CheckWorker(uint64_t worker_id,
+absl::Status FleetServiceImpl::CheckWorker(uint64_t worker_id,
                                            const std::string& secret) {
   absl::StatusOr<const auth::FleetSeal*> seal = Seal();
-  if (!seal.ok()) return ToGrpc(seal.status());
+  if (!seal.ok()) return seal.status();
   if (!(*seal)->IsWorkerSecret(worker_id, secret)) {
-    return grpc::Status(grpc::StatusCode::NOT_FOUND,
-                        absl::StrCat("unknown worker ", worker_id,
-                                     ", or not its worker_secret: join again"));
+    return absl::NotFoundError(
+        absl::StrCat("unknown worker ", worker_id,
+                     ", or not its worker_secret: join again"));
   }
   // Known again after a restart, or after an hour's silence (Join).
   absl::MutexLock l(&mu_);
   last_seen_[worker_id] = clock_->Now();
-  return grpc::Status::OK;
+  return absl::OkStatus();
 }
 
 grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
                                      const skerry::v1::LeaseRequest* req,
                                      skerry::v1::LeaseResponse* resp) {
-  grpc::Status known = CheckWorker(req->worker_id(), req->worker_secret());
-  if (!known.ok()) return known;
+  absl::Status known = CheckWorker(req->worker_id(), req->worker_secret());
+  if (!known.ok()) return ToGrpc(known);
   if (req->max_tasks() == 0 || req->max_tasks() > kMaxTasksPerLease) {
-    return grpc::Status(
-        grpc::StatusCode::INVALID_ARGUMENT,
+    return ToGrpc(absl::InvalidArgumentError(
         absl::StrCat("max_tasks: must be from 1 to ", kMaxTasksPerLease,
-                     ", got ", req->max_tasks()));
+                     ", got ", req->max_tasks())));
   }
   absl::Duration wait = std::min(absl::Milliseconds(req->wait_ms()), max_wait_);
   // Answer before the caller's deadline, with a margin for the reply.
@@ -151,14 +146,13 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
 grpc::Status FleetServiceImpl::Report(grpc::ServerContext* ctx,
                                       const skerry::v1::ReportRequest* req,
                                       skerry::v1::ReportResponse* resp) {
-  grpc::Status known = CheckWorker(req->worker_id(), req->worker_secret());
-  if (!known.ok()) return known;
+  absl::Status known = CheckWorker(req->worker_id(), req->worker_secret());
+  if (!known.ok()) return ToGrpc(known);
   if (req->results_size() > kMaxResultsPerReport ||
       req->held_task_ids_size() > kMaxResultsPerReport) {
-    return grpc::Status(
-        grpc::StatusCode::INVALID_ARGUMENT,
+    return ToGrpc(absl::InvalidArgumentError(
         absl::StrCat("a report may carry at most ", kMaxResultsPerReport,
-                     " results and held task ids"));
+                     " results and held task ids")));
   }
   queue_->Renew(static_cast<int64_t>(req->worker_id()),
                 {req->held_task_ids().data(),
@@ -242,12 +236,12 @@ absl::Status FleetServiceImpl::CheckResult(const skerry::v1::TaskResult& r,
 grpc::Status FleetServiceImpl::HandBack(grpc::ServerContext* ctx,
                                         const skerry::v1::HandBackRequest* req,
                                         skerry::v1::HandBackResponse* resp) {
-  grpc::Status known = CheckWorker(req->worker_id(), req->worker_secret());
-  if (!known.ok()) return known;
+  absl::Status known = CheckWorker(req->worker_id(), req->worker_secret());
+  if (!known.ok()) return ToGrpc(known);
   if (req->task_ids_size() > kMaxResultsPerReport) {
-    return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
-                        absl::StrCat("task_ids: at most ", kMaxResultsPerReport,
-                                     ", got ", req->task_ids_size()));
+    return ToGrpc(absl::InvalidArgumentError(
+        absl::StrCat("task_ids: at most ", kMaxResultsPerReport, ", got ",
+                     req->task_ids_size())));
   }
   resp->set_requeued(static_cast<uint32_t>(queue_->HandBack(
       static_cast<int64_t>(req->worker_id()),

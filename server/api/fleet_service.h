@@ -76,7 +76,7 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
  private:
   // OK when `secret` is the worker secret of `worker_id`; the worker is then
   // known (again) and seen now.
-  grpc::Status CheckWorker(uint64_t worker_id, const std::string& secret);
+  absl::Status CheckWorker(uint64_t worker_id, const std::string& secret);
   // The seal made from the store's fleet key, read at the first call.
   absl::StatusOr<const auth::FleetSeal*> Seal();
   // InvalidArgument naming results[index] and the field when a result

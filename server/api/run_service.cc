@@ -52,9 +52,8 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
                                        const skerry::v1::SubmitRunRequest* req,
                                        skerry::v1::SubmitRunResponse* resp) {
   if (req->spec_text().size() > kMaxSpecTextBytes) {
-    return grpc::Status(
-        grpc::StatusCode::INVALID_ARGUMENT,
-        absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes"));
+    return ToGrpc(absl::InvalidArgumentError(
+        absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes")));
   }
   if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
     return ToGrpc(s);
@@ -187,9 +186,8 @@ grpc::Status RunServiceImpl::GetChampion(
       store_->BestGenome(RunId(req->run_id()));
   if (!best.ok()) return ToGrpc(best.status());
   if (!best->has_value()) {
-    return grpc::Status(
-        grpc::StatusCode::NOT_FOUND,
-        absl::StrCat("run ", req->run_id(), " has no evaluated genome yet"));
+    return ToGrpc(absl::NotFoundError(
+        absl::StrCat("run ", req->run_id(), " has no evaluated genome yet")));
   }
   *resp->mutable_genome() = ToGenomeProto(**best);
   absl::StatusOr<std::map<std::string, double>> metrics =
@@ -279,7 +277,8 @@ RunServiceImpl::FollowRun(grpc::CallbackServerContext* ctx) {
   grpc::Status refusal = access_->Refusal(ctx, /*before_message=*/true);
   if (!refusal.ok()) return WatchHub::RefuseFollow(std::move(refusal));
   auth::AccessControl* access = access_;
-  return watch_hub_.Follow([access, ctx] { return access->Refusal(ctx); });
+  return watch_hub_.Follow(
+      [access, ctx] { return FromGrpc(access->Refusal(ctx)); });
 }
 
 }  // namespace skerry::api

@@ -35,9 +35,8 @@ grpc::Status RunServiceImpl::ForkRun(grpc::ServerContext* ctx,
                                      const skerry::v1::ForkRunRequest* req,
                                      skerry::v1::SubmitRunResponse* resp) {
   if (req->changes().size() > kMaxChangesBytes) {
-    return grpc::Status(
-        grpc::StatusCode::INVALID_ARGUMENT,
-        absl::StrCat("changes: at most ", kMaxChangesBytes, " bytes"));
+    return ToGrpc(absl::InvalidArgumentError(
+        absl::StrCat("changes: at most ", kMaxChangesBytes, " bytes")));
   }
   if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
     return ToGrpc(s);

@@ -34,9 +34,9 @@ class FollowRefusal final
 };
 
 grpc::Status ShuttingDown() {
-  return grpc::Status(grpc::StatusCode::UNAVAILABLE,
-                      "the coordinator is shutting down; watch again when it "
-                      "is back");
+  return ToGrpc(absl::UnavailableError(
+      "the coordinator is shutting down; watch again when it "
+      "is back"));
 }
 
 }  // namespace
@@ -85,7 +85,7 @@ class WatchHub::PacedWatcher final
     : public Watcher,
       public grpc::ServerBidiReactor<skerry::v1::FollowRunRequest, RunSummary> {
  public:
-  PacedWatcher(WatchHub* hub, std::function<grpc::Status()> admit)
+  PacedWatcher(WatchHub* hub, std::function<absl::Status()> admit)
       : Watcher(hub, 0, absl::ZeroDuration(), /*paced=*/true),
         admit_(std::move(admit)) {
     StartRead(&in_);
@@ -97,7 +97,7 @@ class WatchHub::PacedWatcher final
     grpc::Status refusal;
     if (ok && !named_) {
       named_ = true;
-      if (admit_) refusal = admit_();
+      if (admit_) refusal = ToGrpc(admit_());
     }
     // Read on at once: the call holds this reactor until this returns.
     if (ok && refusal.ok()) StartRead(&in_);
@@ -111,7 +111,7 @@ class WatchHub::PacedWatcher final
   // Only gRPC and OnReadDone (one at a time) touch these.
   skerry::v1::FollowRunRequest in_;
   bool named_ = false;  // the first message has come
-  const std::function<grpc::Status()> admit_;
+  const std::function<absl::Status()> admit_;
 };
 
 WatchHub::WatchHub(engine::Engine* engine, WatchHubOptions options)
@@ -139,13 +139,12 @@ absl::Duration WatchHub::Interval(uint32_t ms) {
 grpc::Status WatchHub::RoomForOneMore() const {
   if (stopping_) return ShuttingDown();
   if (watchers_ < options_.max_watchers) return grpc::Status::OK;
-  return grpc::Status(
-      grpc::StatusCode::RESOURCE_EXHAUSTED,
+  return ToGrpc(absl::ResourceExhaustedError(
       absl::StrCat("this coordinator already serves ", watchers_,
                    " watch streams, its limit (skerry-coordinator "
                    "--max-watchers ",
                    options_.max_watchers,
-                   "); try again when one ends, or raise the limit"));
+                   "); try again when one ends, or raise the limit")));
 }
 
 grpc::ServerWriteReactor<RunSummary>* WatchHub::Watch(
@@ -162,7 +161,7 @@ grpc::ServerWriteReactor<RunSummary>* WatchHub::Watch(
 }
 
 grpc::ServerBidiReactor<skerry::v1::FollowRunRequest, RunSummary>*
-WatchHub::Follow(std::function<grpc::Status()> admit) {
+WatchHub::Follow(std::function<absl::Status()> admit) {
   absl::MutexLock l(&mu_);
   if (grpc::Status room = RoomForOneMore(); !room.ok()) {
     return new FollowRefusal(std::move(room));
@@ -306,8 +305,7 @@ void WatchHub::WriteDone(Watcher& w, bool ok) {
     absl::MutexLock l(&mu_);
     w.writing_ = false;
     if (!ok && !w.finish_wanted_.has_value()) {
-      w.finish_wanted_ =
-          grpc::Status(grpc::StatusCode::CANCELLED, "the watcher went away");
+      w.finish_wanted_ = ToGrpc(absl::CancelledError("the watcher went away"));
     }
     Step(w, absl::Now(), &actions);  // the newest at once, if it is due
   }
@@ -324,8 +322,8 @@ void WatchHub::Asked(Watcher& w, const skerry::v1::FollowRunRequest& request,
         FinishWhenIdle(w, std::move(refusal), &actions);
       } else if (!ok) {
         FinishWhenIdle(w,
-                       grpc::Status(grpc::StatusCode::CANCELLED,
-                                    "the watcher left before naming a run"),
+                       ToGrpc(absl::CancelledError(
+                           "the watcher left before naming a run")),
                        &actions);
       } else {
         // The first message names the run and asks for its first summary.
@@ -350,9 +348,8 @@ void WatchHub::Cancelled(Watcher& w) {
   std::vector<Action> actions;
   {
     absl::MutexLock l(&mu_);
-    FinishWhenIdle(
-        w, grpc::Status(grpc::StatusCode::CANCELLED, "the watch was cancelled"),
-        &actions);
+    FinishWhenIdle(w, ToGrpc(absl::CancelledError("the watch was cancelled")),
+                   &actions);
   }
   Perform(std::move(actions));
 }

@@ -88,7 +88,7 @@ class WatchHub {
   // run. `admit`, when set, is asked once that message has come (its access
   // check); a refusal ends the call with it.
   grpc::ServerBidiReactor<skerry::v1::FollowRunRequest, skerry::v1::RunSummary>*
-  Follow(std::function<grpc::Status()> admit);
+  Follow(std::function<absl::Status()> admit);
 
   // A reactor that ends the call with `status` at once (a refused call).
   static grpc::ServerWriteReactor<skerry::v1::RunSummary>* Refuse(

@@ -20,7 +20,7 @@ constexpr size_t kMaxNoteBytes = 256;
 constexpr size_t kMaxAuditMessageBytes = 512;
 
 grpc::Status Unauthenticated(absl::string_view why) {
-  return grpc::Status(grpc::StatusCode::UNAUTHENTICATED, std::string(why));
+  return api::ToGrpc(absl::UnauthenticatedError(std::string(why)));
 }
 
 Caller FromRecord(const store::TokenRecord& t) {
@@ -129,28 +129,24 @@ Verdict AccessControl::Admit(
     // Every method served has a rule (the gate will not serve one without),
     // so a method without one is not served: UNIMPLEMENTED, as gRPC itself
     // would answer.
-    v.status = grpc::Status(
-        grpc::StatusCode::UNIMPLEMENTED,
+    v.status = api::ToGrpc(absl::UnimplementedError(
         absl::StrCat("no method ", QuotePrefix(method),
-                     " on this coordinator (see proto/skerry/v1/)"));
+                     " on this coordinator (see proto/skerry/v1/)")));
     return v;
   }
   if (enabled_ && !RoleAllows(v.rule->permission, v.caller->role)) {
-    v.status = grpc::Status(
-        grpc::StatusCode::PERMISSION_DENIED,
-        absl::StrCat(method, " needs ", NeededRoles(v.rule->permission),
-                     "; the token of ", v.caller->principal, " has role ",
-                     RoleName(v.caller->role)));
+    v.status = api::ToGrpc(absl::PermissionDeniedError(absl::StrCat(
+        method, " needs ", NeededRoles(v.rule->permission), "; the token of ",
+        v.caller->principal, " has role ", RoleName(v.caller->role))));
   }
   // Audited methods are the ones that change something; every fleet call
   // writes (a worker row, results, hand-backs).
   if (v.status.ok() && read_only_ &&
       (v.rule->audited || v.rule->permission == Permission::kFleet)) {
-    v.status =
-        grpc::Status(grpc::StatusCode::FAILED_PRECONDITION,
-                     absl::StrCat(kReadOnlyRefusal, ": ", method,
-                                  " would change the database; send it to the "
-                                  "coordinator that writes this database"));
+    v.status = api::ToGrpc(absl::FailedPreconditionError(
+        absl::StrCat(kReadOnlyRefusal, ": ", method,
+                     " would change the database; send it to the "
+                     "coordinator that writes this database")));
   }
   return v;
 }
@@ -161,12 +157,10 @@ void AccessControl::Examine(Verdict* v, const void* request,
   if (request == nullptr && v->rule != nullptr && v->rule->request != nullptr &&
       v->status.ok()) {
     // gRPC's own answer would be INTERNAL with no message.
-    v->status = grpc::Status(
-        grpc::StatusCode::INVALID_ARGUMENT,
-        absl::StrCat("the request could not be decoded as ",
-                     v->rule->request->full_name(),
-                     " (not that message in protobuf wire format, or a "
-                     "string field that is not valid UTF-8)"));
+    v->status = api::ToGrpc(absl::InvalidArgumentError(absl::StrCat(
+        "the request could not be decoded as ", v->rule->request->full_name(),
+        " (not that message in protobuf wire format, or a "
+        "string field that is not valid UTF-8)")));
   }
   if (request != nullptr && v->rule != nullptr && v->rule->message != nullptr &&
       v->status.ok()) {
@@ -201,11 +195,10 @@ void AccessControl::Examine(Verdict* v, const void* request,
           owner.status().code(), absl::StrCat("cannot check the run's owner: ",
                                               owner.status().message())));
     } else if (!owner->has_value() || **owner != v->caller->principal) {
-      v->status = grpc::Status(
-          grpc::StatusCode::PERMISSION_DENIED,
+      v->status = api::ToGrpc(absl::PermissionDeniedError(
           absl::StrCat(v->method, " on run ", v->run_id,
                        ": not a run of yours; a researcher may change only "
-                       "the runs it submitted (role admin may change any)"));
+                       "the runs it submitted (role admin may change any)")));
     }
   }
   if (!v->rule->audited || read_only_) return;
@@ -221,10 +214,9 @@ void AccessControl::Examine(Verdict* v, const void* request,
   if (id.ok()) {
     v->audit_id = *id;
   } else if (v->status.ok()) {
-    v->status = grpc::Status(
-        grpc::StatusCode::UNAVAILABLE,
+    v->status = api::ToGrpc(absl::UnavailableError(
         absl::StrCat("the audit log cannot be written (", id.status().message(),
-                     "); nothing was changed, try again"));
+                     "); nothing was changed, try again")));
   }
 }
 
@@ -269,13 +261,13 @@ grpc::Status AccessControl::Refusal(const grpc::ServerContextBase* ctx,
                                     bool before_message) const {
   std::optional<Verdict> v = Find(ctx);
   if (!v.has_value()) {
-    return grpc::Status(grpc::StatusCode::INTERNAL,
-                        "no access verdict for this call; refused");
+    return api::ToGrpc(
+        absl::InternalError("no access verdict for this call; refused"));
   }
   if (!v->status.ok()) return v->status;
   if (!v->examined && !before_message) {
-    return grpc::Status(grpc::StatusCode::INTERNAL,
-                        "the request was not examined; refused");
+    return api::ToGrpc(
+        absl::InternalError("the request was not examined; refused"));
   }
   return grpc::Status::OK;
 }

@@ -5,6 +5,7 @@
 
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/unit/common/host_port_cases.h"
 
 namespace skerry::cli {
 namespace {
@@ -234,6 +235,46 @@ TEST(HelpTest, HelpLinesFitInEightyColumns) {
       if (end == std::string::npos) end = text.size();
       EXPECT_LE(end - start, 80u) << text.substr(start, end - start);
       start = end + 1;
+    }
+  }
+}
+
+// Dispatch, `skerry help` and usage errors all come from the command table:
+// a row without a handler would be listed but could not run.
+TEST(CommandTableTest, EveryCommandHasAHandler) {
+  for (const CommandSpec& command : Commands()) {
+    SCOPED_TRACE(command.name);
+    EXPECT_NE(command.handler, nullptr);
+    EXPECT_NE(FindCommand(command.name), nullptr);
+  }
+}
+
+TEST(CommandTableTest, OnlyHelpAndLocalGoWithoutTheCoordinatorAddress) {
+  for (const CommandSpec& command : Commands()) {
+    SCOPED_TRACE(command.name);
+    const std::string name = command.name;
+    EXPECT_EQ(command.reach == CommandReach::kCoordinator,
+              name != "help" && name != "local");
+  }
+  // So a bad address stops `list` but not `help`.
+  EXPECT_FALSE(Parse({"--coordinator", "nohost", "list"}).ok());
+  EXPECT_TRUE(Parse({"--coordinator", "nohost", "help"}).ok());
+}
+
+// The shared HOST:PORT table (tests/unit/common/host_port_cases.h) through
+// --coordinator: a client needs a port from 1 to 65535.
+TEST(ParseArgsTest, CoordinatorFollowsTheSharedHostPortTable) {
+  for (const skerry::testdata::HostPortCase& c :
+       skerry::testdata::HostPortCases()) {
+    SCOPED_TRACE(c.text);
+    auto parsed = Parse({"--coordinator", c.text, "list"});
+    ASSERT_EQ(parsed.ok(), c.client_ok) << parsed.status();
+    if (parsed.ok()) {
+      EXPECT_EQ(parsed->coordinator, c.text);
+    } else {
+      EXPECT_THAT(parsed.status().message(),
+                  HasSubstr("coordinator address: expected HOST:PORT"));
+      EXPECT_THAT(parsed.status().message(), HasSubstr(c.why));
     }
   }
 }

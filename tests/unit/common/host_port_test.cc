@@ -2,9 +2,13 @@
 // (common/host_port.h).
 #include "common/host_port.h"
 
+#include <string>
+
 #include "absl/status/status.h"
+#include "absl/strings/str_cat.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/unit/common/host_port_cases.h"
 
 namespace skerry {
 namespace {
@@ -57,6 +61,38 @@ TEST(HostPortTest, PortZeroOnlyWhereAllowed) {
       ParseHostPort("--listen", "127.0.0.1:0", /*allow_port_zero=*/true);
   ASSERT_TRUE(free_port.ok()) << free_port.status();
   EXPECT_EQ(free_port->port, 0u);
+}
+
+}  // namespace
+}  // namespace skerry
+
+namespace skerry {
+namespace {
+
+using ::testing::HasSubstr;
+
+TEST(HostPortTest, SharedTableThroughParseHostPortAndTheFlagType) {
+  for (const testdata::HostPortCase& c : testdata::HostPortCases()) {
+    SCOPED_TRACE(c.text);
+    absl::StatusOr<HostPort> client = ParseHostPort("--x", c.text);
+    EXPECT_EQ(client.ok(), c.client_ok) << client.status();
+    absl::StatusOr<HostPort> listener =
+        ParseHostPort("--x", c.text, /*allow_port_zero=*/true);
+    EXPECT_EQ(listener.ok(), c.listener_ok) << listener.status();
+    HostPort flag;
+    std::string error;
+    EXPECT_EQ(AbslParseFlag(c.text, &flag, &error), c.listener_ok) << error;
+    if (c.listener_ok) {
+      // Unparsing gives the text back: the flag's value round-trips.
+      EXPECT_EQ(AbslUnparseFlag(flag), c.text);
+    } else {
+      EXPECT_THAT(error, HasSubstr(c.why));
+      EXPECT_THAT(error, HasSubstr(absl::StrCat("\"", c.text, "\"")));
+    }
+    if (!c.client_ok) {
+      EXPECT_THAT(client.status().message(), HasSubstr(c.why));
+    }
+  }
 }
 
 }  // namespace

@@ -17,6 +17,7 @@
 #include "skerry/v1/access.pb.h"
 #include "skerry/v1/fleet.pb.h"
 #include "skerry/v1/runs.pb.h"
+#include "tests/unit/common/host_port_cases.h"
 
 namespace skerry::api {
 namespace {
@@ -303,6 +304,29 @@ TEST(CoordinatorFlagsTest, FlagWithoutValueRefusesEqualsValue) {
       Parse({"--db", "x.db", "--version=yes"});
   ASSERT_FALSE(f.ok());
   EXPECT_THAT(std::string(f.status().message()), HasSubstr("takes no value"));
+}
+
+// The shared HOST:PORT table (tests/unit/common/host_port_cases.h) through
+// --listen and --http: a listener may ask for port 0.
+TEST(CoordinatorFlagsTest, ListenAndHttpFollowTheSharedHostPortTable) {
+  for (const skerry::testdata::HostPortCase& c :
+       skerry::testdata::HostPortCases()) {
+    for (const char* flag : {"--listen", "--http"}) {
+      SCOPED_TRACE(absl::StrCat(flag, " ", c.text));
+      absl::StatusOr<server::CoordinatorFlags> f =
+          Parse({"--db", "x.db", flag, c.text});
+      ASSERT_EQ(f.ok(), c.listener_ok) << f.status();
+      if (f.ok()) {
+        EXPECT_EQ(std::string(flag) == "--listen" ? f->options.listen_address
+                                                  : f->options.http_address,
+                  c.text);
+      } else {
+        EXPECT_THAT(std::string(f.status().message()),
+                    HasSubstr(absl::StrCat(flag, ": expected HOST:PORT")));
+        EXPECT_THAT(std::string(f.status().message()), HasSubstr(c.why));
+      }
+    }
+  }
 }
 
 }  // namespace

@@ -8,6 +8,7 @@
 #include "absl/time/time.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/unit/common/host_port_cases.h"
 
 namespace skerry::worker {
 namespace {
@@ -235,6 +236,31 @@ TEST(WorkerFlagsTest, VersionNeedsNoOtherFlag) {
   ASSERT_TRUE(f.ok()) << f.status();
   EXPECT_TRUE(f->version);
   EXPECT_THAT(WorkerUsage(), HasSubstr("--version"));
+}
+
+}  // namespace
+}  // namespace skerry::worker
+
+namespace skerry::worker {
+namespace {
+
+// The shared HOST:PORT table (tests/unit/common/host_port_cases.h) through
+// --coordinator: a client needs a port from 1 to 65535.
+TEST(WorkerFlagsTest, CoordinatorFollowsTheSharedHostPortTable) {
+  for (const skerry::testdata::HostPortCase& c :
+       skerry::testdata::HostPortCases()) {
+    SCOPED_TRACE(c.text);
+    absl::StatusOr<WorkerFlags> f = ParseWorkerFlags(
+        std::vector<std::string>{"--coordinator", c.text, "--threads", "1"});
+    ASSERT_EQ(f.ok(), c.client_ok) << f.status();
+    if (f.ok()) {
+      EXPECT_EQ(f->coordinator, c.text);
+    } else {
+      EXPECT_THAT(f.status().message(),
+                  HasSubstr("--coordinator: expected HOST:PORT"));
+      EXPECT_THAT(f.status().message(), HasSubstr(c.why));
+    }
+  }
 }
 
 }  // namespace
