@@ -14,6 +14,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "cli/access.h"
+#include "cli/archive.h"
 #include "cli/backup.h"
 #include "cli/compare.h"
 #include "cli/compare_page.h"
@@ -499,6 +500,13 @@ int RunCli(const std::vector<std::string>& args,
   if (!security.ok()) return UsageFailure(security.status(), "", io);
   const std::string& target = parsed->coordinator;
   auto channel = [&]() { return CoordinatorChannel(target, *security); };
+  if (parsed->command == "archive" || parsed->command == "import") {
+    absl::StatusOr<std::shared_ptr<grpc::Channel>> ch = channel();
+    if (!ch.ok()) return UsageFailure(ch.status(), "", io);
+    auto runs = skerry::v1::RunService::NewStub(*ch);
+    return parsed->command == "archive" ? ArchiveCommand(*parsed, *runs, io)
+                                        : ImportCommand(*parsed, *runs, io);
+  }
   if (IsLineageCommand(parsed->command) || parsed->command == "backup" ||
       IsAccessCommand(parsed->command) ||
       IsValidationCommand(parsed->command) || parsed->command == "report" ||

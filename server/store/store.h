@@ -468,8 +468,11 @@ class Store {
   // validations, metrics; audit rows stay), then runs an incremental vacuum.
   // NotFound for no such run; FailedPrecondition, changing nothing, while the
   // run is not ended or while forks of it exist (their lineage leads into
-  // it), naming them.
-  absl::StatusOr<Deleted> DeleteRun(int64_t run_id);
+  // it), naming them. With `expected_content` (RunContentDigest,
+  // run_content.h): FailedPrecondition, changing nothing, unless the run's
+  // rows still have that digest (`skerry archive`).
+  absl::StatusOr<Deleted> DeleteRun(
+      int64_t run_id, const std::string& expected_content = std::string());
 
   // ---- Importing runs (run_transfer.cc) ----
   struct Imported {
