@@ -41,8 +41,10 @@ absl::StatusOr<store::Store::Deleted> Engine::Delete(
 }
 
 absl::StatusOr<store::Store::Imported> Engine::Import(const std::string& file) {
-  absl::MutexLock l(&mu_);
+  // Outside the engine's lock: a large file takes a while, and the store
+  // serialises its writes itself.
   absl::StatusOr<store::Store::Imported> imported = store_->ImportRuns(file);
+  absl::MutexLock l(&mu_);
   if (!imported.ok()) {
     NoteWriteFailure(imported.status());
     return imported;
