@@ -171,6 +171,28 @@ std::vector<CommandSpec> MakeCommands() {
        "working. Restore by starting a coordinator on FILE: "
        "skerry-coordinator --db FILE.",
        BackupHandler},
+      {"archive",
+       {"RUN"},
+       {{"to", "FILE", "where to write the run (must not exist)", true}},
+       "write an ended run to a file, then delete it from the coordinator",
+       "Writes RUN to FILE on this machine as a standalone database (as "
+       "`skerry backup RUN`), reads FILE back and checks its SHA-256 against "
+       "the coordinator's, and only then deletes RUN from the coordinator, "
+       "provided nothing in it changed since the export. FILE is kept whatever "
+       "happens after it is complete. The owner or an admin; audited. Bring "
+       "it back with `skerry import FILE`.",
+       ArchiveHandler},
+      {"import",
+       {"FILE"},
+       {},
+       "import the runs of an exported file into the running coordinator",
+       "Sends FILE (from `skerry archive` or `skerry backup`, at most 64 MiB) "
+       "to the coordinator, which adds its runs with new ids, lineage and "
+       "forks intact, in one transaction. A file of a newer schema, or a "
+       "damaged one, is refused and nothing is imported. Larger files: "
+       "skerry-coordinator --db DB --import FILE, with the coordinator "
+       "stopped. Admin; audited.",
+       ImportHandler},
       {"local",
        {"SPEC_FILE"},
        {{"workers", "N", "number of in-process workers (1 thread each)", true},

@@ -7,6 +7,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "cli/access.h"
+#include "cli/archive.h"
 #include "cli/backup.h"
 #include "cli/compare.h"
 #include "cli/compare_page.h"
@@ -199,6 +200,20 @@ int BackupHandler(CommandContext& c) {
   return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
     auto admin = skerry::v1::AdminService::NewStub(ch);
     return BackupCommand(c.args, *admin, c.io);
+  });
+}
+
+int ArchiveHandler(CommandContext& c) {
+  return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
+    auto runs = skerry::v1::RunService::NewStub(ch);
+    return ArchiveCommand(c.args, *runs, c.io);
+  });
+}
+
+int ImportHandler(CommandContext& c) {
+  return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
+    auto runs = skerry::v1::RunService::NewStub(ch);
+    return ImportCommand(c.args, *runs, c.io);
   });
 }
 

@@ -43,6 +43,8 @@ int SeriesHandler(CommandContext& context);
 int CompareHandler(CommandContext& context);
 // The other services, over a channel of their own.
 int BackupHandler(CommandContext& context);
+int ArchiveHandler(CommandContext& context);  // RunService, a stub of its own
+int ImportHandler(CommandContext& context);
 int ExtendHandler(CommandContext& context);
 int WorkersHandler(CommandContext& context);
 int ReportHandler(CommandContext& context);

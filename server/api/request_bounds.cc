@@ -51,6 +51,11 @@ const std::vector<FieldBound>* BuildTable() {
       {"skerry.v1.ForkRunRequest.changes", 0, 1 * kMiB, ""},
       {"skerry.v1.ForkRunRequest.request_id", 0, kMaxRequestIdBytes,
        "RunService.ForkRun: printable ASCII, no spaces"},
+      {"skerry.v1.ArchiveRunRequest.confirm_content", 0, 64, ""},
+      {"skerry.v1.ArchiveRunRequest.confirm_file_sha256", 0, 64, ""},
+      {"skerry.v1.ImportRunsRequest.file", 0, 64 * kMiB,
+       "RunService.ImportRuns: larger files import offline "
+       "(skerry-coordinator --import)"},
       // StudyService
       {"skerry.v1.SubmitSeriesRequest.spec_text", 0, 1 * kMiB, ""},
       {"skerry.v1.SubmitSeriesRequest.seeds", 100, 0, ""},

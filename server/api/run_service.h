@@ -86,6 +86,13 @@ class RunServiceImpl final
   grpc::Status DeleteRun(grpc::ServerContext* ctx,
                          const skerry::v1::RunRef* req,
                          skerry::v1::DeleteRunResponse* resp) override;
+  // run_service_archive.cc
+  grpc::Status ArchiveRun(
+      grpc::ServerContext* ctx, const skerry::v1::ArchiveRunRequest* req,
+      grpc::ServerWriter<skerry::v1::ArchiveChunk>* writer) override;
+  grpc::Status ImportRuns(grpc::ServerContext* ctx,
+                          const skerry::v1::ImportRunsRequest* req,
+                          skerry::v1::ImportRunsResponse* resp) override;
   grpc::ServerWriteReactor<skerry::v1::RunSummary>* WatchRun(
       grpc::CallbackServerContext* ctx,
       const skerry::v1::WatchRunRequest* req) override;

@@ -76,6 +76,8 @@ std::map<std::string, Rule> Build() {
       {run + "SetPriority", AboutRun<v1::SetPriorityRequest>(P::kOwnRun, true)},
       {run + "ForkRun", Make<v1::ForkRunRequest>(P::kSubmit, true)},
       {run + "DeleteRun", AboutRun<v1::RunRef>(P::kOwnRun, true)},
+      {run + "ArchiveRun", AboutRun<v1::ArchiveRunRequest>(P::kOwnRun, true)},
+      {run + "ImportRuns", Make<v1::ImportRunsRequest>(P::kAdmin, true)},
       {run + "GetChampion", Make<v1::RunRef>(P::kRead)},
       {run + "GetHistory", Make<v1::GetHistoryRequest>(P::kRead)},
       {run + "GetDigest", Make<v1::RunRef>(P::kRead)},

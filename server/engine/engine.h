@@ -145,7 +145,12 @@ class Engine {
   // Deletes an ended (or damaged) run and everything stored of it
   // (engine_delete.cc; Store::DeleteRun says what is refused), and forgets
   // its queued validations.
-  absl::StatusOr<store::Store::Deleted> Delete(int64_t run_id);
+  // `expected_content`: as Store::DeleteRun (`skerry archive`).
+  absl::StatusOr<store::Store::Deleted> Delete(
+      int64_t run_id, const std::string& expected_content = std::string());
+  // Imports the runs of an export file (Store::ImportRuns) and loads those
+  // that are active, as a restart would (engine_delete.cc).
+  absl::StatusOr<store::Store::Imported> Import(const std::string& file);
   // A seed series (engine_series.cc): one run of `spec` per seed (the spec's
   // own seed replaced), all stored with the series in one transaction, or
   // none. `series` names it (Store::CreateSeries refuses a name in use);

@@ -1,7 +1,8 @@
 // Engine::Fork (engine.h): a new run from another's populations at a
 // generation. The parent's rows are read through the store's checked reads
 // (checksums, whole generations), copied, stored in one transaction
-// (Store::CreateFork), and the new run is then loaded exactly as a restart
+// (Store::CreateFork) with each island's strategy state at that generation
+// (strategy_replay.h), and the new run is then loaded exactly as a restart
 // loads a run, so that a fork and a restarted run take one path.
 #include <algorithm>
 
@@ -10,6 +11,7 @@
 #include "common/status_macros.h"
 #include "server/engine/engine.h"
 #include "server/engine/fork_spec.h"
+#include "server/engine/strategy_replay.h"
 
 namespace skerry::engine {
 
@@ -76,6 +78,14 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
     if (s.generation < generation) stats.push_back(s);
   }
 
+  // Each island goes on from the parent's strategy state at `generation`.
+  SKERRY_ASSIGN_OR_RETURN(std::vector<skerry::v1::StrategyState> replayed,
+                          ReplayStrategyStates(*store_, parent, generation));
+  std::vector<std::string> states;
+  for (const skerry::v1::StrategyState& s : replayed) {
+    states.push_back(s.SerializeAsString());
+  }
+
   absl::MutexLock l(&mu_);
   store::RunRecord rec;
   rec.name = spec.name();
@@ -88,7 +98,8 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
   rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
   rec.parent_run = parent_id;
   rec.parent_generation = generation;
-  if (absl::Status s = store_->CreateFork(&rec, &stats, &genomes); !s.ok()) {
+  if (absl::Status s = store_->CreateFork(&rec, &stats, &genomes, states);
+      !s.ok()) {
     NoteWriteFailure(s);
     return s;
   }

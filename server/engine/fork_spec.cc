@@ -21,6 +21,15 @@ absl::Status Unchangeable(const std::string& field, const std::string& parent,
                    "); the fork starts from copies of the parent's genomes"));
 }
 
+// The name of the spec's strategy field (`ga` once normalised: NormalizeSpec
+// moves `strategy.ga` to the top-level `ga`).
+std::string StrategyName(const RunSpec& spec) {
+  const google::protobuf::FieldDescriptor* field =
+      skerry::v1::StrategySpec::descriptor()->FindFieldByNumber(
+          static_cast<int>(spec.strategy().kind_case()));
+  return field == nullptr ? std::string("ga") : field->name();
+}
+
 }  // namespace
 
 absl::StatusOr<RunSpec> MergeForkChanges(const RunSpec& parent,
@@ -43,20 +52,10 @@ absl::StatusOr<RunSpec> MergeForkChanges(const RunSpec& parent,
 
 absl::Status CheckForkChanges(const RunSpec& parent, const RunSpec& fork,
                               uint32_t generation) {
-  // A CMA-ES island's distribution is stored as of its newest generation
-  // only (strategy_states keeps one row per island), so it cannot be put
-  // back as it was at an earlier one: forks are of GA runs (whose strategy
-  // keeps nothing) until the states are kept per generation.
-  if (StrategyOf(parent) != StrategyKind::kGa) {
-    return absl::FailedPreconditionError(
-        "strategy: only runs of the GA can be forked; a CMA-ES island keeps "
-        "its search distribution as of its newest generation only, so it "
-        "cannot start again from an earlier one");
-  }
-  if (StrategyOf(fork) != StrategyKind::kGa) {
-    return absl::InvalidArgumentError(
-        "strategy: a fork may not change it (the parent's is the GA); the "
-        "fork starts from copies of the parent's genomes");
+  // The fork's islands go on from the parent's strategy states at the fork
+  // generation (strategy_replay.h), which only the same strategy can read.
+  if (StrategyOf(fork) != StrategyOf(parent)) {
+    return Unchangeable("strategy", StrategyName(parent), StrategyName(fork));
   }
   if (fork.genome_length() != parent.genome_length()) {
     return Unchangeable("genome_length", absl::StrCat(parent.genome_length()),
@@ -79,7 +78,10 @@ absl::Status CheckForkChanges(const RunSpec& parent, const RunSpec& fork,
           parent.islands().population_sizes_size() > 0 ||
                   fork.islands().population_sizes_size() > 0
               ? absl::StrCat("islands.population_sizes[", i, "]")
-              : std::string("ga.population_size"),
+          : StrategyOf(parent) == StrategyKind::kGa
+              ? std::string("ga.population_size")
+              : absl::StrCat("strategy.", StrategyName(parent),
+                             ".population_size"),
           absl::StrCat(a), absl::StrCat(b));
     }
   }

@@ -4,8 +4,10 @@
 //
 // A fork starts from copies of the parent's genomes at one generation, so
 // whatever gives those genomes their shape and meaning stays: genome_length,
-// objective, islands.count and each island's population (ga.population_size,
-// islands.population_sizes). Everything else may change: operators, rates,
+// objective, islands.count, each island's population (ga.population_size,
+// strategy.cma_es.population_size..., islands.population_sizes) and the
+// strategy (each island goes on from the parent's strategy state at the fork
+// generation, strategy_replay.h). Everything else may change: operators, rates,
 // migration, stop rules, the evaluator, the seed. The copies keep their
 // scores only while the evaluator (its held-out validation aside) and the
 // seed are unchanged; otherwise the fork evaluates them again.

@@ -72,6 +72,8 @@ class GaStrategy : public Strategy {
     return absl::OkStatus();
   }
 
+  bool StateIsPopulation() const override { return true; }
+
  private:
   const skerry::v1::RunSpec spec_;
   const uint32_t island_;

@@ -59,6 +59,12 @@ class Strategy {
   // InvalidArgument (DataLoss-worthy; the caller says where it came from) when
   // the state is not one this strategy saved.
   virtual absl::Status Restore(const skerry::v1::StrategyState& state) = 0;
+
+  // True when the strategy keeps nothing between generations that is not in
+  // the genomes themselves: its state at generation g is the kind and g. A
+  // fork (strategy_replay.h) then needs no replay of the generations before.
+  // The default, false, is always correct, only slower to fork.
+  virtual bool StateIsPopulation() const { return false; }
 };
 
 // The strategy the spec names, for `island`.

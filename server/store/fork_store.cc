@@ -9,7 +9,9 @@
 //   across the fork without knowing about it, and the digest of the fork's
 //   generations equals the parent's over the same generations;
 // - the parent's statistics of the generations before, so that the history,
-//   the evaluation budget and the stop rules see what the parent saw.
+//   the evaluation budget and the stop rules see what the parent saw;
+// - each island's strategy state as the parent had it when it produced that
+//   generation (rebuilt by server/engine/strategy_replay.h).
 // The new rows get their checksums from the triggers of schema version 6.
 #include <algorithm>
 
@@ -19,8 +21,10 @@
 
 namespace skerry::store {
 
-absl::Status Store::CreateFork(RunRecord* run, std::vector<StatsRecord>* stats,
-                               std::vector<GenomeRecord>* genomes) {
+absl::Status Store::CreateFork(
+    RunRecord* run, std::vector<StatsRecord>* stats,
+    std::vector<GenomeRecord>* genomes,
+    const std::vector<std::string>& strategy_states) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   {
@@ -39,37 +43,8 @@ absl::Status Store::CreateFork(RunRecord* run, std::vector<StatsRecord>* stats,
     // The rule of `--check`: the counter counts stored evaluations.
     if (g.attempts > 0 && g.state != skerry::v1::PENDING) ++evaluations;
   }
-  {
-    SKERRY_ASSIGN_OR_RETURN(
-        auto ins,
-        conn_->Prepare(
-            "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
-            "priority, message, created_ms, updated_ms, started_ms, "
-            "request_id, parent_run, parent_generation, evaluations) VALUES "
-            "(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)"));
-    ins.BindText(1, run->name);
-    ins.BindText(2, run->owner);
-    ins.BindBlob(3, run->spec.SerializeAsString());
-    ins.BindText(4, run->spec_text);
-    ins.BindInt(5, static_cast<int64_t>(run->spec.seed()));
-    ins.BindInt(6, run->state);
-    ins.BindInt(7, run->priority);
-    ins.BindText(8, run->message);
-    ins.BindInt(9, run->created_ms);
-    ins.BindInt(10, run->updated_ms);
-    ins.BindInt(11, run->started_ms);
-    if (run->request_id.empty()) {
-      ins.BindNull(12);
-    } else {
-      ins.BindText(12, run->request_id);
-    }
-    ins.BindInt(13, run->parent_run);
-    ins.BindInt(14, run->parent_generation);
-    ins.BindInt(15, evaluations);
-    SKERRY_RETURN_IF_ERROR(ins.Run());
-    run->id = conn_->LastInsertId();
-    run->evaluations = evaluations;
-  }
+  SKERRY_RETURN_IF_ERROR(
+      InsertRunRow(run, run->parent_run, run->parent_generation, evaluations));
   {
     SKERRY_ASSIGN_OR_RETURN(
         auto isl,
@@ -82,6 +57,8 @@ absl::Status Store::CreateFork(RunRecord* run, std::vector<StatsRecord>* stats,
       isl.BindInt(3, run->parent_generation);
       SKERRY_RETURN_IF_ERROR(isl.Run());
     }
+    SKERRY_RETURN_IF_ERROR(InsertStrategyStates(
+        run->id, count, run->parent_generation, &strategy_states));
   }
   for (StatsRecord& s : *stats) {
     s.run_id = run->id;

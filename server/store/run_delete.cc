@@ -11,6 +11,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "common/status_macros.h"
+#include "server/store/run_content.h"
 #include "server/store/store.h"
 
 namespace skerry::store {
@@ -23,7 +24,8 @@ bool Ended(int64_t state) {
 
 }  // namespace
 
-absl::StatusOr<Store::Deleted> Store::DeleteRun(int64_t run_id) {
+absl::StatusOr<Store::Deleted> Store::DeleteRun(
+    int64_t run_id, const std::string& expected_content) {
   absl::MutexLock l(&mu_);
   Deleted out;
   {
@@ -64,6 +66,19 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(int64_t run_id) {
             ") whose lineage leads into its genomes; delete them first"));
       }
     }
+    if (!expected_content.empty()) {
+      // In the delete's own transaction: nothing can change in between.
+      SKERRY_ASSIGN_OR_RETURN(std::string now,
+                              RunContentDigest(conn_.get(), run_id));
+      if (now != expected_content) {
+        return absl::FailedPreconditionError(absl::StrCat(
+            "run ", run_id,
+            " changed since it was exported (its content digest is now ",
+            now.substr(0, 12), "..., the export's ",
+            expected_content.substr(0, 12),
+            "...); nothing deleted: archive it again"));
+      }
+    }
     {
       SKERRY_ASSIGN_OR_RETURN(
           auto q,
@@ -102,14 +117,22 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(int64_t run_id) {
     SKERRY_ASSIGN_OR_RETURN(bool row, q.Step());
     return row ? q.ColumnInt(0) : 0;
   };
-  SKERRY_ASSIGN_OR_RETURN(int64_t before, pages());
-  SKERRY_RETURN_IF_ERROR(conn_->Exec("PRAGMA incremental_vacuum"));
-  SKERRY_ASSIGN_OR_RETURN(int64_t after, pages());
-  SKERRY_ASSIGN_OR_RETURN(auto size, conn_->Prepare("PRAGMA page_size"));
-  SKERRY_ASSIGN_OR_RETURN(bool size_row, size.Step());
-  const int64_t page_size = size_row ? size.ColumnInt(0) : 0;
-  out.bytes_freed =
-      before > after ? static_cast<uint64_t>((before - after) * page_size) : 0;
+  // The deletion is committed, so its answer is OK whatever the vacuum
+  // meets: a failed vacuum gives nothing back now (bytes_freed 0), and the
+  // next one gives back every free page, these too.
+  auto vacuum = [&]() -> absl::StatusOr<uint64_t> {
+    mu_.AssertHeld();
+    SKERRY_ASSIGN_OR_RETURN(int64_t before, pages());
+    SKERRY_RETURN_IF_ERROR(conn_->Exec("PRAGMA incremental_vacuum"));
+    SKERRY_ASSIGN_OR_RETURN(int64_t after, pages());
+    SKERRY_ASSIGN_OR_RETURN(auto size, conn_->Prepare("PRAGMA page_size"));
+    SKERRY_ASSIGN_OR_RETURN(bool size_row, size.Step());
+    const int64_t page_size = size_row ? size.ColumnInt(0) : 0;
+    return before > after ? static_cast<uint64_t>((before - after) * page_size)
+                          : 0;
+  };
+  absl::StatusOr<uint64_t> freed = vacuum();
+  out.bytes_freed = freed.ok() ? *freed : 0;
   return out;
 }
 

@@ -86,6 +86,7 @@ class Statement {
   int ParameterCount() const { return sqlite3_bind_parameter_count(stmt_); }
   int64_t ColumnInt(int i) const { return sqlite3_column_int64(stmt_, i); }
   double ColumnDouble(int i) const { return sqlite3_column_double(stmt_, i); }
+  int ColumnType(int i) const { return sqlite3_column_type(stmt_, i); }
   bool ColumnIsNull(int i) const {
     return sqlite3_column_type(stmt_, i) == SQLITE_NULL;
   }

@@ -635,35 +635,69 @@ absl::Status Store::CreateRun(RunRecord* run,
   return txn.Commit();
 }
 
+absl::Status Store::InsertRunRow(RunRecord* run, int64_t parent_run,
+                                 uint32_t parent_generation,
+                                 int64_t evaluations) {
+  SKERRY_ASSIGN_OR_RETURN(
+      auto ins,
+      conn_->Prepare(
+          "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
+          "priority, message, created_ms, updated_ms, started_ms, "
+          "request_id, parent_run, parent_generation, evaluations) VALUES "
+          "(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)"));
+  ins.BindText(1, run->name);
+  ins.BindText(2, run->owner);
+  ins.BindBlob(3, run->spec.SerializeAsString());
+  ins.BindText(4, run->spec_text);
+  ins.BindInt(5, static_cast<int64_t>(run->spec.seed()));
+  ins.BindInt(6, run->state);
+  ins.BindInt(7, run->priority);
+  ins.BindText(8, run->message);
+  ins.BindInt(9, run->created_ms);
+  ins.BindInt(10, run->updated_ms);
+  ins.BindInt(11, run->started_ms);
+  if (run->request_id.empty()) {
+    ins.BindNull(12);
+  } else {
+    ins.BindText(12, run->request_id);
+  }
+  if (parent_run == 0) {  // not a fork: no parent, no fork generation
+    ins.BindNull(13);
+    ins.BindNull(14);
+  } else {
+    ins.BindInt(13, parent_run);
+    ins.BindInt(14, parent_generation);
+  }
+  ins.BindInt(15, evaluations);
+  SKERRY_RETURN_IF_ERROR(ins.Run());
+  run->id = conn_->LastInsertId();
+  run->parent_run = parent_run;
+  run->parent_generation = parent_generation;
+  run->evaluations = evaluations;
+  return absl::OkStatus();
+}
+
+absl::Status Store::InsertStrategyStates(
+    int64_t run_id, uint32_t count, uint32_t generation,
+    const std::vector<std::string>* states) {
+  SKERRY_ASSIGN_OR_RETURN(
+      auto st, conn_->Prepare("INSERT INTO strategy_states (run_id, island, "
+                              "generation, state) VALUES (?, ?, ?, ?)"));
+  for (uint32_t i = 0; i < count; ++i) {
+    st.BindInt(1, run_id);
+    st.BindInt(2, i);
+    st.BindInt(3, generation);
+    st.BindBlob(4, states != nullptr && i < states->size() ? (*states)[i]
+                                                           : std::string());
+    SKERRY_RETURN_IF_ERROR(st.Run());
+  }
+  return absl::OkStatus();
+}
+
 absl::Status Store::CreateRunLocked(
     RunRecord* run, std::vector<GenomeRecord>* genomes,
     const std::vector<std::string>* strategy_states) {
-  {
-    SKERRY_ASSIGN_OR_RETURN(
-        auto ins,
-        conn_->Prepare(
-            "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
-            "priority, message, created_ms, updated_ms, started_ms, "
-            "request_id) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)"));
-    ins.BindText(1, run->name);
-    ins.BindText(2, run->owner);
-    ins.BindBlob(3, run->spec.SerializeAsString());
-    ins.BindText(4, run->spec_text);
-    ins.BindInt(5, static_cast<int64_t>(run->spec.seed()));
-    ins.BindInt(6, run->state);
-    ins.BindInt(7, run->priority);
-    ins.BindText(8, run->message);
-    ins.BindInt(9, run->created_ms);
-    ins.BindInt(10, run->updated_ms);
-    ins.BindInt(11, run->started_ms);
-    if (run->request_id.empty()) {
-      ins.BindNull(12);
-    } else {
-      ins.BindText(12, run->request_id);
-    }
-    SKERRY_RETURN_IF_ERROR(ins.Run());
-    run->id = conn_->LastInsertId();
-  }
+  SKERRY_RETURN_IF_ERROR(InsertRunRow(run, 0, 0, 0));
   {
     SKERRY_ASSIGN_OR_RETURN(
         auto isl,
@@ -675,17 +709,8 @@ absl::Status Store::CreateRunLocked(
       isl.BindInt(2, i);
       SKERRY_RETURN_IF_ERROR(isl.Run());
     }
-    SKERRY_ASSIGN_OR_RETURN(
-        auto st, conn_->Prepare("INSERT INTO strategy_states (run_id, island, "
-                                "generation, state) VALUES (?, ?, 0, ?)"));
-    for (uint32_t i = 0; i < count; ++i) {
-      st.BindInt(1, run->id);
-      st.BindInt(2, i);
-      st.BindBlob(3, strategy_states != nullptr && i < strategy_states->size()
-                         ? (*strategy_states)[i]
-                         : std::string());
-      SKERRY_RETURN_IF_ERROR(st.Run());
-    }
+    SKERRY_RETURN_IF_ERROR(
+        InsertStrategyStates(run->id, count, 0, strategy_states));
   }
   for (GenomeRecord& g : *genomes) g.run_id = run->id;
   return InsertGenomes(genomes);

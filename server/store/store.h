@@ -468,8 +468,11 @@ class Store {
   // validations, metrics; audit rows stay), then runs an incremental vacuum.
   // NotFound for no such run; FailedPrecondition, changing nothing, while the
   // run is not ended or while forks of it exist (their lineage leads into
-  // it), naming them.
-  absl::StatusOr<Deleted> DeleteRun(int64_t run_id);
+  // it), naming them. With `expected_content` (RunContentDigest,
+  // run_content.h): FailedPrecondition, changing nothing, unless the run's
+  // rows still have that digest (`skerry archive`).
+  absl::StatusOr<Deleted> DeleteRun(
+      int64_t run_id, const std::string& expected_content = std::string());
 
   // ---- Importing runs (run_transfer.cc) ----
   struct Imported {
@@ -489,10 +492,12 @@ class Store {
   // run->parent_generation), its islands at that generation, the parent's
   // statistics of the generations before it (`stats`) and the copies of the
   // parent's genomes of that generation (`genomes`, parent links kept: they
-  // name the parent's genomes). One transaction. FailedPrecondition when the
-  // parent run is gone.
+  // name the parent's genomes), and each island's strategy state at that
+  // generation (`strategy_states[i]`, serialised StrategyState). One
+  // transaction. FailedPrecondition when the parent run is gone.
   absl::Status CreateFork(RunRecord* run, std::vector<StatsRecord>* stats,
-                          std::vector<GenomeRecord>* genomes);
+                          std::vector<GenomeRecord>* genomes,
+                          const std::vector<std::string>& strategy_states);
   // ---- Seed series and extension (series_store.cc; schema version 9) ----
   // Every run (ids filled in, genomes[i] its generation 0) and the series
   // (id and members filled in) in one transaction. AlreadyExists names a
@@ -531,6 +536,16 @@ class Store {
   absl::Status CreateRunLocked(RunRecord* run,
                                std::vector<GenomeRecord>* genomes,
                                const std::vector<std::string>* strategy_states)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The run row, from `run` and the arguments (parent_run 0: not a fork);
+  // sets run->id, parent_run, parent_generation and evaluations.
+  absl::Status InsertRunRow(RunRecord* run, int64_t parent_run,
+                            uint32_t parent_generation, int64_t evaluations)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Island i's strategy_states row at `generation`: `states[i]`, or empty.
+  absl::Status InsertStrategyStates(int64_t run_id, uint32_t count,
+                                    uint32_t generation,
+                                    const std::vector<std::string>* states)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::StatusOr<std::vector<std::pair<int64_t, uint64_t>>> SeriesMembersLocked(
       int64_t series_id) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);

@@ -6,7 +6,6 @@
 // the fields it may not change, naming them.
 #include <signal.h>
 
-#include <cstring>
 #include <map>
 #include <optional>
 #include <regex>
@@ -16,9 +15,9 @@
 
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
-#include "common/sha256.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/e2e/genome_digest.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
 
@@ -26,6 +25,7 @@ namespace skerry {
 namespace {
 
 using testing::CommandResult;
+using testing::DigestFrom;
 using ::testing::HasSubstr;
 using testing::Process;
 using testing::RunCommand;
@@ -49,42 +49,6 @@ ga {
 islands { count: 3 topology: TWO_WAY_RING interval: 3 migrants: 1 }
 stop { max_generations: 12 }
 )";
-
-// SHA-256 over the run's genomes of generation `from` on, in the layout of
-// DigestResponse (proto/skerry/v1/runs.proto); `all` resolves parent ids to
-// natural keys, whichever run holds them.
-std::string DigestFrom(const std::vector<StoredGenome>& run,
-                       const std::vector<StoredGenome>& all, int from,
-                       uint64_t* count) {
-  std::map<int64_t, const StoredGenome*> by_id;
-  for (const StoredGenome& g : all) by_id[g.id] = &g;
-  Sha256 h;
-  *count = 0;
-  for (const StoredGenome& g : run) {
-    if (g.generation < from) continue;
-    for (int v : {g.island, g.generation, g.slot, g.origin}) {
-      h.UpdateU32(static_cast<uint32_t>(v));
-    }
-    for (int64_t parent : {g.parent_a, g.parent_b}) {
-      auto it = by_id.find(parent);
-      if (parent == 0 || it == by_id.end()) {
-        for (int i = 0; i < 3; ++i) h.UpdateU32(0xFFFFFFFFu);
-      } else {
-        h.UpdateU32(static_cast<uint32_t>(it->second->island));
-        h.UpdateU32(static_cast<uint32_t>(it->second->generation));
-        h.UpdateU32(static_cast<uint32_t>(it->second->slot));
-      }
-    }
-    h.UpdateU32(static_cast<uint32_t>(g.genes.size() / 8));
-    h.Update(g.genes);
-    h.UpdateU32(static_cast<uint32_t>(g.eval_state));
-    uint64_t bits = 0;
-    if (g.has_score) std::memcpy(&bits, &g.score, 8);
-    h.UpdateU64(bits);
-    ++*count;
-  }
-  return h.FinishHex();
-}
 
 std::string Key(const StoredGenome& g) {
   return absl::StrCat(g.run_id, "/", g.island, "/", g.generation, "/", g.slot);

@@ -3,7 +3,8 @@
 // for N = 1, 2, 3 ... until the operation completes without meeting the fault).
 //
 // For each commit point (CreateRun, CommitResults, CommitGeneration,
-// SetRunState, FinishRun), each fault kind (I/O error, full disk, failed fsync,
+// SetRunState, FinishRun, CreateFork, DeleteRun, the delete of an archive,
+// ImportRuns), each fault kind (I/O error, full disk, failed fsync,
 // busy) and each mode (the Nth call only, or the Nth and every later one):
 //   1. copy a prepared database and open it through the fault VFS;
 //   2. arm the fault at N and run the operation: OK, or a clean non-OK Status;
@@ -24,10 +25,14 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/spec.h"
+#include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "server/engine/breeder.h"
+#include "server/store/backup.h"
 #include "server/store/check.h"
+#include "server/store/run_content.h"
 #include "server/store/store.h"
+#include "skerry/v1/strategy.pb.h"
 #include "tests/fault/fault_vfs.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
@@ -162,6 +167,28 @@ struct CommitPoint {
 
 constexpr int64_t kRun = 1;  // the first run of a fresh database
 
+// A one-run export (store/backup.h) of a run of 2 islands, generation 0
+// evaluated, made once on the default VFS, for ImportRuns.
+const std::string& ExportFile() {
+  static const std::string* path = [] {
+    static TempDir* dir = new TempDir();
+    const std::string src = dir->File("source.db");
+    {
+      absl::StatusOr<std::unique_ptr<Store>> s = Store::Open(src);
+      EXPECT_TRUE(s.ok()) << s.status();
+      NewRun n = MakeRun(2);
+      EXPECT_TRUE((*s)->CreateRun(&n.run, &n.genomes).ok());
+      EXPECT_TRUE(
+          (*s)->CommitResults(Evaluate(n.genomes, n.genomes.size())).ok());
+    }
+    auto* out = new std::string(dir->File("export.db"));
+    absl::Status made = BackupDatabase(src, kRun, *out);
+    EXPECT_TRUE(made.ok()) << made;
+    return out;
+  }();
+  return *path;
+}
+
 std::vector<CommitPoint> CommitPoints() {
   std::vector<CommitPoint> out;
   out.push_back(
@@ -269,6 +296,102 @@ std::vector<CommitPoint> CommitPoints() {
              state == absl::StrCat(skerry::v1::RUNNING) &&
                  gen1 == kPopulation && generation == 1 && stop.empty() &&
                  counter == stored && counter > kPopulation);
+       }});
+  // Run 1 with generation 1 bred (generation 0 evaluated, its statistics).
+  auto bred_run = [evaluated_run](Store& s) {
+    evaluated_run(s);
+    NextGeneration n = Bred(s, kRun, 0);
+    ASSERT_TRUE(Commit(s, kRun, &n).ok());
+  };
+  out.push_back(
+      {"CreateFork", bred_run,
+       [](Store& s) {
+         absl::StatusOr<RunRecord> parent = s.GetRun(kRun);
+         absl::StatusOr<std::vector<GenomeRecord>> gen =
+             s.GetGeneration(kRun, 0, 1);
+         absl::StatusOr<std::vector<StatsRecord>> stats =
+             s.GetStats(kRun, std::nullopt);
+         if (!parent.ok()) return parent.status();
+         if (!gen.ok()) return gen.status();
+         if (!stats.ok()) return stats.status();
+         RunRecord fork = *parent;
+         fork.id = 0;
+         fork.parent_run = kRun;
+         fork.parent_generation = 1;
+         fork.request_id.clear();
+         for (GenomeRecord& g : *gen) g.id = 0;
+         skerry::v1::StrategyState state;  // a GA's, at the fork generation
+         state.set_generation(1);
+         state.mutable_ga();
+         return s.CreateFork(&fork, &*stats, &*gen,
+                             {state.SerializeAsString()});
+       },
+       [](const std::string& db) {
+         const long long runs = Count(db, "SELECT count(*) FROM runs");
+         const long long islands =
+             Count(db, "SELECT count(*) FROM islands WHERE run_id = 2");
+         const long long genomes =
+             Count(db, "SELECT count(*) FROM genomes WHERE run_id = 2");
+         const long long stats = Count(
+             db, "SELECT count(*) FROM generation_stats WHERE run_id = 2");
+         const long long states =
+             Count(db, "SELECT count(*) FROM strategy_states WHERE run_id = 2");
+         return Judge(runs == 2 && islands == 1 && genomes == kPopulation &&
+                          stats == 1 && states == 1,
+                      runs == 1 && islands == 0 && genomes == 0 && stats == 0 &&
+                          states == 0);
+       }});
+  auto ended_run = [bred_run](Store& s) {
+    bred_run(s);
+    ASSERT_TRUE(s.FinishRun(kRun, skerry::v1::STOPPED, "stopped by the sweep",
+                            /*keep_through=*/0, kNowMs + 1)
+                    .ok());
+  };
+  auto deleted = [](const std::string& db) {
+    long long rows = 0;
+    for (const char* table :
+         {"islands", "genomes", "generation_stats", "strategy_states"}) {
+      rows += Count(db, absl::StrCat("SELECT count(*) FROM ", table));
+    }
+    const long long runs = Count(db, "SELECT count(*) FROM runs");
+    const long long genomes = Count(db, "SELECT count(*) FROM genomes");
+    const long long islands = Count(db, "SELECT count(*) FROM islands");
+    return Judge(runs == 0 && rows == 0,
+                 runs == 1 && islands == 1 && genomes == kPopulation);
+  };
+  out.push_back({"DeleteRun", ended_run,
+                 [](Store& s) { return s.DeleteRun(kRun).status(); }, deleted});
+  // `skerry archive`'s delete: the export (on the default VFS), its content
+  // digest, and the delete that holds the run to it.
+  out.push_back({"ArchiveRun", ended_run,
+                 [](Store& s) {
+                   const std::string file = s.path() + ".export";
+                   std::filesystem::remove(file);
+                   absl::Status made = BackupDatabase(s.path(), kRun, file);
+                   if (!made.ok()) return made;
+                   absl::StatusOr<std::string> content =
+                       RunContentDigestOfFile(file, kRun);
+                   std::filesystem::remove(file);
+                   if (!content.ok()) return content.status();
+                   return s.DeleteRun(kRun, *content).status();
+                 },
+                 deleted});
+  out.push_back(
+      {"ImportRuns",
+       [](Store& s) {
+         ExportFile();  // made before any fault is armed
+         NewRun n = MakeRun(1);
+         ASSERT_TRUE(s.CreateRun(&n.run, &n.genomes).ok());
+       },
+       [](Store& s) { return s.ImportRuns(ExportFile()).status(); },
+       [](const std::string& db) {
+         const long long runs = Count(db, "SELECT count(*) FROM runs");
+         const long long genomes = Count(db, "SELECT count(*) FROM genomes");
+         const long long scored =
+             Count(db, "SELECT count(*) FROM genomes WHERE eval_state = 2");
+         return Judge(runs == 2 && genomes == 3 * kPopulation &&
+                          scored == 2 * kPopulation,
+                      runs == 1 && genomes == kPopulation && scored == 0);
        }});
   return out;
 }
@@ -387,6 +510,37 @@ TEST(StoreProbeWriteTest, ProbeFailsWhileEveryWriteFails) {
   }
 }
 
+// A run that changed after its export is not deleted by the archive's
+// delete: FAILED_PRECONDITION (fix the state: export again), nothing gone.
+TEST(StoreArchiveTest, DeleteHeldToAStaleContentDigestChangesNothing) {
+  TempDir dir;
+  const std::string db = dir.File("stale.db");
+  absl::StatusOr<std::unique_ptr<Store>> s = Store::Open(db);
+  ASSERT_TRUE(s.ok()) << s.status();
+  NewRun n = MakeRun(1);
+  ASSERT_TRUE((*s)->CreateRun(&n.run, &n.genomes).ok());
+  ASSERT_TRUE((*s)->CommitResults(Evaluate(n.genomes, 1)).ok());
+  ASSERT_TRUE(
+      (*s)->FinishRun(kRun, skerry::v1::STOPPED, "stopped", 0, kNowMs).ok());
+  const std::string file = dir.File("export.db");
+  ASSERT_TRUE(BackupDatabase(db, kRun, file).ok());
+  absl::StatusOr<std::string> exported = RunContentDigestOfFile(file, kRun);
+  absl::StatusOr<std::string> live = RunContentDigestOfFile(db, kRun);
+  ASSERT_TRUE(exported.ok() && live.ok());
+  EXPECT_EQ(*exported, *live) << "an export holds the run's rows unchanged";
+  // Changed after the export.
+  ASSERT_TRUE((*s)->SetRunPriority(kRun, 7, kNowMs + 5).ok());
+  absl::StatusOr<Store::Deleted> refused = (*s)->DeleteRun(kRun, *exported);
+  EXPECT_TRUE(absl::IsFailedPrecondition(refused.status())) << refused.status();
+  EXPECT_THAT(std::string(refused.status().message()),
+              ::testing::HasSubstr("changed since it was exported"));
+  EXPECT_EQ(Count(db, "SELECT count(*) FROM genomes"), kPopulation);
+  absl::StatusOr<std::string> now = RunContentDigestOfFile(db, kRun);
+  ASSERT_TRUE(now.ok());
+  EXPECT_TRUE((*s)->DeleteRun(kRun, *now).ok());
+  EXPECT_EQ(Count(db, "SELECT count(*) FROM runs"), 0);
+}
+
 std::string SweepName(const ::testing::TestParamInfo<SweepParam>& info) {
   std::string kind = FaultKindName(std::get<1>(info.param));
   for (char& c : kind) {
@@ -398,7 +552,7 @@ std::string SweepName(const ::testing::TestParamInfo<SweepParam>& info) {
 
 INSTANTIATE_TEST_SUITE_P(
     CommitPoints, StoreFaultSweep,
-    ::testing::Combine(::testing::Range(0, 5),
+    ::testing::Combine(::testing::Range(0, 9),
                        ::testing::Values(FaultKind::kIoErr, FaultKind::kFull,
                                          FaultKind::kFsync, FaultKind::kBusy),
                        ::testing::Bool()),

@@ -85,10 +85,10 @@ TEST(ForkSpecTest, FieldsThatShapeTheGenomesAreRefusedByName) {
   }
 }
 
-// A CMA-ES island keeps its distribution as of its newest generation only, so
-// a fork (which starts at an earlier one) of a CMA-ES run is refused, naming
-// the field, rather than starting with a distribution it never had.
-TEST(ForkSpecTest, RunsOfAStrategyThatKeepsStateAreRefusedNamingTheStrategy) {
+// A CMA-ES run may be forked (its islands' states are replayed to the fork
+// generation), but not into another strategy, whose islands could not read
+// those states.
+TEST(ForkSpecTest, AForkKeepsItsParentsStrategyNamingTheFieldOtherwise) {
   absl::StatusOr<RunSpec> spec = ParseSpecText(R"(
 name: "cma-parent"
 seed: 5
@@ -103,9 +103,23 @@ stop { max_generations: 40 }
   ASSERT_TRUE(parent.ok()) << parent.status();
   absl::StatusOr<RunSpec> merged = MergeForkChanges(*parent, "");
   ASSERT_TRUE(merged.ok()) << merged.status();
-  absl::Status s = CheckForkChanges(*parent, *merged, 10);
-  EXPECT_TRUE(absl::IsFailedPrecondition(s)) << s;
-  EXPECT_THAT(s.message(), HasSubstr("strategy"));
+  EXPECT_TRUE(CheckForkChanges(*parent, *merged, 10).ok());
+  absl::StatusOr<RunSpec> sep =
+      PrepareSpec(*MergeForkChanges(*parent, "strategy { sep_cma_es { } }"));
+  ASSERT_TRUE(sep.ok()) << sep.status();
+  absl::Status s = CheckForkChanges(*parent, *sep, 10);
+  EXPECT_TRUE(absl::IsInvalidArgument(s)) << s;
+  EXPECT_THAT(s.message(), HasSubstr("strategy: a fork may not change it"));
+  EXPECT_THAT(s.message(), HasSubstr("cma_es"));
+  EXPECT_THAT(s.message(), HasSubstr("sep_cma_es"));
+  absl::StatusOr<RunSpec> bigger = PrepareSpec(*MergeForkChanges(
+      *parent, "strategy { cma_es { population_size: 30 } }"));
+  ASSERT_TRUE(bigger.ok()) << bigger.status();
+  s = CheckForkChanges(*parent, *bigger, 10);
+  EXPECT_TRUE(absl::IsInvalidArgument(s)) << s;
+  EXPECT_THAT(s.message(), HasSubstr("strategy.cma_es.population_size"));
+  EXPECT_TRUE(absl::IsInvalidArgument(
+      CheckForkChanges(Parent(), *parent, 10)));  // GA into CMA-ES
 }
 
 TEST(ForkSpecTest, ScoresAreKeptOnlyWithTheSameEvaluatorAndSeed) {

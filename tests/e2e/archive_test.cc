@@ -1,0 +1,181 @@
+// Archive and online import end to end (issue 17, housekeeping), with a real
+// coordinator, real worker processes and real SQLite files: `skerry archive`
+// writes an ended run to a file, checks it, and only then deletes the run
+// (refused, with the file kept, while a fork of the run exists); `skerry
+// import` brings a file's runs back into the running coordinator with new
+// ids and the same genomes (digest); a file holding a fork without its
+// parent, a damaged file and a file of a newer schema are refused, importing
+// nothing; the audit log names each archive and import; `--check` accepts
+// the database after it all.
+#include <signal.h>
+#include <unistd.h>
+
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+#include "tests/support/db_check.h"
+#include "tests/support/process.h"
+
+namespace skerry {
+namespace {
+
+using testing::CommandResult;
+using ::testing::HasSubstr;
+using ::testing::Not;
+using testing::Process;
+using testing::RunCommand;
+
+constexpr char kSpec[] = R"(
+name: "to-archive"
+seed: 3131
+genome_length: 4
+evaluator { builtin { function: "sphere" } }
+ga {
+  population_size: 10
+  selection { method: TOURNAMENT tournament_size: 2 }
+  crossover { method: UNIFORM rate: 0.6 }
+  mutation { rate: 0.3 step: 0.4 }
+  elites: 1
+}
+islands { count: 2 topology: RING interval: 2 migrants: 1 }
+stop { max_generations: 8 }
+)";
+
+bool Exists(const std::string& path) { return access(path.c_str(), F_OK) == 0; }
+
+class ArchiveTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    db_ = dir_.File("archive.db");
+    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
+        SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
+    ASSERT_TRUE(c.ok()) << c.status();
+    coordinator_.emplace(*std::move(c));
+    absl::StatusOr<Process> w = Process::Start(
+        {SKERRY_WORKER_BIN, "--coordinator", coordinator_->address(),
+         "--threads", "2", "--batch", "8", "--name", "w0"},
+        dir_.File("worker.log"));
+    ASSERT_TRUE(w.ok()) << w.status();
+    workers_.push_back(std::move(*w));
+  }
+
+  CommandResult Cli(std::vector<std::string> args) {
+    std::vector<std::string> argv = {SKERRY_CLI_BIN, "--coordinator",
+                                     coordinator_->address()};
+    argv.insert(argv.end(), args.begin(), args.end());
+    return RunCommand(argv, absl::Seconds(300));
+  }
+
+  void Finish(const CommandResult& made, const std::string& id) {
+    ASSERT_EQ(made.exit_code, 0) << made.output;
+    ASSERT_EQ(made.output, id + "\n");
+    CommandResult watch = Cli({"watch", id});
+    ASSERT_EQ(watch.exit_code, 0) << watch.output;
+    ASSERT_THAT(watch.output, HasSubstr("finished"));
+  }
+
+  // The run's digest line's SHA-256.
+  std::string Digest(const std::string& id) {
+    CommandResult d = Cli({"digest", id});
+    EXPECT_EQ(d.exit_code, 0) << d.output;
+    return d.output.substr(0, 64);
+  }
+
+  testing::TempDir dir_;
+  std::string db_;
+  std::optional<testing::StartedCoordinator> coordinator_;
+  std::vector<Process> workers_;
+};
+
+TEST_F(ArchiveTest, ArchivedRunLeavesOnlyAfterItsFileIsWholeAndImportsBack) {
+  const std::string spec = dir_.File("spec.txt");
+  ASSERT_TRUE(testing::WriteTextFile(spec, kSpec));
+  Finish(Cli({"submit", spec}), "1");
+  Finish(Cli({"fork", "1", "--at", "3"}), "2");
+  const std::string digest_1 = Digest("1");
+  ASSERT_EQ(digest_1.size(), 64u);
+
+  // A parent of a fork: the file is written and kept, the run is not deleted.
+  const std::string first = dir_.File("first.db");
+  CommandResult refused = Cli({"archive", "1", "--to", first});
+  EXPECT_EQ(refused.exit_code, 1) << refused.output;
+  EXPECT_THAT(refused.output, HasSubstr("but not deleted"));
+  EXPECT_THAT(refused.output, HasSubstr("has forks (run 2)"));
+  EXPECT_TRUE(Exists(first));
+  EXPECT_EQ(Cli({"show", "1"}).exit_code, 0);
+
+  // The fork, then its parent.
+  const std::string fork_file = dir_.File("fork.db");
+  CommandResult fork = Cli({"archive", "2", "--to", fork_file});
+  ASSERT_EQ(fork.exit_code, 0) << fork.output;
+  EXPECT_THAT(fork.output, HasSubstr("run 2 archived to " + fork_file));
+  const std::string parent_file = dir_.File("parent.db");
+  CommandResult parent = Cli({"archive", "1", "--to", parent_file});
+  ASSERT_EQ(parent.exit_code, 0) << parent.output;
+  EXPECT_THAT(parent.output, HasSubstr("genomes deleted from the coordinator"));
+  EXPECT_NE(Cli({"show", "1"}).exit_code, 0);
+  EXPECT_NE(Cli({"show", "2"}).exit_code, 0);
+  EXPECT_EQ(testing::QueryText(db_, "SELECT count(*) FROM genomes"), "0");
+
+  // A run that is gone: no file, no partial file.
+  const std::string gone = dir_.File("gone.db");
+  CommandResult missing = Cli({"archive", "1", "--to", gone});
+  EXPECT_EQ(missing.exit_code, 1) << missing.output;
+  EXPECT_THAT(missing.output, HasSubstr("nothing deleted"));
+  EXPECT_FALSE(Exists(gone));
+  EXPECT_FALSE(Exists(gone + ".partial"));
+  // An existing file is not overwritten.
+  CommandResult exists = Cli({"archive", "1", "--to", parent_file});
+  EXPECT_EQ(exists.exit_code, 2) << exists.output;
+  EXPECT_THAT(exists.output, HasSubstr("already exists"));
+
+  // Refused files import nothing.
+  CommandResult orphan = Cli({"import", fork_file});
+  EXPECT_EQ(orphan.exit_code, 1) << orphan.output;
+  EXPECT_THAT(orphan.output, HasSubstr("is a fork of run 1, which the file "
+                                       "does not hold"));
+  const std::string newer = dir_.File("newer.db");
+  ASSERT_EQ(RunCommand({"/bin/cp", parent_file, newer}).exit_code, 0);
+  ASSERT_EQ(RunCommand({"/usr/bin/sqlite3", newer,
+                        "UPDATE schema_version SET version = 99"})
+                .exit_code,
+            0);
+  CommandResult too_new = Cli({"import", newer});
+  EXPECT_EQ(too_new.exit_code, 1) << too_new.output;
+  EXPECT_THAT(too_new.output, HasSubstr("schema version 99 is newer"));
+  EXPECT_THAT(too_new.output, Not(HasSubstr(".tmp")));
+  const std::string junk = dir_.File("junk.db");
+  ASSERT_TRUE(testing::WriteTextFile(junk, "not a database at all\n"));
+  CommandResult bad = Cli({"import", junk});
+  EXPECT_EQ(bad.exit_code, 1) << bad.output;
+  EXPECT_EQ(testing::QueryText(db_, "SELECT count(*) FROM runs"), "0");
+
+  // A run submitted meanwhile takes id 1 (the table is empty); the parent
+  // comes back past it, with the same genomes.
+  Finish(Cli({"submit", spec}), "1");
+  CommandResult back = Cli({"import", parent_file});
+  ASSERT_EQ(back.exit_code, 0) << back.output;
+  EXPECT_THAT(back.output, HasSubstr("imported run 1 as run 2 (160 genomes)"));
+  EXPECT_EQ(Digest("2"), digest_1);
+  EXPECT_EQ(Digest("1"), digest_1);  // the same spec and seed
+  CommandResult lineage = Cli({"ancestors", "2/0/7/0", "--yes"});
+  EXPECT_EQ(lineage.exit_code, 0) << lineage.output;
+  EXPECT_THAT(lineage.output, HasSubstr(" 2/1/"));  // migrants crossed
+
+  CommandResult audit = Cli({"audit", "--limit", "100"});
+  ASSERT_EQ(audit.exit_code, 0) << audit.output;
+  EXPECT_THAT(audit.output, HasSubstr("ArchiveRun"));
+  EXPECT_THAT(audit.output, HasSubstr("ImportRuns"));
+
+  coordinator_->process.Signal(SIGTERM);
+  ASSERT_TRUE(coordinator_->process.Wait(absl::Seconds(60)).ok());
+  CommandResult check = RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_});
+  EXPECT_EQ(check.exit_code, 0) << check.output;
+}
+
+}  // namespace
+}  // namespace skerry

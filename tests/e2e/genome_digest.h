@@ -1,0 +1,57 @@
+// The digest of a stored run's genomes from one generation on, in the layout
+// of DigestResponse (proto/skerry/v1/runs.proto), for the fork tests: an
+// unchanged fork's digest over its generations equals its parent's over the
+// same ones. Parent ids are resolved to natural keys through `all`, whichever
+// run holds them.
+//
+// Thread safety: a pure function.
+#ifndef SKERRY_TESTS_E2E_GENOME_DIGEST_H_
+#define SKERRY_TESTS_E2E_GENOME_DIGEST_H_
+
+#include <cstdint>
+#include <cstring>
+#include <map>
+#include <string>
+#include <vector>
+
+#include "common/sha256.h"
+#include "tests/support/db_check.h"
+
+namespace skerry::testing {
+
+inline std::string DigestFrom(const std::vector<StoredGenome>& run,
+                              const std::vector<StoredGenome>& all, int from,
+                              uint64_t* count) {
+  std::map<int64_t, const StoredGenome*> by_id;
+  for (const StoredGenome& g : all) by_id[g.id] = &g;
+  Sha256 h;
+  *count = 0;
+  for (const StoredGenome& g : run) {
+    if (g.generation < from) continue;
+    for (int v : {g.island, g.generation, g.slot, g.origin}) {
+      h.UpdateU32(static_cast<uint32_t>(v));
+    }
+    for (int64_t parent : {g.parent_a, g.parent_b}) {
+      auto it = by_id.find(parent);
+      if (parent == 0 || it == by_id.end()) {
+        for (int i = 0; i < 3; ++i) h.UpdateU32(0xFFFFFFFFu);
+      } else {
+        h.UpdateU32(static_cast<uint32_t>(it->second->island));
+        h.UpdateU32(static_cast<uint32_t>(it->second->generation));
+        h.UpdateU32(static_cast<uint32_t>(it->second->slot));
+      }
+    }
+    h.UpdateU32(static_cast<uint32_t>(g.genes.size() / 8));
+    h.Update(g.genes);
+    h.UpdateU32(static_cast<uint32_t>(g.eval_state));
+    uint64_t bits = 0;
+    if (g.has_score) std::memcpy(&bits, &g.score, 8);
+    h.UpdateU64(bits);
+    ++*count;
+  }
+  return h.FinishHex();
+}
+
+}  // namespace skerry::testing
+
+#endif  // SKERRY_TESTS_E2E_GENOME_DIGEST_H_
