@@ -16,7 +16,12 @@
 // Results arrive from any number of Report calls. They are grouped
 // (group_commit.h): one committer thread takes every batch waiting, applies the
 // lot in one transaction (Store::CommitResults), and only then answers the
-// callers (a result is acknowledged only after it is committed). Completed
+// callers (a result is acknowledged only after it is committed). The engine's
+// lock is not held while that transaction is written and synced: the results
+// are claimed under it, committed without it, and kept in the cache under it
+// again; reads (summaries, lists, watches) go on meanwhile, and every writer
+// waits for the commit in flight (AwaitCommit), so nothing the commit relies
+// on changes under it. Completed
 // generations are then bred, each in a transaction of its own with the
 // strategy's new state (Store::CommitGeneration); a failed commit restores the
 // strategy to the state saved before it was told.
@@ -246,6 +251,27 @@ class Engine {
                     const std::function<void()>& answer)
       ABSL_LOCKS_EXCLUDED(mu_);
   void Idle() ABSL_LOCKS_EXCLUDED(mu_);
+  // A claimed result of a report batch, on its way to the store.
+  struct Applied {
+    uint32_t island;
+    uint32_t generation;
+    uint32_t slot;
+    store::ResultUpdate update;
+  };
+  // ApplyReports in three steps: claims the batch's results under the lock,
+  // commits them without it, and keeps what was committed under it again.
+  void ClaimResults(absl::Span<ReportJob* const> jobs,
+                    std::vector<Applied>* applied,
+                    std::vector<int64_t>* claimed,
+                    std::vector<store::ValidationUpdate>* validated,
+                    std::vector<ReportOutcome>* outcomes)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void KeepCommitted(const std::vector<Applied>& applied,
+                     const std::vector<store::ValidationUpdate>& validated)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Every method that writes the store or changes a run waits here first, so
+  // that nothing a result commit in flight relies on changes under it.
+  void AwaitCommit() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Breeds or finishes every island of the run whose generation is complete.
   absl::Status Advance(Run& run) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // One step for one island; returns true when something changed.
@@ -322,6 +348,8 @@ class Engine {
     absl::Status why;
   };
   std::map<int64_t, Damaged> damaged_ ABSL_GUARDED_BY(mu_);
+  // A result commit is being written without mu_ (ApplyReports).
+  bool committing_ ABSL_GUARDED_BY(mu_) = false;
 
   std::unique_ptr<GroupCommit> committer_;
 };

@@ -9,6 +9,7 @@ namespace skerry::engine {
 
 absl::StatusOr<store::Store::Deleted> Engine::Delete(int64_t run_id) {
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   if (auto it = runs_.find(run_id); it != runs_.end()) {
     return absl::FailedPreconditionError(absl::StrCat(
         "run ", run_id, " is ",
