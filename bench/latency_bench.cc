@@ -31,14 +31,6 @@ namespace {
 using store::GenomeRecord;
 using store::Store;
 
-double Percentile(std::vector<double> v, double p) {
-  if (v.empty()) return 0;
-  std::sort(v.begin(), v.end());
-  const size_t i = std::min(
-      v.size() - 1, static_cast<size_t>(p * static_cast<double>(v.size())));
-  return v[i];
-}
-
 skerry::v1::RunSpec Spec(const char* name, int genome_length, int population) {
   skerry::v1::RunSpec spec;
   spec.set_name(name);
@@ -129,6 +121,14 @@ uint64_t FileBytes(const std::string& path) {
 }
 
 }  // namespace
+
+double Percentile(std::vector<double> v, double p) {
+  if (v.empty()) return 0;
+  std::sort(v.begin(), v.end());
+  const size_t i = std::min(
+      v.size() - 1, static_cast<size_t>(p * static_cast<double>(v.size())));
+  return v[i];
+}
 
 int RunLatencyAndRestart(const LatencyOptions& o) {
   const std::string path = TempDb(o.dir, "history");

@@ -11,6 +11,8 @@
 #include <vector>
 
 #include "absl/strings/str_cat.h"
+#include "absl/strings/string_view.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/time/clock.h"
 #include "bench/bench_util.h"
 #include "common/clock.h"
@@ -42,16 +44,30 @@ class SleepyZero final : public Evaluator {
 
 // Counts the protobuf payload of every message a worker sends and receives
 // (not HTTP/2 framing or headers): the bytes that grow with the genomes.
+// Also times every Report call, from its first byte sent to its status.
 struct WireCount {
   std::atomic<uint64_t> sent{0};
   std::atomic<uint64_t> received{0};
+  absl::Mutex mu;
+  std::vector<double> report_ms ABSL_GUARDED_BY(mu);
 };
 
 class CountingInterceptor final : public grpc::experimental::Interceptor {
  public:
-  explicit CountingInterceptor(WireCount* count) : count_(count) {}
+  CountingInterceptor(WireCount* count, bool timed)
+      : count_(count), timed_(timed) {}
   void Intercept(grpc::experimental::InterceptorBatchMethods* m) override {
     using grpc::experimental::InterceptionHookPoints;
+    if (timed_ && m->QueryInterceptionHookPoint(
+                      InterceptionHookPoints::PRE_SEND_INITIAL_METADATA)) {
+      start_ = absl::Now();
+    }
+    if (timed_ && m->QueryInterceptionHookPoint(
+                      InterceptionHookPoints::POST_RECV_STATUS)) {
+      const double ms = absl::ToDoubleMilliseconds(absl::Now() - start_);
+      absl::MutexLock l(&count_->mu);
+      count_->report_ms.push_back(ms);
+    }
     if (m->QueryInterceptionHookPoint(
             InterceptionHookPoints::PRE_SEND_MESSAGE)) {
       const void* msg = m->GetSendMessage();
@@ -73,6 +89,8 @@ class CountingInterceptor final : public grpc::experimental::Interceptor {
 
  private:
   WireCount* count_;
+  const bool timed_;
+  absl::Time start_;
 };
 
 class CountingFactory final
@@ -80,8 +98,10 @@ class CountingFactory final
  public:
   explicit CountingFactory(WireCount* count) : count_(count) {}
   grpc::experimental::Interceptor* CreateClientInterceptor(
-      grpc::experimental::ClientRpcInfo*) override {
-    return new CountingInterceptor(count_);
+      grpc::experimental::ClientRpcInfo* info) override {
+    return new CountingInterceptor(
+        count_,
+        absl::string_view(info->method()) == "/skerry.v1.FleetService/Report");
   }
 
  private:
@@ -178,6 +198,51 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
       std::fprintf(stderr, "submit: %s\n", s.error_message().c_str());
     }
   }
+  std::atomic<bool> reading{true};
+  std::atomic<uint64_t> reads{0};
+  std::vector<std::thread> readers;
+  for (int r = 0; r < o.readers; ++r) {
+    readers.emplace_back([&] {
+      auto stub = skerry::v1::RunService::NewStub(
+          grpc::CreateChannel(address, grpc::InsecureChannelCredentials()));
+      skerry::v1::RunRef ref;
+      ref.set_run_id(1);
+      skerry::v1::GetHistoryRequest hist;
+      hist.set_run_id(1);
+      hist.set_all_islands(true);
+      auto deadline = [] {
+        return std::chrono::system_clock::now() + std::chrono::seconds(30);
+      };
+      // Bounded by the run: the loop ends when the run has finished.
+      while (reading) {
+        {
+          grpc::ClientContext ctx;
+          ctx.set_deadline(deadline());
+          skerry::v1::ListRunsResponse out;
+          stub->ListRuns(&ctx, skerry::v1::ListRunsRequest(), &out);
+        }
+        {
+          grpc::ClientContext ctx;
+          ctx.set_deadline(deadline());
+          skerry::v1::GetRunResponse out;
+          stub->GetRun(&ctx, ref, &out);
+        }
+        {
+          grpc::ClientContext ctx;
+          ctx.set_deadline(deadline());
+          skerry::v1::GetHistoryResponse out;
+          stub->GetHistory(&ctx, hist, &out);
+        }
+        {
+          grpc::ClientContext ctx;
+          ctx.set_deadline(deadline());
+          skerry::v1::DigestResponse out;
+          stub->GetDigest(&ctx, ref, &out);
+        }
+        reads += 4;
+      }
+    });
+  }
   skerry::v1::GetRunResponse got;
   // Bounded: at most 60,000 polls of 5 ms.
   for (int polls = 0; polls < 60000; ++polls) {
@@ -193,8 +258,15 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
   f.seconds = absl::ToDoubleSeconds(absl::Now() - start);
   f.evaluations = got.run().evaluations();
   f.rate = static_cast<double>(f.evaluations) / std::max(1e-9, f.seconds);
+  reading = false;
+  for (auto& t : readers) t.join();
+  f.reads = reads;
   for (auto& w : workers) w->Stop();
   for (auto& t : threads) t.join();
+  {
+    absl::MutexLock l(&wire.mu);
+    f.report_ms = wire.report_ms;
+  }
   f.db_bytes = FileBytes(path) + FileBytes(path + "-wal");
   f.sent_bytes = wire.sent;
   f.received_bytes = wire.received;

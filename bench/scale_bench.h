@@ -14,6 +14,7 @@
 #include <functional>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "absl/status/statusor.h"
 #include "common/evaluator.h"
@@ -30,6 +31,10 @@ struct EndToEndOptions {
   uint32_t batch = 256;  // tasks per lease; 0: the worker's default
   // Each evaluation sleeps this long before the "zero" function (0: none).
   double eval_ms = 0;
+  // Threads that loop over ListRuns, GetRun, GetHistory and GetDigest of the
+  // run while it runs (the engine's and the store's read paths), as people
+  // watching a run do.
+  int readers = 0;
 };
 
 struct EndToEndFigures {
@@ -40,10 +45,17 @@ struct EndToEndFigures {
   uint64_t sent_bytes = 0;      // worker to coordinator, protobuf payload
   uint64_t received_bytes = 0;  // coordinator to worker, protobuf payload
   uint64_t peak_rss_kib = 0;    // this process's VmHWM afterwards
+  // Every Report RPC's latency as its worker saw it (send to status), in ms:
+  // the wait for the group commit that holds its results.
+  std::vector<double> report_ms;
+  uint64_t reads = 0;  // reader calls made (readers > 0)
 };
 
 // A real coordinator on loopback and real workers in this process.
 absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o);
+
+// The p-th quantile (0..1) of `v`, by rank; 0 for none.
+double Percentile(std::vector<double> v, double p);
 
 // The same evaluations as RunEndToEnd would make, on `threads` threads in
 // process (the sleep included): evaluations per second.

@@ -194,12 +194,40 @@ void FleetEfficiency(const BenchOptions& o, double ms, int population,
       load.c_str());
 }
 
+// Report latency as a worker sees it (the wait for the group commit that
+// holds its results), idle and while four readers loop over the run's list,
+// summary, history and digest: the engine's and the store's read paths.
+void ReportLatency(const BenchOptions& o) {
+  bench::EndToEndOptions e = EndToEnd(o);
+  e.workers = 2;
+  e.threads = 1;
+  e.batch = 16;
+  e.eval_ms = 1;
+  for (int readers : {0, 4}) {
+    e.readers = readers;
+    const std::string load = bench::LoadAverage();
+    absl::StatusOr<bench::EndToEndFigures> f = bench::RunEndToEnd(e);
+    if (!f.ok()) {
+      std::fprintf(stderr, "report latency: %s\n",
+                   f.status().ToString().c_str());
+      return;
+    }
+    std::printf(
+        "report (16 results, synced commit) with %d readers: p50 %.2f ms, "
+        "p99 %.2f ms over %zu reports; %.0f evaluations/s, %llu reads  [%s]\n",
+        readers, bench::Percentile(f->report_ms, 0.5),
+        bench::Percentile(f->report_ms, 0.99), f->report_ms.size(), f->rate,
+        static_cast<unsigned long long>(f->reads), load.c_str());
+  }
+}
+
 }  // namespace
 }  // namespace skerry
 
 int main(int argc, char** argv) {
   skerry::BenchOptions o;
   bool fleet = false;
+  bool report_latency = false;
   bool keep = false;
   int history_genomes = 0;
   for (int i = 1; i < argc; ++i) {
@@ -210,12 +238,16 @@ int main(int argc, char** argv) {
       std::puts(
           "Usage: skerry-bench [--population N] [--generations N] "
           "[--genome-length N] [--workers N] [--threads N] [--insert-rows N] "
-          "[--dir DIR] [--fleet] [--history-genomes N [--keep]]\n\nMeasures "
+          "[--dir DIR] [--fleet] [--report-latency] [--history-genomes N "
+          "[--keep]]\n\nMeasures "
           "raw SQLite genome inserts, end-to-end evaluations per second "
           "through a loopback coordinator and workers (with bytes stored and "
           "sent per evaluation and peak memory), and in-process evaluation, "
           "and prints the ratios. --fleet adds fleet efficiency at 2 and 20 "
-          "ms per evaluation; --history-genomes N builds a store with a "
+          "ms per evaluation; --report-latency adds the workers' Report "
+          "latency (p50, p99) idle and under four readers of the run "
+          "(list, show, history, digest); --history-genomes N builds a store "
+          "with a "
           "finished run of N genomes and measures result-commit latency idle "
           "and under four digest+history readers, then a coordinator's "
           "restart on it to its first answer (--keep keeps the file).");
@@ -238,6 +270,8 @@ int main(int argc, char** argv) {
                                    &o.insert_rows);
     } else if (a == "--fleet") {
       fleet = true;
+    } else if (a == "--report-latency") {
+      report_latency = true;
     } else if (a == "--keep") {
       keep = true;
     } else if (a == "--history-genomes" && has_value) {
@@ -300,6 +334,7 @@ int main(int argc, char** argv) {
     skerry::FleetEfficiency(o, 2, 200, 10);
     skerry::FleetEfficiency(o, 20, 100, 6);
   }
+  if (report_latency) skerry::ReportLatency(o);
   if (history_genomes > 0) {
     skerry::bench::LatencyOptions lo;
     lo.dir = o.dir;

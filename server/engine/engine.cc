@@ -266,6 +266,7 @@ absl::Status Engine::CheckPriority(uint32_t priority) {
 absl::Status Engine::SetPriority(int64_t run_id, uint32_t priority) {
   SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   absl::Status s = store_->SetRunPriority(
       run_id, static_cast<int32_t>(priority), clock_->WallMillis());
   if (!s.ok()) {
@@ -296,6 +297,7 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   std::vector<std::string> states;
   SKERRY_RETURN_IF_ERROR(SeedIslands(prepared, &genomes, &strategies, &states));
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   store::RunRecord rec;
   rec.name = prepared.name();
   rec.owner = std::move(owner);
@@ -365,6 +367,7 @@ absl::Status Engine::Resume(int64_t run_id) {
 absl::Status Engine::Transition(int64_t run_id, skerry::v1::RunState from,
                                 skerry::v1::RunState to, const char* verb) {
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   auto it = runs_.find(run_id);
   if (it == runs_.end() || it->second->record.state != from) {
     SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
@@ -387,6 +390,7 @@ absl::Status Engine::Transition(int64_t run_id, skerry::v1::RunState from,
 
 absl::Status Engine::Stop(int64_t run_id) {
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   auto it = runs_.find(run_id);
   if (it == runs_.end()) {
     SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
@@ -431,89 +435,39 @@ bool Engine::IdlePass() {
   return held && !write_problem_.ok();
 }
 
+void Engine::AwaitCommit() {
+  auto quiet = [this]()
+                   ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) { return !committing_; };
+  mu_.Await(absl::Condition(&quiet));
+}
+
 void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
                           const std::function<void()>& answer) {
   using Applied = AppliedResult;
-  absl::MutexLock l(&mu_);
   std::vector<Applied> applied;
   std::vector<int64_t> claimed;  // task ids
   std::vector<store::ValidationUpdate> validated;
   std::vector<ValidatedResult> validated_from;  // one for each of validated
   std::vector<ReportOutcome> outcomes(jobs.size());
-  for (size_t j = 0; j < jobs.size(); ++j) {
-    for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
-      // Metrics beyond their bounds make the attempt a failed one.
-      const absl::Status metrics =
-          r.error().empty() ? CheckMetrics(r.metrics()) : absl::OkStatus();
-      const bool failed =
-          !r.error().empty() || !std::isfinite(r.score()) || !metrics.ok();
-      auto reject = [&](const absl::Status& why) {
-        ++outcomes[j].ignored;
-        skerry::v1::RejectedResult* x = &outcomes[j].rejected.emplace_back();
-        x->set_task_id(r.task_id());
-        x->set_code(static_cast<uint32_t>(why.code()));
-        x->set_message(std::string(why.message()));
-      };
-      absl::Status why;
-      std::optional<scheduler::TaskInfo> info = queue_->Claim(
-          jobs[j]->worker_id, r.task_id(), r.attempt(), failed, &why);
-      if (!info.has_value()) {
-        reject(why);
-        continue;
-      }
-      if (info->kind == skerry::v1::TASK_VALIDATE) {
-        validated.push_back(ValidationOutcome(*info, r, failed));
-        validated_from.push_back({j, &r, *info});
-        claimed.push_back(info->task_id());
-        ++outcomes[j].accepted;
-        continue;
-      }
-      claimed.push_back(info->genome_id);
-      auto run_it = runs_.find(info->run_id);
-      Island* island = nullptr;
-      if (run_it != runs_.end() &&
-          info->island < run_it->second->islands.size()) {
-        island = &run_it->second->islands[info->island];
-      }
-      if (island == nullptr || island->generation != info->generation ||
-          island->pending.count(info->genome_id) == 0) {
-        // Not part of a live generation any more (the run ended): forget it.
-        queue_->Complete({info->genome_id});
-        claimed.pop_back();
-        reject(absl::NotFoundError(absl::StrCat(
-            "task ", r.task_id(), " belongs to a run that has ended")));
-        continue;
-      }
-      Run& run = *run_it->second;
-      store::ResultUpdate u;
-      u.genome_id = info->genome_id;
-      u.run_id = info->run_id;
-      // A result from a lease that an earlier coordinator handed out quotes
-      // that lease's attempt; this queue may not have counted it.
-      u.attempts = std::max({info->attempts, r.attempt(), 1u});
-      u.eval_seconds = r.eval_seconds();
-      if (failed) {
-        u.error =
-            metrics.ok() ? FailureText(r) : std::string(metrics.message());
-        u.state = info->attempts >= run.record.spec.max_attempts()
-                      ? skerry::v1::FAILED
-                      : skerry::v1::PENDING;
-      } else {
-        u.state = skerry::v1::EVALUATED;
-        u.score = r.score();
-        u.metrics.insert(r.metrics().begin(), r.metrics().end());
-      }
-      applied.push_back({j, &r, &run, info->island, info->slot,
-                         run.record.spec.max_attempts(), std::move(u)});
-      ++outcomes[j].accepted;
-    }
+  {
+    absl::MutexLock l(&mu_);
+    ClaimResults(jobs, &applied, &claimed, &validated, &validated_from,
+                 &outcomes);
+    committing_ = true;
   }
+  // The transaction is written and synced without the engine's lock, so that
+  // summaries, lists and watches are answered meanwhile. Nothing it relies on
+  // changes: every writer waits for committing_ to clear (AwaitCommit), and
+  // the islands change only on this thread. What a read may do meanwhile
+  // (mark a run damaged, which drops it) is checked for below.
   std::vector<store::ResultUpdate> updates;
   updates.reserve(applied.size());
   for (const Applied& a : applied) updates.push_back(a.update);
   absl::Status committed = updates.empty() && validated.empty()
                                ? absl::OkStatus()
                                : store_->CommitResults(updates, validated);
+  absl::MutexLock l(&mu_);
+  committing_ = false;
   if (!committed.ok() && !IsStorageTrouble(committed) &&
       !absl::IsDataLoss(committed)) {
     // Neither the disk nor damage: one result the store will not take must
@@ -532,7 +486,7 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
     if (absl::IsDataLoss(committed)) {
       // Damage, not a full disk: find the runs it is in and stop those.
       std::vector<int64_t> ids;
-      for (const Applied& a : applied) ids.push_back(a.run->record.id);
+      for (const Applied& a : applied) ids.push_back(a.update.run_id);
       std::sort(ids.begin(), ids.end());
       ids.erase(std::unique(ids.begin(), ids.end()), ids.end());
       std::vector<int64_t> damaged;
@@ -553,35 +507,7 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
       NoteWriteFailure(committed);
     }
   } else {
-    std::vector<int64_t> done, retry;
-    for (Applied& a : applied) {
-      Island& island = a.run->islands[a.island];
-      GenomeRecord& g = island.current[a.slot];
-      g.state = a.update.state;
-      g.score = a.update.score;
-      g.attempts = a.update.attempts;
-      g.error = a.update.error;
-      g.eval_seconds = a.update.eval_seconds;
-      if (g.state == skerry::v1::FAILED) a.run->last_error = g.error;
-      if (g.state == skerry::v1::PENDING) {
-        retry.push_back(g.id);
-      } else {
-        island.pending.erase(g.id);
-        ++a.run->record.evaluations;
-        done.push_back(g.id);
-      }
-    }
-    for (const store::ValidationUpdate& v : validated) {
-      const int64_t task = scheduler::kValidationTaskBase + v.id;
-      if (v.state == skerry::v1::VALIDATION_PENDING) {
-        retry.push_back(task);
-      } else {
-        validations_.erase(v.id);
-        done.push_back(task);
-      }
-    }
-    queue_->Complete(done);
-    queue_->Unclaim(retry);
+    KeepCommitted(applied, validated);
   }
   for (size_t j = 0; j < jobs.size(); ++j) {
     if (committed.ok()) {
@@ -604,7 +530,7 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
   if (!committed.ok()) return;
   // Breed what the batch completed before anyone else takes the lock.
   std::vector<int64_t> touched;
-  for (const Applied& a : applied) touched.push_back(a.run->record.id);
+  for (const Applied& a : applied) touched.push_back(a.update.run_id);
   std::sort(touched.begin(), touched.end());
   touched.erase(std::unique(touched.begin(), touched.end()), touched.end());
   for (int64_t id : touched) {
@@ -618,6 +544,122 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
     }
   }
   NotifyChange();
+}
+
+void Engine::ClaimResults(absl::Span<ReportJob* const> jobs,
+                          std::vector<AppliedResult>* applied,
+                          std::vector<int64_t>* claimed,
+                          std::vector<store::ValidationUpdate>* validated,
+                          std::vector<ValidatedResult>* validated_from,
+                          std::vector<ReportOutcome>* outcomes) {
+  for (size_t j = 0; j < jobs.size(); ++j) {
+    ReportOutcome& outcome = (*outcomes)[j];
+    for (const skerry::v1::TaskResult& r : *jobs[j]->results) {
+      // Metrics beyond their bounds make the attempt a failed one.
+      const absl::Status metrics =
+          r.error().empty() ? CheckMetrics(r.metrics()) : absl::OkStatus();
+      const bool failed =
+          !r.error().empty() || !std::isfinite(r.score()) || !metrics.ok();
+      auto reject = [&](const absl::Status& why) {
+        ++outcome.ignored;
+        skerry::v1::RejectedResult* x = &outcome.rejected.emplace_back();
+        x->set_task_id(r.task_id());
+        x->set_code(static_cast<uint32_t>(why.code()));
+        x->set_message(std::string(why.message()));
+      };
+      absl::Status why;
+      std::optional<scheduler::TaskInfo> info = queue_->Claim(
+          jobs[j]->worker_id, r.task_id(), r.attempt(), failed, &why);
+      if (!info.has_value()) {
+        reject(why);
+        continue;
+      }
+      if (info->kind == skerry::v1::TASK_VALIDATE) {
+        validated->push_back(ValidationOutcome(*info, r, failed));
+        validated_from->push_back({j, &r, *info});
+        claimed->push_back(info->task_id());
+        ++outcome.accepted;
+        continue;
+      }
+      auto run_it = runs_.find(info->run_id);
+      const Island* island = nullptr;
+      if (run_it != runs_.end() &&
+          info->island < run_it->second->islands.size()) {
+        island = &run_it->second->islands[info->island];
+      }
+      if (island == nullptr || island->generation != info->generation ||
+          island->pending.count(info->genome_id) == 0) {
+        // Not part of a live generation any more (the run ended): forget it.
+        queue_->Complete({info->genome_id});
+        reject(absl::NotFoundError(absl::StrCat(
+            "task ", r.task_id(), " belongs to a run that has ended")));
+        continue;
+      }
+      claimed->push_back(info->genome_id);
+      const Run& run = *run_it->second;
+      store::ResultUpdate u;
+      u.genome_id = info->genome_id;
+      u.run_id = info->run_id;
+      // A result from a lease that an earlier coordinator handed out quotes
+      // that lease's attempt; this queue may not have counted it.
+      u.attempts = std::max({info->attempts, r.attempt(), 1u});
+      u.eval_seconds = r.eval_seconds();
+      if (failed) {
+        u.error =
+            metrics.ok() ? FailureText(r) : std::string(metrics.message());
+        u.state = info->attempts >= run.record.spec.max_attempts()
+                      ? skerry::v1::FAILED
+                      : skerry::v1::PENDING;
+      } else {
+        u.state = skerry::v1::EVALUATED;
+        u.score = r.score();
+        u.metrics.insert(r.metrics().begin(), r.metrics().end());
+      }
+      applied->push_back({j, &r, info->island, info->generation, info->slot,
+                          run.record.spec.max_attempts(), std::move(u)});
+      ++outcome.accepted;
+    }
+  }
+}
+
+void Engine::KeepCommitted(
+    const std::vector<AppliedResult>& applied,
+    const std::vector<store::ValidationUpdate>& validated) {
+  std::vector<int64_t> done, retry;
+  for (const AppliedResult& a : applied) {
+    auto it = runs_.find(a.update.run_id);
+    // A read found the run damaged while the commit was written: the queue
+    // has dropped its tasks, and its cache is gone.
+    if (it == runs_.end()) continue;
+    Run& run = *it->second;
+    Island& island = run.islands[a.island];
+    if (island.generation != a.generation) continue;  // cannot happen
+    GenomeRecord& g = island.current[a.slot];
+    g.state = a.update.state;
+    g.score = a.update.score;
+    g.attempts = a.update.attempts;
+    g.error = a.update.error;
+    g.eval_seconds = a.update.eval_seconds;
+    if (g.state == skerry::v1::FAILED) run.last_error = g.error;
+    if (g.state == skerry::v1::PENDING) {
+      retry.push_back(g.id);
+    } else {
+      island.pending.erase(g.id);
+      ++run.record.evaluations;
+      done.push_back(g.id);
+    }
+  }
+  for (const store::ValidationUpdate& v : validated) {
+    const int64_t task = scheduler::kValidationTaskBase + v.id;
+    if (v.state == skerry::v1::VALIDATION_PENDING) {
+      retry.push_back(task);
+    } else {
+      validations_.erase(v.id);
+      done.push_back(task);
+    }
+  }
+  queue_->Complete(done);
+  queue_->Unclaim(retry);
 }
 
 std::string Engine::FailureText(const skerry::v1::TaskResult& r) {
@@ -953,9 +995,11 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::Summary(int64_t run_id) {
 }
 
 absl::StatusOr<std::vector<skerry::v1::RunSummary>> Engine::ListSummaries() {
-  absl::MutexLock l(&mu_);
+  // Read before the lock (from the read pool's snapshot): a long list does
+  // not hold up the committer's next batch.
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs,
                           store_->ListRuns());
+  absl::MutexLock l(&mu_);
   std::vector<skerry::v1::RunSummary> out;
   for (const store::RunRecord& r : runs) {
     if (!r.damage.ok()) MarkDamaged(r.id, r.damage, &r);

@@ -16,7 +16,12 @@
 // Results arrive from any number of Report calls. They are grouped
 // (group_commit.h): one committer thread takes every batch waiting, applies the
 // lot in one transaction (Store::CommitResults), and only then answers the
-// callers (a result is acknowledged only after it is committed). Completed
+// callers (a result is acknowledged only after it is committed). The engine's
+// lock is not held while that transaction is written and synced: the results
+// are claimed under it, committed without it, and kept in the cache under it
+// again; reads (summaries, lists, watches) go on meanwhile, and every writer
+// waits for the commit in flight (AwaitCommit), so nothing the commit relies
+// on changes under it. Completed
 // generations are then bred, each in a transaction of its own with the
 // strategy's new state (Store::CommitGeneration); a failed commit restores the
 // strategy to the state saved before it was told.
@@ -266,12 +271,14 @@ class Engine {
   // its own writes set it again (a write failed between the probe and the
   // work, as a busy lock does): worth another pass at once.
   bool IdlePass() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  // A claimed result of a report batch, on its way to the store.
+  // A claimed result of a report batch, on its way to the store. It names
+  // its island by index and generation, not by pointer: the run may be
+  // dropped (found damaged) while the commit is written without the lock.
   struct AppliedResult {
     size_t job;  // its report's index in the batch
     const skerry::v1::TaskResult* result;
-    Run* run;
     uint32_t island;
+    uint32_t generation;
     uint32_t slot;
     uint32_t max_attempts;  // the run's
     store::ResultUpdate update;
@@ -281,12 +288,28 @@ class Engine {
     const skerry::v1::TaskResult* result;
     scheduler::TaskInfo info;
   };
+  // ApplyReports in three steps: claims the batch's results under the lock,
+  // commits them without it, and keeps what was committed under it again.
+  void ClaimResults(absl::Span<ReportJob* const> jobs,
+                    std::vector<AppliedResult>* applied,
+                    std::vector<int64_t>* claimed,
+                    std::vector<store::ValidationUpdate>* validated,
+                    std::vector<ValidatedResult>* validated_from,
+                    std::vector<ReportOutcome>* outcomes)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  void KeepCommitted(const std::vector<AppliedResult>& applied,
+                     const std::vector<store::ValidationUpdate>& validated)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Every method that writes the store or changes a run waits here first, so
+  // that nothing a result commit in flight relies on changes under it.
+  void AwaitCommit() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // The batch's commit failed for a reason that is neither the storage's nor
   // damage (a bug, or a result the store will not hold: engine_salvage.cc).
-  // Commits each result alone instead; one that fails alone is stored as a
-  // failed attempt naming the error, and one that cannot be stored even so is
-  // refused (in `outcomes`) and queued again. On return `applied` and
-  // `validated` hold what was committed; the rest is unclaimed.
+  // Commits each result alone instead, under the lock (a rare path); one that
+  // fails alone is stored as a failed attempt naming the error, and one that
+  // cannot be stored even so is refused (in `outcomes`) and queued again. On
+  // return `applied` and `validated` hold what was committed; the rest is
+  // unclaimed.
   void SalvageBatch(std::vector<AppliedResult>* applied,
                     std::vector<store::ValidationUpdate>* validated,
                     std::vector<ValidatedResult>* validated_from,
@@ -376,6 +399,8 @@ class Engine {
     absl::Status why;
   };
   std::map<int64_t, Damaged> damaged_ ABSL_GUARDED_BY(mu_);
+  // A result commit is being written without mu_ (ApplyReports).
+  bool committing_ ABSL_GUARDED_BY(mu_) = false;
 
   std::unique_ptr<GroupCommit> committer_;
 };

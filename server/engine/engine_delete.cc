@@ -11,6 +11,7 @@ namespace skerry::engine {
 absl::StatusOr<store::Store::Deleted> Engine::Delete(
     int64_t run_id, const std::string& expected_content) {
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   if (auto it = runs_.find(run_id); it != runs_.end()) {
     return absl::FailedPreconditionError(absl::StrCat(
         "run ", run_id, " is ",

@@ -87,6 +87,7 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
   }
 
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   store::RunRecord rec;
   rec.name = spec.name();
   rec.owner = std::move(owner);

@@ -67,6 +67,7 @@ absl::StatusOr<std::vector<store::RunRecord>> Engine::SubmitSeries(
     genomes.push_back(std::move(g0));
   }
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   if (absl::Status s =
           store_->CreateSeries(series, &records, &genomes, &states);
       !s.ok()) {
@@ -81,6 +82,7 @@ absl::StatusOr<std::vector<store::RunRecord>> Engine::SubmitSeries(
 
 absl::Status Engine::Extend(int64_t run_id, const skerry::v1::StopSpec& stop) {
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   if (auto d = damaged_.find(run_id); d != damaged_.end()) return d->second.why;
   SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
   if (runs_.count(run_id) != 0 ||

@@ -106,6 +106,7 @@ void Engine::QueueChampionValidation(const Run& run,
 absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(
     int64_t genome_id, const std::string& requested_by) {
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
   SKERRY_ASSIGN_OR_RETURN(store::GenomeRecord genome,
                           store_->GetGenome(genome_id));
   const Run* active = nullptr;

@@ -4,13 +4,13 @@
 // One committer thread takes every batch waiting and has them applied together
 // by the `apply` callback: one store transaction, then `answer()` wakes every
 // caller, then whatever follows (the engine breeds what the batch completed,
-// still holding its lock, so a caller that takes that lock next sees it
-// done). A result is acknowledged only after the transaction that holds it
-// committed.
-// Between batches, and at least every `tick` when nothing arrives, the
-// committer runs `idle` (the engine retries what a failed write left undone
-// and applies wall-time limits); not once shutting down, so that a shutdown
-// does not wait for a failing disk.
+// holding its lock from before `answer()`, so a caller that takes that lock
+// next sees it done; the engine does not hold its lock across the
+// transaction itself). A result is acknowledged only after the transaction that
+// holds it committed. Between batches, and at least every `tick` when nothing
+// arrives, the committer runs `idle` (the engine retries what a failed write
+// left undone and applies wall-time limits); not once shutting down, so that a
+// shutdown does not wait for a failing disk.
 //
 // Thread safety: Submit and Shutdown from any thread; the callbacks run on the
 // committer thread only, never concurrently with each other. `answer` takes

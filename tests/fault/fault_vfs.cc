@@ -5,6 +5,7 @@
 #include <cstdlib>
 #include <cstring>
 #include <mutex>
+#include <utility>
 
 namespace skerry::testing {
 namespace {
@@ -47,6 +48,7 @@ int Truncate(sqlite3_file* f, sqlite3_int64 size) {
   return Real(f)->pMethods->xTruncate(Real(f), size);
 }
 int Sync(sqlite3_file* f, int flags) {
+  g_fault->RunSyncHook();
   if (int rc = g_fault->FaultFor(FaultVfs::Op::kSync); rc != SQLITE_OK)
     return rc;
   return Real(f)->pMethods->xSync(Real(f), flags);
@@ -236,6 +238,20 @@ void FaultVfs::Arm(FaultKind kind, int64_t nth, bool persistent) {
 }
 
 void FaultVfs::Disarm() { armed_.store(false); }
+
+void FaultVfs::SetSyncHook(std::function<void()> hook) {
+  std::lock_guard<std::mutex> l(hook_mu_);
+  sync_hook_ = std::move(hook);
+}
+
+void FaultVfs::RunSyncHook() {
+  std::function<void()> hook;
+  {
+    std::lock_guard<std::mutex> l(hook_mu_);
+    hook = sync_hook_;
+  }
+  if (hook) hook();
+}
 
 int FaultVfs::FaultFor(Op op) {
   if (!armed_.load()) return SQLITE_OK;

@@ -33,6 +33,8 @@
 
 #include <atomic>
 #include <cstdint>
+#include <functional>
+#include <mutex>
 #include <string>
 
 namespace skerry::testing {
@@ -59,6 +61,12 @@ class FaultVfs {
   // Faults injected since the last Arm.
   int64_t injected() const { return injected_.load(); }
 
+  // While set, every xSync of a file opened through this VFS calls `hook`
+  // first, on the syncing thread (a test holds a commit at its fsync this
+  // way). Empty: none. Any thread.
+  void SetSyncHook(std::function<void()> hook);
+  void RunSyncHook();
+
   // The io calls that may fail.
   enum class Op { kWrite, kSync, kTruncate, kLock };
   // Called by the io methods before forwarding: the SQLite error this call
@@ -74,6 +82,8 @@ class FaultVfs {
   std::atomic<bool> persistent_{false};
   std::atomic<int64_t> counted_{0};
   std::atomic<int64_t> injected_{0};
+  std::mutex hook_mu_;
+  std::function<void()> sync_hook_;  // guarded by hook_mu_
 };
 
 }  // namespace skerry::testing
