@@ -235,7 +235,7 @@ def figures(values):
     return "- | -"
 
 
-def command(args, default_seeds):
+def command(args):
     only = "".join(f" --only {k}" for k in args.only)
     return (f"nice -n 10 scripts/strategy-evidence --table {args.table} "
             f"--seeds {args.seeds} --budget {args.budget}{only}")
@@ -315,6 +315,12 @@ def main(args, skerry, write_doc):
         args.seeds = 20 if args.table == "without-velocities" else 10
     if args.budget is None:
         args.budget = 20000 if args.table == "without-velocities" else 100000
+    settings = (POLE_SETTINGS if args.table == "without-velocities" else
+                FUNCTION_SETTINGS)
+    for key in args.only:
+        if key not in [s[0] for s in settings]:
+            sys.exit(f"--only {key}: no such setting for --table {args.table} "
+                     f"(settings: {', '.join(s[0] for s in settings)})")
     start = time.monotonic()
     with tempfile.TemporaryDirectory() as workdir:
         if args.table == "without-velocities":
@@ -323,7 +329,7 @@ def main(args, skerry, write_doc):
             lines = functions(args, skerry, workdir)
     minutes = (time.monotonic() - start) / 60
     text = "\n".join(
-        [f"Command: `{command(args, 0)}` ({minutes:.1f} min on this machine, "
+        [f"Command: `{command(args)}` ({minutes:.1f} min on this machine, "
          f"2 in-process workers; {args.budget:,} evaluations per run).", ""] +
         lines) + "\n"
     if args.print:
