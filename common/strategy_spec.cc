@@ -1,5 +1,6 @@
 #include "common/strategy_spec.h"
 
+#include <algorithm>
 #include <cmath>
 
 #include "absl/strings/str_cat.h"
@@ -14,6 +15,12 @@ constexpr uint32_t kMinCmaPopulation = 4;
 constexpr uint32_t kMaxCmaPopulation = 100000;
 constexpr double kMaxSigma = 1e6;
 constexpr uint64_t kMaxCovarianceEntries = uint64_t{1} << 26;
+constexpr uint32_t kDefaultIpopFactor = 2;  // Auger & Hansen 2005
+constexpr uint32_t kMaxIpopFactor = 10;
+// BIPOP-CMA-ES (Hansen 2009, GECCO BBOB workshop) lets the population grow
+// through nine doublings (from memory).
+constexpr uint32_t kDefaultIpopIncreases = 9;
+constexpr uint32_t kMaxIpopIncreases = 30;
 
 const char* FieldOf(const RunSpec& spec) {
   return spec.strategy().kind_case() == StrategySpec::kSepCmaEs
@@ -62,6 +69,15 @@ void NormalizeStrategy(RunSpec* spec) {
   if (cma->population_size() == 0) {
     cma->set_population_size(DefaultCmaPopulation(spec->genome_length()));
   }
+  if (cma->has_ipop()) {
+    skerry::v1::IpopSpec* ipop = cma->mutable_ipop();
+    if (ipop->increase_factor() == 0) {
+      ipop->set_increase_factor(kDefaultIpopFactor);
+    }
+    if (!ipop->has_max_increases()) {
+      ipop->set_max_increases(kDefaultIpopIncreases);
+    }
+  }
   if (!cma->has_sigma()) {
     // Tutorial (Hansen 2016), Appendix A: with the optimum presumed in
     // [a, b]^n, start uniformly in the box with sigma = 0.3 (b - a).
@@ -99,6 +115,32 @@ absl::Status ValidateStrategy(const RunSpec& spec) {
         absl::StrCat(field, ".sigma: out of range (allowed: (0, ", kMaxSigma,
                      "]; got ", cma.sigma(), ")"));
   }
+  if (cma.has_ipop()) {
+    const skerry::v1::IpopSpec& ipop = cma.ipop();
+    if (ipop.increase_factor() < kDefaultIpopFactor ||
+        ipop.increase_factor() > kMaxIpopFactor) {
+      return absl::InvalidArgumentError(
+          absl::StrCat(field, ".ipop.increase_factor: out of range (allowed: [",
+                       kDefaultIpopFactor, ", ", kMaxIpopFactor, "]; got ",
+                       ipop.increase_factor(), ")"));
+    }
+    if (ipop.max_increases() > kMaxIpopIncreases) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          field, ".ipop.max_increases: out of range (allowed: [0, ",
+          kMaxIpopIncreases, "]; got ", ipop.max_increases(), ")"));
+    }
+    uint64_t largest = cma.population_size();
+    for (uint32_t k = 0; k < ipop.max_increases(); ++k) {
+      largest *= ipop.increase_factor();
+      if (largest > kMaxCmaPopulation) {
+        return absl::InvalidArgumentError(absl::StrCat(
+            field, ".ipop.max_increases: ", cma.population_size(), " x ",
+            ipop.increase_factor(), "^", ipop.max_increases(),
+            " samples per update is more than ", kMaxCmaPopulation,
+            "; lower max_increases, increase_factor or population_size"));
+      }
+    }
+  }
   if (StrategyOf(spec) == StrategyKind::kCmaEs) {
     // Two n x n matrices of doubles per island (covariance and eigenvectors):
     // at most 2^26 entries over all islands, 1 GiB.
@@ -120,6 +162,15 @@ absl::Status ValidateStrategy(const RunSpec& spec) {
         "genomes"));
   }
   return absl::OkStatus();
+}
+
+uint32_t CmaPopulationAfter(const skerry::v1::CmaEsSpec& cma,
+                            uint32_t restarts) {
+  uint32_t lambda = cma.population_size();
+  if (!cma.has_ipop()) return lambda;
+  const uint32_t k = std::min(restarts, cma.ipop().max_increases());
+  for (uint32_t i = 0; i < k; ++i) lambda *= cma.ipop().increase_factor();
+  return lambda;
 }
 
 }  // namespace skerry

@@ -33,6 +33,12 @@ absl::Status ValidateStrategy(const skerry::v1::RunSpec& spec);
 // The CMA-ES default population, 4 + floor(3 ln n) (Hansen 2016, Table 1).
 uint32_t DefaultCmaPopulation(uint32_t genome_length);
 
+// The samples of one update (lambda) after `restarts` restarts: the
+// population_size, times increase_factor^min(restarts, max_increases) with
+// IPOP. REQUIRES: `cma` validated.
+uint32_t CmaPopulationAfter(const skerry::v1::CmaEsSpec& cma,
+                            uint32_t restarts);
+
 }  // namespace skerry
 
 #endif  // SKERRY_COMMON_STRATEGY_SPEC_H_

@@ -7,13 +7,21 @@
 // search from the clamped points (repair, used as the new points: the bounds
 // become part of the problem; Hansen 2016, Appendix B.1, from memory). When a
 // stop criterion of the tutorial holds, the island starts a new search with
-// the same lambda and sigma0 from a new uniform start (stream (seed, island,
-// restart, kStart, 0)); restarts with an increasing population (IPOP) are not
-// done yet.
+// sigma0 from a new uniform start (stream (seed, island, restart, kStart, 0)):
+// with the same lambda, or with IPOP (Auger & Hansen 2005) with lambda times
+// the increase factor, up to max_increases times.
+//
+// An island's generation is always population_size (lambda_0) genomes, so the
+// engine, the store and the budget see a fixed population. An update of a
+// search whose lambda is lambda_0 x f^k spans f^k generations: Tell holds the
+// samples of the generations told so far (saved in the state) and updates the
+// search when it has lambda of them. Every generation of the update samples
+// the same distribution, each from its own streams.
 //
 // Migration: a migrant better than every sample of the completed generation
 // becomes the mean of the search (step size and covariance kept); other
-// migrants are ignored. A sample's parent links are empty (origin SAMPLED).
+// migrants, and migrants that arrive in a generation that does not complete
+// an update, are ignored. A sample's parent links are empty (origin SAMPLED).
 #include "server/engine/cma_strategy.h"
 
 #include <algorithm>
@@ -54,6 +62,8 @@ class CmaStrategy : public Strategy {
   absl::StatusOr<std::vector<GenomeRecord>> Start() override {
     restarts_ = 0;
     last_stop_.clear();
+    held_genes_.clear();
+    held_values_.clear();
     search_ = NewSearch(0);
     generation_ = 0;
     return Samples();
@@ -65,11 +75,11 @@ class CmaStrategy : public Strategy {
       return absl::FailedPreconditionError(
           absl::StrCat("island ", island_, ": told before started"));
     }
-    const int lambda = search_->params().lambda;
-    if (completed.size() != static_cast<size_t>(lambda)) {
+    const uint32_t batch = CmaSpecOf(spec_).population_size();
+    if (completed.size() != batch) {
       return absl::InvalidArgumentError(
           absl::StrCat("island ", island_, " generation ", generation_, ": ",
-                       completed.size(), " samples, expected ", lambda));
+                       completed.size(), " samples, expected ", batch));
     }
     const bool maximize = spec_.objective() == skerry::v1::MAXIMIZE;
     auto value = [maximize](const GenomeRecord& g) {
@@ -78,16 +88,26 @@ class CmaStrategy : public Strategy {
       }
       return maximize ? -g.score : g.score;
     };
-    std::vector<Eigen::VectorXd> points;
-    std::vector<double> values;
-    double best = std::numeric_limits<double>::infinity();
     for (const GenomeRecord& g : completed) {
-      points.push_back(Eigen::Map<const Eigen::VectorXd>(
-          g.genes.data(), static_cast<Eigen::Index>(g.genes.size())));
-      values.push_back(value(g));
-      best = std::min(best, values.back());
+      held_genes_.insert(held_genes_.end(), g.genes.begin(), g.genes.end());
+      held_values_.push_back(value(g));
     }
-    search_->Tell(points, values);
+    generation_ = completed.front().generation + 1;
+    const int lambda = search_->params().lambda;
+    if (held_values_.size() < static_cast<size_t>(lambda)) {
+      return absl::OkStatus();  // IPOP: the update needs more generations
+    }
+    const int n = search_->params().n;
+    std::vector<Eigen::VectorXd> points;
+    double best = std::numeric_limits<double>::infinity();
+    for (int k = 0; k < lambda; ++k) {
+      points.push_back(Eigen::Map<const Eigen::VectorXd>(
+          held_genes_.data() + static_cast<size_t>(k) * n, n));
+      best = std::min(best, held_values_[k]);
+    }
+    search_->Tell(points, held_values_);
+    held_genes_.clear();
+    held_values_.clear();
     // A better migrant moves the mean; the first of the best wins ties.
     const GenomeRecord* better = nullptr;
     for (const GenomeRecord* m : migrants) {
@@ -112,7 +132,6 @@ class CmaStrategy : public Strategy {
       last_stop_ = stop;
       search_ = NewSearch(restarts_);
     }
-    generation_ = completed.front().generation + 1;
     return absl::OkStatus();
   }
 
@@ -131,6 +150,8 @@ class CmaStrategy : public Strategy {
     if (search_.has_value()) search_->ToProto(c->mutable_search());
     c->set_restarts(restarts_);
     c->set_last_stop(last_stop_);
+    for (double v : held_genes_) c->add_held_genes(v);
+    for (double v : held_values_) c->add_held_values(v);
     return s;
   }
 
@@ -151,7 +172,21 @@ class CmaStrategy : public Strategy {
       return absl::InvalidArgumentError(
           absl::StrCat("island ", island_, ": ", search.status().message()));
     }
+    const uint32_t batch = CmaSpecOf(spec_).population_size();
+    const size_t held = static_cast<size_t>(c.held_values_size());
+    if (c.search().lambda() !=
+            CmaPopulationAfter(CmaSpecOf(spec_), c.restarts()) ||
+        held % batch != 0 || held >= c.search().lambda() ||
+        static_cast<size_t>(c.held_genes_size()) !=
+            held * spec_.genome_length()) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          "island ", island_, ": the saved CMA-ES state's population (",
+          c.search().lambda(), " after ", c.restarts(), " restarts, ", held,
+          " samples held) does not fit the spec"));
+    }
     search_ = std::move(*search);
+    held_genes_.assign(c.held_genes().begin(), c.held_genes().end());
+    held_values_.assign(c.held_values().begin(), c.held_values().end());
     restarts_ = c.restarts();
     last_stop_ = c.last_stop();
     generation_ = state.generation();
@@ -168,16 +203,18 @@ class CmaStrategy : public Strategy {
     for (uint32_t i = 0; i < n; ++i) {
       mean[i] = rng.Uniform(spec_.init_lower(), spec_.init_upper());
     }
-    return CmaEs(CmaParameters::Defaults(static_cast<int>(n),
-                                         static_cast<int>(cs.population_size()),
-                                         separable_),
-                 std::move(mean), cs.sigma());
+    return CmaEs(
+        CmaParameters::Defaults(
+            static_cast<int>(n),
+            static_cast<int>(CmaPopulationAfter(cs, restart)), separable_),
+        std::move(mean), cs.sigma());
   }
 
   std::vector<GenomeRecord> Samples() const {
     const int n = search_->params().n;
     std::vector<GenomeRecord> out;
-    for (int k = 0; k < search_->params().lambda; ++k) {
+    const int batch = static_cast<int>(CmaSpecOf(spec_).population_size());
+    for (int k = 0; k < batch; ++k) {
       RandomStream rng =
           Stream(spec_, island_, generation_, StreamPurpose::kSample,
                  static_cast<uint32_t>(k));
@@ -205,6 +242,8 @@ class CmaStrategy : public Strategy {
   std::optional<CmaEs> search_;
   uint32_t restarts_ = 0;
   std::string last_stop_;
+  std::vector<double> held_genes_;  // IPOP: see the top of this file
+  std::vector<double> held_values_;
   uint32_t generation_ = 0;
 };
 

@@ -14,11 +14,14 @@
 #include <ostream>
 #include <random>
 #include <string>
+#include <utility>
 
+#include "absl/strings/escaping.h"
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "gtest/gtest.h"
+#include "skerry/v1/strategy.pb.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
 
@@ -62,6 +65,44 @@ strategy { KIND { population_size: 10 sigma: 100 } }
 islands { count: 4 topology: RING interval: 4 migrants: 1 }
 stop { max_generations: GENERATIONS }
 )";
+
+// IPOP-CMA-ES: four islands of 5 samples on Rastrigin in 2 dimensions, where
+// each island's first search ends (TolFun) after 100 to 230 generations; the
+// restart doubles its population, so an update then spans 2 generations and
+// the later kills also land inside updates whose samples the saved state
+// holds.
+constexpr char kIpopSpec[] = R"(
+name: "crash-loop-ipop"
+seed: 99174
+genome_length: 2
+evaluator { builtin { function: "rastrigin" } }
+lower_bound: -5.12
+upper_bound: 5.12
+init_lower: -5.12
+init_upper: 5.12
+strategy { cma_es { population_size: 5 ipop { } } }
+islands { count: 4 topology: RING interval: 4 migrants: 1 }
+stop { max_generations: GENERATIONS }
+)";
+
+// The largest restart count of any island's stored strategy state (-1 when
+// unreadable), and the population its search has then.
+std::pair<int, int> MostRestarts(const std::string& db) {
+  std::pair<int, int> most = {-1, 0};
+  for (int island = 0; island < kIslands; ++island) {
+    const std::string bytes = absl::HexStringToBytes(QueryText(
+        db, absl::StrCat("SELECT hex(state) FROM strategy_states WHERE "
+                         "run_id = 1 AND island = ",
+                         island)));
+    skerry::v1::StrategyState state;
+    if (!state.ParseFromString(bytes)) return {-1, 0};
+    const int restarts = static_cast<int>(state.cma_es().restarts());
+    if (restarts > most.first) {
+      most = {restarts, static_cast<int>(state.cma_es().search().lambda())};
+    }
+  }
+  return most;
+}
 
 struct LoopCase {
   const char* name;
@@ -242,6 +283,12 @@ TEST_P(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
             absl::StrCat(kIslands * kPopulation * kGenerations));
   EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE eval_state = 1"),
             "0");
+  if (std::string(param.name) == "ipop_cma_es") {
+    // The case is only worth its time if the population grew.
+    const auto [restarts, lambda] = MostRestarts(db);
+    EXPECT_GE(restarts, 1);
+    EXPECT_GE(lambda, 10);
+  }
 }
 
 // The GA with the kills CI has always made; each evolution strategy with
@@ -250,7 +297,8 @@ INSTANTIATE_TEST_SUITE_P(
     EveryStrategy, CrashLoopTest,
     ::testing::Values(LoopCase{"ga", kSpec, "", 20, 20},
                       LoopCase{"cma_es", kCmaSpec, "cma_es", 10, 8},
-                      LoopCase{"sep_cma_es", kCmaSpec, "sep_cma_es", 10, 8}),
+                      LoopCase{"sep_cma_es", kCmaSpec, "sep_cma_es", 10, 8},
+                      LoopCase{"ipop_cma_es", kIpopSpec, "", 5, 8}),
     [](const ::testing::TestParamInfo<LoopCase>& param_info) {
       return std::string(param_info.param.name);
     });
