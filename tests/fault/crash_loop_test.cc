@@ -63,6 +63,18 @@ islands { count: 4 topology: RING interval: 4 migrants: 1 }
 stop { max_generations: GENERATIONS }
 )";
 
+// The natural ES: four islands of 5 mirrored pairs with weight decay, a
+// better migrant becoming an island's centre.
+constexpr char kNaturalEsSpec[] = R"(
+name: "crash-loop-natural-es"
+seed: 99175
+genome_length: 8
+evaluator { builtin { function: "griewank" } }
+strategy { KIND { population_size: 10 sigma: 2 learning_rate: 5 weight_decay: 0.001 } }
+islands { count: 4 topology: RING interval: 4 migrants: 1 }
+stop { max_generations: GENERATIONS }
+)";
+
 struct LoopCase {
   const char* name;
   const char* spec;
@@ -250,7 +262,9 @@ INSTANTIATE_TEST_SUITE_P(
     EveryStrategy, CrashLoopTest,
     ::testing::Values(LoopCase{"ga", kSpec, "", 20, 20},
                       LoopCase{"cma_es", kCmaSpec, "cma_es", 10, 8},
-                      LoopCase{"sep_cma_es", kCmaSpec, "sep_cma_es", 10, 8}),
+                      LoopCase{"sep_cma_es", kCmaSpec, "sep_cma_es", 10, 8},
+                      LoopCase{"natural_es", kNaturalEsSpec, "natural_es", 10,
+                               8}),
     [](const ::testing::TestParamInfo<LoopCase>& param_info) {
       return std::string(param_info.param.name);
     });
