@@ -24,16 +24,17 @@ namespace skerry {
 // What a stream is for. Values are part of the reproducibility contract: never
 // renumber them.
 enum class StreamPurpose : uint16_t {
-  kSeedGenes = 1,   // generation 0 genes, per slot
-  kSelection = 2,   // the mating pool of a generation, slot 0
-  kBreed = 3,       // crossover and mutation of one child, per slot
-  kImmigrant = 4,   // genes of a random immigrant, per slot
-  kMigration = 5,   // emigrant choice and replacement, slot = source island
-  kEvalSeed = 6,    // the seed handed to the evaluator, per slot
-  kTopology = 7,    // random topology of a migration epoch, slot 0
-  kValidation = 8,  // the seed of held-out validation case `slot`
-  kSample = 9,      // an ES sample's standard-normal vector, per slot
-  kStart = 10,      // an ES search's start (generation = restart number)
+  kSeedGenes = 1,      // generation 0 genes, per slot
+  kSelection = 2,      // the mating pool of a generation, slot 0
+  kBreed = 3,          // crossover and mutation of one child, per slot
+  kImmigrant = 4,      // genes of a random immigrant, per slot
+  kMigration = 5,      // emigrant choice and replacement, slot = source island
+  kEvalSeed = 6,       // the seed handed to the evaluator, per slot
+  kTopology = 7,       // random topology of a migration epoch, slot 0
+  kValidation = 8,     // the seed of held-out validation case `slot`
+  kSample = 9,         // an ES sample's standard-normal vector, per slot
+  kStart = 10,         // an ES search's start (generation = restart number)
+  kPerturbation = 11,  // natural ES: pair `slot`'s perturbation vector
 };
 
 struct StreamKey {

@@ -548,9 +548,7 @@ uint32_t IslandPopulation(const RunSpec& spec, uint32_t island) {
   if (island < static_cast<uint32_t>(spec.islands().population_sizes_size())) {
     return spec.islands().population_sizes(static_cast<int>(island));
   }
-  if (StrategyOf(spec) != StrategyKind::kGa) {
-    return CmaSpecOf(spec).population_size();
-  }
+  if (StrategyOf(spec) != StrategyKind::kGa) return EsPopulation(spec);
   return spec.ga().population_size();
 }
 

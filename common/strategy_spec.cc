@@ -2,8 +2,10 @@
 
 #include <algorithm>
 #include <cmath>
+#include <string>
 
 #include "absl/strings/str_cat.h"
+#include "common/status_macros.h"
 
 namespace skerry {
 namespace {
@@ -21,11 +23,73 @@ constexpr uint32_t kMaxIpopFactor = 10;
 // through nine doublings (from memory).
 constexpr uint32_t kDefaultIpopIncreases = 9;
 constexpr uint32_t kMaxIpopIncreases = 30;
+constexpr uint32_t kMinNaturalEsPopulation = 2;
 
 const char* FieldOf(const RunSpec& spec) {
-  return spec.strategy().kind_case() == StrategySpec::kSepCmaEs
-             ? "strategy.sep_cma_es"
-             : "strategy.cma_es";
+  switch (spec.strategy().kind_case()) {
+    case StrategySpec::kSepCmaEs:
+      return "strategy.sep_cma_es";
+    case StrategySpec::kNaturalEs:
+      return "strategy.natural_es";
+    default:
+      return "strategy.cma_es";
+  }
+}
+
+// Defaults scaled by the initial range's width, as CMA-ES's sigma is: with
+// width 2 ([-1, 1], network weights) sigma 0.04 and learning rate 0.02, near
+// Salimans et al. 2017's sigma 0.02 and Adam step 0.01 for networks (from
+// memory). Adam's betas and epsilon: Kingma & Ba 2014, Algorithm 1.
+void NormalizeNaturalEs(const RunSpec& spec, skerry::v1::NaturalEsSpec* es) {
+  if (es->population_size() == 0) {
+    es->set_population_size(DefaultNaturalEsPopulation(spec.genome_length()));
+  }
+  const double width = spec.init_upper() - spec.init_lower();
+  const bool scaled = width > 0 && std::isfinite(width);
+  if (!es->has_sigma() && scaled) es->set_sigma(0.02 * width);
+  if (!es->has_learning_rate() && scaled) es->set_learning_rate(0.01 * width);
+  if (!es->has_beta1()) es->set_beta1(0.9);
+  if (!es->has_beta2()) es->set_beta2(0.999);
+  if (!es->has_epsilon()) es->set_epsilon(1e-8);
+}
+
+// A value in (low, high], [low, high) or [low, high], by the flags.
+absl::Status CheckEsRange(const std::string& field, double v, double low,
+                          bool low_open, double high, bool high_open) {
+  const bool ok = std::isfinite(v) && (low_open ? v > low : v >= low) &&
+                  (high_open ? v < high : v <= high);
+  if (ok) return absl::OkStatus();
+  return absl::InvalidArgumentError(
+      absl::StrCat("strategy.natural_es.", field,
+                   ": out of range (allowed: ", low_open ? "(" : "[", low, ", ",
+                   high, high_open ? ")" : "]", "; got ", v, ")"));
+}
+
+absl::Status ValidateNaturalEs(const RunSpec& spec) {
+  const skerry::v1::NaturalEsSpec& es = spec.strategy().natural_es();
+  if (es.population_size() < kMinNaturalEsPopulation ||
+      es.population_size() > kMaxCmaPopulation) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "strategy.natural_es.population_size: out of range (allowed: [",
+        kMinNaturalEsPopulation, ", ", kMaxCmaPopulation, "]; got ",
+        es.population_size(), ")"));
+  }
+  if (es.population_size() % 2 != 0) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "strategy.natural_es.population_size: must be even (samples come in "
+        "mirrored pairs); got ",
+        es.population_size()));
+  }
+  SKERRY_RETURN_IF_ERROR(
+      CheckEsRange("sigma", es.sigma(), 0, true, kMaxSigma, false));
+  SKERRY_RETURN_IF_ERROR(CheckEsRange("learning_rate", es.learning_rate(), 0,
+                                      true, kMaxSigma, false));
+  SKERRY_RETURN_IF_ERROR(CheckEsRange("beta1", es.beta1(), 0, false, 1, true));
+  SKERRY_RETURN_IF_ERROR(CheckEsRange("beta2", es.beta2(), 0, false, 1, true));
+  SKERRY_RETURN_IF_ERROR(
+      CheckEsRange("epsilon", es.epsilon(), 0, true, 1, false));
+  return CheckEsRange("weight_decay", es.weight_decay(), 0, false, kMaxSigma,
+                      false);
 }
 
 }  // namespace
@@ -36,6 +100,8 @@ StrategyKind StrategyOf(const RunSpec& spec) {
       return StrategyKind::kCmaEs;
     case StrategySpec::kSepCmaEs:
       return StrategyKind::kSepCmaEs;
+    case StrategySpec::kNaturalEs:
+      return StrategyKind::kNaturalEs;
     default:
       return StrategyKind::kGa;
   }
@@ -45,6 +111,20 @@ const skerry::v1::CmaEsSpec& CmaSpecOf(const RunSpec& spec) {
   return spec.strategy().kind_case() == StrategySpec::kSepCmaEs
              ? spec.strategy().sep_cma_es()
              : spec.strategy().cma_es();
+}
+
+const skerry::v1::NaturalEsSpec& NaturalEsSpecOf(const RunSpec& spec) {
+  return spec.strategy().natural_es();
+}
+
+uint32_t EsPopulation(const RunSpec& spec) {
+  return StrategyOf(spec) == StrategyKind::kNaturalEs
+             ? NaturalEsSpecOf(spec).population_size()
+             : CmaSpecOf(spec).population_size();
+}
+
+uint32_t DefaultNaturalEsPopulation(uint32_t genome_length) {
+  return 2 * DefaultCmaPopulation(genome_length);
 }
 
 uint32_t DefaultCmaPopulation(uint32_t genome_length) {
@@ -63,6 +143,10 @@ void NormalizeStrategy(RunSpec* spec) {
     return;
   }
   if (st->kind_case() == StrategySpec::kGa) return;  // both set: refused later
+  if (st->kind_case() == StrategySpec::kNaturalEs) {
+    NormalizeNaturalEs(*spec, st->mutable_natural_es());
+    return;
+  }
   skerry::v1::CmaEsSpec* cma = st->kind_case() == StrategySpec::kSepCmaEs
                                    ? st->mutable_sep_cma_es()
                                    : st->mutable_cma_es();
@@ -102,6 +186,15 @@ absl::Status ValidateStrategy(const RunSpec& spec) {
     return absl::InvalidArgumentError(absl::StrCat(
         "islands.population_sizes: per-island sizes are for the GA; set ",
         field, ".population_size"));
+  }
+  if (spec.evaluator().noisy()) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "evaluator.noisy: ", field,
+        " re-evaluates every sample anyway; noisy is for the GA's carried-over "
+        "genomes"));
+  }
+  if (StrategyOf(spec) == StrategyKind::kNaturalEs) {
+    return ValidateNaturalEs(spec);
   }
   const skerry::v1::CmaEsSpec& cma = CmaSpecOf(spec);
   if (cma.population_size() < kMinCmaPopulation ||
@@ -154,12 +247,6 @@ absl::Status ValidateStrategy(const RunSpec& spec) {
           " (allowed: n x n x islands up to ", kMaxCovarianceEntries,
           "); use strategy.sep_cma_es, whose cost grows with n"));
     }
-  }
-  if (spec.evaluator().noisy()) {
-    return absl::InvalidArgumentError(absl::StrCat(
-        "evaluator.noisy: ", field,
-        " re-evaluates every sample anyway; noisy is for the GA's carried-over "
-        "genomes"));
   }
   return absl::OkStatus();
 }

@@ -14,16 +14,24 @@
 
 namespace skerry {
 
-enum class StrategyKind { kGa, kCmaEs, kSepCmaEs };
+enum class StrategyKind { kGa, kCmaEs, kSepCmaEs, kNaturalEs };
 
 StrategyKind StrategyOf(const skerry::v1::RunSpec& spec);
 
 // CMA-ES or sep-CMA-ES parameters; REQUIRES: StrategyOf(spec) is one of them.
 const skerry::v1::CmaEsSpec& CmaSpecOf(const skerry::v1::RunSpec& spec);
 
+// Natural-gradient ES parameters; REQUIRES: StrategyOf(spec) is kNaturalEs.
+const skerry::v1::NaturalEsSpec& NaturalEsSpecOf(
+    const skerry::v1::RunSpec& spec);
+
+// Samples per generation of an island of an evolution strategy (CMA-ES
+// lambda, or the natural ES's population); REQUIRES: not the GA.
+uint32_t EsPopulation(const skerry::v1::RunSpec& spec);
+
 // Moves `strategy.ga` to the top-level `ga` (one form for the GA, so stored
-// GA specs mean what they meant); fills the CMA-ES defaults. Needs
-// genome_length and the initial range normalised first.
+// GA specs mean what they meant); fills the CMA-ES and natural ES defaults.
+// Needs genome_length and the initial range normalised first.
 void NormalizeStrategy(skerry::v1::RunSpec* spec);
 
 // The strategy's own fields and the combinations a run cannot have, each
@@ -38,6 +46,10 @@ uint32_t DefaultCmaPopulation(uint32_t genome_length);
 // IPOP. REQUIRES: `cma` validated.
 uint32_t CmaPopulationAfter(const skerry::v1::CmaEsSpec& cma,
                             uint32_t restarts);
+
+// The natural ES's default: 2 x DefaultCmaPopulation, as many mirrored pairs
+// as CMA-ES has samples.
+uint32_t DefaultNaturalEsPopulation(uint32_t genome_length);
 
 }  // namespace skerry
 

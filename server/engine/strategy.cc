@@ -6,6 +6,7 @@
 #include "common/strategy_spec.h"
 #include "server/engine/breeder.h"
 #include "server/engine/cma_strategy.h"
+#include "server/engine/natural_es_strategy.h"
 
 namespace skerry::engine {
 namespace {
@@ -86,8 +87,14 @@ class GaStrategy : public Strategy {
 
 absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
     const skerry::v1::RunSpec& spec, uint32_t island) {
-  if (StrategyOf(spec) != StrategyKind::kGa) {
-    return MakeCmaStrategy(spec, island);
+  switch (StrategyOf(spec)) {
+    case StrategyKind::kCmaEs:
+    case StrategyKind::kSepCmaEs:
+      return MakeCmaStrategy(spec, island);
+    case StrategyKind::kNaturalEs:
+      return MakeNaturalEsStrategy(spec, island);
+    case StrategyKind::kGa:
+      break;
   }
   return std::make_unique<GaStrategy>(spec, island);
 }

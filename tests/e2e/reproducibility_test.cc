@@ -139,7 +139,7 @@ TEST_F(ReproducibilityTest, DigestIsTheSameWhateverTheFleet) {
 // Every evolution strategy: the same digest with one worker, three workers of
 // two threads, and `skerry local`.
 TEST_F(ReproducibilityTest, EveryStrategysDigestIsTheSameWhateverTheFleet) {
-  for (const std::string kind : {"cma_es", "sep_cma_es"}) {
+  for (const std::string kind : {"cma_es", "sep_cma_es", "natural_es"}) {
     SCOPED_TRACE(kind);
     std::string text = kStrategySpec;
     text.replace(text.find("KIND"), 4, kind);
@@ -153,9 +153,10 @@ TEST_F(ReproducibilityTest, EveryStrategysDigestIsTheSameWhateverTheFleet) {
                     dir_.File(kind + "-local.db")});
     ASSERT_EQ(local.exit_code, 0) << local.output;
     EXPECT_EQ(DigestIn(local.output), one) << "skerry local\n" << local.output;
-    // 2 islands x 25 generations of the default 4 + floor(3 ln 6) = 9.
+    // 2 islands x 25 generations of the default 4 + floor(3 ln 6) = 9
+    // (the natural ES: twice as many, 9 mirrored pairs).
     EXPECT_EQ(testing::ReadGenomes(db_of_[kind + "-one"], 1).size(),
-              2u * 25u * 9u);
+              2u * 25u * (kind == "natural_es" ? 18u : 9u));
     CommandResult check =
         RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_of_[kind + "-one"]});
     EXPECT_EQ(check.exit_code, 0) << check.output;

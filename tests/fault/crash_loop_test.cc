@@ -85,6 +85,18 @@ islands { count: 4 topology: RING interval: 4 migrants: 1 }
 stop { max_generations: GENERATIONS }
 )";
 
+// The natural ES: four islands of 5 mirrored pairs with weight decay, a
+// better migrant becoming an island's centre.
+constexpr char kNaturalEsSpec[] = R"(
+name: "crash-loop-natural-es"
+seed: 99175
+genome_length: 8
+evaluator { builtin { function: "griewank" } }
+strategy { KIND { population_size: 10 sigma: 2 learning_rate: 5 weight_decay: 0.001 } }
+islands { count: 4 topology: RING interval: 4 migrants: 1 }
+stop { max_generations: GENERATIONS }
+)";
+
 // The largest restart count of any island's stored strategy state (-1 when
 // unreadable), and the population its search has then.
 std::pair<int, int> MostRestarts(const std::string& db) {
@@ -298,7 +310,9 @@ INSTANTIATE_TEST_SUITE_P(
     ::testing::Values(LoopCase{"ga", kSpec, "", 20, 20},
                       LoopCase{"cma_es", kCmaSpec, "cma_es", 10, 8},
                       LoopCase{"sep_cma_es", kCmaSpec, "sep_cma_es", 10, 8},
-                      LoopCase{"ipop_cma_es", kIpopSpec, "", 5, 8}),
+                      LoopCase{"ipop_cma_es", kIpopSpec, "", 5, 8},
+                      LoopCase{"natural_es", kNaturalEsSpec, "natural_es", 10,
+                               8}),
     [](const ::testing::TestParamInfo<LoopCase>& param_info) {
       return std::string(param_info.param.name);
     });

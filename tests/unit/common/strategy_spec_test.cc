@@ -49,6 +49,34 @@ TEST(StrategySpecTest, CmaDefaultsFollowTheTutorial) {
   EXPECT_EQ(DefaultCmaPopulation(100), 17u);  // 4 + floor(13.8155)
 }
 
+// Defaults: 2 x (4 + floor(3 ln 10)) = 20 samples, 10 mirrored pairs; sigma
+// 0.02 and learning rate 0.01 of sphere's initial width 10.24 (Jamil & Yang
+// 2013); Adam's beta1 0.9, beta2 0.999, epsilon 1e-8 (Kingma & Ba 2014,
+// Algorithm 1); no weight decay.
+TEST(StrategySpecTest, NaturalEsDefaults) {
+  absl::StatusOr<skerry::v1::RunSpec> spec =
+      Prepare("strategy { natural_es { } }");
+  ASSERT_TRUE(spec.ok()) << spec.status();
+  EXPECT_EQ(StrategyOf(*spec), StrategyKind::kNaturalEs);
+  const skerry::v1::NaturalEsSpec& es = spec->strategy().natural_es();
+  EXPECT_EQ(es.population_size(), 20u);
+  EXPECT_DOUBLE_EQ(es.sigma(), 0.2048);
+  EXPECT_DOUBLE_EQ(es.learning_rate(), 0.1024);
+  EXPECT_EQ(es.beta1(), 0.9);
+  EXPECT_EQ(es.beta2(), 0.999);
+  EXPECT_EQ(es.epsilon(), 1e-8);
+  EXPECT_EQ(es.weight_decay(), 0.0);
+  EXPECT_EQ(IslandPopulation(*spec, 0), 20u);
+  EXPECT_FALSE(spec->has_ga());
+  // Set values stay; beta1 0 (no momentum) is allowed.
+  absl::StatusOr<skerry::v1::RunSpec> set = Prepare(
+      "strategy { natural_es { population_size: 2 sigma: 0.5 beta1: 0 } }");
+  ASSERT_TRUE(set.ok()) << set.status();
+  EXPECT_EQ(set->strategy().natural_es().population_size(), 2u);
+  EXPECT_EQ(set->strategy().natural_es().sigma(), 0.5);
+  EXPECT_EQ(set->strategy().natural_es().beta1(), 0.0);
+}
+
 TEST(StrategySpecTest, BadCombinationsNameTheField) {
   struct Case {
     std::string extra;
@@ -66,6 +94,29 @@ TEST(StrategySpecTest, BadCombinationsNameTheField) {
       {"strategy { cma_es { } } islands { count: 2 population_sizes: [8, 9] }",
        "islands.population_sizes: per-island sizes are for the GA"},
       {"strategy { cma_es { } }", "evaluator.noisy", true},
+      {"strategy { natural_es { } }", "evaluator.noisy", true},
+      {"ga { population_size: 10 } strategy { natural_es { } }",
+       "ga: set beside strategy.natural_es"},
+      {"strategy { natural_es { population_size: 7 } }",
+       "strategy.natural_es.population_size: must be even"},
+      {"strategy { natural_es { population_size: 200000 } }",
+       "strategy.natural_es.population_size: out of range"},
+      {"strategy { natural_es { sigma: 0 } }",
+       "strategy.natural_es.sigma: out of range (allowed: (0, "},
+      {"strategy { natural_es { learning_rate: -0.1 } }",
+       "strategy.natural_es.learning_rate: out of range"},
+      {"strategy { natural_es { beta1: 1 } }",
+       "strategy.natural_es.beta1: out of range (allowed: [0, 1); got 1)"},
+      {"strategy { natural_es { beta2: -0.5 } }",
+       "strategy.natural_es.beta2: out of range"},
+      {"strategy { natural_es { epsilon: 0 } }",
+       "strategy.natural_es.epsilon: out of range"},
+      {"strategy { natural_es { weight_decay: -1 } }",
+       "strategy.natural_es.weight_decay: out of range"},
+      {"strategy { natural_es { } } islands { count: 2 population_sizes: [8, "
+       "8] }",
+       "islands.population_sizes: per-island sizes are for the GA; set "
+       "strategy.natural_es.population_size"},
   };
   for (const Case& c : cases) {
     SCOPED_TRACE(c.extra);

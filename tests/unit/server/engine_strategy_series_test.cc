@@ -110,6 +110,43 @@ TEST_F(EngineStrategySeriesTest, CmaEsSeriesStoresEachRunsStatesAndFinishes) {
   EXPECT_TRUE(report->ok()) << report->ToString();
 }
 
+// A natural ES series of two-island runs with migration: each run is seeded
+// with natural ES states, finishes, and its states (centre, moments, step
+// count) pass `--check`; every island made one Adam step per generation told.
+TEST_F(EngineStrategySeriesTest,
+       NaturalEsSeriesWithIslandsFinishesAndPassesCheck) {
+  store::SeriesRecord series;
+  series.name = "natural-es";
+  series.owner = "local";
+  series.members = {{0, 21}, {0, 22}};
+  absl::StatusOr<std::vector<store::RunRecord>> runs = engine_->SubmitSeries(
+      Spec("strategy { natural_es { population_size: 6 } } islands { count: "
+           "2 interval: 1 migrants: 1 }"),
+      "text", &series);
+  ASSERT_TRUE(runs.ok()) << runs.status();
+  DriveAll();
+  for (const store::RunRecord& run : *runs) {
+    absl::StatusOr<store::RunRecord> done = store_->GetRun(run.id);
+    ASSERT_TRUE(done.ok());
+    EXPECT_EQ(done->state, skerry::v1::FINISHED) << done->message;
+    absl::StatusOr<std::map<uint32_t, std::string>> states =
+        store_->GetStrategyStates(run.id);
+    ASSERT_TRUE(states.ok()) << states.status();
+    ASSERT_EQ(states->size(), 2u);
+    for (const auto& [island, bytes] : *states) {
+      skerry::v1::StrategyState state;
+      ASSERT_TRUE(state.ParseFromString(bytes));
+      ASSERT_TRUE(state.has_natural_es()) << "run " << run.id;
+      EXPECT_EQ(state.natural_es().centre_size(), 3);
+      EXPECT_GE(state.natural_es().step(), 1u) << "island " << island;
+    }
+  }
+  absl::StatusOr<store::CheckReport> report =
+      store::CheckDatabase(dir_.File("skerry.db"));
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_TRUE(report->ok()) << report->ToString();
+}
+
 TEST_F(EngineStrategySeriesTest, EndedCmaEsRunIsNotExtendedAndSaysWhy) {
   absl::StatusOr<store::RunRecord> run =
       engine_->Submit(Spec("strategy { cma_es { } }"), "text", "local");

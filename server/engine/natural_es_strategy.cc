@@ -1,0 +1,197 @@
+// The natural-gradient ES (natural_es.h) behind the strategy interface.
+//
+// Generation g of an island is P = population_size / 2 mirrored pairs: slot
+// 2i holds theta + sigma eps_i and slot 2i + 1 holds theta - sigma eps_i, with
+// eps_i = Perturbation(spec, island, g, i), each clamped to [lower_bound,
+// upper_bound] before it is evaluated. Tell ranks the 2P scores (a failed
+// evaluation ranks last), estimates the gradient from the eps_i (rebuilt from
+// their keys, not from the clamped genes), takes one Adam step and clamps
+// the centre to the bounds. The start is uniform in [init_lower, init_upper]
+// from stream (seed, island, 0, kStart, 0), as CMA-ES's first start.
+//
+// Migration: a migrant better than every sample of the completed generation
+// becomes the centre (Adam's moments and step count are kept, as CMA-ES keeps
+// its covariance); other migrants are ignored. Without such a migrant the
+// islands are independent searches from their own starts.
+//
+// A sample's parent links are empty (origin SAMPLED).
+#include "server/engine/natural_es_strategy.h"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include "absl/strings/str_cat.h"
+#include "common/random.h"
+#include "common/strategy_spec.h"
+#include "server/engine/natural_es.h"
+
+namespace skerry::engine {
+namespace {
+
+using skerry::v1::NaturalEsState;
+using skerry::v1::RunSpec;
+using store::GenomeRecord;
+
+class NaturalEsStrategy : public Strategy {
+ public:
+  NaturalEsStrategy(const RunSpec& spec, uint32_t island)
+      : spec_(spec), island_(island), es_(NaturalEsSpecOf(spec_)) {}
+
+  absl::StatusOr<std::vector<GenomeRecord>> Start() override {
+    StreamKey key;
+    key.run_seed = spec_.seed();
+    key.island = island_;
+    key.purpose = StreamPurpose::kStart;
+    RandomStream rng(key);
+    state_.Clear();
+    for (uint32_t i = 0; i < spec_.genome_length(); ++i) {
+      state_.add_centre(rng.Uniform(spec_.init_lower(), spec_.init_upper()));
+      state_.add_adam_m(0.0);
+      state_.add_adam_v(0.0);
+    }
+    generation_ = 0;
+    started_ = true;
+    return Samples();
+  }
+
+  absl::Status Tell(absl::Span<const GenomeRecord> completed,
+                    absl::Span<const GenomeRecord* const> migrants) override {
+    if (!started_) {
+      return absl::FailedPreconditionError(
+          absl::StrCat("island ", island_, ": told before started"));
+    }
+    const uint32_t pairs = es_.population_size() / 2;
+    if (completed.size() != 2 * static_cast<size_t>(pairs)) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("island ", island_, " generation ", generation_, ": ",
+                       completed.size(), " samples, expected ", 2 * pairs));
+    }
+    const bool maximize = spec_.objective() == skerry::v1::MAXIMIZE;
+    auto utility = [maximize](const GenomeRecord& g) {
+      if (g.state != skerry::v1::EVALUATED) {
+        return -std::numeric_limits<double>::infinity();
+      }
+      return maximize ? g.score : -g.score;
+    };
+    std::vector<double> utilities;
+    double best = -std::numeric_limits<double>::infinity();
+    for (const GenomeRecord& g : completed) {
+      utilities.push_back(utility(g));
+      best = std::max(best, utilities.back());
+    }
+    const uint32_t generation = completed.front().generation;
+    std::vector<std::vector<double>> eps;
+    for (uint32_t i = 0; i < pairs; ++i) {
+      eps.push_back(Perturbation(spec_, island_, generation, i));
+    }
+    NaturalEsUpdate(es_, utilities, eps, &state_);
+    for (int j = 0; j < state_.centre_size(); ++j) {
+      state_.set_centre(j, std::clamp(state_.centre(j), spec_.lower_bound(),
+                                      spec_.upper_bound()));
+    }
+    // A better migrant becomes the centre; the first of the best wins ties.
+    const GenomeRecord* better = nullptr;
+    for (const GenomeRecord* m : migrants) {
+      if (utility(*m) > best) {
+        best = utility(*m);
+        better = m;
+      }
+    }
+    if (better != nullptr && better->genes.size() == spec_.genome_length()) {
+      for (size_t j = 0; j < better->genes.size(); ++j) {
+        state_.set_centre(static_cast<int>(j), better->genes[j]);
+      }
+    }
+    generation_ = generation + 1;
+    return absl::OkStatus();
+  }
+
+  absl::StatusOr<std::vector<GenomeRecord>> Ask() override {
+    if (!started_) {
+      return absl::FailedPreconditionError(
+          absl::StrCat("island ", island_, ": asked before started"));
+    }
+    return Samples();
+  }
+
+  skerry::v1::StrategyState Save() const override {
+    skerry::v1::StrategyState s;
+    s.set_generation(generation_);
+    if (started_) *s.mutable_natural_es() = state_;
+    return s;
+  }
+
+  absl::Status Restore(const skerry::v1::StrategyState& state) override {
+    if (state.kind_case() != skerry::v1::StrategyState::kNaturalEs) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          "island ", island_, ": the saved state is not a natural ES state"));
+    }
+    const NaturalEsState& s = state.natural_es();
+    const int n = static_cast<int>(spec_.genome_length());
+    if (s.centre_size() != n || s.adam_m_size() != n || s.adam_v_size() != n) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          "island ", island_, ": the saved natural ES state has vectors of ",
+          s.centre_size(), ", ", s.adam_m_size(), " and ", s.adam_v_size(),
+          " values; the spec's genome_length is ", n));
+    }
+    for (int j = 0; j < n; ++j) {
+      if (!std::isfinite(s.centre(j)) || !std::isfinite(s.adam_m(j)) ||
+          !(s.adam_v(j) >= 0) || !std::isfinite(s.adam_v(j))) {
+        return absl::InvalidArgumentError(
+            absl::StrCat("island ", island_,
+                         ": the saved natural ES state has a value out of "
+                         "range at gene ",
+                         j));
+      }
+    }
+    state_ = s;
+    generation_ = state.generation();
+    started_ = true;
+    return absl::OkStatus();
+  }
+
+ private:
+  std::vector<GenomeRecord> Samples() const {
+    const uint32_t pairs = es_.population_size() / 2;
+    const size_t n = spec_.genome_length();
+    std::vector<GenomeRecord> out;
+    out.reserve(2 * pairs);
+    for (uint32_t i = 0; i < pairs; ++i) {
+      const std::vector<double> eps =
+          Perturbation(spec_, island_, generation_, i);
+      for (const double sign : {1.0, -1.0}) {
+        GenomeRecord g;
+        g.island = island_;
+        g.generation = generation_;
+        g.slot = static_cast<uint32_t>(out.size());
+        g.origin = skerry::v1::SAMPLED;
+        g.state = skerry::v1::PENDING;
+        g.genes.resize(n);
+        for (size_t j = 0; j < n; ++j) {
+          const double x =
+              state_.centre(static_cast<int>(j)) + sign * es_.sigma() * eps[j];
+          g.genes[j] = std::clamp(x, spec_.lower_bound(), spec_.upper_bound());
+        }
+        out.push_back(std::move(g));
+      }
+    }
+    return out;
+  }
+
+  const RunSpec spec_;
+  const uint32_t island_;
+  const skerry::v1::NaturalEsSpec es_;
+  NaturalEsState state_;
+  uint32_t generation_ = 0;
+  bool started_ = false;
+};
+
+}  // namespace
+
+std::unique_ptr<Strategy> MakeNaturalEsStrategy(const RunSpec& spec,
+                                                uint32_t island) {
+  return std::make_unique<NaturalEsStrategy>(spec, island);
+}
+
+}  // namespace skerry::engine
