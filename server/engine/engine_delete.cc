@@ -46,6 +46,7 @@ absl::StatusOr<store::Store::Imported> Engine::Import(const std::string& file) {
   // serialises its writes itself.
   absl::StatusOr<store::Store::Imported> imported = store_->ImportRuns(file);
   absl::MutexLock l(&mu_);
+  AwaitCommit();  // LoadRun changes the cache and the queue
   if (!imported.ok()) {
     NoteWriteFailure(imported.status());
     return imported;
