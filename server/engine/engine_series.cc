@@ -5,9 +5,9 @@
 #include "absl/strings/str_cat.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
-#include "common/strategy_spec.h"
 #include "server/engine/breeder.h"
 #include "server/engine/engine.h"
+#include "server/engine/strategy_replay.h"
 
 namespace skerry::engine {
 namespace {
@@ -81,23 +81,18 @@ absl::StatusOr<std::vector<store::RunRecord>> Engine::SubmitSeries(
 }
 
 absl::Status Engine::Extend(int64_t run_id, const skerry::v1::StopSpec& stop) {
-  absl::MutexLock l(&mu_);
-  AwaitCommit();  // a writer: not during a result commit
-  if (auto d = damaged_.find(run_id); d != damaged_.end()) return d->second.why;
   SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
-  if (runs_.count(run_id) != 0 ||
-      (rec.state != skerry::v1::FINISHED && rec.state != skerry::v1::STOPPED)) {
-    return absl::FailedPreconditionError(absl::StrCat(
-        "run ", run_id, " is ", skerry::v1::RunState_Name(rec.state),
-        "; only a FINISHED or STOPPED run can be extended"));
-  }
-  if (StrategyOf(rec.spec) != StrategyKind::kGa) {
-    // A CMA-ES island's stored distribution may be of a generation trimmed
-    // at the finish; continuing from it would not be the search it was.
-    return absl::FailedPreconditionError(absl::StrCat(
-        "strategy: run ", run_id,
-        " searches with an evolution strategy; only GA runs can be extended "
-        "so far"));
+  {
+    absl::MutexLock l(&mu_);
+    if (auto d = damaged_.find(run_id); d != damaged_.end()) {
+      return d->second.why;
+    }
+    if (runs_.count(run_id) != 0 || (rec.state != skerry::v1::FINISHED &&
+                                     rec.state != skerry::v1::STOPPED)) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "run ", run_id, " is ", skerry::v1::RunState_Name(rec.state),
+          "; only a FINISHED or STOPPED run can be extended"));
+    }
   }
   RunSpec spec = rec.spec;
   skerry::v1::StopSpec* rule = spec.mutable_stop();
@@ -136,8 +131,24 @@ absl::Status Engine::Extend(int64_t run_id, const skerry::v1::StopSpec& stop) {
     rule->set_target_score(wanted);
   }
   SKERRY_ASSIGN_OR_RETURN(RunSpec prepared, PrepareSpec(std::move(spec)));
+  // Each island goes on from the strategy state that produced the generation
+  // it is at; rebuilding one by replay may take as long as breeding the run
+  // again, so it is done without the engine's lock. An ended run's rows do
+  // not change meanwhile, and the store refuses the extension if the run
+  // was extended, deleted or archived since (its state is checked again in
+  // the extension's transaction).
+  absl::StatusOr<std::vector<std::string>> states = StatesToGoOn(*store_, rec);
+  absl::MutexLock l(&mu_);
+  AwaitCommit();  // a writer: not during a result commit
+  if (auto d = damaged_.find(run_id); d != damaged_.end()) return d->second.why;
+  if (!states.ok()) {
+    if (absl::IsDataLoss(states.status())) {
+      MarkDamaged(run_id, states.status(), &rec);
+    }
+    return states.status();
+  }
   if (absl::Status s =
-          store_->ExtendRun(run_id, prepared, clock_->WallMillis());
+          store_->ExtendRun(run_id, prepared, clock_->WallMillis(), *states);
       !s.ok()) {
     if (absl::IsDataLoss(s)) {
       MarkDamaged(run_id, s, &rec);

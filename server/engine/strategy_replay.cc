@@ -6,6 +6,7 @@
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "absl/types/span.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/engine/breeder.h"
@@ -53,10 +54,17 @@ absl::Status SameGeneration(const store::RunRecord& run, uint32_t island,
 }
 
 absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
-    store::Store& store, const store::RunRecord& run, uint32_t generation,
-    int depth) {
+    store::Store& store, const store::RunRecord& run,
+    absl::Span<const uint32_t> targets, int depth) {
   const skerry::v1::RunSpec& spec = run.spec;
   const uint32_t count = std::max<uint32_t>(1, spec.islands().count());
+  if (targets.size() != count) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("run ", run.id, " has ", count, " islands; ",
+                     targets.size(), " generations given to replay to"));
+  }
+  const uint32_t lowest = *std::min_element(targets.begin(), targets.end());
+  const uint32_t last = *std::max_element(targets.begin(), targets.end());
   std::vector<std::unique_ptr<Strategy>> strategies;
   for (uint32_t i = 0; i < count; ++i) {
     SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<Strategy> s, MakeStrategy(spec, i));
@@ -64,9 +72,9 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
   }
   if (strategies.front()->StateIsPopulation()) {
     std::vector<skerry::v1::StrategyState> out;
-    for (const auto& s : strategies) {
-      skerry::v1::StrategyState state = s->Save();
-      state.set_generation(generation);
+    for (uint32_t i = 0; i < count; ++i) {
+      skerry::v1::StrategyState state = strategies[i]->Save();
+      state.set_generation(targets[i]);
       out.push_back(std::move(state));
     }
     return out;
@@ -82,11 +90,11 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
   uint32_t first = 0;
   std::vector<GenomeRecord> made;  // of one island, to compare
   if (run.parent_run != 0) {
-    if (generation < run.parent_generation) {
-      return absl::FailedPreconditionError(absl::StrCat(
-          "run ", run.id, " starts at generation ", run.parent_generation,
-          " as a fork of run ", run.parent_run, "; it holds no generation ",
-          generation));
+    if (lowest < run.parent_generation) {
+      return absl::FailedPreconditionError(
+          absl::StrCat("run ", run.id, " starts at generation ",
+                       run.parent_generation, " as a fork of run ",
+                       run.parent_run, "; it holds no generation ", lowest));
     }
     if (depth >= kMaxForkDepth) {
       return absl::FailedPreconditionError(
@@ -97,7 +105,11 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
                             store.GetRun(run.parent_run));
     SKERRY_ASSIGN_OR_RETURN(
         std::vector<skerry::v1::StrategyState> start,
-        Replay(store, parent, run.parent_generation, depth + 1));
+        Replay(store, parent,
+               std::vector<uint32_t>(
+                   std::max<uint32_t>(1, parent.spec.islands().count()),
+                   run.parent_generation),
+               depth + 1));
     if (start.size() != count) {
       return absl::FailedPreconditionError(absl::StrCat(
           "run ", run.id, " has ", count, " islands and its parent run ",
@@ -118,24 +130,29 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
 
   // Generation by generation, all islands together: the migrants of an epoch
   // come from the sources' stored generation h, and each island's stored
-  // generation h + 1, once compared, is what it is told next.
+  // generation h + 1, once compared, is what it is told next. An island
+  // stops at its own target; its generation there stays loaded while the
+  // others go on from the same generation (it may be a source of migrants).
   std::vector<std::vector<GenomeRecord>> current(count);
-  for (uint32_t i = 0; i < count && first < generation; ++i) {
+  for (uint32_t i = 0; i < count && first < last; ++i) {
+    if (targets[i] < first) continue;
     SKERRY_ASSIGN_OR_RETURN(current[i], store.GetGeneration(run.id, i, first));
   }
-  for (uint32_t h = first; h < generation; ++h) {
-    for (uint32_t i = 0; i < count; ++i) {
-      if (current[i].size() != IslandPopulation(spec, i)) {
-        return absl::FailedPreconditionError(absl::StrCat(
-            "run ", run.id, " island ", i, " holds ", current[i].size(),
-            " of the genomes of generation ", h, "; it cannot be replayed"));
-      }
-    }
+  auto whole = [&](uint32_t i, uint32_t h) -> absl::Status {
+    if (current[i].size() == IslandPopulation(spec, i)) return absl::OkStatus();
+    return absl::FailedPreconditionError(absl::StrCat(
+        "run ", run.id, " island ", i, " holds ", current[i].size(),
+        " of the genomes of generation ", h, "; it cannot be replayed"));
+  };
+  for (uint32_t h = first; h < last; ++h) {
     std::vector<std::vector<GenomeRecord>> next(count);
     for (uint32_t i = 0; i < count; ++i) {
+      if (h >= targets[i]) continue;
+      SKERRY_RETURN_IF_ERROR(whole(i, h));
       std::vector<const GenomeRecord*> migrants;
       if (IsMigrationEpoch(spec, h + 1)) {
         for (uint32_t src : Sources(spec, i, h + 1)) {
+          SKERRY_RETURN_IF_ERROR(whole(src, h));
           for (const GenomeRecord* m : ChooseEmigrants(
                    spec, current[src], i, spec.islands().migrants())) {
             migrants.push_back(m);
@@ -147,7 +164,13 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
       SKERRY_ASSIGN_OR_RETURN(next[i], store.GetGeneration(run.id, i, h + 1));
       SKERRY_RETURN_IF_ERROR(SameGeneration(run, i, h + 1, made, next[i]));
     }
-    current = std::move(next);
+    for (uint32_t i = 0; i < count; ++i) {
+      if (h < targets[i]) {
+        current[i] = std::move(next[i]);
+      } else {
+        current[i].clear();  // the island's replay ended at h or before
+      }
+    }
   }
   std::vector<skerry::v1::StrategyState> out;
   for (const auto& s : strategies) out.push_back(s->Save());
@@ -158,7 +181,54 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
 
 absl::StatusOr<std::vector<skerry::v1::StrategyState>> ReplayStrategyStates(
     store::Store& store, const store::RunRecord& run, uint32_t generation) {
-  return Replay(store, run, generation, 0);
+  const uint32_t count = std::max<uint32_t>(1, run.spec.islands().count());
+  return Replay(store, run, std::vector<uint32_t>(count, generation), 0);
+}
+
+absl::StatusOr<std::vector<skerry::v1::StrategyState>> ReplayStrategyStates(
+    store::Store& store, const store::RunRecord& run,
+    absl::Span<const uint32_t> generations) {
+  return Replay(store, run, generations, 0);
+}
+
+absl::StatusOr<std::vector<std::string>> StatesToGoOn(
+    store::Store& store, const store::RunRecord& run) {
+  SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
+                          store.GetIslands(run.id));
+  SKERRY_ASSIGN_OR_RETURN(auto stored, store.GetStrategyStates(run.id));
+  const uint32_t count = std::max<uint32_t>(1, run.spec.islands().count());
+  if (islands.size() != count) {
+    return absl::DataLossError(absl::StrCat("run ", run.id, " holds ",
+                                            islands.size(), " of its ", count,
+                                            " island rows"));
+  }
+  std::vector<uint32_t> targets(count);
+  std::vector<std::string> out(count);
+  bool replay = false;
+  for (const store::IslandRecord& ir : islands) {
+    if (ir.index >= count) {
+      return absl::DataLossError(absl::StrCat("run ", run.id, " has island ",
+                                              ir.index, " of ", count));
+    }
+    targets[ir.index] = ir.generation;
+    auto it = stored.find(ir.index);
+    skerry::v1::StrategyState state;
+    // Empty: a GA state stored before states were kept (it keeps nothing).
+    if (it != stored.end() && !it->second.empty() &&
+        state.ParseFromString(it->second) &&
+        state.generation() == ir.generation) {
+      out[ir.index] = it->second;
+    } else {
+      replay = true;
+    }
+  }
+  if (!replay) return out;
+  SKERRY_ASSIGN_OR_RETURN(std::vector<skerry::v1::StrategyState> rebuilt,
+                          ReplayStrategyStates(store, run, targets));
+  for (uint32_t i = 0; i < count; ++i) {
+    out[i] = rebuilt[i].SerializeAsString();
+  }
+  return out;
 }
 
 }  // namespace skerry::engine

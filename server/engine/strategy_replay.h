@@ -1,6 +1,8 @@
 // The strategy state of every island of a stored run as it was when the run
 // produced one of its generations: what a fork at that generation starts
-// from (Engine::Fork, engine_fork.cc).
+// from (Engine::Fork, engine_fork.cc), and what an extended run goes on from
+// where the finish trimmed the generation its stored state was of
+// (Engine::Extend, engine_series.cc).
 //
 // The store keeps one strategy state per island, the newest
 // (strategy_states, schema version 10), so an earlier one is rebuilt by
@@ -32,9 +34,11 @@
 #define SKERRY_SERVER_ENGINE_STRATEGY_REPLAY_H_
 
 #include <cstdint>
+#include <string>
 #include <vector>
 
 #include "absl/status/statusor.h"
+#include "absl/types/span.h"
 #include "server/store/store.h"
 #include "skerry/v1/strategy.pb.h"
 
@@ -46,6 +50,24 @@ namespace skerry::engine {
 // a regenerated genome that differs); DataLoss from damaged rows.
 absl::StatusOr<std::vector<skerry::v1::StrategyState>> ReplayStrategyStates(
     store::Store& store, const store::RunRecord& run, uint32_t generation);
+
+// The same with a generation per island (index i for island i): what an
+// extension of an ended run starts from, where a run ended by its target
+// score may have left its islands at different generations. One entry per
+// island, else InvalidArgument.
+absl::StatusOr<std::vector<skerry::v1::StrategyState>> ReplayStrategyStates(
+    store::Store& store, const store::RunRecord& run,
+    absl::Span<const uint32_t> generations);
+
+// Each island's state (serialised, index i for island i) as the ended `run`
+// had it when it produced the generation the island is at now: what
+// Engine::Extend goes on from. The stored state serves where it is of that
+// generation (states are committed with the generation they produce, and an
+// island that finishes stores none); an island whose stored state is of a
+// generation trimmed at the finish (it bred past the run's stop generation)
+// has it rebuilt by replay, with the errors of ReplayStrategyStates.
+absl::StatusOr<std::vector<std::string>> StatesToGoOn(
+    store::Store& store, const store::RunRecord& run);
 
 }  // namespace skerry::engine
 

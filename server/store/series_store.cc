@@ -241,7 +241,8 @@ absl::StatusOr<std::string> Store::SeriesOfRun(int64_t run_id) {
 }
 
 absl::Status Store::ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
-                              int64_t now_ms) {
+                              int64_t now_ms,
+                              const std::vector<std::string>& states) {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   {
@@ -266,12 +267,6 @@ absl::Status Store::ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
       "DELETE FROM generation_stats WHERE run_id = ?1 AND (island, generation) "
       "IN (SELECT idx, generation FROM islands WHERE run_id = ?1)",
       "UPDATE islands SET done = 0 WHERE run_id = ?1",
-      // Only GA runs are extended (Engine::Extend): a GA keeps nothing, so
-      // its state is emptied at the island's generation, which a generation
-      // trimmed at the finish may have left behind.
-      "UPDATE strategy_states SET state = X'', generation = (SELECT "
-      "generation FROM islands i WHERE i.run_id = ?1 AND i.idx = island) "
-      "WHERE run_id = ?1",
   };
   for (const std::string& sql : statements) {
     SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(sql));
@@ -282,6 +277,20 @@ absl::Status Store::ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
       s.BindInt(4, now_ms);
     }
     SKERRY_RETURN_IF_ERROR(s.Run());
+  }
+  // Each island's state that produced the generation it is at (the engine's
+  // StatesToGoOn), in place of one a generation trimmed at the finish may
+  // have left behind.
+  SKERRY_ASSIGN_OR_RETURN(
+      auto put,
+      conn_->Prepare("INSERT OR REPLACE INTO strategy_states (run_id, island, "
+                     "generation, state) SELECT ?1, idx, generation, ?3 FROM "
+                     "islands WHERE run_id = ?1 AND idx = ?2"));
+  for (size_t i = 0; i < states.size(); ++i) {
+    put.BindInt(1, run_id);
+    put.BindInt(2, static_cast<int64_t>(i));
+    put.BindBlob(3, states[i]);
+    SKERRY_RETURN_IF_ERROR(put.Run());
   }
   return txn.Commit();
 }

@@ -74,7 +74,8 @@
 //                      series with its members
 //   ExtendRun          an ended run's raised stop rule, its islands live
 //                      again, the statistics of each newest generation
-//                      dropped (recomputed when the engine breeds on)
+//                      dropped (recomputed when the engine breeds on), each
+//                      island's strategy state for that generation
 //   CommitResults      a batch of results (group commit of many Report
 //                      calls), with the validation outcomes reported with them
 //   CommitGeneration   one island's next generation whole: its genomes with
@@ -521,9 +522,12 @@ class Store {
   // again: islands live, stop generation cleared, the wall clock restarted
   // at now_ms, the statistics row of each island's newest generation deleted
   // so that the engine completes that generation again (its numbers come out
-  // the same). FailedPrecondition unless the run is FINISHED or STOPPED.
+  // the same), and island i's strategy state replaced by states[i] (the one
+  // that produced the generation the island is at). FailedPrecondition
+  // unless the run is FINISHED or STOPPED.
   absl::Status ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
-                         int64_t now_ms);
+                         int64_t now_ms,
+                         const std::vector<std::string>& states);
 
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)

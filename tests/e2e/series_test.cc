@@ -295,5 +295,57 @@ islands { count: 2 topology: RING interval: 2 migrants: 1 }
               HasSubstr("evaluation budget (600) reached"));
 }
 
+// The evolution strategies extend as the GA does: a CMA-ES run ended by its
+// target on two migrating islands (where a faster island's generations past
+// the stop generation, if any, are trimmed and its distribution rebuilt by
+// replay; engine_strategy_series_test.cc forces that case) and a natural ES
+// run ended by its generation limit, each extended, equal runs given the
+// raised rule from the start.
+TEST_F(SeriesTest, ExtendedCmaEsRunEqualsLongerRunFromTheStart) {
+  const std::string cma = R"(
+name: "cma-two-islands"
+seed: 8
+genome_length: 4
+evaluator { builtin { function: "sphere" } }
+strategy { cma_es { } }
+islands { count: 2 topology: RING interval: 2 migrants: 1 }
+)";
+  const std::string natural = R"(
+name: "natural-es-two-islands"
+seed: 9
+genome_length: 4
+evaluator { builtin { function: "sphere" } }
+strategy { natural_es { population_size: 6 } }
+islands { count: 2 topology: RING interval: 3 migrants: 1 }
+)";
+  const std::string near = WriteSpec(
+      "near.spec", cma + "stop { target_score: 0.5 max_generations: 60 }");
+  const std::string short_es =
+      WriteSpec("short.spec", natural + "stop { max_generations: 5 }");
+  const std::string far = WriteSpec(
+      "far.spec", cma + "stop { target_score: 1e-6 max_generations: 60 }");
+  const std::string long_es =
+      WriteSpec("long.spec", natural + "stop { max_generations: 12 }");
+  for (const std::string& spec : {near, short_es, far, long_es}) {
+    ASSERT_EQ(Cli({"submit", spec}).exit_code, 0);  // runs 1 to 4
+  }
+  StartWorkers(2);
+  const std::string near_digest = Finish(1);
+  const std::string short_digest = Finish(2);
+  CommandResult extend = Cli({"extend", "1", "--target", "1e-6"});
+  ASSERT_EQ(extend.exit_code, 0) << extend.output;
+  EXPECT_THAT(extend.output, HasSubstr("run 1 running again"));
+  ASSERT_EQ(Cli({"extend", "2", "--generations", "12"}).exit_code, 0);
+  const std::string far_digest = Finish(3);
+  const std::string long_digest = Finish(4);
+  EXPECT_EQ(Finish(1), far_digest);
+  EXPECT_EQ(Finish(2), long_digest);
+  EXPECT_NE(near_digest, far_digest);
+  EXPECT_NE(short_digest, long_digest);
+  CommandResult check =
+      RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_}, absl::Seconds(60));
+  EXPECT_EQ(check.exit_code, 0) << check.output;
+}
+
 }  // namespace
 }  // namespace skerry

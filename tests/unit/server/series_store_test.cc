@@ -133,11 +133,11 @@ TEST_F(SeriesStoreTest, DatabaseBeforeSeriesGainsTheSeriesTables) {
 TEST_F(SeriesStoreTest, ExtendRunRefusesARunThatHasNotEnded) {
   std::vector<GenomeRecord> genomes;
   RunRecord run = CreateRun(1, &genomes);
-  absl::Status s = store_->ExtendRun(run.id, run.spec, 2000);
+  absl::Status s = store_->ExtendRun(run.id, run.spec, 2000, {});
   EXPECT_TRUE(absl::IsFailedPrecondition(s)) << s;
   EXPECT_THAT(std::string(s.message()),
               HasSubstr("only a FINISHED or STOPPED run can be extended"));
-  EXPECT_TRUE(absl::IsNotFound(store_->ExtendRun(999, run.spec, 2000)));
+  EXPECT_TRUE(absl::IsNotFound(store_->ExtendRun(999, run.spec, 2000, {})));
 }
 
 }  // namespace
