@@ -1,6 +1,7 @@
 // Forks of evolution-strategy runs end to end (issue 17): real coordinator,
 // real worker processes, a real SQLite file. A CMA-ES island's state at the
-// fork generation is rebuilt by replaying the parent's stored generations
+// fork generation (CMA-ES, sep-CMA-ES, the natural ES) is rebuilt by
+// replaying the parent's stored generations
 // (server/engine/strategy_replay.h), so an unchanged fork repeats its parent
 // genome for genome from the fork generation on (the digest over the shared
 // generations, as fork_test.cc checks for the GA), with islands migrating, a
@@ -121,18 +122,24 @@ void ExpectSameFrom(const std::string& db, int64_t parent_id, int64_t child_id,
 
 TEST_F(StrategyForkTest,
        UnchangedForksOfEvolutionStrategyRunsRepeatTheirParent) {
-  for (const std::string kind : {"cma_es", "sep_cma_es"}) {
+  // The natural ES's default population is twice CMA-ES's (16 samples, 8
+  // mirrored pairs); its state holds the centre and Adam's moments.
+  const struct {
+    const char* kind;
+    uint64_t population;
+  } kinds[] = {{"cma_es", 8}, {"sep_cma_es", 8}, {"natural_es", 16}};
+  for (const auto& [kind, population] : kinds) {
     SCOPED_TRACE(kind);
     const int64_t parent = SubmitParent(kind);
     // Generation 5 is bred after the epoch of generation 3; 8 follows the
     // epoch of 6 in the fork itself.
     const int64_t fork =
         Finished(Cli({"fork", absl::StrCat(parent), "--at", "5"}));
-    ExpectSameFrom(db_, parent, fork, 5, 2u * 8u * 9u);  // generations 5-13
+    ExpectSameFrom(db_, parent, fork, 5, 2u * population * 9u);  // 5-13
     // A fork of the fork replays the parent to 5, then the fork to 8.
     const int64_t again =
         Finished(Cli({"fork", absl::StrCat(fork), "--at", "8"}));
-    ExpectSameFrom(db_, parent, again, 8, 2u * 8u * 6u);  // generations 8-13
+    ExpectSameFrom(db_, parent, again, 8, 2u * population * 6u);  // 8-13
     CommandResult show = Cli({"show", absl::StrCat(again)});
     EXPECT_THAT(show.output, HasSubstr(absl::StrCat("forked from run ", fork,
                                                     " at generation 8")));
