@@ -168,6 +168,7 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
   spec->mutable_ga()->set_population_size(o.population);
   spec->mutable_ga()->set_elites(0);
   spec->mutable_stop()->set_max_generations(o.generations);
+  if (o.float32) spec->set_gene_precision(skerry::v1::FLOAT32);
 
   WireCount wire;
   std::vector<std::unique_ptr<worker::Worker>> workers;

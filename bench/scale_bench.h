@@ -35,6 +35,8 @@ struct EndToEndOptions {
   // run while it runs (the engine's and the store's read paths), as people
   // watching a run do.
   int readers = 0;
+  // The run's gene_precision is FLOAT32 (4 bytes a gene stored and sent).
+  bool float32 = false;
 };
 
 struct EndToEndFigures {

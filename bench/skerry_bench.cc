@@ -35,6 +35,7 @@ namespace skerry {
 namespace {
 
 struct BenchOptions {
+  bool float32 = false;  // --float32: the end-to-end run's gene_precision
   int genome_length = 10;
   int population = 1000;
   int generations = 50;
@@ -162,6 +163,7 @@ bench::EndToEndOptions EndToEnd(const BenchOptions& o) {
   e.generations = o.generations;
   e.workers = o.workers;
   e.threads = o.threads;
+  e.float32 = o.float32;
   return e;
 }
 
@@ -237,13 +239,15 @@ int main(int argc, char** argv) {
     if (a == "--help") {
       std::puts(
           "Usage: skerry-bench [--population N] [--generations N] "
-          "[--genome-length N] [--workers N] [--threads N] [--insert-rows N] "
+          "[--genome-length N] [--float32] [--workers N] [--threads N] "
+          "[--insert-rows N] "
           "[--dir DIR] [--fleet] [--report-latency] [--history-genomes N "
           "[--keep]]\n\nMeasures "
           "raw SQLite genome inserts, end-to-end evaluations per second "
           "through a loopback coordinator and workers (with bytes stored and "
           "sent per evaluation and peak memory), and in-process evaluation, "
-          "and prints the ratios. --fleet adds fleet efficiency at 2 and 20 "
+          "and prints the ratios. --float32 makes the end-to-end run's "
+          "gene_precision FLOAT32. --fleet adds fleet efficiency at 2 and 20 "
           "ms per evaluation; --report-latency adds the workers' Report "
           "latency (p50, p99) idle and under four readers of the run "
           "(list, show, history, digest); --history-genomes N builds a store "
@@ -270,6 +274,8 @@ int main(int argc, char** argv) {
                                    &o.insert_rows);
     } else if (a == "--fleet") {
       fleet = true;
+    } else if (a == "--float32") {
+      o.float32 = true;
     } else if (a == "--report-latency") {
       report_latency = true;
     } else if (a == "--keep") {
@@ -319,7 +325,7 @@ int main(int argc, char** argv) {
       "  per evaluation: %.0f bytes stored (database + WAL), %.0f bytes of "
       "protobuf sent by workers, %.0f received; the genes are %d bytes\n",
       f->db_bytes / n, f->sent_bytes / n, f->received_bytes / n,
-      8 * o.genome_length);
+      (o.float32 ? 4 : 8) * o.genome_length);
   std::printf(
       "  peak RSS of the bench process (coordinator + workers): %.1f MiB\n",
       f->peak_rss_kib / 1024.0);

@@ -3,7 +3,9 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdint>
+#include <limits>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "absl/strings/escaping.h"
@@ -13,6 +15,7 @@
 #include "common/network.h"
 #include "common/pole.h"
 #include "common/quote.h"
+#include "common/status_macros.h"
 #include "common/strategy_spec.h"
 #include "common/validation.h"
 #include "google/protobuf/descriptor.h"
@@ -74,6 +77,39 @@ absl::Status CheckEnum(absl::string_view path, int value,
   }
   return Bad(path, "unknown or unspecified value", absl::StrJoin(allowed, ", "),
              found != nullptr ? found->name() : absl::StrCat(value));
+}
+
+// gene_precision: unset means FLOAT64. FLOAT32 needs bounds a float32 can
+// hold and a float32 value between them (common/genes.h RoundToFloat32).
+absl::Status CheckGenePrecision(const RunSpec& spec) {
+  if (spec.gene_precision() == skerry::v1::GENE_PRECISION_UNSPECIFIED) {
+    return absl::OkStatus();
+  }
+  SKERRY_RETURN_IF_ERROR(CheckEnum("gene_precision", spec.gene_precision(),
+                                   skerry::v1::GenePrecision_descriptor()));
+  if (spec.gene_precision() != skerry::v1::FLOAT32) return absl::OkStatus();
+  const double most = std::numeric_limits<float>::max();
+  for (const auto& [name, value] :
+       {std::pair<const char*, double>{"lower_bound", spec.lower_bound()},
+        {"upper_bound", spec.upper_bound()}}) {
+    if (std::fabs(value) > most) {
+      return Bad(name, "beyond what gene_precision FLOAT32 can hold",
+                 "a magnitude of at most 3.40282e+38", absl::StrCat(value));
+    }
+  }
+  float inside = static_cast<float>(spec.lower_bound());
+  if (static_cast<double>(inside) < spec.lower_bound()) {
+    inside = std::nextafter(inside, std::numeric_limits<float>::infinity());
+  }
+  if (static_cast<double>(inside) > spec.upper_bound()) {
+    return Bad(
+        "upper_bound",
+        "no float32 value lies between the bounds, so gene_precision "
+        "FLOAT32 has no gene to make",
+        "bounds at least one float32 step apart",
+        absl::StrCat("[", spec.lower_bound(), ", ", spec.upper_bound(), "]"));
+  }
+  return absl::OkStatus();
 }
 
 absl::Status CheckBounds(const RunSpec& spec) {
@@ -522,6 +558,7 @@ absl::Status ValidateSpec(const RunSpec& spec) {
   if (s.ok()) s = CheckEvaluator(spec);
   if (s.ok()) s = CheckBounds(spec);
   if (s.ok()) s = CheckInitRange(spec);
+  if (s.ok()) s = CheckGenePrecision(spec);
   if (s.ok()) s = ValidateStrategy(spec);
   const bool ga = StrategyOf(spec) == StrategyKind::kGa;
   if (s.ok() && ga) {

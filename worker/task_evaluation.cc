@@ -6,6 +6,7 @@
 #include <iterator>
 #include <map>
 #include <utility>
+#include <vector>
 
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
@@ -132,8 +133,15 @@ skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,
   absl::StatusOr<Evaluator*> evaluator = cache.Get(task.evaluator());
   if (evaluator.ok()) {
     // Time limits are enforced by evaluators that run in a child process.
+    // A FLOAT32 run's genes come as genes32, widened here (exactly).
+    std::vector<double> widened;
+    if (task.genes32_size() > 0) {
+      widened.assign(task.genes32().begin(), task.genes32().end());
+    }
     const auto genes =
-        absl::MakeConstSpan(task.genes().data(), task.genes().size());
+        task.genes32_size() > 0
+            ? absl::MakeConstSpan(widened)
+            : absl::MakeConstSpan(task.genes().data(), task.genes().size());
     score = Guarded([&]() -> absl::StatusOr<double> {
       if (task.kind() == skerry::v1::TASK_VALIDATE) {
         // eval_seed is the run's seed: the cases' seeds come from it.

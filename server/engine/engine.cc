@@ -245,6 +245,7 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
     t.generation = island.generation;
     t.slot = g.slot;
     t.genes = g.genes;
+    t.float32 = run.record.spec.gene_precision() == skerry::v1::FLOAT32;
     t.eval_seed =
         EvalSeed(run.record.spec, island.index, island.generation, g.slot);
     t.evaluator = run.evaluator;

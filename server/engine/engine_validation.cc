@@ -56,6 +56,7 @@ void Engine::QueueValidation(const store::ValidationRecord& v,
   t.generation = v.generation;
   t.slot = v.slot;
   t.genes = genes;
+  t.float32 = spec.gene_precision() == skerry::v1::FLOAT32;
   t.eval_seed = spec.seed();  // the cases' seeds derive from it
   t.evaluator =
       active != runs_.end()

@@ -3,6 +3,7 @@
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "common/genes.h"
 #include "common/strategy_spec.h"
 #include "server/engine/breeder.h"
 #include "server/engine/cma_strategy.h"
@@ -83,9 +84,47 @@ class GaStrategy : public Strategy {
   std::vector<GenomeRecord> migrants_;
 };
 
-}  // namespace
+// gene_precision FLOAT32: the strategy's genomes rounded to float32 inside
+// the bounds (common/genes.h) before the engine keeps or stores them. Every
+// generation is told back rounded, so what a strategy breeds from is what
+// the store holds: a restarted coordinator breeds the same genomes.
+class Float32Strategy : public Strategy {
+ public:
+  Float32Strategy(std::unique_ptr<Strategy> inner, double lower, double upper)
+      : inner_(std::move(inner)), lower_(lower), upper_(upper) {}
 
-absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
+  absl::StatusOr<std::vector<GenomeRecord>> Start() override {
+    return Rounded(inner_->Start());
+  }
+  absl::Status Tell(absl::Span<const GenomeRecord> completed,
+                    absl::Span<const GenomeRecord* const> migrants) override {
+    return inner_->Tell(completed, migrants);
+  }
+  absl::StatusOr<std::vector<GenomeRecord>> Ask() override {
+    return Rounded(inner_->Ask());
+  }
+  skerry::v1::StrategyState Save() const override { return inner_->Save(); }
+  absl::Status Restore(const skerry::v1::StrategyState& state) override {
+    return inner_->Restore(state);
+  }
+  bool StateIsPopulation() const override {
+    return inner_->StateIsPopulation();
+  }
+
+ private:
+  absl::StatusOr<std::vector<GenomeRecord>> Rounded(
+      absl::StatusOr<std::vector<GenomeRecord>> made) const {
+    if (!made.ok()) return made;
+    for (GenomeRecord& g : *made) RoundToFloat32(&g.genes, lower_, upper_);
+    return made;
+  }
+
+  std::unique_ptr<Strategy> inner_;
+  const double lower_;
+  const double upper_;
+};
+
+absl::StatusOr<std::unique_ptr<Strategy>> MakeUnrounded(
     const skerry::v1::RunSpec& spec, uint32_t island) {
   switch (StrategyOf(spec)) {
     case StrategyKind::kCmaEs:
@@ -97,6 +136,16 @@ absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
       break;
   }
   return std::make_unique<GaStrategy>(spec, island);
+}
+
+}  // namespace
+
+absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
+    const skerry::v1::RunSpec& spec, uint32_t island) {
+  absl::StatusOr<std::unique_ptr<Strategy>> made = MakeUnrounded(spec, island);
+  if (!made.ok() || spec.gene_precision() != skerry::v1::FLOAT32) return made;
+  return std::make_unique<Float32Strategy>(std::move(*made), spec.lower_bound(),
+                                           spec.upper_bound());
 }
 
 }  // namespace skerry::engine

@@ -226,7 +226,15 @@ skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
   task.set_task_id(static_cast<uint64_t>(e->info.task_id()));
   task.set_attempt(e->info.attempts);
   task.set_run_id(static_cast<uint64_t>(e->info.run_id));
-  *task.mutable_genes() = {e->info.genes.begin(), e->info.genes.end()};
+  if (e->info.float32) {
+    // Exact: the engine made every gene a float32 value (common/genes.h).
+    task.mutable_genes32()->Reserve(static_cast<int>(e->info.genes.size()));
+    for (double g : e->info.genes) {
+      task.add_genes32(static_cast<float>(g));
+    }
+  } else {
+    *task.mutable_genes() = {e->info.genes.begin(), e->info.genes.end()};
+  }
   *task.mutable_evaluator() = *e->info.evaluator;
   task.set_eval_seed(e->info.eval_seed);
   task.set_kind(e->info.kind);

@@ -100,6 +100,9 @@ struct TaskInfo {
   uint32_t generation = 0;
   uint32_t slot = 0;
   std::vector<double> genes;
+  // gene_precision FLOAT32: the genes are float32 values, sent as
+  // Task.genes32 (4 bytes each).
+  bool float32 = false;
   uint64_t eval_seed = 0;
   std::shared_ptr<const skerry::v1::EvaluatorSpec> evaluator;
   uint32_t attempts =

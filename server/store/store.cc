@@ -1281,9 +1281,16 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
       h.UpdateU32(s.ColumnIsNull(c) ? 0xFFFFFFFFu
                                     : static_cast<uint32_t>(s.ColumnInt(c)));
     }
-    const std::string genes = s.ColumnBlob(10);
-    h.UpdateU32(static_cast<uint32_t>(genes.size() / 8));
-    h.Update(genes);
+    // The float64 form, whichever encoding the row has (common/genes.h).
+    absl::StatusOr<std::string> genes = Float64Bytes(s.ColumnBlob(10));
+    if (!genes.ok()) {
+      return DamagedGenome(run_id, static_cast<uint32_t>(s.ColumnInt(0)),
+                           static_cast<uint32_t>(s.ColumnInt(1)),
+                           static_cast<uint32_t>(s.ColumnInt(2)),
+                           s.ColumnInt(14));
+    }
+    h.UpdateU32(static_cast<uint32_t>(genes->size() / 8));
+    h.Update(*genes);
     h.UpdateU32(static_cast<uint32_t>(s.ColumnInt(11)));
     uint64_t bits = 0;
     if (!s.ColumnIsNull(12)) {

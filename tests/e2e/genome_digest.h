@@ -14,6 +14,7 @@
 #include <string>
 #include <vector>
 
+#include "common/genes.h"
 #include "common/sha256.h"
 #include "tests/support/db_check.h"
 
@@ -41,8 +42,10 @@ inline std::string DigestFrom(const std::vector<StoredGenome>& run,
         h.UpdateU32(static_cast<uint32_t>(it->second->slot));
       }
     }
-    h.UpdateU32(static_cast<uint32_t>(g.genes.size() / 8));
-    h.Update(g.genes);
+    // The float64 form of the genes, whichever encoding the row has.
+    const std::string genes = Float64Bytes(g.genes).value_or(g.genes);
+    h.UpdateU32(static_cast<uint32_t>(genes.size() / 8));
+    h.Update(genes);
     h.UpdateU32(static_cast<uint32_t>(g.eval_state));
     uint64_t bits = 0;
     if (g.has_score) std::memcpy(&bits, &g.score, 8);

@@ -6,10 +6,12 @@
 
 #include <map>
 #include <string>
+#include <utility>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
+#include "common/genes.h"
 #include "common/version.h"
 #include "gmock/gmock.h"
 #include "grpcpp/grpcpp.h"
@@ -159,6 +161,48 @@ TEST_F(ReproducibilityTest, EveryStrategysDigestIsTheSameWhateverTheFleet) {
               2u * 25u * (kind == "natural_es" ? 18u : 9u));
     CommandResult check =
         RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_of_[kind + "-one"]});
+    EXPECT_EQ(check.exit_code, 0) << check.output;
+  }
+}
+
+// gene_precision FLOAT32, with the GA on three islands and with CMA-ES: the
+// same digest with one worker, three workers of two threads and `skerry
+// local`; every stored genome is the tagged float32 form (1 + 4 bytes a gene)
+// and the run differs from the same spec at FLOAT64.
+TEST_F(ReproducibilityTest, Float32RunsAreReproducibleAndStoredInHalf) {
+  const std::string ga = kIslandSpec;
+  std::string cma = kStrategySpec;
+  cma.replace(cma.find("KIND"), 4, "cma_es");
+  for (const auto& [kind, base] :
+       {std::pair<std::string, std::string>{"ga", ga}, {"cma", cma}}) {
+    SCOPED_TRACE(kind);
+    ASSERT_TRUE(testing::WriteTextFile(spec_, base));
+    const std::string wide = RunOnFleet(kind + "-float64", 1, 2);
+    ASSERT_TRUE(testing::WriteTextFile(
+        spec_, absl::StrCat(base, "gene_precision: FLOAT32\n")));
+    const std::string one = RunOnFleet(kind + "-float32-one", 1, 1);
+    ASSERT_EQ(one.size(), 64u);
+    EXPECT_NE(one, wide);
+    EXPECT_EQ(RunOnFleet(kind + "-float32-three", 3, 2), one)
+        << "3 workers x 2 threads";
+    CommandResult local =
+        RunCommand({SKERRY_CLI_BIN, "local", spec_, "--workers", "2", "--db",
+                    dir_.File(kind + "-float32-local.db")});
+    ASSERT_EQ(local.exit_code, 0) << local.output;
+    EXPECT_EQ(DigestIn(local.output), one) << "skerry local\n" << local.output;
+    const std::vector<testing::StoredGenome> genomes =
+        testing::ReadGenomes(db_of_[kind + "-float32-one"], 1);
+    ASSERT_FALSE(genomes.empty());
+    for (const testing::StoredGenome& g : genomes) {
+      ASSERT_EQ(g.genes.size(), 1u + 4u * 6u) << "genome " << g.id;
+      ASSERT_EQ(g.genes[0], kFloat32Tag) << "genome " << g.id;
+    }
+    for (const testing::StoredGenome& g :
+         testing::ReadGenomes(db_of_[kind + "-float64"], 1)) {
+      ASSERT_EQ(g.genes.size(), 8u * 6u) << "genome " << g.id;
+    }
+    CommandResult check = RunCommand(
+        {SKERRY_COORDINATOR_BIN, "--check", db_of_[kind + "-float32-one"]});
     EXPECT_EQ(check.exit_code, 0) << check.output;
   }
 }

@@ -53,6 +53,26 @@ islands { count: 4 topology: RANDOM random_degree: 2 interval: 4 migrants: 2 }
 stop { max_generations: GENERATIONS }
 )";
 
+// The GA with every gene a float32 value (gene_precision FLOAT32): what the
+// coordinator stores, rounded, is what it breeds from after each restart.
+constexpr char kFloat32Spec[] = R"(
+name: "crash-loop-float32"
+seed: 99176
+genome_length: 8
+gene_precision: FLOAT32
+evaluator { builtin { function: "griewank" } }
+ga {
+  population_size: 20
+  selection { method: STOCHASTIC_UNIVERSAL scaling: LINEAR }
+  crossover { method: BLEND rate: 0.8 blend_alpha: 0.3 }
+  mutation { rate: 0.2 step: 20 }
+  elites: 2
+  immigrants: 1
+}
+islands { count: 4 topology: RANDOM random_degree: 2 interval: 4 migrants: 2 }
+stop { max_generations: GENERATIONS }
+)";
+
 // The evolution strategies: four islands of 10 samples (each island a search
 // of its own, a better migrant moving its mean), restarting whenever a stop
 // criterion holds, which on Griewank happens many times in 250 generations.
@@ -295,6 +315,14 @@ TEST_P(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
             absl::StrCat(kIslands * kPopulation * kGenerations));
   EXPECT_EQ(QueryText(db, "SELECT count(*) FROM genomes WHERE eval_state = 1"),
             "0");
+  if (std::string(param.name) == "ga_float32") {
+    // Every genome stored as a tagged float32 blob: 1 + 4 x 8 bytes.
+    EXPECT_EQ(QueryText(db,
+                        "SELECT count(*) FROM genomes WHERE run_id = 1 AND "
+                        "(length(genes) != 33 OR substr(genes, 1, 1) != "
+                        "x'01')"),
+              "0");
+  }
   if (std::string(param.name) == "ipop_cma_es") {
     // The case is only worth its time if the population grew.
     const auto [restarts, lambda] = MostRestarts(db);
@@ -308,6 +336,7 @@ TEST_P(CrashLoopTest, KilledCoordinatorAndWorkersLoseNothingAndChangeNothing) {
 INSTANTIATE_TEST_SUITE_P(
     EveryStrategy, CrashLoopTest,
     ::testing::Values(LoopCase{"ga", kSpec, "", 20, 20},
+                      LoopCase{"ga_float32", kFloat32Spec, "", 20, 6},
                       LoopCase{"cma_es", kCmaSpec, "cma_es", 10, 8},
                       LoopCase{"sep_cma_es", kCmaSpec, "sep_cma_es", 10, 8},
                       LoopCase{"ipop_cma_es", kIpopSpec, "", 5, 8},

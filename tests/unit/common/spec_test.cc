@@ -522,5 +522,35 @@ TEST(ValidateSpecTest, UnnormalisedSpecIsRejectedNotAccepted) {
   EXPECT_FALSE(ValidateSpec(MinimalSpec()).ok());
 }
 
+// gene_precision: FLOAT32 needs bounds a float32 holds and a float32 value
+// between them; an unknown value is refused naming the field.
+// FLT_MAX = (2 - 2^-23) x 2^127 = 3.40282e+38 (IEEE 754 binary32).
+TEST(ValidateSpecTest, Float32PrecisionNeedsBoundsAFloat32Holds) {
+  RunSpec spec = Parse(
+      "genome_length: 3 evaluator { builtin { function: \"sphere\" } } "
+      "gene_precision: FLOAT32");
+  EXPECT_TRUE(PrepareSpec(spec).ok()) << PrepareSpec(spec).status();
+  RunSpec far = spec;
+  far.set_lower_bound(-1e39);
+  far.set_init_lower(-1);
+  absl::Status s = PrepareSpec(far).status();
+  EXPECT_TRUE(absl::IsInvalidArgument(s));
+  EXPECT_THAT(std::string(s.message()), HasSubstr("lower_bound"));
+  EXPECT_THAT(std::string(s.message()), HasSubstr("3.40282e+38"));
+  RunSpec narrow = spec;
+  // No float32 lies in [0.1, the next double]: 0.1f is above both.
+  narrow.set_lower_bound(0.1);
+  narrow.set_upper_bound(std::nextafter(0.1, 1.0));
+  narrow.set_init_lower(0.1);
+  narrow.set_init_upper(0.1);
+  s = PrepareSpec(narrow).status();
+  EXPECT_THAT(std::string(s.message()), HasSubstr("no float32 value"));
+  RunSpec odd = spec;
+  odd.set_gene_precision(static_cast<skerry::v1::GenePrecision>(9));
+  s = PrepareSpec(odd).status();
+  EXPECT_THAT(std::string(s.message()), HasSubstr("gene_precision"));
+  EXPECT_THAT(std::string(s.message()), HasSubstr("FLOAT32"));
+}
+
 }  // namespace
 }  // namespace skerry

@@ -4,8 +4,10 @@
 #include "server/engine/strategy.h"
 
 #include <memory>
+#include <string>
 #include <vector>
 
+#include "common/genes.h"
 #include "common/spec.h"
 #include "gtest/gtest.h"
 #include "server/engine/breeder.h"
@@ -198,6 +200,56 @@ TEST(CmaStrategyTest, AGaStateIsRefused) {
   skerry::v1::StrategyState ga;
   ga.mutable_ga();
   EXPECT_TRUE(absl::IsInvalidArgument((*s)->Restore(ga)));
+}
+
+// gene_precision FLOAT32: every strategy's genomes, seeds and bred ones, are
+// float32 values inside the bounds, and the nearest ones to what the same
+// strategy makes at FLOAT64 (the rounding is the only difference at
+// generation 0).
+TEST(Float32StrategyTest, EveryStrategyMakesFloat32GenesInsideTheBounds) {
+  for (const char* kind : {"ga", "cma_es", "sep_cma_es", "natural_es"}) {
+    SCOPED_TRACE(kind);
+    RunSpec wide = GaSpec();
+    if (std::string(kind) != "ga") {
+      wide.clear_ga();
+      RunSpec raw = wide;
+      skerry::v1::StrategySpec* st = raw.mutable_strategy();
+      if (std::string(kind) == "cma_es") st->mutable_cma_es();
+      if (std::string(kind) == "sep_cma_es") st->mutable_sep_cma_es();
+      if (std::string(kind) == "natural_es") st->mutable_natural_es();
+      absl::StatusOr<RunSpec> prepared = PrepareSpec(raw);
+      ASSERT_TRUE(prepared.ok()) << prepared.status();
+      wide = *prepared;
+    }
+    RunSpec narrow = wide;
+    narrow.set_gene_precision(skerry::v1::FLOAT32);
+    ASSERT_TRUE(ValidateSpec(narrow).ok());
+    absl::StatusOr<std::unique_ptr<Strategy>> a = MakeStrategy(wide, 0);
+    absl::StatusOr<std::unique_ptr<Strategy>> b = MakeStrategy(narrow, 0);
+    ASSERT_TRUE(a.ok() && b.ok());
+    absl::StatusOr<std::vector<GenomeRecord>> ga = (*a)->Start();
+    absl::StatusOr<std::vector<GenomeRecord>> gb = (*b)->Start();
+    ASSERT_TRUE(ga.ok() && gb.ok());
+    ASSERT_EQ(ga->size(), gb->size());
+    for (size_t i = 0; i < ga->size(); ++i) {
+      EXPECT_FALSE(FitsFloat32((*ga)[i].genes));  // random doubles
+      ASSERT_TRUE(FitsFloat32((*gb)[i].genes)) << "slot " << i;
+      for (size_t j = 0; j < (*gb)[i].genes.size(); ++j) {
+        const double x = (*ga)[i].genes[j];
+        const double y = (*gb)[i].genes[j];
+        EXPECT_EQ(y, static_cast<double>(static_cast<float>(x)));
+        EXPECT_GE(y, narrow.lower_bound());
+        EXPECT_LE(y, narrow.upper_bound());
+      }
+    }
+    // Bred generations too.
+    ASSERT_TRUE((*b)->Tell(Evaluated(*gb, 1), {}).ok());
+    absl::StatusOr<std::vector<GenomeRecord>> next = (*b)->Ask();
+    ASSERT_TRUE(next.ok()) << next.status();
+    for (const GenomeRecord& g : *next) {
+      EXPECT_TRUE(FitsFloat32(g.genes)) << "slot " << g.slot;
+    }
+  }
 }
 
 }  // namespace
