@@ -178,7 +178,7 @@ std::vector<CommandSpec> AccessCommandSpecs() {
        "coordinator keeps only its hash. `token list` shows the live tokens "
        "(--all: revoked ones too), never their text. `token revoke ID` ends a "
        "token at once. Needs a token of role admin.",
-       AccessHandler},
+       TokenHandler},
       {"audit",
        {},
        {{"run", "N", "only entries about run N"},
@@ -189,34 +189,47 @@ std::vector<CommandSpec> AccessCommandSpecs() {
        "backup and token change, with who asked, when, from which address, "
        "and how it ended (refused calls by a known token included). Needs a "
        "token of role admin.",
-       AccessHandler},
+       AuditHandler},
       {"whoami",
        {},
        {},
        "show whom the coordinator takes you to be",
        "Prints the principal and role of your token as the coordinator sees "
        "them, or says that access control is off. Any valid token may ask.",
-       AccessHandler},
+       WhoAmIHandler},
   };
 }
 
-bool IsAccessCommand(absl::string_view command) {
-  return command == "token" || command == "audit" || command == "whoami";
-}
-
-int AccessCommand(const ParsedArgs& args,
-                  skerry::v1::AccessService::StubInterface& stub,
-                  const std::string& target, Io& io) {
-  if (args.command == "audit") return Audit(args, stub, target, io);
-  if (args.command == "whoami") return WhoAmI(stub, target, io);
+int TokenCommand(const ParsedArgs& args,
+                 skerry::v1::AccessService::StubInterface& stub,
+                 const std::string& target, Io& io) {
+  using Action =
+      int (*)(const ParsedArgs&, skerry::v1::AccessService::StubInterface&,
+              const std::string&, Io&);
+  static constexpr struct {
+    const char* name;
+    Action run;
+  } kActions[] = {
+      {"create", TokenCreate}, {"list", TokenList}, {"revoke", TokenRevoke}};
   const std::string& action = args.positionals[0];
-  if (action == "create") return TokenCreate(args, stub, target, io);
-  if (action == "list") return TokenList(args, stub, target, io);
-  if (action == "revoke") return TokenRevoke(args, stub, target, io);
+  for (const auto& a : kActions) {
+    if (action == a.name) return a.run(args, stub, target, io);
+  }
   return Usage("token",
                absl::StrCat("unknown ACTION '", action,
                             "'; it is create, list or revoke"),
                io);
+}
+
+int AuditCommand(const ParsedArgs& args,
+                 skerry::v1::AccessService::StubInterface& stub,
+                 const std::string& target, Io& io) {
+  return Audit(args, stub, target, io);
+}
+
+int WhoAmICommand(skerry::v1::AccessService::StubInterface& stub,
+                  const std::string& target, Io& io) {
+  return WhoAmI(stub, target, io);
 }
 
 std::string FormatTokens(const std::vector<skerry::v1::TokenInfo>& tokens,

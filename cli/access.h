@@ -23,12 +23,17 @@ namespace skerry::cli {
 struct Io;
 
 std::vector<CommandSpec> AccessCommandSpecs();
-bool IsAccessCommand(absl::string_view command);
 
-// `args` is a parsed access command; `target` names the coordinator in
-// messages. Returns the exit code.
-int AccessCommand(const ParsedArgs& args,
-                  skerry::v1::AccessService::StubInterface& stub,
+// Each runs its parsed command (`token`: its ACTION, looked up in a table of
+// create, list and revoke); `target` names the coordinator in messages.
+// Returns the exit code.
+int TokenCommand(const ParsedArgs& args,
+                 skerry::v1::AccessService::StubInterface& stub,
+                 const std::string& target, Io& io);
+int AuditCommand(const ParsedArgs& args,
+                 skerry::v1::AccessService::StubInterface& stub,
+                 const std::string& target, Io& io);
+int WhoAmICommand(skerry::v1::AccessService::StubInterface& stub,
                   const std::string& target, Io& io);
 
 // Table printers, for tests.

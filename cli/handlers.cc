@@ -252,17 +252,38 @@ int LineageHandler(CommandContext& c) {
   });
 }
 
-int AccessHandler(CommandContext& c) {
+int TokenHandler(CommandContext& c) {
   return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
     auto access = skerry::v1::AccessService::NewStub(ch);
-    return AccessCommand(c.args, *access, c.args.coordinator, c.io);
+    return TokenCommand(c.args, *access, c.args.coordinator, c.io);
   });
 }
 
-int ValidationHandler(CommandContext& c) {
+int AuditHandler(CommandContext& c) {
+  return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
+    auto access = skerry::v1::AccessService::NewStub(ch);
+    return AuditCommand(c.args, *access, c.args.coordinator, c.io);
+  });
+}
+
+int WhoAmIHandler(CommandContext& c) {
+  return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
+    auto access = skerry::v1::AccessService::NewStub(ch);
+    return WhoAmICommand(*access, c.args.coordinator, c.io);
+  });
+}
+
+int ValidateHandler(CommandContext& c) {
   return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
     auto validation = skerry::v1::ValidationService::NewStub(ch);
-    return ValidationCommand(c.args, *validation, c.io);
+    return ValidateGenomeCommand(c.args, *validation, c.io);
+  });
+}
+
+int ValidationsHandler(CommandContext& c) {
+  return WithChannel(c, [&](const std::shared_ptr<grpc::Channel>& ch) {
+    auto validation = skerry::v1::ValidationService::NewStub(ch);
+    return ValidationsCommand(c.args, *validation, c.io);
   });
 }
 

@@ -48,9 +48,12 @@ int ImportHandler(CommandContext& context);
 int ExtendHandler(CommandContext& context);
 int WorkersHandler(CommandContext& context);
 int ReportHandler(CommandContext& context);
-int LineageHandler(CommandContext& context);     // every lineage command
-int AccessHandler(CommandContext& context);      // token, audit, whoami
-int ValidationHandler(CommandContext& context);  // validate, validations
+int LineageHandler(CommandContext& context);  // every lineage command
+int TokenHandler(CommandContext& context);
+int AuditHandler(CommandContext& context);
+int WhoAmIHandler(CommandContext& context);
+int ValidateHandler(CommandContext& context);
+int ValidationsHandler(CommandContext& context);
 // No coordinator of the command line's.
 int LocalHandler(CommandContext& context);
 int HelpHandler(CommandContext& context);

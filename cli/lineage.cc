@@ -256,17 +256,36 @@ int LineageCommand(const ParsedArgs& args, const LineageStubFactory& factory,
       refs.push_back(*ref);
     }
   }
-  std::unique_ptr<Stub> stub = factory(args.coordinator);
-  Call call{args, *stub, confirm, io, confirm_rows};
-  const std::string& c = args.command;
-  if (c == "ancestors") return AncestorsCommand(call, refs[0], *depth);
-  if (c == "descendants") return DescendantsCommand(call, refs[0], *depth);
-  if (c == "descent") return DescentCommand(call, refs[0]);
-  if (c == "common-ancestor") {
-    return CommonAncestorCommand(call, refs[0], refs[1]);
+  // Each lineage command's query, by name: the positional counts are the
+  // command table's (ParseArgs checked them), so refs holds what each needs.
+  using Query = int (*)(const Call&, const std::vector<GenomeRef>&, uint32_t);
+  static constexpr struct {
+    const char* name;
+    Query run;
+  } kQueries[] = {
+      {"ancestors", [](const Call& c, const std::vector<GenomeRef>& r,
+                       uint32_t d) { return AncestorsCommand(c, r[0], d); }},
+      {"descendants",
+       [](const Call& c, const std::vector<GenomeRef>& r, uint32_t d) {
+         return DescendantsCommand(c, r[0], d);
+       }},
+      {"descent", [](const Call& c, const std::vector<GenomeRef>& r,
+                     uint32_t) { return DescentCommand(c, r[0]); }},
+      {"common-ancestor",
+       [](const Call& c, const std::vector<GenomeRef>& r, uint32_t) {
+         return CommonAncestorCommand(c, r[0], r[1]);
+       }},
+      {"coalescence", [](const Call& c, const std::vector<GenomeRef>&,
+                         uint32_t d) { return CoalescenceCommand(c, d); }},
+      {"attribution", [](const Call& c, const std::vector<GenomeRef>& r,
+                         uint32_t) { return AttributionCommand(c, r[0]); }},
+  };
+  for (const auto& q : kQueries) {
+    if (args.command != q.name) continue;
+    std::unique_ptr<Stub> stub = factory(args.coordinator);
+    Call call{args, *stub, confirm, io, confirm_rows};
+    return q.run(call, refs, *depth);
   }
-  if (c == "coalescence") return CoalescenceCommand(call, *depth);
-  if (c == "attribution") return AttributionCommand(call, refs[0]);
   return Usage(args, absl::InvalidArgumentError("not a lineage command"), io);
 }
 

@@ -173,7 +173,7 @@ std::vector<CommandSpec> ValidationCommandSpecs() {
        "RUN/ISLAND/GENERATION/SLOT or RUN/best. A genome is validated once; "
        "asking again prints the stored validation. Exit 1 when the "
        "validation failed or is still pending at the timeout.",
-       ValidationHandler},
+       ValidateHandler},
       {"validations",
        {"RUN"},
        {{"limit", "N", "at most N, newest first (default 100)"}, kJsonFlag},
@@ -181,19 +181,21 @@ std::vector<CommandSpec> ValidationCommandSpecs() {
        "Lists the held-out validations of a run: each generation's champion "
        "(as the spec's validation.champions says) and the genomes people "
        "asked for, with training and validation scores.",
-       ValidationHandler},
+       ValidationsHandler},
   };
 }
 
-bool IsValidationCommand(absl::string_view command) {
-  return command == "validate" || command == "validations";
+int ValidateGenomeCommand(const ParsedArgs& args,
+                          skerry::v1::ValidationService::StubInterface& stub,
+                          Io& io) {
+  Calls calls(stub, args.coordinator);
+  return ValidateCommand(args, calls, io);
 }
 
-int ValidationCommand(const ParsedArgs& args,
-                      skerry::v1::ValidationService::StubInterface& stub,
-                      Io& io) {
+int ValidationsCommand(const ParsedArgs& args,
+                       skerry::v1::ValidationService::StubInterface& stub,
+                       Io& io) {
   Calls calls(stub, args.coordinator);
-  if (args.command == "validate") return ValidateCommand(args, calls, io);
   return ListCommand(args, calls, io);
 }
 

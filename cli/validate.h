@@ -24,11 +24,14 @@ inline constexpr int kDefaultValidateTimeoutSeconds = 300;
 inline constexpr absl::Duration kValidatePollInterval = absl::Milliseconds(500);
 
 std::vector<CommandSpec> ValidationCommandSpecs();
-bool IsValidationCommand(absl::string_view command);
 
-int ValidationCommand(const ParsedArgs& args,
-                      skerry::v1::ValidationService::StubInterface& stub,
-                      Io& io);
+// `validate` and `validations`, parsed; each returns the exit code.
+int ValidateGenomeCommand(const ParsedArgs& args,
+                          skerry::v1::ValidationService::StubInterface& stub,
+                          Io& io);
+int ValidationsCommand(const ParsedArgs& args,
+                       skerry::v1::ValidationService::StubInterface& stub,
+                       Io& io);
 
 // One validation in words, several lines (`validate`).
 std::string FormatValidation(const skerry::v1::Validation& v,

@@ -11,8 +11,6 @@
 namespace skerry::api {
 namespace {
 
-constexpr size_t kMaxSpecTextBytes = 1 << 20;
-
 int64_t RunId(uint64_t id) { return static_cast<int64_t>(id); }
 
 }  // namespace
@@ -51,10 +49,7 @@ grpc::Status RunServiceImpl::Summarise(int64_t run_id,
 grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
                                        const skerry::v1::SubmitRunRequest* req,
                                        skerry::v1::SubmitRunResponse* resp) {
-  if (req->spec_text().size() > kMaxSpecTextBytes) {
-    return ToGrpc(absl::InvalidArgumentError(
-        absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes")));
-  }
+  // spec_text's size is bounded before any handler runs (request_bounds.h).
   if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
     return ToGrpc(s);
   }

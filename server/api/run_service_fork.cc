@@ -13,8 +13,6 @@
 namespace skerry::api {
 namespace {
 
-constexpr size_t kMaxChangesBytes = 1 << 20;
-
 // What the fork stores as its spec text: the parent's, then the changes as
 // comments, so that the text says where the run came from.
 std::string ForkText(const std::string& parent_text, uint64_t parent_id,
@@ -34,10 +32,7 @@ std::string ForkText(const std::string& parent_text, uint64_t parent_id,
 grpc::Status RunServiceImpl::ForkRun(grpc::ServerContext* ctx,
                                      const skerry::v1::ForkRunRequest* req,
                                      skerry::v1::SubmitRunResponse* resp) {
-  if (req->changes().size() > kMaxChangesBytes) {
-    return ToGrpc(absl::InvalidArgumentError(
-        absl::StrCat("changes: at most ", kMaxChangesBytes, " bytes")));
-  }
+  // changes' size is bounded before any handler runs (request_bounds.h).
   if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
     return ToGrpc(s);
   }

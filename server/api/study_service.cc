@@ -11,8 +11,6 @@
 namespace skerry::api {
 namespace {
 
-constexpr size_t kMaxSpecTextBytes = 1 << 20;
-
 bool NameChar(char c) {
   return std::isalnum(static_cast<unsigned char>(c)) || c == '.' || c == '-' ||
          c == '_';
@@ -66,10 +64,7 @@ grpc::Status StudyServiceImpl::SubmitSeries(
   auto invalid = [](const std::string& m) {
     return ToGrpc(absl::InvalidArgumentError(m));
   };
-  if (req->spec_text().size() > kMaxSpecTextBytes) {
-    return invalid(
-        absl::StrCat("spec_text: at most ", kMaxSpecTextBytes, " bytes"));
-  }
+  // spec_text's size is bounded before any handler runs (request_bounds.h).
   if (absl::Status s = CheckRequestId(req->request_id()); !s.ok()) {
     return invalid(std::string(s.message()));
   }
