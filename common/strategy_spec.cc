@@ -88,8 +88,13 @@ absl::Status ValidateNaturalEs(const RunSpec& spec) {
   SKERRY_RETURN_IF_ERROR(CheckEsRange("beta2", es.beta2(), 0, false, 1, true));
   SKERRY_RETURN_IF_ERROR(
       CheckEsRange("epsilon", es.epsilon(), 0, true, 1, false));
-  return CheckEsRange("weight_decay", es.weight_decay(), 0, false, kMaxSigma,
-                      false);
+  SKERRY_RETURN_IF_ERROR(CheckEsRange("weight_decay", es.weight_decay(), 0,
+                                      false, kMaxSigma, false));
+  if (es.has_sigma_decay()) {
+    SKERRY_RETURN_IF_ERROR(
+        CheckEsRange("sigma_decay", es.sigma_decay(), 0, true, 1, false));
+  }
+  return CheckEsRange("sigma_min", es.sigma_min(), 0, false, es.sigma(), false);
 }
 
 }  // namespace

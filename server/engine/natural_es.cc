@@ -79,6 +79,14 @@ std::vector<double> Perturbation(const skerry::v1::RunSpec& spec,
   return eps;
 }
 
+double NaturalEsSigma(const skerry::v1::NaturalEsSpec& es,
+                      uint32_t generation) {
+  if (!es.has_sigma_decay()) return es.sigma();
+  return std::max(
+      es.sigma_min(),
+      es.sigma() * std::pow(es.sigma_decay(), static_cast<double>(generation)));
+}
+
 void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es,
                      absl::Span<const double> utilities,
                      const std::vector<std::vector<double>>& eps,

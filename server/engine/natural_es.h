@@ -70,9 +70,17 @@ std::vector<double> Perturbation(const skerry::v1::RunSpec& spec,
                                  uint32_t island, uint32_t generation,
                                  uint32_t pair);
 
+// The sigma generation `generation` samples with: es.sigma() when
+// sigma_decay is unset, else max(sigma_min, sigma x sigma_decay^generation)
+// (std::pow, so like the normal variates it depends on libm: reproducible
+// per platform).
+double NaturalEsSigma(const skerry::v1::NaturalEsSpec& es, uint32_t generation);
+
 // The update of one generation from its 2P utilities (slot order: pair i's
 // plus sample at 2i, minus at 2i+1; higher is better, a failed evaluation
 // -infinity): centred ranks, mirrored gradient, weight decay, one Adam step.
+// The gradient divides by es.sigma(): pass a spec whose sigma is the one the
+// generation sampled with (NaturalEsSigma).
 // REQUIRES: a validated natural_es spec; eps as MirroredGradient.
 void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es,
                      absl::Span<const double> utilities,

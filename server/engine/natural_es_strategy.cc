@@ -85,7 +85,9 @@ class NaturalEsStrategy : public Strategy {
     for (uint32_t i = 0; i < pairs; ++i) {
       eps.push_back(Perturbation(spec_, island_, generation, i));
     }
-    NaturalEsUpdate(es_, utilities, eps, &state_);
+    skerry::v1::NaturalEsSpec sampled = es_;  // the sigma g sampled with
+    sampled.set_sigma(NaturalEsSigma(es_, generation));
+    NaturalEsUpdate(sampled, utilities, eps, &state_);
     for (int j = 0; j < state_.centre_size(); ++j) {
       state_.set_centre(j, std::clamp(state_.centre(j), spec_.lower_bound(),
                                       spec_.upper_bound()));
@@ -155,6 +157,7 @@ class NaturalEsStrategy : public Strategy {
   std::vector<GenomeRecord> Samples() const {
     const uint32_t pairs = es_.population_size() / 2;
     const size_t n = spec_.genome_length();
+    const double sigma = NaturalEsSigma(es_, generation_);
     std::vector<GenomeRecord> out;
     out.reserve(2 * pairs);
     for (uint32_t i = 0; i < pairs; ++i) {
@@ -170,7 +173,7 @@ class NaturalEsStrategy : public Strategy {
         g.genes.resize(n);
         for (size_t j = 0; j < n; ++j) {
           const double x =
-              state_.centre(static_cast<int>(j)) + sign * es_.sigma() * eps[j];
+              state_.centre(static_cast<int>(j)) + sign * sigma * eps[j];
           g.genes[j] = std::clamp(x, spec_.lower_bound(), spec_.upper_bound());
         }
         out.push_back(std::move(g));

@@ -40,8 +40,7 @@ TEST(GenesTest, Float64GenesRoundTripBitForBitInEightBytesEach) {
 
 TEST(GenesTest, GenesThatAreFloat32ValuesTakeFourBytesEachAfterATag) {
   const std::vector<double> genes = {0.5, -0.0, 3.0,
-                                     0.100000001490116119384765625,
-                                     16777216.0};
+                                     0.100000001490116119384765625, 16777216.0};
   ASSERT_TRUE(FitsFloat32(genes));
   const std::string packed = PackGenes(genes);
   ASSERT_EQ(packed.size(), 1 + 4 * genes.size());
@@ -64,9 +63,9 @@ TEST(GenesTest, GenesThatAreFloat32ValuesTakeFourBytesEachAfterATag) {
 }
 
 TEST(GenesTest, OneGeneAFloat32CannotHoldKeepsTheWholeGenomeFloat64) {
-  EXPECT_FALSE(FitsFloat32({0.5, 0.1}));        // 0.1 is not 0.1f
-  EXPECT_FALSE(FitsFloat32({16777217.0}));      // 2^24 + 1
-  EXPECT_FALSE(FitsFloat32({1e300}));           // out of range
+  EXPECT_FALSE(FitsFloat32({0.5, 0.1}));    // 0.1 is not 0.1f
+  EXPECT_FALSE(FitsFloat32({16777217.0}));  // 2^24 + 1
+  EXPECT_FALSE(FitsFloat32({1e300}));       // out of range
   EXPECT_EQ(PackGenes({0.5, 0.1}).size(), 16u);
   EXPECT_EQ(PackGenes({}).size(), 0u);  // empty stays the float64 form
 }

@@ -8,6 +8,8 @@
 #include <cmath>
 #include <limits>
 #include <memory>
+#include <string>
+#include <utility>
 #include <vector>
 
 #include "common/spec.h"
@@ -241,6 +243,71 @@ TEST(NaturalEsStrategyTest, SamplesAreMirroredPairsRebuiltFromTheirKey) {
   EXPECT_NE(Perturbation(spec, 2, 1, 0), Perturbation(spec, 1, 1, 0));
   EXPECT_NE(Perturbation(spec, 2, 1, 0), Perturbation(spec, 2, 2, 0));
   EXPECT_NE(Perturbation(spec, 2, 1, 0), Perturbation(spec, 2, 1, 1));
+}
+
+// The sigma schedule: generation g samples with max(sigma_min, sigma x
+// sigma_decay^g) (an exponentially decayed noise level with a floor, common
+// practice), hand-computed for sigma 0.5 and decay 0.5: 0.5, 0.25, 0.125,
+// then the floor 0.1. Unset, sigma is fixed.
+TEST(NaturalEsSigmaTest, ScheduleDecaysToItsFloorAndUnsetIsFixed) {
+  const RunSpec fixed = EsSpec("sigma: 0.5");
+  EXPECT_EQ(NaturalEsSigma(fixed.strategy().natural_es(), 0), 0.5);
+  EXPECT_EQ(NaturalEsSigma(fixed.strategy().natural_es(), 40), 0.5);
+  const RunSpec decayed = EsSpec("sigma: 0.5 sigma_decay: 0.5 sigma_min: 0.1");
+  const skerry::v1::NaturalEsSpec& es = decayed.strategy().natural_es();
+  EXPECT_EQ(NaturalEsSigma(es, 0), 0.5);
+  EXPECT_EQ(NaturalEsSigma(es, 1), 0.25);
+  EXPECT_EQ(NaturalEsSigma(es, 2), 0.125);
+  EXPECT_EQ(NaturalEsSigma(es, 3), 0.1);
+  EXPECT_EQ(NaturalEsSigma(es, 30), 0.1);
+}
+
+// With a schedule, generation 2's mirrored pairs lie at centre +/- sigma_2
+// eps, sigma_2 = 0.3 x 0.8^2 = 0.192 (well inside the sphere's bounds, so no
+// clamping).
+TEST(NaturalEsSigmaTest, ScheduledSamplesUseTheirGenerationsSigma) {
+  const RunSpec spec = EsSpec("sigma: 0.3 sigma_decay: 0.8");
+  absl::StatusOr<std::unique_ptr<Strategy>> made = MakeStrategy(spec, 0);
+  ASSERT_TRUE(made.ok());
+  absl::StatusOr<std::vector<GenomeRecord>> gen = (*made)->Start();
+  ASSERT_TRUE(gen.ok());
+  for (int g = 1; g <= 2; ++g) {
+    ASSERT_TRUE((*made)->Tell(Evaluated(*gen, 100 * g), {}).ok());
+    gen = (*made)->Ask();
+    ASSERT_TRUE(gen.ok());
+  }
+  const skerry::v1::StrategyState state = (*made)->Save();
+  ASSERT_EQ(state.generation(), 2u);
+  const double sigma = NaturalEsSigma(spec.strategy().natural_es(), 2);
+  EXPECT_NEAR(sigma, 0.192, 1e-15);
+  for (uint32_t i = 0; i < 3; ++i) {
+    const std::vector<double> eps = Perturbation(spec, 0, 2, i);
+    for (int j = 0; j < 10; ++j) {
+      const double c = state.natural_es().centre(j);
+      EXPECT_EQ((*gen)[2 * i].genes[j], c + sigma * eps[j]);
+      EXPECT_EQ((*gen)[2 * i + 1].genes[j], c - sigma * eps[j]);
+    }
+  }
+}
+
+// A schedule out of range is refused naming the field.
+TEST(NaturalEsSigmaTest, BadScheduleIsRefusedNamingTheField) {
+  for (const auto& [extra, field] :
+       {std::pair<std::string, std::string>{"sigma_decay: 0",
+                                            "natural_es.sigma_decay"},
+        {"sigma_decay: 1.5", "natural_es.sigma_decay"},
+        {"sigma: 0.1 sigma_min: 0.2", "natural_es.sigma_min"}}) {
+    absl::StatusOr<RunSpec> spec = ParseSpecText(
+        "genome_length: 4 evaluator { builtin { function: \"sphere\" } } "
+        "strategy { natural_es { " +
+            extra + " } }",
+        "bad.spec");
+    ASSERT_TRUE(spec.ok());
+    absl::StatusOr<RunSpec> prepared = PrepareSpec(*spec);
+    ASSERT_FALSE(prepared.ok()) << extra;
+    EXPECT_NE(prepared.status().message().find(field), std::string::npos)
+        << prepared.status();
+  }
 }
 
 // Saved after any generation and restored in a new instance (a restarted
