@@ -1,7 +1,5 @@
 #include "server/api/run_service.h"
 
-#include <algorithm>
-
 #include "absl/strings/str_cat.h"
 #include "common/quote.h"
 #include "server/api/grpc_status.h"

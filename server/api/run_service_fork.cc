@@ -1,7 +1,6 @@
 // RunServiceImpl::ForkRun (run_service.h): the parent's spec with the
 // caller's changes, through the coordinator's budgets, then Engine::Fork;
 // and RunServiceImpl::DeleteRun, through Engine::Delete.
-#include <algorithm>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"

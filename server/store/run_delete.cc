@@ -87,6 +87,8 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(
       SKERRY_ASSIGN_OR_RETURN(bool row, q.Step());
       if (row) out.genomes = static_cast<uint64_t>(q.ColumnInt(0));
     }
+    // The run's ids (and its genomes' task ids) are not given again.
+    SKERRY_RETURN_IF_ERROR(RaiseIdFloorsLocked());
     for (const char* sql : {"DELETE FROM genome_metrics WHERE run_id = ?1",
                             "DELETE FROM strategy_states WHERE run_id = ?1",
                             "DELETE FROM validations WHERE run_id = ?1",

@@ -115,15 +115,11 @@ absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
   absl::Status copied = [&]() -> absl::Status {
     mu_.AssertHeld();  // called under the lock above (for -Wthread-safety)
     SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
-    SKERRY_ASSIGN_OR_RETURN(
-        int64_t run_off,
-        One(conn_.get(), "SELECT coalesce(max(id), 0) FROM main.runs"));
-    SKERRY_ASSIGN_OR_RETURN(
-        int64_t genome_off,
-        One(conn_.get(), "SELECT coalesce(max(id), 0) FROM main.genomes"));
-    SKERRY_ASSIGN_OR_RETURN(
-        int64_t validation_off,
-        One(conn_.get(), "SELECT coalesce(max(id), 0) FROM main.validations"));
+    // Above every run id ever given, a deleted one's included.
+    SKERRY_ASSIGN_OR_RETURN(int64_t run_off, LargestRunIdLocked());
+    SKERRY_ASSIGN_OR_RETURN(int64_t genome_off, LargestIdLocked("genomes"));
+    SKERRY_ASSIGN_OR_RETURN(int64_t validation_off,
+                            LargestIdLocked("validations"));
     // ?1 the run offset, ?2 the genome offset, ?3 the validation offset.
     // request_id is dropped: it is unique per owner on this coordinator.
     const char* kCopies[] = {

@@ -159,6 +159,18 @@ CREATE TABLE fleet_keys (
 ) WITHOUT ROWID;
 )sql";
 
+// Version 13: the largest id ever given to a run, genome and validation, as
+// it was before rows were deleted (a run deleted, a generation trimmed at a
+// finish). New ids go above it: an id is never given twice, so a late
+// result for a discarded genome's task can never land on a new genome that
+// took its id, and the audit log's run ids name one run each.
+constexpr const char* kSchemaIdFloors = R"sql(
+CREATE TABLE id_floors (
+  name TEXT PRIMARY KEY,
+  floor INTEGER NOT NULL
+) WITHOUT ROWID;
+)sql";
+
 // kMigrations[v] takes a database from version v to v + 1 (index 0 creates).
 // Version 5 (principals, tokens, audit) lives in access_schema.h; version 6
 // (row checksums, submit request ids) is built by SchemaV6(); version 9
@@ -166,8 +178,9 @@ CREATE TABLE fleet_keys (
 // states, with their checksums) by SchemaV10(); version 11 is the fleet key;
 // version 12 (row sums written by the hot statements) by SchemaV12().
 constexpr const char* kMigrations[] = {
-    kSchemaV1, kSchemaV2,      kSchemaV3, kSchemaV4, kSchemaAccess,   nullptr,
-    kSchemaV7, kSchemaMetrics, nullptr,   nullptr,   kSchemaFleetKey, nullptr};
+    kSchemaV1,       kSchemaV2, kSchemaV3,      kSchemaV4, kSchemaAccess,
+    nullptr,         kSchemaV7, kSchemaMetrics, nullptr,   nullptr,
+    kSchemaFleetKey, nullptr,   kSchemaIdFloors};
 static_assert(sizeof(kMigrations) / sizeof(kMigrations[0]) ==
               Store::kSchemaVersion);
 
@@ -585,14 +598,8 @@ absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
   // The id is chosen here, as SQLite would (the largest rowid plus one; the
   // table has no AUTOINCREMENT), because the row's sum covers it and is
   // computed in the INSERT itself (schema version 12, SchemaV12).
-  int64_t next_id = 0;
-  {
-    SKERRY_ASSIGN_OR_RETURN(
-        auto top,
-        conn_->PrepareCached("SELECT coalesce(max(id), 0) FROM genomes"));
-    SKERRY_ASSIGN_OR_RETURN(bool row, top.Step());
-    if (row) next_id = top.ColumnInt(0);
-  }
+  // Above every id ever given, a deleted genome's included (id_floors).
+  SKERRY_ASSIGN_OR_RETURN(int64_t next_id, LargestIdLocked("genomes"));
   SKERRY_ASSIGN_OR_RETURN(
       auto ins,
       conn_->PrepareCached(
@@ -635,16 +642,55 @@ absl::Status Store::CreateRun(RunRecord* run,
   return txn.Commit();
 }
 
+absl::StatusOr<int64_t> Store::LargestIdLocked(const char* table) {
+  // One statement per table: the name is a table's, never outside input.
+  SKERRY_ASSIGN_OR_RETURN(
+      auto top,
+      conn_->PrepareCached(absl::StrCat(
+          "SELECT max(coalesce((SELECT max(id) FROM main.", table,
+          "), 0), coalesce((SELECT floor FROM main.id_floors WHERE name = '",
+          table, "'), 0))")));
+  SKERRY_ASSIGN_OR_RETURN(bool row, top.Step());
+  return row ? top.ColumnInt(0) : 0;
+}
+
+absl::Status Store::RaiseIdFloorsLocked() {
+  for (const char* table : {"runs", "genomes", "validations"}) {
+    SKERRY_ASSIGN_OR_RETURN(
+        auto up, conn_->PrepareCached(absl::StrCat(
+                     "INSERT INTO main.id_floors (name, floor) SELECT '", table,
+                     "', coalesce(max(id), 0) FROM main.", table,
+                     " WHERE true ON CONFLICT (name) DO UPDATE SET floor = "
+                     "max(floor, excluded.floor)")));
+    SKERRY_RETURN_IF_ERROR(up.Run());
+  }
+  return absl::OkStatus();
+}
+
+absl::StatusOr<int64_t> Store::LargestRunIdLocked() {
+  SKERRY_ASSIGN_OR_RETURN(const int64_t stored, LargestIdLocked("runs"));
+  // A run deleted before version 13 kept no floor; its id is still named by
+  // the audit log's entries of calls that succeeded on it.
+  SKERRY_ASSIGN_OR_RETURN(
+      auto audited,
+      conn_->PrepareCached("SELECT coalesce(max(run_id), 0) FROM main.audit "
+                           "WHERE run_id IS NOT NULL AND code = 0"));
+  SKERRY_ASSIGN_OR_RETURN(bool row, audited.Step());
+  return std::max(stored, row ? audited.ColumnInt(0) : int64_t{0});
+}
+
 absl::Status Store::InsertRunRow(RunRecord* run, int64_t parent_run,
                                  uint32_t parent_generation,
                                  int64_t evaluations) {
+  SKERRY_ASSIGN_OR_RETURN(const int64_t largest, LargestRunIdLocked());
   SKERRY_ASSIGN_OR_RETURN(
       auto ins,
       conn_->Prepare(
           "INSERT INTO runs (name, owner, spec, spec_text, seed, state, "
           "priority, message, created_ms, updated_ms, started_ms, "
-          "request_id, parent_run, parent_generation, evaluations) VALUES "
-          "(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)"));
+          "request_id, parent_run, parent_generation, evaluations, id) VALUES "
+          "(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)"));
+  ins.BindInt(16, largest + 1);
   ins.BindText(1, run->name);
   ins.BindText(2, run->owner);
   ins.BindBlob(3, run->spec.SerializeAsString());
@@ -901,6 +947,8 @@ absl::Status Store::FinishRun(int64_t run_id, RunState state,
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
   if (keep_through.has_value()) {
+    // The trimmed genomes' ids (and their tasks' ids) are not given again.
+    SKERRY_RETURN_IF_ERROR(RaiseIdFloorsLocked());
     for (const char* sql :
          {"DELETE FROM genome_metrics WHERE run_id = ?1 AND genome_id IN "
           "(SELECT id FROM genomes WHERE run_id = ?1 AND generation > ?2)",

@@ -280,7 +280,7 @@ inline constexpr const char* kEmptyFileMessage =
 
 class Store {
  public:
-  static constexpr int kSchemaVersion = 12;
+  static constexpr int kSchemaVersion = 13;
 
   // Opens the database at `path`, applies the pragmas and migrates an older
   // schema. Only a file that does not exist is created (and initialised); an
@@ -546,6 +546,21 @@ class Store {
   absl::Status InsertRunRow(RunRecord* run, int64_t parent_run,
                             uint32_t parent_generation, int64_t evaluations)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The largest run id ever given: of a stored run, or named by a call that
+  // succeeded in the audit log (a deleted or archived run's id stays there).
+  // New runs take ids above it, so a run id is never given twice and the
+  // audit log's entries about a run are about that run only. (Genome and
+  // validation ids of a deleted run may be given again: nothing outside the
+  // store names them once their run is gone.)
+  absl::StatusOr<int64_t> LargestRunIdLocked()
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The largest id `table` (runs, genomes, validations) has ever given: its
+  // largest stored id or its floor in id_floors (schema version 13), which
+  // RaiseIdFloorsLocked sets before rows are deleted. New rows take ids
+  // above it.
+  absl::StatusOr<int64_t> LargestIdLocked(const char* table)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  absl::Status RaiseIdFloorsLocked() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Island i's strategy_states row at `generation`: `states[i]`, or empty.
   absl::Status InsertStrategyStates(int64_t run_id, uint32_t count,
                                     uint32_t generation,

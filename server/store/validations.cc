@@ -102,8 +102,12 @@ absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
       auto ins,
       conn_->Prepare("INSERT INTO validations (run_id, genome_id, generation, "
                      "reason, state, score, cases, requested_by, requested_ms, "
-                     "completed_ms, copied_from) "
-                     "VALUES (?,?,?,?,?,?,?,?,?,?,?)"));
+                     "completed_ms, copied_from, id) "
+                     "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)"));
+  // Above every id ever given (a validation task's id derives from it).
+  SKERRY_ASSIGN_OR_RETURN(const int64_t largest,
+                          LargestIdLocked("validations"));
+  ins.BindInt(12, largest + 1);
   ins.BindInt(1, run_id);
   ins.BindInt(2, request.genome_id);
   ins.BindInt(3, generation);

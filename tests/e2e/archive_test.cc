@@ -154,17 +154,19 @@ TEST_F(ArchiveTest, ArchivedRunLeavesOnlyAfterItsFileIsWholeAndImportsBack) {
   EXPECT_EQ(bad.exit_code, 1) << bad.output;
   EXPECT_EQ(testing::QueryText(db_, "SELECT count(*) FROM runs"), "0");
 
-  // A run submitted meanwhile takes id 1 (the table is empty); the parent
-  // comes back past it, with the same genomes.
-  Finish(Cli({"submit", spec}), "1");
+  // A run submitted meanwhile takes id 3, not 1 (the table is empty, but
+  // runs 1 and 2 existed: a run id is never given twice, so the audit log's
+  // entries about run 1 stay about the run archived); the parent comes back
+  // past it, with the same genomes.
+  Finish(Cli({"submit", spec}), "3");
   CommandResult back = Cli({"import", parent_file});
   ASSERT_EQ(back.exit_code, 0) << back.output;
-  EXPECT_THAT(back.output, HasSubstr("imported run 1 as run 2 (160 genomes)"));
-  EXPECT_EQ(Digest("2"), digest_1);
-  EXPECT_EQ(Digest("1"), digest_1);  // the same spec and seed
-  CommandResult lineage = Cli({"ancestors", "2/0/7/0", "--yes"});
+  EXPECT_THAT(back.output, HasSubstr("imported run 1 as run 4 (160 genomes)"));
+  EXPECT_EQ(Digest("4"), digest_1);
+  EXPECT_EQ(Digest("3"), digest_1);  // the same spec and seed
+  CommandResult lineage = Cli({"ancestors", "4/0/7/0", "--yes"});
   EXPECT_EQ(lineage.exit_code, 0) << lineage.output;
-  EXPECT_THAT(lineage.output, HasSubstr(" 2/1/"));  // migrants crossed
+  EXPECT_THAT(lineage.output, HasSubstr(" 4/1/"));  // migrants crossed
 
   CommandResult audit = Cli({"audit", "--limit", "100"});
   ASSERT_EQ(audit.exit_code, 0) << audit.output;

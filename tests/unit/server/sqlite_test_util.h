@@ -48,14 +48,15 @@ inline constexpr char kUndoVersion10[] = "DROP TABLE strategy_states; ";
 // fleet key of worker secrets and lease proofs).
 inline constexpr char kUndoVersion11[] = "DROP TABLE fleet_keys; ";
 
-// SQL that takes a database of the current schema (Store::kSchemaVersion, 12)
-// back to schema version `version` (1 to 12), each version's undo in turn
+// SQL that takes a database of the current schema (Store::kSchemaVersion, 13)
+// back to schema version `version` (1 to 13), each version's undo in turn
 // from the newest down, and sets the stored version: for tests that build
 // an older database from a current one and open it to migrate it forward.
 // Version 12 changed only how row sums are written, so it has nothing to
 // undo. Append the new version's undo here when a migration is added.
 inline std::string UndoSchemaTo(int version) {
   const char* const undo[] = {
+      /* 13 (id floors) */ "DROP TABLE id_floors; ",
       /* 12 */ "",
       /* 11 */ kUndoVersion11,
       /* 10 */ kUndoVersion10,
@@ -70,7 +71,7 @@ inline std::string UndoSchemaTo(int version) {
       /* 2 */ "DROP INDEX genomes_parent_a; DROP INDEX genomes_parent_b; ",
   };
   std::string sql;
-  for (int v = 12; v > version && v >= 2; --v) sql += undo[12 - v];
+  for (int v = 13; v > version && v >= 2; --v) sql += undo[13 - v];
   sql +=
       "UPDATE schema_version SET version = " + std::to_string(version) + "; ";
   return sql;

@@ -5,6 +5,7 @@
 
 #include <sqlite3.h>
 
+#include <algorithm>
 #include <array>
 #include <map>
 #include <optional>
@@ -386,6 +387,43 @@ class FinishRunTest : public StoreTest {
     return next;
   }
 };
+
+// Observed: a run ended by its target trimmed the generations a faster
+// island had bred past the stop generation, the next generation stored took
+// the trimmed genomes' ids, and a worker's late result for a trimmed task
+// (the same task id, attempt and worker, so the same lease proof) was stored
+// as the new genome's score. Ids of trimmed and deleted rows are never given
+// again (id_floors, schema version 13), nor is a deleted run's id.
+TEST_F(FinishRunTest, TrimmedAndDeletedIdsAreNeverGivenAgain) {
+  std::vector<GenomeRecord> genomes;
+  const RunRecord first = CreateRun(1, &genomes);
+  std::vector<GenomeRecord> g1 = Step(first, 0, genomes, {9, 9, 9, 9});
+  int64_t largest = 0;
+  for (const GenomeRecord& g : g1) largest = std::max(largest, g.id);
+  ASSERT_TRUE(store_
+                  ->FinishRun(first.id, skerry::v1::FINISHED, "target reached",
+                              /*keep_through=*/0, 5000)
+                  .ok());
+  ASSERT_EQ(RawQuery(path(), "SELECT max(id) FROM genomes"),
+            std::to_string(largest - 4));  // generation 1 trimmed
+  std::vector<GenomeRecord> more;
+  const RunRecord second = CreateRun(1, &more);
+  for (const GenomeRecord& g : more) {
+    EXPECT_GT(g.id, largest) << "slot " << g.slot << " took a trimmed id";
+  }
+  // Deleting the newest run leaves its ids taken too.
+  ASSERT_TRUE(store_
+                  ->FinishRun(second.id, skerry::v1::STOPPED, "stopped",
+                              std::nullopt, 6000)
+                  .ok());
+  int64_t newest = 0;
+  for (const GenomeRecord& g : more) newest = std::max(newest, g.id);
+  ASSERT_TRUE(store_->DeleteRun(second.id).ok());
+  std::vector<GenomeRecord> third_genomes;
+  const RunRecord third = CreateRun(1, &third_genomes);
+  EXPECT_GT(third.id, second.id);
+  for (const GenomeRecord& g : third_genomes) EXPECT_GT(g.id, newest);
+}
 
 TEST_F(FinishRunTest, KeepThroughTrimsLaterGenerationsAndRecomputesChampion) {
   std::vector<GenomeRecord> genomes;
