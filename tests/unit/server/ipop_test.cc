@@ -68,7 +68,8 @@ std::vector<Step> FlatRun(const RunSpec& spec, int generations) {
   for (int g = 0; g < generations && gen.ok(); ++g) {
     EXPECT_EQ(gen->size(), 4u) << "generation " << g;
     EXPECT_TRUE((*s)->Tell(Scored(*gen, nullptr), {}).ok());
-    const skerry::v1::CmaStrategyState& c = (*s)->Save().cma_es();
+    const skerry::v1::StrategyState saved = (*s)->Save();
+    const skerry::v1::CmaStrategyState& c = saved.cma_es();
     steps.push_back(
         {c.restarts(), c.search().lambda(), c.search().iteration()});
     gen = (*s)->Ask();
