@@ -498,14 +498,21 @@ absl::StatusOr<int> Store::StoredVersion() {
         "schema_version is empty: the database is damaged (nothing was "
         "changed)");
   }
-  const int version = static_cast<int>(v.ColumnInt(0));
+  const int64_t version = v.ColumnInt(0);
   if (version > kSchemaVersion) {
     return absl::FailedPreconditionError(
         absl::StrCat("database schema version ", version,
                      " is newer than this program's version ", kSchemaVersion,
                      "; use a newer Skerry (nothing was changed)"));
   }
-  return version;
+  if (version < 1) {
+    // Found by UBSan under the corruption sweep: a flipped byte made the
+    // version negative, and the migration loop indexed kMigrations with it.
+    return absl::DataLossError(absl::StrCat(
+        "database schema version ", version, " is not one Skerry writes (1 to ",
+        kSchemaVersion, "): the database is damaged (nothing was changed)"));
+  }
+  return static_cast<int>(version);
 }
 
 absl::Status Store::Migrate(int version) {

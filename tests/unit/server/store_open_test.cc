@@ -175,6 +175,24 @@ TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
   EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
 }
 
+// Found by UBSan in the corruption sweep: a flipped byte made the stored
+// version -116, and the migration indexed its table with it. A version no
+// Skerry writes (below 1) is damage: DataLoss, naming it, nothing changed.
+TEST_F(StoreOpenTest, VersionNoSkerryWritesIsDamageAndLeftUnchanged) {
+  store_.reset();
+  for (const char* version : {"-116", "0"}) {
+    RawExec(path(),
+            absl::StrCat("UPDATE schema_version SET version = ", version));
+    const std::string before = ReadFileBytes(path());
+    absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path());
+    ASSERT_FALSE(store.ok()) << version;
+    EXPECT_TRUE(absl::IsDataLoss(store.status())) << store.status();
+    EXPECT_THAT(Message(store.status()),
+                HasSubstr(absl::StrCat("schema version ", version)));
+    EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
+  }
+}
+
 // `--read-only` (Store::Options::read_only) never migrates: an older file is
 // refused naming both versions and left byte for byte as it was.
 TEST_F(StoreOpenTest, ReadOnlyOpenRefusesAnOlderSchemaAndChangesNothing) {
