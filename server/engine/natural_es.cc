@@ -87,12 +87,13 @@ double NaturalEsSigma(const skerry::v1::NaturalEsSpec& es,
       es.sigma() * std::pow(es.sigma_decay(), static_cast<double>(generation)));
 }
 
-void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es,
+void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es, uint32_t generation,
                      absl::Span<const double> utilities,
                      const std::vector<std::vector<double>>& eps,
                      skerry::v1::NaturalEsState* state) {
   const std::vector<double> shaped = CentredRanks(utilities);
-  std::vector<double> direction = MirroredGradient(shaped, eps, es.sigma());
+  std::vector<double> direction =
+      MirroredGradient(shaped, eps, NaturalEsSigma(es, generation));
   for (size_t j = 0; j < direction.size(); ++j) {
     direction[j] =
         -direction[j] + es.weight_decay() * state->centre(static_cast<int>(j));

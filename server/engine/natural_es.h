@@ -79,10 +79,10 @@ double NaturalEsSigma(const skerry::v1::NaturalEsSpec& es, uint32_t generation);
 // The update of one generation from its 2P utilities (slot order: pair i's
 // plus sample at 2i, minus at 2i+1; higher is better, a failed evaluation
 // -infinity): centred ranks, mirrored gradient, weight decay, one Adam step.
-// The gradient divides by es.sigma(): pass a spec whose sigma is the one the
-// generation sampled with (NaturalEsSigma).
+// `generation` is the one the utilities are of: the gradient divides by the
+// sigma it sampled with (NaturalEsSigma).
 // REQUIRES: a validated natural_es spec; eps as MirroredGradient.
-void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es,
+void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es, uint32_t generation,
                      absl::Span<const double> utilities,
                      const std::vector<std::vector<double>>& eps,
                      skerry::v1::NaturalEsState* state);

@@ -85,9 +85,7 @@ class NaturalEsStrategy : public Strategy {
     for (uint32_t i = 0; i < pairs; ++i) {
       eps.push_back(Perturbation(spec_, island_, generation, i));
     }
-    skerry::v1::NaturalEsSpec sampled = es_;  // the sigma g sampled with
-    sampled.set_sigma(NaturalEsSigma(es_, generation));
-    NaturalEsUpdate(sampled, utilities, eps, &state_);
+    NaturalEsUpdate(es_, generation, utilities, eps, &state_);
     for (int j = 0; j < state_.centre_size(); ++j) {
       state_.set_centre(j, std::clamp(state_.centre(j), spec_.lower_bound(),
                                       spec_.upper_bound()));

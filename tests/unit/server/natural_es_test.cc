@@ -161,7 +161,7 @@ TEST(NaturalEsUpdateTest, WeightDecayPullsTheCentreTowardZero) {
     s.add_adam_v(0.0);
   }
   std::vector<std::vector<double>> eps = {Perturbation(spec, 0, 0, 0)};
-  NaturalEsUpdate(spec.strategy().natural_es(), {1.0, 1.0}, eps, &s);
+  NaturalEsUpdate(spec.strategy().natural_es(), 0, {1.0, 1.0}, eps, &s);
   EXPECT_NEAR(s.centre(0), 2.9, 1e-6);
   EXPECT_NEAR(s.centre(1), -0.9, 1e-6);
 }
