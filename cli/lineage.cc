@@ -127,14 +127,6 @@ std::vector<CommandSpec> LineageCommandSpecs() {
   };
 }
 
-bool IsLineageCommand(absl::string_view command) {
-  for (const char* name : {"ancestors", "descent", "descendants",
-                           "common-ancestor", "coalescence", "attribution"}) {
-    if (command == name) return true;
-  }
-  return false;
-}
-
 namespace {
 
 absl::StatusOr<std::vector<uint64_t>> Numbers(absl::string_view text,

@@ -39,7 +39,6 @@ inline constexpr uint32_t kDefaultDotDepth = 6;
 
 // The command table entries, for args.cc.
 std::vector<CommandSpec> LineageCommandSpecs();
-bool IsLineageCommand(absl::string_view command);
 
 // GENOME as above; InvalidArgument says what was expected.
 absl::StatusOr<skerry::v1::GenomeRef> ParseGenomeRef(absl::string_view text);

@@ -117,9 +117,10 @@ absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
     SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
     // Above every run id ever given, a deleted one's included.
     SKERRY_ASSIGN_OR_RETURN(int64_t run_off, LargestRunIdLocked());
-    SKERRY_ASSIGN_OR_RETURN(int64_t genome_off, LargestIdLocked("genomes"));
+    SKERRY_ASSIGN_OR_RETURN(int64_t genome_off,
+                            LargestIdLocked(IdTable::kGenomes));
     SKERRY_ASSIGN_OR_RETURN(int64_t validation_off,
-                            LargestIdLocked("validations"));
+                            LargestIdLocked(IdTable::kValidations));
     // ?1 the run offset, ?2 the genome offset, ?3 the validation offset.
     // request_id is dropped: it is unique per owner on this coordinator.
     const char* kCopies[] = {

@@ -606,7 +606,7 @@ absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
   // table has no AUTOINCREMENT), because the row's sum covers it and is
   // computed in the INSERT itself (schema version 12, SchemaV12).
   // Above every id ever given, a deleted genome's included (id_floors).
-  SKERRY_ASSIGN_OR_RETURN(int64_t next_id, LargestIdLocked("genomes"));
+  SKERRY_ASSIGN_OR_RETURN(int64_t next_id, LargestIdLocked(IdTable::kGenomes));
   SKERRY_ASSIGN_OR_RETURN(
       auto ins,
       conn_->PrepareCached(
@@ -649,33 +649,51 @@ absl::Status Store::CreateRun(RunRecord* run,
   return txn.Commit();
 }
 
-absl::StatusOr<int64_t> Store::LargestIdLocked(const char* table) {
-  // One statement per table: the name is a table's, never outside input.
+namespace {
+
+// The fixed statements of LargestIdLocked and RaiseIdFloorsLocked, one per
+// table that keeps an id floor, so no SQL text is built at run time.
+struct IdTableSql {
+  const char* largest;
+  const char* raise_floor;
+};
+
+#define SKERRY_ID_TABLE_SQL(table)                                           \
+  IdTableSql {                                                               \
+    "SELECT max(coalesce((SELECT max(id) FROM main." table                   \
+    "), 0), coalesce((SELECT floor FROM main.id_floors WHERE name = '" table \
+    "'), 0))",                                                               \
+        "INSERT INTO main.id_floors (name, floor) SELECT '" table            \
+        "', coalesce(max(id), 0) FROM main." table                           \
+        " WHERE true ON CONFLICT (name) DO UPDATE SET floor = "              \
+        "max(floor, excluded.floor)"                                         \
+  }
+constexpr IdTableSql kIdTableSql[] = {SKERRY_ID_TABLE_SQL("runs"),
+                                      SKERRY_ID_TABLE_SQL("genomes"),
+                                      SKERRY_ID_TABLE_SQL("validations")};
+#undef SKERRY_ID_TABLE_SQL
+
+}  // namespace
+
+absl::StatusOr<int64_t> Store::LargestIdLocked(IdTable table) {
   SKERRY_ASSIGN_OR_RETURN(
       auto top,
-      conn_->PrepareCached(absl::StrCat(
-          "SELECT max(coalesce((SELECT max(id) FROM main.", table,
-          "), 0), coalesce((SELECT floor FROM main.id_floors WHERE name = '",
-          table, "'), 0))")));
+      conn_->PrepareCached(kIdTableSql[static_cast<int>(table)].largest));
   SKERRY_ASSIGN_OR_RETURN(bool row, top.Step());
   return row ? top.ColumnInt(0) : 0;
 }
 
 absl::Status Store::RaiseIdFloorsLocked() {
-  for (const char* table : {"runs", "genomes", "validations"}) {
-    SKERRY_ASSIGN_OR_RETURN(
-        auto up, conn_->PrepareCached(absl::StrCat(
-                     "INSERT INTO main.id_floors (name, floor) SELECT '", table,
-                     "', coalesce(max(id), 0) FROM main.", table,
-                     " WHERE true ON CONFLICT (name) DO UPDATE SET floor = "
-                     "max(floor, excluded.floor)")));
+  for (const IdTableSql& sql : kIdTableSql) {
+    SKERRY_ASSIGN_OR_RETURN(auto up, conn_->PrepareCached(sql.raise_floor));
     SKERRY_RETURN_IF_ERROR(up.Run());
   }
   return absl::OkStatus();
 }
 
 absl::StatusOr<int64_t> Store::LargestRunIdLocked() {
-  SKERRY_ASSIGN_OR_RETURN(const int64_t stored, LargestIdLocked("runs"));
+  SKERRY_ASSIGN_OR_RETURN(const int64_t stored,
+                          LargestIdLocked(IdTable::kRuns));
   // A run deleted before version 13 kept no floor; its id is still named by
   // the audit log's entries of calls that succeeded on it.
   SKERRY_ASSIGN_OR_RETURN(

@@ -550,15 +550,15 @@ class Store {
   // succeeded in the audit log (a deleted or archived run's id stays there).
   // New runs take ids above it, so a run id is never given twice and the
   // audit log's entries about a run are about that run only. (Genome and
-  // validation ids of a deleted run may be given again: nothing outside the
-  // store names them once their run is gone.)
+  // validation ids are never given twice either: see LargestIdLocked.)
   absl::StatusOr<int64_t> LargestRunIdLocked()
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  // The largest id `table` (runs, genomes, validations) has ever given: its
-  // largest stored id or its floor in id_floors (schema version 13), which
-  // RaiseIdFloorsLocked sets before rows are deleted. New rows take ids
-  // above it.
-  absl::StatusOr<int64_t> LargestIdLocked(const char* table)
+  // The tables whose ids are never given twice (schema version 13).
+  enum class IdTable { kRuns = 0, kGenomes = 1, kValidations = 2 };
+  // The largest id `table` has ever given: its largest stored id or its
+  // floor in id_floors, which RaiseIdFloorsLocked sets before rows are
+  // deleted. New rows take ids above it.
+  absl::StatusOr<int64_t> LargestIdLocked(IdTable table)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   absl::Status RaiseIdFloorsLocked() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Island i's strategy_states row at `generation`: `states[i]`, or empty.

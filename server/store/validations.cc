@@ -106,7 +106,7 @@ absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
                      "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)"));
   // Above every id ever given (a validation task's id derives from it).
   SKERRY_ASSIGN_OR_RETURN(const int64_t largest,
-                          LargestIdLocked("validations"));
+                          LargestIdLocked(IdTable::kValidations));
   ins.BindInt(12, largest + 1);
   ins.BindInt(1, run_id);
   ins.BindInt(2, request.genome_id);

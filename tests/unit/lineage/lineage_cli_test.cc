@@ -177,12 +177,17 @@ TEST_F(LineageCliTest, BadGenomeIsAUsageErrorAndUnknownOneFails) {
 }
 
 TEST(LineageCommandTableTest, EveryLineageCommandIsRegistered) {
-  for (const char* name : {"ancestors", "descent", "descendants",
-                           "common-ancestor", "coalescence", "attribution"}) {
-    SCOPED_TRACE(name);
-    EXPECT_NE(FindCommand(name), nullptr);
-    EXPECT_TRUE(IsLineageCommand(name));
+  std::vector<std::string> names;
+  for (const CommandSpec& spec : LineageCommandSpecs()) {
+    names.push_back(spec.name);
+    SCOPED_TRACE(spec.name);
+    const CommandSpec* found = FindCommand(spec.name);
+    ASSERT_NE(found, nullptr);
+    EXPECT_EQ(found->handler, spec.handler);
   }
+  EXPECT_THAT(names, ::testing::UnorderedElementsAre(
+                         "ancestors", "descent", "descendants",
+                         "common-ancestor", "coalescence", "attribution"));
   EXPECT_THAT(GeneralHelp(), HasSubstr("common-ancestor"));
 }
 
