@@ -9,7 +9,11 @@
 // coordinator speaks every protocol from kMinProtocolVersion to
 // kProtocolVersion and refuses any other at Join, naming both versions.
 // Protocol 2: worker secrets and lease proofs (fleet.proto), which protocol 1
-// workers do not send.
+// workers do not send. Protocol 3: Task.genes32 (a gene_precision FLOAT32
+// run's genes, 4 bytes each); a worker states its protocol in every
+// LeaseRequest, and one of protocol 2 (which sends none there) gets those
+// genes as doubles in Task.genes, the same values, since it would not read
+// genes32.
 //
 // Thread safety: constants only.
 #ifndef SKERRY_COMMON_VERSION_H_
@@ -19,16 +23,24 @@
 #include <string>
 
 #include "absl/strings/str_cat.h"
+#include "absl/strings/string_view.h"
 
 namespace skerry {
 
 inline constexpr char kVersion[] = "0.1.0";  // SKERRY_RELEASE_VERSION
-inline constexpr uint32_t kProtocolVersion = 2;
+inline constexpr uint32_t kProtocolVersion = 3;
 inline constexpr uint32_t kMinProtocolVersion = 2;
+// The first protocol whose workers read Task.genes32.
+inline constexpr uint32_t kGenes32Protocol = 3;
 
 // The --version line of `program`, e.g. "skerry-worker 0.1.0 (worker
-// protocol 1)".
-inline std::string VersionLine(const char* program) {
+// protocol 3)"; the coordinator's names every protocol it speaks:
+// "skerry-coordinator 0.1.0 (worker protocols 2 to 3)".
+inline std::string VersionLine(absl::string_view program) {
+  if (program == "skerry-coordinator") {
+    return absl::StrCat(program, " ", kVersion, " (worker protocols ",
+                        kMinProtocolVersion, " to ", kProtocolVersion, ")\n");
+  }
   return absl::StrCat(program, " ", kVersion, " (worker protocol ",
                       kProtocolVersion, ")\n");
 }

@@ -483,6 +483,7 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
     request.set_worker_id(id);
     request.set_worker_secret(Secret());
     request.set_max_tasks(options_.batch);
+    request.set_protocol_version(kProtocolVersion);
     request.set_wait_ms(static_cast<uint32_t>(absl::ToInt64Milliseconds(wait)));
     LeaseResponse response;
     grpc::ClientContext context;

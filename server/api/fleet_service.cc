@@ -135,6 +135,12 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
                     wait, kMaxLeaseBytes);
   absl::StatusOr<const auth::FleetSeal*> seal = Seal();  // known: CheckWorker
   for (skerry::v1::Task& t : tasks) {
+    if (req->protocol_version() < kGenes32Protocol && t.genes32_size() > 0) {
+      // A worker of protocol 2 would not read genes32 and would score an
+      // empty genome: it gets the same values as doubles.
+      t.mutable_genes()->Assign(t.genes32().begin(), t.genes32().end());
+      t.clear_genes32();
+    }
     t.set_lease_proof(
         (*seal)->LeaseProof(req->worker_id(), t.task_id(), t.attempt()));
     *resp->add_tasks() = std::move(t);

@@ -104,10 +104,15 @@ TEST_F(LifecycleTest, JoinWithAnUnspokenProtocolIsRefusedNamingBothVersions) {
                                      " (release \"9.8.7\")")));
   EXPECT_THAT(refused.error_message(),
               HasSubstr(absl::StrCat("release ", kVersion, ", worker protocol ",
+                                     kMinProtocolVersion, " to ",
                                      kProtocolVersion, ")")));
-  // Its own protocol is spoken. 0 (a worker from before the field) is
-  // protocol 1, which sends no worker secret: refused the same way.
+  // Its own protocol is spoken, and the older ones down to the minimum. 0 (a
+  // worker from before the field) is protocol 1, which sends no worker
+  // secret: refused the same way.
   EXPECT_TRUE(Join(kProtocolVersion, &response).ok());
+  EXPECT_TRUE(Join(kMinProtocolVersion, &response).ok());
+  EXPECT_EQ(Join(kMinProtocolVersion - 1, &response).error_code(),
+            grpc::StatusCode::UNIMPLEMENTED);
   EXPECT_EQ(Join(0, &response).error_code(), grpc::StatusCode::UNIMPLEMENTED);
 }
 

@@ -11,6 +11,7 @@
 // time, never on their own.
 #include <cmath>
 #include <limits>
+#include <map>
 #include <memory>
 #include <set>
 #include <string>
@@ -293,6 +294,63 @@ TEST_F(WireAbuseTest, LeaseOfZeroOrTooManyTasksIsInvalidArgument) {
   const std::vector<Task> tasks = Lease(worker);
   ASSERT_EQ(tasks.size(), kPopulation);
   for (const Task& t : tasks) EXPECT_EQ(t.attempt(), 1u);
+  FinishHonestly();
+}
+
+// A gene_precision FLOAT32 run's genes travel as Task.genes32 only to a
+// worker that says in its LeaseRequest that it reads them (protocol 3); a
+// protocol-2 worker, which sends no protocol_version there, gets the same
+// values as doubles in Task.genes instead of an empty genome.
+TEST_F(WireAbuseTest, Float32GenesComeAsDoublesToAProtocol2Worker) {
+  skerry::v1::SubmitRunRequest submit;
+  *submit.mutable_spec() = SmallSpec();
+  submit.mutable_spec()->set_name("float32");
+  submit.mutable_spec()->set_gene_precision(skerry::v1::FLOAT32);
+  skerry::v1::SubmitRunResponse submitted;
+  grpc::Status s = runs_->SubmitRun(Context().get(), submit, &submitted);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  const uint64_t narrow_run = submitted.run().id();
+  const uint64_t worker = Join();
+  std::map<uint64_t, std::vector<double>> genes_of;  // FLOAT32 run's tasks
+  for (const uint32_t protocol : {0u, 2u, kGenes32Protocol}) {
+    SCOPED_TRACE(absl::StrCat("protocol_version ", protocol));
+    skerry::v1::LeaseRequest req;
+    req.set_worker_id(worker);
+    req.set_worker_secret(SecretOf(worker));
+    req.set_max_tasks(1000);
+    req.set_wait_ms(200);
+    req.set_protocol_version(protocol);
+    skerry::v1::LeaseResponse resp;
+    s = fleet_->Lease(Context().get(), req, &resp);
+    ASSERT_TRUE(s.ok()) << s.error_message();
+    ASSERT_EQ(resp.tasks_size(), 2 * static_cast<int>(kPopulation));
+    for (const Task& t : resp.tasks()) {
+      if (t.run_id() != narrow_run) {
+        EXPECT_EQ(t.genes_size(), 3);  // a FLOAT64 run: always doubles
+        EXPECT_EQ(t.genes32_size(), 0);
+        continue;
+      }
+      std::vector<double> genes;
+      if (protocol < kGenes32Protocol) {
+        EXPECT_EQ(t.genes32_size(), 0);
+        genes.assign(t.genes().begin(), t.genes().end());
+      } else {
+        EXPECT_EQ(t.genes_size(), 0);
+        genes.assign(t.genes32().begin(), t.genes32().end());
+      }
+      ASSERT_EQ(genes.size(), 3u) << "task " << t.task_id();
+      for (double g : genes) {
+        EXPECT_EQ(g, static_cast<double>(static_cast<float>(g)))
+            << "task " << t.task_id() << ": not a float32 value";
+      }
+      auto [it, first] = genes_of.emplace(t.task_id(), genes);
+      if (!first) {
+        EXPECT_EQ(it->second, genes) << "task " << t.task_id();
+      }
+    }
+    clock_.Advance(absl::Seconds(2));  // the leases expire: lease them again
+  }
+  EXPECT_EQ(genes_of.size(), kPopulation);
   FinishHonestly();
 }
 
