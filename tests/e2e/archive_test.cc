@@ -10,13 +10,14 @@
 #include <signal.h>
 #include <unistd.h>
 
-#include <optional>
 #include <string>
 #include <vector>
 
+#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/e2e/e2e_fleet.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
 
@@ -26,7 +27,6 @@ namespace {
 using testing::CommandResult;
 using ::testing::HasSubstr;
 using ::testing::Not;
-using testing::Process;
 using testing::RunCommand;
 
 constexpr char kSpec[] = R"(
@@ -50,45 +50,28 @@ bool Exists(const std::string& path) { return access(path.c_str(), F_OK) == 0; }
 class ArchiveTest : public ::testing::Test {
  protected:
   void SetUp() override {
-    db_ = dir_.File("archive.db");
-    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
-        SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
-    ASSERT_TRUE(c.ok()) << c.status();
-    coordinator_.emplace(*std::move(c));
-    absl::StatusOr<Process> w = Process::Start(
-        {SKERRY_WORKER_BIN, "--coordinator", coordinator_->address(),
-         "--threads", "2", "--batch", "8", "--name", "w0"},
-        dir_.File("worker.log"));
-    ASSERT_TRUE(w.ok()) << w.status();
-    workers_.push_back(std::move(*w));
+    ASSERT_TRUE(fleet_.ok());
+    ASSERT_TRUE(fleet_.AddWorkers(1, 2));
   }
 
-  CommandResult Cli(std::vector<std::string> args) {
-    std::vector<std::string> argv = {SKERRY_CLI_BIN, "--coordinator",
-                                     coordinator_->address()};
-    argv.insert(argv.end(), args.begin(), args.end());
-    return RunCommand(argv, absl::Seconds(300));
-  }
+  CommandResult Cli(std::vector<std::string> args) { return fleet_.Cli(args); }
 
+  // `made` printed run id `id`, and that run finished.
   void Finish(const CommandResult& made, const std::string& id) {
-    ASSERT_EQ(made.exit_code, 0) << made.output;
     ASSERT_EQ(made.output, id + "\n");
-    CommandResult watch = Cli({"watch", id});
-    ASSERT_EQ(watch.exit_code, 0) << watch.output;
-    ASSERT_THAT(watch.output, HasSubstr("finished"));
+    fleet_.Finished(made);
   }
 
   // The run's digest line's SHA-256.
   std::string Digest(const std::string& id) {
-    CommandResult d = Cli({"digest", id});
-    EXPECT_EQ(d.exit_code, 0) << d.output;
-    return d.output.substr(0, 64);
+    int64_t n = 0;
+    EXPECT_TRUE(absl::SimpleAtoi(id, &n)) << id;
+    return fleet_.Digest(n);
   }
 
   testing::TempDir dir_;
-  std::string db_;
-  std::optional<testing::StartedCoordinator> coordinator_;
-  std::vector<Process> workers_;
+  testing::LoopbackFleet fleet_{dir_, "archive.db"};
+  const std::string& db_ = fleet_.db();
 };
 
 TEST_F(ArchiveTest, ArchivedRunLeavesOnlyAfterItsFileIsWholeAndImportsBack) {
@@ -173,8 +156,8 @@ TEST_F(ArchiveTest, ArchivedRunLeavesOnlyAfterItsFileIsWholeAndImportsBack) {
   EXPECT_THAT(audit.output, HasSubstr("ArchiveRun"));
   EXPECT_THAT(audit.output, HasSubstr("ImportRuns"));
 
-  coordinator_->process.Signal(SIGTERM);
-  ASSERT_TRUE(coordinator_->process.Wait(absl::Seconds(60)).ok());
+  fleet_.coordinator().process.Signal(SIGTERM);
+  ASSERT_TRUE(fleet_.coordinator().process.Wait(absl::Seconds(60)).ok());
   CommandResult check = RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_});
   EXPECT_EQ(check.exit_code, 0) << check.output;
 }

@@ -7,7 +7,6 @@
 #include <signal.h>
 
 #include <map>
-#include <optional>
 #include <regex>
 #include <string>
 #include <tuple>
@@ -17,6 +16,7 @@
 #include "absl/strings/str_cat.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/e2e/e2e_fleet.h"
 #include "tests/e2e/genome_digest.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
@@ -27,7 +27,6 @@ namespace {
 using testing::CommandResult;
 using testing::DigestFrom;
 using ::testing::HasSubstr;
-using testing::Process;
 using testing::RunCommand;
 using testing::StoredGenome;
 
@@ -57,49 +56,27 @@ std::string Key(const StoredGenome& g) {
 class ForkTest : public ::testing::Test {
  protected:
   void SetUp() override {
-    db_ = dir_.File("forks.db");
     spec_ = dir_.File("parent.spec");
     ASSERT_TRUE(testing::WriteTextFile(spec_, kSpec));
-    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
-        SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
-    ASSERT_TRUE(c.ok()) << c.status();
-    coordinator_.emplace(*std::move(c));
-    absl::StatusOr<std::vector<Process>> fleet =
-        testing::StartWorkers(SKERRY_WORKER_BIN, coordinator_->address(), 2, 2,
-                              "w", dir_.File("worker"));
-    ASSERT_TRUE(fleet.ok()) << fleet.status();
-    workers_ = std::move(*fleet);
+    ASSERT_TRUE(fleet_.ok());
+    ASSERT_TRUE(fleet_.AddWorkers(2, 2));
   }
 
-  CommandResult Cli(std::vector<std::string> args) {
-    return testing::RunCli(SKERRY_CLI_BIN, coordinator_->address(), args,
-                           absl::Seconds(300));
-  }
+  CommandResult Cli(std::vector<std::string> args) { return fleet_.Cli(args); }
 
   // Submits the spec and follows run 1 to its end.
   void RunParent() {
     CommandResult submit = Cli({"submit", spec_});
-    ASSERT_EQ(submit.exit_code, 0) << submit.output;
     ASSERT_EQ(submit.output, "1\n");
-    CommandResult watch = Cli({"watch", "1"});
-    ASSERT_EQ(watch.exit_code, 0) << watch.output;
-    ASSERT_THAT(watch.output, HasSubstr("finished"));
+    fleet_.Finished(submit);
   }
 
-  // Stops the coordinator (SIGTERM) and runs `--check` on its database.
-  void StopAndCheck() {
-    coordinator_->process.Signal(SIGTERM);
-    absl::StatusOr<int> code = coordinator_->process.Wait(absl::Seconds(60));
-    ASSERT_TRUE(code.ok()) << code.status();
-    CommandResult check = RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_});
-    EXPECT_EQ(check.exit_code, 0) << check.output;
-  }
+  void StopAndCheck() { fleet_.StopAndCheck(); }
 
   testing::TempDir dir_;
-  std::string db_;
+  testing::LoopbackFleet fleet_{dir_, "forks.db"};
+  const std::string& db_ = fleet_.db();
   std::string spec_;
-  std::optional<testing::StartedCoordinator> coordinator_;
-  std::vector<Process> workers_;
 };
 
 TEST_F(ForkTest, UnchangedForkRepeatsItsParentAndLineageCrossesIntoIt) {

@@ -8,6 +8,7 @@
 #include "absl/strings/str_replace.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/e2e/e2e_fleet.h"
 #include "tests/support/process.h"
 
 namespace skerry {
@@ -17,7 +18,6 @@ using testing::CommandResult;
 using testing::DigestIn;
 using ::testing::HasSubstr;
 using ::testing::Not;
-using testing::Process;
 using testing::RunCommand;
 
 // Two islands with migration every 3 generations, so that an extension must
@@ -46,17 +46,10 @@ std::string Spec(const std::string& rate, int generations) {
 
 class SeriesTest : public ::testing::Test {
  protected:
-  void SetUp() override {
-    db_ = dir_.File("series.db");
-    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
-        SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
-    ASSERT_TRUE(c.ok()) << c.status();
-    coordinator_ = std::make_unique<testing::StartedCoordinator>(*std::move(c));
-  }
+  void SetUp() override { ASSERT_TRUE(fleet_.ok()); }
 
   CommandResult Cli(std::vector<std::string> args) {
-    return testing::RunCli(SKERRY_CLI_BIN, coordinator_->address(), args,
-                           absl::Seconds(120));
+    return fleet_.Cli(args, absl::Seconds(120));
   }
 
   std::string WriteSpec(const std::string& name, const std::string& text) {
@@ -65,27 +58,18 @@ class SeriesTest : public ::testing::Test {
     return path;
   }
 
-  void StartWorkers(int n) {
-    absl::StatusOr<std::vector<Process>> fleet =
-        testing::StartWorkers(SKERRY_WORKER_BIN, coordinator_->address(), n, 2,
-                              "w", dir_.File("worker"));
-    ASSERT_TRUE(fleet.ok()) << fleet.status();
-    for (Process& w : *fleet) workers_.push_back(std::move(w));
-  }
+  void StartWorkers(int n) { ASSERT_TRUE(fleet_.AddWorkers(n, 2)); }
 
   // Follows the run to its end; returns its digest.
   std::string Finish(int run) {
     CommandResult watch = Cli({"watch", absl::StrCat(run)});
     EXPECT_EQ(watch.exit_code, 0) << watch.output;
-    CommandResult digest = Cli({"digest", absl::StrCat(run)});
-    EXPECT_EQ(digest.exit_code, 0) << digest.output;
-    return DigestIn(digest.output);
+    return fleet_.Digest(run);
   }
 
   testing::TempDir dir_;
-  std::string db_;
-  std::unique_ptr<testing::StartedCoordinator> coordinator_;
-  std::vector<Process> workers_;
+  testing::LoopbackFleet fleet_{dir_, "series.db"};
+  const std::string& db_ = fleet_.db();
 };
 
 TEST_F(SeriesTest, SeriesIsSubmittedAtomicallyListedSteeredAndChecked) {

@@ -7,17 +7,13 @@
 // generations, as fork_test.cc checks for the GA), with islands migrating, a
 // fork of a fork too; a fork with a changed field starts from the copied
 // generation and goes its own way; `--check` accepts every run.
-#include <signal.h>
-
-#include <optional>
 #include <string>
 #include <vector>
 
-#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
-#include "absl/strings/strip.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "tests/e2e/e2e_fleet.h"
 #include "tests/e2e/genome_digest.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
@@ -28,7 +24,6 @@ namespace {
 using testing::CommandResult;
 using testing::DigestFrom;
 using ::testing::HasSubstr;
-using testing::Process;
 using testing::RunCommand;
 using testing::StoredGenome;
 
@@ -48,39 +43,14 @@ stop { max_generations: 14 }
 class StrategyForkTest : public ::testing::Test {
  protected:
   void SetUp() override {
-    db_ = dir_.File("es-forks.db");
-    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
-        SKERRY_COORDINATOR_BIN, db_, dir_.File("coordinator.log"));
-    ASSERT_TRUE(c.ok()) << c.status();
-    coordinator_.emplace(*std::move(c));
-    for (int i = 0; i < 2; ++i) {
-      absl::StatusOr<Process> w = Process::Start(
-          {SKERRY_WORKER_BIN, "--coordinator", coordinator_->address(),
-           "--threads", "2", "--batch", "8", "--name", absl::StrCat("w", i)},
-          dir_.File(absl::StrCat("worker", i, ".log")));
-      ASSERT_TRUE(w.ok()) << w.status();
-      workers_.push_back(std::move(*w));
-    }
+    ASSERT_TRUE(fleet_.ok());
+    ASSERT_TRUE(fleet_.AddWorkers(2, 2));
   }
 
-  CommandResult Cli(std::vector<std::string> args) {
-    std::vector<std::string> argv = {SKERRY_CLI_BIN, "--coordinator",
-                                     coordinator_->address()};
-    argv.insert(argv.end(), args.begin(), args.end());
-    return RunCommand(argv, absl::Seconds(300));
-  }
+  CommandResult Cli(std::vector<std::string> args) { return fleet_.Cli(args); }
 
   // The id a submit or fork printed, after following that run to its end.
-  int64_t Finished(const CommandResult& made) {
-    EXPECT_EQ(made.exit_code, 0) << made.output;
-    int64_t id = 0;
-    EXPECT_TRUE(absl::SimpleAtoi(absl::StripAsciiWhitespace(made.output), &id))
-        << made.output;
-    CommandResult watch = Cli({"watch", absl::StrCat(id)});
-    EXPECT_EQ(watch.exit_code, 0) << watch.output;
-    EXPECT_THAT(watch.output, HasSubstr("finished"));
-    return id;
-  }
+  int64_t Finished(const CommandResult& made) { return fleet_.Finished(made); }
 
   int64_t SubmitParent(const std::string& kind) {
     std::string text = kSpec;
@@ -90,19 +60,11 @@ class StrategyForkTest : public ::testing::Test {
     return Finished(Cli({"submit", spec}));
   }
 
-  // Stops the coordinator (SIGTERM) and runs `--check` on its database.
-  void StopAndCheck() {
-    coordinator_->process.Signal(SIGTERM);
-    absl::StatusOr<int> code = coordinator_->process.Wait(absl::Seconds(60));
-    ASSERT_TRUE(code.ok()) << code.status();
-    CommandResult check = RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_});
-    EXPECT_EQ(check.exit_code, 0) << check.output;
-  }
+  void StopAndCheck() { fleet_.StopAndCheck(); }
 
   testing::TempDir dir_;
-  std::string db_;
-  std::optional<testing::StartedCoordinator> coordinator_;
-  std::vector<Process> workers_;
+  testing::LoopbackFleet fleet_{dir_, "es-forks.db"};
+  const std::string& db_ = fleet_.db();
 };
 
 // `child`'s digest from `from` on equals `parent`'s over the same generations.
