@@ -5,6 +5,7 @@
 #include <cstdio>
 #include <map>
 #include <set>
+#include <thread>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
@@ -54,8 +55,10 @@ class CoordinatorImpl final : public Coordinator {
                             store::Store::Open(options.db_path, open));
     // Refuse a file --check would call malformed, and one it cannot write
     // (rather than start, serve reads and fail every write), unless asked
-    // to serve it read-only.
-    SKERRY_RETURN_IF_ERROR(c->store_->QuickCheck());
+    // to serve it read-only. The tables that grow with the evaluations are
+    // checked once serving (StartFullCheck), so that a start does not read
+    // the whole file.
+    SKERRY_RETURN_IF_ERROR(c->store_->QuickCheckAtStart());
     if (absl::Status w =
             options.read_only ? absl::OkStatus() : c->store_->ProbeWrite();
         !w.ok()) {
@@ -177,6 +180,7 @@ class CoordinatorImpl final : public Coordinator {
       SKERRY_ASSIGN_OR_RETURN(c->http_,
                               http::HttpServer::Start(web, std::move(sources)));
     }
+    c->StartFullCheck();
     return c;
   }
 
@@ -211,6 +215,10 @@ class CoordinatorImpl final : public Coordinator {
     // first: waiting Report calls are answered (UNAVAILABLE, results kept by
     // the workers) and its in-flight commit is bounded (Engine::Shutdown), so
     // no handler is left blocked when the server drains.
+    if (full_check_.joinable()) {
+      store_->InterruptFullCheck();
+      full_check_.join();
+    }
     if (http_ != nullptr) http_->Shutdown();         // it calls the services
     if (queue_ != nullptr) queue_->Shutdown();       // wakes long polls
     if (runs_ != nullptr) runs_->ShutdownWatches();  // ends watch streams
@@ -239,9 +247,26 @@ class CoordinatorImpl final : public Coordinator {
  private:
   CoordinatorImpl() = default;
 
+  // The whole file's quick_check, while serving (Store::QuickCheckAtStart
+  // left out the large tables). Damage found stops every write (the engine
+  // holds the fleet and every run summary says why) until an operator
+  // restores the file; reads go on.
+  void StartFullCheck() {
+    full_check_ = std::thread([store = store_.get(), engine = engine_.get()] {
+      const absl::Status found = store->FullCheckWhileServing();
+      if (found.ok() || absl::IsCancelled(found)) return;
+      const absl::Status stop = absl::UnavailableError(
+          absl::StrCat(found.message(), "; nothing more is written to it"));
+      std::fprintf(stderr, "skerry-coordinator: %s\n", stop.ToString().c_str());
+      store->StopWrites(stop);
+      engine->NoteStorageTrouble(stop);
+    });
+  }
+
   Clock* clock_ = nullptr;
   std::unique_ptr<store::OwnerLock> owner_;  // released last
   std::unique_ptr<store::Store> store_;
+  std::thread full_check_;  // StartFullCheck; joined first by Shutdown
   std::unique_ptr<scheduler::TaskQueue> queue_;
   std::unique_ptr<engine::Engine> engine_;
   std::unique_ptr<api::FleetServiceImpl> fleet_;

@@ -1,12 +1,28 @@
 #include "server/store/sqlite.h"
 
 #include <cstring>
+#include <map>
 
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "absl/synchronization/mutex.h"
 #include "server/store/row_sums.h"
 
 namespace skerry::store {
+namespace {
+
+// The connections whose writes were stopped (Connection::StopWrites), with
+// the reason, so that a write refused by PRAGMA query_only (SQLITE_READONLY)
+// reports why rather than "attempt to write a readonly database". Looked up
+// only on that error.
+absl::Mutex stopped_mu(absl::kConstInit);
+std::map<sqlite3*, absl::Status>* StoppedConnections()
+    ABSL_EXCLUSIVE_LOCKS_REQUIRED(stopped_mu) {
+  static auto* stopped = new std::map<sqlite3*, absl::Status>();
+  return stopped;
+}
+
+}  // namespace
 
 absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
   if (rc == SQLITE_OK || rc == SQLITE_DONE || rc == SQLITE_ROW) {
@@ -26,7 +42,12 @@ absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
     // A file it may not write (permissions changed under it) is storage
     // trouble like a failing disk: the engine holds work until a write
     // succeeds, and an INTERNAL error (a bug) need not hold anything.
-    case SQLITE_READONLY:
+    case SQLITE_READONLY: {
+      absl::MutexLock l(&stopped_mu);
+      auto it = StoppedConnections()->find(db);
+      if (it != StoppedConnections()->end()) return it->second;
+      return absl::UnavailableError(msg);
+    }
     case SQLITE_PERM:
       return absl::UnavailableError(msg);
     case SQLITE_CONSTRAINT:
@@ -141,6 +162,10 @@ absl::StatusOr<std::unique_ptr<Connection>> Connection::Open(
 }
 
 Connection::~Connection() {
+  if (!writes_stopped_.ok()) {
+    absl::MutexLock l(&stopped_mu);
+    StoppedConnections()->erase(db_);
+  }
   for (auto& [sql, entry] : cache_) sqlite3_finalize(entry->stmt);
   sqlite3_close_v2(db_);
 }
@@ -163,7 +188,17 @@ absl::StatusOr<Statement> Connection::Prepare(absl::string_view sql) {
   return Statement(db_, stmt);
 }
 
+absl::Status Connection::StopWrites(const absl::Status& why) {
+  writes_stopped_ = why;
+  {
+    absl::MutexLock l(&stopped_mu);
+    (*StoppedConnections())[db_] = why;
+  }
+  return Exec("PRAGMA query_only = 1");
+}
+
 absl::StatusOr<Transaction> Transaction::Begin(Connection* conn) {
+  if (!conn->writes_stopped().ok()) return conn->writes_stopped();
   absl::Status s = conn->Exec("BEGIN IMMEDIATE");
   if (!s.ok()) return s;
   return Transaction(conn);

@@ -128,6 +128,12 @@ class Connection {
   absl::StatusOr<Statement> PrepareCached(absl::string_view sql);
   int64_t LastInsertId() const { return sqlite3_last_insert_rowid(db_); }
   int Changes() const { return sqlite3_changes(db_); }
+  // From now on nothing is written through this connection: PRAGMA
+  // query_only (which SQLite checks as each statement runs, cached ones
+  // included) and Transaction::Begin returning `why`. For a file found
+  // damaged while it is served (Store::StopWrites).
+  absl::Status StopWrites(const absl::Status& why);
+  const absl::Status& writes_stopped() const { return writes_stopped_; }
 
  private:
   struct CachedStatement {
@@ -136,6 +142,7 @@ class Connection {
   };
   explicit Connection(sqlite3* db) : db_(db) {}
   sqlite3* db_;
+  absl::Status writes_stopped_;  // StopWrites' reason; OK while writes go on
   // Finalised before the connection closes; entries never move (unique_ptr),
   // so a lent Statement's flag stays valid while the connection lives.
   std::map<std::string, std::unique_ptr<CachedStatement>, std::less<>> cache_;

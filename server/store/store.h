@@ -322,8 +322,25 @@ class Store {
 
   // SQLite's quick_check (structure, no index contents), and the schema
   // (tables, indexes, triggers) compared with this version's: DATA_LOSS
-  // naming the first findings. Run at coordinator start.
+  // naming the first findings. The whole file: `--check` and tests.
   absl::Status QuickCheck();
+  // The coordinator's check at start: QuickCheck of every table but those
+  // that grow with the evaluations (genomes, genome_metrics), and the
+  // schema, so that a start does not read the whole file (1.8 GB at 10
+  // million genomes). The whole file is checked next, while the coordinator
+  // serves: FullCheckWhileServing.
+  absl::Status QuickCheckAtStart();
+  // The whole file's quick_check on a read connection of its own (the
+  // writer goes on meanwhile): OK, DATA_LOSS naming the findings, or
+  // CANCELLED after InterruptFullCheck.
+  absl::Status FullCheckWhileServing();
+  // Ends a FullCheckWhileServing running on another thread (soon).
+  void InterruptFullCheck();
+  // Nothing more is written to the file: every write transaction fails with
+  // `why` (UNAVAILABLE, so the engine holds the fleet and says why in every
+  // run summary, as for any storage trouble, never lifted by a probe).
+  // Reads go on.
+  void StopWrites(const absl::Status& why);
 
   // ---- Commit points ----
   // `strategy_states[i]`: island i's serialised StrategyState after seeding;
@@ -598,6 +615,10 @@ class Store {
 
   const std::string path_;
   sqlite3* const raw_;  // conn_'s, for Interrupt only
+  absl::Mutex check_mu_;
+  // The connection FullCheckWhileServing runs on, while it runs.
+  sqlite3* checking_ ABSL_GUARDED_BY(check_mu_) = nullptr;
+  bool check_interrupted_ ABSL_GUARDED_BY(check_mu_) = false;
   absl::Mutex mu_;
   std::unique_ptr<Connection> conn_ ABSL_GUARDED_BY(mu_);
   // Set once by Open, before the store is shared; the pooled reads under

@@ -3,7 +3,10 @@
 // middle) by a test fleet, as engine_fault_test does; then for every page of
 // the file in turn one byte is flipped in a copy, and the copy is also cut
 // short at several points. Each case is opened the way the coordinator opens
-// a database at start (Store::Open, QuickCheck, Engine::Open), the mid-run
+// a database at start (Store::Open, QuickCheck, Engine::Open; QuickCheck is
+// the start's check and the whole-file check the coordinator makes next,
+// while serving, which stops every write when it finds damage: done here
+// before anything is written), the mid-run
 // copies are driven to their end, and the case must end in one of:
 //   refused   the coordinator would not start on the file;
 //   damaged   a DATA_LOSS naming the run (the digest, the engine's summary of
