@@ -593,17 +593,22 @@ absl::Status QuickCheckRows(Statement* s, const std::string& path) {
 // start (Store::QuickCheckAtStart).
 constexpr const char* kLargeTables[] = {"genomes", "genome_metrics"};
 
+// VerifySchema's finding as the start reports it, naming `path`.
+absl::Status SchemaCheck(Connection* conn, const std::string& path) {
+  absl::Status schema = VerifySchema(conn);
+  if (schema.ok()) return schema;
+  return absl::DataLossError(
+      absl::StrCat(path, ": ", schema.message(),
+                   "; docs/operations.md says how to restore from a backup"));
+}
+
 }  // namespace
 
 absl::Status Store::QuickCheck() {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare("PRAGMA quick_check(20)"));
   SKERRY_RETURN_IF_ERROR(QuickCheckRows(&s, path_));
-  absl::Status schema = VerifySchema(conn_.get());
-  if (schema.ok()) return schema;
-  return absl::DataLossError(
-      absl::StrCat(path_, ": ", schema.message(),
-                   "; docs/operations.md says how to restore from a backup"));
+  return SchemaCheck(conn_.get(), path_);
 }
 
 absl::Status Store::QuickCheckAtStart() {
@@ -629,11 +634,7 @@ absl::Status Store::QuickCheckAtStart() {
         conn_->Prepare(absl::StrCat("PRAGMA main.quick_check(\"", t, "\")")));
     SKERRY_RETURN_IF_ERROR(QuickCheckRows(&s, path_));
   }
-  absl::Status schema = VerifySchema(conn_.get());
-  if (schema.ok()) return schema;
-  return absl::DataLossError(
-      absl::StrCat(path_, ": ", schema.message(),
-                   "; docs/operations.md says how to restore from a backup"));
+  return SchemaCheck(conn_.get(), path_);
 }
 
 absl::Status Store::FullCheckWhileServing() {
