@@ -1,25 +1,24 @@
 #include "server/store/sqlite.h"
 
 #include <cstring>
-#include <map>
 
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
-#include "absl/synchronization/mutex.h"
 #include "server/store/row_sums.h"
 
 namespace skerry::store {
 namespace {
 
-// The connections whose writes were stopped (Connection::StopWrites), with
-// the reason, so that a write refused by PRAGMA query_only (SQLITE_READONLY)
-// reports why rather than "attempt to write a readonly database". Looked up
-// only on that error.
-absl::Mutex stopped_mu(absl::kConstInit);
-std::map<sqlite3*, absl::Status>* StoppedConnections()
-    ABSL_EXCLUSIVE_LOCKS_REQUIRED(stopped_mu) {
-  static auto* stopped = new std::map<sqlite3*, absl::Status>();
-  return stopped;
+// A write refused by PRAGMA query_only (SQLITE_READONLY) on a connection whose
+// writes were stopped reports why (Connection::StopWrites), not "attempt to
+// write a readonly database".
+absl::Status WithStopReason(int rc, const absl::Status* writes_stopped,
+                            absl::Status s) {
+  if ((rc & 0xff) == SQLITE_READONLY && writes_stopped != nullptr &&
+      !writes_stopped->ok()) {
+    return *writes_stopped;
+  }
+  return s;
 }
 
 }  // namespace
@@ -42,12 +41,7 @@ absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what) {
     // A file it may not write (permissions changed under it) is storage
     // trouble like a failing disk: the engine holds work until a write
     // succeeds, and an INTERNAL error (a bug) need not hold anything.
-    case SQLITE_READONLY: {
-      absl::MutexLock l(&stopped_mu);
-      auto it = StoppedConnections()->find(db);
-      if (it != StoppedConnections()->end()) return it->second;
-      return absl::UnavailableError(msg);
-    }
+    case SQLITE_READONLY:
     case SQLITE_PERM:
       return absl::UnavailableError(msg);
     case SQLITE_CONSTRAINT:
@@ -74,6 +68,7 @@ Statement& Statement::operator=(Statement&& other) noexcept {
     Release();
     db_ = other.db_;
     stmt_ = other.stmt_;
+    writes_stopped_ = other.writes_stopped_;
     lent_flag_ = other.lent_flag_;
     bind_rc_ = other.bind_rc_;
     bind_index_ = other.bind_index_;
@@ -107,7 +102,8 @@ absl::StatusOr<bool> Statement::Step() {
   const int rc = sqlite3_step(stmt_);
   if (rc == SQLITE_ROW) return true;
   if (rc == SQLITE_DONE) return false;
-  absl::Status s = SqliteStatus(rc, db_, sqlite3_sql(stmt_));
+  absl::Status s = WithStopReason(rc, writes_stopped_,
+                                  SqliteStatus(rc, db_, sqlite3_sql(stmt_)));
   sqlite3_reset(stmt_);
   return s;
 }
@@ -162,10 +158,6 @@ absl::StatusOr<std::unique_ptr<Connection>> Connection::Open(
 }
 
 Connection::~Connection() {
-  if (!writes_stopped_.ok()) {
-    absl::MutexLock l(&stopped_mu);
-    StoppedConnections()->erase(db_);
-  }
   for (auto& [sql, entry] : cache_) sqlite3_finalize(entry->stmt);
   sqlite3_close_v2(db_);
 }
@@ -175,7 +167,8 @@ absl::Status Connection::Exec(absl::string_view sql) {
   char* err = nullptr;
   const int rc = sqlite3_exec(db_, s.c_str(), nullptr, nullptr, &err);
   sqlite3_free(err);
-  return SqliteStatus(rc, db_, s.substr(0, 60));
+  return WithStopReason(rc, &writes_stopped_,
+                        SqliteStatus(rc, db_, s.substr(0, 60)));
 }
 
 absl::StatusOr<Statement> Connection::Prepare(absl::string_view sql) {
@@ -185,15 +178,11 @@ absl::StatusOr<Statement> Connection::Prepare(absl::string_view sql) {
   if (rc != SQLITE_OK) {
     return SqliteStatus(rc, db_, absl::StrCat("preparing ", sql.substr(0, 60)));
   }
-  return Statement(db_, stmt);
+  return Statement(db_, stmt, &writes_stopped_);
 }
 
 absl::Status Connection::StopWrites(const absl::Status& why) {
   writes_stopped_ = why;
-  {
-    absl::MutexLock l(&stopped_mu);
-    (*StoppedConnections())[db_] = why;
-  }
   return Exec("PRAGMA query_only = 1");
 }
 

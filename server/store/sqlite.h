@@ -44,7 +44,11 @@ absl::Status SqliteStatus(int rc, sqlite3* db, absl::string_view what);
 class Statement {
  public:
   Statement() = default;
-  Statement(sqlite3* db, sqlite3_stmt* stmt) : db_(db), stmt_(stmt) {}
+  // `writes_stopped`: the connection's StopWrites reason, reported instead
+  // of SQLite's when the statement is refused as a write.
+  Statement(sqlite3* db, sqlite3_stmt* stmt,
+            const absl::Status* writes_stopped = nullptr)
+      : db_(db), stmt_(stmt), writes_stopped_(writes_stopped) {}
   Statement(Statement&& other) noexcept { *this = std::move(other); }
   Statement& operator=(Statement&& other) noexcept;
   Statement(const Statement&) = delete;
@@ -106,6 +110,7 @@ class Statement {
 
   sqlite3* db_ = nullptr;
   sqlite3_stmt* stmt_ = nullptr;
+  const absl::Status* writes_stopped_ = nullptr;  // its Connection's
   // Set for a statement lent by PrepareCached: the cache's in-use flag.
   bool* lent_flag_ = nullptr;
   int bind_rc_ = SQLITE_OK;

@@ -32,7 +32,7 @@ absl::StatusOr<Statement> Connection::PrepareCached(absl::string_view sql) {
   // same way) must not share one cursor: it gets a statement of its own.
   if (entry.lent) return Prepare(sql);
   entry.lent = true;
-  Statement lent(db_, entry.stmt);
+  Statement lent(db_, entry.stmt, &writes_stopped_);
   lent.lent_flag_ = &entry.lent;
   return lent;
 }

@@ -331,7 +331,8 @@ class Store {
   // serves: FullCheckWhileServing.
   absl::Status QuickCheckAtStart();
   // The whole file's quick_check on a read connection of its own (the
-  // writer goes on meanwhile): OK, DATA_LOSS naming the findings, or
+  // writer goes on meanwhile, but the WAL is not checkpointed past the
+  // check's snapshot until it ends): OK, DATA_LOSS naming the findings, or
   // CANCELLED after InterruptFullCheck.
   absl::Status FullCheckWhileServing();
   // Ends a FullCheckWhileServing running on another thread (soon).

@@ -73,9 +73,10 @@ TEST(CoordinatorFaultTest, RefusesToStartOnADatabaseItCannotWrite) {
 // quick_check took 28 s of a start on 10 million genomes); the genomes table
 // is checked while serving. Damage found there stops every write, with the
 // reason, and reads go on. The damage is a genomes b-tree page whose page
-// type byte is wrong, which SQLite's quick_check finds (common practice:
-// the page header layout is in SQLite's file format documentation, "B-tree
-// Pages": byte 0 is the page type, 2, 5, 10 or 13).
+// type byte is wrong, which SQLite's quick_check finds (SQLite's file format
+// documentation, "B-tree Pages": byte 0 of the page header is the page type,
+// 2, 5, 10 or 13; from memory). The test first checks that the damage is one
+// the whole-file check finds and the start's check does not read.
 TEST(CoordinatorFaultTest, DamageFoundWhileServingStopsEveryWriteReadsGoOn) {
   TempDir dir;
   const std::string db = dir.File("damaged.db");

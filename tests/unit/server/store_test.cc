@@ -425,6 +425,28 @@ TEST_F(FinishRunTest, TrimmedAndDeletedIdsAreNeverGivenAgain) {
   for (const GenomeRecord& g : third_genomes) EXPECT_GT(g.id, newest);
 }
 
+// A run deleted before schema version 13 left no floor; its id is still
+// named by the audit log's entries of calls that succeeded on it, and a new
+// run takes an id above it. A call that failed names nothing taken.
+TEST_F(FinishRunTest, RunIdNamedBySuccessfulAuditEntryIsNotGivenAgain) {
+  for (const auto& [run_id, code] :
+       std::vector<std::pair<int64_t, int32_t>>{{41, 0}, {99, 5}}) {
+    AuditRecord entry;
+    entry.at_ms = 1000;
+    entry.principal = "ada";
+    entry.method = "/skerry.v1.RunService/DeleteRun";
+    entry.run_id = run_id;
+    entry.peer = "ipv4:127.0.0.1:1";
+    absl::StatusOr<int64_t> id = store_->BeginAudit(entry);
+    ASSERT_TRUE(id.ok()) << id.status();
+    entry.id = *id;
+    entry.code = code;
+    ASSERT_TRUE(store_->FinishAudit(entry).ok());
+  }
+  std::vector<GenomeRecord> genomes;
+  EXPECT_EQ(CreateRun(1, &genomes).id, 42);
+}
+
 TEST_F(FinishRunTest, KeepThroughTrimsLaterGenerationsAndRecomputesChampion) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(2, &genomes);
