@@ -165,8 +165,15 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
   spec->set_seed(1);
   spec->set_genome_length(o.genome_length);
   spec->mutable_evaluator()->mutable_builtin()->set_function("zero");
-  spec->mutable_ga()->set_population_size(o.population);
-  spec->mutable_ga()->set_elites(0);
+  if (o.natural_es) {
+    spec->mutable_strategy()->mutable_natural_es()->set_population_size(
+        o.population + o.population % 2);
+    spec->set_init_lower(-1.0);
+    spec->set_init_upper(1.0);
+  } else {
+    spec->mutable_ga()->set_population_size(o.population);
+    spec->mutable_ga()->set_elites(0);
+  }
   spec->mutable_stop()->set_max_generations(o.generations);
   if (o.float32) spec->set_gene_precision(skerry::v1::FLOAT32);
 

@@ -37,6 +37,9 @@ struct EndToEndOptions {
   int readers = 0;
   // The run's gene_precision is FLOAT32 (4 bytes a gene stored and sent).
   bool float32 = false;
+  // The run is the natural ES (population_size `population`, rounded up to
+  // even) instead of the GA: its samples are stored as their recipes.
+  bool natural_es = false;
 };
 
 struct EndToEndFigures {

@@ -35,7 +35,8 @@ namespace skerry {
 namespace {
 
 struct BenchOptions {
-  bool float32 = false;  // --float32: the end-to-end run's gene_precision
+  bool float32 = false;     // --float32: the end-to-end run's gene_precision
+  bool natural_es = false;  // --natural-es: the end-to-end run's strategy
   int genome_length = 10;
   int population = 1000;
   int generations = 50;
@@ -164,6 +165,7 @@ bench::EndToEndOptions EndToEnd(const BenchOptions& o) {
   e.workers = o.workers;
   e.threads = o.threads;
   e.float32 = o.float32;
+  e.natural_es = o.natural_es;
   return e;
 }
 
@@ -239,7 +241,8 @@ int main(int argc, char** argv) {
     if (a == "--help") {
       std::puts(
           "Usage: skerry-bench [--population N] [--generations N] "
-          "[--genome-length N] [--float32] [--workers N] [--threads N] "
+          "[--genome-length N] [--float32] [--natural-es] [--workers N] "
+          "[--threads N] "
           "[--insert-rows N] "
           "[--dir DIR] [--fleet] [--report-latency] [--history-genomes N "
           "[--keep]]\n\nMeasures "
@@ -247,7 +250,9 @@ int main(int argc, char** argv) {
           "through a loopback coordinator and workers (with bytes stored and "
           "sent per evaluation and peak memory), and in-process evaluation, "
           "and prints the ratios. --float32 makes the end-to-end run's "
-          "gene_precision FLOAT32. --fleet adds fleet efficiency at 2 and 20 "
+          "gene_precision FLOAT32; --natural-es makes it the natural ES "
+          "(samples stored as recipes) instead of the GA. --fleet adds fleet "
+          "efficiency at 2 and 20 "
           "ms per evaluation; --report-latency adds the workers' Report "
           "latency (p50, p99) idle and under four readers of the run "
           "(list, show, history, digest); --history-genomes N builds a store "
@@ -276,6 +281,8 @@ int main(int argc, char** argv) {
       fleet = true;
     } else if (a == "--float32") {
       o.float32 = true;
+    } else if (a == "--natural-es") {
+      o.natural_es = true;
     } else if (a == "--report-latency") {
       report_latency = true;
     } else if (a == "--keep") {

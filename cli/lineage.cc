@@ -58,7 +58,8 @@ std::vector<CommandSpec> LineageCommandSpecs() {
       kGenomeHelp);
   static const std::string descent = absl::StrCat(
       "Prints the line of descent of GENOME: the single chain back to its "
-      "founder (generation 0 or an immigrant) through the fitter parent "
+      "founder (generation 0, an immigrant, or the first centre of a CMA-ES "
+      "restart) through the fitter parent "
       "(a scored parent beats a failed one; ties and single parents go to "
       "parent a), with each step's score and gain.",
       kGenomeHelp);
@@ -80,7 +81,8 @@ std::vector<CommandSpec> LineageCommandSpecs() {
       kGenomeHelp);
   static const std::string attribution = absl::StrCat(
       "Along the line of descent of GENOME, which origin (crossover, "
-      "mutation, migrant, immigrant, elite) made each improvement of the "
+      "mutation, migrant, immigrant, elite; for the evolution strategies, "
+      "distribution and sampled) made each improvement of the "
       "score and by how much (each step against the parent the line goes "
       "through), and where the line crossed between islands.",
       kGenomeHelp);

@@ -585,7 +585,9 @@ uint32_t IslandPopulation(const RunSpec& spec, uint32_t island) {
   if (island < static_cast<uint32_t>(spec.islands().population_sizes_size())) {
     return spec.islands().population_sizes(static_cast<int>(island));
   }
-  if (StrategyOf(spec) != StrategyKind::kGa) return EsPopulation(spec);
+  if (StrategyOf(spec) != StrategyKind::kGa) {
+    return EsPopulation(spec) + (HasDistributionGenomes(spec) ? 1 : 0);
+  }
   return spec.ga().population_size();
 }
 

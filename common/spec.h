@@ -30,7 +30,9 @@ void NormalizeSpec(skerry::v1::RunSpec* spec);
 // InvalidArgument "FIELD.PATH: what is wrong (allowed: RANGE; got VALUE)".
 absl::Status ValidateSpec(const skerry::v1::RunSpec& spec);
 
-// Population size of island i after normalisation.
+// The genomes of one generation of island i after normalisation: the GA's
+// population; an evolution strategy's samples, plus its distribution genome
+// when the spec has them (HasDistributionGenomes).
 uint32_t IslandPopulation(const skerry::v1::RunSpec& spec, uint32_t island);
 
 // Both, then returns the normalised spec.

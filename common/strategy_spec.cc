@@ -137,6 +137,19 @@ uint32_t DefaultCmaPopulation(uint32_t genome_length) {
   return 4 + static_cast<uint32_t>(std::floor(3 * std::log(n)));
 }
 
+bool HasDistributionGenomes(const RunSpec& spec) {
+  return StrategyOf(spec) != StrategyKind::kGa &&
+         spec.strategy().distribution_genomes();
+}
+
+void KeepGenomeLayout(const RunSpec& stored, RunSpec* spec) {
+  if (StrategyOf(stored) != StrategyKind::kGa &&
+      !stored.strategy().has_distribution_genomes() &&
+      !spec->strategy().has_distribution_genomes()) {
+    spec->mutable_strategy()->set_distribution_genomes(false);
+  }
+}
+
 void NormalizeStrategy(RunSpec* spec) {
   StrategySpec* st = spec->mutable_strategy();
   if (st->kind_case() == StrategySpec::kGa && !spec->has_ga()) {
@@ -144,10 +157,12 @@ void NormalizeStrategy(RunSpec* spec) {
     st->clear_kind();
   }
   if (st->kind_case() == StrategySpec::KIND_NOT_SET) {
-    spec->clear_strategy();
+    // distribution_genomes without a strategy is refused by ValidateStrategy.
+    if (!st->has_distribution_genomes()) spec->clear_strategy();
     return;
   }
   if (st->kind_case() == StrategySpec::kGa) return;  // both set: refused later
+  if (!st->has_distribution_genomes()) st->set_distribution_genomes(true);
   if (st->kind_case() == StrategySpec::kNaturalEs) {
     NormalizeNaturalEs(*spec, st->mutable_natural_es());
     return;
@@ -181,7 +196,15 @@ absl::Status ValidateStrategy(const RunSpec& spec) {
         "strategy.ga: the GA is set twice, here and as the top-level ga; set "
         "one of them");
   }
-  if (StrategyOf(spec) == StrategyKind::kGa) return absl::OkStatus();
+  if (StrategyOf(spec) == StrategyKind::kGa) {
+    if (spec.strategy().has_distribution_genomes()) {
+      return absl::InvalidArgumentError(
+          "strategy.distribution_genomes: for the evolution strategies "
+          "(cma_es, sep_cma_es, natural_es); the GA has no search "
+          "distribution, remove it");
+    }
+    return absl::OkStatus();
+  }
   const std::string field = FieldOf(spec);
   if (spec.has_ga()) {
     return absl::InvalidArgumentError(absl::StrCat(

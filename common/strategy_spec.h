@@ -29,6 +29,19 @@ const skerry::v1::NaturalEsSpec& NaturalEsSpecOf(
 // lambda, or the natural ES's population); REQUIRES: not the GA.
 uint32_t EsPopulation(const skerry::v1::RunSpec& spec);
 
+// True when the run's generations start with a distribution genome (an
+// evolution strategy with strategy.distribution_genomes set, as
+// NormalizeStrategy sets it for new runs): slot 0 holds the search
+// distribution's centre and slots 1.. the samples.
+bool HasDistributionGenomes(const skerry::v1::RunSpec& spec);
+
+// A spec made from a stored one (a fork's, an extension's) keeps the stored
+// run's genome layout: a stored evolution strategy run without
+// strategy.distribution_genomes (made before it existed) gets it set false in
+// `spec`, so normalising does not give its new generations a different shape.
+void KeepGenomeLayout(const skerry::v1::RunSpec& stored,
+                      skerry::v1::RunSpec* spec);
+
 // Moves `strategy.ga` to the top-level `ga` (one form for the GA, so stored
 // GA specs mean what they meant); fills the CMA-ES and natural ES defaults.
 // Needs genome_length and the initial range normalised first.

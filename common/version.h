@@ -28,14 +28,17 @@
 namespace skerry {
 
 inline constexpr char kVersion[] = "0.1.0";  // SKERRY_RELEASE_VERSION
-inline constexpr uint32_t kProtocolVersion = 3;
+inline constexpr uint32_t kProtocolVersion = 4;
 inline constexpr uint32_t kMinProtocolVersion = 2;
 // The first protocol whose workers read Task.genes32.
 inline constexpr uint32_t kGenes32Protocol = 3;
+// The first protocol whose workers build natural ES samples from their
+// recipes (Task.sample) and centres (LeaseResponse.centres).
+inline constexpr uint32_t kSampleRecipeProtocol = 4;
 
 // The --version line of `program`, e.g. "skerry-worker 0.1.0 (worker
-// protocol 3)"; the coordinator's names every protocol it speaks:
-// "skerry-coordinator 0.1.0 (worker protocols 2 to 3)".
+// protocol 4)"; the coordinator's names every protocol it speaks:
+// "skerry-coordinator 0.1.0 (worker protocols 2 to 4)".
 inline std::string VersionLine(absl::string_view program) {
   if (program == "skerry-coordinator") {
     return absl::StrCat(program, " ", kVersion, " (worker protocols ",

@@ -12,6 +12,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/types/span.h"
 #include "common/metric_bounds.h"
+#include "common/sample_recipe.h"
 #include "common/validation.h"
 #include "worker/process_evaluator.h"
 
@@ -120,6 +121,43 @@ absl::StatusOr<Evaluator*> EvaluatorCache::Get(
     return absl::InternalError("evaluator factory returned no evaluator");
   }
   return it->second.evaluator->get();
+}
+
+absl::Status ExpandSample(skerry::v1::Task* task,
+                          const std::vector<double>* centre) {
+  if (!task->has_sample()) return absl::OkStatus();
+  const skerry::v1::SampleTask& s = task->sample();
+  if (centre == nullptr) {
+    return absl::FailedPreconditionError(
+        absl::StrCat("the sample's centre #", s.centre_id(),
+                     " is not held by this worker; its lease is given back"));
+  }
+  SampleRecipe r;
+  r.seed = s.seed();
+  r.island = s.island();
+  r.generation = s.generation();
+  r.pair = s.pair();
+  r.minus = s.minus();
+  r.float32 = s.float32();
+  r.length = s.length();
+  r.sigma = s.sigma();
+  r.lower = s.lower();
+  r.upper = s.upper();
+  if (!(std::isfinite(r.sigma) && r.sigma >= 0 && std::isfinite(r.lower) &&
+        std::isfinite(r.upper) && r.lower <= r.upper)) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("the sample's recipe has sigma ", r.sigma, " and bounds [",
+                     r.lower, ", ", r.upper, "]"));
+  }
+  absl::StatusOr<std::vector<double>> genes = BuildSample(r, *centre);
+  if (!genes.ok()) {
+    return absl::FailedPreconditionError(absl::StrCat(
+        "centre #", s.centre_id(), ": ", genes.status().message()));
+  }
+  task->mutable_genes()->Assign(genes->begin(), genes->end());
+  task->clear_genes32();
+  task->clear_sample();
+  return absl::OkStatus();
 }
 
 skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,

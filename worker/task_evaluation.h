@@ -89,6 +89,14 @@ class EvaluatorCache {
   std::map<std::string, Entry> by_spec_;
 };
 
+// Worker protocol 4: a natural ES sample sent as its recipe (Task.sample)
+// gets its genes, built from its centre's genes by common/sample_recipe.h
+// (the function the coordinator made and stores it with), and loses the
+// recipe. FailedPrecondition, naming the centre, when `centre` is null (not
+// held) or not the recipe's length; nothing for a task with genes.
+absl::Status ExpandSample(skerry::v1::Task* task,
+                          const std::vector<double>* centre);
+
 // Evaluates task with its evaluator (a TASK_VALIDATE task: on the run's
 // held-out cases, common/validation.h); eval_seconds is measured on clock.
 skerry::v1::TaskResult EvaluateTask(const skerry::v1::Task& task,

@@ -5,7 +5,10 @@
 #include <algorithm>
 #include <chrono>
 #include <deque>
+#include <iterator>
 #include <limits>
+#include <map>
+#include <memory>
 #include <random>
 #include <set>
 #include <thread>
@@ -47,6 +50,9 @@ constexpr absl::Duration kMinRenewal = absl::Milliseconds(200);
 constexpr absl::Duration kEmptyPollPause = absl::Milliseconds(100);
 constexpr absl::Duration kMaxRpcBudget = absl::Hours(24);
 constexpr size_t kMaxResultsPerReport = 4096;
+// Natural ES centres kept for the samples of later leases (protocol 4): one
+// per island and run in flight is the need; beyond it, unused ones go.
+constexpr size_t kMaxCentres = 16;
 
 // What to do after an RPC, decided by its status code alone.
 enum class Next { kDone, kRetry, kRejoin, kGiveUp };
@@ -221,6 +227,19 @@ class Worker::Impl {
         [task_id](const TaskResult& r) { return r.task_id() == task_id; });
   }
   bool WantsLease() const ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Drops centres no queued task needs, oldest (smallest id) first, until at
+  // most kMaxCentres are left.
+  void ForgetUnusedCentres() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
+    if (centres_.size() <= kMaxCentres) return;
+    std::unordered_set<uint64_t> needed;
+    for (const Task& t : queue_) {
+      if (t.has_sample()) needed.insert(t.sample().centre_id());
+    }
+    for (auto it = centres_.begin();
+         it != centres_.end() && centres_.size() > kMaxCentres;) {
+      it = needed.count(it->first) > 0 ? std::next(it) : centres_.erase(it);
+    }
+  }
   // Restarts the idle time while any task is held; true once
   // options_.exit_when_idle has passed with none.
   bool IdleTooLong() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
@@ -263,6 +282,12 @@ class Worker::Impl {
   std::deque<Task> queue_ ABSL_GUARDED_BY(mu_);
   // Ids of tasks queued or being evaluated.
   std::unordered_set<uint64_t> working_ ABSL_GUARDED_BY(mu_);
+  // Protocol 4: the centres of natural ES samples, by distribution genome
+  // id, named in every LeaseRequest (held_centres). At most kMaxCentres once
+  // the queued tasks no longer need the rest; an evaluation holds its own
+  // reference.
+  std::map<uint64_t, std::shared_ptr<const std::vector<double>>> centres_
+      ABSL_GUARDED_BY(mu_);
   // Results waiting for a successful Report, oldest first.
   std::deque<TaskResult> results_ ABSL_GUARDED_BY(mu_);
   // A short (non-waiting) lease found no work: wait for an empty queue, then
@@ -485,6 +510,12 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
     request.set_max_tasks(options_.batch);
     request.set_protocol_version(kProtocolVersion);
     request.set_wait_ms(static_cast<uint32_t>(absl::ToInt64Milliseconds(wait)));
+    {
+      absl::MutexLock l(&mu_);
+      for (const auto& [centre, genes] : centres_) {
+        request.add_held_centres(centre);
+      }
+    }
     LeaseResponse response;
     grpc::ClientContext context;
     SetDeadline(&context, wait + options_.rpc_deadline);
@@ -504,6 +535,10 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
     {
       absl::MutexLock l(&mu_);
       if (!empty) last_busy_ = clock_->Now();
+      for (const skerry::v1::Centre& c : response.centres()) {
+        centres_[c.id()] = std::make_shared<const std::vector<double>>(
+            c.genes().begin(), c.genes().end());
+      }
       for (Task& task : *response.mutable_tasks()) {
         // A task offered again while still held here is already being
         // handled; one whose result waits to be reported (the coordinator
@@ -513,6 +548,7 @@ void Worker::Impl::LeaseLoop(uint32_t seed) {
           queue_.push_back(std::move(task));
         }
       }
+      ForgetUnusedCentres();
       short_lease_was_empty_ = empty && !long_poll;
     }
     if (empty && long_poll && clock_->Now() - start < kEmptyPollPause) {
@@ -528,6 +564,7 @@ void Worker::Impl::EvalLoop() {
     const absl::Duration idle_check = cache.TimeToNextExpiry();
     Task task;
     bool have_task = false;
+    std::shared_ptr<const std::vector<double>> centre;
     {
       absl::MutexLock l(&mu_);
       const bool woken = clock_->AwaitWithTimeout(
@@ -538,13 +575,28 @@ void Worker::Impl::EvalLoop() {
         task = std::move(queue_.front());
         queue_.pop_front();
         have_task = true;
+        if (task.has_sample()) {
+          auto c = centres_.find(task.sample().centre_id());
+          if (c != centres_.end()) centre = c->second;
+        }
       }
     }
     if (!have_task) {
       cache.ReapIdle();
       continue;
     }
-    TaskResult result = EvaluateTask(task, cache, clock_);
+    // A sample sent as its recipe is built here, on this thread.
+    const absl::Status expanded = ExpandSample(&task, centre.get());
+    centre.reset();
+    TaskResult result;
+    if (expanded.ok()) {
+      result = EvaluateTask(task, cache, clock_);
+    } else {
+      result.set_task_id(task.task_id());
+      result.set_attempt(task.attempt());
+      result.set_lease_proof(task.lease_proof());
+      result.set_error(std::string(expanded.message()));
+    }
     absl::MutexLock l(&mu_);
     // An evaluation that failed while stopping was most likely cut short by
     // Stop(): it is handed back, not reported as a failed attempt.

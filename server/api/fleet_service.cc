@@ -130,9 +130,20 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
   const absl::Duration left =
       absl::FromChrono(ctx->deadline()) - absl::Now() - absl::Milliseconds(200);
   wait = std::max(absl::ZeroDuration(), std::min(wait, left));
-  std::vector<skerry::v1::Task> tasks =
-      queue_->Lease(static_cast<int64_t>(req->worker_id()), req->max_tasks(),
-                    wait, kMaxLeaseBytes);
+  // A worker of protocol 4 builds natural ES samples itself: they go as
+  // recipes, with the centres it does not hold.
+  scheduler::TaskQueue::Centres centres;
+  centres.held = {req->held_centres().data(),
+                  static_cast<size_t>(req->held_centres_size())};
+  std::vector<skerry::v1::Task> tasks = queue_->Lease(
+      static_cast<int64_t>(req->worker_id()), req->max_tasks(), wait,
+      kMaxLeaseBytes,
+      req->protocol_version() >= kSampleRecipeProtocol ? &centres : nullptr);
+  for (const auto& [id, genes] : centres.wanted) {
+    skerry::v1::Centre* c = resp->add_centres();
+    c->set_id(static_cast<uint64_t>(id));
+    c->mutable_genes()->Assign(genes->begin(), genes->end());
+  }
   absl::StatusOr<const auth::FleetSeal*> seal = Seal();  // known: CheckWorker
   for (skerry::v1::Task& t : tasks) {
     if (req->protocol_version() < kGenes32Protocol && t.genes32_size() > 0) {

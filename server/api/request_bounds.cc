@@ -31,6 +31,7 @@ const std::vector<FieldBound>* BuildTable() {
       {"skerry.v1.ReportRequest.held_task_ids", 100000, 0, ""},
       {"skerry.v1.HandBackRequest.task_ids", 100000, 0, ""},
       {"skerry.v1.LeaseRequest.worker_secret", 0, 64, ""},
+      {"skerry.v1.LeaseRequest.held_centres", 1024, 0, ""},
       {"skerry.v1.ReportRequest.worker_secret", 0, 64, ""},
       {"skerry.v1.HandBackRequest.worker_secret", 0, 64, ""},
       {"skerry.v1.TaskResult.lease_proof", 0, 64, ""},

@@ -21,7 +21,14 @@
 // Migration: a migrant better than every sample of the completed generation
 // becomes the mean of the search (step size and covariance kept); other
 // migrants, and migrants that arrive in a generation that does not complete
-// an update, are ignored. A sample's parent links are empty (origin SAMPLED).
+// an update, are ignored.
+//
+// With distribution genomes (the default; strategy.h DistributionGenomes)
+// slot 0 holds the mean the generation samples from (clamped to the bounds)
+// and the samples follow at slots 1..lambda_0, each naming it as its parent;
+// the mean's score takes no part in the update, but a migrant must beat it
+// too to move the mean. A restart's first mean has no parent. Without them
+// (runs stored before), a sample has no parents.
 #include "server/engine/cma_strategy.h"
 
 #include <algorithm>
@@ -57,7 +64,8 @@ class CmaStrategy : public Strategy {
   CmaStrategy(const RunSpec& spec, uint32_t island)
       : spec_(spec),
         island_(island),
-        separable_(StrategyOf(spec) == StrategyKind::kSepCmaEs) {}
+        separable_(StrategyOf(spec) == StrategyKind::kSepCmaEs),
+        distribution_(spec) {}
 
   absl::StatusOr<std::vector<GenomeRecord>> Start() override {
     restarts_ = 0;
@@ -66,6 +74,7 @@ class CmaStrategy : public Strategy {
     held_values_.clear();
     search_ = NewSearch(0);
     generation_ = 0;
+    distribution_.Clear();
     return Samples();
   }
 
@@ -76,10 +85,11 @@ class CmaStrategy : public Strategy {
           absl::StrCat("island ", island_, ": told before started"));
     }
     const uint32_t batch = CmaSpecOf(spec_).population_size();
-    if (completed.size() != batch) {
+    const size_t expected = distribution_.GenerationSize(batch);
+    if (completed.size() != expected) {
       return absl::InvalidArgumentError(
           absl::StrCat("island ", island_, " generation ", generation_, ": ",
-                       completed.size(), " samples, expected ", batch));
+                       completed.size(), " genomes, expected ", expected));
     }
     const bool maximize = spec_.objective() == skerry::v1::MAXIMIZE;
     auto value = [maximize](const GenomeRecord& g) {
@@ -88,14 +98,16 @@ class CmaStrategy : public Strategy {
       }
       return maximize ? -g.score : g.score;
     };
-    for (const GenomeRecord& g : completed) {
+    for (const GenomeRecord& g : distribution_.Samples(completed)) {
       held_genes_.insert(held_genes_.end(), g.genes.begin(), g.genes.end());
       held_values_.push_back(value(g));
     }
     generation_ = completed.front().generation + 1;
     const int lambda = search_->params().lambda;
     if (held_values_.size() < static_cast<size_t>(lambda)) {
-      return absl::OkStatus();  // IPOP: the update needs more generations
+      // IPOP: the update needs more generations
+      distribution_.Told(completed, nullptr, /*restarted=*/false);
+      return absl::OkStatus();
     }
     const int n = search_->params().n;
     std::vector<Eigen::VectorXd> points;
@@ -105,6 +117,8 @@ class CmaStrategy : public Strategy {
           held_genes_.data() + static_cast<size_t>(k) * n, n));
       best = std::min(best, held_values_[k]);
     }
+    // A migrant must beat the mean's own score too.
+    if (completed.size() > batch) best = std::min(best, value(completed[0]));
     search_->Tell(points, held_values_);
     held_genes_.clear();
     held_values_.clear();
@@ -132,6 +146,7 @@ class CmaStrategy : public Strategy {
       last_stop_ = stop;
       search_ = NewSearch(restarts_);
     }
+    distribution_.Told(completed, better, /*restarted=*/!stop.empty());
     return absl::OkStatus();
   }
 
@@ -152,6 +167,7 @@ class CmaStrategy : public Strategy {
     c->set_last_stop(last_stop_);
     for (double v : held_genes_) c->add_held_genes(v);
     for (double v : held_values_) c->add_held_values(v);
+    distribution_.Save(&s);
     return s;
   }
 
@@ -190,6 +206,7 @@ class CmaStrategy : public Strategy {
     restarts_ = c.restarts();
     last_stop_ = c.last_stop();
     generation_ = state.generation();
+    distribution_.Restore(state);
     return absl::OkStatus();
   }
 
@@ -233,6 +250,10 @@ class CmaStrategy : public Strategy {
       }
       out.push_back(std::move(g));
     }
+    const Eigen::VectorXd& mean = search_->mean();
+    distribution_.Add(island_, generation_,
+                      absl::MakeConstSpan(mean.data(), mean.size()),
+                      spec_.lower_bound(), spec_.upper_bound(), &out);
     return out;
   }
 
@@ -244,6 +265,7 @@ class CmaStrategy : public Strategy {
   std::string last_stop_;
   std::vector<double> held_genes_;  // IPOP: see the top of this file
   std::vector<double> held_values_;
+  DistributionGenomes distribution_;
   uint32_t generation_ = 0;
 };
 

@@ -236,6 +236,14 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
 
 void Engine::QueueIsland(const Run& run, const Island& island) {
   std::vector<scheduler::TaskInfo> tasks;
+  // A natural ES generation's samples may go as recipes: with them, their
+  // centre (the distribution genome at slot 0), shared by every task.
+  std::shared_ptr<const std::vector<double>> centre;
+  if (!island.current.empty() &&
+      island.current.front().origin == skerry::v1::DISTRIBUTION) {
+    centre = std::make_shared<const std::vector<double>>(
+        island.current.front().genes);
+  }
   for (const GenomeRecord& g : island.current) {
     if (g.state != skerry::v1::PENDING) continue;
     scheduler::TaskInfo t;
@@ -250,6 +258,12 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
         EvalSeed(run.record.spec, island.index, island.generation, g.slot);
     t.evaluator = run.evaluator;
     t.attempts = g.attempts;
+    if (g.recipe.has_value() && centre != nullptr &&
+        g.parent_a == island.current.front().id) {
+      t.recipe = g.recipe;
+      t.centre_id = g.parent_a;
+      t.centre = centre;
+    }
     tasks.push_back(std::move(t));
   }
   queue_->Add(std::move(tasks));

@@ -5,6 +5,7 @@
 #include "absl/strings/str_cat.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
+#include "common/strategy_spec.h"
 #include "server/engine/breeder.h"
 #include "server/engine/engine.h"
 #include "server/engine/strategy_replay.h"
@@ -95,6 +96,7 @@ absl::Status Engine::Extend(int64_t run_id, const skerry::v1::StopSpec& stop) {
     }
   }
   RunSpec spec = rec.spec;
+  KeepGenomeLayout(rec.spec, &spec);
   skerry::v1::StopSpec* rule = spec.mutable_stop();
   if (stop.max_generations() != 0) {
     SKERRY_RETURN_IF_ERROR(CheckRaised(

@@ -47,6 +47,7 @@ absl::StatusOr<RunSpec> MergeForkChanges(const RunSpec& parent,
     return absl::InvalidArgumentError(
         "changes: cannot be merged over the parent's spec");
   }
+  KeepGenomeLayout(parent, &merged);
   return merged;
 }
 

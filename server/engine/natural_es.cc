@@ -4,7 +4,7 @@
 #include <cmath>
 #include <numeric>
 
-#include "common/random.h"
+#include "common/sample_recipe.h"
 
 namespace skerry::engine {
 
@@ -67,16 +67,8 @@ void AdamStep(const AdamParameters& p, absl::Span<const double> direction,
 std::vector<double> Perturbation(const skerry::v1::RunSpec& spec,
                                  uint32_t island, uint32_t generation,
                                  uint32_t pair) {
-  StreamKey key;
-  key.run_seed = spec.seed();
-  key.island = island;
-  key.generation = generation;
-  key.purpose = StreamPurpose::kPerturbation;
-  key.slot = pair;
-  RandomStream rng(key);
-  std::vector<double> eps(spec.genome_length());
-  for (double& x : eps) x = rng.Normal();
-  return eps;
+  return SamplePerturbation(spec.seed(), island, generation, pair,
+                            spec.genome_length());
 }
 
 double NaturalEsSigma(const skerry::v1::NaturalEsSpec& es,

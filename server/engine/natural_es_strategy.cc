@@ -14,7 +14,11 @@
 // its covariance); other migrants are ignored. Without such a migrant the
 // islands are independent searches from their own starts.
 //
-// A sample's parent links are empty (origin SAMPLED).
+// With distribution genomes (the default; strategy.h DistributionGenomes)
+// slot 0 holds theta itself and pair i's samples are at 2i + 1 and 2i + 2,
+// each naming it as its parent; theta's score takes no part in the update
+// (the gradient is the samples'), but a migrant must beat it too to become
+// the centre. Without them (runs stored before), a sample has no parents.
 #include "server/engine/natural_es_strategy.h"
 
 #include <algorithm>
@@ -22,7 +26,9 @@
 #include <limits>
 
 #include "absl/strings/str_cat.h"
+#include "common/genes.h"
 #include "common/random.h"
+#include "common/sample_recipe.h"
 #include "common/strategy_spec.h"
 #include "server/engine/natural_es.h"
 
@@ -36,7 +42,10 @@ using store::GenomeRecord;
 class NaturalEsStrategy : public Strategy {
  public:
   NaturalEsStrategy(const RunSpec& spec, uint32_t island)
-      : spec_(spec), island_(island), es_(NaturalEsSpecOf(spec_)) {}
+      : spec_(spec),
+        island_(island),
+        es_(NaturalEsSpecOf(spec_)),
+        distribution_(spec_) {}
 
   absl::StatusOr<std::vector<GenomeRecord>> Start() override {
     StreamKey key;
@@ -52,6 +61,7 @@ class NaturalEsStrategy : public Strategy {
     }
     generation_ = 0;
     started_ = true;
+    distribution_.Clear();
     return Samples();
   }
 
@@ -62,11 +72,14 @@ class NaturalEsStrategy : public Strategy {
           absl::StrCat("island ", island_, ": told before started"));
     }
     const uint32_t pairs = es_.population_size() / 2;
-    if (completed.size() != 2 * static_cast<size_t>(pairs)) {
+    const size_t expected = distribution_.GenerationSize(2 * size_t{pairs});
+    if (completed.size() != expected) {
       return absl::InvalidArgumentError(
           absl::StrCat("island ", island_, " generation ", generation_, ": ",
-                       completed.size(), " samples, expected ", 2 * pairs));
+                       completed.size(), " genomes, expected ", expected));
     }
+    const absl::Span<const GenomeRecord> samples =
+        distribution_.Samples(completed);
     const bool maximize = spec_.objective() == skerry::v1::MAXIMIZE;
     auto utility = [maximize](const GenomeRecord& g) {
       if (g.state != skerry::v1::EVALUATED) {
@@ -76,10 +89,8 @@ class NaturalEsStrategy : public Strategy {
     };
     std::vector<double> utilities;
     double best = -std::numeric_limits<double>::infinity();
-    for (const GenomeRecord& g : completed) {
-      utilities.push_back(utility(g));
-      best = std::max(best, utilities.back());
-    }
+    for (const GenomeRecord& g : samples) utilities.push_back(utility(g));
+    for (const GenomeRecord& g : completed) best = std::max(best, utility(g));
     const uint32_t generation = completed.front().generation;
     std::vector<std::vector<double>> eps;
     for (uint32_t i = 0; i < pairs; ++i) {
@@ -102,7 +113,10 @@ class NaturalEsStrategy : public Strategy {
       for (size_t j = 0; j < better->genes.size(); ++j) {
         state_.set_centre(static_cast<int>(j), better->genes[j]);
       }
+    } else {
+      better = nullptr;
     }
+    distribution_.Told(completed, better, /*restarted=*/false);
     generation_ = generation + 1;
     return absl::OkStatus();
   }
@@ -119,6 +133,7 @@ class NaturalEsStrategy : public Strategy {
     skerry::v1::StrategyState s;
     s.set_generation(generation_);
     if (started_) *s.mutable_natural_es() = state_;
+    distribution_.Save(&s);
     return s;
   }
 
@@ -148,6 +163,7 @@ class NaturalEsStrategy : public Strategy {
     state_ = s;
     generation_ = state.generation();
     started_ = true;
+    distribution_.Restore(state);
     return absl::OkStatus();
   }
 
@@ -157,17 +173,50 @@ class NaturalEsStrategy : public Strategy {
     const size_t n = spec_.genome_length();
     const double sigma = NaturalEsSigma(es_, generation_);
     std::vector<GenomeRecord> out;
-    out.reserve(2 * pairs);
+    out.reserve(2 * pairs + 1);
+    if (distribution_.on()) {
+      // Drawn around the centre as its distribution genome holds it (clamped,
+      // and rounded in a FLOAT32 run), with the recipe the store keeps in
+      // place of the genes: what rebuilds them is what made them.
+      std::vector<double> centre(state_.centre().begin(),
+                                 state_.centre().end());
+      for (double& x : centre) {
+        x = std::clamp(x, spec_.lower_bound(), spec_.upper_bound());
+      }
+      const bool float32 = spec_.gene_precision() == skerry::v1::FLOAT32;
+      if (float32) {
+        RoundToFloat32(&centre, spec_.lower_bound(), spec_.upper_bound());
+      }
+      for (uint32_t i = 0; i < pairs; ++i) {
+        const std::vector<double> eps =
+            Perturbation(spec_, island_, generation_, i);
+        for (const bool minus : {false, true}) {
+          SampleRecipe r;
+          r.seed = spec_.seed();
+          r.island = island_;
+          r.generation = generation_;
+          r.pair = i;
+          r.minus = minus;
+          r.float32 = float32;
+          r.length = static_cast<uint32_t>(n);
+          r.sigma = sigma;
+          r.lower = spec_.lower_bound();
+          r.upper = spec_.upper_bound();
+          GenomeRecord g = Sample(static_cast<uint32_t>(out.size()));
+          g.genes = BuildSampleFrom(r, centre, eps);
+          g.recipe = r;
+          out.push_back(std::move(g));
+        }
+      }
+      distribution_.Add(island_, generation_, centre, spec_.lower_bound(),
+                        spec_.upper_bound(), &out);
+      return out;
+    }
     for (uint32_t i = 0; i < pairs; ++i) {
       const std::vector<double> eps =
           Perturbation(spec_, island_, generation_, i);
       for (const double sign : {1.0, -1.0}) {
-        GenomeRecord g;
-        g.island = island_;
-        g.generation = generation_;
-        g.slot = static_cast<uint32_t>(out.size());
-        g.origin = skerry::v1::SAMPLED;
-        g.state = skerry::v1::PENDING;
+        GenomeRecord g = Sample(static_cast<uint32_t>(out.size()));
         g.genes.resize(n);
         for (size_t j = 0; j < n; ++j) {
           const double x =
@@ -180,10 +229,21 @@ class NaturalEsStrategy : public Strategy {
     return out;
   }
 
+  GenomeRecord Sample(uint32_t slot) const {
+    GenomeRecord g;
+    g.island = island_;
+    g.generation = generation_;
+    g.slot = slot;
+    g.origin = skerry::v1::SAMPLED;
+    g.state = skerry::v1::PENDING;
+    return g;
+  }
+
   const RunSpec spec_;
   const uint32_t island_;
   const skerry::v1::NaturalEsSpec es_;
   NaturalEsState state_;
+  DistributionGenomes distribution_;
   uint32_t generation_ = 0;
   bool started_ = false;
 };

@@ -1,5 +1,6 @@
 #include "server/engine/strategy.h"
 
+#include <algorithm>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
@@ -139,6 +140,54 @@ absl::StatusOr<std::unique_ptr<Strategy>> MakeUnrounded(
 }
 
 }  // namespace
+
+DistributionGenomes::DistributionGenomes(const skerry::v1::RunSpec& spec)
+    : on_(HasDistributionGenomes(spec)) {}
+
+absl::Span<const GenomeRecord> DistributionGenomes::Samples(
+    absl::Span<const GenomeRecord> completed) const {
+  if (!on_ || completed.empty()) return completed;
+  return completed.subspan(1);
+}
+
+void DistributionGenomes::Told(absl::Span<const GenomeRecord> completed,
+                               const GenomeRecord* adopted, bool restarted) {
+  if (!on_) return;
+  parent_ = restarted || completed.empty() ? 0 : completed.front().id;
+  migrant_ = adopted != nullptr && !restarted ? adopted->id : 0;
+}
+
+void DistributionGenomes::Add(uint32_t island, uint32_t generation,
+                              absl::Span<const double> centre, double lower,
+                              double upper,
+                              std::vector<GenomeRecord>* samples) const {
+  if (!on_) return;
+  GenomeRecord d;
+  d.island = island;
+  d.generation = generation;
+  d.slot = 0;
+  d.origin = skerry::v1::DISTRIBUTION;
+  d.state = skerry::v1::PENDING;
+  d.parent_a = parent_;
+  d.parent_b = migrant_;
+  d.genes.reserve(centre.size());
+  for (double x : centre) d.genes.push_back(std::clamp(x, lower, upper));
+  for (GenomeRecord& g : *samples) {
+    ++g.slot;
+    g.parent_a_slot = 0;
+  }
+  samples->insert(samples->begin(), std::move(d));
+}
+
+void DistributionGenomes::Save(skerry::v1::StrategyState* state) const {
+  state->set_distribution_parent(static_cast<uint64_t>(parent_));
+  state->set_distribution_migrant(static_cast<uint64_t>(migrant_));
+}
+
+void DistributionGenomes::Restore(const skerry::v1::StrategyState& state) {
+  parent_ = static_cast<int64_t>(state.distribution_parent());
+  migrant_ = static_cast<int64_t>(state.distribution_migrant());
+}
 
 absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
     const skerry::v1::RunSpec& spec, uint32_t island) {

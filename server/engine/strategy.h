@@ -67,6 +67,53 @@ class Strategy {
   virtual bool StateIsPopulation() const { return false; }
 };
 
+// What an evolution strategy with distribution genomes
+// (strategy.distribution_genomes, HasDistributionGenomes) adds to each
+// generation: slot 0 holds the search distribution's centre as a genome of
+// its own (origin DISTRIBUTION), evaluated like the samples, whose parent a
+// is the previous generation's distribution genome (none at the start and
+// after a restart from a new start) and parent b the migrant that became the
+// centre (none if no migrant did); the samples, at slots 1.., name it as
+// their parent a. Off (old runs), a generation is the samples alone, at
+// slots 0.., without parents. The strategies keep one and save its ids in
+// their state (StrategyState.distribution_parent and _migrant).
+class DistributionGenomes {
+ public:
+  explicit DistributionGenomes(const skerry::v1::RunSpec& spec);
+
+  bool on() const { return on_; }
+
+  // The samples of a completed generation: all but its distribution genome.
+  absl::Span<const store::GenomeRecord> Samples(
+      absl::Span<const store::GenomeRecord> completed) const;
+  // The slot count of a generation of `samples` samples.
+  size_t GenerationSize(size_t samples) const {
+    return samples + (on_ ? 1 : 0);
+  }
+
+  // After a Tell of `completed`: the next distribution genome's parents are
+  // its distribution genome and `adopted` (nullptr: none). `restarted`: the
+  // search began again from a new start, so the next one has no parent a.
+  void Told(absl::Span<const store::GenomeRecord> completed,
+            const store::GenomeRecord* adopted, bool restarted);
+
+  // Puts the distribution genome of `generation` (genes `centre`, clamped to
+  // [lower, upper]) first, renumbers the samples' slots after it and links
+  // them to it. Nothing when off.
+  void Add(uint32_t island, uint32_t generation,
+           absl::Span<const double> centre, double lower, double upper,
+           std::vector<store::GenomeRecord>* samples) const;
+
+  void Save(skerry::v1::StrategyState* state) const;
+  void Restore(const skerry::v1::StrategyState& state);
+  void Clear() { parent_ = migrant_ = 0; }
+
+ private:
+  const bool on_;
+  int64_t parent_ = 0;
+  int64_t migrant_ = 0;
+};
+
 // The strategy the spec names, for `island`.
 absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
     const skerry::v1::RunSpec& spec, uint32_t island);

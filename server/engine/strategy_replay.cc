@@ -45,7 +45,13 @@ absl::Status SameGeneration(const store::RunRecord& run, uint32_t island,
     const GenomeRecord& b = stored[i];
     if (a.slot != b.slot) return differs(b.slot, "its slot differs");
     if (a.origin != b.origin) return differs(b.slot, "its origin differs");
-    if (a.parent_a != b.parent_a || a.parent_b != b.parent_b) {
+    // A link into the generation itself names a slot (records.h).
+    const int64_t made_a =
+        a.parent_a_slot >= 0 &&
+                static_cast<size_t>(a.parent_a_slot) < stored.size()
+            ? stored[static_cast<size_t>(a.parent_a_slot)].id
+            : a.parent_a;
+    if (made_a != b.parent_a || a.parent_b != b.parent_b) {
       return differs(b.slot, "its parent links differ");
     }
     if (a.genes != b.genes) return differs(b.slot, "its genes differ");

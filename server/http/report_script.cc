@@ -15,7 +15,7 @@ absl::string_view ReportScript() {
                    "#CC79A7", "#F0E442", "#000000"];
   const ORIGIN_COLOUR = {SEEDED: "#000000", ELITE: "#56B4E9",
     CROSSOVER: "#E69F00", MUTATION: "#009E73", IMMIGRANT: "#CC79A7",
-    MIGRANT: "#D55E00"};
+    MIGRANT: "#D55E00", DISTRIBUTION: "#0072B2", SAMPLED: "#F0E442"};
   const errors = [];
   function fail(text) {
     errors.push(String(text));

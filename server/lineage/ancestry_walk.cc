@@ -106,6 +106,7 @@ absl::Status AncestryWalk::Expand(uint32_t g) {
     if (empty(s) || Newest(s) != g) continue;
     layers_[s] = std::move(sides_[s].begin()->second);
     sides_[s].erase(sides_[s].begin());
+    Normalise(layers_[s]);  // by id, for Descend
     auto start = starts_[s].find(g);
     if (start != starts_[s].end()) {
       read_ += start->second;
@@ -185,6 +186,12 @@ absl::Status AncestryWalk::ReadRanges() {
 // generations, checking every link.
 absl::Status AncestryWalk::Descend(int s, uint32_t g) {
   std::vector<NodeRow>* older = nullptr;  // made when first needed
+  // A sample's distribution genome is of the sample's own generation, and
+  // older than every genome it is the parent of (stored first, a smaller
+  // id): it joins generation g again, to be expanded in turn. Requiring an
+  // id below the layer's largest makes each round at g end lower, so a
+  // damaged cycle cannot walk forever.
+  const uint64_t last_child = layers_[s].empty() ? 0 : layers_[s].back().id;
   auto k = rows_.begin();
   for (uint64_t id : parents_[s]) {
     while (k != rows_.end() && k->id < id) ++k;
@@ -192,6 +199,16 @@ absl::Status AncestryWalk::Descend(int s, uint32_t g) {
       return absl::DataLossError(absl::StrCat("genome #", ChildOf(s, id),
                                               ": parent #", id,
                                               " is not in the database"));
+    }
+    if (k->generation == g) {
+      // Expanded with its samples already (both in the layer): done.
+      if (std::binary_search(layers_[s].begin(), layers_[s].end(), *k, ById)) {
+        continue;
+      }
+      if (k->id < last_child) {
+        sides_[s][g].push_back(*k);
+        continue;
+      }
     }
     if (k->generation >= g) {
       return absl::DataLossError(

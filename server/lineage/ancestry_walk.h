@@ -16,7 +16,11 @@
 // one generation, so a genome of generation g - 1 can only be reached while
 // generation g is expanded, where the batch deduplicates it. A parent found
 // further back (not made by Skerry, but accepted) is remembered, so that a
-// later generation reaching it does not read it again.
+// later generation reaching it does not read it again. The one link within a
+// generation, an evolution strategy's sample to its distribution genome, puts
+// the distribution genome (stored first, so of a smaller id than every genome
+// expanded with it) back into generation g, which comes round again: Newest()
+// may name a generation twice in a row, never a newer one.
 //
 // Thread safety: none; one walk per connection, on one thread.
 #ifndef SKERRY_SERVER_LINEAGE_ANCESTRY_WALK_H_

@@ -86,15 +86,21 @@ absl::StatusOr<skerry::v1::CoalescenceResponse> LineageReader::Coalescence(
   skerry::v1::CoalescenceResponse out;
   out.set_run_id(start.run_id);
   out.set_generation(start.generation);
-  // Bounded: each round expands one generation, older than the last.
+  // Bounded: each round expands one generation, older than the last, or the
+  // same one again with genomes of smaller ids (distribution genomes,
+  // ancestry_walk.h), which join its level.
+  skerry::v1::CoalescenceLevel* level = nullptr;
+  std::set<uint32_t> islands;  // of `level`
   while (!walk.empty(0)) {
     const uint32_t g = walk.Newest(0);
     const std::vector<NodeRow>& genomes = walk.NewestGenomes(0);
-    std::set<uint32_t> islands;
+    if (level == nullptr || level->generation() != g) {
+      level = out.add_levels();
+      level->set_generation(g);
+      islands.clear();
+    }
     for (const NodeRow& n : genomes) islands.insert(n.island);
-    skerry::v1::CoalescenceLevel* level = out.add_levels();
-    level->set_generation(g);
-    level->set_ancestors(genomes.size());
+    level->set_ancestors(level->ancestors() + genomes.size());
     level->set_islands(static_cast<uint32_t>(islands.size()));
     SKERRY_RETURN_IF_ERROR(walk.Expand(g));
   }

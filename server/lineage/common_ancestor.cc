@@ -49,13 +49,32 @@ std::vector<NodeRow> Shared(const std::vector<NodeRow>& a,
 // side has no ancestors left. Returns the shared genomes (none: the lineages
 // never meet).
 absl::StatusOr<std::vector<NodeRow>> Meet(AncestryWalk& walk) {
+  // Each side's genomes of generation seen[s] so far: a generation may come
+  // round twice (a sample's distribution genome, ancestry_walk.h), and a
+  // genome found on its second round must meet the other side's first.
+  std::vector<NodeRow> seen_genomes[AncestryWalk::kSides];
+  int64_t seen[AncestryWalk::kSides] = {-1, -1};
   // Bounded: every round expands the newest generation of at least one side,
-  // and parents are strictly older than their children.
+  // and parents are older than their children (by generation, or by id
+  // within one).
   while (!walk.empty(0) && !walk.empty(1)) {
     const uint32_t g = std::max(walk.Newest(0), walk.Newest(1));
-    if (walk.Newest(0) == g && walk.Newest(1) == g) {
-      std::vector<NodeRow> common =
-          Shared(walk.NewestGenomes(0), walk.NewestGenomes(1));
+    for (int s = 0; s < AncestryWalk::kSides; ++s) {
+      if (walk.Newest(s) != g) continue;
+      const std::vector<NodeRow>& layer = walk.NewestGenomes(s);  // by id
+      if (seen[s] != g) {
+        seen_genomes[s] = layer;
+      } else {
+        seen_genomes[s].insert(seen_genomes[s].end(), layer.begin(),
+                               layer.end());
+        std::sort(
+            seen_genomes[s].begin(), seen_genomes[s].end(),
+            [](const NodeRow& x, const NodeRow& y) { return x.id < y.id; });
+      }
+      seen[s] = g;
+    }
+    if (seen[0] == g && seen[1] == g) {
+      std::vector<NodeRow> common = Shared(seen_genomes[0], seen_genomes[1]);
       if (!common.empty()) return common;
     }
     absl::Status s = walk.Expand(g);

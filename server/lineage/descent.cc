@@ -29,8 +29,13 @@ bool PreferB(Objective objective, const NodeRow& a, const NodeRow& b) {
   return internal::Better(objective, b.score, a.score);
 }
 
+// Older by generation, or (a sample's distribution genome) of the same
+// generation and stored before it: either way the walk ends.
 absl::Status CheckOlder(const NodeRow& parent, const NodeRow& child) {
   if (parent.generation < child.generation) return absl::OkStatus();
+  if (parent.generation == child.generation && parent.id < child.id) {
+    return absl::OkStatus();
+  }
   return absl::DataLossError(
       absl::StrCat("genome ", NodeName(child), ": parent ", NodeName(parent),
                    " is not from an earlier generation"));

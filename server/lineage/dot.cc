@@ -58,6 +58,8 @@ std::string OriginLabel(skerry::v1::Origin origin) {
       return "migrant";
     case skerry::v1::SAMPLED:
       return "sampled";
+    case skerry::v1::DISTRIBUTION:
+      return "distribution";
     default:
       return absl::StrCat("origin ", static_cast<int>(origin));
   }

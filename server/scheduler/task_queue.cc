@@ -132,6 +132,28 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
                                                uint32_t max_tasks,
                                                absl::Duration wait,
                                                size_t max_bytes) {
+  return Lease(worker, max_tasks, wait, max_bytes, nullptr);
+}
+
+namespace {
+
+// Whether the lease must carry centre `id`: not held, not yet added.
+bool CentreWanted(const TaskQueue::Centres& c, int64_t id) {
+  const uint64_t u = static_cast<uint64_t>(id);
+  if (std::find(c.held.begin(), c.held.end(), u) != c.held.end()) return false;
+  for (const auto& [have, genes] : c.wanted) {
+    if (have == id) return false;
+  }
+  return true;
+}
+
+}  // namespace
+
+std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
+                                               uint32_t max_tasks,
+                                               absl::Duration wait,
+                                               size_t max_bytes,
+                                               Centres* centres) {
   std::vector<skerry::v1::Task> out;
   if (max_tasks == 0) return out;
   absl::MutexLock l(&mu_);
@@ -160,19 +182,28 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
     if (next == runs_.end()) break;
     // The answer must fit in one gRPC message: stop before the task that
     // would make it too big.
-    const size_t size = FrontTaskBytes(next->second);
+    const size_t size = FrontTaskBytes(next->second, centres);
     if (!out.empty() && size > max_bytes - std::min(bytes, max_bytes)) break;
     bytes += size;
-    out.push_back(LeaseFrom(next->second, worker, deadline));
+    out.push_back(LeaseFrom(next->second, worker, deadline, centres));
   }
   return out;
 }
 
-size_t TaskQueue::FrontTaskBytes(RunQueue& rq) {
+size_t TaskQueue::FrontTaskBytes(RunQueue& rq, const Centres* centres) {
   while (true) {
     auto t = tasks_.find(rq.ids.front());
     if (t != tasks_.end() && t->second.state == State::kQueued) {
       const TaskInfo& info = t->second.info;
+      if (centres != nullptr && info.recipe.has_value()) {
+        // The recipe's fields and framing, the centre when it must go too.
+        const size_t centre =
+            info.centre != nullptr && CentreWanted(*centres, info.centre_id)
+                ? 8 * info.centre->size() + 16
+                : 0;
+        return 128 + centre +
+               (info.evaluator ? info.evaluator->ByteSizeLong() : 0);
+      }
       // Genes are packed doubles; 64 bytes cover the ids, attempt, seed,
       // kind and the framing of the task and its fields.
       return 8 * info.genes.size() +
@@ -194,7 +225,7 @@ std::map<int64_t, TaskQueue::RunQueue>::iterator TaskQueue::NextRun() {
 }
 
 skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
-                                      absl::Time deadline) {
+                                      absl::Time deadline, Centres* centres) {
   // rq.queued > 0, so a queued id is in rq.ids; stale ids are skipped.
   Entry* e = nullptr;
   while (e == nullptr) {
@@ -226,7 +257,25 @@ skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
   task.set_task_id(static_cast<uint64_t>(e->info.task_id()));
   task.set_attempt(e->info.attempts);
   task.set_run_id(static_cast<uint64_t>(e->info.run_id));
-  if (e->info.float32) {
+  if (centres != nullptr && e->info.recipe.has_value() &&
+      e->info.centre != nullptr) {
+    const SampleRecipe& r = *e->info.recipe;
+    skerry::v1::SampleTask* sample = task.mutable_sample();
+    sample->set_centre_id(static_cast<uint64_t>(e->info.centre_id));
+    sample->set_seed(r.seed);
+    sample->set_island(r.island);
+    sample->set_generation(r.generation);
+    sample->set_pair(r.pair);
+    sample->set_minus(r.minus);
+    sample->set_float32(r.float32);
+    sample->set_length(r.length);
+    sample->set_sigma(r.sigma);
+    sample->set_lower(r.lower);
+    sample->set_upper(r.upper);
+    if (CentreWanted(*centres, e->info.centre_id)) {
+      centres->wanted.emplace_back(e->info.centre_id, e->info.centre);
+    }
+  } else if (e->info.float32) {
     // Exact: the engine made every gene a float32 value (common/genes.h).
     task.mutable_genes32()->Reserve(static_cast<int>(e->info.genes.size()));
     for (double g : e->info.genes) {

@@ -78,6 +78,7 @@
 #include "absl/time/time.h"
 #include "absl/types/span.h"
 #include "common/clock.h"
+#include "common/sample_recipe.h"
 #include "skerry/v1/fleet.pb.h"
 #include "skerry/v1/spec.pb.h"
 
@@ -104,6 +105,12 @@ struct TaskInfo {
   // Task.genes32 (4 bytes each).
   bool float32 = false;
   uint64_t eval_seed = 0;
+  // A natural ES sample (common/sample_recipe.h): a lease that asks for
+  // recipes (LeaseShape) sends this and the centre's id instead of the
+  // genes; `centre` holds the centre's genes for the lease response.
+  std::optional<SampleRecipe> recipe;
+  int64_t centre_id = 0;
+  std::shared_ptr<const std::vector<double>> centre;
   std::shared_ptr<const skerry::v1::EvaluatorSpec> evaluator;
   uint32_t attempts =
       0;  // leases handed out so far (the current attempt number)
@@ -144,6 +151,18 @@ class TaskQueue {
   std::vector<skerry::v1::Task> Lease(int64_t worker, uint32_t max_tasks,
                                       absl::Duration wait,
                                       size_t max_bytes = SIZE_MAX);
+  // The same for a worker that builds natural ES samples itself (worker
+  // protocol 4): a sample goes as Task.sample, without genes, and
+  // `*centres` gets the centre of every such task that is not in `held`
+  // (once each), which the sizes count too.
+  struct Centres {
+    absl::Span<const uint64_t> held;
+    std::vector<std::pair<int64_t, std::shared_ptr<const std::vector<double>>>>
+        wanted;
+  };
+  std::vector<skerry::v1::Task> Lease(int64_t worker, uint32_t max_tasks,
+                                      absl::Duration wait, size_t max_bytes,
+                                      Centres* centres);
   // Extends the deadlines of tasks that `worker` still holds.
   void Renew(int64_t worker, absl::Span<const uint64_t> task_ids);
   // A leaving worker gives tasks back: each of task_ids (with all_held, every
@@ -220,12 +239,17 @@ class TaskQueue {
   std::map<int64_t, RunQueue>::iterator NextRun()
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Leases the front queued task of `rq` to `worker` until `deadline`.
-  skerry::v1::Task LeaseFrom(RunQueue& rq, int64_t worker, absl::Time deadline)
+  // With `centres`, a sample goes as its recipe (Lease, Centres).
+  skerry::v1::Task LeaseFrom(RunQueue& rq, int64_t worker, absl::Time deadline,
+                             Centres* centres)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   void DropLease(Entry& e) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // The size on the wire of the front queued task of `rq` (rq.queued > 0),
   // an upper estimate; drops stale ids from the front.
-  size_t FrontTaskBytes(RunQueue& rq) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // With `centres`, a sample's size is its recipe's, plus its centre's
+  // when the lease must carry that.
+  size_t FrontTaskBytes(RunQueue& rq, const Centres* centres)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   Clock* const clock_;
   const absl::Duration lease_;

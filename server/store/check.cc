@@ -7,6 +7,7 @@
 #include "absl/strings/str_split.h"
 #include "common/spec.h"
 #include "common/status_macros.h"
+#include "common/strategy_spec.h"
 #include "server/store/row_sums.h"
 #include "server/store/series_store.h"
 #include "server/store/sqlite.h"
@@ -150,7 +151,18 @@ class Checker {
                    "x.id IN (c.parent_a, c.parent_b) WHERE c.run_id = ?1 AND ",
                    reproducible ? "x.generation != c.generation - 1"
                                 : "x.generation >= c.generation",
-                   " LIMIT 20")));
+                   // A sample's link to its distribution genome: below.
+                   " AND NOT (c.origin = ", skerry::v1::SAMPLED,
+                   " AND x.id = c.parent_a) LIMIT 20")));
+    SKERRY_RETURN_IF_ERROR(Expect(
+        run, "sample's parent is not its generation's distribution genome",
+        absl::StrCat("SELECT 'genome', c.id, 'parent', x.id FROM genomes c "
+                     "JOIN genomes x ON x.id = c.parent_a WHERE c.run_id = ?1 "
+                     "AND c.origin = ",
+                     skerry::v1::SAMPLED,
+                     " AND NOT (x.origin = ", skerry::v1::DISTRIBUTION,
+                     " AND x.slot = 0 AND x.island = c.island AND "
+                     "x.generation = c.generation) LIMIT 20")));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "origin and parent links disagree",
         absl::StrCat(
@@ -159,8 +171,14 @@ class Checker {
             skerry::v1::ELITE, ",", skerry::v1::MIGRANT, ",",
             skerry::v1::MUTATION, ",", skerry::v1::CROSSOVER,
             ") AND parent_a IS NULL) OR (origin IN (", skerry::v1::SEEDED, ",",
-            skerry::v1::IMMIGRANT, ") AND parent_a IS NOT NULL) OR (origin = ",
-            skerry::v1::CROSSOVER, " AND parent_b IS NULL)) LIMIT 20")));
+            skerry::v1::IMMIGRANT,
+            ") AND parent_a IS NOT NULL) OR (origin = ", skerry::v1::CROSSOVER,
+            " AND parent_b IS NULL) OR (origin = ", skerry::v1::SAMPLED,
+            " AND (parent_b IS NOT NULL",
+            HasDistributionGenomes(spec) ? " OR parent_a IS NULL" : "",
+            ")) OR (origin = ", skerry::v1::DISTRIBUTION,
+            " AND (slot != 0 OR parent_a IS NULL AND parent_b IS NOT NULL)))"
+            " LIMIT 20")));
     SKERRY_RETURN_IF_ERROR(Expect(
         run, "completed generation has no statistics",
         absl::StrCat(

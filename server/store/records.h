@@ -10,9 +10,11 @@
 #define SKERRY_SERVER_STORE_RECORDS_H_
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
+#include "common/sample_recipe.h"
 #include "skerry/v1/genome.pb.h"
 
 namespace skerry::store {
@@ -26,7 +28,17 @@ struct GenomeRecord {
   skerry::v1::Origin origin = skerry::v1::SEEDED;
   int64_t parent_a = 0;
   int64_t parent_b = 0;
+  // Set by a strategy for a link into the genome's own generation (a sample's
+  // distribution genome, whose id the strategy cannot know): parent_a is the
+  // genome of the same run, island and generation at this slot, inserted
+  // before it in the same Store::InsertGenomes batch, which fills parent_a.
+  // -1: parent_a is as given.
+  int32_t parent_a_slot = -1;
   std::vector<double> genes;
+  // A natural ES sample (common/sample_recipe.h): the store keeps this in
+  // place of the genes, and rebuilds the genes from it and its distribution
+  // genome (parent a) whenever it reads the genome.
+  std::optional<SampleRecipe> recipe;
   double score = 0.0;
   skerry::v1::EvalState state = skerry::v1::PENDING;
   uint32_t attempts = 0;

@@ -2,13 +2,17 @@
 
 #include <sys/stat.h>
 
+#include <algorithm>
 #include <cstring>
 #include <map>
+#include <tuple>
 #include <utility>
 
+#include "absl/container/flat_hash_map.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
+#include "common/sample_recipe.h"
 #include "common/sha256.h"
 #include "common/status_macros.h"
 #include "server/store/access_schema.h"
@@ -349,18 +353,52 @@ absl::StatusOr<GenomeRecord> ReadGenome(const Statement& s) {
   g.origin = static_cast<skerry::v1::Origin>(s.ColumnInt(5));
   g.parent_a = s.ColumnIsNull(6) ? 0 : s.ColumnInt(6);
   g.parent_b = s.ColumnIsNull(7) ? 0 : s.ColumnInt(7);
-  absl::StatusOr<std::vector<double>> genes = UnpackGenes(s.ColumnBlob(8));
-  if (!genes.ok()) {
-    return absl::DataLossError(
-        absl::StrCat("genome ", g.id, ": ", genes.status().message()));
+  const std::string blob = s.ColumnBlob(8);
+  if (IsRecipe(blob)) {
+    // A natural ES sample: RebuildSamples makes its genes.
+    absl::StatusOr<SampleRecipe> recipe = UnpackRecipe(blob);
+    if (!recipe.ok()) {
+      return absl::DataLossError(
+          absl::StrCat("genome ", g.id, ": ", recipe.status().message()));
+    }
+    g.recipe = *recipe;
+  } else {
+    absl::StatusOr<std::vector<double>> genes = UnpackGenes(blob);
+    if (!genes.ok()) {
+      return absl::DataLossError(
+          absl::StrCat("genome ", g.id, ": ", genes.status().message()));
+    }
+    g.genes = std::move(*genes);
   }
-  g.genes = std::move(*genes);
   g.score = s.ColumnIsNull(9) ? 0.0 : s.ColumnDouble(9);
   g.state = static_cast<EvalState>(s.ColumnInt(10));
   g.attempts = static_cast<uint32_t>(s.ColumnInt(11));
   g.error = s.ColumnText(12);
   g.eval_seconds = s.ColumnDouble(13);
   return g;
+}
+
+// The float64 bytes of the genes of sample `id`, stored as `recipe`, from
+// its distribution genome `parent`: in `centres` when the digest read it
+// just before, else read here (a fork's copied sample names its parent
+// run's).
+absl::StatusOr<std::string> SampleBytes(
+    Connection* conn, int64_t id, const std::string& recipe, int64_t parent,
+    absl::flat_hash_map<int64_t, std::vector<double>>* centres) {
+  auto it = centres->find(parent);
+  if (it == centres->end()) {
+    GenomeRecord sample;
+    sample.id = id;
+    sample.parent_a = parent;
+    SKERRY_ASSIGN_OR_RETURN(sample.recipe, UnpackRecipe(recipe));
+    std::vector<GenomeRecord> one = {std::move(sample)};
+    SKERRY_RETURN_IF_ERROR(Store::RebuildSamples(conn, &one));
+    return Float64Bytes(PackGenes(one.front().genes));
+  }
+  SKERRY_ASSIGN_OR_RETURN(SampleRecipe r, UnpackRecipe(recipe));
+  SKERRY_ASSIGN_OR_RETURN(std::vector<double> genes,
+                          BuildSample(r, it->second));
+  return Float64Bytes(PackGenes(genes));
 }
 
 }  // namespace
@@ -684,7 +722,25 @@ absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
           "eval_seconds, sum) VALUES (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,"
           "?13,?14,skerry_row_sum(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,"
           "?14))"));
+  // Ids of the batch's rows by key, for links into their own generation
+  // (GenomeRecord::parent_a_slot); kept only when a row has such a link.
+  using Key = std::tuple<int64_t, uint32_t, uint32_t, uint32_t>;
+  const bool linked =
+      std::any_of(genomes->begin(), genomes->end(),
+                  [](const GenomeRecord& g) { return g.parent_a_slot >= 0; });
+  absl::flat_hash_map<Key, int64_t> inserted;
   for (GenomeRecord& g : *genomes) {
+    if (g.parent_a_slot >= 0) {
+      auto parent = inserted.find(Key{g.run_id, g.island, g.generation,
+                                      static_cast<uint32_t>(g.parent_a_slot)});
+      if (parent == inserted.end()) {
+        return absl::InternalError(absl::StrCat(
+            "run ", g.run_id, " island ", g.island, " generation ",
+            g.generation, " slot ", g.slot, ": its parent at slot ",
+            g.parent_a_slot, " is not inserted before it"));
+      }
+      g.parent_a = parent->second;
+    }
     ins.BindInt(1, ++next_id);
     ins.BindInt(2, g.run_id);
     ins.BindInt(3, g.island);
@@ -693,7 +749,8 @@ absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
     ins.BindInt(6, g.origin);
     ins.BindIdOrNull(7, g.parent_a);
     ins.BindIdOrNull(8, g.parent_b);
-    ins.BindBlob(9, PackGenes(g.genes));
+    ins.BindBlob(
+        9, g.recipe.has_value() ? PackRecipe(*g.recipe) : PackGenes(g.genes));
     if (g.state == skerry::v1::PENDING) {
       ins.BindNull(10);
     } else {
@@ -705,6 +762,7 @@ absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
     ins.BindDouble(14, g.eval_seconds);
     SKERRY_RETURN_IF_ERROR(ins.Run());
     g.id = next_id;
+    if (linked) inserted[Key{g.run_id, g.island, g.generation, g.slot}] = g.id;
   }
   return absl::OkStatus();
 }
@@ -1236,7 +1294,8 @@ absl::StatusOr<std::map<uint32_t, std::string>> Store::GetStrategyStates(
   return out;
 }
 
-absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Statement* s) {
+absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Connection* conn,
+                                                              Statement* s) {
   std::vector<GenomeRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(auto row, s->Step());
@@ -1244,7 +1303,55 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Statement* s) {
     SKERRY_ASSIGN_OR_RETURN(auto g, ReadGenome(*s));
     out.push_back(std::move(g));
   }
+  SKERRY_RETURN_IF_ERROR(RebuildSamples(conn, &out));
   return out;
+}
+
+absl::Status Store::RebuildSamples(Connection* conn,
+                                   std::vector<GenomeRecord>* genomes) {
+  // The distribution genomes at hand (a generation read whole has its own
+  // at slot 0), then those read here, by id.
+  absl::flat_hash_map<int64_t, const std::vector<double>*> centres;
+  std::vector<std::unique_ptr<GenomeRecord>> read;
+  for (const GenomeRecord& g : *genomes) {
+    if (g.origin == skerry::v1::DISTRIBUTION) centres[g.id] = &g.genes;
+  }
+  std::optional<Statement> parent;
+  for (GenomeRecord& g : *genomes) {
+    if (!g.recipe.has_value() || !g.genes.empty()) continue;
+    auto it = centres.find(g.parent_a);
+    if (it == centres.end()) {
+      if (!parent.has_value()) {
+        SKERRY_ASSIGN_OR_RETURN(parent, conn->PrepareCached(absl::StrCat(
+                                            "SELECT ", GenomeColumns(),
+                                            " FROM genomes WHERE id = ?")));
+      }
+      parent->Reset();
+      parent->BindInt(1, g.parent_a);
+      SKERRY_ASSIGN_OR_RETURN(bool row, parent->Step());
+      if (!row) {
+        return absl::DataLossError(absl::StrCat(
+            "genome ", g.id, ": its distribution genome #", g.parent_a,
+            " is not in the database, so its genes cannot be rebuilt"));
+      }
+      SKERRY_ASSIGN_OR_RETURN(GenomeRecord p, ReadGenome(*parent));
+      read.push_back(std::make_unique<GenomeRecord>(std::move(p)));
+      it = centres.emplace(read.back()->id, &read.back()->genes).first;
+      if (read.back()->origin != skerry::v1::DISTRIBUTION) {
+        return absl::DataLossError(absl::StrCat(
+            "genome ", g.id, ": its parent #", g.parent_a,
+            " is not a distribution genome, so its genes cannot be rebuilt"));
+      }
+    }
+    absl::StatusOr<std::vector<double>> genes =
+        BuildSample(*g.recipe, *it->second);
+    if (!genes.ok()) {
+      return absl::DataLossError(
+          absl::StrCat("genome ", g.id, ": ", genes.status().message()));
+    }
+    g.genes = *std::move(genes);
+  }
+  return absl::OkStatus();
 }
 
 absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
@@ -1259,7 +1366,7 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
   s.BindInt(1, run_id);
   s.BindInt(2, island);
   s.BindInt(3, generation);
-  return QueryGenomes(&s);
+  return QueryGenomes(reader.get(), &s);
 }
 
 absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
@@ -1268,7 +1375,7 @@ absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
       auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT ", GenomeColumns(), " FROM genomes WHERE id = ?")));
   s.BindInt(1, genome_id);
-  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
+  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(reader.get(), &s));
   if (rows.empty()) {
     return absl::NotFoundError(absl::StrCat(
         "genome ", static_cast<uint64_t>(genome_id), " not found"));
@@ -1337,7 +1444,7 @@ absl::StatusOr<std::optional<GenomeRecord>> Store::BestGenomeOn(
           " FROM genomes WHERE run_id = ? AND eval_state = 2 ORDER BY score ",
           maximize ? "DESC" : "ASC", ", generation, island, slot LIMIT 1")));
   s.BindInt(1, run_id);
-  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(&s));
+  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(conn, &s));
   if (rows.empty()) return std::optional<GenomeRecord>();
   return std::optional<GenomeRecord>(std::move(rows.front()));
 }
@@ -1367,7 +1474,7 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::FailedGenomes(int64_t run_id,
                   "ORDER BY id DESC LIMIT ?")));
   s.BindInt(1, run_id);
   s.BindInt(2, limit);
-  return QueryGenomes(&s);
+  return QueryGenomes(reader.get(), &s);
 }
 
 absl::StatusOr<uint64_t> Store::CountFailed(int64_t run_id) {
@@ -1399,7 +1506,8 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
       reader->PrepareCached(absl::StrCat(
           "SELECT g.island, g.generation, g.slot, g.origin, pa.island, "
           "pa.generation, pa.slot, pb.island, pb.generation, pb.slot, g.genes, "
-          "g.eval_state, g.score, g.ok, g.id FROM (SELECT *, ",
+          "g.eval_state, g.score, g.ok, g.id, g.origin, g.parent_a FROM "
+          "(SELECT *, ",
           SumMatches(kGenomeSumColumns),
           " AS ok FROM genomes WHERE run_id = ?1) g "
           "LEFT JOIN genomes pa ON pa.id = g.parent_a "
@@ -1408,6 +1516,7 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
   s.BindInt(1, run_id);
   Sha256 h;
   Digest d;
+  absl::flat_hash_map<int64_t, std::vector<double>> centres;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) break;
@@ -1423,8 +1532,19 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
       h.UpdateU32(s.ColumnIsNull(c) ? 0xFFFFFFFFu
                                     : static_cast<uint32_t>(s.ColumnInt(c)));
     }
-    // The float64 form, whichever encoding the row has (common/genes.h).
-    absl::StatusOr<std::string> genes = Float64Bytes(s.ColumnBlob(10));
+    // The float64 form, whichever encoding the row has (common/genes.h); a
+    // sample kept as its recipe is hashed as the genes it rebuilds, so the
+    // digest is that of the genomes evaluated, however they are stored.
+    const std::string blob = s.ColumnBlob(10);
+    if (s.ColumnInt(15) == skerry::v1::DISTRIBUTION) {
+      centres.clear();  // one at a time: samples follow their own
+      absl::StatusOr<std::vector<double>> c = UnpackGenes(blob);
+      if (c.ok()) centres[s.ColumnInt(14)] = *std::move(c);
+    }
+    absl::StatusOr<std::string> genes =
+        IsRecipe(blob) ? SampleBytes(reader.get(), s.ColumnInt(14), blob,
+                                     s.ColumnInt(16), &centres)
+                       : Float64Bytes(blob);
     if (!genes.ok()) {
       return DamagedGenome(run_id, static_cast<uint32_t>(s.ColumnInt(0)),
                            static_cast<uint32_t>(s.ColumnInt(1)),

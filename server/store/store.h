@@ -547,6 +547,13 @@ class Store {
                          int64_t now_ms,
                          const std::vector<std::string>& states);
 
+  // Gives every genome stored as a recipe (common/sample_recipe.h) its
+  // genes, from its distribution genome: one of `genomes`, else read on
+  // `conn` (the writer under mu_, or a reader's lease). DataLoss when that
+  // genome is missing or not a distribution's.
+  static absl::Status RebuildSamples(Connection* conn,
+                                     std::vector<GenomeRecord>* genomes);
+
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)
       : path_(std::move(path)), raw_(conn->raw()), conn_(std::move(conn)) {}
@@ -595,8 +602,11 @@ class Store {
   // On the writer (under mu_) or a reader's lease.
   static absl::StatusOr<std::optional<GenomeRecord>> BestGenomeOn(
       Connection* conn, int64_t run_id);
+  // The genomes `stmt` selects (GenomeColumns), natural ES samples rebuilt
+  // from their distribution genomes (RebuildSamples), read on `conn`.
   static absl::StatusOr<std::vector<GenomeRecord>> QueryGenomes(
-      Statement* stmt);
+      Connection* conn, Statement* stmt);
+
   // A read transaction on a connection of the read pool (read_pool.h).
   absl::StatusOr<ReadPool::Lease> Reader() { return readers_->Acquire(); }
   absl::StatusOr<ValidationRecord> RequestValidationLocked(

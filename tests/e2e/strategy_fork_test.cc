@@ -68,12 +68,19 @@ class StrategyForkTest : public ::testing::Test {
 };
 
 // `child`'s digest from `from` on equals `parent`'s over the same generations.
+// `between`: the runs between them (a fork of a fork), whose genomes the
+// child's copied generation may name as parents.
 void ExpectSameFrom(const std::string& db, int64_t parent_id, int64_t child_id,
-                    int from, uint64_t expected_count) {
+                    int from, uint64_t expected_count,
+                    const std::vector<int64_t>& between = {}) {
   const std::vector<StoredGenome> parent = testing::ReadGenomes(db, parent_id);
   const std::vector<StoredGenome> child = testing::ReadGenomes(db, child_id);
   std::vector<StoredGenome> all = parent;
   all.insert(all.end(), child.begin(), child.end());
+  for (int64_t run : between) {
+    const std::vector<StoredGenome> more = testing::ReadGenomes(db, run);
+    all.insert(all.end(), more.begin(), more.end());
+  }
   uint64_t parent_count = 0;
   uint64_t child_count = 0;
   EXPECT_EQ(DigestFrom(child, all, from, &child_count),
@@ -85,11 +92,12 @@ void ExpectSameFrom(const std::string& db, int64_t parent_id, int64_t child_id,
 TEST_F(StrategyForkTest,
        UnchangedForksOfEvolutionStrategyRunsRepeatTheirParent) {
   // The natural ES's default population is twice CMA-ES's (16 samples, 8
-  // mirrored pairs); its state holds the centre and Adam's moments.
+  // mirrored pairs); its state holds the centre and Adam's moments. Each
+  // generation also holds its distribution genome.
   const struct {
     const char* kind;
     uint64_t population;
-  } kinds[] = {{"cma_es", 8}, {"sep_cma_es", 8}, {"natural_es", 16}};
+  } kinds[] = {{"cma_es", 9}, {"sep_cma_es", 9}, {"natural_es", 17}};
   for (const auto& [kind, population] : kinds) {
     SCOPED_TRACE(kind);
     const int64_t parent = SubmitParent(kind);
@@ -101,7 +109,8 @@ TEST_F(StrategyForkTest,
     // A fork of the fork replays the parent to 5, then the fork to 8.
     const int64_t again =
         Finished(Cli({"fork", absl::StrCat(fork), "--at", "8"}));
-    ExpectSameFrom(db_, parent, again, 8, 2u * population * 6u);  // 8-13
+    ExpectSameFrom(db_, parent, again, 8, 2u * population * 6u,  // 8-13
+                   {fork});
     CommandResult show = Cli({"show", absl::StrCat(again)});
     EXPECT_THAT(show.output, HasSubstr(absl::StrCat("forked from run ", fork,
                                                     " at generation 8")));
@@ -118,7 +127,7 @@ TEST_F(StrategyForkTest, ForkWithAChangedFieldStartsFromTheCopyAndGoesItsWay) {
       Cli({"fork", absl::StrCat(parent), "--at", "6", "--set-file", changes}));
   const std::vector<StoredGenome> a = testing::ReadGenomes(db_, parent);
   const std::vector<StoredGenome> b = testing::ReadGenomes(db_, fork);
-  ASSERT_EQ(b.size(), 2u * 8u * 10u);  // generations 6-15
+  ASSERT_EQ(b.size(), 2u * 9u * 10u);  // generations 6-15, 8 samples + 1
   int same_at_6 = 0;
   int differ_at_7 = 0;
   for (const StoredGenome& g : b) {
@@ -131,8 +140,10 @@ TEST_F(StrategyForkTest, ForkWithAChangedFieldStartsFromTheCopyAndGoesItsWay) {
       if (g.generation == 7 && p.genes != g.genes) ++differ_at_7;
     }
   }
-  EXPECT_EQ(same_at_6, 16);    // the copied generation
-  EXPECT_EQ(differ_at_7, 16);  // sampled from the new seed's streams
+  EXPECT_EQ(same_at_6, 18);  // the copied generation
+  // The samples are drawn from the new seed's streams; the distribution
+  // genomes are the same mean, updated from the same copied generation.
+  EXPECT_EQ(differ_at_7, 16);
   // The strategy may not change.
   CommandResult other = Cli({"fork", absl::StrCat(parent), "--at", "6", "--set",
                              "strategy { sep_cma_es { } }"});

@@ -22,6 +22,7 @@
 #include "absl/strings/str_split.h"
 #include "common/clock.h"
 #include "common/version.h"
+#include "gmock/gmock.h"
 #include "grpcpp/grpcpp.h"
 #include "gtest/gtest.h"
 #include "server/coordinator.h"
@@ -30,6 +31,7 @@
 #include "skerry/v1/runs.grpc.pb.h"
 #include "tests/support/db_check.h"
 #include "tests/support/process.h"
+#include "worker/task_evaluation.h"
 
 namespace skerry {
 namespace {
@@ -351,6 +353,111 @@ TEST_F(WireAbuseTest, Float32GenesComeAsDoublesToAProtocol2Worker) {
     clock_.Advance(absl::Seconds(2));  // the leases expire: lease them again
   }
   EXPECT_EQ(genes_of.size(), kPopulation);
+  FinishHonestly();
+}
+
+// Worker protocol 4: a natural ES run's samples go as their recipes
+// (Task.sample), with each centre once to a worker that does not hold it,
+// and the worker's own ExpandSample builds from them exactly the genes the
+// coordinator made, kept and sends to a worker of protocol 3, bit for bit.
+TEST_F(WireAbuseTest,
+       SamplesGoAsRecipesAndTheWorkerBuildsTheCoordinatorsGenes) {
+  skerry::v1::SubmitRunRequest submit;
+  *submit.mutable_spec() = SmallSpec();
+  submit.mutable_spec()->set_name("natural-es");
+  submit.mutable_spec()->clear_ga();
+  submit.mutable_spec()
+      ->mutable_strategy()
+      ->mutable_natural_es()
+      ->set_population_size(6);
+  skerry::v1::SubmitRunResponse submitted;
+  grpc::Status s = runs_->SubmitRun(Context().get(), submit, &submitted);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  const uint64_t es_run = submitted.run().id();
+  const uint64_t worker = Join();
+  auto lease = [&](uint32_t protocol, const std::vector<uint64_t>& held,
+                   skerry::v1::LeaseResponse* resp) {
+    skerry::v1::LeaseRequest req;
+    req.set_worker_id(worker);
+    req.set_worker_secret(SecretOf(worker));
+    req.set_max_tasks(1000);
+    req.set_wait_ms(200);
+    req.set_protocol_version(protocol);
+    for (uint64_t h : held) req.add_held_centres(h);
+    return fleet_->Lease(Context().get(), req, resp);
+  };
+
+  // Protocol 3: every task carries its genes.
+  std::map<uint64_t, std::vector<double>> genes_of;
+  skerry::v1::LeaseResponse old;
+  s = lease(kGenes32Protocol, {}, &old);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(old.centres_size(), 0);
+  for (const Task& t : old.tasks()) {
+    EXPECT_FALSE(t.has_sample());
+    ASSERT_EQ(t.genes_size(), 3);
+    if (t.run_id() == es_run) {
+      genes_of[t.task_id()] = {t.genes().begin(), t.genes().end()};
+    }
+  }
+  ASSERT_EQ(genes_of.size(), 7u);    // the distribution genome and 6 samples
+  clock_.Advance(absl::Seconds(2));  // the leases expire: lease them again
+
+  // Protocol 4, holding nothing: the samples as recipes, their centre with
+  // them once.
+  skerry::v1::LeaseResponse now;
+  s = lease(kSampleRecipeProtocol, {}, &now);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  ASSERT_EQ(now.centres_size(), 1);
+  const skerry::v1::Centre& centre = now.centres(0);
+  const std::vector<double> centre_genes(centre.genes().begin(),
+                                         centre.genes().end());
+  ASSERT_EQ(genes_of.count(centre.id()), 1u);
+  EXPECT_EQ(centre_genes, genes_of[centre.id()]);  // the distribution genome
+  int samples = 0;
+  for (const Task& t : now.tasks()) {
+    if (t.run_id() != es_run || t.task_id() == centre.id()) {
+      EXPECT_FALSE(t.has_sample());  // a GA's genome, the centre: genes
+      EXPECT_EQ(t.genes_size(), 3);
+      continue;
+    }
+    ++samples;
+    ASSERT_TRUE(t.has_sample()) << "task " << t.task_id();
+    EXPECT_EQ(t.genes_size(), 0);
+    EXPECT_EQ(t.genes32_size(), 0);
+    EXPECT_EQ(t.sample().centre_id(), centre.id());
+    Task built = t;
+    absl::Status expanded = worker::ExpandSample(&built, &centre_genes);
+    ASSERT_TRUE(expanded.ok()) << expanded;
+    EXPECT_FALSE(built.has_sample());
+    const std::vector<double> genes(built.genes().begin(), built.genes().end());
+    EXPECT_EQ(genes, genes_of[t.task_id()]) << "task " << t.task_id();
+    // Without the centre, or with another's, the worker says which.
+    Task orphan = t;
+    EXPECT_THAT(std::string(worker::ExpandSample(&orphan, nullptr).message()),
+                ::testing::HasSubstr(
+                    absl::StrCat("centre #", centre.id(), " is not held")));
+    const std::vector<double> short_centre = {0.0};
+    EXPECT_FALSE(worker::ExpandSample(&orphan, &short_centre).ok());
+  }
+  EXPECT_EQ(samples, 6);
+  clock_.Advance(absl::Seconds(2));
+
+  // Holding the centre: it does not come again.
+  skerry::v1::LeaseResponse held;
+  s = lease(kSampleRecipeProtocol, {centre.id()}, &held);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  EXPECT_EQ(held.centres_size(), 0);
+  int recipes = 0;
+  for (const Task& t : held.tasks()) recipes += t.has_sample() ? 1 : 0;
+  EXPECT_EQ(recipes, 6);
+  clock_.Advance(absl::Seconds(2));
+
+  // More held centres than any worker keeps: refused, naming the field.
+  skerry::v1::LeaseResponse refused;
+  s = lease(kSampleRecipeProtocol, std::vector<uint64_t>(1025, 1), &refused);
+  EXPECT_EQ(s.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
+  EXPECT_THAT(s.error_message(), ::testing::HasSubstr("held_centres"));
   FinishHonestly();
 }
 

@@ -43,7 +43,8 @@ TEST(StrategySpecTest, CmaDefaultsFollowTheTutorial) {
   EXPECT_EQ(StrategyOf(*spec), StrategyKind::kCmaEs);
   EXPECT_EQ(spec->strategy().cma_es().population_size(), 10u);
   EXPECT_DOUBLE_EQ(spec->strategy().cma_es().sigma(), 3.072);
-  EXPECT_EQ(IslandPopulation(*spec, 0), 10u);
+  // The samples and the generation's distribution genome.
+  EXPECT_EQ(IslandPopulation(*spec, 0), 11u);
   EXPECT_FALSE(spec->has_ga());
   EXPECT_EQ(DefaultCmaPopulation(1), 4u);
   EXPECT_EQ(DefaultCmaPopulation(100), 17u);  // 4 + floor(13.8155)
@@ -66,7 +67,7 @@ TEST(StrategySpecTest, NaturalEsDefaults) {
   EXPECT_EQ(es.beta2(), 0.999);
   EXPECT_EQ(es.epsilon(), 1e-8);
   EXPECT_EQ(es.weight_decay(), 0.0);
-  EXPECT_EQ(IslandPopulation(*spec, 0), 20u);
+  EXPECT_EQ(IslandPopulation(*spec, 0), 21u);
   EXPECT_FALSE(spec->has_ga());
   // Set values stay; beta1 0 (no momentum) is allowed.
   absl::StatusOr<skerry::v1::RunSpec> set = Prepare(
@@ -75,6 +76,49 @@ TEST(StrategySpecTest, NaturalEsDefaults) {
   EXPECT_EQ(set->strategy().natural_es().population_size(), 2u);
   EXPECT_EQ(set->strategy().natural_es().sigma(), 0.5);
   EXPECT_EQ(set->strategy().natural_es().beta1(), 0.0);
+}
+
+// strategy.distribution_genomes: on by default for the evolution
+// strategies, refused for the GA, and kept off for a run stored before it
+// existed (KeepGenomeLayout), so its forks and extensions have its shape.
+TEST(StrategySpecTest, DistributionGenomesDefaultOnAndOldRunsKeepTheirShape) {
+  for (const std::string kind : {"cma_es", "sep_cma_es", "natural_es"}) {
+    SCOPED_TRACE(kind);
+    absl::StatusOr<skerry::v1::RunSpec> on =
+        Prepare("strategy { " + kind + " { } }");
+    ASSERT_TRUE(on.ok()) << on.status();
+    EXPECT_TRUE(on->strategy().has_distribution_genomes());
+    EXPECT_TRUE(HasDistributionGenomes(*on));
+    EXPECT_EQ(IslandPopulation(*on, 0), EsPopulation(*on) + 1);
+    absl::StatusOr<skerry::v1::RunSpec> off =
+        Prepare("strategy { " + kind + " { } distribution_genomes: false }");
+    ASSERT_TRUE(off.ok()) << off.status();
+    EXPECT_FALSE(HasDistributionGenomes(*off));
+    EXPECT_EQ(IslandPopulation(*off, 0), EsPopulation(*off));
+
+    // A stored spec from before the field: prepared again (a fork's merge,
+    // an extension), it stays without distribution genomes.
+    skerry::v1::RunSpec stored = *on;
+    stored.mutable_strategy()->clear_distribution_genomes();
+    skerry::v1::RunSpec again = stored;
+    KeepGenomeLayout(stored, &again);
+    absl::StatusOr<skerry::v1::RunSpec> prepared = PrepareSpec(again);
+    ASSERT_TRUE(prepared.ok()) << prepared.status();
+    EXPECT_FALSE(HasDistributionGenomes(*prepared));
+    // A stored spec that has it keeps what it says.
+    again = *on;
+    KeepGenomeLayout(*on, &again);
+    EXPECT_TRUE(HasDistributionGenomes(again));
+  }
+  for (const std::string ga :
+       {"distribution_genomes: true", "ga { } distribution_genomes: false"}) {
+    absl::StatusOr<skerry::v1::RunSpec> refused =
+        Prepare("strategy { " + ga + " }");
+    ASSERT_FALSE(refused.ok()) << ga;
+    EXPECT_THAT(refused.status().message(),
+                HasSubstr("strategy.distribution_genomes: for the evolution "
+                          "strategies"));
+  }
 }
 
 TEST(StrategySpecTest, BadCombinationsNameTheField) {

@@ -11,12 +11,16 @@
 #include <utility>
 #include <vector>
 
+#include "absl/strings/str_cat.h"
 #include "common/clock.h"
+#include "common/genes.h"
+#include "common/sample_recipe.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "server/engine/engine.h"
 #include "server/lineage/lineage_reader.h"
 #include "server/scheduler/task_queue.h"
+#include "server/store/check.h"
 #include "server/store/sqlite.h"
 #include "server/store/store.h"
 #include "tests/support/process.h"
@@ -64,6 +68,8 @@ struct Genome {
 
 class LineageRunTest : public ::testing::Test {
  protected:
+  virtual skerry::v1::RunSpec MakeSpec() const { return Spec(); }
+
   void SetUp() override {
     path_ = dir_.File("run.db");
     RunToEnd();
@@ -80,10 +86,10 @@ class LineageRunTest : public ::testing::Test {
     scheduler::TaskQueue queue(&clock, absl::Seconds(30));
     auto engine = engine::Engine::Open(store->get(), &queue, &clock);
     ASSERT_TRUE(engine.ok()) << engine.status();
-    auto run = (*engine)->Submit(Spec(), "spec", "test");
+    auto run = (*engine)->Submit(MakeSpec(), "spec", "test");
     ASSERT_TRUE(run.ok()) << run.status();
     run_id_ = run->id;
-    for (int round = 0; round < 200; ++round) {
+    for (int round = 0; round < 400; ++round) {
       auto summary = (*engine)->Summary(run_id_);
       ASSERT_TRUE(summary.ok());
       if (summary->state() == skerry::v1::FINISHED) break;
@@ -318,6 +324,215 @@ TEST_F(LineageRunTest, CommonAncestorIsCommonAndNoNewerOneExists) {
 }
 
 TEST_F(LineageRunTest, CoalescenceOfTheLastGenerationMatchesBruteForce) {
+  skerry::v1::CoalescenceRequest req;
+  req.mutable_population()->set_run_id(static_cast<uint64_t>(run_id_));
+  req.mutable_population()->set_generation(kGenerations - 1);
+  req.mutable_population()->set_all_islands(true);
+  auto r = reader_->Coalescence(req);
+  ASSERT_TRUE(r.ok()) << r.status();
+  std::set<int64_t> all;
+  for (int64_t id : LastGeneration()) {
+    all.insert(id);
+    std::set<int64_t> anc = BruteAncestors(id, 0);
+    all.insert(anc.begin(), anc.end());
+  }
+  std::map<uint32_t, uint64_t> per_gen;
+  for (int64_t id : all) ++per_gen[all_.at(id).generation];
+  ASSERT_EQ(r->levels_size(), static_cast<int>(per_gen.size()));
+  for (const auto& level : r->levels()) {
+    EXPECT_EQ(level.ancestors(), per_gen[level.generation()])
+        << "generation " << level.generation();
+  }
+}
+
+// The same queries on a natural ES run: each generation starts with its
+// distribution genome (the search centre, slot 0), which names the one
+// before it, and every sample names its own generation's distribution genome:
+// the one link in Skerry within a generation (docs/lineage.md).
+class LineageEsRunTest : public LineageRunTest {
+ protected:
+  static constexpr uint32_t kSamples = 6;
+
+  skerry::v1::RunSpec MakeSpec() const override {
+    skerry::v1::RunSpec spec = Spec();
+    spec.clear_ga();
+    spec.mutable_strategy()->mutable_natural_es()->set_population_size(
+        kSamples);
+    spec.mutable_strategy()->mutable_natural_es()->set_sigma(0.5);
+    return spec;
+  }
+
+  // The distribution genome of the island's generation.
+  int64_t CentreOf(uint32_t island, uint32_t generation) const {
+    for (const auto& [id, g] : all_) {
+      if (g.island == island && g.generation == generation &&
+          g.origin == skerry::v1::DISTRIBUTION) {
+        return id;
+      }
+    }
+    return 0;
+  }
+};
+
+TEST_F(LineageEsRunTest, EachSampleNamesItsGenerationsDistributionGenome) {
+  ASSERT_EQ(all_.size(), kIslands * kGenerations * (kSamples + 1));
+  int migrants_adopted = 0;
+  for (const auto& [id, g] : all_) {
+    SCOPED_TRACE(::testing::Message() << "genome " << id);
+    const int64_t centre = CentreOf(g.island, g.generation);
+    ASSERT_NE(centre, 0) << "island " << g.island << " generation "
+                         << g.generation << " has no distribution genome";
+    if (g.origin == skerry::v1::SAMPLED) {
+      // Stored as its recipe: the genes come from the centre and the key.
+      EXPECT_TRUE(IsRecipe(g.genes)) << g.genes.size() << " bytes";
+      EXPECT_EQ(g.a, centre);
+      EXPECT_EQ(g.b, 0);
+      EXPECT_LT(g.a, id);  // stored first
+      continue;
+    }
+    ASSERT_EQ(g.origin, skerry::v1::DISTRIBUTION);
+    if (g.generation == 0) {
+      EXPECT_EQ(g.a, 0);
+      EXPECT_EQ(g.b, 0);
+    } else {
+      EXPECT_EQ(g.a, CentreOf(g.island, g.generation - 1));
+    }
+    if (g.b != 0) {
+      ++migrants_adopted;
+      EXPECT_NE(all_.at(g.b).island, g.island);  // the migrant's own island
+      EXPECT_EQ(all_.at(g.b).generation + 1, g.generation);
+      // It became the centre: a sample's genes rebuilt from its recipe.
+      std::string migrant = all_.at(g.b).genes;
+      if (IsRecipe(migrant)) {
+        absl::StatusOr<SampleRecipe> r = UnpackRecipe(migrant);
+        ASSERT_TRUE(r.ok()) << r.status();
+        absl::StatusOr<std::vector<double>> its_centre =
+            UnpackGenes(all_.at(all_.at(g.b).a).genes);
+        ASSERT_TRUE(its_centre.ok()) << its_centre.status();
+        absl::StatusOr<std::vector<double>> built =
+            BuildSample(*r, *its_centre);
+        ASSERT_TRUE(built.ok()) << built.status();
+        migrant = PackGenes(*built);
+      }
+      EXPECT_EQ(migrant, g.genes);
+    }
+  }
+  // Migrants arrive at generations 2, 4 and 6; whether a centre takes one
+  // depends on the scores, so only the bound is fixed.
+  EXPECT_LE(migrants_adopted, 3 * static_cast<int>(kIslands));
+}
+
+// `--check` holds the run's links to the rules of docs/lineage.md, and
+// finds a sample linked to another generation's distribution genome.
+TEST_F(LineageEsRunTest, CheckPassesTheRunAndFindsAMislinkedSample) {
+  absl::StatusOr<store::CheckReport> clean = store::CheckDatabase(path_);
+  ASSERT_TRUE(clean.ok()) << clean.status();
+  EXPECT_TRUE(clean->problems.empty()) << clean->ToString();
+  {
+    auto conn = store::Connection::Open(path_, SQLITE_OPEN_READWRITE);
+    ASSERT_TRUE(conn.ok()) << conn.status();
+    ASSERT_TRUE((*conn)
+                    ->Exec(absl::StrCat(
+                        "UPDATE genomes SET parent_a = ", CentreOf(0, 2),
+                        " WHERE island = 0 AND generation = 3 "
+                        "AND slot = 2"))
+                    .ok());
+  }
+  absl::StatusOr<store::CheckReport> report = store::CheckDatabase(path_);
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_THAT(report->ToString(),
+              ::testing::HasSubstr("sample's parent is not its generation's "
+                                   "distribution genome"));
+}
+
+TEST_F(LineageEsRunTest, AncestorsMatchABruteForceWalk) {
+  for (int64_t id : LastGeneration()) {
+    SCOPED_TRACE(::testing::Message() << "genome " << id);
+    for (uint32_t depth : {1u, 3u, 0u}) {
+      EXPECT_EQ(Ancestors(id, depth), BruteAncestors(id, depth))
+          << "depth " << depth;
+    }
+  }
+}
+
+TEST_F(LineageEsRunTest, CommonAncestorOfTwoSamplesIsTheirCentre) {
+  const std::vector<int64_t> last = LastGeneration();
+  std::vector<std::pair<int64_t, int64_t>> pairs;
+  for (int64_t a : last) {
+    for (int64_t b : last) {
+      if (a < b) pairs.push_back({a, b});  // samples and centres, all islands
+    }
+  }
+  for (const auto& [a, b] : pairs) {
+    SCOPED_TRACE(::testing::Message() << a << " and " << b);
+    GenomeRef ra, rb;
+    ra.set_id(static_cast<uint64_t>(a));
+    rb.set_id(static_cast<uint64_t>(b));
+    auto r = reader_->CommonAncestor(ra, rb);
+    ASSERT_TRUE(r.ok()) << r.status();
+    std::set<int64_t> sa = BruteAncestors(a, 0), sb = BruteAncestors(b, 0);
+    sa.insert(a);
+    sb.insert(b);
+    uint32_t newest = 0;
+    bool any = false;
+    std::set<int64_t> want;
+    for (int64_t x : sa) {
+      if (sb.count(x) == 0) continue;
+      const uint32_t g = all_.at(x).generation;
+      if (!any || g > newest) want.clear();
+      if (!any || g >= newest) {
+        want.insert(x);
+        newest = g;
+        any = true;
+      }
+    }
+    EXPECT_EQ(r->found(), any);
+    std::set<int64_t> got;
+    for (const auto& n : r->ancestors())
+      got.insert(static_cast<int64_t>(n.id()));
+    EXPECT_EQ(got, want);
+    const Genome& ga = all_.at(a);
+    const Genome& gb = all_.at(b);
+    if (ga.island == gb.island) {
+      // Same island, same generation: their centre (or one of them, if it
+      // is the centre), in their own generation.
+      EXPECT_EQ(got, std::set<int64_t>{CentreOf(ga.island, ga.generation)});
+      EXPECT_EQ(r->depth_a(), 0u);
+      EXPECT_EQ(r->depth_b(), 0u);
+    }
+  }
+}
+
+TEST_F(LineageEsRunTest, LineOfDescentRunsThroughTheCentres) {
+  GenomeRef champion;
+  champion.set_champion_of_run(static_cast<uint64_t>(run_id_));
+  auto line = reader_->LineOfDescent(champion);
+  ASSERT_TRUE(line.ok()) << line.status();
+  const auto& steps = line->steps();
+  ASSERT_GE(steps.size(), 1);
+  for (int i = 0; i + 1 < steps.size(); ++i) {
+    const Genome& child = all_.at(static_cast<int64_t>(steps[i].id()));
+    const int64_t parent = static_cast<int64_t>(steps[i + 1].id());
+    EXPECT_TRUE(parent == child.a || parent == child.b);
+    if (parent == child.b) {
+      // A migrant from another island that became the centre: the line
+      // crosses to it when it is the fitter parent.
+      EXPECT_EQ(child.origin, skerry::v1::DISTRIBUTION);
+      EXPECT_NE(all_.at(parent).island, child.island);
+    } else {
+      EXPECT_EQ(steps[i + 1].origin(), skerry::v1::DISTRIBUTION);
+    }
+  }
+  const auto& founder = steps[steps.size() - 1];
+  EXPECT_EQ(founder.key().generation(), 0u);
+  EXPECT_EQ(founder.origin(), skerry::v1::DISTRIBUTION);
+  auto attribution = reader_->Attribution(champion);
+  ASSERT_TRUE(attribution.ok()) << attribution.status();
+  EXPECT_NEAR(attribution->total_gain(), founder.score() - steps[0].score(),
+              1e-9);
+}
+
+TEST_F(LineageEsRunTest, CoalescenceHasOneLevelPerGeneration) {
   skerry::v1::CoalescenceRequest req;
   req.mutable_population()->set_run_id(static_cast<uint64_t>(run_id_));
   req.mutable_population()->set_generation(kGenerations - 1);

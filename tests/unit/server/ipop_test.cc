@@ -66,7 +66,8 @@ std::vector<Step> FlatRun(const RunSpec& spec, int generations) {
   if (!s.ok()) return steps;
   absl::StatusOr<std::vector<GenomeRecord>> gen = (*s)->Start();
   for (int g = 0; g < generations && gen.ok(); ++g) {
-    EXPECT_EQ(gen->size(), 4u) << "generation " << g;
+    // population_size samples after the distribution genome.
+    EXPECT_EQ(gen->size(), 5u) << "generation " << g;
     EXPECT_TRUE((*s)->Tell(Scored(*gen, nullptr), {}).ok());
     const skerry::v1::StrategyState saved = (*s)->Save();
     const skerry::v1::CmaStrategyState& c = saved.cma_es();

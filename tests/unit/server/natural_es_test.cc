@@ -211,8 +211,9 @@ TEST(NaturalEsStrategyTest, SolvesTheSphereInTenDimensions) {
       << "after " << generations << " generations from f = " << start;
 }
 
-// Pair i of a generation is centre +/- sigma eps_i, eps_i rebuilt from its
-// key (seed, island, generation, pair) alone.
+// Pair i of a generation is centre +/- sigma eps_i at slots 2i + 1 and
+// 2i + 2, after the centre itself at slot 0 (the distribution genome), eps_i
+// rebuilt from its key (seed, island, generation, pair) alone.
 TEST(NaturalEsStrategyTest, SamplesAreMirroredPairsRebuiltFromTheirKey) {
   const RunSpec spec = EsSpec();
   absl::StatusOr<std::unique_ptr<Strategy>> made = MakeStrategy(spec, 2);
@@ -222,17 +223,21 @@ TEST(NaturalEsStrategyTest, SamplesAreMirroredPairsRebuiltFromTheirKey) {
   ASSERT_TRUE((*made)->Tell(Evaluated(*gen, 1), {}).ok());
   gen = (*made)->Ask();
   ASSERT_TRUE(gen.ok());
-  ASSERT_EQ(gen->size(), 20u);
+  ASSERT_EQ(gen->size(), 21u);
   const skerry::v1::StrategyState state = (*made)->Save();
   EXPECT_EQ(state.generation(), 1u);
+  EXPECT_EQ((*gen)[0].origin, skerry::v1::DISTRIBUTION);
+  EXPECT_EQ((*gen)[0].genes,
+            std::vector<double>(state.natural_es().centre().begin(),
+                                state.natural_es().centre().end()));
   const double sigma = spec.strategy().natural_es().sigma();
   for (uint32_t i = 0; i < 10; ++i) {
     const std::vector<double> eps = Perturbation(spec, 2, 1, i);
-    const GenomeRecord& plus = (*gen)[2 * i];
-    const GenomeRecord& minus = (*gen)[2 * i + 1];
+    const GenomeRecord& plus = (*gen)[2 * i + 1];
+    const GenomeRecord& minus = (*gen)[2 * i + 2];
     EXPECT_EQ(plus.origin, skerry::v1::SAMPLED);
     EXPECT_EQ(plus.generation, 1u);
-    EXPECT_EQ(minus.slot, 2 * i + 1);
+    EXPECT_EQ(minus.slot, 2 * i + 2);
     for (int j = 0; j < 10; ++j) {
       const double c = state.natural_es().centre(j);
       EXPECT_EQ(plus.genes[j], c + sigma * eps[j]);
@@ -284,8 +289,8 @@ TEST(NaturalEsSigmaTest, ScheduledSamplesUseTheirGenerationsSigma) {
     const std::vector<double> eps = Perturbation(spec, 0, 2, i);
     for (int j = 0; j < 10; ++j) {
       const double c = state.natural_es().centre(j);
-      EXPECT_EQ((*gen)[2 * i].genes[j], c + sigma * eps[j]);
-      EXPECT_EQ((*gen)[2 * i + 1].genes[j], c - sigma * eps[j]);
+      EXPECT_EQ((*gen)[2 * i + 1].genes[j], c + sigma * eps[j]);
+      EXPECT_EQ((*gen)[2 * i + 2].genes[j], c - sigma * eps[j]);
     }
   }
 }

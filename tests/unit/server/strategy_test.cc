@@ -3,12 +3,16 @@
 // ask/tell protocol's errors, and saving and restoring.
 #include "server/engine/strategy.h"
 
+#include <algorithm>
+#include <cmath>
 #include <memory>
 #include <string>
 #include <vector>
 
 #include "common/genes.h"
+#include "common/sample_recipe.h"
 #include "common/spec.h"
+#include "common/strategy_spec.h"
 #include "gtest/gtest.h"
 #include "server/engine/breeder.h"
 
@@ -58,6 +62,7 @@ void ExpectSameGeneration(const std::vector<GenomeRecord>& a,
     EXPECT_EQ(a[i].origin, b[i].origin);
     EXPECT_EQ(a[i].parent_a, b[i].parent_a);
     EXPECT_EQ(a[i].parent_b, b[i].parent_b);
+    EXPECT_EQ(a[i].parent_a_slot, b[i].parent_a_slot);
     EXPECT_EQ(a[i].genes, b[i].genes);  // bit for bit
     EXPECT_EQ(a[i].state, b[i].state);
   }
@@ -149,8 +154,10 @@ TEST(CmaStrategyTest, RestoredIslandContinuesBitForBit) {
     ASSERT_TRUE(a.ok());
     absl::StatusOr<std::vector<GenomeRecord>> gen = (*a)->Start();
     ASSERT_TRUE(gen.ok());
-    EXPECT_EQ(gen->size(), 8u);  // 4 + floor(3 ln 4)
-    EXPECT_EQ(gen->front().origin, skerry::v1::SAMPLED);
+    // 4 + floor(3 ln 4) samples after the distribution genome.
+    EXPECT_EQ(gen->size(), 9u);
+    EXPECT_EQ(gen->front().origin, skerry::v1::DISTRIBUTION);
+    EXPECT_EQ(gen->back().origin, skerry::v1::SAMPLED);
     std::unique_ptr<Strategy> b;
     for (int g = 0; g < 12; ++g) {
       std::vector<GenomeRecord> done = Evaluated(*gen, 100 * (g + 1));
@@ -191,6 +198,118 @@ TEST(CmaStrategyTest, ABetterMigrantMovesTheMean) {
   const skerry::v1::StrategyState state = (*s)->Save();
   ASSERT_EQ(state.cma_es().search().mean_size(), 4);
   for (double m : state.cma_es().search().mean()) EXPECT_EQ(m, 0.0);
+}
+
+// The centre of an evolution strategy's search, as its saved state holds it.
+std::vector<double> CentreOf(const skerry::v1::StrategyState& state) {
+  if (state.has_natural_es()) {
+    return {state.natural_es().centre().begin(),
+            state.natural_es().centre().end()};
+  }
+  return {state.cma_es().search().mean().begin(),
+          state.cma_es().search().mean().end()};
+}
+
+// Every evolution strategy starts each generation with its distribution
+// genome: slot 0, origin DISTRIBUTION, the centre it samples around (clamped
+// to the bounds), whose parents are the previous generation's distribution
+// genome and the migrant that became the centre; every sample names it
+// (parent_a_slot 0, filled with its id when stored).
+TEST(DistributionGenomeTest, EachGenerationStartsWithTheCentreItsSamplesName) {
+  for (const std::string kind : {"cma_es", "sep_cma_es", "natural_es"}) {
+    SCOPED_TRACE(kind);
+    const RunSpec spec = CmaSpec(kind);
+    ASSERT_TRUE(spec.strategy().distribution_genomes());  // the default
+    absl::StatusOr<std::unique_ptr<Strategy>> s = MakeStrategy(spec, 0);
+    ASSERT_TRUE(s.ok());
+    absl::StatusOr<std::vector<GenomeRecord>> gen = (*s)->Start();
+    ASSERT_TRUE(gen.ok());
+    ASSERT_EQ(gen->size(), IslandPopulation(spec, 0));
+    auto expect_layout = [&](const std::vector<GenomeRecord>& g, int64_t parent,
+                             int64_t migrant) {
+      const GenomeRecord& d = g.front();
+      EXPECT_EQ(d.slot, 0u);
+      EXPECT_EQ(d.origin, skerry::v1::DISTRIBUTION);
+      EXPECT_EQ(d.parent_a, parent);
+      EXPECT_EQ(d.parent_b, migrant);
+      EXPECT_EQ(d.parent_a_slot, -1);
+      EXPECT_EQ(d.genes, CentreOf((*s)->Save()));
+      for (size_t i = 1; i < g.size(); ++i) {
+        EXPECT_EQ(g[i].slot, i);
+        EXPECT_EQ(g[i].origin, skerry::v1::SAMPLED);
+        EXPECT_EQ(g[i].parent_a_slot, 0);
+        EXPECT_EQ(g[i].parent_a, 0);
+        EXPECT_EQ(g[i].parent_b, 0);
+      }
+    };
+    expect_layout(*gen, 0, 0);
+    ASSERT_TRUE((*s)->Tell(Evaluated(*gen, 100), {}).ok());
+    gen = (*s)->Ask();
+    ASSERT_TRUE(gen.ok());
+    expect_layout(*gen, 100, 0);  // generation 0's distribution genome
+    GenomeRecord migrant;
+    migrant.id = 7777;
+    migrant.genes = {0.5, -0.25, 0.0, 1.0};
+    migrant.state = skerry::v1::EVALUATED;
+    migrant.score = -1.0;  // better than any sphere value
+    const GenomeRecord* migrants[] = {&migrant};
+    ASSERT_TRUE((*s)->Tell(Evaluated(*gen, 200), migrants).ok());
+    gen = (*s)->Ask();
+    ASSERT_TRUE(gen.ok());
+    expect_layout(*gen, 200, 7777);
+    EXPECT_EQ(gen->front().genes, migrant.genes);
+  }
+}
+
+// A migrant that is not better than the distribution genome's own score
+// does not move the centre, even if it beats every sample.
+TEST(DistributionGenomeTest, AMigrantMustBeatTheCentreToo) {
+  for (const std::string kind : {"cma_es", "natural_es"}) {
+    SCOPED_TRACE(kind);
+    absl::StatusOr<std::unique_ptr<Strategy>> s =
+        MakeStrategy(CmaSpec(kind), 0);
+    ASSERT_TRUE(s.ok());
+    absl::StatusOr<std::vector<GenomeRecord>> gen = (*s)->Start();
+    ASSERT_TRUE(gen.ok());
+    std::vector<GenomeRecord> done = Evaluated(*gen, 100);
+    done.front().score = -2.0;  // the centre beats everything
+    GenomeRecord migrant;
+    migrant.id = 7777;
+    migrant.genes = {0.5, -0.25, 0.0, 1.0};
+    migrant.state = skerry::v1::EVALUATED;
+    migrant.score = -1.0;  // beats every sample, not the centre
+    const GenomeRecord* migrants[] = {&migrant};
+    ASSERT_TRUE((*s)->Tell(done, migrants).ok());
+    gen = (*s)->Ask();
+    ASSERT_TRUE(gen.ok());
+    EXPECT_EQ(gen->front().parent_b, 0);
+    EXPECT_NE(gen->front().genes, migrant.genes);
+  }
+}
+
+// strategy.distribution_genomes: false (what a run stored before the field
+// has): a generation is the samples alone, without parents.
+TEST(DistributionGenomeTest, OffAGenerationIsTheSamplesAlone) {
+  for (const std::string kind : {"cma_es", "natural_es"}) {
+    SCOPED_TRACE(kind);
+    RunSpec spec = CmaSpec(kind);
+    spec.mutable_strategy()->set_distribution_genomes(false);
+    absl::StatusOr<std::unique_ptr<Strategy>> s = MakeStrategy(spec, 0);
+    ASSERT_TRUE(s.ok());
+    absl::StatusOr<std::vector<GenomeRecord>> gen = (*s)->Start();
+    ASSERT_TRUE(gen.ok());
+    ASSERT_EQ(gen->size(), EsPopulation(spec));
+    ASSERT_EQ(gen->size(), IslandPopulation(spec, 0));
+    for (const GenomeRecord& g : *gen) {
+      EXPECT_EQ(g.origin, skerry::v1::SAMPLED);
+      EXPECT_EQ(g.parent_a_slot, -1);
+    }
+    ASSERT_TRUE((*s)->Tell(Evaluated(*gen, 100), {}).ok());
+    gen = (*s)->Ask();
+    ASSERT_TRUE(gen.ok());
+    EXPECT_EQ(gen->front().slot, 0u);
+    EXPECT_EQ(gen->front().origin, skerry::v1::SAMPLED);
+  }
 }
 
 TEST(CmaStrategyTest, AGaStateIsRefused) {
@@ -234,10 +353,24 @@ TEST(Float32StrategyTest, EveryStrategyMakesFloat32GenesInsideTheBounds) {
     for (size_t i = 0; i < ga->size(); ++i) {
       EXPECT_FALSE(FitsFloat32((*ga)[i].genes));  // random doubles
       ASSERT_TRUE(FitsFloat32((*gb)[i].genes)) << "slot " << i;
+      // A natural ES sample is drawn around the centre as stored (rounded)
+      // and then rounded: what its recipe rebuilds from the stored centre.
+      std::vector<double> want;
+      if ((*gb)[i].recipe.has_value()) {
+        absl::StatusOr<std::vector<double>> built =
+            BuildSample(*(*gb)[i].recipe, gb->front().genes);
+        ASSERT_TRUE(built.ok()) << built.status();
+        want = *built;
+      }
       for (size_t j = 0; j < (*gb)[i].genes.size(); ++j) {
         const double x = (*ga)[i].genes[j];
         const double y = (*gb)[i].genes[j];
-        EXPECT_EQ(y, static_cast<double>(static_cast<float>(x)));
+        if (!want.empty()) {
+          EXPECT_EQ(y, want[j]);
+          EXPECT_NEAR(y, x, 1e-6 * std::max(1.0, std::abs(x)));
+        } else {
+          EXPECT_EQ(y, static_cast<double>(static_cast<float>(x)));
+        }
         EXPECT_GE(y, narrow.lower_bound());
         EXPECT_LE(y, narrow.upper_bound());
       }
