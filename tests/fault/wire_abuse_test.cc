@@ -144,6 +144,20 @@ class WireAbuseTest : public ::testing::Test {
     return {resp.tasks().begin(), resp.tasks().end()};
   }
 
+  // A lease of a worker of `protocol` that holds the centres `held`.
+  grpc::Status LeaseAs(uint64_t worker, uint32_t protocol,
+                       const std::vector<uint64_t>& held,
+                       skerry::v1::LeaseResponse* resp) {
+    skerry::v1::LeaseRequest req;
+    req.set_worker_id(worker);
+    req.set_worker_secret(SecretOf(worker));
+    req.set_max_tasks(1000);
+    req.set_wait_ms(200);
+    req.set_protocol_version(protocol);
+    for (uint64_t h : held) req.add_held_centres(h);
+    return fleet_->Lease(Context().get(), req, resp);
+  }
+
   grpc::Status Report(uint64_t worker, const std::vector<TaskResult>& results,
                       skerry::v1::ReportResponse* resp) {
     skerry::v1::ReportRequest req;
@@ -316,14 +330,8 @@ TEST_F(WireAbuseTest, Float32GenesComeAsDoublesToAProtocol2Worker) {
   std::map<uint64_t, std::vector<double>> genes_of;  // FLOAT32 run's tasks
   for (const uint32_t protocol : {0u, 2u, kGenes32Protocol}) {
     SCOPED_TRACE(absl::StrCat("protocol_version ", protocol));
-    skerry::v1::LeaseRequest req;
-    req.set_worker_id(worker);
-    req.set_worker_secret(SecretOf(worker));
-    req.set_max_tasks(1000);
-    req.set_wait_ms(200);
-    req.set_protocol_version(protocol);
     skerry::v1::LeaseResponse resp;
-    s = fleet_->Lease(Context().get(), req, &resp);
+    s = LeaseAs(worker, protocol, {}, &resp);
     ASSERT_TRUE(s.ok()) << s.error_message();
     ASSERT_EQ(resp.tasks_size(), 2 * static_cast<int>(kPopulation));
     for (const Task& t : resp.tasks()) {
@@ -377,14 +385,7 @@ TEST_F(WireAbuseTest,
   const uint64_t worker = Join();
   auto lease = [&](uint32_t protocol, const std::vector<uint64_t>& held,
                    skerry::v1::LeaseResponse* resp) {
-    skerry::v1::LeaseRequest req;
-    req.set_worker_id(worker);
-    req.set_worker_secret(SecretOf(worker));
-    req.set_max_tasks(1000);
-    req.set_wait_ms(200);
-    req.set_protocol_version(protocol);
-    for (uint64_t h : held) req.add_held_centres(h);
-    return fleet_->Lease(Context().get(), req, resp);
+    return LeaseAs(worker, protocol, held, resp);
   };
 
   // Protocol 3: every task carries its genes.

@@ -178,6 +178,78 @@ class LineageRunTest : public ::testing::Test {
     return out;
   }
 
+  // Checks the reader's common ancestor of a and b against brute force:
+  // every common ancestor of the newest generation that has any. Returns
+  // the answer's ids.
+  std::set<int64_t> ExpectCommonAncestorIsBruteForces(int64_t a, int64_t b) {
+    GenomeRef ra, rb;
+    ra.set_id(static_cast<uint64_t>(a));
+    rb.set_id(static_cast<uint64_t>(b));
+    auto r = reader_->CommonAncestor(ra, rb);
+    EXPECT_TRUE(r.ok()) << r.status();
+    if (!r.ok()) return {};
+    std::set<int64_t> sa = BruteAncestors(a, 0), sb = BruteAncestors(b, 0);
+    sa.insert(a);
+    sb.insert(b);
+    uint32_t newest = 0;
+    bool any = false;
+    std::set<int64_t> want;
+    for (int64_t x : sa) {
+      if (sb.count(x) == 0) continue;
+      const uint32_t g = all_.at(x).generation;
+      if (!any || g > newest) want.clear();
+      if (!any || g >= newest) {
+        want.insert(x);
+        newest = g;
+        any = true;
+      }
+    }
+    EXPECT_EQ(r->found(), any);
+    std::set<int64_t> got;
+    for (const auto& n : r->ancestors())
+      got.insert(static_cast<int64_t>(n.id()));
+    EXPECT_EQ(got, want);
+    if (any) {
+      EXPECT_EQ(r->depth_a(), all_.at(a).generation - newest);
+      EXPECT_EQ(r->depth_b(), all_.at(b).generation - newest);
+    }
+    return got;
+  }
+
+  // Coalescence of the last generation of every island against brute force.
+  void ExpectCoalescenceIsBruteForces() {
+    skerry::v1::CoalescenceRequest req;
+    req.mutable_population()->set_run_id(static_cast<uint64_t>(run_id_));
+    req.mutable_population()->set_generation(kGenerations - 1);
+    req.mutable_population()->set_all_islands(true);
+    auto r = reader_->Coalescence(req);
+    ASSERT_TRUE(r.ok()) << r.status();
+    std::set<int64_t> all;
+    for (int64_t id : LastGeneration()) {
+      all.insert(id);
+      std::set<int64_t> anc = BruteAncestors(id, 0);
+      all.insert(anc.begin(), anc.end());
+    }
+    std::map<uint32_t, uint64_t> per_gen;
+    for (int64_t id : all) ++per_gen[all_.at(id).generation];
+    ASSERT_EQ(r->levels_size(), static_cast<int>(per_gen.size()));
+    for (const auto& level : r->levels()) {
+      EXPECT_EQ(level.ancestors(), per_gen[level.generation()])
+          << "generation " << level.generation();
+    }
+  }
+
+  // Ancestors of every genome of the last generation against brute force.
+  void ExpectAncestorsAreBruteForces() {
+    for (int64_t id : LastGeneration()) {
+      SCOPED_TRACE(::testing::Message() << "genome " << id);
+      for (uint32_t depth : {1u, 3u, 0u}) {
+        EXPECT_EQ(Ancestors(id, depth), BruteAncestors(id, depth))
+            << "depth " << depth;
+      }
+    }
+  }
+
   TempDir dir_;
   std::string path_;
   int64_t run_id_ = 0;
@@ -234,13 +306,7 @@ TEST_F(LineageRunTest, EveryParentExistsAndIsFromTheGenerationBefore) {
 }
 
 TEST_F(LineageRunTest, AncestorsMatchABruteForceWalk) {
-  for (int64_t id : LastGeneration()) {
-    SCOPED_TRACE(::testing::Message() << "genome " << id);
-    for (uint32_t depth : {1u, 3u, 0u}) {
-      EXPECT_EQ(Ancestors(id, depth), BruteAncestors(id, depth))
-          << "depth " << depth;
-    }
-  }
+  ExpectAncestorsAreBruteForces();
 }
 
 TEST_F(LineageRunTest, LineOfDescentIsAChainOfParentsToAFounder) {
@@ -290,59 +356,12 @@ TEST_F(LineageRunTest, CommonAncestorIsCommonAndNoNewerOneExists) {
   }
   for (const auto& [a, b] : pairs) {
     SCOPED_TRACE(::testing::Message() << a << " and " << b);
-    GenomeRef ra, rb;
-    ra.set_id(static_cast<uint64_t>(a));
-    rb.set_id(static_cast<uint64_t>(b));
-    auto r = reader_->CommonAncestor(ra, rb);
-    ASSERT_TRUE(r.ok()) << r.status();
-    std::set<int64_t> sa = BruteAncestors(a, 0), sb = BruteAncestors(b, 0);
-    sa.insert(a);
-    sb.insert(b);
-    uint32_t newest = 0;
-    bool any = false;
-    std::set<int64_t> want;
-    for (int64_t x : sa) {
-      if (sb.count(x) == 0) continue;
-      const uint32_t g = all_.at(x).generation;
-      if (!any || g > newest) want.clear();
-      if (!any || g >= newest) {
-        want.insert(x);
-        newest = g;
-        any = true;
-      }
-    }
-    EXPECT_EQ(r->found(), any);
-    std::set<int64_t> got;
-    for (const auto& n : r->ancestors())
-      got.insert(static_cast<int64_t>(n.id()));
-    EXPECT_EQ(got, want);
-    if (any) {
-      EXPECT_EQ(r->depth_a(), all_.at(a).generation - newest);
-      EXPECT_EQ(r->depth_b(), all_.at(b).generation - newest);
-    }
+    ExpectCommonAncestorIsBruteForces(a, b);
   }
 }
 
 TEST_F(LineageRunTest, CoalescenceOfTheLastGenerationMatchesBruteForce) {
-  skerry::v1::CoalescenceRequest req;
-  req.mutable_population()->set_run_id(static_cast<uint64_t>(run_id_));
-  req.mutable_population()->set_generation(kGenerations - 1);
-  req.mutable_population()->set_all_islands(true);
-  auto r = reader_->Coalescence(req);
-  ASSERT_TRUE(r.ok()) << r.status();
-  std::set<int64_t> all;
-  for (int64_t id : LastGeneration()) {
-    all.insert(id);
-    std::set<int64_t> anc = BruteAncestors(id, 0);
-    all.insert(anc.begin(), anc.end());
-  }
-  std::map<uint32_t, uint64_t> per_gen;
-  for (int64_t id : all) ++per_gen[all_.at(id).generation];
-  ASSERT_EQ(r->levels_size(), static_cast<int>(per_gen.size()));
-  for (const auto& level : r->levels()) {
-    EXPECT_EQ(level.ancestors(), per_gen[level.generation()])
-        << "generation " << level.generation();
-  }
+  ExpectCoalescenceIsBruteForces();
 }
 
 // The same queries on a natural ES run: each generation starts with its
@@ -446,13 +465,7 @@ TEST_F(LineageEsRunTest, CheckPassesTheRunAndFindsAMislinkedSample) {
 }
 
 TEST_F(LineageEsRunTest, AncestorsMatchABruteForceWalk) {
-  for (int64_t id : LastGeneration()) {
-    SCOPED_TRACE(::testing::Message() << "genome " << id);
-    for (uint32_t depth : {1u, 3u, 0u}) {
-      EXPECT_EQ(Ancestors(id, depth), BruteAncestors(id, depth))
-          << "depth " << depth;
-    }
-  }
+  ExpectAncestorsAreBruteForces();
 }
 
 TEST_F(LineageEsRunTest, CommonAncestorOfTwoSamplesIsTheirCentre) {
@@ -465,40 +478,14 @@ TEST_F(LineageEsRunTest, CommonAncestorOfTwoSamplesIsTheirCentre) {
   }
   for (const auto& [a, b] : pairs) {
     SCOPED_TRACE(::testing::Message() << a << " and " << b);
-    GenomeRef ra, rb;
-    ra.set_id(static_cast<uint64_t>(a));
-    rb.set_id(static_cast<uint64_t>(b));
-    auto r = reader_->CommonAncestor(ra, rb);
-    ASSERT_TRUE(r.ok()) << r.status();
-    std::set<int64_t> sa = BruteAncestors(a, 0), sb = BruteAncestors(b, 0);
-    sa.insert(a);
-    sb.insert(b);
-    uint32_t newest = 0;
-    bool any = false;
-    std::set<int64_t> want;
-    for (int64_t x : sa) {
-      if (sb.count(x) == 0) continue;
-      const uint32_t g = all_.at(x).generation;
-      if (!any || g > newest) want.clear();
-      if (!any || g >= newest) {
-        want.insert(x);
-        newest = g;
-        any = true;
-      }
-    }
-    EXPECT_EQ(r->found(), any);
-    std::set<int64_t> got;
-    for (const auto& n : r->ancestors())
-      got.insert(static_cast<int64_t>(n.id()));
-    EXPECT_EQ(got, want);
+    const std::set<int64_t> got = ExpectCommonAncestorIsBruteForces(a, b);
     const Genome& ga = all_.at(a);
     const Genome& gb = all_.at(b);
     if (ga.island == gb.island) {
       // Same island, same generation: their centre (or one of them, if it
       // is the centre), in their own generation.
+      // (depth 0 from both: ExpectCommonAncestorIsBruteForces).
       EXPECT_EQ(got, std::set<int64_t>{CentreOf(ga.island, ga.generation)});
-      EXPECT_EQ(r->depth_a(), 0u);
-      EXPECT_EQ(r->depth_b(), 0u);
     }
   }
 }
@@ -533,25 +520,7 @@ TEST_F(LineageEsRunTest, LineOfDescentRunsThroughTheCentres) {
 }
 
 TEST_F(LineageEsRunTest, CoalescenceHasOneLevelPerGeneration) {
-  skerry::v1::CoalescenceRequest req;
-  req.mutable_population()->set_run_id(static_cast<uint64_t>(run_id_));
-  req.mutable_population()->set_generation(kGenerations - 1);
-  req.mutable_population()->set_all_islands(true);
-  auto r = reader_->Coalescence(req);
-  ASSERT_TRUE(r.ok()) << r.status();
-  std::set<int64_t> all;
-  for (int64_t id : LastGeneration()) {
-    all.insert(id);
-    std::set<int64_t> anc = BruteAncestors(id, 0);
-    all.insert(anc.begin(), anc.end());
-  }
-  std::map<uint32_t, uint64_t> per_gen;
-  for (int64_t id : all) ++per_gen[all_.at(id).generation];
-  ASSERT_EQ(r->levels_size(), static_cast<int>(per_gen.size()));
-  for (const auto& level : r->levels()) {
-    EXPECT_EQ(level.ancestors(), per_gen[level.generation()])
-        << "generation " << level.generation();
-  }
+  ExpectCoalescenceIsBruteForces();
 }
 
 }  // namespace
