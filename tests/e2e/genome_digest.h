@@ -15,10 +15,31 @@
 #include <vector>
 
 #include "common/genes.h"
+#include "common/sample_recipe.h"
 #include "common/sha256.h"
 #include "tests/support/db_check.h"
 
 namespace skerry::testing {
+
+// The float64 bytes of a stored genome's genes, whichever form the row has:
+// a natural ES sample kept as its recipe is rebuilt from its distribution
+// genome, found in `by_id` (common/sample_recipe.h), as the store's digest
+// does. The raw bytes when they cannot be read.
+inline std::string GenesBytes(
+    const StoredGenome& g,
+    const std::map<int64_t, const StoredGenome*>& by_id) {
+  if (IsRecipe(g.genes)) {
+    absl::StatusOr<SampleRecipe> r = UnpackRecipe(g.genes);
+    auto centre = by_id.find(g.parent_a);
+    if (!r.ok() || centre == by_id.end()) return g.genes;
+    absl::StatusOr<std::vector<double>> c = UnpackGenes(centre->second->genes);
+    if (!c.ok()) return g.genes;
+    absl::StatusOr<std::vector<double>> built = BuildSample(*r, *c);
+    if (!built.ok()) return g.genes;
+    return Float64Bytes(PackGenes(*built)).value_or(g.genes);
+  }
+  return Float64Bytes(g.genes).value_or(g.genes);
+}
 
 inline std::string DigestFrom(const std::vector<StoredGenome>& run,
                               const std::vector<StoredGenome>& all, int from,
@@ -42,8 +63,8 @@ inline std::string DigestFrom(const std::vector<StoredGenome>& run,
         h.UpdateU32(static_cast<uint32_t>(it->second->slot));
       }
     }
-    // The float64 form of the genes, whichever encoding the row has.
-    const std::string genes = Float64Bytes(g.genes).value_or(g.genes);
+    // The float64 form of the genes, whichever form the row has.
+    const std::string genes = GenesBytes(g, by_id);
     h.UpdateU32(static_cast<uint32_t>(genes.size() / 8));
     h.Update(genes);
     h.UpdateU32(static_cast<uint32_t>(g.eval_state));
