@@ -8,6 +8,7 @@
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
 #include "common/random.h"
+#include "common/status_macros.h"
 
 namespace skerry {
 namespace {
@@ -26,6 +27,21 @@ double LoadDouble(const char* at) {
   double v;
   std::memcpy(&v, &bits, 8);
   return v;
+}
+
+// What every recipe must be, read from the store or from a task.
+absl::Status CheckRecipe(const SampleRecipe& r) {
+  if (!(std::isfinite(r.sigma) && r.sigma >= 0)) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "sample recipe: sigma ", r.sigma, " is not finite and >= 0"));
+  }
+  if (!(std::isfinite(r.lower) && std::isfinite(r.upper) &&
+        r.lower <= r.upper)) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("sample recipe: bounds [", r.lower, ", ", r.upper,
+                     "] are not finite and in order"));
+  }
+  return absl::OkStatus();
 }
 
 }  // namespace
@@ -70,6 +86,7 @@ absl::StatusOr<std::vector<double>> BuildSample(
         r.pair, ": its recipe makes ", r.length,
         " genes but its distribution genome has ", centre.size()));
   }
+  SKERRY_RETURN_IF_ERROR(CheckRecipe(r));
   const std::vector<double> eps =
       SamplePerturbation(r.seed, r.island, r.generation, r.pair, r.length);
   return BuildSampleFrom(r, centre, eps);
@@ -119,16 +136,7 @@ absl::StatusOr<SampleRecipe> UnpackRecipe(absl::string_view bytes) {
   r.sigma = LoadDouble(bytes.data() + 26);
   r.lower = LoadDouble(bytes.data() + 34);
   r.upper = LoadDouble(bytes.data() + 42);
-  if (!(std::isfinite(r.sigma) && r.sigma >= 0)) {
-    return absl::InvalidArgumentError(absl::StrCat(
-        "sample recipe: sigma ", r.sigma, " is not finite and >= 0"));
-  }
-  if (!(std::isfinite(r.lower) && std::isfinite(r.upper) &&
-        r.lower <= r.upper)) {
-    return absl::InvalidArgumentError(
-        absl::StrCat("sample recipe: bounds [", r.lower, ", ", r.upper,
-                     "] are not finite and in order"));
-  }
+  SKERRY_RETURN_IF_ERROR(CheckRecipe(r));
   return r;
 }
 

@@ -65,7 +65,8 @@ std::vector<double> SamplePerturbation(uint64_t seed, uint32_t island,
                                        uint32_t length);
 
 // The sample's genes from its distribution genome's. InvalidArgument when
-// `centre` is not `length` genes long.
+// `centre` is not `length` genes long, or the recipe is out of range (as
+// UnpackRecipe says).
 absl::StatusOr<std::vector<double>> BuildSample(
     const SampleRecipe& recipe, absl::Span<const double> centre);
 // The same from its pair's eps (SamplePerturbation), already drawn: what the

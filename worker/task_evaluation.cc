@@ -143,12 +143,7 @@ absl::Status ExpandSample(skerry::v1::Task* task,
   r.sigma = s.sigma();
   r.lower = s.lower();
   r.upper = s.upper();
-  if (!(std::isfinite(r.sigma) && r.sigma >= 0 && std::isfinite(r.lower) &&
-        std::isfinite(r.upper) && r.lower <= r.upper)) {
-    return absl::InvalidArgumentError(
-        absl::StrCat("the sample's recipe has sigma ", r.sigma, " and bounds [",
-                     r.lower, ", ", r.upper, "]"));
-  }
+  // BuildSample refuses a recipe out of range, as the store's reads do.
   absl::StatusOr<std::vector<double>> genes = BuildSample(r, *centre);
   if (!genes.ok()) {
     return absl::FailedPreconditionError(absl::StrCat(

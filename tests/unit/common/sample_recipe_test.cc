@@ -4,6 +4,7 @@
 #include "common/sample_recipe.h"
 
 #include <algorithm>
+#include <limits>
 #include <string>
 #include <vector>
 
@@ -108,6 +109,11 @@ TEST(SampleRecipeTest, BadInputIsRefusedNamingWhatIsWrong) {
   r.lower = 2.0;
   EXPECT_THAT(UnpackRecipe(PackRecipe(r)).status().message(),
               HasSubstr("bounds [2, 1]"));
+  // The same checks when a recipe comes from a task, not the store.
+  r = Recipe();
+  r.sigma = std::numeric_limits<double>::quiet_NaN();
+  EXPECT_THAT(BuildSample(r, std::vector<double>(5, 0.0)).status().message(),
+              HasSubstr("sigma nan"));
   EXPECT_THAT(UnpackRecipe("short").status().message(),
               HasSubstr("5 bytes, not the 50 bytes"));
 }
