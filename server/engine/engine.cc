@@ -165,6 +165,12 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
   run->evaluator =
       std::make_shared<skerry::v1::EvaluatorSpec>(record.spec.evaluator());
   run->stop_generation = record.stop_generation;
+  if (record.champion_id != 0) {
+    SKERRY_ASSIGN_OR_RETURN(GenomeRecord champion,
+                            store_->GetGenome(record.champion_id));
+    run->champion_key =
+        std::make_tuple(champion.generation, champion.island, champion.slot);
+  }
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
                           store_->GetIslands(record.id));
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::StatsRecord> stats,
@@ -885,6 +891,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   }
 
   store::GenerationCommit commit;
+  std::tuple<uint32_t, uint32_t, uint32_t> commit_champion_key;
   commit.run_id = run.record.id;
   commit.island = island.index;
   commit.completed = stats;
@@ -892,13 +899,22 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   commit.next = done ? nullptr : &next;
   commit.stop_generation = new_stop;
   commit.strategy_state = saved_state;
-  if (has_best && (!run.record.best_score.has_value() ||
-                   Better(spec, stats.best, *run.record.best_score))) {
+  if (has_best) {
+    const std::optional<double>& best = run.record.best_score;
+    const bool better = !best.has_value() || Better(spec, stats.best, *best);
+    const bool equal = !better && !Better(spec, *best, stats.best);
     for (const GenomeRecord& gr : island.current) {
-      if (gr.state == skerry::v1::EVALUATED && gr.score == stats.best) {
+      if (gr.state != skerry::v1::EVALUATED || gr.score != stats.best) continue;
+      // The first in slot order is this generation's smallest key. On an
+      // equal score it takes over only with a smaller key than the
+      // champion's, as `skerry champion` orders ties (store.h, BestGenome).
+      const auto key = std::make_tuple(gr.generation, gr.island, gr.slot);
+      if (better || (equal && (!run.champion_key.has_value() ||
+                               key < *run.champion_key))) {
         commit.champion = std::make_pair(gr.id, gr.score);
-        break;
+        commit_champion_key = key;
       }
+      break;
     }
   }
   if (has_best) {
@@ -920,6 +936,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   if (commit.champion.has_value()) {
     run.record.champion_id = commit.champion->first;
     run.record.best_score = commit.champion->second;
+    run.champion_key = commit_champion_key;
   }
   island.evaluations += stats.evaluations;
   island.last_stats = stats;

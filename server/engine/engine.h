@@ -96,6 +96,7 @@
 #include <optional>
 #include <string>
 #include <thread>
+#include <tuple>
 #include <vector>
 
 #include "absl/base/thread_annotations.h"
@@ -228,6 +229,10 @@ class Engine {
     std::optional<uint32_t> stop_generation;  // set by the target score rule
     std::string finish_reason;
     std::string last_error;  // of the latest failed genome, for the message
+    // The champion's (generation, island, slot), read back at load: an equal
+    // score takes the championship only with a smaller key, so the champion
+    // is the same whichever island's generation commits first.
+    std::optional<std::tuple<uint32_t, uint32_t, uint32_t>> champion_key;
   };
   // A queued validation: what its results are checked against.
   struct PendingValidation {

@@ -590,6 +590,79 @@ TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
   EXPECT_EQ(out->ignored, island1_gen3.size());
 }
 
+// Regression (found by the strategy evidence re-run, issue 14): when genomes
+// tie for the best score, the champion was the first one committed, so which
+// island's generation committed first (the workers' timing) chose it, and with
+// it the genome whose validation is stored. Ties now go to the smallest
+// (generation, island, slot), the order `skerry champion` uses
+// (Store::BestGenome), whatever the order of commits, across a restart too.
+TEST_F(EngineTest, EqualBestScoresGoToTheSmallestKeyWhateverCommitsFirst) {
+  RunSpec spec = SmallSpec();
+  spec.mutable_islands()->set_interval(100);  // no migration in this test
+  int64_t run_id = 0;
+  auto everything_scores_one = [](const Task& t, const GenomeRecord& g) {
+    TaskResult r = TrueSphere(t, g);
+    r.set_score(1.0);
+    return r;
+  };
+  // Leases everything queued: `island`'s tasks of generation 0, the others
+  // into `others`.
+  auto generation0_of = [](Coordinator& c, uint32_t island,
+                           std::vector<Task>* others) {
+    std::vector<Task> mine;
+    for (Task& t : c.queue->Lease(kWorker, 1000, absl::ZeroDuration())) {
+      absl::StatusOr<GenomeRecord> g =
+          c.store->GetGenome(static_cast<int64_t>(t.task_id()));
+      EXPECT_TRUE(g.ok()) << g.status();
+      if (g.ok() && g->island == island && g->generation == 0) {
+        mine.push_back(std::move(t));
+      } else {
+        others->push_back(std::move(t));
+      }
+    }
+    return mine;
+  };
+  auto champion_of = [&](Coordinator& c) -> std::optional<Key> {
+    absl::StatusOr<store::RunRecord> run = c.store->GetRun(run_id);
+    EXPECT_TRUE(run.ok()) << run.status();
+    if (!run.ok() || run->champion_id == 0) return std::nullopt;
+    absl::StatusOr<GenomeRecord> g = c.store->GetGenome(run->champion_id);
+    EXPECT_TRUE(g.ok()) << g.status();
+    if (!g.ok()) return std::nullopt;
+    return Key{g->island, g->generation, g->slot};
+  };
+  {
+    std::unique_ptr<Coordinator> c = Open();
+    ASSERT_NE(c, nullptr);
+    run_id = Submit(*c, spec);
+    // Island 1's generation 0 commits first: its slot 0 is the champion.
+    std::vector<Task> held;  // island 0's, leased and dropped at the restart
+    std::vector<Task> island1 = generation0_of(*c, 1, &held);
+    ASSERT_EQ(island1.size(), kPopulation);
+    ReportTasks(*c, island1, everything_scores_one);
+    EXPECT_EQ(champion_of(*c), (Key{1, 0, 0}));
+  }
+  // After a restart (the champion's key is read back), island 0's generation
+  // 0 ties with it and has the smaller key: it takes over.
+  std::unique_ptr<Coordinator> c = Open();
+  ASSERT_NE(c, nullptr);
+  std::vector<Task> island1_next;
+  std::vector<Task> island0 = generation0_of(*c, 0, &island1_next);
+  ASSERT_EQ(island0.size(), kPopulation);
+  ReportTasks(*c, island0, everything_scores_one);
+  EXPECT_EQ(champion_of(*c), (Key{0, 0, 0}));
+  ReportTasks(*c, island1_next, everything_scores_one);
+  // Later generations tie too, with larger keys: the champion stays.
+  DriveToEnd(*c, run_id, everything_scores_one);
+  EXPECT_EQ(champion_of(*c), (Key{0, 0, 0}));
+  absl::StatusOr<std::optional<GenomeRecord>> best =
+      c->store->BestGenome(run_id);
+  ASSERT_TRUE(best.ok()) << best.status();
+  ASSERT_TRUE(best->has_value());
+  EXPECT_EQ((Key{(*best)->island, (*best)->generation, (*best)->slot}),
+            (Key{0, 0, 0}));
+}
+
 TEST_F(EngineTest, PauseStopsLeasingAndResumeResumes) {
   std::unique_ptr<Coordinator> c = Open();
   ASSERT_NE(c, nullptr);
