@@ -3,6 +3,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
+#include "common/sample_recipe.h"
 #include "common/status_macros.h"
 #include "server/store/store.h"
 
@@ -49,7 +50,22 @@ absl::StatusOr<std::vector<ValidationRecord>> Store::QueryValidations(
     SKERRY_ASSIGN_OR_RETURN(bool row, s->Step());
     if (!row) break;
     ValidationRecord r = ReadValidation(*s);
-    if (with_genes) {
+    if (with_genes && IsRecipe(s->ColumnBlob(18))) {
+      // A natural ES sample kept as its recipe: rebuilt from its
+      // distribution genome, as every genome read rebuilds it.
+      absl::StatusOr<SampleRecipe> recipe = UnpackRecipe(s->ColumnBlob(18));
+      if (!recipe.ok()) {
+        return absl::DataLossError(
+            absl::StrCat("genome ", r.genome_id,
+                         ": stored recipe: ", recipe.status().message()));
+      }
+      std::vector<GenomeRecord> one(1);
+      one.front().id = r.genome_id;
+      one.front().parent_a = s->ColumnInt(19);
+      one.front().recipe = *recipe;
+      SKERRY_RETURN_IF_ERROR(RebuildSamples(conn_.get(), &one));
+      r.genes = std::move(one.front().genes);
+    } else if (with_genes) {
       absl::StatusOr<std::vector<double>> genes =
           UnpackGenes(s->ColumnBlob(18));
       if (!genes.ok()) {
@@ -171,9 +187,9 @@ absl::Status Store::ApplyValidationsLocked(
 absl::StatusOr<std::vector<ValidationRecord>> Store::PendingValidations() {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", kValidationColumns,
-                                          ", g.genes", kValidationFrom,
-                                          " WHERE v.state = 1 ORDER BY v.id")));
+      auto s, conn_->Prepare(absl::StrCat(
+                  "SELECT ", kValidationColumns, ", g.genes, g.parent_a",
+                  kValidationFrom, " WHERE v.state = 1 ORDER BY v.id")));
   return QueryValidations(&s, true);
 }
 

@@ -3,6 +3,7 @@
 #include <string>
 #include <vector>
 
+#include "common/sample_recipe.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "server/store/store.h"
@@ -207,6 +208,43 @@ TEST_F(StoreValidationTest, TrimmingAFinishedRunTrimsItsValidations) {
   ASSERT_TRUE(list.ok());
   ASSERT_EQ(list->size(), 1u) << "generation 1 is gone, with its validation";
   EXPECT_EQ((*list)[0].genome_id, genomes[3].id);
+}
+
+// Regression: a pending validation of a natural ES sample, which the store
+// keeps as its recipe, was read back at restart by unpacking the recipe as
+// genes, which fails: the coordinator could not start on such a store. It is
+// rebuilt from its distribution genome, as every genome read rebuilds it.
+TEST_F(StoreValidationTest, APendingValidationOfASampleKeptAsItsRecipeIsRead) {
+  RunRecord run = MakeRun(SmallSpec(1));
+  std::vector<GenomeRecord> genomes;
+  GenomeRecord centre = MakeGenome(0, 0, 0, 0.25);
+  centre.origin = skerry::v1::DISTRIBUTION;
+  genomes.push_back(centre);
+  SampleRecipe r;
+  r.seed = 5;
+  r.length = 2;
+  r.sigma = 0.1;
+  r.lower = -1;
+  r.upper = 1;
+  for (uint32_t slot = 1; slot <= 2; ++slot) {
+    GenomeRecord g = MakeGenome(0, 0, slot, 0);
+    g.origin = skerry::v1::SAMPLED;
+    g.genes.clear();
+    g.parent_a_slot = 0;
+    r.minus = slot == 2;
+    g.recipe = r;
+    genomes.push_back(g);
+  }
+  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
+  const ValidationRecord v = Request(genomes[2].id);
+  absl::StatusOr<std::vector<ValidationRecord>> pending =
+      store_->PendingValidations();
+  ASSERT_TRUE(pending.ok()) << pending.status();
+  ASSERT_EQ(pending->size(), 1u);
+  EXPECT_EQ(pending->front().id, v.id);
+  absl::StatusOr<std::vector<double>> want = BuildSample(r, centre.genes);
+  ASSERT_TRUE(want.ok());
+  EXPECT_EQ(pending->front().genes, *want);
 }
 
 }  // namespace
