@@ -281,8 +281,8 @@ absl::StatusOr<std::vector<GenomeRecord>> Breed(
   return out;
 }
 
-store::StatsRecord ComputeStats(const RunSpec& spec,
-                                absl::Span<const GenomeRecord> generation) {
+store::StatsRecord ComputeScoreStats(
+    const RunSpec& spec, absl::Span<const GenomeRecord> generation) {
   store::StatsRecord s;
   if (generation.empty()) return s;
   s.island = generation.front().island;
@@ -305,6 +305,13 @@ store::StatsRecord ComputeStats(const RunSpec& spec,
   }
   s.mean = valid > 0 ? sum / valid : 0.0;
   // With no evaluated genome, best, mean and worst stay 0 and failed == size.
+  return s;
+}
+
+store::StatsRecord ComputeStats(const RunSpec& spec,
+                                absl::Span<const GenomeRecord> generation) {
+  store::StatsRecord s = ComputeScoreStats(spec, generation);
+  if (generation.empty()) return s;
   // Diversity: mean over genes of the population standard deviation.
   const size_t len = generation.front().genes.size();
   const double count = static_cast<double>(generation.size());

@@ -55,8 +55,13 @@ absl::StatusOr<std::vector<GenomeRecord>> Breed(
 // Statistics of a completed generation: best, mean and worst over evaluated
 // genomes; diversity = mean over genes of the population standard deviation of
 // that gene; evaluations = genomes evaluated in this generation (attempts > 0).
+// REQUIRES: every genome holds its genes (a store read does; see
+// gene_spread.h for a generation whose samples the engine keeps as recipes).
 store::StatsRecord ComputeStats(const skerry::v1::RunSpec& spec,
                                 absl::Span<const GenomeRecord> generation);
+// The same without the diversity (left 0): no gene is read.
+store::StatsRecord ComputeScoreStats(const skerry::v1::RunSpec& spec,
+                                     absl::Span<const GenomeRecord> generation);
 
 // True when a is strictly better than b under the spec's objective.
 bool Better(const skerry::v1::RunSpec& spec, double a, double b);

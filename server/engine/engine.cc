@@ -3,7 +3,9 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
+#include <deque>
 #include <iterator>
+#include <optional>
 
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
@@ -11,6 +13,7 @@
 #include "common/spec.h"
 #include "common/status_macros.h"
 #include "server/engine/breeder.h"
+#include "server/engine/gene_spread.h"
 #include "server/engine/island_step.h"
 #include "server/engine/topology.h"
 #include "server/store/row_sums.h"
@@ -217,6 +220,11 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
                                   ir.generation, " (", island.current.size(),
                                   " genomes read, ", pop, " expected)"));
     }
+    // Samples kept as recipes are held without genes, as when bred
+    // (records.h): the store rebuilt them, and nothing here needs them.
+    for (GenomeRecord& g : island.current) {
+      if (g.recipe.has_value()) std::vector<double>().swap(g.genes);
+    }
     if (island.done) {
       island.completed[island.generation] = std::move(island.current);
       island.current.clear();
@@ -265,10 +273,24 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
     t.evaluator = run.evaluator;
     t.attempts = g.attempts;
     if (g.recipe.has_value() && centre != nullptr &&
-        g.parent_a == island.current.front().id) {
+        g.parent_a == island.current.front().id &&
+        g.recipe->length == centre->size()) {
+      // The queue builds the genes for a worker that takes no recipes.
       t.recipe = g.recipe;
       t.centre_id = g.parent_a;
       t.centre = centre;
+    } else if (t.genes.empty() && g.recipe.has_value()) {
+      // Not a sample of this generation's centre (never so when bred here):
+      // its genes, built now, or the error in place of a silent empty task.
+      absl::StatusOr<std::vector<double>> genes =
+          SampleGenes(island.current, g);
+      if (!genes.ok()) {
+        std::fprintf(stderr, "run %lld: not queued: %s\n",
+                     static_cast<long long>(run.record.id),
+                     genes.status().ToString().c_str());
+        continue;
+      }
+      t.genes = *std::move(genes);
     }
     tasks.push_back(std::move(t));
   }
@@ -802,7 +824,9 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   facts.max_evaluations = spec.stop().max_evaluations();
   store::StatsRecord stats;
   if (!island.done && !facts.evaluating) {
-    stats = ComputeStats(spec, island.current);
+    // The diversity comes below: from the strategy's Tell when it measures
+    // it, so that samples kept as recipes are rebuilt once (gene_spread.h).
+    stats = ComputeScoreStats(spec, island.current);
     stats.run_id = run.record.id;
     stats.completed_ms = clock_->WallMillis();
     facts.has_best = stats.failed < island.current.size();
@@ -819,6 +843,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   // Breeding at an epoch: find the migrants; a source that has not completed
   // their generation yet makes the island wait (reproducible mode).
   std::vector<const GenomeRecord*> migrants;
+  std::deque<GenomeRecord> built_migrants;  // stable addresses
   if (decision.action == IslandAction::kBreed &&
       IsMigrationEpoch(spec, g + 1)) {
     for (uint32_t src : Sources(spec, island.index, g + 1)) {
@@ -843,6 +868,20 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
       }
       for (const GenomeRecord* m : ChooseEmigrants(
                spec, *source_gen, island.index, spec.islands().migrants())) {
+        if (m->recipe.has_value() && m->genes.empty()) {
+          // A sample kept as its recipe: the strategy told of it needs its
+          // genes (a migrant may become the centre).
+          GenomeRecord copy = *m;
+          absl::StatusOr<std::vector<double>> genes =
+              SampleGenes(*source_gen, *m);
+          if (!genes.ok()) {
+            FailRun(run, genes.status());
+            return true;
+          }
+          copy.genes = std::move(*genes);
+          built_migrants.push_back(std::move(copy));
+          m = &built_migrants.back();
+        }
         migrants.push_back(m);
       }
     }
@@ -889,6 +928,20 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
     for (GenomeRecord& n : next) n.run_id = run.record.id;
     saved_state = island.strategy->Save().SerializeAsString();
   }
+  if (std::optional<double> told = island.strategy->ToldDiversity();
+      !done && told.has_value()) {
+    stats.diversity = *told;
+  } else if (HasRecipes(island.current)) {
+    absl::StatusOr<double> d = RecipeDiversity(island.current);
+    if (!d.ok()) {
+      if (!done) island.strategy->Restore(before).IgnoreError();
+      FailRun(run, d.status());
+      return true;
+    }
+    stats.diversity = *d;
+  } else {
+    stats.diversity = ComputeStats(spec, island.current).diversity;
+  }
 
   store::GenerationCommit commit;
   std::tuple<uint32_t, uint32_t, uint32_t> commit_champion_key;
@@ -930,7 +983,17 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   // Committed: bring the cache in line.
   if (commit.validate.has_value()) {
     for (const GenomeRecord& gr : island.current) {
-      if (gr.id == commit.validate->genome_id) QueueChampionValidation(run, gr);
+      if (gr.id != commit.validate->genome_id) continue;
+      absl::StatusOr<std::vector<double>> genes =
+          SampleGenes(island.current, gr);
+      if (genes.ok()) {
+        QueueChampionValidation(run, gr, *genes);
+      } else {
+        // Stored with the generation: queued again at the next start.
+        std::fprintf(stderr, "run %lld: %s\n",
+                     static_cast<long long>(run.record.id),
+                     genes.status().ToString().c_str());
+      }
     }
   }
   if (commit.champion.has_value()) {

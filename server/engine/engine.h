@@ -348,8 +348,9 @@ class Engine {
       const Run& run, const std::vector<store::GenomeRecord>& generation,
       double best, bool new_best) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // After the generation committed: queues its champion's validation when
-  // the store left it pending.
-  void QueueChampionValidation(const Run& run, const store::GenomeRecord& g)
+  // the store left it pending. `genes`: g's (SampleGenes).
+  void QueueChampionValidation(const Run& run, const store::GenomeRecord& g,
+                               const std::vector<double>& genes)
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // The error text stored for a failed attempt, bounded in size.
   static std::string FailureText(const skerry::v1::TaskResult& result);

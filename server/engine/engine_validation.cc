@@ -88,7 +88,8 @@ std::optional<store::ValidationRequest> Engine::ChampionValidation(
 }
 
 void Engine::QueueChampionValidation(const Run& run,
-                                     const store::GenomeRecord& g) {
+                                     const store::GenomeRecord& g,
+                                     const std::vector<double>& genes) {
   absl::StatusOr<std::optional<store::ValidationRecord>> v =
       store_->GetValidation(g.id);
   if (!v.ok() || !v->has_value()) {
@@ -101,7 +102,7 @@ void Engine::QueueChampionValidation(const Run& run,
                  v.ok() ? "not found" : v.status().ToString().c_str());
     return;
   }
-  QueueValidation(**v, g.genes, run.record.spec);
+  QueueValidation(**v, genes, run.record.spec);
 }
 
 absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(

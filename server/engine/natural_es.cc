@@ -79,13 +79,12 @@ double NaturalEsSigma(const skerry::v1::NaturalEsSpec& es,
       es.sigma() * std::pow(es.sigma_decay(), static_cast<double>(generation)));
 }
 
-void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es, uint32_t generation,
-                     absl::Span<const double> utilities,
-                     const std::vector<std::vector<double>>& eps,
-                     skerry::v1::NaturalEsState* state) {
-  const std::vector<double> shaped = CentredRanks(utilities);
-  std::vector<double> direction =
-      MirroredGradient(shaped, eps, NaturalEsSigma(es, generation));
+namespace {
+
+// Weight decay, then one Adam step descending -g + decay theta.
+void StepAlong(const skerry::v1::NaturalEsSpec& es,
+               std::vector<double> direction,
+               skerry::v1::NaturalEsState* state) {
   for (size_t j = 0; j < direction.size(); ++j) {
     direction[j] =
         -direction[j] + es.weight_decay() * state->centre(static_cast<int>(j));
@@ -96,6 +95,37 @@ void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es, uint32_t generation,
   adam.beta2 = es.beta2();
   adam.epsilon = es.epsilon();
   AdamStep(adam, direction, state);
+}
+
+}  // namespace
+
+void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es, uint32_t generation,
+                     absl::Span<const double> utilities,
+                     const std::vector<std::vector<double>>& eps,
+                     skerry::v1::NaturalEsState* state) {
+  const std::vector<double> shaped = CentredRanks(utilities);
+  StepAlong(es, MirroredGradient(shaped, eps, NaturalEsSigma(es, generation)),
+            state);
+}
+
+void NaturalEsUpdateStreaming(
+    const skerry::v1::NaturalEsSpec& es, uint32_t generation,
+    absl::Span<const double> utilities,
+    const std::function<std::vector<double>(uint32_t pair)>& eps_of,
+    skerry::v1::NaturalEsState* state) {
+  const std::vector<double> shaped = CentredRanks(utilities);
+  const size_t pairs = utilities.size() / 2;
+  // MirroredGradient's sum, pair by pair in the same order.
+  std::vector<double> g(static_cast<size_t>(state->centre_size()), 0.0);
+  for (size_t i = 0; i < pairs; ++i) {
+    const std::vector<double> eps = eps_of(static_cast<uint32_t>(i));
+    const double w = shaped[2 * i] - shaped[2 * i + 1];
+    for (size_t j = 0; j < g.size(); ++j) g[j] += w * eps[j];
+  }
+  const double scale =
+      1.0 / (2.0 * static_cast<double>(pairs) * NaturalEsSigma(es, generation));
+  for (double& x : g) x *= scale;
+  StepAlong(es, std::move(g), state);
 }
 
 }  // namespace skerry::engine

@@ -29,6 +29,7 @@
 #define SKERRY_SERVER_ENGINE_NATURAL_ES_H_
 
 #include <cstdint>
+#include <functional>
 #include <vector>
 
 #include "absl/types/span.h"
@@ -86,6 +87,19 @@ void NaturalEsUpdate(const skerry::v1::NaturalEsSpec& es, uint32_t generation,
                      absl::Span<const double> utilities,
                      const std::vector<std::vector<double>>& eps,
                      skerry::v1::NaturalEsState* state);
+
+// The same update with each pair's eps drawn once, when the update needs it,
+// and not kept: the coordinator's memory for it is one vector of the genome's
+// length, not one per pair. Bit for bit NaturalEsUpdate (the sum is taken in
+// the same order). `eps_of(i)` returns pair i's eps (Perturbation), and is
+// called once per pair in pair order, so a caller can use the same draw for
+// something else (NaturalEsStrategy, the generation's diversity).
+// REQUIRES: utilities.size() even and >= 2; every eps of the state's length.
+void NaturalEsUpdateStreaming(
+    const skerry::v1::NaturalEsSpec& es, uint32_t generation,
+    absl::Span<const double> utilities,
+    const std::function<std::vector<double>(uint32_t pair)>& eps_of,
+    skerry::v1::NaturalEsState* state);
 
 }  // namespace skerry::engine
 

@@ -24,12 +24,15 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <optional>
 
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
 #include "common/random.h"
 #include "common/sample_recipe.h"
+#include "common/status_macros.h"
 #include "common/strategy_spec.h"
+#include "server/engine/gene_spread.h"
 #include "server/engine/natural_es.h"
 
 namespace skerry::engine {
@@ -92,11 +95,38 @@ class NaturalEsStrategy : public Strategy {
     for (const GenomeRecord& g : samples) utilities.push_back(utility(g));
     for (const GenomeRecord& g : completed) best = std::max(best, utility(g));
     const uint32_t generation = completed.front().generation;
-    std::vector<std::vector<double>> eps;
-    for (uint32_t i = 0; i < pairs; ++i) {
-      eps.push_back(Perturbation(spec_, island_, generation, i));
+    // Samples kept as recipes have no genes here: the generation's diversity
+    // is measured from the same draws as the gradient (gene_spread.h).
+    told_diversity_.reset();
+    std::optional<GeneSpread> spread;
+    const size_t n = spec_.genome_length();
+    if (distribution_.on() && HasRecipes(completed)) {
+      if (completed.front().genes.size() != n) {
+        return absl::InvalidArgumentError(absl::StrCat(
+            "island ", island_, " generation ", generation,
+            ": its distribution genome has ", completed.front().genes.size(),
+            " genes, expected ", n));
+      }
+      for (uint32_t i = 0; i < pairs; ++i) {
+        SKERRY_RETURN_IF_ERROR(
+            CheckSamplePair(samples.subspan(2 * i, 2), i, n));
+      }
+      spread.emplace(n);
+      spread->Add(completed.front().genes);
     }
-    NaturalEsUpdate(es_, generation, utilities, eps, &state_);
+    NaturalEsUpdateStreaming(
+        es_, generation, utilities,
+        [&](uint32_t pair) {
+          std::vector<double> eps =
+              Perturbation(spec_, island_, generation, pair);
+          if (spread.has_value()) {
+            AddSamplePair(samples.subspan(2 * pair, 2), completed.front().genes,
+                          eps, &*spread);
+          }
+          return eps;
+        },
+        &state_);
+    if (spread.has_value()) told_diversity_ = spread->Diversity();
     for (int j = 0; j < state_.centre_size(); ++j) {
       state_.set_centre(j, std::clamp(state_.centre(j), spec_.lower_bound(),
                                       spec_.upper_bound()));
@@ -119,6 +149,10 @@ class NaturalEsStrategy : public Strategy {
     distribution_.Told(completed, better, /*restarted=*/false);
     generation_ = generation + 1;
     return absl::OkStatus();
+  }
+
+  std::optional<double> ToldDiversity() const override {
+    return told_diversity_;
   }
 
   absl::StatusOr<std::vector<GenomeRecord>> Ask() override {
@@ -161,6 +195,7 @@ class NaturalEsStrategy : public Strategy {
       }
     }
     state_ = s;
+    told_diversity_.reset();
     generation_ = state.generation();
     started_ = true;
     distribution_.Restore(state);
@@ -175,9 +210,11 @@ class NaturalEsStrategy : public Strategy {
     std::vector<GenomeRecord> out;
     out.reserve(2 * pairs + 1);
     if (distribution_.on()) {
-      // Drawn around the centre as its distribution genome holds it (clamped,
-      // and rounded in a FLOAT32 run), with the recipe the store keeps in
-      // place of the genes: what rebuilds them is what made them.
+      // Each sample is its recipe alone: drawn around the centre as its
+      // distribution genome holds it (clamped, and rounded in a FLOAT32 run),
+      // by BuildSample where its genes are needed (the worker evaluating it,
+      // a store read, a migrant, a validation; records.h). The coordinator
+      // neither draws nor holds them here.
       std::vector<double> centre(state_.centre().begin(),
                                  state_.centre().end());
       for (double& x : centre) {
@@ -188,8 +225,6 @@ class NaturalEsStrategy : public Strategy {
         RoundToFloat32(&centre, spec_.lower_bound(), spec_.upper_bound());
       }
       for (uint32_t i = 0; i < pairs; ++i) {
-        const std::vector<double> eps =
-            Perturbation(spec_, island_, generation_, i);
         for (const bool minus : {false, true}) {
           SampleRecipe r;
           r.seed = spec_.seed();
@@ -203,7 +238,6 @@ class NaturalEsStrategy : public Strategy {
           r.lower = spec_.lower_bound();
           r.upper = spec_.upper_bound();
           GenomeRecord g = Sample(static_cast<uint32_t>(out.size()));
-          g.genes = BuildSampleFrom(r, centre, eps);
           g.recipe = r;
           out.push_back(std::move(g));
         }
@@ -246,6 +280,7 @@ class NaturalEsStrategy : public Strategy {
   DistributionGenomes distribution_;
   uint32_t generation_ = 0;
   bool started_ = false;
+  std::optional<double> told_diversity_;  // of the last Tell, if it measured
 };
 
 }  // namespace

@@ -5,6 +5,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
+#include "common/sample_recipe.h"
 #include "common/strategy_spec.h"
 #include "server/engine/breeder.h"
 #include "server/engine/cma_strategy.h"
@@ -111,6 +112,9 @@ class Float32Strategy : public Strategy {
   bool StateIsPopulation() const override {
     return inner_->StateIsPopulation();
   }
+  std::optional<double> ToldDiversity() const override {
+    return inner_->ToldDiversity();
+  }
 
  private:
   absl::StatusOr<std::vector<GenomeRecord>> Rounded(
@@ -195,6 +199,31 @@ absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
   if (!made.ok() || spec.gene_precision() != skerry::v1::FLOAT32) return made;
   return std::make_unique<Float32Strategy>(std::move(*made), spec.lower_bound(),
                                            spec.upper_bound());
+}
+
+absl::StatusOr<std::vector<double>> SampleGenes(
+    absl::Span<const GenomeRecord> generation, const GenomeRecord& genome) {
+  if (!genome.recipe.has_value() || !genome.genes.empty()) return genome.genes;
+  const GenomeRecord* centre =
+      generation.empty() ? nullptr : &generation.front();
+  if (centre == nullptr || centre->origin != skerry::v1::DISTRIBUTION ||
+      (genome.parent_a != 0 && centre->id != genome.parent_a)) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "genome ", genome.id, " (island ", genome.island, " generation ",
+        genome.generation, " slot ", genome.slot,
+        "): a sample kept as its recipe, whose distribution genome is not "
+        "slot 0 of its generation"));
+  }
+  absl::StatusOr<std::vector<double>> genes =
+      BuildSample(*genome.recipe, centre->genes);
+  if (!genes.ok()) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "genome ", genome.id, " (island ", genome.island, " generation ",
+        genome.generation, " slot ", genome.slot,
+        "): its recipe does not rebuild from its distribution genome: ",
+        genes.status().message()));
+  }
+  return genes;
 }
 
 }  // namespace skerry::engine

@@ -26,6 +26,7 @@
 
 #include <cstdint>
 #include <memory>
+#include <optional>
 #include <vector>
 
 #include "absl/status/status.h"
@@ -65,6 +66,12 @@ class Strategy {
   // fork (strategy_replay.h) then needs no replay of the generations before.
   // The default, false, is always correct, only slower to fork.
   virtual bool StateIsPopulation() const { return false; }
+
+  // The diversity of the generation last told (StatsRecord.diversity), when
+  // Tell measured it: a generation whose samples the engine keeps as recipes
+  // without their genes (gene_spread.h), which Tell rebuilds one pair at a
+  // time anyway. Empty otherwise, or when the last call was not a Tell.
+  virtual std::optional<double> ToldDiversity() const { return std::nullopt; }
 };
 
 // What an evolution strategy with distribution genomes
@@ -117,6 +124,16 @@ class DistributionGenomes {
 // The strategy the spec names, for `island`.
 absl::StatusOr<std::unique_ptr<Strategy>> MakeStrategy(
     const skerry::v1::RunSpec& spec, uint32_t island);
+
+// A genome's genes as the engine needs them (a migrant, a validation, a task
+// for a worker that takes no recipes): its own, or for a sample the engine
+// keeps as its recipe alone (records.h) those BuildSample makes from the
+// recipe and its distribution genome, slot 0 of `generation`, the generation
+// the sample belongs to. InvalidArgument naming the genome when slot 0 is not
+// its distribution genome or the recipe does not fit it.
+absl::StatusOr<std::vector<double>> SampleGenes(
+    absl::Span<const store::GenomeRecord> generation,
+    const store::GenomeRecord& genome);
 
 }  // namespace skerry::engine
 

@@ -204,9 +204,13 @@ size_t TaskQueue::FrontTaskBytes(RunQueue& rq, const Centres* centres) {
         return 128 + centre +
                (info.evaluator ? info.evaluator->ByteSizeLong() : 0);
       }
-      // Genes are packed doubles; 64 bytes cover the ids, attempt, seed,
-      // kind and the framing of the task and its fields.
-      return 8 * info.genes.size() +
+      // Genes are packed doubles (or floats); 64 bytes cover the ids,
+      // attempt, seed, kind and the framing of the task and its fields. A
+      // sample held as its recipe alone goes as the genes it builds.
+      const size_t genes = info.genes.empty() && info.recipe.has_value()
+                               ? info.recipe->length
+                               : info.genes.size();
+      return (info.float32 ? 4 : 8) * genes +
              (info.evaluator ? info.evaluator->ByteSizeLong() : 0) + 64;
     }
     rq.ids.pop_front();
@@ -275,14 +279,28 @@ skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
     if (CentreWanted(*centres, e->info.centre_id)) {
       centres->wanted.emplace_back(e->info.centre_id, e->info.centre);
     }
-  } else if (e->info.float32) {
-    // Exact: the engine made every gene a float32 value (common/genes.h).
-    task.mutable_genes32()->Reserve(static_cast<int>(e->info.genes.size()));
-    for (double g : e->info.genes) {
-      task.add_genes32(static_cast<float>(g));
-    }
   } else {
-    *task.mutable_genes() = {e->info.genes.begin(), e->info.genes.end()};
+    // A worker that takes no recipes gets the genes; a sample the engine
+    // holds as its recipe alone (records.h) is built here, for this lease.
+    std::vector<double> built;
+    const std::vector<double>* genes = &e->info.genes;
+    if (genes->empty() && e->info.recipe.has_value() &&
+        e->info.centre != nullptr) {
+      absl::StatusOr<std::vector<double>> made =
+          BuildSample(*e->info.recipe, *e->info.centre);
+      // The engine made the recipe from this centre, so it fits; if it did
+      // not, the task goes without genes and its evaluation fails, naming
+      // the length, rather than with wrong genes.
+      if (made.ok()) built = *std::move(made);
+      genes = &built;
+    }
+    if (e->info.float32) {
+      // Exact: the engine made every gene a float32 value (common/genes.h).
+      task.mutable_genes32()->Reserve(static_cast<int>(genes->size()));
+      for (double g : *genes) task.add_genes32(static_cast<float>(g));
+    } else {
+      *task.mutable_genes() = {genes->begin(), genes->end()};
+    }
   }
   *task.mutable_evaluator() = *e->info.evaluator;
   task.set_eval_seed(e->info.eval_seed);

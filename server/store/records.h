@@ -37,7 +37,10 @@ struct GenomeRecord {
   std::vector<double> genes;
   // A natural ES sample (common/sample_recipe.h): the store keeps this in
   // place of the genes, and rebuilds the genes from it and its distribution
-  // genome (parent a) whenever it reads the genome.
+  // genome (parent a) whenever it reads the genome. In the engine's memory
+  // such a sample holds no genes (`genes` is empty): whatever needs them
+  // builds them from the recipe and its generation's slot 0
+  // (engine::SampleGenes, strategy.h); the store stores the recipe alone.
   std::optional<SampleRecipe> recipe;
   double score = 0.0;
   skerry::v1::EvalState state = skerry::v1::PENDING;

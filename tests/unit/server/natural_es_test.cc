@@ -8,13 +8,18 @@
 #include <cmath>
 #include <limits>
 #include <memory>
+#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
 
 #include "common/spec.h"
+#include "gmock/gmock.h"
 #include "gtest/gtest.h"
+#include "server/engine/breeder.h"
+#include "server/engine/gene_spread.h"
 #include "server/engine/strategy.h"
+#include "tests/unit/server/strategy_test_util.h"
 
 namespace skerry::engine {
 namespace {
@@ -169,6 +174,7 @@ TEST(NaturalEsUpdateTest, WeightDecayPullsTheCentreTowardZero) {
 // Ids from first_id by slot; score = sphere.
 std::vector<GenomeRecord> Evaluated(std::vector<GenomeRecord> gen,
                                     int64_t first_id) {
+  gen = testing::Built(std::move(gen));
   for (GenomeRecord& g : gen) {
     g.id = first_id + g.slot;
     g.state = skerry::v1::EVALUATED;
@@ -224,6 +230,12 @@ TEST(NaturalEsStrategyTest, SamplesAreMirroredPairsRebuiltFromTheirKey) {
   gen = (*made)->Ask();
   ASSERT_TRUE(gen.ok());
   ASSERT_EQ(gen->size(), 21u);
+  // The samples are their recipes alone (records.h); a worker builds them.
+  for (size_t i = 1; i < gen->size(); ++i) {
+    EXPECT_TRUE((*gen)[i].genes.empty()) << "slot " << i;
+    EXPECT_TRUE((*gen)[i].recipe.has_value()) << "slot " << i;
+  }
+  gen = testing::Built(*std::move(gen));
   const skerry::v1::StrategyState state = (*made)->Save();
   EXPECT_EQ(state.generation(), 1u);
   EXPECT_EQ((*gen)[0].origin, skerry::v1::DISTRIBUTION);
@@ -281,6 +293,7 @@ TEST(NaturalEsSigmaTest, ScheduledSamplesUseTheirGenerationsSigma) {
     gen = (*made)->Ask();
     ASSERT_TRUE(gen.ok());
   }
+  gen = testing::Built(*std::move(gen));
   const skerry::v1::StrategyState state = (*made)->Save();
   ASSERT_EQ(state.generation(), 2u);
   const double sigma = NaturalEsSigma(spec.strategy().natural_es(), 2);
@@ -340,8 +353,11 @@ TEST(NaturalEsStrategyTest, RestoredIslandContinuesBitForBit) {
       absl::StatusOr<std::vector<GenomeRecord>> other = b->Ask();
       ASSERT_TRUE(other.ok());
       ASSERT_EQ(other->size(), gen->size());
+      const std::vector<GenomeRecord> built = testing::Built(*gen);
+      const std::vector<GenomeRecord> other_built = testing::Built(*other);
       for (size_t i = 0; i < gen->size(); ++i) {
-        EXPECT_EQ((*other)[i].genes, (*gen)[i].genes);
+        EXPECT_EQ(other_built[i].genes, built[i].genes);
+        EXPECT_EQ((*other)[i].recipe, (*gen)[i].recipe);
       }
     }
   }
@@ -378,6 +394,88 @@ TEST(NaturalEsStrategyTest, ABetterMigrantBecomesTheCentre) {
   ASSERT_TRUE((*none)->Tell(Evaluated(*gen, 1), {}).ok());
   EXPECT_EQ((*twin)->Save().SerializeAsString(),
             (*none)->Save().SerializeAsString());
+}
+
+// The update with each pair's eps drawn when needed (what the strategy uses,
+// so the coordinator holds one eps at a time) is bit for bit the update from
+// every eps held at once.
+TEST(NaturalEsUpdateTest, StreamingEqualsTheUpdateFromEveryEpsHeld) {
+  const RunSpec spec = EsSpec("weight_decay: 0.01");
+  const skerry::v1::NaturalEsSpec& es = spec.strategy().natural_es();
+  skerry::v1::NaturalEsState held;
+  for (int j = 0; j < 10; ++j) {
+    held.add_centre(0.1 * j - 0.3);
+    held.add_adam_m(0.0);
+    held.add_adam_v(0.0);
+  }
+  skerry::v1::NaturalEsState streamed = held;
+  const std::vector<double> utilities = {3.0, -1.0, 0.5, 0.5, 2.0, -7.0};
+  std::vector<std::vector<double>> eps;
+  for (uint32_t i = 0; i < 3; ++i) eps.push_back(Perturbation(spec, 1, 4, i));
+  std::vector<uint32_t> asked;
+  for (int step = 0; step < 3; ++step) {
+    NaturalEsUpdate(es, 4, utilities, eps, &held);
+    NaturalEsUpdateStreaming(
+        es, 4, utilities,
+        [&](uint32_t pair) {
+          asked.push_back(pair);
+          return Perturbation(spec, 1, 4, pair);
+        },
+        &streamed);
+    EXPECT_EQ(streamed.SerializeAsString(), held.SerializeAsString())
+        << "step " << step;
+  }
+  EXPECT_EQ(asked, (std::vector<uint32_t>{0, 1, 2, 0, 1, 2, 0, 1, 2}));
+}
+
+// The population standard deviation of 2, 4, 4, 4, 5, 5, 7, 9 is 2 (the
+// worked example of Wikipedia's "Standard deviation" article, from memory):
+// GeneSpread's one pass gives it, for each gene, and their mean.
+TEST(GeneSpreadTest, WorkedExampleOfThePopulationStandardDeviation) {
+  GeneSpread spread(2);
+  for (double x : {2.0, 4.0, 4.0, 4.0, 5.0, 5.0, 7.0, 9.0}) {
+    spread.Add(std::vector<double>{x, 10.0 * x});  // sd 2 and 20
+  }
+  EXPECT_DOUBLE_EQ(spread.Diversity(), 11.0);
+  EXPECT_EQ(GeneSpread(3).Diversity(), 0.0);
+}
+
+// A generation of samples held as recipes is measured without its genes: the
+// diversity Tell reports (drawing each pair once for the update and this) is
+// RecipeDiversity's bit for bit, and agrees with the two-pass ComputeStats
+// over the built genes. A damaged recipe is refused naming its slot.
+TEST(NaturalEsStrategyTest, ToldDiversityIsTheGenerationsDiversity) {
+  for (const char* precision : {"", "gene_precision: FLOAT32"}) {
+    SCOPED_TRACE(precision);
+    RunSpec spec = EsSpec();
+    if (*precision != 0) spec.set_gene_precision(skerry::v1::FLOAT32);
+    absl::StatusOr<std::unique_ptr<Strategy>> made = MakeStrategy(spec, 1);
+    ASSERT_TRUE(made.ok());
+    absl::StatusOr<std::vector<GenomeRecord>> gen = (*made)->Start();
+    ASSERT_TRUE(gen.ok());
+    EXPECT_FALSE((*made)->ToldDiversity().has_value());
+    std::vector<GenomeRecord> told = Evaluated(*gen, 1);
+    for (GenomeRecord& g : told) {
+      if (g.recipe.has_value()) g.genes.clear();  // as the engine holds them
+    }
+    ASSERT_TRUE((*made)->Tell(told, {}).ok());
+    const std::optional<double> d = (*made)->ToldDiversity();
+    ASSERT_TRUE(d.has_value());
+    absl::StatusOr<double> alone = RecipeDiversity(told);
+    ASSERT_TRUE(alone.ok()) << alone.status();
+    EXPECT_EQ(*d, *alone);
+    const double two_pass = ComputeStats(spec, testing::Built(*gen)).diversity;
+    EXPECT_GT(two_pass, 0.0);
+    EXPECT_NEAR(*d, two_pass, 1e-12 * two_pass);
+
+    std::vector<GenomeRecord> damaged = told;
+    damaged[3].recipe->pair = 7;
+    absl::StatusOr<double> refused = RecipeDiversity(damaged);
+    EXPECT_TRUE(absl::IsInvalidArgument(refused.status()));
+    EXPECT_THAT(std::string(refused.status().message()),
+                ::testing::HasSubstr("slot 3"));
+    EXPECT_TRUE(absl::IsInvalidArgument((*made)->Tell(damaged, {})));
+  }
 }
 
 TEST(NaturalEsStrategyTest, ForeignOrDamagedStatesAreRefused) {

@@ -15,6 +15,7 @@
 #include "common/strategy_spec.h"
 #include "gtest/gtest.h"
 #include "server/engine/breeder.h"
+#include "tests/unit/server/strategy_test_util.h"
 
 namespace skerry::engine {
 namespace {
@@ -349,6 +350,8 @@ TEST(Float32StrategyTest, EveryStrategyMakesFloat32GenesInsideTheBounds) {
     absl::StatusOr<std::vector<GenomeRecord>> ga = (*a)->Start();
     absl::StatusOr<std::vector<GenomeRecord>> gb = (*b)->Start();
     ASSERT_TRUE(ga.ok() && gb.ok());
+    ga = testing::Built(*std::move(ga));
+    gb = testing::Built(*std::move(gb));
     ASSERT_EQ(ga->size(), gb->size());
     for (size_t i = 0; i < ga->size(); ++i) {
       EXPECT_FALSE(FitsFloat32((*ga)[i].genes));  // random doubles
@@ -379,7 +382,7 @@ TEST(Float32StrategyTest, EveryStrategyMakesFloat32GenesInsideTheBounds) {
     ASSERT_TRUE((*b)->Tell(Evaluated(*gb, 1), {}).ok());
     absl::StatusOr<std::vector<GenomeRecord>> next = (*b)->Ask();
     ASSERT_TRUE(next.ok()) << next.status();
-    for (const GenomeRecord& g : *next) {
+    for (const GenomeRecord& g : testing::Built(*next)) {
       EXPECT_TRUE(FitsFloat32(g.genes)) << "slot " << g.slot;
     }
   }
