@@ -29,7 +29,13 @@ void TaskQueue::Enqueue(Entry& e, bool front) {
 void TaskQueue::DropLease(Entry& e) {
   if (e.state == State::kLeased) {
     deadlines_.erase({e.deadline, e.info.task_id()});
+    Unhold(e.holder);
   }
+}
+
+void TaskQueue::Unhold(int64_t worker) {
+  auto it = leased_by_.find(worker);
+  if (it != leased_by_.end() && --it->second == 0) leased_by_.erase(it);
 }
 
 void TaskQueue::Add(std::vector<TaskInfo> tasks) {
@@ -110,6 +116,7 @@ void TaskQueue::ExpireLeases(absl::Time now) {
   for (auto it = expired.rbegin(); it != expired.rend(); ++it) {
     auto t = tasks_.find(*it);
     if (t != tasks_.end() && t->second.state == State::kLeased) {
+      Unhold(t->second.holder);
       Enqueue(t->second, /*front=*/true);
     }
   }
@@ -157,6 +164,8 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
   std::vector<skerry::v1::Task> out;
   if (max_tasks == 0) return out;
   absl::MutexLock l(&mu_);
+  // A worker polling an empty queue takes part in the split of what comes.
+  askers_[worker] = Asker{clock_->Now(), max_tasks};
   const absl::Time give_up = absl::Now() + wait;
   while (true) {
     ExpireLeases(clock_->Now());
@@ -176,8 +185,9 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
   // caller cancelled it): it must not take the tasks it handed back.
   if (shutdown_ || departed_.count(worker) > 0) return out;
   const absl::Time deadline = clock_->Now() + lease_;
+  const uint32_t share = ShareOf(worker, max_tasks);
   size_t bytes = 0;
-  while (out.size() < max_tasks) {
+  while (out.size() < share) {
     auto next = NextRun();
     if (next == runs_.end()) break;
     // The answer must fit in one gRPC message: stop before the task that
@@ -188,6 +198,38 @@ std::vector<skerry::v1::Task> TaskQueue::Lease(int64_t worker,
     out.push_back(LeaseFrom(next->second, worker, deadline, centres));
   }
   return out;
+}
+
+uint32_t TaskQueue::ShareOf(int64_t worker, uint32_t max_tasks) {
+  const absl::Time now = clock_->Now();
+  askers_[worker] = Asker{now, max_tasks};
+  uint64_t asked = 0;
+  for (auto it = askers_.begin(); it != askers_.end();) {
+    if (it->second.last + lease_ < now || departed_.count(it->first) > 0) {
+      it = askers_.erase(it);
+    } else {
+      asked += it->second.asks;
+      ++it;
+    }
+  }
+  // The tasks to share: those ready now and those the asking workers hold.
+  uint64_t total = 0;
+  for (const auto& [id, rq] : runs_) {
+    if (!rq.paused) total += rq.queued;
+  }
+  uint64_t mine = 0;
+  for (const auto& [id, asker] : askers_) {
+    auto held = leased_by_.find(id);
+    if (held == leased_by_.end()) continue;
+    total += held->second;
+    if (id == worker) mine = held->second;
+  }
+  // asked >= max_tasks > 0 (this worker is among the askers); the product
+  // stays far inside 64 bits (tasks and max_tasks are bounded).
+  const uint64_t target = (total * max_tasks + asked - 1) / asked;
+  const uint64_t share = target > mine ? target - mine : 0;
+  return static_cast<uint32_t>(
+      std::max<uint64_t>(1, std::min<uint64_t>(max_tasks, share)));
 }
 
 size_t TaskQueue::FrontTaskBytes(RunQueue& rq, const Centres* centres) {
@@ -251,6 +293,7 @@ skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
   --rq.queued;
   e->state = State::kLeased;
   e->holder = worker;
+  ++leased_by_[worker];
   e->deadline = deadline;
   ++e->info.attempts;
   if (e->holders.size() >= kMaxHoldersKept)

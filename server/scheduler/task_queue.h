@@ -51,6 +51,22 @@
 // counted in tasks, not in worker seconds: runs whose evaluations cost more
 // get more worker time per task. Cost: O(runs) per task handed out.
 //
+// Split among workers (issue 14, the fleet's tail): a lease takes at most the
+// asking worker's share, T x a / A rounded up, less what it already holds,
+// and at least one task. T counts the queued tasks of ready runs plus the
+// tasks the asking workers hold; a is what the worker asks for (max_tasks,
+// which follows its threads) and A the sum of what every worker that asked
+// within the last lease period asks for. This is guided self-scheduling
+// (Polychronopoulos & Kuck 1987, "Guided self-scheduling: a practical
+// scheduling scheme for parallel supercomputers", IEEE Trans. Computers;
+// from memory), weighted by capacity and by what each worker holds: the
+// first worker to ask for a generation no longer takes all of it while the
+// others wait, a worker asking after it gets the rest of its share, and as
+// the generation drains the chunks shrink, so the workers finish it within
+// about one evaluation of each other. A lone worker still gets up to
+// everything it asks for. A worker that stops asking leaves the split after
+// one lease period; until then what it holds counts as its share.
+//
 // Two kinds of task share the queue (fleet.proto TaskKind): evaluations of
 // genomes, keyed by genome id, and held-out validations, keyed by
 // kValidationTaskBase + validation id. Every method taking ids takes these task
@@ -147,7 +163,9 @@ class TaskQueue {
   // Leases up to `max_tasks` tasks to `worker`, waiting up to `wait` (real
   // time) when none is ready. Expired leases are re-queued first. Each leased
   // task's attempt count goes up by one. The tasks' sizes (TaskBytes) add up
-  // to at most `max_bytes`, except that one task is always handed out.
+  // to at most `max_bytes`, except that one task is always handed out. At
+  // most the worker's share of the ready tasks is handed out (the split among
+  // workers, above).
   std::vector<skerry::v1::Task> Lease(int64_t worker, uint32_t max_tasks,
                                       absl::Duration wait,
                                       size_t max_bytes = SIZE_MAX);
@@ -264,6 +282,20 @@ class TaskQueue {
   bool held_ ABSL_GUARDED_BY(mu_) = false;
   // Workers that handed back everything (HandBack with all_held).
   std::set<int64_t> departed_ ABSL_GUARDED_BY(mu_);
+  // The split among workers (above): each asking worker's last lease call
+  // (queue clock) and the max_tasks it asked for.
+  struct Asker {
+    absl::Time last;
+    uint32_t asks = 0;
+  };
+  std::map<int64_t, Asker> askers_ ABSL_GUARDED_BY(mu_);
+  // Tasks in state kLeased, by holder.
+  std::map<int64_t, uint64_t> leased_by_ ABSL_GUARDED_BY(mu_);
+  // One task of `worker` is no longer leased.
+  void Unhold(int64_t worker) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // The most `worker`, asking for `max_tasks`, may take now (at least 1).
+  uint32_t ShareOf(int64_t worker, uint32_t max_tasks)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 };
 
 }  // namespace skerry::scheduler
