@@ -70,9 +70,17 @@ std::vector<double> BuildSampleFrom(const SampleRecipe& r,
                                     absl::Span<const double> eps) {
   const double sign = r.minus ? -1.0 : 1.0;
   std::vector<double> genes(r.length);
-  for (size_t j = 0; j < genes.size(); ++j) {
-    genes[j] =
-        std::clamp(centre[j] + sign * r.sigma * eps[j], r.lower, r.upper);
+  if (r.sigma == 0) {
+    // The centre itself (eps unused): not centre + 0 x eps, which would turn
+    // a centre's -0.0 into +0.0 for a positive eps.
+    for (size_t j = 0; j < genes.size(); ++j) {
+      genes[j] = std::clamp(centre[j], r.lower, r.upper);
+    }
+  } else {
+    for (size_t j = 0; j < genes.size(); ++j) {
+      genes[j] =
+          std::clamp(centre[j] + sign * r.sigma * eps[j], r.lower, r.upper);
+    }
   }
   if (r.float32) RoundToFloat32(&genes, r.lower, r.upper);
   return genes;
@@ -87,6 +95,7 @@ absl::StatusOr<std::vector<double>> BuildSample(
         " genes but its distribution genome has ", centre.size()));
   }
   SKERRY_RETURN_IF_ERROR(CheckRecipe(r));
+  if (r.sigma == 0) return BuildSampleFrom(r, centre, {});
   const std::vector<double> eps =
       SamplePerturbation(r.seed, r.island, r.generation, r.pair, r.length);
   return BuildSampleFrom(r, centre, eps);

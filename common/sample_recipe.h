@@ -8,7 +8,12 @@
 // with s = +1 or -1 (the mirrored pair's sign), eps the `length` standard
 // normals of the counter-based stream (seed, island, generation,
 // kPerturbation, pair) of common/random.h, and, for a FLOAT32 run, each gene
-// then rounded as RoundToFloat32 rounds (common/genes.h). The strategy makes
+// then rounded as RoundToFloat32 rounds (common/genes.h). A recipe of sigma 0
+// is the centre itself: genes[j] = clamp(centre[j], lower, upper), rounded
+// the same way, with no eps drawn. No sample has sigma 0 (the spec refuses
+// it); the distribution genome goes to a worker so, as a task that names its
+// own genes as the centre (the engine's QueueIsland), so that a worker gets
+// those genes once per generation, not twice. The strategy makes
 // its samples with BuildSample itself, so a rebuilt sample equals the one
 // that was evaluated bit for bit.
 //
@@ -71,7 +76,7 @@ absl::StatusOr<std::vector<double>> BuildSample(
     const SampleRecipe& recipe, absl::Span<const double> centre);
 // The same from its pair's eps (SamplePerturbation), already drawn: what the
 // strategy uses, drawing each pair's eps once for its two samples.
-// REQUIRES: centre and eps of recipe.length genes.
+// REQUIRES: centre of recipe.length genes; eps too, unless sigma is 0.
 std::vector<double> BuildSampleFrom(const SampleRecipe& recipe,
                                     absl::Span<const double> centre,
                                     absl::Span<const double> eps);

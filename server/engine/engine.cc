@@ -272,9 +272,24 @@ void Engine::QueueIsland(const Run& run, const Island& island) {
         EvalSeed(run.record.spec, island.index, island.generation, g.slot);
     t.evaluator = run.evaluator;
     t.attempts = g.attempts;
-    if (g.recipe.has_value() && centre != nullptr &&
-        g.parent_a == island.current.front().id &&
-        g.recipe->length == centre->size()) {
+    if (g.origin == skerry::v1::DISTRIBUTION && centre != nullptr &&
+        g.slot == 0 && island.current.size() > 1 &&
+        island.current[1].recipe.has_value() &&
+        island.current[1].recipe->length == centre->size()) {
+      // The centre itself, as a recipe of sigma 0 naming its own genes
+      // (common/sample_recipe.h): a worker that gets the samples' centre
+      // anyway does not get the same genes a second time.
+      SampleRecipe r = *island.current[1].recipe;
+      r.pair = 0;
+      r.minus = false;
+      r.sigma = 0;
+      t.recipe = r;
+      t.genes.clear();  // the queue builds them for an older worker
+      t.centre_id = g.id;
+      t.centre = centre;
+    } else if (g.recipe.has_value() && centre != nullptr &&
+               g.parent_a == island.current.front().id &&
+               g.recipe->length == centre->size()) {
       // The queue builds the genes for a worker that takes no recipes.
       t.recipe = g.recipe;
       t.centre_id = g.parent_a;

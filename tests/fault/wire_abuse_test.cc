@@ -367,7 +367,9 @@ TEST_F(WireAbuseTest, Float32GenesComeAsDoublesToAProtocol2Worker) {
 // Worker protocol 4: a natural ES run's samples go as their recipes
 // (Task.sample), with each centre once to a worker that does not hold it,
 // and the worker's own ExpandSample builds from them exactly the genes the
-// coordinator made, kept and sends to a worker of protocol 3, bit for bit.
+// coordinator sends to a worker of protocol 3 (and stores), bit for bit. The
+// distribution genome goes as a recipe of sigma 0 naming its own genes as the
+// centre, so those genes travel once.
 TEST_F(WireAbuseTest,
        SamplesGoAsRecipesAndTheWorkerBuildsTheCoordinatorsGenes) {
   skerry::v1::SubmitRunRequest submit;
@@ -417,8 +419,8 @@ TEST_F(WireAbuseTest,
   EXPECT_EQ(centre_genes, genes_of[centre.id()]);  // the distribution genome
   int samples = 0;
   for (const Task& t : now.tasks()) {
-    if (t.run_id() != es_run || t.task_id() == centre.id()) {
-      EXPECT_FALSE(t.has_sample());  // a GA's genome, the centre: genes
+    if (t.run_id() != es_run) {
+      EXPECT_FALSE(t.has_sample());  // a GA's genome: genes
       EXPECT_EQ(t.genes_size(), 3);
       continue;
     }
@@ -427,6 +429,8 @@ TEST_F(WireAbuseTest,
     EXPECT_EQ(t.genes_size(), 0);
     EXPECT_EQ(t.genes32_size(), 0);
     EXPECT_EQ(t.sample().centre_id(), centre.id());
+    EXPECT_EQ(t.sample().sigma() == 0, t.task_id() == centre.id())
+        << "task " << t.task_id();
     Task built = t;
     absl::Status expanded = worker::ExpandSample(&built, &centre_genes);
     ASSERT_TRUE(expanded.ok()) << expanded;
@@ -441,7 +445,7 @@ TEST_F(WireAbuseTest,
     const std::vector<double> short_centre = {0.0};
     EXPECT_FALSE(worker::ExpandSample(&orphan, &short_centre).ok());
   }
-  EXPECT_EQ(samples, 6);
+  EXPECT_EQ(samples, 7);  // the centre's own task too
   clock_.Advance(absl::Seconds(2));
 
   // Holding the centre: it does not come again.
@@ -451,7 +455,7 @@ TEST_F(WireAbuseTest,
   EXPECT_EQ(held.centres_size(), 0);
   int recipes = 0;
   for (const Task& t : held.tasks()) recipes += t.has_sample() ? 1 : 0;
-  EXPECT_EQ(recipes, 6);
+  EXPECT_EQ(recipes, 7);
   clock_.Advance(absl::Seconds(2));
 
   // More held centres than any worker keeps: refused, naming the field.

@@ -4,6 +4,7 @@
 #include "common/sample_recipe.h"
 
 #include <algorithm>
+#include <cmath>
 #include <limits>
 #include <string>
 #include <vector>
@@ -88,6 +89,24 @@ TEST(SampleRecipeTest, BuildsTheFormulaFromTheCentreAndThePairsStream) {
   absl::StatusOr<std::vector<double>> narrow = BuildSample(r, centre);
   ASSERT_TRUE(narrow.ok());
   EXPECT_TRUE(FitsFloat32(*narrow));
+}
+
+// Sigma 0 is the centre itself, clamped, with no perturbation drawn: how a
+// distribution genome goes to a worker. Bit for bit, the sign of a zero too
+// (centre + 0 x eps would make -0.0 into +0.0).
+TEST(SampleRecipeTest, SigmaZeroIsTheCentreItselfBitForBit) {
+  SampleRecipe r = Recipe();
+  r.sigma = 0;
+  std::vector<double> centre(r.length, 0.25);
+  centre[0] = -0.0;
+  centre[1] = 1e9;  // clamped to the upper bound
+  absl::StatusOr<std::vector<double>> genes = BuildSample(r, centre);
+  ASSERT_TRUE(genes.ok()) << genes.status();
+  EXPECT_TRUE(std::signbit((*genes)[0]));
+  EXPECT_EQ((*genes)[0], 0.0);
+  EXPECT_EQ((*genes)[1], r.upper);
+  for (size_t j = 2; j < genes->size(); ++j) EXPECT_EQ((*genes)[j], 0.25);
+  EXPECT_EQ(BuildSampleFrom(r, centre, {}), *genes);
 }
 
 TEST(SampleRecipeTest, BadInputIsRefusedNamingWhatIsWrong) {
