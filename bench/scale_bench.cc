@@ -1,6 +1,8 @@
 #include "bench/scale_bench.h"
 
+#include <signal.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include <algorithm>
 #include <atomic>
@@ -17,11 +19,14 @@
 #include "bench/bench_util.h"
 #include "common/clock.h"
 #include "common/random.h"
+#include "common/spec.h"
 #include "google/protobuf/message_lite.h"
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/support/client_interceptor.h"
+#include "server/engine/strategy.h"
 #include "skerry/v1/fleet.grpc.pb.h"
 #include "skerry/v1/runs.grpc.pb.h"
+#include "tests/support/process.h"
 #include "worker/worker.h"
 
 namespace skerry::bench {
@@ -126,8 +131,9 @@ uint64_t FileBytes(const std::string& path) {
   return stat(path.c_str(), &st) == 0 ? static_cast<uint64_t>(st.st_size) : 0;
 }
 
-uint64_t PeakRssKib() {
-  std::ifstream in("/proc/self/status");
+// VmHWM of the process whose status file is `status`, in KiB; 0 if unread.
+uint64_t PeakRssKib(const std::string& status) {
+  std::ifstream in(status);
   std::string line;
   while (std::getline(in, line)) {
     if (line.rfind("VmHWM:", 0) == 0) {
@@ -152,15 +158,9 @@ std::string LoadAverage() {
   return buf;
 }
 
-absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
-  const std::string path = TempDb(o.dir, "e2e");
-  std::optional<Loopback> c = StartLoopback(path);
-  if (!c.has_value()) return absl::UnavailableError("no coordinator");
-  const std::string& address = c->address;
-  auto runs = skerry::v1::RunService::NewStub(
-      grpc::CreateChannel(address, grpc::InsecureChannelCredentials()));
-  skerry::v1::SubmitRunRequest req;
-  skerry::v1::RunSpec* spec = req.mutable_spec();
+skerry::v1::RunSpec EndToEndSpec(const EndToEndOptions& o) {
+  skerry::v1::RunSpec out;
+  skerry::v1::RunSpec* spec = &out;
   spec->set_name("bench-zero");
   spec->set_seed(1);
   spec->set_genome_length(o.genome_length);
@@ -176,6 +176,30 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
   }
   spec->mutable_stop()->set_max_generations(o.generations);
   if (o.float32) spec->set_gene_precision(skerry::v1::FLOAT32);
+  return out;
+}
+
+absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
+  const std::string path = TempDb(o.dir, "e2e");
+  std::optional<Loopback> c;
+  std::optional<skerry::testing::StartedCoordinator> own;
+  std::string address;
+  if (o.coordinator_binary.empty()) {
+    c = StartLoopback(path);
+    if (!c.has_value()) return absl::UnavailableError("no coordinator");
+    address = c->address;
+  } else {
+    absl::StatusOr<skerry::testing::StartedCoordinator> started =
+        skerry::testing::StartCoordinator(o.coordinator_binary, path,
+                                          path + ".log");
+    if (!started.ok()) return started.status();
+    own = *std::move(started);
+    address = own->address();
+  }
+  auto runs = skerry::v1::RunService::NewStub(
+      grpc::CreateChannel(address, grpc::InsecureChannelCredentials()));
+  skerry::v1::SubmitRunRequest req;
+  *req.mutable_spec() = EndToEndSpec(o);
 
   WireCount wire;
   std::vector<std::unique_ptr<worker::Worker>> workers;
@@ -278,10 +302,71 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
   f.db_bytes = FileBytes(path) + FileBytes(path + "-wal");
   f.sent_bytes = wire.sent;
   f.received_bytes = wire.received;
-  c->coordinator->Shutdown();
-  f.peak_rss_kib = PeakRssKib();
+  if (own.has_value()) {
+    f.coordinator_peak_rss_kib =
+        PeakRssKib(absl::StrCat("/proc/", own->process.pid(), "/status"));
+    own->process.Signal(SIGTERM);
+    absl::StatusOr<int> code = own->process.Wait(absl::Seconds(60));
+    if (!code.ok() || *code != 0) {
+      std::fprintf(stderr, "coordinator exit: %s\n%s\n",
+                   code.ok() ? absl::StrCat(*code).c_str()
+                             : code.status().ToString().c_str(),
+                   own->process.Log().c_str());
+    }
+    unlink((path + ".log").c_str());
+  } else {
+    c->coordinator->Shutdown();
+  }
+  f.peak_rss_kib = PeakRssKib("/proc/self/status");
   RemoveDb(path);
   return f;
+}
+
+absl::StatusOr<double> InProcessStrategyRate(const EndToEndOptions& o,
+                                             int threads,
+                                             uint64_t* evaluations) {
+  absl::StatusOr<skerry::v1::RunSpec> spec = PrepareSpec(EndToEndSpec(o));
+  if (!spec.ok()) return spec.status();
+  absl::StatusOr<std::unique_ptr<engine::Strategy>> strategy =
+      engine::MakeStrategy(*spec, 0);
+  if (!strategy.ok()) return strategy.status();
+  *evaluations = 0;
+  const absl::Time start = absl::Now();
+  absl::StatusOr<std::vector<store::GenomeRecord>> gen = (*strategy)->Start();
+  for (uint32_t g = 0; gen.ok(); ++g) {
+    // Each thread builds and evaluates every threads-th genome, as the
+    // workers' threads would.
+    std::vector<store::GenomeRecord>& genomes = *gen;
+    std::vector<std::thread> pool;
+    std::atomic<bool> failed{false};
+    for (int t = 0; t < threads; ++t) {
+      pool.emplace_back([&, t] {
+        std::unique_ptr<Evaluator> ev = BenchEvaluator(o.eval_ms);
+        for (size_t i = t; i < genomes.size(); i += threads) {
+          absl::StatusOr<std::vector<double>> genes =
+              engine::SampleGenes(genomes, genomes[i]);
+          absl::StatusOr<double> score =
+              genes.ok() ? ev->Evaluate(*genes, 0) : genes.status();
+          if (!score.ok()) failed = true;
+          genomes[i].score = score.ok() ? *score : 0.0;
+          genomes[i].state = skerry::v1::EVALUATED;
+          genomes[i].attempts = 1;
+        }
+      });
+    }
+    for (auto& th : pool) th.join();
+    if (failed) return absl::InternalError("an in-process evaluation failed");
+    *evaluations += genomes.size();
+    if (g + 1 >= static_cast<uint32_t>(o.generations)) break;
+    if (absl::Status told = (*strategy)->Tell(genomes, {}); !told.ok()) {
+      return told;
+    }
+    gen = (*strategy)->Ask();
+  }
+  if (!gen.ok()) return gen.status();
+  const double secs =
+      std::max(1e-9, absl::ToDoubleSeconds(absl::Now() - start));
+  return static_cast<double>(*evaluations) / secs;
 }
 
 double InProcessRate(const EndToEndOptions& o, uint64_t evaluations,

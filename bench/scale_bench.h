@@ -18,6 +18,7 @@
 
 #include "absl/status/statusor.h"
 #include "common/evaluator.h"
+#include "skerry/v1/spec.pb.h"
 
 namespace skerry::bench {
 
@@ -40,6 +41,11 @@ struct EndToEndOptions {
   // The run is the natural ES (population_size `population`, rounded up to
   // even) instead of the GA: its samples are stored as their recipes.
   bool natural_es = false;
+  // When set, the coordinator is this skerry-coordinator binary, started as a
+  // process of its own on 127.0.0.1 (port 0), so that its peak memory is
+  // measured alone (EndToEndFigures.coordinator_peak_rss_kib); else it runs
+  // in this process beside the workers.
+  std::string coordinator_binary;
 };
 
 struct EndToEndFigures {
@@ -50,6 +56,9 @@ struct EndToEndFigures {
   uint64_t sent_bytes = 0;      // worker to coordinator, protobuf payload
   uint64_t received_bytes = 0;  // coordinator to worker, protobuf payload
   uint64_t peak_rss_kib = 0;    // this process's VmHWM afterwards
+  // The coordinator process's VmHWM before it is stopped (coordinator_binary
+  // set; else 0).
+  uint64_t coordinator_peak_rss_kib = 0;
   // Every Report RPC's latency as its worker saw it (send to status), in ms:
   // the wait for the group commit that holds its results.
   std::vector<double> report_ms;
@@ -62,8 +71,24 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o);
 // The p-th quantile (0..1) of `v`, by rank; 0 for none.
 double Percentile(std::vector<double> v, double p);
 
+// The run RunEndToEnd submits (its spec, before the coordinator prepares it).
+skerry::v1::RunSpec EndToEndSpec(const EndToEndOptions& o);
+
+// The limit of issue 14: the same run's genomes made, built and evaluated in
+// this process with no coordinator, store or network. The strategy is asked
+// for each generation on this thread, as the coordinator's engine asks it;
+// `threads` threads then build each genome's genes as a worker does (a
+// natural ES sample from its recipe; a GA genome comes bred) and evaluate
+// them; the strategy is told the scores. Evaluations per second, and their
+// count in *evaluations.
+absl::StatusOr<double> InProcessStrategyRate(const EndToEndOptions& o,
+                                             int threads,
+                                             uint64_t* evaluations);
+
 // The same evaluations as RunEndToEnd would make, on `threads` threads in
-// process (the sleep included): evaluations per second.
+// process (the sleep included), each genome's genes drawn uniformly (not
+// bred): evaluations per second. The fleet-efficiency comparison, where the
+// evaluation's sleep is what is measured.
 double InProcessRate(const EndToEndOptions& o, uint64_t evaluations,
                      int threads);
 

@@ -10,6 +10,7 @@
 //   against 256 per transaction.
 // It prints all three and the ratios. Not a test: figures depend on the
 // machine.
+#include <algorithm>
 #include <cstdio>
 #include <memory>
 #include <string>
@@ -44,6 +45,7 @@ struct BenchOptions {
   int threads = 1;
   int insert_rows = 200000;
   std::string dir = "/tmp";
+  std::string coordinator;  // --coordinator: the binary, run as a process
 };
 
 std::string TempDb(const BenchOptions& o, const char* name) {
@@ -129,7 +131,10 @@ double CommitRate(const BenchOptions& o, int batch) {
   run.name = "bench";
   run.spec.set_genome_length(o.genome_length);
   run.spec.mutable_islands()->set_count(1);
-  std::vector<store::GenomeRecord> genomes(2000);
+  // 2,000 rows, fewer for long genomes (at most about 200 MB of genes).
+  const size_t rows = std::clamp<size_t>(
+      25000000 / static_cast<size_t>(o.genome_length), 64, 2000);
+  std::vector<store::GenomeRecord> genomes(rows);
   for (uint32_t i = 0; i < genomes.size(); ++i) {
     genomes[i].slot = i;
     genomes[i].genes.assign(o.genome_length, 0.5);
@@ -166,6 +171,7 @@ bench::EndToEndOptions EndToEnd(const BenchOptions& o) {
   e.threads = o.threads;
   e.float32 = o.float32;
   e.natural_es = o.natural_es;
+  e.coordinator_binary = o.coordinator;
   return e;
 }
 
@@ -244,14 +250,19 @@ int main(int argc, char** argv) {
           "[--genome-length N] [--float32] [--natural-es] [--workers N] "
           "[--threads N] "
           "[--insert-rows N] "
-          "[--dir DIR] [--fleet] [--report-latency] [--history-genomes N "
-          "[--keep]]\n\nMeasures "
+          "[--dir DIR] [--coordinator PATH] [--fleet] [--report-latency] "
+          "[--history-genomes N [--keep]]\n\nMeasures "
           "raw SQLite genome inserts, end-to-end evaluations per second "
           "through a loopback coordinator and workers (with bytes stored and "
           "sent per evaluation and peak memory), and in-process evaluation, "
           "and prints the ratios. --float32 makes the end-to-end run's "
           "gene_precision FLOAT32; --natural-es makes it the natural ES "
-          "(samples stored as recipes) instead of the GA. --fleet adds fleet "
+          "(samples stored as recipes) instead of the GA. --coordinator PATH "
+          "runs the end-to-end run's coordinator as its own process (that "
+          "skerry-coordinator binary), so its peak memory is measured alone. "
+          "The in-process limit runs the same run's strategy with no "
+          "coordinator: asked on one thread, its genomes built and evaluated "
+          "on the workers' thread count. --fleet adds fleet "
           "efficiency at 2 and 20 "
           "ms per evaluation; --report-latency adds the workers' Report "
           "latency (p50, p99) idle and under four readers of the run "
@@ -268,7 +279,7 @@ int main(int argc, char** argv) {
       ok = skerry::bench::ParseInt("--generations", argv[++i], 1, 100000,
                                    &o.generations);
     } else if (a == "--genome-length" && has_value) {
-      ok = skerry::bench::ParseInt("--genome-length", argv[++i], 1, 100000,
+      ok = skerry::bench::ParseInt("--genome-length", argv[++i], 1, 1000000,
                                    &o.genome_length);
     } else if (a == "--workers" && has_value) {
       ok = skerry::bench::ParseInt("--workers", argv[++i], 1, 64, &o.workers);
@@ -292,6 +303,8 @@ int main(int argc, char** argv) {
                                    &history_genomes);
     } else if (a == "--dir" && has_value) {
       o.dir = argv[++i];
+    } else if (a == "--coordinator" && has_value) {
+      o.coordinator = argv[++i];
     } else {
       std::fprintf(stderr,
                    "skerry-bench: unknown or incomplete argument \"%s\"\n",
@@ -334,15 +347,48 @@ int main(int argc, char** argv) {
       f->db_bytes / n, f->sent_bytes / n, f->received_bytes / n,
       (o.float32 ? 4 : 8) * o.genome_length);
   std::printf(
-      "  peak RSS of the bench process (coordinator + workers): %.1f MiB\n",
+      "  peak RSS of the bench process (%s; every phase so far): %.1f MiB\n",
+      o.coordinator.empty() ? "coordinator + workers" : "workers",
       f->peak_rss_kib / 1024.0);
+  if (!o.coordinator.empty()) {
+    // One generation's genes as doubles: the memory goal is at most
+    // twice that plus 200 MB.
+    const double generation_mib = 8.0 * o.genome_length *
+                                  (o.population + (o.natural_es ? 1 : 0)) /
+                                  (1024.0 * 1024.0);
+    std::printf(
+        "  peak RSS of the coordinator process: %.1f MiB (one generation's "
+        "genes %.1f MiB; goal <= %.1f MiB)\n",
+        f->coordinator_peak_rss_kib / 1024.0, generation_mib,
+        2 * generation_mib + 200 * 1.048576);
+  }
   const double local =
       skerry::bench::InProcessRate(skerry::EndToEnd(o), evaluations, 1);
   std::printf("in process (no network)  %12.0f evaluations/s\n", local);
+  uint64_t limit_evaluations = 0;
+  const absl::StatusOr<double> limit = skerry::bench::InProcessStrategyRate(
+      skerry::EndToEnd(o), o.workers * o.threads, &limit_evaluations);
+  if (limit.ok()) {
+    std::printf(
+        "in-process limit         %12.0f evaluations/s  (%llu evaluations: "
+        "the same run's strategy, genomes built and evaluated on %d "
+        "threads)\n",
+        *limit, static_cast<unsigned long long>(limit_evaluations),
+        o.workers * o.threads);
+  } else {
+    std::fprintf(stderr, "in-process limit: %s\n",
+                 limit.status().ToString().c_str());
+  }
   std::printf("ratio end-to-end / raw insert   %.3f  (goal >= 0.8)\n",
               raw > 0 ? e2e / raw : 0.0);
   std::printf("ratio end-to-end / in process   %.5f\n",
               local > 0 ? e2e / local : 0.0);
+  if (limit.ok()) {
+    std::printf(
+        "ratio end-to-end / in-process limit   %.3f  (goal >= 0.8 at 10^5 "
+        "genes and more)\n",
+        *limit > 0 ? e2e / *limit : 0.0);
+  }
   if (fleet) {
     skerry::FleetEfficiency(o, 2, 200, 10);
     skerry::FleetEfficiency(o, 20, 100, 6);
