@@ -19,7 +19,19 @@
 #include "server/store/row_sums.h"
 
 namespace skerry::engine {
+
 namespace {
+
+// A completed generation kept for migration holds no genes (the coordinator's
+// memory is the generation being evaluated, not the ones before it): a
+// migrant chosen from it reads its genes back (Engine::AdvanceIsland). A
+// distribution genome keeps its genes, from which its samples are built.
+void DropGenes(std::vector<store::GenomeRecord>* generation) {
+  for (store::GenomeRecord& g : *generation) {
+    if (g.origin != skerry::v1::DISTRIBUTION)
+      std::vector<double>().swap(g.genes);
+  }
+}
 
 using skerry::v1::RunSpec;
 using store::GenomeRecord;
@@ -226,6 +238,7 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
       if (g.recipe.has_value()) std::vector<double>().swap(g.genes);
     }
     if (island.done) {
+      DropGenes(&island.current);
       island.completed[island.generation] = std::move(island.current);
       island.current.clear();
     } else {
@@ -823,6 +836,7 @@ absl::StatusOr<const std::vector<GenomeRecord>*> Engine::CompletedGeneration(
   SKERRY_ASSIGN_OR_RETURN(
       std::vector<GenomeRecord> gen,
       store_->GetGeneration(run.record.id, source, generation));
+  DropGenes(&gen);
   auto [pos, inserted] = s.completed.emplace(generation, std::move(gen));
   return &pos->second;
 }
@@ -883,17 +897,24 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
       }
       for (const GenomeRecord* m : ChooseEmigrants(
                spec, *source_gen, island.index, spec.islands().migrants())) {
-        if (m->recipe.has_value() && m->genes.empty()) {
-          // A sample kept as its recipe: the strategy told of it needs its
-          // genes (a migrant may become the centre).
+        if (m->genes.empty()) {
+          // A genome of a completed generation (DropGenes) or a sample kept
+          // as its recipe: the strategy told of it needs its genes.
           GenomeRecord copy = *m;
-          absl::StatusOr<std::vector<double>> genes =
-              SampleGenes(*source_gen, *m);
-          if (!genes.ok()) {
-            FailRun(run, genes.status());
-            return true;
+          if (m->recipe.has_value()) {
+            absl::StatusOr<std::vector<double>> genes =
+                SampleGenes(*source_gen, *m);
+            if (!genes.ok()) {
+              FailRun(run, genes.status());
+              return true;
+            }
+            copy.genes = std::move(*genes);
+          } else {
+            // A read failure is the store's trouble, handled as any other.
+            SKERRY_ASSIGN_OR_RETURN(GenomeRecord stored,
+                                    store_->GetGenome(m->id));
+            copy.genes = std::move(stored.genes);
           }
-          copy.genes = std::move(*genes);
           built_migrants.push_back(std::move(copy));
           m = &built_migrants.back();
         }
@@ -1019,6 +1040,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   island.evaluations += stats.evaluations;
   island.last_stats = stats;
   island.waiting = false;
+  DropGenes(&island.current);
   island.completed[g] = std::move(island.current);
   while (island.completed.size() > kCompletedKept) {
     island.completed.erase(island.completed.begin());
