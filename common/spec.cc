@@ -656,11 +656,23 @@ absl::StatusOr<RunSpec> PrepareSpec(RunSpec spec, const SpecBudgets& budgets) {
       !s.ok()) {
     return s;
   }
-  const uint64_t genes = population * prepared->genome_length();
+  // What the coordinator holds of a running generation. A natural ES island
+  // with distribution genomes holds its samples as recipes, so only its
+  // centre, the centre's genome and Adam's two moments: 4 vectors.
+  const bool recipes = StrategyOf(*prepared) == StrategyKind::kNaturalEs &&
+                       HasDistributionGenomes(*prepared);
+  const uint64_t islands = std::max<uint32_t>(1, prepared->islands().count());
+  const uint64_t held = recipes ? 4 * islands : population;
+  const uint64_t genes = held * prepared->genome_length();
   if (absl::Status s = OverBudget(
-          absl::StrCat("genes per generation (", population,
-                       " genomes over all islands x genome_length ",
-                       prepared->genome_length(), ")"),
+          recipes ? absl::StrCat("genes held per generation (", islands,
+                                 " islands x 4 vectors: the centre, its genome "
+                                 "and Adam's two moments; natural ES samples "
+                                 "are held as recipes; x genome_length ",
+                                 prepared->genome_length(), ")")
+                  : absl::StrCat("genes per generation (", population,
+                                 " genomes over all islands x genome_length ",
+                                 prepared->genome_length(), ")"),
           genes, budgets.max_generation_genes, "--max-generation-genes");
       !s.ok()) {
     return s;

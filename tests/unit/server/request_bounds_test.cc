@@ -191,6 +191,31 @@ TEST(SpecBudgetTest, GenerationAtTheBudgetPassesAndOneGenomeMoreIsRefused) {
                         "(--max-generation-genes)"));
 }
 
+// Regression (issue 14): a natural ES run of 10^6 genes and 200 samples was
+// refused as 201 x 10^6 genes per generation, though the coordinator holds
+// its samples as recipes: it holds 4 vectors per island (the centre, its
+// genome, Adam's two moments). Without distribution genomes (runs stored
+// before them) the samples are genes, and counted so.
+TEST(SpecBudgetTest, NaturalEsSamplesHeldAsRecipesCountAsTheirIslandsVectors) {
+  SpecBudgets b;
+  b.max_generation_genes = 2 * 4 * 1000000;  // 2 islands' 4 vectors
+  skerry::v1::RunSpec es = Spec(2, 1000000, 2);
+  es.clear_ga();
+  es.mutable_strategy()->mutable_natural_es()->set_population_size(200);
+  EXPECT_TRUE(PrepareSpec(es, b).ok());
+  b.max_generation_genes -= 1;
+  absl::StatusOr<skerry::v1::RunSpec> over = PrepareSpec(es, b);
+  ASSERT_FALSE(over.ok());
+  EXPECT_THAT(std::string(over.status().message()),
+              HasSubstr("genes held per generation (2 islands x 4 vectors"));
+  b.max_generation_genes = 2 * 4 * 1000000;
+  es.mutable_strategy()->set_distribution_genomes(false);
+  absl::StatusOr<skerry::v1::RunSpec> as_genes = PrepareSpec(es, b);
+  ASSERT_FALSE(as_genes.ok());
+  EXPECT_THAT(std::string(as_genes.status().message()),
+              HasSubstr("genes per generation (400 genomes over all islands"));
+}
+
 TEST(SpecBudgetTest, EachBudgetNamesItsFlagAndZeroMeansNone) {
   const SpecBudgets none;
   skerry::v1::RunSpec huge = Spec(1000000, 1000000, 1);
