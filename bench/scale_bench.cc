@@ -227,7 +227,13 @@ absl::StatusOr<EndToEndFigures> RunEndToEnd(const EndToEndOptions& o) {
     skerry::v1::SubmitRunResponse resp;
     grpc::Status s = runs->SubmitRun(&ctx, req, &resp);
     if (!s.ok()) {
-      std::fprintf(stderr, "submit: %s\n", s.error_message().c_str());
+      for (auto& w : workers) w->Stop();
+      for (auto& t : threads) t.join();
+      if (own.has_value()) own->process.Kill();
+      if (c.has_value()) c->coordinator->Shutdown();
+      RemoveDb(path);
+      return absl::InvalidArgumentError(
+          absl::StrCat("submit: ", s.error_message()));
     }
   }
   std::atomic<bool> reading{true};
