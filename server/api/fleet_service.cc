@@ -137,7 +137,7 @@ grpc::Status FleetServiceImpl::Lease(grpc::ServerContext* ctx,
                   static_cast<size_t>(req->held_centres_size())};
   std::vector<skerry::v1::Task> tasks = queue_->Lease(
       static_cast<int64_t>(req->worker_id()), req->max_tasks(), wait,
-      kMaxLeaseBytes,
+      kLeaseAnswerBytes,
       req->protocol_version() >= kSampleRecipeProtocol ? &centres : nullptr);
   for (const auto& [id, genes] : centres.wanted) {
     skerry::v1::Centre* c = resp->add_centres();

@@ -45,6 +45,12 @@ class FleetServiceImpl final : public skerry::v1::FleetService::Service {
   // message limit (server/coordinator.cc); one task is always sent, and
   // --max-task-bytes may not exceed this.
   static constexpr size_t kMaxLeaseBytes = 64 << 20;
+  // What one Lease answer aims at: tasks are added while they fit in 16 MiB
+  // (one task is always sent, up to kMaxLeaseBytes). A worker needs only its
+  // threads' worth ahead, and the coordinator builds each answer in memory
+  // before it is sent, twice over (messages, then bytes): bigger answers of
+  // long genomes only made its memory peak higher (issue 14).
+  static constexpr size_t kLeaseAnswerBytes = 16 << 20;
   // Bounds of a TaskResult's fields (docs/protocol.md, "Bounds").
   static constexpr double kMaxEvalSeconds = 1e7;  // about 116 days
   static constexpr size_t kMaxResultErrorBytes = 1 << 20;

@@ -99,9 +99,11 @@ class WireAbuseTest : public ::testing::Test {
     ASSERT_TRUE(c.ok()) << c.status();
     coordinator_ = std::move(*c);
     ASSERT_GT(coordinator_->port(), 0);
-    channel_ =
-        grpc::CreateChannel(absl::StrCat("127.0.0.1:", coordinator_->port()),
-                            grpc::InsecureChannelCredentials());
+    grpc::ChannelArguments args;
+    args.SetMaxReceiveMessageSize(128 << 20);  // as skerry-worker's channel
+    channel_ = grpc::CreateCustomChannel(
+        absl::StrCat("127.0.0.1:", coordinator_->port()),
+        grpc::InsecureChannelCredentials(), args);
     fleet_ = FleetService::NewStub(channel_);
     runs_ = RunService::NewStub(channel_);
     skerry::v1::SubmitRunRequest req;
@@ -464,6 +466,39 @@ TEST_F(WireAbuseTest,
   EXPECT_EQ(s.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
   EXPECT_THAT(s.error_message(), ::testing::HasSubstr("held_centres"));
   FinishHonestly();
+}
+
+// Regression (issue 14): a Lease answer of long genomes was filled to 64 MiB,
+// which the coordinator builds in memory twice over; with two workers its
+// peak memory was twice the goal. An answer now aims at 16 MiB (one task is
+// always sent), and the rest comes with the next lease.
+TEST_F(WireAbuseTest, ALeaseAnswerOfLongGenomesStopsAt16MiB) {
+  skerry::v1::SubmitRunRequest submit;
+  *submit.mutable_spec() = SmallSpec();
+  submit.mutable_spec()->set_name("long-genomes");
+  submit.mutable_spec()->set_genome_length(1 << 18);  // 2 MiB a task
+  submit.mutable_spec()->mutable_ga()->set_population_size(12);
+  skerry::v1::SubmitRunResponse submitted;
+  grpc::Status s = runs_->SubmitRun(Context().get(), submit, &submitted);
+  ASSERT_TRUE(s.ok()) << s.error_message();
+  const uint64_t worker = Join();
+  size_t long_tasks = 0;
+  int lease = 0;
+  for (; lease < 4 && long_tasks < 12; ++lease) {
+    skerry::v1::LeaseResponse resp;
+    s = LeaseAs(worker, kSampleRecipeProtocol, {}, &resp);
+    ASSERT_TRUE(s.ok()) << s.error_message();
+    size_t here = 0;
+    for (const Task& t : resp.tasks()) {
+      if (t.run_id() == submitted.run().id()) ++here;
+    }
+    EXPECT_GE(here, 1u) << "lease " << lease;
+    EXPECT_LE(here, 8u) << "lease " << lease;  // 8 x 2 MiB = 16 MiB
+    EXPECT_LE(resp.ByteSizeLong(), size_t{16 << 20} + (size_t{1} << 21));
+    long_tasks += here;
+  }
+  EXPECT_EQ(long_tasks, 12u);  // all of them...
+  EXPECT_GE(lease, 2);         // ...over more than one answer
 }
 
 TEST_F(WireAbuseTest, JoinWithBadThreadsOrNamesIsInvalidArgument) {
