@@ -311,7 +311,12 @@ store::StatsRecord ComputeScoreStats(
 store::StatsRecord ComputeStats(const RunSpec& spec,
                                 absl::Span<const GenomeRecord> generation) {
   store::StatsRecord s = ComputeScoreStats(spec, generation);
-  if (generation.empty()) return s;
+  s.diversity = Diversity(generation);
+  return s;
+}
+
+double Diversity(absl::Span<const GenomeRecord> generation) {
+  if (generation.empty()) return 0.0;
   // Diversity: mean over genes of the population standard deviation.
   const size_t len = generation.front().genes.size();
   const double count = static_cast<double>(generation.size());
@@ -326,8 +331,7 @@ store::StatsRecord ComputeStats(const RunSpec& spec,
     }
     total += std::sqrt(var / count);
   }
-  s.diversity = len > 0 ? total / static_cast<double>(len) : 0.0;
-  return s;
+  return len > 0 ? total / static_cast<double>(len) : 0.0;
 }
 
 }  // namespace skerry::engine

@@ -59,7 +59,9 @@ absl::StatusOr<std::vector<GenomeRecord>> Breed(
 // gene_spread.h for a generation whose samples the engine keeps as recipes).
 store::StatsRecord ComputeStats(const skerry::v1::RunSpec& spec,
                                 absl::Span<const GenomeRecord> generation);
-// The same without the diversity (left 0): no gene is read.
+// The diversity alone, two-pass (same REQUIRES as ComputeStats).
+double Diversity(absl::Span<const GenomeRecord> generation);
+// The statistics without the diversity (left 0): no gene is read.
 store::StatsRecord ComputeScoreStats(const skerry::v1::RunSpec& spec,
                                      absl::Span<const GenomeRecord> generation);
 

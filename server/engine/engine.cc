@@ -216,9 +216,12 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
       island.evaluations += s.evaluations;
       island.last_stats = s;
     }
+    // Samples kept as recipes come without genes, as when bred (records.h):
+    // nothing here needs them, and rebuilding them would cost a draw a gene.
     SKERRY_ASSIGN_OR_RETURN(
         island.current,
-        store_->GetGeneration(record.id, ir.index, ir.generation));
+        store_->GetGeneration(record.id, ir.index, ir.generation,
+                              /*rebuild_samples=*/false));
     // A generation is written whole (invariant 3): a short one is damage (a
     // lost index entry, say), not a generation to finish with fewer genomes.
     const uint32_t pop = IslandPopulation(record.spec, ir.index);
@@ -231,11 +234,6 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
           record.id, absl::StrCat("island ", ir.index, " generation ",
                                   ir.generation, " (", island.current.size(),
                                   " genomes read, ", pop, " expected)"));
-    }
-    // Samples kept as recipes are held without genes, as when bred
-    // (records.h): the store rebuilt them, and nothing here needs them.
-    for (GenomeRecord& g : island.current) {
-      if (g.recipe.has_value()) std::vector<double>().swap(g.genes);
     }
     if (island.done) {
       DropGenes(&island.current);
@@ -976,7 +974,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
     }
     stats.diversity = *d;
   } else {
-    stats.diversity = ComputeStats(spec, island.current).diversity;
+    stats.diversity = Diversity(island.current);
   }
 
   store::GenerationCommit commit;

@@ -331,9 +331,9 @@ skerry::v1::Task TaskQueue::LeaseFrom(RunQueue& rq, int64_t worker,
         e->info.centre != nullptr) {
       absl::StatusOr<std::vector<double>> made =
           BuildSample(*e->info.recipe, *e->info.centre);
-      // The engine made the recipe from this centre, so it fits; if it did
-      // not, the task goes without genes and its evaluation fails, naming
-      // the length, rather than with wrong genes.
+      // It cannot fail: the engine sends a recipe this way only with a
+      // centre of its length (Engine::QueueIsland), and a recipe's sigma
+      // and bounds come from a validated spec or a checked store read.
       if (made.ok()) built = *std::move(made);
       genes = &built;
     }

@@ -1355,7 +1355,8 @@ absl::Status Store::RebuildSamples(Connection* conn,
 }
 
 absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
-    int64_t run_id, uint32_t island, uint32_t generation) {
+    int64_t run_id, uint32_t island, uint32_t generation,
+    bool rebuild_samples) {
   SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
@@ -1366,7 +1367,15 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
   s.BindInt(1, run_id);
   s.BindInt(2, island);
   s.BindInt(3, generation);
-  return QueryGenomes(reader.get(), &s);
+  if (rebuild_samples) return QueryGenomes(reader.get(), &s);
+  std::vector<GenomeRecord> out;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (!row) break;
+    SKERRY_ASSIGN_OR_RETURN(GenomeRecord g, ReadGenome(s));
+    out.push_back(std::move(g));
+  }
+  return out;
 }
 
 absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {

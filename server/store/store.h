@@ -400,9 +400,12 @@ class Store {
   // Each island's stored strategy state (serialised StrategyState), by island.
   absl::StatusOr<std::map<uint32_t, std::string>> GetStrategyStates(
       int64_t run_id);
-  absl::StatusOr<std::vector<GenomeRecord>> GetGeneration(int64_t run_id,
-                                                          uint32_t island,
-                                                          uint32_t generation);
+  // A generation in slot order. `rebuild_samples` false: natural ES samples
+  // come as their recipes alone, with no genes (records.h), as the engine
+  // holds them; rebuilding them costs a draw per gene.
+  absl::StatusOr<std::vector<GenomeRecord>> GetGeneration(
+      int64_t run_id, uint32_t island, uint32_t generation,
+      bool rebuild_samples = true);
   absl::StatusOr<GenomeRecord> GetGenome(int64_t genome_id);
   // Statistics in (island, generation) order; all islands when island is empty.
   absl::StatusOr<std::vector<StatsRecord>> GetStats(
