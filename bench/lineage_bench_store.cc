@@ -103,7 +103,9 @@ void BuildStore(const Flags& f) {
     std::vector<std::vector<GenomeRecord>> next(f.islands);
     for (uint32_t i = 0; i < f.islands; ++i) {
       if (g == 0) {
-        next[i] = skerry::engine::Seed(spec, i);
+        auto seeded = skerry::engine::Seed(spec, i);
+        if (!seeded.ok()) Die(seeded.status(), "seed");
+        next[i] = *std::move(seeded);
       } else {
         std::vector<const GenomeRecord*> migrants;
         if (skerry::engine::IsMigrationEpoch(spec, g)) {

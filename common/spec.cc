@@ -26,6 +26,7 @@ namespace {
 using skerry::v1::RunSpec;
 
 constexpr uint32_t kMaxGenomeLength = 1000000;
+constexpr uint32_t kMaxKeyframeInterval = 100000;
 constexpr uint32_t kMinPopulation = 2;
 constexpr uint32_t kMaxPopulation = 1000000;
 constexpr uint32_t kMaxIslands = 256;
@@ -572,6 +573,10 @@ absl::Status ValidateSpec(const RunSpec& spec) {
     s = CheckBreeding(spec, min_pop);
     if (s.ok()) s = CheckSelection(spec, min_pop);
     if (s.ok()) s = CheckVariation(spec);
+    if (s.ok() && spec.ga().has_keyframe_interval()) {
+      s = CheckRange("ga.keyframe_interval", spec.ga().keyframe_interval(), 1,
+                     kMaxKeyframeInterval);
+    }
   }
   if (s.ok()) s = CheckMigration(spec, min_pop);
   if (s.ok()) s = CheckStop(spec);
@@ -589,6 +594,15 @@ uint32_t IslandPopulation(const RunSpec& spec, uint32_t island) {
     return EsPopulation(spec) + (HasDistributionGenomes(spec) ? 1 : 0);
   }
   return spec.ga().population_size();
+}
+
+uint32_t KeyframeInterval(const RunSpec& spec) {
+  if (StrategyOf(spec) != StrategyKind::kGa) return 1;
+  if (spec.ga().has_keyframe_interval()) {
+    return std::max<uint32_t>(1, spec.ga().keyframe_interval());
+  }
+  return spec.genome_length() >= kRecipeGenomeLength ? kDefaultKeyframeInterval
+                                                     : 1;
 }
 
 absl::StatusOr<RunSpec> PrepareSpec(RunSpec spec) {

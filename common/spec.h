@@ -35,6 +35,14 @@ absl::Status ValidateSpec(const skerry::v1::RunSpec& spec);
 // when the spec has them (HasDistributionGenomes).
 uint32_t IslandPopulation(const skerry::v1::RunSpec& spec, uint32_t island);
 
+// A GA run's keyframe interval: ga.keyframe_interval when set, else 1 below
+// kRecipeGenomeLength genes and kDefaultKeyframeInterval from there up. Above
+// 1, the store keeps the run's genomes as their recipes between keyframes
+// (common/child_recipe.h). 1 for the other strategies.
+inline constexpr uint32_t kRecipeGenomeLength = 1000;
+inline constexpr uint32_t kDefaultKeyframeInterval = 100;
+uint32_t KeyframeInterval(const skerry::v1::RunSpec& spec);
+
 // Both, then returns the normalised spec.
 absl::StatusOr<skerry::v1::RunSpec> PrepareSpec(skerry::v1::RunSpec spec);
 

@@ -51,7 +51,7 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
       SKERRY_ASSIGN_OR_RETURN(
           std::vector<store::GenomeRecord> generation,
           store->GetGeneration(static_cast<int64_t>(k.run_id()), k.island(),
-                               k.generation()));
+                               k.generation(), store::Store::Genes::kStored));
       for (const store::GenomeRecord& g : generation) {
         if (g.slot == k.slot()) return g.id;
       }

@@ -5,8 +5,10 @@
 #include <memory>
 
 #include "absl/strings/str_cat.h"
+#include "common/child_recipe.h"
 #include "common/random.h"
 #include "common/spec.h"
+#include "common/status_macros.h"
 #include "server/engine/operators.h"
 
 namespace skerry::engine {
@@ -25,10 +27,50 @@ RandomStream Stream(const RunSpec& spec, uint32_t island, uint32_t generation,
   return RandomStream(key);
 }
 
-std::vector<double> RandomGenes(const RunSpec& spec, RandomStream& rng) {
-  std::vector<double> genes(spec.genome_length());
-  for (double& g : genes) g = rng.Uniform(spec.init_lower(), spec.init_upper());
-  return genes;
+// The recipe of genome (island, generation, slot) of `kind` (child_recipe.h),
+// from the run's spec: what BuildChild makes its genes from.
+ChildRecipe RecipeOf(const RunSpec& spec, uint32_t island, uint32_t generation,
+                     uint32_t slot, ChildKind kind) {
+  ChildRecipe r;
+  r.kind = kind;
+  r.float32 = spec.gene_precision() == skerry::v1::FLOAT32;
+  r.crossover_method = spec.ga().crossover().method();
+  r.seed = spec.seed();
+  r.island = island;
+  r.generation = generation;
+  r.slot = slot;
+  r.length = spec.genome_length();
+  r.crossover_rate = spec.ga().crossover().rate();
+  r.blend_alpha = spec.ga().crossover().blend_alpha();
+  r.mutation_rate = spec.ga().mutation().rate();
+  r.mutation_step = spec.ga().mutation().step();
+  r.lower = spec.lower_bound();
+  r.upper = spec.upper_bound();
+  r.init_lower = spec.init_lower();
+  r.init_upper = spec.init_upper();
+  return r;
+}
+
+// Gives `g` its genes, built from `recipe` and its parents' (a FLOAT32 run's
+// rounded as the store rounds them), and, when the run keeps recipes, the
+// recipe too: a keyframe at every KeyframeInterval-th generation, except for
+// seeds and immigrants, which replay from their stream alone.
+absl::Status Build(const RunSpec& spec, const ChildRecipe& recipe,
+                   absl::Span<const double> a, absl::Span<const double> b,
+                   GenomeRecord* g) {
+  absl::StatusOr<std::vector<double>> genes = BuildChild(recipe, a, b);
+  if (!genes.ok()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("island ", g->island, " generation ", g->generation,
+                     " slot ", g->slot, ": ", genes.status().message()));
+  }
+  g->genes = *std::move(genes);
+  const uint32_t interval = KeyframeInterval(spec);
+  if (interval > 1) {
+    g->child_recipe = recipe;
+    g->keyframe = ParentsOf(recipe.kind) > 0 && g->generation % interval == 0;
+  }
+  return absl::OkStatus();
 }
 
 GenomeRecord Fresh(const RunSpec& spec, uint32_t island, uint32_t generation,
@@ -49,6 +91,10 @@ GenomeRecord CarryOver(const RunSpec& spec, const GenomeRecord& from,
   GenomeRecord g = Fresh(spec, island, generation, slot, origin);
   g.parent_a = from.id;
   g.genes = from.genes;
+  if (KeyframeInterval(spec) > 1) {
+    g.child_recipe = RecipeOf(spec, island, generation, slot, ChildKind::kCopy);
+    g.keyframe = generation % KeyframeInterval(spec) == 0;
+  }
   if (!spec.evaluator().noisy()) {
     g.state = from.state;
     g.score = from.score;
@@ -119,14 +165,15 @@ uint64_t EvalSeed(const RunSpec& spec, uint32_t island, uint32_t generation,
       .NextU64();
 }
 
-std::vector<GenomeRecord> Seed(const RunSpec& spec, uint32_t island) {
+absl::StatusOr<std::vector<GenomeRecord>> Seed(const RunSpec& spec,
+                                               uint32_t island) {
   const uint32_t n = IslandPopulation(spec, island);
   std::vector<GenomeRecord> out;
   out.reserve(n);
   for (uint32_t slot = 0; slot < n; ++slot) {
     GenomeRecord g = Fresh(spec, island, 0, slot, skerry::v1::SEEDED);
-    RandomStream rng = Stream(spec, island, 0, StreamPurpose::kSeedGenes, slot);
-    g.genes = RandomGenes(spec, rng);
+    SKERRY_RETURN_IF_ERROR(Build(
+        spec, RecipeOf(spec, island, 0, slot, ChildKind::kSeed), {}, {}, &g));
     out.push_back(std::move(g));
   }
   return out;
@@ -245,37 +292,37 @@ absl::StatusOr<std::vector<GenomeRecord>> Breed(
           absl::StrCat("island ", island, " generation ", next_gen - 1, ": ",
                        parents.status().message()));
     }
-    skerry::v1::CrossoverSpec always = spec.ga().crossover();
-    always.set_rate(1.0);
     for (uint32_t k = 0; k < offspring; ++k) {
       const uint32_t slot = elites + n_migrants + k;
-      RandomStream rng =
-          Stream(spec, island, next_gen, StreamPurpose::kBreed, slot);
       const GenomeRecord* a = pool[(*parents)[2 * k]];
       const GenomeRecord* b = pool[(*parents)[2 * k + 1]];
-      GenomeRecord child;
-      if (rng.Bernoulli(spec.ga().crossover().rate())) {
-        child = Fresh(spec, island, next_gen, slot, skerry::v1::CROSSOVER);
-        child.genes = Crossover(always, a->genes, b->genes, spec.lower_bound(),
-                                spec.upper_bound(), rng);
-        child.parent_a = a->id;
-        child.parent_b = b->id;
-      } else {
-        child = Fresh(spec, island, next_gen, slot, skerry::v1::MUTATION);
-        child.genes = a->genes;
-        child.parent_a = a->id;
-      }
-      Mutate(spec.ga().mutation().rate(), spec.ga().mutation().step(),
-             spec.lower_bound(), spec.upper_bound(), &child.genes, rng);
+      // Whether the child is crossed is its stream's first draw; BuildChild
+      // draws it again, and refuses a kind that disagrees.
+      RandomStream rng =
+          Stream(spec, island, next_gen, StreamPurpose::kBreed, slot);
+      const bool crossed = rng.Bernoulli(spec.ga().crossover().rate());
+      GenomeRecord child =
+          Fresh(spec, island, next_gen, slot,
+                crossed ? skerry::v1::CROSSOVER : skerry::v1::MUTATION);
+      child.parent_a = a->id;
+      if (crossed) child.parent_b = b->id;
+      SKERRY_RETURN_IF_ERROR(Build(
+          spec,
+          RecipeOf(spec, island, next_gen, slot,
+                   crossed ? ChildKind::kCrossover : ChildKind::kMutation),
+          a->genes,
+          crossed ? absl::Span<const double>(b->genes)
+                  : absl::Span<const double>(),
+          &child));
       out.push_back(std::move(child));
     }
   }
   for (uint32_t k = 0; k < immigrants; ++k) {
     const uint32_t slot = n - immigrants + k;
     GenomeRecord g = Fresh(spec, island, next_gen, slot, skerry::v1::IMMIGRANT);
-    RandomStream rng =
-        Stream(spec, island, next_gen, StreamPurpose::kImmigrant, slot);
-    g.genes = RandomGenes(spec, rng);
+    SKERRY_RETURN_IF_ERROR(Build(
+        spec, RecipeOf(spec, island, next_gen, slot, ChildKind::kImmigrant), {},
+        {}, &g));
     out.push_back(std::move(g));
   }
   return out;

@@ -32,9 +32,12 @@ namespace skerry::engine {
 
 using store::GenomeRecord;
 
-// Generation 0 of `island` (ids left 0, run_id left 0).
-std::vector<GenomeRecord> Seed(const skerry::v1::RunSpec& spec,
-                               uint32_t island);
+// Generation 0 of `island` (ids left 0, run_id left 0). Every genome Seed
+// and Breed make is built by BuildChild (common/child_recipe.h) and, when the
+// run keeps recipes (KeyframeInterval > 1), carries its recipe.
+// InvalidArgument only for a spec that PrepareSpec would refuse.
+absl::StatusOr<std::vector<GenomeRecord>> Seed(const skerry::v1::RunSpec& spec,
+                                               uint32_t island);
 
 // Chooses `count` emigrants from a completed generation per the spec's emigrant
 // choice (best, random, tournament of 2). Streams: (island of the source,

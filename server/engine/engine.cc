@@ -7,6 +7,7 @@
 #include <iterator>
 #include <optional>
 
+#include "absl/container/flat_hash_set.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "common/metric_bounds.h"
@@ -26,11 +27,43 @@ namespace {
 // memory is the generation being evaluated, not the ones before it): a
 // migrant chosen from it reads its genes back (Engine::AdvanceIsland). A
 // distribution genome keeps its genes, from which its samples are built.
-void DropGenes(std::vector<store::GenomeRecord>* generation) {
+void DropGenes(std::vector<store::GenomeRecord>* generation,
+               const absl::flat_hash_set<int64_t>& keep = {}) {
   for (store::GenomeRecord& g : *generation) {
-    if (g.origin != skerry::v1::DISTRIBUTION)
+    if (g.origin != skerry::v1::DISTRIBUTION && !keep.contains(g.id))
       std::vector<double>().swap(g.genes);
   }
+}
+
+// The genomes of a completed generation that will emigrate, when the run
+// keeps GA genomes as recipes: reading a migrant's genes back would replay
+// its ancestry (store/replay.h), so the engine keeps those few. Emigrants
+// are chosen from the generation and the destination alone (breeder.h), so
+// they are known now: for each island taking migrants from this one at the
+// next epoch, or, in asynchronous mode, for every other island.
+absl::flat_hash_set<int64_t> EmigrantsToKeep(
+    const skerry::v1::RunSpec& spec, uint32_t island,
+    const std::vector<store::GenomeRecord>& generation) {
+  absl::flat_hash_set<int64_t> keep;
+  if (KeyframeInterval(spec) <= 1 || generation.empty()) return keep;
+  const uint32_t g = generation.front().generation;
+  const bool asynchronous = spec.islands().asynchronous();
+  if (!asynchronous && !IsMigrationEpoch(spec, g + 1)) return keep;
+  const uint32_t count = std::max<uint32_t>(1, spec.islands().count());
+  for (uint32_t d = 0; d < count; ++d) {
+    if (d == island) continue;
+    if (!asynchronous) {
+      const std::vector<uint32_t> sources = Sources(spec, d, g + 1);
+      if (std::find(sources.begin(), sources.end(), island) == sources.end()) {
+        continue;
+      }
+    }
+    for (const store::GenomeRecord* m :
+         ChooseEmigrants(spec, generation, d, spec.islands().migrants())) {
+      keep.insert(m->id);
+    }
+  }
+  return keep;
 }
 
 using skerry::v1::RunSpec;
@@ -218,10 +251,13 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
     }
     // Samples kept as recipes come without genes, as when bred (records.h):
     // nothing here needs them, and rebuilding them would cost a draw a gene.
+    // A GA generation being evaluated comes with its genes (replayed when
+    // kept as recipes); a done island's needs none.
     SKERRY_ASSIGN_OR_RETURN(
         island.current,
         store_->GetGeneration(record.id, ir.index, ir.generation,
-                              /*rebuild_samples=*/false));
+                              ir.done ? store::Store::Genes::kStored
+                                      : store::Store::Genes::kNotSamples));
     // A generation is written whole (invariant 3): a short one is damage (a
     // lost index entry, say), not a generation to finish with fewer genomes.
     const uint32_t pop = IslandPopulation(record.spec, ir.index);
@@ -833,7 +869,8 @@ absl::StatusOr<const std::vector<GenomeRecord>*> Engine::CompletedGeneration(
   }
   SKERRY_ASSIGN_OR_RETURN(
       std::vector<GenomeRecord> gen,
-      store_->GetGeneration(run.record.id, source, generation));
+      store_->GetGeneration(run.record.id, source, generation,
+                            store::Store::Genes::kStored));
   DropGenes(&gen);
   auto [pos, inserted] = s.completed.emplace(generation, std::move(gen));
   return &pos->second;
@@ -1000,6 +1037,9 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
                                key < *run.champion_key))) {
         commit.champion = std::make_pair(gr.id, gr.score);
         commit_champion_key = key;
+        if (gr.child_recipe.has_value() && !gr.keyframe && !gr.genes.empty()) {
+          commit.champion_genome = &gr;
+        }
       }
       break;
     }
@@ -1038,7 +1078,8 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   island.evaluations += stats.evaluations;
   island.last_stats = stats;
   island.waiting = false;
-  DropGenes(&island.current);
+  DropGenes(&island.current,
+            EmigrantsToKeep(spec, island.index, island.current));
   island.completed[g] = std::move(island.current);
   while (island.completed.size() > kCompletedKept) {
     island.completed.erase(island.completed.begin());

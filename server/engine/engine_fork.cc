@@ -62,9 +62,12 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
     for (store::GenomeRecord& g : gen) {
       g.id = 0;
       // The copies keep their genes whole (read rebuilt), not a natural ES
-      // sample's recipe: the fork's genes then need nothing of the parent's
-      // rows, so a copy of the fork alone (a one-run backup) holds them.
+      // sample's recipe nor a GA genome's: the fork's genes then need
+      // nothing of the parent's rows, so a copy of the fork alone (a one-run
+      // backup) holds them.
       g.recipe.reset();
+      g.child_recipe.reset();
+      g.keyframe = false;
       if (!keep_scores) {
         g.state = skerry::v1::PENDING;
         g.score = 0.0;

@@ -14,6 +14,7 @@
 #include <string>
 #include <vector>
 
+#include "common/child_recipe.h"
 #include "common/sample_recipe.h"
 #include "skerry/v1/genome.pb.h"
 
@@ -42,6 +43,13 @@ struct GenomeRecord {
   // builds them from the recipe and its generation's slot 0
   // (engine::SampleGenes, strategy.h); the store stores the recipe alone.
   std::optional<SampleRecipe> recipe;
+  // A GA genome's recipe (common/child_recipe.h), set by the breeder when the
+  // run keeps recipes (KeyframeInterval(spec) > 1, common/spec.h). The store
+  // keeps the recipe, with the genes too when `keyframe`; reading the genome
+  // gives both, the genes rebuilt from its ancestors when they were not
+  // kept (store/replay.h). In the engine's memory such a genome has genes.
+  std::optional<ChildRecipe> child_recipe;
+  bool keyframe = false;
   double score = 0.0;
   skerry::v1::EvalState state = skerry::v1::PENDING;
   uint32_t attempts = 0;

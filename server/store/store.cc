@@ -11,6 +11,7 @@
 #include "absl/container/flat_hash_map.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "common/child_recipe.h"
 #include "common/genes.h"
 #include "common/sample_recipe.h"
 #include "common/sha256.h"
@@ -354,7 +355,20 @@ absl::StatusOr<GenomeRecord> ReadGenome(const Statement& s) {
   g.parent_a = s.ColumnIsNull(6) ? 0 : s.ColumnInt(6);
   g.parent_b = s.ColumnIsNull(7) ? 0 : s.ColumnInt(7);
   const std::string blob = s.ColumnBlob(8);
-  if (IsRecipe(blob)) {
+  if (IsChildRecipe(blob)) {
+    // A GA genome kept as its recipe (with its genes when a keyframe):
+    // RebuildChildren makes the genes of the others.
+    absl::StatusOr<UnpackedChild> child = UnpackChildRecipe(blob);
+    if (!child.ok()) {
+      return absl::DataLossError(
+          absl::StrCat("genome ", g.id, ": ", child.status().message()));
+    }
+    g.child_recipe = child->recipe;
+    if (child->genes.has_value()) {
+      g.genes = *std::move(child->genes);
+      g.keyframe = true;
+    }
+  } else if (IsRecipe(blob)) {
     // A natural ES sample: RebuildSamples makes its genes.
     absl::StatusOr<SampleRecipe> recipe = UnpackRecipe(blob);
     if (!recipe.ok()) {
@@ -400,6 +414,56 @@ absl::StatusOr<std::string> SampleBytes(
                           BuildSample(r, it->second));
   return Float64Bytes(PackGenes(genes));
 }
+
+// The genes of the GA genomes kept as recipes that the digest reads, in
+// (island, generation, slot) order: each is built from its parents, held
+// here for the island's newest two generations (an elite's or a child's
+// parents are in the generation before it); a migrant's parent, of another
+// island, is replayed from its own ancestry (Store::RebuildChildren).
+class DigestChildren {
+ public:
+  absl::StatusOr<std::string> Bytes(Connection* conn, int64_t id,
+                                    const std::string& blob, int64_t parent_a,
+                                    int64_t parent_b, uint32_t island,
+                                    uint32_t generation) {
+    if (island != island_ || generation != generation_)
+      Advance(island, generation);
+    GenomeRecord g;
+    g.id = id;
+    g.parent_a = parent_a;
+    g.parent_b = parent_b;
+    SKERRY_ASSIGN_OR_RETURN(UnpackedChild child, UnpackChildRecipe(blob));
+    g.child_recipe = child.recipe;
+    if (child.genes.has_value()) g.genes = *std::move(child.genes);
+    std::vector<GenomeRecord> one = {std::move(g)};
+    SKERRY_RETURN_IF_ERROR(Store::RebuildChildren(conn, &one, &known_));
+    auto genes =
+        std::make_shared<const std::vector<double>>(std::move(one[0].genes));
+    known_[id] = genes;
+    newest_.push_back(id);
+    return Float64Bytes(PackGenes(*genes));
+  }
+
+ private:
+  void Advance(uint32_t island, uint32_t generation) {
+    for (int64_t id : older_) known_.erase(id);
+    older_.clear();
+    if (island == island_ && generation == generation_ + 1) {
+      older_.swap(newest_);
+    } else {
+      for (int64_t id : newest_) known_.erase(id);
+      newest_.clear();
+    }
+    island_ = island;
+    generation_ = generation;
+  }
+
+  uint32_t island_ = 0;
+  uint32_t generation_ = 0;
+  GeneCache known_;
+  std::vector<int64_t> newest_;  // ids of generation_'s genomes held
+  std::vector<int64_t> older_;   // ids of generation_ - 1's
+};
 
 }  // namespace
 
@@ -749,8 +813,14 @@ absl::Status Store::InsertGenomes(std::vector<GenomeRecord>* genomes) {
     ins.BindInt(6, g.origin);
     ins.BindIdOrNull(7, g.parent_a);
     ins.BindIdOrNull(8, g.parent_b);
-    ins.BindBlob(
-        9, g.recipe.has_value() ? PackRecipe(*g.recipe) : PackGenes(g.genes));
+    if (g.recipe.has_value()) {
+      ins.BindBlob(9, PackRecipe(*g.recipe));
+    } else if (g.child_recipe.has_value()) {
+      ins.BindBlob(9, g.keyframe ? PackChildRecipe(*g.child_recipe, g.genes)
+                                 : PackChildRecipe(*g.child_recipe));
+    } else {
+      ins.BindBlob(9, PackGenes(g.genes));
+    }
     if (g.state == skerry::v1::PENDING) {
       ins.BindNull(10);
     } else {
@@ -1031,6 +1101,20 @@ absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
     upd.BindInt(3, c.run_id);
     SKERRY_RETURN_IF_ERROR(upd.Run());
   }
+  if (c.champion_genome != nullptr && c.champion_genome->child_recipe) {
+    // The champion kept as its recipe becomes a keyframe: its recipe and
+    // then its genes (common/child_recipe.h), so that exporting or
+    // validating it replays nothing.
+    SKERRY_ASSIGN_OR_RETURN(
+        auto keep,
+        conn_->PrepareCached(absl::StrCat(
+            "UPDATE genomes SET genes = ?2 WHERE id = ?1 AND length(genes) = ",
+            kChildRecipeBytes, " AND substr(genes, 1, 1) = x'03'")));
+    keep.BindInt(1, c.champion_genome->id);
+    keep.BindBlob(2, PackChildRecipe(*c.champion_genome->child_recipe,
+                                     c.champion_genome->genes));
+    SKERRY_RETURN_IF_ERROR(keep.Run());
+  }
   if (c.validate.has_value()) {
     SKERRY_RETURN_IF_ERROR(RequestValidationLocked(*c.validate).status());
   }
@@ -1304,7 +1388,72 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Connection* conn,
     out.push_back(std::move(g));
   }
   SKERRY_RETURN_IF_ERROR(RebuildSamples(conn, &out));
+  SKERRY_RETURN_IF_ERROR(RebuildChildren(conn, &out));
   return out;
+}
+
+absl::Status Store::RebuildChildren(Connection* conn,
+                                    std::vector<GenomeRecord>* genomes,
+                                    const GeneCache* known) {
+  bool any = false;
+  for (const GenomeRecord& g : *genomes) {
+    any = any || (g.child_recipe.has_value() && g.genes.empty());
+  }
+  if (!any) return absl::OkStatus();
+  SKERRY_ASSIGN_OR_RETURN(Statement by_id, conn->PrepareCached(absl::StrCat(
+                                               "SELECT ", GenomeColumns(),
+                                               " FROM genomes WHERE id = ?")));
+  const GenomeReader read =
+      [&by_id](int64_t id) -> absl::StatusOr<std::optional<GenomeRecord>> {
+    by_id.Reset();
+    by_id.BindInt(1, id);
+    SKERRY_ASSIGN_OR_RETURN(bool row, by_id.Step());
+    if (!row) return std::optional<GenomeRecord>();
+    SKERRY_ASSIGN_OR_RETURN(GenomeRecord g, ReadGenome(by_id));
+    return std::optional<GenomeRecord>(std::move(g));
+  };
+  return store::RebuildChildren(read, genomes, known);
+}
+
+absl::StatusOr<std::vector<std::string>> Store::CheckKeyframes(Connection* conn,
+                                                               int64_t run_id,
+                                                               int sample) {
+  SKERRY_ASSIGN_OR_RETURN(
+      Statement s, conn->Prepare(absl::StrCat(
+                       "SELECT ", GenomeColumns(),
+                       " FROM genomes WHERE run_id = ? AND length(genes) > ",
+                       kChildRecipeBytes,
+                       " AND substr(genes, 1, 1) = x'03' "
+                       "ORDER BY generation, island, slot LIMIT ?")));
+  s.BindInt(1, run_id);
+  s.BindInt(2, sample);
+  std::vector<std::string> problems;
+  std::vector<GenomeRecord> kept;
+  while (true) {
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (!row) break;
+    absl::StatusOr<GenomeRecord> g = ReadGenome(s);
+    if (!g.ok()) {
+      problems.push_back(std::string(g.status().message()));
+      continue;
+    }
+    kept.push_back(*std::move(g));
+  }
+  std::vector<GenomeRecord> rebuilt = kept;
+  for (GenomeRecord& g : rebuilt) std::vector<double>().swap(g.genes);
+  if (absl::Status r = RebuildChildren(conn, &rebuilt); !r.ok()) {
+    problems.push_back(std::string(r.message()));
+    return problems;
+  }
+  for (size_t i = 0; i < kept.size(); ++i) {
+    if (rebuilt[i].genes != kept[i].genes) {
+      problems.push_back(absl::StrCat(
+          "island ", kept[i].island, " generation ", kept[i].generation,
+          " slot ", kept[i].slot, " genome ", kept[i].id,
+          ": replaying its recipe does not give its stored genes"));
+    }
+  }
+  return problems;
 }
 
 absl::Status Store::RebuildSamples(Connection* conn,
@@ -1355,8 +1504,7 @@ absl::Status Store::RebuildSamples(Connection* conn,
 }
 
 absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
-    int64_t run_id, uint32_t island, uint32_t generation,
-    bool rebuild_samples) {
+    int64_t run_id, uint32_t island, uint32_t generation, Genes genes) {
   SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
@@ -1367,13 +1515,16 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
   s.BindInt(1, run_id);
   s.BindInt(2, island);
   s.BindInt(3, generation);
-  if (rebuild_samples) return QueryGenomes(reader.get(), &s);
+  if (genes == Genes::kAll) return QueryGenomes(reader.get(), &s);
   std::vector<GenomeRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) break;
     SKERRY_ASSIGN_OR_RETURN(GenomeRecord g, ReadGenome(s));
     out.push_back(std::move(g));
+  }
+  if (genes == Genes::kNotSamples) {
+    SKERRY_RETURN_IF_ERROR(RebuildChildren(reader.get(), &out));
   }
   return out;
 }
@@ -1515,7 +1666,8 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
       reader->PrepareCached(absl::StrCat(
           "SELECT g.island, g.generation, g.slot, g.origin, pa.island, "
           "pa.generation, pa.slot, pb.island, pb.generation, pb.slot, g.genes, "
-          "g.eval_state, g.score, g.ok, g.id, g.origin, g.parent_a FROM "
+          "g.eval_state, g.score, g.ok, g.id, g.origin, g.parent_a, "
+          "g.parent_b FROM "
           "(SELECT *, ",
           SumMatches(kGenomeSumColumns),
           " AS ok FROM genomes WHERE run_id = ?1) g "
@@ -1526,6 +1678,7 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
   Sha256 h;
   Digest d;
   absl::flat_hash_map<int64_t, std::vector<double>> centres;
+  DigestChildren children;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) break;
@@ -1551,9 +1704,14 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
       if (c.ok()) centres[s.ColumnInt(14)] = *std::move(c);
     }
     absl::StatusOr<std::string> genes =
-        IsRecipe(blob) ? SampleBytes(reader.get(), s.ColumnInt(14), blob,
-                                     s.ColumnInt(16), &centres)
-                       : Float64Bytes(blob);
+        IsChildRecipe(blob)
+            ? children.Bytes(reader.get(), s.ColumnInt(14), blob,
+                             s.ColumnInt(16), s.ColumnInt(17),
+                             static_cast<uint32_t>(s.ColumnInt(0)),
+                             static_cast<uint32_t>(s.ColumnInt(1)))
+        : IsRecipe(blob) ? SampleBytes(reader.get(), s.ColumnInt(14), blob,
+                                       s.ColumnInt(16), &centres)
+                         : Float64Bytes(blob);
     if (!genes.ok()) {
       return DamagedGenome(run_id, static_cast<uint32_t>(s.ColumnInt(0)),
                            static_cast<uint32_t>(s.ColumnInt(1)),

@@ -142,6 +142,7 @@
 #include "server/store/access_records.h"
 #include "server/store/read_pool.h"
 #include "server/store/records.h"
+#include "server/store/replay.h"
 #include "server/store/series_records.h"
 #include "server/store/sqlite.h"
 #include "skerry/v1/genome.pb.h"
@@ -251,6 +252,9 @@ struct GenerationCommit {
   std::vector<GenomeRecord>* next = nullptr;
   // The run's best so far, when it changed.
   std::optional<std::pair<int64_t, double>> champion;
+  // The new champion, with its genes, when it is a GA genome kept as its
+  // recipe alone: it is kept whole from now on (a keyframe).
+  const GenomeRecord* champion_genome = nullptr;
   // Set when this generation reached the target score: the run's stop
   // generation becomes the smaller of this and any stored one.
   std::optional<uint32_t> stop_generation;
@@ -400,12 +404,21 @@ class Store {
   // Each island's stored strategy state (serialised StrategyState), by island.
   absl::StatusOr<std::map<uint32_t, std::string>> GetStrategyStates(
       int64_t run_id);
-  // A generation in slot order. `rebuild_samples` false: natural ES samples
-  // come as their recipes alone, with no genes (records.h), as the engine
-  // holds them; rebuilding them costs a draw per gene.
+  // Which genes a generation is read with.
+  enum class Genes {
+    kAll,  // every genome's
+    // Natural ES samples come as their recipes alone, with no genes
+    // (records.h), as the engine holds them: rebuilding them costs a draw
+    // per gene. GA genomes kept as recipes are rebuilt (replay.h).
+    kNotSamples,
+    // Only what is stored whole (the scores and links are wanted, not the
+    // genes): nothing is rebuilt.
+    kStored,
+  };
+  // A generation in slot order.
   absl::StatusOr<std::vector<GenomeRecord>> GetGeneration(
       int64_t run_id, uint32_t island, uint32_t generation,
-      bool rebuild_samples = true);
+      Genes genes = Genes::kAll);
   absl::StatusOr<GenomeRecord> GetGenome(int64_t genome_id);
   // Statistics in (island, generation) order; all islands when island is empty.
   absl::StatusOr<std::vector<StatsRecord>> GetStats(
@@ -556,6 +569,19 @@ class Store {
   // genome is missing or not a distribution's.
   static absl::Status RebuildSamples(Connection* conn,
                                      std::vector<GenomeRecord>* genomes);
+  // Gives every GA genome kept as its recipe its genes, replayed from its
+  // ancestry read on `conn` (replay.h); `known`: genes already at hand.
+  static absl::Status RebuildChildren(Connection* conn,
+                                      std::vector<GenomeRecord>* genomes,
+                                      const GeneCache* known = nullptr);
+  // Rebuilds up to `sample` of the run's keyframes (GA genomes kept whole
+  // with their recipe) from their recipes and ancestry, as if their genes
+  // were not kept, and describes each one whose rebuilt genes differ from the
+  // stored ones or that cannot be rebuilt (what `--check` reports). The
+  // first keyframes in (generation, island, slot) order: their ancestry is
+  // the shortest.
+  static absl::StatusOr<std::vector<std::string>> CheckKeyframes(
+      Connection* conn, int64_t run_id, int sample);
 
  private:
   Store(std::string path, std::unique_ptr<Connection> conn)

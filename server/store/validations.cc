@@ -2,6 +2,7 @@
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "common/child_recipe.h"
 #include "common/genes.h"
 #include "common/sample_recipe.h"
 #include "common/status_macros.h"
@@ -64,6 +65,23 @@ absl::StatusOr<std::vector<ValidationRecord>> Store::QueryValidations(
       one.front().parent_a = s->ColumnInt(19);
       one.front().recipe = *recipe;
       SKERRY_RETURN_IF_ERROR(RebuildSamples(conn_.get(), &one));
+      r.genes = std::move(one.front().genes);
+    } else if (with_genes && IsChildRecipe(s->ColumnBlob(18))) {
+      // A GA genome kept as its recipe: replayed from its ancestry.
+      absl::StatusOr<UnpackedChild> child =
+          UnpackChildRecipe(s->ColumnBlob(18));
+      if (!child.ok()) {
+        return absl::DataLossError(
+            absl::StrCat("genome ", r.genome_id,
+                         ": stored recipe: ", child.status().message()));
+      }
+      std::vector<GenomeRecord> one(1);
+      one.front().id = r.genome_id;
+      one.front().parent_a = s->ColumnIsNull(19) ? 0 : s->ColumnInt(19);
+      one.front().parent_b = s->ColumnIsNull(20) ? 0 : s->ColumnInt(20);
+      one.front().child_recipe = child->recipe;
+      if (child->genes.has_value()) one.front().genes = *child->genes;
+      SKERRY_RETURN_IF_ERROR(RebuildChildren(conn_.get(), &one));
       r.genes = std::move(one.front().genes);
     } else if (with_genes) {
       absl::StatusOr<std::vector<double>> genes =
@@ -187,9 +205,10 @@ absl::Status Store::ApplyValidationsLocked(
 absl::StatusOr<std::vector<ValidationRecord>> Store::PendingValidations() {
   absl::MutexLock l(&mu_);
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat(
-                  "SELECT ", kValidationColumns, ", g.genes, g.parent_a",
-                  kValidationFrom, " WHERE v.state = 1 ORDER BY v.id")));
+      auto s,
+      conn_->Prepare(absl::StrCat(
+          "SELECT ", kValidationColumns, ", g.genes, g.parent_a, g.parent_b",
+          kValidationFrom, " WHERE v.state = 1 ORDER BY v.id")));
   return QueryValidations(&s, true);
 }
 

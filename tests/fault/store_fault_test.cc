@@ -79,7 +79,8 @@ NewRun MakeRun(uint32_t islands) {
   n.run.state = skerry::v1::RUNNING;
   n.run.created_ms = n.run.updated_ms = n.run.started_ms = kNowMs;
   for (uint32_t i = 0; i < islands; ++i) {
-    for (GenomeRecord& g : engine::Seed(n.run.spec, i)) {
+    std::vector<GenomeRecord> seeded = engine::Seed(n.run.spec, i).value();
+    for (GenomeRecord& g : seeded) {
       n.genomes.push_back(std::move(g));
     }
   }

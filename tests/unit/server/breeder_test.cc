@@ -8,7 +8,9 @@
 #include <set>
 #include <vector>
 
+#include "absl/container/flat_hash_map.h"
 #include "absl/strings/str_cat.h"
+#include "common/child_recipe.h"
 #include "common/spec.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
@@ -18,6 +20,11 @@ namespace {
 
 using skerry::v1::RunSpec;
 using ::testing::HasSubstr;
+
+// Generation 0 of a spec the test knows is valid.
+std::vector<GenomeRecord> Seeded(const RunSpec& spec, uint32_t island) {
+  return Seed(spec, island).value();
+}
 
 constexpr double kInitLower = -1.0;
 constexpr double kInitUpper = 2.0;
@@ -108,7 +115,7 @@ std::vector<GenomeRecord> MustBreed(
 
 TEST(SeedTest, MakesPopulationSizeGenomesInTheInitialRange) {
   const RunSpec spec = SmallSpec();
-  const std::vector<GenomeRecord> gen = Seed(spec, 1);
+  const std::vector<GenomeRecord> gen = Seeded(spec, 1);
   ASSERT_EQ(gen.size(), 20u);
   for (uint32_t s = 0; s < gen.size(); ++s) {
     SCOPED_TRACE(absl::StrCat("slot ", s));
@@ -133,15 +140,15 @@ TEST(SeedTest, HonoursPerIslandPopulationSizes) {
   RunSpec spec = SmallSpec();
   spec.mutable_islands()->add_population_sizes(6);
   spec.mutable_islands()->add_population_sizes(9);
-  EXPECT_EQ(Seed(spec, 0).size(), 6u);
-  EXPECT_EQ(Seed(spec, 1).size(), 9u);
+  EXPECT_EQ(Seeded(spec, 0).size(), 6u);
+  EXPECT_EQ(Seeded(spec, 1).size(), 9u);
 }
 
 TEST(SeedTest, SameSpecAndSeedGiveIdenticalGenesOtherSeedsDiffer) {
-  ExpectSameGenomes(Seed(SmallSpec(17), 0), Seed(SmallSpec(17), 0));
-  const std::vector<GenomeRecord> a = Seed(SmallSpec(17), 0);
-  const std::vector<GenomeRecord> b = Seed(SmallSpec(18), 0);
-  const std::vector<GenomeRecord> other_island = Seed(SmallSpec(17), 1);
+  ExpectSameGenomes(Seeded(SmallSpec(17), 0), Seeded(SmallSpec(17), 0));
+  const std::vector<GenomeRecord> a = Seeded(SmallSpec(17), 0);
+  const std::vector<GenomeRecord> b = Seeded(SmallSpec(18), 0);
+  const std::vector<GenomeRecord> other_island = Seeded(SmallSpec(17), 1);
   for (size_t s = 0; s < a.size(); ++s) {
     EXPECT_NE(a[s].genes, b[s].genes) << "slot " << s;
     EXPECT_NE(a[s].genes, other_island[s].genes) << "slot " << s;
@@ -152,7 +159,7 @@ TEST(SeedTest, SameSpecAndSeedGiveIdenticalGenesOtherSeedsDiffer) {
 
 TEST(BreedTest, LayoutIsElitesThenOffspringThenImmigrants) {
   const RunSpec spec = SmallSpec();
-  const std::vector<GenomeRecord> current = Evaluated(Seed(spec, 0), 100);
+  const std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
   const std::vector<int64_t> best = IdsBestFirst(current);
   std::set<int64_t> previous;
   for (const GenomeRecord& g : current) previous.insert(g.id);
@@ -210,7 +217,7 @@ TEST(BreedTest, LayoutIsElitesThenOffspringThenImmigrants) {
 TEST(BreedTest, MaximisingElitesAreTheHighestScores) {
   RunSpec spec = SmallSpec();
   spec.set_objective(skerry::v1::MAXIMIZE);
-  const std::vector<GenomeRecord> current = Evaluated(Seed(spec, 0), 100);
+  const std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
   std::vector<int64_t> best = IdsBestFirst(current);
   std::reverse(best.begin(), best.end());
   const std::vector<GenomeRecord> next = MustBreed(spec, 0, current);
@@ -221,7 +228,7 @@ TEST(BreedTest, MaximisingElitesAreTheHighestScores) {
 
 TEST(BreedTest, FailedGenomesAreNeverElites) {
   const RunSpec spec = SmallSpec();
-  std::vector<GenomeRecord> current = Evaluated(Seed(spec, 0), 100);
+  std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
   // The two genomes with the best scores failed: their scores mean nothing.
   const std::vector<int64_t> best = IdsBestFirst(current);
   current[best[0] - 100].state = skerry::v1::FAILED;
@@ -235,7 +242,7 @@ TEST(BreedTest, FailedGenomesAreNeverElites) {
 TEST(BreedTest, NoisyEvaluatorReEvaluatesElites) {
   RunSpec spec = SmallSpec();
   spec.mutable_evaluator()->set_noisy(true);
-  const std::vector<GenomeRecord> current = Evaluated(Seed(spec, 0), 100);
+  const std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
   const std::vector<GenomeRecord> next = MustBreed(spec, 0, current);
   ASSERT_GE(next.size(), 2u);
   EXPECT_EQ(next[0].origin, skerry::v1::ELITE);
@@ -244,12 +251,12 @@ TEST(BreedTest, NoisyEvaluatorReEvaluatesElites) {
 
 TEST(BreedTest, IsAPureFunctionOfItsInputs) {
   const RunSpec spec = SmallSpec();
-  const std::vector<GenomeRecord> current = Evaluated(Seed(spec, 0), 100);
+  const std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
   const std::vector<GenomeRecord> first = MustBreed(spec, 0, current);
   // Other work in between (another island, other seeds) changes nothing.
-  const std::vector<GenomeRecord> other = Evaluated(Seed(spec, 1), 200);
+  const std::vector<GenomeRecord> other = Evaluated(Seeded(spec, 1), 200);
   MustBreed(spec, 1, other);
-  Seed(SmallSpec(99), 0);
+  Seeded(SmallSpec(99), 0);
   const std::vector<GenomeRecord> second = MustBreed(spec, 0, current);
   ExpectSameGenomes(first, second);
   // A copy of the inputs gives the same.
@@ -259,7 +266,7 @@ TEST(BreedTest, IsAPureFunctionOfItsInputs) {
 
 TEST(BreedTest, DifferentSeedOrIslandGivesDifferentOffspring) {
   const RunSpec spec = SmallSpec(17);
-  const std::vector<GenomeRecord> current = Evaluated(Seed(spec, 0), 100);
+  const std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
   const std::vector<GenomeRecord> a = MustBreed(spec, 0, current);
   const std::vector<GenomeRecord> b = MustBreed(SmallSpec(18), 0, current);
   std::vector<GenomeRecord> as_island1 = current;
@@ -280,7 +287,7 @@ TEST(BreedTest, RawScalingWithNegativeScoreIsInvalidArgumentNamingGeneration) {
   spec.set_objective(skerry::v1::MAXIMIZE);
   spec.mutable_ga()->mutable_selection()->set_method(skerry::v1::ROULETTE);
   spec.mutable_ga()->mutable_selection()->set_scaling(skerry::v1::RAW);
-  std::vector<GenomeRecord> current = Evaluated(Seed(spec, 0), 100);
+  std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
   current[3].score = -1.0;
   absl::StatusOr<std::vector<GenomeRecord>> bred = Breed(spec, 0, current, {});
   ASSERT_FALSE(bred.ok());
@@ -296,8 +303,8 @@ class MigrationTest : public ::testing::Test {
   // are better than anything on island 0 so that selection wants them.
   void Build(uint64_t seed) {
     spec_ = SmallSpec(seed);
-    own_ = Evaluated(Seed(spec_, 0), 100);
-    source_ = Evaluated(Seed(spec_, 1), 500);
+    own_ = Evaluated(Seeded(spec_, 0), 100);
+    source_ = Evaluated(Seeded(spec_, 1), 500);
     source_[4].score = -2.0;  // not a sphere value: a marker, best by far
     source_[7].score = -1.0;
     migrants_ = ChooseEmigrants(spec_, source_, 0, 2);
@@ -384,7 +391,7 @@ TEST_F(MigrationTest, EmigrateBestPicksTheBestInOrder) {
 TEST(ChooseEmigrantsTest, BestUnderMaximiseIsTheHighestAndSkipsFailed) {
   RunSpec spec = SmallSpec();
   spec.set_objective(skerry::v1::MAXIMIZE);
-  std::vector<GenomeRecord> source = Evaluated(Seed(spec, 1), 500);
+  std::vector<GenomeRecord> source = Evaluated(Seeded(spec, 1), 500);
   for (GenomeRecord& g : source) g.score = g.slot;  // slot 19 is the best
   source[19].state = skerry::v1::FAILED;
   std::vector<const GenomeRecord*> got = ChooseEmigrants(spec, source, 0, 3);
@@ -400,7 +407,7 @@ TEST(ChooseEmigrantsTest, RandomAndTournamentChoicesAreDistinctAndRepeatable) {
     SCOPED_TRACE(skerry::v1::EmigrantChoice_Name(choice));
     RunSpec spec = SmallSpec();
     spec.mutable_islands()->set_emigrants(choice);
-    const std::vector<GenomeRecord> source = Evaluated(Seed(spec, 1), 500);
+    const std::vector<GenomeRecord> source = Evaluated(Seeded(spec, 1), 500);
     std::vector<const GenomeRecord*> a = ChooseEmigrants(spec, source, 0, 5);
     std::vector<const GenomeRecord*> b = ChooseEmigrants(spec, source, 0, 5);
     EXPECT_EQ(a, b);
@@ -496,6 +503,69 @@ TEST(BetterTest, FollowsTheObjectiveStrictly) {
   spec.set_objective(skerry::v1::MAXIMIZE);
   EXPECT_TRUE(Better(spec, 2.0, 1.0));
   EXPECT_FALSE(Better(spec, 1.0, 1.0));
+}
+
+// ---- Recipes (common/child_recipe.h) ----
+
+TEST(BreedRecipeTest, EveryGenomeRebuildsFromItsRecipeAndItsParentsAlone) {
+  RunSpec spec = SmallSpec();
+  spec.mutable_ga()->set_keyframe_interval(4);
+  std::vector<GenomeRecord> current = Evaluated(Seeded(spec, 0), 100);
+  const std::vector<GenomeRecord> source = Evaluated(Seeded(spec, 1), 500);
+  std::vector<const GenomeRecord*> migrants = {&source[3], &source[7]};
+  absl::flat_hash_map<int64_t, const GenomeRecord*> by_id;
+  for (const GenomeRecord& g : current) by_id[g.id] = &g;
+  for (const GenomeRecord& g : source) by_id[g.id] = &g;
+  for (const GenomeRecord& g : current) {
+    ASSERT_TRUE(g.child_recipe.has_value());
+    EXPECT_EQ(g.child_recipe->kind, ChildKind::kSeed);
+    EXPECT_FALSE(g.keyframe);  // a seed replays from its stream alone
+    EXPECT_EQ(*BuildChild(*g.child_recipe, {}, {}), g.genes);
+  }
+  // Generation 4 is a keyframe: every genome with parents keeps its genes.
+  for (GenomeRecord& g : current) g.generation = 3;
+  const std::vector<GenomeRecord> next = MustBreed(spec, 0, current, migrants);
+  ASSERT_EQ(next.size(), 20u);
+  int kinds[6] = {};
+  for (const GenomeRecord& g : next) {
+    ASSERT_TRUE(g.child_recipe.has_value()) << g.slot;
+    const ChildRecipe& r = *g.child_recipe;
+    ++kinds[static_cast<int>(r.kind)];
+    EXPECT_EQ(r.slot, g.slot);
+    EXPECT_EQ(r.generation, 4u);
+    EXPECT_EQ(g.keyframe, ParentsOf(r.kind) > 0) << g.slot;
+    const std::vector<double>& a =
+        g.parent_a != 0 ? by_id.at(g.parent_a)->genes : std::vector<double>();
+    const std::vector<double>& b =
+        g.parent_b != 0 ? by_id.at(g.parent_b)->genes : std::vector<double>();
+    absl::StatusOr<std::vector<double>> rebuilt = BuildChild(r, a, b);
+    ASSERT_TRUE(rebuilt.ok()) << rebuilt.status();
+    EXPECT_EQ(*rebuilt, g.genes) << "slot " << g.slot;
+  }
+  EXPECT_EQ(kinds[static_cast<int>(ChildKind::kCopy)],
+            4);  // 2 elites, 2 migrants
+  EXPECT_EQ(kinds[static_cast<int>(ChildKind::kImmigrant)], 2);
+  EXPECT_GT(kinds[static_cast<int>(ChildKind::kCrossover)], 0);
+  EXPECT_GT(kinds[static_cast<int>(ChildKind::kMutation)], 0);
+}
+
+TEST(BreedRecipeTest, AnIntervalOfOneKeepsNoRecipeAndTheSameGenes) {
+  RunSpec whole = SmallSpec();
+  whole.mutable_ga()->set_keyframe_interval(1);
+  RunSpec recipes = SmallSpec();
+  recipes.mutable_ga()->set_keyframe_interval(7);
+  const std::vector<GenomeRecord> a =
+      MustBreed(whole, 0, Evaluated(Seeded(whole, 0), 100));
+  const std::vector<GenomeRecord> b =
+      MustBreed(recipes, 0, Evaluated(Seeded(recipes, 0), 100));
+  ExpectSameGenomes(a, b);
+  for (const GenomeRecord& g : a) EXPECT_FALSE(g.child_recipe.has_value());
+  for (const GenomeRecord& g : b) EXPECT_TRUE(g.child_recipe.has_value());
+  // The default: whole below 1,000 genes, recipes from there up.
+  EXPECT_EQ(KeyframeInterval(SmallSpec()), 1u);
+  RunSpec wide = SmallSpec();
+  wide.set_genome_length(1000);
+  EXPECT_EQ(KeyframeInterval(wide), 100u);
 }
 
 TEST(EvalSeedTest, IsAFunctionOfTheNaturalKey) {

@@ -22,6 +22,11 @@ namespace {
 
 using skerry::v1::RunSpec;
 
+// Generation 0 of a spec the test knows is valid.
+std::vector<GenomeRecord> Seeded(const RunSpec& spec, uint32_t island) {
+  return Seed(spec, island).value();
+}
+
 RunSpec GaSpec() {
   RunSpec spec;
   spec.set_name("strategy-test");
@@ -78,10 +83,10 @@ TEST(GaStrategyTest, MakesTheBreedersGenerationsBitForBit) {
   Strategy& ga = **made;
   absl::StatusOr<std::vector<GenomeRecord>> g0 = ga.Start();
   ASSERT_TRUE(g0.ok());
-  ExpectSameGeneration(*g0, Seed(spec, 1));
+  ExpectSameGeneration(*g0, Seeded(spec, 1));
 
   std::vector<GenomeRecord> current = Evaluated(*g0, 100);
-  const std::vector<GenomeRecord> other = Evaluated(Seed(spec, 0), 1);
+  const std::vector<GenomeRecord> other = Evaluated(Seeded(spec, 0), 1);
   for (int step = 0; step < 4; ++step) {
     std::vector<const GenomeRecord*> migrants = {&other[3], &other[5]};
     ASSERT_TRUE(ga.Tell(current, migrants).ok());
