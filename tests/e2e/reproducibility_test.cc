@@ -166,6 +166,36 @@ TEST_F(ReproducibilityTest, EveryStrategysDigestIsTheSameWhateverTheFleet) {
   }
 }
 
+// GA genomes kept as their recipes between keyframes (ga.keyframe_interval,
+// common/child_recipe.h): the run gives the genomes of the same run kept
+// whole, with another fleet, stores a fraction of the bytes, and passes
+// `--check`, which replays a sample of its keyframes.
+TEST_F(ReproducibilityTest, GenomesKeptAsRecipesAreTheGenomesKeptWhole) {
+  const std::string whole = RunOnFleet("whole", 1, 1);
+  ASSERT_EQ(whole.size(), 64u);
+  std::string text = kIslandSpec;
+  text.replace(text.find("ga {"), 4, "ga {\n  keyframe_interval: 4");
+  ASSERT_TRUE(testing::WriteTextFile(spec_, text));
+  EXPECT_EQ(RunOnFleet("recipes", 3, 2), whole) << "3 workers x 2 threads";
+  const std::string& db = db_of_["recipes"];
+  auto count = [&](const std::string& where) {
+    return std::stoi(testing::QueryText(
+        db, absl::StrCat("SELECT count(*) FROM genomes WHERE ", where)));
+  };
+  // Every genome is its recipe (first byte 3, 98 bytes), with its genes
+  // after it at keyframes; none is stored as genes alone.
+  EXPECT_EQ(count("substr(genes, 1, 1) != x'03' OR length(genes) < 98"), 0);
+  // Bred and copied genomes of generations 4, 8 and 12 are keyframes; most
+  // others are the recipe alone (a champion is kept whole too).
+  EXPECT_EQ(count("generation % 4 = 0 AND generation > 0 AND origin IN "
+                  "(2, 3, 4, 6) AND length(genes) = 98"),
+            0);
+  EXPECT_GT(count("length(genes) = 98"), count("1") / 2);
+  CommandResult check =
+      RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_of_["recipes"]});
+  EXPECT_EQ(check.exit_code, 0) << check.output;
+}
+
 // gene_precision FLOAT32, with the GA on three islands and with CMA-ES: the
 // same digest with one worker, three workers of two threads and `skerry
 // local`; every stored genome is the tagged float32 form (1 + 4 bytes a gene)

@@ -48,6 +48,7 @@ ga {
   mutation { rate: 0.2 step: 20 }
   elites: 2
   immigrants: 1
+  KIND
 }
 islands { count: 4 topology: RANDOM random_degree: 2 interval: 4 migrants: 2 }
 stop { max_generations: GENERATIONS }
@@ -332,6 +333,10 @@ INSTANTIATE_TEST_SUITE_P(
         // stores, rounded, is what it breeds from after each
         // restart.
         LoopCase{"ga_float32", kSpec, "", 20, 6, "gene_precision: FLOAT32\n"},
+        // Genomes kept as their recipes between keyframes every 5th
+        // generation: a restarted coordinator replays the generation it
+        // breeds from, and migrants cross islands from replayed ancestry.
+        LoopCase{"ga_recipes", kSpec, "keyframe_interval: 5", 20, 6},
         // The evolution strategies' generations: the samples and the
         // distribution genome.
         LoopCase{"cma_es", kCmaSpec, "cma_es", 11, 8},
