@@ -364,10 +364,7 @@ absl::StatusOr<double> InProcessStrategyRate(const EndToEndOptions& o,
     if (failed) return absl::InternalError("an in-process evaluation failed");
     *evaluations += genomes.size();
     if (g + 1 >= static_cast<uint32_t>(o.generations)) break;
-    if (absl::Status told = (*strategy)->Tell(genomes, {}); !told.ok()) {
-      return told;
-    }
-    gen = (*strategy)->Ask();
+    gen = (*strategy)->TellAndAsk(genomes, {});
   }
   if (!gen.ok()) return gen.status();
   const double secs =

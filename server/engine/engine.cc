@@ -988,9 +988,8 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   std::optional<std::string> saved_state;
   if (!done) {
     before = island.strategy->Save();
-    absl::Status told = island.strategy->Tell(island.current, migrants);
     absl::StatusOr<std::vector<GenomeRecord>> bred =
-        told.ok() ? island.strategy->Ask() : told;
+        island.strategy->TellAndAsk(island.current, migrants);
     if (!bred.ok()) {
       FailRun(run, bred.status());
       return true;

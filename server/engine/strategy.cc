@@ -56,6 +56,21 @@ class GaStrategy : public Strategy {
     return next;
   }
 
+  absl::StatusOr<std::vector<GenomeRecord>> TellAndAsk(
+      absl::Span<const GenomeRecord> completed,
+      absl::Span<const GenomeRecord* const> migrants) override {
+    if (completed.empty()) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("island ", island_, ": told an empty generation"));
+    }
+    completed_.clear();
+    migrants_.clear();
+    absl::StatusOr<std::vector<GenomeRecord>> next =
+        Breed(spec_, island_, completed, migrants);
+    if (next.ok()) generation_ = completed.front().generation + 1;
+    return next;
+  }
+
   skerry::v1::StrategyState Save() const override {
     skerry::v1::StrategyState s;
     s.set_generation(generation_);
@@ -104,6 +119,11 @@ class Float32Strategy : public Strategy {
   }
   absl::StatusOr<std::vector<GenomeRecord>> Ask() override {
     return Rounded(inner_->Ask());
+  }
+  absl::StatusOr<std::vector<GenomeRecord>> TellAndAsk(
+      absl::Span<const GenomeRecord> completed,
+      absl::Span<const GenomeRecord* const> migrants) override {
+    return Rounded(inner_->TellAndAsk(completed, migrants));
   }
   skerry::v1::StrategyState Save() const override { return inner_->Save(); }
   absl::Status Restore(const skerry::v1::StrategyState& state) override {

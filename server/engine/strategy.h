@@ -56,6 +56,19 @@ class Strategy {
   // The next generation, from what the last Tell said.
   virtual absl::StatusOr<std::vector<store::GenomeRecord>> Ask() = 0;
 
+  // Tell, then Ask: what the engine calls. The default is those two calls; a
+  // strategy that would copy the completed generation in Tell only to breed
+  // from it in Ask (the GA) breeds from `completed` directly instead, so
+  // that a generation's genes are not held twice while the next is bred.
+  virtual absl::StatusOr<std::vector<store::GenomeRecord>> TellAndAsk(
+      absl::Span<const store::GenomeRecord> completed,
+      absl::Span<const store::GenomeRecord* const> migrants) {
+    if (absl::Status told = Tell(completed, migrants); !told.ok()) {
+      return told;
+    }
+    return Ask();
+  }
+
   virtual skerry::v1::StrategyState Save() const = 0;
   // InvalidArgument (DataLoss-worthy; the caller says where it came from) when
   // the state is not one this strategy saved.

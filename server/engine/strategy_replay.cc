@@ -169,8 +169,8 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
           }
         }
       }
-      SKERRY_RETURN_IF_ERROR(strategies[i]->Tell(current[i], migrants));
-      SKERRY_ASSIGN_OR_RETURN(made, strategies[i]->Ask());
+      SKERRY_ASSIGN_OR_RETURN(made,
+                              strategies[i]->TellAndAsk(current[i], migrants));
       SKERRY_ASSIGN_OR_RETURN(next[i], store.GetGeneration(run.id, i, h + 1));
       SKERRY_RETURN_IF_ERROR(SameGeneration(run, i, h + 1, made, next[i]));
     }

@@ -96,6 +96,13 @@ TEST(GaStrategyTest, MakesTheBreedersGenerationsBitForBit) {
         Breed(spec, 1, current, migrants);
     ASSERT_TRUE(expected.ok());
     ExpectSameGeneration(*next, *expected);
+    // The engine's call, which breeds from `current` without copying it,
+    // gives the same generation.
+    absl::StatusOr<std::vector<GenomeRecord>> direct =
+        ga.TellAndAsk(current, migrants);
+    ASSERT_TRUE(direct.ok()) << direct.status();
+    ExpectSameGeneration(*direct, *expected);
+    EXPECT_TRUE(absl::IsInvalidArgument(ga.TellAndAsk({}, {}).status()));
     EXPECT_EQ(ga.Save().generation(), current.front().generation + 1);
     current = Evaluated(*next, 1000 * (step + 2));
   }
