@@ -169,7 +169,9 @@ TEST_F(ReproducibilityTest, EveryStrategysDigestIsTheSameWhateverTheFleet) {
 // GA genomes kept as their recipes between keyframes (ga.keyframe_interval,
 // common/child_recipe.h): the run gives the genomes of the same run kept
 // whole, with another fleet, stores a fraction of the bytes, and passes
-// `--check`, which replays a sample of its keyframes.
+// `--check`, which replays a sample of its keyframes; started again, its
+// coordinator gives the champion of the run kept whole, and a backup of it
+// the same digest.
 TEST_F(ReproducibilityTest, GenomesKeptAsRecipesAreTheGenomesKeptWhole) {
   const std::string whole = RunOnFleet("whole", 1, 1);
   ASSERT_EQ(whole.size(), 64u);
@@ -194,6 +196,38 @@ TEST_F(ReproducibilityTest, GenomesKeptAsRecipesAreTheGenomesKeptWhole) {
   CommandResult check =
       RunCommand({SKERRY_COORDINATOR_BIN, "--check", db_of_["recipes"]});
   EXPECT_EQ(check.exit_code, 0) << check.output;
+
+  // A coordinator started again on each store (the recipes' loaded by
+  // replay) gives the same champion, genes included; a one-run backup of the
+  // recipes holds the same genomes and passes --check.
+  auto champion_and_backup = [&](const std::string& name) {
+    absl::StatusOr<testing::StartedCoordinator> c = testing::StartCoordinator(
+        SKERRY_COORDINATOR_BIN, db_of_[name], dir_.File(name + "-again.log"));
+    EXPECT_TRUE(c.ok()) << c.status();
+    if (!c.ok()) return std::string();
+    CommandResult champion =
+        testing::RunCli(SKERRY_CLI_BIN, c->address(), {"champion", "1"});
+    EXPECT_EQ(champion.exit_code, 0) << champion.output;
+    const std::string copy = dir_.File(name + "-backup.db");
+    CommandResult backup = testing::RunCli(SKERRY_CLI_BIN, c->address(),
+                                           {"backup", "1", "--to", copy});
+    EXPECT_EQ(backup.exit_code, 0) << backup.output;
+    CommandResult checked =
+        RunCommand({SKERRY_COORDINATOR_BIN, "--check", copy});
+    EXPECT_EQ(checked.exit_code, 0) << checked.output;
+    return champion.output;
+  };
+  const std::string champion = champion_and_backup("recipes");
+  EXPECT_THAT(champion, ::testing::HasSubstr("genes (6)"));
+  EXPECT_EQ(champion, champion_and_backup("whole"));
+  absl::StatusOr<testing::StartedCoordinator> restored =
+      testing::StartCoordinator(SKERRY_COORDINATOR_BIN,
+                                dir_.File("recipes-backup.db"),
+                                dir_.File("restored.log"));
+  ASSERT_TRUE(restored.ok()) << restored.status();
+  CommandResult digest =
+      testing::RunCli(SKERRY_CLI_BIN, restored->address(), {"digest", "1"});
+  EXPECT_EQ(DigestIn(digest.output), whole) << digest.output;
 }
 
 // gene_precision FLOAT32, with the GA on three islands and with CMA-ES: the
