@@ -2,10 +2,10 @@
 #include "common/child_recipe.h"
 
 #include <cmath>
-#include <cstring>
 
 #include "absl/base/internal/endian.h"
 #include "absl/strings/str_cat.h"
+#include "common/float64_le.h"
 #include "common/genes.h"
 #include "common/random.h"
 #include "common/status_macros.h"
@@ -18,19 +18,6 @@ namespace {
 constexpr uint8_t kFloat32Flag = 1;
 // The longest genome a recipe may name (common/spec.cc's range).
 constexpr uint32_t kMaxLength = 1000000;
-
-void StoreDouble(char* at, double v) {
-  uint64_t bits;
-  std::memcpy(&bits, &v, 8);
-  absl::little_endian::Store64(at, bits);
-}
-
-double LoadDouble(const char* at) {
-  const uint64_t bits = absl::little_endian::Load64(at);
-  double v;
-  std::memcpy(&v, &bits, 8);
-  return v;
-}
 
 absl::Status Bad(absl::string_view what) {
   return absl::InvalidArgumentError(absl::StrCat("genome recipe: ", what));
@@ -172,7 +159,7 @@ std::string PackChildRecipe(const ChildRecipe& r) {
   const double values[8] = {r.crossover_rate, r.blend_alpha, r.mutation_rate,
                             r.mutation_step,  r.lower,       r.upper,
                             r.init_lower,     r.init_upper};
-  for (int i = 0; i < 8; ++i) StoreDouble(p + 28 + 8 * i, values[i]);
+  for (int i = 0; i < 8; ++i) StoreFloat64Le(p + 28 + 8 * i, values[i]);
   return out;
 }
 
@@ -213,7 +200,7 @@ absl::StatusOr<UnpackedChild> UnpackChildRecipe(absl::string_view bytes) {
   double* values[8] = {&r.crossover_rate, &r.blend_alpha, &r.mutation_rate,
                        &r.mutation_step,  &r.lower,       &r.upper,
                        &r.init_lower,     &r.init_upper};
-  for (int i = 0; i < 8; ++i) *values[i] = LoadDouble(p + 28 + 8 * i);
+  for (int i = 0; i < 8; ++i) *values[i] = LoadFloat64Le(p + 28 + 8 * i);
   for (size_t i = 92; i < kChildRecipeBytes; ++i) {
     if (p[i] != 0) return Bad(absl::StrCat("byte ", i, " is not zero"));
   }

@@ -2,10 +2,10 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstring>
 
 #include "absl/base/internal/endian.h"
 #include "absl/strings/str_cat.h"
+#include "common/float64_le.h"
 #include "common/genes.h"
 #include "common/random.h"
 #include "common/status_macros.h"
@@ -15,19 +15,6 @@ namespace {
 
 constexpr uint8_t kMinus = 1;
 constexpr uint8_t kFloat32 = 2;
-
-void StoreDouble(char* at, double v) {
-  uint64_t bits;
-  std::memcpy(&bits, &v, 8);
-  absl::little_endian::Store64(at, bits);
-}
-
-double LoadDouble(const char* at) {
-  const uint64_t bits = absl::little_endian::Load64(at);
-  double v;
-  std::memcpy(&v, &bits, 8);
-  return v;
-}
 
 // What every recipe must be, read from the store or from a task.
 absl::Status CheckRecipe(const SampleRecipe& r) {
@@ -111,9 +98,9 @@ std::string PackRecipe(const SampleRecipe& r) {
   absl::little_endian::Store32(&out[14], r.generation);
   absl::little_endian::Store32(&out[18], r.pair);
   absl::little_endian::Store32(&out[22], r.length);
-  StoreDouble(&out[26], r.sigma);
-  StoreDouble(&out[34], r.lower);
-  StoreDouble(&out[42], r.upper);
+  StoreFloat64Le(&out[26], r.sigma);
+  StoreFloat64Le(&out[34], r.lower);
+  StoreFloat64Le(&out[42], r.upper);
   return out;
 }
 
@@ -142,9 +129,9 @@ absl::StatusOr<SampleRecipe> UnpackRecipe(absl::string_view bytes) {
   r.generation = absl::little_endian::Load32(bytes.data() + 14);
   r.pair = absl::little_endian::Load32(bytes.data() + 18);
   r.length = absl::little_endian::Load32(bytes.data() + 22);
-  r.sigma = LoadDouble(bytes.data() + 26);
-  r.lower = LoadDouble(bytes.data() + 34);
-  r.upper = LoadDouble(bytes.data() + 42);
+  r.sigma = LoadFloat64Le(bytes.data() + 26);
+  r.lower = LoadFloat64Le(bytes.data() + 34);
+  r.upper = LoadFloat64Le(bytes.data() + 42);
   SKERRY_RETURN_IF_ERROR(CheckRecipe(r));
   return r;
 }

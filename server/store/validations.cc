@@ -42,6 +42,42 @@ ValidationRecord ReadValidation(const Statement& s) {
   return r;
 }
 
+// The genes of genome `id` whose stored blob is `blob`: unpacked, or rebuilt
+// when the blob is a recipe (a natural ES sample's, from its distribution
+// genome; a GA genome's, from its ancestry), as every genome read is.
+absl::StatusOr<std::vector<double>> GenesOf(Connection* conn, int64_t id,
+                                            const std::string& blob,
+                                            int64_t parent_a,
+                                            int64_t parent_b) {
+  auto lost = [id](const absl::Status& s) {
+    return absl::DataLossError(
+        absl::StrCat("genome ", id, ": stored genes: ", s.message()));
+  };
+  if (!IsRecipe(blob) && !IsChildRecipe(blob)) {
+    absl::StatusOr<std::vector<double>> genes = UnpackGenes(blob);
+    if (!genes.ok()) return lost(genes.status());
+    return genes;
+  }
+  std::vector<GenomeRecord> one(1);
+  GenomeRecord& g = one.front();
+  g.id = id;
+  g.parent_a = parent_a;
+  g.parent_b = parent_b;
+  if (IsRecipe(blob)) {
+    absl::StatusOr<SampleRecipe> recipe = UnpackRecipe(blob);
+    if (!recipe.ok()) return lost(recipe.status());
+    g.recipe = *recipe;
+    SKERRY_RETURN_IF_ERROR(Store::RebuildSamples(conn, &one));
+  } else {
+    absl::StatusOr<UnpackedChild> child = UnpackChildRecipe(blob);
+    if (!child.ok()) return lost(child.status());
+    g.child_recipe = child->recipe;
+    if (child->genes.has_value()) g.genes = *std::move(child->genes);
+    SKERRY_RETURN_IF_ERROR(Store::RebuildChildren(conn, &one));
+  }
+  return std::move(g.genes);
+}
+
 }  // namespace
 
 absl::StatusOr<std::vector<ValidationRecord>> Store::QueryValidations(
@@ -51,47 +87,11 @@ absl::StatusOr<std::vector<ValidationRecord>> Store::QueryValidations(
     SKERRY_ASSIGN_OR_RETURN(bool row, s->Step());
     if (!row) break;
     ValidationRecord r = ReadValidation(*s);
-    if (with_genes && IsRecipe(s->ColumnBlob(18))) {
-      // A natural ES sample kept as its recipe: rebuilt from its
-      // distribution genome, as every genome read rebuilds it.
-      absl::StatusOr<SampleRecipe> recipe = UnpackRecipe(s->ColumnBlob(18));
-      if (!recipe.ok()) {
-        return absl::DataLossError(
-            absl::StrCat("genome ", r.genome_id,
-                         ": stored recipe: ", recipe.status().message()));
-      }
-      std::vector<GenomeRecord> one(1);
-      one.front().id = r.genome_id;
-      one.front().parent_a = s->ColumnInt(19);
-      one.front().recipe = *recipe;
-      SKERRY_RETURN_IF_ERROR(RebuildSamples(conn_.get(), &one));
-      r.genes = std::move(one.front().genes);
-    } else if (with_genes && IsChildRecipe(s->ColumnBlob(18))) {
-      // A GA genome kept as its recipe: replayed from its ancestry.
-      absl::StatusOr<UnpackedChild> child =
-          UnpackChildRecipe(s->ColumnBlob(18));
-      if (!child.ok()) {
-        return absl::DataLossError(
-            absl::StrCat("genome ", r.genome_id,
-                         ": stored recipe: ", child.status().message()));
-      }
-      std::vector<GenomeRecord> one(1);
-      one.front().id = r.genome_id;
-      one.front().parent_a = s->ColumnIsNull(19) ? 0 : s->ColumnInt(19);
-      one.front().parent_b = s->ColumnIsNull(20) ? 0 : s->ColumnInt(20);
-      one.front().child_recipe = child->recipe;
-      if (child->genes.has_value()) one.front().genes = *child->genes;
-      SKERRY_RETURN_IF_ERROR(RebuildChildren(conn_.get(), &one));
-      r.genes = std::move(one.front().genes);
-    } else if (with_genes) {
-      absl::StatusOr<std::vector<double>> genes =
-          UnpackGenes(s->ColumnBlob(18));
-      if (!genes.ok()) {
-        return absl::DataLossError(
-            absl::StrCat("genome ", r.genome_id,
-                         ": stored genes: ", genes.status().message()));
-      }
-      r.genes = *std::move(genes);
+    if (with_genes) {
+      SKERRY_ASSIGN_OR_RETURN(
+          r.genes, GenesOf(conn_.get(), r.genome_id, s->ColumnBlob(18),
+                           s->ColumnIsNull(19) ? 0 : s->ColumnInt(19),
+                           s->ColumnIsNull(20) ? 0 : s->ColumnInt(20)));
     }
     out.push_back(std::move(r));
   }

@@ -248,6 +248,29 @@ TEST_F(RecipeStoreTest, CheckReplaysKeyframesAndNamesOneWhoseGenesDiffer) {
           ": replaying its recipe does not give its stored genes")));
 }
 
+TEST_F(RecipeStoreTest, APendingValidationOfAGenomeKeptAsItsRecipeHasItsGenes) {
+  StoreRun(RecipeSpec(5));
+  // A bred child of generation 6, kept as its recipe alone (not a champion).
+  const GenomeRecord* child = nullptr;
+  for (const GenomeRecord& r : bred_[6]) {
+    const bool champion = std::find(champions_.begin(), champions_.end(),
+                                    r.id) != champions_.end();
+    if (r.origin == skerry::v1::CROSSOVER && !champion) child = &r;
+  }
+  ASSERT_NE(child, nullptr);
+  ValidationRequest request;
+  request.genome_id = child->id;
+  request.cases = 3;
+  request.requested_by = "alice";
+  request.now_ms = 2000;
+  ASSERT_TRUE(store_->RequestValidation(request).ok());
+  absl::StatusOr<std::vector<ValidationRecord>> pending =
+      store_->PendingValidations();
+  ASSERT_TRUE(pending.ok()) << pending.status();
+  ASSERT_EQ(pending->size(), 1u);
+  EXPECT_EQ(pending->front().genes, child->genes);
+}
+
 TEST_F(RecipeStoreTest, AMissingAncestorIsDataLossNamingTheGenomeAndItsParent) {
   const int64_t run = StoreRun(RecipeSpec(5));
   // A bred child of generation 2 whose parent (generation 1) is deleted.
