@@ -2,6 +2,9 @@
 #include "server/store/replay.h"
 
 #include <algorithm>
+#include <atomic>
+#include <functional>
+#include <thread>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
@@ -19,6 +22,33 @@ struct Node {
   int users = 0;        // children in the ancestry not yet built
   bool target = false;  // one of the genomes asked for: never released
 };
+
+const std::vector<double> kNoGenes;
+
+// Gene operations below which a level is built on the calling thread alone.
+constexpr size_t kThreadedWork = 1 << 20;
+
+// Calls `f(i)` for i in [0, count), on up to as many threads as the machine
+// has cores when the work (count x genes) is large. The calls must be
+// independent of each other.
+void ForEachIndex(size_t count, uint32_t genes,
+                  const std::function<void(size_t)>& f) {
+  const size_t cores = std::max(1u, std::thread::hardware_concurrency());
+  const size_t threads = std::min<size_t>(
+      {cores, count, count * genes >= kThreadedWork ? count : size_t{1}});
+  if (threads <= 1) {
+    for (size_t i = 0; i < count; ++i) f(i);
+    return;
+  }
+  std::atomic<size_t> next{0};
+  auto work = [&] {
+    for (size_t i = next++; i < count; i = next++) f(i);
+  };
+  std::vector<std::thread> pool;
+  for (size_t t = 1; t < threads; ++t) pool.emplace_back(work);
+  work();
+  for (std::thread& t : pool) t.join();
+}
 
 absl::Status Lost(int64_t id, absl::string_view what) {
   return absl::DataLossError(absl::StrCat("genome ", id, ": ", what,
@@ -96,35 +126,65 @@ absl::Status RebuildChildren(const GenomeReader& read,
     }
   }
 
-  // Forward, oldest first.
+  // Forward, by level: a genome's level is one more than its deepest parent
+  // still to build, so the genomes of one level are independent of each
+  // other and are built together, on several threads when they are long.
   std::vector<int64_t> order;
   for (const auto& [id, n] : nodes) {
     if (n.recipe.has_value() && n.genes == nullptr) order.push_back(id);
   }
-  std::sort(order.begin(), order.end());
-  static const std::vector<double> kNone;
+  std::sort(order.begin(), order.end());  // parents first (smaller ids)
+  absl::flat_hash_map<int64_t, int> level;
+  std::vector<std::vector<int64_t>> levels;
   for (const int64_t id : order) {
-    Node& n = nodes[id];
-    const std::vector<double>* in[2] = {&kNone, &kNone};
+    const Node& n = nodes[id];
+    int l = 0;
     for (int k = 0; k < n.parent_count; ++k) {
-      const Node& p = nodes[n.parents[k]];
-      if (p.genes == nullptr) {
-        return Lost(id, absl::StrCat("its parent #", n.parents[k],
-                                     " was not rebuilt before it"));
-      }
-      in[k] = p.genes.get();
+      const auto it = level.find(n.parents[k]);
+      if (it != level.end()) l = std::max(l, it->second + 1);
     }
-    if (n.recipe->kind == ChildKind::kCopy) {
-      n.genes = nodes[n.parents[0]].genes;  // the same genes, shared
-    } else {
+    level[id] = l;
+    if (levels.size() <= static_cast<size_t>(l)) levels.resize(l + 1);
+    levels[l].push_back(id);
+  }
+  for (const std::vector<int64_t>& ids : levels) {
+    if (ids.empty()) continue;
+    std::vector<Node*> at;
+    for (const int64_t id : ids) at.push_back(&nodes[id]);
+    std::vector<absl::Status> status(ids.size());
+    auto build = [&](size_t i) {
+      Node& n = *at[i];
+      const std::vector<double>* in[2] = {&kNoGenes, &kNoGenes};
+      for (int k = 0; k < n.parent_count; ++k) {
+        const Node& p = nodes.find(n.parents[k])->second;
+        if (p.genes == nullptr) {
+          status[i] = Lost(ids[i], absl::StrCat("its parent #", n.parents[k],
+                                                " was not rebuilt before it"));
+          return;
+        }
+        in[k] = p.genes.get();
+      }
+      if (n.recipe->kind == ChildKind::kCopy) {
+        n.genes = nodes.find(n.parents[0])->second.genes;  // shared
+        return;
+      }
       absl::StatusOr<std::vector<double>> genes =
           BuildChild(*n.recipe, *in[0], *in[1]);
-      if (!genes.ok()) return Lost(id, genes.status().message());
+      if (!genes.ok()) {
+        status[i] = Lost(ids[i], genes.status().message());
+        return;
+      }
       n.genes = std::make_shared<const std::vector<double>>(*std::move(genes));
+    };
+    ForEachIndex(ids.size(), at.front()->recipe->length, build);
+    for (const absl::Status& st : status) {
+      if (!st.ok()) return st;  // the first in id order
     }
-    for (int k = 0; k < n.parent_count; ++k) {
-      Node& p = nodes[n.parents[k]];
-      if (--p.users == 0 && !p.target) p.genes.reset();
+    for (Node* n : at) {
+      for (int k = 0; k < n->parent_count; ++k) {
+        Node& p = nodes[n->parents[k]];
+        if (--p.users == 0 && !p.target) p.genes.reset();
+      }
     }
   }
   for (GenomeRecord& g : *genomes) {

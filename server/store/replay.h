@@ -5,17 +5,21 @@
 // ancestor is either kept whole (a keyframe, or a run stored whole), or is a
 // recipe itself, back to keyframes or to seeds and immigrants, which need no
 // parent. RebuildChildren reads that ancestry (the rows, not yet the genes),
-// then builds it in ascending id order (a parent is always inserted before
-// its child, so its id is smaller), holding each ancestor's genes only until
-// its last child in the ancestry is built: what it holds at once is about one
-// generation of the ancestry, however far back the keyframe is. A copy (an
-// elite, a migrant) shares its parent's genes.
+// then builds it forward, level by level: a genome's level is one more than
+// that of its deepest parent still to build (a parent is always inserted
+// before its child, so its id is smaller). The genomes of one level are
+// independent of each other, and long ones are built on as many threads as
+// the machine has cores. Each ancestor's genes are held only until the level
+// of its last child in the ancestry is built: what it holds at once is about
+// two generations of the ancestry, however far back the keyframe is. A copy
+// (an elite, a migrant) shares its parent's genes.
 //
 // Cost: one BuildChild per genome of the ancestry; with a keyframe every K
 // generations and P genomes a generation, at most about P K of them
 // (docs/strategies.md, "Genomes kept as recipes").
 //
-// Thread safety: a pure function of what `read` gives.
+// Thread safety: a pure function of what `read` gives; `read` is called on
+// the calling thread only.
 #ifndef SKERRY_SERVER_STORE_REPLAY_H_
 #define SKERRY_SERVER_STORE_REPLAY_H_
 

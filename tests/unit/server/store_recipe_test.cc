@@ -72,13 +72,14 @@ constexpr uint32_t kGenerations = 8;
 
 // One island of 6: an elite, an immigrant and four bred children a
 // generation, mutation and crossover both likely.
-RunSpec RecipeSpec(uint32_t keyframe_interval, bool float32 = false) {
+RunSpec RecipeSpec(uint32_t keyframe_interval, bool float32 = false,
+                   uint32_t length = kLength, uint32_t population = 6) {
   RunSpec spec;
   spec.set_name("recipe-test");
   spec.set_seed(29);
-  spec.set_genome_length(kLength);
+  spec.set_genome_length(length);
   spec.mutable_evaluator()->mutable_builtin()->set_function("sphere");
-  spec.mutable_ga()->set_population_size(6);
+  spec.mutable_ga()->set_population_size(population);
   spec.mutable_ga()->set_elites(1);
   spec.mutable_ga()->set_immigrants(1);
   spec.mutable_ga()->mutable_crossover()->set_rate(0.6);
@@ -175,6 +176,23 @@ TEST_F(RecipeStoreTest, EveryGenomeReadBackHasTheGenesItWasBredWith) {
     absl::StatusOr<GenomeRecord> one = store_->GetGenome(last.id);
     ASSERT_TRUE(one.ok()) << one.status();
     EXPECT_EQ(one->genes, last.genes);
+  }
+}
+
+// Long genomes: each level of the replay (40 genomes of 40,000 genes) is
+// built on several threads (replay.cc's kThreadedWork), and gives the same
+// genes.
+TEST_F(RecipeStoreTest, LongGenomesRebuiltOnSeveralThreadsAreTheSame) {
+  const int64_t run = StoreRun(RecipeSpec(100, false, 40000, 40));
+  for (uint32_t g : {1u, kGenerations - 1}) {
+    absl::StatusOr<std::vector<GenomeRecord>> read =
+        store_->GetGeneration(run, 0, g);
+    ASSERT_TRUE(read.ok()) << read.status();
+    ASSERT_EQ(read->size(), bred_[g].size());
+    for (size_t i = 0; i < read->size(); ++i) {
+      EXPECT_TRUE((*read)[i].genes == bred_[g][i].genes)
+          << "generation " << g << " slot " << i;
+    }
   }
 }
 
