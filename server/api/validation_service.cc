@@ -43,7 +43,8 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
   switch (ref.ref_case()) {
     case skerry::v1::GenomeRef::kId: {
       const auto id = static_cast<int64_t>(ref.id());
-      SKERRY_RETURN_IF_ERROR(store->GetGenome(id).status());
+      SKERRY_RETURN_IF_ERROR(
+          store->GetGenome(id, store::Store::Genes::kStored).status());
       return id;
     }
     case skerry::v1::GenomeRef::kKey: {

@@ -214,8 +214,10 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
       std::make_shared<skerry::v1::EvaluatorSpec>(record.spec.evaluator());
   run->stop_generation = record.stop_generation;
   if (record.champion_id != 0) {
-    SKERRY_ASSIGN_OR_RETURN(GenomeRecord champion,
-                            store_->GetGenome(record.champion_id));
+    // Its key alone: nothing rebuilt, whatever form its genes are kept in.
+    SKERRY_ASSIGN_OR_RETURN(
+        GenomeRecord champion,
+        store_->GetGenome(record.champion_id, store::Store::Genes::kStored));
     run->champion_key =
         std::make_tuple(champion.generation, champion.island, champion.slot);
   }

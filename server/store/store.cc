@@ -1529,13 +1529,22 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
   return out;
 }
 
-absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id) {
+absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id, Genes genes) {
   SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT ", GenomeColumns(), " FROM genomes WHERE id = ?")));
   s.BindInt(1, genome_id);
-  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryGenomes(reader.get(), &s));
+  std::vector<GenomeRecord> rows;
+  if (genes == Genes::kStored) {
+    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
+    if (row) {
+      SKERRY_ASSIGN_OR_RETURN(GenomeRecord g, ReadGenome(s));
+      rows.push_back(std::move(g));
+    }
+  } else {
+    SKERRY_ASSIGN_OR_RETURN(rows, QueryGenomes(reader.get(), &s));
+  }
   if (rows.empty()) {
     return absl::NotFoundError(absl::StrCat(
         "genome ", static_cast<uint64_t>(genome_id), " not found"));

@@ -419,7 +419,10 @@ class Store {
   absl::StatusOr<std::vector<GenomeRecord>> GetGeneration(
       int64_t run_id, uint32_t island, uint32_t generation,
       Genes genes = Genes::kAll);
-  absl::StatusOr<GenomeRecord> GetGenome(int64_t genome_id);
+  // NotFound names the genome. Genes::kStored: its genes only when stored
+  // whole (nothing rebuilt), for a caller that wants its key or score.
+  absl::StatusOr<GenomeRecord> GetGenome(int64_t genome_id,
+                                         Genes genes = Genes::kAll);
   // Statistics in (island, generation) order; all islands when island is empty.
   absl::StatusOr<std::vector<StatsRecord>> GetStats(
       int64_t run_id, std::optional<uint32_t> island);
