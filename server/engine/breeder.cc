@@ -84,23 +84,24 @@ GenomeRecord Fresh(const RunSpec& spec, uint32_t island, uint32_t generation,
   return g;
 }
 
-// A copy that keeps its score unless the evaluator is noisy.
-GenomeRecord CarryOver(const RunSpec& spec, const GenomeRecord& from,
+// A copy that keeps its score unless the evaluator is noisy, appended to
+// `out`; its genes, recipe and keyframe flag as Build gives any genome.
+absl::Status CarryOver(const RunSpec& spec, const GenomeRecord& from,
                        uint32_t island, uint32_t generation, uint32_t slot,
-                       skerry::v1::Origin origin) {
+                       skerry::v1::Origin origin,
+                       std::vector<GenomeRecord>* out) {
   GenomeRecord g = Fresh(spec, island, generation, slot, origin);
   g.parent_a = from.id;
-  g.genes = from.genes;
-  if (KeyframeInterval(spec) > 1) {
-    g.child_recipe = RecipeOf(spec, island, generation, slot, ChildKind::kCopy);
-    g.keyframe = generation % KeyframeInterval(spec) == 0;
-  }
+  SKERRY_RETURN_IF_ERROR(
+      Build(spec, RecipeOf(spec, island, generation, slot, ChildKind::kCopy),
+            from.genes, {}, &g));
   if (!spec.evaluator().noisy()) {
     g.state = from.state;
     g.score = from.score;
     g.error = from.error;
   }
-  return g;
+  out->push_back(std::move(g));
+  return absl::OkStatus();
 }
 
 // Scores and validity of a pool, in the form the operators take.
@@ -257,8 +258,8 @@ absl::StatusOr<std::vector<GenomeRecord>> Breed(
   std::vector<GenomeRecord> out;
   out.reserve(n);
   for (uint32_t e = 0; e < elites; ++e) {
-    out.push_back(CarryOver(spec, *pool[own_order[e]], island, next_gen, e,
-                            skerry::v1::ELITE));
+    SKERRY_RETURN_IF_ERROR(CarryOver(spec, *pool[own_order[e]], island,
+                                     next_gen, e, skerry::v1::ELITE, &out));
   }
   if (n_migrants > 0) {
     std::vector<int> rank_of(own_order.size());
@@ -270,8 +271,8 @@ absl::StatusOr<std::vector<GenomeRecord>> Breed(
         Stream(spec, island, next_gen, StreamPurpose::kMigration, island);
     for (uint32_t m = 0; m < n_migrants; ++m) {
       const uint32_t slot = elites + m;
-      out.push_back(CarryOver(spec, *migrants[m], island, next_gen, slot,
-                              skerry::v1::MIGRANT));
+      SKERRY_RETURN_IF_ERROR(CarryOver(spec, *migrants[m], island, next_gen,
+                                       slot, skerry::v1::MIGRANT, &out));
       if (m + 1 < pool.size()) {
         const int victim = ChooseVictim(spec, rank_of, own_order, taken, rng);
         taken[victim] = true;

@@ -6,6 +6,7 @@
 #include "absl/strings/str_cat.h"
 #include "common/genes.h"
 #include "common/sample_recipe.h"
+#include "common/status_macros.h"
 #include "common/strategy_spec.h"
 #include "server/engine/breeder.h"
 #include "server/engine/cma_strategy.h"
@@ -31,10 +32,7 @@ class GaStrategy : public Strategy {
 
   absl::Status Tell(absl::Span<const GenomeRecord> completed,
                     absl::Span<const GenomeRecord* const> migrants) override {
-    if (completed.empty()) {
-      return absl::InvalidArgumentError(
-          absl::StrCat("island ", island_, ": told an empty generation"));
-    }
+    SKERRY_RETURN_IF_ERROR(CheckTold(completed));
     completed_.assign(completed.begin(), completed.end());
     migrants_.clear();
     for (const GenomeRecord* m : migrants) migrants_.push_back(*m);
@@ -49,8 +47,7 @@ class GaStrategy : public Strategy {
     std::vector<const GenomeRecord*> migrants;
     for (const GenomeRecord& m : migrants_) migrants.push_back(&m);
     absl::StatusOr<std::vector<GenomeRecord>> next =
-        Breed(spec_, island_, completed_, migrants);
-    if (next.ok()) generation_ = completed_.front().generation + 1;
+        BreedFrom(completed_, migrants);
     completed_.clear();
     migrants_.clear();
     return next;
@@ -59,16 +56,10 @@ class GaStrategy : public Strategy {
   absl::StatusOr<std::vector<GenomeRecord>> TellAndAsk(
       absl::Span<const GenomeRecord> completed,
       absl::Span<const GenomeRecord* const> migrants) override {
-    if (completed.empty()) {
-      return absl::InvalidArgumentError(
-          absl::StrCat("island ", island_, ": told an empty generation"));
-    }
+    SKERRY_RETURN_IF_ERROR(CheckTold(completed));
     completed_.clear();
     migrants_.clear();
-    absl::StatusOr<std::vector<GenomeRecord>> next =
-        Breed(spec_, island_, completed, migrants);
-    if (next.ok()) generation_ = completed.front().generation + 1;
-    return next;
+    return BreedFrom(completed, migrants);
   }
 
   skerry::v1::StrategyState Save() const override {
@@ -94,6 +85,22 @@ class GaStrategy : public Strategy {
   bool StateIsPopulation() const override { return true; }
 
  private:
+  absl::Status CheckTold(absl::Span<const GenomeRecord> completed) const {
+    if (!completed.empty()) return absl::OkStatus();
+    return absl::InvalidArgumentError(
+        absl::StrCat("island ", island_, ": told an empty generation"));
+  }
+
+  // Generation g + 1 from g, `completed` (not empty).
+  absl::StatusOr<std::vector<GenomeRecord>> BreedFrom(
+      absl::Span<const GenomeRecord> completed,
+      absl::Span<const GenomeRecord* const> migrants) {
+    absl::StatusOr<std::vector<GenomeRecord>> next =
+        Breed(spec_, island_, completed, migrants);
+    if (next.ok()) generation_ = completed.front().generation + 1;
+    return next;
+  }
+
   const skerry::v1::RunSpec spec_;
   const uint32_t island_;
   uint32_t generation_ = 0;

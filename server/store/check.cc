@@ -23,9 +23,6 @@ namespace {
 constexpr size_t kMaxProblems = 100;
 // Keyframes per run that `--check` rebuilds from their recipes.
 constexpr int kKeyframeSample = 8;
-// SQL: genome c's blob is a GA genome's recipe (common/child_recipe.h).
-constexpr char kIsChildRecipe[] =
-    "(length(c.genes) >= 98 AND substr(c.genes, 1, 1) = x'03')";
 
 // One query's rows, each as text columns.
 absl::StatusOr<std::vector<std::vector<std::string>>> Rows(
@@ -331,7 +328,7 @@ class Checker {
             "genomes p ON p.id = c.parent_a WHERE c.run_id = ?1 AND "
             "c.origin IN (",
             skerry::v1::ELITE, ",", skerry::v1::MIGRANT,
-            ") AND ((c.genes != p.genes AND NOT ", kIsChildRecipe,
+            ") AND ((c.genes != p.genes AND NOT ", IsChildRecipeSql("c.genes"),
             ") OR (c.attempts = 0 AND c.eval_state "
             "!= 1 AND (c.eval_state != p.eval_state OR (c.eval_state = 2 AND "
             "c.score IS NOT p.score)))) LIMIT 20")));

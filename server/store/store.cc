@@ -467,6 +467,13 @@ class DigestChildren {
 
 }  // namespace
 
+std::string IsChildRecipeSql(absl::string_view column) {
+  return absl::StrCat(
+      "(length(", column, ") >= ", kChildRecipeBytes, " AND substr(", column,
+      ", 1, 1) = x'",
+      absl::Hex(static_cast<int>(kChildRecipeTag), absl::kZeroPad2), "')");
+}
+
 absl::StatusOr<std::unique_ptr<Store>> Store::Open(const std::string& path) {
   return Open(path, Options());
 }
@@ -1106,10 +1113,10 @@ absl::Status Store::CommitGenerationLocked(const GenerationCommit& c) {
     // then its genes (common/child_recipe.h), so that exporting or
     // validating it replays nothing.
     SKERRY_ASSIGN_OR_RETURN(
-        auto keep,
-        conn_->PrepareCached(absl::StrCat(
-            "UPDATE genomes SET genes = ?2 WHERE id = ?1 AND length(genes) = ",
-            kChildRecipeBytes, " AND substr(genes, 1, 1) = x'03'")));
+        auto keep, conn_->PrepareCached(absl::StrCat(
+                       "UPDATE genomes SET genes = ?2 WHERE id = ?1 AND ",
+                       IsChildRecipeSql("genes"),
+                       " AND length(genes) = ", kChildRecipeBytes)));
     keep.BindInt(1, c.champion_genome->id);
     keep.BindBlob(2, PackChildRecipe(*c.champion_genome->child_recipe,
                                      c.champion_genome->genes));
@@ -1379,7 +1386,8 @@ absl::StatusOr<std::map<uint32_t, std::string>> Store::GetStrategyStates(
 }
 
 absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Connection* conn,
-                                                              Statement* s) {
+                                                              Statement* s,
+                                                              Genes genes) {
   std::vector<GenomeRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(auto row, s->Step());
@@ -1387,8 +1395,12 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::QueryGenomes(Connection* conn,
     SKERRY_ASSIGN_OR_RETURN(auto g, ReadGenome(*s));
     out.push_back(std::move(g));
   }
-  SKERRY_RETURN_IF_ERROR(RebuildSamples(conn, &out));
-  SKERRY_RETURN_IF_ERROR(RebuildChildren(conn, &out));
+  if (genes == Genes::kAll) {
+    SKERRY_RETURN_IF_ERROR(RebuildSamples(conn, &out));
+  }
+  if (genes != Genes::kStored) {
+    SKERRY_RETURN_IF_ERROR(RebuildChildren(conn, &out));
+  }
   return out;
 }
 
@@ -1412,19 +1424,27 @@ absl::Status Store::RebuildChildren(Connection* conn,
     SKERRY_ASSIGN_OR_RETURN(GenomeRecord g, ReadGenome(by_id));
     return std::optional<GenomeRecord>(std::move(g));
   };
-  return store::RebuildChildren(read, genomes, known);
+  absl::Status rebuilt = store::RebuildChildren(read, genomes, known);
+  // The run the genomes are of, when the caller read them so: where the
+  // damage is (the message names the genome and its parent).
+  const int64_t run = genomes->front().run_id;
+  if (rebuilt.ok() || run == 0) return rebuilt;
+  for (const GenomeRecord& g : *genomes) {
+    if (g.run_id != run) return rebuilt;
+  }
+  return absl::Status(rebuilt.code(),
+                      absl::StrCat("run ", run, ": ", rebuilt.message()));
 }
 
 absl::StatusOr<std::vector<std::string>> Store::CheckKeyframes(Connection* conn,
                                                                int64_t run_id,
                                                                int sample) {
   SKERRY_ASSIGN_OR_RETURN(
-      Statement s, conn->Prepare(absl::StrCat(
-                       "SELECT ", GenomeColumns(),
-                       " FROM genomes WHERE run_id = ? AND length(genes) > ",
-                       kChildRecipeBytes,
-                       " AND substr(genes, 1, 1) = x'03' "
-                       "ORDER BY generation, island, slot LIMIT ?")));
+      Statement s,
+      conn->Prepare(absl::StrCat(
+          "SELECT ", GenomeColumns(), " FROM genomes WHERE run_id = ? AND ",
+          IsChildRecipeSql("genes"), " AND length(genes) > ", kChildRecipeBytes,
+          " ORDER BY generation, island, slot LIMIT ?")));
   s.BindInt(1, run_id);
   s.BindInt(2, sample);
   std::vector<std::string> problems;
@@ -1439,14 +1459,15 @@ absl::StatusOr<std::vector<std::string>> Store::CheckKeyframes(Connection* conn,
     }
     kept.push_back(*std::move(g));
   }
-  std::vector<GenomeRecord> rebuilt = kept;
-  for (GenomeRecord& g : rebuilt) std::vector<double>().swap(g.genes);
-  if (absl::Status r = RebuildChildren(conn, &rebuilt); !r.ok()) {
+  // The stored genes set aside, the records rebuilt as if they had none.
+  std::vector<std::vector<double>> stored;
+  for (GenomeRecord& g : kept) stored.push_back(std::exchange(g.genes, {}));
+  if (absl::Status r = RebuildChildren(conn, &kept); !r.ok()) {
     problems.push_back(std::string(r.message()));
     return problems;
   }
   for (size_t i = 0; i < kept.size(); ++i) {
-    if (rebuilt[i].genes != kept[i].genes) {
+    if (kept[i].genes != stored[i]) {
       problems.push_back(absl::StrCat(
           "island ", kept[i].island, " generation ", kept[i].generation,
           " slot ", kept[i].slot, " genome ", kept[i].id,
@@ -1515,18 +1536,7 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::GetGeneration(
   s.BindInt(1, run_id);
   s.BindInt(2, island);
   s.BindInt(3, generation);
-  if (genes == Genes::kAll) return QueryGenomes(reader.get(), &s);
-  std::vector<GenomeRecord> out;
-  while (true) {
-    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
-    if (!row) break;
-    SKERRY_ASSIGN_OR_RETURN(GenomeRecord g, ReadGenome(s));
-    out.push_back(std::move(g));
-  }
-  if (genes == Genes::kNotSamples) {
-    SKERRY_RETURN_IF_ERROR(RebuildChildren(reader.get(), &out));
-  }
-  return out;
+  return QueryGenomes(reader.get(), &s, genes);
 }
 
 absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id, Genes genes) {
@@ -1535,16 +1545,8 @@ absl::StatusOr<GenomeRecord> Store::GetGenome(int64_t genome_id, Genes genes) {
       auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT ", GenomeColumns(), " FROM genomes WHERE id = ?")));
   s.BindInt(1, genome_id);
-  std::vector<GenomeRecord> rows;
-  if (genes == Genes::kStored) {
-    SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
-    if (row) {
-      SKERRY_ASSIGN_OR_RETURN(GenomeRecord g, ReadGenome(s));
-      rows.push_back(std::move(g));
-    }
-  } else {
-    SKERRY_ASSIGN_OR_RETURN(rows, QueryGenomes(reader.get(), &s));
-  }
+  SKERRY_ASSIGN_OR_RETURN(std::vector<GenomeRecord> rows,
+                          QueryGenomes(reader.get(), &s, genes));
   if (rows.empty()) {
     return absl::NotFoundError(absl::StrCat(
         "genome ", static_cast<uint64_t>(genome_id), " not found"));
@@ -1643,7 +1645,7 @@ absl::StatusOr<std::vector<GenomeRecord>> Store::FailedGenomes(int64_t run_id,
                   "ORDER BY id DESC LIMIT ?")));
   s.BindInt(1, run_id);
   s.BindInt(2, limit);
-  return QueryGenomes(reader.get(), &s);
+  return QueryGenomes(reader.get(), &s, Genes::kStored);
 }
 
 absl::StatusOr<uint64_t> Store::CountFailed(int64_t run_id) {
@@ -1721,6 +1723,15 @@ absl::StatusOr<Store::Digest> Store::RunDigestUnnamed(int64_t run_id) {
         : IsRecipe(blob) ? SampleBytes(reader.get(), s.ColumnInt(14), blob,
                                        s.ColumnInt(16), &centres)
                          : Float64Bytes(blob);
+    if (!genes.ok() && (IsChildRecipe(blob) || IsRecipe(blob))) {
+      // A recipe that cannot be rebuilt (a parent missing, say): its own
+      // reason, not a checksum's, with where it is.
+      return absl::DataLossError(
+          absl::StrCat("run ", run_id, " island ", s.ColumnInt(0),
+                       " generation ", s.ColumnInt(1), " slot ", s.ColumnInt(2),
+                       ": ", genes.status().message(),
+                       "; `skerry-coordinator --check` lists the damage"));
+    }
     if (!genes.ok()) {
       return DamagedGenome(run_id, static_cast<uint32_t>(s.ColumnInt(0)),
                            static_cast<uint32_t>(s.ColumnInt(1)),

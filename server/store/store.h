@@ -450,6 +450,8 @@ class Store {
   };
   absl::StatusOr<std::vector<WorkerRow>> ListWorkers(int limit);
   // FAILED genomes of a run, newest first, at most `limit`; and how many.
+  // Their genes only when stored whole (Genes::kStored): nothing is rebuilt
+  // for a run's summary.
   absl::StatusOr<std::vector<GenomeRecord>> FailedGenomes(int64_t run_id,
                                                           int limit);
   absl::StatusOr<uint64_t> CountFailed(int64_t run_id);
@@ -634,10 +636,12 @@ class Store {
   // On the writer (under mu_) or a reader's lease.
   static absl::StatusOr<std::optional<GenomeRecord>> BestGenomeOn(
       Connection* conn, int64_t run_id);
-  // The genomes `stmt` selects (GenomeColumns), natural ES samples rebuilt
-  // from their distribution genomes (RebuildSamples), read on `conn`.
+  // The genomes `stmt` selects (GenomeColumns), read on `conn`, with the
+  // genes `genes` says: natural ES samples rebuilt from their distribution
+  // genomes (RebuildSamples), GA genomes kept as recipes from their
+  // ancestry (RebuildChildren).
   static absl::StatusOr<std::vector<GenomeRecord>> QueryGenomes(
-      Connection* conn, Statement* stmt);
+      Connection* conn, Statement* stmt, Genes genes = Genes::kAll);
 
   // A read transaction on a connection of the read pool (read_pool.h).
   absl::StatusOr<ReadPool::Lease> Reader() { return readers_->Acquire(); }
@@ -670,6 +674,11 @@ class Store {
   // database file and removes it (a read-only connection cannot).
   std::unique_ptr<ReadPool> readers_;
 };
+
+// SQL: `column` holds a GA genome's recipe (common/child_recipe.h), alone or
+// with its genes (a keyframe): its first byte kChildRecipeTag, at least
+// kChildRecipeBytes long.
+std::string IsChildRecipeSql(absl::string_view column);
 
 // DATA_LOSS naming the first object whose schema differs from a fresh
 // database's of this version (Store::QuickCheck and `--check`).

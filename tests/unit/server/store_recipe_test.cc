@@ -305,10 +305,22 @@ TEST_F(RecipeStoreTest, AMissingAncestorIsDataLossNamingTheGenomeAndItsParent) {
   absl::StatusOr<GenomeRecord> read = store_->GetGenome(child->id);
   ASSERT_TRUE(absl::IsDataLoss(read.status())) << read.status();
   EXPECT_THAT(std::string(read.status().message()),
-              HasSubstr(absl::StrCat("genome ", child->id, ": its parent #",
-                                     child->parent_a,
+              HasSubstr(absl::StrCat("run ", run, ": genome ", child->id,
+                                     ": its parent #", child->parent_a,
                                      " is not in the database, so its genes "
                                      "cannot be rebuilt")));
+  // The digest says the same of the first genome of generation 2 that
+  // needs it, where it is, and not that a checksum failed.
+  absl::StatusOr<Store::Digest> digest = store_->RunDigest(run);
+  ASSERT_TRUE(absl::IsDataLoss(digest.status())) << digest.status();
+  EXPECT_THAT(
+      std::string(digest.status().message()),
+      HasSubstr(absl::StrCat("run ", run, " island 0 generation 2 slot ")));
+  EXPECT_THAT(std::string(digest.status().message()),
+              HasSubstr(absl::StrCat(": its parent #", child->parent_a,
+                                     " is not in the database")));
+  EXPECT_THAT(std::string(digest.status().message()),
+              ::testing::Not(HasSubstr("checksum")));
   // The rest of the run is still read.
   EXPECT_TRUE(store_->GetGeneration(run, 0, 0).ok());
 }
