@@ -1,7 +1,7 @@
 // skerry-hash-bench: SHA-256 throughput of common/sha256.h (OpenSSL EVP)
 // against the portable implementation it replaced (bench/sha256_portable.h),
 // in the three shapes the code uses: one long message (bulk), a run digest
-// (Store::RunDigest: many small fields into one hash) and row checksums
+// (GenomeStore::RunDigest: many small fields into one hash) and row checksums
 // (server/store/row_sums.cc: one short hash per row). Checks first that both
 // give the same digests. Figures in docs/performance.md.
 //
@@ -36,7 +36,7 @@ std::string Bulk(const std::string& mib, uint32_t megabytes) {
 }
 
 // A digest: per genome 12 u32 fields, 10 genes (80 bytes) and a u64 score,
-// as Store::RunDigest feeds them.
+// as GenomeStore::RunDigest feeds them.
 template <typename H>
 std::string Digest(uint32_t rows) {
   H h;

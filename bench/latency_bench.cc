@@ -2,8 +2,8 @@
 // coordinator on a large store (bench/scale_bench.h).
 //
 // The large store is made by a generator path: one finished run whose
-// generations are written through Store::CreateRun and
-// Store::CommitGeneration, the coordinator's own commit points, with random
+// generations are written through RunStore::CreateRun and
+// RunStore::CommitGeneration, the coordinator's own commit points, with random
 // genes, parent links into the generation before and scores, so a digest or
 // a history read does the work it does on a real run of that size.
 #include <sys/stat.h>
@@ -73,7 +73,7 @@ absl::StatusOr<int64_t> BuildHistory(Store* st, const LatencyOptions& o) {
     return out;
   };
   std::vector<GenomeRecord> current = generation(0, {});
-  SKERRY_RETURN_IF_ERROR(st->CreateRun(&run, &current));
+  SKERRY_RETURN_IF_ERROR(st->runs().CreateRun(&run, &current));
   const uint64_t generations =
       std::max<uint64_t>(1, o.history_genomes / o.population);
   for (uint32_t g = 1; g < generations; ++g) {
@@ -88,7 +88,7 @@ absl::StatusOr<int64_t> BuildHistory(Store* st, const LatencyOptions& o) {
     c.completed.evaluations = static_cast<uint32_t>(o.population);
     c.island_done = g + 1 == generations;
     c.next = &next;
-    SKERRY_RETURN_IF_ERROR(st->CommitGeneration(c));
+    SKERRY_RETURN_IF_ERROR(st->runs().CommitGeneration(c));
     current = std::move(next);
   }
   return run.id;
@@ -109,7 +109,7 @@ absl::Status TimeCommits(Store* st, const std::vector<GenomeRecord>& pending,
       updates.push_back(u);
     }
     const absl::Time t0 = absl::Now();
-    SKERRY_RETURN_IF_ERROR(st->CommitResults(updates));
+    SKERRY_RETURN_IF_ERROR(st->genomes().CommitResults(updates));
     ms->push_back(absl::ToDoubleMilliseconds(absl::Now() - t0));
   }
   return absl::OkStatus();
@@ -161,7 +161,7 @@ int RunLatencyAndRestart(const LatencyOptions& o) {
     pending[i].slot = static_cast<uint32_t>(i);
     pending[i].genes.assign(o.genome_length, 0.5);
   }
-  if (absl::Status s = (*st)->CreateRun(&live, &pending); !s.ok()) {
+  if (absl::Status s = (*st)->runs().CreateRun(&live, &pending); !s.ok()) {
     std::fprintf(stderr, "live run: %s\n", s.ToString().c_str());
     return 1;
   }
@@ -182,13 +182,13 @@ int RunLatencyAndRestart(const LatencyOptions& o) {
     readers.emplace_back([&] {
       while (!stop) {
         const absl::Time t0 = absl::Now();
-        if (!(*st)->RunDigest(*history).ok()) ++read_errors;
+        if (!(*st)->genomes().RunDigest(*history).ok()) ++read_errors;
         const double ms = absl::ToDoubleMilliseconds(absl::Now() - t0);
         {
           absl::MutexLock l(&mu);
           digest_ms.push_back(ms);
         }
-        if (!(*st)->GetStats(*history, std::nullopt).ok()) ++read_errors;
+        if (!(*st)->runs().GetStats(*history, std::nullopt).ok()) ++read_errors;
         reads += 2;
       }
     });

@@ -80,7 +80,7 @@ void BuildStore(const Flags& f) {
     run.spec = spec;
     run.state = skerry::v1::FINISHED;
     std::vector<GenomeRecord> none;
-    absl::Status s = (*store)->CreateRun(&run, &none);
+    absl::Status s = (*store)->runs().CreateRun(&run, &none);
     if (!s.ok()) Die(s, "create run");
   }
   auto conn = skerry::store::Connection::Open(f.db, SQLITE_OPEN_READWRITE);

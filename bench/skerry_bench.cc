@@ -122,7 +122,7 @@ double RawInsertRate(const BenchOptions& o) {
 
 // Group commit: the same results committed one per transaction (as a
 // coordinator without group commit would, each synced) and in batches of
-// `batch`, through Store::CommitResults. Returns results per second.
+// `batch`, through GenomeStore::CommitResults. Returns results per second.
 double CommitRate(const BenchOptions& o, int batch) {
   const std::string path = TempDb(o, absl::StrCat("commit", batch).c_str());
   absl::StatusOr<std::unique_ptr<store::Store>> st = store::Store::Open(path);
@@ -139,7 +139,7 @@ double CommitRate(const BenchOptions& o, int batch) {
     genomes[i].slot = i;
     genomes[i].genes.assign(o.genome_length, 0.5);
   }
-  if (!(*st)->CreateRun(&run, &genomes).ok()) return 0;
+  if (!(*st)->runs().CreateRun(&run, &genomes).ok()) return 0;
   const absl::Time start = absl::Now();
   std::vector<store::ResultUpdate> updates;
   for (const store::GenomeRecord& g : genomes) {
@@ -150,11 +150,12 @@ double CommitRate(const BenchOptions& o, int batch) {
     u.attempts = 1;
     updates.push_back(u);
     if (static_cast<int>(updates.size()) == batch) {
-      if (!(*st)->CommitResults(updates).ok()) return 0;
+      if (!(*st)->genomes().CommitResults(updates).ok()) return 0;
       updates.clear();
     }
   }
-  if (!updates.empty() && !(*st)->CommitResults(updates).ok()) return 0;
+  if (!updates.empty() && !(*st)->genomes().CommitResults(updates).ok())
+    return 0;
   const double secs = absl::ToDoubleSeconds(absl::Now() - start);
   st->reset();
   bench::RemoveDb(path);

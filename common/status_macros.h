@@ -1,7 +1,7 @@
 // Early-return helpers for absl::Status and absl::StatusOr.
 //
 //   SKERRY_RETURN_IF_ERROR(store->Commit());
-//   SKERRY_ASSIGN_OR_RETURN(auto run, store->GetRun(id));
+//   SKERRY_ASSIGN_OR_RETURN(auto run, store->runs().GetRun(id));
 #ifndef SKERRY_COMMON_STATUS_MACROS_H_
 #define SKERRY_COMMON_STATUS_MACROS_H_
 

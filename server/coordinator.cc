@@ -58,9 +58,9 @@ class CoordinatorImpl final : public Coordinator {
     // to serve it read-only. The tables that grow with the evaluations are
     // checked once serving (StartFullCheck), so that a start does not read
     // the whole file.
-    SKERRY_RETURN_IF_ERROR(c->store_->QuickCheckAtStart());
+    SKERRY_RETURN_IF_ERROR(c->store_->db().QuickCheckAtStart());
     if (absl::Status w =
-            options.read_only ? absl::OkStatus() : c->store_->ProbeWrite();
+            options.read_only ? absl::OkStatus() : c->store_->db().ProbeWrite();
         !w.ok()) {
       return absl::FailedPreconditionError(absl::StrCat(
           "cannot write the database ", options.db_path, " (", w.message(),
@@ -216,7 +216,7 @@ class CoordinatorImpl final : public Coordinator {
     // the workers) and its in-flight commit is bounded (Engine::Shutdown), so
     // no handler is left blocked when the server drains.
     if (full_check_.joinable()) {
-      store_->InterruptFullCheck();
+      store_->db().InterruptFullCheck();
       full_check_.join();
     }
     if (http_ != nullptr) http_->Shutdown();         // it calls the services
@@ -247,18 +247,18 @@ class CoordinatorImpl final : public Coordinator {
  private:
   CoordinatorImpl() = default;
 
-  // The whole file's quick_check, while serving (Store::QuickCheckAtStart
+  // The whole file's quick_check, while serving (Database::QuickCheckAtStart
   // left out the large tables). Damage found stops every write (the engine
   // holds the fleet and every run summary says why) until an operator
   // restores the file; reads go on.
   void StartFullCheck() {
     full_check_ = std::thread([store = store_.get(), engine = engine_.get()] {
-      const absl::Status found = store->FullCheckWhileServing();
+      const absl::Status found = store->db().FullCheckWhileServing();
       if (found.ok() || absl::IsCancelled(found)) return;
       const absl::Status stop = absl::UnavailableError(
           absl::StrCat(found.message(), "; nothing more is written to it"));
       std::fprintf(stderr, "skerry-coordinator: %s\n", stop.ToString().c_str());
-      store->StopWrites(stop);
+      store->db().StopWrites(stop);
       engine->NoteStorageTrouble(stop);
     });
   }

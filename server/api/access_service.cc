@@ -41,7 +41,8 @@ grpc::Status AccessServiceImpl::CreateToken(
 grpc::Status AccessServiceImpl::ListTokens(
     grpc::ServerContext* ctx, const skerry::v1::ListTokensRequest* req,
     skerry::v1::ListTokensResponse* resp) {
-  absl::StatusOr<std::vector<store::TokenRecord>> all = store_->ListTokens();
+  absl::StatusOr<std::vector<store::TokenRecord>> all =
+      store_->access().ListTokens();
   if (!all.ok()) return ToGrpc(all.status());
   for (const store::TokenRecord& t : *all) {
     if (t.revoked_ms.has_value() && !req->include_revoked()) continue;
@@ -86,7 +87,8 @@ grpc::Status AccessServiceImpl::QueryAudit(
   q.principal = req->principal();
   q.before_id = static_cast<int64_t>(req->before_id());
   q.limit = req->limit() == 0 ? 100 : static_cast<int>(req->limit());
-  absl::StatusOr<std::vector<store::AuditRecord>> rows = store_->QueryAudit(q);
+  absl::StatusOr<std::vector<store::AuditRecord>> rows =
+      store_->access().QueryAudit(q);
   if (!rows.ok()) return ToGrpc(rows.status());
   for (const store::AuditRecord& r : *rows) {
     skerry::v1::AuditEntry* e = resp->add_entries();

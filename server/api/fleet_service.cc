@@ -64,7 +64,7 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
   w.version = req->version();
   w.sandbox = req->sandbox();
   w.joined_ms = w.last_seen_ms = clock_->WallMillis();
-  absl::StatusOr<int64_t> id = store_->RegisterWorker(w);
+  absl::StatusOr<int64_t> id = store_->fleet().RegisterWorker(w);
   if (!id.ok()) {
     // Held, logged and shown like any failed commit (engine.h).
     engine_->NoteStorageTrouble(id.status());
@@ -90,7 +90,7 @@ grpc::Status FleetServiceImpl::Join(grpc::ServerContext* ctx,
 absl::StatusOr<const auth::FleetSeal*> FleetServiceImpl::Seal() {
   absl::MutexLock l(&mu_);
   if (seal_ == nullptr) {
-    absl::StatusOr<std::string> key = store_->FleetKey();
+    absl::StatusOr<std::string> key = store_->fleet().FleetKey();
     if (!key.ok()) {
       engine_->NoteStorageTrouble(key.status());
       return key.status();

@@ -38,7 +38,7 @@ grpc::Status RunServiceImpl::Summarise(int64_t run_id,
   if (!s.ok()) return ToGrpc(s.status());
   *out = std::move(*s);
   out->set_name(AnsweredName(out->name(), budgets_.max_name_bytes));
-  absl::StatusOr<std::string> series = store_->SeriesOfRun(run_id);
+  absl::StatusOr<std::string> series = store_->runs().SeriesOfRun(run_id);
   if (!series.ok()) return ToGrpc(series.status());
   out->set_series(*series);
   return grpc::Status::OK;
@@ -61,7 +61,7 @@ grpc::Status RunServiceImpl::SubmitRun(grpc::ServerContext* ctx,
   // A retried submission returns the run its first attempt made.
   auto earlier = [&]() -> absl::StatusOr<std::optional<int64_t>> {
     if (req->request_id().empty()) return std::optional<int64_t>();
-    return store_->FindRunByRequest(owner, req->request_id());
+    return store_->runs().FindRunByRequest(owner, req->request_id());
   };
   absl::StatusOr<std::optional<int64_t>> first = earlier();
   if (!first.ok()) return ToGrpc(first.status());
@@ -90,7 +90,7 @@ grpc::Status RunServiceImpl::ListRuns(grpc::ServerContext* ctx,
       engine_->ListSummaries();
   if (!runs.ok()) return ToGrpc(runs.status());
   absl::StatusOr<std::map<int64_t, std::string>> series =
-      store_->SeriesOfRuns();
+      store_->runs().SeriesOfRuns();
   if (!series.ok()) return ToGrpc(series.status());
   for (auto& r : *runs) {
     // An old run's name may be far over the budget (common/quote.h).
@@ -109,26 +109,27 @@ grpc::Status RunServiceImpl::GetRun(grpc::ServerContext* ctx,
                                     skerry::v1::GetRunResponse* resp) {
   grpc::Status s = Summarise(RunId(req->run_id()), resp->mutable_run());
   if (!s.ok()) return s;
-  absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
+  absl::StatusOr<store::RunRecord> rec =
+      store_->runs().GetRun(RunId(req->run_id()));
   if (!rec.ok()) return ToGrpc(rec.status());
   *resp->mutable_spec() = rec->spec;
   resp->mutable_spec()->set_name(
       AnsweredName(rec->spec.name(), budgets_.max_name_bytes));
   resp->set_workers(
       static_cast<uint32_t>(fleet_->ActiveWorkers(absl::Minutes(1))));
-  absl::StatusOr<uint64_t> failed = store_->CountFailed(rec->id);
+  absl::StatusOr<uint64_t> failed = store_->genomes().CountFailed(rec->id);
   if (!failed.ok()) return ToGrpc(failed.status());
   resp->set_failed_count(*failed);
   if (*failed > 0) {
     absl::StatusOr<std::vector<store::GenomeRecord>> list =
-        store_->FailedGenomes(rec->id, 20);
+        store_->genomes().FailedGenomes(rec->id, 20);
     if (!list.ok()) return ToGrpc(list.status());
     for (const store::GenomeRecord& g : *list)
       *resp->add_failed() = ToGenomeProto(g);
   }
   if (rec->champion_id != 0) {
     absl::StatusOr<std::optional<store::ValidationRecord>> v =
-        store_->GetValidation(rec->champion_id);
+        store_->validations().GetValidation(rec->champion_id);
     if (!v.ok()) return ToGrpc(v.status());
     if (v->has_value()) {
       *resp->mutable_champion_validation() = ToValidationProto(**v);
@@ -176,7 +177,7 @@ grpc::Status RunServiceImpl::GetChampion(
     grpc::ServerContext* ctx, const skerry::v1::RunRef* req,
     skerry::v1::GetChampionResponse* resp) {
   absl::StatusOr<std::optional<store::GenomeRecord>> best =
-      store_->BestGenome(RunId(req->run_id()));
+      store_->genomes().BestGenome(RunId(req->run_id()));
   if (!best.ok()) return ToGrpc(best.status());
   if (!best->has_value()) {
     return ToGrpc(absl::NotFoundError(
@@ -184,7 +185,7 @@ grpc::Status RunServiceImpl::GetChampion(
   }
   *resp->mutable_genome() = ToGenomeProto(**best);
   absl::StatusOr<std::map<std::string, double>> metrics =
-      store_->GetGenomeMetrics((*best)->id);
+      store_->genomes().GetGenomeMetrics((*best)->id);
   if (!metrics.ok()) return ToGrpc(metrics.status());
   resp->mutable_genome()->mutable_metrics()->insert(metrics->begin(),
                                                     metrics->end());
@@ -194,22 +195,23 @@ grpc::Status RunServiceImpl::GetChampion(
 grpc::Status RunServiceImpl::GetHistory(
     grpc::ServerContext* ctx, const skerry::v1::GetHistoryRequest* req,
     skerry::v1::GetHistoryResponse* resp) {
-  absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
+  absl::StatusOr<store::RunRecord> rec =
+      store_->runs().GetRun(RunId(req->run_id()));
   if (!rec.ok()) return ToGrpc(rec.status());
   std::optional<uint32_t> island;
   if (!req->all_islands()) island = req->island();
   absl::StatusOr<std::vector<store::StatsRecord>> stats =
-      store_->GetStats(RunId(req->run_id()), island);
+      store_->runs().GetStats(RunId(req->run_id()), island);
   if (!stats.ok()) return ToGrpc(stats.status());
   absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>> validated =
-      store_->ChampionValidationScores(rec->id);
+      store_->validations().ChampionValidationScores(rec->id);
   if (!validated.ok()) return ToGrpc(validated.status());
-  auto metric_means = store_->MetricMeans(rec->id);
+  auto metric_means = store_->genomes().MetricMeans(rec->id);
   if (!metric_means.ok()) return ToGrpc(metric_means.status());
   std::map<std::pair<uint32_t, uint32_t>, std::map<uint32_t, uint32_t>>
       migrations;
   if (req->with_migrations()) {
-    auto counted = store_->MigrationCounts(rec->id);
+    auto counted = store_->genomes().MigrationCounts(rec->id);
     if (!counted.ok()) return ToGrpc(counted.status());
     migrations = *std::move(counted);
   }
@@ -243,9 +245,11 @@ grpc::Status RunServiceImpl::GetHistory(
 grpc::Status RunServiceImpl::GetDigest(grpc::ServerContext* ctx,
                                        const skerry::v1::RunRef* req,
                                        skerry::v1::DigestResponse* resp) {
-  absl::StatusOr<store::RunRecord> rec = store_->GetRun(RunId(req->run_id()));
+  absl::StatusOr<store::RunRecord> rec =
+      store_->runs().GetRun(RunId(req->run_id()));
   if (!rec.ok()) return ToGrpc(rec.status());
-  absl::StatusOr<store::Store::Digest> d = store_->RunDigest(rec->id);
+  absl::StatusOr<store::GenomeStore::Digest> d =
+      store_->genomes().RunDigest(rec->id);
   if (!d.ok()) return ToGrpc(d.status());
   resp->set_sha256(d->sha256);
   resp->set_genomes(d->genomes);

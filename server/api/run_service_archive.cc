@@ -12,7 +12,7 @@
 // digest of the file: in the delete's own transaction.
 //
 // Import writes the request's bytes to a temporary file beside the database
-// and merges it (Store::ImportRuns: checks first, ids remapped, one
+// and merges it (RunStore::ImportRuns: checks first, ids remapped, one
 // transaction); its active runs are loaded by the engine.
 #include <unistd.h>
 
@@ -76,7 +76,7 @@ grpc::Status RunServiceImpl::ArchiveRun(
           "confirm_content and confirm_file_sha256: 64 lower-case hex digits "
           "each, as the export's last chunk gave them");
     }
-    absl::StatusOr<store::Store::Deleted> deleted =
+    absl::StatusOr<store::RunStore::Deleted> deleted =
         engine_->Delete(run_id, req->confirm_content());
     if (!deleted.ok()) return ToGrpc(deleted.status());
     skerry::v1::ArchiveChunk out;
@@ -95,7 +95,7 @@ grpc::Status RunServiceImpl::ArchiveRun(
     return grpc::Status::OK;
   }
 
-  absl::StatusOr<store::RunRecord> run = store_->GetRun(run_id);
+  absl::StatusOr<store::RunRecord> run = store_->runs().GetRun(run_id);
   if (!run.ok()) return ToGrpc(run.status());
   if (run->state != skerry::v1::FINISHED && run->state != skerry::v1::STOPPED &&
       run->state != skerry::v1::FAILED_RUN) {
@@ -105,8 +105,9 @@ grpc::Status RunServiceImpl::ArchiveRun(
                                      "; stop it first (`skerry stop ", run_id,
                                      "`), then archive it"));
   }
-  TempFile tmp(store_->path(), "archive");
-  if (absl::Status s = store::BackupDatabase(store_->path(), run_id, tmp.path);
+  TempFile tmp(store_->db().path(), "archive");
+  if (absl::Status s =
+          store::BackupDatabase(store_->db().path(), run_id, tmp.path);
       !s.ok()) {
     return ToGrpc(s);
   }
@@ -162,7 +163,7 @@ grpc::Status RunServiceImpl::ImportRuns(
     return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT,
                         "file: empty; send an export's bytes");
   }
-  TempFile tmp(store_->path(), "import");
+  TempFile tmp(store_->db().path(), "import");
   FILE* f = std::fopen(tmp.path.c_str(), "wb");
   if (f == nullptr ||
       std::fwrite(req->file().data(), 1, req->file().size(), f) !=
@@ -173,7 +174,8 @@ grpc::Status RunServiceImpl::ImportRuns(
         absl::StrCat("cannot write the file beside the database (", tmp.path,
                      "); nothing imported"));
   }
-  absl::StatusOr<store::Store::Imported> imported = engine_->Import(tmp.path);
+  absl::StatusOr<store::RunStore::Imported> imported =
+      engine_->Import(tmp.path);
   if (!imported.ok()) {
     // The message names the temporary file: say "the file" instead.
     std::string message(imported.status().message());

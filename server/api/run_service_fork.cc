@@ -36,7 +36,7 @@ grpc::Status RunServiceImpl::ForkRun(grpc::ServerContext* ctx,
     return ToGrpc(s);
   }
   const int64_t parent_id = static_cast<int64_t>(req->run_id());
-  absl::StatusOr<store::RunRecord> parent = store_->GetRun(parent_id);
+  absl::StatusOr<store::RunRecord> parent = store_->runs().GetRun(parent_id);
   if (!parent.ok()) return ToGrpc(parent.status());
   absl::StatusOr<skerry::v1::RunSpec> merged =
       engine::MergeForkChanges(parent->spec, req->changes());
@@ -49,7 +49,7 @@ grpc::Status RunServiceImpl::ForkRun(grpc::ServerContext* ctx,
       caller.has_value() ? caller->principal : auth::kLocalPrincipal;
   auto earlier = [&]() -> absl::StatusOr<std::optional<int64_t>> {
     if (req->request_id().empty()) return std::optional<int64_t>();
-    return store_->FindRunByRequest(owner, req->request_id());
+    return store_->runs().FindRunByRequest(owner, req->request_id());
   };
   absl::StatusOr<std::optional<int64_t>> first = earlier();
   if (!first.ok()) return ToGrpc(first.status());
@@ -77,7 +77,7 @@ grpc::Status RunServiceImpl::DeleteRun(grpc::ServerContext* ctx,
                                        const skerry::v1::RunRef* req,
                                        skerry::v1::DeleteRunResponse* resp) {
   const int64_t run_id = static_cast<int64_t>(req->run_id());
-  absl::StatusOr<store::Store::Deleted> deleted = engine_->Delete(run_id);
+  absl::StatusOr<store::RunStore::Deleted> deleted = engine_->Delete(run_id);
   if (!deleted.ok()) return ToGrpc(deleted.status());
   resp->set_run_id(req->run_id());
   resp->set_genomes(deleted->genomes);

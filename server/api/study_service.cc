@@ -94,7 +94,7 @@ grpc::Status StudyServiceImpl::SubmitSeries(
       caller.has_value() ? caller->principal : auth::kLocalPrincipal;
   auto earlier = [&]() -> absl::StatusOr<std::optional<store::SeriesRecord>> {
     if (req->request_id().empty()) return std::optional<store::SeriesRecord>();
-    return store_->FindSeriesByRequest(owner, req->request_id());
+    return store_->runs().FindSeriesByRequest(owner, req->request_id());
   };
   absl::StatusOr<std::optional<store::SeriesRecord>> first = earlier();
   if (!first.ok()) return ToGrpc(first.status());
@@ -108,7 +108,7 @@ grpc::Status StudyServiceImpl::SubmitSeries(
   series.created_ms = absl::ToUnixMillis(absl::Now());
   if (req->name().empty()) {
     absl::StatusOr<std::string> name =
-        store_->UnusedSeriesName(DefaultName(prepared->name()));
+        store_->runs().UnusedSeriesName(DefaultName(prepared->name()));
     if (!name.ok()) return ToGrpc(name.status());
     series.name = *name;
   } else {
@@ -185,7 +185,7 @@ grpc::Status StudyServiceImpl::ExtendRun(
   absl::StatusOr<skerry::v1::RunSummary> summary = engine_->Summary(run_id);
   if (!summary.ok()) return ToGrpc(summary.status());
   *resp = *std::move(summary);
-  absl::StatusOr<std::string> series = store_->SeriesOfRun(run_id);
+  absl::StatusOr<std::string> series = store_->runs().SeriesOfRun(run_id);
   if (series.ok()) resp->set_series(*series);
   return grpc::Status::OK;
 }

@@ -44,15 +44,18 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
     case skerry::v1::GenomeRef::kId: {
       const auto id = static_cast<int64_t>(ref.id());
       SKERRY_RETURN_IF_ERROR(
-          store->GetGenome(id, store::Store::Genes::kStored).status());
+          store->genomes()
+              .GetGenome(id, store::GenomeStore::Genes::kStored)
+              .status());
       return id;
     }
     case skerry::v1::GenomeRef::kKey: {
       const skerry::v1::GenomeKey& k = ref.key();
       SKERRY_ASSIGN_OR_RETURN(
           std::vector<store::GenomeRecord> generation,
-          store->GetGeneration(static_cast<int64_t>(k.run_id()), k.island(),
-                               k.generation(), store::Store::Genes::kStored));
+          store->genomes().GetGeneration(static_cast<int64_t>(k.run_id()),
+                                         k.island(), k.generation(),
+                                         store::GenomeStore::Genes::kStored));
       for (const store::GenomeRecord& g : generation) {
         if (g.slot == k.slot()) return g.id;
       }
@@ -63,7 +66,7 @@ absl::StatusOr<int64_t> ResolveGenome(store::Store* store,
     case skerry::v1::GenomeRef::kChampionOfRun: {
       SKERRY_ASSIGN_OR_RETURN(
           store::RunRecord run,
-          store->GetRun(static_cast<int64_t>(ref.champion_of_run())));
+          store->runs().GetRun(static_cast<int64_t>(ref.champion_of_run())));
       if (run.champion_id == 0) {
         return absl::NotFoundError(absl::StrCat(
             "run ", run.id, " has no champion yet (no generation completed)"));
@@ -96,7 +99,7 @@ grpc::Status ValidationServiceImpl::GetValidation(
   absl::StatusOr<int64_t> id = ResolveGenome(store_, *req);
   if (!id.ok()) return ToGrpc(id.status());
   absl::StatusOr<std::optional<store::ValidationRecord>> v =
-      store_->GetValidation(*id);
+      store_->validations().GetValidation(*id);
   if (!v.ok()) return ToGrpc(v.status());
   if (!v->has_value()) {
     return ToGrpc(absl::NotFoundError(absl::StrCat(
@@ -110,14 +113,14 @@ grpc::Status ValidationServiceImpl::ListValidations(
     grpc::ServerContext*, const skerry::v1::ListValidationsRequest* req,
     skerry::v1::ListValidationsResponse* resp) {
   const auto run_id = static_cast<int64_t>(req->run_id());
-  if (absl::Status s = store_->GetRun(run_id).status(); !s.ok()) {
+  if (absl::Status s = store_->runs().GetRun(run_id).status(); !s.ok()) {
     return ToGrpc(s);
   }
   const uint32_t limit = req->limit() == 0
                              ? kDefaultListLimit
                              : std::min(req->limit(), kMaxListLimit);
   absl::StatusOr<std::vector<store::ValidationRecord>> list =
-      store_->ListValidations(run_id, static_cast<int>(limit));
+      store_->validations().ListValidations(run_id, static_cast<int>(limit));
   if (!list.ok()) return ToGrpc(list.status());
   for (const store::ValidationRecord& v : *list) {
     *resp->add_validations() = ToValidationProto(v);

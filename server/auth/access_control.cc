@@ -39,7 +39,8 @@ absl::StatusOr<AuthMode> ParseAuthMode(absl::string_view text) {
 
 absl::StatusOr<std::unique_ptr<AccessControl>> AccessControl::Open(
     store::Store* store, Clock* clock, AuthMode mode, bool read_only) {
-  SKERRY_ASSIGN_OR_RETURN(int64_t principals, store->CountPrincipals());
+  SKERRY_ASSIGN_OR_RETURN(int64_t principals,
+                          store->access().CountPrincipals());
   if (mode == AuthMode::kOn && principals == 0) {
     return absl::FailedPreconditionError(
         "--auth on: the database has no principal yet, so nobody could call "
@@ -50,7 +51,7 @@ absl::StatusOr<std::unique_ptr<AccessControl>> AccessControl::Open(
   std::unique_ptr<AccessControl> ac(
       new AccessControl(store, clock, enabled, read_only));
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::TokenRecord> tokens,
-                          store->ListTokens());
+                          store->access().ListTokens());
   absl::MutexLock l(&ac->mu_);
   for (const store::TokenRecord& t : tokens) {
     if (!t.revoked_ms.has_value()) ac->live_[t.hash] = FromRecord(t);
@@ -178,7 +179,7 @@ void AccessControl::Examine(Verdict* v, const void* request,
     const auto genome = static_cast<int64_t>(v->rule->genome_id(request));
     absl::StatusOr<store::GenomeRecord> g =
         genome == 0 ? absl::NotFoundError("no genome")
-                    : store_->GetGenome(genome);
+                    : store_->genomes().GetGenome(genome);
     // A missing genome leaves run 0: refused like a run of someone else's.
     if (g.ok()) v->run_id = g->run_id;
   }
@@ -187,7 +188,7 @@ void AccessControl::Examine(Verdict* v, const void* request,
       v->caller->role != skerry::v1::ROLE_ADMIN) {
     // A missing run and someone else's run get the same answer.
     absl::StatusOr<std::optional<std::string>> owner =
-        store_->RunOwner(v->run_id);
+        store_->access().RunOwner(v->run_id);
     if (!owner.ok()) {
       // The store's code says what to do (UNAVAILABLE: retry; DATA_LOSS: a
       // damaged database).
@@ -210,7 +211,7 @@ void AccessControl::Examine(Verdict* v, const void* request,
   e.method = v->method;
   e.run_id = v->run_id;
   e.peer = peer;
-  absl::StatusOr<int64_t> id = store_->BeginAudit(e);
+  absl::StatusOr<int64_t> id = store_->access().BeginAudit(e);
   if (id.ok()) {
     v->audit_id = *id;
   } else if (v->status.ok()) {
@@ -228,7 +229,7 @@ void AccessControl::Conclude(const Verdict& v, const grpc::Status& sent) {
   e.message = sent.error_message().substr(0, kMaxAuditMessageBytes);
   e.run_id = v.run_id;
   e.detail = v.detail;
-  absl::Status s = store_->FinishAudit(e);
+  absl::Status s = store_->access().FinishAudit(e);
   if (!s.ok()) {
     std::fprintf(stderr,
                  "skerry-coordinator: audit entry %lld: outcome not written: "
@@ -352,7 +353,7 @@ absl::StatusOr<AccessControl::IssuedToken> AccessControl::CreateToken(
           "admin, or skerry-coordinator --init-admin NAME)"));
     }
   }
-  SKERRY_RETURN_IF_ERROR(store_->CreateToken(&t.record));
+  SKERRY_RETURN_IF_ERROR(store_->access().CreateToken(&t.record));
   absl::MutexLock l(&mu_);
   live_[t.record.hash] = FromRecord(t.record);
   return t;
@@ -362,7 +363,7 @@ absl::StatusOr<store::TokenRecord> AccessControl::RevokeToken(
     int64_t token_id, const std::string& by) {
   SKERRY_ASSIGN_OR_RETURN(
       store::TokenRecord t,
-      store_->RevokeToken(token_id, by, clock_->WallMillis()));
+      store_->access().RevokeToken(token_id, by, clock_->WallMillis()));
   absl::MutexLock l(&mu_);
   live_.erase(t.hash);
   return t;
@@ -373,7 +374,7 @@ absl::StatusOr<AccessControl::IssuedToken> AccessControl::InitAdmin(
   SKERRY_ASSIGN_OR_RETURN(IssuedToken t,
                           Issue(name, skerry::v1::ROLE_ADMIN, "first admin",
                                 "--init-admin", clock));
-  SKERRY_RETURN_IF_ERROR(store->CreateFirstAdmin(&t.record));
+  SKERRY_RETURN_IF_ERROR(store->access().CreateFirstAdmin(&t.record));
   return t;
 }
 

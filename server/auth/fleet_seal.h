@@ -1,6 +1,6 @@
 // FleetSeal: the worker secrets and lease proofs of the worker protocol
 // (fleet.proto), both HMAC-SHA256 (RFC 2104) under one key kept in the
-// coordinator's database (Store::FleetKey).
+// coordinator's database (FleetStore::FleetKey).
 //
 // Invariant: a worker secret or lease proof is a pure function of the key and
 // what it names, so one issued before a coordinator restart is still valid

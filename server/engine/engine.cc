@@ -118,7 +118,7 @@ absl::StatusOr<std::unique_ptr<Engine>> Engine::Open(
   callbacks.idle = [e] { e->Idle(); };
   // A commit still running at shutdown's deadline is interrupted: its
   // transaction rolls back, its results were not acknowledged.
-  callbacks.interrupt = [store] { store->Interrupt(); };
+  callbacks.interrupt = [store] { store->db().Interrupt(); };
   engine->committer_ = std::make_unique<GroupCommit>(std::move(callbacks),
                                                      clock, absl::Seconds(1));
   engine->committer_->Start();
@@ -143,7 +143,7 @@ void Engine::Shutdown() {
 
 absl::Status Engine::Load() {
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs,
-                          store_->ListRuns());
+                          store_->runs().ListRuns());
   for (const store::RunRecord& r : runs) {
     if (!r.damage.ok()) {
       MarkDamaged(r.id, r.damage, &r);
@@ -217,15 +217,17 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
     // Its key alone: nothing rebuilt, whatever form its genes are kept in.
     SKERRY_ASSIGN_OR_RETURN(
         GenomeRecord champion,
-        store_->GetGenome(record.champion_id, store::Store::Genes::kStored));
+        store_->genomes().GetGenome(record.champion_id,
+                                    store::GenomeStore::Genes::kStored));
     run->champion_key =
         std::make_tuple(champion.generation, champion.island, champion.slot);
   }
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
-                          store_->GetIslands(record.id));
+                          store_->runs().GetIslands(record.id));
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::StatsRecord> stats,
-                          store_->GetStats(record.id, std::nullopt));
-  SKERRY_ASSIGN_OR_RETURN(auto states, store_->GetStrategyStates(record.id));
+                          store_->runs().GetStats(record.id, std::nullopt));
+  SKERRY_ASSIGN_OR_RETURN(auto states,
+                          store_->runs().GetStrategyStates(record.id));
   for (const store::IslandRecord& ir : islands) {
     Island island;
     island.index = ir.index;
@@ -256,10 +258,10 @@ absl::Status Engine::LoadRun(const store::RunRecord& record) {
     // A GA generation being evaluated comes with its genes (replayed when
     // kept as recipes); a done island's needs none.
     SKERRY_ASSIGN_OR_RETURN(
-        island.current,
-        store_->GetGeneration(record.id, ir.index, ir.generation,
-                              ir.done ? store::Store::Genes::kStored
-                                      : store::Store::Genes::kNotSamples));
+        island.current, store_->genomes().GetGeneration(
+                            record.id, ir.index, ir.generation,
+                            ir.done ? store::GenomeStore::Genes::kStored
+                                    : store::GenomeStore::Genes::kNotSamples));
     // A generation is written whole (invariant 3): a short one is damage (a
     // lost index entry, say), not a generation to finish with fewer genomes.
     const uint32_t pop = IslandPopulation(record.spec, ir.index);
@@ -374,7 +376,7 @@ absl::Status Engine::SetPriority(int64_t run_id, uint32_t priority) {
   SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
   absl::MutexLock l(&mu_);
   AwaitCommit();  // a writer: not during a result commit
-  absl::Status s = store_->SetRunPriority(
+  absl::Status s = store_->runs().SetRunPriority(
       run_id, static_cast<int32_t>(priority), clock_->WallMillis());
   if (!s.ok()) {
     if (!absl::IsNotFound(s)) NoteWriteFailure(s);
@@ -414,7 +416,8 @@ absl::StatusOr<store::RunRecord> Engine::Submit(RunSpec spec,
   rec.spec_text = std::move(spec_text);
   rec.state = skerry::v1::RUNNING;
   rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
-  if (absl::Status s = store_->CreateRun(&rec, &genomes, &states); !s.ok()) {
+  if (absl::Status s = store_->runs().CreateRun(&rec, &genomes, &states);
+      !s.ok()) {
     NoteWriteFailure(s);
     return s;
   }
@@ -477,14 +480,15 @@ absl::Status Engine::Transition(int64_t run_id, skerry::v1::RunState from,
   AwaitCommit();  // a writer: not during a result commit
   auto it = runs_.find(run_id);
   if (it == runs_.end() || it->second->record.state != from) {
-    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
+    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec,
+                            store_->runs().GetRun(run_id));
     return absl::FailedPreconditionError(absl::StrCat(
         "run ", run_id, " is ", skerry::v1::RunState_Name(rec.state),
         "; only a ", skerry::v1::RunState_Name(from), " run can be ", verb));
   }
   const std::string message = to == skerry::v1::PAUSED ? "paused" : "";
   if (absl::Status s =
-          store_->SetRunState(run_id, to, message, clock_->WallMillis());
+          store_->runs().SetRunState(run_id, to, message, clock_->WallMillis());
       !s.ok()) {
     NoteWriteFailure(s);
     return s;
@@ -500,7 +504,8 @@ absl::Status Engine::Stop(int64_t run_id) {
   AwaitCommit();  // a writer: not during a result commit
   auto it = runs_.find(run_id);
   if (it == runs_.end()) {
-    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
+    SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec,
+                            store_->runs().GetRun(run_id));
     return absl::FailedPreconditionError(absl::StrCat(
         "run ", run_id, " is already ", skerry::v1::RunState_Name(rec.state),
         "; nothing to stop"));
@@ -570,9 +575,10 @@ void Engine::ApplyReports(absl::Span<ReportJob* const> jobs,
   std::vector<store::ResultUpdate> updates;
   updates.reserve(applied.size());
   for (const Applied& a : applied) updates.push_back(a.update);
-  absl::Status committed = updates.empty() && validated.empty()
-                               ? absl::OkStatus()
-                               : store_->CommitResults(updates, validated);
+  absl::Status committed =
+      updates.empty() && validated.empty()
+          ? absl::OkStatus()
+          : store_->genomes().CommitResults(updates, validated);
   absl::MutexLock l(&mu_);
   committing_ = false;
   if (!committed.ok() && !IsStorageTrouble(committed) &&
@@ -812,7 +818,7 @@ void Engine::NoteWriteFailure(const absl::Status& s) {
 
 void Engine::RetryWrites() {
   if (write_problem_.ok()) return;
-  if (!store_->ProbeWrite().ok()) return;
+  if (!store_->db().ProbeWrite().ok()) return;
   std::fprintf(stderr,
                "skerry-coordinator: the database can be written again; work "
                "resumes\n");
@@ -871,8 +877,8 @@ absl::StatusOr<const std::vector<GenomeRecord>*> Engine::CompletedGeneration(
   }
   SKERRY_ASSIGN_OR_RETURN(
       std::vector<GenomeRecord> gen,
-      store_->GetGeneration(run.record.id, source, generation,
-                            store::Store::Genes::kStored));
+      store_->genomes().GetGeneration(run.record.id, source, generation,
+                                      store::GenomeStore::Genes::kStored));
   DropGenes(&gen);
   auto [pos, inserted] = s.completed.emplace(generation, std::move(gen));
   return &pos->second;
@@ -949,7 +955,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
           } else {
             // A read failure is the store's trouble, handled as any other.
             SKERRY_ASSIGN_OR_RETURN(GenomeRecord stored,
-                                    store_->GetGenome(m->id));
+                                    store_->genomes().GetGenome(m->id));
             copy.genes = std::move(stored.genes);
           }
           built_migrants.push_back(std::move(copy));
@@ -1049,7 +1055,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
     commit.validate = ChampionValidation(run, island.current, stats.best,
                                          commit.champion.has_value());
   }
-  if (absl::Status s = store_->CommitGeneration(commit); !s.ok()) {
+  if (absl::Status s = store_->runs().CommitGeneration(commit); !s.ok()) {
     // The cache stays as it was: the strategy forgets what it was told.
     if (!done) island.strategy->Restore(before).IgnoreError();
     return s;
@@ -1110,7 +1116,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
 absl::Status Engine::FinishRun(Run& run, skerry::v1::RunState state,
                                const std::string& message) {
   const int64_t id = run.record.id;
-  SKERRY_RETURN_IF_ERROR(store_->FinishRun(
+  SKERRY_RETURN_IF_ERROR(store_->runs().FinishRun(
       id, state, message, run.stop_generation, clock_->WallMillis()));
   queue_->RemoveRun(id);
   runs_.erase(id);
@@ -1121,9 +1127,9 @@ absl::Status Engine::FinishRun(Run& run, skerry::v1::RunState state,
 void Engine::FailRun(Run& run, const absl::Status& why) {
   const int64_t id = run.record.id;
   // FinishRun marks every island done too: an ended run has no live island.
-  absl::Status s =
-      store_->FinishRun(id, skerry::v1::FAILED_RUN, std::string(why.message()),
-                        std::nullopt, clock_->WallMillis());
+  absl::Status s = store_->runs().FinishRun(id, skerry::v1::FAILED_RUN,
+                                            std::string(why.message()),
+                                            std::nullopt, clock_->WallMillis());
   if (!s.ok()) {
     std::fprintf(stderr, "run %lld: could not record failure: %s\n",
                  static_cast<long long>(id), s.ToString().c_str());
@@ -1170,7 +1176,7 @@ absl::StatusOr<std::vector<skerry::v1::RunSummary>> Engine::ListSummaries() {
   // Read before the lock (from the read pool's snapshot): a long list does
   // not hold up the committer's next batch.
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs,
-                          store_->ListRuns());
+                          store_->runs().ListRuns());
   absl::MutexLock l(&mu_);
   std::vector<skerry::v1::RunSummary> out;
   for (const store::RunRecord& r : runs) {
@@ -1208,7 +1214,7 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
   if (it != runs_.end()) {
     rec = &it->second->record;
   } else {
-    SKERRY_ASSIGN_OR_RETURN(stored, store_->GetRun(run_id));
+    SKERRY_ASSIGN_OR_RETURN(stored, store_->runs().GetRun(run_id));
     rec = &stored;
   }
   s.set_id(static_cast<uint64_t>(rec->id));
@@ -1256,9 +1262,9 @@ absl::StatusOr<skerry::v1::RunSummary> Engine::SummaryLocked(int64_t run_id) {
     return s;
   }
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
-                          store_->GetIslands(run_id));
+                          store_->runs().GetIslands(run_id));
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::StatsRecord> stats,
-                          store_->GetStats(run_id, std::nullopt));
+                          store_->runs().GetStats(run_id, std::nullopt));
   for (const store::IslandRecord& ir : islands) {
     skerry::v1::IslandStatus* is = s.add_islands();
     is->set_island(ir.index);

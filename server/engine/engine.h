@@ -15,16 +15,16 @@
 //
 // Results arrive from any number of Report calls. They are grouped
 // (group_commit.h): one committer thread takes every batch waiting, applies the
-// lot in one transaction (Store::CommitResults), and only then answers the
-// callers (a result is acknowledged only after it is committed). The engine's
-// lock is not held while that transaction is written and synced: the results
-// are claimed under it, committed without it, and kept in the cache under it
-// again; reads (summaries, lists, watches) go on meanwhile, and every writer
-// waits for the commit in flight (AwaitCommit), so nothing the commit relies
-// on changes under it. Completed
-// generations are then bred, each in a transaction of its own with the
-// strategy's new state (Store::CommitGeneration); a failed commit restores the
-// strategy to the state saved before it was told.
+// lot in one transaction (GenomeStore::CommitResults), and only then answers
+// the callers (a result is acknowledged only after it is committed). The
+// engine's lock is not held while that transaction is written and synced: the
+// results are claimed under it, committed without it, and kept in the cache
+// under it again; reads (summaries, lists, watches) go on meanwhile, and every
+// writer waits for the commit in flight (AwaitCommit), so nothing the commit
+// relies on changes under it. Completed generations are then bred, each in a
+// transaction of its own with the strategy's new state
+// (RunStore::CommitGeneration); a failed commit restores the strategy to the
+// state saved before it was told.
 //
 // Stop rules, all deterministic except wall time:
 // - max_generations: an island stops after generation max_generations - 1.
@@ -41,8 +41,9 @@
 //   generation boundary past the limit (its final generation is complete);
 //   not reproducible.
 // Whatever ends a run (these rules, a user's stop, a failure) marks every
-// island done in the same transaction (Store::FinishRun). A run none of whose
-// genomes was ever scored ends FAILED_RUN with the last error, not FINISHED.
+// island done in the same transaction (RunStore::FinishRun). A run none of
+// whose genomes was ever scored ends FAILED_RUN with the last error, not
+// FINISHED.
 //
 // Migration (reproducible mode): the generation g+1 of an island at an epoch is
 // bred only once every source island has completed generation g (a source that
@@ -149,17 +150,17 @@ class Engine {
                                         std::string owner, uint32_t priority,
                                         std::string request_id);
   // Deletes an ended (or damaged) run and everything stored of it
-  // (engine_delete.cc; Store::DeleteRun says what is refused), and forgets
+  // (engine_delete.cc; RunStore::DeleteRun says what is refused), and forgets
   // its queued validations.
-  // `expected_content`: as Store::DeleteRun (`skerry archive`).
-  absl::StatusOr<store::Store::Deleted> Delete(
+  // `expected_content`: as RunStore::DeleteRun (`skerry archive`).
+  absl::StatusOr<store::RunStore::Deleted> Delete(
       int64_t run_id, const std::string& expected_content = std::string());
-  // Imports the runs of an export file (Store::ImportRuns) and loads those
+  // Imports the runs of an export file (RunStore::ImportRuns) and loads those
   // that are active, as a restart would (engine_delete.cc).
-  absl::StatusOr<store::Store::Imported> Import(const std::string& file);
+  absl::StatusOr<store::RunStore::Imported> Import(const std::string& file);
   // A seed series (engine_series.cc): one run of `spec` per seed (the spec's
   // own seed replaced), all stored with the series in one transaction, or
-  // none. `series` names it (Store::CreateSeries refuses a name in use);
+  // none. `series` names it (RunStore::CreateSeries refuses a name in use);
   // members and ids are filled in.
   absl::StatusOr<std::vector<store::RunRecord>> SubmitSeries(
       skerry::v1::RunSpec spec, std::string spec_text,

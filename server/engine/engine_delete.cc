@@ -8,7 +8,7 @@
 
 namespace skerry::engine {
 
-absl::StatusOr<store::Store::Deleted> Engine::Delete(
+absl::StatusOr<store::RunStore::Deleted> Engine::Delete(
     int64_t run_id, const std::string& expected_content) {
   absl::MutexLock l(&mu_);
   AwaitCommit();  // a writer: not during a result commit
@@ -18,8 +18,8 @@ absl::StatusOr<store::Store::Deleted> Engine::Delete(
         skerry::v1::RunState_Name(it->second->record.state),
         "; stop it first (`skerry stop ", run_id, "`), then delete it"));
   }
-  absl::StatusOr<store::Store::Deleted> deleted =
-      store_->DeleteRun(run_id, expected_content);
+  absl::StatusOr<store::RunStore::Deleted> deleted =
+      store_->runs().DeleteRun(run_id, expected_content);
   if (!deleted.ok()) {
     NoteWriteFailure(deleted.status());
     return deleted;
@@ -41,10 +41,12 @@ absl::StatusOr<store::Store::Deleted> Engine::Delete(
   return deleted;
 }
 
-absl::StatusOr<store::Store::Imported> Engine::Import(const std::string& file) {
+absl::StatusOr<store::RunStore::Imported> Engine::Import(
+    const std::string& file) {
   // Outside the engine's lock: a large file takes a while, and the store
   // serialises its writes itself.
-  absl::StatusOr<store::Store::Imported> imported = store_->ImportRuns(file);
+  absl::StatusOr<store::RunStore::Imported> imported =
+      store_->runs().ImportRuns(file);
   absl::MutexLock l(&mu_);
   AwaitCommit();  // LoadRun changes the cache and the queue
   if (!imported.ok()) {
@@ -53,7 +55,7 @@ absl::StatusOr<store::Store::Imported> Engine::Import(const std::string& file) {
   }
   // An active run of the file goes on here, as a restart would load it.
   for (const auto& [from, to] : imported->runs) {
-    SKERRY_ASSIGN_OR_RETURN(store::RunRecord r, store_->GetRun(to));
+    SKERRY_ASSIGN_OR_RETURN(store::RunRecord r, store_->runs().GetRun(to));
     if (!r.damage.ok()) {
       MarkDamaged(r.id, r.damage, &r);
       continue;

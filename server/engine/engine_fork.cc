@@ -1,7 +1,7 @@
 // Engine::Fork (engine.h): a new run from another's populations at a
 // generation. The parent's rows are read through the store's checked reads
 // (checksums, whole generations), copied, stored in one transaction
-// (Store::CreateFork) with each island's strategy state at that generation
+// (RunStore::CreateFork) with each island's strategy state at that generation
 // (strategy_replay.h), and the new run is then loaded exactly as a restart
 // loads a run, so that a fork and a restarted run take one path.
 #include <algorithm>
@@ -19,7 +19,8 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
     int64_t parent_id, uint32_t generation, skerry::v1::RunSpec spec,
     std::string spec_text, std::string owner, uint32_t priority,
     std::string request_id) {
-  SKERRY_ASSIGN_OR_RETURN(store::RunRecord parent, store_->GetRun(parent_id));
+  SKERRY_ASSIGN_OR_RETURN(store::RunRecord parent,
+                          store_->runs().GetRun(parent_id));
   if (parent.parent_run != 0 && generation == parent.parent_generation) {
     // Its genomes there are copies whose links lead into its own parent:
     // forking that run instead keeps every fork's links one run deep.
@@ -34,7 +35,7 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
   }
   SKERRY_RETURN_IF_ERROR(CheckPriority(priority));
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
-                          store_->GetIslands(parent_id));
+                          store_->runs().GetIslands(parent_id));
   for (const store::IslandRecord& ir : islands) {
     if (ir.generation < generation) {
       return absl::FailedPreconditionError(
@@ -50,7 +51,7 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
   for (const store::IslandRecord& ir : islands) {
     SKERRY_ASSIGN_OR_RETURN(
         std::vector<store::GenomeRecord> gen,
-        store_->GetGeneration(parent_id, ir.index, generation));
+        store_->genomes().GetGeneration(parent_id, ir.index, generation));
     const uint32_t pop = IslandPopulation(parent.spec, ir.index);
     if (gen.size() != pop) {
       // A run ended by its target score keeps no generation past it.
@@ -79,7 +80,7 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
     }
   }
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::StatsRecord> all_stats,
-                          store_->GetStats(parent_id, std::nullopt));
+                          store_->runs().GetStats(parent_id, std::nullopt));
   std::vector<store::StatsRecord> stats;
   for (const store::StatsRecord& s : all_stats) {
     if (s.generation < generation) stats.push_back(s);
@@ -106,7 +107,8 @@ absl::StatusOr<store::RunRecord> Engine::Fork(
   rec.created_ms = rec.updated_ms = rec.started_ms = clock_->WallMillis();
   rec.parent_run = parent_id;
   rec.parent_generation = generation;
-  if (absl::Status s = store_->CreateFork(&rec, &stats, &genomes, states);
+  if (absl::Status s =
+          store_->runs().CreateFork(&rec, &stats, &genomes, states);
       !s.ok()) {
     NoteWriteFailure(s);
     return s;

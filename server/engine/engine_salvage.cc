@@ -52,7 +52,7 @@ void Engine::SalvageBatch(std::vector<AppliedResult>* applied,
   std::vector<AppliedResult> stored;
   for (AppliedResult& a : *applied) {
     store::ResultUpdate& u = a.update;
-    absl::Status s = store_->CommitResults({u}, {});
+    absl::Status s = store_->genomes().CommitResults({u}, {});
     if (!s.ok() && !IsStorageTrouble(s) && !absl::IsDataLoss(s)) {
       u.error = NotStorable(s);
       u.score = 0.0;
@@ -60,7 +60,7 @@ void Engine::SalvageBatch(std::vector<AppliedResult>* applied,
       u.eval_seconds = 0.0;
       u.state = u.attempts >= a.max_attempts ? skerry::v1::FAILED
                                              : skerry::v1::PENDING;
-      s = store_->CommitResults({u}, {});
+      s = store_->genomes().CommitResults({u}, {});
     }
     if (s.ok()) {
       stored.push_back(std::move(a));
@@ -80,12 +80,12 @@ void Engine::SalvageBatch(std::vector<AppliedResult>* applied,
   for (size_t i = 0; i < validated->size(); ++i) {
     const ValidatedResult& from = (*validated_from)[i];
     store::ValidationUpdate& u = (*validated)[i];
-    absl::Status s = store_->CommitResults({}, {u});
+    absl::Status s = store_->genomes().CommitResults({}, {u});
     if (!s.ok() && !IsStorageTrouble(s) && !absl::IsDataLoss(s)) {
       skerry::v1::TaskResult failed = *from.result;
       failed.set_error(NotStorable(s));
       u = ValidationOutcome(from.info, failed, /*failed=*/true);
-      s = store_->CommitResults({}, {u});
+      s = store_->genomes().CommitResults({}, {u});
     }
     if (s.ok()) {
       kept.push_back(u);

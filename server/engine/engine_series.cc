@@ -70,7 +70,7 @@ absl::StatusOr<std::vector<store::RunRecord>> Engine::SubmitSeries(
   absl::MutexLock l(&mu_);
   AwaitCommit();  // a writer: not during a result commit
   if (absl::Status s =
-          store_->CreateSeries(series, &records, &genomes, &states);
+          store_->runs().CreateSeries(series, &records, &genomes, &states);
       !s.ok()) {
     if (!absl::IsAlreadyExists(s)) NoteWriteFailure(s);
     return s;
@@ -82,7 +82,7 @@ absl::StatusOr<std::vector<store::RunRecord>> Engine::SubmitSeries(
 }
 
 absl::Status Engine::Extend(int64_t run_id, const skerry::v1::StopSpec& stop) {
-  SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->GetRun(run_id));
+  SKERRY_ASSIGN_OR_RETURN(store::RunRecord rec, store_->runs().GetRun(run_id));
   {
     absl::MutexLock l(&mu_);
     if (auto d = damaged_.find(run_id); d != damaged_.end()) {
@@ -149,8 +149,8 @@ absl::Status Engine::Extend(int64_t run_id, const skerry::v1::StopSpec& stop) {
     }
     return states.status();
   }
-  if (absl::Status s =
-          store_->ExtendRun(run_id, prepared, clock_->WallMillis(), *states);
+  if (absl::Status s = store_->runs().ExtendRun(run_id, prepared,
+                                                clock_->WallMillis(), *states);
       !s.ok()) {
     if (absl::IsDataLoss(s)) {
       MarkDamaged(run_id, s, &rec);
@@ -159,7 +159,7 @@ absl::Status Engine::Extend(int64_t run_id, const skerry::v1::StopSpec& stop) {
     }
     return s;
   }
-  SKERRY_ASSIGN_OR_RETURN(rec, store_->GetRun(run_id));
+  SKERRY_ASSIGN_OR_RETURN(rec, store_->runs().GetRun(run_id));
   absl::Status loaded = LoadRun(rec);
   if (absl::IsDataLoss(loaded)) MarkDamaged(run_id, loaded, &rec);
   NotifyChange();

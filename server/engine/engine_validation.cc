@@ -19,7 +19,7 @@ uint32_t CaseCount(const skerry::v1::RunSpec& spec) {
 
 absl::Status Engine::LoadValidations() {
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::ValidationRecord> pending,
-                          store_->PendingValidations());
+                          store_->validations().PendingValidations());
   std::map<int64_t, skerry::v1::RunSpec> specs;  // of runs no longer active
   for (const store::ValidationRecord& v : pending) {
     auto active = runs_.find(v.run_id);
@@ -29,7 +29,8 @@ absl::Status Engine::LoadValidations() {
     }
     auto it = specs.find(v.run_id);
     if (it == specs.end()) {
-      SKERRY_ASSIGN_OR_RETURN(store::RunRecord run, store_->GetRun(v.run_id));
+      SKERRY_ASSIGN_OR_RETURN(store::RunRecord run,
+                              store_->runs().GetRun(v.run_id));
       it = specs.emplace(v.run_id, std::move(run.spec)).first;
     }
     QueueValidation(v, v.genes, it->second);
@@ -91,7 +92,7 @@ void Engine::QueueChampionValidation(const Run& run,
                                      const store::GenomeRecord& g,
                                      const std::vector<double>& genes) {
   absl::StatusOr<std::optional<store::ValidationRecord>> v =
-      store_->GetValidation(g.id);
+      store_->validations().GetValidation(g.id);
   if (!v.ok() || !v->has_value()) {
     // Stored with the generation: queued at the next start at the latest.
     std::fprintf(stderr,
@@ -110,7 +111,7 @@ absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(
   absl::MutexLock l(&mu_);
   AwaitCommit();  // a writer: not during a result commit
   SKERRY_ASSIGN_OR_RETURN(store::GenomeRecord genome,
-                          store_->GetGenome(genome_id));
+                          store_->genomes().GetGenome(genome_id));
   const Run* active = nullptr;
   if (auto it = runs_.find(genome.run_id); it != runs_.end()) {
     active = it->second.get();
@@ -120,7 +121,7 @@ absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(
     spec = active->record.spec;
   } else {
     SKERRY_ASSIGN_OR_RETURN(store::RunRecord run,
-                            store_->GetRun(genome.run_id));
+                            store_->runs().GetRun(genome.run_id));
     spec = std::move(run.spec);
   }
   if (!HasValidation(spec.evaluator())) {
@@ -134,7 +135,8 @@ absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(
   req.reason = skerry::v1::REQUESTED;
   req.requested_by = requested_by;
   req.now_ms = clock_->WallMillis();
-  absl::StatusOr<store::ValidationRecord> v = store_->RequestValidation(req);
+  absl::StatusOr<store::ValidationRecord> v =
+      store_->validations().RequestValidation(req);
   if (!v.ok()) {
     NoteWriteFailure(v.status());
     return v.status();

@@ -112,7 +112,7 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
                        " forks deep; fork an earlier run of the chain"));
     }
     SKERRY_ASSIGN_OR_RETURN(store::RunRecord parent,
-                            store.GetRun(run.parent_run));
+                            store.runs().GetRun(run.parent_run));
     SKERRY_ASSIGN_OR_RETURN(
         std::vector<skerry::v1::StrategyState> start,
         Replay(store, parent,
@@ -133,7 +133,7 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
     for (uint32_t i = 0; i < count; ++i) {
       SKERRY_ASSIGN_OR_RETURN(made, strategies[i]->Start());
       SKERRY_ASSIGN_OR_RETURN(std::vector<GenomeRecord> stored,
-                              store.GetGeneration(run.id, i, 0));
+                              store.genomes().GetGeneration(run.id, i, 0));
       SKERRY_RETURN_IF_ERROR(SameGeneration(run, i, 0, made, stored));
     }
   }
@@ -146,7 +146,8 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
   std::vector<std::vector<GenomeRecord>> current(count);
   for (uint32_t i = 0; i < count && first < last; ++i) {
     if (targets[i] < first) continue;
-    SKERRY_ASSIGN_OR_RETURN(current[i], store.GetGeneration(run.id, i, first));
+    SKERRY_ASSIGN_OR_RETURN(current[i],
+                            store.genomes().GetGeneration(run.id, i, first));
   }
   auto whole = [&](uint32_t i, uint32_t h) -> absl::Status {
     if (current[i].size() == IslandPopulation(spec, i)) return absl::OkStatus();
@@ -171,7 +172,8 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> Replay(
       }
       SKERRY_ASSIGN_OR_RETURN(made,
                               strategies[i]->TellAndAsk(current[i], migrants));
-      SKERRY_ASSIGN_OR_RETURN(next[i], store.GetGeneration(run.id, i, h + 1));
+      SKERRY_ASSIGN_OR_RETURN(next[i],
+                              store.genomes().GetGeneration(run.id, i, h + 1));
       SKERRY_RETURN_IF_ERROR(SameGeneration(run, i, h + 1, made, next[i]));
     }
     for (uint32_t i = 0; i < count; ++i) {
@@ -204,8 +206,8 @@ absl::StatusOr<std::vector<skerry::v1::StrategyState>> ReplayStrategyStates(
 absl::StatusOr<std::vector<std::string>> StatesToGoOn(
     store::Store& store, const store::RunRecord& run) {
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::IslandRecord> islands,
-                          store.GetIslands(run.id));
-  SKERRY_ASSIGN_OR_RETURN(auto stored, store.GetStrategyStates(run.id));
+                          store.runs().GetIslands(run.id));
+  SKERRY_ASSIGN_OR_RETURN(auto stored, store.runs().GetStrategyStates(run.id));
   const uint32_t count = std::max<uint32_t>(1, run.spec.islands().count());
   if (islands.size() != count) {
     return absl::DataLossError(absl::StrCat("run ", run.id, " holds ",

@@ -18,12 +18,13 @@ int64_t FileBytes(const std::string& path) {
 
 absl::StatusOr<skerry::v1::ListWorkersResponse> ListWorkers(
     const CoordinatorParts& parts, uint32_t limit) {
-  SKERRY_ASSIGN_OR_RETURN(std::vector<store::Store::WorkerRow> rows,
-                          parts.store->ListWorkers(static_cast<int>(limit)));
+  SKERRY_ASSIGN_OR_RETURN(
+      std::vector<store::FleetStore::WorkerRow> rows,
+      parts.store->fleet().ListWorkers(static_cast<int>(limit)));
   const scheduler::TaskQueue::Load load = parts.queue->load();
   const FleetMetrics::Snapshot counts = parts.metrics->Get();
   skerry::v1::ListWorkersResponse resp;
-  for (const store::Store::WorkerRow& row : rows) {
+  for (const store::FleetStore::WorkerRow& row : rows) {
     const store::WorkerRecord& w = row.worker;
     skerry::v1::WorkerInfo* info = resp.add_workers();
     info->set_id(static_cast<uint64_t>(w.id));
@@ -53,7 +54,7 @@ absl::StatusOr<skerry::v1::ListWorkersResponse> ListWorkers(
 absl::StatusOr<CoordinatorGauges> GatherGauges(const CoordinatorParts& parts) {
   CoordinatorGauges g;
   SKERRY_ASSIGN_OR_RETURN(std::vector<store::RunRecord> runs,
-                          parts.store->ListRuns());
+                          parts.store->runs().ListRuns());
   for (const store::RunRecord& r : runs) {
     g.evaluations_by_run[static_cast<uint64_t>(r.id)] =
         static_cast<uint64_t>(r.evaluations);

@@ -210,8 +210,9 @@ class Checker {
     // parent's. Instead, a sample of the keyframes is replayed from their
     // recipes and ancestry and compared with the genes kept.
     if (KeyframeInterval(spec) > 1) {
-      SKERRY_ASSIGN_OR_RETURN(std::vector<std::string> replayed,
-                              Store::CheckKeyframes(c_, run, kKeyframeSample));
+      SKERRY_ASSIGN_OR_RETURN(
+          std::vector<std::string> replayed,
+          GenomeStore::CheckKeyframes(c_, run, kKeyframeSample));
       for (std::string& p : replayed) {
         Problem(absl::StrCat("run ", run, ": ", p));
       }
@@ -344,7 +345,7 @@ class Checker {
 };
 
 // An ended run (finished, stopped, failed) has no live island: whatever ended
-// it marked every island done in the same transaction (Store::FinishRun).
+// it marked every island done in the same transaction (RunStore::FinishRun).
 absl::Status CheckEndedRunIslandsDone(Checker& checker, int64_t run,
                                       int state) {
   if (state != skerry::v1::FINISHED && state != skerry::v1::STOPPED &&
@@ -412,7 +413,7 @@ absl::StatusOr<CheckReport> CheckDatabase(const std::string& path,
     checker.has_strategy_states = row.ok() && *row && v->ColumnInt(0) >= 10;
     // The schema of the current version, compared object by object (an older
     // version is migrated by the coordinator's next start, not compared).
-    if (row.ok() && *row && v->ColumnInt(0) == Store::kSchemaVersion) {
+    if (row.ok() && *row && v->ColumnInt(0) == Database::kSchemaVersion) {
       if (absl::Status schema = VerifySchema(conn.get()); !schema.ok()) {
         checker.Problem(std::string(schema.message()));
       }

@@ -1,5 +1,5 @@
-// Store::CreateFork (store.h): a new run made from another's populations at a
-// generation, in one transaction.
+// RunStore::CreateFork (store.h): a new run made from another's populations at
+// a generation, in one transaction.
 //
 // What a fork holds of its parent (docs/user-guide.md, "Forking a run"):
 // - the run row names the parent (parent_run, parent_generation);
@@ -17,20 +17,21 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/status_macros.h"
-#include "server/store/store.h"
+#include "server/store/genome_store.h"
+#include "server/store/run_store.h"
 
 namespace skerry::store {
 
-absl::Status Store::CreateFork(
+absl::Status RunStore::CreateFork(
     RunRecord* run, std::vector<StatsRecord>* stats,
     std::vector<GenomeRecord>* genomes,
     const std::vector<std::string>& strategy_states) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
   {
     // The parent may have been deleted since the engine read it.
     SKERRY_ASSIGN_OR_RETURN(auto q,
-                            conn_->Prepare("SELECT 1 FROM runs WHERE id = ?1"));
+                            w->Prepare("SELECT 1 FROM runs WHERE id = ?1"));
     q.BindInt(1, run->parent_run);
     SKERRY_ASSIGN_OR_RETURN(bool found, q.Step());
     if (!found) {
@@ -43,13 +44,12 @@ absl::Status Store::CreateFork(
     // The rule of `--check`: the counter counts stored evaluations.
     if (g.attempts > 0 && g.state != skerry::v1::PENDING) ++evaluations;
   }
-  SKERRY_RETURN_IF_ERROR(
-      InsertRunRow(run, run->parent_run, run->parent_generation, evaluations));
+  SKERRY_RETURN_IF_ERROR(InsertRunRow(w, run, run->parent_run,
+                                      run->parent_generation, evaluations));
   {
     SKERRY_ASSIGN_OR_RETURN(
-        auto isl,
-        conn_->Prepare("INSERT INTO islands (run_id, idx, generation, "
-                       "done) VALUES (?, ?, ?, 0)"));
+        auto isl, w->Prepare("INSERT INTO islands (run_id, idx, generation, "
+                             "done) VALUES (?, ?, ?, 0)"));
     const uint32_t count = std::max<uint32_t>(1, run->spec.islands().count());
     for (uint32_t i = 0; i < count; ++i) {
       isl.BindInt(1, run->id);
@@ -58,14 +58,14 @@ absl::Status Store::CreateFork(
       SKERRY_RETURN_IF_ERROR(isl.Run());
     }
     SKERRY_RETURN_IF_ERROR(InsertStrategyStates(
-        run->id, count, run->parent_generation, &strategy_states));
+        w, run->id, count, run->parent_generation, &strategy_states));
   }
   for (StatsRecord& s : *stats) {
     s.run_id = run->id;
-    SKERRY_RETURN_IF_ERROR(InsertStats(s));
+    SKERRY_RETURN_IF_ERROR(InsertStats(w, s));
   }
   for (GenomeRecord& g : *genomes) g.run_id = run->id;
-  SKERRY_RETURN_IF_ERROR(InsertGenomes(genomes));
+  SKERRY_RETURN_IF_ERROR(GenomeStore::Insert(w, genomes));
   return txn.Commit();
 }
 

@@ -1,17 +1,18 @@
-// The store's evaluator metrics (table genome_metrics; see store.h).
+// GenomeStore's evaluator metrics (table genome_metrics; genome_store.h).
 #include <utility>
 
 #include "absl/strings/str_cat.h"
 #include "common/status_macros.h"
-#include "server/store/store.h"
+#include "server/store/genome_store.h"
 
 namespace skerry::store {
 
-absl::Status Store::InsertMetricsLocked(const ResultUpdate& r) {
-  SKERRY_ASSIGN_OR_RETURN(
-      auto ins, conn_->Prepare("INSERT OR REPLACE INTO genome_metrics "
-                               "(run_id, genome_id, name, value) "
-                               "VALUES (?, ?, ?, ?)"));
+absl::Status GenomeStore::InsertMetrics(Database::Writer& w,
+                                        const ResultUpdate& r) {
+  SKERRY_ASSIGN_OR_RETURN(auto ins,
+                          w->Prepare("INSERT OR REPLACE INTO genome_metrics "
+                                     "(run_id, genome_id, name, value) "
+                                     "VALUES (?, ?, ?, ?)"));
   for (const auto& [name, value] : r.metrics) {
     ins.BindInt(1, r.run_id);
     ins.BindInt(2, r.genome_id);
@@ -22,9 +23,9 @@ absl::Status Store::InsertMetricsLocked(const ResultUpdate& r) {
   return absl::OkStatus();
 }
 
-absl::StatusOr<std::map<std::string, double>> Store::GetGenomeMetrics(
+absl::StatusOr<std::map<std::string, double>> GenomeStore::GetGenomeMetrics(
     int64_t genome_id) {
-  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
       reader->PrepareCached("SELECT name, value FROM genome_metrics WHERE "
@@ -41,8 +42,8 @@ absl::StatusOr<std::map<std::string, double>> Store::GetGenomeMetrics(
 
 absl::StatusOr<
     std::map<std::pair<uint32_t, uint32_t>, std::map<std::string, double>>>
-Store::MetricMeans(int64_t run_id) {
-  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
+GenomeStore::MetricMeans(int64_t run_id) {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s, reader->PrepareCached(
                   "SELECT g.island, g.generation, m.name, avg(m.value) "

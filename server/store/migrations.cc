@@ -1,6 +1,6 @@
-// Store::MigrationCounts: every migration event of a run, for the report's
-// migration chart. A migrant is a genome of origin MIGRANT, a copy of its
-// parent a from another island's previous generation (server/engine/
+// GenomeStore::MigrationCounts: every migration event of a run, for the
+// report's migration chart. A migrant is a genome of origin MIGRANT, a copy of
+// its parent a from another island's previous generation (server/engine/
 // breeder.h), so (its island, its generation, its parent's island) is one
 // event of one island pair.
 #include <map>
@@ -8,20 +8,20 @@
 
 #include "absl/strings/str_cat.h"
 #include "common/status_macros.h"
+#include "server/store/genome_store.h"
 #include "server/store/row_sums.h"
-#include "server/store/store.h"
 
 namespace skerry::store {
 
 absl::StatusOr<
     std::map<std::pair<uint32_t, uint32_t>, std::map<uint32_t, uint32_t>>>
-Store::MigrationCounts(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+GenomeStore::MigrationCounts(int64_t run_id) {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   // Each migrant row is verified against its checksum (row_sums.h): a damaged
   // one is DATA_LOSS naming it, never a wrong count.
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      reader->PrepareCached(absl::StrCat(
           "SELECT g.island, g.generation, (SELECT p.island FROM genomes p "
           "WHERE p.id = g.parent_a), count(*) FROM genomes g WHERE g.run_id "
           "= ?1 AND g.origin = ?2 AND ",

@@ -110,4 +110,8 @@ int RegisterRowSumFunction(sqlite3* db) {
                                     &GenomeChecked, nullptr, nullptr, nullptr);
 }
 
+std::string SumMatches(const char* columns) {
+  return absl::StrCat("(sum IS skerry_row_sum(", columns, "))");
+}
+
 }  // namespace skerry::store

@@ -83,6 +83,10 @@ absl::Status DamagedGenome(int64_t run_id, uint32_t island, uint32_t generation,
 // `what` names the row: "island 2", "island 2 generation 7 statistics".
 absl::Status DamagedRow(int64_t run_id, const std::string& what);
 
+// Selected after a table's columns: 1 when the row matches its checksum.
+// `columns`: one of the k*SumColumns lists above.
+std::string SumMatches(const char* columns);
+
 // Registers skerry_row_sum(...) and skerry_genome_checked(...) on `db`.
 // SQLITE_OK or SQLite's error code.
 int RegisterRowSumFunction(sqlite3* db);

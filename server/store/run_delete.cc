@@ -1,4 +1,4 @@
-// Store::DeleteRun (store.h): every row of an ended run, in one transaction,
+// RunStore::DeleteRun (store.h): every row of an ended run, in one transaction,
 // then the freed pages given back to the file system.
 //
 // A run's membership of a seed series goes with it, and a series left
@@ -12,7 +12,7 @@
 #include "absl/strings/str_join.h"
 #include "common/status_macros.h"
 #include "server/store/run_content.h"
-#include "server/store/store.h"
+#include "server/store/run_store.h"
 
 namespace skerry::store {
 namespace {
@@ -24,17 +24,17 @@ bool Ended(int64_t state) {
 
 }  // namespace
 
-absl::StatusOr<Store::Deleted> Store::DeleteRun(
+absl::StatusOr<RunStore::Deleted> RunStore::DeleteRun(
     int64_t run_id, const std::string& expected_content) {
-  absl::MutexLock l(&mu_);
+  Database::Writer w = db_->Write();
   Deleted out;
   {
-    SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+    SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
     {
       // The state column is read without the checksum: a damaged run may be
       // deleted too (that is one way out of damage).
       SKERRY_ASSIGN_OR_RETURN(
-          auto q, conn_->Prepare("SELECT state FROM runs WHERE id = ?1"));
+          auto q, w->Prepare("SELECT state FROM runs WHERE id = ?1"));
       q.BindInt(1, run_id);
       SKERRY_ASSIGN_OR_RETURN(bool found, q.Step());
       if (!found) {
@@ -50,8 +50,8 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(
     }
     {
       SKERRY_ASSIGN_OR_RETURN(
-          auto q, conn_->Prepare("SELECT id FROM runs WHERE parent_run = ?1 "
-                                 "ORDER BY id LIMIT 20"));
+          auto q, w->Prepare("SELECT id FROM runs WHERE parent_run = ?1 "
+                             "ORDER BY id LIMIT 20"));
       q.BindInt(1, run_id);
       std::vector<int64_t> forks;
       while (true) {
@@ -69,7 +69,7 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(
     if (!expected_content.empty()) {
       // In the delete's own transaction: nothing can change in between.
       SKERRY_ASSIGN_OR_RETURN(std::string now,
-                              RunContentDigest(conn_.get(), run_id));
+                              RunContentDigest(w.conn(), run_id));
       if (now != expected_content) {
         return absl::FailedPreconditionError(absl::StrCat(
             "run ", run_id,
@@ -81,14 +81,13 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(
     }
     {
       SKERRY_ASSIGN_OR_RETURN(
-          auto q,
-          conn_->Prepare("SELECT count(*) FROM genomes WHERE run_id = ?1"));
+          auto q, w->Prepare("SELECT count(*) FROM genomes WHERE run_id = ?1"));
       q.BindInt(1, run_id);
       SKERRY_ASSIGN_OR_RETURN(bool row, q.Step());
       if (row) out.genomes = static_cast<uint64_t>(q.ColumnInt(0));
     }
     // The run's ids (and its genomes' task ids) are not given again.
-    SKERRY_RETURN_IF_ERROR(RaiseIdFloorsLocked());
+    SKERRY_RETURN_IF_ERROR(Database::RaiseIdFloors(w));
     for (const char* sql : {"DELETE FROM genome_metrics WHERE run_id = ?1",
                             "DELETE FROM strategy_states WHERE run_id = ?1",
                             "DELETE FROM validations WHERE run_id = ?1",
@@ -101,7 +100,7 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(
                             "DELETE FROM series WHERE id NOT IN (SELECT "
                             "series_id FROM series_runs)",
                             "DELETE FROM runs WHERE id = ?1"}) {
-      SKERRY_ASSIGN_OR_RETURN(auto st, conn_->Prepare(sql));
+      SKERRY_ASSIGN_OR_RETURN(auto st, w->Prepare(sql));
       // Every bind is checked (sqlite.h): bind only where there is a ?1.
       if (absl::string_view(sql).find("?1") != absl::string_view::npos) {
         st.BindInt(1, run_id);
@@ -113,9 +112,8 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(
   // Outside the transaction: the rows are gone whatever happens here. With
   // auto_vacuum=NONE (a file made before this version) it does nothing, and
   // the free pages are reused by later rows instead.
-  auto pages = [this]() -> absl::StatusOr<int64_t> {
-    mu_.AssertHeld();  // called under the lock above (for -Wthread-safety)
-    SKERRY_ASSIGN_OR_RETURN(auto q, conn_->Prepare("PRAGMA page_count"));
+  auto pages = [&w]() -> absl::StatusOr<int64_t> {
+    SKERRY_ASSIGN_OR_RETURN(auto q, w->Prepare("PRAGMA page_count"));
     SKERRY_ASSIGN_OR_RETURN(bool row, q.Step());
     return row ? q.ColumnInt(0) : 0;
   };
@@ -123,11 +121,10 @@ absl::StatusOr<Store::Deleted> Store::DeleteRun(
   // meets: a failed vacuum gives nothing back now (bytes_freed 0), and the
   // next one gives back every free page, these too.
   auto vacuum = [&]() -> absl::StatusOr<uint64_t> {
-    mu_.AssertHeld();
     SKERRY_ASSIGN_OR_RETURN(int64_t before, pages());
-    SKERRY_RETURN_IF_ERROR(conn_->Exec("PRAGMA incremental_vacuum"));
+    SKERRY_RETURN_IF_ERROR(w->Exec("PRAGMA incremental_vacuum"));
     SKERRY_ASSIGN_OR_RETURN(int64_t after, pages());
-    SKERRY_ASSIGN_OR_RETURN(auto size, conn_->Prepare("PRAGMA page_size"));
+    SKERRY_ASSIGN_OR_RETURN(auto size, w->Prepare("PRAGMA page_size"));
     SKERRY_ASSIGN_OR_RETURN(bool size_row, size.Step());
     const int64_t page_size = size_row ? size.ColumnInt(0) : 0;
     return before > after ? static_cast<uint64_t>((before - after) * page_size)

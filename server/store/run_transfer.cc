@@ -1,4 +1,4 @@
-// Store::ImportRuns (store.h): the runs of another coordinator's database
+// RunStore::ImportRuns (store.h): the runs of another coordinator's database
 // file, exported with `skerry backup`, merged into this one.
 //
 // The file is checked before anything is written: it must be a Skerry
@@ -23,6 +23,7 @@
 #include "common/status_macros.h"
 #include "server/store/check.h"
 #include "server/store/owner_lock.h"
+#include "server/store/store.h"
 
 namespace skerry::store {
 namespace {
@@ -57,16 +58,16 @@ absl::Status CheckFile(const std::string& file) {
   SKERRY_ASSIGN_OR_RETURN(
       int64_t version,
       One(src.get(), "SELECT max(version) FROM schema_version"));
-  if (version > Store::kSchemaVersion) {
-    return absl::FailedPreconditionError(
-        absl::StrCat("the file's schema version ", version,
-                     " is newer than this program's version ",
-                     Store::kSchemaVersion, "; import it with a newer Skerry"));
-  }
-  if (version < Store::kSchemaVersion) {
+  if (version > Database::kSchemaVersion) {
     return absl::FailedPreconditionError(absl::StrCat(
         "the file's schema version ", version,
-        " is older than this program's version ", Store::kSchemaVersion,
+        " is newer than this program's version ", Database::kSchemaVersion,
+        "; import it with a newer Skerry"));
+  }
+  if (version < Database::kSchemaVersion) {
+    return absl::FailedPreconditionError(absl::StrCat(
+        "the file's schema version ", version,
+        " is older than this program's version ", Database::kSchemaVersion,
         "; start a skerry-coordinator of this version on a copy of it once "
         "(it migrates the file), then import the copy"));
   }
@@ -98,29 +99,31 @@ absl::Status CheckFile(const std::string& file) {
 
 }  // namespace
 
-absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
+absl::StatusOr<RunStore::Imported> RunStore::ImportRuns(
+    const std::string& file) {
   auto named = [&file](const absl::Status& s) {
     return absl::Status(s.code(), absl::StrCat(file, ": ", s.message()));
   };
   if (absl::Status s = CheckFile(file); !s.ok()) return named(s);
-  absl::MutexLock l(&mu_);
+  Database::Writer w = db_->Write();
   {
     // Finalised before the DETACH below, which an open statement would block.
     SKERRY_ASSIGN_OR_RETURN(Statement attach,
-                            conn_->Prepare("ATTACH ? AS import_src"));
+                            w->Prepare("ATTACH ? AS import_src"));
     attach.BindText(1, file);
     SKERRY_RETURN_IF_ERROR(attach.Run());
   }
   Imported out;
   absl::Status copied = [&]() -> absl::Status {
-    mu_.AssertHeld();  // called under the lock above (for -Wthread-safety)
-    SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+    SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
     // Above every run id ever given, a deleted one's included.
-    SKERRY_ASSIGN_OR_RETURN(int64_t run_off, LargestRunIdLocked());
-    SKERRY_ASSIGN_OR_RETURN(int64_t genome_off,
-                            LargestIdLocked(IdTable::kGenomes));
-    SKERRY_ASSIGN_OR_RETURN(int64_t validation_off,
-                            LargestIdLocked(IdTable::kValidations));
+    SKERRY_ASSIGN_OR_RETURN(int64_t run_off, Database::LargestRunId(w));
+    SKERRY_ASSIGN_OR_RETURN(
+        int64_t genome_off,
+        Database::LargestId(w, Database::IdTable::kGenomes));
+    SKERRY_ASSIGN_OR_RETURN(
+        int64_t validation_off,
+        Database::LargestId(w, Database::IdTable::kValidations));
     // ?1 the run offset, ?2 the genome offset, ?3 the validation offset.
     // request_id is dropped: it is unique per owner on this coordinator.
     const char* kCopies[] = {
@@ -158,7 +161,7 @@ absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
         "import_src.strategy_states",
     };
     for (const char* sql : kCopies) {
-      SKERRY_ASSIGN_OR_RETURN(Statement st, conn_->Prepare(sql));
+      SKERRY_ASSIGN_OR_RETURN(Statement st, w->Prepare(sql));
       // Every bind is checked (sqlite.h): bind only the offsets used.
       const int64_t offsets[] = {run_off, genome_off, validation_off};
       for (int i = 0; i < 3; ++i) {
@@ -170,7 +173,7 @@ absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
     }
     SKERRY_ASSIGN_OR_RETURN(
         Statement ids,
-        conn_->Prepare("SELECT id FROM import_src.runs ORDER BY id"));
+        w->Prepare("SELECT id FROM import_src.runs ORDER BY id"));
     while (true) {
       SKERRY_ASSIGN_OR_RETURN(bool row, ids.Step());
       if (!row) break;
@@ -178,11 +181,11 @@ absl::StatusOr<Store::Imported> Store::ImportRuns(const std::string& file) {
     }
     SKERRY_ASSIGN_OR_RETURN(
         int64_t genomes,
-        One(conn_.get(), "SELECT count(*) FROM import_src.genomes"));
+        One(w.conn(), "SELECT count(*) FROM import_src.genomes"));
     out.genomes = static_cast<uint64_t>(genomes);
     return txn.Commit();
   }();
-  conn_->Exec("DETACH import_src").IgnoreError();
+  w->Exec("DETACH import_src").IgnoreError();
   if (!copied.ok()) return named(copied);
   return out;
 }
@@ -195,7 +198,8 @@ absl::StatusOr<std::string> ImportIntoDatabase(const std::string& db_path,
   open.initialise_empty_file = owner->created();
   SKERRY_ASSIGN_OR_RETURN(std::unique_ptr<Store> store,
                           Store::Open(db_path, open));
-  SKERRY_ASSIGN_OR_RETURN(Store::Imported imported, store->ImportRuns(file));
+  SKERRY_ASSIGN_OR_RETURN(RunStore::Imported imported,
+                          store->runs().ImportRuns(file));
   std::vector<std::string> runs;
   for (const auto& [from, to] : imported.runs) {
     runs.push_back(absl::StrCat("run ", from, " as run ", to));

@@ -1,7 +1,7 @@
 // Importing runs exported from another coordinator (`skerry backup RUN --to
 // FILE`, or `all`) into a coordinator's database, offline: what
-// `skerry-coordinator --import FILE --db DB` does. Store::ImportRuns
-// (store.h, run_transfer.cc) says what is checked and how ids are remapped.
+// `skerry-coordinator --import FILE --db DB` does. RunStore::ImportRuns
+// (run_store.h, run_transfer.cc) says what is checked and how ids are remapped.
 //
 // Thread safety: a function; it takes the database's owner lock, so it fails
 // while a coordinator serves the database.

@@ -5,7 +5,7 @@
 #include "absl/strings/str_cat.h"
 #include "common/status_macros.h"
 #include "server/store/row_sums.h"
-#include "server/store/store.h"
+#include "server/store/run_store.h"
 
 namespace skerry::store {
 namespace {
@@ -91,7 +91,7 @@ absl::Status CheckSeriesRows(Connection* conn,
   return absl::OkStatus();
 }
 
-absl::Status Store::CreateSeries(
+absl::Status RunStore::CreateSeries(
     SeriesRecord* series, std::vector<RunRecord>* runs,
     std::vector<std::vector<GenomeRecord>>* genomes,
     const std::vector<std::vector<std::string>>* strategy_states) {
@@ -100,11 +100,11 @@ absl::Status Store::CreateSeries(
     return absl::InternalError(
         "CreateSeries: runs, genomes and members differ");
   }
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
   {
-    SKERRY_ASSIGN_OR_RETURN(
-        auto taken, conn_->Prepare("SELECT 1 FROM series WHERE name = ?"));
+    SKERRY_ASSIGN_OR_RETURN(auto taken,
+                            w->Prepare("SELECT 1 FROM series WHERE name = ?"));
     taken.BindText(1, series->name);
     SKERRY_ASSIGN_OR_RETURN(bool row, taken.Step());
     if (row) {
@@ -115,8 +115,8 @@ absl::Status Store::CreateSeries(
   }
   {
     SKERRY_ASSIGN_OR_RETURN(
-        auto ins, conn_->Prepare("INSERT INTO series (name, owner, created_ms, "
-                                 "request_id) VALUES (?, ?, ?, ?)"));
+        auto ins, w->Prepare("INSERT INTO series (name, owner, created_ms, "
+                             "request_id) VALUES (?, ?, ?, ?)"));
     ins.BindText(1, series->name);
     ins.BindText(2, series->owner);
     ins.BindInt(3, series->created_ms);
@@ -126,17 +126,17 @@ absl::Status Store::CreateSeries(
       ins.BindText(4, series->request_id);
     }
     SKERRY_RETURN_IF_ERROR(ins.Run());
-    series->id = conn_->LastInsertId();
+    series->id = w->LastInsertId();
   }
   SKERRY_ASSIGN_OR_RETURN(
-      auto member, conn_->Prepare("INSERT INTO series_runs (run_id, series_id, "
-                                  "position, seed) VALUES (?, ?, ?, ?)"));
+      auto member, w->Prepare("INSERT INTO series_runs (run_id, series_id, "
+                              "position, seed) VALUES (?, ?, ?, ?)"));
   for (size_t i = 0; i < runs->size(); ++i) {
-    SKERRY_RETURN_IF_ERROR(CreateRunLocked(
-        &(*runs)[i], &(*genomes)[i],
-        strategy_states != nullptr && i < strategy_states->size()
-            ? &(*strategy_states)[i]
-            : nullptr));
+    SKERRY_RETURN_IF_ERROR(
+        CreateRunIn(w, &(*runs)[i], &(*genomes)[i],
+                    strategy_states != nullptr && i < strategy_states->size()
+                        ? &(*strategy_states)[i]
+                        : nullptr));
     series->members[i].first = (*runs)[i].id;
     member.Reset();
     member.BindInt(1, (*runs)[i].id);
@@ -149,10 +149,10 @@ absl::Status Store::CreateSeries(
 }
 
 absl::StatusOr<std::vector<std::pair<int64_t, uint64_t>>>
-Store::SeriesMembersLocked(int64_t series_id) {
+RunStore::SeriesMembers(Connection* conn, int64_t series_id) {
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      conn->PrepareCached(absl::StrCat(
           "SELECT run_id, seed, sum IS skerry_row_sum(", kSeriesRunSumColumns,
           ") FROM series_runs WHERE series_id = ? ORDER BY position")));
   s.BindInt(1, series_id);
@@ -168,11 +168,11 @@ Store::SeriesMembersLocked(int64_t series_id) {
   return out;
 }
 
-absl::StatusOr<std::optional<SeriesRecord>> Store::FindSeriesByRequest(
+absl::StatusOr<std::optional<SeriesRecord>> RunStore::FindSeriesByRequest(
     const std::string& owner, const std::string& request_id) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat(
+      auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT id, name, created_ms, sum IS skerry_row_sum(",
                   kSeriesSumColumns,
                   ") FROM series WHERE owner = ? AND request_id = ?")));
@@ -192,14 +192,15 @@ absl::StatusOr<std::optional<SeriesRecord>> Store::FindSeriesByRequest(
                      "': its row does not match its checksum (damaged)"));
   }
   s = Statement();
-  SKERRY_ASSIGN_OR_RETURN(r.members, SeriesMembersLocked(r.id));
+  SKERRY_ASSIGN_OR_RETURN(r.members, SeriesMembers(reader.get(), r.id));
   return std::optional<SeriesRecord>(std::move(r));
 }
 
-absl::StatusOr<std::string> Store::UnusedSeriesName(const std::string& base) {
-  absl::MutexLock l(&mu_);
+absl::StatusOr<std::string> RunStore::UnusedSeriesName(
+    const std::string& base) {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare("SELECT 1 FROM series WHERE name = ?"));
+      auto s, reader->PrepareCached("SELECT 1 FROM series WHERE name = ?"));
   for (int n = 1; n <= kMaxNameTries; ++n) {
     std::string name = n == 1 ? base : absl::StrCat(base, "-", n);
     s.Reset();
@@ -212,11 +213,11 @@ absl::StatusOr<std::string> Store::UnusedSeriesName(const std::string& base) {
                    "' are all taken; choose a name"));
 }
 
-absl::StatusOr<std::map<int64_t, std::string>> Store::SeriesOfRuns() {
-  absl::MutexLock l(&mu_);
+absl::StatusOr<std::map<int64_t, std::string>> RunStore::SeriesOfRuns() {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      reader->PrepareCached(absl::StrCat(
           "SELECT m.run_id, s.name, (m.sum IS skerry_row_sum(m.run_id, "
           "m.series_id, m.position, m.seed)) AND (s.sum IS "
           "skerry_row_sum(s.id, "
@@ -234,22 +235,23 @@ absl::StatusOr<std::map<int64_t, std::string>> Store::SeriesOfRuns() {
   return out;
 }
 
-absl::StatusOr<std::string> Store::SeriesOfRun(int64_t run_id) {
+absl::StatusOr<std::string> RunStore::SeriesOfRun(int64_t run_id) {
   SKERRY_ASSIGN_OR_RETURN(auto all, SeriesOfRuns());
   auto it = all.find(run_id);
   return it == all.end() ? std::string() : it->second;
 }
 
-absl::Status Store::ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
-                              int64_t now_ms,
-                              const std::vector<std::string>& states) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+absl::Status RunStore::ExtendRun(int64_t run_id,
+                                 const skerry::v1::RunSpec& spec,
+                                 int64_t now_ms,
+                                 const std::vector<std::string>& states) {
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
   {
     SKERRY_ASSIGN_OR_RETURN(
-        auto s, conn_->Prepare(
-                    absl::StrCat("SELECT state, sum IS skerry_row_sum(",
-                                 kRunSumColumns, ") FROM runs WHERE id = ?")));
+        auto s,
+        w->Prepare(absl::StrCat("SELECT state, sum IS skerry_row_sum(",
+                                kRunSumColumns, ") FROM runs WHERE id = ?")));
     s.BindInt(1, run_id);
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) return absl::NotFoundError(absl::StrCat("no run ", run_id));
@@ -269,7 +271,7 @@ absl::Status Store::ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
       "UPDATE islands SET done = 0 WHERE run_id = ?1",
   };
   for (const std::string& sql : statements) {
-    SKERRY_ASSIGN_OR_RETURN(auto s, conn_->Prepare(sql));
+    SKERRY_ASSIGN_OR_RETURN(auto s, w->Prepare(sql));
     s.BindInt(1, run_id);
     if (sql.find("?2") != std::string::npos) {
       s.BindBlob(2, spec.SerializeAsString());
@@ -283,9 +285,9 @@ absl::Status Store::ExtendRun(int64_t run_id, const skerry::v1::RunSpec& spec,
   // have left behind.
   SKERRY_ASSIGN_OR_RETURN(
       auto put,
-      conn_->Prepare("INSERT OR REPLACE INTO strategy_states (run_id, island, "
-                     "generation, state) SELECT ?1, idx, generation, ?3 FROM "
-                     "islands WHERE run_id = ?1 AND idx = ?2"));
+      w->Prepare("INSERT OR REPLACE INTO strategy_states (run_id, island, "
+                 "generation, state) SELECT ?1, idx, generation, ?3 FROM "
+                 "islands WHERE run_id = ?1 AND idx = ?2"));
   for (size_t i = 0; i < states.size(); ++i) {
     put.BindInt(1, run_id);
     put.BindInt(2, static_cast<int64_t>(i));

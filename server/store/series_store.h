@@ -1,6 +1,6 @@
 // Seed series in the database (schema version 9): the migration that adds
-// them and what `--check` verifies of them. The Store methods that write and
-// read them (CreateSeries, SeriesOfRuns, ExtendRun...) live in
+// them and what `--check` verifies of them. The RunStore methods that write
+// and read them (run_store.h: CreateSeries, SeriesOfRuns, ExtendRun...) live in
 // series_store.cc too.
 //
 // Invariant: every row of `series` and `series_runs` carries `sum`, the

@@ -21,7 +21,8 @@
 // when it goes away instead of finalising it, so its read transaction ends
 // with it.
 //
-// Thread safety: none. The owner (Store) serialises access with its own mutex.
+// Thread safety: none. The owner (Database) serialises access with its own
+// mutex (Database::Writer); each read-pool connection has one user at a time.
 #ifndef SKERRY_SERVER_STORE_SQLITE_H_
 #define SKERRY_SERVER_STORE_SQLITE_H_
 
@@ -136,7 +137,7 @@ class Connection {
   // From now on nothing is written through this connection: PRAGMA
   // query_only (which SQLite checks as each statement runs, cached ones
   // included) and Transaction::Begin returning `why`. For a file found
-  // damaged while it is served (Store::StopWrites).
+  // damaged while it is served (Database::StopWrites).
   absl::Status StopWrites(const absl::Status& why);
   const absl::Status& writes_stopped() const { return writes_stopped_; }
 

@@ -117,12 +117,12 @@ TEST(CommitLockTest, SummariesAreAnsweredWhileAResultCommitIsBeingSynced) {
   EXPECT_TRUE(stopped.ok()) << stopped;
 
   // Every acknowledged result is stored, and the file is consistent.
-  absl::StatusOr<store::RunRecord> stored = h.store->GetRun(run->id);
+  absl::StatusOr<store::RunRecord> stored = h.store->runs().GetRun(run->id);
   ASSERT_TRUE(stored.ok()) << stored.status();
   EXPECT_EQ(stored->state, skerry::v1::STOPPED);
   EXPECT_EQ(stored->evaluations, 12u);
   absl::StatusOr<std::vector<store::GenomeRecord>> g0 =
-      h.store->GetGeneration(run->id, 0, 0);
+      h.store->genomes().GetGeneration(run->id, 0, 0);
   ASSERT_TRUE(g0.ok()) << g0.status();
   for (const store::GenomeRecord& g : *g0) {
     EXPECT_EQ(g.state, skerry::v1::EVALUATED) << "genome " << g.id;

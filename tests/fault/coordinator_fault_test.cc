@@ -69,14 +69,14 @@ TEST(CoordinatorFaultTest, RefusesToStartOnADatabaseItCannotWrite) {
   EXPECT_TRUE(Coordinator::Start(Options(db, 0)).ok());
 }
 
-// A start reads only the small tables (Store::QuickCheckAtStart: a whole-file
-// quick_check took 28 s of a start on 10 million genomes); the genomes table
-// is checked while serving. Damage found there stops every write, with the
-// reason, and reads go on. The damage is a genomes b-tree page whose page
-// type byte is wrong, which SQLite's quick_check finds (SQLite's file format
-// documentation, "B-tree Pages": byte 0 of the page header is the page type,
-// 2, 5, 10 or 13; from memory). The test first checks that the damage is one
-// the whole-file check finds and the start's check does not read.
+// A start reads only the small tables (Database::QuickCheckAtStart: a
+// whole-file quick_check took 28 s of a start on 10 million genomes); the
+// genomes table is checked while serving. Damage found there stops every write,
+// with the reason, and reads go on. The damage is a genomes b-tree page whose
+// page type byte is wrong, which SQLite's quick_check finds (SQLite's file
+// format documentation, "B-tree Pages": byte 0 of the page header is the page
+// type, 2, 5, 10 or 13; from memory). The test first checks that the damage is
+// one the whole-file check finds and the start's check does not read.
 TEST(CoordinatorFaultTest, DamageFoundWhileServingStopsEveryWriteReadsGoOn) {
   TempDir dir;
   const std::string db = dir.File("damaged.db");
@@ -95,7 +95,7 @@ TEST(CoordinatorFaultTest, DamageFoundWhileServingStopsEveryWriteReadsGoOn) {
       genomes[i].score = static_cast<double>(i);
       genomes[i].attempts = 1;
     }
-    ASSERT_TRUE((*st)->CreateRun(&run, &genomes).ok());
+    ASSERT_TRUE((*st)->runs().CreateRun(&run, &genomes).ok());
   }  // closed: the WAL is checkpointed into the file
   const int64_t root = std::stoll(skerry::testing::QueryText(
       db, "SELECT rootpage FROM sqlite_schema WHERE name = 'genomes'"));
@@ -113,8 +113,9 @@ TEST(CoordinatorFaultTest, DamageFoundWhileServingStopsEveryWriteReadsGoOn) {
   {
     absl::StatusOr<std::unique_ptr<store::Store>> st = store::Store::Open(db);
     ASSERT_TRUE(st.ok()) << st.status();
-    EXPECT_TRUE((*st)->QuickCheckAtStart().ok()) << "the start check read it";
-    EXPECT_TRUE(absl::IsDataLoss((*st)->QuickCheck()))
+    EXPECT_TRUE((*st)->db().QuickCheckAtStart().ok())
+        << "the start check read it";
+    EXPECT_TRUE(absl::IsDataLoss((*st)->db().QuickCheck()))
         << "the damage is not one quick_check finds";
   }
   CoordinatorOptions o = Options(db, 0);

@@ -57,12 +57,12 @@ absl::StatusOr<std::unique_ptr<Harness>> OpenLikeTheCoordinator(
   absl::StatusOr<std::unique_ptr<store::Store>> s = store::Store::Open(path);
   if (!s.ok()) return s.status();
   h->store = std::move(*s);
-  if (absl::Status q = h->store->QuickCheck(); !q.ok()) return q;
+  if (absl::Status q = h->store->db().QuickCheck(); !q.ok()) return q;
   // As the coordinator does (coordinator.cc): a file it cannot write is
   // refused at start. Without this a flip of header byte 18 (the write
   // version: 3 makes SQLite open the file read-only) stalled here while the
   // real coordinator refuses it.
-  if (absl::Status w = h->store->ProbeWrite(); !w.ok()) return w;
+  if (absl::Status w = h->store->db().ProbeWrite(); !w.ok()) return w;
   h->queue = std::make_unique<scheduler::TaskQueue>(clock, absl::Seconds(30));
   absl::StatusOr<std::unique_ptr<Engine>> e =
       Engine::Open(h->store.get(), h->queue.get(), clock);
@@ -159,7 +159,8 @@ class CorruptionSweepTest : public ::testing::Test {
       auto h = OpenLikeTheCoordinator(ref, &clock_);
       ASSERT_TRUE(h.ok()) << h.status();
       ASSERT_TRUE(Drive(**h, run_, 100));
-      absl::StatusOr<store::Store::Digest> d = (*h)->store->RunDigest(run_);
+      absl::StatusOr<store::GenomeStore::Digest> d =
+          (*h)->store->genomes().RunDigest(run_);
       ASSERT_TRUE(d.ok()) << d.status();
       digest_ = d->sha256;
     }
@@ -182,7 +183,8 @@ class CorruptionSweepTest : public ::testing::Test {
         return Outcome::kStall;
       }
       skerry::v1::RunSummary s = SummaryOf(**h, run_);
-      absl::StatusOr<store::Store::Digest> d = (*h)->store->RunDigest(run_);
+      absl::StatusOr<store::GenomeStore::Digest> d =
+          (*h)->store->genomes().RunDigest(run_);
       if (absl::IsDataLoss(d.status()) ||
           absl::StrContains(s.message(), "damaged")) {
         *why = d.ok() ? s.message() : std::string(d.status().message());

@@ -120,7 +120,7 @@ int64_t Submit(Harness& h) {
 }
 
 std::string Digest(store::Store& s, int64_t run_id) {
-  absl::StatusOr<store::Store::Digest> d = s.RunDigest(run_id);
+  absl::StatusOr<store::GenomeStore::Digest> d = s.genomes().RunDigest(run_id);
   EXPECT_TRUE(d.ok()) << d.status();
   return d.ok() ? absl::StrCat(d->sha256, " (", d->genomes, " genomes)") : "";
 }
@@ -391,7 +391,7 @@ TEST_F(EngineFaultTest, HoldSetAgainRightAfterAProbeIsRetriedAtOnce) {
     // Held, generation 2 unbred. The next probe succeeds and the write after
     // it (the breeding's first) fails once.
     vfs_->Arm(FaultKind::kFull, int64_t{1} << 40, /*persistent=*/false);
-    ASSERT_TRUE(h->store->ProbeWrite().ok());
+    ASSERT_TRUE(h->store->db().ProbeWrite().ok());
     const int64_t probe_writes = vfs_->counted();
     vfs_->Arm(FaultKind::kFull, probe_writes + 1, /*persistent=*/false);
     clock_.Advance(absl::Seconds(1));  // one tick, and no more

@@ -112,9 +112,9 @@ struct NextGeneration {
 };
 NextGeneration Bred(Store& store, int64_t run_id, uint32_t g) {
   NextGeneration n;
-  absl::StatusOr<RunRecord> run = store.GetRun(run_id);
+  absl::StatusOr<RunRecord> run = store.runs().GetRun(run_id);
   absl::StatusOr<std::vector<GenomeRecord>> current =
-      store.GetGeneration(run_id, 0, g);
+      store.genomes().GetGeneration(run_id, 0, g);
   EXPECT_TRUE(run.ok() && current.ok());
   if (!run.ok() || !current.ok()) return n;
   n.stats = engine::ComputeStats(run->spec, *current);
@@ -138,7 +138,7 @@ absl::Status Commit(Store& store, int64_t run_id, NextGeneration* n) {
   c.completed = n->stats;
   c.next = &n->next;
   c.champion = n->champion;
-  return store.CommitGeneration(c);
+  return store.runs().CommitGeneration(c);
 }
 
 // Reads through a connection of its own (not the Store under test).
@@ -178,9 +178,10 @@ const std::string& ExportFile() {
       absl::StatusOr<std::unique_ptr<Store>> s = Store::Open(src);
       EXPECT_TRUE(s.ok()) << s.status();
       NewRun n = MakeRun(2);
-      EXPECT_TRUE((*s)->CreateRun(&n.run, &n.genomes).ok());
-      EXPECT_TRUE(
-          (*s)->CommitResults(Evaluate(n.genomes, n.genomes.size())).ok());
+      EXPECT_TRUE((*s)->runs().CreateRun(&n.run, &n.genomes).ok());
+      EXPECT_TRUE((*s)->genomes()
+                      .CommitResults(Evaluate(n.genomes, n.genomes.size()))
+                      .ok());
     }
     auto* out = new std::string(dir->File("export.db"));
     absl::Status made = BackupDatabase(src, kRun, *out);
@@ -196,7 +197,7 @@ std::vector<CommitPoint> CommitPoints() {
       {"CreateRun", [](Store&) {},
        [](Store& s) {
          NewRun n = MakeRun(2);
-         return s.CreateRun(&n.run, &n.genomes);
+         return s.runs().CreateRun(&n.run, &n.genomes);
        },
        [](const std::string& db) {
          const long long runs = Count(db, "SELECT count(*) FROM runs");
@@ -205,30 +206,32 @@ std::vector<CommitPoint> CommitPoints() {
          return Judge(runs == 1 && islands == 2 && genomes == 2 * kPopulation,
                       runs == 0 && islands == 0 && genomes == 0);
        }});
-  out.push_back({"CommitResults",
-                 [](Store& s) {
-                   NewRun n = MakeRun(1);
-                   ASSERT_TRUE(s.CreateRun(&n.run, &n.genomes).ok());
-                 },
-                 [](Store& s) {
-                   absl::StatusOr<std::vector<GenomeRecord>> g0 =
-                       s.GetGeneration(kRun, 0, 0);
-                   if (!g0.ok()) return g0.status();
-                   return s.CommitResults(Evaluate(*g0, kPopulation - 1));
-                 },
-                 [](const std::string& db) {
-                   const long long evaluated = Count(
-                       db, "SELECT count(*) FROM genomes WHERE eval_state = 2");
-                   const long long counter =
-                       Count(db, "SELECT evaluations FROM runs WHERE id = 1");
-                   return Judge(evaluated == kPopulation - 1 &&
-                                    counter == kPopulation - 1,
-                                evaluated == 0 && counter == 0);
-                 }});
+  out.push_back(
+      {"CommitResults",
+       [](Store& s) {
+         NewRun n = MakeRun(1);
+         ASSERT_TRUE(s.runs().CreateRun(&n.run, &n.genomes).ok());
+       },
+       [](Store& s) {
+         absl::StatusOr<std::vector<GenomeRecord>> g0 =
+             s.genomes().GetGeneration(kRun, 0, 0);
+         if (!g0.ok()) return g0.status();
+         return s.genomes().CommitResults(Evaluate(*g0, kPopulation - 1));
+       },
+       [](const std::string& db) {
+         const long long evaluated =
+             Count(db, "SELECT count(*) FROM genomes WHERE eval_state = 2");
+         const long long counter =
+             Count(db, "SELECT evaluations FROM runs WHERE id = 1");
+         return Judge(
+             evaluated == kPopulation - 1 && counter == kPopulation - 1,
+             evaluated == 0 && counter == 0);
+       }});
   auto evaluated_run = [](Store& s) {
     NewRun n = MakeRun(1);
-    ASSERT_TRUE(s.CreateRun(&n.run, &n.genomes).ok());
-    ASSERT_TRUE(s.CommitResults(Evaluate(n.genomes, kPopulation)).ok());
+    ASSERT_TRUE(s.runs().CreateRun(&n.run, &n.genomes).ok());
+    ASSERT_TRUE(
+        s.genomes().CommitResults(Evaluate(n.genomes, kPopulation)).ok());
   };
   out.push_back(
       {"CommitGeneration", evaluated_run,
@@ -253,8 +256,8 @@ std::vector<CommitPoint> CommitPoints() {
   out.push_back(
       {"SetRunState", evaluated_run,
        [](Store& s) {
-         return s.SetRunState(kRun, skerry::v1::PAUSED, "paused by the sweep",
-                              kNowMs + 1);
+         return s.runs().SetRunState(kRun, skerry::v1::PAUSED,
+                                     "paused by the sweep", kNowMs + 1);
        },
        [](const std::string& db) {
          const std::string state = QueryText(db, "SELECT state FROM runs");
@@ -274,11 +277,13 @@ std::vector<CommitPoint> CommitPoints() {
          for (const GenomeRecord& g : n.next) {
            if (g.state == skerry::v1::PENDING) pending.push_back(g);
          }
-         ASSERT_TRUE(s.CommitResults(Evaluate(pending, pending.size())).ok());
+         ASSERT_TRUE(
+             s.genomes().CommitResults(Evaluate(pending, pending.size())).ok());
        },
        [](Store& s) {
-         return s.FinishRun(kRun, skerry::v1::FINISHED, "finished by the sweep",
-                            /*keep_through=*/0, kNowMs + 1);
+         return s.runs().FinishRun(kRun, skerry::v1::FINISHED,
+                                   "finished by the sweep",
+                                   /*keep_through=*/0, kNowMs + 1);
        },
        [](const std::string& db) {
          const std::string state = QueryText(db, "SELECT state FROM runs");
@@ -307,11 +312,11 @@ std::vector<CommitPoint> CommitPoints() {
   out.push_back(
       {"CreateFork", bred_run,
        [](Store& s) {
-         absl::StatusOr<RunRecord> parent = s.GetRun(kRun);
+         absl::StatusOr<RunRecord> parent = s.runs().GetRun(kRun);
          absl::StatusOr<std::vector<GenomeRecord>> gen =
-             s.GetGeneration(kRun, 0, 1);
+             s.genomes().GetGeneration(kRun, 0, 1);
          absl::StatusOr<std::vector<StatsRecord>> stats =
-             s.GetStats(kRun, std::nullopt);
+             s.runs().GetStats(kRun, std::nullopt);
          if (!parent.ok()) return parent.status();
          if (!gen.ok()) return gen.status();
          if (!stats.ok()) return stats.status();
@@ -324,8 +329,8 @@ std::vector<CommitPoint> CommitPoints() {
          skerry::v1::StrategyState state;  // a GA's, at the fork generation
          state.set_generation(1);
          state.mutable_ga();
-         return s.CreateFork(&fork, &*stats, &*gen,
-                             {state.SerializeAsString()});
+         return s.runs().CreateFork(&fork, &*stats, &*gen,
+                                    {state.SerializeAsString()});
        },
        [](const std::string& db) {
          const long long runs = Count(db, "SELECT count(*) FROM runs");
@@ -344,8 +349,10 @@ std::vector<CommitPoint> CommitPoints() {
        }});
   auto ended_run = [bred_run](Store& s) {
     bred_run(s);
-    ASSERT_TRUE(s.FinishRun(kRun, skerry::v1::STOPPED, "stopped by the sweep",
-                            /*keep_through=*/0, kNowMs + 1)
+    ASSERT_TRUE(s.runs()
+                    .FinishRun(kRun, skerry::v1::STOPPED,
+                               "stopped by the sweep",
+                               /*keep_through=*/0, kNowMs + 1)
                     .ok());
   };
   auto deleted = [](const std::string& db) {
@@ -361,20 +368,22 @@ std::vector<CommitPoint> CommitPoints() {
                  runs == 1 && islands == 1 && genomes == kPopulation);
   };
   out.push_back({"DeleteRun", ended_run,
-                 [](Store& s) { return s.DeleteRun(kRun).status(); }, deleted});
+                 [](Store& s) { return s.runs().DeleteRun(kRun).status(); },
+                 deleted});
   // `skerry archive`'s delete: the export (on the default VFS), its content
   // digest, and the delete that holds the run to it.
   out.push_back({"ArchiveRun", ended_run,
                  [](Store& s) {
-                   const std::string file = s.path() + ".export";
+                   const std::string file = s.db().path() + ".export";
                    std::filesystem::remove(file);
-                   absl::Status made = BackupDatabase(s.path(), kRun, file);
+                   absl::Status made =
+                       BackupDatabase(s.db().path(), kRun, file);
                    if (!made.ok()) return made;
                    absl::StatusOr<std::string> content =
                        RunContentDigestOfFile(file, kRun);
                    std::filesystem::remove(file);
                    if (!content.ok()) return content.status();
-                   return s.DeleteRun(kRun, *content).status();
+                   return s.runs().DeleteRun(kRun, *content).status();
                  },
                  deleted});
   out.push_back(
@@ -382,9 +391,9 @@ std::vector<CommitPoint> CommitPoints() {
        [](Store& s) {
          ExportFile();  // made before any fault is armed
          NewRun n = MakeRun(1);
-         ASSERT_TRUE(s.CreateRun(&n.run, &n.genomes).ok());
+         ASSERT_TRUE(s.runs().CreateRun(&n.run, &n.genomes).ok());
        },
-       [](Store& s) { return s.ImportRuns(ExportFile()).status(); },
+       [](Store& s) { return s.runs().ImportRuns(ExportFile()).status(); },
        [](const std::string& db) {
          const long long runs = Count(db, "SELECT count(*) FROM runs");
          const long long genomes = Count(db, "SELECT count(*) FROM genomes");
@@ -461,7 +470,7 @@ TEST_P(StoreFaultSweep, EveryFaultPointEndsCleanAndAllOrNothing) {
     if (!s.ok()) ExpectCleanFailure(s);
 
     // The Store writes again once the storage does.
-    EXPECT_TRUE((*store)->ProbeWrite().ok()) << "store did not recover";
+    EXPECT_TRUE((*store)->db().ProbeWrite().ok()) << "store did not recover";
     const Effect seen = point.effect(db);
     EXPECT_EQ(seen, s.ok() ? Effect::kAll : Effect::kNone)
         << "effect " << EffectName(seen) << " after status " << s;
@@ -502,12 +511,12 @@ TEST(StoreProbeWriteTest, ProbeFailsWhileEveryWriteFails) {
        {FaultKind::kIoErr, FaultKind::kFull, FaultKind::kFsync}) {
     SCOPED_TRACE(FaultKindName(kind));
     vfs->Arm(kind, 1, /*persistent=*/true);
-    const absl::Status probe = (*store)->ProbeWrite();
+    const absl::Status probe = (*store)->db().ProbeWrite();
     const int64_t injected = vfs->injected();
     vfs->Disarm();
     EXPECT_FALSE(probe.ok()) << "the probe wrote nothing to the disk";
     EXPECT_GT(injected, 0);
-    EXPECT_TRUE((*store)->ProbeWrite().ok());
+    EXPECT_TRUE((*store)->db().ProbeWrite().ok());
   }
 }
 
@@ -519,10 +528,11 @@ TEST(StoreArchiveTest, DeleteHeldToAStaleContentDigestChangesNothing) {
   absl::StatusOr<std::unique_ptr<Store>> s = Store::Open(db);
   ASSERT_TRUE(s.ok()) << s.status();
   NewRun n = MakeRun(1);
-  ASSERT_TRUE((*s)->CreateRun(&n.run, &n.genomes).ok());
-  ASSERT_TRUE((*s)->CommitResults(Evaluate(n.genomes, 1)).ok());
-  ASSERT_TRUE(
-      (*s)->FinishRun(kRun, skerry::v1::STOPPED, "stopped", 0, kNowMs).ok());
+  ASSERT_TRUE((*s)->runs().CreateRun(&n.run, &n.genomes).ok());
+  ASSERT_TRUE((*s)->genomes().CommitResults(Evaluate(n.genomes, 1)).ok());
+  ASSERT_TRUE((*s)->runs()
+                  .FinishRun(kRun, skerry::v1::STOPPED, "stopped", 0, kNowMs)
+                  .ok());
   const std::string file = dir.File("export.db");
   ASSERT_TRUE(BackupDatabase(db, kRun, file).ok());
   absl::StatusOr<std::string> exported = RunContentDigestOfFile(file, kRun);
@@ -530,15 +540,16 @@ TEST(StoreArchiveTest, DeleteHeldToAStaleContentDigestChangesNothing) {
   ASSERT_TRUE(exported.ok() && live.ok());
   EXPECT_EQ(*exported, *live) << "an export holds the run's rows unchanged";
   // Changed after the export.
-  ASSERT_TRUE((*s)->SetRunPriority(kRun, 7, kNowMs + 5).ok());
-  absl::StatusOr<Store::Deleted> refused = (*s)->DeleteRun(kRun, *exported);
+  ASSERT_TRUE((*s)->runs().SetRunPriority(kRun, 7, kNowMs + 5).ok());
+  absl::StatusOr<RunStore::Deleted> refused =
+      (*s)->runs().DeleteRun(kRun, *exported);
   EXPECT_TRUE(absl::IsFailedPrecondition(refused.status())) << refused.status();
   EXPECT_THAT(std::string(refused.status().message()),
               ::testing::HasSubstr("changed since it was exported"));
   EXPECT_EQ(Count(db, "SELECT count(*) FROM genomes"), kPopulation);
   absl::StatusOr<std::string> now = RunContentDigestOfFile(db, kRun);
   ASSERT_TRUE(now.ok());
-  EXPECT_TRUE((*s)->DeleteRun(kRun, *now).ok());
+  EXPECT_TRUE((*s)->runs().DeleteRun(kRun, *now).ok());
   EXPECT_EQ(Count(db, "SELECT count(*) FROM runs"), 0);
 }
 

@@ -57,7 +57,7 @@ struct EngineHarness {
 };
 
 // Opens the database at `path` with `options` (a fault VFS, say); with
-// `quick_check`, also as the coordinator does at start (Store::QuickCheck).
+// `quick_check`, also as the coordinator does at start (Database::QuickCheck).
 // The status says why it would not open.
 inline absl::StatusOr<std::unique_ptr<EngineHarness>> OpenEngineHarness(
     const std::string& path, const store::Store::Options& options,
@@ -68,7 +68,7 @@ inline absl::StatusOr<std::unique_ptr<EngineHarness>> OpenEngineHarness(
   if (!s.ok()) return s.status();
   h->store = std::move(*s);
   if (quick_check) {
-    if (absl::Status q = h->store->QuickCheck(); !q.ok()) return q;
+    if (absl::Status q = h->store->db().QuickCheck(); !q.ok()) return q;
   }
   h->queue = std::make_unique<scheduler::TaskQueue>(clock, absl::Seconds(30));
   absl::StatusOr<std::unique_ptr<engine::Engine>> e =

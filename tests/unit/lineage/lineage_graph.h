@@ -1,6 +1,6 @@
 // A hand-built lineage graph with known answers, written into a real store:
-// the run and its islands by Store::CreateRun, the genomes by raw inserts into
-// the same schema (explicit ids, so that tests can name them).
+// the run and its islands by RunStore::CreateRun, the genomes by raw inserts
+// into the same schema (explicit ids, so that tests can name them).
 //
 // Run 1 (MINIMIZE unless asked), 2 islands. Scores in brackets; "x" failed.
 //
@@ -128,7 +128,7 @@ inline void WriteGraph(const std::string& path,
     run.spec.mutable_islands()->set_count(2);
     run.state = skerry::v1::FINISHED;
     std::vector<store::GenomeRecord> none;
-    ASSERT_TRUE((*s)->CreateRun(&run, &none).ok());
+    ASSERT_TRUE((*s)->runs().CreateRun(&run, &none).ok());
     ASSERT_EQ(run.id, 1);
   }
   InsertRows(path, GraphRows());

@@ -85,7 +85,7 @@ TEST_F(AccessStoreTest, SecondFirstAdminIsRefusedWhileOneHasALiveToken) {
   EXPECT_THAT(Message(again.status()), HasSubstr("ada"));
   EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM tokens"), "1");
   // Once every admin token is revoked, a new first admin may be made.
-  ASSERT_TRUE(store_->RevokeToken(1, "ops", 5).ok());
+  ASSERT_TRUE(store_->access().RevokeToken(1, "ops", 5).ok());
   EXPECT_TRUE(AccessControl::InitAdmin(store_.get(), &clock_, "bob").ok());
 }
 
@@ -161,24 +161,24 @@ TEST_F(AccessStoreTest, AuditEntriesAreFilteredByRunAndPrincipalNewestFirst) {
     e.method = "/skerry.v1.RunService/PauseRun";
     e.run_id = i <= 2 ? 7 : 8;
     e.peer = "ipv4:127.0.0.1:1";
-    auto id = store_->BeginAudit(e);
+    auto id = store_->access().BeginAudit(e);
     ASSERT_TRUE(id.ok()) << id.status();
     if (i != 4) {
       e.id = *id;
       e.code = 0;
-      ASSERT_TRUE(store_->FinishAudit(e).ok());
+      ASSERT_TRUE(store_->access().FinishAudit(e).ok());
     }
   }
   store::AuditQuery by_run;
   by_run.run_id = 7;
-  auto rows = store_->QueryAudit(by_run);
+  auto rows = store_->access().QueryAudit(by_run);
   ASSERT_TRUE(rows.ok());
   ASSERT_EQ(rows->size(), 2u);
   EXPECT_EQ((*rows)[0].id, 2);
   EXPECT_EQ((*rows)[1].id, 1);
   store::AuditQuery by_who;
   by_who.principal = "rita";
-  rows = store_->QueryAudit(by_who);
+  rows = store_->access().QueryAudit(by_who);
   ASSERT_TRUE(rows.ok());
   ASSERT_EQ(rows->size(), 2u);
   EXPECT_EQ((*rows)[0].id, 4);
@@ -199,7 +199,7 @@ TEST_F(AccessStoreTest, Version4DatabaseIsMigratedToTheAccessTables) {
   auto again = store::Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   store_ = std::move(*again);
-  EXPECT_EQ(*store_->SchemaVersion(), store::Store::kSchemaVersion);
+  EXPECT_EQ(*store_->db().SchemaVersion(), store::Store::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(),
                      "SELECT count(*) FROM sqlite_master WHERE name IN "
                      "('principals', 'tokens', 'audit')"),

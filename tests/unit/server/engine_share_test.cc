@@ -82,7 +82,7 @@ TEST_F(EngineShareTest, SubmittedPriorityIsStoredAndSharesTheQueue) {
   absl::StatusOr<store::RunRecord> high = Submit(3);
   ASSERT_TRUE(low.ok()) << low.status();
   ASSERT_TRUE(high.ok()) << high.status();
-  absl::StatusOr<store::RunRecord> stored = store_->GetRun(high->id);
+  absl::StatusOr<store::RunRecord> stored = store_->runs().GetRun(high->id);
   ASSERT_TRUE(stored.ok()) << stored.status();
   EXPECT_EQ(stored->priority, 3);
   absl::StatusOr<skerry::v1::RunSummary> summary = engine_->Summary(high->id);
@@ -98,7 +98,7 @@ TEST_F(EngineShareTest, UnsetPriorityIsOne) {
   absl::StatusOr<store::RunRecord> run = Submit(0);
   ASSERT_TRUE(run.ok()) << run.status();
   EXPECT_EQ(run->priority, 1);
-  absl::StatusOr<store::RunRecord> stored = store_->GetRun(run->id);
+  absl::StatusOr<store::RunRecord> stored = store_->runs().GetRun(run->id);
   ASSERT_TRUE(stored.ok()) << stored.status();
   EXPECT_EQ(stored->priority, 1);
 }
@@ -113,7 +113,8 @@ TEST_F(EngineShareTest, PriorityOutOfRangeIsRefusedAndNothingIsStored) {
     EXPECT_THAT(run.status().message(), HasSubstr("priority"));
     EXPECT_THAT(run.status().message(), HasSubstr("from 1 to 1000"));
   }
-  absl::StatusOr<std::vector<store::RunRecord>> runs = store_->ListRuns();
+  absl::StatusOr<std::vector<store::RunRecord>> runs =
+      store_->runs().ListRuns();
   ASSERT_TRUE(runs.ok()) << runs.status();
   EXPECT_TRUE(runs->empty());
 }
@@ -151,7 +152,7 @@ TEST_F(EngineShareTest, ChangedPriorityAppliesToTheNextTasksAndIsKept) {
   EXPECT_THAT(bad.message(), HasSubstr("priority: must be from 1 to 1000"));
   absl::Status missing = engine_->SetPriority(b->id + 100, 2);
   EXPECT_EQ(missing.code(), absl::StatusCode::kNotFound);
-  absl::StatusOr<store::RunRecord> stored = store_->GetRun(b->id);
+  absl::StatusOr<store::RunRecord> stored = store_->runs().GetRun(b->id);
   ASSERT_TRUE(stored.ok()) << stored.status();
   EXPECT_EQ(stored->priority, 4);
 

@@ -80,7 +80,7 @@ class EngineStopTest : public ::testing::Test {
     std::vector<TaskResult> results;
     for (const Task& t : tasks) {
       absl::StatusOr<store::GenomeRecord> g =
-          store_->GetGenome(static_cast<int64_t>(t.task_id()));
+          store_->genomes().GetGenome(static_cast<int64_t>(t.task_id()));
       EXPECT_TRUE(g.ok()) << g.status();
       if (!g.ok()) continue;
       if (island >= 0 && g->island != static_cast<uint32_t>(island)) {
@@ -111,7 +111,7 @@ class EngineStopTest : public ::testing::Test {
   void Settle() { EXPECT_TRUE(engine_->ListSummaries().ok()); }
 
   store::RunRecord Run(int64_t id) {
-    absl::StatusOr<store::RunRecord> r = store_->GetRun(id);
+    absl::StatusOr<store::RunRecord> r = store_->runs().GetRun(id);
     EXPECT_TRUE(r.ok()) << r.status();
     return r.ok() ? *r : store::RunRecord();
   }
@@ -124,7 +124,7 @@ class EngineStopTest : public ::testing::Test {
 
   void ExpectEveryIslandDone(int64_t id) {
     absl::StatusOr<std::vector<store::IslandRecord>> islands =
-        store_->GetIslands(id);
+        store_->runs().GetIslands(id);
     ASSERT_TRUE(islands.ok()) << islands.status();
     ASSERT_FALSE(islands->empty());
     for (const store::IslandRecord& i : *islands) {

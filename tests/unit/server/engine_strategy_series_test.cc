@@ -84,7 +84,7 @@ class EngineStrategySeriesTest : public ::testing::Test {
       std::vector<skerry::v1::TaskResult> results;
       for (const skerry::v1::Task& t : tasks) {
         absl::StatusOr<store::GenomeRecord> g =
-            store_->GetGenome(static_cast<int64_t>(t.task_id()));
+            store_->genomes().GetGenome(static_cast<int64_t>(t.task_id()));
         ASSERT_TRUE(g.ok()) << g.status();
         if (hold != nullptr && hold(*g)) {
           held.push_back(t);
@@ -107,14 +107,14 @@ class EngineStrategySeriesTest : public ::testing::Test {
   std::vector<std::string> Genomes(int64_t run_id) {
     std::vector<std::string> out;
     absl::StatusOr<std::vector<store::IslandRecord>> islands =
-        store_->GetIslands(run_id);
+        store_->runs().GetIslands(run_id);
     EXPECT_TRUE(islands.ok()) << islands.status();
     if (!islands.ok()) return out;
     std::vector<store::GenomeRecord> all;
     for (const store::IslandRecord& ir : *islands) {
       for (uint32_t g = 0; g <= ir.generation; ++g) {
         absl::StatusOr<std::vector<store::GenomeRecord>> gen =
-            store_->GetGeneration(run_id, ir.index, g);
+            store_->genomes().GetGeneration(run_id, ir.index, g);
         EXPECT_TRUE(gen.ok()) << gen.status();
         if (!gen.ok()) return out;
         all.insert(all.end(), gen->begin(), gen->end());
@@ -158,7 +158,7 @@ TEST_F(EngineStrategySeriesTest, CmaEsSeriesStoresEachRunsStatesAndFinishes) {
   ASSERT_EQ(runs->size(), 2u);
   for (const store::RunRecord& run : *runs) {
     absl::StatusOr<std::map<uint32_t, std::string>> states =
-        store_->GetStrategyStates(run.id);
+        store_->runs().GetStrategyStates(run.id);
     ASSERT_TRUE(states.ok()) << states.status();
     ASSERT_EQ(states->size(), 1u);
     skerry::v1::StrategyState state;
@@ -167,7 +167,7 @@ TEST_F(EngineStrategySeriesTest, CmaEsSeriesStoresEachRunsStatesAndFinishes) {
   }
   DriveAll();
   for (const store::RunRecord& run : *runs) {
-    absl::StatusOr<store::RunRecord> done = store_->GetRun(run.id);
+    absl::StatusOr<store::RunRecord> done = store_->runs().GetRun(run.id);
     ASSERT_TRUE(done.ok());
     EXPECT_EQ(done->state, skerry::v1::FINISHED) << done->message;
   }
@@ -193,11 +193,11 @@ TEST_F(EngineStrategySeriesTest,
   ASSERT_TRUE(runs.ok()) << runs.status();
   DriveAll();
   for (const store::RunRecord& run : *runs) {
-    absl::StatusOr<store::RunRecord> done = store_->GetRun(run.id);
+    absl::StatusOr<store::RunRecord> done = store_->runs().GetRun(run.id);
     ASSERT_TRUE(done.ok());
     EXPECT_EQ(done->state, skerry::v1::FINISHED) << done->message;
     absl::StatusOr<std::map<uint32_t, std::string>> states =
-        store_->GetStrategyStates(run.id);
+        store_->runs().GetStrategyStates(run.id);
     ASSERT_TRUE(states.ok()) << states.status();
     ASSERT_EQ(states->size(), 2u);
     for (const auto& [island, bytes] : *states) {
@@ -224,7 +224,7 @@ TEST_F(EngineStrategySeriesTest, ExtendedGaRunFinishesAndPassesCheck) {
   more.set_max_generations(5);
   ASSERT_TRUE(engine_->Extend(run->id, more).ok());
   DriveAll();
-  absl::StatusOr<store::RunRecord> done = store_->GetRun(run->id);
+  absl::StatusOr<store::RunRecord> done = store_->runs().GetRun(run->id);
   ASSERT_TRUE(done.ok());
   EXPECT_EQ(done->state, skerry::v1::FINISHED) << done->message;
   absl::StatusOr<store::CheckReport> report =
@@ -263,7 +263,7 @@ TEST_P(ExtendEveryStrategyTest, ExtendedRunEqualsTheLongerRunFromTheStart) {
   DriveAll();
 
   for (int64_t id : {extended->id, whole->id}) {
-    absl::StatusOr<store::RunRecord> done = store_->GetRun(id);
+    absl::StatusOr<store::RunRecord> done = store_->runs().GetRun(id);
     ASSERT_TRUE(done.ok());
     EXPECT_EQ(done->state, skerry::v1::FINISHED) << done->message;
   }
@@ -319,18 +319,18 @@ TEST_F(EngineStrategySeriesTest, IslandTrimmedAtTheFinishGoesOnFromItsState) {
   DriveWith(score, [&](const store::GenomeRecord& g) {
     if (g.island != 0) return false;
     absl::StatusOr<std::vector<store::IslandRecord>> islands =
-        store_->GetIslands(run->id);
+        store_->runs().GetIslands(run->id);
     return islands.ok() && islands->size() == 2 && (*islands)[1].generation < 4;
   });
-  absl::StatusOr<store::RunRecord> ended = store_->GetRun(run->id);
+  absl::StatusOr<store::RunRecord> ended = store_->runs().GetRun(run->id);
   ASSERT_TRUE(ended.ok());
   ASSERT_EQ(ended->state, skerry::v1::FINISHED) << ended->message;
   absl::StatusOr<std::vector<store::IslandRecord>> islands =
-      store_->GetIslands(run->id);
+      store_->runs().GetIslands(run->id);
   ASSERT_TRUE(islands.ok());
   ASSERT_EQ((*islands)[1].generation, 2u);  // trimmed back from 4
   absl::StatusOr<std::map<uint32_t, std::string>> states =
-      store_->GetStrategyStates(run->id);
+      store_->runs().GetStrategyStates(run->id);
   ASSERT_TRUE(states.ok());
   skerry::v1::StrategyState stale;
   ASSERT_TRUE(stale.ParseFromString(states->at(1)));
@@ -370,11 +370,11 @@ TEST_F(EngineStrategySeriesTest, TrimmedAsynchronousIslandIsNotExtended) {
       [&](const store::GenomeRecord& g) {
         if (g.island != 0) return false;
         absl::StatusOr<std::vector<store::IslandRecord>> islands =
-            store_->GetIslands(run->id);
+            store_->runs().GetIslands(run->id);
         return islands.ok() && islands->size() == 2 &&
                (*islands)[1].generation < 4;
       });
-  absl::StatusOr<store::RunRecord> ended = store_->GetRun(run->id);
+  absl::StatusOr<store::RunRecord> ended = store_->runs().GetRun(run->id);
   ASSERT_TRUE(ended.ok());
   ASSERT_EQ(ended->state, skerry::v1::FINISHED) << ended->message;
   skerry::v1::StopSpec lower;
@@ -382,7 +382,7 @@ TEST_F(EngineStrategySeriesTest, TrimmedAsynchronousIslandIsNotExtended) {
   absl::Status s = engine_->Extend(run->id, lower);
   EXPECT_TRUE(absl::IsFailedPrecondition(s)) << s;
   EXPECT_THAT(std::string(s.message()), HasSubstr("islands.asynchronous"));
-  absl::StatusOr<store::RunRecord> after = store_->GetRun(run->id);
+  absl::StatusOr<store::RunRecord> after = store_->runs().GetRun(run->id);
   ASSERT_TRUE(after.ok());
   EXPECT_EQ(after->state, skerry::v1::FINISHED);
   EXPECT_EQ(after->spec.stop().target_score(), 0.5);

@@ -132,7 +132,7 @@ ReportOutcome ReportTasks(Coordinator& c, const std::vector<Task>& tasks,
   std::vector<TaskResult> results;
   for (const Task& t : tasks) {
     absl::StatusOr<GenomeRecord> g =
-        c.store->GetGenome(static_cast<int64_t>(t.task_id()));
+        c.store->genomes().GetGenome(static_cast<int64_t>(t.task_id()));
     EXPECT_TRUE(g.ok()) << g.status();
     if (!g.ok()) continue;
     results.push_back(scorer(t, *g));
@@ -169,7 +169,7 @@ std::map<Key, GenomeRecord> AllGenomes(store::Store& s, int64_t run_id,
   for (uint32_t i = 0; i < kIslands; ++i) {
     for (uint32_t g = 0; g <= max_generation; ++g) {
       absl::StatusOr<std::vector<GenomeRecord>> gen =
-          s.GetGeneration(run_id, i, g);
+          s.genomes().GetGeneration(run_id, i, g);
       EXPECT_TRUE(gen.ok()) << gen.status();
       if (!gen.ok()) continue;
       for (GenomeRecord& r : *gen) out[{i, g, r.slot}] = std::move(r);
@@ -240,7 +240,7 @@ TEST_F(EngineTest, SmallRunFinishesWithEveryGenerationStoredAndLinked) {
   const int64_t run_id = Submit(*c);
   DriveToEnd(*c, run_id);
 
-  absl::StatusOr<store::RunRecord> run = c->store->GetRun(run_id);
+  absl::StatusOr<store::RunRecord> run = c->store->runs().GetRun(run_id);
   ASSERT_TRUE(run.ok()) << run.status();
   EXPECT_EQ(run->state, skerry::v1::FINISHED) << run->message;
 
@@ -296,7 +296,7 @@ TEST_F(EngineTest, SmallRunFinishesWithEveryGenerationStoredAndLinked) {
   EXPECT_EQ(run->evaluations, evaluated_here);
 
   absl::StatusOr<std::vector<store::StatsRecord>> stats =
-      c->store->GetStats(run_id, std::nullopt);
+      c->store->runs().GetStats(run_id, std::nullopt);
   ASSERT_TRUE(stats.ok());
   EXPECT_EQ(stats->size(), kIslands * kGenerations);
   EXPECT_THAT(c->queue->Lease(kWorker, 100, absl::ZeroDuration()),
@@ -384,7 +384,7 @@ TEST_F(EngineTest, DuplicateAndUnknownResultsAreIgnored) {
   };
   EXPECT_EQ(ReportTasks(*c, {tasks[0]}, other_score).ignored, 1u);
   absl::StatusOr<GenomeRecord> g =
-      c->store->GetGenome(static_cast<int64_t>(tasks[0].task_id()));
+      c->store->genomes().GetGenome(static_cast<int64_t>(tasks[0].task_id()));
   ASSERT_TRUE(g.ok());
   EXPECT_DOUBLE_EQ(g->score, SphereValue({tasks[0].genes().begin(),
                                           tasks[0].genes().end()}));
@@ -407,7 +407,7 @@ TEST_F(EngineTest, DuplicateAndUnknownResultsAreIgnored) {
   EXPECT_EQ(out->accepted, 0u);
   EXPECT_EQ(out->ignored, 1u);
 
-  absl::StatusOr<store::RunRecord> run = c->store->GetRun(run_id);
+  absl::StatusOr<store::RunRecord> run = c->store->runs().GetRun(run_id);
   ASSERT_TRUE(run.ok());
   EXPECT_EQ(run->evaluations, 2);
 }
@@ -431,11 +431,11 @@ TEST_F(EngineTest, GenomeFailingMaxAttemptsTimesIsFailedAndTheRunFinishes) {
   DriveToEnd(*c, run_id, scorer);
   EXPECT_EQ(failures, 2);
 
-  absl::StatusOr<store::RunRecord> run = c->store->GetRun(run_id);
+  absl::StatusOr<store::RunRecord> run = c->store->runs().GetRun(run_id);
   ASSERT_TRUE(run.ok());
   EXPECT_EQ(run->state, skerry::v1::FINISHED) << run->message;
   absl::StatusOr<std::vector<GenomeRecord>> gen0 =
-      c->store->GetGeneration(run_id, 0, 0);
+      c->store->genomes().GetGeneration(run_id, 0, 0);
   ASSERT_TRUE(gen0.ok());
   ASSERT_EQ(gen0->size(), kPopulation);
   const GenomeRecord& failed = (*gen0)[3];
@@ -443,7 +443,7 @@ TEST_F(EngineTest, GenomeFailingMaxAttemptsTimesIsFailedAndTheRunFinishes) {
   EXPECT_EQ(failed.attempts, 2u);
   EXPECT_EQ(failed.error, "simulator crashed");
   absl::StatusOr<std::vector<store::StatsRecord>> stats =
-      c->store->GetStats(run_id, 0);
+      c->store->runs().GetStats(run_id, 0);
   ASSERT_TRUE(stats.ok());
   ASSERT_FALSE(stats->empty());
   EXPECT_EQ((*stats)[0].failed, 1u);
@@ -473,7 +473,7 @@ TEST_F(EngineTest, NonFiniteScoreCountsAsAFailedAttempt) {
   };
   EXPECT_EQ(ReportTasks(*c, tasks, nan_scorer).accepted, 1u);
   absl::StatusOr<GenomeRecord> g =
-      c->store->GetGenome(static_cast<int64_t>(tasks[0].task_id()));
+      c->store->genomes().GetGenome(static_cast<int64_t>(tasks[0].task_id()));
   ASSERT_TRUE(g.ok());
   EXPECT_EQ(g->state, skerry::v1::FAILED);
   EXPECT_THAT(g->error, HasSubstr("not a finite number"));
@@ -496,14 +496,16 @@ TEST_F(EngineTest, MetricsBeyondTheirBoundsMakeAFailedAttemptAndAreNotStored) {
     return r;
   };
   EXPECT_EQ(ReportTasks(*c, tasks, scorer).accepted, 2u);
-  auto good = c->store->GetGenome(static_cast<int64_t>(tasks[0].task_id()));
-  auto bad = c->store->GetGenome(static_cast<int64_t>(tasks[1].task_id()));
+  auto good =
+      c->store->genomes().GetGenome(static_cast<int64_t>(tasks[0].task_id()));
+  auto bad =
+      c->store->genomes().GetGenome(static_cast<int64_t>(tasks[1].task_id()));
   ASSERT_TRUE(good.ok() && bad.ok());
   EXPECT_EQ(good->state, skerry::v1::EVALUATED);
-  EXPECT_EQ(c->store->GetGenomeMetrics(good->id)->at("ok_name"), 1.5);
+  EXPECT_EQ(c->store->genomes().GetGenomeMetrics(good->id)->at("ok_name"), 1.5);
   EXPECT_EQ(bad->state, skerry::v1::FAILED);
   EXPECT_THAT(bad->error, HasSubstr("\"bad name\" may hold only"));
-  EXPECT_TRUE(c->store->GetGenomeMetrics(bad->id)->empty());
+  EXPECT_TRUE(c->store->genomes().GetGenomeMetrics(bad->id)->empty());
 }
 
 TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
@@ -526,7 +528,7 @@ TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
     std::vector<Task> mine;
     for (Task& t : c->queue->Lease(kWorker, 1000, absl::ZeroDuration())) {
       absl::StatusOr<GenomeRecord> g =
-          c->store->GetGenome(static_cast<int64_t>(t.task_id()));
+          c->store->genomes().GetGenome(static_cast<int64_t>(t.task_id()));
       EXPECT_TRUE(g.ok());
       if (g.ok() && g->island == island) {
         mine.push_back(std::move(t));
@@ -558,7 +560,7 @@ TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
   EXPECT_TRUE(none.empty());
   ReportTasks(*c, island0_gen1, scorer);
 
-  absl::StatusOr<store::RunRecord> run = c->store->GetRun(run_id);
+  absl::StatusOr<store::RunRecord> run = c->store->runs().GetRun(run_id);
   ASSERT_TRUE(run.ok());
   EXPECT_EQ(run->state, skerry::v1::FINISHED);
   EXPECT_THAT(run->message, HasSubstr("target score reached at generation 1"));
@@ -566,7 +568,8 @@ TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
   EXPECT_EQ(*run->stop_generation, 1u);
   ASSERT_TRUE(run->best_score.has_value());
   EXPECT_EQ(*run->best_score, 0.25);
-  absl::StatusOr<GenomeRecord> champion = c->store->GetGenome(run->champion_id);
+  absl::StatusOr<GenomeRecord> champion =
+      c->store->genomes().GetGenome(run->champion_id);
   ASSERT_TRUE(champion.ok());
   EXPECT_EQ(champion->island, 0u);
   EXPECT_EQ(champion->generation, 1u);
@@ -577,7 +580,7 @@ TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
   EXPECT_EQ(all.size(), kIslands * 2 * kPopulation);
   for (const auto& [key, g] : all) EXPECT_LE(g.generation, 1u) << KeyName(key);
   absl::StatusOr<std::vector<store::IslandRecord>> islands =
-      c->store->GetIslands(run_id);
+      c->store->runs().GetIslands(run_id);
   ASSERT_TRUE(islands.ok());
   for (const store::IslandRecord& i : *islands) EXPECT_EQ(i.generation, 1u);
 
@@ -595,7 +598,8 @@ TEST_F(EngineTest, TargetScoreStopsAtTheFirstGenerationReachingItAndTrims) {
 // island's generation committed first (the workers' timing) chose it, and with
 // it the genome whose validation is stored. Ties now go to the smallest
 // (generation, island, slot), the order `skerry champion` uses
-// (Store::BestGenome), whatever the order of commits, across a restart too.
+// (GenomeStore::BestGenome), whatever the order of commits, across a restart
+// too.
 TEST_F(EngineTest, EqualBestScoresGoToTheSmallestKeyWhateverCommitsFirst) {
   RunSpec spec = SmallSpec();
   spec.mutable_islands()->set_interval(100);  // no migration in this test
@@ -612,7 +616,7 @@ TEST_F(EngineTest, EqualBestScoresGoToTheSmallestKeyWhateverCommitsFirst) {
     std::vector<Task> mine;
     for (Task& t : c.queue->Lease(kWorker, 1000, absl::ZeroDuration())) {
       absl::StatusOr<GenomeRecord> g =
-          c.store->GetGenome(static_cast<int64_t>(t.task_id()));
+          c.store->genomes().GetGenome(static_cast<int64_t>(t.task_id()));
       EXPECT_TRUE(g.ok()) << g.status();
       if (g.ok() && g->island == island && g->generation == 0) {
         mine.push_back(std::move(t));
@@ -623,10 +627,11 @@ TEST_F(EngineTest, EqualBestScoresGoToTheSmallestKeyWhateverCommitsFirst) {
     return mine;
   };
   auto champion_of = [&](Coordinator& c) -> std::optional<Key> {
-    absl::StatusOr<store::RunRecord> run = c.store->GetRun(run_id);
+    absl::StatusOr<store::RunRecord> run = c.store->runs().GetRun(run_id);
     EXPECT_TRUE(run.ok()) << run.status();
     if (!run.ok() || run->champion_id == 0) return std::nullopt;
-    absl::StatusOr<GenomeRecord> g = c.store->GetGenome(run->champion_id);
+    absl::StatusOr<GenomeRecord> g =
+        c.store->genomes().GetGenome(run->champion_id);
     EXPECT_TRUE(g.ok()) << g.status();
     if (!g.ok()) return std::nullopt;
     return Key{g->island, g->generation, g->slot};
@@ -656,7 +661,7 @@ TEST_F(EngineTest, EqualBestScoresGoToTheSmallestKeyWhateverCommitsFirst) {
   DriveToEnd(*c, run_id, everything_scores_one);
   EXPECT_EQ(champion_of(*c), (Key{0, 0, 0}));
   absl::StatusOr<std::optional<GenomeRecord>> best =
-      c->store->BestGenome(run_id);
+      c->store->genomes().BestGenome(run_id);
   ASSERT_TRUE(best.ok()) << best.status();
   ASSERT_TRUE(best->has_value());
   EXPECT_EQ((Key{(*best)->island, (*best)->generation, (*best)->slot}),
@@ -726,7 +731,8 @@ TEST_F(EngineTest, InvalidSpecIsRefusedNamingTheField) {
   ASSERT_FALSE(run.ok());
   EXPECT_EQ(run.status().code(), absl::StatusCode::kInvalidArgument);
   EXPECT_THAT(std::string(run.status().message()), HasSubstr("genome_length"));
-  absl::StatusOr<std::vector<store::RunRecord>> runs = c->store->ListRuns();
+  absl::StatusOr<std::vector<store::RunRecord>> runs =
+      c->store->runs().ListRuns();
   ASSERT_TRUE(runs.ok());
   EXPECT_TRUE(runs->empty());
 }

@@ -41,7 +41,7 @@ class SeriesStoreTest : public StoreTest {
       genomes.push_back(Generation0(2, 4));
       series->members.emplace_back(0, seed);
     }
-    return store_->CreateSeries(series, &runs, &genomes);
+    return store_->runs().CreateSeries(series, &runs, &genomes);
   }
 };
 
@@ -50,18 +50,19 @@ TEST_F(SeriesStoreTest, SeriesIsStoredWithItsRunsAndFoundByRequestId) {
   ASSERT_TRUE(MakeSeries("low", {3, 1, 2}, &s).ok());
   ASSERT_EQ(s.members.size(), 3u);
   absl::StatusOr<std::optional<SeriesRecord>> found =
-      store_->FindSeriesByRequest("alice", "req-low");
+      store_->runs().FindSeriesByRequest("alice", "req-low");
   ASSERT_TRUE(found.ok()) << found.status();
   ASSERT_TRUE(found->has_value());
   EXPECT_EQ((*found)->name, "low");
   EXPECT_EQ((*found)->members, s.members);  // seed order kept: 3, 1, 2
   EXPECT_EQ((*found)->members[0].second, 3u);
-  absl::StatusOr<std::map<int64_t, std::string>> of = store_->SeriesOfRuns();
+  absl::StatusOr<std::map<int64_t, std::string>> of =
+      store_->runs().SeriesOfRuns();
   ASSERT_TRUE(of.ok()) << of.status();
   EXPECT_EQ(of->size(), 3u);
   EXPECT_EQ(of->at(s.members[1].first), "low");
-  EXPECT_EQ(*store_->UnusedSeriesName("low"), "low-2");
-  EXPECT_EQ(*store_->UnusedSeriesName("other"), "other");
+  EXPECT_EQ(*store_->runs().UnusedSeriesName("low"), "low-2");
+  EXPECT_EQ(*store_->runs().UnusedSeriesName("other"), "other");
   EXPECT_EQ(RawQuery(path(),
                      "SELECT group_concat(seed) FROM (SELECT seed FROM "
                      "runs ORDER BY id)"),
@@ -119,25 +120,26 @@ TEST_F(SeriesStoreTest, DatabaseBeforeSeriesGainsTheSeriesTables) {
   RawExec(path(), skerry::testing::UndoSchemaTo(8));
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(*(*again)->db().SchemaVersion(), Database::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(),
                      "SELECT count(*) FROM sqlite_master WHERE name IN "
                      "('series', 'series_runs', 'series_runs_series', "
                      "'series_request', 'series_sum_insert', "
                      "'series_runs_sum_update')"),
             "6");
-  EXPECT_TRUE((*again)->GetRun(run.id).ok());
-  EXPECT_TRUE((*again)->QuickCheck().ok());
+  EXPECT_TRUE((*again)->runs().GetRun(run.id).ok());
+  EXPECT_TRUE((*again)->db().QuickCheck().ok());
 }
 
 TEST_F(SeriesStoreTest, ExtendRunRefusesARunThatHasNotEnded) {
   std::vector<GenomeRecord> genomes;
   RunRecord run = CreateRun(1, &genomes);
-  absl::Status s = store_->ExtendRun(run.id, run.spec, 2000, {});
+  absl::Status s = store_->runs().ExtendRun(run.id, run.spec, 2000, {});
   EXPECT_TRUE(absl::IsFailedPrecondition(s)) << s;
   EXPECT_THAT(std::string(s.message()),
               HasSubstr("only a FINISHED or STOPPED run can be extended"));
-  EXPECT_TRUE(absl::IsNotFound(store_->ExtendRun(999, run.spec, 2000, {})));
+  EXPECT_TRUE(
+      absl::IsNotFound(store_->runs().ExtendRun(999, run.spec, 2000, {})));
 }
 
 }  // namespace

@@ -48,8 +48,8 @@ inline constexpr char kUndoVersion10[] = "DROP TABLE strategy_states; ";
 // fleet key of worker secrets and lease proofs).
 inline constexpr char kUndoVersion11[] = "DROP TABLE fleet_keys; ";
 
-// SQL that takes a database of the current schema (Store::kSchemaVersion, 13)
-// back to schema version `version` (1 to 13), each version's undo in turn
+// SQL that takes a database of the current schema (Database::kSchemaVersion,
+// 13) back to schema version `version` (1 to 13), each version's undo in turn
 // from the newest down, and sets the stored version: for tests that build
 // an older database from a current one and open it to migrate it forward.
 // Version 12 changed only how row sums are written, so it has nothing to

@@ -81,7 +81,7 @@ class StoreTest : public ::testing::Test {
   RunRecord CreateRun(uint32_t islands, std::vector<GenomeRecord>* genomes) {
     RunRecord run = MakeRun(SmallSpec(islands));
     *genomes = Generation0(islands, 4);
-    absl::Status s = store_->CreateRun(&run, genomes);
+    absl::Status s = store_->runs().CreateRun(&run, genomes);
     EXPECT_TRUE(s.ok()) << s;
     return run;
   }
@@ -99,7 +99,7 @@ class StoreTest : public ::testing::Test {
       u.attempts = 1;
       updates.push_back(u);
     }
-    absl::Status s = store_->CommitResults(updates);
+    absl::Status s = store_->genomes().CommitResults(updates);
     ASSERT_TRUE(s.ok()) << s;
   }
 

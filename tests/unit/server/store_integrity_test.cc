@@ -69,7 +69,7 @@ class IntegrityTest : public StoreTest {
     RunRecord run = MakeRun(SmallSpec(2));
     std::vector<GenomeRecord> genomes = Generation0(2, 4);
     genomes[6].genes = {kMarkedGene, 0.25};
-    EXPECT_TRUE(store_->CreateRun(&run, &genomes).ok());
+    EXPECT_TRUE(store_->runs().CreateRun(&run, &genomes).ok());
     Evaluate(genomes, {1, 2, 3, 4, 5, 6, 7, 8});
     store_.reset();
     return run.id;
@@ -82,15 +82,15 @@ TEST_F(IntegrityTest, FlippedGeneIsDataLossNamingRunIslandGenerationAndSlot) {
   absl::StatusOr<std::unique_ptr<Store>> s = Store::Open(path());
   ASSERT_TRUE(s.ok()) << s.status();  // the file's structure is sound
   absl::StatusOr<std::vector<GenomeRecord>> gen =
-      (*s)->GetGeneration(run, 1, 0);
+      (*s)->genomes().GetGeneration(run, 1, 0);
   ASSERT_TRUE(absl::IsDataLoss(gen.status())) << gen.status();
   EXPECT_THAT(
       std::string(gen.status().message()),
       HasSubstr(absl::StrCat("run ", run, " island 1 generation 0 slot 2")));
   EXPECT_THAT(std::string(gen.status().message()), HasSubstr("backup"));
   // The digest refuses too; the other island is still served.
-  EXPECT_TRUE(absl::IsDataLoss((*s)->RunDigest(run).status()));
-  EXPECT_TRUE((*s)->GetGeneration(run, 0, 0).ok());
+  EXPECT_TRUE(absl::IsDataLoss((*s)->genomes().RunDigest(run).status()));
+  EXPECT_TRUE((*s)->genomes().GetGeneration(run, 0, 0).ok());
 }
 
 TEST_F(IntegrityTest, CheckNamesAFlippedGeneThatIntegrityCheckMisses) {
@@ -110,7 +110,7 @@ TEST_F(IntegrityTest, CheckNamesAFlippedGeneThatIntegrityCheckMisses) {
 TEST_F(IntegrityTest, CheckNamesAFlippedScore) {
   RunRecord run = MakeRun(SmallSpec(1));
   std::vector<GenomeRecord> genomes = Generation0(1, 4);
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes).ok());
   Evaluate(genomes, {1, 2, kMarkedGene, 4});
   store_.reset();
   ASSERT_TRUE(FlipStoredDouble(path(), kMarkedGene));
@@ -119,9 +119,10 @@ TEST_F(IntegrityTest, CheckNamesAFlippedScore) {
   EXPECT_THAT(report->ToString(), HasSubstr("generation 0 slot 2"));
   absl::StatusOr<std::unique_ptr<Store>> s = Store::Open(path());
   ASSERT_TRUE(s.ok()) << s.status();
-  EXPECT_TRUE(absl::IsDataLoss((*s)->BestGenome(run.id).status()) ||
-              (*s)->BestGenome(run.id).ok());
-  EXPECT_TRUE(absl::IsDataLoss((*s)->GetGeneration(run.id, 0, 0).status()));
+  EXPECT_TRUE(absl::IsDataLoss((*s)->genomes().BestGenome(run.id).status()) ||
+              (*s)->genomes().BestGenome(run.id).ok());
+  EXPECT_TRUE(
+      absl::IsDataLoss((*s)->genomes().GetGeneration(run.id, 0, 0).status()));
 }
 
 TEST_F(IntegrityTest, BackupOfADamagedRunIsRefusedNamingTheDamage) {
@@ -264,7 +265,7 @@ TEST(FileRuleTest, MalformedFileFailsQuickCheck) {
     ASSERT_TRUE(s.ok());
     RunRecord run = MakeRun(SmallSpec(1));
     std::vector<GenomeRecord> genomes = Generation0(1, 4);
-    ASSERT_TRUE((*s)->CreateRun(&run, &genomes).ok());
+    ASSERT_TRUE((*s)->runs().CreateRun(&run, &genomes).ok());
   }
   std::string bytes = ReadBytes(path);
   const size_t page = (static_cast<unsigned char>(bytes[16]) << 8) |
@@ -275,7 +276,7 @@ TEST(FileRuleTest, MalformedFileFailsQuickCheck) {
   WriteBytes(path, bytes);
   absl::StatusOr<std::unique_ptr<Store>> s = Store::Open(path);
   if (s.ok()) {
-    absl::Status q = (*s)->QuickCheck();
+    absl::Status q = (*s)->db().QuickCheck();
     EXPECT_TRUE(absl::IsDataLoss(q)) << q;
     EXPECT_THAT(std::string(q.message()), HasSubstr("malformed"));
   }
@@ -337,17 +338,17 @@ TEST_F(StoreTest, RequestIdFindsTheRunItMadeForItsOwnerOnly) {
   RunRecord run = MakeRun(SmallSpec(1));
   run.request_id = "req-1";
   std::vector<GenomeRecord> genomes = Generation0(1, 4);
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
-  auto found = store_->FindRunByRequest("alice", "req-1");
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes).ok());
+  auto found = store_->runs().FindRunByRequest("alice", "req-1");
   ASSERT_TRUE(found.ok()) << found.status();
   ASSERT_TRUE(found->has_value());
   EXPECT_EQ(**found, run.id);
-  EXPECT_FALSE(store_->FindRunByRequest("bob", "req-1")->has_value());
+  EXPECT_FALSE(store_->runs().FindRunByRequest("bob", "req-1")->has_value());
   // A second run with the same owner and id is refused by the store.
   RunRecord again = MakeRun(SmallSpec(1));
   again.request_id = "req-1";
   std::vector<GenomeRecord> more = Generation0(1, 4);
-  EXPECT_FALSE(store_->CreateRun(&again, &more).ok());
+  EXPECT_FALSE(store_->runs().CreateRun(&again, &more).ok());
 }
 
 }  // namespace

@@ -35,16 +35,16 @@ using StoreOpenTest = StoreTest;
 // ---- Opening and schema versions ----
 
 TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
-  absl::StatusOr<int> v = store_->SchemaVersion();
+  absl::StatusOr<int> v = store_->db().SchemaVersion();
   ASSERT_TRUE(v.ok()) << v.status();
-  EXPECT_EQ(*v, Store::kSchemaVersion);
+  EXPECT_EQ(*v, Database::kSchemaVersion);
   store_.reset();
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  v = (*again)->SchemaVersion();
+  v = (*again)->db().SchemaVersion();
   ASSERT_TRUE(v.ok()) << v.status();
-  EXPECT_EQ(*v, Store::kSchemaVersion);
-  EXPECT_EQ((*again)->path(), path());
+  EXPECT_EQ(*v, Database::kSchemaVersion);
+  EXPECT_EQ((*again)->db().path(), path());
 }
 
 // A version-5 database gets its rows' checksums computed by the migration:
@@ -52,19 +52,19 @@ TEST_F(StoreOpenTest, ReopenedStoreHasCurrentSchemaVersion) {
 TEST_F(StoreOpenTest, Version5DatabaseGetsChecksumsInTheMigration) {
   RunRecord run = MakeRun(SmallSpec(2));
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes).ok());
   store_.reset();
   RawExec(path(), UndoSchemaTo(5) +
                       "UPDATE genomes SET score = 7.5, eval_state = 2, "
                       "attempts = 1 WHERE slot = 1; ");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(*(*again)->db().SchemaVersion(), Database::kSchemaVersion);
   absl::StatusOr<std::vector<GenomeRecord>> gen =
-      (*again)->GetGeneration(run.id, 1, 0);
+      (*again)->genomes().GetGeneration(run.id, 1, 0);
   ASSERT_TRUE(gen.ok()) << gen.status();
   EXPECT_EQ((*gen)[1].score, 7.5);
-  EXPECT_TRUE((*again)->QuickCheck().ok());
+  EXPECT_TRUE((*again)->db().QuickCheck().ok());
   again->reset();
   absl::StatusOr<CheckReport> report = CheckDatabase(path());
   ASSERT_TRUE(report.ok()) << report.status();
@@ -82,9 +82,9 @@ TEST_F(StoreOpenTest, Version1DatabaseIsMigratedForwardKeepingItsData) {
               "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  absl::StatusOr<int> v = (*again)->SchemaVersion();
+  absl::StatusOr<int> v = (*again)->db().SchemaVersion();
   ASSERT_TRUE(v.ok()) << v.status();
-  EXPECT_EQ(*v, Store::kSchemaVersion);
+  EXPECT_EQ(*v, Database::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(),
                      "SELECT count(*) FROM sqlite_master WHERE "
                      "name IN ('genomes_parent_a', 'genomes_parent_b', "
@@ -104,7 +104,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
               "joined_ms, last_seen_ms) VALUES ('old', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(*(*again)->db().SchemaVersion(), Database::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(), "SELECT name || '/' || sandbox FROM workers"),
             "old/");
   WorkerRecord w;
@@ -112,7 +112,7 @@ TEST_F(StoreOpenTest, Version5DatabaseGainsTheWorkersSandboxColumn) {
   w.host = "h";
   w.threads = 2;
   w.sandbox = "bwrap";
-  ASSERT_TRUE((*again)->RegisterWorker(w).ok());
+  ASSERT_TRUE((*again)->fleet().RegisterWorker(w).ok());
   EXPECT_EQ(RawQuery(path(), "SELECT sandbox FROM workers WHERE name = 'new'"),
             "bwrap");
 }
@@ -128,7 +128,7 @@ TEST_F(StoreOpenTest, DatabaseBeforeMetricsGainsTheMetricsTable) {
           "joined_ms, last_seen_ms) VALUES ('kept', 'h', 1, '', '0', 1, 1)");
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  EXPECT_EQ(*(*again)->SchemaVersion(), Store::kSchemaVersion);
+  EXPECT_EQ(*(*again)->db().SchemaVersion(), Database::kSchemaVersion);
   EXPECT_EQ(RawQuery(path(),
                      "SELECT count(*) FROM sqlite_master WHERE name IN "
                      "('genome_metrics', 'genome_metrics_run')"),
@@ -156,7 +156,7 @@ TEST_F(StoreOpenTest, HeaderThatForbidsWritingIsRefusedAtOpenNotAStall) {
 
 TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
   store_.reset();
-  const int newer = Store::kSchemaVersion + 1;
+  const int newer = Database::kSchemaVersion + 1;
   RawExec(path(), absl::StrCat("UPDATE schema_version SET version = ", newer));
   const std::string before = ReadFileBytes(path());
 
@@ -167,7 +167,7 @@ TEST_F(StoreOpenTest, NewerSchemaIsRefusedNamingBothVersionsAndLeftUnchanged) {
   EXPECT_THAT(Message(store.status()),
               HasSubstr(absl::StrCat("version ", newer)));
   EXPECT_THAT(Message(store.status()),
-              HasSubstr(absl::StrCat("version ", Store::kSchemaVersion)));
+              HasSubstr(absl::StrCat("version ", Database::kSchemaVersion)));
   EXPECT_THAT(Message(store.status()), HasSubstr(path()));
 
   EXPECT_EQ(RawQuery(path(), "SELECT max(version) FROM schema_version"),
@@ -207,24 +207,24 @@ TEST_F(StoreOpenTest, ReadOnlyOpenRefusesAnOlderSchemaAndChangesNothing) {
   EXPECT_THAT(Message(store.status()), HasSubstr("schema version 7"));
   EXPECT_THAT(
       Message(store.status()),
-      HasSubstr(absl::StrCat("this program's is ", Store::kSchemaVersion)));
+      HasSubstr(absl::StrCat("this program's is ", Database::kSchemaVersion)));
   EXPECT_TRUE(ReadFileBytes(path()) == before) << "the refused file changed";
 }
 
 TEST_F(StoreOpenTest, ReadOnlyStoreReadsAndEveryWriteFails) {
   RunRecord run = MakeRun(SmallSpec(1));
   std::vector<GenomeRecord> genomes = Generation0(1, 4);
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes).ok());
   store_.reset();
   const std::string before = ReadFileBytes(path());
   Store::Options read_only;
   read_only.read_only = true;
   absl::StatusOr<std::unique_ptr<Store>> store = Store::Open(path(), read_only);
   ASSERT_TRUE(store.ok()) << store.status();
-  absl::StatusOr<RunRecord> got = (*store)->GetRun(run.id);
+  absl::StatusOr<RunRecord> got = (*store)->runs().GetRun(run.id);
   ASSERT_TRUE(got.ok()) << got.status();
   EXPECT_EQ(got->name, run.name);
-  EXPECT_FALSE((*store)->ProbeWrite().ok());
+  EXPECT_FALSE((*store)->db().ProbeWrite().ok());
   store->reset();
   EXPECT_TRUE(ReadFileBytes(path()) == before) << "a read-only store wrote";
 }

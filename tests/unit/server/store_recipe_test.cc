@@ -108,7 +108,7 @@ class RecipeStoreTest : public StoreTest {
     champions_.clear();
     RunRecord run = MakeRun(spec);
     std::vector<GenomeRecord> gen = engine::Seed(spec, 0).value();
-    EXPECT_TRUE(store_->CreateRun(&run, &gen).ok());
+    EXPECT_TRUE(store_->runs().CreateRun(&run, &gen).ok());
     for (uint32_t g = 0;; ++g) {
       std::vector<GenomeRecord> pending;
       std::vector<double> scores;
@@ -145,7 +145,7 @@ class RecipeStoreTest : public StoreTest {
         c.champion_genome = best;
       }
       champions_.push_back(best->id);
-      EXPECT_TRUE(store_->CommitGeneration(c).ok());
+      EXPECT_TRUE(store_->runs().CommitGeneration(c).ok());
       gen = *std::move(next);
     }
     return run.id;
@@ -161,7 +161,7 @@ TEST_F(RecipeStoreTest, EveryGenomeReadBackHasTheGenesItWasBredWith) {
     const int64_t run = StoreRun(RecipeSpec(3, float32));
     for (uint32_t g = 0; g < kGenerations; ++g) {
       absl::StatusOr<std::vector<GenomeRecord>> read =
-          store_->GetGeneration(run, 0, g);
+          store_->genomes().GetGeneration(run, 0, g);
       ASSERT_TRUE(read.ok()) << read.status();
       ASSERT_EQ(read->size(), bred_[g].size());
       for (size_t i = 0; i < read->size(); ++i) {
@@ -173,7 +173,7 @@ TEST_F(RecipeStoreTest, EveryGenomeReadBackHasTheGenesItWasBredWith) {
     }
     // One genome alone, its ancestry read back from the store.
     const GenomeRecord& last = bred_[kGenerations - 1][3];
-    absl::StatusOr<GenomeRecord> one = store_->GetGenome(last.id);
+    absl::StatusOr<GenomeRecord> one = store_->genomes().GetGenome(last.id);
     ASSERT_TRUE(one.ok()) << one.status();
     EXPECT_EQ(one->genes, last.genes);
   }
@@ -186,7 +186,7 @@ TEST_F(RecipeStoreTest, LongGenomesRebuiltOnSeveralThreadsAreTheSame) {
   const int64_t run = StoreRun(RecipeSpec(100, false, 40000, 40));
   for (uint32_t g : {1u, kGenerations - 1}) {
     absl::StatusOr<std::vector<GenomeRecord>> read =
-        store_->GetGeneration(run, 0, g);
+        store_->genomes().GetGeneration(run, 0, g);
     ASSERT_TRUE(read.ok()) << read.status();
     ASSERT_EQ(read->size(), bred_[g].size());
     for (size_t i = 0; i < read->size(); ++i) {
@@ -233,8 +233,8 @@ TEST_F(RecipeStoreTest, TheDigestOfARunKeptAsRecipesIsThatOfTheRunKeptWhole) {
       std::stoll(RawQuery(path(), absl::StrCat("SELECT sum(length(genes)) FROM "
                                                "genomes WHERE run_id = ",
                                                whole))));
-  absl::StatusOr<Store::Digest> a = store_->RunDigest(whole);
-  absl::StatusOr<Store::Digest> b = store_->RunDigest(recipes);
+  absl::StatusOr<GenomeStore::Digest> a = store_->genomes().RunDigest(whole);
+  absl::StatusOr<GenomeStore::Digest> b = store_->genomes().RunDigest(recipes);
   ASSERT_TRUE(a.ok()) << a.status();
   ASSERT_TRUE(b.ok()) << b.status();
   EXPECT_EQ(a->sha256, b->sha256);
@@ -281,9 +281,9 @@ TEST_F(RecipeStoreTest, APendingValidationOfAGenomeKeptAsItsRecipeHasItsGenes) {
   request.cases = 3;
   request.requested_by = "alice";
   request.now_ms = 2000;
-  ASSERT_TRUE(store_->RequestValidation(request).ok());
+  ASSERT_TRUE(store_->validations().RequestValidation(request).ok());
   absl::StatusOr<std::vector<ValidationRecord>> pending =
-      store_->PendingValidations();
+      store_->validations().PendingValidations();
   ASSERT_TRUE(pending.ok()) << pending.status();
   ASSERT_EQ(pending->size(), 1u);
   EXPECT_EQ(pending->front().genes, child->genes);
@@ -302,7 +302,7 @@ TEST_F(RecipeStoreTest, AMissingAncestorIsDataLossNamingTheGenomeAndItsParent) {
   ASSERT_NE(child, nullptr);
   Edit(path(),
        absl::StrCat("DELETE FROM genomes WHERE id = ", child->parent_a));
-  absl::StatusOr<GenomeRecord> read = store_->GetGenome(child->id);
+  absl::StatusOr<GenomeRecord> read = store_->genomes().GetGenome(child->id);
   ASSERT_TRUE(absl::IsDataLoss(read.status())) << read.status();
   EXPECT_THAT(std::string(read.status().message()),
               HasSubstr(absl::StrCat("run ", run, ": genome ", child->id,
@@ -311,7 +311,7 @@ TEST_F(RecipeStoreTest, AMissingAncestorIsDataLossNamingTheGenomeAndItsParent) {
                                      "cannot be rebuilt")));
   // The digest says the same of the first genome of generation 2 that
   // needs it, where it is, and not that a checksum failed.
-  absl::StatusOr<Store::Digest> digest = store_->RunDigest(run);
+  absl::StatusOr<GenomeStore::Digest> digest = store_->genomes().RunDigest(run);
   ASSERT_TRUE(absl::IsDataLoss(digest.status())) << digest.status();
   EXPECT_THAT(
       std::string(digest.status().message()),
@@ -322,7 +322,7 @@ TEST_F(RecipeStoreTest, AMissingAncestorIsDataLossNamingTheGenomeAndItsParent) {
   EXPECT_THAT(std::string(digest.status().message()),
               ::testing::Not(HasSubstr("checksum")));
   // The rest of the run is still read.
-  EXPECT_TRUE(store_->GetGeneration(run, 0, 0).ok());
+  EXPECT_TRUE(store_->genomes().GetGeneration(run, 0, 0).ok());
 }
 
 }  // namespace

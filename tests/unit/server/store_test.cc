@@ -36,7 +36,7 @@ TEST_F(StoreTest, ReopenKeepsRuns) {
   store_.reset();
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
-  absl::StatusOr<RunRecord> got = (*again)->GetRun(run.id);
+  absl::StatusOr<RunRecord> got = (*again)->runs().GetRun(run.id);
   ASSERT_TRUE(got.ok()) << got.status();
   EXPECT_EQ(got->name, "store-test");
   EXPECT_EQ(got->owner, "alice");
@@ -59,7 +59,7 @@ TEST_F(StoreTest, CreateRunWritesRunIslandsAndGenerationZero) {
   EXPECT_EQ(ids.size(), genomes.size()) << "genome ids must be distinct";
 
   absl::StatusOr<std::vector<IslandRecord>> islands =
-      store_->GetIslands(run.id);
+      store_->runs().GetIslands(run.id);
   ASSERT_TRUE(islands.ok()) << islands.status();
   ASSERT_EQ(islands->size(), 2u);
   for (uint32_t i = 0; i < 2; ++i) {
@@ -69,7 +69,7 @@ TEST_F(StoreTest, CreateRunWritesRunIslandsAndGenerationZero) {
   }
   for (uint32_t i = 0; i < 2; ++i) {
     absl::StatusOr<std::vector<GenomeRecord>> gen =
-        store_->GetGeneration(run.id, i, 0);
+        store_->genomes().GetGeneration(run.id, i, 0);
     ASSERT_TRUE(gen.ok()) << gen.status();
     ASSERT_EQ(gen->size(), 4u);
     for (uint32_t s = 0; s < 4; ++s) {
@@ -84,7 +84,7 @@ TEST_F(StoreTest, CreateRunWritesRunIslandsAndGenerationZero) {
       EXPECT_EQ(got.parent_b, 0);
     }
   }
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok()) << stored.status();
   EXPECT_EQ(stored->state, skerry::v1::RUNNING);
   EXPECT_EQ(stored->evaluations, 0);
@@ -96,9 +96,9 @@ TEST_F(StoreTest, CreateRunWithDuplicateNaturalKeyWritesNothing) {
   RunRecord run = MakeRun(SmallSpec(1));
   std::vector<GenomeRecord> genomes = Generation0(1, 3);
   genomes.push_back(MakeGenome(0, 0, 1, 9.0));  // slot 1 twice
-  absl::Status s = store_->CreateRun(&run, &genomes);
+  absl::Status s = store_->runs().CreateRun(&run, &genomes);
   EXPECT_FALSE(s.ok());
-  absl::StatusOr<std::vector<RunRecord>> runs = store_->ListRuns();
+  absl::StatusOr<std::vector<RunRecord>> runs = store_->runs().ListRuns();
   ASSERT_TRUE(runs.ok()) << runs.status();
   EXPECT_TRUE(runs->empty()) << "a failed CreateRun left a run behind";
   EXPECT_EQ(RawQuery(path(), "SELECT count(*) FROM genomes"), "0");
@@ -106,7 +106,7 @@ TEST_F(StoreTest, CreateRunWithDuplicateNaturalKeyWritesNothing) {
 }
 
 TEST_F(StoreTest, GetRunOfUnknownIdIsNotFoundNamingTheRun) {
-  absl::StatusOr<RunRecord> run = store_->GetRun(4242);
+  absl::StatusOr<RunRecord> run = store_->runs().GetRun(4242);
   ASSERT_FALSE(run.ok());
   EXPECT_EQ(run.status().code(), absl::StatusCode::kNotFound);
   EXPECT_THAT(run.status().message(), HasSubstr("4242"));
@@ -130,20 +130,20 @@ TEST_F(StoreTest, CommitResultsStoresScoresAndCountsEvaluations) {
   updates[1].state = skerry::v1::PENDING;
   updates[1].attempts = 1;
   updates[1].error = "simulator crashed";
-  ASSERT_TRUE(store_->CommitResults(updates).ok());
+  ASSERT_TRUE(store_->genomes().CommitResults(updates).ok());
 
-  absl::StatusOr<GenomeRecord> g0 = store_->GetGenome(genomes[0].id);
+  absl::StatusOr<GenomeRecord> g0 = store_->genomes().GetGenome(genomes[0].id);
   ASSERT_TRUE(g0.ok()) << g0.status();
   EXPECT_EQ(g0->state, skerry::v1::EVALUATED);
   EXPECT_EQ(g0->score, 2.5);
   EXPECT_EQ(g0->attempts, 1u);
   EXPECT_EQ(g0->eval_seconds, 0.25);
-  absl::StatusOr<GenomeRecord> g1 = store_->GetGenome(genomes[1].id);
+  absl::StatusOr<GenomeRecord> g1 = store_->genomes().GetGenome(genomes[1].id);
   ASSERT_TRUE(g1.ok()) << g1.status();
   EXPECT_EQ(g1->state, skerry::v1::PENDING);
   EXPECT_EQ(g1->attempts, 1u);
   EXPECT_EQ(g1->error, "simulator crashed");
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->evaluations, 1) << "only the final result counts";
 }
@@ -158,13 +158,13 @@ TEST_F(StoreTest, CommitResultsStoresMetricsWithTheScore) {
   updates[0].score = 1;
   updates[0].attempts = 1;
   updates[0].metrics = {{"max_temp_c", 22.5}, {"vent_travel", 1.75}};
-  ASSERT_TRUE(store_->CommitResults(updates).ok());
+  ASSERT_TRUE(store_->genomes().CommitResults(updates).ok());
   absl::StatusOr<std::map<std::string, double>> m =
-      store_->GetGenomeMetrics(genomes[0].id);
+      store_->genomes().GetGenomeMetrics(genomes[0].id);
   ASSERT_TRUE(m.ok()) << m.status();
   EXPECT_EQ(*m, updates[0].metrics);
-  EXPECT_TRUE(store_->GetGenomeMetrics(genomes[1].id)->empty());
-  auto means = store_->MetricMeans(run.id);
+  EXPECT_TRUE(store_->genomes().GetGenomeMetrics(genomes[1].id)->empty());
+  auto means = store_->genomes().MetricMeans(run.id);
   ASSERT_TRUE(means.ok());
   const std::pair<uint32_t, uint32_t> key(genomes[0].island,
                                           genomes[0].generation);
@@ -184,25 +184,25 @@ TEST_F(StoreTest, CommitResultsRefusesBatchWithNonPendingGenomeAndAppliesNone) {
     batch[i].score = 100.0 + i;
     batch[i].attempts = 1;
   }
-  absl::Status s = store_->CommitResults(batch);
+  absl::Status s = store_->genomes().CommitResults(batch);
   ASSERT_FALSE(s.ok());
   EXPECT_EQ(s.code(), absl::StatusCode::kFailedPrecondition) << s;
   EXPECT_THAT(Message(s), HasSubstr(absl::StrCat("genome ", genomes[2].id)));
 
   for (int i = 0; i < 2; ++i) {
-    absl::StatusOr<GenomeRecord> g = store_->GetGenome(genomes[i].id);
+    absl::StatusOr<GenomeRecord> g = store_->genomes().GetGenome(genomes[i].id);
     ASSERT_TRUE(g.ok());
     EXPECT_EQ(g->state, skerry::v1::PENDING) << "genome " << i;
     EXPECT_EQ(g->attempts, 0u);
   }
-  absl::StatusOr<GenomeRecord> g2 = store_->GetGenome(genomes[2].id);
+  absl::StatusOr<GenomeRecord> g2 = store_->genomes().GetGenome(genomes[2].id);
   ASSERT_TRUE(g2.ok());
   EXPECT_EQ(g2->score, 7.0);
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->evaluations, 1);
   // The store is still usable after the rollback.
-  EXPECT_TRUE(store_->CommitResults({batch[0]}).ok());
+  EXPECT_TRUE(store_->genomes().CommitResults({batch[0]}).ok());
 }
 
 TEST_F(StoreTest, CommitResultsForUnknownGenomeIsRefused) {
@@ -212,7 +212,7 @@ TEST_F(StoreTest, CommitResultsForUnknownGenomeIsRefused) {
   u.genome_id = 987654;
   u.run_id = run.id;
   u.score = 1.0;
-  absl::Status s = store_->CommitResults({u});
+  absl::Status s = store_->genomes().CommitResults({u});
   EXPECT_EQ(s.code(), absl::StatusCode::kFailedPrecondition) << s;
 }
 
@@ -251,17 +251,17 @@ TEST_F(StoreTest, CommitGenerationWritesGenomesIslandStatsAndChampionTogether) {
   c.completed.evaluations = 4;
   c.next = &next;
   c.champion = std::make_pair(island0[3].id, 1.0);
-  ASSERT_TRUE(store_->CommitGeneration(c).ok());
+  ASSERT_TRUE(store_->runs().CommitGeneration(c).ok());
 
   for (const GenomeRecord& g : next) EXPECT_GT(g.id, 0) << "ids filled in";
   absl::StatusOr<std::vector<IslandRecord>> islands =
-      store_->GetIslands(run.id);
+      store_->runs().GetIslands(run.id);
   ASSERT_TRUE(islands.ok());
   EXPECT_EQ((*islands)[0].generation, 1u);
   EXPECT_EQ((*islands)[1].generation, 0u) << "other islands untouched";
 
   absl::StatusOr<std::vector<GenomeRecord>> gen1 =
-      store_->GetGeneration(run.id, 0, 1);
+      store_->genomes().GetGeneration(run.id, 0, 1);
   ASSERT_TRUE(gen1.ok());
   ASSERT_EQ(gen1->size(), 4u);
   EXPECT_EQ((*gen1)[0].origin, skerry::v1::ELITE);
@@ -273,7 +273,7 @@ TEST_F(StoreTest, CommitGenerationWritesGenomesIslandStatsAndChampionTogether) {
   EXPECT_EQ((*gen1)[3].state, skerry::v1::PENDING);
 
   absl::StatusOr<std::vector<StatsRecord>> stats =
-      store_->GetStats(run.id, std::nullopt);
+      store_->runs().GetStats(run.id, std::nullopt);
   ASSERT_TRUE(stats.ok());
   ASSERT_EQ(stats->size(), 1u);
   EXPECT_EQ((*stats)[0].generation, 0u);
@@ -283,7 +283,7 @@ TEST_F(StoreTest, CommitGenerationWritesGenomesIslandStatsAndChampionTogether) {
   EXPECT_EQ((*stats)[0].diversity, 0.75);
   EXPECT_EQ((*stats)[0].evaluations, 4u);
 
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->champion_id, island0[3].id);
   ASSERT_TRUE(stored->best_score.has_value());
@@ -308,21 +308,21 @@ TEST_F(StoreTest, FailedCommitGenerationChangesNothing) {
   c.next = &next;
   c.champion = std::make_pair(genomes[3].id, 1.0);
   c.stop_generation = 0;
-  EXPECT_FALSE(store_->CommitGeneration(c).ok());
+  EXPECT_FALSE(store_->runs().CommitGeneration(c).ok());
 
   absl::StatusOr<std::vector<IslandRecord>> islands =
-      store_->GetIslands(run.id);
+      store_->runs().GetIslands(run.id);
   ASSERT_TRUE(islands.ok());
   EXPECT_EQ((*islands)[0].generation, 0u);
   absl::StatusOr<std::vector<StatsRecord>> stats =
-      store_->GetStats(run.id, std::nullopt);
+      store_->runs().GetStats(run.id, std::nullopt);
   ASSERT_TRUE(stats.ok());
   EXPECT_TRUE(stats->empty());
   absl::StatusOr<std::vector<GenomeRecord>> gen1 =
-      store_->GetGeneration(run.id, 0, 1);
+      store_->genomes().GetGeneration(run.id, 0, 1);
   ASSERT_TRUE(gen1.ok());
   EXPECT_TRUE(gen1->empty());
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->champion_id, 0);
   EXPECT_FALSE(stored->best_score.has_value());
@@ -342,14 +342,14 @@ TEST_F(StoreTest,
     c.completed.generation = 0;  // replaced each time (same key)
     c.island_done = true;
     c.stop_generation = stop;
-    ASSERT_TRUE(store_->CommitGeneration(c).ok());
+    ASSERT_TRUE(store_->runs().CommitGeneration(c).ok());
   }
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok());
   ASSERT_TRUE(stored->stop_generation.has_value());
   EXPECT_EQ(*stored->stop_generation, 1u);
   absl::StatusOr<std::vector<IslandRecord>> islands =
-      store_->GetIslands(run.id);
+      store_->runs().GetIslands(run.id);
   ASSERT_TRUE(islands.ok());
   EXPECT_FALSE((*islands)[0].done);
   EXPECT_TRUE((*islands)[1].done);
@@ -383,7 +383,7 @@ class FinishRunTest : public StoreTest {
     c.completed.island = island;
     c.completed.generation = g;
     c.next = &next;
-    EXPECT_TRUE(store_->CommitGeneration(c).ok());
+    EXPECT_TRUE(store_->runs().CommitGeneration(c).ok());
     return next;
   }
 };
@@ -400,9 +400,9 @@ TEST_F(FinishRunTest, TrimmedAndDeletedIdsAreNeverGivenAgain) {
   std::vector<GenomeRecord> g1 = Step(first, 0, genomes, {9, 9, 9, 9});
   int64_t largest = 0;
   for (const GenomeRecord& g : g1) largest = std::max(largest, g.id);
-  ASSERT_TRUE(store_
-                  ->FinishRun(first.id, skerry::v1::FINISHED, "target reached",
-                              /*keep_through=*/0, 5000)
+  ASSERT_TRUE(store_->runs()
+                  .FinishRun(first.id, skerry::v1::FINISHED, "target reached",
+                             /*keep_through=*/0, 5000)
                   .ok());
   ASSERT_EQ(RawQuery(path(), "SELECT max(id) FROM genomes"),
             std::to_string(largest - 4));  // generation 1 trimmed
@@ -412,13 +412,13 @@ TEST_F(FinishRunTest, TrimmedAndDeletedIdsAreNeverGivenAgain) {
     EXPECT_GT(g.id, largest) << "slot " << g.slot << " took a trimmed id";
   }
   // Deleting the newest run leaves its ids taken too.
-  ASSERT_TRUE(store_
-                  ->FinishRun(second.id, skerry::v1::STOPPED, "stopped",
-                              std::nullopt, 6000)
+  ASSERT_TRUE(store_->runs()
+                  .FinishRun(second.id, skerry::v1::STOPPED, "stopped",
+                             std::nullopt, 6000)
                   .ok());
   int64_t newest = 0;
   for (const GenomeRecord& g : more) newest = std::max(newest, g.id);
-  ASSERT_TRUE(store_->DeleteRun(second.id).ok());
+  ASSERT_TRUE(store_->runs().DeleteRun(second.id).ok());
   std::vector<GenomeRecord> third_genomes;
   const RunRecord third = CreateRun(1, &third_genomes);
   EXPECT_GT(third.id, second.id);
@@ -437,11 +437,11 @@ TEST_F(FinishRunTest, RunIdNamedBySuccessfulAuditEntryIsNotGivenAgain) {
     entry.method = "/skerry.v1.RunService/DeleteRun";
     entry.run_id = run_id;
     entry.peer = "ipv4:127.0.0.1:1";
-    absl::StatusOr<int64_t> id = store_->BeginAudit(entry);
+    absl::StatusOr<int64_t> id = store_->access().BeginAudit(entry);
     ASSERT_TRUE(id.ok()) << id.status();
     entry.id = *id;
     entry.code = code;
-    ASSERT_TRUE(store_->FinishAudit(entry).ok());
+    ASSERT_TRUE(store_->access().FinishAudit(entry).ok());
   }
   std::vector<GenomeRecord> genomes;
   EXPECT_EQ(CreateRun(1, &genomes).id, 42);
@@ -462,18 +462,18 @@ TEST_F(FinishRunTest, KeepThroughTrimsLaterGenerationsAndRecomputesChampion) {
   std::vector<GenomeRecord> b1 = Step(run, 1, b0, {9, 9, 9, 9});
   Step(run, 1, b1, {9, 0.5, 0.5, 9});
 
-  ASSERT_TRUE(store_
-                  ->FinishRun(run.id, skerry::v1::FINISHED, "target reached",
-                              /*keep_through=*/1, 5000)
+  ASSERT_TRUE(store_->runs()
+                  .FinishRun(run.id, skerry::v1::FINISHED, "target reached",
+                             /*keep_through=*/1, 5000)
                   .ok());
 
   for (uint32_t island : {0u, 1u}) {
     absl::StatusOr<std::vector<GenomeRecord>> gone =
-        store_->GetGeneration(run.id, island, 2);
+        store_->genomes().GetGeneration(run.id, island, 2);
     ASSERT_TRUE(gone.ok());
     EXPECT_TRUE(gone->empty()) << "island " << island << " generation 2";
     absl::StatusOr<std::vector<GenomeRecord>> kept =
-        store_->GetGeneration(run.id, island, 1);
+        store_->genomes().GetGeneration(run.id, island, 1);
     ASSERT_TRUE(kept.ok());
     EXPECT_EQ(kept->size(), 4u) << "island " << island << " generation 1";
   }
@@ -485,12 +485,12 @@ TEST_F(FinishRunTest, KeepThroughTrimsLaterGenerationsAndRecomputesChampion) {
                "SELECT count(*) FROM generation_stats WHERE generation > 1"),
       "0");
   absl::StatusOr<std::vector<IslandRecord>> islands =
-      store_->GetIslands(run.id);
+      store_->runs().GetIslands(run.id);
   ASSERT_TRUE(islands.ok());
   EXPECT_EQ((*islands)[0].generation, 1u);
   EXPECT_EQ((*islands)[1].generation, 1u);
 
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->state, skerry::v1::FINISHED);
   EXPECT_EQ(stored->message, "target reached");
@@ -508,22 +508,22 @@ TEST_F(FinishRunTest, WithoutKeepThroughEverythingStays) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(1, &genomes);
   std::vector<GenomeRecord> g1 = Step(run, 0, genomes, {3, 2, 1, 4});
-  ASSERT_TRUE(store_
-                  ->FinishRun(run.id, skerry::v1::STOPPED, "stopped by a user",
-                              std::nullopt, 5000)
+  ASSERT_TRUE(store_->runs()
+                  .FinishRun(run.id, skerry::v1::STOPPED, "stopped by a user",
+                             std::nullopt, 5000)
                   .ok());
   absl::StatusOr<std::vector<GenomeRecord>> kept =
-      store_->GetGeneration(run.id, 0, 1);
+      store_->genomes().GetGeneration(run.id, 0, 1);
   ASSERT_TRUE(kept.ok());
   EXPECT_EQ(kept->size(), 4u);
-  absl::StatusOr<RunRecord> stored = store_->GetRun(run.id);
+  absl::StatusOr<RunRecord> stored = store_->runs().GetRun(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->state, skerry::v1::STOPPED);
   EXPECT_EQ(stored->champion_id, genomes[2].id);
   EXPECT_FALSE(stored->stop_generation.has_value());
 }
 
-// The champion tie rule of Store::BestGenome, case by case.
+// The champion tie rule of GenomeStore::BestGenome, case by case.
 TEST_F(StoreTest, BestGenomeBreaksTiesByGenerationThenIslandThenSlot) {
   struct Case {
     const char* name;
@@ -555,9 +555,9 @@ TEST_F(StoreTest, BestGenomeBreaksTiesByGenerationThenIslandThenSlot) {
         }
       }
     }
-    ASSERT_TRUE(store_->CreateRun(&run, &all).ok());
+    ASSERT_TRUE(store_->runs().CreateRun(&run, &all).ok());
     absl::StatusOr<std::optional<GenomeRecord>> best =
-        store_->BestGenome(run.id);
+        store_->genomes().BestGenome(run.id);
     ASSERT_TRUE(best.ok()) << best.status();
     ASSERT_TRUE(best->has_value());
     EXPECT_EQ((*best)->island, tc.want[0]);
@@ -578,15 +578,16 @@ TEST_F(StoreTest, BestGenomeMaximisesForMaximiseRunsAndIgnoresFailed) {
     all[s].score = scores[s];
   }
   all[1].state = skerry::v1::FAILED;  // the highest score, but failed
-  ASSERT_TRUE(store_->CreateRun(&run, &all).ok());
-  absl::StatusOr<std::optional<GenomeRecord>> best = store_->BestGenome(run.id);
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &all).ok());
+  absl::StatusOr<std::optional<GenomeRecord>> best =
+      store_->genomes().BestGenome(run.id);
   ASSERT_TRUE(best.ok()) << best.status();
   ASSERT_TRUE(best->has_value());
   EXPECT_EQ((*best)->slot, 2u);
 }
 
 TEST_F(StoreTest, SetRunStateOfUnknownRunIsNotFound) {
-  absl::Status s = store_->SetRunState(77, skerry::v1::PAUSED, "", 1);
+  absl::Status s = store_->runs().SetRunState(77, skerry::v1::PAUSED, "", 1);
   EXPECT_EQ(s.code(), absl::StatusCode::kNotFound) << s;
   EXPECT_THAT(Message(s), HasSubstr("77"));
 }

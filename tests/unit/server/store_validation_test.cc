@@ -25,7 +25,8 @@ class StoreValidationTest : public StoreTest {
     r.reason = reason;
     r.requested_by = "bo";
     r.now_ms = 5000;
-    absl::StatusOr<ValidationRecord> v = store_->RequestValidation(r);
+    absl::StatusOr<ValidationRecord> v =
+        store_->validations().RequestValidation(r);
     EXPECT_TRUE(v.ok()) << v.status();
     return v.ok() ? *v : ValidationRecord();
   }
@@ -37,7 +38,7 @@ class StoreValidationTest : public StoreTest {
     u.score = score;
     u.attempts = 1;
     u.now_ms = 6000;
-    ASSERT_TRUE(store_->CommitValidations({u}).ok());
+    ASSERT_TRUE(store_->validations().CommitValidations({u}).ok());
   }
 
   // Generation 1 of island 0: slot 0 an elite of `parent`, slot 1 a mutant.
@@ -70,7 +71,7 @@ class StoreValidationTest : public StoreTest {
       r.now_ms = 4000;
       c.validate = r;
     }
-    absl::Status s = store_->CommitGeneration(c);
+    absl::Status s = store_->runs().CommitGeneration(c);
     EXPECT_TRUE(s.ok()) << s;
     return next;
   }
@@ -93,24 +94,24 @@ TEST_F(StoreValidationTest, ARequestIsStoredOnceAndFoundAgain) {
   EXPECT_EQ(again.id, v.id) << "one validation per genome";
 
   absl::StatusOr<std::vector<ValidationRecord>> pending =
-      store_->PendingValidations();
+      store_->validations().PendingValidations();
   ASSERT_TRUE(pending.ok());
   ASSERT_EQ(pending->size(), 1u);
   EXPECT_EQ((*pending)[0].genes, genomes[2].genes) << "genes for the queue";
 
   Finish(v.id, 612);
   absl::StatusOr<std::optional<ValidationRecord>> got =
-      store_->GetValidation(genomes[2].id);
+      store_->validations().GetValidation(genomes[2].id);
   ASSERT_TRUE(got.ok() && got->has_value());
   EXPECT_EQ((*got)->state, skerry::v1::VALIDATION_DONE);
   EXPECT_EQ((*got)->score, 612);
   EXPECT_EQ((*got)->completed_ms, 6000);
-  pending = store_->PendingValidations();
+  pending = store_->validations().PendingValidations();
   ASSERT_TRUE(pending.ok());
   EXPECT_TRUE(pending->empty());
   // A second outcome for a finished validation changes nothing.
   Finish(v.id, 1);
-  got = store_->GetValidation(genomes[2].id);
+  got = store_->validations().GetValidation(genomes[2].id);
   ASSERT_TRUE(got.ok() && got->has_value());
   EXPECT_EQ((*got)->score, 612);
 }
@@ -118,12 +119,13 @@ TEST_F(StoreValidationTest, ARequestIsStoredOnceAndFoundAgain) {
 TEST_F(StoreValidationTest, UnknownGenomeIsNotFoundAndNothingIsStored) {
   ValidationRequest r;
   r.genome_id = 999;
-  absl::StatusOr<ValidationRecord> v = store_->RequestValidation(r);
+  absl::StatusOr<ValidationRecord> v =
+      store_->validations().RequestValidation(r);
   ASSERT_FALSE(v.ok());
   EXPECT_EQ(v.status().code(), absl::StatusCode::kNotFound);
   EXPECT_THAT(std::string(v.status().message()), HasSubstr("genome 999"));
   absl::StatusOr<std::vector<ValidationRecord>> pending =
-      store_->PendingValidations();
+      store_->validations().PendingValidations();
   ASSERT_TRUE(pending.ok());
   EXPECT_TRUE(pending->empty());
 }
@@ -135,7 +137,7 @@ TEST_F(StoreValidationTest, AnEliteOfAValidatedParentGetsACopy) {
   // The champion's validation goes in with the generation.
   std::vector<GenomeRecord> next = NextGeneration(run, genomes[3], true);
   absl::StatusOr<std::optional<ValidationRecord>> parent =
-      store_->GetValidation(genomes[3].id);
+      store_->validations().GetValidation(genomes[3].id);
   ASSERT_TRUE(parent.ok() && parent->has_value());
   EXPECT_EQ((*parent)->reason, skerry::v1::GENERATION_CHAMPION);
   EXPECT_EQ((*parent)->state, skerry::v1::VALIDATION_PENDING);
@@ -154,17 +156,17 @@ TEST_F(StoreValidationTest, AnEliteOfAValidatedParentGetsACopy) {
   EXPECT_EQ(elite.completed_ms, 5000);
 
   absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>> scores =
-      store_->ChampionValidationScores(run.id);
+      store_->validations().ChampionValidationScores(run.id);
   ASSERT_TRUE(scores.ok());
   ASSERT_EQ(scores->size(), 1u);
   EXPECT_EQ(scores->at({0, 0}), 300);
 
   absl::StatusOr<std::vector<ValidationRecord>> list =
-      store_->ListValidations(run.id, 10);
+      store_->validations().ListValidations(run.id, 10);
   ASSERT_TRUE(list.ok());
   ASSERT_EQ(list->size(), 3u);
   EXPECT_EQ((*list)[0].id, elite.id) << "newest first";
-  list = store_->ListValidations(run.id, 1);
+  list = store_->validations().ListValidations(run.id, 1);
   ASSERT_TRUE(list.ok());
   EXPECT_EQ(list->size(), 1u);
 }
@@ -178,9 +180,9 @@ TEST_F(StoreValidationTest, FailedAttemptsStayPendingUntilTheLast) {
   u.state = skerry::v1::VALIDATION_PENDING;
   u.attempts = 1;
   u.error = "simulator crashed";
-  ASSERT_TRUE(store_->CommitValidations({u}).ok());
+  ASSERT_TRUE(store_->validations().CommitValidations({u}).ok());
   absl::StatusOr<std::optional<ValidationRecord>> got =
-      store_->GetValidation(genomes[0].id);
+      store_->validations().GetValidation(genomes[0].id);
   ASSERT_TRUE(got.ok() && got->has_value());
   EXPECT_EQ((*got)->state, skerry::v1::VALIDATION_PENDING);
   EXPECT_EQ((*got)->attempts, 1u);
@@ -188,8 +190,8 @@ TEST_F(StoreValidationTest, FailedAttemptsStayPendingUntilTheLast) {
   u.state = skerry::v1::VALIDATION_FAILED;
   u.attempts = 3;
   u.now_ms = 7000;
-  ASSERT_TRUE(store_->CommitValidations({u}).ok());
-  got = store_->GetValidation(genomes[0].id);
+  ASSERT_TRUE(store_->validations().CommitValidations({u}).ok());
+  got = store_->validations().GetValidation(genomes[0].id);
   ASSERT_TRUE(got.ok() && got->has_value());
   EXPECT_EQ((*got)->state, skerry::v1::VALIDATION_FAILED);
   EXPECT_EQ((*got)->completed_ms, 7000);
@@ -201,10 +203,11 @@ TEST_F(StoreValidationTest, TrimmingAFinishedRunTrimsItsValidations) {
   Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
   std::vector<GenomeRecord> next = NextGeneration(run, genomes[3], true);
   Request(next[1].id);
-  ASSERT_TRUE(
-      store_->FinishRun(run.id, skerry::v1::FINISHED, "done", 0, 9000).ok());
+  ASSERT_TRUE(store_->runs()
+                  .FinishRun(run.id, skerry::v1::FINISHED, "done", 0, 9000)
+                  .ok());
   absl::StatusOr<std::vector<ValidationRecord>> list =
-      store_->ListValidations(run.id, 10);
+      store_->validations().ListValidations(run.id, 10);
   ASSERT_TRUE(list.ok());
   ASSERT_EQ(list->size(), 1u) << "generation 1 is gone, with its validation";
   EXPECT_EQ((*list)[0].genome_id, genomes[3].id);
@@ -235,10 +238,10 @@ TEST_F(StoreValidationTest, APendingValidationOfASampleKeptAsItsRecipeIsRead) {
     g.recipe = r;
     genomes.push_back(g);
   }
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes).ok());
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes).ok());
   const ValidationRecord v = Request(genomes[2].id);
   absl::StatusOr<std::vector<ValidationRecord>> pending =
-      store_->PendingValidations();
+      store_->validations().PendingValidations();
   ASSERT_TRUE(pending.ok()) << pending.status();
   ASSERT_EQ(pending->size(), 1u);
   EXPECT_EQ(pending->front().id, v.id);

@@ -60,10 +60,10 @@ class StrategyReplayTest : public ::testing::Test {
     ASSERT_TRUE(gen0.ok()) << gen0.status();
     states_.push_back((*strategy)->Save().SerializeAsString());
     const std::vector<std::string> first = {states_.back()};
-    ASSERT_TRUE(store_->CreateRun(&run_, &*gen0, &first).ok());
+    ASSERT_TRUE(store_->runs().CreateRun(&run_, &*gen0, &first).ok());
     for (uint32_t g = 0; g < last; ++g) {
       absl::StatusOr<std::vector<GenomeRecord>> current =
-          store_->GetGeneration(run_.id, 0, g);
+          store_->genomes().GetGeneration(run_.id, 0, g);
       ASSERT_TRUE(current.ok()) << current.status();
       std::vector<store::ResultUpdate> results;
       for (const GenomeRecord& r : *current) {
@@ -74,8 +74,8 @@ class StrategyReplayTest : public ::testing::Test {
         for (double x : r.genes) u.score += x * x;
         results.push_back(u);
       }
-      ASSERT_TRUE(store_->CommitResults(results).ok());
-      current = store_->GetGeneration(run_.id, 0, g);
+      ASSERT_TRUE(store_->genomes().CommitResults(results).ok());
+      current = store_->genomes().GetGeneration(run_.id, 0, g);
       ASSERT_TRUE(current.ok()) << current.status();
       ASSERT_TRUE((*strategy)->Tell(*current, {}).ok());
       absl::StatusOr<std::vector<GenomeRecord>> next = (*strategy)->Ask();
@@ -88,7 +88,7 @@ class StrategyReplayTest : public ::testing::Test {
       c.completed.generation = g;
       c.next = &*next;
       c.strategy_state = states_.back();
-      ASSERT_TRUE(store_->CommitGeneration(c).ok());
+      ASSERT_TRUE(store_->runs().CommitGeneration(c).ok());
     }
   }
 

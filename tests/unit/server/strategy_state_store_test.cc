@@ -74,9 +74,9 @@ TEST_F(StrategyStateStoreTest, CreateRunStoresEachIslandsState) {
   RunRecord run = MakeRun(SmallSpec(2));
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
   const std::vector<std::string> states = {GaState(0), "island one"};
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes, &states).ok());
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes, &states).ok());
   absl::StatusOr<std::map<uint32_t, std::string>> stored =
-      store_->GetStrategyStates(run.id);
+      store_->runs().GetStrategyStates(run.id);
   ASSERT_TRUE(stored.ok()) << stored.status();
   ASSERT_EQ(stored->size(), 2u);
   EXPECT_EQ(stored->at(0), GaState(0));
@@ -87,7 +87,7 @@ TEST_F(StrategyStateStoreTest, CreateRunWithoutStatesStoresEmptyOnes) {
   std::vector<GenomeRecord> genomes;
   const RunRecord run = CreateRun(2, &genomes);
   absl::StatusOr<std::map<uint32_t, std::string>> stored =
-      store_->GetStrategyStates(run.id);
+      store_->runs().GetStrategyStates(run.id);
   ASSERT_TRUE(stored.ok()) << stored.status();
   ASSERT_EQ(stored->size(), 2u);
   EXPECT_EQ(stored->at(0), "");
@@ -98,9 +98,10 @@ TEST_F(StrategyStateStoreTest, CommitGenerationReplacesTheIslandsState) {
   const RunRecord run = CreateRun(1, &genomes);
   Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
   std::vector<GenomeRecord> next = NextGeneration(run);
-  ASSERT_TRUE(store_->CommitGeneration(Commit(run, &next, GaState(1))).ok());
+  ASSERT_TRUE(
+      store_->runs().CommitGeneration(Commit(run, &next, GaState(1))).ok());
   absl::StatusOr<std::map<uint32_t, std::string>> stored =
-      store_->GetStrategyStates(run.id);
+      store_->runs().GetStrategyStates(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->at(0), GaState(1));
   EXPECT_EQ(RawQuery(path(), "SELECT generation FROM strategy_states"), "1");
@@ -112,9 +113,10 @@ TEST_F(StrategyStateStoreTest, FailedCommitGenerationKeepsTheOldState) {
   Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
   std::vector<GenomeRecord> next = NextGeneration(run);
   next[2].slot = 1;  // slot 1 twice breaks the natural key: nothing commits
-  EXPECT_FALSE(store_->CommitGeneration(Commit(run, &next, GaState(1))).ok());
+  EXPECT_FALSE(
+      store_->runs().CommitGeneration(Commit(run, &next, GaState(1))).ok());
   absl::StatusOr<std::map<uint32_t, std::string>> stored =
-      store_->GetStrategyStates(run.id);
+      store_->runs().GetStrategyStates(run.id);
   ASSERT_TRUE(stored.ok());
   EXPECT_EQ(stored->at(0), "");
 }
@@ -126,7 +128,7 @@ TEST_F(StrategyStateStoreTest, CommitWithoutAStateLeavesItAlone) {
   GenerationCommit c = Commit(run, nullptr, "");
   c.strategy_state.reset();
   c.island_done = true;
-  ASSERT_TRUE(store_->CommitGeneration(c).ok());
+  ASSERT_TRUE(store_->runs().CommitGeneration(c).ok());
   EXPECT_EQ(RawQuery(path(), "SELECT length(state) FROM strategy_states"), "0");
 }
 
@@ -176,7 +178,8 @@ TEST_F(StrategyStateStoreTest, CheckReportsAStateOfAnotherGeneration) {
   const RunRecord run = CreateRun(1, &genomes);
   Evaluate(genomes, {4.0, 3.0, 2.0, 1.0});
   std::vector<GenomeRecord> next = NextGeneration(run);
-  ASSERT_TRUE(store_->CommitGeneration(Commit(run, &next, GaState(1))).ok());
+  ASSERT_TRUE(
+      store_->runs().CommitGeneration(Commit(run, &next, GaState(1))).ok());
   absl::StatusOr<CheckReport> report = CheckDatabase(path());
   ASSERT_TRUE(report.ok());
   EXPECT_TRUE(report->ok()) << report->ToString();
@@ -197,7 +200,7 @@ TEST_F(StrategyStateStoreTest, FlippedStateBitIsDataLossOnReadAndInCheck) {
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
   const std::string marked = "a state marked 5eb1a2c3 for finding";
   const std::vector<std::string> states = {"", marked};
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes, &states).ok());
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes, &states).ok());
   store_.reset();  // the WAL folds into the file
   std::string bytes = ReadFileBytes(path());
   const size_t at = bytes.find(marked);
@@ -210,7 +213,7 @@ TEST_F(StrategyStateStoreTest, FlippedStateBitIsDataLossOnReadAndInCheck) {
   absl::StatusOr<std::unique_ptr<Store>> again = Store::Open(path());
   ASSERT_TRUE(again.ok()) << again.status();
   absl::StatusOr<std::map<uint32_t, std::string>> read =
-      (*again)->GetStrategyStates(run.id);
+      (*again)->runs().GetStrategyStates(run.id);
   EXPECT_TRUE(absl::IsDataLoss(read.status())) << read.status();
   EXPECT_THAT(std::string(read.status().message()),
               HasSubstr("run 1 island 1 strategy state"));
@@ -246,7 +249,7 @@ TEST_F(StrategyStateStoreTest, BackupOfOneRunCarriesItsStrategyStates) {
   RunRecord run = MakeRun(SmallSpec(2));
   std::vector<GenomeRecord> genomes = Generation0(2, 4);
   const std::vector<std::string> states = {GaState(0), GaState(0)};
-  ASSERT_TRUE(store_->CreateRun(&run, &genomes, &states).ok());
+  ASSERT_TRUE(store_->runs().CreateRun(&run, &genomes, &states).ok());
   store_.reset();
   const std::string copy = dir_.File("one-run.db");
   ASSERT_TRUE(BackupDatabase(path(), run.id, copy).ok());

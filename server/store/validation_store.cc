@@ -1,4 +1,6 @@
-// The store's validation methods (schema version 4; see store.h).
+// ValidationStore (validation_store.h).
+#include "server/store/validation_store.h"
+
 #include <utility>
 
 #include "absl/strings/str_cat.h"
@@ -6,7 +8,7 @@
 #include "common/genes.h"
 #include "common/sample_recipe.h"
 #include "common/status_macros.h"
-#include "server/store/store.h"
+#include "server/store/genome_store.h"
 
 namespace skerry::store {
 namespace {
@@ -42,46 +44,10 @@ ValidationRecord ReadValidation(const Statement& s) {
   return r;
 }
 
-// The genes of genome `id` whose stored blob is `blob`: unpacked, or rebuilt
-// when the blob is a recipe (a natural ES sample's, from its distribution
-// genome; a GA genome's, from its ancestry), as every genome read is.
-absl::StatusOr<std::vector<double>> GenesOf(Connection* conn, int64_t id,
-                                            const std::string& blob,
-                                            int64_t parent_a,
-                                            int64_t parent_b) {
-  auto lost = [id](const absl::Status& s) {
-    return absl::DataLossError(
-        absl::StrCat("genome ", id, ": stored genes: ", s.message()));
-  };
-  if (!IsRecipe(blob) && !IsChildRecipe(blob)) {
-    absl::StatusOr<std::vector<double>> genes = UnpackGenes(blob);
-    if (!genes.ok()) return lost(genes.status());
-    return genes;
-  }
-  std::vector<GenomeRecord> one(1);
-  GenomeRecord& g = one.front();
-  g.id = id;
-  g.parent_a = parent_a;
-  g.parent_b = parent_b;
-  if (IsRecipe(blob)) {
-    absl::StatusOr<SampleRecipe> recipe = UnpackRecipe(blob);
-    if (!recipe.ok()) return lost(recipe.status());
-    g.recipe = *recipe;
-    SKERRY_RETURN_IF_ERROR(Store::RebuildSamples(conn, &one));
-  } else {
-    absl::StatusOr<UnpackedChild> child = UnpackChildRecipe(blob);
-    if (!child.ok()) return lost(child.status());
-    g.child_recipe = child->recipe;
-    if (child->genes.has_value()) g.genes = *std::move(child->genes);
-    SKERRY_RETURN_IF_ERROR(Store::RebuildChildren(conn, &one));
-  }
-  return std::move(g.genes);
-}
-
 }  // namespace
 
-absl::StatusOr<std::vector<ValidationRecord>> Store::QueryValidations(
-    Statement* s, bool with_genes) {
+absl::StatusOr<std::vector<ValidationRecord>> ValidationStore::Query(
+    Connection* conn, Statement* s, bool with_genes) {
   std::vector<ValidationRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s->Step());
@@ -89,37 +55,38 @@ absl::StatusOr<std::vector<ValidationRecord>> Store::QueryValidations(
     ValidationRecord r = ReadValidation(*s);
     if (with_genes) {
       SKERRY_ASSIGN_OR_RETURN(
-          r.genes, GenesOf(conn_.get(), r.genome_id, s->ColumnBlob(18),
-                           s->ColumnIsNull(19) ? 0 : s->ColumnInt(19),
-                           s->ColumnIsNull(20) ? 0 : s->ColumnInt(20)));
+          r.genes,
+          GenomeStore::GenesOf(conn, r.genome_id, s->ColumnBlob(18),
+                               s->ColumnIsNull(19) ? 0 : s->ColumnInt(19),
+                               s->ColumnIsNull(20) ? 0 : s->ColumnInt(20)));
     }
     out.push_back(std::move(r));
   }
   return out;
 }
 
-absl::StatusOr<ValidationRecord> Store::RequestValidation(
+absl::StatusOr<ValidationRecord> ValidationStore::RequestValidation(
     const ValidationRequest& request) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
-  SKERRY_ASSIGN_OR_RETURN(ValidationRecord r, RequestValidationLocked(request));
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
+  SKERRY_ASSIGN_OR_RETURN(ValidationRecord r, Request(w, request));
   SKERRY_RETURN_IF_ERROR(txn.Commit());
   return r;
 }
 
-absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
-    const ValidationRequest& request) {
+absl::StatusOr<ValidationRecord> ValidationStore::Request(
+    Database::Writer& w, const ValidationRequest& request) {
   SKERRY_ASSIGN_OR_RETURN(std::optional<ValidationRecord> existing,
-                          GetValidationLocked(request.genome_id));
+                          Get(w.conn(), request.genome_id));
   if (existing.has_value()) return *std::move(existing);
 
   // The genome, and its parent's finished validation when it is a copy.
   SKERRY_ASSIGN_OR_RETURN(
       auto g,
-      conn_->Prepare("SELECT g.run_id, g.generation, g.origin, p.id, p.state, "
-                     "p.score, p.cases FROM genomes g LEFT JOIN validations p "
-                     "ON p.genome_id = g.parent_a AND p.state = 2 "
-                     "WHERE g.id = ?"));
+      w->Prepare("SELECT g.run_id, g.generation, g.origin, p.id, p.state, "
+                 "p.score, p.cases FROM genomes g LEFT JOIN validations p "
+                 "ON p.genome_id = g.parent_a AND p.state = 2 "
+                 "WHERE g.id = ?"));
   g.BindInt(1, request.genome_id);
   SKERRY_ASSIGN_OR_RETURN(bool found, g.Step());
   if (!found) {
@@ -134,13 +101,14 @@ absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
       !g.ColumnIsNull(3);
   SKERRY_ASSIGN_OR_RETURN(
       auto ins,
-      conn_->Prepare("INSERT INTO validations (run_id, genome_id, generation, "
-                     "reason, state, score, cases, requested_by, requested_ms, "
-                     "completed_ms, copied_from, id) "
-                     "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)"));
+      w->Prepare("INSERT INTO validations (run_id, genome_id, generation, "
+                 "reason, state, score, cases, requested_by, requested_ms, "
+                 "completed_ms, copied_from, id) "
+                 "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)"));
   // Above every id ever given (a validation task's id derives from it).
-  SKERRY_ASSIGN_OR_RETURN(const int64_t largest,
-                          LargestIdLocked(IdTable::kValidations));
+  SKERRY_ASSIGN_OR_RETURN(
+      const int64_t largest,
+      Database::LargestId(w, Database::IdTable::kValidations));
   ins.BindInt(12, largest + 1);
   ins.BindInt(1, run_id);
   ins.BindInt(2, request.genome_id);
@@ -162,30 +130,28 @@ absl::StatusOr<ValidationRecord> Store::RequestValidationLocked(
   ins.BindText(8, request.requested_by);
   ins.BindInt(9, request.now_ms);
   SKERRY_RETURN_IF_ERROR(ins.Run());
-  SKERRY_ASSIGN_OR_RETURN(existing, GetValidationLocked(request.genome_id));
+  SKERRY_ASSIGN_OR_RETURN(existing, Get(w.conn(), request.genome_id));
   if (!existing.has_value()) {
     return absl::InternalError("validation not found right after its insert");
   }
   return *std::move(existing);
 }
 
-absl::Status Store::CommitValidations(
+absl::Status ValidationStore::CommitValidations(
     absl::Span<const ValidationUpdate> updates) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
-  SKERRY_RETURN_IF_ERROR(ApplyValidationsLocked(updates));
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
+  SKERRY_RETURN_IF_ERROR(Apply(w, updates));
   return txn.Commit();
 }
 
-// A validation no longer pending (trimmed with its generation, or finished
-// already) is left alone.
-absl::Status Store::ApplyValidationsLocked(
-    absl::Span<const ValidationUpdate> updates) {
+absl::Status ValidationStore::Apply(
+    Database::Writer& w, absl::Span<const ValidationUpdate> updates) {
   if (updates.empty()) return absl::OkStatus();
   SKERRY_ASSIGN_OR_RETURN(
-      auto upd, conn_->Prepare("UPDATE validations SET state = ?, score = ?, "
-                               "attempts = ?, error = ?, completed_ms = ? "
-                               "WHERE id = ? AND state = 1"));
+      auto upd, w->Prepare("UPDATE validations SET state = ?, score = ?, "
+                           "attempts = ?, error = ?, completed_ms = ? "
+                           "WHERE id = ? AND state = 1"));
   for (const ValidationUpdate& u : updates) {
     upd.BindInt(1, u.state);
     if (u.state == skerry::v1::VALIDATION_DONE) {
@@ -202,37 +168,38 @@ absl::Status Store::ApplyValidationsLocked(
   return absl::OkStatus();
 }
 
-absl::StatusOr<std::vector<ValidationRecord>> Store::PendingValidations() {
-  absl::MutexLock l(&mu_);
+absl::StatusOr<std::vector<ValidationRecord>>
+ValidationStore::PendingValidations() {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s,
-      conn_->Prepare(absl::StrCat(
+      reader->PrepareCached(absl::StrCat(
           "SELECT ", kValidationColumns, ", g.genes, g.parent_a, g.parent_b",
           kValidationFrom, " WHERE v.state = 1 ORDER BY v.id")));
-  return QueryValidations(&s, true);
+  return Query(reader.get(), &s, true);
 }
 
-absl::StatusOr<std::optional<ValidationRecord>> Store::GetValidation(
+absl::StatusOr<std::optional<ValidationRecord>> ValidationStore::GetValidation(
     int64_t genome_id) {
-  absl::MutexLock l(&mu_);
-  return GetValidationLocked(genome_id);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
+  return Get(reader.get(), genome_id);
 }
 
-absl::StatusOr<std::optional<ValidationRecord>> Store::GetValidationLocked(
-    int64_t genome_id) {
+absl::StatusOr<std::optional<ValidationRecord>> ValidationStore::Get(
+    Connection* conn, int64_t genome_id) {
   SKERRY_ASSIGN_OR_RETURN(
-      auto s,
-      conn_->Prepare(absl::StrCat("SELECT ", kValidationColumns,
-                                  kValidationFrom, " WHERE v.genome_id = ?")));
+      auto s, conn->PrepareCached(absl::StrCat("SELECT ", kValidationColumns,
+                                               kValidationFrom,
+                                               " WHERE v.genome_id = ?")));
   s.BindInt(1, genome_id);
-  SKERRY_ASSIGN_OR_RETURN(auto rows, QueryValidations(&s, false));
+  SKERRY_ASSIGN_OR_RETURN(auto rows, Query(conn, &s, false));
   if (rows.empty()) return std::optional<ValidationRecord>();
   return std::optional<ValidationRecord>(std::move(rows.front()));
 }
 
 absl::StatusOr<std::map<std::pair<uint32_t, uint32_t>, double>>
-Store::ChampionValidationScores(int64_t run_id) {
-  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, Reader());
+ValidationStore::ChampionValidationScores(int64_t run_id) {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
       auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT g.island, g.generation, v.score", kValidationFrom,
@@ -250,16 +217,16 @@ Store::ChampionValidationScores(int64_t run_id) {
   return out;
 }
 
-absl::StatusOr<std::vector<ValidationRecord>> Store::ListValidations(
+absl::StatusOr<std::vector<ValidationRecord>> ValidationStore::ListValidations(
     int64_t run_id, int limit) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat(
+      auto s, reader->PrepareCached(absl::StrCat(
                   "SELECT ", kValidationColumns, kValidationFrom,
                   " WHERE v.run_id = ? ORDER BY v.id DESC LIMIT ?")));
   s.BindInt(1, run_id);
   s.BindInt(2, limit);
-  return QueryValidations(&s, false);
+  return Query(reader.get(), &s, false);
 }
 
 }  // namespace skerry::store

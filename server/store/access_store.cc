@@ -1,11 +1,11 @@
-// Store methods for principals, tokens and the audit log (schema version 4,
-// access_schema.h). Same locking and commit rules as store.cc.
+// AccessStore (access_store.h): principals, tokens and the audit log.
+#include "server/store/access_store.h"
+
 #include <utility>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "common/status_macros.h"
-#include "server/store/store.h"
 #include "skerry/v1/access.pb.h"
 
 namespace skerry::store {
@@ -31,27 +31,27 @@ TokenRecord ReadToken(const Statement& s) {
 
 }  // namespace
 
-absl::Status Store::InsertToken(TokenRecord* t) {
+absl::Status AccessStore::InsertToken(Database::Writer& w, TokenRecord* t) {
   {
     SKERRY_ASSIGN_OR_RETURN(
-        auto p, conn_->Prepare("INSERT OR IGNORE INTO principals (name, "
-                               "created_ms, created_by) VALUES (?, ?, ?)"));
+        auto p, w->Prepare("INSERT OR IGNORE INTO principals (name, "
+                           "created_ms, created_by) VALUES (?, ?, ?)"));
     p.BindText(1, t->principal);
     p.BindInt(2, t->created_ms);
     p.BindText(3, t->created_by);
     SKERRY_RETURN_IF_ERROR(p.Run());
   }
   {
-    SKERRY_ASSIGN_OR_RETURN(
-        auto dup, conn_->Prepare("SELECT id FROM tokens WHERE hash = ?"));
+    SKERRY_ASSIGN_OR_RETURN(auto dup,
+                            w->Prepare("SELECT id FROM tokens WHERE hash = ?"));
     dup.BindText(1, t->hash);
     SKERRY_ASSIGN_OR_RETURN(bool row, dup.Step());
     if (row) return absl::AlreadyExistsError("a token with this hash exists");
   }
   SKERRY_ASSIGN_OR_RETURN(
-      auto ins, conn_->Prepare("INSERT INTO tokens (principal, role, hash, "
-                               "note, created_ms, created_by) "
-                               "VALUES (?, ?, ?, ?, ?, ?)"));
+      auto ins, w->Prepare("INSERT INTO tokens (principal, role, hash, "
+                           "note, created_ms, created_by) "
+                           "VALUES (?, ?, ?, ?, ?, ?)"));
   ins.BindText(1, t->principal);
   ins.BindInt(2, t->role);
   ins.BindText(3, t->hash);
@@ -59,24 +59,24 @@ absl::Status Store::InsertToken(TokenRecord* t) {
   ins.BindInt(5, t->created_ms);
   ins.BindText(6, t->created_by);
   SKERRY_RETURN_IF_ERROR(ins.Run());
-  t->id = conn_->LastInsertId();
+  t->id = w->LastInsertId();
   return absl::OkStatus();
 }
 
-absl::Status Store::CreateToken(TokenRecord* token) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
-  SKERRY_RETURN_IF_ERROR(InsertToken(token));
+absl::Status AccessStore::CreateToken(TokenRecord* token) {
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
+  SKERRY_RETURN_IF_ERROR(InsertToken(w, token));
   return txn.Commit();
 }
 
-absl::Status Store::CreateFirstAdmin(TokenRecord* token) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+absl::Status AccessStore::CreateFirstAdmin(TokenRecord* token) {
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
   {
     SKERRY_ASSIGN_OR_RETURN(
-        auto s, conn_->Prepare("SELECT DISTINCT principal FROM tokens WHERE "
-                               "role = ? AND revoked_ms IS NULL ORDER BY 1"));
+        auto s, w->Prepare("SELECT DISTINCT principal FROM tokens WHERE "
+                           "role = ? AND revoked_ms IS NULL ORDER BY 1"));
     s.BindInt(1, skerry::v1::ROLE_ADMIN);
     std::vector<std::string> admins;
     while (true) {
@@ -93,8 +93,8 @@ absl::Status Store::CreateFirstAdmin(TokenRecord* token) {
   }
   {
     SKERRY_ASSIGN_OR_RETURN(
-        auto s, conn_->Prepare("SELECT role FROM tokens WHERE principal = ? "
-                               "AND revoked_ms IS NULL AND role != ?"));
+        auto s, w->Prepare("SELECT role FROM tokens WHERE principal = ? "
+                           "AND revoked_ms IS NULL AND role != ?"));
     s.BindText(1, token->principal);
     s.BindInt(2, skerry::v1::ROLE_ADMIN);
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
@@ -104,20 +104,20 @@ absl::Status Store::CreateFirstAdmin(TokenRecord* token) {
           "' already holds a live token of another role; choose another name"));
     }
   }
-  SKERRY_RETURN_IF_ERROR(InsertToken(token));
+  SKERRY_RETURN_IF_ERROR(InsertToken(w, token));
   return txn.Commit();
 }
 
-absl::StatusOr<TokenRecord> Store::RevokeToken(int64_t token_id,
-                                               const std::string& by,
-                                               int64_t now_ms) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(conn_.get()));
+absl::StatusOr<TokenRecord> AccessStore::RevokeToken(int64_t token_id,
+                                                     const std::string& by,
+                                                     int64_t now_ms) {
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
   TokenRecord t;
   {
     SKERRY_ASSIGN_OR_RETURN(
-        auto s, conn_->Prepare(absl::StrCat("SELECT ", kTokenColumns,
-                                            " FROM tokens WHERE id = ?")));
+        auto s, w->Prepare(absl::StrCat("SELECT ", kTokenColumns,
+                                        " FROM tokens WHERE id = ?")));
     s.BindInt(1, token_id);
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
     if (!row) {
@@ -131,9 +131,8 @@ absl::StatusOr<TokenRecord> Store::RevokeToken(int64_t token_id,
         "token ", token_id, " was revoked already, by ", t.revoked_by));
   }
   SKERRY_ASSIGN_OR_RETURN(
-      auto upd,
-      conn_->Prepare("UPDATE tokens SET revoked_ms = ?, revoked_by = ? "
-                     "WHERE id = ?"));
+      auto upd, w->Prepare("UPDATE tokens SET revoked_ms = ?, revoked_by = ? "
+                           "WHERE id = ?"));
   upd.BindInt(1, now_ms);
   upd.BindText(2, by);
   upd.BindInt(3, token_id);
@@ -144,11 +143,11 @@ absl::StatusOr<TokenRecord> Store::RevokeToken(int64_t token_id,
   return t;
 }
 
-absl::StatusOr<std::vector<TokenRecord>> Store::ListTokens() {
-  absl::MutexLock l(&mu_);
+absl::StatusOr<std::vector<TokenRecord>> AccessStore::ListTokens() {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare(absl::StrCat("SELECT ", kTokenColumns,
-                                          " FROM tokens ORDER BY id")));
+      auto s, reader->PrepareCached(absl::StrCat("SELECT ", kTokenColumns,
+                                                 " FROM tokens ORDER BY id")));
   std::vector<TokenRecord> out;
   while (true) {
     SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
@@ -158,20 +157,20 @@ absl::StatusOr<std::vector<TokenRecord>> Store::ListTokens() {
   return out;
 }
 
-absl::StatusOr<int64_t> Store::CountPrincipals() {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(auto s,
-                          conn_->Prepare("SELECT count(*) FROM principals"));
+absl::StatusOr<int64_t> AccessStore::CountPrincipals() {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
+  SKERRY_ASSIGN_OR_RETURN(
+      auto s, reader->PrepareCached("SELECT count(*) FROM principals"));
   SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
   return row ? s.ColumnInt(0) : 0;
 }
 
-absl::StatusOr<int64_t> Store::BeginAudit(const AuditRecord& e) {
-  absl::MutexLock l(&mu_);
+absl::StatusOr<int64_t> AccessStore::BeginAudit(const AuditRecord& e) {
+  Database::Writer w = db_->Write();
   SKERRY_ASSIGN_OR_RETURN(
-      auto ins, conn_->Prepare("INSERT INTO audit (at_ms, principal, role, "
-                               "token_id, method, run_id, peer, detail) "
-                               "VALUES (?, ?, ?, ?, ?, ?, ?, ?)"));
+      auto ins, w->Prepare("INSERT INTO audit (at_ms, principal, role, "
+                           "token_id, method, run_id, peer, detail) "
+                           "VALUES (?, ?, ?, ?, ?, ?, ?, ?)"));
   ins.BindInt(1, e.at_ms);
   ins.BindText(2, e.principal);
   ins.BindInt(3, e.role);
@@ -181,36 +180,36 @@ absl::StatusOr<int64_t> Store::BeginAudit(const AuditRecord& e) {
   ins.BindText(7, e.peer);
   ins.BindText(8, e.detail);
   SKERRY_RETURN_IF_ERROR(ins.Run());
-  return conn_->LastInsertId();
+  return w->LastInsertId();
 }
 
-absl::Status Store::FinishAudit(const AuditRecord& e) {
-  absl::MutexLock l(&mu_);
-  SKERRY_ASSIGN_OR_RETURN(
-      auto upd, conn_->Prepare("UPDATE audit SET code = ?, message = ?, "
-                               "run_id = ?, detail = ? WHERE id = ?"));
+absl::Status AccessStore::FinishAudit(const AuditRecord& e) {
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto upd,
+                          w->Prepare("UPDATE audit SET code = ?, message = ?, "
+                                     "run_id = ?, detail = ? WHERE id = ?"));
   upd.BindInt(1, e.code.value_or(0));
   upd.BindText(2, e.message);
   upd.BindIdOrNull(3, e.run_id);
   upd.BindText(4, e.detail);
   upd.BindInt(5, e.id);
   SKERRY_RETURN_IF_ERROR(upd.Run());
-  if (conn_->Changes() != 1) {
+  if (w->Changes() != 1) {
     return absl::NotFoundError(
         absl::StrCat("audit entry ", e.id, " not found"));
   }
   return absl::OkStatus();
 }
 
-absl::StatusOr<std::vector<AuditRecord>> Store::QueryAudit(
+absl::StatusOr<std::vector<AuditRecord>> AccessStore::QueryAudit(
     const AuditQuery& q) {
-  absl::MutexLock l(&mu_);
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s,
-      conn_->Prepare("SELECT id, at_ms, principal, role, token_id, method, "
-                     "run_id, peer, code, message, detail FROM audit WHERE "
-                     "(?1 = 0 OR run_id = ?1) AND (?2 = '' OR principal = ?2) "
-                     "AND (?3 = 0 OR id < ?3) ORDER BY id DESC LIMIT ?4"));
+      auto s, reader->PrepareCached(
+                  "SELECT id, at_ms, principal, role, token_id, method, "
+                  "run_id, peer, code, message, detail FROM audit WHERE "
+                  "(?1 = 0 OR run_id = ?1) AND (?2 = '' OR principal = ?2) "
+                  "AND (?3 = 0 OR id < ?3) ORDER BY id DESC LIMIT ?4"));
   s.BindInt(1, q.run_id);
   s.BindText(2, q.principal);
   s.BindInt(3, q.before_id);
@@ -236,10 +235,11 @@ absl::StatusOr<std::vector<AuditRecord>> Store::QueryAudit(
   return out;
 }
 
-absl::StatusOr<std::optional<std::string>> Store::RunOwner(int64_t run_id) {
-  absl::MutexLock l(&mu_);
+absl::StatusOr<std::optional<std::string>> AccessStore::RunOwner(
+    int64_t run_id) {
+  SKERRY_ASSIGN_OR_RETURN(ReadPool::Lease reader, db_->Reader());
   SKERRY_ASSIGN_OR_RETURN(
-      auto s, conn_->Prepare("SELECT owner FROM runs WHERE id = ?"));
+      auto s, reader->PrepareCached("SELECT owner FROM runs WHERE id = ?"));
   s.BindInt(1, run_id);
   SKERRY_ASSIGN_OR_RETURN(bool row, s.Step());
   if (!row) return std::optional<std::string>();
