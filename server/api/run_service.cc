@@ -1,5 +1,7 @@
 #include "server/api/run_service.h"
 
+#include <cstdio>
+
 #include "absl/strings/str_cat.h"
 #include "common/quote.h"
 #include "server/api/grpc_status.h"
@@ -182,6 +184,15 @@ grpc::Status RunServiceImpl::GetChampion(
   if (!best->has_value()) {
     return ToGrpc(absl::NotFoundError(
         absl::StrCat("run ", req->run_id(), " has no evaluated genome yet")));
+  }
+  // Asked for: kept whole from now on (GenomeStore::KeepWhole), which
+  // writes nothing for a genome stored whole (champions are, from the commit
+  // that made them one) or on a read-only coordinator. Only a cache: a
+  // failed write loses nothing, and the answer does not depend on it.
+  if (absl::Status kept = store_->genomes().KeepWhole(**best); !kept.ok()) {
+    std::fprintf(stderr, "run %llu: keeping the champion whole: %s\n",
+                 static_cast<unsigned long long>(req->run_id()),
+                 kept.ToString().c_str());
   }
   *resp->mutable_genome() = ToGenomeProto(**best);
   absl::StatusOr<std::map<std::string, double>> metrics =

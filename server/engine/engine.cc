@@ -1044,9 +1044,7 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
                                key < *run.champion_key))) {
         commit.champion = std::make_pair(gr.id, gr.score);
         commit_champion_key = key;
-        if (gr.child_recipe.has_value() && !gr.keyframe && !gr.genes.empty()) {
-          commit.champion_genome = &gr;
-        }
+        commit.keep_whole.push_back(&gr);
       }
       break;
     }
@@ -1054,6 +1052,12 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   if (has_best) {
     commit.validate = ChampionValidation(run, island.current, stats.best,
                                          commit.champion.has_value());
+    // A genome validated is kept whole too (GenomeStore::KeepWhole).
+    for (const GenomeRecord& gr : island.current) {
+      if (commit.validate.has_value() && gr.id == commit.validate->genome_id) {
+        commit.keep_whole.push_back(&gr);
+      }
+    }
   }
   if (absl::Status s = store_->runs().CommitGeneration(commit); !s.ok()) {
     // The cache stays as it was: the strategy forgets what it was told.

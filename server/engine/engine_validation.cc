@@ -141,6 +141,12 @@ absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(
     NoteWriteFailure(v.status());
     return v.status();
   }
+  // A genome validated is kept whole from now on, so that its validation
+  // (and a later export) reads it without a replay. Only a cache: a failure
+  // loses nothing, and storage trouble is noted as for any write.
+  if (absl::Status kept = store_->genomes().KeepWhole(genome); !kept.ok()) {
+    NoteWriteFailure(kept);
+  }
   QueueValidation(*v, genome.genes, spec);
   NotifyChange();
   return v;

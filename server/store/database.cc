@@ -351,6 +351,7 @@ absl::StatusOr<std::unique_ptr<Database>> Database::Open(
     ReadPool::Options read_options;
     read_options.busy_timeout_ms = options.busy_timeout_ms;
     store->readers_ = std::make_unique<ReadPool>(path, read_options);
+    store->read_only_ = true;
     return store;
   }
   // SQLite opens a file it may not write read-only without an error (the

@@ -114,6 +114,8 @@ class Database {
   ReadPool* readers() { return readers_.get(); }
 
   const std::string& path() const { return path_; }
+  // Opened with Options::read_only: every write fails.
+  bool read_only() const { return read_only_; }
 
   // A small write transaction (it bumps PRAGMA user_version, which Skerry does
   // not otherwise use): OK when the database can be written again (after a
@@ -177,7 +179,8 @@ class Database {
   absl::Status Migrate(int from_version) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const std::string path_;
-  sqlite3* const raw_;  // conn_'s, for Interrupt only
+  bool read_only_ = false;  // set once by Open
+  sqlite3* const raw_;      // conn_'s, for Interrupt only
   absl::Mutex check_mu_;
   // The connection FullCheckWhileServing runs on, while it runs.
   sqlite3* checking_ ABSL_GUARDED_BY(check_mu_) = nullptr;

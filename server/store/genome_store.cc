@@ -234,6 +234,34 @@ absl::Status GenomeStore::Insert(Database::Writer& w,
   return absl::OkStatus();
 }
 
+absl::Status GenomeStore::KeepWhole(Database::Writer& w,
+                                    const GenomeRecord& g) {
+  if (!g.child_recipe.has_value() || g.keyframe || g.genes.empty()) {
+    return absl::OkStatus();
+  }
+  // Only a row holding the recipe alone: a keyframe's genes are never
+  // rewritten.
+  SKERRY_ASSIGN_OR_RETURN(
+      auto keep, w->PrepareCached(absl::StrCat(
+                     "UPDATE genomes SET genes = ?2 WHERE id = ?1 AND ",
+                     IsChildRecipeSql("genes"),
+                     " AND length(genes) = ", kChildRecipeBytes)));
+  keep.BindInt(1, g.id);
+  keep.BindBlob(2, PackChildRecipe(*g.child_recipe, g.genes));
+  return keep.Run();
+}
+
+absl::Status GenomeStore::KeepWhole(const GenomeRecord& g) {
+  if (db_->read_only() || !g.child_recipe.has_value() || g.keyframe ||
+      g.genes.empty()) {
+    return absl::OkStatus();
+  }
+  Database::Writer w = db_->Write();
+  SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
+  SKERRY_RETURN_IF_ERROR(KeepWhole(w, g));
+  return txn.Commit();
+}
+
 absl::Status GenomeStore::CommitResults(
     absl::Span<const ResultUpdate> results,
     absl::Span<const ValidationUpdate> validations) {

@@ -58,6 +58,18 @@ class GenomeStore {
       absl::Span<const ResultUpdate> results,
       absl::Span<const ValidationUpdate> validations = {});
 
+  // Keeps `genome` whole from now on, a keyframe (its recipe and then its
+  // genes, common/child_recipe.h), when it is a GA genome stored as its
+  // recipe alone and `genome.genes` holds its genes: what is exported,
+  // validated or asked for is then read without a replay. The row changes
+  // only while it holds the recipe alone; anything else (a genome stored
+  // whole, one without its genes at hand) writes nothing. One transaction;
+  // nothing is written to a read-only database.
+  absl::Status KeepWhole(const GenomeRecord& genome);
+  // The same in the writer's open transaction.
+  static absl::Status KeepWhole(Database::Writer& w,
+                                const GenomeRecord& genome);
+
   // Inserts `genomes` in the writer's open transaction and fills in their
   // ids (above every id ever given) and the parent links into their own
   // generation (GenomeRecord::parent_a_slot).

@@ -178,9 +178,11 @@ struct GenerationCommit {
   std::vector<GenomeRecord>* next = nullptr;
   // The run's best so far, when it changed.
   std::optional<std::pair<int64_t, double>> champion;
-  // The new champion, with its genes, when it is a GA genome kept as its
-  // recipe alone: it is kept whole from now on (a keyframe).
-  const GenomeRecord* champion_genome = nullptr;
+  // Genomes of the completed generation, with their genes, kept whole from
+  // this commit on (keyframes, GenomeStore::KeepWhole): the new champion and
+  // the generation champion to validate, when each is a GA genome kept as
+  // its recipe alone. Others are ignored.
+  std::vector<const GenomeRecord*> keep_whole;
   // Set when this generation reached the target score: the run's stop
   // generation becomes the smaller of this and any stored one.
   std::optional<uint32_t> stop_generation;

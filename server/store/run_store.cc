@@ -222,19 +222,8 @@ absl::Status RunStore::CommitGenerationIn(Database::Writer& w,
     upd.BindInt(3, c.run_id);
     SKERRY_RETURN_IF_ERROR(upd.Run());
   }
-  if (c.champion_genome != nullptr && c.champion_genome->child_recipe) {
-    // The champion kept as its recipe becomes a keyframe: its recipe and
-    // then its genes (common/child_recipe.h), so that exporting or
-    // validating it replays nothing.
-    SKERRY_ASSIGN_OR_RETURN(
-        auto keep, w->PrepareCached(absl::StrCat(
-                       "UPDATE genomes SET genes = ?2 WHERE id = ?1 AND ",
-                       IsChildRecipeSql("genes"),
-                       " AND length(genes) = ", kChildRecipeBytes)));
-    keep.BindInt(1, c.champion_genome->id);
-    keep.BindBlob(2, PackChildRecipe(*c.champion_genome->child_recipe,
-                                     c.champion_genome->genes));
-    SKERRY_RETURN_IF_ERROR(keep.Run());
+  for (const GenomeRecord* g : c.keep_whole) {
+    SKERRY_RETURN_IF_ERROR(GenomeStore::KeepWhole(w, *g));
   }
   if (c.validate.has_value()) {
     SKERRY_RETURN_IF_ERROR(ValidationStore::Request(w, *c.validate).status());

@@ -15,6 +15,7 @@
 #include "absl/strings/str_cat.h"
 #include "common/clock.h"
 #include "gmock/gmock.h"
+#include "google/protobuf/text_format.h"
 #include "gtest/gtest.h"
 #include "server/scheduler/task_queue.h"
 #include "server/store/store.h"
@@ -735,6 +736,63 @@ TEST_F(EngineTest, InvalidSpecIsRefusedNamingTheField) {
       c->store->runs().ListRuns();
   ASSERT_TRUE(runs.ok());
   EXPECT_TRUE(runs->empty());
+}
+
+// A genome validated on request is kept whole from then on
+// (GenomeStore::KeepWhole): a GA genome stored as its recipe alone becomes a
+// keyframe with the same genes, and the run's digest does not change.
+TEST_F(EngineTest, AGenomeValidatedOnRequestIsKeptWhole) {
+  std::unique_ptr<Coordinator> c = Open();
+  ASSERT_NE(c, nullptr);
+  RunSpec spec;
+  ASSERT_TRUE(google::protobuf::TextFormat::ParseFromString(
+      R"(name: "kept-whole"
+         seed: 5
+         evaluator {
+           cart_pole { max_steps: 100 }
+           validation { generalisation: true champions: ON_REQUEST }
+         }
+         ga {
+           population_size: 6
+           elites: 1
+           keyframe_interval: 10
+           crossover { rate: 0.5 }
+           mutation { rate: 0.3 }
+         }
+         stop { max_generations: 4 })",
+      &spec));
+  const int64_t run_id = Submit(*c, spec);
+  ASSERT_NE(run_id, 0);
+  DriveToEnd(*c, run_id);
+  absl::StatusOr<store::GenomeStore::Digest> before =
+      c->store->genomes().RunDigest(run_id);
+  ASSERT_TRUE(before.ok()) << before.status();
+
+  // A bred genome of generation 2, stored as its recipe alone.
+  absl::StatusOr<std::vector<GenomeRecord>> g2 =
+      c->store->genomes().GetGeneration(run_id, 0, 2);
+  ASSERT_TRUE(g2.ok()) << g2.status();
+  const GenomeRecord* chosen = nullptr;
+  for (const GenomeRecord& g : *g2) {
+    if (g.child_recipe.has_value() && !g.keyframe &&
+        g.origin != skerry::v1::ELITE) {
+      chosen = &g;
+      break;
+    }
+  }
+  ASSERT_NE(chosen, nullptr) << "no genome of generation 2 is a recipe alone";
+
+  absl::StatusOr<store::ValidationRecord> v =
+      c->engine->RequestValidation(chosen->id, "alice");
+  ASSERT_TRUE(v.ok()) << v.status();
+  absl::StatusOr<GenomeRecord> kept = c->store->genomes().GetGenome(chosen->id);
+  ASSERT_TRUE(kept.ok()) << kept.status();
+  EXPECT_TRUE(kept->keyframe);
+  EXPECT_EQ(kept->genes, chosen->genes);
+  absl::StatusOr<store::GenomeStore::Digest> after =
+      c->store->genomes().RunDigest(run_id);
+  ASSERT_TRUE(after.ok()) << after.status();
+  EXPECT_EQ(after->sha256, before->sha256);
 }
 
 TEST_F(EngineTest, ReportAfterShutdownIsUnavailable) {

@@ -141,10 +141,15 @@ class RecipeStoreTest : public StoreTest {
         if (r.score < best->score) best = &r;
       }
       c.champion = std::make_pair(best->id, best->score);
-      if (best->child_recipe.has_value() && !best->keyframe) {
-        c.champion_genome = best;
-      }
+      // The champion, and with validate_slot_2_ slot 2 as a genome to
+      // validate: the engine keeps both whole (the store ignores those
+      // stored whole already).
+      c.keep_whole = {best};
       champions_.push_back(best->id);
+      if (validate_slot_2_) {
+        c.keep_whole.push_back(&gen[2]);
+        champions_.push_back(gen[2].id);
+      }
       EXPECT_TRUE(store_->runs().CommitGeneration(c).ok());
       gen = *std::move(next);
     }
@@ -152,7 +157,10 @@ class RecipeStoreTest : public StoreTest {
   }
 
   std::vector<std::vector<GenomeRecord>> bred_;
-  std::vector<int64_t> champions_;  // each generation's best but the last
+  // Each generation's best (and slot 2 with validate_slot_2_), but the last
+  // generation's: kept whole by CommitGeneration.
+  std::vector<int64_t> champions_;
+  bool validate_slot_2_ = false;
 };
 
 TEST_F(RecipeStoreTest, EveryGenomeReadBackHasTheGenesItWasBredWith) {
@@ -197,6 +205,7 @@ TEST_F(RecipeStoreTest, LongGenomesRebuiltOnSeveralThreadsAreTheSame) {
 }
 
 TEST_F(RecipeStoreTest, ARowHoldsItsRecipeAloneAndAKeyframeItsGenesToo) {
+  validate_slot_2_ = true;
   const int64_t run = StoreRun(RecipeSpec(3));
   const std::string rows = Rows(
       path(), absl::StrCat("SELECT id, generation, origin, length(genes) FROM "
@@ -211,7 +220,7 @@ TEST_F(RecipeStoreTest, ARowHoldsItsRecipeAloneAndAKeyframeItsGenesToo) {
           r.origin == skerry::v1::SEEDED || r.origin == skerry::v1::IMMIGRANT;
       const bool keyframe = !fresh && g % 3 == 0;
       EXPECT_EQ(r.keyframe, keyframe) << g << " " << r.slot;
-      // A champion is kept whole from when it became one.
+      // A champion (or a genome validated) is kept whole from its commit.
       const bool champion = std::find(champions_.begin(), champions_.end(),
                                       r.id) != champions_.end();
       EXPECT_THAT(rows,
@@ -239,6 +248,73 @@ TEST_F(RecipeStoreTest, TheDigestOfARunKeptAsRecipesIsThatOfTheRunKeptWhole) {
   ASSERT_TRUE(b.ok()) << b.status();
   EXPECT_EQ(a->sha256, b->sha256);
   EXPECT_EQ(a->genomes, b->genomes);
+}
+
+// What is validated, exported or asked for is kept whole from then on
+// (GenomeStore::KeepWhole): the row becomes a keyframe, every read gives
+// the same genes, the digest and `--check` are unchanged, and a read-only
+// database is not written.
+TEST_F(RecipeStoreTest, AGenomeAskedForIsKeptWholeFromThenOn) {
+  const int64_t run = StoreRun(RecipeSpec(100));
+  const GenomeRecord* chosen = nullptr;
+  for (const GenomeRecord& r : bred_[kGenerations - 1]) {
+    if (r.child_recipe.has_value() && r.origin != skerry::v1::IMMIGRANT &&
+        r.slot != 2 && r.slot != 0) {
+      chosen = &r;
+      break;
+    }
+  }
+  ASSERT_NE(chosen, nullptr);
+  const std::string length_sql =
+      absl::StrCat("SELECT length(genes) FROM genomes WHERE id = ", chosen->id);
+  ASSERT_EQ(RawQuery(path(), length_sql), absl::StrCat(kChildRecipeBytes));
+  absl::StatusOr<GenomeStore::Digest> before = store_->genomes().RunDigest(run);
+  ASSERT_TRUE(before.ok()) << before.status();
+
+  // A read-only database is not written.
+  {
+    Store::Options read_only;
+    read_only.read_only = true;
+    absl::StatusOr<std::unique_ptr<Store>> ro = Store::Open(path(), read_only);
+    ASSERT_TRUE(ro.ok()) << ro.status();
+    absl::StatusOr<GenomeRecord> g = (*ro)->genomes().GetGenome(chosen->id);
+    ASSERT_TRUE(g.ok()) << g.status();
+    EXPECT_FALSE(g->keyframe);
+    EXPECT_TRUE((*ro)->genomes().KeepWhole(*g).ok());
+  }
+  EXPECT_EQ(RawQuery(path(), length_sql), absl::StrCat(kChildRecipeBytes));
+
+  // Without its genes at hand nothing is written either.
+  GenomeRecord bare = *chosen;
+  bare.genes.clear();
+  ASSERT_TRUE(store_->genomes().KeepWhole(bare).ok());
+  EXPECT_EQ(RawQuery(path(), length_sql), absl::StrCat(kChildRecipeBytes));
+
+  absl::StatusOr<GenomeRecord> asked = store_->genomes().GetGenome(chosen->id);
+  ASSERT_TRUE(asked.ok()) << asked.status();
+  EXPECT_FALSE(asked->keyframe);
+  ASSERT_TRUE(store_->genomes().KeepWhole(*asked).ok());
+  const size_t whole = kChildRecipeBytes + 8 * kLength;
+  EXPECT_EQ(RawQuery(path(), length_sql), absl::StrCat(whole));
+  absl::StatusOr<GenomeRecord> again = store_->genomes().GetGenome(chosen->id);
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_TRUE(again->keyframe);
+  EXPECT_EQ(again->genes, chosen->genes);
+  // A keyframe's genes are never rewritten, whatever a caller passes.
+  GenomeRecord other = *asked;
+  other.genes[0] += 1.0;
+  ASSERT_TRUE(store_->genomes().KeepWhole(other).ok());
+  again = store_->genomes().GetGenome(chosen->id);
+  ASSERT_TRUE(again.ok()) << again.status();
+  EXPECT_EQ(again->genes, chosen->genes);
+
+  absl::StatusOr<GenomeStore::Digest> after = store_->genomes().RunDigest(run);
+  ASSERT_TRUE(after.ok()) << after.status();
+  EXPECT_EQ(after->sha256, before->sha256);
+  store_.reset();
+  absl::StatusOr<CheckReport> report = CheckDatabase(path());
+  ASSERT_TRUE(report.ok()) << report.status();
+  EXPECT_TRUE(report->ok()) << report->ToString();
 }
 
 TEST_F(RecipeStoreTest, CheckReplaysKeyframesAndNamesOneWhoseGenesDiffer) {
