@@ -1038,7 +1038,8 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
       if (gr.state != skerry::v1::EVALUATED || gr.score != stats.best) continue;
       // The first in slot order is this generation's smallest key. On an
       // equal score it takes over only with a smaller key than the
-      // champion's, as `skerry champion` orders ties (store.h, BestGenome).
+      // champion's, as `skerry champion` orders ties (genome_store.h,
+      // BestGenome).
       const auto key = std::make_tuple(gr.generation, gr.island, gr.slot);
       if (better || (equal && (!run.champion_key.has_value() ||
                                key < *run.champion_key))) {

@@ -1,7 +1,7 @@
 // Schema version 5: principals, their bearer tokens (hashed) and the audit log.
-// Kept apart from store.cc so that this migration step stays self-contained;
-// store.cc appends it to kMigrations. Never edit it once shipped: databases in
-// the field were made by it.
+// Kept apart from database.cc so that this migration step stays self-contained;
+// database.cc appends it to kMigrations. Never edit it once shipped: databases
+// in the field were made by it.
 //
 //   principals(name PRIMARY KEY, created_ms, created_by)
 //       a person or a worker machine; created with its first token

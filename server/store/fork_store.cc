@@ -1,5 +1,5 @@
-// RunStore::CreateFork (store.h): a new run made from another's populations at
-// a generation, in one transaction.
+// RunStore::CreateFork (run_store.h): a new run made from another's populations
+// at a generation, in one transaction.
 //
 // What a fork holds of its parent (docs/user-guide.md, "Forking a run"):
 // - the run row names the parent (parent_run, parent_generation);

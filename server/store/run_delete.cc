@@ -1,5 +1,5 @@
-// RunStore::DeleteRun (store.h): every row of an ended run, in one transaction,
-// then the freed pages given back to the file system.
+// RunStore::DeleteRun (run_store.h): every row of an ended run, in one
+// transaction, then the freed pages given back to the file system.
 //
 // A run's membership of a seed series goes with it, and a series left
 // empty. Refused while the run is active (the engine holds it in memory) and

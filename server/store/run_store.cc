@@ -175,9 +175,9 @@ absl::Status RunStore::InsertStats(Database::Writer& w, const StatsRecord& s) {
 
 absl::Status RunStore::CommitGeneration(const GenerationCommit& c) {
   Database::Writer w = db_->Write();
-  // Not synced (see "Pragmas" in store.h): a generation is never acknowledged
-  // to anyone, can be bred again from the one before, and the next synced
-  // commit makes it durable, since the WAL is synced in order.
+  // Not synced (see "Pragmas" in database.h): a generation is never
+  // acknowledged to anyone, can be bred again from the one before, and the next
+  // synced commit makes it durable, since the WAL is synced in order.
   SKERRY_RETURN_IF_ERROR(w->Exec("PRAGMA synchronous=NORMAL"));
   absl::Status s = CommitGenerationIn(w, c);
   absl::Status restore = w->Exec("PRAGMA synchronous=FULL");

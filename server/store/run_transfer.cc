@@ -1,5 +1,5 @@
-// RunStore::ImportRuns (store.h): the runs of another coordinator's database
-// file, exported with `skerry backup`, merged into this one.
+// RunStore::ImportRuns (run_store.h): the runs of another coordinator's
+// database file, exported with `skerry backup`, merged into this one.
 //
 // The file is checked before anything is written: it must be a Skerry
 // database of this schema version, pass SQLite's quick_check, have this
