@@ -1045,18 +1045,21 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
                                key < *run.champion_key))) {
         commit.champion = std::make_pair(gr.id, gr.score);
         commit_champion_key = key;
-        commit.keep_whole.push_back(&gr);
+        commit.champion_genome = &gr;
       }
       break;
     }
   }
+  // The genome the commit asks to validate, if any: kept whole with its
+  // request (ValidationRequest::genome), and queued once committed.
+  const GenomeRecord* validated = nullptr;
   if (has_best) {
     commit.validate = ChampionValidation(run, island.current, stats.best,
                                          commit.champion.has_value());
-    // A genome validated is kept whole too (GenomeStore::KeepWhole).
     for (const GenomeRecord& gr : island.current) {
       if (commit.validate.has_value() && gr.id == commit.validate->genome_id) {
-        commit.keep_whole.push_back(&gr);
+        validated = &gr;
+        commit.validate->genome = validated;
       }
     }
   }
@@ -1067,19 +1070,16 @@ absl::StatusOr<bool> Engine::AdvanceIsland(Run& run, Island& island) {
   }
 
   // Committed: bring the cache in line.
-  if (commit.validate.has_value()) {
-    for (const GenomeRecord& gr : island.current) {
-      if (gr.id != commit.validate->genome_id) continue;
-      absl::StatusOr<std::vector<double>> genes =
-          SampleGenes(island.current, gr);
-      if (genes.ok()) {
-        QueueChampionValidation(run, gr, *genes);
-      } else {
-        // Stored with the generation: queued again at the next start.
-        std::fprintf(stderr, "run %lld: %s\n",
-                     static_cast<long long>(run.record.id),
-                     genes.status().ToString().c_str());
-      }
+  if (validated != nullptr) {
+    absl::StatusOr<std::vector<double>> genes =
+        SampleGenes(island.current, *validated);
+    if (genes.ok()) {
+      QueueChampionValidation(run, *validated, *genes);
+    } else {
+      // Stored with the generation: queued again at the next start.
+      std::fprintf(stderr, "run %lld: %s\n",
+                   static_cast<long long>(run.record.id),
+                   genes.status().ToString().c_str());
     }
   }
   if (commit.champion.has_value()) {

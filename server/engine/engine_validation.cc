@@ -135,17 +135,14 @@ absl::StatusOr<store::ValidationRecord> Engine::RequestValidation(
   req.reason = skerry::v1::REQUESTED;
   req.requested_by = requested_by;
   req.now_ms = clock_->WallMillis();
+  // Kept whole in the same transaction, so that its validation (and a later
+  // export) reads it without a replay.
+  req.genome = &genome;
   absl::StatusOr<store::ValidationRecord> v =
       store_->validations().RequestValidation(req);
   if (!v.ok()) {
     NoteWriteFailure(v.status());
     return v.status();
-  }
-  // A genome validated is kept whole from now on, so that its validation
-  // (and a later export) reads it without a replay. Only a cache: a failure
-  // loses nothing, and storage trouble is noted as for any write.
-  if (absl::Status kept = store_->genomes().KeepWhole(genome); !kept.ok()) {
-    NoteWriteFailure(kept);
   }
   QueueValidation(*v, genome.genes, spec);
   NotifyChange();

@@ -234,11 +234,19 @@ absl::Status GenomeStore::Insert(Database::Writer& w,
   return absl::OkStatus();
 }
 
+namespace {
+
+// A GA genome read or bred with its genes and stored as its recipe alone:
+// what KeepWhole writes.
+bool RecipeAloneWithGenes(const GenomeRecord& g) {
+  return g.child_recipe.has_value() && !g.keyframe && !g.genes.empty();
+}
+
+}  // namespace
+
 absl::Status GenomeStore::KeepWhole(Database::Writer& w,
                                     const GenomeRecord& g) {
-  if (!g.child_recipe.has_value() || g.keyframe || g.genes.empty()) {
-    return absl::OkStatus();
-  }
+  if (!RecipeAloneWithGenes(g)) return absl::OkStatus();
   // Only a row holding the recipe alone: a keyframe's genes are never
   // rewritten.
   SKERRY_ASSIGN_OR_RETURN(
@@ -252,10 +260,9 @@ absl::Status GenomeStore::KeepWhole(Database::Writer& w,
 }
 
 absl::Status GenomeStore::KeepWhole(const GenomeRecord& g) {
-  if (db_->read_only() || !g.child_recipe.has_value() || g.keyframe ||
-      g.genes.empty()) {
-    return absl::OkStatus();
-  }
+  // Checked before the writer is taken: most genomes asked for (champions)
+  // are stored whole, and answer without waiting for a commit.
+  if (db_->read_only() || !RecipeAloneWithGenes(g)) return absl::OkStatus();
   Database::Writer w = db_->Write();
   SKERRY_ASSIGN_OR_RETURN(auto txn, Transaction::Begin(w.conn()));
   SKERRY_RETURN_IF_ERROR(KeepWhole(w, g));

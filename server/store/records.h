@@ -157,6 +157,9 @@ struct ValidationRequest {
   skerry::v1::ValidationReason reason = skerry::v1::REQUESTED;
   std::string requested_by;
   int64_t now_ms = 0;
+  // The genome with its genes, when the caller has them: a genome validated
+  // is kept whole in the same transaction (GenomeStore::KeepWhole).
+  const GenomeRecord* genome = nullptr;
 };
 
 // One validation's outcome, or one failed attempt (state stays PENDING).
@@ -178,11 +181,10 @@ struct GenerationCommit {
   std::vector<GenomeRecord>* next = nullptr;
   // The run's best so far, when it changed.
   std::optional<std::pair<int64_t, double>> champion;
-  // Genomes of the completed generation, with their genes, kept whole from
-  // this commit on (keyframes, GenomeStore::KeepWhole): the new champion and
-  // the generation champion to validate, when each is a GA genome kept as
-  // its recipe alone. Others are ignored.
-  std::vector<const GenomeRecord*> keep_whole;
+  // The new champion, with its genes: kept whole from this commit on (a
+  // keyframe, GenomeStore::KeepWhole) when it is a GA genome kept as its
+  // recipe alone. (The genome to validate is kept whole by `validate`.)
+  const GenomeRecord* champion_genome = nullptr;
   // Set when this generation reached the target score: the run's stop
   // generation becomes the smaller of this and any stored one.
   std::optional<uint32_t> stop_generation;

@@ -222,8 +222,8 @@ absl::Status RunStore::CommitGenerationIn(Database::Writer& w,
     upd.BindInt(3, c.run_id);
     SKERRY_RETURN_IF_ERROR(upd.Run());
   }
-  for (const GenomeRecord* g : c.keep_whole) {
-    SKERRY_RETURN_IF_ERROR(GenomeStore::KeepWhole(w, *g));
+  if (c.champion_genome != nullptr) {
+    SKERRY_RETURN_IF_ERROR(GenomeStore::KeepWhole(w, *c.champion_genome));
   }
   if (c.validate.has_value()) {
     SKERRY_RETURN_IF_ERROR(ValidationStore::Request(w, *c.validate).status());

@@ -76,6 +76,9 @@ absl::StatusOr<ValidationRecord> ValidationStore::RequestValidation(
 
 absl::StatusOr<ValidationRecord> ValidationStore::Request(
     Database::Writer& w, const ValidationRequest& request) {
+  if (request.genome != nullptr) {
+    SKERRY_RETURN_IF_ERROR(GenomeStore::KeepWhole(w, *request.genome));
+  }
   SKERRY_ASSIGN_OR_RETURN(std::optional<ValidationRecord> existing,
                           Get(w.conn(), request.genome_id));
   if (existing.has_value()) return *std::move(existing);

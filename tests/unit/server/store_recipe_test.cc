@@ -141,13 +141,17 @@ class RecipeStoreTest : public StoreTest {
         if (r.score < best->score) best = &r;
       }
       c.champion = std::make_pair(best->id, best->score);
-      // The champion, and with validate_slot_2_ slot 2 as a genome to
-      // validate: the engine keeps both whole (the store ignores those
-      // stored whole already).
-      c.keep_whole = {best};
+      // The champion, and with validate_slot_2_ slot 2 as the genome to
+      // validate: both kept whole (the store ignores those stored whole
+      // already).
+      c.champion_genome = best;
       champions_.push_back(best->id);
       if (validate_slot_2_) {
-        c.keep_whole.push_back(&gen[2]);
+        ValidationRequest v;
+        v.genome_id = gen[2].id;
+        v.cases = 1;
+        v.genome = &gen[2];
+        c.validate = v;
         champions_.push_back(gen[2].id);
       }
       EXPECT_TRUE(store_->runs().CommitGeneration(c).ok());
